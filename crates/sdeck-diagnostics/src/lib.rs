@@ -1,0 +1,166 @@
+//! Diagnostics and the catalogue of rules, shared by every layer of sdeck.
+//!
+//! A [`Diagnostic`] is built once, by the layer that can decide it (syntax, semantics,
+//! checks), and rendered by the faces (CLI, language server) without re-deciding anything.
+//! Every diagnostic names a [`Rule`]; each rule lives in its own file under `rules/`, and
+//! its text is the manual that `sdeck explain`, docs/rules.md and the server all show.
+//!
+//! ```
+//! use sdeck_diagnostics::{rules, Diagnostic, Severity};
+//! let d = Diagnostic::new(&rules::UNUSED, 10..15, "parameter `beta` is never used");
+//! assert_eq!(d.rule, "unused");
+//! assert_eq!(d.severity, Severity::Warning);
+//! ```
+
+pub mod rules;
+
+use serde::Serialize;
+use std::fmt;
+use std::ops::Range;
+
+/// A byte range in the source text.
+pub type Span = Range<usize>;
+
+/// How serious a diagnostic is. Ordered from least to most serious.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Severity {
+    Hint,
+    Info,
+    Warning,
+    Error,
+}
+
+impl Severity {
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Severity::Hint => "hint",
+            Severity::Info => "info",
+            Severity::Warning => "warning",
+            Severity::Error => "error",
+        }
+    }
+
+    /// Parses `hint`, `info`, `warning` or `error`.
+    pub fn parse(text: &str) -> Option<Severity> {
+        match text {
+            "hint" => Some(Severity::Hint),
+            "info" => Some(Severity::Info),
+            "warning" => Some(Severity::Warning),
+            "error" => Some(Severity::Error),
+            _ => None,
+        }
+    }
+}
+
+impl fmt::Display for Severity {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(self.as_str())
+    }
+}
+
+/// One rule of the catalogue: its name, default severity and its manual.
+#[derive(Debug)]
+pub struct Rule {
+    /// Kebab-case name, shown in every output format.
+    pub name: &'static str,
+    pub default_severity: Severity,
+    /// One line: when the rule fires.
+    pub summary: &'static str,
+    /// What it does and why it matters, in prose (Markdown).
+    pub explanation: &'static str,
+    /// A small model on which the rule fires exactly once.
+    pub flawed: &'static str,
+    /// The same model, mended; the rule does not fire.
+    pub fixed: &'static str,
+}
+
+/// A secondary location with its own message ("first declared here").
+#[derive(Clone, Debug, PartialEq)]
+pub struct Label {
+    pub span: Span,
+    pub message: String,
+}
+
+/// A text replacement that a quick fix applies.
+#[derive(Clone, Debug, PartialEq)]
+pub struct TextEdit {
+    pub span: Span,
+    pub new_text: String,
+}
+
+/// A named set of edits that mends (or refactors) the text.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Fix {
+    pub title: String,
+    pub edits: Vec<TextEdit>,
+}
+
+/// A finding about a model file, located by byte spans.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Diagnostic {
+    pub rule: &'static str,
+    pub severity: Severity,
+    /// What is wrong, in one sentence.
+    pub message: String,
+    /// Where it is wrong.
+    pub span: Span,
+    /// Short text under the primary underline, if any.
+    pub label: Option<String>,
+    /// Related locations.
+    pub related: Vec<Label>,
+    /// How to mend it, in words.
+    pub help: Option<String>,
+    /// Further facts (converted values, derived numbers).
+    pub notes: Vec<String>,
+    /// Machine-applicable fixes.
+    pub fixes: Vec<Fix>,
+}
+
+impl Diagnostic {
+    /// A diagnostic of `rule` at its default severity.
+    pub fn new(rule: &'static Rule, span: Span, message: impl Into<String>) -> Diagnostic {
+        Diagnostic {
+            rule: rule.name,
+            severity: rule.default_severity,
+            message: message.into(),
+            span,
+            label: None,
+            related: Vec::new(),
+            help: None,
+            notes: Vec::new(),
+            fixes: Vec::new(),
+        }
+    }
+
+    pub fn with_label(mut self, label: impl Into<String>) -> Self {
+        self.label = Some(label.into());
+        self
+    }
+
+    pub fn with_related(mut self, span: Span, message: impl Into<String>) -> Self {
+        self.related.push(Label {
+            span,
+            message: message.into(),
+        });
+        self
+    }
+
+    pub fn with_help(mut self, help: impl Into<String>) -> Self {
+        self.help = Some(help.into());
+        self
+    }
+
+    pub fn with_note(mut self, note: impl Into<String>) -> Self {
+        self.notes.push(note.into());
+        self
+    }
+
+    pub fn with_fix(mut self, title: impl Into<String>, edits: Vec<TextEdit>) -> Self {
+        self.fixes.push(Fix {
+            title: title.into(),
+            edits,
+        });
+        self
+    }
+}

@@ -1,0 +1,62 @@
+//! The catalogue: one file per rule, its text the manual (`sdeck explain`, docs/rules.md, hover).
+
+mod bound_violated;
+mod correlation_not_psd;
+mod correlation_range;
+mod dimension_mismatch;
+mod duplicate_name;
+mod duplicate_term;
+mod expectation_failed;
+mod feller_condition;
+mod missing_equation;
+mod not_mean_reverting;
+mod state_domain;
+mod syntax;
+mod undefined_name;
+mod unit_scale;
+mod unused;
+mod unused_suppression;
+
+pub use bound_violated::BOUND_VIOLATED;
+pub use correlation_not_psd::CORRELATION_NOT_PSD;
+pub use correlation_range::CORRELATION_RANGE;
+pub use dimension_mismatch::DIMENSION_MISMATCH;
+pub use duplicate_name::DUPLICATE_NAME;
+pub use duplicate_term::DUPLICATE_TERM;
+pub use expectation_failed::EXPECTATION_FAILED;
+pub use feller_condition::FELLER_CONDITION;
+pub use missing_equation::MISSING_EQUATION;
+pub use not_mean_reverting::NOT_MEAN_REVERTING;
+pub use state_domain::STATE_DOMAIN;
+pub use syntax::SYNTAX;
+pub use undefined_name::UNDEFINED_NAME;
+pub use unit_scale::UNIT_SCALE;
+pub use unused::UNUSED;
+pub use unused_suppression::UNUSED_SUPPRESSION;
+
+use crate::Rule;
+
+/// Every rule, in the order the manual lists them.
+pub static ALL: &[&Rule] = &[
+    &SYNTAX,
+    &UNDEFINED_NAME,
+    &DUPLICATE_NAME,
+    &MISSING_EQUATION,
+    &DUPLICATE_TERM,
+    &DIMENSION_MISMATCH,
+    &BOUND_VIOLATED,
+    &CORRELATION_RANGE,
+    &CORRELATION_NOT_PSD,
+    &FELLER_CONDITION,
+    &STATE_DOMAIN,
+    &NOT_MEAN_REVERTING,
+    &UNUSED,
+    &UNIT_SCALE,
+    &EXPECTATION_FAILED,
+    &UNUSED_SUPPRESSION,
+];
+
+/// The rule called `name`, if there is one.
+pub fn by_name(name: &str) -> Option<&'static Rule> {
+    ALL.iter().copied().find(|rule| rule.name == name)
+}

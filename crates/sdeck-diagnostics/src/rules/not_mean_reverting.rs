@@ -1,0 +1,12 @@
+//! The `not-mean-reverting` rule.
+
+use crate::{Rule, Severity};
+
+pub const NOT_MEAN_REVERTING: Rule = Rule {
+    name: "not-mean-reverting",
+    default_severity: Severity::Warning,
+    summary: "A linear drift that pushes away from its level (explosive).",
+    explanation: include_str!("not_mean_reverting.md"),
+    flawed: include_str!("not_mean_reverting.flawed.sde"),
+    fixed: include_str!("not_mean_reverting.fixed.sde"),
+};

@@ -1,0 +1,12 @@
+//! The `syntax` rule.
+
+use crate::{Rule, Severity};
+
+pub const SYNTAX: Rule = Rule {
+    name: "syntax",
+    default_severity: Severity::Error,
+    summary: "The text does not parse.",
+    explanation: include_str!("syntax.md"),
+    flawed: include_str!("syntax.flawed.sde"),
+    fixed: include_str!("syntax.fixed.sde"),
+};

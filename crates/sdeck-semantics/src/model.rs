@@ -1,0 +1,344 @@
+//! The semantic model: resolved names, values converted to the clock, equations split
+//! into drift and diffusion. This is the input of the calculus layer.
+//!
+//! Every number here is in clock units: a parameter written `0.2 [1/sqrt(day)]` in a
+//! model whose clock is `year` is stored as `0.2 * sqrt(365)`. Lets are inlined into the
+//! expressions that use them, so an [`Expr`] mentions only constants, parameters, states
+//! and `t`.
+
+use sdeck_diagnostics::Span;
+use sdeck_syntax::ast::Figure;
+use sdeck_units::Dimension;
+
+/// A function of the language.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
+pub enum Function {
+    Exp,
+    Log,
+    Sqrt,
+    Abs,
+    Min,
+    Max,
+    Sin,
+    Cos,
+}
+
+impl Function {
+    pub const ALL: [Function; 8] = [
+        Function::Exp,
+        Function::Log,
+        Function::Sqrt,
+        Function::Abs,
+        Function::Min,
+        Function::Max,
+        Function::Sin,
+        Function::Cos,
+    ];
+
+    pub fn name(self) -> &'static str {
+        match self {
+            Function::Exp => "exp",
+            Function::Log => "log",
+            Function::Sqrt => "sqrt",
+            Function::Abs => "abs",
+            Function::Min => "min",
+            Function::Max => "max",
+            Function::Sin => "sin",
+            Function::Cos => "cos",
+        }
+    }
+
+    pub fn from_name(name: &str) -> Option<Function> {
+        Function::ALL.into_iter().find(|f| f.name() == name)
+    }
+
+    /// How many arguments the function takes.
+    pub fn arity(self) -> usize {
+        match self {
+            Function::Min | Function::Max => 2,
+            _ => 1,
+        }
+    }
+}
+
+/// A resolved expression. Lets are inlined; `pi` is a constant.
+#[derive(Clone, Debug, PartialEq)]
+pub enum Expr {
+    Const(f64),
+    /// Index into [`Model::params`].
+    Param(usize),
+    /// Index into [`Model::states`].
+    State(usize),
+    /// The time `t`, in clock units.
+    Time,
+    Neg(Box<Expr>),
+    Add(Box<Expr>, Box<Expr>),
+    Sub(Box<Expr>, Box<Expr>),
+    Mul(Box<Expr>, Box<Expr>),
+    Div(Box<Expr>, Box<Expr>),
+    Pow(Box<Expr>, Box<Expr>),
+    Call(Function, Vec<Expr>),
+    /// Something that did not resolve (an error was reported); the calculus treats an
+    /// expression containing it as unknown.
+    Invalid,
+}
+
+/// A closed, open or half-open interval; `None` ends are infinite.
+#[derive(Clone, Copy, Debug, PartialEq, Default)]
+pub struct Interval {
+    /// `(value, inclusive)`.
+    pub lower: Option<(f64, bool)>,
+    pub upper: Option<(f64, bool)>,
+}
+
+impl Interval {
+    pub fn contains(&self, x: f64) -> bool {
+        let above = match self.lower {
+            None => true,
+            Some((v, true)) => x >= v,
+            Some((v, false)) => x > v,
+        };
+        let below = match self.upper {
+            None => true,
+            Some((v, true)) => x <= v,
+            Some((v, false)) => x < v,
+        };
+        above && below && !x.is_nan()
+    }
+
+    /// Whether the interval is the whole real line.
+    pub fn is_unbounded(&self) -> bool {
+        self.lower.is_none() && self.upper.is_none()
+    }
+}
+
+/// A `param`.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Param {
+    pub name: String,
+    /// Span of the name in its declaration.
+    pub name_span: Span,
+    /// Span of the whole declaration.
+    pub span: Span,
+    /// The value as written, in the declared unit.
+    pub written: f64,
+    /// The value in clock units: `written * scale`.
+    pub value: f64,
+    /// Factor from the declared unit to clock units (1 when no time unit is involved).
+    pub scale: f64,
+    pub dimension: Dimension,
+    /// The unit as written, without brackets (`1/sqrt(day)`), if any.
+    pub unit_text: Option<String>,
+    /// The bound, converted to clock units.
+    pub bound: Option<Interval>,
+    pub description: Option<String>,
+}
+
+/// A `state` with its initial value and its equation.
+#[derive(Clone, Debug, PartialEq)]
+pub struct State {
+    pub name: String,
+    pub name_span: Span,
+    pub span: Span,
+    /// Initial value as written.
+    pub written: f64,
+    /// Initial value in clock units.
+    pub initial: f64,
+    pub scale: f64,
+    pub dimension: Dimension,
+    pub unit_text: Option<String>,
+    /// The declared domain, in clock units (unbounded when none was declared).
+    pub domain: Interval,
+    /// Whether a domain was declared.
+    pub has_domain: bool,
+    pub description: Option<String>,
+    pub equation: Option<Equation>,
+}
+
+/// One diffusion term `coefficient dNOISE`.
+#[derive(Clone, Debug, PartialEq)]
+pub struct DiffusionTerm {
+    /// Index into [`Model::noises`].
+    pub noise: usize,
+    pub coefficient: Expr,
+    pub span: Span,
+}
+
+/// `dX = drift dt + Σ coefficient_k dW_k`.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Equation {
+    /// Span of the whole equation statement.
+    pub span: Span,
+    /// Span of the `dX` token.
+    pub lhs_span: Span,
+    /// The drift; `Const(0)` when there is no `dt` term.
+    pub drift: Expr,
+    /// Span of the `dt` term, if there is one.
+    pub drift_span: Option<Span>,
+    pub diffusion: Vec<DiffusionTerm>,
+}
+
+/// A `noise`.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Noise {
+    pub name: String,
+    pub name_span: Span,
+    pub description: Option<String>,
+}
+
+/// A `corr a b = rho` statement.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Correlation {
+    pub first: usize,
+    pub second: usize,
+    pub value: f64,
+    pub span: Span,
+}
+
+/// A `let`, kept for hover and inlay hints (its uses are already inlined).
+#[derive(Clone, Debug, PartialEq)]
+pub struct Let {
+    pub name: String,
+    pub name_span: Span,
+    pub span: Span,
+    pub value: Expr,
+    pub dimension: Option<Dimension>,
+    pub description: Option<String>,
+}
+
+/// An `expect` statement, converted to clock units.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Expectation {
+    pub figure: Figure,
+    /// Index into [`Model::states`].
+    pub state: usize,
+    /// The time at which the figure is taken (clock units); `None` means the horizon.
+    pub at: Option<f64>,
+    /// The admissible values, in the figure's clock units.
+    pub admissible: Interval,
+    pub span: Span,
+}
+
+/// A declared unit (`unit EUR`).
+#[derive(Clone, Debug, PartialEq)]
+pub struct UnitDecl {
+    pub name: String,
+    pub name_span: Span,
+}
+
+/// The time unit the model's clock runs in.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Clock {
+    /// `year`, `month`, `week`, `day` or `bday`.
+    pub unit: String,
+    /// Length of one clock unit in years.
+    pub years: f64,
+}
+
+/// A whole model, resolved and converted to clock units.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Model {
+    pub name: String,
+    pub clock: Clock,
+    /// Default reporting time, in clock units.
+    pub horizon: f64,
+    pub units: Vec<UnitDecl>,
+    pub params: Vec<Param>,
+    pub states: Vec<State>,
+    pub noises: Vec<Noise>,
+    pub correlations: Vec<Correlation>,
+    pub lets: Vec<Let>,
+    pub expectations: Vec<Expectation>,
+}
+
+impl Model {
+    /// The correlation matrix of the noises, in declaration order (identity where no
+    /// `corr` was given).
+    pub fn correlation_matrix(&self) -> Vec<Vec<f64>> {
+        let n = self.noises.len();
+        let mut m = vec![vec![0.0; n]; n];
+        for (i, row) in m.iter_mut().enumerate() {
+            row[i] = 1.0;
+        }
+        for c in &self.correlations {
+            if c.first != c.second {
+                m[c.first][c.second] = c.value;
+                m[c.second][c.first] = c.value;
+            }
+        }
+        m
+    }
+
+    pub fn param_index(&self, name: &str) -> Option<usize> {
+        self.params.iter().position(|p| p.name == name)
+    }
+
+    pub fn state_index(&self, name: &str) -> Option<usize> {
+        self.states.iter().position(|s| s.name == name)
+    }
+}
+
+impl Expr {
+    /// Evaluates the expression with parameter values `params` (clock units), state
+    /// values `states` and time `t`. `Invalid` evaluates to NaN.
+    pub fn eval(&self, params: &[f64], states: &[f64], t: f64) -> f64 {
+        let ev = |e: &Expr| e.eval(params, states, t);
+        match self {
+            Expr::Const(c) => *c,
+            Expr::Param(i) => params.get(*i).copied().unwrap_or(f64::NAN),
+            Expr::State(i) => states.get(*i).copied().unwrap_or(f64::NAN),
+            Expr::Time => t,
+            Expr::Neg(a) => -ev(a),
+            Expr::Add(a, b) => ev(a) + ev(b),
+            Expr::Sub(a, b) => ev(a) - ev(b),
+            Expr::Mul(a, b) => ev(a) * ev(b),
+            Expr::Div(a, b) => ev(a) / ev(b),
+            Expr::Pow(a, b) => ev(a).powf(ev(b)),
+            Expr::Call(f, args) => {
+                let x = args.first().map(ev).unwrap_or(f64::NAN);
+                match f {
+                    Function::Exp => x.exp(),
+                    Function::Log => x.ln(),
+                    Function::Sqrt => x.sqrt(),
+                    Function::Abs => x.abs(),
+                    Function::Sin => x.sin(),
+                    Function::Cos => x.cos(),
+                    Function::Min | Function::Max => {
+                        let y = args.get(1).map(ev).unwrap_or(f64::NAN);
+                        if *f == Function::Min {
+                            x.min(y)
+                        } else {
+                            x.max(y)
+                        }
+                    }
+                }
+            }
+            Expr::Invalid => f64::NAN,
+        }
+    }
+
+    /// Whether any part of the expression failed to resolve.
+    pub fn is_invalid(&self) -> bool {
+        match self {
+            Expr::Invalid => true,
+            Expr::Const(_) | Expr::Param(_) | Expr::State(_) | Expr::Time => false,
+            Expr::Neg(a) => a.is_invalid(),
+            Expr::Add(a, b) | Expr::Sub(a, b) | Expr::Mul(a, b) | Expr::Div(a, b) | Expr::Pow(a, b) => {
+                a.is_invalid() || b.is_invalid()
+            }
+            Expr::Call(_, args) => args.iter().any(Expr::is_invalid),
+        }
+    }
+}
+
+impl Model {
+    /// Parameter values in clock units, in declaration order.
+    pub fn param_values(&self) -> Vec<f64> {
+        self.params.iter().map(|p| p.value).collect()
+    }
+
+    /// Initial state values in clock units, in declaration order.
+    pub fn initial_values(&self) -> Vec<f64> {
+        self.states.iter().map(|s| s.initial).collect()
+    }
+}

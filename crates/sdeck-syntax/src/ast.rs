@@ -1,0 +1,327 @@
+//! The syntax tree: plain data with a byte span on every node.
+//!
+//! The tree is what was written, not what it means: names are not resolved, units are
+//! not evaluated, and a `dW` is only a differential token until the semantic layer finds
+//! the noise `W`. Number literals carry their value with `%` and `bp` already applied.
+
+use sdeck_diagnostics::Span;
+
+/// A name as written, with its span.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Ident {
+    pub name: String,
+    pub span: Span,
+}
+
+/// A number literal (`12`, `0.5`, `1e-3`, `3.5%`, `25bp`, `inf`), its sign included.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Number {
+    /// The value, with `%` (÷100) and `bp` (÷10 000) applied.
+    pub value: f64,
+    /// The text as written, for the formatter and for messages.
+    pub text: String,
+    pub span: Span,
+}
+
+/// A rational exponent `num/den` of a unit, in lowest terms with `den > 0`.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct Exponent {
+    pub num: i64,
+    pub den: i64,
+}
+
+/// A unit expression as written inside `[...]` (or bare after a horizon or expectation).
+#[derive(Clone, Debug, PartialEq)]
+pub enum UnitExpr {
+    /// `1`: dimensionless.
+    One { span: Span },
+    /// A unit name: `year`, `day`, `EUR`.
+    Name(Ident),
+    Mul {
+        lhs: Box<UnitExpr>,
+        rhs: Box<UnitExpr>,
+        span: Span,
+    },
+    Div {
+        lhs: Box<UnitExpr>,
+        rhs: Box<UnitExpr>,
+        span: Span,
+    },
+    /// `base^2`, `base^(-1/2)`.
+    Pow {
+        base: Box<UnitExpr>,
+        exponent: Exponent,
+        span: Span,
+    },
+    /// `sqrt(inner)`.
+    Sqrt { inner: Box<UnitExpr>, span: Span },
+}
+
+impl UnitExpr {
+    pub fn span(&self) -> Span {
+        match self {
+            UnitExpr::One { span }
+            | UnitExpr::Mul { span, .. }
+            | UnitExpr::Div { span, .. }
+            | UnitExpr::Pow { span, .. }
+            | UnitExpr::Sqrt { span, .. } => span.clone(),
+            UnitExpr::Name(ident) => ident.span.clone(),
+        }
+    }
+}
+
+/// A number with an optional unit: `6 month`, `0.02 [1/sqrt(year)]`, `80bp`.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Quantity {
+    pub number: Number,
+    pub unit: Option<UnitExpr>,
+    pub span: Span,
+}
+
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum BinaryOp {
+    Add,
+    Sub,
+    Mul,
+    Div,
+    Pow,
+}
+
+impl BinaryOp {
+    pub fn symbol(self) -> &'static str {
+        match self {
+            BinaryOp::Add => "+",
+            BinaryOp::Sub => "-",
+            BinaryOp::Mul => "*",
+            BinaryOp::Div => "/",
+            BinaryOp::Pow => "^",
+        }
+    }
+}
+
+/// An expression of numbers, names, `t`, `pi`, operators and function calls.
+#[derive(Clone, Debug, PartialEq)]
+pub enum Expr {
+    Number(Number),
+    /// Any name, including the reserved `t` and `pi`.
+    Name(Ident),
+    /// Unary minus.
+    Neg { operand: Box<Expr>, span: Span },
+    Binary {
+        op: BinaryOp,
+        lhs: Box<Expr>,
+        rhs: Box<Expr>,
+        span: Span,
+    },
+    /// A function call: `exp(x)`, `max(a, b)`. The function name is not checked here.
+    Call {
+        function: Ident,
+        args: Vec<Expr>,
+        span: Span,
+    },
+    /// A parenthesised expression, kept so that spans and formatting follow the text.
+    Paren { inner: Box<Expr>, span: Span },
+}
+
+impl Expr {
+    pub fn span(&self) -> Span {
+        match self {
+            Expr::Number(n) => n.span.clone(),
+            Expr::Name(i) => i.span.clone(),
+            Expr::Neg { span, .. }
+            | Expr::Binary { span, .. }
+            | Expr::Call { span, .. }
+            | Expr::Paren { span, .. } => span.clone(),
+        }
+    }
+}
+
+/// One end of a bound. An infinite end (`inf`, `-inf`) is stored as `None` in [`Bound`].
+#[derive(Clone, Debug, PartialEq)]
+pub struct BoundEnd {
+    pub value: Number,
+    pub inclusive: bool,
+}
+
+/// `> x`, `>= x`, `< x`, `<= x`, or an interval `in [a, b)`, in the declaration's unit.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Bound {
+    pub lower: Option<BoundEnd>,
+    pub upper: Option<BoundEnd>,
+    pub span: Span,
+}
+
+/// `param NAME = NUMBER [UNIT]? BOUND?` and `state NAME = NUMBER [UNIT]? BOUND?`.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Declaration {
+    pub name: Ident,
+    pub value: Number,
+    pub unit: Option<UnitExpr>,
+    pub bound: Option<Bound>,
+}
+
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Sign {
+    Plus,
+    Minus,
+}
+
+/// The differential that ends a term.
+#[derive(Clone, Debug, PartialEq)]
+pub enum Differential {
+    /// `dt`, with the span of the token.
+    Time(Span),
+    /// `dW`: the noise name `W` (its span covers `W` only) and the span of the whole token.
+    Noise { noise: Ident, token: Span },
+}
+
+/// One term of an equation: `± coefficient differential`.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Term {
+    pub sign: Sign,
+    /// `None` when the term is a bare differential (`dX = dW`).
+    pub coefficient: Option<Expr>,
+    pub differential: Differential,
+    pub span: Span,
+}
+
+/// `dX = TERM (± TERM)*`.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Equation {
+    /// The state `X` (span covers `X` only).
+    pub state: Ident,
+    /// The span of the `dX` token.
+    pub lhs: Span,
+    pub terms: Vec<Term>,
+}
+
+/// The derived figure an expectation pins.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Figure {
+    Mean,
+    Variance,
+    Sd,
+    Halflife,
+    StationaryMean,
+    StationaryVariance,
+    StationarySd,
+}
+
+impl Figure {
+    pub const ALL: [Figure; 7] = [
+        Figure::Mean,
+        Figure::Variance,
+        Figure::Sd,
+        Figure::Halflife,
+        Figure::StationaryMean,
+        Figure::StationaryVariance,
+        Figure::StationarySd,
+    ];
+
+    pub fn keyword(self) -> &'static str {
+        match self {
+            Figure::Mean => "mean",
+            Figure::Variance => "variance",
+            Figure::Sd => "sd",
+            Figure::Halflife => "halflife",
+            Figure::StationaryMean => "stationary_mean",
+            Figure::StationaryVariance => "stationary_variance",
+            Figure::StationarySd => "stationary_sd",
+        }
+    }
+
+    pub fn from_keyword(text: &str) -> Option<Figure> {
+        Figure::ALL.into_iter().find(|f| f.keyword() == text)
+    }
+
+    /// Whether the figure depends on a time (`mean(x, 1 year)`).
+    pub fn takes_time(self) -> bool {
+        matches!(self, Figure::Mean | Figure::Variance | Figure::Sd)
+    }
+}
+
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Comparison {
+    Less,
+    LessEqual,
+    Greater,
+    GreaterEqual,
+}
+
+impl Comparison {
+    pub fn symbol(self) -> &'static str {
+        match self {
+            Comparison::Less => "<",
+            Comparison::LessEqual => "<=",
+            Comparison::Greater => ">",
+            Comparison::GreaterEqual => ">=",
+        }
+    }
+}
+
+/// What an expectation requires of its figure.
+#[derive(Clone, Debug, PartialEq)]
+pub enum Condition {
+    Compare {
+        op: Comparison,
+        value: Quantity,
+    },
+    Within {
+        lower: Quantity,
+        lower_inclusive: bool,
+        upper: Quantity,
+        upper_inclusive: bool,
+    },
+}
+
+/// `expect FIGURE(STATE[, TIME]) CONDITION`.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Expectation {
+    pub figure: Figure,
+    pub figure_span: Span,
+    pub state: Ident,
+    pub at: Option<Quantity>,
+    pub condition: Condition,
+}
+
+#[derive(Clone, Debug, PartialEq)]
+pub enum StatementKind {
+    Model { name: Ident },
+    Clock { unit: Ident },
+    Horizon { value: Quantity },
+    Unit { name: Ident },
+    Param(Declaration),
+    State(Declaration),
+    Noise { names: Vec<Ident> },
+    Corr { first: Ident, second: Ident, value: Number },
+    Let { name: Ident, value: Expr },
+    Equation(Equation),
+    Expect(Expectation),
+}
+
+/// A statement, its span (without trailing comments) and its description comment.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Statement {
+    pub kind: StatementKind,
+    pub span: Span,
+    /// The text of a comment on the same line after the statement, without `#`.
+    pub description: Option<String>,
+}
+
+/// A `#` comment: its span covers the `#` up to the end of the line.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Comment {
+    pub span: Span,
+    /// The text after `#`, untrimmed.
+    pub text: String,
+    /// Whether code stands before it on its line.
+    pub trailing: bool,
+}
+
+/// A parsed file: every statement that parsed, every comment, and the syntax errors.
+#[derive(Clone, Debug, Default)]
+pub struct SourceFile {
+    pub statements: Vec<Statement>,
+    pub comments: Vec<Comment>,
+    pub diagnostics: Vec<sdeck_diagnostics::Diagnostic>,
+}
