@@ -1,0 +1,71 @@
+//! The built-in time units and their lengths in years.
+//!
+//! A day is 1/365 of a year (the ACT/365 Fixed convention) and a business day 1/252 of a
+//! year (252 trading days a year); both are common practice, no source. A month is 1/12
+//! of a year and a week 7 days.
+
+use crate::rational::Rational;
+
+/// The names of the built-in time units, longest first in length of time.
+pub const TIME_UNITS: [&str; 5] = ["year", "month", "week", "day", "bday"];
+
+/// The length of a built-in time unit in years, exactly: year 1, month 1/12, week 7/365,
+/// day 1/365, bday 1/252. `None` for any other name.
+pub fn time_unit_years_exact(name: &str) -> Option<Rational> {
+    let (num, den) = match name {
+        "year" => (1, 1),
+        "month" => (1, 12),
+        "week" => (7, 365),
+        "day" => (1, 365),
+        "bday" => (1, 252),
+        _ => return None,
+    };
+    Rational::new(num, den)
+}
+
+/// The length of a built-in time unit in years, as the nearest `f64`: year 1;
+/// month 1/12; week 7/365; day 1/365; bday 1/252. `None` for any other name.
+pub fn time_unit_years(name: &str) -> Option<f64> {
+    time_unit_years_exact(name).map(Rational::to_f64)
+}
+
+/// Whether `name` is a built-in time unit.
+pub fn is_time_unit(name: &str) -> bool {
+    TIME_UNITS.contains(&name)
+}
+
+/// The built-in unit whose length in years is exactly `years` (as computed by
+/// [`time_unit_years`]), if any.
+pub(crate) fn exact_years_of(years: f64) -> Option<Rational> {
+    TIME_UNITS
+        .iter()
+        .filter_map(|name| time_unit_years_exact(name))
+        .find(|exact| exact.to_f64() == years)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn lengths_in_years() {
+        // ACT/365 Fixed day count and 252 business days per year: common practice, no
+        // source. 12 months and 7 days a week: calendar facts.
+        let expected = [
+            ("year", 1.0),
+            ("month", 1.0 / 12.0),
+            ("week", 7.0 / 365.0),
+            ("day", 1.0 / 365.0),
+            ("bday", 1.0 / 252.0),
+        ];
+        for (name, years) in expected {
+            assert_eq!(time_unit_years(name), Some(years), "{name}");
+            assert!(is_time_unit(name));
+            assert_eq!(exact_years_of(years), time_unit_years_exact(name));
+        }
+        assert_eq!(time_unit_years("Year"), None);
+        assert_eq!(time_unit_years("EUR"), None);
+        assert!(!is_time_unit("days"));
+        assert_eq!(exact_years_of(0.5), None);
+    }
+}
