@@ -154,11 +154,7 @@ impl Dimension {
             (true, true) => "1".to_string(),
             (false, true) => numerator.join("*"),
             (true, false) => format!("1/{}", join_denominator(&denominator)),
-            (false, false) => format!(
-                "{}/{}",
-                numerator.join("*"),
-                join_denominator(&denominator)
-            ),
+            (false, false) => format!("{}/{}", numerator.join("*"), join_denominator(&denominator)),
         }
     }
 
@@ -353,7 +349,10 @@ mod tests {
         assert_ne!(product, Dimension::dimensionless());
         assert!(product.mul(&eur()).overflowed());
         assert!(eur().div(&product).overflowed());
-        assert_eq!(product.pow(Rational::ZERO), Some(Dimension::dimensionless()));
+        assert_eq!(
+            product.pow(Rational::ZERO),
+            Some(Dimension::dimensionless())
+        );
         let huge = Dimension::from_factors([("EUR", Rational::from_int(i64::MAX))]);
         let huge = huge.unwrap_or_default();
         assert_eq!(huge.pow(Rational::from_int(2)), None);
@@ -374,7 +373,11 @@ mod tests {
             (inverse_time.sqrt(), "1/sqrt(year)", "1/sqrt(time)"),
             (eur(), "EUR", "EUR"),
             (eur().div(&time), "EUR/year", "EUR per time"),
-            (eur().div(&time.sqrt()), "EUR/sqrt(year)", "EUR per sqrt(time)"),
+            (
+                eur().div(&time.sqrt()),
+                "EUR/sqrt(year)",
+                "EUR per sqrt(time)",
+            ),
             (
                 time.pow(r(3, 2)).unwrap_or_default(),
                 "year^(3/2)",
@@ -385,11 +388,7 @@ mod tests {
                 "EUR^2/year",
                 "EUR^2 per time",
             ),
-            (
-                inverse_time.div(&eur()),
-                "1/(EUR*year)",
-                "1/(EUR*time)",
-            ),
+            (inverse_time.div(&eur()), "1/(EUR*year)", "1/(EUR*time)"),
             (eur().mul(&time), "EUR*year", "EUR*time"),
             (
                 time.pow(r(-5, 3)).unwrap_or_default(),

@@ -198,7 +198,11 @@ mod tests {
         ];
         for ((num, den), (want_num, want_den)) in cases {
             let value = r(num, den);
-            assert_eq!((value.num(), value.den()), (want_num, want_den), "{num}/{den}");
+            assert_eq!(
+                (value.num(), value.den()),
+                (want_num, want_den),
+                "{num}/{den}"
+            );
         }
     }
 
@@ -235,12 +239,15 @@ mod tests {
         let b = r(1, i64::MAX - 1);
         assert_eq!(a.checked_add(b), None);
         // ... but a result that reduces back into range is fine.
-        assert_eq!(a.checked_mul(Rational::from_int(i64::MAX)), Some(Rational::ONE));
+        assert_eq!(
+            a.checked_mul(Rational::from_int(i64::MAX)),
+            Some(Rational::ONE)
+        );
     }
 
     #[test]
     fn order_and_display() {
-        let mut values = vec![r(3, 2), r(-1, 1), r(1, 2), Rational::ZERO, r(-1, 2)];
+        let mut values = [r(3, 2), r(-1, 1), r(1, 2), Rational::ZERO, r(-1, 2)];
         values.sort();
         let shown: Vec<String> = values.iter().map(|v| v.to_string()).collect();
         assert_eq!(shown, ["-1", "-1/2", "0", "1/2", "3/2"]);
