@@ -1,0 +1,1382 @@
+#!/usr/bin/env python3
+"""Independent reference figures for the models in tests/reference/models/.
+
+Each model file is transcribed here by hand, next to its file name: parameters as
+written (literal and unit), states, noises, correlations, and the drift and diffusion
+of every equation. The script converts the values to the model's clock itself, then
+computes at the horizon, for every state, the mean, the variance, the half-life and the
+stationary mean and variance, and the covariance matrix of all states.
+
+Every figure is computed twice, by methods that share no code:
+  * a primary method chosen by family: Van Loan's block matrix exponential for
+    Gaussian linear systems, the log-normal law for geometric Brownian motion, the
+    scaled non-central chi-square law for square-root processes, quadrature of the
+    integrating-factor integrals for time-dependent linear equations, and the
+    exponential of the generator on monomials (built with sympy) for polynomial
+    models;
+  * the moment equations of all monomials of degree <= 2, integrated with solve_ivp.
+The two must agree to 1e-9 (relative to the scale of each figure) or the script stops.
+One-state Ornstein-Uhlenbeck figures, and the elementary time-dependent model, are also
+derived symbolically with sympy and compared.
+
+Usage:
+  python3 tests/reference/compute.py           # writes tests/reference/expected.json
+  python3 tests/reference/compute.py --check   # recomputes, compares with the
+                                               # committed file to 1e-12, exit 1 on change
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import math
+import platform
+import re
+import sys
+from dataclasses import dataclass, field
+from fractions import Fraction
+from pathlib import Path
+
+import numpy as np
+import scipy
+import sympy as sp
+from scipy import integrate, linalg, stats
+
+REFERENCE_DIR = Path(__file__).resolve().parent
+REPO_ROOT = REFERENCE_DIR.parent.parent
+MODELS_DIR = REFERENCE_DIR / "models"
+EXPECTED_PATH = REFERENCE_DIR / "expected.json"
+
+# Length of each built-in time unit in years, as the language design defines them:
+# month = year/12, week = 7 day, day = year/365, bday = year/252.
+TIME_UNIT_YEARS = {
+    "year": Fraction(1),
+    "month": Fraction(1, 12),
+    "week": Fraction(7, 365),
+    "day": Fraction(1, 365),
+    "bday": Fraction(1, 252),
+}
+
+# Two independent methods must agree to this (relative to the figure's scale).
+METHOD_AGREEMENT = 1e-9
+# The committed expected.json must be reproduced to this (relative).
+CHECK_TOLERANCE = 1e-12
+# Tolerance published for the project's own figures: tight for closed forms and
+# matrix exponentials, looser where the reference itself is a quadrature.
+TOLERANCE_EXACT = 1e-9
+TOLERANCE_QUADRATURE = 1e-7
+
+FAMILIES = (
+    "arithmetic-brownian",
+    "geometric-brownian",
+    "ornstein-uhlenbeck",
+    "square-root",
+    "linear",
+    "linear-system",
+    "polynomial",
+    "general",
+)
+
+SOURCE_VASICEK = (
+    "Vasicek 1977, An equilibrium characterization of the term structure, "
+    "J. Financial Economics 5, 177-188 (conditional mean and variance of the "
+    "Ornstein-Uhlenbeck short rate; section from memory)"
+)
+SOURCE_CIR = (
+    "Cox, Ingersoll & Ross 1985, A theory of the term structure of interest rates, "
+    "Econometrica 53, 385-407, eq. (18)-(19): non-central chi-square transition law "
+    "and its moments (equation numbers from memory)"
+)
+SOURCE_KLOEDEN_PLATEN = (
+    "Kloeden & Platen 1992, Numerical Solution of Stochastic Differential Equations, "
+    "sections 4.2-4.4: linear SDEs, their solution by integrating factor and their "
+    "moment equations"
+)
+SOURCE_VAN_LOAN = (
+    "Van Loan 1978, Computing integrals involving the matrix exponential, "
+    "IEEE Trans. Automatic Control 23, 395-404 (block-matrix exponential for "
+    "int_0^T e^{As} Q e^{A's} ds)"
+)
+SOURCE_GARDINER = (
+    "Gardiner, Handbook of Stochastic Methods, section 4.4.6: stationary covariance of "
+    "the multivariate Ornstein-Uhlenbeck process from A S + S A' + B B' = 0"
+)
+SOURCE_LOGNORMAL = (
+    "Kloeden & Platen 1992, section 4.4: geometric Brownian motion is log-normal with "
+    "log-mean log(S0) + (mu - sigma^2/2) T and log-variance sigma^2 T (from memory)"
+)
+SOURCE_POLYNOMIAL = (
+    "Cuchiero, Keller-Ressel & Teichmann 2012, Polynomial processes and their "
+    "applications to mathematical finance, Finance and Stochastics 16, 711-740: "
+    "moments from the exponential of the generator on polynomials of bounded degree"
+)
+SOURCE_HESTON = (
+    "Heston 1993, A closed-form solution for options with stochastic volatility, "
+    "Review of Financial Studies 6, 327-343 (log price with square-root variance)"
+)
+SOURCE_GAMMA = (
+    "Cox, Ingersoll & Ross 1985, Econometrica 53: stationary law of the square-root "
+    "process is a gamma law with shape 2 kappa level / vol^2 and scale vol^2 / (2 kappa) "
+    "(from memory)"
+)
+
+
+# --------------------------------------------------------------------------------------
+# Model transcriptions
+# --------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Quantity:
+    """A `param` or `state` as written in the file: name, number literal, unit text."""
+
+    name: str
+    literal: str
+    unit: str | None = None
+
+
+@dataclass(frozen=True)
+class StateSpec:
+    name: str
+    literal: str
+    unit: str | None
+    family: str
+
+
+@dataclass
+class ModelSpec:
+    """A model file transcribed by hand. Expressions use Python/sympy syntax."""
+
+    file: str
+    clock: str
+    horizon: tuple[str, str | None]
+    params: list[Quantity]
+    states: list[StateSpec]
+    noises: list[str]
+    correlations: dict[tuple[str, str], str]
+    drift: dict[str, str]
+    diffusion: dict[str, dict[str, str]]
+    sources: list[str]
+    # Whether the time-dependent integrals are elementary, so sympy can do them too.
+    elementary_time_dependence: bool = False
+    lets: dict[str, str] = field(default_factory=dict)
+
+    @property
+    def path(self) -> Path:
+        return MODELS_DIR / self.file
+
+    @property
+    def relative_path(self) -> str:
+        return f"tests/reference/models/{self.file}"
+
+
+def P(name: str, literal: str, unit: str | None = None) -> Quantity:
+    return Quantity(name, literal, unit)
+
+
+def S(name: str, literal: str, family: str, unit: str | None = None) -> StateSpec:
+    return StateSpec(name, literal, unit, family)
+
+
+MODELS: list[ModelSpec] = [
+    ModelSpec(
+        file="abm_harrowgate_spread.sde",
+        clock="year",
+        horizon=("9", "month"),
+        params=[P("widening", "20bp", "1/year"), P("vol", "35bp", "1/sqrt(year)")],
+        states=[S("s", "145bp", "arithmetic-brownian")],
+        noises=["W"],
+        correlations={},
+        drift={"s": "widening"},
+        diffusion={"s": {"W": "vol"}},
+        sources=[SOURCE_KLOEDEN_PLATEN, SOURCE_VAN_LOAN],
+    ),
+    ModelSpec(
+        file="gbm_osterlund_share.sde",
+        clock="year",
+        horizon=("2", "year"),
+        params=[P("mu", "6%", "1/year"), P("sigma", "22%", "1/sqrt(year)")],
+        states=[S("S", "84.5", "geometric-brownian", "VDM")],
+        noises=["W"],
+        correlations={},
+        drift={"S": "mu * S"},
+        diffusion={"S": {"W": "sigma * S"}},
+        sources=[SOURCE_LOGNORMAL, "scipy.stats.lognorm", SOURCE_POLYNOMIAL],
+    ),
+    ModelSpec(
+        file="ou_quillon_overnight_daily_units.sde",
+        clock="year",
+        horizon=("6", "month"),
+        params=[
+            P("kappa", "0.5%", "1/day"),
+            P("level", "3.2%"),
+            P("vol", "4bp", "1/sqrt(day)"),
+        ],
+        states=[S("r", "2.75%", "ornstein-uhlenbeck")],
+        noises=["W"],
+        correlations={},
+        drift={"r": "kappa * (level - r)"},
+        diffusion={"r": {"W": "vol"}},
+        sources=[SOURCE_VASICEK, SOURCE_VAN_LOAN, SOURCE_GARDINER],
+    ),
+    ModelSpec(
+        file="ou_marrowind_inflation_month_clock.sde",
+        clock="month",
+        horizon=("1", "year"),
+        params=[
+            P("speed", "0.15", "1/month"),
+            P("target", "1.4%"),
+            P("vol", "30bp", "1/sqrt(year)"),
+        ],
+        states=[S("x", "0.9%", "ornstein-uhlenbeck")],
+        noises=["W"],
+        correlations={},
+        drift={"x": "speed * (target - x)"},
+        diffusion={"x": {"W": "vol"}},
+        sources=[SOURCE_VASICEK, SOURCE_VAN_LOAN, SOURCE_GARDINER],
+    ),
+    ModelSpec(
+        file="ou_brindle_repo_18_months.sde",
+        clock="year",
+        horizon=("18", "month"),
+        params=[
+            P("kappa", "2%", "1/week"),
+            P("level", "2.1%"),
+            P("premium", "15bp"),
+            P("vol", "5bp", "1/sqrt(bday)"),
+        ],
+        lets={"target": "level + premium"},
+        states=[S("r", "2.6%", "ornstein-uhlenbeck")],
+        noises=["W"],
+        correlations={},
+        drift={"r": "kappa * (target - r)"},
+        diffusion={"r": {"W": "vol"}},
+        sources=[SOURCE_VASICEK, SOURCE_VAN_LOAN, SOURCE_GARDINER],
+    ),
+    ModelSpec(
+        file="cir_fennimore_hazard_feller_ok.sde",
+        clock="year",
+        horizon=("1", "year"),
+        params=[
+            P("kappa", "0.9", "1/year"),
+            P("level", "3.5%", "1/year"),
+            P("vol", "8%", "1/year"),
+        ],
+        states=[S("h", "2.5%", "square-root", "1/year")],
+        noises=["W"],
+        correlations={},
+        drift={"h": "kappa * (level - h)"},
+        diffusion={"h": {"W": "vol * sqrt(h)"}},
+        sources=[SOURCE_CIR, "scipy.stats.ncx2", SOURCE_GAMMA, "scipy.stats.gamma"],
+    ),
+    ModelSpec(
+        file="cir_gorsedene_hazard_feller_violated.sde",
+        clock="year",
+        horizon=("2", "year"),
+        params=[
+            P("kappa", "0.3", "1/year"),
+            P("level", "2%", "1/year"),
+            P("vol", "15%", "1/year"),
+        ],
+        states=[S("h", "1.2%", "square-root", "1/year")],
+        noises=["W"],
+        correlations={},
+        drift={"h": "kappa * (level - h)"},
+        diffusion={"h": {"W": "vol * sqrt(h)"}},
+        sources=[SOURCE_CIR, "scipy.stats.ncx2", SOURCE_GAMMA, "scipy.stats.gamma"],
+    ),
+    ModelSpec(
+        file="linear_ashcombe_multiplicative_noise.sde",
+        clock="year",
+        horizon=("1", "year"),
+        params=[
+            P("speed", "1.1", "1/year"),
+            P("level", "2.4%"),
+            P("base_vol", "0.6%", "1/sqrt(year)"),
+            P("prop_vol", "25%", "1/sqrt(year)"),
+        ],
+        states=[S("x", "1.9%", "linear")],
+        noises=["W"],
+        correlations={},
+        drift={"x": "speed * (level - x)"},
+        diffusion={"x": {"W": "base_vol + prop_vol * x"}},
+        sources=[SOURCE_KLOEDEN_PLATEN, SOURCE_POLYNOMIAL],
+    ),
+    ModelSpec(
+        file="linear_thornbury_time_dependent.sde",
+        clock="year",
+        horizon=("2", "year"),
+        params=[
+            P("kappa", "1.4", "1/year"),
+            P("base", "2%"),
+            P("slope", "0.5%", "1/year"),
+            P("sigma", "1.2%", "1/sqrt(year)"),
+            P("lam", "0.7", "1/year"),
+        ],
+        lets={"level": "base + slope * t"},
+        states=[S("x", "1.5%", "linear")],
+        noises=["W"],
+        correlations={},
+        drift={"x": "kappa * (level - x)"},
+        diffusion={"x": {"W": "sigma * exp(-lam * t)"}},
+        sources=[SOURCE_KLOEDEN_PLATEN, "scipy.integrate.quad", "sympy.integrate"],
+        elementary_time_dependence=True,
+    ),
+    ModelSpec(
+        file="linear_brackwater_seasonal.sde",
+        clock="year",
+        horizon=("1", "year"),
+        params=[
+            P("kappa", "3.0", "1/year"),
+            P("base", "0.35"),
+            P("amp", "0.08"),
+            P("freq", "1", "1/year"),
+            P("sigma", "0.4", "1/sqrt(year)"),
+            P("eta", "0.5"),
+        ],
+        lets={"season": "2 * pi * freq * t"},
+        states=[S("x", "0.3", "linear")],
+        noises=["W"],
+        correlations={},
+        drift={"x": "kappa * (base + amp * sin(season) - x)"},
+        diffusion={"x": {"W": "sigma * exp(eta * cos(season))"}},
+        sources=[SOURCE_KLOEDEN_PLATEN, "scipy.integrate.quad"],
+    ),
+    ModelSpec(
+        file="ou_tamsworth_two_noises.sde",
+        clock="year",
+        horizon=("1", "year"),
+        params=[
+            P("κ", "2.2", "1/year"),
+            P("θ", "1.1%"),
+            P("σ_local", "0.5%", "1/sqrt(year)"),
+            P("σ_global", "0.8%", "1/sqrt(year)"),
+        ],
+        states=[S("x", "1.4%", "ornstein-uhlenbeck")],
+        noises=["W_local", "W_global"],
+        correlations={("W_local", "W_global"): "0.35"},
+        drift={"x": "κ * (θ - x)"},
+        diffusion={"x": {"W_local": "σ_local", "W_global": "σ_global"}},
+        sources=[SOURCE_VASICEK, SOURCE_VAN_LOAN, SOURCE_GARDINER],
+    ),
+    ModelSpec(
+        file="system_pemberly_rate_spread.sde",
+        clock="year",
+        horizon=("2", "year"),
+        params=[
+            P("kr", "0.8", "1/year"),
+            P("mr", "3%"),
+            P("vr", "0.9%", "1/sqrt(year)"),
+            P("ks", "1.5", "1/year"),
+            P("ms", "1.2%"),
+            P("beta", "-0.25", "1/year"),
+            P("vs", "0.6%", "1/sqrt(year)"),
+        ],
+        states=[S("r", "2.6%", "linear-system"), S("s", "1.5%", "linear-system")],
+        noises=["Wr", "Ws"],
+        correlations={("Wr", "Ws"): "-0.4"},
+        drift={"r": "kr * (mr - r)", "s": "ks * (ms - s) + beta * (r - mr)"},
+        diffusion={"r": {"Wr": "vr"}, "s": {"Ws": "vs"}},
+        sources=[SOURCE_VAN_LOAN, SOURCE_GARDINER, SOURCE_KLOEDEN_PLATEN],
+    ),
+    ModelSpec(
+        file="system_ostmarch_three_states.sde",
+        clock="year",
+        horizon=("1", "year"),
+        params=[
+            P("a_r", "0.9", "1/year"),
+            P("r_bar", "2.5%"),
+            P("g_ri", "0.4", "1/year"),
+            P("a_i", "1.3", "1/year"),
+            P("i_bar", "2%"),
+            P("g_ir", "0.5", "1/year"),
+            P("g_iu", "-0.3", "1/year"),
+            P("a_u", "0.6", "1/year"),
+            P("g_ur", "0.2", "1/year"),
+            P("v_r", "0.7%", "1/sqrt(year)"),
+            P("v_i", "0.9%", "1/sqrt(year)"),
+            P("v_u", "1.1%", "1/sqrt(year)"),
+        ],
+        states=[
+            S("r", "3%", "linear-system"),
+            S("infl", "2.4%", "linear-system"),
+            S("gap", "0.5%", "linear-system"),
+        ],
+        noises=["Wr", "Wi", "Wu"],
+        correlations={("Wr", "Wi"): "0.3", ("Wr", "Wu"): "-0.2", ("Wi", "Wu"): "-0.25"},
+        drift={
+            "r": "a_r * (r_bar - r) + g_ri * (infl - i_bar)",
+            "infl": "a_i * (i_bar - infl) - g_ir * (r - r_bar) + g_iu * gap",
+            "gap": "g_ur * (r - r_bar) - a_u * gap",
+        },
+        diffusion={"r": {"Wr": "v_r"}, "infl": {"Wi": "v_i"}, "gap": {"Wu": "v_u"}},
+        sources=[SOURCE_VAN_LOAN, SOURCE_GARDINER, SOURCE_KLOEDEN_PLATEN],
+    ),
+    ModelSpec(
+        file="polynomial_wexcombe_log_price_variance.sde",
+        clock="year",
+        horizon=("6", "month"),
+        params=[
+            P("mu", "5%", "1/year"),
+            P("kappa", "2.0", "1/year"),
+            P("theta", "0.04", "1/year"),
+            P("xi", "0.3", "1/year"),
+        ],
+        states=[
+            S("x", "0.2", "polynomial"),
+            S("v", "0.05", "square-root", "1/year"),
+        ],
+        noises=["Wx", "Wv"],
+        correlations={("Wx", "Wv"): "-0.6"},
+        drift={"x": "mu - 0.5 * v", "v": "kappa * (theta - v)"},
+        diffusion={"x": {"Wx": "sqrt(v)"}, "v": {"Wv": "xi * sqrt(v)"}},
+        sources=[SOURCE_HESTON, SOURCE_POLYNOMIAL, SOURCE_CIR, "scipy.stats.ncx2"],
+    ),
+    ModelSpec(
+        file="polynomial_pelham_quadratic_diffusion.sde",
+        clock="year",
+        horizon=("1", "year"),
+        params=[
+            P("kappa", "1.5", "1/year"),
+            P("level", "0.6"),
+            P("a", "0.01", "1/year"),
+            P("b", "0.09", "1/year"),
+        ],
+        states=[S("x", "0.5", "polynomial")],
+        noises=["W"],
+        correlations={},
+        drift={"x": "kappa * (level - x)"},
+        diffusion={"x": {"W": "sqrt(a + b * x**2)"}},
+        sources=[SOURCE_POLYNOMIAL, SOURCE_KLOEDEN_PLATEN],
+    ),
+    ModelSpec(
+        file="decoupled_larkspur_desk.sde",
+        clock="year",
+        horizon=("6", "month"),
+        params=[
+            P("kappa_r", "1.2", "1/year"),
+            P("level_r", "3%"),
+            P("vol_r", "0.8%", "1/sqrt(year)"),
+            P("trend_s", "-10bp", "1/year"),
+            P("vol_s", "40bp", "1/sqrt(year)"),
+            P("mu_p", "4%", "1/year"),
+            P("vol_p", "12%", "1/sqrt(year)"),
+            P("kappa_h", "0.7", "1/year"),
+            P("level_h", "1.8%", "1/year"),
+            P("vol_h", "6%", "1/year"),
+        ],
+        states=[
+            S("r", "2.8%", "ornstein-uhlenbeck"),
+            S("s", "90bp", "arithmetic-brownian"),
+            S("p", "100", "geometric-brownian"),
+            S("h", "2%", "square-root", "1/year"),
+        ],
+        noises=["Wr", "Ws", "Wp", "Wh"],
+        correlations={("Wr", "Ws"): "0.3"},
+        drift={
+            "r": "kappa_r * (level_r - r)",
+            "s": "trend_s",
+            "p": "mu_p * p",
+            "h": "kappa_h * (level_h - h)",
+        },
+        diffusion={
+            "r": {"Wr": "vol_r"},
+            "s": {"Ws": "vol_s"},
+            "p": {"Wp": "vol_p * p"},
+            "h": {"Wh": "vol_h * sqrt(h)"},
+        },
+        sources=[
+            SOURCE_VASICEK,
+            SOURCE_VAN_LOAN,
+            SOURCE_LOGNORMAL,
+            "scipy.stats.lognorm",
+            SOURCE_CIR,
+            "scipy.stats.ncx2",
+            SOURCE_GAMMA,
+        ],
+    ),
+]
+
+
+# --------------------------------------------------------------------------------------
+# Literals, units, and the cross-check against the file text
+# --------------------------------------------------------------------------------------
+
+
+class ReferenceError(Exception):
+    """A transcription or a computation is inconsistent; the message says where."""
+
+
+def parse_literal(literal: str) -> float:
+    """A number as the language writes it: `12`, `0.5`, `1e-3`, `3.5%`, `25bp`."""
+    text = literal.strip()
+    if text.endswith("%"):
+        return float(text[:-1]) / 100.0
+    if text.endswith("bp"):
+        return float(text[:-2]) / 10000.0
+    return float(text)
+
+
+def unit_scale(unit: str | None, clock: str) -> float:
+    """Factor that turns a value in `unit` into clock units.
+
+    Every time unit is replaced by its length measured in clock units; any other unit
+    name (a declared currency) is a base dimension with factor 1.
+    """
+    if unit is None:
+        return 1.0
+    names = set(re.findall(r"[^\W\d]\w*", unit)) - {"sqrt"}
+    clock_years = TIME_UNIT_YEARS[clock]
+    substitutions = {}
+    for name in names:
+        if name in TIME_UNIT_YEARS:
+            length = TIME_UNIT_YEARS[name] / clock_years
+            substitutions[name] = sp.Rational(length.numerator, length.denominator)
+        else:
+            substitutions[name] = sp.Integer(1)
+    expression = sp.sympify(unit.replace("^", "**"), locals=substitutions)
+    return float(expression)
+
+
+def horizon_in_clock(spec: ModelSpec) -> float:
+    literal, unit = spec.horizon
+    value = parse_literal(literal)
+    if unit is None:
+        return value
+    length = TIME_UNIT_YEARS[unit] / TIME_UNIT_YEARS[spec.clock]
+    return value * float(length)
+
+
+def strip_comment(line: str) -> str:
+    return line.split("#", 1)[0].strip()
+
+
+def normalise_unit(text: str | None) -> str | None:
+    return None if text is None else re.sub(r"\s+", "", text)
+
+
+def cross_check_file_text(spec: ModelSpec) -> None:
+    """Compares the hand transcription with the file's declarations.
+
+    Reads only the simple, line-shaped declarations (clock, horizon, param, state,
+    noise, corr, and which states have an equation); the equations themselves are
+    transcribed by hand above and not parsed here.
+    """
+    if not spec.path.is_file():
+        raise ReferenceError(f"{spec.relative_path}: file not found")
+    lines = [strip_comment(line) for line in spec.path.read_text(encoding="utf-8").splitlines()]
+    declaration = re.compile(
+        r"^(param|state)\s+([^\W\d]\w*)\s*=\s*(-?[0-9.eE+\-]+(?:%|bp)?)\s*(?:\[([^\]]*)\])?"
+    )
+    params: list[Quantity] = []
+    states: list[Quantity] = []
+    noises: list[str] = []
+    correlations: dict[tuple[str, str], str] = {}
+    equations: list[str] = []
+    clock = "year"
+    horizon: tuple[str, str | None] = ("1", None)
+    for line in lines:
+        if not line:
+            continue
+        match = declaration.match(line)
+        if match:
+            kind, name, literal, unit = match.groups()
+            target = params if kind == "param" else states
+            target.append(Quantity(name, literal, normalise_unit(unit)))
+            continue
+        if m := re.match(r"^clock\s+(\w+)$", line):
+            clock = m.group(1)
+        elif m := re.match(r"^horizon\s+([0-9.eE+\-]+)\s*(\w+)?$", line):
+            horizon = (m.group(1), m.group(2))
+        elif m := re.match(r"^noise\s+(.+)$", line):
+            noises.extend(part.strip() for part in m.group(1).split(","))
+        elif m := re.match(r"^corr\s+(\w+)\s+(\w+)\s*=\s*(\S+)$", line):
+            correlations[(m.group(1), m.group(2))] = m.group(3)
+        elif m := re.match(r"^d([^\W\d]\w*)\s*=", line):
+            equations.append(m.group(1))
+    where = spec.relative_path
+    if clock != spec.clock:
+        raise ReferenceError(f"{where}: clock is {clock}, transcribed as {spec.clock}")
+    if horizon != spec.horizon:
+        raise ReferenceError(f"{where}: horizon is {horizon}, transcribed as {spec.horizon}")
+    expected_params = [Quantity(p.name, p.literal, normalise_unit(p.unit)) for p in spec.params]
+    if params != expected_params:
+        raise ReferenceError(f"{where}: params {params} differ from transcription {expected_params}")
+    expected_states = [Quantity(s.name, s.literal, normalise_unit(s.unit)) for s in spec.states]
+    if states != expected_states:
+        raise ReferenceError(f"{where}: states {states} differ from transcription {expected_states}")
+    if noises != spec.noises:
+        raise ReferenceError(f"{where}: noises {noises} differ from transcription {spec.noises}")
+    if correlations != spec.correlations:
+        raise ReferenceError(f"{where}: correlations {correlations} differ from {spec.correlations}")
+    if equations != [s.name for s in spec.states]:
+        raise ReferenceError(f"{where}: equations for {equations}, states {[s.name for s in spec.states]}")
+
+
+# --------------------------------------------------------------------------------------
+# The numeric model
+# --------------------------------------------------------------------------------------
+
+TIME = sp.Symbol("t", real=True)
+
+
+@dataclass
+class NumericModel:
+    """A transcription with every value converted to clock units and substituted."""
+
+    spec: ModelSpec
+    horizon: float
+    symbols: list[sp.Symbol]
+    initial: np.ndarray
+    drift: list[sp.Expr]
+    # diffusion[i][k]: coefficient of noise k in the equation of state i.
+    diffusion: sp.Matrix
+    correlation: np.ndarray
+    # diffusion_covariance[i][j] = sum_kl diffusion[i][k] R[k][l] diffusion[j][l].
+    diffusion_covariance: sp.Matrix
+
+    @property
+    def size(self) -> int:
+        return len(self.symbols)
+
+    def depends_on_time(self, indices: list[int] | None = None) -> bool:
+        rows = range(self.size) if indices is None else indices
+        for i in rows:
+            if self.drift[i].has(TIME) or any(self.diffusion[i, k].has(TIME) for k in range(self.diffusion.shape[1])):
+                return True
+        return False
+
+
+def build_numeric_model(spec: ModelSpec) -> NumericModel:
+    cross_check_file_text(spec)
+    for state in spec.states:
+        if state.family not in FAMILIES:
+            raise ReferenceError(f"{spec.relative_path}: unknown family {state.family}")
+    values: dict[str, sp.Expr] = {}
+    for param in spec.params:
+        scaled = parse_literal(param.literal) * unit_scale(param.unit, spec.clock)
+        values[param.name] = sp.Float(scaled, 17)
+    symbols = [sp.Symbol(state.name, real=True) for state in spec.states]
+    namespace: dict[str, object] = {"t": TIME, "pi": sp.pi, "sqrt": sp.sqrt, "exp": sp.exp,
+                                    "log": sp.log, "sin": sp.sin, "cos": sp.cos, "abs": sp.Abs}
+    namespace.update({s.name: sym for s, sym in zip(spec.states, symbols)})
+    namespace.update(values)
+    for name, text in spec.lets.items():
+        namespace[name] = sp.sympify(text, locals=namespace)
+
+    def parse(text: str) -> sp.Expr:
+        return sp.sympify(text, locals=namespace)
+
+    initial = np.array(
+        [parse_literal(s.literal) * unit_scale(s.unit, spec.clock) for s in spec.states]
+    )
+    drift = [sp.expand(parse(spec.drift[s.name])) for s in spec.states]
+    diffusion = sp.zeros(len(spec.states), len(spec.noises))
+    for i, state in enumerate(spec.states):
+        for noise, text in spec.diffusion[state.name].items():
+            diffusion[i, spec.noises.index(noise)] = parse(text)
+    correlation = np.eye(len(spec.noises))
+    for (first, second), literal in spec.correlations.items():
+        a, b = spec.noises.index(first), spec.noises.index(second)
+        correlation[a, b] = correlation[b, a] = parse_literal(literal)
+    if np.linalg.eigvalsh(correlation).min() < -1e-12:
+        raise ReferenceError(f"{spec.relative_path}: correlation matrix is not positive semi-definite")
+    correlation_sym = sp.Matrix(correlation.tolist()).applyfunc(lambda v: sp.Float(v, 17))
+    diffusion_covariance = (diffusion * correlation_sym * diffusion.T).applyfunc(sp.expand)
+    return NumericModel(
+        spec=spec,
+        horizon=horizon_in_clock(spec),
+        symbols=symbols,
+        initial=initial,
+        drift=drift,
+        diffusion=diffusion,
+        correlation=correlation,
+        diffusion_covariance=diffusion_covariance,
+    )
+
+
+def as_float(expression: sp.Expr) -> float:
+    if expression.free_symbols:
+        raise ReferenceError(f"expected a constant, got {expression}")
+    return float(expression)
+
+
+# --------------------------------------------------------------------------------------
+# Moment equations of the monomials of degree <= 2 (the generator on polynomials)
+# --------------------------------------------------------------------------------------
+
+
+def monomial_exponents(size: int) -> list[tuple[int, ...]]:
+    """1, x_i, x_i x_j (i <= j), in a fixed order."""
+    exponents = [tuple([0] * size)]
+    for i in range(size):
+        e = [0] * size
+        e[i] = 1
+        exponents.append(tuple(e))
+    for i in range(size):
+        for j in range(i, size):
+            e = [0] * size
+            e[i] += 1
+            e[j] += 1
+            exponents.append(tuple(e))
+    return exponents
+
+
+@dataclass
+class MomentSystem:
+    """d/dt E[m(Y)] = G(t) E[m(Y)] for the monomials m of Y = X - shift, in `indices`."""
+
+    indices: list[int]
+    shift: np.ndarray
+    exponents: list[tuple[int, ...]]
+    generator: sp.Matrix  # entries may contain t
+
+    def position(self, exponent: tuple[int, ...]) -> int:
+        return self.exponents.index(exponent)
+
+
+def moment_system(model: NumericModel, indices: list[int], shift: np.ndarray) -> MomentSystem:
+    """Applies the generator L f = sum b_i f_i + 1/2 sum a_ij f_ij to each monomial.
+
+    Works in the shifted variables y = x - shift, which keeps the second moments close
+    to the variances and so avoids cancellation when the variance is small beside the
+    squared mean.
+    """
+    local = [model.symbols[i] for i in indices]
+    ys = [sp.Symbol(f"y{k}", real=True) for k in range(len(indices))]
+    back = {x: y + float(c) for x, y, c in zip(local, ys, shift)}
+    drift = [sp.expand(model.drift[i].subs(back)) for i in indices]
+    covariance = [[sp.expand(model.diffusion_covariance[i, j].subs(back)) for j in indices] for i in indices]
+    for expression in drift + [c for row in covariance for c in row]:
+        if expression.free_symbols - set(ys) - {TIME}:
+            raise ReferenceError(
+                f"{model.spec.relative_path}: states {indices} are not a closed subsystem"
+            )
+    exponents = monomial_exponents(len(indices))
+    generator = sp.zeros(len(exponents), len(exponents))
+    for row, exponent in enumerate(exponents):
+        monomial = sp.Mul(*[y**e for y, e in zip(ys, exponent)])
+        image = sum(drift[i] * sp.diff(monomial, ys[i]) for i in range(len(ys)))
+        image += sp.Rational(1, 2) * sum(
+            covariance[i][j] * sp.diff(monomial, ys[i], ys[j])
+            for i in range(len(ys))
+            for j in range(len(ys))
+        )
+        image = sp.expand(image)
+        if image == 0:
+            continue
+        polynomial = sp.Poly(image, *ys)
+        for term_exponent, coefficient in polynomial.terms():
+            if sum(term_exponent) > 2:
+                raise ReferenceError(
+                    f"{model.spec.relative_path}: the generator maps {monomial} to degree "
+                    f"{sum(term_exponent)}: moments are not closed at degree 2"
+                )
+            generator[row, exponents.index(tuple(term_exponent))] += coefficient
+    return MomentSystem(indices, np.asarray(shift, dtype=float), exponents, generator)
+
+
+def moments_to_mean_covariance(system: MomentSystem, moments: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    n = len(system.indices)
+    shifted_mean = np.zeros(n)
+    for i in range(n):
+        e = [0] * n
+        e[i] = 1
+        shifted_mean[i] = moments[system.position(tuple(e))]
+    covariance = np.zeros((n, n))
+    for i in range(n):
+        for j in range(n):
+            e = [0] * n
+            e[i] += 1
+            e[j] += 1
+            covariance[i, j] = moments[system.position(tuple(e))] - shifted_mean[i] * shifted_mean[j]
+    return shifted_mean + system.shift, covariance
+
+
+def moments_by_solve_ivp(model: NumericModel) -> tuple[np.ndarray, np.ndarray]:
+    """Integrates the moment equations of all states with an explicit Runge-Kutta."""
+    indices = list(range(model.size))
+    system = moment_system(model, indices, model.initial)
+    matrix = sp.lambdify(TIME, system.generator, modules="numpy")
+
+    def rhs(t: float, m: np.ndarray) -> np.ndarray:
+        return np.asarray(matrix(t), dtype=float) @ m
+
+    start = np.zeros(len(system.exponents))
+    start[0] = 1.0  # E[1] = 1; every shifted monomial starts at 0
+    solution = integrate.solve_ivp(
+        rhs, (0.0, model.horizon), start, method="DOP853", rtol=1e-13, atol=1e-22
+    )
+    if not solution.success:
+        raise ReferenceError(f"{model.spec.relative_path}: solve_ivp failed: {solution.message}")
+    return moments_to_mean_covariance(system, solution.y[:, -1])
+
+
+def moments_by_generator_expm(model: NumericModel, indices: list[int]) -> tuple[np.ndarray, np.ndarray]:
+    """E[m(X_T)] = expm(G T) m(X_0) for a time-homogeneous closed subsystem."""
+    shift = model.initial[indices]
+    system = moment_system(model, indices, shift)
+    if system.generator.has(TIME):
+        raise ReferenceError(f"{model.spec.relative_path}: generator depends on t")
+    generator = np.array(system.generator.tolist(), dtype=float)
+    start = np.zeros(len(system.exponents))
+    start[0] = 1.0
+    moments = linalg.expm(generator * model.horizon) @ start
+    return moments_to_mean_covariance(system, moments)
+
+
+def stationary_by_long_run_expm(model: NumericModel, indices: list[int]) -> tuple[np.ndarray, np.ndarray]:
+    """Moments after a time so long that every mode has decayed by e^-80.
+
+    A second route to the stationary moments, by the limit in time rather than by
+    solving the fixed-point equations; only called when those say the limit exists.
+    """
+    system = moment_system(model, indices, model.initial[indices])
+    generator = np.array(system.generator.tolist(), dtype=float)
+    slowest = -np.linalg.eigvals(generator[1:, 1:]).real.max()
+    start = np.zeros(len(system.exponents))
+    start[0] = 1.0
+    moments = linalg.expm(generator * (80.0 / slowest)) @ start
+    return moments_to_mean_covariance(system, moments)
+
+
+def stationary_by_generator(model: NumericModel, indices: list[int]) -> tuple[np.ndarray, np.ndarray] | None:
+    """Fixed point of the moment equations, when every non-constant mode decays."""
+    if model.depends_on_time(indices):
+        return None
+    system = moment_system(model, indices, np.zeros(len(indices)))
+    generator = np.array(system.generator.tolist(), dtype=float)
+    decaying = generator[1:, 1:]
+    if np.linalg.eigvals(decaying).real.max() >= -1e-12:
+        return None
+    moments = np.concatenate([[1.0], -np.linalg.solve(decaying, generator[1:, 0])])
+    return moments_to_mean_covariance(system, moments)
+
+
+# --------------------------------------------------------------------------------------
+# Primary methods, one per family
+# --------------------------------------------------------------------------------------
+
+
+def affine_parts(model: NumericModel, indices: list[int]) -> tuple[np.ndarray, np.ndarray]:
+    """Drift = A x + c on the block; fails unless affine with constant coefficients."""
+    local = [model.symbols[i] for i in indices]
+    a = np.zeros((len(indices), len(indices)))
+    c = np.zeros(len(indices))
+    for row, i in enumerate(indices):
+        polynomial = sp.Poly(model.drift[i], *local)
+        for exponent, coefficient in polynomial.terms():
+            if sum(exponent) > 1:
+                raise ReferenceError(f"{model.spec.relative_path}: drift of state {i} is not affine")
+            if sum(exponent) == 0:
+                c[row] = as_float(coefficient)
+            else:
+                a[row, exponent.index(1)] = as_float(coefficient)
+    return a, c
+
+
+def gaussian_by_van_loan(model: NumericModel, indices: list[int]) -> tuple[np.ndarray, np.ndarray]:
+    """Mean by the augmented exponential, covariance by Van Loan's block exponential."""
+    a, c = affine_parts(model, indices)
+    q = np.array([[as_float(model.diffusion_covariance[i, j]) for j in indices] for i in indices])
+    n = len(indices)
+    augmented = np.zeros((n + 1, n + 1))
+    augmented[:n, :n] = a
+    augmented[:n, n] = c
+    state = np.append(model.initial[indices], 1.0)
+    mean = (linalg.expm(augmented * model.horizon) @ state)[:n]
+    block = np.zeros((2 * n, 2 * n))
+    block[:n, :n] = -a
+    block[:n, n:] = q
+    block[n:, n:] = a.T
+    exponential = linalg.expm(block * model.horizon)
+    transition = exponential[n:, n:].T
+    covariance = transition @ exponential[:n, n:]
+    return mean, (covariance + covariance.T) / 2.0
+
+
+def gaussian_stationary_by_lyapunov(model: NumericModel, indices: list[int]) -> tuple[np.ndarray, np.ndarray] | None:
+    a, c = affine_parts(model, indices)
+    if np.linalg.eigvals(a).real.max() >= -1e-12:
+        return None
+    q = np.array([[as_float(model.diffusion_covariance[i, j]) for j in indices] for i in indices])
+    mean = -np.linalg.solve(a, c)
+    covariance = linalg.solve_continuous_lyapunov(a, -q)
+    return mean, (covariance + covariance.T) / 2.0
+
+
+def scalar_coefficients(model: NumericModel, i: int) -> tuple[float, float, float, float, float, float]:
+    """For one state: drift = c0 + c1 x, squared diffusion = q0 + q1 x + q2 x^2."""
+    x = model.symbols[i]
+    drift = sp.Poly(model.drift[i], x)
+    squared = sp.Poly(model.diffusion_covariance[i, i], x)
+    if drift.degree() > 1 or squared.degree() > 2:
+        raise ReferenceError(f"{model.spec.relative_path}: state {x} is not affine-polynomial")
+    c0, c1 = (as_float(drift.coeff_monomial(x**k)) for k in range(2))
+    q0, q1, q2 = (as_float(squared.coeff_monomial(x**k)) for k in range(3))
+    return c0, c1, q0, q1, q2, float(model.initial[i])
+
+
+def geometric_by_lognormal(model: NumericModel, i: int) -> tuple[float, float]:
+    c0, mu, q0, q1, sigma2, s0 = scalar_coefficients(model, i)
+    if c0 != 0.0 or q0 != 0.0 or q1 != 0.0:
+        raise ReferenceError(f"{model.spec.relative_path}: state {i} is not geometric")
+    horizon = model.horizon
+    law = stats.lognorm(s=math.sqrt(sigma2 * horizon), scale=s0 * math.exp((mu - sigma2 / 2.0) * horizon))
+    return float(law.mean()), float(law.var())
+
+
+def square_root_by_ncx2(model: NumericModel, i: int) -> tuple[float, float]:
+    """X_T = Y / (2c) with Y non-central chi-square (CIR 1985)."""
+    c0, c1, q0, sigma2, q2, x0 = scalar_coefficients(model, i)
+    if q0 != 0.0 or q2 != 0.0 or c1 >= 0.0:
+        raise ReferenceError(f"{model.spec.relative_path}: state {i} is not a mean-reverting square root")
+    kappa = -c1
+    level = c0 / kappa
+    decay = math.exp(-kappa * model.horizon)
+    c = 2.0 * kappa / (sigma2 * (1.0 - decay))
+    law = stats.ncx2(df=4.0 * kappa * level / sigma2, nc=2.0 * c * x0 * decay)
+    return float(law.mean()) / (2.0 * c), float(law.var()) / (2.0 * c) ** 2
+
+
+def square_root_stationary_by_gamma(model: NumericModel, i: int) -> tuple[float, float]:
+    c0, c1, _q0, sigma2, _q2, _x0 = scalar_coefficients(model, i)
+    kappa = -c1
+    level = c0 / kappa
+    law = stats.gamma(a=2.0 * kappa * level / sigma2, scale=sigma2 / (2.0 * kappa))
+    return float(law.mean()), float(law.var())
+
+
+def time_dependent_by_quadrature(model: NumericModel, i: int) -> tuple[float, float]:
+    """Integrating factor: X_T = x0 e^{bT} + int e^{b(T-s)} a(s) ds + int e^{b(T-s)} sigma(s) dW."""
+    x = model.symbols[i]
+    polynomial = sp.Poly(model.drift[i], x)
+    if polynomial.degree() > 1 or model.diffusion_covariance[i, i].has(x):
+        raise ReferenceError(f"{model.spec.relative_path}: state {x} is not linear with additive noise")
+    b = as_float(polynomial.coeff_monomial(x))
+    level_term = sp.lambdify(TIME, polynomial.coeff_monomial(1), modules="math")
+    noise_rate = sp.lambdify(TIME, model.diffusion_covariance[i, i], modules="math")
+    horizon = model.horizon
+    options = dict(epsabs=0.0, epsrel=1e-13, limit=200)
+    drift_integral, _ = integrate.quad(lambda s: math.exp(b * (horizon - s)) * level_term(s), 0.0, horizon, **options)
+    variance, _ = integrate.quad(lambda s: math.exp(2.0 * b * (horizon - s)) * noise_rate(s), 0.0, horizon, **options)
+    mean = float(model.initial[i]) * math.exp(b * horizon) + drift_integral
+    return mean, variance
+
+
+# --------------------------------------------------------------------------------------
+# Symbolic checks with sympy
+# --------------------------------------------------------------------------------------
+
+_SYMBOLIC_OU: tuple | None = None
+
+
+def symbolic_ou_forms():
+    """Solves m' = kappa (level - m), v' = -2 kappa v + q with sympy's dsolve."""
+    global _SYMBOLIC_OU
+    if _SYMBOLIC_OU is None:
+        kappa, q = sp.symbols("kappa q", positive=True)
+        level, x0 = sp.symbols("level x0", real=True)
+        time = sp.Symbol("tau", positive=True)
+        m, v = sp.Function("m"), sp.Function("v")
+        mean = sp.dsolve(sp.Eq(m(time).diff(time), kappa * (level - m(time))), m(time), ics={m(0): x0}).rhs
+        variance = sp.dsolve(sp.Eq(v(time).diff(time), -2 * kappa * v(time) + q), v(time), ics={v(0): 0}).rhs
+        stationary_mean = sp.limit(mean, time, sp.oo)
+        stationary_variance = sp.limit(variance, time, sp.oo)
+        _SYMBOLIC_OU = (kappa, q, level, x0, time, mean, variance, stationary_mean, stationary_variance)
+    return _SYMBOLIC_OU
+
+
+def ou_by_sympy(model: NumericModel, i: int) -> tuple[float, float, float, float]:
+    c0, c1, q0, q1, q2, x0 = scalar_coefficients(model, i)
+    if q1 != 0.0 or q2 != 0.0 or c1 >= 0.0:
+        raise ReferenceError(f"{model.spec.relative_path}: state {i} is not Ornstein-Uhlenbeck")
+    kappa, q, level, start, time, mean, variance, s_mean, s_variance = symbolic_ou_forms()
+    values = {kappa: -c1, q: q0, level: c0 / -c1, start: x0, time: model.horizon}
+    return tuple(float(expr.subs(values).evalf(30)) for expr in (mean, variance, s_mean, s_variance))
+
+
+def time_dependent_by_sympy(model: NumericModel, i: int) -> tuple[float, float]:
+    """The integrating-factor integrals done symbolically (elementary integrands only)."""
+    x = model.symbols[i]
+    polynomial = sp.Poly(model.drift[i], x)
+    b = sp.nsimplify(polynomial.coeff_monomial(x), rational=True)
+    level_term = sp.nsimplify(polynomial.coeff_monomial(1), rational=True)
+    noise_rate = sp.nsimplify(model.diffusion_covariance[i, i], rational=True)
+    s, horizon = sp.Symbol("s", real=True), sp.nsimplify(model.horizon, rational=True)
+    mean = sp.nsimplify(float(model.initial[i]), rational=True) * sp.exp(b * horizon) + sp.integrate(
+        sp.exp(b * (horizon - s)) * level_term.subs(TIME, s), (s, 0, horizon)
+    )
+    variance = sp.integrate(sp.exp(2 * b * (horizon - s)) * noise_rate.subs(TIME, s), (s, 0, horizon))
+    if mean.has(sp.Integral) or variance.has(sp.Integral):
+        raise ReferenceError(f"{model.spec.relative_path}: sympy found no elementary integral")
+    return float(mean.evalf(30)), float(variance.evalf(30))
+
+
+# --------------------------------------------------------------------------------------
+# Putting a model together
+# --------------------------------------------------------------------------------------
+
+
+def dependency_closure(model: NumericModel, i: int) -> list[int]:
+    """States whose equations the law of state i depends on, i included."""
+    closure = {i}
+    pending = [i]
+    while pending:
+        k = pending.pop()
+        used = model.drift[k].free_symbols.union(*[model.diffusion[k, n].free_symbols for n in range(model.diffusion.shape[1])])
+        for j, symbol in enumerate(model.symbols):
+            if symbol in used and j not in closure:
+                closure.add(j)
+                pending.append(j)
+    return sorted(closure)
+
+
+def coupled_blocks(model: NumericModel) -> list[list[int]]:
+    """Groups of states that share a drift dependency or correlated noises."""
+    parent = list(range(model.size))
+
+    def find(k: int) -> int:
+        while parent[k] != k:
+            parent[k] = parent[parent[k]]
+            k = parent[k]
+        return k
+
+    for i in range(model.size):
+        for j in dependency_closure(model, i):
+            parent[find(i)] = find(j)
+        for j in range(model.size):
+            if model.diffusion_covariance[i, j] != 0:
+                parent[find(i)] = find(j)
+    groups: dict[int, list[int]] = {}
+    for i in range(model.size):
+        groups.setdefault(find(i), []).append(i)
+    return sorted(groups.values())
+
+
+def is_gaussian(model: NumericModel, indices: list[int]) -> bool:
+    local = set(model.symbols[i] for i in indices)
+    for i in indices:
+        if model.drift[i].has(TIME) or sp.Poly(model.drift[i], *local).total_degree() > 1:
+            return False
+        for k in range(model.diffusion.shape[1]):
+            if model.diffusion[i, k].free_symbols:
+                return False
+    return True
+
+
+def half_life(model: NumericModel, i: int) -> float | None:
+    """ln 2 / |b| when the drift is b x + c(t) with a constant b < 0 and no other state."""
+    x = model.symbols[i]
+    drift = model.drift[i]
+    others = drift.free_symbols - {x, TIME}
+    if others:
+        return None
+    polynomial = sp.Poly(drift, x)
+    if polynomial.degree() != 1:
+        return None
+    b = polynomial.coeff_monomial(x)
+    if b.has(TIME):
+        return None
+    b_value = as_float(b)
+    return math.log(2.0) / abs(b_value) if b_value < 0.0 else None
+
+
+@dataclass
+class Figures:
+    mean: np.ndarray
+    covariance: np.ndarray
+    half_lives: list[float | None]
+    stationary: list[tuple[float, float] | None]
+    method: str
+    quadrature: bool
+
+
+# Largest scaled gap seen by each agreement check, printed by --verbose.
+AGREEMENT_GAPS: list[tuple[str, str, float]] = []
+
+
+def assert_agree(where: str, what: str, first: np.ndarray, second: np.ndarray, scale: np.ndarray, tolerance: float) -> None:
+    difference = np.abs(np.asarray(first, dtype=float) - np.asarray(second, dtype=float))
+    scale = np.maximum(np.asarray(scale, dtype=float), 1e-300)
+    limit = tolerance * scale
+    AGREEMENT_GAPS.append((where, what, float((difference / scale).max())))
+    if np.any(difference > limit):
+        raise ReferenceError(
+            f"{where}: {what} disagree beyond {tolerance}: {first!r} vs {second!r} "
+            f"(largest gap {difference.max():.3e})"
+        )
+
+
+def covariance_scale(covariance: np.ndarray) -> np.ndarray:
+    sd = np.sqrt(np.abs(np.diag(covariance)))
+    return np.maximum(np.outer(sd, sd), 1e-300)
+
+
+def compute_figures(model: NumericModel) -> Figures:
+    where = model.spec.relative_path
+    n = model.size
+    mean = np.zeros(n)
+    covariance = np.zeros((n, n))
+    methods: list[str] = []
+    quadrature = False
+    for block in coupled_blocks(model):
+        families = {model.spec.states[i].family for i in block}
+        if model.depends_on_time(block):
+            if len(block) != 1:
+                raise ReferenceError(f"{where}: time-dependent coupled block {block}")
+            block_mean, block_variance = time_dependent_by_quadrature(model, block[0])
+            block_mean, block_cov = np.array([block_mean]), np.array([[block_variance]])
+            methods.append("integrating-factor quadrature (scipy.integrate.quad)")
+            quadrature = True
+            if model.spec.elementary_time_dependence:
+                exact_mean, exact_variance = time_dependent_by_sympy(model, block[0])
+                assert_agree(where, "quad and sympy.integrate", [block_mean[0], block_variance],
+                             [exact_mean, exact_variance], [abs(exact_mean), exact_variance], METHOD_AGREEMENT)
+        elif is_gaussian(model, block):
+            block_mean, block_cov = gaussian_by_van_loan(model, block)
+            methods.append("Van Loan block exponential (scipy.linalg.expm)")
+        elif families == {"geometric-brownian"} and len(block) == 1:
+            m, v = geometric_by_lognormal(model, block[0])
+            block_mean, block_cov = np.array([m]), np.array([[v]])
+            methods.append("log-normal law (scipy.stats.lognorm)")
+        elif families == {"square-root"} and len(block) == 1:
+            m, v = square_root_by_ncx2(model, block[0])
+            block_mean, block_cov = np.array([m]), np.array([[v]])
+            methods.append("scaled non-central chi-square law (scipy.stats.ncx2)")
+        else:
+            block_mean, block_cov = moments_by_generator_expm(model, block)
+            methods.append("generator on monomials of degree <= 2 (sympy, scipy.linalg.expm)")
+            for i in block:
+                if model.spec.states[i].family == "square-root" and dependency_closure(model, i) == [i]:
+                    m, v = square_root_by_ncx2(model, i)
+                    k = block.index(i)
+                    assert_agree(where, f"generator and ncx2 for state {i}", [block_mean[k], block_cov[k, k]],
+                                 [m, v], [abs(m), v], METHOD_AGREEMENT)
+        mean[block] = block_mean
+        covariance[np.ix_(block, block)] = block_cov
+
+    check_mean, check_covariance = moments_by_solve_ivp(model)
+    scale = np.sqrt(np.abs(np.diag(covariance)))
+    assert_agree(where, "means (primary vs solve_ivp)", mean, check_mean,
+                 np.maximum(np.abs(mean), scale), METHOD_AGREEMENT)
+    assert_agree(where, "covariances (primary vs solve_ivp)", covariance, check_covariance,
+                 covariance_scale(covariance), METHOD_AGREEMENT)
+
+    half_lives = [half_life(model, i) for i in range(n)]
+    stationary: list[tuple[float, float] | None] = []
+    for i in range(n):
+        closure = dependency_closure(model, i)
+        by_generator = stationary_by_generator(model, closure)
+        family = model.spec.states[i].family
+        if by_generator is None:
+            stationary.append(None)
+            continue
+        position = closure.index(i)
+        generic = (by_generator[0][position], by_generator[1][position, position])
+        if is_gaussian(model, closure):
+            lyapunov = gaussian_stationary_by_lyapunov(model, closure)
+            if lyapunov is None:
+                raise ReferenceError(f"{where}: Lyapunov and generator disagree on stationarity of {i}")
+            primary = (lyapunov[0][position], lyapunov[1][position, position])
+        elif family == "square-root" and closure == [i]:
+            primary = square_root_stationary_by_gamma(model, i)
+        else:
+            long_run = stationary_by_long_run_expm(model, closure)
+            primary = (long_run[0][position], long_run[1][position, position])
+        assert_agree(where, f"stationary law of state {i}", primary, generic,
+                     [max(abs(primary[0]), math.sqrt(primary[1])), primary[1]], METHOD_AGREEMENT)
+        stationary.append((float(primary[0]), float(primary[1])))
+
+    # One-state Ornstein-Uhlenbeck states: the sympy closed forms must match too.
+    for i in range(n):
+        if model.spec.states[i].family == "ornstein-uhlenbeck" and dependency_closure(model, i) == [i]:
+            s_mean, s_variance, s_stat_mean, s_stat_variance = ou_by_sympy(model, i)
+            assert_agree(where, f"sympy closed form for state {i}", [mean[i], covariance[i, i]],
+                         [s_mean, s_variance], [abs(s_mean), s_variance], METHOD_AGREEMENT)
+            if stationary[i] is None:
+                raise ReferenceError(f"{where}: an OU state without stationary law")
+            assert_agree(where, f"sympy stationary law for state {i}", list(stationary[i]),
+                         [s_stat_mean, s_stat_variance], [abs(s_stat_mean), s_stat_variance], METHOD_AGREEMENT)
+            expected_half_life = math.log(2.0) / (-scalar_coefficients(model, i)[1])
+            if half_lives[i] is None or abs(half_lives[i] - expected_half_life) > 1e-15 * expected_half_life:
+                raise ReferenceError(f"{where}: half-life of OU state {i} is {half_lives[i]}")
+
+    method = "; ".join(dict.fromkeys(methods)) + "; checked against solve_ivp on the moment equations"
+    return Figures(mean, (covariance + covariance.T) / 2.0, half_lives, stationary, method, quadrature)
+
+
+# A mean smaller than this fraction of its standard deviation is round-off around an
+# exact zero (e.g. the stationary output gap); it is written as 0 so that the file does
+# not depend on the sign of the last bit.
+ROUND_OFF_ZERO = 1e-14
+
+
+def snap_zero(value: float, scale: float) -> float:
+    return 0.0 if abs(value) <= ROUND_OFF_ZERO * scale else float(value)
+
+
+def model_record(spec: ModelSpec) -> dict:
+    model = build_numeric_model(spec)
+    figures = compute_figures(model)
+    states = []
+    for i, state in enumerate(spec.states):
+        stationary = figures.stationary[i]
+        variance = float(figures.covariance[i, i])
+        states.append({
+            "name": state.name,
+            "family": state.family,
+            "mean": snap_zero(figures.mean[i], math.sqrt(variance)),
+            "variance": variance,
+            "half_life": figures.half_lives[i],
+            "stationary_mean": None if stationary is None else snap_zero(stationary[0], math.sqrt(stationary[1])),
+            "stationary_variance": None if stationary is None else stationary[1],
+        })
+    return {
+        "file": spec.relative_path,
+        "at": model.horizon,
+        "tolerance": TOLERANCE_QUADRATURE if figures.quadrature else TOLERANCE_EXACT,
+        "method": figures.method,
+        "sources": list(spec.sources),
+        "states": states,
+        "covariance": [[float(v) for v in row] for row in figures.covariance],
+    }
+
+
+def compute_all() -> dict:
+    records = sorted((model_record(spec) for spec in MODELS), key=lambda r: r["file"])
+    return {
+        "generated_by": "tests/reference/compute.py",
+        "python": platform.python_version(),
+        "scipy": scipy.__version__,
+        "sympy": sp.__version__,
+        "models": records,
+    }
+
+
+def render(document: dict) -> str:
+    # json writes floats with repr, so the output is exact and byte-for-byte stable.
+    return json.dumps(document, indent=2, sort_keys=True, ensure_ascii=False, allow_nan=False) + "\n"
+
+
+# --------------------------------------------------------------------------------------
+# --check: recompute and compare with the committed file
+# --------------------------------------------------------------------------------------
+
+
+def compare_documents(expected: dict, actual: dict) -> list[str]:
+    """Every difference between two documents, as readable lines."""
+    problems: list[str] = []
+
+    def compare(path: str, old, new, scale: float | None = None) -> None:
+        if isinstance(old, dict) and isinstance(new, dict):
+            for key in sorted(set(old) | set(new)):
+                if key not in old:
+                    problems.append(f"{path}.{key}: new entry {new[key]!r}")
+                elif key not in new:
+                    problems.append(f"{path}.{key}: missing (was {old[key]!r})")
+                else:
+                    compare(f"{path}.{key}", old[key], new[key], scale)
+        elif isinstance(old, list) and isinstance(new, list):
+            if len(old) != len(new):
+                problems.append(f"{path}: length {len(old)} -> {len(new)}")
+                return
+            for k, (a, b) in enumerate(zip(old, new)):
+                compare(f"{path}[{k}]", a, b, scale)
+        elif isinstance(old, (int, float)) and isinstance(new, (int, float)) \
+                and not isinstance(old, bool) and not isinstance(new, bool):
+            bound = CHECK_TOLERANCE * max(abs(old), abs(new), scale or 0.0)
+            if abs(old - new) > bound:
+                problems.append(f"{path}: {old!r} -> {new!r} (relative change {abs(old - new) / max(abs(old), abs(new)):.3e})")
+        elif old != new:
+            problems.append(f"{path}: {old!r} -> {new!r}")
+
+    for key in ("generated_by",):
+        compare(key, expected.get(key), actual.get(key))
+    old_models = {m.get("file"): m for m in expected.get("models", [])}
+    new_models = {m["file"]: m for m in actual["models"]}
+    for name in sorted(set(old_models) | set(new_models)):
+        if name not in old_models:
+            problems.append(f"{name}: not in expected.json")
+            continue
+        if name not in new_models:
+            problems.append(f"{name}: in expected.json but no longer computed")
+            continue
+        old, new = old_models[name], new_models[name]
+        # Covariance entries are compared on the scale of sd_i * sd_j, so that an
+        # entry that is zero in exact arithmetic does not demand 1e-12 of itself.
+        variances = [s.get("variance", 0.0) for s in new.get("states", [])]
+        for key in sorted(set(old) | set(new)):
+            if key == "states" and isinstance(old.get(key), list) and len(old[key]) == len(new[key]):
+                # A mean is compared on the scale of its standard deviation as well.
+                for k, (state_old, state_new) in enumerate(zip(old[key], new[key])):
+                    for field_name in sorted(set(state_old) | set(state_new)):
+                        scale = None
+                        if field_name == "mean":
+                            scale = math.sqrt(abs(state_new.get("variance") or 0.0))
+                        elif field_name == "stationary_mean":
+                            scale = math.sqrt(abs(state_new.get("stationary_variance") or 0.0))
+                        compare(f"{name}.states[{k}].{field_name}", state_old.get(field_name),
+                                state_new.get(field_name), scale)
+            elif key == "covariance" and key in old and key in new:
+                rows_old, rows_new = old[key], new[key]
+                if len(rows_old) != len(rows_new):
+                    problems.append(f"{name}.covariance: size changed")
+                    continue
+                for i, (row_old, row_new) in enumerate(zip(rows_old, rows_new)):
+                    for j, (a, b) in enumerate(zip(row_old, row_new)):
+                        scale = math.sqrt(abs(variances[i] * variances[j])) if i < len(variances) and j < len(variances) else 0.0
+                        compare(f"{name}.covariance[{i}][{j}]", a, b, scale)
+            else:
+                compare(f"{name}.{key}", old.get(key), new.get(key))
+    return problems
+
+
+def run_check() -> int:
+    try:
+        expected = json.loads(EXPECTED_PATH.read_text(encoding="utf-8"))
+    except (OSError, json.JSONDecodeError) as error:
+        print(f"reference: cannot read {EXPECTED_PATH}: {error}", file=sys.stderr)
+        return 1
+    actual = compute_all()
+    for key in ("python", "scipy", "sympy"):
+        if expected.get(key) != actual[key]:
+            print(f"note: expected.json was made with {key} {expected.get(key)}, this run has {actual[key]}")
+    problems = compare_documents(expected, actual)
+    failed_models = sorted({p.split(":")[0].split(".sde")[0] for p in problems})
+    for problem in problems:
+        print(f"changed: {problem}")
+    total = len(actual["models"])
+    failed = min(len(failed_models), total)
+    print(f"reference: {total - failed} passed, {failed} failed")
+    return 1 if problems else 0
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = argparse.ArgumentParser(description=__doc__.split("\n")[0])
+    parser.add_argument("--check", action="store_true",
+                        help="recompute and compare with the committed expected.json (exit 1 on change)")
+    parser.add_argument("--verbose", action="store_true",
+                        help="print the largest scaled gap of every agreement between two methods")
+    arguments = parser.parse_args(argv)
+    try:
+        if arguments.check:
+            status = run_check()
+        else:
+            status = None
+            text = render(compute_all())
+    except ReferenceError as error:
+        print(f"reference: {error}", file=sys.stderr)
+        return 1
+    if arguments.verbose:
+        for where, what, gap in AGREEMENT_GAPS:
+            print(f"{gap:9.2e}  {where.removeprefix('tests/reference/models/')}: {what}")
+    if status is not None:
+        return status
+    EXPECTED_PATH.write_text(text, encoding="utf-8")
+    print(f"wrote {EXPECTED_PATH.relative_to(REPO_ROOT)}")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
