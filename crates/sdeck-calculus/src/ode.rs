@@ -1,1 +1,708 @@
-//! Placeholder, filled by its owner.
+//! Adaptive ODE integration (Dormand–Prince 5(4)) and adaptive quadrature (Gauss–Kronrod 7-15)
+//! for time-dependent moment equations: m' = A(t) m + b(t), P' = A P + P Aᵀ + Q(t).
+//!
+//! Both engines are pure numerics over `f64` slices and closures. They never loop forever:
+//! the integrator stops after [`MAX_STEPS`] steps and the quadrature after
+//! [`MAX_SUBDIVISIONS`] subdivisions or [`MAX_DEPTH`] halvings of one interval, returning an
+//! [`OdeError`] rather than panicking.
+
+use std::cmp::Ordering;
+use std::collections::BinaryHeap;
+use std::fmt;
+
+/// Most accepted plus rejected steps one call to [`integrate`] may take.
+/// Reason: a stiff or singular right-hand side must end in an error, not in a hang.
+pub const MAX_STEPS: usize = 200_000;
+
+/// Most interval bisections one call to [`quad`] may make.
+pub const MAX_SUBDIVISIONS: usize = 5_000;
+
+/// Most halvings of one sub-interval in [`quad`]; 2⁻⁶⁰ of the range is below `f64` resolution.
+pub const MAX_DEPTH: u32 = 60;
+
+/// Why an integration or quadrature could not deliver a result to the requested tolerance.
+#[derive(Clone, Debug, PartialEq)]
+pub enum OdeError {
+    /// An argument is unusable (non-finite bound, negative tolerance, empty state...).
+    InvalidInput(String),
+    /// The right-hand side or integrand returned NaN or infinity at this time / abscissa.
+    NonFinite { at: f64 },
+    /// The step cap was reached before the end time.
+    StepLimit { reached: f64, steps: usize },
+    /// The step size fell below what `f64` can resolve at this time (a singularity or stiffness).
+    StepTooSmall { at: f64 },
+    /// The quadrature could not meet the tolerance within its subdivision or depth limits.
+    QuadratureNotConverged { estimate: f64, error: f64 },
+}
+
+impl fmt::Display for OdeError {
+    fn fmt(&self, formatter: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            OdeError::InvalidInput(reason) => write!(formatter, "invalid input: {reason}"),
+            OdeError::NonFinite { at } => {
+                write!(
+                    formatter,
+                    "the function returned a non-finite value at {at}"
+                )
+            }
+            OdeError::StepLimit { reached, steps } => write!(
+                formatter,
+                "the integration stopped at {reached} after {steps} steps without reaching the end"
+            ),
+            OdeError::StepTooSmall { at } => write!(
+                formatter,
+                "the step size became too small at {at} (singular or very stiff equation)"
+            ),
+            OdeError::QuadratureNotConverged { estimate, error } => write!(
+                formatter,
+                "the quadrature did not converge: estimate {estimate}, error estimate {error}"
+            ),
+        }
+    }
+}
+
+impl std::error::Error for OdeError {}
+
+// Dormand & Prince 1980, J. Comput. Appl. Math. 6, 19–26, Table 2 (the RK5(4)7M pair);
+// the same tableau is in Hairer, Nørsett & Wanner, Solving ODE I, Table II.5.2.
+const C2: f64 = 1.0 / 5.0;
+const C3: f64 = 3.0 / 10.0;
+const C4: f64 = 4.0 / 5.0;
+const C5: f64 = 8.0 / 9.0;
+const A21: f64 = 1.0 / 5.0;
+const A31: f64 = 3.0 / 40.0;
+const A32: f64 = 9.0 / 40.0;
+const A41: f64 = 44.0 / 45.0;
+const A42: f64 = -56.0 / 15.0;
+const A43: f64 = 32.0 / 9.0;
+const A51: f64 = 19372.0 / 6561.0;
+const A52: f64 = -25360.0 / 2187.0;
+const A53: f64 = 64448.0 / 6561.0;
+const A54: f64 = -212.0 / 729.0;
+const A61: f64 = 9017.0 / 3168.0;
+const A62: f64 = -355.0 / 33.0;
+const A63: f64 = 46732.0 / 5247.0;
+const A64: f64 = 49.0 / 176.0;
+const A65: f64 = -5103.0 / 18656.0;
+// Fifth-order weights (also the last stage row: "first same as last").
+const B1: f64 = 35.0 / 384.0;
+const B3: f64 = 500.0 / 1113.0;
+const B4: f64 = 125.0 / 192.0;
+const B5: f64 = -2187.0 / 6784.0;
+const B6: f64 = 11.0 / 84.0;
+// Fifth minus fourth order weights: the local error estimate.
+const E1: f64 = 71.0 / 57600.0;
+const E3: f64 = -71.0 / 16695.0;
+const E4: f64 = 71.0 / 1920.0;
+const E5: f64 = -17253.0 / 339200.0;
+const E6: f64 = 22.0 / 525.0;
+const E7: f64 = -1.0 / 40.0;
+
+/// Working storage of the Dormand–Prince stepper, allocated once per call.
+struct StageBuffers {
+    k1: Vec<f64>,
+    k2: Vec<f64>,
+    k3: Vec<f64>,
+    k4: Vec<f64>,
+    k5: Vec<f64>,
+    k6: Vec<f64>,
+    k7: Vec<f64>,
+    stage_input: Vec<f64>,
+    y_new: Vec<f64>,
+}
+
+impl StageBuffers {
+    fn new(dimension: usize) -> Self {
+        let zeros = vec![0.0; dimension];
+        StageBuffers {
+            k1: zeros.clone(),
+            k2: zeros.clone(),
+            k3: zeros.clone(),
+            k4: zeros.clone(),
+            k5: zeros.clone(),
+            k6: zeros.clone(),
+            k7: zeros.clone(),
+            stage_input: zeros.clone(),
+            y_new: zeros,
+        }
+    }
+}
+
+fn check_tolerances(rtol: f64, atol: f64) -> Result<(), OdeError> {
+    if !(rtol.is_finite() && rtol >= 0.0 && atol.is_finite() && atol >= 0.0) {
+        return Err(OdeError::InvalidInput(format!(
+            "tolerances must be finite and non-negative (rtol {rtol}, atol {atol})"
+        )));
+    }
+    if rtol == 0.0 && atol == 0.0 {
+        return Err(OdeError::InvalidInput(
+            "rtol and atol cannot both be zero".to_string(),
+        ));
+    }
+    Ok(())
+}
+
+fn all_finite(values: &[f64]) -> bool {
+    values.iter().all(|value| value.is_finite())
+}
+
+/// Integrates y' = f(t, y) from `t0` to `t1` (either direction) with the adaptive
+/// Dormand–Prince 5(4) pair and returns y(t1).
+///
+/// `f(t, y, dy)` writes the derivative into `dy`. The local error of each accepted step is
+/// kept below `atol + rtol·|y|` per component (root mean square). A relative floor of
+/// 100·ε is applied to `rtol` so that impossible requests still finish.
+pub fn integrate<F: Fn(f64, &[f64], &mut [f64])>(
+    f: F,
+    y0: &[f64],
+    t0: f64,
+    t1: f64,
+    rtol: f64,
+    atol: f64,
+) -> Result<Vec<f64>, OdeError> {
+    let mut y = y0.to_vec();
+    let mut buffers = StageBuffers::new(y.len());
+    integrate_in_place(&f, &mut y, t0, t1, rtol, atol, &mut buffers)?;
+    Ok(y)
+}
+
+/// Integrates y' = f(t, y) from `t0` through each of `times` in turn (which must be
+/// monotone in the direction of integration) and returns y at each of them.
+pub fn integrate_through<F: Fn(f64, &[f64], &mut [f64])>(
+    f: F,
+    y0: &[f64],
+    t0: f64,
+    times: &[f64],
+    rtol: f64,
+    atol: f64,
+) -> Result<Vec<Vec<f64>>, OdeError> {
+    let mut y = y0.to_vec();
+    let mut buffers = StageBuffers::new(y.len());
+    let mut current = t0;
+    let mut direction = 0.0_f64;
+    let mut out = Vec::with_capacity(times.len());
+    for &target in times {
+        let step_direction = (target - current).signum();
+        if target != current {
+            if direction != 0.0 && step_direction != direction {
+                return Err(OdeError::InvalidInput(
+                    "the output times must be monotone in one direction".to_string(),
+                ));
+            }
+            direction = step_direction;
+        }
+        integrate_in_place(&f, &mut y, current, target, rtol, atol, &mut buffers)?;
+        current = target;
+        out.push(y.clone());
+    }
+    Ok(out)
+}
+
+/// Root-mean-square of `error_i / (atol + rtol·max(|y_i|, |y_new_i|))`.
+fn scaled_error_norm(buffers: &StageBuffers, y: &[f64], h: f64, rtol: f64, atol: f64) -> f64 {
+    let dimension = y.len();
+    if dimension == 0 {
+        return 0.0;
+    }
+    let mut sum = 0.0;
+    for i in 0..dimension {
+        let local_error = h
+            * (E1 * buffers.k1[i]
+                + E3 * buffers.k3[i]
+                + E4 * buffers.k4[i]
+                + E5 * buffers.k5[i]
+                + E6 * buffers.k6[i]
+                + E7 * buffers.k7[i]);
+        let scale = atol + rtol * y[i].abs().max(buffers.y_new[i].abs());
+        let ratio = local_error / scale;
+        sum += ratio * ratio;
+    }
+    (sum / dimension as f64).sqrt()
+}
+
+/// Starting step of Hairer, Nørsett & Wanner, Solving ODE I, §II.4 ("Starting step size"),
+/// simplified: h = 0.01·‖y‖/‖f‖ bounded by the interval, then checked against a second
+/// derivative estimate.
+fn initial_step<F: Fn(f64, &[f64], &mut [f64])>(
+    f: &F,
+    t0: f64,
+    y: &[f64],
+    span: f64,
+    rtol: f64,
+    atol: f64,
+    buffers: &mut StageBuffers,
+) -> Result<f64, OdeError> {
+    let dimension = y.len();
+    let mut d0 = 0.0;
+    let mut d1 = 0.0;
+    for i in 0..dimension {
+        let scale = atol + rtol * y[i].abs();
+        d0 += (y[i] / scale).powi(2);
+        d1 += (buffers.k1[i] / scale).powi(2);
+    }
+    let count = dimension.max(1) as f64;
+    let d0 = (d0 / count).sqrt();
+    let d1 = (d1 / count).sqrt();
+    let h0 = if d0 < 1e-5 || d1 < 1e-5 {
+        1e-6
+    } else {
+        0.01 * d0 / d1
+    };
+    let h0 = h0.min(span.abs());
+    let direction = span.signum();
+    for i in 0..dimension {
+        buffers.stage_input[i] = y[i] + direction * h0 * buffers.k1[i];
+    }
+    f(t0 + direction * h0, &buffers.stage_input, &mut buffers.k2);
+    if !all_finite(&buffers.k2) {
+        // The trial point left the domain; start small and let the controller grow the step.
+        return Ok((span.abs() * 1e-6).max(f64::MIN_POSITIVE));
+    }
+    let mut d2 = 0.0;
+    for i in 0..dimension {
+        let scale = atol + rtol * y[i].abs();
+        d2 += ((buffers.k2[i] - buffers.k1[i]) / scale).powi(2);
+    }
+    let d2 = (d2 / count).sqrt() / h0;
+    let h1 = if d1.max(d2) <= 1e-15 {
+        (h0 * 1e-3).max(1e-6)
+    } else {
+        (0.01 / d1.max(d2)).powf(1.0 / 5.0)
+    };
+    Ok((100.0 * h0).min(h1).min(span.abs()))
+}
+
+fn integrate_in_place<F: Fn(f64, &[f64], &mut [f64])>(
+    f: &F,
+    y: &mut [f64],
+    t0: f64,
+    t1: f64,
+    rtol: f64,
+    atol: f64,
+    buffers: &mut StageBuffers,
+) -> Result<(), OdeError> {
+    if !(t0.is_finite() && t1.is_finite()) {
+        return Err(OdeError::InvalidInput(format!(
+            "the time interval [{t0}, {t1}] must be finite"
+        )));
+    }
+    check_tolerances(rtol, atol)?;
+    if !all_finite(y) {
+        return Err(OdeError::InvalidInput(
+            "the initial state contains a non-finite value".to_string(),
+        ));
+    }
+    if t0 == t1 || y.is_empty() {
+        return Ok(());
+    }
+    // Reason: below ~100 ε the error estimate is rounding noise and the step would collapse.
+    let rtol = rtol.max(100.0 * f64::EPSILON);
+    let span = t1 - t0;
+    let direction = span.signum();
+    let dimension = y.len();
+
+    f(t0, y, &mut buffers.k1);
+    if !all_finite(&buffers.k1) {
+        return Err(OdeError::NonFinite { at: t0 });
+    }
+    let mut h = initial_step(f, t0, y, span, rtol, atol, buffers)?;
+    let mut t = t0;
+    let mut steps = 0usize;
+    let mut previous_rejected = false;
+
+    while (t1 - t) * direction > 0.0 {
+        if steps >= MAX_STEPS {
+            return Err(OdeError::StepLimit { reached: t, steps });
+        }
+        steps += 1;
+        let remaining = (t1 - t).abs();
+        let mut last = false;
+        if h >= remaining {
+            h = remaining;
+            last = true;
+        }
+        if h <= 16.0 * f64::EPSILON * t.abs().max(f64::MIN_POSITIVE) {
+            return Err(OdeError::StepTooSmall { at: t });
+        }
+        let hs = direction * h;
+
+        for i in 0..dimension {
+            buffers.stage_input[i] = y[i] + hs * A21 * buffers.k1[i];
+        }
+        f(t + C2 * hs, &buffers.stage_input, &mut buffers.k2);
+        for i in 0..dimension {
+            buffers.stage_input[i] = y[i] + hs * (A31 * buffers.k1[i] + A32 * buffers.k2[i]);
+        }
+        f(t + C3 * hs, &buffers.stage_input, &mut buffers.k3);
+        for i in 0..dimension {
+            buffers.stage_input[i] =
+                y[i] + hs * (A41 * buffers.k1[i] + A42 * buffers.k2[i] + A43 * buffers.k3[i]);
+        }
+        f(t + C4 * hs, &buffers.stage_input, &mut buffers.k4);
+        for i in 0..dimension {
+            buffers.stage_input[i] = y[i]
+                + hs * (A51 * buffers.k1[i]
+                    + A52 * buffers.k2[i]
+                    + A53 * buffers.k3[i]
+                    + A54 * buffers.k4[i]);
+        }
+        f(t + C5 * hs, &buffers.stage_input, &mut buffers.k5);
+        for i in 0..dimension {
+            buffers.stage_input[i] = y[i]
+                + hs * (A61 * buffers.k1[i]
+                    + A62 * buffers.k2[i]
+                    + A63 * buffers.k3[i]
+                    + A64 * buffers.k4[i]
+                    + A65 * buffers.k5[i]);
+        }
+        let t_new = if last { t1 } else { t + hs };
+        f(t + hs, &buffers.stage_input, &mut buffers.k6);
+        for i in 0..dimension {
+            buffers.y_new[i] = y[i]
+                + hs * (B1 * buffers.k1[i]
+                    + B3 * buffers.k3[i]
+                    + B4 * buffers.k4[i]
+                    + B5 * buffers.k5[i]
+                    + B6 * buffers.k6[i]);
+        }
+        f(t_new, &buffers.y_new, &mut buffers.k7);
+
+        let stages_finite = all_finite(&buffers.k2)
+            && all_finite(&buffers.k3)
+            && all_finite(&buffers.k4)
+            && all_finite(&buffers.k5)
+            && all_finite(&buffers.k6)
+            && all_finite(&buffers.k7)
+            && all_finite(&buffers.y_new);
+        let error = if stages_finite {
+            scaled_error_norm(buffers, y, hs, rtol, atol)
+        } else {
+            f64::INFINITY
+        };
+
+        if error <= 1.0 {
+            t = t_new;
+            y.copy_from_slice(&buffers.y_new);
+            // First same as last: the last stage is the first of the next step.
+            std::mem::swap(&mut buffers.k1, &mut buffers.k7);
+            let factor = if error == 0.0 {
+                5.0
+            } else {
+                (0.9 * error.powf(-0.2)).clamp(0.2, 5.0)
+            };
+            // Reason: right after a rejection, growing the step again invites another one.
+            h *= if previous_rejected {
+                factor.min(1.0)
+            } else {
+                factor
+            };
+            previous_rejected = false;
+        } else {
+            if !error.is_finite() && h <= 16.0 * f64::EPSILON * t.abs().max(1.0) {
+                return Err(OdeError::NonFinite { at: t });
+            }
+            let factor = if error.is_finite() {
+                (0.9 * error.powf(-0.2)).clamp(0.2, 1.0)
+            } else {
+                0.2
+            };
+            h *= factor;
+            previous_rejected = true;
+        }
+    }
+    Ok(())
+}
+
+// Gauss–Kronrod 7-15 rule: Piessens, de Doncker-Kapenga, Überhuber & Kahaner 1983,
+// QUADPACK (routine QK15). Abscissae of the 15-point Kronrod rule, from the largest.
+const KRONROD_NODES: [f64; 8] = [
+    0.991_455_371_120_812_6,
+    0.949_107_912_342_758_5,
+    0.864_864_423_359_769_1,
+    0.741_531_185_599_394_4,
+    0.586_087_235_467_691_1,
+    0.405_845_151_377_397_2,
+    0.207_784_955_007_898_5,
+    0.0,
+];
+const KRONROD_WEIGHTS: [f64; 8] = [
+    0.022_935_322_010_529_225,
+    0.063_092_092_629_978_55,
+    0.104_790_010_322_250_18,
+    0.140_653_259_715_525_92,
+    0.169_004_726_639_267_9,
+    0.190_350_578_064_785_4,
+    0.204_432_940_075_298_9,
+    0.209_482_141_084_727_83,
+];
+/// Weights of the 7-point Gauss rule on the Kronrod abscissae 1, 3, 5 and 7 (the centre).
+const GAUSS_WEIGHTS: [f64; 4] = [
+    0.129_484_966_168_869_7,
+    0.279_705_391_489_276_7,
+    0.381_830_050_505_118_9,
+    0.417_959_183_673_469_4,
+];
+
+/// Result of the 7-15 rule on one interval.
+#[derive(Clone, Copy, Debug)]
+struct Panel {
+    low: f64,
+    high: f64,
+    integral: f64,
+    error: f64,
+    absolute_integral: f64,
+    depth: u32,
+}
+
+impl PartialEq for Panel {
+    fn eq(&self, other: &Self) -> bool {
+        self.error.total_cmp(&other.error) == Ordering::Equal
+    }
+}
+impl Eq for Panel {}
+impl PartialOrd for Panel {
+    fn partial_cmp(&self, other: &Self) -> Option<Ordering> {
+        Some(self.cmp(other))
+    }
+}
+impl Ord for Panel {
+    /// Panels are ordered by error so the heap hands back the worst one first.
+    fn cmp(&self, other: &Self) -> Ordering {
+        self.error.total_cmp(&other.error)
+    }
+}
+
+/// Applies the 7-15 rule on [low, high]; the error is |K15 − G7| (a deliberately plain estimate).
+pub fn gauss_kronrod_15<F: Fn(f64) -> f64>(f: &F, low: f64, high: f64) -> (f64, f64) {
+    let panel = kronrod_panel(f, low, high, 0);
+    (panel.integral, panel.error)
+}
+
+fn kronrod_panel<F: Fn(f64) -> f64>(f: &F, low: f64, high: f64, depth: u32) -> Panel {
+    let centre = 0.5 * (low + high);
+    let half_width = 0.5 * (high - low);
+    let centre_value = f(centre);
+    let mut kronrod = KRONROD_WEIGHTS[7] * centre_value;
+    let mut gauss = GAUSS_WEIGHTS[3] * centre_value;
+    let mut absolute = KRONROD_WEIGHTS[7] * centre_value.abs();
+    for (index, (&node, &weight)) in KRONROD_NODES[..7]
+        .iter()
+        .zip(KRONROD_WEIGHTS[..7].iter())
+        .enumerate()
+    {
+        let offset = half_width * node;
+        let left = f(centre - offset);
+        let right = f(centre + offset);
+        kronrod += weight * (left + right);
+        absolute += weight * (left.abs() + right.abs());
+        if index % 2 == 1 {
+            gauss += GAUSS_WEIGHTS[index / 2] * (left + right);
+        }
+    }
+    let integral = kronrod * half_width;
+    Panel {
+        low,
+        high,
+        integral,
+        error: ((kronrod - gauss) * half_width).abs(),
+        absolute_integral: absolute * half_width.abs(),
+        depth,
+    }
+}
+
+/// Integrates `f` over [a, b] by globally adaptive Gauss–Kronrod 7-15: the interval with
+/// the largest error estimate is halved until the summed error is below
+/// `max(rtol·|I|, 50·ε·∫|f|)`.
+///
+/// Either bound may be infinite: [a, ∞) is mapped by x = a + s/(1 − s), (−∞, ∞) by
+/// x = s/(1 − s²); the Kronrod abscissae never touch the ends of the mapped interval.
+/// `b < a` gives minus the integral over [b, a].
+pub fn quad<F: Fn(f64) -> f64>(f: F, a: f64, b: f64, rtol: f64) -> Result<f64, OdeError> {
+    if a.is_nan() || b.is_nan() {
+        return Err(OdeError::InvalidInput(
+            "an integration bound is NaN".to_string(),
+        ));
+    }
+    if !(rtol.is_finite() && rtol > 0.0) {
+        return Err(OdeError::InvalidInput(format!(
+            "rtol must be finite and positive (got {rtol})"
+        )));
+    }
+    if a == b {
+        return Ok(0.0);
+    }
+    if b < a {
+        return quad(f, b, a, rtol).map(|value| -value);
+    }
+    match (a.is_finite(), b.is_finite()) {
+        (true, true) => adaptive(&f, a, b, rtol),
+        (true, false) => adaptive(
+            &|s: f64| {
+                let one_minus = 1.0 - s;
+                f(a + s / one_minus) / (one_minus * one_minus)
+            },
+            0.0,
+            1.0,
+            rtol,
+        ),
+        (false, true) => adaptive(
+            &|s: f64| {
+                let one_minus = 1.0 - s;
+                f(b - s / one_minus) / (one_minus * one_minus)
+            },
+            0.0,
+            1.0,
+            rtol,
+        ),
+        (false, false) => adaptive(
+            &|s: f64| {
+                let one_minus_square = 1.0 - s * s;
+                f(s / one_minus_square) * (1.0 + s * s) / (one_minus_square * one_minus_square)
+            },
+            -1.0,
+            1.0,
+            rtol,
+        ),
+    }
+}
+
+fn adaptive<F: Fn(f64) -> f64>(f: &F, a: f64, b: f64, rtol: f64) -> Result<f64, OdeError> {
+    let first = kronrod_panel(f, a, b, 0);
+    if !(first.integral.is_finite() && first.error.is_finite()) {
+        return Err(OdeError::NonFinite { at: 0.5 * (a + b) });
+    }
+    let mut total = first.integral;
+    let mut total_error = first.error;
+    let mut total_absolute = first.absolute_integral;
+    let mut heap = BinaryHeap::with_capacity(2 * MAX_SUBDIVISIONS + 1);
+    heap.push(first);
+    let mut subdivisions = 0usize;
+
+    loop {
+        let tolerance = (rtol * total.abs()).max(50.0 * f64::EPSILON * total_absolute);
+        if total_error <= tolerance {
+            return Ok(total);
+        }
+        let Some(worst) = heap.pop() else {
+            return Ok(total);
+        };
+        if subdivisions >= MAX_SUBDIVISIONS || worst.depth >= MAX_DEPTH {
+            return Err(OdeError::QuadratureNotConverged {
+                estimate: total,
+                error: total_error,
+            });
+        }
+        subdivisions += 1;
+        let middle = 0.5 * (worst.low + worst.high);
+        let left = kronrod_panel(f, worst.low, middle, worst.depth + 1);
+        let right = kronrod_panel(f, middle, worst.high, worst.depth + 1);
+        for panel in [&left, &right] {
+            if !(panel.integral.is_finite() && panel.error.is_finite()) {
+                return Err(OdeError::NonFinite {
+                    at: 0.5 * (panel.low + panel.high),
+                });
+            }
+        }
+        total += left.integral + right.integral - worst.integral;
+        total_error += left.error + right.error - worst.error;
+        total_absolute +=
+            left.absolute_integral + right.absolute_integral - worst.absolute_integral;
+        heap.push(left);
+        heap.push(right);
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The Kronrod weights and the Gauss weights each sum to 2, the length of [−1, 1]
+    /// (any interpolatory rule integrates the constant exactly; common practice, no source).
+    #[test]
+    fn weights_sum_to_interval_length() {
+        let kronrod: f64 = 2.0 * KRONROD_WEIGHTS[..7].iter().sum::<f64>() + KRONROD_WEIGHTS[7];
+        let gauss: f64 = 2.0 * GAUSS_WEIGHTS[..3].iter().sum::<f64>() + GAUSS_WEIGHTS[3];
+        assert!((kronrod - 2.0).abs() < 1e-15, "{kronrod}");
+        assert!((gauss - 2.0).abs() < 1e-15, "{gauss}");
+    }
+
+    /// A 7-point Gauss rule is exact for degree 13, the 15-point Kronrod extension for
+    /// degree 22 (Kronrod 1965; Laurie 1997, Math. Comp. 66, "Calculation of Gauss–Kronrod
+    /// quadrature rules"): ∫₋₁¹ x^k dx = 2/(k+1) for even k.
+    #[test]
+    fn rules_are_exact_to_their_degree() {
+        for degree in (0..=22).step_by(2) {
+            let exact = 2.0 / (degree as f64 + 1.0);
+            let power = |x: f64| x.powi(degree);
+            let (kronrod, _) = gauss_kronrod_15(&power, -1.0, 1.0);
+            assert!(
+                (kronrod - exact).abs() < 1e-14,
+                "degree {degree}: {kronrod}"
+            );
+            let mut gauss = GAUSS_WEIGHTS[3] * power(0.0);
+            for j in 0..3 {
+                let node = KRONROD_NODES[2 * j + 1];
+                gauss += GAUSS_WEIGHTS[j] * (power(node) + power(-node));
+            }
+            if degree <= 13 {
+                assert!(
+                    (gauss - exact).abs() < 1e-14,
+                    "gauss degree {degree}: {gauss}"
+                );
+            } else {
+                // Degree 14 is beyond the Gauss rule, so it must miss.
+                assert!(
+                    (gauss - exact).abs() > 1e-6,
+                    "gauss degree {degree}: {gauss}"
+                );
+            }
+        }
+    }
+
+    #[test]
+    fn dormand_prince_weights_are_consistent() {
+        // Each row of the tableau sums to its node (common practice, no source), the weights to 1.
+        assert!((A21 - C2).abs() < 1e-16);
+        assert!((A31 + A32 - C3).abs() < 1e-15);
+        assert!((A41 + A42 + A43 - C4).abs() < 1e-14);
+        assert!((A51 + A52 + A53 + A54 - C5).abs() < 1e-14);
+        assert!((A61 + A62 + A63 + A64 + A65 - 1.0).abs() < 1e-14);
+        assert!((B1 + B3 + B4 + B5 + B6 - 1.0).abs() < 1e-15);
+        assert!((E1 + E3 + E4 + E5 + E6 + E7).abs() < 1e-15);
+    }
+
+    #[test]
+    fn step_cap_stops_a_blow_up() {
+        // y' = y², y(0) = 1 blows up at t = 1 (y = 1/(1 − t)); integrating past it must end in an error.
+        let result = integrate(
+            |_, y, dy| dy[0] = y[0] * y[0],
+            &[1.0],
+            0.0,
+            2.0,
+            1e-8,
+            1e-12,
+        );
+        assert!(result.is_err(), "{result:?}");
+    }
+
+    #[test]
+    fn bad_inputs_are_errors() {
+        let rhs = |_: f64, y: &[f64], dy: &mut [f64]| dy[0] = y[0];
+        assert!(matches!(
+            integrate(rhs, &[1.0], 0.0, f64::INFINITY, 1e-8, 1e-10),
+            Err(OdeError::InvalidInput(_))
+        ));
+        assert!(matches!(
+            integrate(rhs, &[1.0], 0.0, 1.0, -1.0, 1e-10),
+            Err(OdeError::InvalidInput(_))
+        ));
+        assert!(matches!(
+            quad(|x| x, f64::NAN, 1.0, 1e-8),
+            Err(OdeError::InvalidInput(_))
+        ));
+        assert!(matches!(
+            quad(|x| 1.0 / x, 0.0, 1.0, 1e-10),
+            Err(OdeError::NonFinite { .. }) | Err(OdeError::QuadratureNotConverged { .. })
+        ));
+    }
+}
