@@ -1,5 +1,238 @@
 //! Calculus of sdeck models: classification into families, closed forms and moments.
+//!
+//! The input is a resolved [`sdeck_semantics::Model`] (every value in clock units). Each
+//! drift and diffusion is normalised by the exact algebra of [`algebra`] into a
+//! polynomial in the states, which lets [`derive`] see "affine in X", "constant times
+//! sqrt(X)" or "quadratic" structurally, classify every state and the whole system into
+//! a [`Family`], and derive what is known in closed form: solution, mean, variance,
+//! autocovariance, stationary law, half-life. [`moments_at`], [`autocovariance`] and
+//! [`quantile`] then give numbers at any time.
+//!
+//! Layout: `algebra` (polynomials in the states), `shape` (classification), `one_state`
+//! (figures of one decoupled state), `formulas` (readable math), `system` (several
+//! states, through the engines of `linear_system`, `polynomial` and `ode`),
+//! `noncentral` (the noncentral chi-square law).
 
+pub mod algebra;
+mod formulas;
 pub mod linear_system;
+pub mod noncentral;
 pub mod ode;
+pub mod one_state;
 pub mod polynomial;
+mod shape;
+mod system;
+
+use sdeck_semantics::Model;
+use shape::{classify_state, classify_system, Classified, OneState, SystemShape};
+
+/// The family a state (or a whole system) belongs to.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
+pub enum Family {
+    ArithmeticBrownian,
+    GeometricBrownian,
+    OrnsteinUhlenbeck,
+    SquareRoot,
+    Linear,
+    LinearSystem,
+    Polynomial,
+    General,
+}
+
+impl Family {
+    /// The kebab-case name used in every output.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Family::ArithmeticBrownian => "arithmetic-brownian",
+            Family::GeometricBrownian => "geometric-brownian",
+            Family::OrnsteinUhlenbeck => "ornstein-uhlenbeck",
+            Family::SquareRoot => "square-root",
+            Family::Linear => "linear",
+            Family::LinearSystem => "linear-system",
+            Family::Polynomial => "polynomial",
+            Family::General => "general",
+        }
+    }
+}
+
+/// How the figures of a state were obtained.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Method {
+    ClosedForm,
+    Quadrature,
+    MomentEquations,
+    None,
+}
+
+impl Method {
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Method::ClosedForm => "closed-form",
+            Method::Quadrature => "quadrature",
+            Method::MomentEquations => "moment-equations",
+            Method::None => "none",
+        }
+    }
+}
+
+/// Constant coefficients of a one-state linear SDE
+/// dX = (a + b X) dt + Σ_k (c_k + d_k X) dW_k, in clock units.
+#[derive(Clone, Debug, PartialEq)]
+pub struct LinearCoefficients {
+    pub a: f64,
+    pub b: f64,
+    /// `(noise, c_k)`.
+    pub c: Vec<(usize, f64)>,
+    /// `(noise, d_k)`.
+    pub d: Vec<(usize, f64)>,
+}
+
+/// dX = speed (level − X) dt + vol sqrt(X) dW, in clock units.
+#[derive(Clone, Debug, PartialEq)]
+pub struct SquareRootParams {
+    pub speed: f64,
+    pub level: f64,
+    pub vol: f64,
+    pub noise: usize,
+}
+
+/// The stationary law of a state.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Stationary {
+    pub mean: f64,
+    pub variance: f64,
+    /// e.g. "Normal(θ, σ²/(2κ))", "Gamma(shape 2κθ/σ², scale σ²/(2κ))".
+    pub law: String,
+}
+
+/// Readable math (Unicode) with the model's own names.
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct Formulas {
+    pub solution: Option<String>,
+    pub mean: Option<String>,
+    pub variance: Option<String>,
+    pub autocovariance: Option<String>,
+    pub stationary: Option<String>,
+    pub transition: Option<String>,
+}
+
+/// What is known of one state.
+#[derive(Clone, Debug, PartialEq)]
+pub struct StateLaw {
+    pub family: Family,
+    /// Why, in words: "drift affine in r with negative slope, diffusion constant".
+    pub reason: String,
+    pub method: Method,
+    /// Readable math, Unicode, using the model's own names.
+    pub formulas: Formulas,
+    /// Clock units: ln 2 / |b| for constant b < 0.
+    pub half_life: Option<f64>,
+    pub stationary: Option<Stationary>,
+    /// When the state's own SDE is linear in itself with constant coefficients and no
+    /// other state appears.
+    pub linear: Option<LinearCoefficients>,
+    /// When the family is square-root.
+    pub square_root: Option<SquareRootParams>,
+    /// States that appear in this state's drift or diffusion (besides itself).
+    pub depends_on: Vec<usize>,
+}
+
+/// Everything derived from a model.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Derivation {
+    /// Declaration order.
+    pub states: Vec<StateLaw>,
+    /// Family of the whole system (LinearSystem / Polynomial when states are coupled).
+    pub system_family: Family,
+    pub system_reason: String,
+    /// The drift matrix A of an affine system dX = (A X + b(t)) dt + ..., when the drift
+    /// is affine with constant A.
+    pub drift_matrix: Option<Vec<Vec<f64>>>,
+    /// Eigenvalues of the drift matrix, `(re, im)`.
+    pub drift_eigenvalues: Option<Vec<(f64, f64)>>,
+}
+
+/// Figures of every state at one time.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Moments {
+    /// Clock units.
+    pub at: f64,
+    /// Per state, declaration order.
+    pub mean: Vec<Option<f64>>,
+    pub variance: Vec<Option<f64>>,
+    /// Full matrix, same order.
+    pub covariance: Vec<Vec<Option<f64>>>,
+    /// Per state: closed form or exact moment equations (not Monte Carlo).
+    pub exact: Vec<bool>,
+    pub method: Vec<Method>,
+}
+
+/// The structural analysis shared by every entry point.
+pub(crate) struct Analysis {
+    pub corr: Vec<Vec<f64>>,
+    pub classified: Vec<Classified>,
+    pub system: SystemShape,
+    pub params: Vec<f64>,
+}
+
+pub(crate) fn analyse(model: &Model) -> Analysis {
+    let corr = model.correlation_matrix();
+    let classified: Vec<Classified> = (0..model.states.len())
+        .map(|i| classify_state(model, i, &corr))
+        .collect();
+    let system = classify_system(model, &classified, &corr);
+    Analysis {
+        corr,
+        classified,
+        system,
+        params: model.param_values(),
+    }
+}
+
+impl Analysis {
+    /// The one-state equation of a decoupled state that has a one-state family.
+    pub(crate) fn one_state(&self, state: usize) -> Option<(&OneState, Family)> {
+        let c = self.classified.get(state)?;
+        if c.family == Family::General {
+            return None;
+        }
+        c.one_state.as_ref().map(|o| (o, c.family))
+    }
+}
+
+/// Classifies every state and the system, and derives what is known in closed form.
+pub fn derive(model: &Model) -> Derivation {
+    let analysis = analyse(model);
+    system::derive(model, &analysis)
+}
+
+/// Means, variances and covariances of every state at time `t` (clock units).
+pub fn moments_at(model: &Model, derivation: &Derivation, t: f64) -> Moments {
+    let analysis = analyse(model);
+    system::moments_at(model, derivation, &analysis, t)
+}
+
+/// Cov(X_s, X_t) for s <= t, where known.
+pub fn autocovariance(
+    model: &Model,
+    derivation: &Derivation,
+    state: usize,
+    s: f64,
+    t: f64,
+) -> Option<f64> {
+    let analysis = analyse(model);
+    system::autocovariance(model, derivation, &analysis, state, s, t)
+}
+
+/// Quantile of the law of one state at t where the law is known (Gaussian, lognormal,
+/// noncentral chi-square).
+pub fn quantile(
+    model: &Model,
+    derivation: &Derivation,
+    state: usize,
+    t: f64,
+    p: f64,
+) -> Option<f64> {
+    let analysis = analyse(model);
+    system::quantile(model, derivation, &analysis, state, t, p)
+}

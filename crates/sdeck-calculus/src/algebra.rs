@@ -1,0 +1,828 @@
+//! Exact expression algebra: drifts and diffusions as polynomials in the states.
+//!
+//! A [`Poly`] is a finite sum of `coefficient · monomial`, where a monomial is a product
+//! of atoms raised to integer powers. Atoms are states, parameters, the time `t`, and
+//! "opaque" sub-expressions that mention no state (`exp(-kappa * t)`, `sqrt(level)`,
+//! `1 / (a + b)`). States only ever carry non-negative powers, so a `Poly` is a true
+//! polynomial in the states whose coefficients are Laurent monomials of parameters, `t`
+//! and opaque pieces. Two expressions that are equal after expanding products and
+//! collecting terms give equal `Poly` values, which is what classification relies on.
+//!
+//! A diffusion coefficient may also be a square root (`vol * sqrt(r)`): [`RootForm`]
+//! keeps it as `scale · sqrt(radicand)`, whose square is again a polynomial.
+
+use sdeck_semantics::{Expr, Function, Model};
+use std::cmp::Ordering;
+use std::collections::BTreeMap;
+
+/// Integer powers above this are not expanded (a guard against `x^1000000`).
+const MAX_EXPANDED_POWER: i64 = 16;
+
+/// An indivisible factor of a monomial.
+#[derive(Clone, Debug)]
+pub enum Atom {
+    State(usize),
+    Param(usize),
+    Time,
+    /// A sub-expression without states, kept whole. The string is a structural key used
+    /// only to order and compare opaque atoms.
+    Opaque(Box<Expr>, String),
+}
+
+impl Atom {
+    fn rank(&self) -> (u8, usize, &str) {
+        match self {
+            Atom::State(i) => (0, *i, ""),
+            Atom::Param(i) => (1, *i, ""),
+            Atom::Time => (2, 0, ""),
+            Atom::Opaque(_, key) => (3, 0, key.as_str()),
+        }
+    }
+
+    fn opaque(expr: Expr) -> Atom {
+        let key = format!("{expr:?}");
+        Atom::Opaque(Box::new(expr), key)
+    }
+
+    /// Whether the atom changes with `t`.
+    pub fn depends_on_time(&self) -> bool {
+        match self {
+            Atom::Time => true,
+            Atom::Opaque(expr, _) => expr_mentions_time(expr),
+            _ => false,
+        }
+    }
+
+    fn eval(&self, params: &[f64], states: &[f64], t: f64) -> f64 {
+        match self {
+            Atom::State(i) => states.get(*i).copied().unwrap_or(f64::NAN),
+            Atom::Param(i) => params.get(*i).copied().unwrap_or(f64::NAN),
+            Atom::Time => t,
+            Atom::Opaque(expr, _) => expr.eval(params, states, t),
+        }
+    }
+}
+
+impl PartialEq for Atom {
+    fn eq(&self, other: &Self) -> bool {
+        self.rank() == other.rank()
+    }
+}
+impl Eq for Atom {}
+impl PartialOrd for Atom {
+    fn partial_cmp(&self, other: &Self) -> Option<Ordering> {
+        Some(self.cmp(other))
+    }
+}
+impl Ord for Atom {
+    fn cmp(&self, other: &Self) -> Ordering {
+        self.rank().cmp(&other.rank())
+    }
+}
+
+/// A product of atoms with non-zero integer powers, sorted by atom.
+pub type Monomial = Vec<(Atom, i64)>;
+
+/// A sum of `coefficient · monomial` with distinct monomials and non-zero coefficients.
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct Poly {
+    pub terms: BTreeMap<Monomial, f64>,
+}
+
+/// The piece of an expression that kept it from being a polynomial in the states.
+#[derive(Clone, Debug, PartialEq)]
+pub struct NotPolynomial {
+    pub piece: Expr,
+}
+
+impl Poly {
+    pub fn zero() -> Poly {
+        Poly::default()
+    }
+
+    pub fn constant(value: f64) -> Poly {
+        let mut p = Poly::zero();
+        if value != 0.0 {
+            p.terms.insert(Vec::new(), value);
+        }
+        p
+    }
+
+    pub fn one() -> Poly {
+        Poly::constant(1.0)
+    }
+
+    pub fn atom(atom: Atom) -> Poly {
+        let mut p = Poly::zero();
+        p.terms.insert(vec![(atom, 1)], 1.0);
+        p
+    }
+
+    pub fn is_zero(&self) -> bool {
+        self.terms.is_empty()
+    }
+
+    pub fn is_one(&self) -> bool {
+        self.terms.len() == 1 && self.terms.get(&Vec::new()) == Some(&1.0)
+    }
+
+    /// The value when the polynomial is a plain number.
+    pub fn as_constant(&self) -> Option<f64> {
+        match self.terms.len() {
+            0 => Some(0.0),
+            1 => self.terms.get(&Vec::new()).copied(),
+            _ => None,
+        }
+    }
+
+    fn insert_term(&mut self, monomial: Monomial, coefficient: f64) {
+        if coefficient == 0.0 {
+            return;
+        }
+        let entry = self.terms.entry(monomial).or_insert(0.0);
+        *entry += coefficient;
+        if *entry == 0.0 {
+            self.terms.retain(|_, c| *c != 0.0);
+        }
+    }
+
+    pub fn add(&self, other: &Poly) -> Poly {
+        let mut out = self.clone();
+        for (m, c) in &other.terms {
+            out.insert_term(m.clone(), *c);
+        }
+        out
+    }
+
+    pub fn scale(&self, factor: f64) -> Poly {
+        let mut out = Poly::zero();
+        for (m, c) in &self.terms {
+            out.insert_term(m.clone(), c * factor);
+        }
+        out
+    }
+
+    pub fn neg(&self) -> Poly {
+        self.scale(-1.0)
+    }
+
+    pub fn sub(&self, other: &Poly) -> Poly {
+        self.add(&other.neg())
+    }
+
+    pub fn mul(&self, other: &Poly) -> Poly {
+        let mut out = Poly::zero();
+        for (ma, ca) in &self.terms {
+            for (mb, cb) in &other.terms {
+                out.insert_term(multiply_monomials(ma, mb), ca * cb);
+            }
+        }
+        out
+    }
+
+    /// The single term `(coefficient, monomial)` when the polynomial has exactly one.
+    pub fn single_term(&self) -> Option<(&Monomial, f64)> {
+        if self.terms.len() == 1 {
+            self.terms.iter().next().map(|(m, c)| (m, *c))
+        } else {
+            None
+        }
+    }
+
+    /// `self / other` when `other` is a single term without states.
+    pub fn divide_by_term(&self, other: &Poly) -> Option<Poly> {
+        let (monomial, coefficient) = other.single_term()?;
+        if monomial.iter().any(|(a, _)| matches!(a, Atom::State(_))) || coefficient == 0.0 {
+            return None;
+        }
+        let inverse: Monomial = monomial.iter().map(|(a, k)| (a.clone(), -k)).collect();
+        let mut inverse_poly = Poly::zero();
+        inverse_poly.insert_term(inverse, 1.0 / coefficient);
+        Some(self.mul(&inverse_poly))
+    }
+
+    /// Whether any state appears.
+    pub fn mentions_states(&self) -> bool {
+        self.terms
+            .keys()
+            .any(|m| m.iter().any(|(a, _)| matches!(a, Atom::State(_))))
+    }
+
+    /// Whether any coefficient changes with `t`.
+    pub fn depends_on_time(&self) -> bool {
+        self.terms
+            .keys()
+            .any(|m| m.iter().any(|(a, _)| a.depends_on_time()))
+    }
+
+    /// The states that appear, sorted.
+    pub fn states(&self) -> Vec<usize> {
+        let mut out: Vec<usize> = self
+            .terms
+            .keys()
+            .flat_map(|m| m.iter())
+            .filter_map(|(a, _)| match a {
+                Atom::State(i) => Some(*i),
+                _ => None,
+            })
+            .collect();
+        out.sort_unstable();
+        out.dedup();
+        out
+    }
+
+    /// Splits into coefficients of state monomials: `{ [(state, power)] -> coefficient }`.
+    /// The empty key holds the state-free part.
+    pub fn by_state_monomial(&self) -> BTreeMap<Vec<(usize, i64)>, Poly> {
+        let mut out: BTreeMap<Vec<(usize, i64)>, Poly> = BTreeMap::new();
+        for (m, c) in &self.terms {
+            let state_part: Vec<(usize, i64)> = m
+                .iter()
+                .filter_map(|(a, k)| match a {
+                    Atom::State(i) => Some((*i, *k)),
+                    _ => None,
+                })
+                .collect();
+            let rest: Monomial = m
+                .iter()
+                .filter(|(a, _)| !matches!(a, Atom::State(_)))
+                .cloned()
+                .collect();
+            out.entry(state_part)
+                .or_default()
+                .insert_term(rest, *c);
+        }
+        out
+    }
+
+    /// Total degree in the states.
+    pub fn state_degree(&self) -> i64 {
+        self.by_state_monomial()
+            .keys()
+            .map(|k| k.iter().map(|(_, p)| p).sum::<i64>())
+            .max()
+            .unwrap_or(0)
+    }
+
+    /// The coefficient of `state^power` alone (other states absent).
+    pub fn coefficient_of(&self, state: usize, power: i64) -> Poly {
+        let key: Vec<(usize, i64)> = if power == 0 {
+            Vec::new()
+        } else {
+            vec![(state, power)]
+        };
+        self.by_state_monomial().remove(&key).unwrap_or_default()
+    }
+
+    pub fn eval(&self, params: &[f64], states: &[f64], t: f64) -> f64 {
+        self.terms
+            .iter()
+            .map(|(m, c)| {
+                m.iter().fold(*c, |acc, (a, k)| {
+                    acc * a.eval(params, states, t).powi(*k as i32)
+                })
+            })
+            .sum()
+    }
+
+    /// Value of a polynomial without states, at time `t`.
+    pub fn value(&self, model_params: &[f64], t: f64) -> f64 {
+        self.eval(model_params, &[], t)
+    }
+}
+
+fn multiply_monomials(a: &Monomial, b: &Monomial) -> Monomial {
+    let mut powers: BTreeMap<Atom, i64> = BTreeMap::new();
+    for (atom, k) in a.iter().chain(b.iter()) {
+        *powers.entry(atom.clone()).or_insert(0) += k;
+    }
+    powers.into_iter().filter(|(_, k)| *k != 0).collect()
+}
+
+/// Whether `t` appears in the expression.
+pub fn expr_mentions_time(expr: &Expr) -> bool {
+    any_leaf(expr, &|e| matches!(e, Expr::Time))
+}
+
+/// Whether a state appears in the expression.
+pub fn expr_mentions_states(expr: &Expr) -> bool {
+    any_leaf(expr, &|e| matches!(e, Expr::State(_)))
+}
+
+fn any_leaf(expr: &Expr, test: &dyn Fn(&Expr) -> bool) -> bool {
+    if test(expr) {
+        return true;
+    }
+    match expr {
+        Expr::Neg(a) => any_leaf(a, test),
+        Expr::Add(a, b) | Expr::Sub(a, b) | Expr::Mul(a, b) | Expr::Div(a, b) | Expr::Pow(a, b) => {
+            any_leaf(a, test) || any_leaf(b, test)
+        }
+        Expr::Call(_, args) => args.iter().any(|a| any_leaf(a, test)),
+        _ => false,
+    }
+}
+
+/// The value of an expression made only of numbers (and `pi`, already a number).
+fn constant_value(expr: &Expr) -> Option<f64> {
+    let numeric_only = !any_leaf(expr, &|e| {
+        matches!(
+            e,
+            Expr::Param(_) | Expr::State(_) | Expr::Time | Expr::Invalid
+        )
+    });
+    numeric_only.then(|| expr.eval(&[], &[], 0.0))
+}
+
+/// Normalises an expression into a polynomial in the states.
+pub fn to_poly(expr: &Expr) -> Result<Poly, NotPolynomial> {
+    let not_polynomial = || NotPolynomial {
+        piece: expr.clone(),
+    };
+    match expr {
+        Expr::Const(c) => Ok(Poly::constant(*c)),
+        Expr::Param(i) => Ok(Poly::atom(Atom::Param(*i))),
+        Expr::State(i) => Ok(Poly::atom(Atom::State(*i))),
+        Expr::Time => Ok(Poly::atom(Atom::Time)),
+        Expr::Neg(a) => Ok(to_poly(a)?.neg()),
+        Expr::Add(a, b) => Ok(to_poly(a)?.add(&to_poly(b)?)),
+        Expr::Sub(a, b) => Ok(to_poly(a)?.sub(&to_poly(b)?)),
+        Expr::Mul(a, b) => Ok(to_poly(a)?.mul(&to_poly(b)?)),
+        Expr::Div(a, b) => {
+            let numerator = to_poly(a)?;
+            if let Ok(denominator) = to_poly(b) {
+                if let Some(q) = numerator.divide_by_term(&denominator) {
+                    return Ok(q);
+                }
+            }
+            if expr_mentions_states(b) {
+                return Err(not_polynomial());
+            }
+            let mut inverse = Poly::zero();
+            inverse.insert_term(vec![(Atom::opaque((**b).clone()), -1)], 1.0);
+            Ok(numerator.mul(&inverse))
+        }
+        Expr::Pow(base, exponent) => {
+            if let Some(k) = constant_value(exponent) {
+                if k.fract() == 0.0 && k.abs() <= MAX_EXPANDED_POWER as f64 {
+                    let k = k as i64;
+                    let base_poly = to_poly(base)?;
+                    if k >= 0 {
+                        let mut out = Poly::one();
+                        for _ in 0..k {
+                            out = out.mul(&base_poly);
+                        }
+                        return Ok(out);
+                    }
+                    if let Some((monomial, c)) = base_poly.single_term() {
+                        if !base_poly.mentions_states() && c != 0.0 {
+                            let m: Monomial =
+                                monomial.iter().map(|(a, p)| (a.clone(), p * k)).collect();
+                            let mut out = Poly::zero();
+                            out.insert_term(m, c.powi(k as i32));
+                            return Ok(out);
+                        }
+                    }
+                }
+            }
+            opaque_or_error(expr)
+        }
+        Expr::Call(..) => opaque_or_error(expr),
+        Expr::Invalid => Err(not_polynomial()),
+    }
+}
+
+fn opaque_or_error(expr: &Expr) -> Result<Poly, NotPolynomial> {
+    if expr_mentions_states(expr) || expr.is_invalid() {
+        return Err(NotPolynomial {
+            piece: expr.clone(),
+        });
+    }
+    if let Some(v) = constant_value(expr) {
+        return Ok(Poly::constant(v));
+    }
+    Ok(Poly::atom(Atom::opaque(expr.clone())))
+}
+
+/// A diffusion coefficient `scale · sqrt(radicand)`; `radicand` is 1 for polynomials.
+#[derive(Clone, Debug, PartialEq)]
+pub struct RootForm {
+    pub scale: Poly,
+    pub radicand: Poly,
+}
+
+impl RootForm {
+    pub fn is_polynomial(&self) -> bool {
+        self.radicand.is_one()
+    }
+
+    /// `scale² · radicand`.
+    pub fn square(&self) -> Poly {
+        self.scale.mul(&self.scale).mul(&self.radicand)
+    }
+
+    /// `self · other` when it is a polynomial (same radicand, or both polynomial).
+    pub fn product(&self, other: &RootForm) -> Option<Poly> {
+        if self.radicand == other.radicand {
+            Some(self.scale.mul(&other.scale).mul(&self.radicand))
+        } else {
+            None
+        }
+    }
+}
+
+fn is_sqrt_of_state_expression(expr: &Expr) -> Option<&Expr> {
+    match expr {
+        Expr::Call(Function::Sqrt, args) if args.len() == 1 => {
+            args.first().filter(|a| expr_mentions_states(a))
+        }
+        Expr::Pow(base, exponent)
+            if constant_value(exponent) == Some(0.5) && expr_mentions_states(base) =>
+        {
+            Some(base)
+        }
+        _ => None,
+    }
+}
+
+/// Recognises `c · sqrt(p)`, `sqrt(c · p)`, products and quotients of such by
+/// state-free factors, and plain polynomials.
+pub fn to_root_form(expr: &Expr) -> Result<RootForm, NotPolynomial> {
+    if let Some(inner) = is_sqrt_of_state_expression(expr) {
+        return Ok(RootForm {
+            scale: Poly::one(),
+            radicand: to_poly(inner)?,
+        });
+    }
+    let not_polynomial = || NotPolynomial {
+        piece: expr.clone(),
+    };
+    match expr {
+        Expr::Neg(a) => {
+            let r = to_root_form(a)?;
+            Ok(RootForm {
+                scale: r.scale.neg(),
+                radicand: r.radicand,
+            })
+        }
+        Expr::Mul(a, b) => {
+            let ra = to_root_form(a)?;
+            let rb = to_root_form(b)?;
+            if ra.radicand == rb.radicand && !ra.is_polynomial() {
+                Ok(RootForm {
+                    scale: ra.scale.mul(&rb.scale).mul(&ra.radicand),
+                    radicand: Poly::one(),
+                })
+            } else {
+                Ok(RootForm {
+                    scale: ra.scale.mul(&rb.scale),
+                    radicand: ra.radicand.mul(&rb.radicand),
+                })
+            }
+        }
+        Expr::Div(a, b) => {
+            let ra = to_root_form(a)?;
+            if ra.is_polynomial() {
+                return to_poly(expr).map(|p| RootForm {
+                    scale: p,
+                    radicand: Poly::one(),
+                });
+            }
+            let denominator = to_poly(b).map_err(|_| not_polynomial())?;
+            let scale = match ra.scale.divide_by_term(&denominator) {
+                Some(s) => s,
+                None if !denominator.mentions_states() => {
+                    let mut inverse = Poly::zero();
+                    inverse.insert_term(vec![(Atom::opaque((**b).clone()), -1)], 1.0);
+                    ra.scale.mul(&inverse)
+                }
+                None => return Err(not_polynomial()),
+            };
+            Ok(RootForm {
+                scale,
+                radicand: ra.radicand,
+            })
+        }
+        Expr::Add(a, b) | Expr::Sub(a, b) => {
+            let ra = to_root_form(a)?;
+            let mut rb = to_root_form(b)?;
+            if matches!(expr, Expr::Sub(..)) {
+                rb.scale = rb.scale.neg();
+            }
+            if ra.radicand == rb.radicand {
+                Ok(RootForm {
+                    scale: ra.scale.add(&rb.scale),
+                    radicand: ra.radicand,
+                })
+            } else if ra.scale.is_zero() {
+                Ok(rb)
+            } else if rb.scale.is_zero() {
+                Ok(ra)
+            } else {
+                Err(not_polynomial())
+            }
+        }
+        _ => to_poly(expr).map(|p| RootForm {
+            scale: p,
+            radicand: Poly::one(),
+        }),
+    }
+}
+
+/// Names used when printing: the model's own parameter and state names.
+pub struct Names<'a> {
+    pub model: &'a Model,
+}
+
+impl Names<'_> {
+    fn param(&self, i: usize) -> String {
+        self.model
+            .params
+            .get(i)
+            .map(|p| p.name.clone())
+            .unwrap_or_else(|| format!("p{i}"))
+    }
+
+    fn state(&self, i: usize) -> String {
+        self.model
+            .states
+            .get(i)
+            .map(|s| s.name.clone())
+            .unwrap_or_else(|| format!("x{i}"))
+    }
+}
+
+/// Superscript digits for small powers, `^n` otherwise.
+fn superscript(k: i64) -> String {
+    const DIGITS: [char; 10] = ['⁰', '¹', '²', '³', '⁴', '⁵', '⁶', '⁷', '⁸', '⁹'];
+    if k == 1 {
+        return String::new();
+    }
+    if (2..=9).contains(&k) {
+        return DIGITS
+            .get(k as usize)
+            .map(|c| c.to_string())
+            .unwrap_or_default();
+    }
+    format!("^{k}")
+}
+
+/// A number printed short: integers without a decimal point, others with up to 6
+/// significant digits.
+pub fn show_number(x: f64) -> String {
+    if x.fract() == 0.0 && x.abs() < 1e15 {
+        return format!("{}", x as i64).replace('-', "−");
+    }
+    let text = format!("{:.6}", x);
+    let trimmed = if x.abs() >= 1e-4 && x.abs() < 1e6 {
+        let t = format!("{}", (x * 1e6).round() / 1e6);
+        if t.len() < text.len() {
+            t
+        } else {
+            text
+        }
+    } else {
+        format!("{x:.4e}")
+    };
+    trimmed.replace('-', "−")
+}
+
+fn show_atom(atom: &Atom, names: &Names) -> String {
+    match atom {
+        Atom::State(i) => names.state(*i),
+        Atom::Param(i) => names.param(*i),
+        Atom::Time => "t".to_string(),
+        Atom::Opaque(expr, _) => {
+            let text = show_expr(expr, names);
+            if matches!(**expr, Expr::Call(..)) {
+                text
+            } else {
+                format!("({text})")
+            }
+        }
+    }
+}
+
+fn show_factors(factors: &[(&Atom, i64)], names: &Names) -> String {
+    factors
+        .iter()
+        .map(|(a, k)| format!("{}{}", show_atom(a, names), superscript(*k)))
+        .collect::<Vec<_>>()
+        .join("·")
+}
+
+/// One term printed without its sign; returns (negative, text).
+fn show_term(monomial: &Monomial, coefficient: f64, names: &Names) -> (bool, String) {
+    let numerator: Vec<(&Atom, i64)> = monomial
+        .iter()
+        .filter(|(_, k)| *k > 0)
+        .map(|(a, k)| (a, *k))
+        .collect();
+    let denominator: Vec<(&Atom, i64)> = monomial
+        .iter()
+        .filter(|(_, k)| *k < 0)
+        .map(|(a, k)| (a, -k))
+        .collect();
+    let magnitude = coefficient.abs();
+    let mut text = String::new();
+    if numerator.is_empty() {
+        text.push_str(&show_number(magnitude));
+    } else {
+        if magnitude != 1.0 {
+            text.push_str(&show_number(magnitude));
+            text.push('·');
+        }
+        text.push_str(&show_factors(&numerator, names));
+    }
+    if !denominator.is_empty() {
+        let below = show_factors(&denominator, names);
+        if denominator.len() > 1 {
+            text.push_str(&format!("/({below})"));
+        } else {
+            text.push_str(&format!("/{below}"));
+        }
+    }
+    (coefficient < 0.0, text)
+}
+
+/// Prints a polynomial in readable math with the model's names: `kappa·level − kappa·r`.
+pub fn show_poly(poly: &Poly, names: &Names) -> String {
+    if poly.is_zero() {
+        return "0".to_string();
+    }
+    // Higher state degree last, constant first: `a + b·x + c·x²`.
+    let mut terms: Vec<(&Monomial, f64)> = poly.terms.iter().map(|(m, c)| (m, *c)).collect();
+    terms.sort_by_key(|(m, _)| {
+        m.iter()
+            .filter(|(a, _)| matches!(a, Atom::State(_)))
+            .map(|(_, k)| *k)
+            .sum::<i64>()
+    });
+    let mut out = String::new();
+    for (index, (m, c)) in terms.iter().enumerate() {
+        let (negative, text) = show_term(m, *c, names);
+        match (index, negative) {
+            (0, true) => out.push('−'),
+            (0, false) => {}
+            (_, true) => out.push_str(" − "),
+            (_, false) => out.push_str(" + "),
+        }
+        out.push_str(&text);
+    }
+    out
+}
+
+/// Whether the printed polynomial needs parentheses when it is a factor.
+pub fn show_poly_factor(poly: &Poly, names: &Names) -> String {
+    let text = show_poly(poly, names);
+    if poly.terms.len() > 1 || text.starts_with('−') {
+        format!("({text})")
+    } else {
+        text
+    }
+}
+
+fn precedence(expr: &Expr) -> u8 {
+    match expr {
+        Expr::Add(..) | Expr::Sub(..) => 1,
+        Expr::Mul(..) | Expr::Div(..) => 2,
+        Expr::Neg(..) => 3,
+        Expr::Pow(..) => 4,
+        _ => 5,
+    }
+}
+
+/// Prints an expression of the model in readable math.
+pub fn show_expr(expr: &Expr, names: &Names) -> String {
+    let wrap = |e: &Expr, min: u8| {
+        let text = show_expr(e, names);
+        if precedence(e) < min {
+            format!("({text})")
+        } else {
+            text
+        }
+    };
+    match expr {
+        Expr::Const(c) => {
+            if (*c - std::f64::consts::PI).abs() < 1e-15 {
+                "π".to_string()
+            } else {
+                show_number(*c)
+            }
+        }
+        Expr::Param(i) => names.param(*i),
+        Expr::State(i) => names.state(*i),
+        Expr::Time => "t".to_string(),
+        Expr::Neg(a) => format!("−{}", wrap(a, 3)),
+        Expr::Add(a, b) => format!("{} + {}", wrap(a, 1), wrap(b, 1)),
+        Expr::Sub(a, b) => format!("{} − {}", wrap(a, 1), wrap(b, 2)),
+        Expr::Mul(a, b) => format!("{}·{}", wrap(a, 2), wrap(b, 2)),
+        Expr::Div(a, b) => format!("{}/{}", wrap(a, 2), wrap(b, 3)),
+        Expr::Pow(a, b) => format!("{}^{}", wrap(a, 5), wrap(b, 5)),
+        Expr::Call(f, args) => {
+            let inner: Vec<String> = args.iter().map(|a| show_expr(a, names)).collect();
+            format!("{}({})", f.name(), inner.join(", "))
+        }
+        Expr::Invalid => "?".to_string(),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn p(i: usize) -> Box<Expr> {
+        Box::new(Expr::Param(i))
+    }
+    fn x(i: usize) -> Box<Expr> {
+        Box::new(Expr::State(i))
+    }
+
+    #[test]
+    fn mean_reverting_drift_expands_to_affine() {
+        // kappa * (level - r) = kappa·level − kappa·r
+        let drift = Expr::Mul(p(0), Box::new(Expr::Sub(p(1), x(0))));
+        let poly = to_poly(&drift).expect("polynomial");
+        assert_eq!(poly.state_degree(), 1);
+        let slope = poly.coefficient_of(0, 1);
+        assert_eq!(slope, Poly::atom(Atom::Param(0)).neg());
+        let intercept = poly.coefficient_of(0, 0);
+        assert_eq!(
+            intercept,
+            Poly::atom(Atom::Param(0)).mul(&Poly::atom(Atom::Param(1)))
+        );
+        // level = intercept / (−slope) cancels kappa exactly.
+        let level = intercept.divide_by_term(&slope.neg()).expect("divisible");
+        assert_eq!(level, Poly::atom(Atom::Param(1)));
+    }
+
+    #[test]
+    fn equal_expressions_normalise_equally() {
+        // (a + x)² and a² + 2·a·x + x²
+        let square = Expr::Pow(
+            Box::new(Expr::Add(p(0), x(0))),
+            Box::new(Expr::Const(2.0)),
+        );
+        let expanded = Expr::Add(
+            Box::new(Expr::Add(
+                Box::new(Expr::Mul(p(0), p(0))),
+                Box::new(Expr::Mul(
+                    Box::new(Expr::Const(2.0)),
+                    Box::new(Expr::Mul(p(0), x(0))),
+                )),
+            )),
+            Box::new(Expr::Mul(x(0), x(0))),
+        );
+        assert_eq!(to_poly(&square), to_poly(&expanded));
+    }
+
+    #[test]
+    fn square_root_forms_are_recognised() {
+        // vol * sqrt(r), sqrt(vol^2 * r) and sqrt(r) * vol all square to vol²·r.
+        let a = Expr::Mul(p(0), Box::new(Expr::Call(Function::Sqrt, vec![Expr::State(0)])));
+        let b = Expr::Call(
+            Function::Sqrt,
+            vec![Expr::Mul(
+                Box::new(Expr::Pow(p(0), Box::new(Expr::Const(2.0)))),
+                x(0),
+            )],
+        );
+        let c = Expr::Mul(Box::new(Expr::Call(Function::Sqrt, vec![Expr::State(0)])), p(0));
+        let expected = Poly::atom(Atom::Param(0))
+            .mul(&Poly::atom(Atom::Param(0)))
+            .mul(&Poly::atom(Atom::State(0)));
+        for e in [a, b, c] {
+            let root = to_root_form(&e).expect("root form");
+            assert!(!root.is_polynomial());
+            assert_eq!(root.square(), expected);
+        }
+    }
+
+    #[test]
+    fn state_inside_a_function_is_not_polynomial() {
+        let e = Expr::Call(Function::Exp, vec![Expr::State(0)]);
+        let err = to_poly(&e).expect_err("exp of a state");
+        assert_eq!(err.piece, e);
+        // but a function of parameters and t is an opaque coefficient
+        let g = Expr::Mul(
+            Box::new(Expr::Call(Function::Sin, vec![Expr::Time])),
+            x(0),
+        );
+        let poly = to_poly(&g).expect("polynomial");
+        assert!(poly.depends_on_time());
+        assert_eq!(poly.state_degree(), 1);
+    }
+
+    #[test]
+    fn evaluation_matches_the_expression() {
+        let e = Expr::Div(
+            Box::new(Expr::Mul(p(0), Box::new(Expr::Sub(p(1), x(0))))),
+            Box::new(Expr::Add(p(2), Box::new(Expr::Const(1.0)))),
+        );
+        let poly = to_poly(&e).expect("polynomial");
+        let params = [1.5, 0.03, 2.0];
+        let states = [0.05];
+        let direct = e.eval(&params, &states, 0.0);
+        assert!((poly.eval(&params, &states, 0.0) - direct).abs() < 1e-15);
+    }
+}

@@ -1,0 +1,421 @@
+//! Readable formulas (Unicode math with the model's own names) for `sdeck moments`.
+
+use crate::algebra::{show_poly, Names, Poly};
+use crate::shape::{correlation, noise_name, OneState};
+use crate::{Analysis, Family, Formulas};
+use sdeck_semantics::Model;
+
+struct Writer<'a> {
+    names: Names<'a>,
+    model: &'a Model,
+    state: String,
+}
+
+impl<'a> Writer<'a> {
+    fn new(model: &'a Model, state: usize) -> Writer<'a> {
+        Writer {
+            names: Names { model },
+            model,
+            state: model
+                .states
+                .get(state)
+                .map(|s| s.name.clone())
+                .unwrap_or_else(|| "x".to_string()),
+        }
+    }
+
+    fn show(&self, p: &Poly) -> String {
+        show_poly(p, &self.names)
+    }
+
+    /// As a factor: parenthesised when it is a sum or starts with a minus.
+    fn factor(&self, p: &Poly) -> String {
+        let text = self.show(p);
+        if p.terms.len() > 1 || text.starts_with('−') {
+            format!("({text})")
+        } else {
+            text
+        }
+    }
+
+    /// As a denominator: parenthesised unless a single name or number.
+    fn denominator(&self, p: &Poly) -> String {
+        let text = self.show(p);
+        if text.chars().any(|c| matches!(c, '·' | ' ' | '/' | '−')) {
+            format!("({text})")
+        } else {
+            text
+        }
+    }
+
+    /// `p·var`, with `p = 1` and `p = −1` simplified.
+    fn times(&self, p: &Poly, var: &str) -> String {
+        if p.is_one() {
+            return var.to_string();
+        }
+        if p.neg().is_one() {
+            return format!("−{var}");
+        }
+        if p.terms.len() == 1 {
+            format!("{}·{var}", self.show(p))
+        } else {
+            format!("({})·{var}", self.show(p))
+        }
+    }
+
+    fn exp(&self, p: &Poly, var: &str) -> String {
+        format!("e^({})", self.times(p, var))
+    }
+
+    /// `num / den`, cancelling a single-term denominator when possible.
+    fn ratio(&self, num: &Poly, den: &Poly) -> String {
+        if let Some(q) = num.divide_by_term(den) {
+            return self.show(&q);
+        }
+        format!("{}/{}", self.factor(num), self.denominator(den))
+    }
+
+    fn ratio_poly(&self, num: &Poly, den: &Poly) -> Option<Poly> {
+        num.divide_by_term(den)
+    }
+
+    fn at(&self, time: &str) -> String {
+        format!("{}({time})", self.state)
+    }
+
+    fn start(&self) -> String {
+        format!("{}₀", self.state)
+    }
+
+    /// Σ_k c_k·(integrand) dW_k, one summand per noise term.
+    fn noise_sum(&self, terms: &[(usize, Poly, Poly)], integrand: &dyn Fn(&Poly) -> String) -> String {
+        terms
+            .iter()
+            .filter(|(_, c, _)| !c.is_zero())
+            .map(|(noise, c, _)| {
+                let body = integrand(c);
+                format!("{body} d{}(s)", noise_name(self.model, *noise))
+            })
+            .collect::<Vec<_>>()
+            .join(" + ")
+    }
+}
+
+/// A level printed as a factor.
+fn wrap_level(text: &str) -> String {
+    if text.contains(' ') || text.starts_with('−') {
+        format!("({text})")
+    } else {
+        text.to_string()
+    }
+}
+
+/// The stationary law, as text.
+pub(crate) fn stationary_law(model: &Model, os: &OneState, family: Family) -> String {
+    let w = Writer::new(model, os.state);
+    let minus_b = os.b.neg();
+    match family {
+        Family::OrnsteinUhlenbeck => format!(
+            "Normal({}, {})",
+            w.ratio(&os.a, &minus_b),
+            w.ratio(&os.alpha, &os.b.scale(-2.0))
+        ),
+        Family::SquareRoot => format!(
+            "Gamma(shape {}, scale {})",
+            w.ratio(&os.a.scale(2.0), &os.beta),
+            w.ratio(&os.beta, &os.b.scale(-2.0))
+        ),
+        _ => "no named law: mean −a/b and variance −(α + β·m + γ·m²)/(2b + γ) of the \
+              moment equations"
+            .to_string(),
+    }
+}
+
+/// `L + (x₀ − L)·e^(b·t)` or `x₀·e^(b·t)` when the level is zero.
+fn reverting_mean(w: &Writer, os: &OneState, start: &str, elapsed: &str) -> String {
+    let growth = w.exp(&os.b, elapsed);
+    if os.a.is_zero() {
+        return format!("{start}·{growth}");
+    }
+    match w.ratio_poly(&os.a, &os.b.neg()) {
+        Some(level) => {
+            let level_text = w.show(&level);
+            let wrapped = w.factor(&level);
+            format!("{level_text} + ({start} − {wrapped})·{growth}")
+        }
+        None => format!(
+            "{start}·{growth} + {}·({growth} − 1)/{}",
+            w.factor(&os.a),
+            w.denominator(&os.b)
+        ),
+    }
+}
+
+pub(crate) fn one_state(model: &Model, os: &OneState, family: Family) -> Formulas {
+    let w = Writer::new(model, os.state);
+    let x_t = w.at("t");
+    let x_s = w.at("s");
+    let x0 = w.start();
+    let empty = Vec::new();
+    let terms = os.affine_terms.as_ref().unwrap_or(&empty);
+    match family {
+        Family::ArithmeticBrownian => {
+            let drift = if os.a.is_zero() {
+                String::new()
+            } else {
+                format!(" + {}", w.times(&os.a, "t"))
+            };
+            let noise = terms
+                .iter()
+                .filter(|(_, c, _)| !c.is_zero())
+                .map(|(k, c, _)| w.times(c, &format!("{}(t)", noise_name(model, *k))))
+                .collect::<Vec<_>>()
+                .join(" + ");
+            let noise = if noise.is_empty() {
+                String::new()
+            } else {
+                format!(" + {noise}")
+            };
+            Formulas {
+                solution: Some(format!("{x_t} = {x0}{drift}{noise}")),
+                mean: Some(format!("E[{x_t}] = {x0}{drift}")),
+                variance: Some(format!("Var[{x_t}] = {}", w.times(&os.alpha, "t"))),
+                autocovariance: Some(format!(
+                    "Cov({x_s}, {x_t}) = {}, s ≤ t",
+                    w.times(&os.alpha, "s")
+                )),
+                stationary: None,
+                transition: Some(format!(
+                    "{x_t} | {x_s} ~ Normal({x_s} + {}, {})",
+                    w.times(&os.a, "(t − s)"),
+                    w.times(&os.alpha, "(t − s)")
+                )),
+            }
+        }
+        Family::OrnsteinUhlenbeck => {
+            let mean = reverting_mean(&w, os, &x0, "t");
+            let noise = w.noise_sum(terms, &|c| {
+                format!("{}·∫₀ᵗ {}", w.factor(c), w.exp(&os.b, "(t − s)"))
+            });
+            let two_b = os.b.scale(2.0);
+            let minus_two_b = os.b.scale(-2.0);
+            let alpha = w.factor(&os.alpha);
+            Formulas {
+                solution: Some(format!("{x_t} = {mean} + {noise}")),
+                mean: Some(format!("E[{x_t}] = {mean}")),
+                variance: Some(format!(
+                    "Var[{x_t}] = {alpha}·(1 − {})/{}",
+                    w.exp(&two_b, "t"),
+                    w.denominator(&minus_two_b)
+                )),
+                autocovariance: Some(format!(
+                    "Cov({x_s}, {x_t}) = {alpha}·({} − {})/{}, s ≤ t",
+                    w.exp(&os.b, "(t − s)"),
+                    w.exp(&os.b, "(t + s)"),
+                    w.denominator(&minus_two_b)
+                )),
+                stationary: Some(stationary_law(model, os, family)),
+                transition: Some(format!(
+                    "{x_t} | {x_s} ~ Normal({}, {alpha}·(1 − {})/{})",
+                    reverting_mean(&w, os, &x_s, "(t − s)"),
+                    w.exp(&two_b, "(t − s)"),
+                    w.denominator(&minus_two_b)
+                )),
+            }
+        }
+        Family::GeometricBrownian => {
+            let log_drift = os.b.sub(&os.gamma.scale(0.5));
+            let noise = terms
+                .iter()
+                .filter(|(_, _, d)| !d.is_zero())
+                .map(|(k, _, d)| w.times(d, &format!("{}(t)", noise_name(model, *k))))
+                .collect::<Vec<_>>()
+                .join(" + ");
+            let gamma = w.factor(&os.gamma);
+            Formulas {
+                solution: Some(format!(
+                    "{x_t} = {x0}·e^({} + {noise})",
+                    w.times(&log_drift, "t")
+                )),
+                mean: Some(format!("E[{x_t}] = {x0}·{}", w.exp(&os.b, "t"))),
+                variance: Some(format!(
+                    "Var[{x_t}] = {x0}²·{}·({} − 1)",
+                    w.exp(&os.b.scale(2.0), "t"),
+                    w.exp(&os.gamma, "t")
+                )),
+                autocovariance: Some(format!(
+                    "Cov({x_s}, {x_t}) = {x0}²·{}·({} − 1), s ≤ t",
+                    w.exp(&os.b, "(s + t)"),
+                    w.exp(&os.gamma, "s")
+                )),
+                stationary: None,
+                transition: Some(format!(
+                    "log {x_t} | {x_s} ~ Normal(log {x_s} + {}, {gamma}·(t − s))",
+                    w.times(&log_drift, "(t − s)")
+                )),
+            }
+        }
+        Family::SquareRoot => {
+            let minus_b = os.b.neg();
+            let beta = w.factor(&os.beta);
+            let level = w.ratio(&os.a, &minus_b);
+            Formulas {
+                solution: None,
+                mean: Some(format!("E[{x_t}] = {}", reverting_mean(&w, os, &x0, "t"))),
+                variance: Some(format!(
+                    "Var[{x_t}] = {x0}·{beta}·({} − {})/{} + {}·{beta}·(1 − {})²/{}",
+                    w.exp(&os.b, "t"),
+                    w.exp(&os.b.scale(2.0), "t"),
+                    w.denominator(&minus_b),
+                    wrap_level(&level),
+                    w.exp(&os.b, "t"),
+                    w.denominator(&os.b.scale(-2.0)),
+                )),
+                autocovariance: Some(format!(
+                    "Cov({x_s}, {x_t}) = Var[{x_s}]·{}, s ≤ t",
+                    w.exp(&os.b, "(t − s)")
+                )),
+                stationary: Some(stationary_law(model, os, family)),
+                transition: Some(format!(
+                    "2c·{x_t} | {x_s} ~ noncentral χ²(degrees {}, noncentrality 2c·{x_s}·{}), \
+                     c = {}/({beta}·(1 − {}))",
+                    w.ratio(&os.a.scale(4.0), &os.beta),
+                    w.exp(&os.b, "(t − s)"),
+                    w.factor(&os.b.scale(-2.0)),
+                    w.exp(&os.b, "(t − s)")
+                )),
+            }
+        }
+        Family::Linear | Family::Polynomial => linear_formulas(&w, os, family, terms),
+        Family::LinearSystem | Family::General => Formulas::default(),
+    }
+}
+
+fn linear_formulas(
+    w: &Writer,
+    os: &OneState,
+    family: Family,
+    terms: &[(usize, Poly, Poly)],
+) -> Formulas {
+    let x_t = w.at("t");
+    let x_s = w.at("s");
+    let x0 = w.start();
+    let (a, b) = (w.show(&os.a), w.show(&os.b));
+    let growth_from = |from: &str| {
+        if os.b.depends_on_time() {
+            format!("e^(∫{from}ᵗ ({b}) du)")
+        } else {
+            w.exp(&os.b, &format!("(t − {})", from.trim_end_matches('₀')))
+                .replace("(t − 0)", "t")
+        }
+    };
+    let multiplicative = terms.iter().any(|(_, _, d)| !d.is_zero());
+    let solution = if family == Family::Linear && !multiplicative {
+        let noise = w.noise_sum(terms, &|c| format!("∫₀ᵗ {}·{}", growth_from("s"), w.factor(c)));
+        let noise = if noise.is_empty() {
+            String::new()
+        } else {
+            format!(" + {noise}")
+        };
+        Some(format!(
+            "{x_t} = {}·{x0} + ∫₀ᵗ {}·({a}) ds{noise}",
+            growth_from("₀"),
+            growth_from("s")
+        ))
+    } else if family == Family::Linear {
+        // Kloeden & Platen 1992, §4.2, eq. (2.4): the fundamental solution Φ.
+        let corr = w.model.correlation_matrix();
+        let mut cross = Poly::zero();
+        for (k, c, _) in terms {
+            for (l, _, d) in terms {
+                let rho = correlation(&corr, *k, *l);
+                cross = cross.add(&c.mul(d).scale(rho));
+            }
+        }
+        let phi_noise = terms
+            .iter()
+            .filter(|(_, _, d)| !d.is_zero())
+            .map(|(k, _, d)| format!("∫₀ᵗ {} d{}", w.factor(d), noise_name(w.model, *k)))
+            .collect::<Vec<_>>()
+            .join(" + ");
+        let additive = terms
+            .iter()
+            .filter(|(_, c, _)| !c.is_zero())
+            .map(|(k, c, _)| format!(" + ∫₀ᵗ Φ(s)⁻¹·{} d{}(s)", w.factor(c), noise_name(w.model, *k)))
+            .collect::<String>();
+        Some(format!(
+            "{x_t} = Φ(t)·({x0} + ∫₀ᵗ Φ(s)⁻¹·({}) ds{additive}), Φ(t) = exp(∫₀ᵗ ({}) du + {phi_noise})",
+            w.show(&os.a.sub(&cross)),
+            w.show(&os.b.sub(&os.gamma.scale(0.5)))
+        ))
+    } else {
+        None
+    };
+    let mean = if os.time_dependent {
+        format!("m′(t) = {a} + {}, m(0) = {x0}", w.times(&os.b, "m(t)"))
+    } else {
+        format!(
+            "E[{x_t}] = {x0}·{} + {}·({} − 1)/{}",
+            w.exp(&os.b, "t"),
+            w.factor(&os.a),
+            w.exp(&os.b, "t"),
+            w.denominator(&os.b)
+        )
+    };
+    let variance = format!(
+        "v′(t) = {} + {}·m(t) + {}·m(t)² + ({})·v(t), v(0) = 0",
+        w.show(&os.alpha),
+        w.factor(&os.beta),
+        w.factor(&os.gamma),
+        w.show(&os.b.scale(2.0).add(&os.gamma))
+    );
+    let stationary = (!os.time_dependent).then(|| stationary_law(w.model, os, family));
+    Formulas {
+        solution,
+        mean: Some(mean),
+        variance: Some(variance),
+        autocovariance: Some(format!(
+            "Cov({x_s}, {x_t}) = Var[{x_s}]·{}, s ≤ t",
+            growth_from("s")
+        )),
+        stationary,
+        transition: None,
+    }
+}
+
+/// Formulas of a state that is part of a coupled system.
+pub(crate) fn coupled(model: &Model, analysis: &Analysis, state: usize, family: Family) -> Formulas {
+    let w = Writer::new(model, state);
+    let _ = analysis;
+    let x = &w.state;
+    match family {
+        Family::LinearSystem => Formulas {
+            solution: Some(format!(
+                "X(t) = e^(A·t)·X₀ + ∫₀ᵗ e^(A·(t − s))·b ds + ∫₀ᵗ e^(A·(t − s))·L dW(s), \
+                 {x} its component"
+            )),
+            mean: Some(format!("E[X(t)] = e^(A·t)·X₀ + ∫₀ᵗ e^(A·s)·b ds, {x} its component")),
+            variance: Some(format!(
+                "Cov[X(t)] = ∫₀ᵗ e^(A·s)·L·R·Lᵀ·e^(Aᵀ·s) ds (Van Loan), entry ({x}, {x})"
+            )),
+            autocovariance: Some(format!(
+                "Cov(X(s), X(t)) = Cov[X(s)]·e^(Aᵀ·(t − s)), s ≤ t, entry ({x}, {x})"
+            )),
+            stationary: Some("Normal(−A⁻¹·b, P) with A·P + P·Aᵀ + L·R·Lᵀ = 0".to_string()),
+            transition: None,
+        },
+        Family::Polynomial => Formulas {
+            mean: Some(format!(
+                "first and second moments of ({}) from their linear moment equations",
+                model
+                    .states
+                    .iter()
+                    .map(|s| s.name.as_str())
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            )),
+            ..Formulas::default()
+        },
+        _ => Formulas::default(),
+    }
+}

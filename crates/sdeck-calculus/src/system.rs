@@ -1,0 +1,449 @@
+//! Derivations and figures of whole models: decoupled states through `one_state`,
+//! coupled states and cross-covariances through the engines for several states.
+
+use crate::algebra::Poly;
+use crate::linear_system::{eigenvalues, AffineGaussian};
+use crate::one_state::{self, phi};
+use crate::shape::{correlation, noise_name, OneState};
+use crate::{
+    formulas, ode, Analysis, Derivation, Family, LinearCoefficients, Method, Moments,
+    SquareRootParams, StateLaw, Stationary,
+};
+use nalgebra::{DMatrix, DVector};
+use sdeck_semantics::Model;
+use statrs::distribution::{ContinuousCDF, Normal};
+
+pub(crate) fn derive(model: &Model, analysis: &Analysis) -> Derivation {
+    let n = model.states.len();
+    let mut states = Vec::with_capacity(n);
+    let params = &analysis.params;
+    let system = &analysis.system;
+    let system_engine = linear_engine(model, analysis);
+    let stationary_system = system_engine.as_ref().and_then(|engine| {
+        Some((engine.stationary_mean()?, engine.stationary_covariance()?))
+    });
+    for (i, classified) in analysis.classified.iter().enumerate() {
+        if let Some((os, family)) = analysis.one_state(i) {
+            states.push(one_state_law(model, analysis, i, os, family));
+            continue;
+        }
+        let coupled = !classified.depends_on.is_empty()
+            && classified.reason.starts_with("the equation of");
+        let (family, reason, method) = if coupled && system.family != Family::General {
+            let method = match (system.family, system.time_dependent) {
+                (Family::LinearSystem, false) => Method::ClosedForm,
+                (Family::LinearSystem, true) => Method::MomentEquations,
+                (Family::Polynomial, _) => Method::MomentEquations,
+                _ => Method::None,
+            };
+            (
+                system.family,
+                format!("{}; {}", classified.reason, system.reason),
+                method,
+            )
+        } else if coupled {
+            (
+                Family::General,
+                format!("{}; {}", classified.reason, system.reason),
+                Method::None,
+            )
+        } else {
+            (Family::General, classified.reason.clone(), Method::None)
+        };
+        let stationary = if family == Family::LinearSystem {
+            stationary_system.as_ref().and_then(|(mean, covariance)| {
+                Some(Stationary {
+                    mean: *mean.get(i)?,
+                    variance: *covariance.get((i, i))?,
+                    law: "Normal (marginal of the stationary law of the linear system)"
+                        .to_string(),
+                })
+            })
+        } else {
+            None
+        };
+        let formulas = formulas::coupled(model, analysis, i, family);
+        states.push(StateLaw {
+            family,
+            reason,
+            method,
+            formulas,
+            half_life: None,
+            stationary,
+            linear: None,
+            square_root: None,
+            depends_on: classified.depends_on.clone(),
+        });
+    }
+    let drift_matrix = system.drift_rows.as_ref().and_then(|rows| {
+        let constant = rows
+            .iter()
+            .all(|(coefficients, _)| coefficients.iter().all(|c| !c.depends_on_time()));
+        constant.then(|| {
+            rows.iter()
+                .map(|(coefficients, _)| {
+                    coefficients
+                        .iter()
+                        .map(|c| c.value(params, 0.0))
+                        .collect::<Vec<f64>>()
+                })
+                .collect::<Vec<_>>()
+        })
+    });
+    let drift_eigenvalues = drift_matrix.as_ref().and_then(|rows| {
+        let size = rows.len();
+        if size == 0 || rows.iter().flatten().any(|v| !v.is_finite()) {
+            return None;
+        }
+        let matrix = DMatrix::from_fn(size, size, |r, c| {
+            rows.get(r).and_then(|row| row.get(c)).copied().unwrap_or(0.0)
+        });
+        Some(eigenvalues(&matrix))
+    });
+    Derivation {
+        states,
+        system_family: system.family,
+        system_reason: system.reason.clone(),
+        drift_matrix,
+        drift_eigenvalues,
+    }
+}
+
+fn one_state_law(
+    model: &Model,
+    analysis: &Analysis,
+    index: usize,
+    os: &OneState,
+    family: Family,
+) -> StateLaw {
+    let params = &analysis.params;
+    let values = os.values(params, 0.0);
+    let method = if os.time_dependent {
+        if os.state_dependent_noise() {
+            Method::MomentEquations
+        } else {
+            Method::Quadrature
+        }
+    } else if matches!(family, Family::Linear | Family::Polynomial) && os.state_dependent_noise()
+    {
+        Method::MomentEquations
+    } else {
+        Method::ClosedForm
+    };
+    let mean_reverting_family = matches!(
+        family,
+        Family::OrnsteinUhlenbeck | Family::SquareRoot | Family::Linear | Family::Polynomial
+    );
+    let half_life = (mean_reverting_family && !os.time_dependent && values.b < 0.0)
+        .then(|| std::f64::consts::LN_2 / values.b.abs());
+    let stationary = if mean_reverting_family {
+        one_state::stationary(os, params).map(|(mean, variance)| Stationary {
+            mean,
+            variance,
+            law: formulas::stationary_law(model, os, family),
+        })
+    } else {
+        None
+    };
+    let linear = match (&os.affine_terms, os.time_dependent) {
+        (Some(terms), false) => Some(LinearCoefficients {
+            a: values.a,
+            b: values.b,
+            c: terms
+                .iter()
+                .filter(|(_, c, _)| !c.is_zero())
+                .map(|(noise, c, _)| (*noise, c.value(params, 0.0)))
+                .collect(),
+            d: terms
+                .iter()
+                .filter(|(_, _, d)| !d.is_zero())
+                .map(|(noise, _, d)| (*noise, d.value(params, 0.0)))
+                .collect(),
+        }),
+        _ => None,
+    };
+    let square_root = (family == Family::SquareRoot).then(|| {
+        let speed = -values.b;
+        let noise = model
+            .states
+            .get(index)
+            .and_then(|s| s.equation.as_ref())
+            .and_then(|e| e.diffusion.first())
+            .map(|d| d.noise)
+            .unwrap_or(0);
+        SquareRootParams {
+            speed,
+            level: values.a / speed,
+            vol: values.beta.max(0.0).sqrt(),
+            noise,
+        }
+    });
+    StateLaw {
+        family,
+        reason: analysis
+            .classified
+            .get(index)
+            .map(|c| c.reason.clone())
+            .unwrap_or_default(),
+        method,
+        formulas: formulas::one_state(model, os, family),
+        half_life,
+        stationary,
+        linear,
+        square_root,
+        depends_on: Vec::new(),
+    }
+}
+
+/// The affine Gaussian engine for a linear system with constant coefficients.
+pub(crate) fn linear_engine(model: &Model, analysis: &Analysis) -> Option<AffineGaussian> {
+    let system = &analysis.system;
+    if system.family != Family::LinearSystem || system.time_dependent {
+        return None;
+    }
+    let (a, b, loadings) = linear_matrices(model, analysis, 0.0)?;
+    let m = model.noises.len();
+    let corr = DMatrix::from_fn(m, m, |k, l| correlation(&analysis.corr, k, l));
+    AffineGaussian::new(a, b, loadings, corr).ok()
+}
+
+/// A, b and the loadings L of a linear system at time `t`.
+fn linear_matrices(
+    model: &Model,
+    analysis: &Analysis,
+    t: f64,
+) -> Option<(DMatrix<f64>, DVector<f64>, DMatrix<f64>)> {
+    let rows = analysis.system.drift_rows.as_ref()?;
+    let loads = analysis.system.loadings.as_ref()?;
+    let n = model.states.len();
+    let m = model.noises.len();
+    let params = &analysis.params;
+    let value = |p: Option<&Poly>| p.map(|p| p.value(params, t)).unwrap_or(0.0);
+    let a = DMatrix::from_fn(n, n, |r, c| value(rows.get(r).and_then(|(cs, _)| cs.get(c))));
+    let b = DVector::from_fn(n, |r, _| value(rows.get(r).map(|(_, k)| k)));
+    let loadings = DMatrix::from_fn(n, m, |r, k| value(loads.get(r).and_then(|l| l.get(k))));
+    Some((a, b, loadings))
+}
+
+/// Mean vector and covariance matrix of a linear system with time-dependent
+/// coefficients, by integrating m' = A m + b and P' = A P + P Aᵀ + L R Lᵀ.
+fn integrate_linear_system(
+    model: &Model,
+    analysis: &Analysis,
+    t: f64,
+) -> Option<(DVector<f64>, DMatrix<f64>)> {
+    let n = model.states.len();
+    let m = model.noises.len();
+    let corr = DMatrix::from_fn(m, m, |k, l| correlation(&analysis.corr, k, l));
+    let derivative = |s: f64, y: &[f64], dy: &mut [f64]| {
+        let Some((a, b, loadings)) = linear_matrices(model, analysis, s) else {
+            dy.iter_mut().for_each(|v| *v = f64::NAN);
+            return;
+        };
+        let mean = DVector::from_fn(n, |r, _| y.get(r).copied().unwrap_or(f64::NAN));
+        let cov = DMatrix::from_fn(n, n, |r, c| y.get(n + r * n + c).copied().unwrap_or(f64::NAN));
+        let dm = &a * &mean + &b;
+        let dp = &a * &cov + &cov * a.transpose() + &loadings * &corr * loadings.transpose();
+        for (r, v) in dm.iter().enumerate() {
+            if let Some(slot) = dy.get_mut(r) {
+                *slot = *v;
+            }
+        }
+        for r in 0..n {
+            for c in 0..n {
+                if let (Some(slot), Some(v)) = (dy.get_mut(n + r * n + c), dp.get((r, c))) {
+                    *slot = *v;
+                }
+            }
+        }
+    };
+    let mut start = model.initial_values();
+    start.extend(std::iter::repeat_n(0.0, n * n));
+    let end = ode::integrate(derivative, &start, 0.0, t, 1e-11, 1e-300).ok()?;
+    let mean = DVector::from_fn(n, |r, _| end.get(r).copied().unwrap_or(f64::NAN));
+    let cov = DMatrix::from_fn(n, n, |r, c| end.get(n + r * n + c).copied().unwrap_or(f64::NAN));
+    Some((mean, cov))
+}
+
+pub(crate) fn moments_at(
+    model: &Model,
+    derivation: &Derivation,
+    analysis: &Analysis,
+    t: f64,
+) -> Moments {
+    let n = model.states.len();
+    let params = &analysis.params;
+    let x0 = model.initial_values();
+    let mut mean = vec![None; n];
+    let mut variance = vec![None; n];
+    let mut method = vec![Method::None; n];
+    let mut covariance = vec![vec![None; n]; n];
+    let valid_time = t.is_finite() && t >= 0.0;
+    for i in 0..n {
+        if let Some((os, family)) = analysis.one_state(i) {
+            let start = x0.get(i).copied().unwrap_or(f64::NAN);
+            if let Some(mv) = one_state::mean_variance(os, family, params, start, t) {
+                mean[i] = Some(mv.mean);
+                variance[i] = Some(mv.variance);
+                method[i] = mv.method;
+            }
+        }
+    }
+    // Several states: the system engines give what the one-state forms cannot.
+    let system_figures = if valid_time && analysis.system.family == Family::LinearSystem {
+        if let Some(engine) = linear_engine(model, analysis) {
+            let start = DVector::from_vec(x0.clone());
+            Some((
+                engine.mean_at(&start, t),
+                engine.covariance_at(t),
+                Method::ClosedForm,
+            ))
+        } else if analysis.system.time_dependent {
+            integrate_linear_system(model, analysis, t)
+                .map(|(m, p)| (m, p, Method::MomentEquations))
+        } else {
+            None
+        }
+    } else {
+        None
+    };
+    if let Some((system_mean, system_cov, system_method)) = &system_figures {
+        for i in 0..n {
+            if mean[i].is_none() {
+                mean[i] = system_mean.get(i).copied().filter(|v| v.is_finite());
+                variance[i] = system_cov.get((i, i)).copied().filter(|v| v.is_finite());
+                if mean[i].is_some() {
+                    method[i] = *system_method;
+                }
+            }
+            for j in 0..n {
+                if i != j {
+                    covariance[i][j] = system_cov.get((i, j)).copied().filter(|v| v.is_finite());
+                }
+            }
+        }
+    }
+    for i in 0..n {
+        covariance[i][i] = variance[i];
+        for j in 0..n {
+            if i == j || covariance[i][j].is_some() {
+                continue;
+            }
+            covariance[i][j] = pair_covariance(analysis, &x0, i, j, t);
+        }
+    }
+    let _ = derivation;
+    let exact = method.iter().map(|m| *m != Method::None).collect();
+    Moments {
+        at: t,
+        mean,
+        variance,
+        covariance,
+        exact,
+        method,
+    }
+}
+
+/// Cov(X_t, Y_t) of two decoupled states with affine noise and constant coefficients:
+/// K' = (b₁ + b₂ + Σρ d₁d₂) K + Σ_kl ρ_kl (c₁ₖ + d₁ₖ m₁)(c₂ₗ + d₂ₗ m₂), K(0) = 0
+/// (Itô's product rule; Kloeden & Platen 1992, §4.2).
+fn pair_covariance(analysis: &Analysis, x0: &[f64], i: usize, j: usize, t: f64) -> Option<f64> {
+    if !(t.is_finite() && t >= 0.0) {
+        return None;
+    }
+    let (first, _) = analysis.one_state(i)?;
+    let (second, _) = analysis.one_state(j)?;
+    if first.time_dependent || second.time_dependent {
+        return None;
+    }
+    let terms_first = first.affine_terms.as_ref()?;
+    let terms_second = second.affine_terms.as_ref()?;
+    let params = &analysis.params;
+    let v1 = first.values(params, 0.0);
+    let v2 = second.values(params, 0.0);
+    let x1 = x0.get(i).copied()?;
+    let x2 = x0.get(j).copied()?;
+    let mut cross_constant = 0.0;
+    let mut cross_first = Vec::new();
+    let mut q = 0.0;
+    for (k, c1, d1) in terms_first {
+        for (l, c2, d2) in terms_second {
+            let rho = correlation(&analysis.corr, *k, *l);
+            if rho == 0.0 {
+                continue;
+            }
+            let (c1, d1, c2, d2) = (
+                c1.value(params, 0.0),
+                d1.value(params, 0.0),
+                c2.value(params, 0.0),
+                d2.value(params, 0.0),
+            );
+            cross_constant += rho * c1 * c2;
+            q += rho * d1 * d2;
+            cross_first.push((rho, c1, d1, c2, d2));
+        }
+    }
+    let rate = v1.b + v2.b + q;
+    let state_dependent = cross_first
+        .iter()
+        .any(|(_, _, d1, _, d2)| *d1 != 0.0 || *d2 != 0.0);
+    if !state_dependent {
+        return Some(cross_constant * phi(rate, t));
+    }
+    let m1 = |s: f64| x1 * (v1.b * s).exp() + v1.a * phi(v1.b, s);
+    let m2 = |s: f64| x2 * (v2.b * s).exp() + v2.a * phi(v2.b, s);
+    let source = |s: f64| {
+        let (a, b) = (m1(s), m2(s));
+        cross_first
+            .iter()
+            .map(|(rho, c1, d1, c2, d2)| rho * (c1 + d1 * a) * (c2 + d2 * b))
+            .sum::<f64>()
+    };
+    let value = ode::quad(|s| (rate * (t - s)).exp() * source(s), 0.0, t, 1e-12).ok()?;
+    value.is_finite().then_some(value)
+}
+
+pub(crate) fn autocovariance(
+    model: &Model,
+    derivation: &Derivation,
+    analysis: &Analysis,
+    state: usize,
+    s: f64,
+    t: f64,
+) -> Option<f64> {
+    let _ = derivation;
+    let x0 = model.states.get(state)?.initial;
+    if let Some((os, family)) = analysis.one_state(state) {
+        return one_state::autocovariance(os, family, &analysis.params, x0, s, t);
+    }
+    let engine = linear_engine(model, analysis)?;
+    let (early, late) = if s <= t { (s, t) } else { (t, s) };
+    engine
+        .cross_covariance(early, late)
+        .get((state, state))
+        .copied()
+        .filter(|v| v.is_finite())
+}
+
+pub(crate) fn quantile(
+    model: &Model,
+    derivation: &Derivation,
+    analysis: &Analysis,
+    state: usize,
+    t: f64,
+    p: f64,
+) -> Option<f64> {
+    let x0 = model.states.get(state)?.initial;
+    if let Some((os, family)) = analysis.one_state(state) {
+        return one_state::quantile(os, family, &analysis.params, x0, t, p);
+    }
+    if analysis.system.family != Family::LinearSystem || !(p > 0.0 && p < 1.0) {
+        return None;
+    }
+    // A linear system with state-free noise is Gaussian.
+    let moments = moments_at(model, derivation, analysis, t);
+    let mean = (*moments.mean.get(state)?)?;
+    let variance = (*moments.variance.get(state)?)?;
+    let standard = Normal::new(0.0, 1.0).ok()?;
+    Some(mean + variance.max(0.0).sqrt() * standard.inverse_cdf(p))
+}
