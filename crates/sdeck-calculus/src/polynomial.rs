@@ -1,1 +1,682 @@
-//! Placeholder, filled by its owner.
+//! Exact moments of polynomial diffusions: affine drift μ(x) = b + A x and instantaneous
+//! covariance C(x) = Σ(x) R Σ(x)ᵀ with every entry at most quadratic in x.
+//!
+//! Such a generator maps polynomials of degree ≤ N to polynomials of degree ≤ N
+//! (Cuchiero, Keller-Ressel & Teichmann 2012, Finance and Stochastics 16, "Polynomial
+//! processes and their applications to mathematical finance"; Filipović & Larsson 2016,
+//! Annals of Applied Probability 26, "Polynomial diffusions and applications in finance",
+//! Theorem 3.1). Writing G for its matrix on the monomial basis, the vector of moments
+//! solves m' = G m, so E[X_t^α] = (e^{Gt} m(0))_α exactly.
+//!
+//! Pure numerics over `nalgebra`; nothing here knows the model language.
+
+use std::collections::HashMap;
+
+use nalgebra::{DMatrix, DVector};
+
+use crate::linear_system::{eigenvalues, matrix_exponential};
+
+/// Largest monomial basis (number of moments) the engine will build: the matrix
+/// exponential costs O(size³). C(n + 4, 4) stays below it up to n = 11 states at order 4.
+pub const MAX_BASIS_SIZE: usize = 1500;
+
+/// dX = (b + A X) dt + Σ(X) dW with C(x) = c0 + Σ_k x_k c1[k] + Σ_{k,l} x_k x_l c2[k][l].
+#[derive(Clone, Debug, PartialEq)]
+pub struct PolynomialSystem {
+    drift_constant: DVector<f64>,
+    drift_matrix: DMatrix<f64>,
+    covariance_constant: DMatrix<f64>,
+    covariance_linear: Vec<DMatrix<f64>>,
+    covariance_quadratic: Vec<Vec<DMatrix<f64>>>,
+}
+
+impl PolynomialSystem {
+    /// Builds the system from the drift b + A x and the covariance parts.
+    ///
+    /// `c1` has one n×n matrix per state, `c2` an n×n grid of n×n matrices; either may be
+    /// empty to mean zero. Only the symmetric part of each covariance matrix matters (the
+    /// generator contracts it with the symmetric Hessian). Errors name the first shape that
+    /// disagrees or the first non-finite coefficient.
+    pub fn new(
+        b: DVector<f64>,
+        a: DMatrix<f64>,
+        c0: DMatrix<f64>,
+        c1: Vec<DMatrix<f64>>,
+        c2: Vec<Vec<DMatrix<f64>>>,
+    ) -> Result<Self, String> {
+        let n = b.len();
+        let check_square = |matrix: &DMatrix<f64>, what: &str| -> Result<(), String> {
+            if matrix.nrows() != n || matrix.ncols() != n {
+                return Err(format!(
+                    "{what} is {}×{}, expected {n}×{n}",
+                    matrix.nrows(),
+                    matrix.ncols()
+                ));
+            }
+            if !matrix.iter().all(|v| v.is_finite()) {
+                return Err(format!("{what} has a non-finite entry"));
+            }
+            Ok(())
+        };
+        if !b.iter().all(|v| v.is_finite()) {
+            return Err("the constant drift has a non-finite entry".to_string());
+        }
+        check_square(&a, "the drift matrix")?;
+        check_square(&c0, "the constant covariance part")?;
+        let covariance_linear = if c1.is_empty() {
+            vec![DMatrix::zeros(n, n); n]
+        } else if c1.len() != n {
+            return Err(format!(
+                "{} linear covariance parts for {n} states",
+                c1.len()
+            ));
+        } else {
+            for (k, matrix) in c1.iter().enumerate() {
+                check_square(matrix, &format!("the linear covariance part of state {k}"))?;
+            }
+            c1
+        };
+        let covariance_quadratic = if c2.is_empty() {
+            vec![vec![DMatrix::zeros(n, n); n]; n]
+        } else if c2.len() != n || c2.iter().any(|row| row.len() != n) {
+            return Err(format!(
+                "the quadratic covariance parts must form a {n}×{n} grid"
+            ));
+        } else {
+            for (k, row) in c2.iter().enumerate() {
+                for (l, matrix) in row.iter().enumerate() {
+                    check_square(
+                        matrix,
+                        &format!("the quadratic covariance part of states ({k}, {l})"),
+                    )?;
+                }
+            }
+            c2
+        };
+        Ok(PolynomialSystem {
+            drift_constant: b,
+            drift_matrix: a,
+            covariance_constant: c0,
+            covariance_linear,
+            covariance_quadratic,
+        })
+    }
+
+    /// Builds the system from loadings affine in the state, Σ(x) = s0 + Σ_k x_k s1[k]
+    /// (each n×m) and the m×m noise correlation R, expanding C = Σ R Σᵀ:
+    /// c0 = s0 R s0ᵀ, c1[k] = s0 R s1[k]ᵀ + s1[k] R s0ᵀ, c2[k][l] = s1[k] R s1[l]ᵀ.
+    /// `s1` may be empty to mean state-independent loadings.
+    pub fn from_affine_loadings(
+        b: DVector<f64>,
+        a: DMatrix<f64>,
+        s0: &DMatrix<f64>,
+        s1: &[DMatrix<f64>],
+        corr: &DMatrix<f64>,
+    ) -> Result<Self, String> {
+        let n = b.len();
+        let m = s0.ncols();
+        if s0.nrows() != n {
+            return Err(format!(
+                "the constant loadings have {} rows for {n} states",
+                s0.nrows()
+            ));
+        }
+        if corr.nrows() != m || corr.ncols() != m {
+            return Err(format!(
+                "the correlation matrix is {}×{} for {m} noises",
+                corr.nrows(),
+                corr.ncols()
+            ));
+        }
+        if !s1.is_empty() && s1.len() != n {
+            return Err(format!("{} linear loading parts for {n} states", s1.len()));
+        }
+        if let Some(k) = s1
+            .iter()
+            .position(|part| part.nrows() != n || part.ncols() != m)
+        {
+            return Err(format!(
+                "the linear loading part of state {k} is not {n}×{m}"
+            ));
+        }
+        let c0 = s0 * corr * s0.transpose();
+        let c1: Vec<DMatrix<f64>> = s1
+            .iter()
+            .map(|part| s0 * corr * part.transpose() + part * corr * s0.transpose())
+            .collect();
+        let c2: Vec<Vec<DMatrix<f64>>> = s1
+            .iter()
+            .map(|left| {
+                s1.iter()
+                    .map(|right| left * corr * right.transpose())
+                    .collect()
+            })
+            .collect();
+        PolynomialSystem::new(b, a, c0, c1, c2)
+    }
+
+    /// Number of states n.
+    pub fn dimension(&self) -> usize {
+        self.drift_constant.len()
+    }
+
+    /// The generator's matrix G on the monomials of degree ≤ `order`: for the monomial with
+    /// exponents α at position r, L x^α = Σ_s G[r, s] x^{β_s}, where
+    /// L f = Σ_i μ_i ∂_i f + ½ Σ_{i,j} C_ij ∂_i ∂_j f.
+    pub fn generator(&self, order: usize) -> Result<(MonomialBasis, DMatrix<f64>), String> {
+        let basis = MonomialBasis::new(self.dimension(), order)?;
+        let n = self.dimension();
+        let size = basis.len();
+        let mut generator = DMatrix::<f64>::zeros(size, size);
+        let mut shifted = vec![0u32; n];
+        let add = |row: usize, exponents: &[u32], value: f64, matrix: &mut DMatrix<f64>| {
+            if value != 0.0 {
+                if let Some(column) = basis.position(exponents) {
+                    matrix[(row, column)] += value;
+                }
+            }
+        };
+        for (row, alpha) in basis.iter().enumerate() {
+            // First-order part: α_i x^{α−e_i} (b_i + Σ_k A_ik x_k).
+            for i in 0..n {
+                if alpha[i] == 0 {
+                    continue;
+                }
+                let weight = f64::from(alpha[i]);
+                shifted.copy_from_slice(alpha);
+                shifted[i] -= 1;
+                add(
+                    row,
+                    &shifted,
+                    weight * self.drift_constant[i],
+                    &mut generator,
+                );
+                for k in 0..n {
+                    shifted[k] += 1;
+                    add(
+                        row,
+                        &shifted,
+                        weight * self.drift_matrix[(i, k)],
+                        &mut generator,
+                    );
+                    shifted[k] -= 1;
+                }
+            }
+            // Second-order part: ½ C_ij(x) ∂_i ∂_j x^α.
+            for i in 0..n {
+                for j in 0..n {
+                    let weight = if i == j {
+                        f64::from(alpha[i]) * (f64::from(alpha[i]) - 1.0)
+                    } else {
+                        f64::from(alpha[i]) * f64::from(alpha[j])
+                    };
+                    if weight == 0.0 {
+                        continue;
+                    }
+                    let half_weight = 0.5 * weight;
+                    shifted.copy_from_slice(alpha);
+                    shifted[i] -= 1;
+                    shifted[j] -= 1;
+                    add(
+                        row,
+                        &shifted,
+                        half_weight * self.covariance_constant[(i, j)],
+                        &mut generator,
+                    );
+                    for k in 0..n {
+                        shifted[k] += 1;
+                        add(
+                            row,
+                            &shifted,
+                            half_weight * self.covariance_linear[k][(i, j)],
+                            &mut generator,
+                        );
+                        for l in 0..n {
+                            shifted[l] += 1;
+                            add(
+                                row,
+                                &shifted,
+                                half_weight * self.covariance_quadratic[k][l][(i, j)],
+                                &mut generator,
+                            );
+                            shifted[l] -= 1;
+                        }
+                        shifted[k] -= 1;
+                    }
+                }
+            }
+        }
+        Ok((basis, generator))
+    }
+
+    /// Every moment E[X_t^α] with |α| ≤ `order`, from X_0 = x0. With bad input (x0 of the
+    /// wrong length or non-finite, t negative or not finite, a basis above
+    /// [`MAX_BASIS_SIZE`]) every value is NaN; [`Self::try_moments_at`] gives the reason.
+    pub fn moments_at(&self, x0: &DVector<f64>, t: f64, order: usize) -> MomentTable {
+        match self.try_moments_at(x0, t, order) {
+            Ok(table) => table,
+            Err(_) => MomentTable::not_available(self.dimension(), order),
+        }
+    }
+
+    /// As [`Self::moments_at`], with the reason when the moments cannot be computed.
+    pub fn try_moments_at(
+        &self,
+        x0: &DVector<f64>,
+        t: f64,
+        order: usize,
+    ) -> Result<MomentTable, String> {
+        let n = self.dimension();
+        if x0.len() != n {
+            return Err(format!(
+                "the initial state has {} entries for {n} states",
+                x0.len()
+            ));
+        }
+        if !x0.iter().all(|v| v.is_finite()) {
+            return Err("the initial state has a non-finite entry".to_string());
+        }
+        if !(t.is_finite() && t >= 0.0) {
+            return Err(format!(
+                "the time must be finite and non-negative (got {t})"
+            ));
+        }
+        let (basis, generator) = self.generator(order)?;
+        let initial = DVector::from_iterator(
+            basis.len(),
+            basis.iter().map(|alpha| {
+                alpha
+                    .iter()
+                    .zip(x0.iter())
+                    .map(|(&power, &value)| value.powi(power as i32))
+                    .product::<f64>()
+            }),
+        );
+        let values = if t == 0.0 {
+            initial
+        } else {
+            matrix_exponential(&(generator * t)) * initial
+        };
+        Ok(MomentTable {
+            basis,
+            values: values.iter().copied().collect(),
+        })
+    }
+
+    /// Moments of the stationary law up to `order`: the solution of G m = 0 with m₀ = 1.
+    ///
+    /// Ordering the basis by degree makes G block lower-triangular (the generator never
+    /// raises the degree), so the non-constant block is stable exactly when each degree's
+    /// diagonal block has eigenvalues with negative real parts; then the moments are
+    /// m = −H⁻¹ g where g is the column of the constant monomial. `None` when some moment up
+    /// to `order` does not converge to a limit (or the basis is too large).
+    pub fn stationary_moments(&self, order: usize) -> Option<MomentTable> {
+        let (basis, generator) = self.generator(order).ok()?;
+        let size = basis.len();
+        for degree in 1..=order {
+            let (start, end) = basis.degree_range(degree);
+            let block = generator.view((start, start), (end - start, end - start));
+            let stable = eigenvalues(&block.into_owned())
+                .iter()
+                .all(|(re, _)| *re < 0.0);
+            if !stable {
+                return None;
+            }
+        }
+        let mut values = vec![1.0];
+        if size > 1 {
+            let rest = generator.view((1, 1), (size - 1, size - 1)).into_owned();
+            let constant_column = generator.view((1, 0), (size - 1, 1)).into_owned();
+            let solution = rest.lu().solve(&(-constant_column))?;
+            values.extend(solution.iter().copied());
+        }
+        values
+            .iter()
+            .all(|v| v.is_finite())
+            .then_some(MomentTable { basis, values })
+    }
+}
+
+/// The monomials x^α of n variables with |α| ≤ order, in a stable order: by degree, then
+/// lexicographically with larger exponents of earlier states first. For two states and
+/// order 2: 1, x₀, x₁, x₀², x₀x₁, x₁².
+#[derive(Clone, Debug, PartialEq)]
+pub struct MonomialBasis {
+    dimension: usize,
+    order: usize,
+    exponents: Vec<Vec<u32>>,
+    positions: HashMap<Vec<u32>, usize>,
+    /// Position where each degree 0..=order starts, plus the total size at the end.
+    degree_starts: Vec<usize>,
+}
+
+impl MonomialBasis {
+    /// Enumerates the basis; an error when it would exceed [`MAX_BASIS_SIZE`].
+    pub fn new(dimension: usize, order: usize) -> Result<Self, String> {
+        let size = basis_size(dimension, order).filter(|size| *size <= MAX_BASIS_SIZE);
+        let Some(size) = size else {
+            return Err(format!(
+                "moments up to order {order} of {dimension} states need more than \
+                 {MAX_BASIS_SIZE} monomials"
+            ));
+        };
+        let mut exponents = Vec::with_capacity(size);
+        let mut degree_starts = Vec::with_capacity(order + 2);
+        let mut current = vec![0u32; dimension];
+        for degree in 0..=order {
+            degree_starts.push(exponents.len());
+            push_monomials_of_degree(&mut current, 0, degree as u32, &mut exponents);
+        }
+        degree_starts.push(exponents.len());
+        let positions = exponents
+            .iter()
+            .enumerate()
+            .map(|(position, alpha)| (alpha.clone(), position))
+            .collect();
+        Ok(MonomialBasis {
+            dimension,
+            order,
+            exponents,
+            positions,
+            degree_starts,
+        })
+    }
+
+    /// Number of monomials.
+    pub fn len(&self) -> usize {
+        self.exponents.len()
+    }
+
+    /// True for an empty basis (never: the constant monomial is always there).
+    pub fn is_empty(&self) -> bool {
+        self.exponents.is_empty()
+    }
+
+    /// Highest total degree.
+    pub fn order(&self) -> usize {
+        self.order
+    }
+
+    /// Number of variables.
+    pub fn dimension(&self) -> usize {
+        self.dimension
+    }
+
+    /// Exponents of the monomial at `position`; `None` past the end.
+    pub fn exponents(&self, position: usize) -> Option<&[u32]> {
+        self.exponents.get(position).map(Vec::as_slice)
+    }
+
+    /// Every monomial's exponents, in basis order.
+    pub fn iter(&self) -> impl Iterator<Item = &[u32]> {
+        self.exponents.iter().map(Vec::as_slice)
+    }
+
+    /// Position of the monomial with these exponents, if it is in the basis.
+    pub fn position(&self, exponents: &[u32]) -> Option<usize> {
+        self.positions.get(exponents).copied()
+    }
+
+    /// Positions [start, end) of the monomials of exactly this degree.
+    pub fn degree_range(&self, degree: usize) -> (usize, usize) {
+        match (
+            self.degree_starts.get(degree),
+            self.degree_starts.get(degree + 1),
+        ) {
+            (Some(&start), Some(&end)) => (start, end),
+            _ => (self.len(), self.len()),
+        }
+    }
+}
+
+/// C(n + N, N) with overflow checks; `None` when it does not fit in usize.
+fn basis_size(dimension: usize, order: usize) -> Option<usize> {
+    let mut size: usize = 1;
+    for k in 1..=order {
+        // size · (n + k) / k stays an integer at every step (it is C(n + k, k)).
+        size = size.checked_mul(dimension.checked_add(k)?)? / k;
+    }
+    Some(size)
+}
+
+/// Appends, in the basis order, every exponent vector of total `remaining` over the
+/// variables from `variable` on (the earlier ones are fixed in `current`).
+fn push_monomials_of_degree(
+    current: &mut [u32],
+    variable: usize,
+    remaining: u32,
+    out: &mut Vec<Vec<u32>>,
+) {
+    match current.len().saturating_sub(variable) {
+        0 => {
+            // No variables left (or none at all): only a zero remainder is a monomial.
+            if remaining == 0 {
+                out.push(current.to_vec());
+            }
+        }
+        1 => {
+            current[variable] = remaining;
+            out.push(current.to_vec());
+            current[variable] = 0;
+        }
+        _ => {
+            for power in (0..=remaining).rev() {
+                current[variable] = power;
+                push_monomials_of_degree(current, variable + 1, remaining - power, out);
+            }
+            current[variable] = 0;
+        }
+    }
+}
+
+/// Moments E[X^α] for every |α| ≤ order, with the usual summaries.
+#[derive(Clone, Debug, PartialEq)]
+pub struct MomentTable {
+    basis: MonomialBasis,
+    values: Vec<f64>,
+}
+
+impl MomentTable {
+    /// A table whose every value is NaN (the moments could not be computed).
+    fn not_available(dimension: usize, order: usize) -> Self {
+        // The smallest basis that still answers `order()` and `dimension()` honestly.
+        let basis = MonomialBasis::new(dimension, order)
+            .or_else(|_| MonomialBasis::new(dimension, 0))
+            .unwrap_or(MonomialBasis {
+                dimension,
+                order: 0,
+                exponents: Vec::new(),
+                positions: HashMap::new(),
+                degree_starts: vec![0, 0],
+            });
+        let values = vec![f64::NAN; basis.len()];
+        MomentTable { basis, values }
+    }
+
+    /// Highest total degree held.
+    pub fn order(&self) -> usize {
+        self.basis.order()
+    }
+
+    /// Number of states.
+    pub fn dimension(&self) -> usize {
+        self.basis.dimension()
+    }
+
+    /// The basis the values are listed in.
+    pub fn basis(&self) -> &MonomialBasis {
+        &self.basis
+    }
+
+    /// The values in basis order.
+    pub fn values(&self) -> &[f64] {
+        &self.values
+    }
+
+    /// E[Π_i X_i^{α_i}]; `None` when α has the wrong length or a degree above the order.
+    pub fn raw(&self, multi_index: &[u32]) -> Option<f64> {
+        let position = self.basis.position(multi_index)?;
+        self.values.get(position).copied()
+    }
+
+    /// E[X_i].
+    pub fn mean(&self, state: usize) -> Option<f64> {
+        self.raw(&self.unit_index(state, None)?)
+    }
+
+    /// Cov(X_i, X_j) = E[X_i X_j] − E[X_i] E[X_j]; needs order ≥ 2.
+    pub fn covariance(&self, i: usize, j: usize) -> Option<f64> {
+        let second = self.raw(&self.unit_index(i, Some(j))?)?;
+        Some(second - self.mean(i)? * self.mean(j)?)
+    }
+
+    /// Var(X_i).
+    pub fn variance(&self, state: usize) -> Option<f64> {
+        self.covariance(state, state)
+    }
+
+    /// E[Π_i (X_i − E X_i)^{α_i}], expanded binomially over the raw moments
+    /// (some cancellation for high orders when means are large against spreads).
+    pub fn central(&self, multi_index: &[u32]) -> Option<f64> {
+        let n = self.dimension();
+        if multi_index.len() != n {
+            return None;
+        }
+        let means: Vec<f64> = (0..n).map(|i| self.mean(i)).collect::<Option<_>>()?;
+        let mut beta = vec![0u32; n];
+        let mut total = 0.0;
+        loop {
+            let mut weight = 1.0;
+            for i in 0..n {
+                let lower = multi_index[i] - beta[i];
+                weight *= binomial(multi_index[i], beta[i]) * (-means[i]).powi(lower as i32);
+            }
+            total += weight * self.raw(&beta)?;
+            // Next β ≤ α in odometer order.
+            let mut carried = true;
+            for i in 0..n {
+                if beta[i] < multi_index[i] {
+                    beta[i] += 1;
+                    carried = false;
+                    break;
+                }
+                beta[i] = 0;
+            }
+            if carried {
+                return Some(total);
+            }
+        }
+    }
+
+    /// The vector of means (NaN where unavailable).
+    pub fn means(&self) -> DVector<f64> {
+        DVector::from_iterator(
+            self.dimension(),
+            (0..self.dimension()).map(|i| self.mean(i).unwrap_or(f64::NAN)),
+        )
+    }
+
+    /// The covariance matrix; `None` below order 2.
+    pub fn covariance_matrix(&self) -> Option<DMatrix<f64>> {
+        let n = self.dimension();
+        let mut matrix = DMatrix::zeros(n, n);
+        for i in 0..n {
+            for j in 0..n {
+                matrix[(i, j)] = self.covariance(i, j)?;
+            }
+        }
+        Some(matrix)
+    }
+
+    /// Multi-index with 1 at `first` (and 1 more at `second`).
+    fn unit_index(&self, first: usize, second: Option<usize>) -> Option<Vec<u32>> {
+        let mut index = vec![0u32; self.dimension()];
+        *index.get_mut(first)? += 1;
+        if let Some(second) = second {
+            *index.get_mut(second)? += 1;
+        }
+        Some(index)
+    }
+}
+
+fn binomial(n: u32, k: u32) -> f64 {
+    (0..k).fold(1.0, |product, step| {
+        product * f64::from(n - step) / f64::from(step + 1)
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn basis_order_and_size() {
+        let basis = MonomialBasis::new(2, 2).unwrap();
+        let listed: Vec<&[u32]> = basis.iter().collect();
+        assert_eq!(
+            listed,
+            vec![&[0, 0][..], &[1, 0], &[0, 1], &[2, 0], &[1, 1], &[0, 2]]
+        );
+        // C(n + N, N): C(7, 4) = 35, C(14, 4) = 1001 (common practice, no source).
+        assert_eq!(MonomialBasis::new(3, 4).unwrap().len(), 35);
+        assert_eq!(MonomialBasis::new(10, 4).unwrap().len(), 1001);
+        assert_eq!(basis_size(10, 4), Some(1001));
+        assert!(MonomialBasis::new(40, 6).is_err());
+        assert!(MonomialBasis::new(usize::MAX, 3).is_err());
+        assert_eq!(MonomialBasis::new(0, 3).unwrap().len(), 1);
+    }
+
+    #[test]
+    fn bad_inputs_are_reported() {
+        let system = PolynomialSystem::new(
+            DVector::from_vec(vec![0.0]),
+            DMatrix::from_element(1, 1, -1.0),
+            DMatrix::from_element(1, 1, 1.0),
+            Vec::new(),
+            Vec::new(),
+        )
+        .unwrap();
+        let wrong_length = DVector::from_vec(vec![1.0, 2.0]);
+        assert!(system.try_moments_at(&wrong_length, 1.0, 2).is_err());
+        assert!(system
+            .moments_at(&wrong_length, 1.0, 2)
+            .values()
+            .iter()
+            .all(|v| v.is_nan()));
+        let start = DVector::from_vec(vec![1.0]);
+        assert!(system.try_moments_at(&start, -1.0, 2).is_err());
+        assert!(system.try_moments_at(&start, f64::NAN, 2).is_err());
+        assert!(system.try_moments_at(&start, 1.0, 5000).is_err());
+        let table = system.moments_at(&start, 1.0, 1);
+        assert_eq!(table.covariance(0, 0), None);
+        assert_eq!(table.mean(3), None);
+        assert!(PolynomialSystem::new(
+            DVector::from_vec(vec![0.0, 0.0]),
+            DMatrix::zeros(2, 2),
+            DMatrix::zeros(2, 3),
+            Vec::new(),
+            Vec::new(),
+        )
+        .is_err());
+    }
+
+    /// Binomial expansion check on a table of a point mass at (2, −3): every central moment
+    /// of degree ≥ 1 is zero (common practice, no source).
+    #[test]
+    fn central_moments_of_a_point_mass_vanish() {
+        let system = PolynomialSystem::new(
+            DVector::zeros(2),
+            DMatrix::zeros(2, 2),
+            DMatrix::zeros(2, 2),
+            Vec::new(),
+            Vec::new(),
+        )
+        .unwrap();
+        let table = system.moments_at(&DVector::from_vec(vec![2.0, -3.0]), 1.0, 4);
+        assert_eq!(table.raw(&[2, 1]), Some(-12.0));
+        for alpha in [[1, 0], [0, 2], [2, 2], [3, 1]] {
+            let central = table.central(&alpha).unwrap();
+            assert!(central.abs() < 1e-12, "{alpha:?}: {central}");
+        }
+    }
+}
