@@ -1,5 +1,14 @@
 //! Semantic analysis of an sdeck model: names, units, values in clock units.
+//!
+//! [`analyze`] parses a file and resolves it into a [`Model`]: every name resolved, lets
+//! inlined, every value converted to the model's clock, each equation split into drift
+//! and diffusion, and the structural rules checked. It never fails: broken input gives a
+//! model that holds what could be understood, plus diagnostics.
 
+mod analyze;
 pub mod model;
+pub mod symbols;
 
+pub use analyze::{analyze, fmt_num, Analysis};
 pub use model::*;
+pub use symbols::{Reference, Symbol, SymbolKind};

@@ -1,0 +1,1286 @@
+//! From the syntax tree to the semantic model: names, units, values in clock units, and
+//! the structural rules (undefined-name, duplicate-name, missing-equation, duplicate-term,
+//! dimension-mismatch, bound-violated, correlation-range, unused, unit-scale).
+
+use crate::model::*;
+use crate::symbols::{Reference, Symbol, SymbolKind};
+use sdeck_diagnostics::{rules, Diagnostic, Span, TextEdit};
+use sdeck_syntax::ast::{self, Figure, StatementKind};
+use sdeck_units::{
+    eval_unit_with_names, is_time_unit, suggest_unit_text, time_unit_years, Dimension, Rational,
+    UnitValue,
+};
+use std::collections::HashMap;
+
+/// The result of analysing one file: the tree, the model and every diagnostic so far.
+#[derive(Clone, Debug)]
+pub struct Analysis {
+    pub file: ast::SourceFile,
+    pub model: Model,
+    /// Syntax and semantic diagnostics, in the order found.
+    pub diagnostics: Vec<Diagnostic>,
+    /// Every declared name.
+    pub symbols: Vec<Symbol>,
+    /// Every use of a declared name (declarations themselves are not included).
+    pub references: Vec<Reference>,
+}
+
+impl Analysis {
+    /// Whether any diagnostic is an error (the model may then be incomplete).
+    pub fn has_errors(&self) -> bool {
+        self.diagnostics
+            .iter()
+            .any(|d| d.severity == sdeck_diagnostics::Severity::Error)
+    }
+}
+
+/// Parses and analyses `source`. `default_name` names the model when it has no `model`
+/// statement (the file's stem).
+///
+/// ```
+/// let analysis = sdeck_semantics::analyze(
+///     "param kappa = 2 [1/year] > 0\nparam vol = 1% [1/sqrt(day)]\nnoise W\nstate x = 0\ndx = -kappa * x dt + vol dW\n",
+///     "demo",
+/// );
+/// let vol = &analysis.model.params[1];
+/// assert_eq!(vol.value, 0.01 * 365f64.sqrt());
+/// assert!(!analysis.has_errors());
+/// ```
+pub fn analyze(source: &str, default_name: &str) -> Analysis {
+    let file = sdeck_syntax::parse(source);
+    let mut analyzer = Analyzer::new(&file, source, default_name);
+    analyzer.run();
+    let Analyzer {
+        model,
+        mut diagnostics,
+        symbols,
+        references,
+        ..
+    } = analyzer;
+    let mut all = file.diagnostics.clone();
+    all.append(&mut diagnostics);
+    Analysis {
+        file,
+        model,
+        diagnostics: all,
+        symbols,
+        references,
+    }
+}
+
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+enum Target {
+    Unit(usize),
+    Param(usize),
+    State(usize),
+    Noise(usize),
+    Let(usize),
+}
+
+#[derive(Clone, Copy, PartialEq, Eq)]
+enum LetProgress {
+    Pending,
+    Busy,
+    Done,
+}
+
+struct Analyzer<'a> {
+    file: &'a ast::SourceFile,
+    source: &'a str,
+    model: Model,
+    diagnostics: Vec<Diagnostic>,
+    symbols: Vec<Symbol>,
+    references: Vec<Reference>,
+    names: HashMap<String, (Target, Span)>,
+    let_asts: Vec<&'a ast::Expr>,
+    let_progress: Vec<LetProgress>,
+    param_used: Vec<bool>,
+    noise_used: Vec<bool>,
+    let_used: Vec<bool>,
+    /// Unit spans of param/state declarations, for fixes.
+    param_units: Vec<Option<(Span, String)>>,
+}
+
+fn dimension_error(span: Span, message: impl Into<String>) -> Diagnostic {
+    Diagnostic::new(&rules::DIMENSION_MISMATCH, span, message)
+}
+
+/// Formats a number for messages: up to 6 significant digits, no trailing zeros.
+pub fn fmt_num(x: f64) -> String {
+    if x == 0.0 {
+        return "0".to_string();
+    }
+    if !x.is_finite() {
+        return format!("{x}");
+    }
+    let magnitude = x.abs().log10().floor() as i32;
+    if !(-4..6).contains(&magnitude) {
+        let s = format!("{x:.5e}");
+        // Trim zeros in the mantissa: 1.50000e-5 -> 1.5e-5.
+        if let Some((m, e)) = s.split_once('e') {
+            let m = m.trim_end_matches('0').trim_end_matches('.');
+            return format!("{m}e{e}");
+        }
+        return s;
+    }
+    let decimals = (5 - magnitude).clamp(0, 12) as usize;
+    let s = format!("{x:.decimals$}");
+    if s.contains('.') {
+        s.trim_end_matches('0').trim_end_matches('.').to_string()
+    } else {
+        s
+    }
+}
+
+impl<'a> Analyzer<'a> {
+    fn new(file: &'a ast::SourceFile, source: &'a str, default_name: &str) -> Self {
+        Analyzer {
+            file,
+            source,
+            model: Model {
+                name: default_name.to_string(),
+                clock: Clock {
+                    unit: "year".to_string(),
+                    years: 1.0,
+                },
+                horizon: 1.0,
+                units: Vec::new(),
+                params: Vec::new(),
+                states: Vec::new(),
+                noises: Vec::new(),
+                correlations: Vec::new(),
+                lets: Vec::new(),
+                expectations: Vec::new(),
+            },
+            diagnostics: Vec::new(),
+            symbols: Vec::new(),
+            references: Vec::new(),
+            names: HashMap::new(),
+            let_asts: Vec::new(),
+            let_progress: Vec::new(),
+            param_used: Vec::new(),
+            noise_used: Vec::new(),
+            let_used: Vec::new(),
+            param_units: Vec::new(),
+        }
+    }
+
+    fn run(&mut self) {
+        self.settings();
+        self.declarations();
+        self.resolve_lets();
+        self.correlations();
+        self.equations();
+        self.expectations();
+        self.unused();
+    }
+
+    fn clock_unit(&self) -> &str {
+        &self.model.clock.unit
+    }
+
+    /// `model`, `clock`, `unit`: everything later statements depend on.
+    fn settings(&mut self) {
+        let mut seen_model: Option<Span> = None;
+        let mut seen_clock: Option<Span> = None;
+        for statement in &self.file.statements {
+            match &statement.kind {
+                StatementKind::Model { name } => {
+                    if let Some(first) = &seen_model {
+                        self.diagnostics.push(
+                            Diagnostic::new(&rules::DUPLICATE_NAME, statement.span.clone(), "the model is named twice")
+                                .with_related(first.clone(), "first named here")
+                                .with_help("keep one `model` statement"),
+                        );
+                    } else {
+                        seen_model = Some(statement.span.clone());
+                        self.model.name = name.name.clone();
+                    }
+                }
+                StatementKind::Clock { unit } => {
+                    if let Some(first) = &seen_clock {
+                        self.diagnostics.push(
+                            Diagnostic::new(&rules::DUPLICATE_NAME, statement.span.clone(), "the clock is set twice")
+                                .with_related(first.clone(), "first set here")
+                                .with_help("keep one `clock` statement"),
+                        );
+                        continue;
+                    }
+                    seen_clock = Some(statement.span.clone());
+                    match time_unit_years(&unit.name) {
+                        Some(years) => {
+                            self.model.clock = Clock {
+                                unit: unit.name.clone(),
+                                years,
+                            }
+                        }
+                        None => self.diagnostics.push(
+                            dimension_error(
+                                unit.span.clone(),
+                                format!("the clock must run in a time unit, not `{}`", unit.name),
+                            )
+                            .with_help("write `clock year`, `clock month`, `clock week`, `clock day` or `clock bday`"),
+                        ),
+                    }
+                }
+                StatementKind::Unit { name } => {
+                    if is_time_unit(&name.name) {
+                        self.diagnostics.push(
+                            Diagnostic::new(
+                                &rules::DUPLICATE_NAME,
+                                name.span.clone(),
+                                format!("`{}` is a built-in time unit and cannot be declared again", name.name),
+                            )
+                            .with_help("remove this line; the time units year, month, week, day and bday always exist"),
+                        );
+                        continue;
+                    }
+                    let index = self.model.units.len();
+                    if self.declare(&name.name, &name.span, Target::Unit(index), SymbolKind::Unit, &statement.span) {
+                        self.model.units.push(UnitDecl {
+                            name: name.name.clone(),
+                            name_span: name.span.clone(),
+                        });
+                    }
+                }
+                _ => {}
+            }
+        }
+        for statement in &self.file.statements {
+            if let StatementKind::Horizon { value } = &statement.kind {
+                if let Some(years) = self.time_quantity(value, "the horizon") {
+                    if years > 0.0 {
+                        self.model.horizon = years;
+                    } else {
+                        self.diagnostics.push(
+                            Diagnostic::new(&rules::BOUND_VIOLATED, value.span.clone(), "the horizon must be positive")
+                                .with_help("write a positive time, e.g. `horizon 1 year`"),
+                        );
+                    }
+                }
+            }
+        }
+    }
+
+    /// A quantity that must be a time, converted to clock units. A number with no unit is
+    /// taken in clock units.
+    fn time_quantity(&mut self, q: &ast::Quantity, what: &str) -> Option<f64> {
+        match &q.unit {
+            None => Some(q.number.value),
+            Some(unit) => {
+                let value = self.eval_unit(unit)?;
+                if value.dimension != Dimension::time() {
+                    self.diagnostics.push(
+                        dimension_error(
+                            unit.span(),
+                            format!("{what} must be a time, but `{}` is {}", sdeck_units::unit_expr_text(unit), value.dimension.describe()),
+                        )
+                        .with_help(format!("write a time unit, e.g. `{} {}`", q.number.text, self.clock_unit())),
+                    );
+                    return None;
+                }
+                Some(q.number.value * value.scale)
+            }
+        }
+    }
+
+    fn eval_unit(&mut self, unit: &ast::UnitExpr) -> Option<UnitValue> {
+        let names: Vec<&str> = self.model.units.iter().map(|u| u.name.as_str()).collect();
+        let declared = |n: &str| names.contains(&n);
+        match eval_unit_with_names(unit, &declared, &names, self.model.clock.years) {
+            Ok(v) => Some(v),
+            Err(e) => {
+                let rule = if e.message.contains("not declared") || e.message.contains("unknown") {
+                    &rules::UNDEFINED_NAME
+                } else {
+                    &rules::DIMENSION_MISMATCH
+                };
+                self.diagnostics.push(e.to_diagnostic(rule));
+                None
+            }
+        }
+    }
+
+    /// Registers a name; reports `duplicate-name` and returns false if it exists.
+    fn declare(&mut self, name: &str, span: &Span, target: Target, kind: SymbolKind, statement: &Span) -> bool {
+        if let Some((_, first)) = self.names.get(name) {
+            self.diagnostics.push(
+                Diagnostic::new(&rules::DUPLICATE_NAME, span.clone(), format!("`{name}` is declared twice"))
+                    .with_label("declared again here")
+                    .with_related(first.clone(), format!("`{name}` first declared here"))
+                    .with_help("names are unique across units, parameters, states, noises and lets; rename one of them"),
+            );
+            return false;
+        }
+        self.names.insert(name.to_string(), (target, span.clone()));
+        self.symbols.push(Symbol {
+            name: name.to_string(),
+            kind,
+            name_span: span.clone(),
+            statement_span: statement.clone(),
+        });
+        true
+    }
+
+    fn declarations(&mut self) {
+        let file = self.file;
+        for statement in &file.statements {
+            match &statement.kind {
+                StatementKind::Param(decl) => {
+                    let index = self.model.params.len();
+                    if !self.declare(&decl.name.name, &decl.name.span, Target::Param(index), SymbolKind::Param, &statement.span) {
+                        continue;
+                    }
+                    let (dimension, scale, unit_text) = self.declared_unit(decl);
+                    let value = decl.value.value * scale;
+                    let bound = decl.bound.as_ref().map(|b| convert_bound(b, scale));
+                    self.param_units.push(decl.unit.as_ref().map(|u| (u.span(), sdeck_units::unit_expr_text(u))));
+                    self.model.params.push(Param {
+                        name: decl.name.name.clone(),
+                        name_span: decl.name.span.clone(),
+                        span: statement.span.clone(),
+                        written: decl.value.value,
+                        value,
+                        scale,
+                        dimension,
+                        unit_text,
+                        bound,
+                        description: statement.description.clone(),
+                    });
+                    self.param_used.push(false);
+                    self.check_declaration(decl, "parameter", value, scale, bound);
+                }
+                StatementKind::State(decl) => {
+                    let index = self.model.states.len();
+                    if !self.declare(&decl.name.name, &decl.name.span, Target::State(index), SymbolKind::State, &statement.span) {
+                        continue;
+                    }
+                    let (dimension, scale, unit_text) = self.declared_unit(decl);
+                    let initial = decl.value.value * scale;
+                    let bound = decl.bound.as_ref().map(|b| convert_bound(b, scale));
+                    self.model.states.push(State {
+                        name: decl.name.name.clone(),
+                        name_span: decl.name.span.clone(),
+                        span: statement.span.clone(),
+                        written: decl.value.value,
+                        initial,
+                        scale,
+                        dimension,
+                        unit_text,
+                        domain: bound.unwrap_or_default(),
+                        has_domain: bound.is_some(),
+                        description: statement.description.clone(),
+                        equation: None,
+                    });
+                    self.check_declaration(decl, "initial value of state", initial, scale, bound);
+                }
+                StatementKind::Noise { names } => {
+                    for name in names {
+                        let index = self.model.noises.len();
+                        if self.declare(&name.name, &name.span, Target::Noise(index), SymbolKind::Noise, &statement.span) {
+                            self.model.noises.push(Noise {
+                                name: name.name.clone(),
+                                name_span: name.span.clone(),
+                                description: statement.description.clone(),
+                            });
+                            self.noise_used.push(false);
+                        }
+                    }
+                }
+                StatementKind::Let { name, value } => {
+                    let index = self.model.lets.len();
+                    if self.declare(&name.name, &name.span, Target::Let(index), SymbolKind::Let, &statement.span) {
+                        self.model.lets.push(Let {
+                            name: name.name.clone(),
+                            name_span: name.span.clone(),
+                            span: statement.span.clone(),
+                            value: Expr::Invalid,
+                            dimension: None,
+                            description: statement.description.clone(),
+                        });
+                        self.let_asts.push(value);
+                        self.let_progress.push(LetProgress::Pending);
+                        self.let_used.push(false);
+                    }
+                }
+                _ => {}
+            }
+        }
+    }
+
+    fn declared_unit(&mut self, decl: &ast::Declaration) -> (Dimension, f64, Option<String>) {
+        match &decl.unit {
+            None => (Dimension::dimensionless(), 1.0, None),
+            Some(unit) => {
+                let text = sdeck_units::unit_expr_text(unit);
+                match self.eval_unit(unit) {
+                    Some(v) => (v.dimension, v.scale, Some(text)),
+                    None => (Dimension::dimensionless(), f64::NAN, Some(text)),
+                }
+            }
+        }
+    }
+
+    /// Bound and unit-scale checks of a param or state declaration.
+    fn check_declaration(&mut self, decl: &ast::Declaration, what: &str, value: f64, scale: f64, bound: Option<Interval>) {
+        if let Some(bound_interval) = bound {
+            if value.is_finite() && !bound_interval.contains(value) {
+                let bound_text = decl.bound.as_ref().map(|b| b.span.clone());
+                let mut d = Diagnostic::new(
+                    &rules::BOUND_VIOLATED,
+                    decl.value.span.clone(),
+                    format!(
+                        "the {what} `{}` is {}, outside its declared bound {}",
+                        decl.name.name,
+                        decl.value.text,
+                        describe_bound(decl.bound.as_ref()),
+                    ),
+                )
+                .with_label("outside the bound")
+                .with_help("change the value, or widen the bound if the value is right");
+                if let Some(span) = bound_text {
+                    d = d.with_related(span, "the bound");
+                }
+                self.diagnostics.push(d);
+            }
+        }
+        if let Some(unit) = &decl.unit {
+            if scale.is_finite() && scale != 1.0 {
+                let names: Vec<&str> = self.model.units.iter().map(|u| u.name.as_str()).collect();
+                let declared = |n: &str| names.contains(&n);
+                let dimension = eval_unit_with_names(unit, &declared, &names, 1.0)
+                    .map(|v| v.dimension)
+                    .unwrap_or_default();
+                let clock_text = dimension.display_in(self.clock_unit());
+                let converted = decl.value.value * scale;
+                let new_text = format!("{} [{}]", fmt_num(converted), clock_text);
+                let replace = decl.value.span.start..unit_bracket_end(self.source, unit);
+                self.diagnostics.push(
+                    Diagnostic::new(
+                        &rules::UNIT_SCALE,
+                        unit.span(),
+                        format!(
+                            "`{}` = {} [{}] is {} [{}] on the model's clock (×{})",
+                            decl.name.name,
+                            decl.value.text,
+                            sdeck_units::unit_expr_text(unit),
+                            fmt_num(converted),
+                            clock_text,
+                            fmt_num(scale)
+                        ),
+                    )
+                    .with_help(format!("every computation uses {}; write `{new_text}` to state it in clock units", fmt_num(converted)))
+                    .with_fix(format!("Rewrite as {new_text}"), vec![TextEdit { span: replace, new_text }]),
+                );
+            }
+        }
+    }
+
+    fn resolve_lets(&mut self) {
+        for i in 0..self.model.lets.len() {
+            self.resolve_let(i);
+        }
+    }
+
+    fn resolve_let(&mut self, index: usize) {
+        match self.let_progress[index] {
+            LetProgress::Done => return,
+            LetProgress::Busy => {
+                let let_decl = &self.model.lets[index];
+                self.diagnostics.push(
+                    Diagnostic::new(
+                        &rules::UNDEFINED_NAME,
+                        let_decl.name_span.clone(),
+                        format!("`{}` is defined in terms of itself", let_decl.name),
+                    )
+                    .with_help("a let may use parameters, states, `t` and other lets, but not form a cycle"),
+                );
+                self.let_progress[index] = LetProgress::Done;
+                return;
+            }
+            LetProgress::Pending => {}
+        }
+        self.let_progress[index] = LetProgress::Busy;
+        let ast = self.let_asts[index];
+        let (expr, dimension) = self.resolve(ast);
+        let l = &mut self.model.lets[index];
+        l.value = expr;
+        l.dimension = dimension;
+        self.let_progress[index] = LetProgress::Done;
+    }
+
+    /// Resolves an expression and infers its dimension. Errors are reported once, where
+    /// they arise; `None` means the dimension is unknown because of an earlier error.
+    fn resolve(&mut self, e: &ast::Expr) -> (Expr, Option<Dimension>) {
+        match e {
+            ast::Expr::Number(n) => (Expr::Const(n.value), Some(Dimension::dimensionless())),
+            ast::Expr::Paren { inner, .. } => self.resolve(inner),
+            ast::Expr::Name(ident) => self.resolve_name(ident),
+            ast::Expr::Neg { operand, .. } => {
+                let (x, d) = self.resolve(operand);
+                (Expr::Neg(Box::new(x)), d)
+            }
+            ast::Expr::Binary { op, lhs, rhs, span } => {
+                let (l, ld) = self.resolve(lhs);
+                if *op == ast::BinaryOp::Pow {
+                    return self.resolve_power(l, ld, rhs, span);
+                }
+                let (r, rd) = self.resolve(rhs);
+                let dimension = match (op, ld, rd) {
+                    (_, None, _) | (_, _, None) => None,
+                    (ast::BinaryOp::Add | ast::BinaryOp::Sub, Some(a), Some(b)) => {
+                        if a == b || is_zero_literal(lhs) || is_zero_literal(rhs) {
+                            Some(if is_zero_literal(lhs) { b } else { a })
+                        } else {
+                            let verb = if *op == ast::BinaryOp::Add { "add" } else { "subtract" };
+                            self.diagnostics.push(
+                                dimension_error(
+                                    span.clone(),
+                                    format!(
+                                        "cannot {verb} {} and {}: the two sides of `{}` must have the same dimension",
+                                        self.describe_operand(lhs, &a),
+                                        self.describe_operand(rhs, &b),
+                                        op.symbol()
+                                    ),
+                                )
+                                .with_help("check the units of the parameters on each side"),
+                            );
+                            None
+                        }
+                    }
+                    (ast::BinaryOp::Mul, Some(a), Some(b)) => Some(a.mul(&b)),
+                    (_, Some(a), Some(b)) => Some(a.div(&b)),
+                };
+                let expr = match op {
+                    ast::BinaryOp::Add => Expr::Add(Box::new(l), Box::new(r)),
+                    ast::BinaryOp::Sub => Expr::Sub(Box::new(l), Box::new(r)),
+                    ast::BinaryOp::Mul => Expr::Mul(Box::new(l), Box::new(r)),
+                    _ => Expr::Div(Box::new(l), Box::new(r)),
+                };
+                (expr, dimension)
+            }
+            ast::Expr::Call { function, args, span } => self.resolve_call(function, args, span),
+        }
+    }
+
+    fn describe_operand(&self, e: &ast::Expr, d: &Dimension) -> String {
+        let text = match e {
+            ast::Expr::Name(i) => format!("`{}` ", i.name),
+            _ => String::new(),
+        };
+        format!("{text}({})", d.describe())
+    }
+
+    fn resolve_power(&mut self, base: Expr, base_dim: Option<Dimension>, exponent: &ast::Expr, span: &Span) -> (Expr, Option<Dimension>) {
+        let (exp, exp_dim) = self.resolve(exponent);
+        let mut dimension = None;
+        if let Some(ed) = exp_dim {
+            if !ed.is_dimensionless() {
+                self.diagnostics.push(
+                    dimension_error(exponent.span(), format!("an exponent must be dimensionless, but this one is {}", ed.describe()))
+                        .with_help("divide by a parameter of the same unit to make the exponent a pure number"),
+                );
+            } else if let Some(bd) = base_dim {
+                if bd.is_dimensionless() {
+                    dimension = Some(bd);
+                } else if contains_state_or_time(&exp) {
+                    self.diagnostics.push(
+                        dimension_error(exponent.span(), format!("the exponent of a quantity with a dimension ({}) must be constant", bd.describe()))
+                            .with_help("use a number or a dimensionless parameter as the exponent"),
+                    );
+                } else {
+                    let value = exp.eval(&self.model.param_values(), &[], 0.0);
+                    match rational_approx(value).and_then(|r| bd.pow(r)) {
+                        Some(d) => dimension = Some(d),
+                        None => self.diagnostics.push(
+                            dimension_error(span.clone(), format!("cannot raise {} to the power {}", bd.describe(), fmt_num(value)))
+                                .with_help("a quantity with a dimension can be raised only to a simple fraction such as 2, 1/2 or 3/2"),
+                        ),
+                    }
+                }
+            }
+        }
+        (Expr::Pow(Box::new(base), Box::new(exp)), dimension)
+    }
+
+    fn resolve_call(&mut self, function: &ast::Ident, args: &[ast::Expr], span: &Span) -> (Expr, Option<Dimension>) {
+        let resolved: Vec<(Expr, Option<Dimension>)> = args.iter().map(|a| self.resolve(a)).collect();
+        let Some(f) = Function::from_name(&function.name) else {
+            self.diagnostics.push(
+                Diagnostic::new(&rules::UNDEFINED_NAME, function.span.clone(), format!("unknown function `{}`", function.name))
+                    .with_help("the functions are exp, log, sqrt, abs, min, max, sin and cos"),
+            );
+            return (Expr::Invalid, None);
+        };
+        if args.len() != f.arity() {
+            let plural = if f.arity() == 1 { "argument" } else { "arguments" };
+            self.diagnostics.push(
+                Diagnostic::new(&rules::SYNTAX, span.clone(), format!("`{}` takes {} {plural}, found {}", f.name(), f.arity(), args.len()))
+                    .with_help(if f.arity() == 1 { format!("write `{}(x)`", f.name()) } else { format!("write `{}(a, b)`", f.name()) }),
+            );
+            return (Expr::Invalid, None);
+        }
+        let dims: Vec<Option<Dimension>> = resolved.iter().map(|(_, d)| d.clone()).collect();
+        let exprs: Vec<Expr> = resolved.into_iter().map(|(e, _)| e).collect();
+        let dimension = match f {
+            Function::Exp | Function::Log | Function::Sin | Function::Cos => {
+                match &dims[0] {
+                    Some(d) if !d.is_dimensionless() => {
+                        self.diagnostics.push(
+                            dimension_error(args[0].span(), format!("`{}` needs a dimensionless argument, but this one is {}", f.name(), d.describe()))
+                                .with_help(match f {
+                                    Function::Sin | Function::Cos => "multiply a time by a frequency, e.g. `sin(2 * pi * freq * t)` with `param freq = 1 [1/year]`".to_string(),
+                                    _ => "divide by a parameter of the same unit first, e.g. `log(S / S0)`".to_string(),
+                                }),
+                        );
+                        None
+                    }
+                    Some(_) => Some(Dimension::dimensionless()),
+                    None => None,
+                }
+            }
+            Function::Sqrt => dims[0].as_ref().map(|d| d.sqrt()),
+            Function::Abs => dims[0].clone(),
+            Function::Min | Function::Max => match (&dims[0], &dims[1]) {
+                (Some(a), Some(b)) if a != b && !is_zero_literal(&args[0]) && !is_zero_literal(&args[1]) => {
+                    self.diagnostics.push(
+                        dimension_error(span.clone(), format!("`{}` compares {} with {}: both must have the same dimension", f.name(), a.describe(), b.describe()))
+                            .with_help("check the units of both arguments"),
+                    );
+                    None
+                }
+                (Some(a), Some(b)) => Some(if is_zero_literal(&args[0]) { b.clone() } else { a.clone() }),
+                _ => None,
+            },
+        };
+        (Expr::Call(f, exprs), dimension)
+    }
+
+    fn resolve_name(&mut self, ident: &ast::Ident) -> (Expr, Option<Dimension>) {
+        match ident.name.as_str() {
+            "t" => return (Expr::Time, Some(Dimension::time())),
+            "pi" => return (Expr::Const(std::f64::consts::PI), Some(Dimension::dimensionless())),
+            _ => {}
+        }
+        let Some((target, _)) = self.names.get(&ident.name).cloned() else {
+            self.undefined(ident, "");
+            return (Expr::Invalid, None);
+        };
+        self.reference(ident, &target);
+        match target {
+            Target::Param(i) => {
+                self.param_used[i] = true;
+                (Expr::Param(i), Some(self.model.params[i].dimension.clone()))
+            }
+            Target::State(i) => (Expr::State(i), Some(self.model.states[i].dimension.clone())),
+            Target::Let(i) => {
+                self.let_used[i] = true;
+                self.resolve_let(i);
+                let l = &self.model.lets[i];
+                (l.value.clone(), l.dimension.clone())
+            }
+            Target::Noise(_) => {
+                self.diagnostics.push(
+                    Diagnostic::new(&rules::UNDEFINED_NAME, ident.span.clone(), format!("`{}` is a noise and cannot be used as a value", ident.name))
+                        .with_help(format!("a noise appears only as the differential that ends a term: `vol d{}`", ident.name)),
+                );
+                (Expr::Invalid, None)
+            }
+            Target::Unit(_) => {
+                self.diagnostics.push(
+                    Diagnostic::new(&rules::UNDEFINED_NAME, ident.span.clone(), format!("`{}` is a unit and cannot be used as a value", ident.name))
+                        .with_help("units are written in brackets after a declaration's value: `param p = 100 [EUR]`"),
+                );
+                (Expr::Invalid, None)
+            }
+        }
+    }
+
+    fn reference(&mut self, ident: &ast::Ident, target: &Target) {
+        let name_span = match *target {
+            Target::Param(i) => self.model.params[i].name_span.clone(),
+            Target::State(i) => self.model.states[i].name_span.clone(),
+            Target::Noise(i) => self.model.noises[i].name_span.clone(),
+            Target::Let(i) => self.model.lets[i].name_span.clone(),
+            Target::Unit(i) => self.model.units[i].name_span.clone(),
+        };
+        self.references.push(Reference {
+            span: ident.span.clone(),
+            name: ident.name.clone(),
+            declaration: name_span,
+        });
+    }
+
+    fn undefined(&mut self, ident: &ast::Ident, what: &str) {
+        let mut d = Diagnostic::new(
+            &rules::UNDEFINED_NAME,
+            ident.span.clone(),
+            format!("{what}`{}` is not declared", ident.name),
+        );
+        if let Some(close) = closest_name(&ident.name, self.names.keys()) {
+            d = d.with_help(format!("did you mean `{close}`?"));
+        } else {
+            d = d.with_help(format!("declare it, e.g. `param {} = 1`", ident.name));
+        }
+        let insert_at = self.model.params.last().map(|p| line_end_after(self.source, p.span.end)).unwrap_or(0);
+        d = d.with_fix(
+            format!("Declare `param {}`", ident.name),
+            vec![TextEdit {
+                span: insert_at..insert_at,
+                new_text: format!("param {} = 0  # TODO: value and unit\n", ident.name),
+            }],
+        );
+        self.diagnostics.push(d);
+    }
+
+    fn correlations(&mut self) {
+        let file = self.file;
+        let mut seen: HashMap<(usize, usize), Span> = HashMap::new();
+        for statement in &file.statements {
+            let StatementKind::Corr { first, second, value } = &statement.kind else {
+                continue;
+            };
+            let a = self.noise_named(first);
+            let b = self.noise_named(second);
+            let (Some(a), Some(b)) = (a, b) else { continue };
+            if a == b {
+                self.diagnostics.push(
+                    Diagnostic::new(&rules::CORRELATION_RANGE, statement.span.clone(), format!("`{}` is correlated with itself", first.name))
+                        .with_help("a noise's correlation with itself is always 1; name two different noises"),
+                );
+                continue;
+            }
+            if !(-1.0..=1.0).contains(&value.value) {
+                self.diagnostics.push(
+                    Diagnostic::new(&rules::CORRELATION_RANGE, value.span.clone(), format!("the correlation of `{}` and `{}` is {}, outside [-1, 1]", first.name, second.name, value.text))
+                        .with_label("must lie in [-1, 1]")
+                        .with_help("a correlation is a number between -1 and 1; a value in percent is written `40%`"),
+                );
+                continue;
+            }
+            let key = (a.min(b), a.max(b));
+            if let Some(prev) = seen.get(&key) {
+                self.diagnostics.push(
+                    Diagnostic::new(&rules::DUPLICATE_NAME, statement.span.clone(), format!("the correlation of `{}` and `{}` is given twice", first.name, second.name))
+                        .with_related(prev.clone(), "first given here")
+                        .with_help("keep one `corr` statement per pair of noises"),
+                );
+                continue;
+            }
+            seen.insert(key, statement.span.clone());
+            self.model.correlations.push(Correlation {
+                first: a,
+                second: b,
+                value: value.value,
+                span: statement.span.clone(),
+            });
+        }
+    }
+
+    fn noise_named(&mut self, ident: &ast::Ident) -> Option<usize> {
+        match self.names.get(&ident.name).cloned() {
+            Some((Target::Noise(i), _)) => {
+                self.reference(ident, &Target::Noise(i));
+                Some(i)
+            }
+            Some(_) => {
+                self.diagnostics.push(
+                    Diagnostic::new(&rules::UNDEFINED_NAME, ident.span.clone(), format!("`{}` is not a noise", ident.name))
+                        .with_help("`corr` relates two noises declared with `noise`"),
+                );
+                None
+            }
+            None => {
+                let mut d = Diagnostic::new(&rules::UNDEFINED_NAME, ident.span.clone(), format!("noise `{}` is not declared", ident.name));
+                d = match closest_name(&ident.name, self.model.noises.iter().map(|n| &n.name)) {
+                    Some(close) => d.with_help(format!("did you mean `{close}`?")),
+                    None => d.with_help(format!("declare it with `noise {}`", ident.name)),
+                };
+                self.diagnostics.push(d);
+                None
+            }
+        }
+    }
+
+    fn equations(&mut self) {
+        let file = self.file;
+        let mut first_equation: HashMap<usize, Span> = HashMap::new();
+        for statement in &file.statements {
+            let StatementKind::Equation(eq) = &statement.kind else { continue };
+            let state_index = match self.names.get(&eq.state.name).cloned() {
+                Some((Target::State(i), _)) => i,
+                Some((_, decl)) => {
+                    self.diagnostics.push(
+                        Diagnostic::new(&rules::MISSING_EQUATION, eq.lhs.clone(), format!("`d{}` names `{}`, which is not a state", eq.state.name, eq.state.name))
+                            .with_related(decl, "declared here")
+                            .with_help(format!("declare `{}` with `state` and an initial value", eq.state.name)),
+                    );
+                    continue;
+                }
+                None => {
+                    let mut d = Diagnostic::new(&rules::MISSING_EQUATION, eq.lhs.clone(), format!("the equation `d{}` names no state", eq.state.name));
+                    d = match closest_name(&eq.state.name, self.model.states.iter().map(|s| &s.name)) {
+                        Some(close) => d.with_help(format!("did you mean `d{close}`?")),
+                        None => d.with_help(format!("declare the state first: `state {} = 0`", eq.state.name)),
+                    };
+                    self.diagnostics.push(d);
+                    continue;
+                }
+            };
+            self.reference(&eq.state, &Target::State(state_index));
+            if let Some(prev) = first_equation.get(&state_index) {
+                self.diagnostics.push(
+                    Diagnostic::new(&rules::DUPLICATE_NAME, eq.lhs.clone(), format!("`{}` has a second equation", eq.state.name))
+                        .with_related(prev.clone(), "first equation here")
+                        .with_help("a state has exactly one equation; merge the terms into one"),
+                );
+                continue;
+            }
+            first_equation.insert(state_index, eq.lhs.clone());
+            let equation = self.equation(state_index, eq, &statement.span);
+            self.model.states[state_index].equation = Some(equation);
+        }
+        for i in 0..self.model.states.len() {
+            if self.model.states[i].equation.is_none() && !first_equation.contains_key(&i) {
+                let s = &self.model.states[i];
+                let insert_at = line_end_after(self.source, s.span.end);
+                let noise = self.model.noises.first().map(|n| n.name.clone()).unwrap_or_else(|| "W".to_string());
+                let name = s.name.clone();
+                self.diagnostics.push(
+                    Diagnostic::new(&rules::MISSING_EQUATION, s.name_span.clone(), format!("state `{name}` has no equation"))
+                        .with_help(format!("add its dynamics, e.g. `d{name} = ... dt + ... d{noise}`"))
+                        .with_fix(
+                            format!("Add an equation for `{name}`"),
+                            vec![TextEdit { span: insert_at..insert_at, new_text: format!("d{name} = 0 dt  # TODO: drift and diffusion\n") }],
+                        ),
+                );
+            }
+        }
+    }
+
+    fn equation(&mut self, state: usize, eq: &ast::Equation, span: &Span) -> Equation {
+        let state_dim = self.model.states[state].dimension.clone();
+        let state_name = self.model.states[state].name.clone();
+        let drift_dim = state_dim.div(&Dimension::time());
+        let diffusion_dim = state_dim.div(&Dimension::time().sqrt());
+        let mut drift: Option<Expr> = None;
+        let mut drift_span: Option<Span> = None;
+        let mut diffusion: Vec<DiffusionTerm> = Vec::new();
+        let mut noise_terms: HashMap<usize, Span> = HashMap::new();
+        for term in &eq.terms {
+            let (coefficient, dim) = match &term.coefficient {
+                Some(c) => self.resolve(c),
+                None => (Expr::Const(1.0), Some(Dimension::dimensionless())),
+            };
+            let coefficient = match term.sign {
+                ast::Sign::Plus => coefficient,
+                ast::Sign::Minus => Expr::Neg(Box::new(coefficient)),
+            };
+            match &term.differential {
+                ast::Differential::Time(_) => {
+                    if let Some(prev) = &drift_span {
+                        self.diagnostics.push(
+                            Diagnostic::new(&rules::DUPLICATE_TERM, term.span.clone(), format!("the equation of `{state_name}` has a second `dt` term"))
+                                .with_related(prev.clone(), "first `dt` term here")
+                                .with_help("combine the drift into one term: `(a + b) dt`"),
+                        );
+                        continue;
+                    }
+                    if let Some(d) = dim {
+                        self.check_coefficient(term, &d, &drift_dim, &state_name, &state_dim, true);
+                    }
+                    drift = Some(coefficient);
+                    drift_span = Some(term.span.clone());
+                }
+                ast::Differential::Noise { noise, token } => {
+                    let noise_index = match self.names.get(&noise.name).cloned() {
+                        Some((Target::Noise(i), _)) => {
+                            self.reference(noise, &Target::Noise(i));
+                            i
+                        }
+                        other => {
+                            let token_text = format!("d{}", noise.name);
+                            let mut d = Diagnostic::new(
+                                &rules::UNDEFINED_NAME,
+                                token.clone(),
+                                match other {
+                                    Some(_) => format!("`{token_text}` ends a term, but `{}` is not a noise", noise.name),
+                                    None => format!("`{token_text}` ends a term, but no noise `{}` is declared", noise.name),
+                                },
+                            );
+                            if self.names.contains_key(&token_text) {
+                                d = d.with_help(format!("`{token_text}` is a declared name; a term must end with `dt` or `dW`; write the differential after it: `{token_text} * ... dt`"));
+                            } else {
+                                d = d.with_help(format!("declare the noise with `noise {}`", noise.name));
+                                let insert_at = self.model.states.first().map(|s| line_start_of(self.source, s.span.start)).unwrap_or(0);
+                                d = d.with_fix(
+                                    format!("Declare `noise {}`", noise.name),
+                                    vec![TextEdit { span: insert_at..insert_at, new_text: format!("noise {}\n", noise.name) }],
+                                );
+                            }
+                            self.diagnostics.push(d);
+                            continue;
+                        }
+                    };
+                    if let Some(prev) = noise_terms.get(&noise_index) {
+                        self.diagnostics.push(
+                            Diagnostic::new(&rules::DUPLICATE_TERM, term.span.clone(), format!("the equation of `{state_name}` has a second term in `d{}`", noise.name))
+                                .with_related(prev.clone(), "first term here")
+                                .with_help(format!("combine them into one term: `(a + b) d{}`", noise.name)),
+                        );
+                        continue;
+                    }
+                    noise_terms.insert(noise_index, term.span.clone());
+                    self.noise_used[noise_index] = true;
+                    if let Some(d) = dim {
+                        self.check_coefficient(term, &d, &diffusion_dim, &state_name, &state_dim, false);
+                    }
+                    diffusion.push(DiffusionTerm {
+                        noise: noise_index,
+                        coefficient,
+                        span: term.span.clone(),
+                    });
+                }
+            }
+        }
+        Equation {
+            span: span.clone(),
+            lhs_span: eq.lhs.clone(),
+            drift: drift.unwrap_or(Expr::Const(0.0)),
+            drift_span,
+            diffusion,
+        }
+    }
+
+    fn check_coefficient(&mut self, term: &ast::Term, found: &Dimension, needed: &Dimension, state: &str, state_dim: &Dimension, is_drift: bool) {
+        if found == needed || term.coefficient.as_ref().is_some_and(is_zero_literal) {
+            return;
+        }
+        let clock = self.clock_unit().to_string();
+        let span = term.coefficient.as_ref().map(|c| c.span()).unwrap_or(term.span.clone());
+        let which = if is_drift { "drift" } else { "diffusion" };
+        let per = if is_drift { "per unit of clock time" } else { "per square root of clock time" };
+        let state_words = if state_dim.is_dimensionless() {
+            format!("the dimensionless state `{state}`")
+        } else {
+            format!("the state `{state}` ({})", state_dim.describe())
+        };
+        // Which parameter would mend it, if the coefficient is a product with one.
+        let culprit = term.coefficient.as_ref().and_then(|c| self.factor_param(c));
+        let mut message;
+        let mut d;
+        if let Some((param_index, ident_span)) = culprit {
+            let p = &self.model.params[param_index];
+            let wanted = needed.div(found).mul(&p.dimension);
+            let suggestion = suggest_unit_text(&wanted, &clock);
+            message = format!(
+                "`{}` is {}, but the {which} of {state_words} must be {} ({which} is the state's dimension {per}): did you mean [{suggestion}]?",
+                p.name,
+                p.dimension.describe(),
+                needed.describe(),
+            );
+            if found.div(&p.dimension).is_dimensionless() {
+                // The coefficient is the parameter alone (up to numbers).
+            } else {
+                message = format!(
+                    "the {which} coefficient of {state_words} is {}, but must be {} ({which} is the state's dimension {per}); if `{}` is the culprit, did you mean [{suggestion}]?",
+                    found.describe(),
+                    needed.describe(),
+                    p.name,
+                );
+            }
+            d = dimension_error(span, message).with_label(format!("{} here", found.describe()));
+            d = d.with_related(ident_span, format!("`{}` is declared in [{}]", p.name, p.unit_text.clone().unwrap_or_else(|| "1".to_string())));
+            if let Some(Some((unit_span, _))) = self.param_units.get(param_index) {
+                let unit_span = unit_span.clone();
+                d = d.with_fix(
+                    format!("Declare `{}` in [{suggestion}]", self.model.params[param_index].name),
+                    vec![TextEdit { span: unit_span, new_text: suggestion.clone() }],
+                );
+            } else {
+                let at = self.model.params[param_index].span.clone();
+                let value_end = self.param_value_end(param_index).unwrap_or(at.end);
+                d = d.with_fix(
+                    format!("Declare `{}` in [{suggestion}]", self.model.params[param_index].name),
+                    vec![TextEdit { span: value_end..value_end, new_text: format!(" [{suggestion}]") }],
+                );
+            }
+        } else {
+            message = format!(
+                "the {which} coefficient of {state_words} is {}, but must be {} ({which} is the state's dimension {per})",
+                found.describe(),
+                needed.describe()
+            );
+            d = dimension_error(span, message)
+                .with_label(format!("{} here", found.describe()))
+                .with_help(format!("write its parameters so the coefficient comes out in [{}]", suggest_unit_text(needed, &clock)));
+        }
+        self.diagnostics.push(d);
+    }
+
+    fn param_value_end(&self, param_index: usize) -> Option<usize> {
+        let name = &self.model.params[param_index].name;
+        self.file.statements.iter().find_map(|s| match &s.kind {
+            StatementKind::Param(decl) if &decl.name.name == name => Some(decl.value.span.end),
+            _ => None,
+        })
+    }
+
+    /// The first parameter that appears as a factor at the top of a product.
+    fn factor_param(&self, e: &ast::Expr) -> Option<(usize, Span)> {
+        match e {
+            ast::Expr::Name(ident) => match self.names.get(&ident.name) {
+                Some((Target::Param(i), decl)) => Some((*i, decl.clone())),
+                _ => None,
+            },
+            ast::Expr::Neg { operand, .. } | ast::Expr::Paren { inner: operand, .. } => self.factor_param(operand),
+            ast::Expr::Binary { op: ast::BinaryOp::Mul | ast::BinaryOp::Div, lhs, rhs, .. } => {
+                self.factor_param(lhs).or_else(|| match **rhs {
+                    ast::Expr::Name(_) => self.factor_param(rhs),
+                    _ => None,
+                })
+            }
+            _ => None,
+        }
+    }
+
+    fn expectations(&mut self) {
+        let file = self.file;
+        for statement in &file.statements {
+            let StatementKind::Expect(x) = &statement.kind else { continue };
+            let state = match self.names.get(&x.state.name).cloned() {
+                Some((Target::State(i), _)) => {
+                    self.reference(&x.state, &Target::State(i));
+                    i
+                }
+                Some(_) => {
+                    self.diagnostics.push(
+                        Diagnostic::new(&rules::UNDEFINED_NAME, x.state.span.clone(), format!("`{}` is not a state", x.state.name))
+                            .with_help("expectations pin figures of a state"),
+                    );
+                    continue;
+                }
+                None => {
+                    self.undefined(&x.state, "state ");
+                    continue;
+                }
+            };
+            let at = match &x.at {
+                Some(q) => match self.time_quantity(q, "the time of an expectation") {
+                    Some(t) if t >= 0.0 => Some(t),
+                    Some(_) => {
+                        self.diagnostics.push(
+                            Diagnostic::new(&rules::BOUND_VIOLATED, q.span.clone(), "the time of an expectation must not be negative")
+                                .with_help("write a time from now, e.g. `1 year`"),
+                        );
+                        continue;
+                    }
+                    None => continue,
+                },
+                None => None,
+            };
+            let state_dim = self.model.states[state].dimension.clone();
+            let state_scale = self.model.states[state].scale;
+            let (figure_dim, figure_scale) = match x.figure {
+                Figure::Mean | Figure::Sd | Figure::StationaryMean | Figure::StationarySd => (state_dim.clone(), state_scale),
+                Figure::Variance | Figure::StationaryVariance => (state_dim.mul(&state_dim), state_scale * state_scale),
+                Figure::Halflife => (Dimension::time(), 1.0),
+            };
+            let convert = |this: &mut Self, q: &ast::Quantity| -> Option<f64> {
+                match &q.unit {
+                    None => Some(q.number.value * if figure_dim == Dimension::time() { 1.0 } else { figure_scale }),
+                    Some(unit) => {
+                        let v = this.eval_unit(unit)?;
+                        if v.dimension != figure_dim {
+                            this.diagnostics.push(
+                                dimension_error(
+                                    unit.span(),
+                                    format!(
+                                        "`{}({})` is {}, but this bound is {}",
+                                        x.figure.keyword(),
+                                        x.state.name,
+                                        figure_dim.describe(),
+                                        v.dimension.describe()
+                                    ),
+                                )
+                                .with_help(format!("write the bound in [{}]", suggest_unit_text(&figure_dim, this.clock_unit()))),
+                            );
+                            return None;
+                        }
+                        Some(q.number.value * v.scale)
+                    }
+                }
+            };
+            let admissible = match &x.condition {
+                ast::Condition::Compare { op, value } => {
+                    let Some(v) = convert(self, value) else { continue };
+                    match op {
+                        ast::Comparison::Less => Interval { lower: None, upper: Some((v, false)) },
+                        ast::Comparison::LessEqual => Interval { lower: None, upper: Some((v, true)) },
+                        ast::Comparison::Greater => Interval { lower: Some((v, false)), upper: None },
+                        ast::Comparison::GreaterEqual => Interval { lower: Some((v, true)), upper: None },
+                    }
+                }
+                ast::Condition::Within { lower, lower_inclusive, upper, upper_inclusive } => {
+                    let (Some(a), Some(b)) = (convert(self, lower), convert(self, upper)) else { continue };
+                    Interval { lower: Some((a, *lower_inclusive)), upper: Some((b, *upper_inclusive)) }
+                }
+            };
+            self.model.expectations.push(Expectation {
+                figure: x.figure,
+                state,
+                at,
+                admissible,
+                span: statement.span.clone(),
+            });
+        }
+    }
+
+    fn unused(&mut self) {
+        for (i, p) in self.model.params.iter().enumerate() {
+            if !self.param_used[i] {
+                self.diagnostics.push(
+                    Diagnostic::new(&rules::UNUSED, p.name_span.clone(), format!("parameter `{}` is never used", p.name))
+                        .with_help("use it in an equation or a let, or remove it")
+                        .with_fix(format!("Remove `{}`", p.name), vec![TextEdit { span: whole_lines(self.source, &p.span), new_text: String::new() }]),
+                );
+            }
+        }
+        for (i, n) in self.model.noises.iter().enumerate() {
+            if !self.noise_used[i] {
+                self.diagnostics.push(
+                    Diagnostic::new(&rules::UNUSED, n.name_span.clone(), format!("noise `{}` drives no equation", n.name))
+                        .with_help(format!("add a term `... d{}` to an equation, or remove the noise", n.name)),
+                );
+            }
+        }
+        for (i, l) in self.model.lets.iter().enumerate() {
+            if !self.let_used[i] {
+                self.diagnostics.push(
+                    Diagnostic::new(&rules::UNUSED, l.name_span.clone(), format!("let `{}` is never used", l.name))
+                        .with_help("use it in an equation or another let, or remove it")
+                        .with_fix(format!("Remove `{}`", l.name), vec![TextEdit { span: whole_lines(self.source, &l.span), new_text: String::new() }]),
+                );
+            }
+        }
+    }
+}
+
+/// The offset just after the line that holds `offset` (after its newline).
+fn line_end_after(source: &str, offset: usize) -> usize {
+    source
+        .get(offset..)
+        .and_then(|rest| rest.find('\n'))
+        .map(|i| offset + i + 1)
+        .unwrap_or(source.len())
+}
+
+/// The offset where the line holding `offset` starts.
+fn line_start_of(source: &str, offset: usize) -> usize {
+    source
+        .get(..offset)
+        .and_then(|head| head.rfind('\n'))
+        .map(|i| i + 1)
+        .unwrap_or(0)
+}
+
+/// The lines that hold `span`, newline included.
+fn whole_lines(source: &str, span: &Span) -> Span {
+    line_start_of(source, span.start)..line_end_after(source, span.end)
+}
+
+/// The offset just after the `]` that closes a bracketed unit.
+fn unit_bracket_end(source: &str, unit: &ast::UnitExpr) -> usize {
+    let end = unit.span().end;
+    source
+        .get(end..)
+        .and_then(|rest| rest.find(']'))
+        .map(|i| end + i + 1)
+        .unwrap_or(end)
+}
+
+fn is_zero_literal(e: &ast::Expr) -> bool {
+    match e {
+        ast::Expr::Number(n) => n.value == 0.0,
+        ast::Expr::Paren { inner, .. } => is_zero_literal(inner),
+        _ => false,
+    }
+}
+
+fn contains_state_or_time(e: &Expr) -> bool {
+    match e {
+        Expr::State(_) | Expr::Time => true,
+        Expr::Const(_) | Expr::Param(_) | Expr::Invalid => false,
+        Expr::Neg(a) => contains_state_or_time(a),
+        Expr::Add(a, b) | Expr::Sub(a, b) | Expr::Mul(a, b) | Expr::Div(a, b) | Expr::Pow(a, b) => {
+            contains_state_or_time(a) || contains_state_or_time(b)
+        }
+        Expr::Call(_, args) => args.iter().any(contains_state_or_time),
+    }
+}
+
+/// A simple fraction (denominator up to 12) equal to `x` to 1e-9, if any.
+fn rational_approx(x: f64) -> Option<Rational> {
+    if !x.is_finite() {
+        return None;
+    }
+    for den in 1..=12i64 {
+        let num = (x * den as f64).round();
+        if (num / den as f64 - x).abs() < 1e-9 && num.abs() < 1e6 {
+            return Rational::new(num as i64, den);
+        }
+    }
+    None
+}
+
+fn convert_bound(b: &ast::Bound, scale: f64) -> Interval {
+    let s = if scale.is_finite() { scale } else { 1.0 };
+    Interval {
+        lower: b.lower.as_ref().map(|e| (e.value.value * s, e.inclusive)),
+        upper: b.upper.as_ref().map(|e| (e.value.value * s, e.inclusive)),
+    }
+}
+
+fn describe_bound(b: Option<&ast::Bound>) -> String {
+    let Some(b) = b else { return String::new() };
+    match (&b.lower, &b.upper) {
+        (Some(l), None) => format!("{} {}", if l.inclusive { ">=" } else { ">" }, l.value.text),
+        (None, Some(u)) => format!("{} {}", if u.inclusive { "<=" } else { "<" }, u.value.text),
+        (Some(l), Some(u)) => format!(
+            "in {}{}, {}{}",
+            if l.inclusive { "[" } else { "(" },
+            l.value.text,
+            u.value.text,
+            if u.inclusive { "]" } else { ")" }
+        ),
+        (None, None) => "(unbounded)".to_string(),
+    }
+}
+
+/// The declared name closest to `name` by edit distance, if close enough to be a typo.
+fn closest_name<'n>(name: &str, candidates: impl Iterator<Item = &'n String>) -> Option<String> {
+    let mut best: Option<(usize, &String)> = None;
+    for c in candidates {
+        let d = edit_distance(name, c);
+        let limit = (name.chars().count().max(c.chars().count()) / 3).max(1);
+        if d <= limit && best.is_none_or(|(bd, _)| d < bd) {
+            best = Some((d, c));
+        }
+    }
+    best.map(|(_, c)| c.clone())
+}
+
+fn edit_distance(a: &str, b: &str) -> usize {
+    let a: Vec<char> = a.chars().collect();
+    let b: Vec<char> = b.chars().collect();
+    let mut prev: Vec<usize> = (0..=b.len()).collect();
+    for (i, ca) in a.iter().enumerate() {
+        let mut row = vec![i + 1; b.len() + 1];
+        for (j, cb) in b.iter().enumerate() {
+            let cost = usize::from(ca != cb);
+            row[j + 1] = (prev[j] + cost).min(prev[j + 1] + 1).min(row[j] + 1);
+        }
+        prev = row;
+    }
+    prev[b.len()]
+}
