@@ -14,6 +14,7 @@
 //! `noncentral` (the noncentral chi-square law).
 
 pub mod algebra;
+pub mod describe;
 mod formulas;
 pub mod linear_system;
 pub mod noncentral;

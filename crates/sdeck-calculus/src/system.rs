@@ -4,7 +4,7 @@
 use crate::algebra::Poly;
 use crate::linear_system::{eigenvalues, AffineGaussian};
 use crate::one_state::{self, phi};
-use crate::shape::{correlation, noise_name, OneState};
+use crate::shape::{correlation, OneState};
 use crate::{
     formulas, ode, Analysis, Derivation, Family, LinearCoefficients, Method, Moments,
     SquareRootParams, StateLaw, Stationary,

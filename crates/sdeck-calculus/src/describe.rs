@@ -1,0 +1,62 @@
+//! Names of the pieces of an equation, for messages: which parameter is the speed, the
+//! level, the volatility of a square-root state, and how they print.
+
+use crate::algebra::{show_poly, Atom, Names, Poly};
+use crate::{analyse, Family};
+use sdeck_semantics::Model;
+
+/// The speed, level and squared volatility of a square-root state as the model writes
+/// them, with the parameter behind each when it is a single parameter.
+#[derive(Clone, Debug, PartialEq)]
+pub struct SquareRootTerms {
+    /// e.g. `kappa`.
+    pub speed: String,
+    /// e.g. `level`.
+    pub level: String,
+    /// e.g. `vol²`.
+    pub vol_squared: String,
+    /// The parameter that is the speed, when the speed is exactly one parameter.
+    pub speed_param: Option<usize>,
+    /// The parameter whose square is the squared volatility, when it is one parameter.
+    pub vol_param: Option<usize>,
+}
+
+/// The single parameter `p` when `poly` is exactly `p^power`.
+fn single_param(poly: &Poly, power: i64) -> Option<usize> {
+    let (monomial, coefficient) = poly.single_term()?;
+    match (monomial.as_slice(), coefficient) {
+        ([(Atom::Param(p), k)], c) if *k == power && c == 1.0 => Some(*p),
+        _ => None,
+    }
+}
+
+/// Describes state `state` when its family is square-root.
+pub fn square_root_terms(model: &Model, state: usize) -> Option<SquareRootTerms> {
+    let analysis = analyse(model);
+    let (os, family) = analysis.one_state(state)?;
+    if family != Family::SquareRoot {
+        return None;
+    }
+    let names = Names { model };
+    let speed = os.b.neg();
+    let level = os.a.divide_by_term(&speed);
+    let level_text = match &level {
+        Some(l) => show_poly(l, &names),
+        None => format!("({})/({})", show_poly(&os.a, &names), show_poly(&speed, &names)),
+    };
+    Some(SquareRootTerms {
+        speed: show_poly(&speed, &names),
+        level: level_text,
+        vol_squared: show_poly(&os.beta, &names),
+        speed_param: single_param(&speed, 1),
+        vol_param: single_param(&os.beta, 2),
+    })
+}
+
+/// The coefficient of the state in its own drift, printed (`−kappa`), for a state with a
+/// one-state family.
+pub fn drift_slope_text(model: &Model, state: usize) -> Option<String> {
+    let analysis = analyse(model);
+    let (os, _) = analysis.one_state(state)?;
+    Some(show_poly(&os.b, &Names { model }))
+}

@@ -1,0 +1,700 @@
+//! Checks that need the calculus: Feller condition, state domains, explosive drifts,
+//! consistency of the correlations and pinned expectations on derived figures.
+
+use nalgebra::{DMatrix, SymmetricEigen};
+use sdeck_calculus::algebra::to_poly;
+use sdeck_calculus::describe::square_root_terms;
+use sdeck_calculus::{moments_at, Derivation, Family, Method, StateLaw};
+use sdeck_diagnostics::{rules, Diagnostic};
+use sdeck_semantics::{Expr, Function, Interval, Model};
+
+/// Eigenvalues above this negative tolerance count as zero (rounding of a PSD matrix).
+const EIGENVALUE_TOLERANCE: f64 = 1e-12;
+
+/// Every diagnostic that follows from the derivation of `model`.
+pub fn derived_checks(model: &Model, derivation: &Derivation) -> Vec<Diagnostic> {
+    let mut out = Vec::new();
+    feller_condition(model, derivation, &mut out);
+    state_domain(model, derivation, &mut out);
+    not_mean_reverting(model, derivation, &mut out);
+    correlation_not_psd(model, &mut out);
+    expectations(model, derivation, &mut out);
+    out
+}
+
+/// A number with `digits` significant digits, trailing zeros dropped.
+fn number(x: f64, digits: i32) -> String {
+    if x == 0.0 || !x.is_finite() {
+        return format!("{x}");
+    }
+    let magnitude = x.abs().log10().floor() as i32;
+    if !(-5..=8).contains(&magnitude) {
+        return format!("{:.*e}", (digits - 1).max(0) as usize, x);
+    }
+    let decimals = (digits - 1 - magnitude).max(0) as usize;
+    let text = format!("{x:.decimals$}");
+    if text.contains('.') {
+        text.trim_end_matches('0').trim_end_matches('.').to_string()
+    } else {
+        text
+    }
+}
+
+/// Rounds up (`up`) or down to `digits` significant digits.
+fn round_significant(x: f64, digits: i32, up: bool) -> f64 {
+    if x == 0.0 || !x.is_finite() {
+        return x;
+    }
+    let magnitude = x.abs().log10().floor() as i32;
+    let factor = 10f64.powi(digits - 1 - magnitude);
+    let scaled = x * factor;
+    let rounded = if up { scaled.ceil() } else { scaled.floor() };
+    rounded / factor
+}
+
+fn state_name(model: &Model, state: usize) -> String {
+    model
+        .states
+        .get(state)
+        .map(|s| s.name.clone())
+        .unwrap_or_default()
+}
+
+fn equation_span(model: &Model, state: usize) -> Option<std::ops::Range<usize>> {
+    model
+        .states
+        .get(state)?
+        .equation
+        .as_ref()
+        .map(|e| e.span.clone())
+}
+
+/// A value in clock units printed in the parameter's own unit.
+fn in_param_unit(model: &Model, param: usize, clock_value: f64, up: bool) -> String {
+    let Some(p) = model.params.get(param) else {
+        return number(clock_value, 3);
+    };
+    let written = if p.scale != 0.0 {
+        clock_value / p.scale
+    } else {
+        clock_value
+    };
+    let rounded = round_significant(written, 3, up);
+    match &p.unit_text {
+        Some(unit) => format!("{} [{unit}]", number(rounded, 3)),
+        None => number(rounded, 3),
+    }
+}
+
+/// `feller-condition`: 2·speed·level < vol² makes zero attainable
+/// (Feller 1951; Cox, Ingersoll & Ross 1985, §3).
+fn feller_condition(model: &Model, derivation: &Derivation, out: &mut Vec<Diagnostic>) {
+    for (state, law) in derivation.states.iter().enumerate() {
+        let Some(sr) = &law.square_root else {
+            continue;
+        };
+        let drift_side = 2.0 * sr.speed * sr.level;
+        let vol_squared = sr.vol * sr.vol;
+        if !(drift_side < vol_squared) || !(sr.speed > 0.0) {
+            continue;
+        }
+        let Some(span) = equation_span(model, state) else {
+            continue;
+        };
+        let terms = square_root_terms(model, state);
+        let (speed, level, vol2) = terms
+            .as_ref()
+            .map(|t| (t.speed.clone(), t.level.clone(), t.vol_squared.clone()))
+            .unwrap_or_else(|| ("speed".into(), "level".into(), "vol²".into()));
+        let clock = &model.clock.unit;
+        let needed_speed = vol_squared / (2.0 * sr.level);
+        let allowed_vol = drift_side.max(0.0).sqrt();
+        let raise = match terms.as_ref().and_then(|t| t.speed_param) {
+            Some(p) => format!(
+                "raise {} to at least {}",
+                model.params.get(p).map(|p| p.name.as_str()).unwrap_or("the speed"),
+                in_param_unit(model, p, needed_speed, true)
+            ),
+            None => format!(
+                "raise the speed {speed} to at least {} per {clock}",
+                number(round_significant(needed_speed, 3, true), 3)
+            ),
+        };
+        let lower = match terms.as_ref().and_then(|t| t.vol_param) {
+            Some(p) => format!(
+                "lower {} to at most {}",
+                model.params.get(p).map(|p| p.name.as_str()).unwrap_or("the volatility"),
+                in_param_unit(model, p, allowed_vol, false)
+            ),
+            None => format!(
+                "lower the volatility so that {vol2} is at most {}",
+                number(round_significant(drift_side, 3, false), 3)
+            ),
+        };
+        let name = state_name(model, state);
+        let message = format!(
+            "2·{speed}·{level} = {} < {vol2} = {} (per {clock}): zero is attainable for {name}; \
+             {raise} or {lower}",
+            number(drift_side, 3),
+            number(vol_squared, 3),
+        );
+        let diagnostic = Diagnostic::new(&rules::FELLER_CONDITION, span, message)
+            .with_label(format!("{name} can reach zero"))
+            .with_help(format!("{raise}, or {lower}"))
+            .with_note(
+                "with 2·speed·level ≥ vol² a square-root process started above zero never \
+                 reaches zero; below it, zero is hit with positive probability",
+            );
+        out.push(diagnostic);
+    }
+}
+
+/// Whether the law of a state is Gaussian (support the whole real line) with noise.
+fn is_gaussian_with_noise(law: &StateLaw) -> bool {
+    let additive = match law.family {
+        Family::ArithmeticBrownian | Family::OrnsteinUhlenbeck | Family::LinearSystem => true,
+        Family::Linear => match &law.linear {
+            Some(lc) => lc.d.is_empty(),
+            None => law.method == Method::Quadrature,
+        },
+        _ => false,
+    };
+    let has_noise = match &law.linear {
+        Some(lc) => lc.c.iter().any(|(_, c)| *c != 0.0),
+        None => true,
+    };
+    additive && has_noise
+}
+
+/// Applications of sqrt, log or a half power to an expression mentioning states.
+fn restricted_calls<'e>(expr: &'e Expr, out: &mut Vec<(&'static str, &'e Expr)>) {
+    match expr {
+        Expr::Call(Function::Sqrt, args) => {
+            args.iter().for_each(|a| out.push(("sqrt", a)));
+            args.iter().for_each(|a| restricted_calls(a, out));
+        }
+        Expr::Call(Function::Log, args) => {
+            args.iter().for_each(|a| out.push(("log", a)));
+            args.iter().for_each(|a| restricted_calls(a, out));
+        }
+        Expr::Call(_, args) => args.iter().for_each(|a| restricted_calls(a, out)),
+        Expr::Pow(base, exponent) => {
+            if let Expr::Const(e) = **exponent {
+                if e.fract() != 0.0 {
+                    out.push(("sqrt", base));
+                }
+            }
+            restricted_calls(base, out);
+            restricted_calls(exponent, out);
+        }
+        Expr::Neg(a) => restricted_calls(a, out),
+        Expr::Add(a, b) | Expr::Sub(a, b) | Expr::Mul(a, b) | Expr::Div(a, b) => {
+            restricted_calls(a, out);
+            restricted_calls(b, out);
+        }
+        _ => {}
+    }
+}
+
+/// `state-domain`: sqrt/log of a state whose law leaves the domain, declared bounds a
+/// family cannot keep, impossible starts.
+fn state_domain(model: &Model, derivation: &Derivation, out: &mut Vec<Diagnostic>) {
+    // (a) sqrt or log of a Gaussian state.
+    for (owner, state) in model.states.iter().enumerate() {
+        let Some(eq) = &state.equation else {
+            continue;
+        };
+        let mut calls = Vec::new();
+        restricted_calls(&eq.drift, &mut calls);
+        for term in &eq.diffusion {
+            restricted_calls(&term.coefficient, &mut calls);
+        }
+        let mut reported = Vec::new();
+        for (function, argument) in calls {
+            let Ok(poly) = to_poly(argument) else {
+                continue;
+            };
+            if poly.state_degree() != 1 {
+                continue;
+            }
+            for gaussian in poly.states() {
+                let Some(law) = derivation.states.get(gaussian) else {
+                    continue;
+                };
+                if !is_gaussian_with_noise(law) || reported.contains(&(function, gaussian)) {
+                    continue;
+                }
+                reported.push((function, gaussian));
+                let name = state_name(model, gaussian);
+                let domain = if function == "log" {
+                    "positive"
+                } else {
+                    "non-negative"
+                };
+                let message = format!(
+                    "`{function}` of {name} in the equation of {}: {name} is {} (Gaussian), so it \
+                     takes negative values with positive probability and `{function}` needs a \
+                     {domain} argument",
+                    state.name,
+                    law.family.as_str()
+                );
+                let help = if function == "sqrt" {
+                    format!(
+                        "use a square-root diffusion for {name} (`vol * sqrt({name}) dW`) so \
+                         that it stays non-negative, or write `sqrt(max({name}, 0))`"
+                    )
+                } else {
+                    format!(
+                        "model log {name} itself as the state, or give {name} a proportional \
+                         diffusion (`vol * {name} dW`) so that it stays positive"
+                    )
+                };
+                out.push(
+                    Diagnostic::new(&rules::STATE_DOMAIN, eq.span.clone(), message)
+                        .with_help(help)
+                        .with_related(state_span(model, gaussian), format!("{name} declared here")),
+                );
+            }
+        }
+        let _ = owner;
+    }
+    // (b), (c), (d): bounds and starts.
+    for (index, law) in derivation.states.iter().enumerate() {
+        let Some(state) = model.states.get(index) else {
+            continue;
+        };
+        let name = &state.name;
+        let x0 = state.initial;
+        match law.family {
+            Family::GeometricBrownian if x0 <= 0.0 => {
+                let what = if x0 == 0.0 {
+                    "stays at zero forever"
+                } else {
+                    "stays negative"
+                };
+                out.push(
+                    Diagnostic::new(
+                        &rules::STATE_DOMAIN,
+                        state.span.clone(),
+                        format!(
+                            "{name} is geometric-brownian and starts at {}: it {what}, since a \
+                             proportional diffusion keeps the sign of its start",
+                            number(state.written, 4)
+                        ),
+                    )
+                    .with_help(format!("start {name} at a positive value")),
+                );
+                continue;
+            }
+            Family::SquareRoot if x0 < 0.0 => {
+                out.push(
+                    Diagnostic::new(
+                        &rules::STATE_DOMAIN,
+                        state.span.clone(),
+                        format!(
+                            "{name} is square-root and starts at {}: sqrt({name}) is undefined \
+                             below zero",
+                            number(state.written, 4)
+                        ),
+                    )
+                    .with_help(format!("start {name} at zero or above")),
+                );
+                continue;
+            }
+            _ => {}
+        }
+        if !state.has_domain {
+            continue;
+        }
+        let support = match law.family {
+            Family::GeometricBrownian if x0 > 0.0 => Some((Some((0.0, false)), "(0, ∞)")),
+            Family::SquareRoot => Some((Some((0.0, true)), "[0, ∞)")),
+            _ if is_gaussian_with_noise(law) => Some((None, "the whole real line")),
+            _ => None,
+        };
+        let Some((lower, support_text)) = support else {
+            continue;
+        };
+        if interval_keeps(&state.domain, lower) {
+            continue;
+        }
+        let keep = match law.family {
+            Family::OrnsteinUhlenbeck | Family::ArithmeticBrownian | Family::Linear => format!(
+                "use a square-root diffusion (`vol * sqrt({name}) dW`) to keep {name} ≥ 0, or \
+                 drop the bound"
+            ),
+            _ => "widen the bound to the support of the law, or drop it".to_string(),
+        };
+        out.push(
+            Diagnostic::new(
+                &rules::STATE_DOMAIN,
+                state.span.clone(),
+                format!(
+                    "{name} is {} and its law spreads over {support_text}, so it leaves the \
+                     declared domain {} with positive probability",
+                    law.family.as_str(),
+                    show_interval(&state.domain)
+                ),
+            )
+            .with_help(keep)
+            .with_related(
+                equation_span(model, index).unwrap_or_else(|| state.span.clone()),
+                "the equation that sets the law",
+            ),
+        );
+    }
+}
+
+fn state_span(model: &Model, state: usize) -> std::ops::Range<usize> {
+    model
+        .states
+        .get(state)
+        .map(|s| s.name_span.clone())
+        .unwrap_or(0..0)
+}
+
+/// Whether `domain` contains the support `[lower, ∞)` (or `(lower, ∞)`, or ℝ when
+/// `lower` is `None`).
+fn interval_keeps(domain: &Interval, lower: Option<(f64, bool)>) -> bool {
+    if domain.upper.is_some() {
+        return false;
+    }
+    match (domain.lower, lower) {
+        (None, _) => true,
+        (Some(_), None) => false,
+        (Some((bound, bound_inclusive)), Some((support, support_inclusive))) => {
+            bound < support
+                || (bound == support && (bound_inclusive || !support_inclusive))
+        }
+    }
+}
+
+fn show_interval(interval: &Interval) -> String {
+    let lower = match interval.lower {
+        None => "(−∞".to_string(),
+        Some((v, true)) => format!("[{}", number(v, 6)),
+        Some((v, false)) => format!("({}", number(v, 6)),
+    };
+    let upper = match interval.upper {
+        None => "∞)".to_string(),
+        Some((v, true)) => format!("{}]", number(v, 6)),
+        Some((v, false)) => format!("{})", number(v, 6)),
+    };
+    format!("{lower}, {upper}")
+}
+
+/// `not-mean-reverting`: a positive linear coefficient in a mean-reverting family, or an
+/// eigenvalue of a coupled drift matrix with positive real part.
+fn not_mean_reverting(model: &Model, derivation: &Derivation, out: &mut Vec<Diagnostic>) {
+    let clock = &model.clock.unit;
+    for (index, law) in derivation.states.iter().enumerate() {
+        let eligible = match law.family {
+            Family::OrnsteinUhlenbeck => true,
+            Family::Linear => law.linear.as_ref().is_some_and(|lc| lc.d.is_empty()),
+            Family::SquareRoot => true,
+            _ => false,
+        };
+        if !eligible {
+            continue;
+        }
+        let b = match (&law.linear, &law.square_root) {
+            (Some(lc), _) => lc.b,
+            (None, Some(sr)) => -sr.speed,
+            _ => continue,
+        };
+        if !(b > 0.0) {
+            continue;
+        }
+        let Some(span) = equation_span(model, index) else {
+            continue;
+        };
+        let name = state_name(model, index);
+        let slope = sdeck_calculus::describe::drift_slope_text(model, index)
+            .unwrap_or_else(|| "b".to_string());
+        let doubling = std::f64::consts::LN_2 / b;
+        out.push(
+            Diagnostic::new(
+                &rules::NOT_MEAN_REVERTING,
+                span,
+                format!(
+                    "the drift of {name} pushes away from its level: the coefficient of {name} \
+                     is {slope} = +{} per {clock} (> 0), so deviations double every {} {clock}s \
+                     (ln 2/{})",
+                    number(b, 4),
+                    number(doubling, 3),
+                    number(b, 4)
+                ),
+            )
+            .with_help(format!(
+                "make the coefficient of {name} negative, e.g. write `kappa * (level - {name})` \
+                 with kappa > 0"
+            )),
+        );
+    }
+    // Coupled states: eigenvalues of each connected block of the drift matrix.
+    let Some(matrix) = &derivation.drift_matrix else {
+        return;
+    };
+    if derivation.system_family != Family::LinearSystem {
+        return;
+    }
+    for block in coupled_blocks(derivation) {
+        let size = block.len();
+        let sub = DMatrix::from_fn(size, size, |r, c| {
+            let (Some(&i), Some(&j)) = (block.get(r), block.get(c)) else {
+                return 0.0;
+            };
+            matrix.get(i).and_then(|row| row.get(j)).copied().unwrap_or(0.0)
+        });
+        if sub.iter().any(|v| !v.is_finite()) {
+            continue;
+        }
+        let eigen = sdeck_calculus::linear_system::eigenvalues(&sub);
+        let Some(&(re, im)) = eigen
+            .iter()
+            .max_by(|x, y| x.0.partial_cmp(&y.0).unwrap_or(std::cmp::Ordering::Equal))
+        else {
+            continue;
+        };
+        if !(re > 0.0) {
+            continue;
+        }
+        let names: Vec<String> = block.iter().map(|i| state_name(model, *i)).collect();
+        let Some(&first) = block.first() else {
+            continue;
+        };
+        let Some(span) = equation_span(model, first) else {
+            continue;
+        };
+        let eigen_text = if im != 0.0 {
+            format!("{} ± {}i", number(re, 4), number(im.abs(), 4))
+        } else {
+            number(re, 4)
+        };
+        let mut diagnostic = Diagnostic::new(
+            &rules::NOT_MEAN_REVERTING,
+            span,
+            format!(
+                "the coupled drift of {} is explosive: its drift matrix has the eigenvalue {} \
+                 per {clock} with positive real part, so deviations double every {} {clock}s \
+                 (ln 2/{})",
+                names.join(", "),
+                eigen_text,
+                number(std::f64::consts::LN_2 / re, 3),
+                number(re, 4)
+            ),
+        )
+        .with_help(
+            "make every eigenvalue of the drift matrix negative: strengthen the reversion \
+             (more negative own coefficients) or weaken the cross terms",
+        );
+        for other in block.iter().skip(1) {
+            if let Some(span) = equation_span(model, *other) {
+                diagnostic = diagnostic.with_related(span, "coupled equation");
+            }
+        }
+        out.push(diagnostic);
+    }
+}
+
+/// Connected groups (size > 1) of states linked through their equations.
+fn coupled_blocks(derivation: &Derivation) -> Vec<Vec<usize>> {
+    let n = derivation.states.len();
+    let mut group: Vec<usize> = (0..n).collect();
+    fn root(group: &mut [usize], mut i: usize) -> usize {
+        while let Some(&parent) = group.get(i) {
+            if parent == i {
+                break;
+            }
+            i = parent;
+        }
+        i
+    }
+    for (i, law) in derivation.states.iter().enumerate() {
+        for &j in &law.depends_on {
+            if j >= n {
+                continue;
+            }
+            let (ri, rj) = (root(&mut group, i), root(&mut group, j));
+            if ri != rj {
+                if let Some(slot) = group.get_mut(ri) {
+                    *slot = rj;
+                }
+            }
+        }
+    }
+    let mut blocks: Vec<Vec<usize>> = Vec::new();
+    let mut roots: Vec<usize> = Vec::new();
+    for i in 0..n {
+        let r = root(&mut group, i);
+        match roots.iter().position(|x| *x == r) {
+            Some(k) => {
+                if let Some(block) = blocks.get_mut(k) {
+                    block.push(i);
+                }
+            }
+            None => {
+                roots.push(r);
+                blocks.push(vec![i]);
+            }
+        }
+    }
+    blocks.retain(|b| b.len() > 1);
+    blocks
+}
+
+/// `correlation-not-psd`: the correlation matrix must be positive semi-definite for the
+/// noises to exist jointly.
+fn correlation_not_psd(model: &Model, out: &mut Vec<Diagnostic>) {
+    let Some(first) = model.correlations.first() else {
+        return;
+    };
+    let rows = model.correlation_matrix();
+    let n = rows.len();
+    if n < 2 {
+        return;
+    }
+    let matrix = DMatrix::from_fn(n, n, |r, c| {
+        rows.get(r).and_then(|row| row.get(c)).copied().unwrap_or(0.0)
+    });
+    if matrix.iter().any(|v| !v.is_finite()) {
+        return;
+    }
+    let eigen = SymmetricEigen::new(matrix);
+    let smallest = eigen.eigenvalues.iter().copied().fold(f64::INFINITY, f64::min);
+    if !(smallest < -EIGENVALUE_TOLERANCE) {
+        return;
+    }
+    let mut diagnostic = Diagnostic::new(
+        &rules::CORRELATION_NOT_PSD,
+        first.span.clone(),
+        format!(
+            "the correlations of the noises contradict each other: their matrix has the \
+             eigenvalue {} < 0, so no set of Brownian motions has these correlations",
+            number(smallest, 4)
+        ),
+    )
+    .with_help(
+        "bring the correlations closer to zero (for three noises, two strong positive \
+         correlations force the third to be positive too)",
+    );
+    for other in model.correlations.iter().skip(1) {
+        diagnostic = diagnostic.with_related(other.span.clone(), "also part of the matrix");
+    }
+    out.push(diagnostic);
+}
+
+/// `expectation-failed`: a pinned figure outside its admissible interval, or a figure
+/// that does not exist for the state's family.
+fn expectations(model: &Model, derivation: &Derivation, out: &mut Vec<Diagnostic>) {
+    let clock = &model.clock.unit;
+    for expectation in &model.expectations {
+        let Some(law) = derivation.states.get(expectation.state) else {
+            continue;
+        };
+        let name = state_name(model, expectation.state);
+        let keyword = expectation.figure.keyword();
+        let time = expectation.at.unwrap_or(model.horizon);
+        // The figure is matched by its keyword: the syntax crate that defines the enum is
+        // not a dependency of this crate.
+        let (value, described) = match keyword {
+            "mean" | "variance" | "sd" => {
+                let moments = moments_at(model, derivation, time);
+                let mean = moments.mean.get(expectation.state).copied().flatten();
+                let variance = moments.variance.get(expectation.state).copied().flatten();
+                let value = match keyword {
+                    "mean" => mean,
+                    "variance" => variance,
+                    _ => variance.map(|v| v.max(0.0).sqrt()),
+                };
+                (value, format!("{keyword}({name}, {} {clock})", number(time, 6)))
+            }
+            "halflife" => (law.half_life, format!("halflife({name})")),
+            "stationary_mean" => (
+                law.stationary.as_ref().map(|s| s.mean),
+                format!("stationary_mean({name})"),
+            ),
+            "stationary_variance" => (
+                law.stationary.as_ref().map(|s| s.variance),
+                format!("stationary_variance({name})"),
+            ),
+            _ => (
+                law.stationary.as_ref().map(|s| s.variance.max(0.0).sqrt()),
+                format!("{keyword}({name})"),
+            ),
+        };
+        match value {
+            None => {
+                let why = match keyword {
+                    "halflife" => "no half-life (it needs a constant negative drift slope)",
+                    "mean" | "variance" | "sd" => "no known value for this figure",
+                    _ => "no stationary law",
+                };
+                out.push(
+                    Diagnostic::new(
+                        &rules::EXPECTATION_FAILED,
+                        expectation.span.clone(),
+                        format!(
+                            "{described} does not exist: {name} is {} and has {why} ({})",
+                            law.family.as_str(),
+                            law.reason
+                        ),
+                    )
+                    .with_help("pin a figure that the family has, or remove the expectation"),
+                );
+            }
+            Some(v) if !expectation.admissible.contains(v) => {
+                out.push(
+                    Diagnostic::new(
+                        &rules::EXPECTATION_FAILED,
+                        expectation.span.clone(),
+                        format!(
+                            "{described} = {} is outside the expected {}",
+                            number(v, 6),
+                            show_interval(&expectation.admissible)
+                        ),
+                    )
+                    .with_note(format!(
+                        "figures are in clock units ({clock}); derived by {}",
+                        law.method.as_str()
+                    ))
+                    .with_help(
+                        "change the parameters so that the figure falls in the interval, or \
+                         update the expectation if the model is right",
+                    ),
+                );
+            }
+            Some(_) => {}
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn numbers_print_with_significant_digits() {
+        assert_eq!(number(0.0576, 3), "0.0576");
+        assert_eq!(number(0.09, 3), "0.09");
+        assert_eq!(number(1386.29, 3), "1386");
+        assert_eq!(round_significant(0.78125, 3, true), 0.782);
+        assert_eq!(round_significant(0.2449, 2, false), 0.24);
+    }
+
+    #[test]
+    fn bound_containment() {
+        let nonnegative = Interval {
+            lower: Some((0.0, true)),
+            upper: None,
+        };
+        assert!(!interval_keeps(&nonnegative, None));
+        assert!(interval_keeps(&nonnegative, Some((0.0, true))));
+        let positive = Interval {
+            lower: Some((0.0, false)),
+            upper: None,
+        };
+        assert!(!interval_keeps(&positive, Some((0.0, true))));
+        assert!(interval_keeps(&positive, Some((0.0, false))));
+    }
+}
