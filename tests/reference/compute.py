@@ -1243,8 +1243,18 @@ def model_record(spec: ModelSpec) -> dict:
     }
 
 
-def compute_all() -> dict:
-    records = sorted((model_record(spec) for spec in MODELS), key=lambda r: r["file"])
+def compute_all(errors: dict[str, str] | None = None) -> dict:
+    """All records. With `errors`, a model that fails is noted there and skipped;
+    without it, the first failure raises."""
+    records = []
+    for spec in MODELS:
+        try:
+            records.append(model_record(spec))
+        except (ReferenceError, ArithmeticError, ValueError) as error:
+            if errors is None:
+                raise
+            errors[spec.relative_path] = str(error)
+    records.sort(key=lambda r: r["file"])
     return {
         "generated_by": "tests/reference/compute.py",
         "python": platform.python_version(),
@@ -1338,18 +1348,26 @@ def run_check() -> int:
     except (OSError, json.JSONDecodeError) as error:
         print(f"reference: cannot read {EXPECTED_PATH}: {error}", file=sys.stderr)
         return 1
-    actual = compute_all()
+    errors: dict[str, str] = {}
+    actual = compute_all(errors)
     for key in ("python", "scipy", "sympy"):
         if expected.get(key) != actual[key]:
             print(f"note: expected.json was made with {key} {expected.get(key)}, this run has {actual[key]}")
-    problems = compare_documents(expected, actual)
-    failed_models = sorted({p.split(":")[0].split(".sde")[0] for p in problems})
+    failed_models: set[str] = set()
+    for file, message in sorted(errors.items()):
+        print(f"failed: {message}")
+        failed_models.add(file)
+    # A model that could not be computed is reported above, not as "no longer computed".
+    expected_without_errors = dict(expected)
+    expected_without_errors["models"] = [m for m in expected.get("models", []) if m.get("file") not in errors]
+    problems = compare_documents(expected_without_errors, actual)
     for problem in problems:
         print(f"changed: {problem}")
-    total = len(actual["models"])
-    failed = min(len(failed_models), total)
+        failed_models.add(problem.split(".sde", 1)[0] + ".sde" if ".sde" in problem else problem.split(":")[0])
+    total = len({m.get("file") for m in expected.get("models", [])} | {m["file"] for m in actual["models"]} | set(errors))
+    failed = len(failed_models)
     print(f"reference: {total - failed} passed, {failed} failed")
-    return 1 if problems else 0
+    return 1 if failed_models else 0
 
 
 def main(argv: list[str] | None = None) -> int:
