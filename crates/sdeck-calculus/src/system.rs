@@ -2,9 +2,10 @@
 //! coupled states and cross-covariances through the engines for several states.
 
 use crate::algebra::Poly;
-use crate::linear_system::{eigenvalues, AffineGaussian};
+use crate::linear_system::{eigenvalues, matrix_exponential, AffineGaussian};
+use crate::polynomial::PolynomialSystem;
 use crate::one_state::{self, phi};
-use crate::shape::{correlation, OneState};
+use crate::shape::{correlation, diffusion_product, OneState};
 use crate::{
     formulas, ode, Analysis, Derivation, Family, LinearCoefficients, Method, Moments,
     SquareRootParams, StateLaw, Stationary,
@@ -19,9 +20,16 @@ pub(crate) fn derive(model: &Model, analysis: &Analysis) -> Derivation {
     let params = &analysis.params;
     let system = &analysis.system;
     let system_engine = linear_engine(model, analysis);
-    let stationary_system = system_engine.as_ref().and_then(|engine| {
-        Some((engine.stationary_mean()?, engine.stationary_covariance()?))
-    });
+    let stationary_system = match &system_engine {
+        Some(engine) => engine
+            .stationary_mean()
+            .zip(engine.stationary_covariance())
+            .map(|(mean, cov)| (mean, cov, "Normal (marginal of the stationary law of the linear system)")),
+        None => polynomial_engine(model, analysis)
+            .and_then(|engine| engine.stationary_moments(2))
+            .and_then(|table| Some((table.means(), table.covariance_matrix()?)))
+            .map(|(mean, cov)| (mean, cov, "no named law: mean and variance of the stationary moments")),
+    };
     for (i, classified) in analysis.classified.iter().enumerate() {
         if let Some((os, family)) = analysis.one_state(i) {
             states.push(one_state_law(model, analysis, i, os, family));
@@ -50,13 +58,12 @@ pub(crate) fn derive(model: &Model, analysis: &Analysis) -> Derivation {
         } else {
             (Family::General, classified.reason.clone(), Method::None)
         };
-        let stationary = if family == Family::LinearSystem {
-            stationary_system.as_ref().and_then(|(mean, covariance)| {
+        let stationary = if matches!(family, Family::LinearSystem | Family::Polynomial) {
+            stationary_system.as_ref().and_then(|(mean, covariance, law)| {
                 Some(Stationary {
                     mean: *mean.get(i)?,
                     variance: *covariance.get((i, i))?,
-                    law: "Normal (marginal of the stationary law of the linear system)"
-                        .to_string(),
+                    law: law.to_string(),
                 })
             })
         } else {
@@ -134,7 +141,9 @@ fn one_state_law(
         family,
         Family::OrnsteinUhlenbeck | Family::SquareRoot | Family::Linear | Family::Polynomial
     );
-    let half_life = (mean_reverting_family && !os.time_dependent && values.b < 0.0)
+    // The half-life needs only a constant slope: a level that moves with t still
+    // reverts at the rate |b|.
+    let half_life = (mean_reverting_family && !os.b.depends_on_time() && values.b < 0.0)
         .then(|| std::f64::consts::LN_2 / values.b.abs());
     let stationary = if mean_reverting_family {
         one_state::stationary(os, params).map(|(mean, variance)| Stationary {
@@ -205,6 +214,53 @@ pub(crate) fn linear_engine(model: &Model, analysis: &Analysis) -> Option<Affine
     let m = model.noises.len();
     let corr = DMatrix::from_fn(m, m, |k, l| correlation(&analysis.corr, k, l));
     AffineGaussian::new(a, b, loadings, corr).ok()
+}
+
+/// The moment engine of a polynomial system with constant coefficients: drift b + A x,
+/// instantaneous covariance c0 + Σ_k x_k c1[k] + Σ_kl x_k x_l c2[k][l].
+pub(crate) fn polynomial_engine(model: &Model, analysis: &Analysis) -> Option<PolynomialSystem> {
+    let system = &analysis.system;
+    if system.family != Family::Polynomial || system.time_dependent {
+        return None;
+    }
+    let rows = system.drift_rows.as_ref()?;
+    let n = model.states.len();
+    let params = &analysis.params;
+    let a = DMatrix::from_fn(n, n, |r, c| {
+        rows.get(r)
+            .and_then(|(cs, _)| cs.get(c))
+            .map(|p| p.value(params, 0.0))
+            .unwrap_or(0.0)
+    });
+    let b = DVector::from_fn(n, |r, _| {
+        rows.get(r).map(|(_, k)| k.value(params, 0.0)).unwrap_or(0.0)
+    });
+    let mut c0 = DMatrix::zeros(n, n);
+    let mut c1 = vec![DMatrix::zeros(n, n); n];
+    let mut c2 = vec![vec![DMatrix::zeros(n, n); n]; n];
+    for i in 0..n {
+        for j in 0..n {
+            let (Some(si), Some(sj)) = (system.shapes.get(i), system.shapes.get(j)) else {
+                return None;
+            };
+            let product = diffusion_product(&si.noises, &sj.noises, &analysis.corr).ok()?;
+            for (key, coefficient) in product.by_state_monomial() {
+                let value = coefficient.value(params, 0.0);
+                match key.as_slice() {
+                    [] => c0[(i, j)] += value,
+                    [(k, 1)] => c1.get_mut(*k)?[(i, j)] += value,
+                    [(k, 2)] => c2.get_mut(*k)?.get_mut(*k)?[(i, j)] += value,
+                    [(k, 1), (l, 1)] => {
+                        // x_k x_l appears twice in the double sum: split it evenly.
+                        c2.get_mut(*k)?.get_mut(*l)?[(i, j)] += value / 2.0;
+                        c2.get_mut(*l)?.get_mut(*k)?[(i, j)] += value / 2.0;
+                    }
+                    _ => return None,
+                }
+            }
+        }
+    }
+    PolynomialSystem::new(b, a, c0, c1, c2).ok()
 }
 
 /// A, b and the loadings L of a linear system at time `t`.
@@ -304,6 +360,11 @@ pub(crate) fn moments_at(
         } else {
             None
         }
+    } else if valid_time {
+        polynomial_engine(model, analysis).and_then(|engine| {
+            let table = engine.moments_at(&DVector::from_vec(x0.clone()), t, 2);
+            Some((table.means(), table.covariance_matrix()?, Method::MomentEquations))
+        })
     } else {
         None
     };
@@ -416,10 +477,23 @@ pub(crate) fn autocovariance(
     if let Some((os, family)) = analysis.one_state(state) {
         return one_state::autocovariance(os, family, &analysis.params, x0, s, t);
     }
-    let engine = linear_engine(model, analysis)?;
+    // Coupled affine drift: E[X_t | X_s] = e^{A(t−s)} X_s + const, so
+    // Cov(X_s, X_t) = Cov[X_s] e^{Aᵀ(t−s)} (Kloeden & Platen 1992, §4.8).
     let (early, late) = if s <= t { (s, t) } else { (t, s) };
-    engine
-        .cross_covariance(early, late)
+    let rows = derivation.drift_matrix.as_ref()?;
+    let n = rows.len();
+    let a = DMatrix::from_fn(n, n, |r, c| {
+        rows.get(r).and_then(|row| row.get(c)).copied().unwrap_or(f64::NAN)
+    });
+    let moments = moments_at(model, derivation, analysis, early);
+    let mut cov = DMatrix::zeros(n, n);
+    for r in 0..n {
+        for c in 0..n {
+            cov[(r, c)] = moments.covariance.get(r)?.get(c).copied().flatten()?;
+        }
+    }
+    let propagator = matrix_exponential(&(a.transpose() * (late - early)));
+    (cov * propagator)
         .get((state, state))
         .copied()
         .filter(|v| v.is_finite())

@@ -1,0 +1,153 @@
+//! Compares derived figures with tests/reference/expected.json, computed independently
+//! in Python (numpy, scipy, sympy; see tests/reference/README.md for each method).
+
+use sdeck_calculus::{derive, moments_at, Family};
+use serde_json::Value;
+use std::path::PathBuf;
+
+fn workspace_root() -> PathBuf {
+    PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("../..")
+}
+
+fn number(value: &Value) -> Option<f64> {
+    value.as_f64()
+}
+
+/// |ours − reference| ≤ tolerance · scale, or both absent.
+fn check(
+    failures: &mut Vec<String>,
+    what: String,
+    ours: Option<f64>,
+    reference: Option<f64>,
+    scale: f64,
+    tolerance: f64,
+) {
+    match (ours, reference) {
+        (None, None) => {}
+        (Some(a), Some(b)) => {
+            let allowed = tolerance * scale.abs().max(f64::MIN_POSITIVE);
+            if !((a - b).abs() <= allowed) {
+                failures.push(format!(
+                    "{what}: ours {a:e}, reference {b:e}, gap {:e} > {allowed:e}",
+                    (a - b).abs()
+                ));
+            }
+        }
+        (a, b) => failures.push(format!("{what}: ours {a:?}, reference {b:?}")),
+    }
+}
+
+#[test]
+fn figures_agree_with_the_independent_reference() {
+    let root = workspace_root();
+    let text = std::fs::read_to_string(root.join("tests/reference/expected.json"))
+        .expect("tests/reference/expected.json is committed");
+    let expected: Value = serde_json::from_str(&text).expect("valid JSON");
+    let models = expected["models"].as_array().expect("a list of models");
+    assert!(models.len() >= 12, "the reference covers at least twelve models");
+    let mut failures = Vec::new();
+    for entry in models {
+        let file = entry["file"].as_str().expect("file");
+        let source = std::fs::read_to_string(root.join(file)).expect("model file");
+        let stem = file.rsplit('/').next().unwrap_or(file).trim_end_matches(".sde");
+        let analysis = sdeck_semantics::analyze(&source, stem);
+        assert!(
+            !analysis.has_errors(),
+            "{file} analyses without errors: {:?}",
+            analysis.diagnostics
+        );
+        let model = &analysis.model;
+        let derivation = derive(model);
+        let at = entry["at"].as_f64().expect("at");
+        let tolerance = entry["tolerance"].as_f64().expect("tolerance");
+        let moments = moments_at(model, &derivation, at);
+        let states = entry["states"].as_array().expect("states");
+        assert_eq!(states.len(), model.states.len(), "{file}: state count");
+        let sd: Vec<f64> = states
+            .iter()
+            .map(|s| number(&s["variance"]).unwrap_or(0.0).max(0.0).sqrt())
+            .collect();
+        for (i, reference) in states.iter().enumerate() {
+            let name = reference["name"].as_str().unwrap_or("?");
+            let law = &derivation.states[i];
+            let family = reference["family"].as_str().unwrap_or("?");
+            // A state that depends on no other keeps its own family even when other states
+            // depend on it; the reference labels it by the system instead.
+            let decoupled_in_system =
+                family == Family::LinearSystem.as_str() && law.depends_on.is_empty();
+            if law.family.as_str() != family && !decoupled_in_system {
+                failures.push(format!(
+                    "{file} {name}: family {} vs {family}",
+                    law.family.as_str()
+                ));
+            }
+            let mean_ref = number(&reference["mean"]);
+            let var_ref = number(&reference["variance"]);
+            let mean_scale = mean_ref.unwrap_or(0.0).abs().max(sd[i]);
+            check(
+                &mut failures,
+                format!("{file} {name} mean"),
+                moments.mean[i],
+                mean_ref,
+                mean_scale,
+                tolerance,
+            );
+            check(
+                &mut failures,
+                format!("{file} {name} variance"),
+                moments.variance[i],
+                var_ref,
+                var_ref.unwrap_or(1.0),
+                tolerance,
+            );
+            let half_life_ref = number(&reference["half_life"]);
+            check(
+                &mut failures,
+                format!("{file} {name} half-life"),
+                law.half_life,
+                half_life_ref,
+                half_life_ref.unwrap_or(1.0),
+                tolerance,
+            );
+            let stationary_mean_ref = number(&reference["stationary_mean"]);
+            let stationary_var_ref = number(&reference["stationary_variance"]);
+            let stationary_sd = stationary_var_ref.unwrap_or(0.0).max(0.0).sqrt();
+            check(
+                &mut failures,
+                format!("{file} {name} stationary mean"),
+                law.stationary.as_ref().map(|s| s.mean),
+                stationary_mean_ref,
+                stationary_mean_ref.unwrap_or(0.0).abs().max(stationary_sd),
+                tolerance,
+            );
+            check(
+                &mut failures,
+                format!("{file} {name} stationary variance"),
+                law.stationary.as_ref().map(|s| s.variance),
+                stationary_var_ref,
+                stationary_var_ref.unwrap_or(1.0),
+                tolerance,
+            );
+        }
+        let covariance = entry["covariance"].as_array().expect("covariance");
+        for (i, row) in covariance.iter().enumerate() {
+            for (j, value) in row.as_array().expect("row").iter().enumerate() {
+                let scale = sd[i] * sd[j];
+                check(
+                    &mut failures,
+                    format!("{file} covariance[{i}][{j}]"),
+                    moments.covariance[i][j],
+                    number(value),
+                    scale,
+                    tolerance,
+                );
+            }
+        }
+    }
+    assert!(
+        failures.is_empty(),
+        "{} disagreements:\n{}",
+        failures.len(),
+        failures.join("\n")
+    );
+}
