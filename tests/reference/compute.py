@@ -372,7 +372,9 @@ MODELS: list[ModelSpec] = [
             P("beta", "-0.25", "1/year"),
             P("vs", "0.6%", "1/sqrt(year)"),
         ],
-        states=[S("r", "2.6%", "linear-system"), S("s", "1.5%", "linear-system")],
+        # r depends on no other state: its law is exactly Ornstein-Uhlenbeck, as the
+        # variance of the polynomial model keeps "square-root".
+        states=[S("r", "2.6%", "ornstein-uhlenbeck"), S("s", "1.5%", "linear-system")],
         noises=["Wr", "Ws"],
         correlations={("Wr", "Ws"): "-0.4"},
         drift={"r": "kr * (mr - r)", "s": "ks * (ms - s) + beta * (r - mr)"},
