@@ -133,8 +133,9 @@ impl AffineGaussian {
     /// matrix exponential", Theorem 1): with C = [[−A, Q], [0, Aᵀ]]·h, exp(C) = [[·, F₁₂],
     /// [0, F₂₂]] and P(h) = F₂₂ᵀ F₁₂. The block exponential is taken on a short step h with
     /// ‖A‖h ≤ ½, where it is accurate, and P(t) follows by doubling:
-    /// P(2h) = P(h) + e^{Ah} P(h) e^{Aᵀh}. Reason: the direct block exponential at large t
-    /// multiplies e^{−At} by e^{At}, and loses the small eigen-directions to cancellation.
+    /// P(2h) = P(h) + e^{Ah} P(h) e^{Aᵀh}. Reason: the direct block exponential holds
+    /// e^{−At}, which overflows for fast rates (a rate of 100 per year at t = 10 already
+    /// gives NaN), and multiplying it back by e^{At} cancels away the slow directions.
     pub fn covariance_at(&self, t: f64) -> DMatrix<f64> {
         let n = self.dimension();
         if self.validate().is_err() || !(t.is_finite() && t >= 0.0) {
