@@ -1,0 +1,50 @@
+//! Monte Carlo simulation of sdeck models: exact transitions where the law of a step is
+//! known, Euler–Maruyama with full truncation otherwise, reproducible whatever the thread
+//! count.
+//!
+//! Layout:
+//! - [`plan`]: the scheme of each state (exact Gaussian, lognormal, noncentral chi-square,
+//!   or Euler–Maruyama), read from the equations;
+//! - [`bytecode`]: drift and diffusion compiled to a flat program run over 64 paths at once;
+//! - [`engine`]: blocks of paths with one random stream each, on a local thread pool;
+//! - [`stats`] and [`report`]: figures with Monte Carlo standard errors, JSON, text, check;
+//! - [`plot`]: fan charts as SVG.
+//!
+//! ```
+//! use sdeck_simulate::{plan_from_model, simulate, to_json, SimulationOptions};
+//! # fn example(model: &sdeck_semantics::Model) -> Result<(), sdeck_simulate::SimulateError> {
+//! let plan = plan_from_model(model);
+//! let options = SimulationOptions { paths: 20_000, steps: 50, seed: 7, ..Default::default() };
+//! let result = simulate(model, &plan, &options)?;
+//! println!("{}", to_json(&result));
+//! # Ok(()) }
+//! ```
+
+pub mod affine;
+pub mod bytecode;
+pub mod engine;
+pub mod linalg;
+pub mod plan;
+pub mod plot;
+pub mod progress;
+pub mod report;
+pub mod samplers;
+pub mod stats;
+
+pub use engine::{simulate_paths, PathSamples, SimulateError, SimulationOptions};
+pub use plan::{plan_from_model, ExactLaw, GaussianGroup, Plan, Scheme};
+pub use plot::{fan_chart_svg, write_fan_chart, PlotError};
+pub use report::{
+    check, render_text, to_json, Bands, ClosedFormComparison, Disagreement, SimulationResult, StateResult,
+    CHECK_THRESHOLD,
+};
+pub use stats::QUANTILE_PROBABILITIES;
+
+use sdeck_semantics::Model;
+
+/// Simulates `model` with `plan` and summarises the result (figures and standard errors;
+/// closed forms are attached by the caller with [`SimulationResult::attach_closed_forms`]).
+pub fn simulate(model: &Model, plan: &Plan, options: &SimulationOptions) -> Result<SimulationResult, SimulateError> {
+    let samples = simulate_paths(model, plan, options)?;
+    Ok(SimulationResult::from_samples(&samples))
+}

@@ -1,0 +1,293 @@
+//! Choice of the scheme for each state: an exact transition where the law of a step is
+//! known, Euler–Maruyama with full truncation otherwise.
+//!
+//! Exact steps are only used when they keep the joint law of the whole system right:
+//! a linear Gaussian group or a square-root state draws its own normals, so it must not
+//! share a noise (or a correlated noise) with a state simulated otherwise. The lognormal
+//! step reuses the Brownian increments themselves and can share noises freely.
+
+use crate::affine::{affine_form, scaled_square_root, AffineForm};
+use crate::bytecode::mark_root_states;
+use sdeck_semantics::Model;
+
+/// How one state advances over a step.
+#[derive(Clone, Debug, PartialEq)]
+pub enum Scheme {
+    Exact(ExactLaw),
+    /// Euler–Maruyama; coefficients read max(x, 0) for the states in [`Plan::truncated`].
+    Euler,
+}
+
+/// A transition law sampled exactly.
+#[derive(Clone, Debug, PartialEq)]
+pub enum ExactLaw {
+    /// Member of [`Plan::gaussian_group`]: Gaussian step with exact mean and covariance.
+    LinearGaussian,
+    /// dX = growth X dt + Σ loading_k X dW_k: lognormal step.
+    Lognormal { growth: f64, loadings: Vec<(usize, f64)> },
+    /// dX = speed (level − X) dt + vol √X dW: noncentral chi-square step.
+    SquareRoot { speed: f64, level: f64, vol: f64 },
+}
+
+/// The states whose joint law is Gaussian with constant coefficients:
+/// dX_G = (drift X_G + constant) dt + loadings dW.
+#[derive(Clone, Debug, PartialEq)]
+pub struct GaussianGroup {
+    /// Indices into the model's states, in declaration order.
+    pub states: Vec<usize>,
+    /// `states.len()` × `states.len()`.
+    pub drift: Vec<Vec<f64>>,
+    pub constant: Vec<f64>,
+    /// `states.len()` × number of noises.
+    pub loadings: Vec<Vec<f64>>,
+}
+
+/// The simulation plan of a model.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Plan {
+    /// One scheme per state, declaration order.
+    pub schemes: Vec<Scheme>,
+    pub gaussian_group: Option<GaussianGroup>,
+    /// States read as max(x, 0) inside Euler coefficients and reported as such (full
+    /// truncation, Lord, Koekkoek & van Dijk 2010, Quantitative Finance 10(2)).
+    pub truncated: Vec<bool>,
+}
+
+impl Scheme {
+    /// A short description for reports: "exact (noncentral chi-square)", "Euler–Maruyama".
+    pub fn describe(&self) -> &'static str {
+        match self {
+            Scheme::Exact(ExactLaw::LinearGaussian) => "exact (Gaussian)",
+            Scheme::Exact(ExactLaw::Lognormal { .. }) => "exact (lognormal)",
+            Scheme::Exact(ExactLaw::SquareRoot { .. }) => "exact (noncentral chi-square)",
+            Scheme::Euler => "Euler–Maruyama",
+        }
+    }
+
+    pub fn is_exact(&self) -> bool {
+        matches!(self, Scheme::Exact(_))
+    }
+}
+
+impl Plan {
+    /// Every state on Euler–Maruyama (for comparisons and for models the calculus could not
+    /// classify).
+    pub fn all_euler(model: &Model) -> Plan {
+        Plan {
+            schemes: vec![Scheme::Euler; model.states.len()],
+            gaussian_group: None,
+            truncated: root_states(model),
+        }
+    }
+
+    /// Human-readable scheme of state `index`, with the truncation noted.
+    pub fn describe_state(&self, index: usize) -> String {
+        match self.schemes.get(index) {
+            Some(Scheme::Euler) if self.truncated.get(index).copied().unwrap_or(false) => {
+                "Euler–Maruyama, full truncation".to_string()
+            }
+            Some(scheme) => scheme.describe().to_string(),
+            None => "none".to_string(),
+        }
+    }
+}
+
+/// States appearing under sqrt, log or a fractional power in any coefficient.
+fn root_states(model: &Model) -> Vec<bool> {
+    let mut marks = vec![false; model.states.len()];
+    for state in &model.states {
+        if let Some(equation) = &state.equation {
+            mark_root_states(&equation.drift, &mut marks);
+            for term in &equation.diffusion {
+                mark_root_states(&term.coefficient, &mut marks);
+            }
+        }
+    }
+    marks
+}
+
+/// What the equations say about each state, read structurally.
+struct StateShape {
+    drift: Option<AffineForm>,
+    /// `(noise, form)` per diffusion term; `None` when some term is not affine.
+    diffusion: Option<Vec<(usize, AffineForm)>>,
+    noises: Vec<usize>,
+    square_root: Option<(usize, f64)>,
+}
+
+fn read_shapes(model: &Model) -> Vec<Option<StateShape>> {
+    let params = model.param_values();
+    let n = model.states.len();
+    model
+        .states
+        .iter()
+        .enumerate()
+        .map(|(index, state)| {
+            let equation = state.equation.as_ref()?;
+            let drift = affine_form(&equation.drift, &params, n);
+            let diffusion = equation
+                .diffusion
+                .iter()
+                .map(|term| affine_form(&term.coefficient, &params, n).map(|form| (term.noise, form)))
+                .collect::<Option<Vec<_>>>();
+            // Only a square root of the state itself counts.
+            let square_root = match equation.diffusion.as_slice() {
+                [term] => scaled_square_root(&term.coefficient, &params, n)
+                    .filter(|(_, root_state)| *root_state == index)
+                    .map(|(vol, _)| (term.noise, vol)),
+                _ => None,
+            };
+            Some(StateShape {
+                drift,
+                diffusion,
+                noises: equation.diffusion.iter().map(|t| t.noise).collect(),
+                square_root,
+            })
+        })
+        .collect()
+}
+
+/// Whether the noises `own` are disjoint from, and uncorrelated with, the noises `others`.
+fn noises_exclusive(own: &[usize], others: &[usize], correlation: &[Vec<f64>]) -> bool {
+    own.iter().all(|k| {
+        others.iter().all(|j| {
+            k != j
+                && correlation
+                    .get(*k)
+                    .and_then(|row| row.get(*j))
+                    .is_none_or(|rho| *rho == 0.0)
+        })
+    })
+}
+
+/// Chooses a scheme for every state from the equations alone.
+pub fn plan_from_model(model: &Model) -> Plan {
+    let n = model.states.len();
+    let shapes = read_shapes(model);
+    let correlation = model.correlation_matrix();
+    let mut schemes = vec![Scheme::Euler; n];
+
+    // Linear Gaussian candidates: affine drift, constant diffusion; then drop, until
+    // nothing changes, every candidate whose drift reads a non-candidate.
+    let mut in_group: Vec<bool> = shapes
+        .iter()
+        .map(|shape| {
+            shape.as_ref().is_some_and(|s| {
+                s.drift.is_some()
+                    && s
+                        .diffusion
+                        .as_ref()
+                        .is_some_and(|terms| terms.iter().all(|(_, f)| f.is_constant()))
+            })
+        })
+        .collect();
+    loop {
+        let mut changed = false;
+        for i in 0..n {
+            if !in_group[i] {
+                continue;
+            }
+            let reads_outside = shapes[i]
+                .as_ref()
+                .and_then(|s| s.drift.as_ref())
+                .is_none_or(|drift| drift.coefficients.iter().enumerate().any(|(j, c)| *c != 0.0 && !in_group[j]));
+            if reads_outside {
+                in_group[i] = false;
+                changed = true;
+            }
+        }
+        if !changed {
+            break;
+        }
+    }
+    let noises_of = |select: &dyn Fn(usize) -> bool| -> Vec<usize> {
+        (0..n)
+            .filter(|i| select(*i))
+            .filter_map(|i| shapes[i].as_ref())
+            .flat_map(|s| s.noises.iter().copied())
+            .collect()
+    };
+    let group_noises = noises_of(&|i| in_group[i]);
+    let other_noises = noises_of(&|i| !in_group[i]);
+    let mut gaussian_group = None;
+    if in_group.iter().any(|g| *g) && noises_exclusive(&group_noises, &other_noises, &correlation) {
+        let states: Vec<usize> = (0..n).filter(|i| in_group[*i]).collect();
+        let mut drift = Vec::with_capacity(states.len());
+        let mut constant = Vec::with_capacity(states.len());
+        let mut loadings = Vec::with_capacity(states.len());
+        for &i in &states {
+            let Some(shape) = shapes[i].as_ref() else { continue };
+            let Some(form) = shape.drift.as_ref() else { continue };
+            drift.push(states.iter().map(|j| form.coefficients[*j]).collect());
+            constant.push(form.constant);
+            let mut row = vec![0.0; model.noises.len()];
+            for (noise, term) in shape.diffusion.iter().flatten() {
+                if let Some(slot) = row.get_mut(*noise) {
+                    *slot += term.constant;
+                }
+            }
+            loadings.push(row);
+            schemes[i] = Scheme::Exact(ExactLaw::LinearGaussian);
+        }
+        gaussian_group = Some(GaussianGroup {
+            states,
+            drift,
+            constant,
+            loadings,
+        });
+    }
+
+    for i in 0..n {
+        if schemes[i].is_exact() {
+            continue;
+        }
+        let Some(shape) = shapes[i].as_ref() else { continue };
+        let Some(drift) = shape.drift.as_ref() else { continue };
+        if !drift.involves_only(i) {
+            continue;
+        }
+        let own_slope = drift.coefficients.get(i).copied().unwrap_or(0.0);
+        // Square root: drift a + b x with b < 0, a >= 0, one unshared noise.
+        if let Some((noise, vol)) = shape.square_root {
+            let others = noises_of(&|j| j != i);
+            if own_slope < 0.0 && drift.constant >= 0.0 && vol != 0.0 && noises_exclusive(&[noise], &others, &correlation)
+            {
+                let speed = -own_slope;
+                schemes[i] = Scheme::Exact(ExactLaw::SquareRoot {
+                    speed,
+                    level: drift.constant / speed,
+                    vol: vol.abs(),
+                });
+                continue;
+            }
+        }
+        // Geometric Brownian: no constant parts, only the state itself.
+        if drift.constant == 0.0 {
+            if let Some(terms) = shape.diffusion.as_ref() {
+                let proportional = terms.iter().all(|(_, f)| f.constant == 0.0 && f.involves_only(i));
+                if proportional && !terms.is_empty() {
+                    schemes[i] = Scheme::Exact(ExactLaw::Lognormal {
+                        growth: own_slope,
+                        loadings: terms
+                            .iter()
+                            .map(|(noise, f)| (*noise, f.coefficients.get(i).copied().unwrap_or(0.0)))
+                            .collect(),
+                    });
+                }
+            }
+        }
+    }
+
+    let mut truncated = root_states(model);
+    for (flag, scheme) in truncated.iter_mut().zip(&schemes) {
+        // Exact laws stay in their domain by construction.
+        if scheme.is_exact() {
+            *flag = false;
+        }
+    }
+    Plan {
+        schemes,
+        gaussian_group,
+        truncated,
+    }
+}
