@@ -623,7 +623,15 @@ fn show_term(monomial: &Monomial, coefficient: f64, names: &Names) -> (bool, Str
         .filter(|(_, k)| *k < 0)
         .map(|(a, k)| (a, -k))
         .collect();
-    let magnitude = coefficient.abs();
+    let mut magnitude = coefficient.abs();
+    // A coefficient 1/k with a small integer k reads better below the line: vol²/(2·kappa).
+    let mut below_number = None;
+    let inverse = 1.0 / magnitude;
+    let has_atoms = !numerator.is_empty() || !denominator.is_empty();
+    if has_atoms && magnitude < 1.0 && inverse.fract() == 0.0 && inverse <= 12.0 {
+        below_number = Some(inverse);
+        magnitude = 1.0;
+    }
     let mut text = String::new();
     if numerator.is_empty() {
         text.push_str(&show_number(magnitude));
@@ -634,13 +642,17 @@ fn show_term(monomial: &Monomial, coefficient: f64, names: &Names) -> (bool, Str
         }
         text.push_str(&show_factors(&numerator, names));
     }
+    let mut below = Vec::new();
+    if let Some(k) = below_number {
+        below.push(show_number(k));
+    }
     if !denominator.is_empty() {
-        let below = show_factors(&denominator, names);
-        if denominator.len() > 1 {
-            text.push_str(&format!("/({below})"));
-        } else {
-            text.push_str(&format!("/{below}"));
-        }
+        below.push(show_factors(&denominator, names));
+    }
+    if below.len() > 1 || denominator.len() > 1 {
+        text.push_str(&format!("/({})", below.join("·")));
+    } else if let Some(single) = below.first() {
+        text.push_str(&format!("/{single}"));
     }
     (coefficient < 0.0, text)
 }
