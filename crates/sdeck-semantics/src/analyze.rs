@@ -95,6 +95,10 @@ struct Analyzer<'a> {
     let_asts: Vec<&'a ast::Expr>,
     let_progress: Vec<LetProgress>,
     param_used: Vec<bool>,
+    /// Whether a param's (or state's) unit evaluated; when not, its dimension is unknown
+    /// and no dimension error is reported downstream of it.
+    param_unit_ok: Vec<bool>,
+    state_unit_ok: Vec<bool>,
     noise_used: Vec<bool>,
     let_used: Vec<bool>,
     /// Unit spans of param/state declarations, for fixes.
@@ -159,6 +163,8 @@ impl<'a> Analyzer<'a> {
             let_asts: Vec::new(),
             let_progress: Vec::new(),
             param_used: Vec::new(),
+            param_unit_ok: Vec::new(),
+            state_unit_ok: Vec::new(),
             noise_used: Vec::new(),
             let_used: Vec::new(),
             param_units: Vec::new(),
@@ -224,7 +230,7 @@ impl<'a> Analyzer<'a> {
                     }
                 }
                 StatementKind::Unit { name } => {
-                    if is_time_unit(&name.name) {
+                    if is_time_unit(&name.name) || name.name == sdeck_units::TIME_BASE {
                         self.diagnostics.push(
                             Diagnostic::new(
                                 &rules::DUPLICATE_NAME,
@@ -348,6 +354,7 @@ impl<'a> Analyzer<'a> {
                         description: statement.description.clone(),
                     });
                     self.param_used.push(false);
+                    self.param_unit_ok.push(scale.is_finite());
                     self.check_declaration(decl, "parameter", value, scale, bound);
                 }
                 StatementKind::State(decl) => {
@@ -372,6 +379,7 @@ impl<'a> Analyzer<'a> {
                         description: statement.description.clone(),
                         equation: None,
                     });
+                    self.state_unit_ok.push(scale.is_finite());
                     self.check_declaration(decl, "initial value of state", initial, scale, bound);
                 }
                 StatementKind::Noise { names } => {
@@ -670,9 +678,13 @@ impl<'a> Analyzer<'a> {
         match target {
             Target::Param(i) => {
                 self.param_used[i] = true;
-                (Expr::Param(i), Some(self.model.params[i].dimension.clone()))
+                let dimension = self.param_unit_ok[i].then(|| self.model.params[i].dimension.clone());
+                (Expr::Param(i), dimension)
             }
-            Target::State(i) => (Expr::State(i), Some(self.model.states[i].dimension.clone())),
+            Target::State(i) => {
+                let dimension = self.state_unit_ok[i].then(|| self.model.states[i].dimension.clone());
+                (Expr::State(i), dimension)
+            }
             Target::Let(i) => {
                 self.let_used[i] = true;
                 self.resolve_let(i);
@@ -818,6 +830,7 @@ impl<'a> Analyzer<'a> {
                     continue;
                 }
                 None => {
+                    self.mark_uses(eq);
                     let mut d = Diagnostic::new(&rules::MISSING_EQUATION, eq.lhs.clone(), format!("the equation `d{}` names no state", eq.state.name));
                     d = match closest_name(&eq.state.name, self.model.states.iter().map(|s| &s.name)) {
                         Some(close) => d.with_help(format!("did you mean `d{close}`?")),
@@ -858,8 +871,25 @@ impl<'a> Analyzer<'a> {
         }
     }
 
+    /// Resolves the terms of an equation that names no state, so that what it uses is
+    /// not also reported as unused. Errors inside it are still reported.
+    fn mark_uses(&mut self, eq: &ast::Equation) {
+        for term in &eq.terms {
+            if let Some(c) = &term.coefficient {
+                self.resolve(c);
+            }
+            if let ast::Differential::Noise { noise, .. } = &term.differential {
+                if let Some((Target::Noise(i), _)) = self.names.get(&noise.name).cloned() {
+                    self.noise_used[i] = true;
+                    self.reference(noise, &Target::Noise(i));
+                }
+            }
+        }
+    }
+
     fn equation(&mut self, state: usize, eq: &ast::Equation, span: &Span) -> Equation {
         let state_dim = self.model.states[state].dimension.clone();
+        let state_unit_ok = self.state_unit_ok[state];
         let state_name = self.model.states[state].name.clone();
         let drift_dim = state_dim.div(&Dimension::time());
         let diffusion_dim = state_dim.div(&Dimension::time().sqrt());
@@ -886,8 +916,8 @@ impl<'a> Analyzer<'a> {
                         );
                         continue;
                     }
-                    if let Some(d) = dim {
-                        self.check_coefficient(term, &d, &drift_dim, &state_name, &state_dim, true);
+                    if let (Some(d), true) = (&dim, state_unit_ok) {
+                        self.check_coefficient(term, d, &drift_dim, &state_name, &state_dim, true);
                     }
                     drift = Some(coefficient);
                     drift_span = Some(term.span.clone());
@@ -932,8 +962,8 @@ impl<'a> Analyzer<'a> {
                     }
                     noise_terms.insert(noise_index, term.span.clone());
                     self.noise_used[noise_index] = true;
-                    if let Some(d) = dim {
-                        self.check_coefficient(term, &d, &diffusion_dim, &state_name, &state_dim, false);
+                    if let (Some(d), true) = (&dim, state_unit_ok) {
+                        self.check_coefficient(term, d, &diffusion_dim, &state_name, &state_dim, false);
                     }
                     diffusion.push(DiffusionTerm {
                         noise: noise_index,

@@ -1,0 +1,80 @@
+//! `sdeck`: the command-line face of the analysis. It reads files, calls the one analysis
+//! entry point (`sdeck_checks::check`) and renders the result; it decides nothing itself.
+
+mod check;
+mod files;
+mod moments;
+mod render;
+
+use clap::{Parser, Subcommand};
+use std::process::ExitCode;
+
+const CAUTION: &str = "Caution: derived figures hold only under the model's assumptions. \
+Defer to your firm's model-validation practice and to local regulation before relying on them.";
+
+#[derive(Parser)]
+#[command(
+    name = "sdeck",
+    version,
+    about = "Checks stochastic differential equation model files and derives their laws",
+    long_about = "sdeck checks model files (.sde) that describe systems of Itô stochastic \
+differential equations: names, units, bounds, correlations, the Feller condition, mean \
+reversion. It derives closed-form solutions and moments, and cross-checks them by Monte Carlo.",
+    after_help = CAUTION
+)]
+struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand)]
+enum Command {
+    /// Check model files or folders (searched recursively for *.sde).
+    Check(check::CheckArgs),
+    /// Derive the family, closed forms and moments of each state of a model.
+    Moments(moments::MomentsArgs),
+    /// Print the manual of a rule, or list every rule.
+    Explain {
+        /// The rule's name (kebab-case); omit to list all rules.
+        rule: Option<String>,
+    },
+}
+
+fn main() -> ExitCode {
+    let cli = match Cli::try_parse() {
+        Ok(cli) => cli,
+        Err(e) => {
+            let code = if e.use_stderr() { 2 } else { 0 };
+            let _ = e.print();
+            return ExitCode::from(code);
+        }
+    };
+    match cli.command {
+        Command::Check(args) => check::run(args),
+        Command::Moments(args) => moments::run(args),
+        Command::Explain { rule } => explain(rule.as_deref()),
+    }
+}
+
+fn explain(rule: Option<&str>) -> ExitCode {
+    use sdeck_diagnostics::rules;
+    match rule {
+        None => {
+            let width = rules::ALL.iter().map(|r| r.name.len()).max().unwrap_or(0);
+            for r in rules::ALL {
+                println!("{:width$}  {:7}  {}", r.name, r.default_severity.as_str(), r.summary);
+            }
+            ExitCode::SUCCESS
+        }
+        Some(name) => match rules::by_name(name) {
+            Some(r) => {
+                print!("{}", render::explain_text(r));
+                ExitCode::SUCCESS
+            }
+            None => {
+                eprintln!("sdeck: no rule is called `{name}`; `sdeck explain` lists them");
+                ExitCode::from(2)
+            }
+        },
+    }
+}

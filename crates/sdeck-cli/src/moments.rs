@@ -1,0 +1,218 @@
+//! `sdeck moments FILE`: the family, closed forms and moments of every state.
+
+use crate::files;
+use clap::{Args, ValueEnum};
+use sdeck_calculus::{moments_at, Derivation, Moments};
+use sdeck_checks::RuleSettings;
+use sdeck_diagnostics::Severity;
+use sdeck_semantics::{fmt_num, Model};
+use serde_json::{json, Value};
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+#[derive(Clone, Copy, Debug, PartialEq, Eq, ValueEnum)]
+pub enum Format {
+    Text,
+    Json,
+}
+
+#[derive(Args)]
+pub struct MomentsArgs {
+    /// The model file.
+    file: PathBuf,
+    /// The time at which to report: a number in clock units, or a number with a time unit
+    /// ("6 month", "2 year"). Default: the model's horizon.
+    #[arg(long)]
+    at: Option<String>,
+    #[arg(long, value_enum, default_value_t = Format::Text)]
+    format: Format,
+}
+
+/// Parses "0.5", "6 month", "6month", "18 [month]" into clock units.
+pub fn parse_time(text: &str, model: &Model) -> Result<f64, String> {
+    let t = text.trim();
+    let split = t
+        .find(|c: char| !(c.is_ascii_digit() || c == '.' || c == 'e' || c == 'E' || c == '-' || c == '+'))
+        .unwrap_or(t.len());
+    // `e` may begin a unit name only after the number proper; retry without it.
+    let (number, unit) = t.split_at(split);
+    let value: f64 = number
+        .trim()
+        .parse()
+        .map_err(|_| format!("`{text}` is not a time: write a number in clock units or a number with a time unit, e.g. `6 month`"))?;
+    let unit = unit.trim().trim_start_matches('[').trim_end_matches(']').trim();
+    if unit.is_empty() {
+        return Ok(value);
+    }
+    match sdeck_units::time_unit_years(unit) {
+        Some(years) => Ok(value * years / model.clock.years),
+        None => Err(format!(
+            "`{unit}` is not a time unit; use year, month, week, day or bday"
+        )),
+    }
+}
+
+pub fn run(args: MomentsArgs) -> ExitCode {
+    let source = match files::read(&args.file) {
+        Ok(s) => s,
+        Err(message) => {
+            eprintln!("sdeck: {message}");
+            return ExitCode::from(2);
+        }
+    };
+    let (checked, result) = crate::check::check_source(source, &RuleSettings::default());
+    let errors: Vec<_> = checked
+        .diagnostics
+        .iter()
+        .filter(|d| d.severity == Severity::Error && d.rule != "expectation-failed")
+        .collect();
+    if !errors.is_empty() {
+        let mut err = codespan_reporting::term::termcolor::StandardStream::stderr(
+            codespan_reporting::term::termcolor::ColorChoice::Never,
+        );
+        let owned: Vec<_> = errors.into_iter().cloned().collect();
+        let _ = crate::render::human(&mut err, &checked.source.path, &checked.source.text, &owned);
+        eprintln!("sdeck: the model has errors; no moments are derived until they are mended");
+        return ExitCode::from(1);
+    }
+    let model = &result.analysis.model;
+    let t = match &args.at {
+        None => model.horizon,
+        Some(text) => match parse_time(text, model) {
+            Ok(t) if t >= 0.0 && t.is_finite() => t,
+            Ok(_) => {
+                eprintln!("sdeck: --at must be a time from now (not negative)");
+                return ExitCode::from(2);
+            }
+            Err(message) => {
+                eprintln!("sdeck: {message}");
+                return ExitCode::from(2);
+            }
+        },
+    };
+    let moments = moments_at(model, &result.derivation, t);
+    let output = match args.format {
+        Format::Json => serde_json::to_string_pretty(&moments_json(model, &result.derivation, &moments))
+            .unwrap_or_default(),
+        Format::Text => moments_text(model, &result.derivation, &moments),
+    };
+    println!("{output}");
+    ExitCode::SUCCESS
+}
+
+fn num(x: Option<f64>) -> Value {
+    match x {
+        Some(v) if v.is_finite() => json!(v),
+        _ => Value::Null,
+    }
+}
+
+pub fn moments_json(model: &Model, derivation: &Derivation, m: &Moments) -> Value {
+    let states: Vec<Value> = model
+        .states
+        .iter()
+        .enumerate()
+        .map(|(i, s)| {
+            let law = derivation.states.get(i);
+            json!({
+                "name": s.name,
+                "family": law.map(|l| l.family.as_str()),
+                "mean": num(m.mean.get(i).copied().flatten()),
+                "variance": num(m.variance.get(i).copied().flatten()),
+                "exact": m.exact.get(i).copied().unwrap_or(false),
+                "formulas": {
+                    "solution": law.and_then(|l| l.formulas.solution.clone()),
+                    "mean": law.and_then(|l| l.formulas.mean.clone()),
+                    "variance": law.and_then(|l| l.formulas.variance.clone()),
+                },
+            })
+        })
+        .collect();
+    let covariance: Vec<Value> = m
+        .covariance
+        .iter()
+        .map(|row| Value::Array(row.iter().map(|x| num(*x)).collect()))
+        .collect();
+    json!({
+        "model": model.name,
+        "clock": model.clock.unit,
+        "at": m.at,
+        "states": states,
+        "covariance": covariance,
+    })
+}
+
+fn or_unknown(x: Option<f64>) -> String {
+    match x {
+        Some(v) if v.is_finite() => fmt_num(v),
+        _ => "not known".to_string(),
+    }
+}
+
+pub fn moments_text(model: &Model, derivation: &Derivation, m: &Moments) -> String {
+    let clock = &model.clock.unit;
+    let mut s = format!(
+        "model {}   clock {}   at t = {} {}\n",
+        model.name,
+        clock,
+        fmt_num(m.at),
+        clock
+    );
+    for (i, state) in model.states.iter().enumerate() {
+        let Some(law) = derivation.states.get(i) else { continue };
+        s.push_str(&format!("\n{}: {}\n", state.name, law.family.as_str()));
+        s.push_str(&format!("  why       {}\n", law.reason));
+        s.push_str(&format!("  method    {}\n", law.method.as_str()));
+        let f = &law.formulas;
+        for (label, text) in [
+            ("solution", &f.solution),
+            ("mean", &f.mean),
+            ("variance", &f.variance),
+            ("autocov.", &f.autocovariance),
+            ("transition", &f.transition),
+            ("stationary", &f.stationary),
+        ] {
+            if let Some(t) = text {
+                s.push_str(&format!("  {label:<10}{t}\n"));
+            }
+        }
+        let mean = m.mean.get(i).copied().flatten();
+        let var = m.variance.get(i).copied().flatten();
+        s.push_str(&format!("  E[{}(t)]   = {}\n", state.name, or_unknown(mean)));
+        s.push_str(&format!("  Var[{}(t)] = {}\n", state.name, or_unknown(var)));
+        s.push_str(&format!(
+            "  sd        = {}\n",
+            or_unknown(var.filter(|v| *v >= 0.0).map(f64::sqrt))
+        ));
+        if let Some(h) = law.half_life {
+            s.push_str(&format!("  half-life = {} {clock}\n", fmt_num(h)));
+        }
+        if let Some(st) = &law.stationary {
+            s.push_str(&format!(
+                "  stationary: {} (mean {}, sd {})\n",
+                st.law,
+                fmt_num(st.mean),
+                fmt_num(st.variance.max(0.0).sqrt())
+            ));
+        }
+    }
+    if model.states.len() > 1 {
+        s.push_str("\ncovariance at t:\n");
+        let width = model.states.iter().map(|st| st.name.chars().count()).max().unwrap_or(1).max(12);
+        s.push_str(&format!("  {:width$}", ""));
+        for st in &model.states {
+            s.push_str(&format!(" {:>width$}", st.name));
+        }
+        s.push('\n');
+        for (i, row) in m.covariance.iter().enumerate() {
+            let name = model.states.get(i).map(|st| st.name.as_str()).unwrap_or("");
+            s.push_str(&format!("  {name:width$}"));
+            for x in row {
+                s.push_str(&format!(" {:>width$}", or_unknown(*x)));
+            }
+            s.push('\n');
+        }
+    }
+    s.push_str(&format!("\n{}\n", crate::CAUTION));
+    s
+}
