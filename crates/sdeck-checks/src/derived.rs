@@ -7,6 +7,7 @@ use sdeck_calculus::describe::square_root_terms;
 use sdeck_calculus::{moments_at, Derivation, Family, Method, StateLaw};
 use sdeck_diagnostics::{rules, Diagnostic};
 use sdeck_semantics::{Expr, Function, Interval, Model};
+use sdeck_syntax::ast::Figure;
 
 /// Eigenvalues above this negative tolerance count as zero (rounding of a PSD matrix).
 const EIGENVALUE_TOLERANCE: f64 = 1e-12;
@@ -595,40 +596,44 @@ fn expectations(model: &Model, derivation: &Derivation, out: &mut Vec<Diagnostic
         let name = state_name(model, expectation.state);
         let keyword = expectation.figure.keyword();
         let time = expectation.at.unwrap_or(model.horizon);
-        // The figure is matched by its keyword: the syntax crate that defines the enum is
-        // not a dependency of this crate.
-        let (value, described) = match keyword {
-            "mean" | "variance" | "sd" => {
+        let (value, described) = match expectation.figure {
+            Figure::Mean | Figure::Variance | Figure::Sd => {
                 let moments = moments_at(model, derivation, time);
                 let mean = moments.mean.get(expectation.state).copied().flatten();
                 let variance = moments.variance.get(expectation.state).copied().flatten();
-                let value = match keyword {
-                    "mean" => mean,
-                    "variance" => variance,
+                let value = match expectation.figure {
+                    Figure::Mean => mean,
+                    Figure::Variance => variance,
                     _ => variance.map(|v| v.max(0.0).sqrt()),
                 };
                 (value, format!("{keyword}({name}, {} {clock})", number(time, 6)))
             }
-            "halflife" => (law.half_life, format!("halflife({name})")),
-            "stationary_mean" => (
+            Figure::Halflife => (law.half_life, format!("halflife({name})")),
+            Figure::StationaryMean => (
                 law.stationary.as_ref().map(|s| s.mean),
                 format!("stationary_mean({name})"),
             ),
-            "stationary_variance" => (
+            Figure::StationaryVariance => (
                 law.stationary.as_ref().map(|s| s.variance),
                 format!("stationary_variance({name})"),
             ),
-            _ => (
+            Figure::StationarySd => (
                 law.stationary.as_ref().map(|s| s.variance.max(0.0).sqrt()),
                 format!("{keyword}({name})"),
             ),
         };
         match value {
             None => {
-                let why = match keyword {
-                    "halflife" => "no half-life (it needs a constant negative drift slope)",
-                    "mean" | "variance" | "sd" => "no known value for this figure",
-                    _ => "no stationary law",
+                let why = match expectation.figure {
+                    Figure::Halflife => {
+                        "no half-life (that needs a constant negative slope of its own drift)"
+                    }
+                    Figure::Mean | Figure::Variance | Figure::Sd => {
+                        "no known value for this figure"
+                    }
+                    Figure::StationaryMean
+                    | Figure::StationaryVariance
+                    | Figure::StationarySd => "no stationary law",
                 };
                 out.push(
                     Diagnostic::new(
@@ -672,6 +677,196 @@ fn expectations(model: &Model, derivation: &Derivation, out: &mut Vec<Diagnostic
 #[cfg(test)]
 mod tests {
     use super::*;
+    use sdeck_calculus::derive;
+    use sdeck_diagnostics::Rule;
+
+    fn run(source: &str) -> (Model, Vec<Diagnostic>) {
+        let analysis = sdeck_semantics::analyze(source, "test_model");
+        let model = analysis.model;
+        let derivation = derive(&model);
+        let diagnostics = derived_checks(&model, &derivation);
+        (model, diagnostics)
+    }
+
+    fn of_rule<'d>(diagnostics: &'d [Diagnostic], rule: &Rule) -> Vec<&'d Diagnostic> {
+        diagnostics.iter().filter(|d| d.rule == rule.name).collect()
+    }
+
+    #[test]
+    fn manual_examples_fire_exactly_once_and_their_fixes_not_at_all() {
+        let mine = [
+            &rules::FELLER_CONDITION,
+            &rules::STATE_DOMAIN,
+            &rules::NOT_MEAN_REVERTING,
+            &rules::CORRELATION_NOT_PSD,
+            &rules::EXPECTATION_FAILED,
+        ];
+        for rule in mine {
+            let (_, flawed) = run(rule.flawed);
+            assert_eq!(
+                of_rule(&flawed, rule).len(),
+                1,
+                "{} on its flawed example: {flawed:#?}",
+                rule.name
+            );
+            let (_, fixed) = run(rule.fixed);
+            assert!(
+                of_rule(&fixed, rule).is_empty(),
+                "{} on its fixed example: {fixed:#?}",
+                rule.name
+            );
+        }
+    }
+
+    #[test]
+    fn feller_message_states_both_sides_and_the_mend() {
+        // 2·0.5·0.0576 = 0.0576 < 0.3² = 0.09; raising kappa needs 0.09/(2·0.0576) =
+        // 0.78125, lowering vol needs √0.0576 = 0.24.
+        let source = "model pike\nparam kappa = 0.5 [1/year] > 0\nparam level = 5.76%\n\
+                      param vol = 0.3 [1/sqrt(year)] > 0\nnoise W\nstate r = 2%\n\
+                      dr = kappa * (level - r) dt + vol * sqrt(r) dW\n";
+        let (model, diagnostics) = run(source);
+        let feller = of_rule(&diagnostics, &rules::FELLER_CONDITION);
+        assert_eq!(feller.len(), 1, "{diagnostics:#?}");
+        let message = &feller[0].message;
+        assert!(
+            message.starts_with("2·kappa·level = 0.0576 < vol² = 0.09 (per year)"),
+            "{message}"
+        );
+        assert!(message.contains("raise kappa to at least 0.782 [1/year]"), "{message}");
+        assert!(message.contains("lower vol to at most 0.24 [1/sqrt(year)]"), "{message}");
+        let equation = model.states[0].equation.as_ref().expect("equation");
+        assert_eq!(feller[0].span, equation.span);
+    }
+
+    #[test]
+    fn feller_suggestion_is_in_the_written_unit() {
+        // vol written per sqrt(day): the clock value is vol·√365, and the suggestion must
+        // be converted back.
+        let source = "model pike\nparam kappa = 0.5 [1/year] > 0\nparam level = 5.76%\n\
+                      param vol = 0.0157 [1/sqrt(day)] > 0\nnoise W\nstate r = 2%\n\
+                      dr = kappa * (level - r) dt + vol * sqrt(r) dW\n";
+        let (_, diagnostics) = run(source);
+        let feller = of_rule(&diagnostics, &rules::FELLER_CONDITION);
+        assert_eq!(feller.len(), 1);
+        // √0.0576 / √365 = 0.012562...
+        assert!(
+            feller[0].message.contains("lower vol to at most 0.0125 [1/sqrt(day)]"),
+            "{}",
+            feller[0].message
+        );
+    }
+
+    #[test]
+    fn gaussian_state_under_a_square_root_is_reported() {
+        let source = "model marl\nparam k = 1 [1/year]\nparam v = 0.1 [1/sqrt(year)]\n\
+                      noise W, Z\nstate r = 0.02\nstate y = 1\n\
+                      dr = -k * r dt + v dW\ndy = -k * y dt + v * sqrt(r) dZ\n";
+        let (model, diagnostics) = run(source);
+        let domain = of_rule(&diagnostics, &rules::STATE_DOMAIN);
+        assert_eq!(domain.len(), 1, "{diagnostics:#?}");
+        assert!(domain[0].message.contains("`sqrt` of r"), "{}", domain[0].message);
+        let equation = model.states[1].equation.as_ref().expect("equation");
+        assert_eq!(domain[0].span, equation.span);
+    }
+
+    #[test]
+    fn impossible_starts_are_reported() {
+        let gbm = "model quarry\nparam mu = 0.05 [1/year]\nparam s = 0.2 [1/sqrt(year)]\n\
+                   noise W\nstate p = 0\ndp = mu * p dt + s * p dW\n";
+        let (_, diagnostics) = run(gbm);
+        let domain = of_rule(&diagnostics, &rules::STATE_DOMAIN);
+        assert_eq!(domain.len(), 1, "{diagnostics:#?}");
+        assert!(domain[0].message.contains("stays at zero"), "{}", domain[0].message);
+
+        let square_root = "model quarry\nparam k = 1 [1/year]\nparam m = 0.05\n\
+                           param s = 0.1 [1/sqrt(year)]\nnoise W\nstate h = -0.01\n\
+                           dh = k * (m - h) dt + s * sqrt(h) dW\n";
+        let (_, diagnostics) = run(square_root);
+        let domain = of_rule(&diagnostics, &rules::STATE_DOMAIN);
+        assert_eq!(domain.len(), 1, "{diagnostics:#?}");
+        assert!(domain[0].message.contains("starts at -0.01"), "{}", domain[0].message);
+    }
+
+    #[test]
+    fn explosive_drift_states_coefficient_and_doubling_time() {
+        // b = +0.8 per year: deviations double every ln 2/0.8 = 0.866 years.
+        let (_, diagnostics) = run(
+            "model osric\nparam kappa = 0.8 [1/year]\nparam level = 3%\n\
+             param vol = 1% [1/sqrt(year)]\nnoise W\nstate s = 3%\n\
+             ds = kappa * (s - level) dt + vol dW\n",
+        );
+        let found = of_rule(&diagnostics, &rules::NOT_MEAN_REVERTING);
+        assert_eq!(found.len(), 1, "{diagnostics:#?}");
+        assert!(found[0].message.contains("is kappa = +0.8 per year"), "{}", found[0].message);
+        assert!(found[0].message.contains("every 0.866 years"), "{}", found[0].message);
+    }
+
+    #[test]
+    fn growth_of_a_geometric_brownian_is_not_explosive() {
+        let (_, diagnostics) = run(
+            "model ledger\nparam mu = 0.3 [1/year]\nparam s = 0.2 [1/sqrt(year)]\n\
+             noise W\nstate p = 10\ndp = mu * p dt + s * p dW\n",
+        );
+        assert!(of_rule(&diagnostics, &rules::NOT_MEAN_REVERTING).is_empty());
+    }
+
+    #[test]
+    fn coupled_drift_with_an_unstable_eigenvalue_is_reported_once() {
+        // A = [[-0.1, 1], [1, -0.1]] has eigenvalues 0.9 and −1.1 (common practice, no
+        // source: eigenvalues of a symmetric 2×2 matrix are a ± b).
+        let (_, diagnostics) = run(
+            "model tandem\nparam k = 0.1 [1/year]\nparam c = 1 [1/year]\n\
+             param v = 0.01 [1/sqrt(year)]\nnoise W, Z\nstate x = 0\nstate y = 0\n\
+             dx = (-k * x + c * y) dt + v dW\ndy = (c * x - k * y) dt + v dZ\n",
+        );
+        let found = of_rule(&diagnostics, &rules::NOT_MEAN_REVERTING);
+        assert_eq!(found.len(), 1, "{diagnostics:#?}");
+        assert!(found[0].message.contains("eigenvalue 0.9 per year"), "{}", found[0].message);
+        assert_eq!(found[0].related.len(), 1);
+    }
+
+    #[test]
+    fn inconsistent_correlations_give_the_smallest_eigenvalue() {
+        // [[1, .9, .9], [.9, 1, −.9], [.9, −.9, 1]]: eigenvalues 1.9, 1.9, −0.8 (numpy.linalg.eigvalsh).
+        let (model, diagnostics) = run(
+            "model trio\nparam v = 0.01 [1/sqrt(year)]\nnoise A, B, C\n\
+             corr A B = 0.9\ncorr A C = 0.9\ncorr B C = -0.9\n\
+             state x = 0\nstate y = 0\nstate z = 0\n\
+             dx = v dA\ndy = v dB\ndz = v dC\n",
+        );
+        let found = of_rule(&diagnostics, &rules::CORRELATION_NOT_PSD);
+        assert_eq!(found.len(), 1, "{diagnostics:#?}");
+        assert!(found[0].message.contains("eigenvalue -0.8 < 0"), "{}", found[0].message);
+        assert_eq!(found[0].span, model.correlations[0].span);
+        assert_eq!(found[0].related.len(), 2);
+    }
+
+    #[test]
+    fn expectations_report_value_interval_and_missing_figures() {
+        // OU mean at 1 year: 0.03 + (0.025 − 0.03)e^{−1.2} = 0.0284940 (Vasicek 1977).
+        let source = "model pinned\nparam kappa = 1.2 [1/year] > 0\nparam level = 3%\n\
+                      param vol = 0.8% [1/sqrt(year)] > 0\nnoise W\nstate r = 2.5%\n\
+                      dr = kappa * (level - r) dt + vol dW\n\
+                      expect mean(r, 1 year) in [2.9%, 3.3%]\n\
+                      expect halflife(r) < 1 year\n";
+        let (_, diagnostics) = run(source);
+        let found = of_rule(&diagnostics, &rules::EXPECTATION_FAILED);
+        assert_eq!(found.len(), 1, "{diagnostics:#?}");
+        assert!(
+            found[0].message.starts_with("mean(r, 1 year) = 0.028494 is outside the expected [0.029, 0.033]"),
+            "{}",
+            found[0].message
+        );
+        let missing = "model drifting\nparam mu = 0.01 [1/year]\nparam v = 0.1 [1/sqrt(year)]\n\
+                       noise W\nstate x = 0\ndx = mu dt + v dW\n\
+                       expect stationary_mean(x) > 0\n";
+        let (_, diagnostics) = run(missing);
+        let found = of_rule(&diagnostics, &rules::EXPECTATION_FAILED);
+        assert_eq!(found.len(), 1, "{diagnostics:#?}");
+        assert!(found[0].message.contains("does not exist"), "{}", found[0].message);
+        assert!(found[0].message.contains("arithmetic-brownian"), "{}", found[0].message);
+    }
 
     #[test]
     fn numbers_print_with_significant_digits() {
