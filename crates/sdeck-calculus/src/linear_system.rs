@@ -172,13 +172,14 @@ impl AffineGaussian {
         let f22 = exponential.view((n, n), (n, n)).into_owned();
         let mut propagator = f22.transpose();
         let mut covariance = &propagator * f12;
+        // Buffers allocated once: the doubling loop itself allocates nothing.
         let mut scratch = DMatrix::<f64>::zeros(n, n);
-        let mut product = DMatrix::<f64>::zeros(n, n);
+        let mut propagator_transposed = DMatrix::<f64>::zeros(n, n);
         for _ in 0..doublings {
             // covariance ← covariance + Φ covariance Φᵀ
             propagator.mul_to(&covariance, &mut scratch);
-            scratch.mul_to(&propagator.transpose(), &mut product);
-            covariance += &product;
+            propagator.transpose_to(&mut propagator_transposed);
+            covariance.gemm(1.0, &scratch, &propagator_transposed, 1.0);
             // Φ ← Φ²
             propagator.mul_to(&propagator, &mut scratch);
             std::mem::swap(&mut propagator, &mut scratch);

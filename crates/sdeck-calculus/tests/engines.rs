@@ -316,6 +316,11 @@ fn three_state_system_matches_scipy_reference() {
         "stationary P",
     );
     let stationary_mean = system.stationary_mean().unwrap();
+    // The mean forgets x₀: slowest rate 0.223, e^{−0.223·200} ≈ 4e-20.
+    let late_mean = system.mean_at(&x0, 200.0);
+    for i in 0..3 {
+        assert_close(late_mean[i], stationary_mean[i], 1e-12, "mean at t = 200");
+    }
     for (i, want) in [
         -0.6666666666666667,
         -0.21666666666666667,
