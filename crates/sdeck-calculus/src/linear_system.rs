@@ -223,6 +223,11 @@ impl AffineGaussian {
         if !self.is_stable() {
             return None;
         }
+        if self.a.nrows() == 0 {
+            // nalgebra's LU of a 0×0 matrix underflows an index: an empty system has an
+            // empty mean.
+            return Some(DVector::zeros(0));
+        }
         let solution = self.a.clone().lu().solve(&self.b)?;
         let mean = -solution;
         mean.iter().all(|v| v.is_finite()).then_some(mean)
