@@ -225,8 +225,9 @@ fn scaled_error_norm(buffers: &StageBuffers, y: &[f64], h: f64, rtol: f64, atol:
 }
 
 /// Starting step of Hairer, Nørsett & Wanner, Solving ODE I, §II.4 ("Starting step size"),
-/// simplified: h = 0.01·‖y‖/‖f‖ bounded by the interval, then checked against a second
-/// derivative estimate.
+/// with the maximum norm instead of the root mean square (so a tiny `atol` cannot overflow
+/// the squares): h₀ = 0.01·‖y‖/‖f‖, then h₁ from a second-derivative estimate, and
+/// min(100 h₀, h₁). Always a positive step no longer than the interval.
 fn initial_step<F: Fn(f64, &[f64], &mut [f64])>(
     f: &F,
     t0: f64,
@@ -235,24 +236,29 @@ fn initial_step<F: Fn(f64, &[f64], &mut [f64])>(
     rtol: f64,
     atol: f64,
     buffers: &mut StageBuffers,
-) -> Result<f64, OdeError> {
+) -> f64 {
     let dimension = y.len();
-    let mut d0 = 0.0;
-    let mut d1 = 0.0;
+    let length = span.abs();
+    // Reason for the floor: a start of 10⁻¹⁰ of the interval is always safe, the controller
+    // grows it by up to 5× per step.
+    let fallback = (length * 1e-10).max(f64::MIN_POSITIVE);
+    let mut d0 = 0.0_f64;
+    let mut d1 = 0.0_f64;
     for i in 0..dimension {
         let scale = atol + rtol * y[i].abs();
-        d0 += (y[i] / scale).powi(2);
-        d1 += (buffers.k1[i] / scale).powi(2);
+        d0 = d0.max((y[i] / scale).abs());
+        d1 = d1.max((buffers.k1[i] / scale).abs());
     }
-    let count = dimension.max(1) as f64;
-    let d0 = (d0 / count).sqrt();
-    let d1 = (d1 / count).sqrt();
     let h0 = if d0 < 1e-5 || d1 < 1e-5 {
         1e-6
     } else {
         0.01 * d0 / d1
     };
-    let h0 = h0.min(span.abs());
+    let h0 = if h0.is_finite() && h0 > 0.0 {
+        h0.min(length)
+    } else {
+        fallback
+    };
     let direction = span.signum();
     for i in 0..dimension {
         buffers.stage_input[i] = y[i] + direction * h0 * buffers.k1[i];
@@ -260,20 +266,26 @@ fn initial_step<F: Fn(f64, &[f64], &mut [f64])>(
     f(t0 + direction * h0, &buffers.stage_input, &mut buffers.k2);
     if !all_finite(&buffers.k2) {
         // The trial point left the domain; start small and let the controller grow the step.
-        return Ok((span.abs() * 1e-6).max(f64::MIN_POSITIVE));
+        return fallback.min(h0);
     }
-    let mut d2 = 0.0;
+    let mut d2 = 0.0_f64;
     for i in 0..dimension {
         let scale = atol + rtol * y[i].abs();
-        d2 += ((buffers.k2[i] - buffers.k1[i]) / scale).powi(2);
+        d2 = d2.max(((buffers.k2[i] - buffers.k1[i]) / scale).abs());
     }
-    let d2 = (d2 / count).sqrt() / h0;
-    let h1 = if d1.max(d2) <= 1e-15 {
+    let d2 = d2 / h0;
+    let largest = d1.max(d2);
+    let h1 = if largest <= 1e-15 {
         (h0 * 1e-3).max(1e-6)
     } else {
-        (0.01 / d1.max(d2)).powf(1.0 / 5.0)
+        (0.01 / largest).powf(1.0 / 5.0)
     };
-    Ok((100.0 * h0).min(h1).min(span.abs()))
+    let step = (100.0 * h0).min(h1).min(length);
+    if step.is_finite() && step > 0.0 {
+        step
+    } else {
+        fallback.min(h0)
+    }
 }
 
 fn integrate_in_place<F: Fn(f64, &[f64], &mut [f64])>(
@@ -309,7 +321,7 @@ fn integrate_in_place<F: Fn(f64, &[f64], &mut [f64])>(
     if !all_finite(&buffers.k1) {
         return Err(OdeError::NonFinite { at: t0 });
     }
-    let mut h = initial_step(f, t0, y, span, rtol, atol, buffers)?;
+    let mut h = initial_step(f, t0, y, span, rtol, atol, buffers);
     let mut t = t0;
     let mut steps = 0usize;
     let mut previous_rejected = false;
@@ -687,6 +699,25 @@ mod tests {
             1e-12,
         );
         assert!(result.is_err(), "{result:?}");
+    }
+
+    /// A variance equation started at 0 with an absolute tolerance of 1e-300 (relative
+    /// control only): V' = σ² − 2κV gives V(t) = σ²(1 − e^{−2κt})/(2κ) (Vasicek 1977).
+    #[test]
+    fn tiny_absolute_tolerance_still_starts() {
+        let (speed, vol) = (1.5, 0.2);
+        let rhs = |_: f64, y: &[f64], dy: &mut [f64]| {
+            dy[0] = -speed * y[0];
+            dy[1] = vol * vol - 2.0 * speed * y[1];
+        };
+        let end = integrate(rhs, &[0.03, 0.0], 0.0, 2.0, 1e-11, 1e-300).unwrap();
+        let expected = vol * vol * (1.0 - (-2.0 * speed * 2.0_f64).exp()) / (2.0 * speed);
+        assert!(
+            (end[1] - expected).abs() < 1e-9 * expected,
+            "{} vs {expected}",
+            end[1]
+        );
+        assert!((end[0] - 0.03 * (-3.0_f64).exp()).abs() < 1e-11);
     }
 
     #[test]
