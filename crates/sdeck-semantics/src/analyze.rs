@@ -854,7 +854,13 @@ impl<'a> Analyzer<'a> {
             self.model.states[state_index].equation = Some(equation);
         }
         for i in 0..self.model.states.len() {
-            if self.model.states[i].equation.is_none() && !first_equation.contains_key(&i) {
+            let equation_unparsed = self.file.unparsed.iter().any(|span| {
+                let text = self.source.get(span.clone()).unwrap_or("");
+                text.strip_prefix('d')
+                    .and_then(|rest| rest.strip_prefix(self.model.states[i].name.as_str()))
+                    .is_some_and(|rest| rest.trim_start().starts_with('='))
+            });
+            if self.model.states[i].equation.is_none() && !first_equation.contains_key(&i) && !equation_unparsed {
                 let s = &self.model.states[i];
                 let insert_at = line_end_after(self.source, s.span.end);
                 let noise = self.model.noises.first().map(|n| n.name.clone()).unwrap_or_else(|| "W".to_string());
@@ -1166,9 +1172,18 @@ impl<'a> Analyzer<'a> {
         }
     }
 
+    /// Whether `name` appears as a word in text that did not parse.
+    fn mentioned_in_unparsed(&self, name: &str) -> bool {
+        self.file.unparsed.iter().any(|span| {
+            let text = self.source.get(span.clone()).unwrap_or("");
+            text.split(|c: char| !(c.is_alphanumeric() || c == '_'))
+                .any(|word| word == name || word.strip_prefix('d') == Some(name))
+        })
+    }
+
     fn unused(&mut self) {
         for (i, p) in self.model.params.iter().enumerate() {
-            if !self.param_used[i] {
+            if !self.param_used[i] && !self.mentioned_in_unparsed(&p.name) {
                 self.diagnostics.push(
                     Diagnostic::new(&rules::UNUSED, p.name_span.clone(), format!("parameter `{}` is never used", p.name))
                         .with_help("use it in an equation or a let, or remove it")
@@ -1177,7 +1192,7 @@ impl<'a> Analyzer<'a> {
             }
         }
         for (i, n) in self.model.noises.iter().enumerate() {
-            if !self.noise_used[i] {
+            if !self.noise_used[i] && !self.mentioned_in_unparsed(&n.name) {
                 self.diagnostics.push(
                     Diagnostic::new(&rules::UNUSED, n.name_span.clone(), format!("noise `{}` drives no equation", n.name))
                         .with_help(format!("add a term `... d{}` to an equation, or remove the noise", n.name)),
@@ -1185,7 +1200,7 @@ impl<'a> Analyzer<'a> {
             }
         }
         for (i, l) in self.model.lets.iter().enumerate() {
-            if !self.let_used[i] {
+            if !self.let_used[i] && !self.mentioned_in_unparsed(&l.name) {
                 self.diagnostics.push(
                     Diagnostic::new(&rules::UNUSED, l.name_span.clone(), format!("let `{}` is never used", l.name))
                         .with_help("use it in an equation or another let, or remove it")

@@ -324,4 +324,8 @@ pub struct SourceFile {
     pub statements: Vec<Statement>,
     pub comments: Vec<Comment>,
     pub diagnostics: Vec<sdeck_diagnostics::Diagnostic>,
+    /// Text that did not parse: whole statements, and terms left out of an equation.
+    /// Later layers use it to avoid follow-on reports (a name used only there is not
+    /// "unused"; a state whose equation is there is not "missing" one).
+    pub unparsed: Vec<sdeck_diagnostics::Span>,
 }

@@ -29,6 +29,9 @@ pub const RESERVED_NAMES: [&str; 11] = [
     "t", "pi", "dt", "exp", "log", "sqrt", "abs", "min", "max", "sin", "cos",
 ];
 
+// A statement that fails yields exactly one diagnostic, built once; boxing it would only
+// move the allocation.
+#[allow(clippy::result_large_err)]
 type Result<T> = std::result::Result<T, Diagnostic>;
 
 /// Parses a whole file. Never fails: statements that do not parse are reported in
@@ -45,16 +48,23 @@ pub fn parse(text: &str) -> SourceFile {
         statements: Vec::with_capacity(pieces.len()),
         comments,
         diagnostics: Vec::new(),
+        unparsed: Vec::new(),
     };
     for piece in pieces {
-        match parse_piece(text, piece.span.clone()) {
+        let mut soft = Vec::new();
+        match parse_piece(text, piece.span.clone(), &mut soft) {
             Ok(kind) => file.statements.push(Statement {
                 kind,
                 span: piece.span,
                 description: piece.description,
             }),
-            Err(diagnostic) => file.diagnostics.push(diagnostic),
+            Err(diagnostic) => {
+                file.unparsed.push(piece.span.clone());
+                file.diagnostics.push(diagnostic);
+            }
         }
+        file.unparsed.extend(soft.iter().map(|d| d.span.clone()));
+        file.diagnostics.append(&mut soft);
     }
     file
 }
@@ -63,7 +73,9 @@ fn syntax_error(span: Span, message: impl Into<String>) -> Diagnostic {
     Diagnostic::new(&rules::SYNTAX, span, message)
 }
 
-fn parse_piece(text: &str, span: Span) -> Result<StatementKind> {
+/// Parses one piece. Errors that spoil the whole statement are returned; errors confined
+/// to one part (a term with no differential) go to `soft` and the rest is kept.
+fn parse_piece(text: &str, span: Span, soft: &mut Vec<Diagnostic>) -> Result<StatementKind> {
     let src = &text[span.clone()];
     let offset = span.start;
     precheck(src, offset)?;
@@ -72,12 +84,18 @@ fn parse_piece(text: &str, span: Span) -> Result<StatementKind> {
     let statement = pairs
         .next()
         .ok_or_else(|| syntax_error(span.clone(), "empty statement"))?;
-    let mut builder = Builder { offset, nodes: 0 };
+    let mut builder = Builder {
+        offset,
+        nodes: 0,
+        soft: Vec::new(),
+    };
     let inner = statement
         .into_inner()
         .next()
         .ok_or_else(|| syntax_error(span.clone(), "empty statement"))?;
-    builder.statement(inner)
+    let kind = builder.statement(inner);
+    soft.append(&mut builder.soft);
+    kind
 }
 
 /// Size, bracket and nesting checks that run before pest.
@@ -341,6 +359,8 @@ fn join_or(items: &[&str]) -> String {
 struct Builder {
     offset: usize,
     nodes: usize,
+    /// Errors confined to one part of the statement.
+    soft: Vec<Diagnostic>,
 }
 
 impl Builder {
@@ -875,7 +895,13 @@ impl Builder {
                     sign = if p.as_str() == "+" { Sign::Plus } else { Sign::Minus };
                 }
                 _ => {
-                    terms.push(self.term(sign, p)?);
+                    // A term with no differential is reported and left out; the rest
+                    // of the equation is still analysed.
+                    match self.term(sign, p) {
+                        Ok(term) => terms.push(term),
+                        Err(e) if e.message == NO_DIFFERENTIAL => self.soft.push(e),
+                        Err(e) => return Err(e),
+                    }
                     sign = Sign::Plus;
                 }
             }
@@ -906,7 +932,7 @@ impl Builder {
             let Some(differential) = differential else {
                 return Err(syntax_error(
                     span.clone(),
-                    "this term has no differential",
+                    NO_DIFFERENTIAL,
                 )
                 .with_label("a term ends with `dt` or `dW`")
                 .with_help("end the term with `dt` for drift or `dW` for diffusion on the noise `W`, e.g. `kappa * (level - x) dt`"));
@@ -932,6 +958,8 @@ impl Builder {
         })
     }
 }
+
+const NO_DIFFERENTIAL: &str = "this term has no differential";
 
 /// `(negated an odd number of times, the expression without the negations)`.
 fn strip_negations(mut expr: &Expr) -> (bool, &Expr) {
