@@ -248,9 +248,7 @@ impl Poly {
                 .filter(|(a, _)| !matches!(a, Atom::State(_)))
                 .cloned()
                 .collect();
-            out.entry(state_part)
-                .or_default()
-                .insert_term(rest, *c);
+            out.entry(state_part).or_default().insert_term(rest, *c);
         }
         out
     }
@@ -771,10 +769,7 @@ mod tests {
     #[test]
     fn equal_expressions_normalise_equally() {
         // (a + x)² and a² + 2·a·x + x²
-        let square = Expr::Pow(
-            Box::new(Expr::Add(p(0), x(0))),
-            Box::new(Expr::Const(2.0)),
-        );
+        let square = Expr::Pow(Box::new(Expr::Add(p(0), x(0))), Box::new(Expr::Const(2.0)));
         let expanded = Expr::Add(
             Box::new(Expr::Add(
                 Box::new(Expr::Mul(p(0), p(0))),
@@ -791,7 +786,10 @@ mod tests {
     #[test]
     fn square_root_forms_are_recognised() {
         // vol * sqrt(r), sqrt(vol^2 * r) and sqrt(r) * vol all square to vol²·r.
-        let a = Expr::Mul(p(0), Box::new(Expr::Call(Function::Sqrt, vec![Expr::State(0)])));
+        let a = Expr::Mul(
+            p(0),
+            Box::new(Expr::Call(Function::Sqrt, vec![Expr::State(0)])),
+        );
         let b = Expr::Call(
             Function::Sqrt,
             vec![Expr::Mul(
@@ -799,7 +797,10 @@ mod tests {
                 x(0),
             )],
         );
-        let c = Expr::Mul(Box::new(Expr::Call(Function::Sqrt, vec![Expr::State(0)])), p(0));
+        let c = Expr::Mul(
+            Box::new(Expr::Call(Function::Sqrt, vec![Expr::State(0)])),
+            p(0),
+        );
         let expected = Poly::atom(Atom::Param(0))
             .mul(&Poly::atom(Atom::Param(0)))
             .mul(&Poly::atom(Atom::State(0)));
@@ -816,10 +817,7 @@ mod tests {
         let err = to_poly(&e).expect_err("exp of a state");
         assert_eq!(err.piece, e);
         // but a function of parameters and t is an opaque coefficient
-        let g = Expr::Mul(
-            Box::new(Expr::Call(Function::Sin, vec![Expr::Time])),
-            x(0),
-        );
+        let g = Expr::Mul(Box::new(Expr::Call(Function::Sin, vec![Expr::Time])), x(0));
         let poly = to_poly(&g).expect("polynomial");
         assert!(poly.depends_on_time());
         assert_eq!(poly.state_degree(), 1);

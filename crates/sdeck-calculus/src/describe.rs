@@ -42,7 +42,11 @@ pub fn square_root_terms(model: &Model, state: usize) -> Option<SquareRootTerms>
     let level = os.a.divide_by_term(&speed);
     let level_text = match &level {
         Some(l) => show_poly(l, &names),
-        None => format!("({})/({})", show_poly(&os.a, &names), show_poly(&speed, &names)),
+        None => format!(
+            "({})/({})",
+            show_poly(&os.a, &names),
+            show_poly(&speed, &names)
+        ),
     };
     Some(SquareRootTerms {
         speed: show_poly(&speed, &names),

@@ -88,7 +88,11 @@ impl<'a> Writer<'a> {
     }
 
     /// Σ_k c_k·(integrand) dW_k, one summand per noise term.
-    fn noise_sum(&self, terms: &[(usize, Poly, Poly)], integrand: &dyn Fn(&Poly) -> String) -> String {
+    fn noise_sum(
+        &self,
+        terms: &[(usize, Poly, Poly)],
+        integrand: &dyn Fn(&Poly) -> String,
+    ) -> String {
         terms
             .iter()
             .filter(|(_, c, _)| !c.is_zero())
@@ -311,7 +315,9 @@ fn linear_formulas(
     };
     let multiplicative = terms.iter().any(|(_, _, d)| !d.is_zero());
     let solution = if family == Family::Linear && !multiplicative {
-        let noise = w.noise_sum(terms, &|c| format!("∫₀ᵗ {}·{}", growth_from("s"), w.factor(c)));
+        let noise = w.noise_sum(terms, &|c| {
+            format!("∫₀ᵗ {}·{}", growth_from("s"), w.factor(c))
+        });
         let noise = if noise.is_empty() {
             String::new()
         } else {
@@ -341,7 +347,13 @@ fn linear_formulas(
         let additive = terms
             .iter()
             .filter(|(_, c, _)| !c.is_zero())
-            .map(|(k, c, _)| format!(" + ∫₀ᵗ Φ(s)⁻¹·{} d{}(s)", w.factor(c), noise_name(w.model, *k)))
+            .map(|(k, c, _)| {
+                format!(
+                    " + ∫₀ᵗ Φ(s)⁻¹·{} d{}(s)",
+                    w.factor(c),
+                    noise_name(w.model, *k)
+                )
+            })
             .collect::<String>();
         Some(format!(
             "{x_t} = Φ(t)·({x0} + ∫₀ᵗ Φ(s)⁻¹·({}) ds{additive}), Φ(t) = exp(∫₀ᵗ ({}) du + {phi_noise})",
@@ -384,7 +396,12 @@ fn linear_formulas(
 }
 
 /// Formulas of a state that is part of a coupled system.
-pub(crate) fn coupled(model: &Model, analysis: &Analysis, state: usize, family: Family) -> Formulas {
+pub(crate) fn coupled(
+    model: &Model,
+    analysis: &Analysis,
+    state: usize,
+    family: Family,
+) -> Formulas {
     let w = Writer::new(model, state);
     let _ = analysis;
     let x = &w.state;
@@ -394,7 +411,9 @@ pub(crate) fn coupled(model: &Model, analysis: &Analysis, state: usize, family: 
                 "X(t) = e^(A·t)·X₀ + ∫₀ᵗ e^(A·(t − s))·b ds + ∫₀ᵗ e^(A·(t − s))·L dW(s), \
                  {x} its component"
             )),
-            mean: Some(format!("E[X(t)] = e^(A·t)·X₀ + ∫₀ᵗ e^(A·s)·b ds, {x} its component")),
+            mean: Some(format!(
+                "E[X(t)] = e^(A·t)·X₀ + ∫₀ᵗ e^(A·s)·b ds, {x} its component"
+            )),
             variance: Some(format!(
                 "Cov[X(t)] = ∫₀ᵗ e^(A·s)·L·R·Lᵀ·e^(Aᵀ·s) ds (Van Loan), entry ({x}, {x})"
             )),

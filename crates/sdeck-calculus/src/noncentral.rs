@@ -63,7 +63,7 @@ pub fn cdf(y: f64, degrees: f64, noncentrality: f64) -> f64 {
 /// The p-quantile of the noncentral chi-square law, by bisection on [`cdf`] to a relative
 /// width of 1e-13. `None` when p is outside (0, 1) or the arguments are invalid.
 pub fn quantile(p: f64, degrees: f64, noncentrality: f64) -> Option<f64> {
-    if !(p > 0.0 && p < 1.0) || !(degrees > 0.0 && noncentrality >= 0.0) {
+    if !(p > 0.0 && p < 1.0 && degrees > 0.0 && noncentrality >= 0.0) {
         return None;
     }
     if !(degrees.is_finite() && noncentrality.is_finite()) {
@@ -115,14 +115,17 @@ mod tests {
         // (Johnson, Kotz & Balakrishnan 1995, vol. 2, ch. 29, definition of the law).
         use statrs::distribution::{ContinuousCDF, Normal};
         let normal = Normal::new(0.0, 1.0).expect("standard normal");
-        for lambda in [0.3, 2.5, 9.0] {
-            for y in [0.05, 1.0, 4.0, 15.0] {
-                let root = (y as f64).sqrt();
-                let shift = (lambda as f64).sqrt();
+        for lambda in [0.3_f64, 2.5, 9.0] {
+            for y in [0.05_f64, 1.0, 4.0, 15.0] {
+                let root = y.sqrt();
+                let shift = lambda.sqrt();
                 let expected = normal.cdf(root - shift) - normal.cdf(-root - shift);
                 let value = cdf(y, 1.0, lambda);
                 // statrs' normal CDF is good to about 1e-10 here.
-                assert!((value - expected).abs() < 1e-9, "y={y} λ={lambda}: {value} vs {expected}");
+                assert!(
+                    (value - expected).abs() < 1e-9,
+                    "y={y} λ={lambda}: {value} vs {expected}"
+                );
             }
         }
     }
@@ -138,7 +141,10 @@ mod tests {
         ];
         for (y, k, lambda, expected) in cdfs {
             let value = cdf(y, k, lambda);
-            assert!(((value - expected) / expected).abs() < 1e-9, "cdf({y}, {k}, {lambda}) = {value}");
+            assert!(
+                ((value - expected) / expected).abs() < 1e-9,
+                "cdf({y}, {k}, {lambda}) = {value}"
+            );
         }
         let quantiles = [
             (0.05, 4.0, 2.5, 1.2870803787219254),
@@ -147,7 +153,10 @@ mod tests {
         ];
         for (p, k, lambda, expected) in quantiles {
             let value = quantile(p, k, lambda).expect("quantile");
-            assert!(((value - expected) / expected).abs() < 1e-9, "ppf({p}, {k}, {lambda}) = {value}");
+            assert!(
+                ((value - expected) / expected).abs() < 1e-9,
+                "ppf({p}, {k}, {lambda}) = {value}"
+            );
         }
     }
 
@@ -156,7 +165,10 @@ mod tests {
         for (k, lambda) in [(0.5, 0.2), (3.0, 7.0), (20.0, 100.0)] {
             for p in [0.01, 0.3, 0.5, 0.9, 0.999] {
                 let q = quantile(p, k, lambda).expect("quantile");
-                assert!((cdf(q, k, lambda) - p).abs() < 1e-9, "k={k} λ={lambda} p={p}");
+                assert!(
+                    (cdf(q, k, lambda) - p).abs() < 1e-9,
+                    "k={k} λ={lambda} p={p}"
+                );
             }
         }
     }

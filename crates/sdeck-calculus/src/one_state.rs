@@ -91,7 +91,9 @@ pub(crate) fn mean_variance(
         // Var = α ∫₀ᵗ e^{2b(t−s)} ds = α φ(2b, t) (Vasicek 1977, eq. 25 with α = σ²).
         Family::OrnsteinUhlenbeck => closed(v.alpha * phi(2.0 * v.b, t)),
         // Var = x0² e^{2bt} (e^{γ t} − 1) (Glasserman 2004, §3.2.1).
-        Family::GeometricBrownian => closed(x0 * x0 * (2.0 * v.b * t).exp() * (v.gamma * t).exp_m1()),
+        Family::GeometricBrownian => {
+            closed(x0 * x0 * (2.0 * v.b * t).exp() * (v.gamma * t).exp_m1())
+        }
         // Var = β x0 e^{bt} φ(b,t) + a β φ(b,t)²/2, the CIR variance rewritten with
         // κ = −b, θ = a/κ, σ² = β (Cox, Ingersoll & Ross 1985, eq. 19).
         Family::SquareRoot => {
@@ -168,7 +170,11 @@ fn integrating_factor(
             integral(p, s, t)
         }
     };
-    let homogeneous = if y0 == 0.0 { 0.0 } else { y0 * exponent(0.0).exp() };
+    let homogeneous = if y0 == 0.0 {
+        0.0
+    } else {
+        y0 * exponent(0.0).exp()
+    };
     homogeneous + integral(|s| exponent(s).exp() * q(s), 0.0, t)
 }
 

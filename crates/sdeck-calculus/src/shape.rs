@@ -66,17 +66,22 @@ pub(crate) fn shape_of(model: &Model, index: usize) -> Result<Shape, Unresolved>
         .and_then(|s| s.equation.as_ref())
         .ok_or(Unresolved::DidNotResolve)?;
     if equation.drift.is_invalid()
-        || equation.diffusion.iter().any(|d| d.coefficient.is_invalid())
-        || equation.diffusion.iter().any(|d| d.noise >= model.noises.len())
+        || equation
+            .diffusion
+            .iter()
+            .any(|d| d.coefficient.is_invalid())
+        || equation
+            .diffusion
+            .iter()
+            .any(|d| d.noise >= model.noises.len())
     {
         return Err(Unresolved::DidNotResolve);
     }
-    let drift = to_poly(&equation.drift).map_err(|NotPolynomial { piece }| {
-        Unresolved::NotPolynomial {
+    let drift =
+        to_poly(&equation.drift).map_err(|NotPolynomial { piece }| Unresolved::NotPolynomial {
             place: "drift".to_string(),
             piece,
-        }
-    })?;
+        })?;
     let mut noises = Vec::new();
     for term in &equation.diffusion {
         let form = to_root_form(&term.coefficient).map_err(|NotPolynomial { piece }| {
@@ -107,7 +112,10 @@ pub(crate) fn correlation(corr: &[Vec<f64>], k: usize, l: usize) -> f64 {
     if k == l {
         return 1.0;
     }
-    corr.get(k).and_then(|row| row.get(l)).copied().unwrap_or(0.0)
+    corr.get(k)
+        .and_then(|row| row.get(l))
+        .copied()
+        .unwrap_or(0.0)
 }
 
 /// Σ_kl ρ_kl g_k h_l, the instantaneous covariance rate of two diffusions, when it is a
@@ -306,7 +314,11 @@ pub(crate) fn classify_state(model: &Model, index: usize, corr: &[Vec<f64>]) -> 
                     format!("drift {drift_text} is constant, {diffusion_text} is constant"),
                 )
             } else if constant && b_value != 0.0 {
-                let slope = if b_value < 0.0 { "negative" } else { "positive" };
+                let slope = if b_value < 0.0 {
+                    "negative"
+                } else {
+                    "positive"
+                };
                 (
                     Family::OrnsteinUhlenbeck,
                     format!(
@@ -327,16 +339,12 @@ pub(crate) fn classify_state(model: &Model, index: usize, corr: &[Vec<f64>]) -> 
         } else if a.is_zero() && !additive && constant {
             (
                 Family::GeometricBrownian,
-                format!(
-                    "drift {drift_text} and {diffusion_text} are both proportional to {name}"
-                ),
+                format!("drift {drift_text} and {diffusion_text} are both proportional to {name}"),
             )
         } else {
             (
                 Family::Linear,
-                format!(
-                    "drift {drift_text} and {diffusion_text} are affine in {name}{time_note}"
-                ),
+                format!("drift {drift_text} and {diffusion_text} are affine in {name}{time_note}"),
             )
         }
     } else {
@@ -426,7 +434,13 @@ pub(crate) fn classify_system(
     let time_dependent = shapes.iter().any(|s| {
         s.drift.depends_on_time() || s.noises.iter().any(|t| t.form.square().depends_on_time())
     });
-    let state_name = |i: usize| model.states.get(i).map(|s| s.name.clone()).unwrap_or_default();
+    let state_name = |i: usize| {
+        model
+            .states
+            .get(i)
+            .map(|s| s.name.clone())
+            .unwrap_or_default()
+    };
     let Some(rows_ok) = rows.clone() else {
         let culprit = shapes
             .iter()

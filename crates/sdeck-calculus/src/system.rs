@@ -3,8 +3,8 @@
 
 use crate::algebra::Poly;
 use crate::linear_system::{eigenvalues, matrix_exponential, AffineGaussian};
-use crate::polynomial::PolynomialSystem;
 use crate::one_state::{self, phi};
+use crate::polynomial::PolynomialSystem;
 use crate::shape::{correlation, diffusion_product, OneState};
 use crate::{
     formulas, ode, Analysis, Derivation, Family, LinearCoefficients, Method, Moments,
@@ -24,19 +24,31 @@ pub(crate) fn derive(model: &Model, analysis: &Analysis) -> Derivation {
         Some(engine) => engine
             .stationary_mean()
             .zip(engine.stationary_covariance())
-            .map(|(mean, cov)| (mean, cov, "Normal (marginal of the stationary law of the linear system)")),
+            .map(|(mean, cov)| {
+                (
+                    mean,
+                    cov,
+                    "Normal (marginal of the stationary law of the linear system)",
+                )
+            }),
         None => polynomial_engine(model, analysis)
             .and_then(|engine| engine.stationary_moments(2))
             .and_then(|table| Some((table.means(), table.covariance_matrix()?)))
-            .map(|(mean, cov)| (mean, cov, "no named law: mean and variance of the stationary moments")),
+            .map(|(mean, cov)| {
+                (
+                    mean,
+                    cov,
+                    "no named law: mean and variance of the stationary moments",
+                )
+            }),
     };
     for (i, classified) in analysis.classified.iter().enumerate() {
         if let Some((os, family)) = analysis.one_state(i) {
             states.push(one_state_law(model, analysis, i, os, family));
             continue;
         }
-        let coupled = !classified.depends_on.is_empty()
-            && classified.reason.starts_with("the equation of");
+        let coupled =
+            !classified.depends_on.is_empty() && classified.reason.starts_with("the equation of");
         let (family, reason, method) = if coupled && system.family != Family::General {
             let method = match (system.family, system.time_dependent) {
                 (Family::LinearSystem, false) => Method::ClosedForm,
@@ -59,13 +71,15 @@ pub(crate) fn derive(model: &Model, analysis: &Analysis) -> Derivation {
             (Family::General, classified.reason.clone(), Method::None)
         };
         let stationary = if matches!(family, Family::LinearSystem | Family::Polynomial) {
-            stationary_system.as_ref().and_then(|(mean, covariance, law)| {
-                Some(Stationary {
-                    mean: *mean.get(i)?,
-                    variance: *covariance.get((i, i))?,
-                    law: law.to_string(),
+            stationary_system
+                .as_ref()
+                .and_then(|(mean, covariance, law)| {
+                    Some(Stationary {
+                        mean: *mean.get(i)?,
+                        variance: *covariance.get((i, i))?,
+                        law: law.to_string(),
+                    })
                 })
-            })
         } else {
             None
         };
@@ -103,7 +117,10 @@ pub(crate) fn derive(model: &Model, analysis: &Analysis) -> Derivation {
             return None;
         }
         let matrix = DMatrix::from_fn(size, size, |r, c| {
-            rows.get(r).and_then(|row| row.get(c)).copied().unwrap_or(0.0)
+            rows.get(r)
+                .and_then(|row| row.get(c))
+                .copied()
+                .unwrap_or(0.0)
         });
         Some(eigenvalues(&matrix))
     });
@@ -131,8 +148,7 @@ fn one_state_law(
         } else {
             Method::Quadrature
         }
-    } else if matches!(family, Family::Linear | Family::Polynomial) && os.state_dependent_noise()
-    {
+    } else if matches!(family, Family::Linear | Family::Polynomial) && os.state_dependent_noise() {
         Method::MomentEquations
     } else {
         Method::ClosedForm
@@ -233,7 +249,9 @@ pub(crate) fn polynomial_engine(model: &Model, analysis: &Analysis) -> Option<Po
             .unwrap_or(0.0)
     });
     let b = DVector::from_fn(n, |r, _| {
-        rows.get(r).map(|(_, k)| k.value(params, 0.0)).unwrap_or(0.0)
+        rows.get(r)
+            .map(|(_, k)| k.value(params, 0.0))
+            .unwrap_or(0.0)
     });
     let mut c0 = DMatrix::zeros(n, n);
     let mut c1 = vec![DMatrix::zeros(n, n); n];
@@ -275,7 +293,9 @@ fn linear_matrices(
     let m = model.noises.len();
     let params = &analysis.params;
     let value = |p: Option<&Poly>| p.map(|p| p.value(params, t)).unwrap_or(0.0);
-    let a = DMatrix::from_fn(n, n, |r, c| value(rows.get(r).and_then(|(cs, _)| cs.get(c))));
+    let a = DMatrix::from_fn(n, n, |r, c| {
+        value(rows.get(r).and_then(|(cs, _)| cs.get(c)))
+    });
     let b = DVector::from_fn(n, |r, _| value(rows.get(r).map(|(_, k)| k)));
     let loadings = DMatrix::from_fn(n, m, |r, k| value(loads.get(r).and_then(|l| l.get(k))));
     Some((a, b, loadings))
@@ -297,7 +317,9 @@ fn integrate_linear_system(
             return;
         };
         let mean = DVector::from_fn(n, |r, _| y.get(r).copied().unwrap_or(f64::NAN));
-        let cov = DMatrix::from_fn(n, n, |r, c| y.get(n + r * n + c).copied().unwrap_or(f64::NAN));
+        let cov = DMatrix::from_fn(n, n, |r, c| {
+            y.get(n + r * n + c).copied().unwrap_or(f64::NAN)
+        });
         let dm = &a * &mean + &b;
         let dp = &a * &cov + &cov * a.transpose() + &loadings * &corr * loadings.transpose();
         for (r, v) in dm.iter().enumerate() {
@@ -317,7 +339,9 @@ fn integrate_linear_system(
     start.extend(std::iter::repeat_n(0.0, n * n));
     let end = ode::integrate(derivative, &start, 0.0, t, 1e-11, 1e-300).ok()?;
     let mean = DVector::from_fn(n, |r, _| end.get(r).copied().unwrap_or(f64::NAN));
-    let cov = DMatrix::from_fn(n, n, |r, c| end.get(n + r * n + c).copied().unwrap_or(f64::NAN));
+    let cov = DMatrix::from_fn(n, n, |r, c| {
+        end.get(n + r * n + c).copied().unwrap_or(f64::NAN)
+    });
     Some((mean, cov))
 }
 
@@ -363,7 +387,11 @@ pub(crate) fn moments_at(
     } else if valid_time {
         polynomial_engine(model, analysis).and_then(|engine| {
             let table = engine.moments_at(&DVector::from_vec(x0.clone()), t, 2);
-            Some((table.means(), table.covariance_matrix()?, Method::MomentEquations))
+            Some((
+                table.means(),
+                table.covariance_matrix()?,
+                Method::MomentEquations,
+            ))
         })
     } else {
         None
@@ -377,20 +405,22 @@ pub(crate) fn moments_at(
                     method[i] = *system_method;
                 }
             }
-            for j in 0..n {
-                if i != j {
-                    covariance[i][j] = system_cov.get((i, j)).copied().filter(|v| v.is_finite());
+            if let Some(row) = covariance.get_mut(i) {
+                for (j, slot) in row.iter_mut().enumerate() {
+                    if i != j {
+                        *slot = system_cov.get((i, j)).copied().filter(|v| v.is_finite());
+                    }
                 }
             }
         }
     }
-    for i in 0..n {
-        covariance[i][i] = variance[i];
-        for j in 0..n {
-            if i == j || covariance[i][j].is_some() {
-                continue;
+    for (i, row) in covariance.iter_mut().enumerate() {
+        for (j, slot) in row.iter_mut().enumerate() {
+            if i == j {
+                *slot = variance.get(i).copied().flatten();
+            } else if slot.is_none() {
+                *slot = pair_covariance(analysis, &x0, i, j, t);
             }
-            covariance[i][j] = pair_covariance(analysis, &x0, i, j, t);
         }
     }
     let _ = derivation;
@@ -483,7 +513,10 @@ pub(crate) fn autocovariance(
     let rows = derivation.drift_matrix.as_ref()?;
     let n = rows.len();
     let a = DMatrix::from_fn(n, n, |r, c| {
-        rows.get(r).and_then(|row| row.get(c)).copied().unwrap_or(f64::NAN)
+        rows.get(r)
+            .and_then(|row| row.get(c))
+            .copied()
+            .unwrap_or(f64::NAN)
     });
     let moments = moments_at(model, derivation, analysis, early);
     let mut cov = DMatrix::zeros(n, n);

@@ -57,10 +57,20 @@ fn ornstein_uhlenbeck_mean_and_variance_follow_vasicek() {
         let mean = theta + (r0 - theta) * (-kappa * t).exp();
         let variance = sigma * sigma * (1.0 - (-2.0 * kappa * t).exp()) / (2.0 * kappa);
         assert_close("mean", moments.mean[0].expect("mean"), mean, 1e-13);
-        assert_close("variance", moments.variance[0].expect("variance"), variance, 1e-13);
+        assert_close(
+            "variance",
+            moments.variance[0].expect("variance"),
+            variance,
+            1e-13,
+        );
     }
     // Half-life ln 2 / κ and the stationary law Normal(θ, σ²/(2κ)) (Vasicek 1977).
-    assert_close("half-life", law.half_life.expect("half-life"), 2f64.ln() / kappa, 1e-15);
+    assert_close(
+        "half-life",
+        law.half_life.expect("half-life"),
+        2f64.ln() / kappa,
+        1e-15,
+    );
     let stationary = law.stationary.as_ref().expect("stationary law");
     assert_close("stationary mean", stationary.mean, theta, 1e-14);
     assert_close(
@@ -81,8 +91,8 @@ fn ornstein_uhlenbeck_quantile_and_autocovariance() {
     // Cov(r_s, r_t) = σ²/(2κ) (e^{−κ(t−s)} − e^{−κ(t+s)}) (Vasicek 1977).
     let (kappa, sigma) = (1.5_f64, 0.01_f64);
     let (s, t) = (0.7, 1.9);
-    let expected = sigma * sigma / (2.0 * kappa)
-        * ((-kappa * (t - s)).exp() - (-kappa * (t + s)).exp());
+    let expected =
+        sigma * sigma / (2.0 * kappa) * ((-kappa * (t - s)).exp() - (-kappa * (t + s)).exp());
     let value = autocovariance(&m, &d, 0, s, t).expect("autocovariance");
     assert_close("autocovariance", value, expected, 1e-13);
 }
@@ -124,7 +134,12 @@ fn square_root_moments_and_law_follow_cox_ingersoll_ross() {
     // scipy.stats.ncx2.mean/var with df = 4κθ/σ², nc = 2c·x₀·e^{−κt},
     // c = 2κ/(σ²(1 − e^{−κt})) (Cox, Ingersoll & Ross 1985, Econometrica 53, eq. 18).
     let moments = moments_at(&m, &d, 1.5);
-    assert_close("mean", moments.mean[0].expect("mean"), 0.04397611576175597, 1e-12);
+    assert_close(
+        "mean",
+        moments.mean[0].expect("mean"),
+        0.04397611576175597,
+        1e-12,
+    );
     assert_close(
         "variance",
         moments.variance[0].expect("variance"),
@@ -189,8 +204,18 @@ fn geometric_brownian_is_lognormal() {
     // E[S_t] = S₀ e^{μt}, Var[S_t] = S₀² e^{2μt}(e^{σ²t} − 1); values from
     // scipy.stats.lognorm(s = σ√t, scale = S₀ e^{(μ − σ²/2)t}).
     let moments = moments_at(&m, &d, 3.0);
-    assert_close("mean", moments.mean[0].expect("mean"), 49.347122398269725, 1e-13);
-    assert_close("variance", moments.variance[0].expect("variance"), 502.1992179589994, 1e-12);
+    assert_close(
+        "mean",
+        moments.mean[0].expect("mean"),
+        49.347122398269725,
+        1e-13,
+    );
+    assert_close(
+        "variance",
+        moments.variance[0].expect("variance"),
+        502.1992179589994,
+        1e-12,
+    );
     let q05 = quantile(&m, &d, 0, 3.0, 0.05).expect("quantile");
     let median = quantile(&m, &d, 0, 3.0, 0.5).expect("median");
     assert_close("5% quantile", q05, 22.040616172203706, 1e-12);
@@ -218,7 +243,12 @@ dx = (a + b * x) dt + (c + d * x) dW
     assert_eq!(law.family, Family::Linear);
     assert_eq!(law.method, Method::MomentEquations);
     let moments = moments_at(&m, &d, 1.25);
-    assert_close("mean", moments.mean[0].expect("mean"), 0.031240346315509707, 1e-12);
+    assert_close(
+        "mean",
+        moments.mean[0].expect("mean"),
+        0.031240346315509707,
+        1e-12,
+    );
     assert_close(
         "variance",
         moments.variance[0].expect("variance"),
@@ -253,8 +283,18 @@ dx = kappa * (target - x) dt + vol dW
     let moments = moments_at(&m, &d, t);
     let drift = 1e-13 * 2e11;
     // First-order corrections are of size κ t ≈ 2e-13 relative.
-    assert_close("mean", moments.mean[0].expect("mean"), 1.0 + drift * t, 1e-12);
-    assert_close("variance", moments.variance[0].expect("variance"), 0.09 * t, 1e-12);
+    assert_close(
+        "mean",
+        moments.mean[0].expect("mean"),
+        1.0 + drift * t,
+        1e-12,
+    );
+    assert_close(
+        "variance",
+        moments.variance[0].expect("variance"),
+        0.09 * t,
+        1e-12,
+    );
 }
 
 #[test]
@@ -272,7 +312,12 @@ fn quadrature_agrees_with_the_closed_form() {
         let a = moments_at(&m, &d, t);
         let b = moments_at(&m0, &d0, t);
         assert_eq!(a.method[0], Method::Quadrature);
-        assert_close("mean", a.mean[0].expect("mean"), b.mean[0].expect("mean"), 1e-10);
+        assert_close(
+            "mean",
+            a.mean[0].expect("mean"),
+            b.mean[0].expect("mean"),
+            1e-10,
+        );
         assert_close(
             "variance",
             a.variance[0].expect("variance"),
@@ -299,10 +344,15 @@ dr = -kappa * r dt + s1 dW1 + s2 dW2
     let (m, d) = derived(source);
     assert_eq!(d.states[0].family, Family::OrnsteinUhlenbeck);
     let rate = 0.01_f64.powi(2) + 0.005_f64.powi(2) - 2.0 * 0.3 * 0.01 * 0.005;
-    let t = 0.8;
-    let expected = rate * (1.0 - (-4.0 * t as f64).exp()) / 4.0;
+    let t: f64 = 0.8;
+    let expected = rate * (1.0 - (-4.0 * t).exp()) / 4.0;
     let moments = moments_at(&m, &d, t);
-    assert_close("variance", moments.variance[0].expect("variance"), expected, 1e-13);
+    assert_close(
+        "variance",
+        moments.variance[0].expect("variance"),
+        expected,
+        1e-13,
+    );
 }
 
 #[test]
@@ -311,7 +361,10 @@ fn families_are_recognised_structurally() {
         ("dx = mu dt + vol dW", Family::ArithmeticBrownian),
         ("dx = mu * x dt + vol * x dW", Family::GeometricBrownian),
         ("dx = (mu - vol * x) dt + vol dW", Family::OrnsteinUhlenbeck),
-        ("dx = mu * (1 - x) dt + vol * sqrt(x) dW", Family::SquareRoot),
+        (
+            "dx = mu * (1 - x) dt + vol * sqrt(x) dW",
+            Family::SquareRoot,
+        ),
         ("dx = (mu - x) dt + (vol + vol * x) dW", Family::Linear),
         ("dx = (mu - x) dt + vol * t dW", Family::Linear),
         ("dx = -x dt + sqrt(vol + vol * x^2) dW", Family::Polynomial),
@@ -328,10 +381,18 @@ fn families_are_recognised_structurally() {
         // depend on them, so only the model is used here.
         let analysis = analyze(&source, "kinds");
         let d = derive(&analysis.model);
-        assert_eq!(d.states[0].family, family, "{equation}: {}", d.states[0].reason);
+        assert_eq!(
+            d.states[0].family, family,
+            "{equation}: {}",
+            d.states[0].reason
+        );
         if family == Family::General {
             assert_eq!(d.states[0].method, Method::None);
-            assert!(d.states[0].reason.contains("no closed form"), "{}", d.states[0].reason);
+            assert!(
+                d.states[0].reason.contains("no closed form"),
+                "{}",
+                d.states[0].reason
+            );
         }
     }
 }
@@ -344,7 +405,11 @@ fn general_family_names_the_offending_term() {
     );
     let d = derive(&analysis.model);
     assert_eq!(d.states[0].family, Family::General);
-    assert!(d.states[0].reason.contains("exp(x)"), "{}", d.states[0].reason);
+    assert!(
+        d.states[0].reason.contains("exp(x)"),
+        "{}",
+        d.states[0].reason
+    );
     let moments = moments_at(&analysis.model, &d, 1.0);
     assert_eq!(moments.mean[0], None);
     assert!(!moments.exact[0]);

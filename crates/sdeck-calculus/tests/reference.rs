@@ -26,7 +26,9 @@ fn check(
         (None, None) => {}
         (Some(a), Some(b)) => {
             let allowed = tolerance * scale.abs().max(f64::MIN_POSITIVE);
-            if !((a - b).abs() <= allowed) {
+            // NaN must fail too, hence the positive test.
+            let agrees = (a - b).abs() <= allowed;
+            if !agrees {
                 failures.push(format!(
                     "{what}: ours {a:e}, reference {b:e}, gap {:e} > {allowed:e}",
                     (a - b).abs()
@@ -44,12 +46,19 @@ fn figures_agree_with_the_independent_reference() {
         .expect("tests/reference/expected.json is committed");
     let expected: Value = serde_json::from_str(&text).expect("valid JSON");
     let models = expected["models"].as_array().expect("a list of models");
-    assert!(models.len() >= 12, "the reference covers at least twelve models");
+    assert!(
+        models.len() >= 12,
+        "the reference covers at least twelve models"
+    );
     let mut failures = Vec::new();
     for entry in models {
         let file = entry["file"].as_str().expect("file");
         let source = std::fs::read_to_string(root.join(file)).expect("model file");
-        let stem = file.rsplit('/').next().unwrap_or(file).trim_end_matches(".sde");
+        let stem = file
+            .rsplit('/')
+            .next()
+            .unwrap_or(file)
+            .trim_end_matches(".sde");
         let analysis = sdeck_semantics::analyze(&source, stem);
         assert!(
             !analysis.has_errors(),

@@ -96,7 +96,9 @@ fn feller_condition(model: &Model, derivation: &Derivation, out: &mut Vec<Diagno
         };
         let drift_side = 2.0 * sr.speed * sr.level;
         let vol_squared = sr.vol * sr.vol;
-        if !(drift_side < vol_squared) || !(sr.speed > 0.0) {
+        // Written as positive tests so that NaN never fires the rule.
+        let violated = drift_side < vol_squared && sr.speed > 0.0;
+        if !violated {
             continue;
         }
         let Some(span) = equation_span(model, state) else {
@@ -113,7 +115,11 @@ fn feller_condition(model: &Model, derivation: &Derivation, out: &mut Vec<Diagno
         let raise = match terms.as_ref().and_then(|t| t.speed_param) {
             Some(p) => format!(
                 "raise {} to at least {}",
-                model.params.get(p).map(|p| p.name.as_str()).unwrap_or("the speed"),
+                model
+                    .params
+                    .get(p)
+                    .map(|p| p.name.as_str())
+                    .unwrap_or("the speed"),
                 in_param_unit(model, p, needed_speed, true)
             ),
             None => format!(
@@ -124,7 +130,11 @@ fn feller_condition(model: &Model, derivation: &Derivation, out: &mut Vec<Diagno
         let lower = match terms.as_ref().and_then(|t| t.vol_param) {
             Some(p) => format!(
                 "lower {} to at most {}",
-                model.params.get(p).map(|p| p.name.as_str()).unwrap_or("the volatility"),
+                model
+                    .params
+                    .get(p)
+                    .map(|p| p.name.as_str())
+                    .unwrap_or("the volatility"),
                 in_param_unit(model, p, allowed_vol, false)
             ),
             None => format!(
@@ -364,8 +374,7 @@ fn interval_keeps(domain: &Interval, lower: Option<(f64, bool)>) -> bool {
         (None, _) => true,
         (Some(_), None) => false,
         (Some((bound, bound_inclusive)), Some((support, support_inclusive))) => {
-            bound < support
-                || (bound == support && (bound_inclusive || !support_inclusive))
+            bound < support || (bound == support && (bound_inclusive || !support_inclusive))
         }
     }
 }
@@ -403,7 +412,8 @@ fn not_mean_reverting(model: &Model, derivation: &Derivation, out: &mut Vec<Diag
             (None, Some(sr)) => -sr.speed,
             _ => continue,
         };
-        if !(b > 0.0) {
+        let explosive = b > 0.0;
+        if !explosive {
             continue;
         }
         let Some(span) = equation_span(model, index) else {
@@ -445,7 +455,11 @@ fn not_mean_reverting(model: &Model, derivation: &Derivation, out: &mut Vec<Diag
             let (Some(&i), Some(&j)) = (block.get(r), block.get(c)) else {
                 return 0.0;
             };
-            matrix.get(i).and_then(|row| row.get(j)).copied().unwrap_or(0.0)
+            matrix
+                .get(i)
+                .and_then(|row| row.get(j))
+                .copied()
+                .unwrap_or(0.0)
         });
         if sub.iter().any(|v| !v.is_finite()) {
             continue;
@@ -457,7 +471,8 @@ fn not_mean_reverting(model: &Model, derivation: &Derivation, out: &mut Vec<Diag
         else {
             continue;
         };
-        if !(re > 0.0) {
+        let explosive = re > 0.0;
+        if !explosive {
             continue;
         }
         let names: Vec<String> = block.iter().map(|i| state_name(model, *i)).collect();
@@ -556,14 +571,22 @@ fn correlation_not_psd(model: &Model, out: &mut Vec<Diagnostic>) {
         return;
     }
     let matrix = DMatrix::from_fn(n, n, |r, c| {
-        rows.get(r).and_then(|row| row.get(c)).copied().unwrap_or(0.0)
+        rows.get(r)
+            .and_then(|row| row.get(c))
+            .copied()
+            .unwrap_or(0.0)
     });
     if matrix.iter().any(|v| !v.is_finite()) {
         return;
     }
     let eigen = SymmetricEigen::new(matrix);
-    let smallest = eigen.eigenvalues.iter().copied().fold(f64::INFINITY, f64::min);
-    if !(smallest < -EIGENVALUE_TOLERANCE) {
+    let smallest = eigen
+        .eigenvalues
+        .iter()
+        .copied()
+        .fold(f64::INFINITY, f64::min);
+    let negative = smallest < -EIGENVALUE_TOLERANCE;
+    if !negative {
         return;
     }
     let mut diagnostic = Diagnostic::new(
@@ -606,7 +629,10 @@ fn expectations(model: &Model, derivation: &Derivation, out: &mut Vec<Diagnostic
                     Figure::Variance => variance,
                     _ => variance.map(|v| v.max(0.0).sqrt()),
                 };
-                (value, format!("{keyword}({name}, {} {clock})", number(time, 6)))
+                (
+                    value,
+                    format!("{keyword}({name}, {} {clock})", number(time, 6)),
+                )
             }
             Figure::Halflife => (law.half_life, format!("halflife({name})")),
             Figure::StationaryMean => (
@@ -631,9 +657,9 @@ fn expectations(model: &Model, derivation: &Derivation, out: &mut Vec<Diagnostic
                     Figure::Mean | Figure::Variance | Figure::Sd => {
                         "no known value for this figure"
                     }
-                    Figure::StationaryMean
-                    | Figure::StationaryVariance
-                    | Figure::StationarySd => "no stationary law",
+                    Figure::StationaryMean | Figure::StationaryVariance | Figure::StationarySd => {
+                        "no stationary law"
+                    }
                 };
                 out.push(
                     Diagnostic::new(
@@ -733,8 +759,14 @@ mod tests {
             message.starts_with("2·kappa·level = 0.0576 < vol² = 0.09 (per year)"),
             "{message}"
         );
-        assert!(message.contains("raise kappa to at least 0.782 [1/year]"), "{message}");
-        assert!(message.contains("lower vol to at most 0.24 [1/sqrt(year)]"), "{message}");
+        assert!(
+            message.contains("raise kappa to at least 0.782 [1/year]"),
+            "{message}"
+        );
+        assert!(
+            message.contains("lower vol to at most 0.24 [1/sqrt(year)]"),
+            "{message}"
+        );
         let equation = model.states[0].equation.as_ref().expect("equation");
         assert_eq!(feller[0].span, equation.span);
     }
@@ -751,7 +783,9 @@ mod tests {
         assert_eq!(feller.len(), 1);
         // √0.0576 / √365 = 0.012562...
         assert!(
-            feller[0].message.contains("lower vol to at most 0.0125 [1/sqrt(day)]"),
+            feller[0]
+                .message
+                .contains("lower vol to at most 0.0125 [1/sqrt(day)]"),
             "{}",
             feller[0].message
         );
@@ -765,7 +799,11 @@ mod tests {
         let (model, diagnostics) = run(source);
         let domain = of_rule(&diagnostics, &rules::STATE_DOMAIN);
         assert_eq!(domain.len(), 1, "{diagnostics:#?}");
-        assert!(domain[0].message.contains("`sqrt` of r"), "{}", domain[0].message);
+        assert!(
+            domain[0].message.contains("`sqrt` of r"),
+            "{}",
+            domain[0].message
+        );
         let equation = model.states[1].equation.as_ref().expect("equation");
         assert_eq!(domain[0].span, equation.span);
     }
@@ -777,7 +815,11 @@ mod tests {
         let (_, diagnostics) = run(gbm);
         let domain = of_rule(&diagnostics, &rules::STATE_DOMAIN);
         assert_eq!(domain.len(), 1, "{diagnostics:#?}");
-        assert!(domain[0].message.contains("stays at zero"), "{}", domain[0].message);
+        assert!(
+            domain[0].message.contains("stays at zero"),
+            "{}",
+            domain[0].message
+        );
 
         let square_root = "model quarry\nparam k = 1 [1/year]\nparam m = 0.05\n\
                            param s = 0.1 [1/sqrt(year)]\nnoise W\nstate h = -0.01\n\
@@ -785,7 +827,11 @@ mod tests {
         let (_, diagnostics) = run(square_root);
         let domain = of_rule(&diagnostics, &rules::STATE_DOMAIN);
         assert_eq!(domain.len(), 1, "{diagnostics:#?}");
-        assert!(domain[0].message.contains("starts at -0.01"), "{}", domain[0].message);
+        assert!(
+            domain[0].message.contains("starts at -0.01"),
+            "{}",
+            domain[0].message
+        );
     }
 
     #[test]
@@ -798,8 +844,16 @@ mod tests {
         );
         let found = of_rule(&diagnostics, &rules::NOT_MEAN_REVERTING);
         assert_eq!(found.len(), 1, "{diagnostics:#?}");
-        assert!(found[0].message.contains("is kappa = +0.8 per year"), "{}", found[0].message);
-        assert!(found[0].message.contains("every 0.866 years"), "{}", found[0].message);
+        assert!(
+            found[0].message.contains("is kappa = +0.8 per year"),
+            "{}",
+            found[0].message
+        );
+        assert!(
+            found[0].message.contains("every 0.866 years"),
+            "{}",
+            found[0].message
+        );
     }
 
     #[test]
@@ -822,22 +876,29 @@ mod tests {
         );
         let found = of_rule(&diagnostics, &rules::NOT_MEAN_REVERTING);
         assert_eq!(found.len(), 1, "{diagnostics:#?}");
-        assert!(found[0].message.contains("eigenvalue 0.9 per year"), "{}", found[0].message);
+        assert!(
+            found[0].message.contains("eigenvalue 0.9 per year"),
+            "{}",
+            found[0].message
+        );
         assert_eq!(found[0].related.len(), 1);
     }
 
     #[test]
     fn inconsistent_correlations_give_the_smallest_eigenvalue() {
         // [[1, .9, .9], [.9, 1, −.9], [.9, −.9, 1]]: eigenvalues 1.9, 1.9, −0.8 (numpy.linalg.eigvalsh).
-        let (model, diagnostics) = run(
-            "model trio\nparam v = 0.01 [1/sqrt(year)]\nnoise A, B, C\n\
+        let (model, diagnostics) =
+            run("model trio\nparam v = 0.01 [1/sqrt(year)]\nnoise A, B, C\n\
              corr A B = 0.9\ncorr A C = 0.9\ncorr B C = -0.9\n\
              state x = 0\nstate y = 0\nstate z = 0\n\
-             dx = v dA\ndy = v dB\ndz = v dC\n",
-        );
+             dx = v dA\ndy = v dB\ndz = v dC\n");
         let found = of_rule(&diagnostics, &rules::CORRELATION_NOT_PSD);
         assert_eq!(found.len(), 1, "{diagnostics:#?}");
-        assert!(found[0].message.contains("eigenvalue -0.8 < 0"), "{}", found[0].message);
+        assert!(
+            found[0].message.contains("eigenvalue -0.8 < 0"),
+            "{}",
+            found[0].message
+        );
         assert_eq!(found[0].span, model.correlations[0].span);
         assert_eq!(found[0].related.len(), 2);
     }
@@ -854,7 +915,9 @@ mod tests {
         let found = of_rule(&diagnostics, &rules::EXPECTATION_FAILED);
         assert_eq!(found.len(), 1, "{diagnostics:#?}");
         assert!(
-            found[0].message.starts_with("mean(r, 1 year) = 0.028494 is outside the expected [0.029, 0.033]"),
+            found[0]
+                .message
+                .starts_with("mean(r, 1 year) = 0.028494 is outside the expected [0.029, 0.033]"),
             "{}",
             found[0].message
         );
@@ -864,8 +927,16 @@ mod tests {
         let (_, diagnostics) = run(missing);
         let found = of_rule(&diagnostics, &rules::EXPECTATION_FAILED);
         assert_eq!(found.len(), 1, "{diagnostics:#?}");
-        assert!(found[0].message.contains("does not exist"), "{}", found[0].message);
-        assert!(found[0].message.contains("arithmetic-brownian"), "{}", found[0].message);
+        assert!(
+            found[0].message.contains("does not exist"),
+            "{}",
+            found[0].message
+        );
+        assert!(
+            found[0].message.contains("arithmetic-brownian"),
+            "{}",
+            found[0].message
+        );
     }
 
     #[test]
