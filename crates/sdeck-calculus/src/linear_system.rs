@@ -6,6 +6,24 @@
 //! language. Nothing panics on bad input: inconsistent shapes, non-finite numbers or negative
 //! times give results filled with NaN (or `None` where the signature allows it), and
 //! [`AffineGaussian::validate`] says what is wrong.
+//!
+//! ```
+//! use nalgebra::{DMatrix, DVector};
+//! use sdeck_calculus::linear_system::AffineGaussian;
+//!
+//! // dr = 2 (3% − r) dt + 1% dW: an Ornstein–Uhlenbeck rate.
+//! let rate = AffineGaussian::new(
+//!     DMatrix::from_element(1, 1, -2.0),
+//!     DVector::from_element(1, 2.0 * 0.03),
+//!     DMatrix::from_element(1, 1, 0.01),
+//!     DMatrix::identity(1, 1),
+//! )?;
+//! let variance = rate.covariance_at(1.0)[(0, 0)];
+//! // σ²(1 − e^{−2κt})/(2κ)
+//! assert!((variance - 1e-4 * (1.0 - (-4.0_f64).exp()) / 4.0).abs() < 1e-16);
+//! assert!((rate.stationary_mean().unwrap()[0] - 0.03).abs() < 1e-15);
+//! # Ok::<(), String>(())
+//! ```
 
 use nalgebra::{DMatrix, DVector};
 

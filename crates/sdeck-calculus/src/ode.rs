@@ -5,6 +5,18 @@
 //! the integrator stops after [`MAX_STEPS`] steps and the quadrature after
 //! [`MAX_SUBDIVISIONS`] subdivisions or [`MAX_DEPTH`] halvings of one interval, returning an
 //! [`OdeError`] rather than panicking.
+//!
+//! ```
+//! use sdeck_calculus::ode::{integrate, quad};
+//!
+//! // y' = −y from 1: e^{−2} at t = 2.
+//! let y = integrate(|_, y, dy| dy[0] = -y[0], &[1.0], 0.0, 2.0, 1e-10, 1e-12)?;
+//! assert!((y[0] - (-2.0_f64).exp()).abs() < 1e-9);
+//! // ∫₀^∞ e^{−x} dx = 1.
+//! let area = quad(|x| (-x).exp(), 0.0, f64::INFINITY, 1e-10)?;
+//! assert!((area - 1.0).abs() < 1e-9);
+//! # Ok::<(), sdeck_calculus::ode::OdeError>(())
+//! ```
 
 // Reason: the stage loops index seven buffers of one length at the same i, reading like the
 // Butcher tableau; zipped iterators over seven slices would hide the formulas.

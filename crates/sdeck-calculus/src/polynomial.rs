@@ -9,6 +9,26 @@
 //! solves m' = G m, so E[X_t^α] = (e^{Gt} m(0))_α exactly.
 //!
 //! Pure numerics over `nalgebra`; nothing here knows the model language.
+//!
+//! ```
+//! use nalgebra::{DMatrix, DVector};
+//! use sdeck_calculus::polynomial::PolynomialSystem;
+//!
+//! // dr = κ(θ − r) dt + σ √r dW: drift κθ − κ r, squared diffusion σ² r.
+//! let (kappa, theta, sigma) = (1.5, 0.04, 0.2);
+//! let rate = PolynomialSystem::new(
+//!     DVector::from_element(1, kappa * theta),
+//!     DMatrix::from_element(1, 1, -kappa),
+//!     DMatrix::zeros(1, 1),
+//!     vec![DMatrix::from_element(1, 1, sigma * sigma)],
+//!     Vec::new(),
+//! )?;
+//! let stationary = rate.stationary_moments(2).unwrap();
+//! // The stationary variance θσ²/(2κ).
+//! let expected = theta * sigma * sigma / (2.0 * kappa);
+//! assert!((stationary.variance(0).unwrap() - expected).abs() < 1e-15);
+//! # Ok::<(), String>(())
+//! ```
 
 use std::collections::HashMap;
 

@@ -910,3 +910,127 @@ fn quadrature_matches_known_integrals() {
         Err(OdeError::NonFinite { .. }) | Err(OdeError::QuadratureNotConverged { .. })
     ));
 }
+
+// ---------------------------------------------------------------------------------------
+// Hostile input: every public entry point answers (NaN, None or an error), never panics.
+// ---------------------------------------------------------------------------------------
+
+#[test]
+fn hostile_inputs_never_panic() {
+    let awkward_numbers = [
+        f64::NAN,
+        f64::INFINITY,
+        f64::NEG_INFINITY,
+        -1.0,
+        0.0,
+        1e-300,
+        1e300,
+    ];
+    // Empty systems.
+    let empty = AffineGaussian::new(
+        DMatrix::zeros(0, 0),
+        DVector::zeros(0),
+        DMatrix::zeros(0, 0),
+        DMatrix::zeros(0, 0),
+    )
+    .unwrap();
+    assert_eq!(empty.mean_at(&DVector::zeros(0), 1.0).len(), 0);
+    assert_eq!(empty.covariance_at(1.0).shape(), (0, 0));
+    let _ = empty.stationary_covariance();
+    let _ = empty.stationary_mean();
+    let _ = empty.cross_covariance(0.5, 1.0);
+    assert!(eigenvalues(&DMatrix::zeros(0, 0)).is_empty());
+
+    // Awkward coefficients placed straight in the public fields, and awkward times.
+    let system = three_state_system();
+    let x0 = DVector::from_vec(vec![1.0, 0.5, -0.3]);
+    for &value in &awkward_numbers {
+        let mut broken = system.clone();
+        broken.a[(0, 1)] = value;
+        let mean = broken.mean_at(&x0, 1.0);
+        let covariance = broken.covariance_at(1.0);
+        let _ = broken.cross_covariance(0.2, 3.0);
+        let _ = broken.stationary_covariance();
+        let _ = broken.stationary_mean();
+        let _ = eigenvalues(&broken.a);
+        let _ = matrix_exponential(&(&broken.a * value));
+        if !value.is_finite() {
+            assert!(mean.iter().all(|v| v.is_nan()), "mean with {value}");
+            assert!(
+                covariance.iter().all(|v| v.is_nan()),
+                "covariance with {value}"
+            );
+        }
+        let times = system.mean_at(&x0, value);
+        let spreads = system.covariance_at(value);
+        if !(value.is_finite() && value >= 0.0) {
+            assert!(times.iter().all(|v| v.is_nan()), "mean at t = {value}");
+            assert!(
+                spreads.iter().all(|v| v.is_nan()),
+                "covariance at t = {value}"
+            );
+        }
+        let _ = system.cross_covariance(value, 1.0);
+        let _ = system.cross_covariance(1.0, value);
+    }
+
+    // Polynomial systems.
+    let constant_only = PolynomialSystem::new(
+        DVector::zeros(0),
+        DMatrix::zeros(0, 0),
+        DMatrix::zeros(0, 0),
+        Vec::new(),
+        Vec::new(),
+    )
+    .unwrap();
+    assert_eq!(
+        constant_only
+            .moments_at(&DVector::zeros(0), 1.0, 4)
+            .values(),
+        &[1.0]
+    );
+    assert!(constant_only.stationary_moments(3).is_some());
+    let cir = square_root(1.8, 0.032, 0.15);
+    for &value in &awkward_numbers {
+        let table = cir.moments_at(&DVector::from_element(1, value), 1.0, 4);
+        let _ = table.central(&[4]);
+        let _ = cir.moments_at(&DVector::from_element(1, 0.03), value, 4);
+        assert!(
+            PolynomialSystem::new(
+                DVector::from_element(1, value),
+                DMatrix::from_element(1, 1, -1.0),
+                DMatrix::zeros(1, 1),
+                Vec::new(),
+                Vec::new(),
+            )
+            .is_ok()
+                == value.is_finite()
+        );
+    }
+    let table = cir.moments_at(&DVector::from_element(1, 0.03), 1.0, 2);
+    assert_eq!(table.raw(&[3]), None);
+    assert_eq!(table.raw(&[1, 1]), None);
+    assert_eq!(table.central(&[3]), None);
+    assert_eq!(table.covariance(0, 5), None);
+
+    // ODE and quadrature.
+    for &value in &awkward_numbers {
+        let _ = integrate(
+            |_, y, dy| dy[0] = value * y[0],
+            &[1.0],
+            0.0,
+            1.0,
+            1e-8,
+            1e-10,
+        );
+        let _ = integrate(|_, y, dy| dy[0] = y[0], &[value], 0.0, 1.0, 1e-8, 1e-10);
+        let _ = integrate(|_, y, dy| dy[0] = y[0], &[1.0], 0.0, value, 1e-8, 1e-10);
+        let _ = integrate(|_, y, dy| dy[0] = y[0], &[1.0], 0.0, 1.0, value, value);
+        let _ = quad(|x| value * x, 0.0, 1.0, 1e-8);
+        let _ = quad(|x| x, value, 1.0, 1e-8);
+        let _ = quad(|x| x, 0.0, 1.0, value);
+    }
+    assert!(integrate(|_, _, _| {}, &[], 0.0, 1.0, 1e-8, 1e-10)
+        .unwrap()
+        .is_empty());
+}
