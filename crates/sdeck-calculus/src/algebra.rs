@@ -32,10 +32,11 @@ pub enum Atom {
 impl Atom {
     fn rank(&self) -> (u8, usize, &str) {
         match self {
-            Atom::State(i) => (0, *i, ""),
-            Atom::Param(i) => (1, *i, ""),
-            Atom::Time => (2, 0, ""),
-            Atom::Opaque(_, key) => (3, 0, key.as_str()),
+            // States last, so that a term prints as `kappa·r`.
+            Atom::Param(i) => (0, *i, ""),
+            Atom::Time => (1, 0, ""),
+            Atom::Opaque(_, key) => (2, 0, key.as_str()),
+            Atom::State(i) => (3, *i, ""),
         }
     }
 
@@ -527,12 +528,26 @@ pub fn to_root_form(expr: &Expr) -> Result<RootForm, NotPolynomial> {
     }
 }
 
-/// Names used when printing: the model's own parameter and state names.
+/// Names used when printing: the model's own parameter and state names, and the symbol
+/// written for the time (`t`, or `s` inside an integral over s).
 pub struct Names<'a> {
     pub model: &'a Model,
+    pub time: &'a str,
 }
 
-impl Names<'_> {
+impl<'a> Names<'a> {
+    pub fn new(model: &'a Model) -> Names<'a> {
+        Names { model, time: "t" }
+    }
+
+    /// The same names with the time written as `time`.
+    pub fn with_time(&self, time: &'a str) -> Names<'a> {
+        Names {
+            model: self.model,
+            time,
+        }
+    }
+
     fn param(&self, i: usize) -> String {
         self.model
             .params
@@ -589,7 +604,7 @@ fn show_atom(atom: &Atom, names: &Names) -> String {
     match atom {
         Atom::State(i) => names.state(*i),
         Atom::Param(i) => names.param(*i),
-        Atom::Time => "t".to_string(),
+        Atom::Time => names.time.to_string(),
         Atom::Opaque(expr, _) => {
             let text = show_expr(expr, names);
             if matches!(**expr, Expr::Call(..)) {
@@ -722,7 +737,7 @@ pub fn show_expr(expr: &Expr, names: &Names) -> String {
         }
         Expr::Param(i) => names.param(*i),
         Expr::State(i) => names.state(*i),
-        Expr::Time => "t".to_string(),
+        Expr::Time => names.time.to_string(),
         Expr::Neg(a) => format!("−{}", wrap(a, 3)),
         Expr::Add(a, b) => format!("{} + {}", wrap(a, 1), wrap(b, 1)),
         Expr::Sub(a, b) => format!("{} − {}", wrap(a, 1), wrap(b, 2)),

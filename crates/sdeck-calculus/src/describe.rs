@@ -37,7 +37,7 @@ pub fn square_root_terms(model: &Model, state: usize) -> Option<SquareRootTerms>
     if family != Family::SquareRoot {
         return None;
     }
-    let names = Names { model };
+    let names = Names::new(model);
     let speed = os.b.neg();
     let level = os.a.divide_by_term(&speed);
     let level_text = match &level {
@@ -62,5 +62,5 @@ pub fn square_root_terms(model: &Model, state: usize) -> Option<SquareRootTerms>
 pub fn drift_slope_text(model: &Model, state: usize) -> Option<String> {
     let analysis = analyse(model);
     let (os, _) = analysis.one_state(state)?;
-    Some(show_poly(&os.b, &Names { model }))
+    Some(show_poly(&os.b, &Names::new(model)))
 }

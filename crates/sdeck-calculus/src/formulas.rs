@@ -14,7 +14,7 @@ struct Writer<'a> {
 impl<'a> Writer<'a> {
     fn new(model: &'a Model, state: usize) -> Writer<'a> {
         Writer {
-            names: Names { model },
+            names: Names::new(model),
             model,
             state: model
                 .states
@@ -129,9 +129,24 @@ pub(crate) fn stationary_law(model: &Model, os: &OneState, family: Family) -> St
             w.ratio(&os.a.scale(2.0), &os.beta),
             w.ratio(&os.beta, &os.b.scale(-2.0))
         ),
-        _ => "no named law: mean −a/b and variance −(α + β·m + γ·m²)/(2b + γ) of the \
-              moment equations"
-            .to_string(),
+        _ => {
+            // Fixed point of m' = a + b m and v' = α + β m + γ m² + (2b + γ) v.
+            let mean = w.ratio(&os.a, &minus_b);
+            let rate = os.b.scale(-2.0).sub(&os.gamma);
+            let source = sum(&[
+                if os.alpha.is_zero() {
+                    String::new()
+                } else {
+                    w.show(&os.alpha)
+                },
+                w.term(&os.beta, "m∞"),
+                w.term(&os.gamma, "m∞²"),
+            ]);
+            format!(
+                "no named law; mean m∞ = {mean}, variance ({source})/{}",
+                w.denominator(&rate)
+            )
+        }
     }
 }
 
@@ -295,6 +310,52 @@ pub(crate) fn one_state(model: &Model, os: &OneState, family: Family) -> Formula
     }
 }
 
+/// Joins signed terms: `a + b − c`, skipping empty ones.
+fn sum(terms: &[String]) -> String {
+    let mut out = String::new();
+    for term in terms.iter().filter(|t| !t.is_empty()) {
+        if out.is_empty() {
+            out.push_str(term);
+        } else if let Some(rest) = term.strip_prefix('−') {
+            out.push_str(" − ");
+            out.push_str(rest);
+        } else {
+            out.push_str(" + ");
+            out.push_str(term);
+        }
+    }
+    if out.is_empty() {
+        "0".to_string()
+    } else {
+        out
+    }
+}
+
+impl Writer<'_> {
+    /// `p·var`, or nothing when p is zero.
+    fn term(&self, p: &Poly, var: &str) -> String {
+        if p.is_zero() {
+            String::new()
+        } else {
+            self.times(p, var)
+        }
+    }
+
+    /// The polynomial with `t` written as `s` (inside an integral over s).
+    fn show_at_s(&self, p: &Poly) -> String {
+        show_poly(p, &self.names.with_time("s"))
+    }
+
+    fn factor_at_s(&self, p: &Poly) -> String {
+        let text = self.show_at_s(p);
+        if p.terms.len() > 1 || text.starts_with('−') {
+            format!("({text})")
+        } else {
+            text
+        }
+    }
+}
+
 fn linear_formulas(
     w: &Writer,
     os: &OneState,
@@ -304,30 +365,38 @@ fn linear_formulas(
     let x_t = w.at("t");
     let x_s = w.at("s");
     let x0 = w.start();
-    let (a, b) = (w.show(&os.a), w.show(&os.b));
-    let growth_from = |from: &str| {
-        if os.b.depends_on_time() {
-            format!("e^(∫{from}ᵗ ({b}) du)")
+    let b_varies = os.b.depends_on_time();
+    // e^(∫ₛᵗ b) written out when b is constant.
+    let growth = |from: &str| {
+        if b_varies {
+            let slope = show_poly(&os.b, &w.names.with_time("u"));
+            format!("e^(∫{from}ᵗ ({slope}) du)")
+        } else if from == "₀" {
+            w.exp(&os.b, "t")
         } else {
-            w.exp(&os.b, &format!("(t − {})", from.trim_end_matches('₀')))
-                .replace("(t − 0)", "t")
+            w.exp(&os.b, "(t − s)")
         }
     };
     let multiplicative = terms.iter().any(|(_, _, d)| !d.is_zero());
     let solution = if family == Family::Linear && !multiplicative {
-        let noise = w.noise_sum(terms, &|c| {
-            format!("∫₀ᵗ {}·{}", growth_from("s"), w.factor(c))
-        });
-        let noise = if noise.is_empty() {
-            String::new()
-        } else {
-            format!(" + {noise}")
-        };
-        Some(format!(
-            "{x_t} = {}·{x0} + ∫₀ᵗ {}·({a}) ds{noise}",
-            growth_from("₀"),
-            growth_from("s")
-        ))
+        let noise: Vec<String> = terms
+            .iter()
+            .filter(|(_, c, _)| !c.is_zero())
+            .map(|(k, c, _)| {
+                format!(
+                    "∫₀ᵗ {}·{} d{}(s)",
+                    growth("ₛ"),
+                    w.factor_at_s(c),
+                    noise_name(w.model, *k)
+                )
+            })
+            .collect();
+        let mut parts = vec![format!("{}·{x0}", growth("₀"))];
+        if !os.a.is_zero() {
+            parts.push(format!("∫₀ᵗ {}·{} ds", growth("ₛ"), w.factor_at_s(&os.a)));
+        }
+        parts.extend(noise);
+        Some(format!("{x_t} = {}", sum(&parts)))
     } else if family == Family::Linear {
         // Kloeden & Platen 1992, §4.2, eq. (2.4): the fundamental solution Φ.
         let corr = w.model.correlation_matrix();
@@ -338,48 +407,55 @@ fn linear_formulas(
                 cross = cross.add(&c.mul(d).scale(rho));
             }
         }
-        let phi_noise = terms
+        let phi_noise: Vec<String> = terms
             .iter()
             .filter(|(_, _, d)| !d.is_zero())
-            .map(|(k, _, d)| format!("∫₀ᵗ {} d{}", w.factor(d), noise_name(w.model, *k)))
-            .collect::<Vec<_>>()
-            .join(" + ");
-        let additive = terms
+            .map(|(k, _, d)| format!("∫₀ᵗ {} d{}", w.factor_at_s(d), noise_name(w.model, *k)))
+            .collect();
+        let additive: String = terms
             .iter()
             .filter(|(_, c, _)| !c.is_zero())
             .map(|(k, c, _)| {
                 format!(
                     " + ∫₀ᵗ Φ(s)⁻¹·{} d{}(s)",
-                    w.factor(c),
+                    w.factor_at_s(c),
                     noise_name(w.model, *k)
                 )
             })
-            .collect::<String>();
+            .collect();
+        let mut exponent = vec![format!(
+            "∫₀ᵗ ({}) ds",
+            w.show_at_s(&os.b.sub(&os.gamma.scale(0.5)))
+        )];
+        exponent.extend(phi_noise);
         Some(format!(
-            "{x_t} = Φ(t)·({x0} + ∫₀ᵗ Φ(s)⁻¹·({}) ds{additive}), Φ(t) = exp(∫₀ᵗ ({}) du + {phi_noise})",
-            w.show(&os.a.sub(&cross)),
-            w.show(&os.b.sub(&os.gamma.scale(0.5)))
+            "{x_t} = Φ(t)·({x0} + ∫₀ᵗ Φ(s)⁻¹·({}) ds{additive}), Φ(t) = exp({})",
+            w.show_at_s(&os.a.sub(&cross)),
+            sum(&exponent)
         ))
     } else {
         None
     };
     let mean = if os.time_dependent {
-        format!("m′(t) = {a} + {}, m(0) = {x0}", w.times(&os.b, "m(t)"))
-    } else {
         format!(
-            "E[{x_t}] = {x0}·{} + {}·({} − 1)/{}",
-            w.exp(&os.b, "t"),
-            w.factor(&os.a),
-            w.exp(&os.b, "t"),
-            w.denominator(&os.b)
+            "m′(t) = {}, m(0) = {x0}",
+            sum(&[w.show(&os.a), w.term(&os.b, "m(t)")])
         )
+    } else {
+        format!("E[{x_t}] = {}", reverting_mean(w, os, &x0, "t"))
     };
     let variance = format!(
-        "v′(t) = {} + {}·m(t) + {}·m(t)² + ({})·v(t), v(0) = 0",
-        w.show(&os.alpha),
-        w.factor(&os.beta),
-        w.factor(&os.gamma),
-        w.show(&os.b.scale(2.0).add(&os.gamma))
+        "v′(t) = {}, v(0) = 0",
+        sum(&[
+            if os.alpha.is_zero() {
+                String::new()
+            } else {
+                w.show(&os.alpha)
+            },
+            w.term(&os.beta, "m(t)"),
+            w.term(&os.gamma, "m(t)²"),
+            w.term(&os.b.scale(2.0).add(&os.gamma), "v(t)"),
+        ])
     );
     let stationary = (!os.time_dependent).then(|| stationary_law(w.model, os, family));
     Formulas {
@@ -388,7 +464,7 @@ fn linear_formulas(
         variance: Some(variance),
         autocovariance: Some(format!(
             "Cov({x_s}, {x_t}) = Var[{x_s}]·{}, s ≤ t",
-            growth_from("s")
+            growth("ₛ")
         )),
         stationary,
         transition: None,

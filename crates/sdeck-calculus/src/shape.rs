@@ -175,7 +175,7 @@ fn general(reason: String, depends_on: Vec<usize>) -> Classified {
 }
 
 pub(crate) fn unresolved_reason(model: &Model, why: &Unresolved) -> String {
-    let names = Names { model };
+    let names = Names::new(model);
     match why {
         Unresolved::DidNotResolve => "the equation did not resolve".to_string(),
         Unresolved::NotPolynomial { place, piece } => format!(
@@ -193,7 +193,7 @@ pub(crate) fn classify_state(model: &Model, index: usize, corr: &[Vec<f64>]) -> 
         Ok(s) => s,
         Err(why) => return general(unresolved_reason(model, &why), depends_on),
     };
-    let names = Names { model };
+    let names = Names::new(model);
     let name = model
         .states
         .get(index)
@@ -396,7 +396,7 @@ pub(crate) fn classify_system(
 ) -> SystemShape {
     let n = model.states.len();
     let mut shapes = Vec::with_capacity(n);
-    let names = Names { model };
+    let names = Names::new(model);
     for (i, classified) in states.iter().enumerate() {
         match shape_of(model, i) {
             Ok(s) => shapes.push(s),

@@ -105,7 +105,8 @@ pub(crate) fn derive(model: &Model, analysis: &Analysis) -> Derivation {
                 .map(|(coefficients, _)| {
                     coefficients
                         .iter()
-                        .map(|c| c.value(params, 0.0))
+                        // + 0.0 turns −0 into 0 for display.
+                        .map(|c| c.value(params, 0.0) + 0.0)
                         .collect::<Vec<f64>>()
                 })
                 .collect::<Vec<_>>()
