@@ -1,1 +1,391 @@
-//! (being written)
+//! The project file `sdeck.toml`: which project governs a path, and what it says.
+//!
+//! One resolver for every face of sdeck (the CLI and the language server call the same
+//! functions), so a model is checked with the same settings wherever it is opened.
+//!
+//! - The project that governs a path is the **nearest** `sdeck.toml` at or above it: the
+//!   file's own folder first, then each parent. Files are not merged: the nearest wins.
+//! - `[rules]` maps rule names to `off`, `hint`, `info`, `warning` or `error`.
+//! - `[files]` has `include` and `exclude`, lists of globs relative to the folder of the
+//!   `sdeck.toml`. A path is excluded when it matches an `exclude` glob, or when `include`
+//!   is given and it matches none of its globs. This holds for paths named explicitly too,
+//!   so a pre-commit hook that passes every changed file behaves like a folder run.
+//! - `[check] deny = "warnings" | "errors"` is the default of `sdeck check --deny`.
+//! - An unknown table, key, rule name or level is an error naming the file and the key.
+//!
+//! ```
+//! let dir = std::env::temp_dir().join(format!("sdeck-project-doc-{}", std::process::id()));
+//! std::fs::create_dir_all(dir.join("flawed")).unwrap();
+//! std::fs::write(
+//!     dir.join("sdeck.toml"),
+//!     "[rules]\nunused = \"off\"\n\n[files]\nexclude = [\"flawed/**\"]\n",
+//! )
+//! .unwrap();
+//! let project = sdeck_project::find_project(&dir.join("rate.sde")).unwrap().unwrap();
+//! assert!(project.is_excluded(&dir.join("flawed/feller.sde")));
+//! assert!(!project.is_excluded(&dir.join("rate.sde")));
+//! assert_eq!(
+//!     project.settings.levels.get("unused"),
+//!     Some(&sdeck_checks::RuleLevel::Off)
+//! );
+//! std::fs::remove_dir_all(&dir).unwrap();
+//! ```
+
+use globset::{Glob, GlobBuilder, GlobSet, GlobSetBuilder};
+use sdeck_checks::{RuleLevel, RuleSettings};
+use sdeck_diagnostics::{rules, Severity};
+use std::collections::HashMap;
+use std::fmt;
+use std::path::{Component, Path, PathBuf};
+use std::sync::Arc;
+
+/// The name of the project file.
+pub const PROJECT_FILE_NAME: &str = "sdeck.toml";
+
+/// Which findings make `sdeck check` exit with status 1.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum DenyLevel {
+    /// Errors only (the default).
+    Errors,
+    /// Errors and warnings.
+    Warnings,
+}
+
+/// A project file that could not be read or understood.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct ProjectError {
+    /// The `sdeck.toml` at fault.
+    pub file: PathBuf,
+    /// What is wrong, naming the key where there is one.
+    pub message: String,
+}
+
+impl fmt::Display for ProjectError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        write!(f, "{}: {}", self.file.display(), self.message)
+    }
+}
+
+impl std::error::Error for ProjectError {}
+
+/// A parsed `sdeck.toml`.
+#[derive(Clone, Debug)]
+pub struct Project {
+    /// The `sdeck.toml` itself (absolute, `.` and `..` removed).
+    pub file: PathBuf,
+    /// The folder that holds it; globs are relative to it.
+    pub root: PathBuf,
+    /// The per-rule levels of `[rules]`.
+    pub settings: RuleSettings,
+    /// `[check] deny`, when given.
+    pub deny: Option<DenyLevel>,
+    /// `[files] include`; `None` when absent (everything is included).
+    include: Option<GlobSet>,
+    /// `[files] exclude`.
+    exclude: GlobSet,
+}
+
+impl Project {
+    /// Reads and parses the project file at `file`.
+    pub fn load(file: &Path) -> Result<Project, ProjectError> {
+        let file = absolute(file);
+        let text = std::fs::read_to_string(&file).map_err(|e| ProjectError {
+            file: file.clone(),
+            message: format!("cannot read the project file: {e}"),
+        })?;
+        let root = file.parent().map(Path::to_path_buf).unwrap_or_default();
+        Project::parse(&text, file, root)
+    }
+
+    /// Parses the text of a project file; `file` is named in errors, `root` anchors the
+    /// globs.
+    pub fn parse(text: &str, file: PathBuf, root: PathBuf) -> Result<Project, ProjectError> {
+        let fail = |message: String| ProjectError {
+            file: file.clone(),
+            message,
+        };
+        let table: toml::Table = text
+            .parse()
+            .map_err(|e: toml::de::Error| fail(format!("not valid TOML: {}", e.to_string().trim_end())))?;
+        let mut settings = RuleSettings::default();
+        let mut deny = None;
+        let mut include = None;
+        let mut exclude = GlobSet::empty();
+        for (key, value) in &table {
+            match key.as_str() {
+                "rules" => settings = parse_rules(value).map_err(fail)?,
+                "files" => {
+                    let files = value
+                        .as_table()
+                        .ok_or_else(|| fail("`files` must be a table: write `[files]`".to_string()))?;
+                    for (key, value) in files {
+                        match key.as_str() {
+                            "include" => include = Some(parse_globs("files.include", value).map_err(fail)?),
+                            "exclude" => exclude = parse_globs("files.exclude", value).map_err(fail)?,
+                            other => {
+                                return Err(fail(format!(
+                                    "unknown key `files.{other}`; the keys of [files] are `include` and `exclude`"
+                                )))
+                            }
+                        }
+                    }
+                }
+                "check" => {
+                    let check = value
+                        .as_table()
+                        .ok_or_else(|| fail("`check` must be a table: write `[check]`".to_string()))?;
+                    for (key, value) in check {
+                        match key.as_str() {
+                            "deny" => deny = Some(parse_deny(value).map_err(fail)?),
+                            other => {
+                                return Err(fail(format!(
+                                    "unknown key `check.{other}`; the only key of [check] is `deny`"
+                                )))
+                            }
+                        }
+                    }
+                }
+                other => {
+                    return Err(fail(format!(
+                        "unknown key `{other}`; a project file has the tables [rules], [files] and [check]"
+                    )))
+                }
+            }
+        }
+        Ok(Project {
+            file,
+            root,
+            settings,
+            deny,
+            include,
+            exclude,
+        })
+    }
+
+    /// Whether `path` is left out of checks by `[files]`: it matches an `exclude` glob, or
+    /// `include` is given and it matches none. A path outside the project's folder is
+    /// never excluded by it.
+    pub fn is_excluded(&self, path: &Path) -> bool {
+        let path = absolute(path);
+        let Ok(relative) = path.strip_prefix(&self.root) else {
+            return false;
+        };
+        // A glob naming a folder (`flawed`, `flawed/`) excludes what lies under it, as
+        // does `flawed/**`: test the path and each of its parent folders.
+        let mut candidate = Some(relative);
+        while let Some(part) = candidate {
+            if part.as_os_str().is_empty() {
+                break;
+            }
+            if self.exclude.is_match(part) {
+                return true;
+            }
+            candidate = part.parent();
+        }
+        match &self.include {
+            Some(include) => !include.is_match(relative),
+            None => false,
+        }
+    }
+
+    /// Whether `[check] deny = "warnings"`: warnings make `sdeck check` fail.
+    pub fn deny_warnings(&self) -> bool {
+        self.deny == Some(DenyLevel::Warnings)
+    }
+}
+
+fn parse_rules(value: &toml::Value) -> Result<RuleSettings, String> {
+    let table = value
+        .as_table()
+        .ok_or_else(|| "`rules` must be a table: write `[rules]`".to_string())?;
+    let mut settings = RuleSettings::default();
+    for (name, level) in table {
+        let Some(rule) = rules::by_name(name) else {
+            let hint = closest_rule(name)
+                .map(|r| format!("did you mean `{r}`? "))
+                .unwrap_or_default();
+            return Err(format!(
+                "unknown rule `rules.{name}`; {hint}`sdeck explain` lists the rules"
+            ));
+        };
+        let text = level.as_str().ok_or_else(|| {
+            format!("`rules.{name}` must be a string: \"off\", \"hint\", \"info\", \"warning\" or \"error\"")
+        })?;
+        let level = match text {
+            "off" => RuleLevel::Off,
+            other => match Severity::parse(other) {
+                Some(severity) => RuleLevel::On(severity),
+                None => {
+                    return Err(format!(
+                        "`rules.{name} = \"{other}\"` is not a level; write \"off\", \"hint\", \"info\", \"warning\" or \"error\""
+                    ))
+                }
+            },
+        };
+        settings.levels.insert(rule.name.to_string(), level);
+    }
+    Ok(settings)
+}
+
+fn parse_globs(key: &str, value: &toml::Value) -> Result<GlobSet, String> {
+    let list = value
+        .as_array()
+        .ok_or_else(|| format!("`{key}` must be a list of globs, e.g. [\"flawed/**\"]"))?;
+    let mut builder = GlobSetBuilder::new();
+    for item in list {
+        let text = item
+            .as_str()
+            .ok_or_else(|| format!("`{key}` must hold strings, found {item}"))?;
+        builder.add(compile_glob(text).map_err(|e| format!("`{key}`: the glob \"{text}\" is not valid: {e}"))?);
+    }
+    builder
+        .build()
+        .map_err(|e| format!("`{key}`: the globs cannot be compiled: {e}"))
+}
+
+/// One glob of `[files]`: `*` and `?` stay within a path segment, `**` crosses them. A
+/// leading `./` and a trailing `/` are dropped so `./flawed/` means the folder `flawed`.
+fn compile_glob(text: &str) -> Result<Glob, globset::Error> {
+    let trimmed = text.trim();
+    let trimmed = trimmed.strip_prefix("./").unwrap_or(trimmed);
+    let trimmed = trimmed.trim_end_matches('/');
+    GlobBuilder::new(trimmed)
+        .literal_separator(true)
+        .backslash_escape(true)
+        .build()
+}
+
+fn parse_deny(value: &toml::Value) -> Result<DenyLevel, String> {
+    match value.as_str() {
+        Some("errors") => Ok(DenyLevel::Errors),
+        Some("warnings") => Ok(DenyLevel::Warnings),
+        Some(other) => Err(format!(
+            "`check.deny = \"{other}\"` is not a level; write \"errors\" or \"warnings\""
+        )),
+        None => Err("`check.deny` must be the string \"errors\" or \"warnings\"".to_string()),
+    }
+}
+
+/// The known rule closest to a misspelt name, when one is close (edit distance ≤ 2).
+fn closest_rule(name: &str) -> Option<&'static str> {
+    rules::ALL
+        .iter()
+        .map(|r| (edit_distance(name, r.name), r.name))
+        .filter(|(d, _)| *d <= 2)
+        .min()
+        .map(|(_, n)| n)
+}
+
+fn edit_distance(a: &str, b: &str) -> usize {
+    let b: Vec<char> = b.chars().collect();
+    let mut row: Vec<usize> = (0..=b.len()).collect();
+    for (i, ca) in a.chars().enumerate() {
+        let mut previous = row.first().copied().unwrap_or(0);
+        if let Some(first) = row.first_mut() {
+            *first = i + 1;
+        }
+        for (j, cb) in b.iter().enumerate() {
+            let substitute = previous + usize::from(ca != *cb);
+            let (left, up) = (row.get(j).copied().unwrap_or(0), row.get(j + 1).copied().unwrap_or(0));
+            previous = up;
+            if let Some(cell) = row.get_mut(j + 1) {
+                *cell = substitute.min(left + 1).min(up + 1);
+            }
+        }
+    }
+    row.last().copied().unwrap_or(0)
+}
+
+/// The absolute form of `path`, with `.` and `..` removed lexically (symbolic links are
+/// not followed, so a path keeps the project of the folder it is written under).
+pub fn absolute(path: &Path) -> PathBuf {
+    let joined = if path.is_absolute() {
+        path.to_path_buf()
+    } else {
+        match std::env::current_dir() {
+            Ok(dir) => dir.join(path),
+            Err(_) => path.to_path_buf(),
+        }
+    };
+    let mut out = PathBuf::new();
+    for component in joined.components() {
+        match component {
+            Component::CurDir => {}
+            Component::ParentDir => {
+                out.pop();
+            }
+            other => out.push(other),
+        }
+    }
+    out
+}
+
+/// The folder where the search for `start`'s project begins: `start` itself when it is
+/// a folder, otherwise the folder that holds it (the file need not exist: an unsaved
+/// buffer or `--stdin-name` is governed by the folder it would be saved in).
+fn search_start(start: &Path) -> PathBuf {
+    let start = absolute(start);
+    if start.is_dir() {
+        start
+    } else {
+        start.parent().map(Path::to_path_buf).unwrap_or(start)
+    }
+}
+
+/// The project that governs `start` (a file or a folder): the nearest `sdeck.toml` at or
+/// above it. `Ok(None)` when there is none; an error when the nearest one is broken.
+pub fn find_project(start: &Path) -> Result<Option<Project>, ProjectError> {
+    let folder = search_start(start);
+    for dir in folder.ancestors() {
+        let candidate = dir.join(PROJECT_FILE_NAME);
+        if candidate.is_file() {
+            return Project::load(&candidate).map(Some);
+        }
+    }
+    Ok(None)
+}
+
+/// The rule settings for `path`: those of its project, or the defaults when there is no
+/// project file, or when the nearest one is broken (call [`find_project`] to learn why).
+pub fn settings_for(path: &Path) -> RuleSettings {
+    match find_project(path) {
+        Ok(Some(project)) => project.settings,
+        Ok(None) | Err(_) => RuleSettings::default(),
+    }
+}
+
+/// Finds projects for many paths, reading each folder's `sdeck.toml` once. For runs
+/// over thousands of files in a few folders.
+#[derive(Default)]
+pub struct ProjectCache {
+    by_folder: HashMap<PathBuf, Result<Option<Arc<Project>>, ProjectError>>,
+}
+
+impl ProjectCache {
+    pub fn new() -> ProjectCache {
+        ProjectCache::default()
+    }
+
+    /// The project that governs `path`, as [`find_project`] finds it.
+    pub fn project_for(&mut self, path: &Path) -> Result<Option<Arc<Project>>, ProjectError> {
+        let folder = search_start(path);
+        self.for_folder(&folder)
+    }
+
+    fn for_folder(&mut self, folder: &Path) -> Result<Option<Arc<Project>>, ProjectError> {
+        if let Some(known) = self.by_folder.get(folder) {
+            return known.clone();
+        }
+        let candidate = folder.join(PROJECT_FILE_NAME);
+        let found = if candidate.is_file() {
+            Project::load(&candidate).map(|p| Some(Arc::new(p)))
+        } else {
+            match folder.parent() {
+                Some(parent) => self.for_folder(parent),
+                None => Ok(None),
+            }
+        };
+        self.by_folder.insert(folder.to_path_buf(), found.clone());
+        found
+    }
+}
