@@ -194,9 +194,13 @@ impl<'a> Analyzer<'a> {
                 StatementKind::Model { name } => {
                     if let Some(first) = &seen_model {
                         self.diagnostics.push(
-                            Diagnostic::new(&rules::DUPLICATE_NAME, statement.span.clone(), "the model is named twice")
-                                .with_related(first.clone(), "first named here")
-                                .with_help("keep one `model` statement"),
+                            Diagnostic::new(
+                                &rules::DUPLICATE_NAME,
+                                statement.span.clone(),
+                                "the model is named twice",
+                            )
+                            .with_related(first.clone(), "first named here")
+                            .with_help("keep one `model` statement"),
                         );
                     } else {
                         seen_model = Some(statement.span.clone());
@@ -206,9 +210,13 @@ impl<'a> Analyzer<'a> {
                 StatementKind::Clock { unit } => {
                     if let Some(first) = &seen_clock {
                         self.diagnostics.push(
-                            Diagnostic::new(&rules::DUPLICATE_NAME, statement.span.clone(), "the clock is set twice")
-                                .with_related(first.clone(), "first set here")
-                                .with_help("keep one `clock` statement"),
+                            Diagnostic::new(
+                                &rules::DUPLICATE_NAME,
+                                statement.span.clone(),
+                                "the clock is set twice",
+                            )
+                            .with_related(first.clone(), "first set here")
+                            .with_help("keep one `clock` statement"),
                         );
                         continue;
                     }
@@ -242,7 +250,13 @@ impl<'a> Analyzer<'a> {
                         continue;
                     }
                     let index = self.model.units.len();
-                    if self.declare(&name.name, &name.span, Target::Unit(index), SymbolKind::Unit, &statement.span) {
+                    if self.declare(
+                        &name.name,
+                        &name.span,
+                        Target::Unit(index),
+                        SymbolKind::Unit,
+                        &statement.span,
+                    ) {
                         self.model.units.push(UnitDecl {
                             name: name.name.clone(),
                             name_span: name.span.clone(),
@@ -259,8 +273,12 @@ impl<'a> Analyzer<'a> {
                         self.model.horizon = years;
                     } else {
                         self.diagnostics.push(
-                            Diagnostic::new(&rules::BOUND_VIOLATED, value.span.clone(), "the horizon must be positive")
-                                .with_help("write a positive time, e.g. `horizon 1 year`"),
+                            Diagnostic::new(
+                                &rules::BOUND_VIOLATED,
+                                value.span.clone(),
+                                "the horizon must be positive",
+                            )
+                            .with_help("write a positive time, e.g. `horizon 1 year`"),
                         );
                     }
                 }
@@ -279,9 +297,17 @@ impl<'a> Analyzer<'a> {
                     self.diagnostics.push(
                         dimension_error(
                             unit.span(),
-                            format!("{what} must be a time, but `{}` is {}", sdeck_units::unit_expr_text(unit), value.dimension.describe()),
+                            format!(
+                                "{what} must be a time, but `{}` is {}",
+                                sdeck_units::unit_expr_text(unit),
+                                value.dimension.describe()
+                            ),
                         )
-                        .with_help(format!("write a time unit, e.g. `{} {}`", q.number.text, self.clock_unit())),
+                        .with_help(format!(
+                            "write a time unit, e.g. `{} {}`",
+                            q.number.text,
+                            self.clock_unit()
+                        )),
                     );
                     return None;
                 }
@@ -308,7 +334,14 @@ impl<'a> Analyzer<'a> {
     }
 
     /// Registers a name; reports `duplicate-name` and returns false if it exists.
-    fn declare(&mut self, name: &str, span: &Span, target: Target, kind: SymbolKind, statement: &Span) -> bool {
+    fn declare(
+        &mut self,
+        name: &str,
+        span: &Span,
+        target: Target,
+        kind: SymbolKind,
+        statement: &Span,
+    ) -> bool {
         if let Some((_, first)) = self.names.get(name) {
             self.diagnostics.push(
                 Diagnostic::new(&rules::DUPLICATE_NAME, span.clone(), format!("`{name}` is declared twice"))
@@ -334,13 +367,23 @@ impl<'a> Analyzer<'a> {
             match &statement.kind {
                 StatementKind::Param(decl) => {
                     let index = self.model.params.len();
-                    if !self.declare(&decl.name.name, &decl.name.span, Target::Param(index), SymbolKind::Param, &statement.span) {
+                    if !self.declare(
+                        &decl.name.name,
+                        &decl.name.span,
+                        Target::Param(index),
+                        SymbolKind::Param,
+                        &statement.span,
+                    ) {
                         continue;
                     }
                     let (dimension, scale, unit_text) = self.declared_unit(decl);
                     let value = decl.value.value * scale;
                     let bound = decl.bound.as_ref().map(|b| convert_bound(b, scale));
-                    self.param_units.push(decl.unit.as_ref().map(|u| (u.span(), sdeck_units::unit_expr_text(u))));
+                    self.param_units.push(
+                        decl.unit
+                            .as_ref()
+                            .map(|u| (u.span(), sdeck_units::unit_expr_text(u))),
+                    );
                     self.model.params.push(Param {
                         name: decl.name.name.clone(),
                         name_span: decl.name.span.clone(),
@@ -359,7 +402,13 @@ impl<'a> Analyzer<'a> {
                 }
                 StatementKind::State(decl) => {
                     let index = self.model.states.len();
-                    if !self.declare(&decl.name.name, &decl.name.span, Target::State(index), SymbolKind::State, &statement.span) {
+                    if !self.declare(
+                        &decl.name.name,
+                        &decl.name.span,
+                        Target::State(index),
+                        SymbolKind::State,
+                        &statement.span,
+                    ) {
                         continue;
                     }
                     let (dimension, scale, unit_text) = self.declared_unit(decl);
@@ -385,7 +434,13 @@ impl<'a> Analyzer<'a> {
                 StatementKind::Noise { names } => {
                     for name in names {
                         let index = self.model.noises.len();
-                        if self.declare(&name.name, &name.span, Target::Noise(index), SymbolKind::Noise, &statement.span) {
+                        if self.declare(
+                            &name.name,
+                            &name.span,
+                            Target::Noise(index),
+                            SymbolKind::Noise,
+                            &statement.span,
+                        ) {
                             self.model.noises.push(Noise {
                                 name: name.name.clone(),
                                 name_span: name.span.clone(),
@@ -397,7 +452,13 @@ impl<'a> Analyzer<'a> {
                 }
                 StatementKind::Let { name, value } => {
                     let index = self.model.lets.len();
-                    if self.declare(&name.name, &name.span, Target::Let(index), SymbolKind::Let, &statement.span) {
+                    if self.declare(
+                        &name.name,
+                        &name.span,
+                        Target::Let(index),
+                        SymbolKind::Let,
+                        &statement.span,
+                    ) {
                         self.model.lets.push(Let {
                             name: name.name.clone(),
                             name_span: name.span.clone(),
@@ -430,7 +491,14 @@ impl<'a> Analyzer<'a> {
     }
 
     /// Bound and unit-scale checks of a param or state declaration.
-    fn check_declaration(&mut self, decl: &ast::Declaration, what: &str, value: f64, scale: f64, bound: Option<Interval>) {
+    fn check_declaration(
+        &mut self,
+        decl: &ast::Declaration,
+        what: &str,
+        value: f64,
+        scale: f64,
+        bound: Option<Interval>,
+    ) {
         if let Some(bound_interval) = bound {
             if value.is_finite() && !bound_interval.contains(value) {
                 let bound_text = decl.bound.as_ref().map(|b| b.span.clone());
@@ -477,8 +545,17 @@ impl<'a> Analyzer<'a> {
                             fmt_num(scale)
                         ),
                     )
-                    .with_help(format!("every computation uses {}; write `{new_text}` to state it in clock units", fmt_num(converted)))
-                    .with_fix(format!("Rewrite as {new_text}"), vec![TextEdit { span: replace, new_text }]),
+                    .with_help(format!(
+                        "every computation uses {}; write `{new_text}` to state it in clock units",
+                        fmt_num(converted)
+                    ))
+                    .with_fix(
+                        format!("Rewrite as {new_text}"),
+                        vec![TextEdit {
+                            span: replace,
+                            new_text,
+                        }],
+                    ),
                 );
             }
         }
@@ -540,7 +617,11 @@ impl<'a> Analyzer<'a> {
                         if a == b || is_zero_literal(lhs) || is_zero_literal(rhs) {
                             Some(if is_zero_literal(lhs) { b } else { a })
                         } else {
-                            let verb = if *op == ast::BinaryOp::Add { "add" } else { "subtract" };
+                            let verb = if *op == ast::BinaryOp::Add {
+                                "add"
+                            } else {
+                                "subtract"
+                            };
                             self.diagnostics.push(
                                 dimension_error(
                                     span.clone(),
@@ -567,7 +648,11 @@ impl<'a> Analyzer<'a> {
                 };
                 (expr, dimension)
             }
-            ast::Expr::Call { function, args, span } => self.resolve_call(function, args, span),
+            ast::Expr::Call {
+                function,
+                args,
+                span,
+            } => self.resolve_call(function, args, span),
         }
     }
 
@@ -579,22 +664,42 @@ impl<'a> Analyzer<'a> {
         format!("{text}({})", d.describe())
     }
 
-    fn resolve_power(&mut self, base: Expr, base_dim: Option<Dimension>, exponent: &ast::Expr, span: &Span) -> (Expr, Option<Dimension>) {
+    fn resolve_power(
+        &mut self,
+        base: Expr,
+        base_dim: Option<Dimension>,
+        exponent: &ast::Expr,
+        span: &Span,
+    ) -> (Expr, Option<Dimension>) {
         let (exp, exp_dim) = self.resolve(exponent);
         let mut dimension = None;
         if let Some(ed) = exp_dim {
             if !ed.is_dimensionless() {
                 self.diagnostics.push(
-                    dimension_error(exponent.span(), format!("an exponent must be dimensionless, but this one is {}", ed.describe()))
-                        .with_help("divide by a parameter of the same unit to make the exponent a pure number"),
+                    dimension_error(
+                        exponent.span(),
+                        format!(
+                            "an exponent must be dimensionless, but this one is {}",
+                            ed.describe()
+                        ),
+                    )
+                    .with_help(
+                        "divide by a parameter of the same unit to make the exponent a pure number",
+                    ),
                 );
             } else if let Some(bd) = base_dim {
                 if bd.is_dimensionless() {
                     dimension = Some(bd);
                 } else if contains_state_or_time(&exp) {
                     self.diagnostics.push(
-                        dimension_error(exponent.span(), format!("the exponent of a quantity with a dimension ({}) must be constant", bd.describe()))
-                            .with_help("use a number or a dimensionless parameter as the exponent"),
+                        dimension_error(
+                            exponent.span(),
+                            format!(
+                                "the exponent of a quantity with a dimension ({}) must be constant",
+                                bd.describe()
+                            ),
+                        )
+                        .with_help("use a number or a dimensionless parameter as the exponent"),
                     );
                 } else {
                     let value = exp.eval(&self.model.param_values(), &[], 0.0);
@@ -611,53 +716,92 @@ impl<'a> Analyzer<'a> {
         (Expr::Pow(Box::new(base), Box::new(exp)), dimension)
     }
 
-    fn resolve_call(&mut self, function: &ast::Ident, args: &[ast::Expr], span: &Span) -> (Expr, Option<Dimension>) {
-        let resolved: Vec<(Expr, Option<Dimension>)> = args.iter().map(|a| self.resolve(a)).collect();
+    fn resolve_call(
+        &mut self,
+        function: &ast::Ident,
+        args: &[ast::Expr],
+        span: &Span,
+    ) -> (Expr, Option<Dimension>) {
+        let resolved: Vec<(Expr, Option<Dimension>)> =
+            args.iter().map(|a| self.resolve(a)).collect();
         let Some(f) = Function::from_name(&function.name) else {
             self.diagnostics.push(
-                Diagnostic::new(&rules::UNDEFINED_NAME, function.span.clone(), format!("unknown function `{}`", function.name))
-                    .with_help("the functions are exp, log, sqrt, abs, min, max, sin and cos"),
+                Diagnostic::new(
+                    &rules::UNDEFINED_NAME,
+                    function.span.clone(),
+                    format!("unknown function `{}`", function.name),
+                )
+                .with_help("the functions are exp, log, sqrt, abs, min, max, sin and cos"),
             );
             return (Expr::Invalid, None);
         };
         if args.len() != f.arity() {
-            let plural = if f.arity() == 1 { "argument" } else { "arguments" };
+            let plural = if f.arity() == 1 {
+                "argument"
+            } else {
+                "arguments"
+            };
             self.diagnostics.push(
-                Diagnostic::new(&rules::SYNTAX, span.clone(), format!("`{}` takes {} {plural}, found {}", f.name(), f.arity(), args.len()))
-                    .with_help(if f.arity() == 1 { format!("write `{}(x)`", f.name()) } else { format!("write `{}(a, b)`", f.name()) }),
+                Diagnostic::new(
+                    &rules::SYNTAX,
+                    span.clone(),
+                    format!(
+                        "`{}` takes {} {plural}, found {}",
+                        f.name(),
+                        f.arity(),
+                        args.len()
+                    ),
+                )
+                .with_help(if f.arity() == 1 {
+                    format!("write `{}(x)`", f.name())
+                } else {
+                    format!("write `{}(a, b)`", f.name())
+                }),
             );
             return (Expr::Invalid, None);
         }
         let dims: Vec<Option<Dimension>> = resolved.iter().map(|(_, d)| d.clone()).collect();
         let exprs: Vec<Expr> = resolved.into_iter().map(|(e, _)| e).collect();
         let dimension = match f {
-            Function::Exp | Function::Log | Function::Sin | Function::Cos => {
-                match &dims[0] {
-                    Some(d) if !d.is_dimensionless() => {
-                        self.diagnostics.push(
+            Function::Exp | Function::Log | Function::Sin | Function::Cos => match &dims[0] {
+                Some(d) if !d.is_dimensionless() => {
+                    self.diagnostics.push(
                             dimension_error(args[0].span(), format!("`{}` needs a dimensionless argument, but this one is {}", f.name(), d.describe()))
                                 .with_help(match f {
                                     Function::Sin | Function::Cos => "multiply a time by a frequency, e.g. `sin(2 * pi * freq * t)` with `param freq = 1 [1/year]`".to_string(),
                                     _ => "divide by a parameter of the same unit first, e.g. `log(S / S0)`".to_string(),
                                 }),
                         );
-                        None
-                    }
-                    Some(_) => Some(Dimension::dimensionless()),
-                    None => None,
+                    None
                 }
-            }
+                Some(_) => Some(Dimension::dimensionless()),
+                None => None,
+            },
             Function::Sqrt => dims[0].as_ref().map(|d| d.sqrt()),
             Function::Abs => dims[0].clone(),
             Function::Min | Function::Max => match (&dims[0], &dims[1]) {
-                (Some(a), Some(b)) if a != b && !is_zero_literal(&args[0]) && !is_zero_literal(&args[1]) => {
+                (Some(a), Some(b))
+                    if a != b && !is_zero_literal(&args[0]) && !is_zero_literal(&args[1]) =>
+                {
                     self.diagnostics.push(
-                        dimension_error(span.clone(), format!("`{}` compares {} with {}: both must have the same dimension", f.name(), a.describe(), b.describe()))
-                            .with_help("check the units of both arguments"),
+                        dimension_error(
+                            span.clone(),
+                            format!(
+                                "`{}` compares {} with {}: both must have the same dimension",
+                                f.name(),
+                                a.describe(),
+                                b.describe()
+                            ),
+                        )
+                        .with_help("check the units of both arguments"),
                     );
                     None
                 }
-                (Some(a), Some(b)) => Some(if is_zero_literal(&args[0]) { b.clone() } else { a.clone() }),
+                (Some(a), Some(b)) => Some(if is_zero_literal(&args[0]) {
+                    b.clone()
+                } else {
+                    a.clone()
+                }),
                 _ => None,
             },
         };
@@ -667,7 +811,12 @@ impl<'a> Analyzer<'a> {
     fn resolve_name(&mut self, ident: &ast::Ident) -> (Expr, Option<Dimension>) {
         match ident.name.as_str() {
             "t" => return (Expr::Time, Some(Dimension::time())),
-            "pi" => return (Expr::Const(std::f64::consts::PI), Some(Dimension::dimensionless())),
+            "pi" => {
+                return (
+                    Expr::Const(std::f64::consts::PI),
+                    Some(Dimension::dimensionless()),
+                )
+            }
             _ => {}
         }
         let Some((target, _)) = self.names.get(&ident.name).cloned() else {
@@ -678,11 +827,13 @@ impl<'a> Analyzer<'a> {
         match target {
             Target::Param(i) => {
                 self.param_used[i] = true;
-                let dimension = self.param_unit_ok[i].then(|| self.model.params[i].dimension.clone());
+                let dimension =
+                    self.param_unit_ok[i].then(|| self.model.params[i].dimension.clone());
                 (Expr::Param(i), dimension)
             }
             Target::State(i) => {
-                let dimension = self.state_unit_ok[i].then(|| self.model.states[i].dimension.clone());
+                let dimension =
+                    self.state_unit_ok[i].then(|| self.model.states[i].dimension.clone());
                 (Expr::State(i), dimension)
             }
             Target::Let(i) => {
@@ -693,8 +844,15 @@ impl<'a> Analyzer<'a> {
             }
             Target::Noise(_) => {
                 self.diagnostics.push(
-                    Diagnostic::new(&rules::UNDEFINED_NAME, ident.span.clone(), format!("`{}` is a noise and cannot be used as a value", ident.name))
-                        .with_help(format!("a noise appears only as the differential that ends a term: `vol d{}`", ident.name)),
+                    Diagnostic::new(
+                        &rules::UNDEFINED_NAME,
+                        ident.span.clone(),
+                        format!("`{}` is a noise and cannot be used as a value", ident.name),
+                    )
+                    .with_help(format!(
+                        "a noise appears only as the differential that ends a term: `vol d{}`",
+                        ident.name
+                    )),
                 );
                 (Expr::Invalid, None)
             }
@@ -734,7 +892,12 @@ impl<'a> Analyzer<'a> {
         } else {
             d = d.with_help(format!("declare it, e.g. `param {} = 1`", ident.name));
         }
-        let insert_at = self.model.params.last().map(|p| line_end_after(self.source, p.span.end)).unwrap_or(0);
+        let insert_at = self
+            .model
+            .params
+            .last()
+            .map(|p| line_end_after(self.source, p.span.end))
+            .unwrap_or(0);
         d = d.with_fix(
             format!("Declare `param {}`", ident.name),
             vec![TextEdit {
@@ -749,7 +912,12 @@ impl<'a> Analyzer<'a> {
         let file = self.file;
         let mut seen: HashMap<(usize, usize), Span> = HashMap::new();
         for statement in &file.statements {
-            let StatementKind::Corr { first, second, value } = &statement.kind else {
+            let StatementKind::Corr {
+                first,
+                second,
+                value,
+            } = &statement.kind
+            else {
                 continue;
             };
             let a = self.noise_named(first);
@@ -757,8 +925,14 @@ impl<'a> Analyzer<'a> {
             let (Some(a), Some(b)) = (a, b) else { continue };
             if a == b {
                 self.diagnostics.push(
-                    Diagnostic::new(&rules::CORRELATION_RANGE, statement.span.clone(), format!("`{}` is correlated with itself", first.name))
-                        .with_help("a noise's correlation with itself is always 1; name two different noises"),
+                    Diagnostic::new(
+                        &rules::CORRELATION_RANGE,
+                        statement.span.clone(),
+                        format!("`{}` is correlated with itself", first.name),
+                    )
+                    .with_help(
+                        "a noise's correlation with itself is always 1; name two different noises",
+                    ),
                 );
                 continue;
             }
@@ -773,9 +947,16 @@ impl<'a> Analyzer<'a> {
             let key = (a.min(b), a.max(b));
             if let Some(prev) = seen.get(&key) {
                 self.diagnostics.push(
-                    Diagnostic::new(&rules::DUPLICATE_NAME, statement.span.clone(), format!("the correlation of `{}` and `{}` is given twice", first.name, second.name))
-                        .with_related(prev.clone(), "first given here")
-                        .with_help("keep one `corr` statement per pair of noises"),
+                    Diagnostic::new(
+                        &rules::DUPLICATE_NAME,
+                        statement.span.clone(),
+                        format!(
+                            "the correlation of `{}` and `{}` is given twice",
+                            first.name, second.name
+                        ),
+                    )
+                    .with_related(prev.clone(), "first given here")
+                    .with_help("keep one `corr` statement per pair of noises"),
                 );
                 continue;
             }
@@ -797,13 +978,21 @@ impl<'a> Analyzer<'a> {
             }
             Some(_) => {
                 self.diagnostics.push(
-                    Diagnostic::new(&rules::UNDEFINED_NAME, ident.span.clone(), format!("`{}` is not a noise", ident.name))
-                        .with_help("`corr` relates two noises declared with `noise`"),
+                    Diagnostic::new(
+                        &rules::UNDEFINED_NAME,
+                        ident.span.clone(),
+                        format!("`{}` is not a noise", ident.name),
+                    )
+                    .with_help("`corr` relates two noises declared with `noise`"),
                 );
                 None
             }
             None => {
-                let mut d = Diagnostic::new(&rules::UNDEFINED_NAME, ident.span.clone(), format!("noise `{}` is not declared", ident.name));
+                let mut d = Diagnostic::new(
+                    &rules::UNDEFINED_NAME,
+                    ident.span.clone(),
+                    format!("noise `{}` is not declared", ident.name),
+                );
                 d = match closest_name(&ident.name, self.model.noises.iter().map(|n| &n.name)) {
                     Some(close) => d.with_help(format!("did you mean `{close}`?")),
                     None => d.with_help(format!("declare it with `noise {}`", ident.name)),
@@ -818,23 +1007,45 @@ impl<'a> Analyzer<'a> {
         let file = self.file;
         let mut first_equation: HashMap<usize, Span> = HashMap::new();
         for statement in &file.statements {
-            let StatementKind::Equation(eq) = &statement.kind else { continue };
+            let StatementKind::Equation(eq) = &statement.kind else {
+                continue;
+            };
             let state_index = match self.names.get(&eq.state.name).cloned() {
                 Some((Target::State(i), _)) => i,
                 Some((_, decl)) => {
                     self.diagnostics.push(
-                        Diagnostic::new(&rules::MISSING_EQUATION, eq.lhs.clone(), format!("`d{}` names `{}`, which is not a state", eq.state.name, eq.state.name))
-                            .with_related(decl, "declared here")
-                            .with_help(format!("declare `{}` with `state` and an initial value", eq.state.name)),
+                        Diagnostic::new(
+                            &rules::MISSING_EQUATION,
+                            eq.lhs.clone(),
+                            format!(
+                                "`d{}` names `{}`, which is not a state",
+                                eq.state.name, eq.state.name
+                            ),
+                        )
+                        .with_related(decl, "declared here")
+                        .with_help(format!(
+                            "declare `{}` with `state` and an initial value",
+                            eq.state.name
+                        )),
                     );
                     continue;
                 }
                 None => {
                     self.mark_uses(eq);
-                    let mut d = Diagnostic::new(&rules::MISSING_EQUATION, eq.lhs.clone(), format!("the equation `d{}` names no state", eq.state.name));
-                    d = match closest_name(&eq.state.name, self.model.states.iter().map(|s| &s.name)) {
+                    let mut d = Diagnostic::new(
+                        &rules::MISSING_EQUATION,
+                        eq.lhs.clone(),
+                        format!("the equation `d{}` names no state", eq.state.name),
+                    );
+                    d = match closest_name(
+                        &eq.state.name,
+                        self.model.states.iter().map(|s| &s.name),
+                    ) {
                         Some(close) => d.with_help(format!("did you mean `d{close}`?")),
-                        None => d.with_help(format!("declare the state first: `state {} = 0`", eq.state.name)),
+                        None => d.with_help(format!(
+                            "declare the state first: `state {} = 0`",
+                            eq.state.name
+                        )),
                     };
                     self.diagnostics.push(d);
                     continue;
@@ -843,9 +1054,13 @@ impl<'a> Analyzer<'a> {
             self.reference(&eq.state, &Target::State(state_index));
             if let Some(prev) = first_equation.get(&state_index) {
                 self.diagnostics.push(
-                    Diagnostic::new(&rules::DUPLICATE_NAME, eq.lhs.clone(), format!("`{}` has a second equation", eq.state.name))
-                        .with_related(prev.clone(), "first equation here")
-                        .with_help("a state has exactly one equation; merge the terms into one"),
+                    Diagnostic::new(
+                        &rules::DUPLICATE_NAME,
+                        eq.lhs.clone(),
+                        format!("`{}` has a second equation", eq.state.name),
+                    )
+                    .with_related(prev.clone(), "first equation here")
+                    .with_help("a state has exactly one equation; merge the terms into one"),
                 );
                 continue;
             }
@@ -860,18 +1075,35 @@ impl<'a> Analyzer<'a> {
                     .and_then(|rest| rest.strip_prefix(self.model.states[i].name.as_str()))
                     .is_some_and(|rest| rest.trim_start().starts_with('='))
             });
-            if self.model.states[i].equation.is_none() && !first_equation.contains_key(&i) && !equation_unparsed {
+            if self.model.states[i].equation.is_none()
+                && !first_equation.contains_key(&i)
+                && !equation_unparsed
+            {
                 let s = &self.model.states[i];
                 let insert_at = line_end_after(self.source, s.span.end);
-                let noise = self.model.noises.first().map(|n| n.name.clone()).unwrap_or_else(|| "W".to_string());
+                let noise = self
+                    .model
+                    .noises
+                    .first()
+                    .map(|n| n.name.clone())
+                    .unwrap_or_else(|| "W".to_string());
                 let name = s.name.clone();
                 self.diagnostics.push(
-                    Diagnostic::new(&rules::MISSING_EQUATION, s.name_span.clone(), format!("state `{name}` has no equation"))
-                        .with_help(format!("add its dynamics, e.g. `d{name} = ... dt + ... d{noise}`"))
-                        .with_fix(
-                            format!("Add an equation for `{name}`"),
-                            vec![TextEdit { span: insert_at..insert_at, new_text: format!("d{name} = 0 dt  # TODO: drift and diffusion\n") }],
-                        ),
+                    Diagnostic::new(
+                        &rules::MISSING_EQUATION,
+                        s.name_span.clone(),
+                        format!("state `{name}` has no equation"),
+                    )
+                    .with_help(format!(
+                        "add its dynamics, e.g. `d{name} = ... dt + ... d{noise}`"
+                    ))
+                    .with_fix(
+                        format!("Add an equation for `{name}`"),
+                        vec![TextEdit {
+                            span: insert_at..insert_at,
+                            new_text: format!("d{name} = 0 dt  # TODO: drift and diffusion\n"),
+                        }],
+                    ),
                 );
             }
         }
@@ -916,9 +1148,13 @@ impl<'a> Analyzer<'a> {
                 ast::Differential::Time(_) => {
                     if let Some(prev) = &drift_span {
                         self.diagnostics.push(
-                            Diagnostic::new(&rules::DUPLICATE_TERM, term.span.clone(), format!("the equation of `{state_name}` has a second `dt` term"))
-                                .with_related(prev.clone(), "first `dt` term here")
-                                .with_help("combine the drift into one term: `(a + b) dt`"),
+                            Diagnostic::new(
+                                &rules::DUPLICATE_TERM,
+                                term.span.clone(),
+                                format!("the equation of `{state_name}` has a second `dt` term"),
+                            )
+                            .with_related(prev.clone(), "first `dt` term here")
+                            .with_help("combine the drift into one term: `(a + b) dt`"),
                         );
                         continue;
                     }
@@ -940,18 +1176,35 @@ impl<'a> Analyzer<'a> {
                                 &rules::UNDEFINED_NAME,
                                 token.clone(),
                                 match other {
-                                    Some(_) => format!("`{token_text}` ends a term, but `{}` is not a noise", noise.name),
-                                    None => format!("`{token_text}` ends a term, but no noise `{}` is declared", noise.name),
+                                    Some(_) => format!(
+                                        "`{token_text}` ends a term, but `{}` is not a noise",
+                                        noise.name
+                                    ),
+                                    None => format!(
+                                        "`{token_text}` ends a term, but no noise `{}` is declared",
+                                        noise.name
+                                    ),
                                 },
                             );
                             if self.names.contains_key(&token_text) {
                                 d = d.with_help(format!("`{token_text}` is a declared name; a term must end with `dt` or `dW`; write the differential after it: `{token_text} * ... dt`"));
                             } else {
-                                d = d.with_help(format!("declare the noise with `noise {}`", noise.name));
-                                let insert_at = self.model.states.first().map(|s| line_start_of(self.source, s.span.start)).unwrap_or(0);
+                                d = d.with_help(format!(
+                                    "declare the noise with `noise {}`",
+                                    noise.name
+                                ));
+                                let insert_at = self
+                                    .model
+                                    .states
+                                    .first()
+                                    .map(|s| line_start_of(self.source, s.span.start))
+                                    .unwrap_or(0);
                                 d = d.with_fix(
                                     format!("Declare `noise {}`", noise.name),
-                                    vec![TextEdit { span: insert_at..insert_at, new_text: format!("noise {}\n", noise.name) }],
+                                    vec![TextEdit {
+                                        span: insert_at..insert_at,
+                                        new_text: format!("noise {}\n", noise.name),
+                                    }],
                                 );
                             }
                             self.diagnostics.push(d);
@@ -960,16 +1213,33 @@ impl<'a> Analyzer<'a> {
                     };
                     if let Some(prev) = noise_terms.get(&noise_index) {
                         self.diagnostics.push(
-                            Diagnostic::new(&rules::DUPLICATE_TERM, term.span.clone(), format!("the equation of `{state_name}` has a second term in `d{}`", noise.name))
-                                .with_related(prev.clone(), "first term here")
-                                .with_help(format!("combine them into one term: `(a + b) d{}`", noise.name)),
+                            Diagnostic::new(
+                                &rules::DUPLICATE_TERM,
+                                term.span.clone(),
+                                format!(
+                                    "the equation of `{state_name}` has a second term in `d{}`",
+                                    noise.name
+                                ),
+                            )
+                            .with_related(prev.clone(), "first term here")
+                            .with_help(format!(
+                                "combine them into one term: `(a + b) d{}`",
+                                noise.name
+                            )),
                         );
                         continue;
                     }
                     noise_terms.insert(noise_index, term.span.clone());
                     self.noise_used[noise_index] = true;
                     if let (Some(d), true) = (&dim, state_unit_ok) {
-                        self.check_coefficient(term, d, &diffusion_dim, &state_name, &state_dim, false);
+                        self.check_coefficient(
+                            term,
+                            d,
+                            &diffusion_dim,
+                            &state_name,
+                            &state_dim,
+                            false,
+                        );
                     }
                     diffusion.push(DiffusionTerm {
                         noise: noise_index,
@@ -988,14 +1258,30 @@ impl<'a> Analyzer<'a> {
         }
     }
 
-    fn check_coefficient(&mut self, term: &ast::Term, found: &Dimension, needed: &Dimension, state: &str, state_dim: &Dimension, is_drift: bool) {
+    fn check_coefficient(
+        &mut self,
+        term: &ast::Term,
+        found: &Dimension,
+        needed: &Dimension,
+        state: &str,
+        state_dim: &Dimension,
+        is_drift: bool,
+    ) {
         if found == needed || term.coefficient.as_ref().is_some_and(is_zero_literal) {
             return;
         }
         let clock = self.clock_unit().to_string();
-        let span = term.coefficient.as_ref().map(|c| c.span()).unwrap_or(term.span.clone());
+        let span = term
+            .coefficient
+            .as_ref()
+            .map(|c| c.span())
+            .unwrap_or(term.span.clone());
         let which = if is_drift { "drift" } else { "diffusion" };
-        let per = if is_drift { "per unit of clock time" } else { "per square root of clock time" };
+        let per = if is_drift {
+            "per unit of clock time"
+        } else {
+            "per square root of clock time"
+        };
         let state_words = if state_dim.is_dimensionless() {
             format!("the dimensionless state `{state}`")
         } else {
@@ -1026,19 +1312,38 @@ impl<'a> Analyzer<'a> {
                 );
             }
             d = dimension_error(span, message).with_label(format!("{} here", found.describe()));
-            d = d.with_related(ident_span, format!("`{}` is declared in [{}]", p.name, p.unit_text.clone().unwrap_or_else(|| "1".to_string())));
+            d = d.with_related(
+                ident_span,
+                format!(
+                    "`{}` is declared in [{}]",
+                    p.name,
+                    p.unit_text.clone().unwrap_or_else(|| "1".to_string())
+                ),
+            );
             if let Some(Some((unit_span, _))) = self.param_units.get(param_index) {
                 let unit_span = unit_span.clone();
                 d = d.with_fix(
-                    format!("Declare `{}` in [{suggestion}]", self.model.params[param_index].name),
-                    vec![TextEdit { span: unit_span, new_text: suggestion.clone() }],
+                    format!(
+                        "Declare `{}` in [{suggestion}]",
+                        self.model.params[param_index].name
+                    ),
+                    vec![TextEdit {
+                        span: unit_span,
+                        new_text: suggestion.clone(),
+                    }],
                 );
             } else {
                 let at = self.model.params[param_index].span.clone();
                 let value_end = self.param_value_end(param_index).unwrap_or(at.end);
                 d = d.with_fix(
-                    format!("Declare `{}` in [{suggestion}]", self.model.params[param_index].name),
-                    vec![TextEdit { span: value_end..value_end, new_text: format!(" [{suggestion}]") }],
+                    format!(
+                        "Declare `{}` in [{suggestion}]",
+                        self.model.params[param_index].name
+                    ),
+                    vec![TextEdit {
+                        span: value_end..value_end,
+                        new_text: format!(" [{suggestion}]"),
+                    }],
                 );
             }
         } else {
@@ -1049,7 +1354,10 @@ impl<'a> Analyzer<'a> {
             );
             d = dimension_error(span, message)
                 .with_label(format!("{} here", found.describe()))
-                .with_help(format!("write its parameters so the coefficient comes out in [{}]", suggest_unit_text(needed, &clock)));
+                .with_help(format!(
+                    "write its parameters so the coefficient comes out in [{}]",
+                    suggest_unit_text(needed, &clock)
+                ));
         }
         self.diagnostics.push(d);
     }
@@ -1069,13 +1377,18 @@ impl<'a> Analyzer<'a> {
                 Some((Target::Param(i), decl)) => Some((*i, decl.clone())),
                 _ => None,
             },
-            ast::Expr::Neg { operand, .. } | ast::Expr::Paren { inner: operand, .. } => self.factor_param(operand),
-            ast::Expr::Binary { op: ast::BinaryOp::Mul | ast::BinaryOp::Div, lhs, rhs, .. } => {
-                self.factor_param(lhs).or_else(|| match **rhs {
-                    ast::Expr::Name(_) => self.factor_param(rhs),
-                    _ => None,
-                })
+            ast::Expr::Neg { operand, .. } | ast::Expr::Paren { inner: operand, .. } => {
+                self.factor_param(operand)
             }
+            ast::Expr::Binary {
+                op: ast::BinaryOp::Mul | ast::BinaryOp::Div,
+                lhs,
+                rhs,
+                ..
+            } => self.factor_param(lhs).or_else(|| match **rhs {
+                ast::Expr::Name(_) => self.factor_param(rhs),
+                _ => None,
+            }),
             _ => None,
         }
     }
@@ -1083,7 +1396,9 @@ impl<'a> Analyzer<'a> {
     fn expectations(&mut self) {
         let file = self.file;
         for statement in &file.statements {
-            let StatementKind::Expect(x) = &statement.kind else { continue };
+            let StatementKind::Expect(x) = &statement.kind else {
+                continue;
+            };
             let state = match self.names.get(&x.state.name).cloned() {
                 Some((Target::State(i), _)) => {
                     self.reference(&x.state, &Target::State(i));
@@ -1091,8 +1406,12 @@ impl<'a> Analyzer<'a> {
                 }
                 Some(_) => {
                     self.diagnostics.push(
-                        Diagnostic::new(&rules::UNDEFINED_NAME, x.state.span.clone(), format!("`{}` is not a state", x.state.name))
-                            .with_help("expectations pin figures of a state"),
+                        Diagnostic::new(
+                            &rules::UNDEFINED_NAME,
+                            x.state.span.clone(),
+                            format!("`{}` is not a state", x.state.name),
+                        )
+                        .with_help("expectations pin figures of a state"),
                     );
                     continue;
                 }
@@ -1106,8 +1425,12 @@ impl<'a> Analyzer<'a> {
                     Some(t) if t >= 0.0 => Some(t),
                     Some(_) => {
                         self.diagnostics.push(
-                            Diagnostic::new(&rules::BOUND_VIOLATED, q.span.clone(), "the time of an expectation must not be negative")
-                                .with_help("write a time from now, e.g. `1 year`"),
+                            Diagnostic::new(
+                                &rules::BOUND_VIOLATED,
+                                q.span.clone(),
+                                "the time of an expectation must not be negative",
+                            )
+                            .with_help("write a time from now, e.g. `1 year`"),
                         );
                         continue;
                     }
@@ -1118,13 +1441,24 @@ impl<'a> Analyzer<'a> {
             let state_dim = self.model.states[state].dimension.clone();
             let state_scale = self.model.states[state].scale;
             let (figure_dim, figure_scale) = match x.figure {
-                Figure::Mean | Figure::Sd | Figure::StationaryMean | Figure::StationarySd => (state_dim.clone(), state_scale),
-                Figure::Variance | Figure::StationaryVariance => (state_dim.mul(&state_dim), state_scale * state_scale),
+                Figure::Mean | Figure::Sd | Figure::StationaryMean | Figure::StationarySd => {
+                    (state_dim.clone(), state_scale)
+                }
+                Figure::Variance | Figure::StationaryVariance => {
+                    (state_dim.mul(&state_dim), state_scale * state_scale)
+                }
                 Figure::Halflife => (Dimension::time(), 1.0),
             };
             let convert = |this: &mut Self, q: &ast::Quantity| -> Option<f64> {
                 match &q.unit {
-                    None => Some(q.number.value * if figure_dim == Dimension::time() { 1.0 } else { figure_scale }),
+                    None => Some(
+                        q.number.value
+                            * if figure_dim == Dimension::time() {
+                                1.0
+                            } else {
+                                figure_scale
+                            },
+                    ),
                     Some(unit) => {
                         let v = this.eval_unit(unit)?;
                         if v.dimension != figure_dim {
@@ -1139,7 +1473,10 @@ impl<'a> Analyzer<'a> {
                                         v.dimension.describe()
                                     ),
                                 )
-                                .with_help(format!("write the bound in [{}]", suggest_unit_text(&figure_dim, this.clock_unit()))),
+                                .with_help(format!(
+                                    "write the bound in [{}]",
+                                    suggest_unit_text(&figure_dim, this.clock_unit())
+                                )),
                             );
                             return None;
                         }
@@ -1149,17 +1486,41 @@ impl<'a> Analyzer<'a> {
             };
             let admissible = match &x.condition {
                 ast::Condition::Compare { op, value } => {
-                    let Some(v) = convert(self, value) else { continue };
+                    let Some(v) = convert(self, value) else {
+                        continue;
+                    };
                     match op {
-                        ast::Comparison::Less => Interval { lower: None, upper: Some((v, false)) },
-                        ast::Comparison::LessEqual => Interval { lower: None, upper: Some((v, true)) },
-                        ast::Comparison::Greater => Interval { lower: Some((v, false)), upper: None },
-                        ast::Comparison::GreaterEqual => Interval { lower: Some((v, true)), upper: None },
+                        ast::Comparison::Less => Interval {
+                            lower: None,
+                            upper: Some((v, false)),
+                        },
+                        ast::Comparison::LessEqual => Interval {
+                            lower: None,
+                            upper: Some((v, true)),
+                        },
+                        ast::Comparison::Greater => Interval {
+                            lower: Some((v, false)),
+                            upper: None,
+                        },
+                        ast::Comparison::GreaterEqual => Interval {
+                            lower: Some((v, true)),
+                            upper: None,
+                        },
                     }
                 }
-                ast::Condition::Within { lower, lower_inclusive, upper, upper_inclusive } => {
-                    let (Some(a), Some(b)) = (convert(self, lower), convert(self, upper)) else { continue };
-                    Interval { lower: Some((a, *lower_inclusive)), upper: Some((b, *upper_inclusive)) }
+                ast::Condition::Within {
+                    lower,
+                    lower_inclusive,
+                    upper,
+                    upper_inclusive,
+                } => {
+                    let (Some(a), Some(b)) = (convert(self, lower), convert(self, upper)) else {
+                        continue;
+                    };
+                    Interval {
+                        lower: Some((a, *lower_inclusive)),
+                        upper: Some((b, *upper_inclusive)),
+                    }
                 }
             };
             self.model.expectations.push(Expectation {
@@ -1185,26 +1546,53 @@ impl<'a> Analyzer<'a> {
         for (i, p) in self.model.params.iter().enumerate() {
             if !self.param_used[i] && !self.mentioned_in_unparsed(&p.name) {
                 self.diagnostics.push(
-                    Diagnostic::new(&rules::UNUSED, p.name_span.clone(), format!("parameter `{}` is never used", p.name))
-                        .with_help("use it in an equation or a let, or remove it")
-                        .with_fix(format!("Remove `{}`", p.name), vec![TextEdit { span: whole_lines(self.source, &p.span), new_text: String::new() }]),
+                    Diagnostic::new(
+                        &rules::UNUSED,
+                        p.name_span.clone(),
+                        format!("parameter `{}` is never used", p.name),
+                    )
+                    .with_help("use it in an equation or a let, or remove it")
+                    .with_fix(
+                        format!("Remove `{}`", p.name),
+                        vec![TextEdit {
+                            span: whole_lines(self.source, &p.span),
+                            new_text: String::new(),
+                        }],
+                    ),
                 );
             }
         }
         for (i, n) in self.model.noises.iter().enumerate() {
             if !self.noise_used[i] && !self.mentioned_in_unparsed(&n.name) {
                 self.diagnostics.push(
-                    Diagnostic::new(&rules::UNUSED, n.name_span.clone(), format!("noise `{}` drives no equation", n.name))
-                        .with_help(format!("add a term `... d{}` to an equation, or remove the noise", n.name)),
+                    Diagnostic::new(
+                        &rules::UNUSED,
+                        n.name_span.clone(),
+                        format!("noise `{}` drives no equation", n.name),
+                    )
+                    .with_help(format!(
+                        "add a term `... d{}` to an equation, or remove the noise",
+                        n.name
+                    )),
                 );
             }
         }
         for (i, l) in self.model.lets.iter().enumerate() {
             if !self.let_used[i] && !self.mentioned_in_unparsed(&l.name) {
                 self.diagnostics.push(
-                    Diagnostic::new(&rules::UNUSED, l.name_span.clone(), format!("let `{}` is never used", l.name))
-                        .with_help("use it in an equation or another let, or remove it")
-                        .with_fix(format!("Remove `{}`", l.name), vec![TextEdit { span: whole_lines(self.source, &l.span), new_text: String::new() }]),
+                    Diagnostic::new(
+                        &rules::UNUSED,
+                        l.name_span.clone(),
+                        format!("let `{}` is never used", l.name),
+                    )
+                    .with_help("use it in an equation or another let, or remove it")
+                    .with_fix(
+                        format!("Remove `{}`", l.name),
+                        vec![TextEdit {
+                            span: whole_lines(self.source, &l.span),
+                            new_text: String::new(),
+                        }],
+                    ),
                 );
             }
         }

@@ -323,9 +323,11 @@ impl Expr {
             Expr::Invalid => true,
             Expr::Const(_) | Expr::Param(_) | Expr::State(_) | Expr::Time => false,
             Expr::Neg(a) => a.is_invalid(),
-            Expr::Add(a, b) | Expr::Sub(a, b) | Expr::Mul(a, b) | Expr::Div(a, b) | Expr::Pow(a, b) => {
-                a.is_invalid() || b.is_invalid()
-            }
+            Expr::Add(a, b)
+            | Expr::Sub(a, b)
+            | Expr::Mul(a, b)
+            | Expr::Div(a, b)
+            | Expr::Pow(a, b) => a.is_invalid() || b.is_invalid(),
             Expr::Call(_, args) => args.iter().any(Expr::is_invalid),
         }
     }

@@ -106,7 +106,10 @@ pub enum Expr {
     /// Any name, including the reserved `t` and `pi`.
     Name(Ident),
     /// Unary minus.
-    Neg { operand: Box<Expr>, span: Span },
+    Neg {
+        operand: Box<Expr>,
+        span: Span,
+    },
     Binary {
         op: BinaryOp,
         lhs: Box<Expr>,
@@ -120,7 +123,10 @@ pub enum Expr {
         span: Span,
     },
     /// A parenthesised expression, kept so that spans and formatting follow the text.
-    Paren { inner: Box<Expr>, span: Span },
+    Paren {
+        inner: Box<Expr>,
+        span: Span,
+    },
 }
 
 impl Expr {
@@ -286,15 +292,32 @@ pub struct Expectation {
 
 #[derive(Clone, Debug, PartialEq)]
 pub enum StatementKind {
-    Model { name: Ident },
-    Clock { unit: Ident },
-    Horizon { value: Quantity },
-    Unit { name: Ident },
+    Model {
+        name: Ident,
+    },
+    Clock {
+        unit: Ident,
+    },
+    Horizon {
+        value: Quantity,
+    },
+    Unit {
+        name: Ident,
+    },
     Param(Declaration),
     State(Declaration),
-    Noise { names: Vec<Ident> },
-    Corr { first: Ident, second: Ident, value: Number },
-    Let { name: Ident, value: Expr },
+    Noise {
+        names: Vec<Ident>,
+    },
+    Corr {
+        first: Ident,
+        second: Ident,
+        value: Number,
+    },
+    Let {
+        name: Ident,
+        value: Expr,
+    },
     Equation(Equation),
     Expect(Expectation),
 }

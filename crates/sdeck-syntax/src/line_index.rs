@@ -55,10 +55,7 @@ impl LineIndex {
 
     /// The byte offset where `line` starts (clamped to the end of the text).
     pub fn line_start(&self, line: u32) -> usize {
-        self.starts
-            .get(line as usize)
-            .copied()
-            .unwrap_or(self.len)
+        self.starts.get(line as usize).copied().unwrap_or(self.len)
     }
 
     /// Line and column of a byte offset. Offsets inside a character or past the end are
@@ -133,9 +130,18 @@ mod tests {
     fn ascii_lines() {
         let text = "ab\ncd\n";
         let index = LineIndex::new(text);
-        assert_eq!(index.line_col(text, 4, Encoding::Utf16), LineCol { line: 1, col: 1 });
-        assert_eq!(index.offset(text, LineCol { line: 1, col: 1 }, Encoding::Utf16), 4);
-        assert_eq!(index.line_col(text, 6, Encoding::Chars), LineCol { line: 2, col: 0 });
+        assert_eq!(
+            index.line_col(text, 4, Encoding::Utf16),
+            LineCol { line: 1, col: 1 }
+        );
+        assert_eq!(
+            index.offset(text, LineCol { line: 1, col: 1 }, Encoding::Utf16),
+            4
+        );
+        assert_eq!(
+            index.line_col(text, 6, Encoding::Chars),
+            LineCol { line: 2, col: 0 }
+        );
     }
 
     #[test]
@@ -157,9 +163,18 @@ mod tests {
     fn out_of_range_positions_clamp() {
         let text = "ab\nκ";
         let index = LineIndex::new(text);
-        assert_eq!(index.offset(text, LineCol { line: 0, col: 99 }, Encoding::Utf16), 2);
-        assert_eq!(index.offset(text, LineCol { line: 9, col: 0 }, Encoding::Utf16), text.len());
+        assert_eq!(
+            index.offset(text, LineCol { line: 0, col: 99 }, Encoding::Utf16),
+            2
+        );
+        assert_eq!(
+            index.offset(text, LineCol { line: 9, col: 0 }, Encoding::Utf16),
+            text.len()
+        );
         // An offset inside κ rounds down to its start.
-        assert_eq!(index.line_col(text, 4, Encoding::Chars), LineCol { line: 1, col: 0 });
+        assert_eq!(
+            index.line_col(text, 4, Encoding::Chars),
+            LineCol { line: 1, col: 0 }
+        );
     }
 }

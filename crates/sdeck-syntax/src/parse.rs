@@ -6,6 +6,10 @@
 //! cheap scan checks its size, its brackets and its nesting depth, so that no input can
 //! exhaust the stack or give a confusing message for an unclosed bracket.
 
+// A statement that fails yields exactly one diagnostic, built once and moved out; boxing
+// it would add an allocation on the error path and change nothing on the good one.
+#![allow(clippy::result_large_err)]
+
 use crate::ast::*;
 use crate::split::{is_ident_char, is_ident_start, split};
 use pest::error::{ErrorVariant, InputLocation};
@@ -29,9 +33,6 @@ pub const RESERVED_NAMES: [&str; 11] = [
     "t", "pi", "dt", "exp", "log", "sqrt", "abs", "min", "max", "sin", "cos",
 ];
 
-// A statement that fails yields exactly one diagnostic, built once; boxing it would only
-// move the allocation.
-#[allow(clippy::result_large_err)]
 type Result<T> = std::result::Result<T, Diagnostic>;
 
 /// Parses a whole file. Never fails: statements that do not parse are reported in
@@ -127,10 +128,16 @@ fn precheck(src: &str, offset: usize) -> Result<()> {
                 Some((open, at, interval)) if !interval && matching(open) != c => {
                     return Err(syntax_error(
                         offset + i..offset + i + 1,
-                        format!("`{c}` does not close the `{open}` opened here; `{}` expected", matching(open)),
+                        format!(
+                            "`{c}` does not close the `{open}` opened here; `{}` expected",
+                            matching(open)
+                        ),
                     )
                     .with_label(format!("`{}` expected", matching(open)))
-                    .with_related(offset + at..offset + at + 1, format!("`{open}` opened here")));
+                    .with_related(
+                        offset + at..offset + at + 1,
+                        format!("`{open}` opened here"),
+                    ));
                 }
                 Some(_) => {}
                 None => {
@@ -180,12 +187,9 @@ fn precheck(src: &str, offset: usize) -> Result<()> {
 /// Whether the text before a bracket ends with the keyword `in`.
 fn opens_interval(before: &str) -> bool {
     let trimmed = before.trim_end();
-    trimmed.strip_suffix("in").is_some_and(|head| {
-        !head
-            .chars()
-            .next_back()
-            .is_some_and(is_ident_char)
-    })
+    trimmed
+        .strip_suffix("in")
+        .is_some_and(|head| !head.chars().next_back().is_some_and(is_ident_char))
 }
 
 /// Keyword tokens carry no information beyond the statement's own rule.
@@ -464,9 +468,16 @@ impl Builder {
                     if !figure.takes_time() {
                         return Err(syntax_error(
                             q.span.clone(),
-                            format!("`{}` does not depend on time and takes no time argument", figure.keyword()),
+                            format!(
+                                "`{}` does not depend on time and takes no time argument",
+                                figure.keyword()
+                            ),
                         )
-                        .with_help(format!("write `{}({})`", figure.keyword(), state.name)));
+                        .with_help(format!(
+                            "write `{}({})`",
+                            figure.keyword(),
+                            state.name
+                        )));
                     }
                     at = Some(q);
                     condition_pair = next()?;
@@ -537,7 +548,10 @@ impl Builder {
             None => (body, "0"),
         };
         let exponent: i64 = exponent.parse().map_err(|_| {
-            syntax_error(span.clone(), format!("the exponent of `{text}` is out of range"))
+            syntax_error(
+                span.clone(),
+                format!("the exponent of `{text}` is out of range"),
+            )
         })?;
         let exponent = exponent.saturating_sub(shift);
         let value: f64 = format!("{mantissa}e{exponent}")
@@ -591,9 +605,10 @@ impl Builder {
         let unit = match inner.next() {
             Some(p) if p.as_rule() == Rule::bracket_unit => Some(self.bracket_unit(p)?),
             Some(p) => {
-                let name_pair = p.into_inner().next().ok_or_else(|| {
-                    syntax_error(span.clone(), "a unit name is expected")
-                })?;
+                let name_pair = p
+                    .into_inner()
+                    .next()
+                    .ok_or_else(|| syntax_error(span.clone(), "a unit name is expected"))?;
                 Some(UnitExpr::Name(self.ident(&name_pair)))
             }
             None => None,
@@ -690,7 +705,10 @@ impl Builder {
         let mut den: i64 = 1;
         for p in pair.into_inner() {
             let parsed: i64 = p.as_str().parse().map_err(|_| {
-                syntax_error(span.clone(), format!("exponent `{}` is out of range", p.as_str()))
+                syntax_error(
+                    span.clone(),
+                    format!("exponent `{}` is out of range", p.as_str()),
+                )
             })?;
             match p.as_rule() {
                 Rule::integer => num = Some(parsed),
@@ -720,10 +738,30 @@ impl Builder {
             [op, value] if op.as_rule() == Rule::compare_op => {
                 let end = self.bound_value(value.clone())?;
                 match op.as_str() {
-                    ">" => lower = end.map(|value| BoundEnd { value, inclusive: false }),
-                    ">=" => lower = end.map(|value| BoundEnd { value, inclusive: true }),
-                    "<" => upper = end.map(|value| BoundEnd { value, inclusive: false }),
-                    _ => upper = end.map(|value| BoundEnd { value, inclusive: true }),
+                    ">" => {
+                        lower = end.map(|value| BoundEnd {
+                            value,
+                            inclusive: false,
+                        })
+                    }
+                    ">=" => {
+                        lower = end.map(|value| BoundEnd {
+                            value,
+                            inclusive: true,
+                        })
+                    }
+                    "<" => {
+                        upper = end.map(|value| BoundEnd {
+                            value,
+                            inclusive: false,
+                        })
+                    }
+                    _ => {
+                        upper = end.map(|value| BoundEnd {
+                            value,
+                            inclusive: true,
+                        })
+                    }
                 }
             }
             [open, a, b, close] => {
@@ -736,7 +774,12 @@ impl Builder {
                     inclusive: close.as_str() == "]",
                 });
             }
-            _ => return Err(syntax_error(span, "a bound such as `> 0` or `in [0, 1]` is expected")),
+            _ => {
+                return Err(syntax_error(
+                    span,
+                    "a bound such as `> 0` or `in [0, 1]` is expected",
+                ))
+            }
         }
         Ok(Bound { lower, upper, span })
     }
@@ -779,7 +822,10 @@ impl Builder {
                 upper: self.quantity(b.clone())?,
                 upper_inclusive: close.as_str() == "]",
             }),
-            _ => Err(syntax_error(span, "a condition such as `< 6 month` or `in [a, b]` is expected")),
+            _ => Err(syntax_error(
+                span,
+                "a condition such as `< 6 month` or `in [a, b]` is expected",
+            )),
         }
     }
 
@@ -795,15 +841,18 @@ impl Builder {
                 let mut acc = self.expr(first)?;
                 while let (Some(op), Some(rhs)) = (inner.next(), inner.next()) {
                     let rhs = self.expr(rhs)?;
-                    let op = if op.as_str() == "+" { BinaryOp::Add } else { BinaryOp::Sub };
+                    let op = if op.as_str() == "+" {
+                        BinaryOp::Add
+                    } else {
+                        BinaryOp::Sub
+                    };
                     acc = binary(op, acc, rhs);
                 }
                 Ok(acc)
             }
             Rule::product => {
                 let factors = self.factors(pair)?;
-                fold_product(factors)
-                    .ok_or_else(|| syntax_error(span, "an expression is expected"))
+                fold_product(factors).ok_or_else(|| syntax_error(span, "an expression is expected"))
             }
             Rule::unary => {
                 let mut minus_spans = Vec::new();
@@ -815,8 +864,8 @@ impl Builder {
                         operand = Some(self.expr(p)?);
                     }
                 }
-                let mut acc =
-                    operand.ok_or_else(|| syntax_error(span.clone(), "an expression is expected"))?;
+                let mut acc = operand
+                    .ok_or_else(|| syntax_error(span.clone(), "an expression is expected"))?;
                 for m in minus_spans.into_iter().rev() {
                     let s = m.start..acc.span().end;
                     acc = Expr::Neg {
@@ -878,7 +927,11 @@ impl Builder {
         let mut op = BinaryOp::Mul;
         for p in pair.into_inner() {
             if p.as_rule() == Rule::mul_op {
-                op = if p.as_str() == "*" { BinaryOp::Mul } else { BinaryOp::Div };
+                op = if p.as_str() == "*" {
+                    BinaryOp::Mul
+                } else {
+                    BinaryOp::Div
+                };
             } else {
                 factors.push((op, self.expr(p)?));
             }
@@ -892,7 +945,11 @@ impl Builder {
         for p in pair.into_inner() {
             match p.as_rule() {
                 Rule::add_op => {
-                    sign = if p.as_str() == "+" { Sign::Plus } else { Sign::Minus };
+                    sign = if p.as_str() == "+" {
+                        Sign::Plus
+                    } else {
+                        Sign::Minus
+                    };
                 }
                 _ => {
                     // A term with no differential is reported and left out; the rest
@@ -938,8 +995,11 @@ impl Builder {
                 .with_help("end the term with `dt` for drift or `dW` for diffusion on the noise `W`, e.g. `kappa * (level - x) dt`"));
             };
             if op == BinaryOp::Div {
-                return Err(syntax_error(last.span(), "a differential cannot divide")
-                    .with_help("write the differential as the last factor, multiplied: `vol * x dW`"));
+                return Err(
+                    syntax_error(last.span(), "a differential cannot divide").with_help(
+                        "write the differential as the last factor, multiplied: `vol * x dW`",
+                    ),
+                );
             }
             if negated {
                 sign = match sign {

@@ -81,7 +81,12 @@ pub fn split(text: &str) -> (Vec<Piece>, Vec<Comment>) {
             let code_end = line_start + code.trim_end().len();
             let description = comment
                 .map(|i| content[i + 1..].trim().to_string())
-                .filter(|d| !d.is_empty() && !d.starts_with("sdeck:") && !d.starts_with("expect:") && !d.starts_with("expect-next-line:"));
+                .filter(|d| {
+                    !d.is_empty()
+                        && !d.starts_with("sdeck:")
+                        && !d.starts_with("expect:")
+                        && !d.starts_with("expect-next-line:")
+                });
             if opens_statement(code) || current.is_none() {
                 if let Some((start, end, desc)) = current.take() {
                     pieces.push(Piece {
@@ -121,7 +126,12 @@ mod tests {
         let src = "param a = 1 # speed\nstate x = 0\ndx = -a * x dt\n   + 0.1 dW\nnoise W\n";
         assert_eq!(
             texts(src),
-            vec!["param a = 1", "state x = 0", "dx = -a * x dt\n   + 0.1 dW", "noise W"]
+            vec![
+                "param a = 1",
+                "state x = 0",
+                "dx = -a * x dt\n   + 0.1 dW",
+                "noise W"
+            ]
         );
         assert_eq!(split(src).0[0].description.as_deref(), Some("speed"));
     }
