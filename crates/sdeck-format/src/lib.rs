@@ -1,0 +1,316 @@
+//! The formatter of sdeck model files, shared by `sdeck fmt` and the language server.
+//!
+//! [`format`] prints every statement of a file in one canonical spacing, aligns the
+//! columns of consecutive `param`/`state` declarations and the trailing comments of a
+//! block, keeps every comment, keeps at most one blank line between blocks, and is
+//! idempotent. It never loses text: a file with syntax errors is returned unchanged
+//! ([`Outcome::SyntaxErrors`]), a statement with a comment inside it is kept as written,
+//! and a result that would not read back to itself is refused.
+//!
+//! ```
+//! let outcome = sdeck_format::format("param  k=2[1/year]>0 # speed\nstate x=1\n");
+//! assert_eq!(
+//!     outcome,
+//!     sdeck_format::Outcome::Formatted(
+//!         "param k = 2 [1/year] > 0  # speed\nstate x = 1\n".to_string()
+//!     )
+//! );
+//! ```
+
+mod print;
+
+use sdeck_syntax::ast::{Comment, SourceFile, Statement};
+
+/// What the formatter made of a text.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub enum Outcome {
+    /// The formatted text (equal to the input when it was already formatted).
+    Formatted(String),
+    /// The text does not parse; it is left as it is. `count` syntax errors were found.
+    SyntaxErrors { count: usize },
+    /// The printed text would not read back to itself (a defect of the formatter); the
+    /// input is left as it is rather than risk changing its meaning.
+    Refused { reason: String },
+}
+
+impl Outcome {
+    /// The text to keep: the formatted text, or `source` when nothing was formatted.
+    pub fn text_or<'a>(&'a self, source: &'a str) -> &'a str {
+        match self {
+            Outcome::Formatted(text) => text,
+            _ => source,
+        }
+    }
+}
+
+/// Formats a whole model file.
+pub fn format(source: &str) -> Outcome {
+    let file = sdeck_syntax::parse(source);
+    if !file.diagnostics.is_empty() {
+        return Outcome::SyntaxErrors {
+            count: file.diagnostics.len(),
+        };
+    }
+    let first = layout(source, &file);
+    // The safety net: the printed text must parse cleanly, keep every comment, and print
+    // to itself again. Anything else is a formatter defect; refuse rather than damage.
+    let reparsed = sdeck_syntax::parse(&first);
+    if !reparsed.diagnostics.is_empty() {
+        return Outcome::Refused {
+            reason: "the formatted text does not parse".to_string(),
+        };
+    }
+    if comment_texts(&file.comments) != comment_texts(&reparsed.comments) {
+        return Outcome::Refused {
+            reason: "the formatted text would lose a comment".to_string(),
+        };
+    }
+    if reparsed.statements.len() != file.statements.len() {
+        return Outcome::Refused {
+            reason: "the formatted text has a different number of statements".to_string(),
+        };
+    }
+    let second = layout(&first, &reparsed);
+    if second != first {
+        return Outcome::Refused {
+            reason: "the formatted text does not format to itself".to_string(),
+        };
+    }
+    Outcome::Formatted(first)
+}
+
+fn comment_texts(comments: &[Comment]) -> Vec<&str> {
+    comments.iter().map(|c| c.text.trim_end()).collect()
+}
+
+/// One line (or verbatim run of lines) of the output before alignment.
+enum Item<'a> {
+    /// A comment on a line of its own, printed as written (trailing spaces trimmed).
+    Comment(&'a str),
+    /// A statement printed canonically, with its trailing comment if any.
+    Statement {
+        printed: Printed,
+        trailing: Option<&'a str>,
+    },
+    /// A statement kept exactly as written (it has a comment inside it).
+    Verbatim(&'a str),
+}
+
+/// A printed statement: either one flat string or the columns of a declaration.
+pub(crate) enum Printed {
+    Flat(String),
+    /// `keyword`, `name`, `= value`, `[unit]`, `bound` (unit and bound may be empty).
+    Declaration([String; 5]),
+}
+
+/// The blocks of the output: runs of items without a blank line between them.
+fn layout(source: &str, file: &SourceFile) -> String {
+    // Order statements and own-line comments by position.
+    enum Piece<'a> {
+        Statement(usize, &'a Statement),
+        Comment(&'a Comment),
+    }
+    let mut pieces: Vec<(usize, Piece)> = Vec::new();
+    let mut used_comment = vec![false; file.comments.len()];
+    let mut inner_comments: Vec<Vec<usize>> = vec![Vec::new(); file.statements.len()];
+    let mut trailing_of: Vec<Option<usize>> = vec![None; file.statements.len()];
+    for (si, statement) in file.statements.iter().enumerate() {
+        let line_end = line_end(source, statement.span.end);
+        for (ci, comment) in file.comments.iter().enumerate() {
+            if comment.span.start >= statement.span.start && comment.span.start < statement.span.end
+            {
+                inner_comments[si].push(ci);
+                used_comment[ci] = true;
+            } else if comment.trailing
+                && comment.span.start >= statement.span.end
+                && comment.span.start <= line_end
+                && trailing_of[si].is_none()
+            {
+                trailing_of[si] = Some(ci);
+                used_comment[ci] = true;
+            }
+        }
+        pieces.push((statement.span.start, Piece::Statement(si, statement)));
+    }
+    for (ci, comment) in file.comments.iter().enumerate() {
+        if !used_comment[ci] {
+            pieces.push((comment.span.start, Piece::Comment(comment)));
+        }
+    }
+    pieces.sort_by_key(|(start, _)| *start);
+
+    // Group into blocks at blank lines.
+    let mut blocks: Vec<Vec<Item>> = Vec::new();
+    let mut current: Vec<Item> = Vec::new();
+    let mut previous_end: Option<usize> = None;
+    for (start, piece) in &pieces {
+        if let Some(end) = previous_end {
+            if has_blank_line(source, end, *start) && !current.is_empty() {
+                blocks.push(std::mem::take(&mut current));
+            }
+        }
+        match piece {
+            Piece::Comment(comment) => {
+                current.push(Item::Comment(
+                    text_of(source, comment.span.clone()).trim_end(),
+                ));
+                previous_end = Some(comment.span.end);
+            }
+            Piece::Statement(si, statement) => {
+                let si = *si;
+                let trailing = trailing_of
+                    .get(si)
+                    .copied()
+                    .flatten()
+                    .and_then(|ci| file.comments.get(ci));
+                let end = trailing.map(|c| c.span.end).unwrap_or(statement.span.end);
+                if inner_comments.get(si).is_some_and(|c| !c.is_empty()) {
+                    let stop = line_end(source, end);
+                    let text = text_of(source, statement.span.start..stop).trim_end();
+                    current.push(Item::Verbatim(text));
+                    previous_end = Some(stop);
+                } else {
+                    current.push(Item::Statement {
+                        printed: print::statement(source, &statement.kind),
+                        trailing: trailing.map(|c| text_of(source, c.span.clone()).trim_end()),
+                    });
+                    previous_end = Some(end);
+                }
+            }
+        }
+    }
+    if !current.is_empty() {
+        blocks.push(current);
+    }
+
+    let mut out = String::new();
+    for (bi, block) in blocks.iter().enumerate() {
+        if bi > 0 {
+            out.push('\n');
+        }
+        write_block(&mut out, block);
+    }
+    out
+}
+
+/// Writes one block: declarations aligned by column, trailing comments aligned.
+fn write_block(out: &mut String, block: &[Item]) {
+    // Column widths over consecutive declarations (runs broken by any other item).
+    let mut lines: Vec<(String, Option<&str>)> = Vec::new();
+    let mut i = 0;
+    while i < block.len() {
+        let run_end = (i..block.len())
+            .find(|&j| {
+                !matches!(
+                    block.get(j),
+                    Some(Item::Statement {
+                        printed: Printed::Declaration(_),
+                        ..
+                    })
+                )
+            })
+            .unwrap_or(block.len());
+        if run_end > i {
+            let mut widths = [0usize; 5];
+            for item in &block[i..run_end] {
+                if let Item::Statement {
+                    printed: Printed::Declaration(columns),
+                    ..
+                } = item
+                {
+                    for (w, c) in widths.iter_mut().zip(columns) {
+                        *w = (*w).max(width(c));
+                    }
+                }
+            }
+            for item in &block[i..run_end] {
+                if let Item::Statement {
+                    printed: Printed::Declaration(columns),
+                    trailing,
+                } = item
+                {
+                    lines.push((join_columns(columns, &widths), *trailing));
+                }
+            }
+            i = run_end;
+            continue;
+        }
+        match &block[i] {
+            Item::Comment(text) => lines.push((text.to_string(), None)),
+            Item::Verbatim(text) => lines.push((text.to_string(), None)),
+            Item::Statement {
+                printed: Printed::Flat(text),
+                trailing,
+            } => lines.push((text.clone(), *trailing)),
+            Item::Statement {
+                printed: Printed::Declaration(columns),
+                trailing,
+            } => lines.push((join_columns(columns, &[0; 5]), *trailing)),
+        }
+        i += 1;
+    }
+    let comment_column = lines
+        .iter()
+        .filter(|(_, trailing)| trailing.is_some())
+        .map(|(code, _)| width(code))
+        .max()
+        .unwrap_or(0)
+        + 2;
+    for (code, trailing) in lines {
+        out.push_str(&code);
+        if let Some(comment) = trailing {
+            let pad = comment_column.saturating_sub(width(&code));
+            out.extend(std::iter::repeat_n(' ', pad));
+            out.push_str(comment);
+        }
+        out.push('\n');
+    }
+}
+
+/// Joins declaration columns, padding each to its width; empty trailing columns vanish.
+fn join_columns(columns: &[String; 5], widths: &[usize; 5]) -> String {
+    let last = columns.iter().rposition(|c| !c.is_empty()).unwrap_or(0);
+    let mut line = String::new();
+    for (k, (column, w)) in columns.iter().zip(widths).enumerate().take(last + 1) {
+        if k > 0 {
+            line.push(' ');
+        }
+        line.push_str(column);
+        if k < last {
+            line.extend(std::iter::repeat_n(' ', w.saturating_sub(width(column))));
+        }
+    }
+    line
+}
+
+/// Display width in characters (names may be Greek; one character, one column).
+fn width(text: &str) -> usize {
+    text.chars().count()
+}
+
+fn text_of(source: &str, span: std::ops::Range<usize>) -> &str {
+    source.get(span).unwrap_or("")
+}
+
+/// The offset of the end of the line holding `offset` (before the newline).
+fn line_end(source: &str, offset: usize) -> usize {
+    let offset = offset.min(source.len());
+    source
+        .get(offset..)
+        .and_then(|rest| rest.find('\n'))
+        .map(|i| offset + i)
+        .unwrap_or(source.len())
+}
+
+/// Whether an empty line lies between `from` and `to`.
+fn has_blank_line(source: &str, from: usize, to: usize) -> bool {
+    let gap = source.get(from..to).unwrap_or("");
+    gap.split('\n')
+        .skip(1)
+        .collect::<Vec<_>>()
+        .split_last()
+        .is_some_and(|(_, middle)| middle.iter().any(|line| line.trim().is_empty()))
+}
+
+#[cfg(test)]
+mod tests;

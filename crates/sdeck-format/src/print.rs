@@ -1,0 +1,188 @@
+//! Canonical printing of one statement: single spaces around `=`, `+`, `-`, `*`, `/`,
+//! none around `^`, `, ` between arguments, units without spaces inside brackets.
+
+use crate::Printed;
+use sdeck_syntax::ast::{
+    BinaryOp, Bound, Condition, Declaration, Differential, Expr, Quantity, Sign, StatementKind,
+    UnitExpr,
+};
+
+/// Prints a statement; declarations come back as columns for alignment.
+pub(crate) fn statement(source: &str, kind: &StatementKind) -> Printed {
+    match kind {
+        StatementKind::Model { name } => Printed::Flat(format!("model {}", name.name)),
+        StatementKind::Clock { unit } => Printed::Flat(format!("clock {}", unit.name)),
+        StatementKind::Horizon { value } => {
+            Printed::Flat(format!("horizon {}", quantity(source, value)))
+        }
+        StatementKind::Unit { name } => Printed::Flat(format!("unit {}", name.name)),
+        StatementKind::Param(d) => Printed::Declaration(declaration("param", source, d)),
+        StatementKind::State(d) => Printed::Declaration(declaration("state", source, d)),
+        StatementKind::Noise { names } => {
+            let names: Vec<&str> = names.iter().map(|n| n.name.as_str()).collect();
+            Printed::Flat(format!("noise {}", names.join(", ")))
+        }
+        StatementKind::Corr {
+            first,
+            second,
+            value,
+        } => Printed::Flat(format!(
+            "corr {} {} = {}",
+            first.name, second.name, value.text
+        )),
+        StatementKind::Let { name, value } => {
+            Printed::Flat(format!("let {} = {}", name.name, expr(value)))
+        }
+        StatementKind::Equation(eq) => {
+            let mut text = format!("d{} =", eq.state.name);
+            for (i, term) in eq.terms.iter().enumerate() {
+                let differential = match &term.differential {
+                    Differential::Time(_) => "dt".to_string(),
+                    Differential::Noise { noise, .. } => format!("d{}", noise.name),
+                };
+                let body = match &term.coefficient {
+                    Some(c) => format!("{} {differential}", expr(c)),
+                    None => differential,
+                };
+                match (i, term.sign) {
+                    (0, Sign::Plus) => text.push_str(&format!(" {body}")),
+                    (0, Sign::Minus) => text.push_str(&format!(" -{body}")),
+                    (_, Sign::Plus) => text.push_str(&format!(" + {body}")),
+                    (_, Sign::Minus) => text.push_str(&format!(" - {body}")),
+                }
+            }
+            Printed::Flat(text)
+        }
+        StatementKind::Expect(e) => {
+            let at = match &e.at {
+                Some(q) => format!(", {}", quantity(source, q)),
+                None => String::new(),
+            };
+            let condition = match &e.condition {
+                Condition::Compare { op, value } => {
+                    format!("{} {}", op.symbol(), quantity(source, value))
+                }
+                Condition::Within {
+                    lower,
+                    lower_inclusive,
+                    upper,
+                    upper_inclusive,
+                } => format!(
+                    "in {}{}, {}{}",
+                    if *lower_inclusive { "[" } else { "(" },
+                    quantity(source, lower),
+                    quantity(source, upper),
+                    if *upper_inclusive { "]" } else { ")" },
+                ),
+            };
+            Printed::Flat(format!(
+                "expect {}({}{at}) {condition}",
+                e.figure.keyword(),
+                e.state.name
+            ))
+        }
+    }
+}
+
+fn declaration(keyword: &str, source: &str, d: &Declaration) -> [String; 5] {
+    [
+        keyword.to_string(),
+        d.name.name.clone(),
+        format!("= {}", d.value.text),
+        d.unit
+            .as_ref()
+            .map(|u| format!("[{}]", unit(source, d.value.span.end, u).0))
+            .unwrap_or_default(),
+        d.bound.as_ref().map(bound).unwrap_or_default(),
+    ]
+}
+
+/// A unit as written between its brackets, without white space (its structure is kept
+/// character for character, so no parenthesis can go missing). `after` is where the
+/// search for the opening `[` starts. A bare unit (`6 month`) is a single name.
+fn unit(source: &str, after: usize, u: &UnitExpr) -> (String, bool) {
+    let span = u.span();
+    let bracketed = source
+        .get(after..span.start)
+        .and_then(|gap| gap.find('['))
+        .map(|i| after + i + 1);
+    let close = source
+        .get(span.end..)
+        .and_then(|rest| rest.find(']'))
+        .map(|i| span.end + i);
+    let (start, end, bracketed) = match (bracketed, close) {
+        (Some(start), Some(end)) => (start, end, true),
+        _ => (span.start, span.end, false),
+    };
+    let text = source
+        .get(start..end)
+        .unwrap_or("")
+        .chars()
+        .filter(|c| !c.is_whitespace())
+        .collect();
+    (text, bracketed)
+}
+
+/// `6 month` stays bare, `6 [month]` keeps its brackets.
+fn quantity(source: &str, q: &Quantity) -> String {
+    match &q.unit {
+        None => q.number.text.clone(),
+        Some(u) => match unit(source, q.number.span.end, u) {
+            (text, true) => format!("{} [{text}]", q.number.text),
+            (text, false) => format!("{} {text}", q.number.text),
+        },
+    }
+}
+
+fn bound(b: &Bound) -> String {
+    match (&b.lower, &b.upper) {
+        (Some(lower), None) => format!(
+            "{} {}",
+            if lower.inclusive { ">=" } else { ">" },
+            lower.value.text
+        ),
+        (None, Some(upper)) => format!(
+            "{} {}",
+            if upper.inclusive { "<=" } else { "<" },
+            upper.value.text
+        ),
+        (lower, upper) => format!(
+            "in {}{}, {}{}",
+            match lower {
+                Some(l) if l.inclusive => "[",
+                _ => "(",
+            },
+            lower
+                .as_ref()
+                .map(|l| l.value.text.as_str())
+                .unwrap_or("-inf"),
+            upper
+                .as_ref()
+                .map(|u| u.value.text.as_str())
+                .unwrap_or("inf"),
+            match upper {
+                Some(u) if u.inclusive => "]",
+                _ => ")",
+            },
+        ),
+    }
+}
+
+/// An expression with canonical spacing. Parentheses are kept as the tree records
+/// them, so printing never changes how the expression groups.
+pub(crate) fn expr(e: &Expr) -> String {
+    match e {
+        Expr::Number(n) => n.text.clone(),
+        Expr::Name(i) => i.name.clone(),
+        Expr::Neg { operand, .. } => format!("-{}", expr(operand)),
+        Expr::Binary { op, lhs, rhs, .. } => match op {
+            BinaryOp::Pow => format!("{}^{}", expr(lhs), expr(rhs)),
+            _ => format!("{} {} {}", expr(lhs), op.symbol(), expr(rhs)),
+        },
+        Expr::Call { function, args, .. } => {
+            let args: Vec<String> = args.iter().map(expr).collect();
+            format!("{}({})", function.name, args.join(", "))
+        }
+        Expr::Paren { inner, .. } => format!("({})", expr(inner)),
+    }
+}

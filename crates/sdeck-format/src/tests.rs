@@ -1,0 +1,133 @@
+//! Tests of the formatter: canonical spacing, alignment, comments, idempotence, and that
+//! broken or unusual text is never damaged.
+
+use super::{format, Outcome};
+
+fn formatted(source: &str) -> String {
+    match format(source) {
+        Outcome::Formatted(text) => text,
+        other => panic!("expected formatted text, got {other:?} for:\n{source}"),
+    }
+}
+
+#[test]
+fn canonical_spacing_of_every_statement_kind() {
+    let source = "model   m\nclock year\nhorizon 6   month\nunit EUR\nparam k=2[ 1 / year ]>0\n\
+noise W,V\ncorr W , V = -0.3\nlet half=k/2\nstate x=1[EUR]\n\
+dx=-k*x*dt+0.1*sqrt( x )dW-0.2 dV\nexpect mean( x ,1 year )in[ 0 ,2 ]\n";
+    let expected = "model m\nclock year\nhorizon 6 month\nunit EUR\nparam k = 2 [1/year] > 0\n\
+noise W, V\ncorr W V = -0.3\nlet half = k / 2\nstate x = 1 [EUR]\n\
+dx = -k * x dt + 0.1 * sqrt(x) dW - 0.2 dV\nexpect mean(x, 1 year) in [0, 2]\n";
+    assert_eq!(formatted(source), expected);
+}
+
+#[test]
+fn consecutive_declarations_align_by_column_and_comments_align_per_block() {
+    let source = "param kappa = 1.8 [1/year] > 0 # speed\nparam level = 3.2% >= 0 # level\n\
+param vol = 6bp [1/sqrt(day)] > 0 # vol\n\nnoise W # shock\n";
+    let expected = "\
+param kappa = 1.8  [1/year]      > 0   # speed
+param level = 3.2%               >= 0  # level
+param vol   = 6bp  [1/sqrt(day)] > 0   # vol
+
+noise W  # shock
+";
+    assert_eq!(formatted(source), expected);
+}
+
+#[test]
+fn greek_names_align_by_characters_not_bytes() {
+    let source = "param κ = 1 [1/year]\nparam level = 2\n";
+    let expected = "param κ     = 1 [1/year]\nparam level = 2\n";
+    assert_eq!(formatted(source), expected);
+}
+
+#[test]
+fn own_line_comments_and_single_blank_lines_are_kept() {
+    let source =
+        "# header 🚀 ünïcode\n\n\n\nnoise W\n   # indented note\nstate x = 0\ndx = 0.1 dW\n";
+    let expected = "# header 🚀 ünïcode\n\nnoise W\n# indented note\nstate x = 0\ndx = 0.1 dW\n";
+    assert_eq!(formatted(source), expected);
+}
+
+#[test]
+fn a_statement_with_a_comment_inside_is_kept_as_written() {
+    let source = "noise W\nstate x = 0\ndx = -0.5 * x dt   # pull\n     + 0.1 dW  # push\n";
+    assert_eq!(formatted(source), source);
+}
+
+#[test]
+fn a_multi_line_statement_without_comments_is_joined() {
+    let source = "noise W\nstate x = 0\ndx = -0.5 * x dt\n     + 0.1 dW\n";
+    assert_eq!(
+        formatted(source),
+        "noise W\nstate x = 0\ndx = -0.5 * x dt + 0.1 dW\n"
+    );
+}
+
+#[test]
+fn text_with_syntax_errors_is_left_alone() {
+    let source = "param k = = 2\nstate x = 1\n";
+    assert!(matches!(format(source), Outcome::SyntaxErrors { count } if count >= 1));
+}
+
+#[test]
+fn parentheses_bounds_and_units_keep_their_meaning() {
+    let source = "unit EUR\nparam a = 1 [EUR/(year*day)] in (-inf, 5]\nparam b = 2 in [0, 1)\n\
+let c = (a - (b - 1))^2 / -b\n";
+    let out = formatted(source);
+    assert!(out.contains("[EUR/(year*day)]"), "{out}");
+    assert!(out.contains("<= 5"), "{out}");
+    assert!(out.contains("in [0, 1)"), "{out}");
+    assert!(out.contains("let c = (a - (b - 1))^2 / -b"), "{out}");
+}
+
+#[test]
+fn formatting_is_idempotent_on_the_demo_models_and_rule_examples() {
+    let root = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("../..");
+    let mut seen = 0;
+    for folder in ["demo-models", "crates/sdeck-diagnostics/src/rules"] {
+        let Ok(entries) = std::fs::read_dir(root.join(folder)) else {
+            continue;
+        };
+        for entry in entries.flatten() {
+            let path = entry.path();
+            if path.extension().is_none_or(|x| x != "sde") {
+                continue;
+            }
+            let Ok(source) = std::fs::read_to_string(&path) else {
+                continue;
+            };
+            match format(&source) {
+                Outcome::Formatted(once) => {
+                    seen += 1;
+                    assert_eq!(
+                        format(&once),
+                        Outcome::Formatted(once.clone()),
+                        "{}",
+                        path.display()
+                    );
+                    // Meaning is kept: the same statements and comments parse back.
+                    let before = sdeck_syntax::parse(&source);
+                    let after = sdeck_syntax::parse(&once);
+                    assert_eq!(before.statements.len(), after.statements.len());
+                    assert_eq!(
+                        before.comments.len(),
+                        after.comments.len(),
+                        "{}",
+                        path.display()
+                    );
+                }
+                Outcome::SyntaxErrors { .. } => {}
+                Outcome::Refused { reason } => panic!("{}: refused: {reason}", path.display()),
+            }
+        }
+    }
+    assert!(seen >= 5, "only {seen} models were formatted");
+}
+
+#[test]
+fn empty_and_comment_only_files() {
+    assert_eq!(formatted(""), "");
+    assert_eq!(formatted("# only a note"), "# only a note\n");
+}
