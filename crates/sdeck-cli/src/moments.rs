@@ -32,7 +32,9 @@ pub struct MomentsArgs {
 pub fn parse_time(text: &str, model: &Model) -> Result<f64, String> {
     let t = text.trim();
     let split = t
-        .find(|c: char| !(c.is_ascii_digit() || c == '.' || c == 'e' || c == 'E' || c == '-' || c == '+'))
+        .find(|c: char| {
+            !(c.is_ascii_digit() || c == '.' || c == 'e' || c == 'E' || c == '-' || c == '+')
+        })
         .unwrap_or(t.len());
     // `e` may begin a unit name only after the number proper; retry without it.
     let (number, unit) = t.split_at(split);
@@ -40,7 +42,11 @@ pub fn parse_time(text: &str, model: &Model) -> Result<f64, String> {
         .trim()
         .parse()
         .map_err(|_| format!("`{text}` is not a time: write a number in clock units or a number with a time unit, e.g. `6 month`"))?;
-    let unit = unit.trim().trim_start_matches('[').trim_end_matches(']').trim();
+    let unit = unit
+        .trim()
+        .trim_start_matches('[')
+        .trim_end_matches(']')
+        .trim();
     if unit.is_empty() {
         return Ok(value);
     }
@@ -92,8 +98,10 @@ pub fn run(args: MomentsArgs) -> ExitCode {
     };
     let moments = moments_at(model, &result.derivation, t);
     let output = match args.format {
-        Format::Json => serde_json::to_string_pretty(&moments_json(model, &result.derivation, &moments))
-            .unwrap_or_default(),
+        Format::Json => {
+            serde_json::to_string_pretty(&moments_json(model, &result.derivation, &moments))
+                .unwrap_or_default()
+        }
         Format::Text => moments_text(model, &result.derivation, &moments),
     };
     println!("{output}");
@@ -159,10 +167,12 @@ pub fn moments_text(model: &Model, derivation: &Derivation, m: &Moments) -> Stri
         clock
     );
     for (i, state) in model.states.iter().enumerate() {
-        let Some(law) = derivation.states.get(i) else { continue };
+        let Some(law) = derivation.states.get(i) else {
+            continue;
+        };
         s.push_str(&format!("\n{}: {}\n", state.name, law.family.as_str()));
-        s.push_str(&format!("  why       {}\n", law.reason));
-        s.push_str(&format!("  method    {}\n", law.method.as_str()));
+        s.push_str(&format!("  {:<11} {}\n", "why", law.reason));
+        s.push_str(&format!("  {:<11} {}\n", "method", law.method.as_str()));
         let f = &law.formulas;
         for (label, text) in [
             ("solution", &f.solution),
@@ -173,12 +183,16 @@ pub fn moments_text(model: &Model, derivation: &Derivation, m: &Moments) -> Stri
             ("stationary", &f.stationary),
         ] {
             if let Some(t) = text {
-                s.push_str(&format!("  {label:<10}{t}\n"));
+                s.push_str(&format!("  {label:<11} {t}\n"));
             }
         }
         let mean = m.mean.get(i).copied().flatten();
         let var = m.variance.get(i).copied().flatten();
-        s.push_str(&format!("  E[{}(t)]   = {}\n", state.name, or_unknown(mean)));
+        s.push_str(&format!(
+            "  E[{}(t)]   = {}\n",
+            state.name,
+            or_unknown(mean)
+        ));
         s.push_str(&format!("  Var[{}(t)] = {}\n", state.name, or_unknown(var)));
         s.push_str(&format!(
             "  sd        = {}\n",
@@ -198,7 +212,13 @@ pub fn moments_text(model: &Model, derivation: &Derivation, m: &Moments) -> Stri
     }
     if model.states.len() > 1 {
         s.push_str("\ncovariance at t:\n");
-        let width = model.states.iter().map(|st| st.name.chars().count()).max().unwrap_or(1).max(12);
+        let width = model
+            .states
+            .iter()
+            .map(|st| st.name.chars().count())
+            .max()
+            .unwrap_or(1)
+            .max(12);
         s.push_str(&format!("  {:width$}", ""));
         for st in &model.states {
             s.push_str(&format!(" {:>width$}", st.name));
