@@ -301,26 +301,95 @@ impl PolynomialSystem {
                 "the time must be finite and non-negative (got {t})"
             ));
         }
-        let (basis, generator) = self.generator(order)?;
-        let initial = DVector::from_iterator(
-            basis.len(),
-            basis.iter().map(|alpha| {
-                alpha
-                    .iter()
-                    .zip(x0.iter())
-                    .map(|(&power, &value)| value.powi(power as i32))
-                    .product::<f64>()
-            }),
-        );
-        let values = if t == 0.0 {
-            initial
+        // Reason for the shift: moments of Y = X − x₀ start at zero, so the covariance is not
+        // the difference of two large raw moments (a level of 10⁶ with unit spread would
+        // otherwise lose every digit). Reason for the scale: it balances the generator, whose
+        // exponential is accurate relative to its largest entries.
+        let time_scale = t / (1.0 + one_norm(&self.drift_matrix) * t);
+        let scale = self.balancing_scale(x0, time_scale);
+        let (basis, generator) = self.shifted(x0).scaled(&scale).generator(order)?;
+        let size = basis.len();
+        // Z₀ = 0: only the constant monomial is 1, so the moments are the first column.
+        let moments: Vec<f64> = if t == 0.0 {
+            (0..size).map(|r| if r == 0 { 1.0 } else { 0.0 }).collect()
         } else {
-            matrix_exponential(&(generator * t)) * initial
+            let exponential = matrix_exponential(&(generator * t));
+            basis
+                .iter()
+                .enumerate()
+                .map(|(r, beta)| exponential[(r, 0)] * scale_power(&scale, beta))
+                .collect()
         };
-        Ok(MomentTable {
+        Ok(MomentTable::from_shifted(
             basis,
-            values: values.iter().copied().collect(),
+            x0.iter().copied().collect(),
+            moments,
+        ))
+    }
+
+    /// Per-state scale of the excursion from `origin` over a time `time_scale`: the larger of
+    /// the drift's push |μ_i|·τ and the diffusion's spread √(C_ii·τ), evaluated at the origin;
+    /// 1 where both vanish.
+    fn balancing_scale(&self, origin: &DVector<f64>, time_scale: f64) -> DVector<f64> {
+        let shifted = self.shifted(origin);
+        DVector::from_fn(self.dimension(), |i, _| {
+            let push = shifted.drift_constant[i].abs() * time_scale;
+            let spread = (shifted.covariance_constant[(i, i)].abs() * time_scale).sqrt();
+            let scale = push.max(spread);
+            if scale.is_finite() && scale > 0.0 {
+                scale
+            } else {
+                1.0
+            }
         })
+    }
+
+    /// The same dynamics written for Z = S⁻¹ X with S = diag(scale): drift S⁻¹b + S⁻¹AS z,
+    /// covariance S⁻¹ C(S z) S⁻¹.
+    fn scaled(&self, scale: &DVector<f64>) -> PolynomialSystem {
+        let n = self.dimension();
+        let inverse = DMatrix::from_diagonal(&scale.map(|v| 1.0 / v));
+        let forward = DMatrix::from_diagonal(scale);
+        let sandwich = |matrix: &DMatrix<f64>| &inverse * matrix * &inverse;
+        PolynomialSystem {
+            drift_constant: &inverse * &self.drift_constant,
+            drift_matrix: &inverse * &self.drift_matrix * &forward,
+            covariance_constant: sandwich(&self.covariance_constant),
+            covariance_linear: (0..n)
+                .map(|k| sandwich(&self.covariance_linear[k]) * scale[k])
+                .collect(),
+            covariance_quadratic: (0..n)
+                .map(|k| {
+                    (0..n)
+                        .map(|l| sandwich(&self.covariance_quadratic[k][l]) * (scale[k] * scale[l]))
+                        .collect()
+                })
+                .collect(),
+        }
+    }
+
+    /// The same dynamics written for Y = X − origin: drift b + A·origin + A y, and
+    /// C(y + origin) regrouped by powers of y.
+    fn shifted(&self, origin: &DVector<f64>) -> PolynomialSystem {
+        let n = self.dimension();
+        let mut covariance_constant = self.covariance_constant.clone();
+        let mut covariance_linear = self.covariance_linear.clone();
+        for k in 0..n {
+            covariance_constant += &self.covariance_linear[k] * origin[k];
+            for l in 0..n {
+                let part = &self.covariance_quadratic[k][l];
+                covariance_constant += part * (origin[k] * origin[l]);
+                covariance_linear[k] += part * origin[l];
+                covariance_linear[l] += part * origin[k];
+            }
+        }
+        PolynomialSystem {
+            drift_constant: &self.drift_constant + &self.drift_matrix * origin,
+            drift_matrix: self.drift_matrix.clone(),
+            covariance_constant,
+            covariance_linear,
+            covariance_quadratic: self.covariance_quadratic.clone(),
+        }
     }
 
     /// Moments of the stationary law up to `order`: the solution of G m = 0 with m₀ = 1.
@@ -331,9 +400,32 @@ impl PolynomialSystem {
     /// m = −H⁻¹ g where g is the column of the constant monomial. `None` when some moment up
     /// to `order` does not converge to a limit (or the basis is too large).
     pub fn stationary_moments(&self, order: usize) -> Option<MomentTable> {
-        let (basis, generator) = self.generator(order).ok()?;
+        let n = self.dimension();
+        // The stationary mean first (the degree-1 block of G is A), then every moment about
+        // it, for the same reason as the shift in `try_moments_at`.
+        let origin = if order == 0 || n == 0 {
+            DVector::zeros(n)
+        } else {
+            let stable = eigenvalues(&self.drift_matrix)
+                .iter()
+                .all(|(re, _)| *re < 0.0);
+            if !stable {
+                return None;
+            }
+            -self.drift_matrix.clone().lu().solve(&self.drift_constant)?
+        };
+        if !origin.iter().all(|v| v.is_finite()) {
+            return None;
+        }
+        // Balanced as in `try_moments_at`, over the slowest relaxation time ~ 1/‖A‖.
+        let norm = one_norm(&self.drift_matrix);
+        let time_scale = if norm > 0.0 { 1.0 / norm } else { 1.0 };
+        let scale = self.balancing_scale(&origin, time_scale);
+        let (basis, generator) = self.shifted(&origin).scaled(&scale).generator(order).ok()?;
         let size = basis.len();
-        for degree in 1..=order {
+        // The diagonal blocks of degree ≥ 2 depend only on A and c2, which the shift keeps
+        // (the scale is a similarity, it keeps eigenvalues).
+        for degree in 2..=order {
             let (start, end) = basis.degree_range(degree);
             let block = generator.view((start, start), (end - start, end - start));
             let stable = eigenvalues(&block.into_owned())
@@ -343,17 +435,24 @@ impl PolynomialSystem {
                 return None;
             }
         }
-        let mut values = vec![1.0];
+        let mut moments = vec![1.0];
         if size > 1 {
             let rest = generator.view((1, 1), (size - 1, size - 1)).into_owned();
             let constant_column = generator.view((1, 0), (size - 1, 1)).into_owned();
             let solution = rest.lu().solve(&(-constant_column))?;
-            values.extend(solution.iter().copied());
+            moments.extend(solution.iter().copied());
         }
-        values
-            .iter()
-            .all(|v| v.is_finite())
-            .then_some(MomentTable { basis, values })
+        for (moment, beta) in moments.iter_mut().zip(basis.iter()) {
+            *moment *= scale_power(&scale, beta);
+        }
+        if !moments.iter().all(|v| v.is_finite()) {
+            return None;
+        }
+        Some(MomentTable::from_shifted(
+            basis,
+            origin.iter().copied().collect(),
+            moments,
+        ))
     }
 }
 
@@ -490,13 +589,35 @@ fn push_monomials_of_degree(
 }
 
 /// Moments E[X^α] for every |α| ≤ order, with the usual summaries.
+///
+/// Held as moments of Y = X − origin (the start, or the stationary mean) so that
+/// covariances and central moments come without cancellation; raw moments of X are
+/// expanded from them once.
 #[derive(Clone, Debug, PartialEq)]
 pub struct MomentTable {
     basis: MonomialBasis,
+    /// E[X^α] in basis order.
     values: Vec<f64>,
+    origin: Vec<f64>,
+    /// E[(X − origin)^α] in basis order.
+    shifted: Vec<f64>,
 }
 
 impl MomentTable {
+    fn from_shifted(basis: MonomialBasis, origin: Vec<f64>, shifted: Vec<f64>) -> Self {
+        let negated_origin: Vec<f64> = origin.iter().map(|v| -v).collect();
+        let values = basis
+            .iter()
+            .map(|alpha| expand_about(&basis, &shifted, alpha, &negated_origin).unwrap_or(f64::NAN))
+            .collect();
+        MomentTable {
+            basis,
+            values,
+            origin,
+            shifted,
+        }
+    }
+
     /// A table whose every value is NaN (the moments could not be computed).
     fn not_available(dimension: usize, order: usize) -> Self {
         // The smallest basis that still answers `order()` and `dimension()` honestly.
@@ -510,7 +631,17 @@ impl MomentTable {
                 degree_starts: vec![0, 0],
             });
         let values = vec![f64::NAN; basis.len()];
-        MomentTable { basis, values }
+        MomentTable {
+            basis,
+            shifted: values.clone(),
+            values,
+            origin: vec![f64::NAN; dimension],
+        }
+    }
+
+    fn shifted_moment(&self, multi_index: &[u32]) -> Option<f64> {
+        let position = self.basis.position(multi_index)?;
+        self.shifted.get(position).copied()
     }
 
     /// Highest total degree held.
@@ -541,13 +672,16 @@ impl MomentTable {
 
     /// E[X_i].
     pub fn mean(&self, state: usize) -> Option<f64> {
-        self.raw(&self.unit_index(state, None)?)
+        let displacement = self.shifted_moment(&self.unit_index(state, None)?)?;
+        Some(self.origin.get(state)? + displacement)
     }
 
-    /// Cov(X_i, X_j) = E[X_i X_j] − E[X_i] E[X_j]; needs order ≥ 2.
+    /// Cov(X_i, X_j), computed about the table's origin; needs order ≥ 2.
     pub fn covariance(&self, i: usize, j: usize) -> Option<f64> {
-        let second = self.raw(&self.unit_index(i, Some(j))?)?;
-        Some(second - self.mean(i)? * self.mean(j)?)
+        let second = self.shifted_moment(&self.unit_index(i, Some(j))?)?;
+        let first_i = self.shifted_moment(&self.unit_index(i, None)?)?;
+        let first_j = self.shifted_moment(&self.unit_index(j, None)?)?;
+        Some(second - first_i * first_j)
     }
 
     /// Var(X_i).
@@ -555,37 +689,12 @@ impl MomentTable {
         self.covariance(state, state)
     }
 
-    /// E[Π_i (X_i − E X_i)^{α_i}], expanded binomially over the raw moments
-    /// (some cancellation for high orders when means are large against spreads).
+    /// E[Π_i (X_i − E X_i)^{α_i}], expanded binomially over the moments about the origin.
     pub fn central(&self, multi_index: &[u32]) -> Option<f64> {
-        let n = self.dimension();
-        if multi_index.len() != n {
-            return None;
-        }
-        let means: Vec<f64> = (0..n).map(|i| self.mean(i)).collect::<Option<_>>()?;
-        let mut beta = vec![0u32; n];
-        let mut total = 0.0;
-        loop {
-            let mut weight = 1.0;
-            for i in 0..n {
-                let lower = multi_index[i] - beta[i];
-                weight *= binomial(multi_index[i], beta[i]) * (-means[i]).powi(lower as i32);
-            }
-            total += weight * self.raw(&beta)?;
-            // Next β ≤ α in odometer order.
-            let mut carried = true;
-            for i in 0..n {
-                if beta[i] < multi_index[i] {
-                    beta[i] += 1;
-                    carried = false;
-                    break;
-                }
-                beta[i] = 0;
-            }
-            if carried {
-                return Some(total);
-            }
-        }
+        let displacements: Vec<f64> = (0..self.dimension())
+            .map(|i| self.shifted_moment(&self.unit_index(i, None)?))
+            .collect::<Option<_>>()?;
+        expand_about(&self.basis, &self.shifted, multi_index, &displacements)
     }
 
     /// The vector of means (NaN where unavailable).
@@ -617,6 +726,63 @@ impl MomentTable {
         }
         Some(index)
     }
+}
+
+/// E[Π_i (Z_i − c_i)^{α_i}] = Σ_{β ≤ α} Π_i C(α_i, β_i) (−c_i)^{α_i − β_i} E[Z^β], where
+/// `moments` lists E[Z^β] in the order of `basis`. `None` when α does not fit the basis.
+fn expand_about(
+    basis: &MonomialBasis,
+    moments: &[f64],
+    multi_index: &[u32],
+    centre: &[f64],
+) -> Option<f64> {
+    let n = basis.dimension();
+    if multi_index.len() != n || centre.len() != n {
+        return None;
+    }
+    basis.position(multi_index)?;
+    let mut beta = vec![0u32; n];
+    let mut total = 0.0;
+    loop {
+        let mut weight = 1.0;
+        for i in 0..n {
+            let lower = multi_index[i] - beta[i];
+            weight *= binomial(multi_index[i], beta[i]) * (-centre[i]).powi(lower as i32);
+        }
+        if weight != 0.0 {
+            total += weight * moments.get(basis.position(&beta)?)?;
+        }
+        // Next β ≤ α in odometer order.
+        let mut carried = true;
+        for i in 0..n {
+            if beta[i] < multi_index[i] {
+                beta[i] += 1;
+                carried = false;
+                break;
+            }
+            beta[i] = 0;
+        }
+        if carried {
+            return Some(total);
+        }
+    }
+}
+
+/// Π_i scale_i^{β_i}.
+fn scale_power(scale: &DVector<f64>, beta: &[u32]) -> f64 {
+    scale
+        .iter()
+        .zip(beta.iter())
+        .map(|(value, &power)| value.powi(power as i32))
+        .product()
+}
+
+/// Largest absolute column sum.
+fn one_norm(matrix: &DMatrix<f64>) -> f64 {
+    matrix
+        .column_iter()
+        .map(|column| column.iter().map(|v| v.abs()).sum::<f64>())
+        .fold(0.0, f64::max)
 }
 
 fn binomial(n: u32, k: u32) -> f64 {

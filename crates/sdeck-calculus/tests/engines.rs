@@ -757,6 +757,78 @@ fn stationary_moments_exist_only_below_the_tail_index() {
     assert!(heavy.stationary_moments(2).is_none());
 }
 
+/// A large level with a small spread: the moments are kept about the start (and about the
+/// stationary mean), so the variance of a Vasicek process at level 10⁶ with σ = 0.01 keeps
+/// its digits; Var = σ²(1 − e^{−2κt})/(2κ), stationary σ²/(2κ) (Vasicek 1977), fourth
+/// central moment 3 Var² (Gaussian; common practice, no source).
+///
+/// What is left is the cancellation of the drift's displacement: started 3 away from the
+/// level, E[(X − x₀)²] ≈ 5.8 holds a variance of 6·10⁻⁵, so about 5 digits go (hence 1e-10
+/// there); the fourth moment is checked from a start at the level, where nothing cancels.
+#[test]
+fn polynomial_moments_keep_digits_at_large_levels() {
+    let (speed, level, vol, t) = (0.8, 1e6, 0.01, 2.0);
+    let system = PolynomialSystem::new(
+        DVector::from_element(1, speed * level),
+        DMatrix::from_element(1, 1, -speed),
+        DMatrix::from_element(1, 1, vol * vol),
+        Vec::new(),
+        Vec::new(),
+    )
+    .unwrap();
+    let decay = (-speed * t).exp();
+    let variance = vol * vol * (1.0 - decay * decay) / (2.0 * speed);
+
+    let displaced_start = level + 3.0;
+    let table = system.moments_at(&DVector::from_element(1, displaced_start), t, 4);
+    assert_close(
+        table.mean(0).unwrap(),
+        level + (displaced_start - level) * decay,
+        1e-14,
+        "mean",
+    );
+    assert_close(table.variance(0).unwrap(), variance, 1e-10, "variance");
+    // Raw moments are large numbers, and still right to double precision.
+    let mean = table.mean(0).unwrap();
+    assert_close(
+        table.raw(&[2]).unwrap(),
+        mean * mean + variance,
+        1e-14,
+        "E[X²]",
+    );
+
+    let table = system.moments_at(&DVector::from_element(1, level), t, 4);
+    assert_close(table.mean(0).unwrap(), level, 1e-15, "mean from the level");
+    assert_close(
+        table.variance(0).unwrap(),
+        variance,
+        1e-12,
+        "variance from the level",
+    );
+    assert_close(
+        table.central(&[4]).unwrap(),
+        3.0 * variance * variance,
+        1e-10,
+        "fourth central moment",
+    );
+
+    let stationary = system.stationary_moments(4).unwrap();
+    assert_close(stationary.mean(0).unwrap(), level, 1e-15, "stationary mean");
+    assert_close(
+        stationary.variance(0).unwrap(),
+        vol * vol / (2.0 * speed),
+        1e-12,
+        "stationary variance",
+    );
+    let stationary_variance = vol * vol / (2.0 * speed);
+    assert_close(
+        stationary.central(&[4]).unwrap(),
+        3.0 * stationary_variance * stationary_variance,
+        1e-10,
+        "stationary fourth central moment",
+    );
+}
+
 #[test]
 fn polynomial_basis_cap_is_an_error_not_a_hang() {
     let n = 12;
