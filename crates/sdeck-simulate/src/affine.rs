@@ -54,66 +54,70 @@ impl AffineForm {
 /// The affine form of `expr` when it is affine in the states with constant coefficients
 /// (no `t`, no unresolved part); `None` otherwise.
 pub fn affine_form(expr: &Expr, params: &[f64], state_count: usize) -> Option<AffineForm> {
-    let form = match expr {
-        Expr::Invalid | Expr::Time => return None,
-        Expr::Const(c) => AffineForm::constant(*c, state_count),
-        Expr::Param(i) => AffineForm::constant(*params.get(*i)?, state_count),
-        Expr::State(i) => {
-            let mut form = AffineForm::constant(0.0, state_count);
-            *form.coefficients.get_mut(*i)? = 1.0;
-            form
-        }
-        Expr::Neg(a) => affine_form(a, params, state_count)?.scaled(-1.0),
-        Expr::Add(a, b) => affine_form(a, params, state_count)?.combined(affine_form(b, params, state_count)?, 1.0),
-        Expr::Sub(a, b) => affine_form(a, params, state_count)?.combined(affine_form(b, params, state_count)?, -1.0),
-        Expr::Mul(a, b) => {
-            let left = affine_form(a, params, state_count)?;
-            let right = affine_form(b, params, state_count)?;
-            if left.is_constant() {
-                right.scaled(left.constant)
-            } else if right.is_constant() {
-                left.scaled(right.constant)
-            } else {
-                return None;
+    let form =
+        match expr {
+            Expr::Invalid | Expr::Time => return None,
+            Expr::Const(c) => AffineForm::constant(*c, state_count),
+            Expr::Param(i) => AffineForm::constant(*params.get(*i)?, state_count),
+            Expr::State(i) => {
+                let mut form = AffineForm::constant(0.0, state_count);
+                *form.coefficients.get_mut(*i)? = 1.0;
+                form
             }
-        }
-        Expr::Div(a, b) => {
-            let right = affine_form(b, params, state_count)?;
-            if !right.is_constant() || right.constant == 0.0 {
-                return None;
-            }
-            affine_form(a, params, state_count)?.scaled(1.0 / right.constant)
-        }
-        Expr::Pow(a, b) => {
-            let base = affine_form(a, params, state_count)?;
-            let exponent = affine_form(b, params, state_count)?;
-            if !exponent.is_constant() {
-                return None;
-            }
-            if base.is_constant() {
-                AffineForm::constant(base.constant.powf(exponent.constant), state_count)
-            } else if exponent.constant == 1.0 {
-                base
-            } else if exponent.constant == 0.0 {
-                AffineForm::constant(1.0, state_count)
-            } else {
-                return None;
-            }
-        }
-        Expr::Call(function, args) => {
-            // A function of constants is a constant; anything else is not affine.
-            let mut values = Vec::with_capacity(args.len());
-            for arg in args {
-                let form = affine_form(arg, params, state_count)?;
-                if !form.is_constant() {
+            Expr::Neg(a) => affine_form(a, params, state_count)?.scaled(-1.0),
+            Expr::Add(a, b) => affine_form(a, params, state_count)?
+                .combined(affine_form(b, params, state_count)?, 1.0),
+            Expr::Sub(a, b) => affine_form(a, params, state_count)?
+                .combined(affine_form(b, params, state_count)?, -1.0),
+            Expr::Mul(a, b) => {
+                let left = affine_form(a, params, state_count)?;
+                let right = affine_form(b, params, state_count)?;
+                if left.is_constant() {
+                    right.scaled(left.constant)
+                } else if right.is_constant() {
+                    left.scaled(right.constant)
+                } else {
                     return None;
                 }
-                values.push(form.constant);
             }
-            let value = Expr::Call(*function, values.into_iter().map(Expr::Const).collect()).eval(&[], &[], 0.0);
-            AffineForm::constant(value, state_count)
-        }
-    };
+            Expr::Div(a, b) => {
+                let right = affine_form(b, params, state_count)?;
+                if !right.is_constant() || right.constant == 0.0 {
+                    return None;
+                }
+                affine_form(a, params, state_count)?.scaled(1.0 / right.constant)
+            }
+            Expr::Pow(a, b) => {
+                let base = affine_form(a, params, state_count)?;
+                let exponent = affine_form(b, params, state_count)?;
+                if !exponent.is_constant() {
+                    return None;
+                }
+                if base.is_constant() {
+                    AffineForm::constant(base.constant.powf(exponent.constant), state_count)
+                } else if exponent.constant == 1.0 {
+                    base
+                } else if exponent.constant == 0.0 {
+                    AffineForm::constant(1.0, state_count)
+                } else {
+                    return None;
+                }
+            }
+            Expr::Call(function, args) => {
+                // A function of constants is a constant; anything else is not affine.
+                let mut values = Vec::with_capacity(args.len());
+                for arg in args {
+                    let form = affine_form(arg, params, state_count)?;
+                    if !form.is_constant() {
+                        return None;
+                    }
+                    values.push(form.constant);
+                }
+                let value = Expr::Call(*function, values.into_iter().map(Expr::Const).collect())
+                    .eval(&[], &[], 0.0);
+                AffineForm::constant(value, state_count)
+            }
+        };
     if form.constant.is_finite() && form.coefficients.iter().all(|c| c.is_finite()) {
         Some(form)
     } else {
@@ -128,7 +132,11 @@ pub fn scaled_square_root(expr: &Expr, params: &[f64], state_count: usize) -> Op
         if form.constant != 0.0 {
             return None;
         }
-        let mut present = form.coefficients.iter().enumerate().filter(|(_, c)| **c != 0.0);
+        let mut present = form
+            .coefficients
+            .iter()
+            .enumerate()
+            .filter(|(_, c)| **c != 0.0);
         let (state, weight) = present.next()?;
         if present.next().is_some() || *weight <= 0.0 {
             return None;
@@ -173,7 +181,10 @@ mod tests {
     #[test]
     fn mean_reverting_drift_is_affine() {
         // kappa * (level - x) with kappa = 2, level = 0.03, read against y as well.
-        let drift = Expr::Mul(b(Expr::Param(0)), b(Expr::Sub(b(Expr::Param(1)), b(Expr::State(0)))));
+        let drift = Expr::Mul(
+            b(Expr::Param(0)),
+            b(Expr::Sub(b(Expr::Param(1)), b(Expr::State(0)))),
+        );
         let form = affine_form(&drift, &[2.0, 0.03], 2).unwrap();
         assert!((form.constant - 0.06).abs() < 1e-15);
         assert_eq!(form.coefficients, vec![-2.0, 0.0]);
@@ -184,11 +195,23 @@ mod tests {
     fn products_of_states_time_and_functions_of_states_are_not_affine() {
         let square = Expr::Mul(b(Expr::State(0)), b(Expr::State(0)));
         assert_eq!(affine_form(&square, &[], 1), None);
-        assert_eq!(affine_form(&Expr::Mul(b(Expr::Time), b(Expr::State(0))), &[], 1), None);
-        assert_eq!(affine_form(&Expr::Call(Function::Exp, vec![Expr::State(0)]), &[], 1), None);
-        assert_eq!(affine_form(&Expr::Div(b(Expr::State(0)), b(Expr::Const(0.0))), &[], 1), None);
+        assert_eq!(
+            affine_form(&Expr::Mul(b(Expr::Time), b(Expr::State(0))), &[], 1),
+            None
+        );
+        assert_eq!(
+            affine_form(&Expr::Call(Function::Exp, vec![Expr::State(0)]), &[], 1),
+            None
+        );
+        assert_eq!(
+            affine_form(&Expr::Div(b(Expr::State(0)), b(Expr::Const(0.0))), &[], 1),
+            None
+        );
         let constant_call = Expr::Call(Function::Sqrt, vec![Expr::Const(4.0)]);
-        assert_eq!(affine_form(&constant_call, &[], 1).map(|f| f.constant), Some(2.0));
+        assert_eq!(
+            affine_form(&constant_call, &[], 1).map(|f| f.constant),
+            Some(2.0)
+        );
     }
 
     #[test]
@@ -201,12 +224,18 @@ mod tests {
         // sqrt(vol^2 * x)
         let inside = Expr::Call(
             Function::Sqrt,
-            vec![Expr::Mul(b(Expr::Pow(b(Expr::Param(0)), b(Expr::Const(2.0)))), b(Expr::State(0)))],
+            vec![Expr::Mul(
+                b(Expr::Pow(b(Expr::Param(0)), b(Expr::Const(2.0)))),
+                b(Expr::State(0)),
+            )],
         );
         let (factor, state) = scaled_square_root(&inside, &[0.3], 1).unwrap();
         assert!((factor - 0.3).abs() < 1e-15 && state == 0);
         // x ^ 0.5 with another state: not a square root of one state.
-        let mixed = Expr::Pow(b(Expr::Add(b(Expr::State(0)), b(Expr::State(1)))), b(Expr::Const(0.5)));
+        let mixed = Expr::Pow(
+            b(Expr::Add(b(Expr::State(0)), b(Expr::State(1)))),
+            b(Expr::Const(0.5)),
+        );
         assert_eq!(scaled_square_root(&mixed, &[], 2), None);
     }
 }

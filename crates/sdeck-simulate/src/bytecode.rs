@@ -145,7 +145,11 @@ fn fold(expr: &Expr, params: &[f64], state_count: usize) -> Result<Node, Compile
         }
         Expr::Time => Node::Time,
         Expr::Neg(a) => unary(UnaryOp::Negate, fold(a, params, state_count)?),
-        Expr::Add(a, b) => binary(BinaryOp::Add, fold(a, params, state_count)?, fold(b, params, state_count)?),
+        Expr::Add(a, b) => binary(
+            BinaryOp::Add,
+            fold(a, params, state_count)?,
+            fold(b, params, state_count)?,
+        ),
         Expr::Sub(a, b) => binary(
             BinaryOp::Subtract,
             fold(a, params, state_count)?,
@@ -156,14 +160,22 @@ fn fold(expr: &Expr, params: &[f64], state_count: usize) -> Result<Node, Compile
             fold(a, params, state_count)?,
             fold(b, params, state_count)?,
         ),
-        Expr::Div(a, b) => binary(BinaryOp::Divide, fold(a, params, state_count)?, fold(b, params, state_count)?),
+        Expr::Div(a, b) => binary(
+            BinaryOp::Divide,
+            fold(a, params, state_count)?,
+            fold(b, params, state_count)?,
+        ),
         Expr::Pow(a, b) => {
             let base = fold(a, params, state_count)?;
             let exponent = fold(b, params, state_count)?;
             match exponent {
-                Node::Const(e) if e == 0.5 && !matches!(base, Node::Const(_)) => unary(UnaryOp::Sqrt, base),
+                Node::Const(e) if e == 0.5 && !matches!(base, Node::Const(_)) => {
+                    unary(UnaryOp::Sqrt, base)
+                }
                 Node::Const(e)
-                    if e.fract() == 0.0 && e.abs() <= MAX_INTEGER_POWER && !matches!(base, Node::Const(_)) =>
+                    if e.fract() == 0.0
+                        && e.abs() <= MAX_INTEGER_POWER
+                        && !matches!(base, Node::Const(_)) =>
                 {
                     // The guard bounds |e| by 16, so the cast is exact.
                     Node::PowerInteger(Box::new(base), e as i32)
@@ -319,7 +331,11 @@ pub fn mark_root_states(expr: &Expr, marks: &mut [bool]) {
                 }
             }
             Expr::Neg(a) => mark_all(a, marks),
-            Expr::Add(a, b) | Expr::Sub(a, b) | Expr::Mul(a, b) | Expr::Div(a, b) | Expr::Pow(a, b) => {
+            Expr::Add(a, b)
+            | Expr::Sub(a, b)
+            | Expr::Mul(a, b)
+            | Expr::Div(a, b)
+            | Expr::Pow(a, b) => {
                 mark_all(a, marks);
                 mark_all(b, marks);
             }
@@ -328,7 +344,9 @@ pub fn mark_root_states(expr: &Expr, marks: &mut [bool]) {
         }
     }
     match expr {
-        Expr::Call(Function::Sqrt | Function::Log, args) => args.iter().for_each(|a| mark_all(a, marks)),
+        Expr::Call(Function::Sqrt | Function::Log, args) => {
+            args.iter().for_each(|a| mark_all(a, marks))
+        }
         Expr::Call(_, args) => args.iter().for_each(|a| mark_root_states(a, marks)),
         Expr::Pow(base, exponent) => {
             let integer_exponent = matches!(exponent.as_ref(), Expr::Const(e) if e.fract() == 0.0);
@@ -517,7 +535,10 @@ mod tests {
             // exp(-x) * log(y) + abs(sin(t)) - cos(x * t)
             Sub(
                 b(Add(
-                    b(Mul(b(Call(Function::Exp, vec![Neg(b(State(0)))])), b(Call(Function::Log, vec![State(1)])))),
+                    b(Mul(
+                        b(Call(Function::Exp, vec![Neg(b(State(0)))])),
+                        b(Call(Function::Log, vec![State(1)])),
+                    )),
                     b(Call(Function::Abs, vec![Call(Function::Sin, vec![Time])])),
                 )),
                 b(Call(Function::Cos, vec![Mul(b(State(0)), b(Time))])),
@@ -537,14 +558,23 @@ mod tests {
                     )),
                     b(Pow(b(State(0)), b(Const(0.5)))),
                 )),
-                b(Add(b(Sub(b(Const(2.0)), b(State(1)))), b(Sub(b(State(0)), b(Const(1.0)))))),
+                b(Add(
+                    b(Sub(b(Const(2.0)), b(State(1)))),
+                    b(Sub(b(State(0)), b(Const(1.0)))),
+                )),
             ),
             // a constant expression: 2 * kappa ^ 2
             Mul(b(Const(2.0)), b(Pow(b(Param(0)), b(Const(2.0))))),
             // x ^ -2 + x ^ 7 + (1 + x) + (x * 3)
             Add(
-                b(Add(b(Pow(b(State(0)), b(Const(-2.0)))), b(Pow(b(State(0)), b(Const(7.0)))))),
-                b(Add(b(Add(b(Const(1.0)), b(State(0)))), b(Mul(b(State(0)), b(Const(3.0)))))),
+                b(Add(
+                    b(Pow(b(State(0)), b(Const(-2.0)))),
+                    b(Pow(b(State(0)), b(Const(7.0)))),
+                )),
+                b(Add(
+                    b(Add(b(Const(1.0)), b(State(0)))),
+                    b(Mul(b(State(0)), b(Const(3.0)))),
+                )),
             ),
         ]
     }
@@ -571,10 +601,16 @@ mod tests {
 
     #[test]
     fn constants_fold_and_parameters_disappear() {
-        let expr = Expr::Mul(b(Expr::Const(2.0)), b(Expr::Pow(b(Expr::Param(0)), b(Expr::Const(2.0)))));
+        let expr = Expr::Mul(
+            b(Expr::Const(2.0)),
+            b(Expr::Pow(b(Expr::Param(0)), b(Expr::Const(2.0)))),
+        );
         let program = Program::compile(&expr, &[3.0], 0, &[]).unwrap();
         assert_eq!(program.constant(), Some(18.0));
-        let expr = Expr::Mul(b(Expr::Param(0)), b(Expr::Sub(b(Expr::Param(1)), b(Expr::State(0)))));
+        let expr = Expr::Mul(
+            b(Expr::Param(0)),
+            b(Expr::Sub(b(Expr::Param(1)), b(Expr::State(0)))),
+        );
         let program = Program::compile(&expr, &[1.5, 0.04], 1, &[false]).unwrap();
         assert!(program
             .instructions()
@@ -593,11 +629,23 @@ mod tests {
 
     #[test]
     fn invalid_and_out_of_range_expressions_are_errors() {
-        assert_eq!(Program::compile(&Expr::Invalid, &[], 0, &[]), Err(CompileError::Invalid));
-        assert_eq!(Program::compile(&Expr::Param(3), &[], 0, &[]), Err(CompileError::UnknownIndex));
-        assert_eq!(Program::compile(&Expr::State(1), &[], 1, &[false]), Err(CompileError::UnknownIndex));
+        assert_eq!(
+            Program::compile(&Expr::Invalid, &[], 0, &[]),
+            Err(CompileError::Invalid)
+        );
+        assert_eq!(
+            Program::compile(&Expr::Param(3), &[], 0, &[]),
+            Err(CompileError::UnknownIndex)
+        );
+        assert_eq!(
+            Program::compile(&Expr::State(1), &[], 1, &[false]),
+            Err(CompileError::UnknownIndex)
+        );
         let bad_call = Expr::Call(Function::Min, vec![Expr::Const(1.0)]);
-        assert_eq!(Program::compile(&bad_call, &[], 0, &[]), Err(CompileError::Arity("min")));
+        assert_eq!(
+            Program::compile(&bad_call, &[], 0, &[]),
+            Err(CompileError::Arity("min"))
+        );
     }
 
     #[test]
@@ -606,7 +654,10 @@ mod tests {
         let mut marks = [false; 3];
         // sqrt(x) * y^2 + z^1.5
         let expr = Add(
-            b(Mul(b(Call(Function::Sqrt, vec![State(0)])), b(Pow(b(State(1)), b(Const(2.0)))))),
+            b(Mul(
+                b(Call(Function::Sqrt, vec![State(0)])),
+                b(Pow(b(State(1)), b(Const(2.0)))),
+            )),
             b(Pow(b(State(2)), b(Const(1.5)))),
         );
         mark_root_states(&expr, &mut marks);

@@ -175,7 +175,13 @@ fn matrix_rows(matrix: &DMatrix<f64>) -> Vec<Vec<f64>> {
         .collect()
 }
 
-fn compile(model: &Model, plan: &Plan, step: f64, steps: usize, warnings: &mut Vec<String>) -> Result<Compiled, SimulateError> {
+fn compile(
+    model: &Model,
+    plan: &Plan,
+    step: f64,
+    steps: usize,
+    warnings: &mut Vec<String>,
+) -> Result<Compiled, SimulateError> {
     let state_count = model.states.len();
     let noise_count = model.noises.len();
     let params = model.param_values();
@@ -187,9 +193,12 @@ fn compile(model: &Model, plan: &Plan, step: f64, steps: usize, warnings: &mut V
     // would hide the error.
     let mut programs = Vec::with_capacity(state_count);
     for state in &model.states {
-        let equation = state.equation.as_ref().ok_or_else(|| SimulateError::MissingEquation {
-            state: state.name.clone(),
-        })?;
+        let equation = state
+            .equation
+            .as_ref()
+            .ok_or_else(|| SimulateError::MissingEquation {
+                state: state.name.clone(),
+            })?;
         let drift = Program::compile(&equation.drift, &params, state_count, &truncated)
             .map_err(|e| compile_error(&state.name, e))?;
         let mut diffusion = Vec::with_capacity(equation.diffusion.len());
@@ -240,7 +249,11 @@ fn compile(model: &Model, plan: &Plan, step: f64, steps: usize, warnings: &mut V
                 lognormal.push(LognormalState {
                     index,
                     log_drift_per_step: (growth - 0.5 * quadratic) * step,
-                    loadings: loadings.iter().filter(|(k, _)| *k < noise_count).copied().collect(),
+                    loadings: loadings
+                        .iter()
+                        .filter(|(k, _)| *k < noise_count)
+                        .copied()
+                        .collect(),
                 });
             }
             Scheme::Exact(ExactLaw::SquareRoot { speed, level, vol }) => {
@@ -289,7 +302,11 @@ fn compile(model: &Model, plan: &Plan, step: f64, steps: usize, warnings: &mut V
         lognormal,
         square_root,
         group,
-        noise_factor: if identity { None } else { Some(matrix_rows(&factor.lower)) },
+        noise_factor: if identity {
+            None
+        } else {
+            Some(matrix_rows(&factor.lower))
+        },
         needs_increments,
         stack_depth,
         truncated,
@@ -448,7 +465,13 @@ fn advance(compiled: &Compiled, scratch: &mut Scratch, rng: &mut ChaCha8Rng, ste
     std::mem::swap(current, next);
 }
 
-fn simulate_block(compiled: &Compiled, scratch: &mut Scratch, seed: u64, block: usize, record_steps: &[usize]) -> BlockOutput {
+fn simulate_block(
+    compiled: &Compiled,
+    scratch: &mut Scratch,
+    seed: u64,
+    block: usize,
+    record_steps: &[usize],
+) -> BlockOutput {
     let mut rng = ChaCha8Rng::seed_from_u64(seed);
     rng.set_stream(block as u64);
     for (lanes, x0) in scratch.current.iter_mut().zip(&compiled.initial) {
@@ -492,7 +515,11 @@ fn band_steps(steps: usize, count: usize) -> Vec<usize> {
 }
 
 /// Runs the simulation and returns the raw values.
-pub fn simulate_paths(model: &Model, plan: &Plan, options: &SimulationOptions) -> Result<PathSamples, SimulateError> {
+pub fn simulate_paths(
+    model: &Model,
+    plan: &Plan,
+    options: &SimulationOptions,
+) -> Result<PathSamples, SimulateError> {
     let states = model.states.len();
     if states == 0 {
         return Err(SimulateError::NoStates);
@@ -514,7 +541,7 @@ pub fn simulate_paths(model: &Model, plan: &Plan, options: &SimulationOptions) -
         return Err(SimulateError::BadTime { at });
     }
     let step = at / options.steps as f64;
-    let mut warnings = Vec::new();
+    let mut warnings = plan.notes.clone();
     let compiled = compile(model, plan, step, options.steps, &mut warnings)?;
 
     let blocks = options.paths.div_ceil(LANES);
@@ -529,7 +556,9 @@ pub fn simulate_paths(model: &Model, plan: &Plan, options: &SimulationOptions) -
     if let Some(threads) = options.threads {
         builder = builder.num_threads(threads.max(1));
     }
-    let pool = builder.build().map_err(|e| SimulateError::ThreadPool(e.to_string()))?;
+    let pool = builder
+        .build()
+        .map_err(|e| SimulateError::ThreadPool(e.to_string()))?;
     let progress = Progress::start(options.progress, blocks);
     let outputs: Vec<BlockOutput> = pool.install(|| {
         (0..blocks)
@@ -537,7 +566,11 @@ pub fn simulate_paths(model: &Model, plan: &Plan, options: &SimulationOptions) -
             .map_init(
                 || Scratch::new(&compiled),
                 |scratch, block| {
-                    let records: &[usize] = if block < band_blocks { &record_steps } else { &[] };
+                    let records: &[usize] = if block < band_blocks {
+                        &record_steps
+                    } else {
+                        &[]
+                    };
                     let output = simulate_block(&compiled, scratch, options.seed, block, records);
                     progress.advance();
                     output

@@ -32,11 +32,11 @@ pub mod samplers;
 pub mod stats;
 
 pub use engine::{simulate_paths, PathSamples, SimulateError, SimulationOptions};
-pub use plan::{plan_from_model, ExactLaw, GaussianGroup, Plan, Scheme};
+pub use plan::{plan, plan_from_model, ExactLaw, GaussianGroup, Plan, Scheme};
 pub use plot::{fan_chart_svg, write_fan_chart, PlotError};
 pub use report::{
-    check, render_text, to_json, Bands, ClosedFormComparison, Disagreement, SimulationResult, StateResult,
-    CHECK_THRESHOLD,
+    check, render_text, to_json, Bands, ClosedFormComparison, Disagreement, SimulationResult,
+    StateResult, CHECK_THRESHOLD,
 };
 pub use stats::QUANTILE_PROBABILITIES;
 
@@ -44,7 +44,11 @@ use sdeck_semantics::Model;
 
 /// Simulates `model` with `plan` and summarises the result (figures and standard errors;
 /// closed forms are attached by the caller with [`SimulationResult::attach_closed_forms`]).
-pub fn simulate(model: &Model, plan: &Plan, options: &SimulationOptions) -> Result<SimulationResult, SimulateError> {
+pub fn simulate(
+    model: &Model,
+    plan: &Plan,
+    options: &SimulationOptions,
+) -> Result<SimulationResult, SimulateError> {
     let samples = simulate_paths(model, plan, options)?;
     Ok(SimulationResult::from_samples(&samples))
 }

@@ -77,12 +77,21 @@ pub struct GaussianStep {
 /// exp([[-A, Q], [0, Aᵀ]] Δ) = [[·, G], [0, F]] gives e^{AΔ} = Fᵀ and the step covariance
 /// P = ∫₀^Δ e^{As} Q e^{Aᵀs} ds = Fᵀ G. The shift ∫₀^Δ e^{As} b ds is the last column of
 /// exp([[A, b], [0, 0]] Δ).
-pub fn gaussian_step(drift: &DMatrix<f64>, constant: &DVector<f64>, noise_covariance: &DMatrix<f64>, step: f64) -> GaussianStep {
+pub fn gaussian_step(
+    drift: &DMatrix<f64>,
+    constant: &DVector<f64>,
+    noise_covariance: &DMatrix<f64>,
+    step: f64,
+) -> GaussianStep {
     let n = drift.nrows();
     let mut block = DMatrix::zeros(2 * n, 2 * n);
     block.view_mut((0, 0), (n, n)).copy_from(&(-drift * step));
-    block.view_mut((0, n), (n, n)).copy_from(&(noise_covariance * step));
-    block.view_mut((n, n), (n, n)).copy_from(&(drift.transpose() * step));
+    block
+        .view_mut((0, n), (n, n))
+        .copy_from(&(noise_covariance * step));
+    block
+        .view_mut((n, n), (n, n))
+        .copy_from(&(drift.transpose() * step));
     let exponential = block.exp();
     let f = exponential.view((n, n), (n, n)).into_owned();
     let g = exponential.view((0, n), (n, n)).into_owned();
@@ -90,10 +99,17 @@ pub fn gaussian_step(drift: &DMatrix<f64>, constant: &DVector<f64>, noise_covari
     let covariance = &transition * g;
 
     let mut augmented = DMatrix::zeros(n + 1, n + 1);
-    augmented.view_mut((0, 0), (n, n)).copy_from(&(drift * step));
-    augmented.view_mut((0, n), (n, 1)).copy_from(&(constant * step));
+    augmented
+        .view_mut((0, 0), (n, n))
+        .copy_from(&(drift * step));
+    augmented
+        .view_mut((0, n), (n, 1))
+        .copy_from(&(constant * step));
     let augmented_exponential = augmented.exp();
-    let shift = augmented_exponential.view((0, n), (n, 1)).column(0).into_owned();
+    let shift = augmented_exponential
+        .view((0, n), (n, 1))
+        .column(0)
+        .into_owned();
 
     GaussianStep {
         transition,
@@ -135,7 +151,11 @@ mod tests {
         let result = gaussian_step(&drift, &DVector::zeros(2), &q, step);
         let p = &result.noise_factor * result.noise_factor.transpose();
         let expected = rho * s1 * s2 * (1.0 - (-(k1 + k2) * step).exp()) / (k1 + k2);
-        assert!((p[(0, 1)] - expected).abs() < 1e-15, "{} vs {expected}", p[(0, 1)]);
+        assert!(
+            (p[(0, 1)] - expected).abs() < 1e-15,
+            "{} vs {expected}",
+            p[(0, 1)]
+        );
         let expected_first = s1 * s1 * (1.0 - (-2.0 * k1 * step).exp()) / (2.0 * k1);
         assert!((p[(0, 0)] - expected_first).abs() < 1e-15);
     }

@@ -8,6 +8,7 @@
 
 use crate::affine::{affine_form, scaled_square_root, AffineForm};
 use crate::bytecode::mark_root_states;
+use sdeck_calculus::{Derivation, Family};
 use sdeck_semantics::Model;
 
 /// How one state advances over a step.
@@ -24,7 +25,10 @@ pub enum ExactLaw {
     /// Member of [`Plan::gaussian_group`]: Gaussian step with exact mean and covariance.
     LinearGaussian,
     /// dX = growth X dt + Σ loading_k X dW_k: lognormal step.
-    Lognormal { growth: f64, loadings: Vec<(usize, f64)> },
+    Lognormal {
+        growth: f64,
+        loadings: Vec<(usize, f64)>,
+    },
     /// dX = speed (level − X) dt + vol √X dW: noncentral chi-square step.
     SquareRoot { speed: f64, level: f64, vol: f64 },
 }
@@ -51,6 +55,8 @@ pub struct Plan {
     /// States read as max(x, 0) inside Euler coefficients and reported as such (full
     /// truncation, Lord, Koekkoek & van Dijk 2010, Quantitative Finance 10(2)).
     pub truncated: Vec<bool>,
+    /// Why a state got a less exact scheme than its family suggests, for the report.
+    pub notes: Vec<String>,
 }
 
 impl Scheme {
@@ -77,6 +83,7 @@ impl Plan {
             schemes: vec![Scheme::Euler; model.states.len()],
             gaussian_group: None,
             truncated: root_states(model),
+            notes: Vec::new(),
         }
     }
 
@@ -128,7 +135,9 @@ fn read_shapes(model: &Model) -> Vec<Option<StateShape>> {
             let diffusion = equation
                 .diffusion
                 .iter()
-                .map(|term| affine_form(&term.coefficient, &params, n).map(|form| (term.noise, form)))
+                .map(|term| {
+                    affine_form(&term.coefficient, &params, n).map(|form| (term.noise, form))
+                })
                 .collect::<Option<Vec<_>>>();
             // Only a square root of the state itself counts.
             let square_root = match equation.diffusion.as_slice() {
@@ -174,8 +183,7 @@ pub fn plan_from_model(model: &Model) -> Plan {
         .map(|shape| {
             shape.as_ref().is_some_and(|s| {
                 s.drift.is_some()
-                    && s
-                        .diffusion
+                    && s.diffusion
                         .as_ref()
                         .is_some_and(|terms| terms.iter().all(|(_, f)| f.is_constant()))
             })
@@ -190,7 +198,13 @@ pub fn plan_from_model(model: &Model) -> Plan {
             let reads_outside = shapes[i]
                 .as_ref()
                 .and_then(|s| s.drift.as_ref())
-                .is_none_or(|drift| drift.coefficients.iter().enumerate().any(|(j, c)| *c != 0.0 && !in_group[j]));
+                .is_none_or(|drift| {
+                    drift
+                        .coefficients
+                        .iter()
+                        .enumerate()
+                        .any(|(j, c)| *c != 0.0 && !in_group[j])
+                });
             if reads_outside {
                 in_group[i] = false;
                 changed = true;
@@ -216,8 +230,12 @@ pub fn plan_from_model(model: &Model) -> Plan {
         let mut constant = Vec::with_capacity(states.len());
         let mut loadings = Vec::with_capacity(states.len());
         for &i in &states {
-            let Some(shape) = shapes[i].as_ref() else { continue };
-            let Some(form) = shape.drift.as_ref() else { continue };
+            let Some(shape) = shapes[i].as_ref() else {
+                continue;
+            };
+            let Some(form) = shape.drift.as_ref() else {
+                continue;
+            };
             drift.push(states.iter().map(|j| form.coefficients[*j]).collect());
             constant.push(form.constant);
             let mut row = vec![0.0; model.noises.len()];
@@ -241,8 +259,12 @@ pub fn plan_from_model(model: &Model) -> Plan {
         if schemes[i].is_exact() {
             continue;
         }
-        let Some(shape) = shapes[i].as_ref() else { continue };
-        let Some(drift) = shape.drift.as_ref() else { continue };
+        let Some(shape) = shapes[i].as_ref() else {
+            continue;
+        };
+        let Some(drift) = shape.drift.as_ref() else {
+            continue;
+        };
         if !drift.involves_only(i) {
             continue;
         }
@@ -250,7 +272,10 @@ pub fn plan_from_model(model: &Model) -> Plan {
         // Square root: drift a + b x with b < 0, a >= 0, one unshared noise.
         if let Some((noise, vol)) = shape.square_root {
             let others = noises_of(&|j| j != i);
-            if own_slope < 0.0 && drift.constant >= 0.0 && vol != 0.0 && noises_exclusive(&[noise], &others, &correlation)
+            if own_slope < 0.0
+                && drift.constant >= 0.0
+                && vol != 0.0
+                && noises_exclusive(&[noise], &others, &correlation)
             {
                 let speed = -own_slope;
                 schemes[i] = Scheme::Exact(ExactLaw::SquareRoot {
@@ -264,13 +289,17 @@ pub fn plan_from_model(model: &Model) -> Plan {
         // Geometric Brownian: no constant parts, only the state itself.
         if drift.constant == 0.0 {
             if let Some(terms) = shape.diffusion.as_ref() {
-                let proportional = terms.iter().all(|(_, f)| f.constant == 0.0 && f.involves_only(i));
+                let proportional = terms
+                    .iter()
+                    .all(|(_, f)| f.constant == 0.0 && f.involves_only(i));
                 if proportional && !terms.is_empty() {
                     schemes[i] = Scheme::Exact(ExactLaw::Lognormal {
                         growth: own_slope,
                         loadings: terms
                             .iter()
-                            .map(|(noise, f)| (*noise, f.coefficients.get(i).copied().unwrap_or(0.0)))
+                            .map(|(noise, f)| {
+                                (*noise, f.coefficients.get(i).copied().unwrap_or(0.0))
+                            })
                             .collect(),
                     });
                 }
@@ -289,5 +318,106 @@ pub fn plan_from_model(model: &Model) -> Plan {
         schemes,
         gaussian_group,
         truncated,
+        notes: Vec::new(),
     }
+}
+
+/// Relative agreement required between the calculus layer's numbers and the equations'.
+const AGREEMENT: f64 = 1e-9;
+
+fn agree(x: f64, y: f64) -> bool {
+    (x - y).abs() <= AGREEMENT * x.abs().max(y.abs()).max(1e-300)
+}
+
+/// Chooses a scheme for every state from the calculus layer's classification: a state gets
+/// an exact transition only when its family has one (Gaussian for arithmetic-Brownian,
+/// Ornstein–Uhlenbeck, linear with additive noise and linear-system; lognormal for
+/// geometric-Brownian; noncentral chi-square for square-root) and the equations confirm
+/// the numbers. Every other state is simulated with Euler–Maruyama.
+pub fn plan(model: &Model, derivation: &Derivation) -> Plan {
+    let mut plan = plan_from_model(model);
+    let family_of = |i: usize| derivation.states.get(i).map(|law| law.family);
+    let mut to_euler = Vec::new();
+
+    if let Some(group) = &plan.gaussian_group {
+        let families_agree = group.states.iter().all(|&i| {
+            matches!(
+                family_of(i),
+                Some(
+                    Family::ArithmeticBrownian
+                        | Family::OrnsteinUhlenbeck
+                        | Family::Linear
+                        | Family::LinearSystem
+                )
+            )
+        });
+        // When the calculus gives the drift matrix of the whole system, it must match.
+        let matrix_agrees = match &derivation.drift_matrix {
+            Some(matrix) if group.states.len() == model.states.len() => {
+                group.states.iter().enumerate().all(|(a, _)| {
+                    group.drift[a].iter().enumerate().all(|(b, value)| {
+                        matrix
+                            .get(a)
+                            .and_then(|row| row.get(b))
+                            .is_some_and(|m| agree(*m, *value))
+                    })
+                })
+            }
+            _ => true,
+        };
+        if !(families_agree && matrix_agrees) {
+            to_euler.extend(group.states.iter().copied());
+            plan.gaussian_group = None;
+        }
+    }
+
+    for i in 0..plan.schemes.len() {
+        let family = family_of(i);
+        let law = derivation.states.get(i);
+        match &mut plan.schemes[i] {
+            Scheme::Exact(ExactLaw::Lognormal { .. }) => {
+                if !matches!(family, Some(Family::GeometricBrownian | Family::Linear)) {
+                    to_euler.push(i);
+                }
+            }
+            Scheme::Exact(ExactLaw::SquareRoot { speed, level, vol }) => {
+                match law
+                    .and_then(|l| l.square_root.as_ref())
+                    .filter(|_| family == Some(Family::SquareRoot))
+                {
+                    Some(params)
+                        if agree(params.speed, *speed)
+                            && agree(params.level, *level)
+                            && agree(params.vol.abs(), *vol) =>
+                    {
+                        (*speed, *level, *vol) = (params.speed, params.level, params.vol.abs());
+                    }
+                    _ => to_euler.push(i),
+                }
+            }
+            Scheme::Exact(ExactLaw::LinearGaussian) | Scheme::Euler => {}
+        }
+    }
+
+    let names: Vec<&str> = to_euler
+        .iter()
+        .filter_map(|i| model.states.get(*i).map(|s| s.name.as_str()))
+        .collect();
+    if !names.is_empty() {
+        plan.notes.push(format!(
+            "the classification of {} does not confirm the shape read from the equations; simulated with Euler–Maruyama",
+            names.iter().map(|n| format!("`{n}`")).collect::<Vec<_>>().join(", ")
+        ));
+    }
+    for i in to_euler {
+        if let Some(scheme) = plan.schemes.get_mut(i) {
+            *scheme = Scheme::Euler;
+        }
+    }
+    // Euler states under a root now need truncation.
+    let roots = root_states(model);
+    for ((flag, scheme), root) in plan.truncated.iter_mut().zip(&plan.schemes).zip(roots) {
+        *flag = root && !scheme.is_exact();
+    }
+    plan
 }

@@ -21,7 +21,10 @@ pub enum PlotError {
     /// The simulation recorded no bands (`band_times` was 0).
     NoBands,
     Drawing(String),
-    Write { path: String, message: String },
+    Write {
+        path: String,
+        message: String,
+    },
 }
 
 impl fmt::Display for PlotError {
@@ -47,7 +50,9 @@ fn drawing_error(error: impl fmt::Debug) -> PlotError {
 fn value_range<'a>(values: impl Iterator<Item = &'a f64>) -> (f64, f64) {
     let (low, high) = values
         .filter(|v| v.is_finite())
-        .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), v| (lo.min(*v), hi.max(*v)));
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), v| {
+            (lo.min(*v), hi.max(*v))
+        });
     if !low.is_finite() || !high.is_finite() {
         return (0.0, 1.0);
     }
@@ -79,7 +84,10 @@ fn band_polygon(bands: &Bands, state: usize, lower: usize, upper: usize) -> Vec<
 
 /// Renders the fan chart to an SVG string. `closed_form_means[state][time]` are closed-form
 /// means on the band grid (`bands.times`), `None` where unknown.
-pub fn fan_chart_svg(result: &SimulationResult, closed_form_means: Option<&[Vec<Option<f64>>]>) -> Result<String, PlotError> {
+pub fn fan_chart_svg(
+    result: &SimulationResult,
+    closed_form_means: Option<&[Vec<Option<f64>>]>,
+) -> Result<String, PlotError> {
     let bands = result.bands.as_ref().ok_or(PlotError::NoBands)?;
     let panels = result.states.len().max(1);
     let height = PANEL_HEIGHT * u32::try_from(panels).unwrap_or(u32::MAX / PANEL_HEIGHT);
@@ -88,7 +96,12 @@ pub fn fan_chart_svg(result: &SimulationResult, closed_form_means: Option<&[Vec<
         let root = SVGBackend::with_string(&mut svg, (PANEL_WIDTH, height)).into_drawing_area();
         root.fill(&WHITE).map_err(drawing_error)?;
         let areas = root.split_evenly((panels, 1));
-        let end = bands.times.last().copied().unwrap_or(result.at).max(f64::MIN_POSITIVE);
+        let end = bands
+            .times
+            .last()
+            .copied()
+            .unwrap_or(result.at)
+            .max(f64::MIN_POSITIVE);
         for (index, (state, area)) in result.states.iter().zip(areas.iter()).enumerate() {
             let series = bands.quantiles.get(index).map(Vec::as_slice).unwrap_or(&[]);
             let closed: Vec<(f64, f64)> = closed_form_means
@@ -122,14 +135,23 @@ pub fn fan_chart_svg(result: &SimulationResult, closed_form_means: Option<&[Vec<
                 .light_line_style(WHITE)
                 .draw()
                 .map_err(drawing_error)?;
-            for (lower, upper, opacity, label) in [(0, 4, 0.18, "1–99%"), (1, 3, 0.32, "5–95%")] {
+            for (lower, upper, opacity, label) in [(0, 4, 0.18, "1–99%"), (1, 3, 0.32, "5–95%")]
+            {
                 let polygon = band_polygon(bands, index, lower, upper);
                 if polygon.len() >= 3 {
                     chart
-                        .draw_series(std::iter::once(Polygon::new(polygon, BAND_COLOUR.mix(opacity).filled())))
+                        .draw_series(std::iter::once(Polygon::new(
+                            polygon,
+                            BAND_COLOUR.mix(opacity).filled(),
+                        )))
                         .map_err(drawing_error)?
                         .label(label)
-                        .legend(move |(x, y)| Rectangle::new([(x, y - 5), (x + 16, y + 5)], BAND_COLOUR.mix(opacity).filled()));
+                        .legend(move |(x, y)| {
+                            Rectangle::new(
+                                [(x, y - 5), (x + 16, y + 5)],
+                                BAND_COLOUR.mix(opacity).filled(),
+                            )
+                        });
                 }
             }
             let median: Vec<(f64, f64)> = bands
@@ -143,13 +165,22 @@ pub fn fan_chart_svg(result: &SimulationResult, closed_form_means: Option<&[Vec<
                 .draw_series(LineSeries::new(median, BAND_COLOUR.stroke_width(2)))
                 .map_err(drawing_error)?
                 .label("median")
-                .legend(|(x, y)| PathElement::new([(x, y), (x + 16, y)], BAND_COLOUR.stroke_width(2)));
+                .legend(|(x, y)| {
+                    PathElement::new([(x, y), (x + 16, y)], BAND_COLOUR.stroke_width(2))
+                });
             if !closed.is_empty() {
                 chart
-                    .draw_series(DashedLineSeries::new(closed, 6, 4, CLOSED_FORM_COLOUR.stroke_width(2)))
+                    .draw_series(DashedLineSeries::new(
+                        closed,
+                        6,
+                        4,
+                        CLOSED_FORM_COLOUR.stroke_width(2),
+                    ))
                     .map_err(drawing_error)?
                     .label("closed-form mean")
-                    .legend(|(x, y)| PathElement::new([(x, y), (x + 16, y)], CLOSED_FORM_COLOUR.stroke_width(2)));
+                    .legend(|(x, y)| {
+                        PathElement::new([(x, y), (x + 16, y)], CLOSED_FORM_COLOUR.stroke_width(2))
+                    });
             }
             chart
                 .configure_series_labels()

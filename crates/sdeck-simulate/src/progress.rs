@@ -107,8 +107,21 @@ mod tests {
 
     #[test]
     fn bar_fills_in_proportion() {
-        assert_eq!(render_bar(0, 4), format!("[{}]   0% simulating paths", "-".repeat(40)));
-        assert_eq!(render_bar(1, 4), format!("[{}{}]  25% simulating paths", "#".repeat(10), "-".repeat(30)));
-        assert_eq!(render_bar(9, 4), format!("[{}] 100% simulating paths", "#".repeat(40)));
+        assert_eq!(
+            render_bar(0, 4),
+            format!("[{}]   0% simulating paths", "-".repeat(40))
+        );
+        assert_eq!(
+            render_bar(1, 4),
+            format!(
+                "[{}{}]  25% simulating paths",
+                "#".repeat(10),
+                "-".repeat(30)
+            )
+        );
+        assert_eq!(
+            render_bar(9, 4),
+            format!("[{}] 100% simulating paths", "#".repeat(40))
+        );
     }
 }

@@ -185,14 +185,28 @@ fn z_score(simulated: f64, expected: f64, standard_error: f64) -> f64 {
 pub fn check(result: &SimulationResult) -> Vec<Disagreement> {
     let mut disagreements = Vec::new();
     for state in &result.states {
-        let Some(closed) = &state.closed_form else { continue };
+        let Some(closed) = &state.closed_form else {
+            continue;
+        };
         let figures = [
-            ("mean", state.mean, closed.mean, state.mean_se, closed.z_mean),
-            ("variance", state.variance, closed.variance, state.variance_se, closed.z_variance),
+            (
+                "mean",
+                state.mean,
+                closed.mean,
+                state.mean_se,
+                closed.z_mean,
+            ),
+            (
+                "variance",
+                state.variance,
+                closed.variance,
+                state.variance_se,
+                closed.z_variance,
+            ),
         ];
         for (figure, simulated, closed_form, standard_error, z) in figures {
             // A NaN z means the figure could not be compared: that is a disagreement too.
-            if !(z.abs() <= CHECK_THRESHOLD) {
+            if z.is_nan() || z.abs() > CHECK_THRESHOLD {
                 disagreements.push(Disagreement {
                     state: state.name.clone(),
                     figure,

@@ -155,7 +155,10 @@ mod tests {
             let sample: Vec<f64> = (0..20_000).map(|_| chi_square(&mut rng, dof)).collect();
             let reference = ReferenceChiSquared::new(dof).unwrap();
             let d = ks_statistic(sample.clone(), |x| reference.cdf(x));
-            assert!(d * (sample.len() as f64).sqrt() < KS_CRITICAL, "dof {dof}: D = {d}");
+            assert!(
+                d * (sample.len() as f64).sqrt() < KS_CRITICAL,
+                "dof {dof}: D = {d}"
+            );
         }
     }
 
@@ -166,7 +169,9 @@ mod tests {
         let n = 200_000;
         for (k, lambda) in [(0.6, 2.0), (3.5, 0.8), (0.2, 0.0), (6.0, 15.0)] {
             let mut rng = ChaCha8Rng::seed_from_u64(5);
-            let sample: Vec<f64> = (0..n).map(|_| noncentral_chi_square(&mut rng, k, lambda)).collect();
+            let sample: Vec<f64> = (0..n)
+                .map(|_| noncentral_chi_square(&mut rng, k, lambda))
+                .collect();
             let (mean, variance) = mean_and_variance(&sample);
             let expected_mean = k + lambda;
             let expected_variance = 2.0 * (k + 2.0 * lambda);
@@ -176,7 +181,10 @@ mod tests {
             let variance_se = ((m4 - variance * variance) / n as f64).sqrt();
             let z_mean = (mean - expected_mean) / mean_se;
             let z_variance = (variance - expected_variance) / variance_se;
-            assert!(z_mean.abs() < 5.0, "k {k} λ {lambda}: mean {mean} vs {expected_mean}");
+            assert!(
+                z_mean.abs() < 5.0,
+                "k {k} λ {lambda}: mean {mean} vs {expected_mean}"
+            );
             assert!(
                 z_variance.abs() < 5.0,
                 "k {k} λ {lambda}: variance {variance} vs {expected_variance}"
@@ -199,13 +207,17 @@ mod tests {
             let (mean, variance) = mean_and_variance(&sample);
             let e = (-kappa * step).exp();
             let expected_mean = theta + (x - theta) * e;
-            let expected_variance =
-                x * sigma * sigma * e * (1.0 - e) / kappa + theta * sigma * sigma * (1.0 - e).powi(2) / (2.0 * kappa);
+            let expected_variance = x * sigma * sigma * e * (1.0 - e) / kappa
+                + theta * sigma * sigma * (1.0 - e).powi(2) / (2.0 * kappa);
             let z = (mean - expected_mean) / (expected_variance / n as f64).sqrt();
             assert!(z.abs() < 5.0, "mean {mean} vs {expected_mean}");
             let m4 = sample.iter().map(|v| (v - mean).powi(4)).sum::<f64>() / n as f64;
-            let z_variance = (variance - expected_variance) / ((m4 - variance * variance) / n as f64).sqrt();
-            assert!(z_variance.abs() < 5.0, "variance {variance} vs {expected_variance}");
+            let z_variance =
+                (variance - expected_variance) / ((m4 - variance * variance) / n as f64).sqrt();
+            assert!(
+                z_variance.abs() < 5.0,
+                "variance {variance} vs {expected_variance}"
+            );
             assert!(sample.iter().all(|v| *v >= 0.0));
         }
     }

@@ -77,7 +77,8 @@ pub fn quantile_standard_error(sorted: &[f64], probability: f64) -> f64 {
     if upper <= lower {
         return f64::NAN;
     }
-    let sparsity = (quantile_of_sorted(sorted, upper) - quantile_of_sorted(sorted, lower)) / (upper - lower);
+    let sparsity =
+        (quantile_of_sorted(sorted, upper) - quantile_of_sorted(sorted, lower)) / (upper - lower);
     sparsity * (probability * (1.0 - probability) / n as f64).sqrt()
 }
 
@@ -98,7 +99,11 @@ pub fn summarize(values: &[f64]) -> SampleSummary {
             second += d2;
             fourth += d2 * d2;
         }
-        let variance = if count > 1 { second / (n - 1.0) } else { f64::NAN };
+        let variance = if count > 1 {
+            second / (n - 1.0)
+        } else {
+            f64::NAN
+        };
         (mean, variance, fourth / n)
     };
     let mean_se = (variance / n).sqrt();
@@ -158,9 +163,16 @@ mod tests {
             let p = q.probability;
             let expected = (p * (1.0 - p) / n as f64).sqrt() / normal.pdf(normal.inverse_cdf(p));
             let relative = (q.standard_error - expected).abs() / expected;
-            assert!(relative < 0.15, "p = {p}: {} vs {expected}", q.standard_error);
+            assert!(
+                relative < 0.15,
+                "p = {p}: {} vs {expected}",
+                q.standard_error
+            );
             // And the quantile itself within 5 of its standard errors.
-            assert!((q.value - normal.inverse_cdf(p)).abs() < 5.0 * expected, "p = {p}");
+            assert!(
+                (q.value - normal.inverse_cdf(p)).abs() < 5.0 * expected,
+                "p = {p}"
+            );
         }
     }
 
