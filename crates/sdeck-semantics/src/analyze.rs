@@ -657,11 +657,12 @@ impl<'a> Analyzer<'a> {
     }
 
     fn describe_operand(&self, e: &ast::Expr, d: &Dimension) -> String {
-        let text = match e {
-            ast::Expr::Name(i) => format!("`{}` ", i.name),
-            _ => String::new(),
-        };
-        format!("{text}({})", d.describe())
+        let text = self.source.get(e.span()).unwrap_or("").trim();
+        if text.is_empty() || text.chars().count() > 40 {
+            format!("a term in {}", d.describe())
+        } else {
+            format!("`{text}` ({})", d.describe())
+        }
     }
 
     fn resolve_power(
