@@ -1,0 +1,154 @@
+//! The parser recovers at statement starts, reports one clear error per bad statement,
+//! and survives hostile input (deep nesting, huge lines, NUL bytes) without panicking.
+
+use sdeck_syntax::ast::{Differential, Sign, StatementKind};
+use sdeck_syntax::{parse, Encoding, LineIndex};
+
+fn error_lines(text: &str) -> Vec<(u32, String)> {
+    let file = parse(text);
+    let index = LineIndex::new(text);
+    file.diagnostics
+        .iter()
+        .map(|d| {
+            (
+                index.line_col(text, d.span.start, Encoding::Chars).line + 1,
+                d.message.clone(),
+            )
+        })
+        .collect()
+}
+
+#[test]
+fn a_missing_bracket_and_an_unclosed_parenthesis_are_both_reported() {
+    let text = "param kappa = 1.8 [1/year > 0\nparam level = 3%\nnoise W\n\
+                let gap = (level - 1\nstate r = 2%\ndr = kappa * (level - r) dt + 0.01 dW\n";
+    let errors = error_lines(text);
+    assert_eq!(errors.len(), 2, "{errors:?}");
+    assert_eq!(errors[0].0, 1);
+    assert!(
+        errors[0].1.contains("`]` expected to close"),
+        "{}",
+        errors[0].1
+    );
+    assert_eq!(errors[1].0, 4);
+    assert!(
+        errors[1].1.contains("`)` expected to close"),
+        "{}",
+        errors[1].1
+    );
+    // The statements between and after still parse.
+    assert_eq!(parse(text).statements.len(), 4);
+}
+
+#[test]
+fn the_error_points_at_the_opening_bracket() {
+    let text = "param vol = 6bp [1/sqrt(day) > 0\n";
+    let file = parse(text);
+    assert_eq!(file.diagnostics.len(), 1);
+    assert_eq!(&text[file.diagnostics[0].span.clone()], "[");
+}
+
+#[test]
+fn every_bad_statement_gets_one_error_and_the_rest_is_kept() {
+    let text = "param a = \nparam b = 2\nstate x = 1 >\nnoise W\ndx = -b * x dt + dW\n";
+    let file = parse(text);
+    assert_eq!(file.diagnostics.len(), 2);
+    assert_eq!(file.statements.len(), 3);
+}
+
+#[test]
+fn both_product_forms_of_a_differential_parse_alike() {
+    let with_star = parse("dx = k * x * dt + v * dW\n");
+    let juxtaposed = parse("dx = k * x dt + v dW\n");
+    assert!(with_star.diagnostics.is_empty() && juxtaposed.diagnostics.is_empty());
+    let terms = |f: &sdeck_syntax::ast::SourceFile| match &f.statements[0].kind {
+        StatementKind::Equation(eq) => eq
+            .terms
+            .iter()
+            .map(|t| (t.sign, matches!(t.differential, Differential::Time(_))))
+            .collect::<Vec<_>>(),
+        _ => Vec::new(),
+    };
+    assert_eq!(
+        terms(&with_star),
+        vec![(Sign::Plus, true), (Sign::Plus, false)]
+    );
+    assert_eq!(terms(&with_star), terms(&juxtaposed));
+}
+
+#[test]
+fn percent_and_basis_points_are_exact() {
+    let file = parse("param a = 3.5%\nparam b = 25bp\nparam c = 1e-3\nparam d = -0.1%\n");
+    let values: Vec<f64> = file
+        .statements
+        .iter()
+        .filter_map(|s| match &s.kind {
+            StatementKind::Param(d) => Some(d.value.value),
+            _ => None,
+        })
+        .collect();
+    assert_eq!(values, vec![0.035, 0.0025, 0.001, -0.001]);
+}
+
+#[test]
+fn a_term_without_differential_is_reported_and_the_equation_kept() {
+    let file = parse("dx = -k * x + v dW\n");
+    assert_eq!(file.diagnostics.len(), 1);
+    assert!(file.diagnostics[0].message.contains("no differential"));
+    assert_eq!(file.statements.len(), 1);
+}
+
+#[test]
+fn reserved_names_cannot_be_declared() {
+    let errors = error_lines("param pi = 3\nparam t = 1\nparam dt = 1\n");
+    assert_eq!(errors.len(), 3);
+}
+
+#[test]
+fn deep_nesting_is_an_error_not_a_stack_overflow() {
+    let text = format!("let x = {}1{}\n", "(".repeat(10_000), ")".repeat(10_000));
+    let errors = error_lines(&text);
+    assert_eq!(errors.len(), 1);
+    assert!(errors[0].1.contains("nest deeper"));
+}
+
+#[test]
+fn a_ten_megabyte_line_is_an_error() {
+    let text = format!("let x = {}1\nparam y = 2\n", "1 + ".repeat(2_500_000));
+    let file = parse(&text);
+    assert_eq!(file.diagnostics.len(), 1);
+    assert!(file.diagnostics[0].message.contains("bytes long"));
+    assert_eq!(file.statements.len(), 1);
+}
+
+#[test]
+fn long_but_legal_chains_stop_at_the_node_limit() {
+    let text = format!("let x = {}1\n", "1 + ".repeat(5_000));
+    let errors = error_lines(&text);
+    assert_eq!(errors.len(), 1);
+    assert!(errors[0].1.contains("expression nodes"));
+}
+
+#[test]
+fn nul_and_control_characters_are_named() {
+    let errors = error_lines("param a = 1\u{0}\n");
+    assert_eq!(errors.len(), 1);
+    assert!(errors[0].1.contains("U+0000"), "{}", errors[0].1);
+}
+
+#[test]
+fn greek_names_parse_and_columns_count_characters() {
+    let text = "param κ = 1 [1/year]\nparam θ = 2 [1/year] > 0\nstate σ = x\n";
+    let file = parse(text);
+    assert_eq!(file.statements.len(), 2);
+    let d = &file.diagnostics[0];
+    let index = LineIndex::new(text);
+    let at = index.line_col(text, d.span.start, Encoding::Chars);
+    assert_eq!((at.line, at.col), (2, 10));
+}
+
+#[test]
+fn half_open_intervals_parse() {
+    let file = parse("param a = 0.5 in [0, 1)\nparam b = 2 in (0, inf)\n");
+    assert!(file.diagnostics.is_empty(), "{:?}", file.diagnostics);
+}
