@@ -734,9 +734,9 @@ mod tests {
         assert!((end[0] - 0.03 * (-3.0_f64).exp()).abs() < 1e-11);
     }
 
-    /// An interval far shorter than the spacing of floating-point numbers near t₀ still
-    /// integrates: y' = 1 over [10⁶, 10⁶ + 10⁻⁹] adds the length of the interval (common
-    /// practice, no source).
+    /// An interval only a few floating-point spacings long near t₀ still integrates:
+    /// y' = 1 over [10⁶, 10⁶ + 10⁻⁹] adds the length of the interval (common practice,
+    /// no source).
     #[test]
     fn interval_below_time_resolution() {
         let end = integrate(
