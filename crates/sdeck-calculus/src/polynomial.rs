@@ -34,7 +34,7 @@ use std::collections::HashMap;
 
 use nalgebra::{DMatrix, DVector};
 
-use crate::linear_system::{eigenvalues, matrix_exponential};
+use crate::linear_system::{is_stable, matrix_exponential};
 
 /// Largest monomial basis (number of moments) the engine will build: the matrix
 /// exponential costs O(size³). C(n + 4, 4) stays below it up to n = 11 states at order 4.
@@ -406,10 +406,7 @@ impl PolynomialSystem {
         let origin = if order == 0 || n == 0 {
             DVector::zeros(n)
         } else {
-            let stable = eigenvalues(&self.drift_matrix)
-                .iter()
-                .all(|(re, _)| *re < 0.0);
-            if !stable {
+            if !is_stable(&self.drift_matrix) {
                 return None;
             }
             -self.drift_matrix.clone().lu().solve(&self.drift_constant)?
@@ -428,10 +425,7 @@ impl PolynomialSystem {
         for degree in 2..=order {
             let (start, end) = basis.degree_range(degree);
             let block = generator.view((start, start), (end - start, end - start));
-            let stable = eigenvalues(&block.into_owned())
-                .iter()
-                .all(|(re, _)| *re < 0.0);
-            if !stable {
+            if !is_stable(&block.into_owned()) {
                 return None;
             }
         }
