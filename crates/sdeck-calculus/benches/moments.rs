@@ -60,7 +60,10 @@ fn time_per_call(iterations: u32, mut call: impl FnMut()) -> f64 {
 }
 
 fn main() {
-    println!("{:<22} {:>14} {:>18}", "model", "derive ns/call", "moments_at ns/call");
+    println!(
+        "{:<22} {:>14} {:>18}",
+        "model", "derive ns/call", "moments_at ns/call"
+    );
     for (name, source, iterations) in [
         ("one-state OU", ONE_STATE_OU, 20_000),
         ("three-state linear", THREE_STATE_LINEAR, 2_000),

@@ -27,7 +27,12 @@ fn main() {
     }
     let moments = sdeck_calculus::moments_at(model, &derivation, model.horizon);
     for (i, (state, law)) in model.states.iter().zip(&derivation.states).enumerate() {
-        println!("\n{}: {} by {}", state.name, law.family.as_str(), law.method.as_str());
+        println!(
+            "\n{}: {} by {}",
+            state.name,
+            law.family.as_str(),
+            law.method.as_str()
+        );
         println!("  why: {}", law.reason);
         let f = &law.formulas;
         for (label, text) in [
