@@ -1,0 +1,159 @@
+//! Dimensions and clock conversion as a model sees them. Day counts: ACT/365 Fixed
+//! (day = year/365) and the 252-business-day year (common practice, no source).
+
+use sdeck_semantics::{analyze, Analysis};
+
+fn rules_at_lines(text: &str) -> Vec<(usize, &'static str)> {
+    let a = analyze(text, "test");
+    let mut out: Vec<(usize, &'static str)> = a
+        .diagnostics
+        .iter()
+        .filter(|d| d.rule != "unit-scale")
+        .map(|d| (text[..d.span.start].matches('\n').count() + 1, d.rule))
+        .collect();
+    out.sort();
+    out
+}
+
+fn param(a: &Analysis, name: &str) -> f64 {
+    a.model
+        .params
+        .iter()
+        .find(|p| p.name == name)
+        .map(|p| p.value)
+        .unwrap_or(f64::NAN)
+}
+
+#[test]
+fn a_yearly_diffusion_on_a_dimensionless_state_is_a_mismatch_at_the_equation() {
+    let text = "param k = 1 [1/year]\nparam vol = 0.2 [1/year]\nnoise W\nstate x = 0\n\
+                dx = -k * x dt + vol dW\n";
+    assert_eq!(rules_at_lines(text), vec![(5, "dimension-mismatch")]);
+    let a = analyze(text, "t");
+    let d = a
+        .diagnostics
+        .iter()
+        .find(|d| d.rule == "dimension-mismatch");
+    let message = d.map(|d| d.message.clone()).unwrap_or_default();
+    assert!(message.contains("did you mean [1/sqrt(year)]"), "{message}");
+    // The fix rewrites the unit of `vol`.
+    let fix = d
+        .and_then(|d| d.fixes.first())
+        .map(|f| f.edits[0].new_text.clone());
+    assert_eq!(fix.as_deref(), Some("1/sqrt(year)"));
+}
+
+#[test]
+fn conversions_to_a_year_clock_follow_act365_and_252_business_days() {
+    let text = "param a = 0.2 [1/sqrt(day)]\nparam b = 1 [1/day]\nparam c = 1 [1/bday]\n\
+                param d = 1 [1/month]\nparam e = 1 [1/week]\nparam f = 2 [day]\n\
+                param g = 0.01 [1/sqrt(bday)]\n";
+    let a = analyze(text, "t");
+    assert_eq!(param(&a, "a"), 0.2 * 365f64.sqrt());
+    assert_eq!(param(&a, "b"), 365.0);
+    assert_eq!(param(&a, "c"), 252.0);
+    assert_eq!(param(&a, "d"), 12.0);
+    assert!((param(&a, "e") - 365.0 / 7.0).abs() < 1e-12);
+    assert!((param(&a, "f") - 2.0 / 365.0).abs() < 1e-15);
+    assert!((param(&a, "g") - 0.01 * 252f64.sqrt()).abs() < 1e-15);
+    // Every converted value is announced as a hint.
+    let hints = a
+        .diagnostics
+        .iter()
+        .filter(|d| d.rule == "unit-scale")
+        .count();
+    assert_eq!(hints, 7);
+}
+
+#[test]
+fn a_daily_clock_converts_yearly_values_and_the_horizon() {
+    let text =
+        "clock day\nhorizon 6 month\nparam k = 3.65 [1/year]\nparam v = 0.365 [1/sqrt(year)]\n";
+    let a = analyze(text, "t");
+    assert_eq!(a.model.clock.unit, "day");
+    assert!((a.model.horizon - 182.5).abs() < 1e-12);
+    assert!((param(&a, "k") - 0.01).abs() < 1e-15);
+    assert!((param(&a, "v") - 0.365 / 365f64.sqrt()).abs() < 1e-15);
+}
+
+#[test]
+fn horizons_convert_to_the_clock() {
+    let horizon = |text: &str| analyze(text, "t").model.horizon;
+    assert_eq!(horizon("horizon 6 month\n"), 0.5);
+    assert_eq!(horizon("horizon 2\n"), 2.0);
+    assert_eq!(horizon("clock month\nhorizon 2 year\n"), 24.0);
+    assert_eq!(horizon("horizon 126 bday\n"), 0.5);
+}
+
+#[test]
+fn a_price_in_a_declared_currency_checks_clean() {
+    let text = "unit EUR\nparam mu = 4% [1/year]\nparam sigma = 25% [1/sqrt(year)] > 0\n\
+                param floor = 80 [EUR]\nnoise W\nstate S = 100 [EUR] > 0\n\
+                dS = mu * S dt + sigma * S dW\nlet cushion = S - floor\n\
+                expect mean(S, 1 year) in [100 EUR, 110 EUR]\n";
+    let a = analyze(text, "t");
+    let loud: Vec<_> = a
+        .diagnostics
+        .iter()
+        .filter(|d| d.rule != "unused")
+        .map(|d| d.message.clone())
+        .collect();
+    assert!(loud.is_empty(), "{loud:?}");
+}
+
+#[test]
+fn a_let_that_mixes_dimensions_is_an_error_at_the_let() {
+    let text = "param k = 1 [1/year]\nparam v = 0.1 [1/sqrt(year)]\nlet bad = k + v\n\
+                noise W\nstate x = 0\ndx = -k * x dt + v dW\n";
+    assert_eq!(
+        rules_at_lines(text),
+        vec![(3, "dimension-mismatch"), (3, "unused")]
+    );
+}
+
+#[test]
+fn a_sound_let_used_where_it_does_not_fit_is_an_error_at_the_use() {
+    let text = "param k = 1 [1/year]\nlet speed = 2 * k\nnoise W\nstate x = 0\n\
+                dx = -k * x dt + speed dW\n";
+    let got = rules_at_lines(text);
+    assert_eq!(got, vec![(5, "dimension-mismatch")]);
+}
+
+#[test]
+fn exponents_need_constant_pure_numbers() {
+    let text = "param k = 1 [1/year]\nparam v = 0.1 [1/sqrt(year)]\nnoise W\nstate x = 1\n\
+                dx = -k * x^t dt + v dW\n";
+    assert_eq!(rules_at_lines(text), vec![(5, "dimension-mismatch")]);
+    let sound = "param k = 1 [1/year]\nparam v = 0.1 [1/sqrt(year)]\nnoise W\nstate x = 1\n\
+                 dx = -k * x^3 dt + v * x^1.5 dW\n";
+    assert_eq!(rules_at_lines(sound), vec![]);
+}
+
+#[test]
+fn functions_need_dimensionless_arguments() {
+    let text = "param freq = 1 [1/year]\nparam k = 1 [1/year]\nparam v = 0.1 [1/sqrt(year)]\n\
+                noise W\nstate x = 1\ndx = k * (sin(2 * pi * t) - x) dt + v dW\n";
+    assert_eq!(
+        rules_at_lines(text),
+        vec![(1, "unused"), (6, "dimension-mismatch")]
+    );
+    let sound = text.replace("sin(2 * pi * t)", "sin(2 * pi * freq * t)");
+    assert_eq!(rules_at_lines(&sound), vec![]);
+}
+
+#[test]
+fn bounds_are_in_the_unit_of_their_declaration() {
+    // 0.02 per sqrt(day) is 0.38 per sqrt(year): inside a bound of (0, 0.05) written per day.
+    let text = "param v = 0.02 [1/sqrt(day)] in (0, 0.05)\n";
+    let a = analyze(text, "t");
+    assert!(a.diagnostics.iter().all(|d| d.rule != "bound-violated"));
+    let outside = analyze("param v = 0.06 [1/sqrt(day)] in (0, 0.05)\n", "t");
+    assert_eq!(
+        outside
+            .diagnostics
+            .iter()
+            .filter(|d| d.rule == "bound-violated")
+            .count(),
+        1
+    );
+}
