@@ -1,21 +1,37 @@
 //! `sdeck check PATH...`: check files and folders, print the findings, set the exit status.
+//!
+//! Exit status: 0 when nothing fails, 1 when a finding fails under the deny level (errors,
+//! or warnings too with `--deny warnings` or `[check] deny = "warnings"`), 2 when a path
+//! cannot be read, a project file is broken, a report cannot be written, or the command
+//! line is wrong.
 
-use crate::files::{self, SourceText};
-use crate::render;
+use crate::files::{self, SourceText, Target};
+use crate::{github, junit, render, sarif};
 use clap::{Args, ValueEnum};
-use codespan_reporting::term::termcolor::{ColorChoice, StandardStream};
+use codespan_reporting::term::termcolor::{ColorChoice, NoColor, StandardStream, WriteColor};
 use rayon::prelude::*;
 use sdeck_checks::{check, FileCheck, RuleSettings};
 use sdeck_diagnostics::{rules, Diagnostic, Severity};
+use sdeck_project::{DenyLevel, Project, ProjectCache};
 use sdeck_syntax::LineIndex;
-use serde_json::json;
+use std::io::Write;
 use std::path::PathBuf;
 use std::process::ExitCode;
+use std::sync::Arc;
 
+/// The report formats, for standard output (`--format`) and files (`--output`).
 #[derive(Clone, Copy, Debug, PartialEq, Eq, ValueEnum)]
 pub enum Format {
+    /// Source snippets with underlines, for people.
     Human,
+    /// One JSON document: `{"version": 1, "files": N, "diagnostics": [...]}`.
     Json,
+    /// SARIF 2.1.0, the OASIS interchange format for static analysis results.
+    Sarif,
+    /// Workflow annotation lines (`::error file=...,line=...::message`).
+    Github,
+    /// JUnit XML, one test case per checked file.
+    Junit,
 }
 
 #[derive(Clone, Copy, Debug, PartialEq, Eq, ValueEnum)]
@@ -26,23 +42,76 @@ pub enum Deny {
     Warnings,
 }
 
-#[derive(Args)]
-pub struct CheckArgs {
-    /// Model files or folders.
-    #[arg(required = true)]
-    paths: Vec<PathBuf>,
-    /// Output format.
-    #[arg(long, value_enum, default_value_t = Format::Human)]
-    format: Format,
-    /// Which findings make the exit status 1.
-    #[arg(long, value_enum, default_value_t = Deny::Errors)]
-    deny: Deny,
+/// One `--output FORMAT=FILE`.
+#[derive(Clone, Debug)]
+pub struct OutputTarget {
+    pub format: Format,
+    pub file: PathBuf,
 }
 
-/// One checked file with what the output needs.
+fn parse_output(text: &str) -> Result<OutputTarget, String> {
+    let Some((format, file)) = text.split_once('=') else {
+        return Err(format!(
+            "`{text}` names no format: write FORMAT=FILE, e.g. `sarif=report.sarif`"
+        ));
+    };
+    let format = Format::from_str(format.trim(), true).map_err(|_| {
+        format!("`{format}` is not a format; use human, json, sarif, github or junit")
+    })?;
+    if file.is_empty() {
+        return Err(format!("`{text}` names no file"));
+    }
+    Ok(OutputTarget {
+        format,
+        file: PathBuf::from(file),
+    })
+}
+
+#[derive(Args)]
+pub struct CheckArgs {
+    /// Model files or folders; `-` reads one model from standard input.
+    paths: Vec<PathBuf>,
+    /// Format of the report on standard output.
+    #[arg(long, value_enum, default_value_t = Format::Human)]
+    format: Format,
+    /// Also write a report to a file, as FORMAT=FILE (e.g. `sarif=report.sarif`);
+    /// repeat for several reports from one run.
+    #[arg(long = "output", value_name = "FORMAT=FILE", value_parser = parse_output)]
+    outputs: Vec<OutputTarget>,
+    /// Which findings make the exit status 1 [default: the project's `[check] deny`, else
+    /// errors].
+    #[arg(long, value_enum)]
+    deny: Option<Deny>,
+    /// Read the model from standard input and check it as if it were saved at this path:
+    /// the path is shown in reports and chooses the project file.
+    #[arg(long, value_name = "PATH")]
+    stdin_name: Option<PathBuf>,
+}
+
+/// One checked file with what the outputs need.
 pub struct Checked {
     pub source: SourceText,
+    /// Sorted by position.
     pub diagnostics: Vec<Diagnostic>,
+    /// 1-based (line, column) of each diagnostic's start and end; columns count characters.
+    pub positions: Vec<render::Place>,
+    /// The deny level that decides whether this file fails.
+    pub deny: Deny,
+}
+
+impl Checked {
+    /// Whether a diagnostic fails the check under this file's deny level.
+    pub fn fails(&self, d: &Diagnostic) -> bool {
+        match self.deny {
+            Deny::Errors => d.severity == Severity::Error,
+            Deny::Warnings => d.severity >= Severity::Warning,
+        }
+    }
+
+    /// Whether any diagnostic of this file fails the check.
+    pub fn failed(&self) -> bool {
+        self.diagnostics.iter().any(|d| self.fails(d))
+    }
 }
 
 /// Checks one text: the analysis plus the report of invalid UTF-8.
@@ -50,120 +119,233 @@ pub fn check_source(source: SourceText, settings: &RuleSettings) -> (Checked, Fi
     let result = check(&source.text, &files::stem(&source.path), settings);
     let mut diagnostics = result.diagnostics.clone();
     if let Some(at) = source.invalid_utf8_at {
-        let end = source.text[at..]
-            .char_indices()
-            .nth(1)
+        let end = source
+            .text
+            .get(at..)
+            .and_then(|rest| rest.char_indices().nth(1))
             .map(|(i, _)| at + i)
             .unwrap_or(source.text.len());
-        diagnostics.insert(
-            0,
-            Diagnostic::new(
-                &rules::SYNTAX,
-                at..end,
-                format!("the file is not valid UTF-8 (first bad byte at offset {at}); it was read with the bad bytes replaced"),
-            )
-            .with_help("save the file as UTF-8"),
-        );
+        let diagnostic = Diagnostic::new(
+            &rules::SYNTAX,
+            at..end,
+            format!("the file is not valid UTF-8 (first bad byte at offset {at}); it was read with the bad bytes replaced"),
+        )
+        .with_help("save the file as UTF-8");
+        if settings
+            .severity(rules::SYNTAX.name, rules::SYNTAX.default_severity)
+            .is_some()
+        {
+            diagnostics.insert(0, diagnostic);
+        }
     }
+    let index = LineIndex::new(&source.text);
+    let mut located: Vec<(render::Place, Diagnostic)> = diagnostics
+        .into_iter()
+        .map(|d| (render::position(&source.text, &index, &d), d))
+        .collect();
+    // Sorted by position; the sort is stable, so findings at one place keep the order
+    // of the analysis.
+    located.sort_by_key(|(position, _)| *position);
+    let (positions, diagnostics) = located.into_iter().unzip();
     (
         Checked {
             source,
             diagnostics,
+            positions,
+            deny: Deny::Errors,
         },
         result,
     )
 }
 
+fn deny_for(cli: Option<Deny>, project: Option<&Project>) -> Deny {
+    match (cli, project.and_then(|p| p.deny)) {
+        (Some(deny), _) => deny,
+        (None, Some(DenyLevel::Warnings)) => Deny::Warnings,
+        (None, Some(DenyLevel::Errors)) | (None, None) => Deny::Errors,
+    }
+}
+
+fn check_target(target: &Target, cli_deny: Option<Deny>) -> Result<Checked, String> {
+    let source = files::read(&target.path)?;
+    Ok(finish_one(source, target.project.as_deref(), cli_deny))
+}
+
+fn finish_one(source: SourceText, project: Option<&Project>, cli_deny: Option<Deny>) -> Checked {
+    let default_settings = RuleSettings::default();
+    let settings = project.map(|p| &p.settings).unwrap_or(&default_settings);
+    let (mut checked, _) = check_source(source, settings);
+    checked.deny = deny_for(cli_deny, project);
+    checked
+}
+
 pub fn run(args: CheckArgs) -> ExitCode {
-    let paths = match files::collect(&args.paths) {
-        Ok(p) => p,
+    let mut projects = ProjectCache::new();
+    let reads_stdin = args.paths.iter().any(|p| p.as_os_str() == "-")
+        || (args.paths.is_empty() && args.stdin_name.is_some());
+    if args.paths.is_empty() && args.stdin_name.is_none() {
+        eprintln!("sdeck: name the files or folders to check, or `-` with `--stdin-name PATH` to read standard input");
+        return ExitCode::from(2);
+    }
+    if args.paths.iter().filter(|p| p.as_os_str() == "-").count() > 1 {
+        eprintln!("sdeck: standard input can be read once: give `-` once");
+        return ExitCode::from(2);
+    }
+    let disk_paths: Vec<PathBuf> = args
+        .paths
+        .iter()
+        .filter(|p| p.as_os_str() != "-")
+        .cloned()
+        .collect();
+    let targets = match files::collect(&disk_paths, &mut projects) {
+        Ok(t) => t,
         Err(message) => {
             eprintln!("sdeck: {message}");
             return ExitCode::from(2);
         }
     };
-    let settings = RuleSettings::default();
-    let results: Vec<Result<Checked, String>> = paths
-        .par_iter()
-        .map(|path| files::read(path).map(|source| check_source(source, &settings).0))
-        .collect();
-    let mut checked = Vec::with_capacity(results.len());
-    for r in results {
-        match r {
-            Ok(c) => checked.push(c),
+    let mut checked: Vec<Checked> = Vec::with_capacity(targets.len() + 1);
+    let mut unreadable = false;
+    if reads_stdin {
+        let name = args
+            .stdin_name
+            .clone()
+            .unwrap_or_else(|| PathBuf::from("<stdin>"));
+        let project: Option<Arc<Project>> = match projects.project_for(&name) {
+            Ok(p) => p,
+            Err(e) => {
+                eprintln!("sdeck: {}", files::describe_project_error(e));
+                return ExitCode::from(2);
+            }
+        };
+        let source = match files::read_stdin(&files::display(&name)) {
+            Ok(s) => s,
             Err(message) => {
                 eprintln!("sdeck: {message}");
                 return ExitCode::from(2);
             }
+        };
+        // An excluded name is excluded on standard input too: an editor or hook then
+        // agrees with the folder run.
+        if !project.as_ref().is_some_and(|p| p.is_excluded(&name)) {
+            checked.push(finish_one(source, project.as_deref(), args.deny));
         }
     }
+    let results: Vec<Result<Checked, String>> = targets
+        .par_iter()
+        .map(|target| check_target(target, args.deny))
+        .collect();
+    for result in results {
+        match result {
+            Ok(c) => checked.push(c),
+            Err(message) => {
+                eprintln!("sdeck: {message}");
+                unreadable = true;
+            }
+        }
+    }
+    // Stable: a path named twice keeps both entries, in argument order.
     checked.sort_by(|a, b| a.source.path.cmp(&b.source.path));
-    let output = match args.format {
-        Format::Human => print_human(&checked),
-        Format::Json => print_json(&checked),
-    };
-    if let Err(e) = output {
+
+    let mut status_two = unreadable;
+    for output in &args.outputs {
+        let written = std::fs::File::create(&output.file).and_then(|file| {
+            let mut writer = std::io::BufWriter::new(file);
+            write_report(output.format, &checked, &mut NoColor::new(&mut writer))?;
+            writer.flush()
+        });
+        if let Err(e) = written {
+            eprintln!(
+                "sdeck: cannot write the {} report to `{}`: {e}",
+                format_name(output.format),
+                output.file.display()
+            );
+            status_two = true;
+        }
+    }
+    let color =
+        if std::io::IsTerminal::is_terminal(&std::io::stdout()) && args.format == Format::Human {
+            ColorChoice::Auto
+        } else {
+            ColorChoice::Never
+        };
+    let mut stdout = StandardStream::stdout(color);
+    let printed = write_report(args.format, &checked, &mut stdout).and_then(|()| stdout.flush());
+    if let Err(e) = printed {
         if e.kind() != std::io::ErrorKind::BrokenPipe {
             eprintln!("sdeck: cannot write the report: {e}");
-            return ExitCode::from(2);
+            status_two = true;
         }
     }
-    let fails = |d: &Diagnostic| match args.deny {
-        Deny::Errors => d.severity == Severity::Error,
-        Deny::Warnings => d.severity >= Severity::Warning,
-    };
-    if checked.iter().flat_map(|c| &c.diagnostics).any(fails) {
+    if status_two {
+        ExitCode::from(2)
+    } else if checked.iter().any(Checked::failed) {
         ExitCode::from(1)
     } else {
         ExitCode::SUCCESS
     }
 }
 
-fn print_human(checked: &[Checked]) -> std::io::Result<()> {
-    let mut out = StandardStream::stdout(if std::io::IsTerminal::is_terminal(&std::io::stdout()) {
-        ColorChoice::Auto
-    } else {
-        ColorChoice::Never
-    });
-    let mut counts = [0usize; 4];
-    for c in checked {
-        render::human(&mut out, &c.source.path, &c.source.text, &c.diagnostics)?;
-        for d in &c.diagnostics {
-            counts[d.severity as usize] += 1;
-        }
+fn format_name(format: Format) -> &'static str {
+    match format {
+        Format::Human => "human",
+        Format::Json => "json",
+        Format::Sarif => "sarif",
+        Format::Github => "github",
+        Format::Junit => "junit",
     }
-    use std::io::Write;
-    writeln!(
-        out,
-        "{} file{} checked: {} error{}, {} warning{}, {} hint{}",
-        checked.len(),
-        if checked.len() == 1 { "" } else { "s" },
-        counts[Severity::Error as usize],
-        if counts[Severity::Error as usize] == 1 { "" } else { "s" },
-        counts[Severity::Warning as usize],
-        if counts[Severity::Warning as usize] == 1 { "" } else { "s" },
-        counts[Severity::Hint as usize] + counts[Severity::Info as usize],
-        if counts[Severity::Hint as usize] + counts[Severity::Info as usize] == 1 { "" } else { "s" },
-    )
 }
 
-fn print_json(checked: &[Checked]) -> std::io::Result<()> {
-    let mut entries = Vec::new();
+/// Writes one report of every checked file in `format`.
+pub fn write_report(
+    format: Format,
+    checked: &[Checked],
+    out: &mut dyn WriteColor,
+) -> std::io::Result<()> {
+    match format {
+        Format::Human => write_human(checked, out),
+        // Serialised first, so that a closed pipe is reported as such by the write.
+        Format::Json => write_json(&render::json_report(checked), out),
+        Format::Sarif => write_json(&sarif::report(checked), out),
+        Format::Github => out.write_all(github::report(checked).as_bytes()),
+        Format::Junit => out.write_all(junit::report(checked).as_bytes()),
+    }
+}
+
+fn write_json(value: &serde_json::Value, out: &mut dyn WriteColor) -> std::io::Result<()> {
+    let mut text = serde_json::to_string_pretty(value).map_err(std::io::Error::other)?;
+    text.push('\n');
+    out.write_all(text.as_bytes())
+}
+
+fn plural(n: usize, word: &str) -> String {
+    if n == 1 {
+        format!("{n} {word}")
+    } else {
+        format!("{n} {word}s")
+    }
+}
+
+fn write_human(checked: &[Checked], out: &mut dyn WriteColor) -> std::io::Result<()> {
+    let mut errors = 0;
+    let mut warnings = 0;
+    let mut hints = 0;
     for c in checked {
-        let index = LineIndex::new(&c.source.text);
+        render::human(out, &c.source.path, &c.source.text, &c.diagnostics)?;
         for d in &c.diagnostics {
-            let located = render::locate(&c.source.path, &c.source.text, &index, d);
-            entries.push(((located.start, located.end), render::json_entry(&located)));
+            match d.severity {
+                Severity::Error => errors += 1,
+                Severity::Warning => warnings += 1,
+                Severity::Info | Severity::Hint => hints += 1,
+            }
         }
     }
-    // Files are already in order; within a file, by position.
-    let value = json!({
-        "version": 1,
-        "files": checked.len(),
-        "diagnostics": entries.into_iter().map(|(_, v)| v).collect::<Vec<_>>(),
-    });
-    use std::io::Write;
-    let mut out = std::io::stdout().lock();
-    serde_json::to_writer_pretty(&mut out, &value).map_err(std::io::Error::other)?;
-    writeln!(out)
+    writeln!(
+        out,
+        "{} checked: {}, {}, {}",
+        plural(checked.len(), "file"),
+        plural(errors, "error"),
+        plural(warnings, "warning"),
+        plural(hints, "hint"),
+    )
 }

@@ -1,8 +1,11 @@
 //! Finding model files and reading them as text, reporting what cannot be read.
 
+use sdeck_project::{Project, ProjectCache, ProjectError};
+use std::io::Read;
 use std::path::{Path, PathBuf};
+use std::sync::Arc;
 
-/// A model file read from disk.
+/// A model file read from disk or from standard input.
 pub struct SourceText {
     /// The path as shown in outputs.
     pub path: String,
@@ -12,28 +15,103 @@ pub struct SourceText {
     pub invalid_utf8_at: Option<usize>,
 }
 
-/// Expands files and folders into the list of model files, sorted per argument.
-pub fn collect(paths: &[PathBuf]) -> Result<Vec<PathBuf>, String> {
+/// A file to check and the project that governs it.
+pub struct Target {
+    pub path: PathBuf,
+    pub project: Option<Arc<Project>>,
+}
+
+/// Expands files and folders into the model files to check, each with its project.
+///
+/// - A path named on the command line (file or folder) is governed by its nearest
+///   `sdeck.toml`; a named file that this project excludes is dropped, so a hook that
+///   passes changed files behaves like a run over the folder.
+/// - A folder is searched recursively for `*.sde`. Each sub-folder is first tested
+///   against the project of the folder that holds it: one it excludes is not entered,
+///   whatever project files lie inside. Each file found is then tested against its own
+///   (nearest) project. Hidden folders (`.git`, ...) are skipped. Files are sorted within
+///   each argument.
+/// - A file named explicitly is checked whatever its extension.
+///
+/// A path that does not exist or a broken project file is an error.
+pub fn collect(paths: &[PathBuf], projects: &mut ProjectCache) -> Result<Vec<Target>, String> {
     let mut out = Vec::new();
     for path in paths {
         let meta = std::fs::metadata(path)
             .map_err(|e| format!("cannot read `{}`: {e}", path.display()))?;
-        if meta.is_dir() {
-            let mut found: Vec<PathBuf> = walkdir::WalkDir::new(path)
-                .follow_links(true)
-                .into_iter()
-                .filter_map(Result::ok)
-                .filter(|e| e.file_type().is_file())
-                .map(|e| e.into_path())
-                .filter(|p| p.extension().is_some_and(|x| x == "sde"))
-                .collect();
-            found.sort();
-            out.extend(found);
-        } else {
-            out.push(path.clone());
+        if !meta.is_dir() {
+            let project = projects.project_for(path).map_err(describe_project_error)?;
+            if !project.as_ref().is_some_and(|p| p.is_excluded(path)) {
+                out.push(Target {
+                    path: path.clone(),
+                    project,
+                });
+            }
+            continue;
         }
+        let mut broken: Option<ProjectError> = None;
+        let mut found: Vec<(PathBuf, Option<Arc<Project>>)> = Vec::new();
+        let walker = walkdir::WalkDir::new(path)
+            .follow_links(true)
+            .into_iter()
+            .filter_entry(|entry| {
+                if entry.depth() == 0 {
+                    return true;
+                }
+                if !entry.file_type().is_dir() {
+                    return true;
+                }
+                if is_hidden(entry.file_name()) {
+                    return false;
+                }
+                let Some(parent) = entry.path().parent() else {
+                    return true;
+                };
+                match projects.project_for_folder(parent) {
+                    Ok(Some(project)) => !project.excludes_folder(entry.path()),
+                    Ok(None) => true,
+                    Err(error) => {
+                        broken.get_or_insert(error);
+                        false
+                    }
+                }
+            });
+        let mut files: Vec<PathBuf> = walker
+            .filter_map(Result::ok)
+            .filter(|e| e.file_type().is_file())
+            .map(walkdir::DirEntry::into_path)
+            .filter(|p| p.extension().is_some_and(|x| x == "sde"))
+            .collect();
+        if let Some(error) = broken {
+            return Err(describe_project_error(error));
+        }
+        files.sort();
+        for file in files {
+            let folder = file.parent().unwrap_or(Path::new("."));
+            let project = projects
+                .project_for_folder(folder)
+                .map_err(describe_project_error)?;
+            if !project.as_ref().is_some_and(|p| p.is_excluded(&file)) {
+                found.push((file, project));
+            }
+        }
+        out.extend(
+            found
+                .into_iter()
+                .map(|(path, project)| Target { path, project }),
+        );
     }
     Ok(out)
+}
+
+fn is_hidden(name: &std::ffi::OsStr) -> bool {
+    name.to_str()
+        .is_some_and(|n| n.starts_with('.') && n != "." && n != "..")
+}
+
+/// The message for a broken project file.
+pub fn describe_project_error(error: ProjectError) -> String {
+    format!("broken project file {error}")
 }
 
 /// Reads a file; text that is not UTF-8 is kept (lossily) and the offset reported.
@@ -41,6 +119,16 @@ pub fn read(path: &Path) -> Result<SourceText, String> {
     let bytes =
         std::fs::read(path).map_err(|e| format!("cannot read `{}`: {e}", path.display()))?;
     Ok(from_bytes(display(path), bytes))
+}
+
+/// Reads standard input to its end, shown in outputs as `name`.
+pub fn read_stdin(name: &str) -> Result<SourceText, String> {
+    let mut bytes = Vec::new();
+    std::io::stdin()
+        .lock()
+        .read_to_end(&mut bytes)
+        .map_err(|e| format!("cannot read standard input: {e}"))?;
+    Ok(from_bytes(name.to_string(), bytes))
 }
 
 pub fn from_bytes(path: String, bytes: Vec<u8>) -> SourceText {

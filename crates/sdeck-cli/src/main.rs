@@ -3,8 +3,11 @@
 
 mod check;
 mod files;
+mod github;
+mod junit;
 mod moments;
 mod render;
+mod sarif;
 
 use clap::{Parser, Subcommand};
 use std::process::ExitCode;
@@ -37,6 +40,9 @@ enum Command {
     Explain {
         /// The rule's name (kebab-case); omit to list all rules.
         rule: Option<String>,
+        /// Print the whole rule manual in Markdown (the text of docs/rules.md).
+        #[arg(long, conflicts_with = "rule")]
+        markdown: bool,
     },
 }
 
@@ -52,7 +58,12 @@ fn main() -> ExitCode {
     match cli.command {
         Command::Check(args) => check::run(args),
         Command::Moments(args) => moments::run(args),
-        Command::Explain { rule } => explain(rule.as_deref()),
+        Command::Explain { rule, markdown: true } => {
+            debug_assert!(rule.is_none());
+            print!("{}", render::rules_markdown());
+            ExitCode::SUCCESS
+        }
+        Command::Explain { rule, markdown: false } => explain(rule.as_deref()),
     }
 }
 
@@ -62,7 +73,12 @@ fn explain(rule: Option<&str>) -> ExitCode {
         None => {
             let width = rules::ALL.iter().map(|r| r.name.len()).max().unwrap_or(0);
             for r in rules::ALL {
-                println!("{:width$}  {:7}  {}", r.name, r.default_severity.as_str(), r.summary);
+                println!(
+                    "{:width$}  {:7}  {}",
+                    r.name,
+                    r.default_severity.as_str(),
+                    r.summary
+                );
             }
             ExitCode::SUCCESS
         }

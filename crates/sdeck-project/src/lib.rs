@@ -104,9 +104,9 @@ impl Project {
             file: file.clone(),
             message,
         };
-        let table: toml::Table = text
-            .parse()
-            .map_err(|e: toml::de::Error| fail(format!("not valid TOML: {}", e.to_string().trim_end())))?;
+        let table: toml::Table = text.parse().map_err(|e: toml::de::Error| {
+            fail(format!("not valid TOML: {}", e.to_string().trim_end()))
+        })?;
         let mut settings = RuleSettings::default();
         let mut deny = None;
         let mut include = None;
@@ -188,6 +188,17 @@ impl Project {
         }
     }
 
+    /// Whether a folder is left out of a folder search by this project's `exclude` (the
+    /// project of the folder's parent decides: a folder's own sdeck.toml governs what is
+    /// inside it, not whether it is searched). `include` applies to files only.
+    pub fn excludes_folder(&self, folder: &Path) -> bool {
+        let folder = absolute(folder);
+        match folder.strip_prefix(&self.root) {
+            Ok(relative) if !relative.as_os_str().is_empty() => self.exclude.is_match(relative),
+            _ => false,
+        }
+    }
+
     /// Whether `[check] deny = "warnings"`: warnings make `sdeck check` fail.
     pub fn deny_warnings(&self) -> bool {
         self.deny == Some(DenyLevel::Warnings)
@@ -236,7 +247,12 @@ fn parse_globs(key: &str, value: &toml::Value) -> Result<GlobSet, String> {
         let text = item
             .as_str()
             .ok_or_else(|| format!("`{key}` must hold strings, found {item}"))?;
-        builder.add(compile_glob(text).map_err(|e| format!("`{key}`: the glob \"{text}\" is not valid: {e}"))?);
+        let invalid = |e: globset::Error| format!("`{key}`: the glob \"{text}\" is not valid: {e}");
+        let (glob, folder) = compile_glob(text).map_err(invalid)?;
+        builder.add(glob);
+        if let Some(folder) = folder {
+            builder.add(folder);
+        }
     }
     builder
         .build()
@@ -245,14 +261,23 @@ fn parse_globs(key: &str, value: &toml::Value) -> Result<GlobSet, String> {
 
 /// One glob of `[files]`: `*` and `?` stay within a path segment, `**` crosses them. A
 /// leading `./` and a trailing `/` are dropped so `./flawed/` means the folder `flawed`.
-fn compile_glob(text: &str) -> Result<Glob, globset::Error> {
+/// For `DIR/**` the folder `DIR` itself is returned too, so a folder search can skip it
+/// without entering it.
+fn compile_glob(text: &str) -> Result<(Glob, Option<Glob>), globset::Error> {
     let trimmed = text.trim();
     let trimmed = trimmed.strip_prefix("./").unwrap_or(trimmed);
     let trimmed = trimmed.trim_end_matches('/');
-    GlobBuilder::new(trimmed)
-        .literal_separator(true)
-        .backslash_escape(true)
-        .build()
+    let build = |pattern: &str| {
+        GlobBuilder::new(pattern)
+            .literal_separator(true)
+            .backslash_escape(true)
+            .build()
+    };
+    let folder = match trimmed.strip_suffix("/**") {
+        Some(prefix) if !prefix.is_empty() => Some(build(prefix)?),
+        _ => None,
+    };
+    Ok((build(trimmed)?, folder))
 }
 
 fn parse_deny(value: &toml::Value) -> Result<DenyLevel, String> {
@@ -286,7 +311,10 @@ fn edit_distance(a: &str, b: &str) -> usize {
         }
         for (j, cb) in b.iter().enumerate() {
             let substitute = previous + usize::from(ca != *cb);
-            let (left, up) = (row.get(j).copied().unwrap_or(0), row.get(j + 1).copied().unwrap_or(0));
+            let (left, up) = (
+                row.get(j).copied().unwrap_or(0),
+                row.get(j + 1).copied().unwrap_or(0),
+            );
             previous = up;
             if let Some(cell) = row.get_mut(j + 1) {
                 *cell = substitute.min(left + 1).min(up + 1);
@@ -370,6 +398,14 @@ impl ProjectCache {
     pub fn project_for(&mut self, path: &Path) -> Result<Option<Arc<Project>>, ProjectError> {
         let folder = search_start(path);
         self.for_folder(&folder)
+    }
+
+    /// The project that governs the files of `folder` (no check whether it is a folder).
+    pub fn project_for_folder(
+        &mut self,
+        folder: &Path,
+    ) -> Result<Option<Arc<Project>>, ProjectError> {
+        self.for_folder(&absolute(folder))
     }
 
     fn for_folder(&mut self, folder: &Path) -> Result<Option<Arc<Project>>, ProjectError> {

@@ -32,7 +32,10 @@ fn nearest_file_wins_and_is_not_merged() {
         &dir.path().join("sdeck.toml"),
         "[rules]\nunused = \"off\"\n[files]\nexclude = [\"flawed/**\"]\n[check]\ndeny = \"warnings\"\n",
     );
-    write(&dir.path().join("flawed/sdeck.toml"), "[rules]\nfeller-condition = \"error\"\n");
+    write(
+        &dir.path().join("flawed/sdeck.toml"),
+        "[rules]\nfeller-condition = \"error\"\n",
+    );
     let outer = find_project(&dir.path().join("rate.sde")).unwrap().unwrap();
     assert_eq!(outer.settings.levels.get("unused"), Some(&RuleLevel::Off));
     assert!(outer.deny_warnings());
@@ -40,7 +43,9 @@ fn nearest_file_wins_and_is_not_merged() {
     assert!(outer.is_excluded(&dir.path().join("flawed/deeper/x.sde")));
     assert!(!outer.is_excluded(&dir.path().join("rate.sde")));
 
-    let inner = find_project(&dir.path().join("flawed/feller.sde")).unwrap().unwrap();
+    let inner = find_project(&dir.path().join("flawed/feller.sde"))
+        .unwrap()
+        .unwrap();
     assert_eq!(
         inner.settings.levels.get("feller-condition"),
         Some(&RuleLevel::On(Severity::Error))
@@ -54,7 +59,10 @@ fn nearest_file_wins_and_is_not_merged() {
 #[test]
 fn relative_paths_and_dot_dot_resolve_like_absolute_ones() {
     let dir = tempfile::tempdir().unwrap();
-    write(&dir.path().join("sdeck.toml"), "[files]\nexclude = [\"old\"]\n");
+    write(
+        &dir.path().join("sdeck.toml"),
+        "[files]\nexclude = [\"old\"]\n",
+    );
     let project = find_project(dir.path()).unwrap().unwrap();
     assert!(project.is_excluded(&dir.path().join("models/../old/a.sde")));
     assert!(project.is_excluded(&dir.path().join("./old/sub/b.sde")));
@@ -66,7 +74,10 @@ fn relative_paths_and_dot_dot_resolve_like_absolute_ones() {
 #[test]
 fn include_limits_the_files_and_star_stays_in_one_folder() {
     let dir = tempfile::tempdir().unwrap();
-    write(&dir.path().join("sdeck.toml"), "[files]\ninclude = [\"desk/*.sde\"]\n");
+    write(
+        &dir.path().join("sdeck.toml"),
+        "[files]\ninclude = [\"desk/*.sde\"]\n",
+    );
     let project = find_project(dir.path()).unwrap().unwrap();
     assert!(!project.is_excluded(&dir.path().join("desk/a.sde")));
     assert!(project.is_excluded(&dir.path().join("desk/sub/a.sde")));
@@ -84,7 +95,10 @@ fn every_level_is_read() {
     let level = |r: &str| project.settings.levels.get(r).copied();
     assert_eq!(level("unused"), Some(RuleLevel::Off));
     assert_eq!(level("unit-scale"), Some(RuleLevel::On(Severity::Hint)));
-    assert_eq!(level("feller-condition"), Some(RuleLevel::On(Severity::Info)));
+    assert_eq!(
+        level("feller-condition"),
+        Some(RuleLevel::On(Severity::Info))
+    );
     assert_eq!(level("syntax"), Some(RuleLevel::On(Severity::Warning)));
     assert_eq!(level("state-domain"), Some(RuleLevel::On(Severity::Error)));
     assert_eq!(project.deny, Some(DenyLevel::Errors));
@@ -127,8 +141,14 @@ fn broken_file_gives_default_settings_through_settings_for() {
 #[test]
 fn the_cache_agrees_with_find_project() {
     let dir = tempfile::tempdir().unwrap();
-    write(&dir.path().join("sdeck.toml"), "[rules]\nunused = \"off\"\n");
-    write(&dir.path().join("a/b/sdeck.toml"), "[rules]\nunused = \"error\"\n");
+    write(
+        &dir.path().join("sdeck.toml"),
+        "[rules]\nunused = \"off\"\n",
+    );
+    write(
+        &dir.path().join("a/b/sdeck.toml"),
+        "[rules]\nunused = \"error\"\n",
+    );
     let mut cache = ProjectCache::new();
     for rel in ["x.sde", "a/x.sde", "a/b/x.sde", "a/b/c/x.sde", "a/x.sde"] {
         let path = dir.path().join(rel);
