@@ -198,6 +198,19 @@ pub fn moments_text(model: &Model, derivation: &Derivation, m: &Moments) -> Stri
             "  sd        = {}\n",
             or_unknown(var.filter(|v| *v >= 0.0).map(f64::sqrt))
         ));
+        let levels = [0.01, 0.05, 0.5, 0.95, 0.99];
+        let quantiles: Vec<Option<f64>> = levels
+            .iter()
+            .map(|&p| sdeck_calculus::quantile(model, derivation, i, m.at, p))
+            .collect();
+        if quantiles.iter().all(Option::is_some) {
+            let parts: Vec<String> = levels
+                .iter()
+                .zip(&quantiles)
+                .map(|(p, q)| format!("{}% {}", fmt_num(p * 100.0), or_unknown(*q)))
+                .collect();
+            s.push_str(&format!("  quantiles = {}\n", parts.join(", ")));
+        }
         if let Some(h) = law.half_life {
             s.push_str(&format!("  half-life = {} {clock}\n", fmt_num(h)));
         }
