@@ -247,11 +247,11 @@ dv = kappa * (theta - v) dt + xi * sqrt(v) dWv
     let d = derive(&m);
     assert_eq!(d.states[0].family, Family::Polynomial);
     assert_eq!(d.states[1].family, Family::SquareRoot);
-    let t = 0.5;
+    let t: f64 = 0.5;
     let moments = moments_at(&m, &d, t);
     // E[x_t] = x₀ + μt − ½∫₀ᵗ E[v_s] ds with E[v_s] = θ + (v₀ − θ)e^{−κs}
     // (Heston 1993, Review of Financial Studies 6, the log-price drift).
-    let integral_v = 0.04 * t + (0.05 - 0.04) * (1.0 - (-2.0 * t as f64).exp()) / 2.0;
+    let integral_v = 0.04 * t + (0.05 - 0.04) * (1.0 - (-2.0 * t).exp()) / 2.0;
     let expected_mean = 0.2 + 0.05 * t - 0.5 * integral_v;
     assert_close(
         "mean of x",
