@@ -15,6 +15,7 @@
 
 pub mod algebra;
 pub mod describe;
+mod elementary;
 mod formulas;
 pub mod linear_system;
 pub mod noncentral;

@@ -6,6 +6,7 @@
 //! Time-dependent coefficients use the integrating factor with adaptive Gauss–Kronrod
 //! quadrature (or the moment equations when the noise depends on the state).
 
+use crate::elementary::{convolve, exp_polynomial, ExpPolynomial};
 use crate::linear_system::matrix_exponential;
 use crate::noncentral;
 use crate::ode;
@@ -178,12 +179,39 @@ fn integrating_factor(
     homogeneous + integral(|s| exponent(s).exp() * q(s), 0.0, t)
 }
 
+/// Whether a time-dependent state has closed forms: constant slope b, additive noise,
+/// and a(t), α(t) sums of c·tᵏ·e^{λt}.
+pub(crate) fn elementary_forms(
+    os: &OneState,
+    params: &[f64],
+) -> Option<(ExpPolynomial, ExpPolynomial)> {
+    if os.b.depends_on_time() || os.state_dependent_noise() {
+        return None;
+    }
+    Some((
+        exp_polynomial(&os.a, params)?,
+        exp_polynomial(&os.alpha, params)?,
+    ))
+}
+
 fn time_dependent_mean_variance(
     os: &OneState,
     params: &[f64],
     x0: f64,
     t: f64,
 ) -> Option<MeanVariance> {
+    if let Some((drift, noise)) = elementary_forms(os, params) {
+        // m(t) = x₀ e^{bt} + ∫₀ᵗ e^{b(t−s)} a(s) ds, v(t) = ∫₀ᵗ e^{2b(t−s)} α(s) ds
+        // (Kloeden & Platen 1992, §4.2, integrating factor with constant b).
+        let b = os.b.value(params, 0.0);
+        let mean = x0 * (b * t).exp() + convolve(b, &drift, t);
+        let variance = convolve(2.0 * b, &noise, t);
+        return (mean.is_finite() && variance.is_finite()).then_some(MeanVariance {
+            mean,
+            variance,
+            method: Method::ClosedForm,
+        });
+    }
     let b_constant = !os.b.depends_on_time();
     let b = |s: f64| os.b.value(params, s);
     let a = |s: f64| os.a.value(params, s);

@@ -146,6 +146,8 @@ fn one_state_law(
     let method = if os.time_dependent {
         if os.state_dependent_noise() {
             Method::MomentEquations
+        } else if one_state::elementary_forms(os, params).is_some() {
+            Method::ClosedForm
         } else {
             Method::Quadrature
         }

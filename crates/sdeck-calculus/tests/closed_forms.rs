@@ -299,10 +299,10 @@ dx = kappa * (target - x) dt + vol dW
 
 #[test]
 fn quadrature_agrees_with_the_closed_form() {
-    // exp(0 * freq * t) is 1 but depends on t structurally, which forces the quadrature
-    // path.
+    // cos(0 * freq * t) is 1 but depends on t structurally, and a cosine is not one of
+    // the elementary shapes, which forces the quadrature path.
     let forced = VASICEK
-        .replace("vol dW", "vol * exp(0 * freq * t) dW")
+        .replace("vol dW", "vol * cos(0 * freq * t) dW")
         .replace("noise W", "param freq = 1 [1/year]\nnoise W");
     let (m, d) = derived(&forced);
     assert_eq!(d.states[0].family, Family::Linear);
@@ -325,6 +325,52 @@ fn quadrature_agrees_with_the_closed_form() {
             1e-10,
         );
     }
+}
+
+#[test]
+fn elementary_time_dependence_has_a_closed_form() {
+    // Level moving linearly and a volatility decaying like e^{−λt}:
+    // m(t) = x₀e^{−κt} + ∫₀ᵗ e^{−κ(t−s)} κ(a + c s) ds
+    //      = x₀e^{−κt} + (a − c/κ)(1 − e^{−κt}) + c t,
+    // v(t) = σ² (e^{−2λt} − e^{−2κt}) / (2κ − 2λ)
+    // (Kloeden & Platen 1992, §4.2, integrating factor; integrals by hand).
+    let source = "
+model rowan_drift
+param kappa = 1.4 [1/year]
+param base = 2%
+param slope = 0.5% [1/year]
+param sigma = 1% [1/sqrt(year)]
+param lam = 0.3 [1/year]
+noise W
+state x = 3%
+dx = kappa * (base + slope * t - x) dt + sigma * exp(-lam * t) dW
+";
+    let (m, d) = derived(source);
+    assert_eq!(d.states[0].family, Family::Linear);
+    assert_eq!(d.states[0].method, Method::ClosedForm);
+    let (kappa, a, c, sigma, lam, x0) = (1.4_f64, 0.02, 0.005, 0.01_f64, 0.3_f64, 0.03);
+    for t in [0.25_f64, 2.0, 7.0] {
+        let mean = x0 * (-kappa * t).exp() + (a - c / kappa) * (1.0 - (-kappa * t).exp()) + c * t;
+        let variance = sigma * sigma * ((-2.0 * lam * t).exp() - (-2.0 * kappa * t).exp())
+            / (2.0 * kappa - 2.0 * lam);
+        let moments = moments_at(&m, &d, t);
+        assert_eq!(moments.method[0], Method::ClosedForm);
+        assert_close("mean", moments.mean[0].expect("mean"), mean, 1e-13);
+        assert_close(
+            "variance",
+            moments.variance[0].expect("variance"),
+            variance,
+            1e-12,
+        );
+    }
+    // The level moves but the slope −κ is constant: the half-life is still ln 2/κ.
+    assert_close(
+        "half-life",
+        d.states[0].half_life.expect("half-life"),
+        2f64.ln() / kappa,
+        1e-15,
+    );
+    assert!(d.states[0].stationary.is_none());
 }
 
 #[test]
