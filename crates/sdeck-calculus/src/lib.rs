@@ -11,7 +11,21 @@
 //! Layout: `algebra` (polynomials in the states), `shape` (classification), `one_state`
 //! (figures of one decoupled state), `formulas` (readable math), `system` (several
 //! states, through the engines of `linear_system`, `polynomial` and `ode`),
-//! `noncentral` (the noncentral chi-square law).
+//! `noncentral` (the noncentral chi-square law), `elementary` (closed-form integrals of
+//! time-dependent coefficients), `describe` (names of equation pieces for messages).
+//!
+//! ```
+//! let analysis = sdeck_semantics::analyze(
+//!     "param kappa = 2 [1/year]\nparam vol = 1% [1/sqrt(year)]\nnoise W\n\
+//!      state r = 3%\ndr = -kappa * r dt + vol dW\n",
+//!     "demo",
+//! );
+//! let derivation = sdeck_calculus::derive(&analysis.model);
+//! assert_eq!(derivation.states[0].family.as_str(), "ornstein-uhlenbeck");
+//! let moments = sdeck_calculus::moments_at(&analysis.model, &derivation, 1.0);
+//! let mean = moments.mean[0].expect("known in closed form");
+//! assert!((mean - 0.03 * (-2f64).exp()).abs() < 1e-15); // r₀·e^(−kappa·t)
+//! ```
 
 pub mod algebra;
 pub mod describe;
