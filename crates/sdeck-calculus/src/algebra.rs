@@ -18,6 +18,20 @@ use std::collections::BTreeMap;
 /// Integer powers above this are not expanded (a guard against `x^1000000`).
 const MAX_EXPANDED_POWER: i64 = 16;
 
+/// Products that would have more terms than this are not expanded: such an expression is
+/// treated as not polynomial rather than exhausting memory on `(a + b + ... + x)^16`.
+const MAX_TERMS: usize = 20_000;
+
+/// `a · b`, unless the expansion would be too large.
+fn bounded_product(a: &Poly, b: &Poly, expr: &Expr) -> Result<Poly, NotPolynomial> {
+    if a.terms.len().saturating_mul(b.terms.len()) > MAX_TERMS {
+        return Err(NotPolynomial {
+            piece: expr.clone(),
+        });
+    }
+    Ok(a.mul(b))
+}
+
 /// An indivisible factor of a monomial.
 #[derive(Clone, Debug)]
 pub enum Atom {
@@ -346,7 +360,7 @@ pub fn to_poly(expr: &Expr) -> Result<Poly, NotPolynomial> {
         Expr::Neg(a) => Ok(to_poly(a)?.neg()),
         Expr::Add(a, b) => Ok(to_poly(a)?.add(&to_poly(b)?)),
         Expr::Sub(a, b) => Ok(to_poly(a)?.sub(&to_poly(b)?)),
-        Expr::Mul(a, b) => Ok(to_poly(a)?.mul(&to_poly(b)?)),
+        Expr::Mul(a, b) => bounded_product(&to_poly(a)?, &to_poly(b)?, expr),
         Expr::Div(a, b) => {
             let numerator = to_poly(a)?;
             if let Ok(denominator) = to_poly(b) {
@@ -369,7 +383,7 @@ pub fn to_poly(expr: &Expr) -> Result<Poly, NotPolynomial> {
                     if k >= 0 {
                         let mut out = Poly::one();
                         for _ in 0..k {
-                            out = out.mul(&base_poly);
+                            out = bounded_product(&out, &base_poly, expr)?;
                         }
                         return Ok(out);
                     }

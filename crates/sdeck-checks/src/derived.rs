@@ -110,6 +110,24 @@ fn feller_condition(model: &Model, derivation: &Derivation, out: &mut Vec<Diagno
             .map(|t| (t.speed.clone(), t.level.clone(), t.vol_squared.clone()))
             .unwrap_or_else(|| ("speed".into(), "level".into(), "vol²".into()));
         let clock = &model.clock.unit;
+        if sr.level <= 0.0 {
+            let name = state_name(model, state);
+            out.push(
+                Diagnostic::new(
+                    &rules::FELLER_CONDITION,
+                    span,
+                    format!(
+                        "2·{speed}·{level} = {} < {vol2} = {} (per {clock}): the level of {name} \
+                         is not above zero, so {name} is pulled to zero and stays near it; \
+                         give it a positive level",
+                        number(drift_side, 3),
+                        number(vol_squared, 3),
+                    ),
+                )
+                .with_help(format!("set {level} above zero")),
+            );
+            continue;
+        }
         let needed_speed = vol_squared / (2.0 * sr.level);
         let allowed_vol = drift_side.max(0.0).sqrt();
         let raise = match terms.as_ref().and_then(|t| t.speed_param) {
@@ -177,6 +195,13 @@ fn is_gaussian_with_noise(law: &StateLaw) -> bool {
     additive && has_noise
 }
 
+/// Whether a square-root state fails the Feller condition (zero is attainable).
+fn square_root_reaches_zero(law: &StateLaw) -> bool {
+    law.square_root
+        .as_ref()
+        .is_some_and(|sr| 2.0 * sr.speed * sr.level < sr.vol * sr.vol)
+}
+
 /// Applications of sqrt, log or a half power to an expression mentioning states.
 fn restricted_calls<'e>(expr: &'e Expr, out: &mut Vec<(&'static str, &'e Expr)>) {
     match expr {
@@ -232,7 +257,9 @@ fn state_domain(model: &Model, derivation: &Derivation, out: &mut Vec<Diagnostic
                 let Some(law) = derivation.states.get(gaussian) else {
                     continue;
                 };
-                if !is_gaussian_with_noise(law) || reported.contains(&(function, gaussian)) {
+                let reaches_zero = function == "log" && square_root_reaches_zero(law);
+                let gaussian_law = is_gaussian_with_noise(law);
+                if !(gaussian_law || reaches_zero) || reported.contains(&(function, gaussian)) {
                     continue;
                 }
                 reported.push((function, gaussian));
@@ -242,13 +269,21 @@ fn state_domain(model: &Model, derivation: &Derivation, out: &mut Vec<Diagnostic
                 } else {
                     "non-negative"
                 };
-                let message = format!(
-                    "`{function}` of {name} in the equation of {}: {name} is {} (Gaussian), so it \
-                     takes negative values with positive probability and `{function}` needs a \
-                     {domain} argument",
-                    state.name,
-                    law.family.as_str()
-                );
+                let message = if gaussian_law {
+                    format!(
+                        "`{function}` of {name} in the equation of {}: {name} is {} (Gaussian), \
+                         so it takes negative values with positive probability and `{function}` \
+                         needs a {domain} argument",
+                        state.name,
+                        law.family.as_str()
+                    )
+                } else {
+                    format!(
+                        "`log` of {name} in the equation of {}: {name} is square-root and fails \
+                         the Feller condition, so it reaches zero, where `log` is undefined",
+                        state.name
+                    )
+                };
                 let help = if function == "sqrt" {
                     format!(
                         "use a square-root diffusion for {name} (`vol * sqrt({name}) dW`) so \
@@ -806,6 +841,25 @@ mod tests {
         );
         let equation = model.states[1].equation.as_ref().expect("equation");
         assert_eq!(domain[0].span, equation.span);
+    }
+
+    #[test]
+    fn log_of_a_square_root_state_that_reaches_zero() {
+        // 2·0.5·0.02 = 0.02 < 0.2² = 0.04: zero is attainable, so log(v) is not safe.
+        let source = "model fenby\nparam k = 0.5 [1/year]\nparam m = 0.02\n\
+                      param s = 0.2 [1/sqrt(year)]\nparam c = 0.1 [1/sqrt(year)]\n\
+                      noise W, Z\nstate v = 0.02\nstate y = 0\n\
+                      dv = k * (m - v) dt + s * sqrt(v) dW\n\
+                      dy = c * log(v) * k dt + c dZ\n";
+        let (_, diagnostics) = run(source);
+        let domain = of_rule(&diagnostics, &rules::STATE_DOMAIN);
+        assert_eq!(domain.len(), 1, "{diagnostics:#?}");
+        assert!(
+            domain[0].message.contains("fails the Feller condition"),
+            "{}",
+            domain[0].message
+        );
+        assert_eq!(of_rule(&diagnostics, &rules::FELLER_CONDITION).len(), 1);
     }
 
     #[test]
