@@ -852,6 +852,65 @@ mod tests {
         assert_eq!(poly.state_degree(), 1);
     }
 
+    use proptest::prelude::*;
+
+    /// Random expressions over two parameters, two states and t, with the operators the
+    /// normaliser expands.
+    fn expression() -> impl Strategy<Value = Expr> {
+        let leaf = prop_oneof![
+            (-3.0..3.0f64).prop_map(Expr::Const),
+            (0..2usize).prop_map(Expr::Param),
+            (0..2usize).prop_map(Expr::State),
+            Just(Expr::Time),
+        ];
+        leaf.prop_recursive(4, 24, 2, |inner| {
+            prop_oneof![
+                inner.clone().prop_map(|a| Expr::Neg(Box::new(a))),
+                (inner.clone(), inner.clone())
+                    .prop_map(|(a, b)| Expr::Add(Box::new(a), Box::new(b))),
+                (inner.clone(), inner.clone())
+                    .prop_map(|(a, b)| Expr::Sub(Box::new(a), Box::new(b))),
+                (inner.clone(), inner.clone())
+                    .prop_map(|(a, b)| Expr::Mul(Box::new(a), Box::new(b))),
+                (inner.clone(), 0..3i32)
+                    .prop_map(|(a, k)| Expr::Pow(Box::new(a), Box::new(Expr::Const(f64::from(k))))),
+                inner
+                    .clone()
+                    .prop_map(|a| Expr::Div(Box::new(a), Box::new(Expr::Param(1)))),
+                inner.prop_map(|a| Expr::Call(
+                    Function::Exp,
+                    vec![Expr::Mul(Box::new(Expr::Param(0)), Box::new(a))]
+                )),
+            ]
+        })
+    }
+
+    proptest! {
+        #[test]
+        fn normal_form_evaluates_like_the_expression(
+            e in expression(),
+            params in (0.5..2.0f64, 0.5..2.0f64),
+            states in (-2.0..2.0f64, -2.0..2.0f64),
+            t in 0.0..3.0f64,
+        ) {
+            let params = [params.0, params.1];
+            let states = [states.0, states.1];
+            let direct = e.eval(&params, &states, t);
+            match to_poly(&e) {
+                Ok(poly) => {
+                    let value = poly.eval(&params, &states, t);
+                    let scale = direct.abs().max(1.0);
+                    prop_assert!(
+                        (value - direct).abs() <= 1e-9 * scale || !direct.is_finite(),
+                        "{e:?}: {value} vs {direct}"
+                    );
+                }
+                // Only an exponential of a state is outside the polynomials here.
+                Err(NotPolynomial { piece }) => prop_assert!(expr_mentions_states(&piece)),
+            }
+        }
+    }
+
     #[test]
     fn evaluation_matches_the_expression() {
         let e = Expr::Div(

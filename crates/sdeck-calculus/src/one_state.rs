@@ -366,6 +366,68 @@ pub(crate) fn square_root_transition(
 mod tests {
     use super::*;
 
+    use crate::algebra::Poly;
+    use proptest::prelude::*;
+
+    fn constant_state(a: f64, b: f64, alpha: f64, beta: f64, gamma: f64) -> OneState {
+        OneState {
+            state: 0,
+            a: Poly::constant(a),
+            b: Poly::constant(b),
+            alpha: Poly::constant(alpha),
+            beta: Poly::constant(beta),
+            gamma: Poly::constant(gamma),
+            affine_terms: None,
+            time_dependent: false,
+        }
+    }
+
+    proptest! {
+        // Each closed form solves the same moment equations as the exact exponential of
+        // the 4×4 moment matrix (Kloeden & Platen 1992, §4.2); they must agree.
+        #[test]
+        fn closed_forms_solve_the_moment_equations(
+            a in 0.0..0.1f64,
+            b in -3.0..1.0f64,
+            vol in 0.01..0.5f64,
+            x0 in 0.001..0.2f64,
+            t in 0.01..5.0f64,
+        ) {
+            let params: [f64; 0] = [];
+            let cases = [
+                (Family::OrnsteinUhlenbeck, constant_state(a, b, vol * vol, 0.0, 0.0)),
+                (Family::SquareRoot, constant_state(a, b, 0.0, vol * vol, 0.0)),
+                (Family::GeometricBrownian, constant_state(0.0, b, 0.0, 0.0, vol * vol)),
+            ];
+            for (family, os) in cases {
+                let closed = mean_variance(&os, family, &params, x0, t).expect("closed form");
+                let v = os.values(&params, 0.0);
+                let reference = moment_equation_variance(&v, x0, t).expect("moment equations");
+                let scale = reference.abs().max(1e-300);
+                prop_assert!(
+                    (closed.variance - reference).abs() <= 1e-9 * scale,
+                    "{family:?}: {} vs {}", closed.variance, reference
+                );
+            }
+        }
+
+        // With κ → 0 the square-root variance tends to σ²(x₀t + a t²/2), the solution of
+        // v' = σ² m with m = x₀ + a t (common practice, no source).
+        #[test]
+        fn square_root_variance_has_the_zero_speed_limit(
+            a in 0.0..0.1f64,
+            vol in 0.01..0.5f64,
+            x0 in 0.001..0.2f64,
+            t in 0.01..5.0f64,
+            tiny in 1e-15..1e-12f64,
+        ) {
+            let os = constant_state(a, -tiny, 0.0, vol * vol, 0.0);
+            let closed = mean_variance(&os, Family::SquareRoot, &[], x0, t).expect("closed");
+            let limit = vol * vol * (x0 * t + a * t * t / 2.0);
+            prop_assert!((closed.variance - limit).abs() <= 1e-10 * limit);
+        }
+    }
+
     #[test]
     fn phi_is_stable_for_tiny_rates() {
         // (e^{xt} − 1)/x → t + x t²/2 for small x (Taylor series, common practice).
