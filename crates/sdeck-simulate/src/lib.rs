@@ -11,17 +11,23 @@
 //! - [`plot`]: fan charts as SVG.
 //!
 //! ```
-//! use sdeck_simulate::{plan_from_model, simulate, to_json, SimulationOptions};
-//! # fn example(model: &sdeck_semantics::Model) -> Result<(), sdeck_simulate::SimulateError> {
-//! let plan = plan_from_model(model);
+//! use sdeck_simulate::{check, simulate_and_compare, to_json, SimulationOptions};
+//!
+//! let source = "param kappa = 1.2 [1/year] > 0\nparam theta = 4%\n\
+//!               param sigma = 1.5% [1/sqrt(year)] > 0\nnoise W\nstate r = 1%\n\
+//!               dr = kappa * (theta - r) dt + sigma dW\n";
+//! let model = sdeck_semantics::analyze(source, "demo").model;
+//! let derivation = sdeck_calculus::derive(&model);
 //! let options = SimulationOptions { paths: 20_000, steps: 50, seed: 7, ..Default::default() };
-//! let result = simulate(model, &plan, &options)?;
+//! let result = simulate_and_compare(&model, &derivation, &options).unwrap();
+//! assert_eq!(result.states[0].scheme, "exact (Gaussian)");
+//! assert!(check(&result).is_empty());
 //! println!("{}", to_json(&result));
-//! # Ok(()) }
 //! ```
 
 pub mod affine;
 pub mod bytecode;
+pub mod closed_form;
 pub mod engine;
 pub mod linalg;
 pub mod plan;
@@ -31,6 +37,7 @@ pub mod report;
 pub mod samplers;
 pub mod stats;
 
+pub use closed_form::{closed_form_means, closed_forms_at, simulate_and_compare};
 pub use engine::{simulate_paths, PathSamples, SimulateError, SimulationOptions};
 pub use plan::{plan, plan_from_model, ExactLaw, GaussianGroup, Plan, Scheme};
 pub use plot::{fan_chart_svg, write_fan_chart, PlotError};

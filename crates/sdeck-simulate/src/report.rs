@@ -317,14 +317,14 @@ pub fn render_text(result: &SimulationResult) -> String {
         let _ = writeln!(out, "{}  ({})", state.name, state.scheme);
         let _ = writeln!(
             out,
-            "  {:<10} {:>14} ± {:<12}",
+            "  {:<10} {:>14} ± {}",
             "mean",
             format_number(state.mean),
             format_number(state.mean_se)
         );
         let _ = writeln!(
             out,
-            "  {:<10} {:>14} ± {:<12}",
+            "  {:<10} {:>14} ± {}",
             "variance",
             format_number(state.variance),
             format_number(state.variance_se)
@@ -333,7 +333,7 @@ pub fn render_text(result: &SimulationResult) -> String {
             let label = format!("q{}", format_number(q.probability * 100.0));
             let _ = writeln!(
                 out,
-                "  {:<10} {:>14} ± {:<12}",
+                "  {:<10} {:>14} ± {}",
                 label,
                 format_number(q.value),
                 format_number(q.standard_error)

@@ -584,3 +584,17 @@ fn coupled_states_keep_exact_schemes_only_when_noises_are_not_shared() {
         vec![Scheme::Exact(ExactLaw::LinearGaussian), Scheme::Euler]
     );
 }
+
+#[test]
+fn closed_form_means_on_the_band_grid_follow_vasicek() {
+    let model = model(OU);
+    let derivation = derive(&model);
+    let times = [0.0, 0.5, 2.0];
+    let means = sdeck_simulate::closed_form_means(&model, &derivation, &times);
+    assert_eq!(means.len(), 1);
+    for (t, mean) in times.iter().zip(&means[0]) {
+        // Vasicek 1977, §4: θ + (r0 − θ)e^{−κt}.
+        let expected = 0.04 + (0.01 - 0.04) * (-1.2 * t).exp();
+        assert!((mean.unwrap() - expected).abs() < 1e-12, "t = {t}");
+    }
+}
