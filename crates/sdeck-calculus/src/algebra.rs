@@ -288,14 +288,13 @@ impl Poly {
     }
 
     pub fn eval(&self, params: &[f64], states: &[f64], t: f64) -> f64 {
-        self.terms
-            .iter()
-            .map(|(m, c)| {
-                m.iter().fold(*c, |acc, (a, k)| {
+        // Folding from +0 (not `sum`, which starts at −0) so that zero prints as 0.
+        self.terms.iter().fold(0.0, |total, (m, c)| {
+            total
+                + m.iter().fold(*c, |acc, (a, k)| {
                     acc * a.eval(params, states, t).powi(*k as i32)
                 })
-            })
-            .sum()
+        })
     }
 
     /// Value of a polynomial without states, at time `t`.

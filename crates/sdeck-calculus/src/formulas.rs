@@ -281,15 +281,24 @@ pub(crate) fn one_state(model: &Model, os: &OneState, family: Family) -> Formula
             Formulas {
                 solution: None,
                 mean: Some(format!("E[{x_t}] = {}", reverting_mean(&w, os, &x0, "t"))),
-                variance: Some(format!(
-                    "Var[{x_t}] = {x0}·{beta}·({} − {})/{} + {}·{beta}·(1 − {})²/{}",
-                    w.exp(&os.b, "t"),
-                    w.exp(&os.b.scale(2.0), "t"),
-                    w.denominator(&minus_b),
-                    wrap_level(&level),
-                    w.exp(&os.b, "t"),
-                    w.denominator(&os.b.scale(-2.0)),
-                )),
+                variance: Some({
+                    let start_part = format!(
+                        "{x0}·{beta}·({} − {})/{}",
+                        w.exp(&os.b, "t"),
+                        w.exp(&os.b.scale(2.0), "t"),
+                        w.denominator(&minus_b),
+                    );
+                    if os.a.is_zero() {
+                        format!("Var[{x_t}] = {start_part}")
+                    } else {
+                        format!(
+                            "Var[{x_t}] = {start_part} + {}·{beta}·(1 − {})²/{}",
+                            wrap_level(&level),
+                            w.exp(&os.b, "t"),
+                            w.denominator(&os.b.scale(-2.0)),
+                        )
+                    }
+                }),
                 autocovariance: Some(format!(
                     "Cov({x_s}, {x_t}) = Var[{x_s}]·{}, s ≤ t",
                     w.exp(&os.b, "(t − s)")

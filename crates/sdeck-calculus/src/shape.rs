@@ -174,6 +174,18 @@ fn general(reason: String, depends_on: Vec<usize>) -> Classified {
     }
 }
 
+/// Longest printed expression kept inside a reason; longer ones are left out.
+const MAX_SHOWN: usize = 100;
+
+/// `" text"` when short enough to read in a sentence, empty otherwise.
+fn shown(text: String) -> String {
+    if text.chars().count() <= MAX_SHOWN {
+        format!(" {text}")
+    } else {
+        String::new()
+    }
+}
+
 pub(crate) fn unresolved_reason(model: &Model, why: &Unresolved) -> String {
     let names = Names::new(model);
     match why {
@@ -216,9 +228,9 @@ pub(crate) fn classify_state(model: &Model, index: usize, corr: &[Vec<f64>]) -> 
     if drift_degree > 1 {
         return general(
             format!(
-                "no closed form is known: the drift {} is of degree {drift_degree} in {name} \
+                "no closed form is known: the drift{} is of degree {drift_degree} in {name} \
                  (not affine)",
-                show_poly(&shape.drift, &names)
+                shown(show_poly(&shape.drift, &names))
             ),
             depends_on,
         );
@@ -240,9 +252,9 @@ pub(crate) fn classify_state(model: &Model, index: usize, corr: &[Vec<f64>]) -> 
     if squared_degree > 2 {
         return general(
             format!(
-                "no closed form is known: the squared diffusion {} is of degree \
+                "no closed form is known: the squared diffusion{} is of degree \
                  {squared_degree} in {name} (above quadratic)",
-                show_poly(&squared, &names)
+                shown(show_poly(&squared, &names))
             ),
             depends_on,
         );
@@ -303,7 +315,7 @@ pub(crate) fn classify_state(model: &Model, index: usize, corr: &[Vec<f64>]) -> 
             .collect::<Vec<_>>()
             .join(", ");
         let diffusion_text = if diffusion_text.is_empty() {
-            "no diffusion".to_string()
+            "the diffusion (none)".to_string()
         } else {
             format!("diffusion {diffusion_text}")
         };
@@ -395,6 +407,16 @@ pub(crate) fn classify_system(
     corr: &[Vec<f64>],
 ) -> SystemShape {
     let n = model.states.len();
+    if n == 0 {
+        return SystemShape {
+            family: Family::General,
+            reason: "the model declares no state".to_string(),
+            drift_rows: None,
+            loadings: None,
+            shapes: Vec::new(),
+            time_dependent: false,
+        };
+    }
     let mut shapes = Vec::with_capacity(n);
     let names = Names::new(model);
     for (i, classified) in states.iter().enumerate() {
@@ -449,11 +471,13 @@ pub(crate) fn classify_system(
         return SystemShape {
             family: Family::General,
             reason: format!(
-                "no closed form is known: the drift of {} is {} (not affine in the states)",
+                "no closed form is known: the drift of {} is not affine in the states{}",
                 state_name(culprit),
                 shapes
                     .get(culprit)
-                    .map(|s| show_poly(&s.drift, &names))
+                    .map(|s| shown(show_poly(&s.drift, &names)))
+                    .filter(|t| !t.is_empty())
+                    .map(|t| format!(":{t}"))
                     .unwrap_or_default()
             ),
             drift_rows: None,
@@ -487,10 +511,10 @@ pub(crate) fn classify_system(
                         family: Family::General,
                         reason: format!(
                             "no closed form is known: the instantaneous covariance of {} and \
-                             {} is {} (above quadratic in the states)",
+                             {}{} is above quadratic in the states",
                             state_name(i),
                             state_name(j),
-                            show_poly(&p, &names)
+                            shown(show_poly(&p, &names))
                         ),
                         drift_rows: rows,
                         loadings: None,

@@ -164,7 +164,10 @@ fn one_state_law(
     // reverts at the rate |b|.
     let half_life = (mean_reverting_family && !os.b.depends_on_time() && values.b < 0.0)
         .then(|| std::f64::consts::LN_2 / values.b.abs());
-    let stationary = if mean_reverting_family {
+    // A square-root state with zero level is absorbed at 0: no stationary law worth
+    // the name (its Gamma shape would be 0).
+    let degenerate = family == Family::SquareRoot && values.a <= 0.0;
+    let stationary = if mean_reverting_family && !degenerate {
         one_state::stationary(os, params).map(|(mean, variance)| Stationary {
             mean,
             variance,
@@ -173,6 +176,10 @@ fn one_state_law(
     } else {
         None
     };
+    let mut formulas = formulas::one_state(model, os, family);
+    if stationary.is_none() {
+        formulas.stationary = None;
+    }
     let linear = match (&os.affine_terms, os.time_dependent) {
         (Some(terms), false) => Some(LinearCoefficients {
             a: values.a,
@@ -214,7 +221,7 @@ fn one_state_law(
             .map(|c| c.reason.clone())
             .unwrap_or_default(),
         method,
-        formulas: formulas::one_state(model, os, family),
+        formulas,
         half_life,
         stationary,
         linear,
