@@ -6,86 +6,187 @@
 //! - `quiet-begin RULE` … `quiet-end RULE` silence a range of lines.
 //! - `quiet-file RULE` silences the rules in the whole file.
 //!
-//! A suppression that silences nothing, or names no rule, is reported as
-//! `unused-suppression`.
+//! Each rule name that silences nothing is reported as `unused-suppression`, at the name.
+//! So is an unknown rule name (the known names beside it still work), a comment that names
+//! no rule, and an unknown directive (`# sdeck: hush unused`).
 
 use sdeck_diagnostics::{rules, Diagnostic, Span};
 use sdeck_syntax::ast::SourceFile;
 use sdeck_syntax::LineIndex;
 
+/// One rule named in a suppression comment, with where its name stands.
+#[derive(Debug, Clone)]
+struct NamedRule {
+    rule: String,
+    /// The bytes of the name in the source: unused-suppression is reported there.
+    span: Span,
+}
+
 #[derive(Debug)]
 struct Suppression {
-    rules: Vec<String>,
+    rules: Vec<NamedRule>,
     /// First and last line (zero-based, inclusive) it covers.
     lines: (u32, u32),
-    comment: Span,
     used: Vec<bool>,
 }
 
-enum Directive {
-    Quiet(Vec<String>),
-    Begin(Vec<String>),
-    End(Vec<String>),
-    File(Vec<String>),
+enum Kind {
+    Quiet,
+    Begin,
+    End,
+    File,
 }
 
-fn parse_directive(text: &str) -> Option<Result<Directive, String>> {
-    let body = text.trim().strip_prefix("sdeck:")?.trim();
-    let (word, rest) = body.split_once(char::is_whitespace).unwrap_or((body, ""));
-    let rest = match rest.split_once("--") {
-        Some((names, _reason)) => names,
-        None => rest,
+/// A parsed suppression comment: its kind and known rules, plus the problems found in it
+/// (an unknown directive, no rule named, unknown rule names).
+struct Directive {
+    kind: Option<Kind>,
+    rules: Vec<NamedRule>,
+    problems: Vec<Diagnostic>,
+}
+
+fn problem(span: Span, message: String) -> Diagnostic {
+    Diagnostic::new(&rules::UNUSED_SUPPRESSION, span, message)
+        .with_help("write `# sdeck: quiet RULE -- reason`; `sdeck explain` lists the rules")
+}
+
+/// Parses the text of a comment (after `#`) whose first byte is at `base` in the source.
+/// `None` when the comment is not a suppression (does not start with `sdeck:`).
+fn parse_directive(text: &str, base: usize, comment: &Span) -> Option<Directive> {
+    let lead = text.len() - text.trim_start().len();
+    let after_prefix = lead
+        + text
+            .get(lead..)?
+            .strip_prefix("sdeck:")
+            .map(|_| "sdeck:".len())?;
+    // Everything up to `--` is the directive; the rest is the reason.
+    let directive_end = text
+        .get(after_prefix..)
+        .and_then(|rest| rest.find("--"))
+        .map(|i| after_prefix + i)
+        .unwrap_or(text.len());
+    // Words: maximal runs of characters other than white space and commas, with offsets.
+    let mut words: Vec<(usize, &str)> = Vec::new();
+    let directive = text.get(after_prefix..directive_end).unwrap_or("");
+    let mut start: Option<usize> = None;
+    for (i, ch) in directive
+        .char_indices()
+        .chain(std::iter::once((directive.len(), ' ')))
+    {
+        let separator = ch.is_whitespace() || ch == ',';
+        match (start, separator) {
+            (None, false) => start = Some(i),
+            (Some(s), true) => {
+                words.push((after_prefix + s, directive.get(s..i).unwrap_or("")));
+                start = None;
+            }
+            _ => {}
+        }
+    }
+    let absolute = |offset: usize, word: &str| base + offset..base + offset + word.len();
+    let Some(&(word_at, word)) = words.first() else {
+        return Some(Directive {
+            kind: None,
+            rules: Vec::new(),
+            problems: vec![problem(
+                comment.clone(),
+                "`sdeck:` names no directive and no rule".to_string(),
+            )],
+        });
     };
-    let names: Vec<String> = rest
-        .split([',', ' ', '\t'])
-        .map(str::trim)
-        .filter(|s| !s.is_empty())
-        .map(str::to_string)
-        .collect();
+    let kind = match word {
+        "quiet" => Kind::Quiet,
+        "quiet-begin" => Kind::Begin,
+        "quiet-end" => Kind::End,
+        "quiet-file" => Kind::File,
+        other => {
+            return Some(Directive {
+                kind: None,
+                rules: Vec::new(),
+                problems: vec![problem(
+                    absolute(word_at, word),
+                    format!("`sdeck: {other}` is not a directive; write `quiet`, `quiet-begin`, `quiet-end` or `quiet-file`"),
+                )],
+            })
+        }
+    };
+    let names = words.get(1..).unwrap_or(&[]);
     if names.is_empty() {
-        return Some(Err(format!("`sdeck: {word}` names no rule")));
+        return Some(Directive {
+            kind: None,
+            rules: Vec::new(),
+            problems: vec![problem(
+                comment.clone(),
+                format!("`sdeck: {word}` names no rule"),
+            )],
+        });
     }
-    if let Some(unknown) = names.iter().find(|n| rules::by_name(n).is_none()) {
-        return Some(Err(format!("`{unknown}` is not a rule")));
+    let mut known = Vec::new();
+    let mut problems = Vec::new();
+    for &(at, name) in names {
+        let span = absolute(at, name);
+        if rules::by_name(name).is_some() {
+            known.push(NamedRule {
+                rule: name.to_string(),
+                span,
+            });
+        } else {
+            problems.push(problem(span, format!("`{name}` is not a rule")));
+        }
     }
-    Some(match word {
-        "quiet" => Ok(Directive::Quiet(names)),
-        "quiet-begin" => Ok(Directive::Begin(names)),
-        "quiet-end" => Ok(Directive::End(names)),
-        "quiet-file" => Ok(Directive::File(names)),
-        other => Err(format!(
-            "`sdeck: {other}` is not a directive; write `quiet`, `quiet-begin`, `quiet-end` or `quiet-file`"
-        )),
+    Some(Directive {
+        kind: Some(kind),
+        rules: known,
+        problems,
     })
 }
 
 /// Removes suppressed diagnostics and adds `unused-suppression` for the suppressions that
-/// silenced nothing.
+/// silenced nothing, and for suppression comments that cannot be understood.
 pub fn apply(source: &str, file: &SourceFile, diagnostics: Vec<Diagnostic>) -> Vec<Diagnostic> {
     let index = LineIndex::new(source);
-    let line_of = |offset: usize| index.line_col(source, offset, sdeck_syntax::Encoding::Utf8).line;
+    let line_of = |offset: usize| {
+        index
+            .line_col(source, offset, sdeck_syntax::Encoding::Utf8)
+            .line
+    };
     let statement_lines: Vec<(u32, u32)> = file
         .statements
         .iter()
-        .map(|s| (line_of(s.span.start), line_of(s.span.end)))
+        .map(|s| {
+            // The last byte of the statement decides its last line: a span that ends
+            // just after a line break must not reach into the next line.
+            let last = s.span.end.saturating_sub(1).max(s.span.start);
+            (line_of(s.span.start), line_of(last))
+        })
         .collect();
     let mut problems = Vec::new();
     let mut suppressions: Vec<Suppression> = Vec::new();
-    let mut open: Vec<(String, u32, Span)> = Vec::new();
+    let mut open: Vec<(NamedRule, u32)> = Vec::new();
     let last_line = index.line_count().saturating_sub(1) as u32;
     for comment in &file.comments {
-        let Some(directive) = parse_directive(&comment.text) else { continue };
-        let line = line_of(comment.span.start);
-        let mut push = |rules: Vec<String>, lines: (u32, u32)| {
-            let used = vec![false; rules.len()];
-            suppressions.push(Suppression { rules, lines, comment: comment.span.clone(), used });
+        // The comment's text follows its `#`; find where it starts in the source.
+        let base = comment
+            .span
+            .end
+            .checked_sub(comment.text.len())
+            .filter(|b| *b >= comment.span.start)
+            .unwrap_or(comment.span.start + 1);
+        let Some(directive) = parse_directive(&comment.text, base, &comment.span) else {
+            continue;
         };
-        match directive {
-            Err(message) => problems.push(
-                Diagnostic::new(&rules::UNUSED_SUPPRESSION, comment.span.clone(), message)
-                    .with_help("write `# sdeck: quiet RULE -- reason`; `sdeck explain` lists the rules"),
-            ),
-            Ok(Directive::Quiet(names)) => {
+        problems.extend(directive.problems);
+        let Some(kind) = directive.kind else { continue };
+        if directive.rules.is_empty() {
+            continue;
+        }
+        let line = line_of(comment.span.start);
+        let mut push = |rules: Vec<NamedRule>, lines: (u32, u32)| {
+            let used = vec![false; rules.len()];
+            suppressions.push(Suppression { rules, lines, used });
+        };
+        match kind {
+            Kind::Quiet => {
                 let lines = if comment.trailing {
                     statement_lines
                         .iter()
@@ -99,28 +200,34 @@ pub fn apply(source: &str, file: &SourceFile, diagnostics: Vec<Diagnostic>) -> V
                         .find(|&(a, _)| a > line)
                         .unwrap_or((line + 1, line + 1))
                 };
-                push(names, lines);
+                push(directive.rules, lines);
             }
-            Ok(Directive::File(names)) => push(names, (0, last_line)),
-            Ok(Directive::Begin(names)) => {
-                for n in names {
-                    open.push((n, line, comment.span.clone()));
+            Kind::File => push(directive.rules, (0, last_line)),
+            Kind::Begin => {
+                for named in directive.rules {
+                    open.push((named, line));
                 }
             }
-            Ok(Directive::End(names)) => {
-                for n in names {
-                    if let Some(pos) = open.iter().rposition(|(o, _, _)| *o == n) {
-                        let (rule, start, span) = open.remove(pos);
+            Kind::End => {
+                for named in directive.rules {
+                    if let Some(pos) = open.iter().rposition(|(o, _)| o.rule == named.rule) {
+                        let (begin, start) = open.remove(pos);
                         suppressions.push(Suppression {
-                            rules: vec![rule],
+                            rules: vec![begin],
                             lines: (start, line),
-                            comment: span,
                             used: vec![false],
                         });
                     } else {
+                        let name = named.rule;
                         problems.push(
-                            Diagnostic::new(&rules::UNUSED_SUPPRESSION, comment.span.clone(), format!("`quiet-end {n}` closes no `quiet-begin {n}`"))
-                                .with_help(format!("add `# sdeck: quiet-begin {n}` where the range starts, or remove this line")),
+                            Diagnostic::new(
+                                &rules::UNUSED_SUPPRESSION,
+                                named.span,
+                                format!("`quiet-end {name}` closes no `quiet-begin {name}`"),
+                            )
+                            .with_help(format!(
+                                "add `# sdeck: quiet-begin {name}` where the range starts, or remove this line"
+                            )),
                         );
                     }
                 }
@@ -128,8 +235,12 @@ pub fn apply(source: &str, file: &SourceFile, diagnostics: Vec<Diagnostic>) -> V
         }
     }
     // A range left open runs to the end of the file.
-    for (rule, start, span) in open {
-        suppressions.push(Suppression { rules: vec![rule], lines: (start, last_line), comment: span, used: vec![false] });
+    for (named, start) in open {
+        suppressions.push(Suppression {
+            rules: vec![named],
+            lines: (start, last_line),
+            used: vec![false],
+        });
     }
     let mut kept = Vec::with_capacity(diagnostics.len());
     for d in diagnostics {
@@ -137,8 +248,10 @@ pub fn apply(source: &str, file: &SourceFile, diagnostics: Vec<Diagnostic>) -> V
         let mut silenced = false;
         for s in suppressions.iter_mut() {
             if s.lines.0 <= line && line <= s.lines.1 {
-                if let Some(i) = s.rules.iter().position(|r| r == d.rule) {
-                    s.used[i] = true;
+                if let Some(i) = s.rules.iter().position(|r| r.rule == d.rule) {
+                    if let Some(used) = s.used.get_mut(i) {
+                        *used = true;
+                    }
                     silenced = true;
                 }
             }
@@ -148,11 +261,15 @@ pub fn apply(source: &str, file: &SourceFile, diagnostics: Vec<Diagnostic>) -> V
         }
     }
     for s in &suppressions {
-        for (rule, used) in s.rules.iter().zip(&s.used) {
+        for (named, used) in s.rules.iter().zip(&s.used) {
             if !used {
                 kept.push(
-                    Diagnostic::new(&rules::UNUSED_SUPPRESSION, s.comment.clone(), format!("this suppression of `{rule}` silences nothing"))
-                        .with_help("remove it, or move it to the line where the rule fires"),
+                    Diagnostic::new(
+                        &rules::UNUSED_SUPPRESSION,
+                        named.span.clone(),
+                        format!("this suppression of `{}` silences nothing", named.rule),
+                    )
+                    .with_help("remove it, or move it to the line where the rule fires"),
                 );
             }
         }

@@ -1,0 +1,342 @@
+//! Tests of suppression comments (docs/language.md, section 9): each form, reasons,
+//! several rules, unknown rules and directives, and the reports of suppressions that
+//! silence nothing.
+
+use sdeck_checks::{check, RuleSettings};
+use sdeck_syntax::{Encoding, LineIndex};
+
+/// (1-based line, rule) of every diagnostic, in output order.
+fn fired(text: &str) -> Vec<(u32, &'static str)> {
+    let result = check(text, "suppression_test", &RuleSettings::default());
+    let index = LineIndex::new(text);
+    result
+        .diagnostics
+        .iter()
+        .map(|d| {
+            (
+                index.line_col(text, d.span.start, Encoding::Chars).line + 1,
+                d.rule,
+            )
+        })
+        .collect()
+}
+
+/// The diagnostics of one rule with their messages and the text their span covers.
+fn reports<'a>(text: &'a str, rule: &str) -> Vec<(String, &'a str)> {
+    check(text, "suppression_test", &RuleSettings::default())
+        .diagnostics
+        .into_iter()
+        .filter(|d| d.rule == rule)
+        .map(|d| (d.message.clone(), text.get(d.span.clone()).unwrap_or("")))
+        .collect()
+}
+
+/// A sound model with one unused parameter (`level_stress`, line 6) and a Feller
+/// violation (the equation, line 11). Lines are numbered in the comments.
+const BASE: &str = "\
+model larrowmere_rates
+clock year
+param kappa = 0.5  [1/year]       > 0
+param level = 2%                  >= 0
+param vol   = 20%  [1/sqrt(year)] > 0
+param level_stress = 5.5%
+noise W
+state r = 1.8% >= 0
+# (line 9)
+# (line 10)
+dr = kappa * (level - r) dt + vol * sqrt(r) dW
+";
+
+fn with_line(line_number: usize, replacement: &str) -> String {
+    BASE.lines()
+        .enumerate()
+        .map(|(i, l)| {
+            if i + 1 == line_number {
+                replacement.to_string()
+            } else {
+                l.to_string()
+            }
+        })
+        .collect::<Vec<_>>()
+        .join("\n")
+        + "\n"
+}
+
+#[test]
+fn the_base_model_fires_both_rules() {
+    assert_eq!(fired(BASE), vec![(6, "unused"), (11, "feller-condition")]);
+}
+
+#[test]
+fn trailing_quiet_silences_its_statement() {
+    let text = with_line(
+        6,
+        "param level_stress = 5.5%   # sdeck: quiet unused -- read by the stress script",
+    );
+    assert_eq!(fired(&text), vec![(11, "feller-condition")]);
+}
+
+#[test]
+fn trailing_quiet_without_a_reason_works_too() {
+    let text = with_line(6, "param level_stress = 5.5%   # sdeck: quiet unused");
+    assert_eq!(fired(&text), vec![(11, "feller-condition")]);
+}
+
+#[test]
+fn standalone_quiet_silences_the_next_statement() {
+    let text = with_line(
+        10,
+        "# sdeck: quiet feller-condition -- zero is accepted, see risk memo 14",
+    );
+    assert_eq!(fired(&text), vec![(6, "unused")]);
+}
+
+#[test]
+fn standalone_quiet_covers_every_line_of_a_multi_line_statement() {
+    // The Feller report stands on the equation's first line; the suppression above the
+    // statement covers it, and a suppression trailing the continuation line covers it too.
+    let split = BASE.replace(
+        "dr = kappa * (level - r) dt + vol * sqrt(r) dW\n",
+        "dr = kappa * (level - r) dt\n     + vol * sqrt(r) dW\n",
+    );
+    assert_eq!(fired(&split), vec![(6, "unused"), (11, "feller-condition")]);
+    let above = split.replace("# (line 10)", "# sdeck: quiet feller-condition -- accepted");
+    assert_eq!(fired(&above), vec![(6, "unused")]);
+    let trailing = split.replace(
+        "     + vol * sqrt(r) dW\n",
+        "     + vol * sqrt(r) dW   # sdeck: quiet feller-condition -- accepted\n",
+    );
+    assert_eq!(fired(&trailing), vec![(6, "unused")]);
+}
+
+#[test]
+fn a_trailing_quiet_does_not_reach_the_next_statement() {
+    // Line 5 carries the suppression; the unused parameter is on line 6.
+    let text = with_line(
+        5,
+        "param vol   = 20%  [1/sqrt(year)] > 0   # sdeck: quiet unused",
+    );
+    assert_eq!(
+        fired(&text),
+        vec![
+            (5, "unused-suppression"),
+            (6, "unused"),
+            (11, "feller-condition")
+        ]
+    );
+}
+
+#[test]
+fn standalone_quiet_skips_blank_and_comment_lines_to_the_next_statement() {
+    let text = with_line(
+        9,
+        "# sdeck: quiet feller-condition -- the next statement is two lines down",
+    );
+    assert_eq!(fired(&text), vec![(6, "unused")]);
+}
+
+#[test]
+fn several_rules_in_one_comment() {
+    let text = BASE.replace(
+        "param level_stress = 5.5%\n",
+        "param level_stress = 5.5%   # sdeck: quiet unused, feller-condition -- both\n",
+    );
+    // `unused` silences line 6; `feller-condition` silences nothing there.
+    assert_eq!(
+        fired(&text),
+        vec![(6, "unused-suppression"), (11, "feller-condition")]
+    );
+    let message = reports(&text, "unused-suppression");
+    assert_eq!(message.len(), 1);
+    assert!(message[0].0.contains("`feller-condition`"), "{message:?}");
+}
+
+#[test]
+fn begin_and_end_silence_the_lines_between() {
+    let text = with_line(
+        4,
+        "# sdeck: quiet-begin unused, feller-condition -- legacy block",
+    )
+    .replace("# (line 9)", "param level = 2%                  >= 0");
+    // Line 4 now opens the range; `level` moves to line 9 (inside the range too).
+    let text = text.replace("# (line 10)", "");
+    let closed = format!("{text}# sdeck: quiet-end unused, feller-condition\n");
+    assert_eq!(fired(&closed), vec![]);
+    // After quiet-end the rule speaks again.
+    let after = format!("{closed}param level_after = 1%\n");
+    let lines = after.lines().count() as u32;
+    assert_eq!(fired(&after), vec![(lines, "unused")]);
+}
+
+#[test]
+fn an_open_begin_runs_to_the_end_of_the_file() {
+    let text = with_line(9, "# sdeck: quiet-begin feller-condition -- until the end");
+    assert_eq!(fired(&text), vec![(6, "unused")]);
+}
+
+#[test]
+fn an_unused_range_is_reported_at_its_begin() {
+    let text = with_line(9, "# sdeck: quiet-begin unused -- nothing unused below")
+        .replace("dr = kappa", "# sdeck: quiet-end unused\ndr = kappa");
+    assert_eq!(
+        fired(&text),
+        vec![
+            (6, "unused"),
+            (9, "unused-suppression"),
+            (12, "feller-condition")
+        ]
+    );
+}
+
+#[test]
+fn an_end_without_a_begin_is_reported() {
+    let text = with_line(9, "# sdeck: quiet-end unused");
+    let found = fired(&text);
+    assert!(found.contains(&(9, "unused-suppression")), "{found:?}");
+    let message = reports(&text, "unused-suppression");
+    assert!(message[0].0.contains("closes no"), "{message:?}");
+}
+
+#[test]
+fn quiet_file_silences_everywhere() {
+    let text = with_line(
+        1,
+        "# sdeck: quiet-file unused, feller-condition -- a scratch model",
+    );
+    assert_eq!(fired(&text), vec![]);
+}
+
+#[test]
+fn quiet_file_that_silences_nothing_is_reported() {
+    let text = with_line(9, "# sdeck: quiet-file state-domain");
+    assert_eq!(
+        fired(&text),
+        vec![
+            (6, "unused"),
+            (9, "unused-suppression"),
+            (11, "feller-condition")
+        ]
+    );
+}
+
+#[test]
+fn an_unknown_rule_is_reported_and_silences_nothing() {
+    let text = with_line(
+        6,
+        "param level_stress = 5.5%   # sdeck: quiet unsued -- misspelt",
+    );
+    assert_eq!(
+        fired(&text),
+        vec![
+            (6, "unused"),
+            (6, "unused-suppression"),
+            (11, "feller-condition")
+        ]
+    );
+    let report = reports(&text, "unused-suppression");
+    assert!(report[0].0.contains("`unsued` is not a rule"), "{report:?}");
+}
+
+#[test]
+fn a_known_rule_beside_an_unknown_one_still_silences() {
+    let text = with_line(
+        6,
+        "param level_stress = 5.5%   # sdeck: quiet unused, unsued -- one misspelt",
+    );
+    assert_eq!(
+        fired(&text),
+        vec![(6, "unused-suppression"), (11, "feller-condition")]
+    );
+    let report = reports(&text, "unused-suppression");
+    assert_eq!(report.len(), 1, "{report:?}");
+    assert!(report[0].0.contains("`unsued`"));
+}
+
+#[test]
+fn an_unknown_directive_is_reported() {
+    let text = with_line(9, "# sdeck: hush unused");
+    let report = reports(&text, "unused-suppression");
+    assert_eq!(report.len(), 1, "{report:?}");
+    assert!(
+        report[0].0.contains("`sdeck: hush` is not a directive"),
+        "{report:?}"
+    );
+    // And it silences nothing.
+    assert!(fired(&text).contains(&(6, "unused")));
+}
+
+#[test]
+fn a_directive_naming_no_rule_is_reported() {
+    for comment in ["# sdeck: quiet", "# sdeck: quiet -- no rule, only a reason"] {
+        let text = with_line(9, comment);
+        let report = reports(&text, "unused-suppression");
+        assert_eq!(report.len(), 1, "{comment}: {report:?}");
+        assert!(report[0].0.contains("names no rule"), "{report:?}");
+    }
+}
+
+#[test]
+fn the_report_points_at_the_rule_name() {
+    // docs/language.md, section 11: `unused-suppression` is reported at the rule name.
+    let text = with_line(
+        9,
+        "# sdeck: quiet state-domain, feller-condition -- one of two is stale",
+    );
+    let report = reports(&text, "unused-suppression");
+    assert_eq!(report.len(), 1, "{report:?}");
+    assert_eq!(report[0].1, "state-domain");
+    let text = with_line(9, "# sdeck: quiet unsued");
+    assert_eq!(reports(&text, "unused-suppression")[0].1, "unsued");
+}
+
+#[test]
+fn a_reason_may_hold_rule_names_and_commas() {
+    let text = with_line(
+        6,
+        "param level_stress = 5.5%   # sdeck: quiet unused -- not feller-condition, nor unused elsewhere",
+    );
+    assert_eq!(fired(&text), vec![(11, "feller-condition")]);
+}
+
+#[test]
+fn ordinary_comments_and_other_prefixes_are_not_suppressions() {
+    for comment in [
+        "# sdeck quiet unused",
+        "# note: sdeck: quiet unused",
+        "# quiet unused",
+    ] {
+        let text = with_line(9, comment);
+        assert_eq!(
+            fired(&text),
+            vec![(6, "unused"), (11, "feller-condition")],
+            "{comment}"
+        );
+    }
+}
+
+#[test]
+fn silenced_diagnostics_stay_silenced_under_project_levels() {
+    // A project that raises a rule to error does not bring back a silenced finding.
+    let mut settings = RuleSettings::default();
+    settings.levels.insert(
+        "feller-condition".to_string(),
+        sdeck_checks::RuleLevel::On(sdeck_diagnostics::Severity::Error),
+    );
+    let text = with_line(10, "# sdeck: quiet feller-condition -- accepted");
+    let result = check(&text, "suppression_test", &settings);
+    assert!(result
+        .diagnostics
+        .iter()
+        .all(|d| d.rule != "feller-condition"));
+    // Turning `unused-suppression` off hides the reports of stale suppressions.
+    settings.levels.insert(
+        "unused-suppression".to_string(),
+        sdeck_checks::RuleLevel::Off,
+    );
+    let stale = with_line(9, "# sdeck: quiet-file state-domain");
+    let result = check(&stale, "suppression_test", &settings);
+    assert!(result
+        .diagnostics
+        .iter()
+        .all(|d| d.rule != "unused-suppression"));
+}
