@@ -1,0 +1,345 @@
+//! Code actions: every fix a diagnostic carries becomes a quick fix; a Feller breach
+//! offers to move the speed or the volatility to the boundary; a correlation matrix that
+//! is not positive semi-definite offers the nearest correlation matrix; and any equation
+//! offers to insert its derived moments as a comment above it.
+
+use crate::analysis::Analyzed;
+use crate::documents::PositionEncoding;
+use crate::nearest_correlation::nearest_correlation_rounded;
+use sdeck_diagnostics::{rules, Span, TextEdit};
+use sdeck_semantics::{fmt_num, SymbolKind};
+use sdeck_syntax::ast::StatementKind;
+use std::collections::HashMap;
+use tower_lsp::lsp_types::{
+    CodeAction, CodeActionKind, CodeActionOrCommand, Range, Url, WorkspaceEdit,
+};
+
+pub fn code_actions(
+    a: &Analyzed,
+    encoding: PositionEncoding,
+    uri: &Url,
+    range: Range,
+) -> Vec<CodeActionOrCommand> {
+    let converter = a.converter(encoding);
+    let mut out = Vec::new();
+    let action = |title: String,
+                  kind: CodeActionKind,
+                  edits: &[TextEdit],
+                  diagnostic: Option<&sdeck_diagnostics::Diagnostic>,
+                  preferred: bool| {
+        CodeActionOrCommand::CodeAction(CodeAction {
+            title,
+            kind: Some(kind),
+            diagnostics: diagnostic.map(|d| vec![converter.diagnostic(uri, d)]),
+            edit: Some(WorkspaceEdit {
+                changes: Some(HashMap::from([(uri.clone(), converter.edits(edits))])),
+                document_changes: None,
+                change_annotations: None,
+            }),
+            command: None,
+            is_preferred: preferred.then_some(true),
+            disabled: None,
+            data: None,
+        })
+    };
+    for d in &a.check.diagnostics {
+        if !converter.meets(&d.span, range) {
+            continue;
+        }
+        for (k, fix) in d.fixes.iter().enumerate() {
+            out.push(action(
+                fix.title.clone(),
+                CodeActionKind::QUICKFIX,
+                &fix.edits,
+                Some(d),
+                k == 0,
+            ));
+        }
+        if d.rule == rules::FELLER_CONDITION.name {
+            for (title, edits) in feller_fixes(a, &d.span) {
+                out.push(action(
+                    title,
+                    CodeActionKind::QUICKFIX,
+                    &edits,
+                    Some(d),
+                    false,
+                ));
+            }
+        }
+        if d.rule == rules::CORRELATION_NOT_PSD.name {
+            if let Some((title, edits)) = nearest_correlation_fix(a) {
+                out.push(action(
+                    title,
+                    CodeActionKind::QUICKFIX,
+                    &edits,
+                    Some(d),
+                    true,
+                ));
+            }
+        }
+    }
+    for (title, edits) in moments_comment(a, |span| converter.meets(span, range)) {
+        out.push(action(title, CodeActionKind::REFACTOR, &edits, None, false));
+    }
+    out
+}
+
+fn overlaps(a: &Span, b: &Span) -> bool {
+    a.start <= b.end && b.start <= a.end
+}
+
+/// `value` written in the style of `original` (`%`, `bp` or plain), and the value that
+/// text stands for.
+fn write_like(original: &str, value: f64) -> (String, f64) {
+    let (factor, suffix) = if original.ends_with('%') {
+        (100.0, "%")
+    } else if original.ends_with("bp") {
+        (10_000.0, "bp")
+    } else {
+        (1.0, "")
+    };
+    let text = fmt_num(value * factor);
+    let parsed = text.parse::<f64>().map(|v| v / factor).unwrap_or(f64::NAN);
+    (format!("{text}{suffix}"), parsed)
+}
+
+/// The text for a value rounded so that `safe` holds, nudging in `direction` (+1 up,
+/// −1 down) until it does.
+fn safe_text(
+    original: &str,
+    value: f64,
+    direction: f64,
+    safe: impl Fn(f64) -> bool,
+) -> Option<String> {
+    let mut target = value;
+    for _ in 0..40 {
+        let (text, written) = write_like(original, target);
+        if written.is_finite() && safe(written) {
+            return Some(text);
+        }
+        target *= 1.0 + direction * 1e-5;
+    }
+    None
+}
+
+/// Moving the speed up, or the volatility down, to the Feller boundary 2·speed·level = vol².
+fn feller_fixes(a: &Analyzed, span: &Span) -> Vec<(String, Vec<TextEdit>)> {
+    let model = &a.check.analysis.model;
+    let mut out = Vec::new();
+    for (j, state) in model.states.iter().enumerate() {
+        let touches = overlaps(&state.span, span)
+            || state
+                .equation
+                .as_ref()
+                .is_some_and(|e| overlaps(&e.span, span));
+        if !touches {
+            continue;
+        }
+        let Some(law) = a.check.derivation.states.get(j) else {
+            continue;
+        };
+        let Some(sr) = &law.square_root else { continue };
+        let Some(terms) = sdeck_calculus::describe::square_root_terms(model, j) else {
+            continue;
+        };
+        if !(sr.level > 0.0 && sr.speed > 0.0 && sr.vol.is_finite()) {
+            continue;
+        }
+        let vol_squared = sr.vol * sr.vol;
+        if 2.0 * sr.speed * sr.level >= vol_squared {
+            continue;
+        }
+        if let Some(p) = terms.speed_param.and_then(|i| model.params.get(i)) {
+            if let Some(decl) = a.declaration(SymbolKind::Param, &p.name) {
+                // The speed in clock units is written × scale.
+                let boundary = vol_squared / (2.0 * sr.level) / p.scale;
+                let factor = sr.speed / p.value; // how the param enters the speed
+                if let Some(text) = safe_text(&decl.value.text, boundary, 1.0, |w| {
+                    2.0 * w * p.scale * factor * sr.level >= vol_squared
+                }) {
+                    if factor == 1.0 {
+                        out.push((
+                            format!(
+                                "Raise `{}` to {text} (Feller boundary: 2·{}·{} = {} at {})",
+                                p.name, terms.speed, terms.level, terms.vol_squared, text
+                            ),
+                            vec![TextEdit {
+                                span: decl.value.span.clone(),
+                                new_text: text,
+                            }],
+                        ));
+                    }
+                }
+            }
+        }
+        if let Some(p) = terms.vol_param.and_then(|i| model.params.get(i)) {
+            if let Some(decl) = a.declaration(SymbolKind::Param, &p.name) {
+                let boundary = (2.0 * sr.speed * sr.level).sqrt() / p.scale;
+                let factor = sr.vol / p.value;
+                if factor == 1.0 {
+                    if let Some(text) = safe_text(&decl.value.text, boundary, -1.0, |w| {
+                        let vol = w * p.scale;
+                        2.0 * sr.speed * sr.level >= vol * vol
+                    }) {
+                        out.push((
+                            format!(
+                                "Lower `{}` to {text} (Feller boundary: {} = 2·{}·{} at {})",
+                                p.name, terms.vol_squared, terms.speed, terms.level, text
+                            ),
+                            vec![TextEdit {
+                                span: decl.value.span.clone(),
+                                new_text: text,
+                            }],
+                        ));
+                    }
+                }
+            }
+        }
+    }
+    out
+}
+
+/// Replaces the `corr` values with the nearest correlation matrix (Higham 2002), adding
+/// `corr` statements for pairs that become correlated.
+fn nearest_correlation_fix(a: &Analyzed) -> Option<(String, Vec<TextEdit>)> {
+    let model = &a.check.analysis.model;
+    let matrix = model.correlation_matrix();
+    let near = nearest_correlation_rounded(&matrix, 4)?;
+    let mut edits = Vec::new();
+    let mut written = vec![vec![false; near.len()]; near.len()];
+    let mut last_corr_end: Option<usize> = None;
+    let mut last_noise_end: Option<usize> = None;
+    for statement in &a.check.analysis.file.statements {
+        match &statement.kind {
+            StatementKind::Corr {
+                first,
+                second,
+                value,
+            } => {
+                last_corr_end = Some(statement.span.end);
+                let i = model.noises.iter().position(|n| n.name == first.name)?;
+                let j = model.noises.iter().position(|n| n.name == second.name)?;
+                if i == j {
+                    continue;
+                }
+                let target = near.get(i)?.get(j).copied()?;
+                written[i][j] = true;
+                written[j][i] = true;
+                if (target - value.value).abs() > 1e-12 {
+                    edits.push(TextEdit {
+                        span: value.span.clone(),
+                        new_text: fmt_num(target),
+                    });
+                }
+            }
+            StatementKind::Noise { .. } => last_noise_end = Some(statement.span.end),
+            _ => {}
+        }
+    }
+    let mut added = String::new();
+    for i in 0..near.len() {
+        for j in i + 1..near.len() {
+            if !written[i][j] && near[i][j] != 0.0 {
+                added.push_str(&format!(
+                    "corr {} {} = {}\n",
+                    model.noises[i].name,
+                    model.noises[j].name,
+                    fmt_num(near[i][j])
+                ));
+            }
+        }
+    }
+    if !added.is_empty() {
+        let after = last_corr_end.or(last_noise_end).unwrap_or(0);
+        let at = a
+            .text
+            .get(after..)
+            .and_then(|rest| rest.find('\n'))
+            .map(|k| after + k + 1);
+        match at {
+            Some(at) => edits.push(TextEdit {
+                span: at..at,
+                new_text: added,
+            }),
+            None => edits.push(TextEdit {
+                span: a.text.len()..a.text.len(),
+                new_text: format!("\n{added}"),
+            }),
+        }
+    }
+    if edits.is_empty() {
+        return None;
+    }
+    Some((
+        "Replace the correlations with the nearest correlation matrix (Higham 2002)".to_string(),
+        edits,
+    ))
+}
+
+/// For each equation the range touches: its derived moments as a comment above it.
+fn moments_comment(a: &Analyzed, in_range: impl Fn(&Span) -> bool) -> Vec<(String, Vec<TextEdit>)> {
+    let model = &a.check.analysis.model;
+    let clock = &model.clock.unit;
+    let mut out = Vec::new();
+    for (i, state) in model.states.iter().enumerate() {
+        let Some(equation) = &state.equation else {
+            continue;
+        };
+        if !in_range(&equation.span) {
+            continue;
+        }
+        let Some(law) = a.check.derivation.states.get(i) else {
+            continue;
+        };
+        let line_start = a
+            .text
+            .get(..equation.span.start)
+            .and_then(|t| t.rfind('\n'))
+            .map(|k| k + 1)
+            .unwrap_or(0);
+        let indent: String = a
+            .text
+            .get(line_start..equation.span.start)
+            .unwrap_or("")
+            .chars()
+            .take_while(|c| c.is_whitespace())
+            .collect();
+        let mut lines = vec![format!("{}: {}", state.name, law.family.as_str())];
+        for (label, text) in [
+            ("mean", &law.formulas.mean),
+            ("variance", &law.formulas.variance),
+            ("stationary", &law.formulas.stationary),
+        ] {
+            if let Some(t) = text {
+                lines.push(format!("{label:<10} {}", t.replace('\n', " ")));
+            }
+        }
+        let mean = a.moments.mean.get(i).copied().flatten();
+        let variance = a.moments.variance.get(i).copied().flatten();
+        if let (Some(m), Some(v)) = (mean, variance) {
+            if m.is_finite() && v.is_finite() && v >= 0.0 {
+                lines.push(format!(
+                    "at t = {} {clock}: mean {}, sd {}",
+                    fmt_num(a.moments.at),
+                    fmt_num(m),
+                    fmt_num(v.sqrt())
+                ));
+            }
+        }
+        if let Some(h) = law.half_life {
+            lines.push(format!("half-life {} {clock}", fmt_num(h)));
+        }
+        let text: String = lines.iter().map(|l| format!("{indent}# {l}\n")).collect();
+        out.push((
+            format!(
+                "Insert the derived moments of `{}` as a comment",
+                state.name
+            ),
+            vec![TextEdit {
+                span: line_start..line_start,
+                new_text: text,
+            }],
+        ));
+    }
+    out
+}

@@ -1,0 +1,156 @@
+//! One analysed version of a document: the text, its line index, the result of the one
+//! analysis entry point (`sdeck_checks::check`) and the moments at the horizon. Every
+//! feature of the server reads one of these; none computes anything of its own.
+
+use crate::convert::Converter;
+use crate::documents::{PositionEncoding, TextSnapshot};
+use sdeck_calculus::Moments;
+use sdeck_checks::{FileCheck, RuleSettings};
+use sdeck_semantics::{Symbol, SymbolKind};
+use sdeck_syntax::ast::{Declaration, StatementKind};
+use sdeck_syntax::LineIndex;
+use std::path::Path;
+use tower_lsp::lsp_types::Url;
+
+/// The rule settings for a document: those of the `sdeck.toml` that governs its file
+/// (the same resolver as the CLI), or the defaults for a document not on disk.
+pub fn settings_for(uri: &Url) -> RuleSettings {
+    match uri.to_file_path() {
+        Ok(path) => sdeck_project::settings_for(Path::new(&path)),
+        Err(()) => RuleSettings::default(),
+    }
+}
+
+/// A document's text at one version, analysed.
+pub struct Analyzed {
+    pub version: i32,
+    pub text: String,
+    pub index: LineIndex,
+    pub check: FileCheck,
+    /// Means, variances and covariances at the model's horizon (what `sdeck moments`
+    /// prints by default).
+    pub moments: Moments,
+}
+
+impl Analyzed {
+    /// Runs the analysis. The caller guards against panics.
+    pub fn compute(snapshot: TextSnapshot) -> Analyzed {
+        let check = sdeck_checks::check(&snapshot.text, &snapshot.stem, &snapshot.settings);
+        let model = &check.analysis.model;
+        let moments = sdeck_calculus::moments_at(model, &check.derivation, model.horizon);
+        let index = LineIndex::new(&snapshot.text);
+        Analyzed {
+            version: snapshot.version,
+            text: snapshot.text,
+            index,
+            check,
+            moments,
+        }
+    }
+
+    pub fn converter(&self, encoding: PositionEncoding) -> Converter<'_> {
+        Converter {
+            text: &self.text,
+            index: &self.index,
+            encoding,
+        }
+    }
+
+    /// The declared symbol named at `offset`, whether the cursor is on its declaration
+    /// or on a use of it. The end of a name counts (the cursor just after it).
+    pub fn symbol_at(&self, offset: usize) -> Option<&Symbol> {
+        let analysis = &self.check.analysis;
+        if let Some(s) = analysis
+            .symbols
+            .iter()
+            .find(|s| s.name_span.start <= offset && offset <= s.name_span.end)
+        {
+            return Some(s);
+        }
+        let reference = analysis
+            .references
+            .iter()
+            .find(|r| r.span.start <= offset && offset <= r.span.end)?;
+        analysis
+            .symbols
+            .iter()
+            .find(|s| s.name_span == reference.declaration)
+    }
+
+    /// Every span naming `symbol`: its declaration first, then its uses.
+    pub fn occurrences(&self, symbol: &Symbol) -> Vec<sdeck_diagnostics::Span> {
+        let mut spans = vec![symbol.name_span.clone()];
+        spans.extend(
+            self.check
+                .analysis
+                .references
+                .iter()
+                .filter(|r| r.declaration == symbol.name_span)
+                .map(|r| r.span.clone()),
+        );
+        spans
+    }
+
+    /// The syntax of the `param` or `state` declaration of `name`.
+    pub fn declaration(&self, kind: SymbolKind, name: &str) -> Option<&Declaration> {
+        self.check
+            .analysis
+            .file
+            .statements
+            .iter()
+            .find_map(|s| match (&s.kind, kind) {
+                (StatementKind::Param(d), SymbolKind::Param)
+                | (StatementKind::State(d), SymbolKind::State)
+                    if d.name.name == name =>
+                {
+                    Some(d)
+                }
+                _ => None,
+            })
+    }
+
+    /// The roles a parameter plays in the equations, with the state each concerns.
+    pub fn roles_of_param(&self, param: usize) -> Vec<Role> {
+        let model = &self.check.analysis.model;
+        let Some(p) = model.params.get(param) else {
+            return Vec::new();
+        };
+        let mut roles = Vec::new();
+        for (state, law) in self.check.derivation.states.iter().enumerate() {
+            if let Some(terms) = sdeck_calculus::describe::square_root_terms(model, state) {
+                if terms.speed_param == Some(param) {
+                    roles.push(Role::Speed {
+                        state,
+                        half_life: law.half_life,
+                    });
+                }
+                if terms.vol_param == Some(param) {
+                    roles.push(Role::Volatility { state });
+                }
+                continue;
+            }
+            if let Some(slope) = sdeck_calculus::describe::drift_slope_text(model, state) {
+                let slope = slope.replace('−', "-");
+                if slope == format!("-{}", p.name) {
+                    roles.push(Role::Speed {
+                        state,
+                        half_life: law.half_life,
+                    });
+                }
+            }
+        }
+        roles
+    }
+}
+
+/// What a parameter is to a state.
+#[derive(Clone, Debug, PartialEq)]
+pub enum Role {
+    /// The speed of mean reversion, with the state's half-life (clock units) when known.
+    Speed {
+        state: usize,
+        half_life: Option<f64>,
+    },
+    /// The volatility of a square-root state.
+    Volatility { state: usize },
+}

@@ -1,0 +1,79 @@
+//! Inlay hints: the converted value after a param written in another time unit, the
+//! half-life after a mean-reversion speed, the stationary standard deviation after an
+//! equation.
+
+use crate::analysis::{Analyzed, Role};
+use crate::documents::PositionEncoding;
+use sdeck_semantics::{fmt_num, SymbolKind};
+use tower_lsp::lsp_types::{InlayHint, InlayHintKind, InlayHintLabel, Range};
+
+pub fn inlay_hints(a: &Analyzed, encoding: PositionEncoding, range: Range) -> Vec<InlayHint> {
+    let converter = a.converter(encoding);
+    let model = &a.check.analysis.model;
+    let clock = &model.clock.unit;
+    let mut hints: Vec<(usize, String)> = Vec::new();
+    for (i, p) in model.params.iter().enumerate() {
+        let Some(declaration) = a.declaration(SymbolKind::Param, &p.name) else {
+            continue;
+        };
+        if p.scale.is_finite() && p.scale != 1.0 {
+            if let Some(unit) = &declaration.unit {
+                // After the closing bracket of the unit.
+                let unit_end = unit.span().end;
+                let close = a
+                    .text
+                    .get(unit_end..p.span.end.max(unit_end))
+                    .and_then(|rest| rest.find(']'))
+                    .map(|k| unit_end + k + 1)
+                    .unwrap_or(unit_end);
+                hints.push((
+                    close,
+                    format!("= {} [{}]", fmt_num(p.value), p.dimension.display_in(clock)),
+                ));
+            }
+        }
+        for role in a.roles_of_param(i) {
+            if let Role::Speed {
+                half_life: Some(h), ..
+            } = role
+            {
+                hints.push((p.span.end, format!("half-life {} {clock}", fmt_num(h))));
+            }
+        }
+    }
+    for (i, state) in model.states.iter().enumerate() {
+        let Some(equation) = &state.equation else {
+            continue;
+        };
+        let Some(stationary) = a
+            .check
+            .derivation
+            .states
+            .get(i)
+            .and_then(|l| l.stationary.as_ref())
+        else {
+            continue;
+        };
+        if stationary.variance.is_finite() && stationary.variance >= 0.0 {
+            hints.push((
+                equation.span.end,
+                format!("stationary sd {}", fmt_num(stationary.variance.sqrt())),
+            ));
+        }
+    }
+    hints.sort_by_key(|(offset, _)| *offset);
+    hints
+        .into_iter()
+        .filter(|(offset, _)| converter.meets(&(*offset..*offset), range))
+        .map(|(offset, label)| InlayHint {
+            position: converter.position(offset),
+            label: InlayHintLabel::String(label),
+            kind: Some(InlayHintKind::TYPE),
+            text_edits: None,
+            tooltip: None,
+            padding_left: Some(true),
+            padding_right: Some(false),
+            data: None,
+        })
+        .collect()
+}

@@ -1,0 +1,341 @@
+//! Hover: the derived law of a state, the converted value and role of a param, the
+//! correlations of a noise, the scale of a unit. Every figure is formatted with
+//! `sdeck_semantics::fmt_num`, as `sdeck moments` prints it.
+
+use crate::analysis::{Analyzed, Role};
+use crate::documents::PositionEncoding;
+use sdeck_semantics::{fmt_num, Model, SymbolKind};
+use sdeck_syntax::ast::{Expr, Quantity, StatementKind, UnitExpr};
+use tower_lsp::lsp_types::{Hover, HoverContents, MarkupContent, MarkupKind, Position};
+
+pub fn hover(a: &Analyzed, encoding: PositionEncoding, position: Position) -> Option<Hover> {
+    let converter = a.converter(encoding);
+    let offset = converter.offset(position);
+    let model = &a.check.analysis.model;
+    let (markdown, span) = if let Some(symbol) = a.symbol_at(offset) {
+        let text = match symbol.kind {
+            SymbolKind::State => state_text(a, model.state_index(&symbol.name)?),
+            SymbolKind::Param => param_text(a, model.param_index(&symbol.name)?),
+            SymbolKind::Noise => noise_text(model, &symbol.name)?,
+            SymbolKind::Let => let_text(model, &symbol.name)?,
+            SymbolKind::Unit => unit_text(model, &symbol.name),
+        };
+        let span = a
+            .occurrences(symbol)
+            .into_iter()
+            .find(|s| s.start <= offset && offset <= s.end)
+            .unwrap_or(symbol.name_span.clone());
+        (text, span)
+    } else {
+        let (name, span) = unit_name_at(a, offset)?;
+        (unit_text(model, &name), span)
+    };
+    Some(Hover {
+        contents: HoverContents::Markup(MarkupContent {
+            kind: MarkupKind::Markdown,
+            value: markdown,
+        }),
+        range: Some(converter.range(&span)),
+    })
+}
+
+fn or_unknown(x: Option<f64>) -> String {
+    match x {
+        Some(v) if v.is_finite() => fmt_num(v),
+        _ => "not known".to_string(),
+    }
+}
+
+/// Family, formulas and the figures at the horizon.
+pub fn state_text(a: &Analyzed, i: usize) -> String {
+    let model = &a.check.analysis.model;
+    let Some(state) = model.states.get(i) else {
+        return String::new();
+    };
+    let clock = &model.clock.unit;
+    let mut s = format!("**state `{}`**", state.name);
+    let law = a.check.derivation.states.get(i);
+    if let Some(law) = law {
+        s.push_str(&format!(" · {}\n\n{}\n", law.family.as_str(), law.reason));
+    } else {
+        s.push('\n');
+    }
+    if let Some(description) = &state.description {
+        s.push_str(&format!("\n_{}_\n", description.trim()));
+    }
+    if let Some(law) = law {
+        let f = &law.formulas;
+        let lines: Vec<String> = [
+            ("solution", &f.solution),
+            ("mean", &f.mean),
+            ("variance", &f.variance),
+            ("autocov.", &f.autocovariance),
+            ("transition", &f.transition),
+            ("stationary", &f.stationary),
+        ]
+        .iter()
+        .filter_map(|(label, text)| text.as_ref().map(|t| format!("{label:<10} {t}")))
+        .collect();
+        if !lines.is_empty() {
+            s.push_str(&format!("\n```text\n{}\n```\n", lines.join("\n")));
+        }
+    }
+    let mean = a.moments.mean.get(i).copied().flatten();
+    let variance = a.moments.variance.get(i).copied().flatten();
+    s.push_str(&format!(
+        "\nAt the horizon, t = {} {clock}:\n\n| figure | value |\n|---|---|\n",
+        fmt_num(a.moments.at)
+    ));
+    s.push_str(&format!("| mean | {} |\n", or_unknown(mean)));
+    s.push_str(&format!("| variance | {} |\n", or_unknown(variance)));
+    s.push_str(&format!(
+        "| standard deviation | {} |\n",
+        or_unknown(variance.filter(|v| *v >= 0.0).map(f64::sqrt))
+    ));
+    if let Some(law) = law {
+        if let Some(h) = law.half_life {
+            s.push_str(&format!("| half-life | {} {clock} |\n", fmt_num(h)));
+        }
+        if let Some(st) = &law.stationary {
+            s.push_str(&format!(
+                "| stationary law | {} (mean {}, sd {}) |\n",
+                st.law,
+                fmt_num(st.mean),
+                fmt_num(st.variance.max(0.0).sqrt())
+            ));
+        }
+    }
+    if a.check.analysis.has_errors() {
+        s.push_str("\n_The model has errors: these figures rest on what could be resolved._\n");
+    }
+    s
+}
+
+/// Value in the clock's units, bound, description and role.
+fn param_text(a: &Analyzed, i: usize) -> String {
+    let model = &a.check.analysis.model;
+    let Some(p) = model.params.get(i) else {
+        return String::new();
+    };
+    let clock = &model.clock.unit;
+    let written_unit = p
+        .unit_text
+        .as_ref()
+        .map(|u| format!(" [{u}]"))
+        .unwrap_or_default();
+    let declaration = a.declaration(SymbolKind::Param, &p.name);
+    let written = declaration
+        .map(|d| d.value.text.clone())
+        .unwrap_or_else(|| fmt_num(p.written));
+    let mut s = format!("**param `{}`** = {written}{written_unit}\n", p.name);
+    if p.scale.is_finite() && p.scale != 1.0 {
+        s.push_str(&format!(
+            "\n= {} [{}] on the model's clock ({} × {})\n",
+            fmt_num(p.value),
+            p.dimension.display_in(clock),
+            written,
+            fmt_num(p.scale)
+        ));
+    } else {
+        s.push_str(&format!(
+            "\nvalue {} [{}]\n",
+            fmt_num(p.value),
+            p.dimension.display_in(clock)
+        ));
+    }
+    if let Some(bound) = declaration.and_then(|d| d.bound.as_ref()) {
+        if let Some(text) = a.text.get(bound.span.clone()) {
+            s.push_str(&format!("\nbound: `{}`\n", text.trim()));
+        }
+    }
+    if let Some(description) = &p.description {
+        s.push_str(&format!("\n_{}_\n", description.trim()));
+    }
+    for role in a.roles_of_param(i) {
+        match role {
+            Role::Speed { state, half_life } => {
+                let name = model
+                    .states
+                    .get(state)
+                    .map(|s| s.name.as_str())
+                    .unwrap_or("?");
+                match half_life {
+                    Some(h) => s.push_str(&format!(
+                        "\nspeed of mean reversion of `{name}`: half-life {} {clock}\n",
+                        fmt_num(h)
+                    )),
+                    None => s.push_str(&format!("\nspeed of mean reversion of `{name}`\n")),
+                }
+            }
+            Role::Volatility { state } => {
+                let name = model
+                    .states
+                    .get(state)
+                    .map(|s| s.name.as_str())
+                    .unwrap_or("?");
+                s.push_str(&format!("\nvolatility of the square-root state `{name}`\n"));
+            }
+        }
+    }
+    s
+}
+
+fn noise_text(model: &Model, name: &str) -> Option<String> {
+    let index = model.noises.iter().position(|n| n.name == name)?;
+    let noise = &model.noises[index];
+    let mut s = format!("**noise `{}`** · standard Brownian motion\n", noise.name);
+    if let Some(description) = &noise.description {
+        s.push_str(&format!("\n_{}_\n", description.trim()));
+    }
+    let mut lines = Vec::new();
+    for c in &model.correlations {
+        let other = if c.first == index {
+            c.second
+        } else if c.second == index {
+            c.first
+        } else {
+            continue;
+        };
+        let other = model
+            .noises
+            .get(other)
+            .map(|n| n.name.as_str())
+            .unwrap_or("?");
+        lines.push(format!(
+            "- ρ({}, {other}) = {}",
+            noise.name,
+            fmt_num(c.value)
+        ));
+    }
+    if lines.is_empty() {
+        s.push_str("\nindependent of every other noise\n");
+    } else {
+        s.push_str(&format!("\ncorrelations:\n\n{}\n", lines.join("\n")));
+    }
+    Some(s)
+}
+
+fn let_text(model: &Model, name: &str) -> Option<String> {
+    let l = model.lets.iter().find(|l| l.name == name)?;
+    let mut s = format!("**let `{}`**\n", l.name);
+    let constant = !sdeck_calculus::algebra::expr_mentions_states(&l.value)
+        && !sdeck_calculus::algebra::expr_mentions_time(&l.value);
+    if constant {
+        let value = l.value.eval(&model.param_values(), &[], 0.0);
+        if value.is_finite() {
+            let unit = l
+                .dimension
+                .as_ref()
+                .map(|d| format!(" [{}]", d.display_in(&model.clock.unit)))
+                .unwrap_or_default();
+            s.push_str(&format!(
+                "\n= {}{unit} on the model's clock\n",
+                fmt_num(value)
+            ));
+        }
+    } else {
+        s.push_str("\ndepends on the states or on time\n");
+    }
+    if let Some(description) = &l.description {
+        s.push_str(&format!("\n_{}_\n", description.trim()));
+    }
+    Some(s)
+}
+
+/// A time unit's scale to the clock, or what a declared unit is.
+fn unit_text(model: &Model, name: &str) -> String {
+    match sdeck_units::time_unit_years(name) {
+        Some(years) => {
+            let scale = years / model.clock.years;
+            format!(
+                "**unit `{name}`** · time\n\n1 {name} = {} {} (the model's clock)\n",
+                fmt_num(scale),
+                model.clock.unit
+            )
+        }
+        None => format!(
+            "**unit `{name}`** · a base dimension declared in this file\n\nvalues in it are never rescaled\n"
+        ),
+    }
+}
+
+/// The unit name under the cursor in a unit expression (`[1/day]`, `6 month`, `clock`).
+fn unit_name_at(a: &Analyzed, offset: usize) -> Option<(String, sdeck_diagnostics::Span)> {
+    let mut found = None;
+    let mut visit = |u: &UnitExpr| {
+        walk_unit(u, &mut |ident| {
+            if ident.span.start <= offset && offset <= ident.span.end {
+                found = Some((ident.name.clone(), ident.span.clone()));
+            }
+        })
+    };
+    for statement in &a.check.analysis.file.statements {
+        if !(statement.span.start <= offset && offset <= statement.span.end) {
+            continue;
+        }
+        match &statement.kind {
+            StatementKind::Param(d) | StatementKind::State(d) => {
+                if let Some(u) = &d.unit {
+                    visit(u);
+                }
+            }
+            StatementKind::Horizon { value } => visit_quantity(value, &mut visit),
+            StatementKind::Clock { unit }
+                if unit.span.start <= offset && offset <= unit.span.end =>
+            {
+                return Some((unit.name.clone(), unit.span.clone()));
+            }
+            StatementKind::Expect(e) => {
+                if let Some(q) = &e.at {
+                    visit_quantity(q, &mut visit);
+                }
+                match &e.condition {
+                    sdeck_syntax::ast::Condition::Compare { value, .. } => {
+                        visit_quantity(value, &mut visit)
+                    }
+                    sdeck_syntax::ast::Condition::Within { lower, upper, .. } => {
+                        visit_quantity(lower, &mut visit);
+                        visit_quantity(upper, &mut visit);
+                    }
+                }
+            }
+            _ => {}
+        }
+    }
+    found
+}
+
+fn visit_quantity(q: &Quantity, visit: &mut impl FnMut(&UnitExpr)) {
+    if let Some(u) = &q.unit {
+        visit(u);
+    }
+}
+
+/// Calls `f` on every unit name in a unit expression.
+pub fn walk_unit(u: &UnitExpr, f: &mut impl FnMut(&sdeck_syntax::ast::Ident)) {
+    match u {
+        UnitExpr::One { .. } => {}
+        UnitExpr::Name(ident) => f(ident),
+        UnitExpr::Mul { lhs, rhs, .. } | UnitExpr::Div { lhs, rhs, .. } => {
+            walk_unit(lhs, f);
+            walk_unit(rhs, f);
+        }
+        UnitExpr::Pow { base, .. } => walk_unit(base, f),
+        UnitExpr::Sqrt { inner, .. } => walk_unit(inner, f),
+    }
+}
+
+/// Calls `f` on every sub-expression, outermost first.
+pub fn walk_expr(e: &Expr, f: &mut impl FnMut(&Expr)) {
+    f(e);
+    match e {
+        Expr::Number(_) | Expr::Name(_) => {}
+        Expr::Neg { operand, .. } => walk_expr(operand, f),
+        Expr::Binary { lhs, rhs, .. } => {
+            walk_expr(lhs, f);
+            walk_expr(rhs, f);
+        }
+        Expr::Call { args, .. } => args.iter().for_each(|x| walk_expr(x, f)),
+        Expr::Paren { inner, .. } => walk_expr(inner, f),
+    }
+}

@@ -1,0 +1,388 @@
+//! Tests of the server's features on analysed text: hover figures against published
+//! closed forms, quick fixes that make their diagnostic disappear, rename, tokens, and the
+//! panic guard. The protocol itself is tested end to end in tests/lsp.
+
+use crate::analysis::Analyzed;
+use crate::documents::{PositionEncoding, TextSnapshot};
+use sdeck_checks::RuleSettings;
+use sdeck_syntax::{LineCol, LineIndex};
+use std::sync::Arc;
+use tower_lsp::lsp_types::{
+    CodeActionOrCommand, HoverContents, Position, Range, TextEdit, Url, WorkspaceEdit,
+};
+
+const UTF16: PositionEncoding = PositionEncoding::Utf16;
+
+fn analyzed(text: &str) -> Analyzed {
+    Analyzed::compute(TextSnapshot {
+        text: text.to_string(),
+        version: 1,
+        settings: Arc::new(RuleSettings::default()),
+        stem: "test_model".to_string(),
+    })
+}
+
+fn uri() -> Url {
+    Url::parse("file:///tmp/test_model.sde").expect("a valid URI")
+}
+
+/// The protocol position of the first occurrence of `needle` (plus `after` chars).
+fn position_of(text: &str, needle: &str, after: usize) -> Position {
+    let offset = text.find(needle).expect("needle in text") + after;
+    let index = LineIndex::new(text);
+    let lc = index.line_col(text, offset, sdeck_syntax::Encoding::Utf16);
+    Position {
+        line: lc.line,
+        character: lc.col,
+    }
+}
+
+fn whole(text: &str) -> Range {
+    let index = LineIndex::new(text);
+    let end = index.line_col(text, text.len(), sdeck_syntax::Encoding::Utf16);
+    Range {
+        start: Position::default(),
+        end: Position {
+            line: end.line,
+            character: end.col,
+        },
+    }
+}
+
+/// Applies the edits of a workspace edit to `text` (edits do not overlap).
+fn apply(text: &str, edit: &WorkspaceEdit) -> String {
+    let index = LineIndex::new(text);
+    let mut edits: Vec<&TextEdit> = edit
+        .changes
+        .iter()
+        .flat_map(|c| c.values())
+        .flatten()
+        .collect();
+    let offset = |p: Position| {
+        index.offset(
+            text,
+            LineCol {
+                line: p.line,
+                col: p.character,
+            },
+            sdeck_syntax::Encoding::Utf16,
+        )
+    };
+    edits.sort_by_key(|e| std::cmp::Reverse(offset(e.range.start)));
+    let mut out = text.to_string();
+    for e in edits {
+        out.replace_range(offset(e.range.start)..offset(e.range.end), &e.new_text);
+    }
+    out
+}
+
+fn hover_text(a: &Analyzed, position: Position) -> String {
+    match crate::hover::hover(a, UTF16, position).map(|h| h.contents) {
+        Some(HoverContents::Markup(m)) => m.value,
+        other => panic!("no markdown hover: {other:?}"),
+    }
+}
+
+/// The number in the row `| label | number ... |` of a hover table.
+fn row_value(markdown: &str, label: &str) -> f64 {
+    let prefix = format!("| {label} | ");
+    let line = markdown
+        .lines()
+        .find(|l| l.starts_with(&prefix))
+        .expect("row present");
+    line[prefix.len()..]
+        .split_whitespace()
+        .next()
+        .and_then(|x| x.parse().ok())
+        .expect("a number")
+}
+
+const VASICEK: &str = "model larkspur_short_rate\nclock year\nhorizon 2 year\n\
+param kappa = 0.5% [1/day] > 0  # speed\nparam theta = 3%\nparam sigma = 1% [1/sqrt(year)] > 0\n\
+noise W\nstate r = 1%\ndr = kappa * (theta - r) dt + sigma dW\n";
+
+#[test]
+fn hover_on_a_state_shows_the_vasicek_moments_at_the_horizon() {
+    let a = analyzed(VASICEK);
+    let md = hover_text(&a, position_of(VASICEK, "dr =", 1));
+    assert!(md.contains("ornstein-uhlenbeck"), "{md}");
+    // Vasicek 1977, J. Financial Economics 5, eq. (27)-(28): mean θ + (r0 − θ)e^{−κt},
+    // variance σ²(1 − e^{−2κt})/(2κ); κ = 0.005 × 365 a year, t = 2 years.
+    let (kappa, theta, sigma, r0, t) = (0.005 * 365.0, 0.03, 0.01, 0.01, 2.0);
+    let mean = theta + (r0 - theta) * f64::exp(-kappa * t);
+    let variance = sigma * sigma * (1.0 - f64::exp(-2.0 * kappa * t)) / (2.0 * kappa);
+    assert!((row_value(&md, "mean") / mean - 1.0).abs() < 1e-5, "{md}");
+    assert!(
+        (row_value(&md, "variance") / variance - 1.0).abs() < 1e-5,
+        "{md}"
+    );
+    assert!((row_value(&md, "standard deviation") / variance.sqrt() - 1.0).abs() < 1e-5);
+    // Half-life ln 2 / κ (common practice, no source).
+    assert!((row_value(&md, "half-life") / (2f64.ln() / kappa) - 1.0).abs() < 1e-5);
+}
+
+#[test]
+fn hover_on_a_param_shows_its_clock_value_bound_description_and_half_life() {
+    let a = analyzed(VASICEK);
+    let md = hover_text(&a, position_of(VASICEK, "kappa *", 2));
+    assert!(md.contains("= 1.825 [1/year]"), "{md}");
+    assert!(md.contains("bound: `> 0`"), "{md}");
+    assert!(md.contains("_speed_"), "{md}");
+    // Half-life ln 2 / κ (common practice, no source), printed as `sdeck moments` does.
+    let half_life = sdeck_semantics::fmt_num(2f64.ln() / 1.825);
+    assert!(md.contains(&format!("half-life {half_life} year")), "{md}");
+}
+
+#[test]
+fn hover_on_a_noise_lists_its_correlations_and_on_a_unit_its_scale() {
+    let text = "noise W, V\ncorr W V = 0.4\nparam k = 2 [1/month]\nstate x = 0\n\
+dx = -k * x dt + 0.1 [1/sqrt(year)] dW\n";
+    let text = text.replace(" [1/sqrt(year)]", "");
+    let a = analyzed(&text);
+    let md = hover_text(&a, position_of(&text, "W,", 0));
+    assert!(md.contains("ρ(W, V) = 0.4"), "{md}");
+    let md = hover_text(&a, position_of(&text, "month", 1));
+    assert!(md.contains("1 month = 0.0833333 year"), "{md}");
+}
+
+#[test]
+fn inlay_hints_show_conversion_half_life_and_stationary_sd() {
+    let a = analyzed(VASICEK);
+    let labels: Vec<String> = crate::hints::inlay_hints(&a, UTF16, whole(VASICEK))
+        .into_iter()
+        .map(|h| match h.label {
+            tower_lsp::lsp_types::InlayHintLabel::String(s) => s,
+            other => format!("{other:?}"),
+        })
+        .collect();
+    assert!(
+        labels.contains(&"= 1.825 [1/year]".to_string()),
+        "{labels:?}"
+    );
+    let half_life = sdeck_semantics::fmt_num(2f64.ln() / 1.825);
+    assert!(
+        labels.contains(&format!("half-life {half_life} year")),
+        "{labels:?}"
+    );
+    // Stationary sd σ/√(2κ) (Vasicek 1977, as t → ∞).
+    let sd = 0.01 / (2.0f64 * 1.825).sqrt();
+    let shown = labels
+        .iter()
+        .find_map(|l| l.strip_prefix("stationary sd "))
+        .expect("sd hint");
+    assert!((shown.parse::<f64>().unwrap_or(0.0) / sd - 1.0).abs() < 1e-5);
+}
+
+fn actions(a: &Analyzed, text: &str) -> Vec<tower_lsp::lsp_types::CodeAction> {
+    crate::actions::code_actions(a, UTF16, &uri(), whole(text))
+        .into_iter()
+        .filter_map(|c| match c {
+            CodeActionOrCommand::CodeAction(a) => Some(a),
+            CodeActionOrCommand::Command(_) => None,
+        })
+        .collect()
+}
+
+fn rules_of(text: &str) -> Vec<&'static str> {
+    analyzed(text)
+        .check
+        .diagnostics
+        .iter()
+        .map(|d| d.rule)
+        .collect()
+}
+
+#[test]
+fn the_feller_quick_fixes_reach_the_boundary() {
+    let text = "clock year\nparam kappa = 0.5 [1/year] > 0\nparam level = 2% >= 0\n\
+param vol = 20% [1/sqrt(year)] > 0\nnoise W\nstate r = 1.8% >= 0\n\
+dr = kappa * (level - r) dt + vol * sqrt(r) dW\n";
+    assert!(rules_of(text).contains(&"feller-condition"));
+    let a = analyzed(text);
+    let all = actions(&a, text);
+    let raise = all
+        .iter()
+        .find(|c| c.title.starts_with("Raise `kappa`"))
+        .expect("raise");
+    let lower = all
+        .iter()
+        .find(|c| c.title.starts_with("Lower `vol`"))
+        .expect("lower");
+    // Boundary: 2κθ = σ² (Feller 1951; common practice): κ = 0.04 / 0.04 = 1,
+    // σ = sqrt(2 × 0.5 × 0.02) = 14.1421%. The checker compares strictly in floating
+    // point, so the fix may land a hair beyond the exact boundary, never short of it.
+    let raised = apply(text, raise.edit.as_ref().expect("edit"));
+    let kappa: f64 = raised
+        .split("param kappa = ")
+        .nth(1)
+        .and_then(|rest| rest.split_whitespace().next())
+        .and_then(|x| x.parse().ok())
+        .expect("a number");
+    assert!((1.0..1.0001).contains(&kappa), "{raised}");
+    assert!(!rules_of(&raised).contains(&"feller-condition"));
+    let lowered = apply(text, lower.edit.as_ref().expect("edit"));
+    assert!(lowered.contains("param vol = 14.1421%"), "{lowered}");
+    assert!(!rules_of(&lowered).contains(&"feller-condition"));
+}
+
+#[test]
+fn the_nearest_correlation_fix_clears_the_psd_error() {
+    let text = "noise A, B, C\ncorr A B = 0.9\ncorr B C = 0.9\ncorr A C = -0.9\n\
+state x = 0\ndx = 0.1 dA + 0.1 dB + 0.1 dC\n";
+    assert!(rules_of(text).contains(&"correlation-not-psd"));
+    let a = analyzed(text);
+    let fix = actions(&a, text)
+        .into_iter()
+        .find(|c| c.title.contains("nearest correlation"))
+        .expect("fix offered");
+    let fixed = apply(text, fix.edit.as_ref().expect("edit"));
+    assert!(
+        !rules_of(&fixed).contains(&"correlation-not-psd"),
+        "{fixed}"
+    );
+    assert_eq!(fixed.matches("corr").count(), 3, "{fixed}");
+}
+
+#[test]
+fn a_semantic_fix_becomes_a_quick_fix_that_removes_its_diagnostic() {
+    let text = "param k = 1 [1/year]\nstate x = 0\ndx = -k * x dt + 0.1 dW\n";
+    assert!(rules_of(text).contains(&"undefined-name"));
+    let a = analyzed(text);
+    let fix = actions(&a, text)
+        .into_iter()
+        .find(|c| c.title.contains("noise W"))
+        .expect("declare-noise fix");
+    assert!(fix.diagnostics.as_ref().is_some_and(|d| !d.is_empty()));
+    let fixed = apply(text, fix.edit.as_ref().expect("edit"));
+    assert!(!rules_of(&fixed).contains(&"undefined-name"), "{fixed}");
+}
+
+#[test]
+fn the_moments_refactor_inserts_a_comment_and_changes_nothing_else() {
+    let a = analyzed(VASICEK);
+    let insert = actions(&a, VASICEK)
+        .into_iter()
+        .find(|c| c.title.starts_with("Insert the derived moments"))
+        .expect("refactor");
+    let out = apply(VASICEK, insert.edit.as_ref().expect("edit"));
+    assert!(out.contains("# r: ornstein-uhlenbeck\n"), "{out}");
+    assert!(out.contains("# at t = 2 year: mean"), "{out}");
+    assert_eq!(rules_of(&out), rules_of(VASICEK));
+}
+
+#[test]
+fn rename_changes_the_declaration_and_every_use_including_differentials() {
+    let text = "noise W\nstate x = 0\ndx = 0.1 dW\n";
+    let a = analyzed(text);
+    let edit = crate::navigation::rename(&a, UTF16, &uri(), position_of(text, "W", 0), "Z")
+        .expect("valid name")
+        .expect("an edit");
+    assert_eq!(apply(text, &edit), "noise Z\nstate x = 0\ndx = 0.1 dZ\n");
+    let edit = crate::navigation::rename(&a, UTF16, &uri(), position_of(text, "dx", 1), "σ_x")
+        .expect("valid")
+        .expect("edit");
+    assert_eq!(
+        apply(text, &edit),
+        "noise W\nstate σ_x = 0\ndσ_x = 0.1 dW\n"
+    );
+    for bad in ["exp", "param", "1x", "x y", "W"] {
+        let r = crate::navigation::rename(&a, UTF16, &uri(), position_of(text, "x =", 0), bad);
+        assert!(r.is_err(), "{bad} accepted");
+    }
+}
+
+#[test]
+fn definition_and_references_find_the_declaration_and_uses() {
+    let a = analyzed(VASICEK);
+    let at_use = position_of(VASICEK, "theta -", 1);
+    let def = crate::navigation::definition(&a, UTF16, &uri(), at_use).expect("found");
+    assert_eq!(def.range.start, position_of(VASICEK, "theta =", 0));
+    let refs = crate::navigation::references(&a, UTF16, &uri(), at_use, true).expect("found");
+    assert_eq!(refs.len(), 2);
+    let symbols = crate::navigation::document_symbols(&a, UTF16);
+    assert_eq!(symbols.len(), 5);
+}
+
+#[test]
+fn semantic_tokens_are_ordered_single_line_and_typed() {
+    let text =
+        "# κ model 🚀\nparam κ = 2 [1/year]\nnoise W\nstate x = 0\ndx = -κ * exp(x) dt + 0.1 dW\n";
+    let a = analyzed(text);
+    let tokens = crate::tokens::semantic_tokens(&a, UTF16);
+    assert!(tokens.len() >= 10, "{tokens:?}");
+    // The first token is the comment, 12 UTF-16 units long (🚀 counts two).
+    assert_eq!(
+        (tokens[0].delta_line, tokens[0].length, tokens[0].token_type),
+        (0, 12, 1)
+    );
+    // Line 1: `param` keyword, then κ declared as a parameter.
+    assert_eq!(
+        (
+            tokens[1].delta_line,
+            tokens[1].delta_start,
+            tokens[1].token_type
+        ),
+        (1, 0, 0)
+    );
+    assert_eq!(
+        (
+            tokens[2].delta_start,
+            tokens[2].length,
+            tokens[2].token_type,
+            tokens[2].token_modifiers_bitset
+        ),
+        (6, 1, 3, 1)
+    );
+}
+
+#[test]
+fn completion_inside_brackets_offers_units_only() {
+    let text = "unit EUR\nparam k = 1 [\n";
+    let a = analyzed(text);
+    let items = crate::completion::complete(&a, UTF16, position_of(text, "[", 1));
+    let labels: Vec<&str> = items.iter().map(|i| i.label.as_str()).collect();
+    assert!(labels.contains(&"day") && labels.contains(&"EUR"));
+    assert!(!labels.contains(&"param"));
+    let items = crate::completion::complete(
+        &a,
+        UTF16,
+        Position {
+            line: 2,
+            character: 0,
+        },
+    );
+    assert!(items.iter().any(|i| i.label == "noise"));
+}
+
+#[test]
+fn a_panic_becomes_an_error_response() {
+    let r: tower_lsp::jsonrpc::Result<()> = crate::guard("a test", || panic!("boom"));
+    let e = r.expect_err("an error");
+    assert_eq!(e.code, tower_lsp::jsonrpc::ErrorCode::InternalError);
+    assert!(e.message.contains("boom"));
+    assert_eq!(crate::guard("a test", || 7).ok(), Some(7));
+}
+
+#[test]
+fn features_do_not_panic_on_broken_or_empty_text() {
+    for text in [
+        "",
+        "param",
+        "dx = = dW\n",
+        "state x = 1 [\u{1F680}]\n",
+        "noise W\ncorr W W = 2\n",
+    ] {
+        let a = analyzed(text);
+        for line in 0..3 {
+            for character in [0, 1, 5, 99] {
+                let p = Position { line, character };
+                let _ = crate::hover::hover(&a, UTF16, p);
+                let _ = crate::completion::complete(&a, UTF16, p);
+                let _ = crate::navigation::prepare_rename(&a, UTF16, p);
+            }
+        }
+        let _ = crate::hints::inlay_hints(&a, UTF16, whole(text));
+        let _ = crate::actions::code_actions(&a, UTF16, &uri(), whole(text));
+        let _ = crate::tokens::semantic_tokens(&a, UTF16);
+    }
+}

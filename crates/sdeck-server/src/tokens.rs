@@ -1,0 +1,175 @@
+//! Semantic tokens: keywords, comments, numbers, functions, units and every declared name
+//! by its kind, encoded relative to the previous token as the protocol asks.
+
+use crate::analysis::Analyzed;
+use crate::documents::PositionEncoding;
+use crate::hover::{walk_expr, walk_unit};
+use sdeck_diagnostics::Span;
+use sdeck_semantics::SymbolKind;
+use sdeck_syntax::ast::{Expr, StatementKind, UnitExpr};
+use tower_lsp::lsp_types::{
+    SemanticToken, SemanticTokenModifier, SemanticTokenType, SemanticTokensLegend,
+};
+
+const KEYWORD: u32 = 0;
+const COMMENT: u32 = 1;
+const NUMBER: u32 = 2;
+const PARAMETER: u32 = 3;
+const VARIABLE: u32 = 4;
+const EVENT: u32 = 5;
+const TYPE: u32 = 6;
+const FUNCTION: u32 = 7;
+const MACRO: u32 = 8;
+/// Modifier bit: the token declares its name.
+const DECLARATION: u32 = 1;
+
+pub fn legend() -> SemanticTokensLegend {
+    SemanticTokensLegend {
+        token_types: vec![
+            SemanticTokenType::KEYWORD,
+            SemanticTokenType::COMMENT,
+            SemanticTokenType::NUMBER,
+            SemanticTokenType::PARAMETER,
+            SemanticTokenType::VARIABLE,
+            SemanticTokenType::EVENT,
+            SemanticTokenType::TYPE,
+            SemanticTokenType::FUNCTION,
+            SemanticTokenType::MACRO,
+        ],
+        token_modifiers: vec![SemanticTokenModifier::DECLARATION],
+    }
+}
+
+fn kind_type(kind: SymbolKind) -> u32 {
+    match kind {
+        SymbolKind::Param => PARAMETER,
+        SymbolKind::State => VARIABLE,
+        SymbolKind::Noise => EVENT,
+        SymbolKind::Let => MACRO,
+        SymbolKind::Unit => TYPE,
+    }
+}
+
+pub fn semantic_tokens(a: &Analyzed, encoding: PositionEncoding) -> Vec<SemanticToken> {
+    let analysis = &a.check.analysis;
+    let mut spans: Vec<(Span, u32, u32)> = Vec::new();
+    for c in &analysis.file.comments {
+        spans.push((c.span.clone(), COMMENT, 0));
+    }
+    for s in &analysis.symbols {
+        spans.push((s.name_span.clone(), kind_type(s.kind), DECLARATION));
+    }
+    for r in &analysis.references {
+        if let Some(s) = analysis
+            .symbols
+            .iter()
+            .find(|s| s.name_span == r.declaration)
+        {
+            spans.push((r.span.clone(), kind_type(s.kind), 0));
+        }
+    }
+    let unit = |u: &UnitExpr, spans: &mut Vec<(Span, u32, u32)>| {
+        walk_unit(u, &mut |ident| spans.push((ident.span.clone(), TYPE, 0)));
+    };
+    for statement in &analysis.file.statements {
+        let keyword_len = match &statement.kind {
+            StatementKind::Model { .. } => 5,
+            StatementKind::Clock { unit: u } => {
+                spans.push((u.span.clone(), TYPE, 0));
+                5
+            }
+            StatementKind::Horizon { value } => {
+                spans.push((value.number.span.clone(), NUMBER, 0));
+                if let Some(u) = &value.unit {
+                    unit(u, &mut spans);
+                }
+                7
+            }
+            StatementKind::Unit { .. } => 4,
+            StatementKind::Param(d) | StatementKind::State(d) => {
+                spans.push((d.value.span.clone(), NUMBER, 0));
+                if let Some(u) = &d.unit {
+                    unit(u, &mut spans);
+                }
+                5
+            }
+            StatementKind::Noise { .. } => 5,
+            StatementKind::Corr { value, .. } => {
+                spans.push((value.span.clone(), NUMBER, 0));
+                4
+            }
+            StatementKind::Let { value, .. } => {
+                expression(value, &mut spans);
+                3
+            }
+            StatementKind::Equation(eq) => {
+                for term in &eq.terms {
+                    if let Some(c) = &term.coefficient {
+                        expression(c, &mut spans);
+                    }
+                    if let sdeck_syntax::ast::Differential::Time(span) = &term.differential {
+                        spans.push((span.clone(), KEYWORD, 0));
+                    }
+                }
+                0
+            }
+            StatementKind::Expect(e) => {
+                spans.push((e.figure_span.clone(), FUNCTION, 0));
+                6
+            }
+        };
+        if keyword_len > 0 {
+            let start = statement.span.start;
+            spans.push((start..start + keyword_len, KEYWORD, 0));
+        }
+    }
+    encode(a, encoding, spans)
+}
+
+fn expression(e: &Expr, spans: &mut Vec<(Span, u32, u32)>) {
+    walk_expr(e, &mut |x| match x {
+        Expr::Number(n) => spans.push((n.span.clone(), NUMBER, 0)),
+        Expr::Call { function, .. } => spans.push((function.span.clone(), FUNCTION, 0)),
+        _ => {}
+    });
+}
+
+/// Sorts, drops overlaps and empty or multi-line tokens, and delta-encodes.
+fn encode(
+    a: &Analyzed,
+    encoding: PositionEncoding,
+    mut spans: Vec<(Span, u32, u32)>,
+) -> Vec<SemanticToken> {
+    let converter = a.converter(encoding);
+    spans.sort_by_key(|(span, _, _)| (span.start, span.end));
+    let mut out = Vec::new();
+    let mut last_end = 0usize;
+    let (mut prev_line, mut prev_col) = (0u32, 0u32);
+    for (span, token_type, modifiers) in spans {
+        if span.start < last_end || span.end <= span.start || span.end > a.text.len() {
+            continue;
+        }
+        let start = converter.position(span.start);
+        let end = converter.position(span.end);
+        if end.line != start.line {
+            continue;
+        }
+        let delta_line = start.line - prev_line;
+        let delta_start = if delta_line == 0 {
+            start.character - prev_col
+        } else {
+            start.character
+        };
+        out.push(SemanticToken {
+            delta_line,
+            delta_start,
+            length: end.character - start.character,
+            token_type,
+            token_modifiers_bitset: modifiers,
+        });
+        prev_line = start.line;
+        prev_col = start.character;
+        last_end = span.end;
+    }
+    out
+}
