@@ -55,14 +55,27 @@ impl Default for SimulationOptions {
 #[derive(Clone, Debug, PartialEq)]
 pub enum SimulateError {
     NoStates,
-    MissingEquation { state: String },
-    UnresolvedEquation { state: String },
-    UnknownNoise { state: String },
+    MissingEquation {
+        state: String,
+    },
+    UnresolvedEquation {
+        state: String,
+    },
+    UnknownNoise {
+        state: String,
+    },
     NoPaths,
     NoSteps,
-    BadTime { at: f64 },
-    TooLarge { paths: usize, states: usize },
+    BadTime {
+        at: f64,
+    },
+    TooLarge {
+        paths: usize,
+        states: usize,
+    },
     ThreadPool(String),
+    /// A hand-made [`Plan`] whose sizes do not match the model.
+    InconsistentPlan(String),
 }
 
 impl fmt::Display for SimulateError {
@@ -90,6 +103,7 @@ impl fmt::Display for SimulateError {
                 MAX_STORED_VALUES / states.max(&1)
             ),
             SimulateError::ThreadPool(message) => write!(f, "could not start the worker threads: {message}"),
+            SimulateError::InconsistentPlan(message) => write!(f, "the simulation plan does not fit the model: {message}"),
         }
     }
 }
@@ -101,6 +115,67 @@ const MAX_STORED_VALUES: usize = 200_000_000;
 
 /// Paths recorded for quantile bands at most (the fan chart uses the first ones).
 pub const MAX_BAND_PATHS: usize = 50_000;
+
+/// Times recorded for quantile bands at most: enough for a smooth chart, and it bounds the
+/// memory of the recording to MAX_BAND_PATHS × MAX_BAND_TIMES values per state.
+pub const MAX_BAND_TIMES: usize = 400;
+
+/// Checks that a plan (possibly built by hand) fits the model, so that the engine never
+/// indexes outside it.
+fn validate_plan(model: &Model, plan: &Plan) -> Result<(), SimulateError> {
+    let states = model.states.len();
+    let noises = model.noises.len();
+    if plan.schemes.len() != states {
+        return Err(SimulateError::InconsistentPlan(format!(
+            "{} schemes for {states} states",
+            plan.schemes.len()
+        )));
+    }
+    for scheme in &plan.schemes {
+        if let Scheme::Exact(ExactLaw::Lognormal { loadings, .. }) = scheme {
+            if loadings.iter().any(|(noise, _)| *noise >= noises) {
+                return Err(SimulateError::InconsistentPlan(
+                    "a lognormal loading on an unknown noise".into(),
+                ));
+            }
+        }
+    }
+    if let Some(group) = &plan.gaussian_group {
+        let m = group.states.len();
+        let square = |rows: &Vec<Vec<f64>>, columns: usize| {
+            rows.len() == m && rows.iter().all(|r| r.len() == columns)
+        };
+        let members_ok = group.states.iter().all(|i| {
+            *i < states
+                && matches!(
+                    plan.schemes.get(*i),
+                    Some(Scheme::Exact(ExactLaw::LinearGaussian))
+                )
+        });
+        if !(members_ok
+            && square(&group.drift, m)
+            && square(&group.loadings, noises)
+            && group.constant.len() == m)
+        {
+            return Err(SimulateError::InconsistentPlan(
+                "the Gaussian group's matrices do not match its states".into(),
+            ));
+        }
+    }
+    let orphans = plan.schemes.iter().enumerate().any(|(i, scheme)| {
+        *scheme == Scheme::Exact(ExactLaw::LinearGaussian)
+            && !plan
+                .gaussian_group
+                .as_ref()
+                .is_some_and(|g| g.states.contains(&i))
+    });
+    if orphans {
+        return Err(SimulateError::InconsistentPlan(
+            "a Gaussian state outside the Gaussian group".into(),
+        ));
+    }
+    Ok(())
+}
 
 /// Raw simulated values at the reporting time and on the band grid.
 #[derive(Clone, Debug, PartialEq)]
@@ -540,12 +615,13 @@ pub fn simulate_paths(
     if !(at.is_finite() && at > 0.0) {
         return Err(SimulateError::BadTime { at });
     }
+    validate_plan(model, plan)?;
     let step = at / options.steps as f64;
     let mut warnings = plan.notes.clone();
     let compiled = compile(model, plan, step, options.steps, &mut warnings)?;
 
     let blocks = options.paths.div_ceil(LANES);
-    let record_steps = band_steps(options.steps, options.band_times);
+    let record_steps = band_steps(options.steps, options.band_times.min(MAX_BAND_TIMES));
     let band_blocks = if record_steps.is_empty() {
         0
     } else {

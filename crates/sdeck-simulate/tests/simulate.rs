@@ -598,3 +598,20 @@ fn closed_form_means_on_the_band_grid_follow_vasicek() {
         assert!((mean.unwrap() - expected).abs() < 1e-12, "t = {t}");
     }
 }
+
+#[test]
+fn a_hand_made_plan_that_does_not_fit_the_model_is_refused() {
+    let model = model(OU);
+    let mut plan = plan_from_model(&model);
+    plan.schemes.push(Scheme::Euler);
+    assert!(matches!(
+        simulate(&model, &plan, &options(10, 10, 1.0, 1)),
+        Err(SimulateError::InconsistentPlan(_))
+    ));
+    let mut plan = plan_from_model(&model);
+    plan.gaussian_group = None;
+    assert!(matches!(
+        simulate(&model, &plan, &options(10, 10, 1.0, 1)),
+        Err(SimulateError::InconsistentPlan(_))
+    ));
+}
