@@ -3,8 +3,10 @@
 
 mod check;
 mod files;
+mod fmt_cmd;
 mod github;
 mod junit;
+mod lsp_cmd;
 mod moments;
 mod render;
 mod sarif;
@@ -36,6 +38,10 @@ enum Command {
     Check(check::CheckArgs),
     /// Derive the family, closed forms and moments of each state of a model.
     Moments(moments::MomentsArgs),
+    /// Format model files in place (aligned declarations, canonical spacing).
+    Fmt(fmt_cmd::FmtArgs),
+    /// Serve the Language Server Protocol on stdin/stdout, for editors.
+    Lsp(lsp_cmd::LspArgs),
     /// Print the manual of a rule, or list every rule.
     Explain {
         /// The rule's name (kebab-case); omit to list all rules.
@@ -58,6 +64,8 @@ fn main() -> ExitCode {
     match cli.command {
         Command::Check(args) => check::run(args),
         Command::Moments(args) => moments::run(args),
+        Command::Fmt(args) => fmt_cmd::run(args),
+        Command::Lsp(args) => lsp_cmd::run(args),
         Command::Explain { rule, markdown: true } => {
             debug_assert!(rule.is_none());
             print!("{}", render::rules_markdown());
