@@ -181,6 +181,8 @@ fn validate_plan(model: &Model, plan: &Plan) -> Result<(), SimulateError> {
 #[derive(Clone, Debug, PartialEq)]
 pub struct PathSamples {
     pub at: f64,
+    /// The model's clock unit (`year`, `day`, ...), in which `at` and the band times run.
+    pub clock_unit: String,
     pub paths: usize,
     pub steps: usize,
     pub seed: u64,
@@ -677,6 +679,7 @@ pub fn simulate_paths(
 
     Ok(PathSamples {
         at,
+        clock_unit: model.clock.unit.clone(),
         paths: options.paths,
         steps: options.steps,
         seed: options.seed,

@@ -131,7 +131,7 @@ pub fn fan_chart_svg(
                 .map_err(drawing_error)?;
             chart
                 .configure_mesh()
-                .x_desc("t")
+                .x_desc(format!("t ({})", result.clock_unit))
                 .light_line_style(WHITE)
                 .draw()
                 .map_err(drawing_error)?;

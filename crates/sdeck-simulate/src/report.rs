@@ -51,6 +51,8 @@ pub struct Bands {
 pub struct SimulationResult {
     /// Clock units.
     pub at: f64,
+    /// The model's clock unit.
+    pub clock_unit: String,
     pub paths: usize,
     pub steps: usize,
     pub seed: u64,
@@ -145,6 +147,7 @@ impl SimulationResult {
         });
         SimulationResult {
             at: samples.at,
+            clock_unit: samples.clock_unit.clone(),
             paths: samples.paths,
             steps: samples.steps,
             seed: samples.seed,
@@ -306,10 +309,11 @@ pub fn render_text(result: &SimulationResult) -> String {
     let mut out = String::new();
     let _ = writeln!(
         out,
-        "simulated {} paths, {} steps to t = {}, seed {}",
+        "simulated {} paths, {} steps to t = {} {}, seed {}",
         result.paths,
         result.steps,
         format_number(result.at),
+        result.clock_unit,
         result.seed
     );
     for state in &result.states {
@@ -330,7 +334,7 @@ pub fn render_text(result: &SimulationResult) -> String {
             format_number(state.variance_se)
         );
         for q in &state.quantiles {
-            let label = format!("q{}", format_number(q.probability * 100.0));
+            let label = format!("q({})", q.probability);
             let _ = writeln!(
                 out,
                 "  {:<10} {:>14} ± {}",

@@ -424,7 +424,13 @@ fn check_passes_against_the_calculus_and_flags_a_wrong_closed_form() {
     assert_eq!(disagreements.len(), 1);
     assert_eq!(disagreements[0].figure, "mean");
     assert!(disagreements[0].to_string().starts_with("mean of `r`"));
-    assert!(render_text(&result).contains("closed form: mean"));
+    let text = render_text(&result);
+    assert!(
+        text.starts_with("simulated 50000 paths, 10 steps to t = 1 year, seed 12"),
+        "{text}"
+    );
+    assert!(text.contains("closed form: mean"));
+    assert!(text.contains("q(0.99)"));
 }
 
 #[test]
@@ -471,6 +477,7 @@ fn fan_chart_is_well_formed_svg_with_one_panel_per_state() {
         );
     }
     assert!(texts.contains(&"closed-form mean"));
+    assert!(texts.contains(&"t (year)"));
 }
 
 #[test]
