@@ -374,6 +374,52 @@ dx = kappa * (base + slope * t - x) dt + sigma * exp(-lam * t) dW
 }
 
 #[test]
+fn time_dependent_slope_agrees_with_the_integrated_moment_equations() {
+    // b(t) = −(k + a·sin(2π f t)) varies, so the integrating factor is itself a
+    // quadrature; the same moments come from integrating m' = c + b m and
+    // v' = 2b v + σ(t)² with the Dormand–Prince integrator (Kloeden & Platen 1992, §4.2).
+    let source = "
+model tidewell_load
+param k = 1.1 [1/year]
+param a = 0.6 [1/year]
+param f = 1 [1/year]
+param c = 0.03 [1/year]
+param s = 0.02 [1/sqrt(year)]
+noise W
+state x = 0.01
+dx = (c - (k + a * sin(2 * pi * f * t)) * x) dt + s * cos(pi * f * t) dW
+";
+    let (m, d) = derived(source);
+    assert_eq!(d.states[0].family, Family::Linear);
+    assert_eq!(d.states[0].method, Method::Quadrature);
+    assert_eq!(d.states[0].half_life, None);
+    let tau = 2.0 * std::f64::consts::PI;
+    let pi = std::f64::consts::PI;
+    let end = sdeck_calculus::ode::integrate(
+        |t, y: &[f64], dy: &mut [f64]| {
+            let b = -(1.1 + 0.6 * (tau * t).sin());
+            let vol = 0.02 * (pi * t).cos();
+            dy[0] = 0.03 + b * y[0];
+            dy[1] = 2.0 * b * y[1] + vol * vol;
+        },
+        &[0.01, 0.0],
+        0.0,
+        1.7,
+        1e-12,
+        1e-18,
+    )
+    .expect("integrates");
+    let moments = moments_at(&m, &d, 1.7);
+    assert_close("mean", moments.mean[0].expect("mean"), end[0], 1e-9);
+    assert_close(
+        "variance",
+        moments.variance[0].expect("variance"),
+        end[1],
+        1e-9,
+    );
+}
+
+#[test]
 fn two_correlated_noises_combine_their_variances() {
     // Var rate of s1 dW1 + s2 dW2 with dW1 dW2 = ρ dt is s1² + s2² + 2ρ s1 s2
     // (Itô isometry; common practice, no source).
