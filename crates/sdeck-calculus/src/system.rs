@@ -355,6 +355,92 @@ fn integrate_linear_system(
     Some((mean, cov))
 }
 
+/// E[x^key] from the means and covariances: 1, m_k, P_kk + m_k², P_kl + m_k m_l.
+fn expected_monomial(key: &[(usize, i64)], mean: &DVector<f64>, cov: &DMatrix<f64>) -> f64 {
+    let m = |k: usize| mean.get(k).copied().unwrap_or(f64::NAN);
+    let p = |k: usize, l: usize| cov.get((k, l)).copied().unwrap_or(f64::NAN);
+    match key {
+        [] => 1.0,
+        [(k, 1)] => m(*k),
+        [(k, 2)] => p(*k, *k) + m(*k) * m(*k),
+        [(k, 1), (l, 1)] => p(*k, *l) + m(*k) * m(*l),
+        _ => f64::NAN,
+    }
+}
+
+/// Means and covariances of a polynomial system with time-dependent coefficients, by
+/// integrating m' = A m + b and P' = A P + P Aᵀ + E[C(X)], where the instantaneous
+/// covariance C is at most quadratic so that E[C(X)] needs only m and P
+/// (Kloeden & Platen 1992, §4.8; Cuchiero, Keller-Ressel & Teichmann 2012).
+fn integrate_polynomial_system(
+    model: &Model,
+    analysis: &Analysis,
+    t: f64,
+) -> Option<(DVector<f64>, DMatrix<f64>)> {
+    let system = &analysis.system;
+    let rows = system.drift_rows.as_ref()?;
+    let n = model.states.len();
+    let params = &analysis.params;
+    type Pieces = Vec<(Vec<(usize, i64)>, Poly)>;
+    let mut covariance_pieces: Vec<Vec<Pieces>> = Vec::with_capacity(n);
+    for i in 0..n {
+        let mut row = Vec::with_capacity(n);
+        for j in 0..n {
+            let (si, sj) = (system.shapes.get(i)?, system.shapes.get(j)?);
+            let product = diffusion_product(&si.noises, &sj.noises, &analysis.corr).ok()?;
+            row.push(product.by_state_monomial().into_iter().collect());
+        }
+        covariance_pieces.push(row);
+    }
+    let derivative = |s: f64, y: &[f64], dy: &mut [f64]| {
+        let value = |p: Option<&Poly>| p.map(|p| p.value(params, s)).unwrap_or(0.0);
+        let a = DMatrix::from_fn(n, n, |r, c| {
+            value(rows.get(r).and_then(|(cs, _)| cs.get(c)))
+        });
+        let b = DVector::from_fn(n, |r, _| value(rows.get(r).map(|(_, k)| k)));
+        let mean = DVector::from_fn(n, |r, _| y.get(r).copied().unwrap_or(f64::NAN));
+        let cov = DMatrix::from_fn(n, n, |r, c| {
+            y.get(n + r * n + c).copied().unwrap_or(f64::NAN)
+        });
+        let noise = DMatrix::from_fn(n, n, |r, c| {
+            covariance_pieces
+                .get(r)
+                .and_then(|row| row.get(c))
+                .map(|pieces| {
+                    pieces
+                        .iter()
+                        .map(|(key, coefficient)| {
+                            coefficient.value(params, s) * expected_monomial(key, &mean, &cov)
+                        })
+                        .sum::<f64>()
+                })
+                .unwrap_or(f64::NAN)
+        });
+        let dm = &a * &mean + &b;
+        let dp = &a * &cov + &cov * a.transpose() + noise;
+        for (r, v) in dm.iter().enumerate() {
+            if let Some(slot) = dy.get_mut(r) {
+                *slot = *v;
+            }
+        }
+        for r in 0..n {
+            for c in 0..n {
+                if let (Some(slot), Some(v)) = (dy.get_mut(n + r * n + c), dp.get((r, c))) {
+                    *slot = *v;
+                }
+            }
+        }
+    };
+    let mut start = model.initial_values();
+    start.extend(std::iter::repeat_n(0.0, n * n));
+    let end = ode::integrate(derivative, &start, 0.0, t, 1e-11, 1e-300).ok()?;
+    let mean = DVector::from_fn(n, |r, _| end.get(r).copied().unwrap_or(f64::NAN));
+    let cov = DMatrix::from_fn(n, n, |r, c| {
+        end.get(n + r * n + c).copied().unwrap_or(f64::NAN)
+    });
+    Some((mean, cov))
+}
+
 pub(crate) fn moments_at(
     model: &Model,
     derivation: &Derivation,
@@ -394,15 +480,20 @@ pub(crate) fn moments_at(
         } else {
             None
         }
-    } else if valid_time {
-        polynomial_engine(model, analysis).and_then(|engine| {
-            let table = engine.moments_at(&DVector::from_vec(x0.clone()), t, 2);
-            Some((
-                table.means(),
-                table.covariance_matrix()?,
-                Method::MomentEquations,
-            ))
-        })
+    } else if valid_time && analysis.system.family == Family::Polynomial {
+        if analysis.system.time_dependent {
+            integrate_polynomial_system(model, analysis, t)
+                .map(|(m, p)| (m, p, Method::MomentEquations))
+        } else {
+            polynomial_engine(model, analysis).and_then(|engine| {
+                let table = engine.moments_at(&DVector::from_vec(x0.clone()), t, 2);
+                Some((
+                    table.means(),
+                    table.covariance_matrix()?,
+                    Method::MomentEquations,
+                ))
+            })
+        }
     } else {
         None
     };

@@ -229,6 +229,50 @@ dz = -c * z^3 dt + s1 dC
 }
 
 #[test]
+fn time_dependent_polynomial_system_integrates_to_the_constant_answer() {
+    // cos(0 * f * t) is 1 but depends on t: the moment equations of the polynomial system
+    // are integrated step by step instead of through the generator's exponential.
+    let constant = WEXLEY.to_string();
+    let forced = WEXLEY
+        .replace("xi * sqrt(v) dWv", "xi * cos(0 * f * t) * sqrt(v) dWv")
+        .replace("noise Wx, Wv", "param f = 1 [1/year]\nnoise Wx, Wv");
+    let (m0, m1) = (model(&constant), model(&forced));
+    let (d0, d1) = (derive(&m0), derive(&m1));
+    let (a, b) = (moments_at(&m0, &d0, 0.8), moments_at(&m1, &d1, 0.8));
+    assert_eq!(b.method[0], Method::MomentEquations);
+    for i in 0..2 {
+        assert_close(
+            "mean",
+            b.mean[i].expect("mean"),
+            a.mean[i].expect("mean"),
+            1e-9,
+        );
+        for j in 0..2 {
+            assert_close(
+                "covariance",
+                b.covariance[i][j].expect("covariance"),
+                a.covariance[i][j].expect("covariance"),
+                1e-8,
+            );
+        }
+    }
+}
+
+const WEXLEY: &str = "
+model wexley_log_price
+param mu = 5% [1/year]
+param kappa = 2.0 [1/year] > 0
+param theta = 0.04 [1/year] >= 0
+param xi = 0.3 [1/year] > 0
+noise Wx, Wv
+corr Wx Wv = -0.6
+state x = 0.2
+state v = 0.05 [1/year] >= 0
+dx = (mu - 0.5 * v) dt + sqrt(v) dWx
+dv = kappa * (theta - v) dt + xi * sqrt(v) dWv
+";
+
+#[test]
 fn coupled_polynomial_state_has_moments_but_no_named_law() {
     let source = "
 model wexley_log_price
