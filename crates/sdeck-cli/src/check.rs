@@ -179,7 +179,30 @@ fn finish_one(source: SourceText, project: Option<&Project>, cli_deny: Option<De
     checked
 }
 
+/// The stack of each checking thread. The analysis recurses over expression trees; the
+/// parser bounds their size per statement, but a chain of a few thousand unary minuses or
+/// powers still needs more than the 2 MiB a worker thread gets by default (and more than
+/// the 8 MiB of the main thread in a debug build). The space is reserved, not used: only
+/// the pages a deep model touches are ever mapped.
+const CHECK_STACK_BYTES: usize = 256 << 20;
+
+/// The pool that checks files: one thread per core, each with [`CHECK_STACK_BYTES`].
+fn checking_pool() -> Option<rayon::ThreadPool> {
+    rayon::ThreadPoolBuilder::new()
+        .stack_size(CHECK_STACK_BYTES)
+        .thread_name(|i| format!("sdeck-check-{i}"))
+        .build()
+        .ok()
+}
+
 pub fn run(args: CheckArgs) -> ExitCode {
+    match checking_pool() {
+        Some(pool) => pool.install(|| run_in_pool(args)),
+        None => run_in_pool(args),
+    }
+}
+
+fn run_in_pool(args: CheckArgs) -> ExitCode {
     let mut projects = ProjectCache::new();
     let reads_stdin = args.paths.iter().any(|p| p.as_os_str() == "-")
         || (args.paths.is_empty() && args.stdin_name.is_some());
