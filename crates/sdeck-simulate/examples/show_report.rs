@@ -5,9 +5,15 @@ fn main() {
                   noise W\nstate r = 2.9% >= 0\ndr = kappa * (theta - r) dt + sigma * sqrt(r) dW\n";
     let model = sdeck_semantics::analyze(source, "demo").model;
     let derivation = sdeck_calculus::derive(&model);
+    // SDECK_EXAMPLE_PATHS makes the run long enough to show the progress bar.
+    let paths = std::env::var("SDECK_EXAMPLE_PATHS")
+        .ok()
+        .and_then(|v| v.parse().ok())
+        .unwrap_or(20_000);
     let options = sdeck_simulate::SimulationOptions {
-        paths: 20_000,
+        paths,
         steps: 20,
+        progress: true,
         ..Default::default()
     };
     match sdeck_simulate::simulate_and_compare(&model, &derivation, &options) {

@@ -31,10 +31,16 @@ impl Progress {
             done: AtomicUsize::new(0),
             finished: AtomicBool::new(false),
         });
-        let watcher = (wanted && std::io::stderr().is_terminal()).then(|| {
-            let shared = Arc::clone(&shared);
-            std::thread::spawn(move || watch(&shared, total))
-        });
+        let watcher = if wanted && std::io::stderr().is_terminal() {
+            let watched = Arc::clone(&shared);
+            // A thread that cannot be started only costs the bar, never the run.
+            std::thread::Builder::new()
+                .name("sdeck-progress".into())
+                .spawn(move || watch(&watched, total))
+                .ok()
+        } else {
+            None
+        };
         Progress { shared, watcher }
     }
 
