@@ -3,7 +3,7 @@
 //! count.
 //!
 //! Layout:
-//! - [`plan`]: the scheme of each state (exact Gaussian, lognormal, noncentral chi-square,
+//! - [`mod@plan`]: the scheme of each state (exact Gaussian, lognormal, noncentral chi-square,
 //!   or Euler–Maruyama), read from the equations;
 //! - [`bytecode`]: drift and diffusion compiled to a flat program run over 64 paths at once;
 //! - [`engine`]: blocks of paths with one random stream each, on a local thread pool;
