@@ -664,3 +664,72 @@ mod tests {
         assert_eq!(marks, [true, false, true]);
     }
 }
+
+#[cfg(test)]
+mod properties {
+    use super::*;
+    use proptest::prelude::*;
+
+    const FUNCTIONS: [Function; 8] = Function::ALL;
+
+    /// Random expressions over two parameters, two states and `t`.
+    fn expression() -> impl Strategy<Value = Expr> {
+        let leaf = prop_oneof![
+            (-3.0f64..3.0).prop_map(Expr::Const),
+            (0usize..2).prop_map(Expr::Param),
+            (0usize..2).prop_map(Expr::State),
+            Just(Expr::Time),
+            // Small integer and half-integer constants reach the power shortcuts.
+            (-4i32..6).prop_map(|n| Expr::Const(f64::from(n) * 0.5)),
+        ];
+        leaf.prop_recursive(5, 48, 2, |inner| {
+            prop_oneof![
+                inner.clone().prop_map(|a| Expr::Neg(Box::new(a))),
+                (inner.clone(), inner.clone())
+                    .prop_map(|(a, b)| Expr::Add(Box::new(a), Box::new(b))),
+                (inner.clone(), inner.clone())
+                    .prop_map(|(a, b)| Expr::Sub(Box::new(a), Box::new(b))),
+                (inner.clone(), inner.clone())
+                    .prop_map(|(a, b)| Expr::Mul(Box::new(a), Box::new(b))),
+                (inner.clone(), inner.clone())
+                    .prop_map(|(a, b)| Expr::Div(Box::new(a), Box::new(b))),
+                (inner.clone(), inner.clone())
+                    .prop_map(|(a, b)| Expr::Pow(Box::new(a), Box::new(b))),
+                (0usize..8, inner.clone(), inner).prop_map(|(f, a, b)| {
+                    let function = FUNCTIONS[f];
+                    let args = if function.arity() == 2 {
+                        vec![a, b]
+                    } else {
+                        vec![a]
+                    };
+                    Expr::Call(function, args)
+                }),
+            ]
+        })
+    }
+
+    /// Equal up to rounding, or both outside the finite numbers (the compiled program may
+    /// reach an infinity or NaN by a different but equivalent route, e.g. x·x·x for x³).
+    fn close(a: f64, b: f64) -> bool {
+        if !a.is_finite() || !b.is_finite() {
+            return !a.is_finite() && !b.is_finite();
+        }
+        (a - b).abs() <= 1e-9 * a.abs().max(b.abs()).max(1.0)
+    }
+
+    proptest! {
+        #[test]
+        fn compiled_program_agrees_with_the_tree_walk(
+            expr in expression(),
+            x in -2.0f64..2.0,
+            y in 0.01f64..3.0,
+            t in 0.0f64..2.0,
+        ) {
+            let params = [1.3, -0.7];
+            let program = Program::compile(&expr, &params, 2, &[false, false]).unwrap();
+            let expected = expr.eval(&params, &[x, y], t);
+            let got = program.evaluate_one(&[x, y], t);
+            prop_assert!(close(got, expected), "{expr:?} at x={x}, y={y}, t={t}: {got} vs {expected}");
+        }
+    }
+}
