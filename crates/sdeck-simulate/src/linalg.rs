@@ -74,48 +74,79 @@ pub struct GaussianStep {
 
 /// Builds the exact step with Van Loan's block exponential (Van Loan 1978, IEEE Trans.
 /// Automatic Control 23(3), "Computing integrals involving the matrix exponential", §2):
-/// exp([[-A, Q], [0, Aᵀ]] Δ) = [[·, G], [0, F]] gives e^{AΔ} = Fᵀ and the step covariance
-/// P = ∫₀^Δ e^{As} Q e^{Aᵀs} ds = Fᵀ G. The shift ∫₀^Δ e^{As} b ds is the last column of
-/// exp([[A, b], [0, 0]] Δ).
+/// exp([[-A, Q], [0, Aᵀ]] h) = [[·, G], [0, F]] gives e^{Ah} = Fᵀ and the step covariance
+/// P(h) = ∫₀^h e^{As} Q e^{Aᵀs} ds = Fᵀ G. The shift ∫₀^h e^{As} b ds is the last column of
+/// exp([[A, b], [0, 0]] h).
+///
+/// The block holds both e^{−Ah} and e^{Ah}, which overflow when ‖A‖h is large (a fast
+/// mean reversion over a long step). So the blocks are built for h = Δ/2^k with ‖A‖h ≤ 1
+/// and doubled k times with the exact semigroup rules T(2h) = T(h)²,
+/// shift(2h) = shift(h) + T(h) shift(h), P(2h) = P(h) + T(h) P(h) T(h)ᵀ.
 pub fn gaussian_step(
     drift: &DMatrix<f64>,
     constant: &DVector<f64>,
     noise_covariance: &DMatrix<f64>,
     step: f64,
 ) -> GaussianStep {
-    let n = drift.nrows();
-    let mut block = DMatrix::zeros(2 * n, 2 * n);
-    block.view_mut((0, 0), (n, n)).copy_from(&(-drift * step));
-    block
-        .view_mut((0, n), (n, n))
-        .copy_from(&(noise_covariance * step));
-    block
-        .view_mut((n, n), (n, n))
-        .copy_from(&(drift.transpose() * step));
-    let exponential = block.exp();
-    let f = exponential.view((n, n), (n, n)).into_owned();
-    let g = exponential.view((0, n), (n, n)).into_owned();
-    let transition = f.transpose();
-    let covariance = &transition * g;
-
-    let mut augmented = DMatrix::zeros(n + 1, n + 1);
-    augmented
-        .view_mut((0, 0), (n, n))
-        .copy_from(&(drift * step));
-    augmented
-        .view_mut((0, n), (n, 1))
-        .copy_from(&(constant * step));
-    let augmented_exponential = augmented.exp();
-    let shift = augmented_exponential
-        .view((0, n), (n, 1))
-        .column(0)
-        .into_owned();
-
+    let norm = drift
+        .row_iter()
+        .map(|row| row.iter().map(|v| v.abs()).sum::<f64>())
+        .fold(0.0f64, f64::max);
+    let mut doublings = 0u32;
+    let mut small_step = step;
+    // At most 60 halvings: beyond that the step is below any meaningful time scale.
+    while norm * small_step > 1.0 && doublings < 60 {
+        small_step *= 0.5;
+        doublings += 1;
+    }
+    let (mut transition, mut shift, mut covariance) =
+        van_loan(drift, constant, noise_covariance, small_step);
+    for _ in 0..doublings {
+        shift = &shift + &transition * &shift;
+        covariance = &covariance + &transition * &covariance * transition.transpose();
+        transition = &transition * &transition;
+    }
     GaussianStep {
         transition,
         shift,
         noise_factor: covariance_factor(&covariance).lower,
     }
+}
+
+/// Transition, shift and covariance of one step `h` by Van Loan's block exponentials.
+fn van_loan(
+    drift: &DMatrix<f64>,
+    constant: &DVector<f64>,
+    noise_covariance: &DMatrix<f64>,
+    h: f64,
+) -> (DMatrix<f64>, DVector<f64>, DMatrix<f64>) {
+    let n = drift.nrows();
+    let mut block = DMatrix::zeros(2 * n, 2 * n);
+    block.view_mut((0, 0), (n, n)).copy_from(&(-drift * h));
+    block
+        .view_mut((0, n), (n, n))
+        .copy_from(&(noise_covariance * h));
+    block
+        .view_mut((n, n), (n, n))
+        .copy_from(&(drift.transpose() * h));
+    let exponential = block.exp();
+    let f = exponential.view((n, n), (n, n)).into_owned();
+    let g = exponential.view((0, n), (n, n)).into_owned();
+    let transition = f.transpose();
+    let covariance = &transition * g;
+    let covariance = (&covariance + covariance.transpose()) * 0.5;
+
+    let mut augmented = DMatrix::zeros(n + 1, n + 1);
+    augmented.view_mut((0, 0), (n, n)).copy_from(&(drift * h));
+    augmented
+        .view_mut((0, n), (n, 1))
+        .copy_from(&(constant * h));
+    let augmented_exponential = augmented.exp();
+    let shift = augmented_exponential
+        .view((0, n), (n, 1))
+        .column(0)
+        .into_owned();
+    (transition, shift, covariance)
 }
 
 #[cfg(test)]
@@ -158,6 +189,27 @@ mod tests {
         );
         let expected_first = s1 * s1 * (1.0 - (-2.0 * k1 * step).exp()) / (2.0 * k1);
         assert!((p[(0, 0)] - expected_first).abs() < 1e-15);
+    }
+
+    #[test]
+    fn long_steps_of_fast_mean_reversion_stay_finite_and_exact() {
+        // κΔ = 1000: the plain block exponential would overflow. Same Vasicek formulas.
+        let (kappa, theta, sigma, step) = (365.0, 0.02, 0.5, 2.74);
+        let result = gaussian_step(
+            &DMatrix::from_element(1, 1, -kappa),
+            &DVector::from_element(1, kappa * theta),
+            &DMatrix::from_element(1, 1, sigma * sigma),
+            step,
+        );
+        let decay = (-kappa * step).exp();
+        assert!((result.transition[(0, 0)] - decay).abs() < 1e-15);
+        assert!((result.shift[0] - theta * (1.0 - decay)).abs() < 1e-15);
+        let variance = sigma * sigma * (1.0 - (-2.0 * kappa * step).exp()) / (2.0 * kappa);
+        let got = result.noise_factor[(0, 0)].powi(2);
+        assert!(
+            (got - variance).abs() < 1e-12 * variance,
+            "{got} vs {variance}"
+        );
     }
 
     #[test]
