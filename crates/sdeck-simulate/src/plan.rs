@@ -9,7 +9,7 @@
 use crate::affine::{affine_form, scaled_square_root, AffineForm};
 use crate::bytecode::mark_root_states;
 use sdeck_calculus::{Derivation, Family};
-use sdeck_semantics::Model;
+use sdeck_semantics::{Expr, Function, Model};
 
 /// How one state advances over a step.
 #[derive(Clone, Debug, PartialEq)]
@@ -99,18 +99,80 @@ impl Plan {
     }
 }
 
-/// States appearing under sqrt, log or a fractional power in any coefficient.
+/// States that Euler–Maruyama reads as max(x, 0) (full truncation). A state qualifies when
+/// it appears under `sqrt`, `log` or a fractional power and either
+/// - that argument is affine with non-negative constant and positive coefficients
+///   (`sqrt(v)`, `sqrt(theta * v)`, `x^1.5`): reading x⁺ keeps the argument in its domain; or
+/// - the state's declared domain has a lower bound at or above 0 (`state v = 4% >= 0`):
+///   reading x⁺ keeps to the declared domain.
+///
+/// A state that may be negative and appears only under a root whose argument stays
+/// positive anyway (`sqrt(1 + p^2)`) is left alone: truncating it would change the model.
 fn root_states(model: &Model) -> Vec<bool> {
-    let mut marks = vec![false; model.states.len()];
+    let n = model.states.len();
+    let params = model.param_values();
+    let mut under_root = vec![false; n];
+    let mut affine_argument = vec![false; n];
     for state in &model.states {
         if let Some(equation) = &state.equation {
-            mark_root_states(&equation.drift, &mut marks);
-            for term in &equation.diffusion {
-                mark_root_states(&term.coefficient, &mut marks);
+            let coefficients = std::iter::once(&equation.drift)
+                .chain(equation.diffusion.iter().map(|term| &term.coefficient));
+            for expr in coefficients {
+                mark_root_states(expr, &mut under_root);
+                mark_affine_root_arguments(expr, &params, &mut affine_argument);
             }
         }
     }
-    marks
+    (0..n)
+        .map(|i| {
+            let declared_non_negative = model.states[i]
+                .domain
+                .lower
+                .is_some_and(|(bound, _)| bound >= 0.0);
+            affine_argument[i] || (under_root[i] && declared_non_negative)
+        })
+        .collect()
+}
+
+/// Marks the states of every root argument that is affine with a non-negative constant
+/// and positive coefficients.
+fn mark_affine_root_arguments(expr: &Expr, params: &[f64], marks: &mut [bool]) {
+    let n = marks.len();
+    let mut mark_argument = |argument: &Expr, marks: &mut [bool]| {
+        if let Some(form) = affine_form(argument, params, n) {
+            let positive = form.constant >= 0.0 && form.coefficients.iter().all(|c| *c >= 0.0);
+            if positive {
+                for (mark, c) in marks.iter_mut().zip(&form.coefficients) {
+                    *mark |= *c > 0.0;
+                }
+            }
+        }
+    };
+    match expr {
+        Expr::Call(Function::Sqrt | Function::Log, args) => {
+            if let Some(argument) = args.first() {
+                mark_argument(argument, marks);
+            }
+        }
+        Expr::Pow(base, exponent) => {
+            let integer = matches!(affine_form(exponent, params, n), Some(f) if f.is_constant() && f.constant.fract() == 0.0);
+            if !integer {
+                mark_argument(base, marks);
+            }
+        }
+        _ => {}
+    }
+    match expr {
+        Expr::Neg(a) => mark_affine_root_arguments(a, params, marks),
+        Expr::Add(a, b) | Expr::Sub(a, b) | Expr::Mul(a, b) | Expr::Div(a, b) | Expr::Pow(a, b) => {
+            mark_affine_root_arguments(a, params, marks);
+            mark_affine_root_arguments(b, params, marks);
+        }
+        Expr::Call(_, args) => args
+            .iter()
+            .for_each(|a| mark_affine_root_arguments(a, params, marks)),
+        Expr::Const(_) | Expr::Param(_) | Expr::State(_) | Expr::Time | Expr::Invalid => {}
+    }
 }
 
 /// What the equations say about each state, read structurally.

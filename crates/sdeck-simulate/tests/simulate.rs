@@ -622,3 +622,32 @@ fn a_hand_made_plan_that_does_not_fit_the_model_is_refused() {
         Err(SimulateError::InconsistentPlan(_))
     ));
 }
+
+#[test]
+fn truncation_applies_to_roots_of_non_negative_states_only() {
+    // v under sqrt: truncated. p under sqrt(1 + p^2): the argument is positive anyway and
+    // p may be negative, so it is left alone. S under sqrt(v * S) with a declared domain
+    // S > 0: truncated to keep to that domain.
+    let model = model(
+        "
+        param k = 1 [1/year]
+        param level = 4%
+        param b = 0.2 [1/sqrt(year)]
+        param c = 1 [1/year]
+        noise W, V, U
+        state v = 4% >= 0
+        state p = 0
+        state S = 1 > 0
+        dv = k * (level - v) dt + b * sqrt(v) dW
+        dp = -k * p dt + b * sqrt(1 + p^2) dV
+        dS = k * S dt + sqrt(c * v * S) dU
+        ",
+    );
+    let plan = Plan::all_euler(&model);
+    assert_eq!(plan.truncated, vec![true, false, true]);
+    let samples = simulate_paths(&model, &plan, &options(2_000, 50, 1.0, 3)).unwrap();
+    assert!(
+        samples.finals[1].iter().any(|p| *p < 0.0),
+        "p must keep its negative values"
+    );
+}
