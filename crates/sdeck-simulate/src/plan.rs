@@ -138,7 +138,7 @@ fn root_states(model: &Model) -> Vec<bool> {
 /// and positive coefficients.
 fn mark_affine_root_arguments(expr: &Expr, params: &[f64], marks: &mut [bool]) {
     let n = marks.len();
-    let mut mark_argument = |argument: &Expr, marks: &mut [bool]| {
+    let mark_argument = |argument: &Expr, marks: &mut [bool]| {
         if let Some(form) = affine_form(argument, params, n) {
             let positive = form.constant >= 0.0 && form.coefficients.iter().all(|c| *c >= 0.0);
             if positive {
