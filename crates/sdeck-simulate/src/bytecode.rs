@@ -321,7 +321,8 @@ impl Emitter<'_> {
 }
 
 /// Marks every state that appears inside the argument of `sqrt`, `log` or a power with a
-/// non-integer or non-constant exponent: those need full truncation when simulated.
+/// non-integer or non-constant exponent: the candidates for full truncation (the plan
+/// decides which are truncated).
 pub fn mark_root_states(expr: &Expr, marks: &mut [bool]) {
     fn mark_all(expr: &Expr, marks: &mut [bool]) {
         match expr {
