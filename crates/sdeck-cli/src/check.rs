@@ -8,7 +8,7 @@
 use crate::files::{self, SourceText, Target};
 use crate::{github, junit, render, sarif};
 use clap::{Args, ValueEnum};
-use codespan_reporting::term::termcolor::{ColorChoice, NoColor, StandardStream, WriteColor};
+use codespan_reporting::term::termcolor::{BufferedStandardStream, ColorChoice, NoColor, WriteColor};
 use rayon::prelude::*;
 use sdeck_checks::{check, FileCheck, RuleSettings};
 use sdeck_diagnostics::{rules, Diagnostic, Severity};
@@ -292,7 +292,9 @@ fn run_in_pool(args: CheckArgs) -> ExitCode {
         } else {
             ColorChoice::Never
         };
-    let mut stdout = StandardStream::stdout(color);
+    // Buffered: a report of thousands of findings is written in large blocks, not a
+    // system call per line.
+    let mut stdout = BufferedStandardStream::stdout(color);
     let printed = write_report(args.format, &checked, &mut stdout).and_then(|()| stdout.flush());
     if let Err(e) = printed {
         if e.kind() != std::io::ErrorKind::BrokenPipe {
