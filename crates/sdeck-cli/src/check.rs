@@ -8,7 +8,9 @@
 use crate::files::{self, SourceText, Target};
 use crate::{github, junit, render, sarif};
 use clap::{Args, ValueEnum};
-use codespan_reporting::term::termcolor::{BufferedStandardStream, ColorChoice, NoColor, WriteColor};
+use codespan_reporting::term::termcolor::{
+    BufferedStandardStream, ColorChoice, NoColor, WriteColor,
+};
 use rayon::prelude::*;
 use sdeck_checks::{check, FileCheck, RuleSettings};
 use sdeck_diagnostics::{rules, Diagnostic, Severity};

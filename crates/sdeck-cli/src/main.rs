@@ -66,17 +66,17 @@ fn main() -> ExitCode {
         Command::Moments(args) => moments::run(args),
         Command::Fmt(args) => fmt_cmd::run(args),
         Command::Lsp(args) => lsp_cmd::run(args),
-        Command::Explain { rule, markdown: true } => {
-            debug_assert!(rule.is_none());
-            print!("{}", render::rules_markdown());
-            ExitCode::SUCCESS
-        }
-        Command::Explain { rule, markdown: false } => explain(rule.as_deref()),
+        Command::Explain { rule, markdown } => explain(rule.as_deref(), markdown),
     }
 }
 
-fn explain(rule: Option<&str>) -> ExitCode {
+fn explain(rule: Option<&str>, markdown: bool) -> ExitCode {
     use sdeck_diagnostics::rules;
+    if markdown {
+        // The whole manual, as docs/rules.md holds it (clap refuses a rule beside it).
+        print!("{}", render::rules_markdown());
+        return ExitCode::SUCCESS;
+    }
     match rule {
         None => {
             let width = rules::ALL.iter().map(|r| r.name.len()).max().unwrap_or(0);
