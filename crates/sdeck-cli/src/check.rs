@@ -212,6 +212,10 @@ fn run_in_pool(args: CheckArgs) -> ExitCode {
         eprintln!("sdeck: name the files or folders to check, or `-` with `--stdin-name PATH` to read standard input");
         return ExitCode::from(2);
     }
+    if args.stdin_name.is_some() && !reads_stdin {
+        eprintln!("sdeck: `--stdin-name` names standard input, which is read only when `-` is among the paths (or no path is given)");
+        return ExitCode::from(2);
+    }
     if args.paths.iter().filter(|p| p.as_os_str() == "-").count() > 1 {
         eprintln!("sdeck: standard input can be read once: give `-` once");
         return ExitCode::from(2);

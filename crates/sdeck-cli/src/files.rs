@@ -1,6 +1,7 @@
 //! Finding model files and reading them as text, reporting what cannot be read.
 
 use sdeck_project::{Project, ProjectCache, ProjectError};
+use std::collections::HashSet;
 use std::io::Read;
 use std::path::{Path, PathBuf};
 use std::sync::Arc;
@@ -32,16 +33,21 @@ pub struct Target {
 ///   (nearest) project. Hidden folders (`.git`, ...) are skipped. Files are sorted within
 ///   each argument.
 /// - A file named explicitly is checked whatever its extension.
+/// - A file reached twice is checked once, under the first path that reached it.
 ///
 /// A path that does not exist or a broken project file is an error.
 pub fn collect(paths: &[PathBuf], projects: &mut ProjectCache) -> Result<Vec<Target>, String> {
     let mut out = Vec::new();
+    // A file reached twice (named, and found in a named folder) is checked once.
+    let mut seen: HashSet<PathBuf> = HashSet::new();
     for path in paths {
         let meta = std::fs::metadata(path)
             .map_err(|e| format!("cannot read `{}`: {e}", path.display()))?;
         if !meta.is_dir() {
             let project = projects.project_for(path).map_err(describe_project_error)?;
-            if !project.as_ref().is_some_and(|p| p.is_excluded(path)) {
+            if !project.as_ref().is_some_and(|p| p.is_excluded(path))
+                && seen.insert(sdeck_project::absolute(path))
+            {
                 out.push(Target {
                     path: path.clone(),
                     project,
@@ -91,7 +97,9 @@ pub fn collect(paths: &[PathBuf], projects: &mut ProjectCache) -> Result<Vec<Tar
             let project = projects
                 .project_for_folder(folder)
                 .map_err(describe_project_error)?;
-            if !project.as_ref().is_some_and(|p| p.is_excluded(&file)) {
+            if !project.as_ref().is_some_and(|p| p.is_excluded(&file))
+                && seen.insert(sdeck_project::absolute(&file))
+            {
                 found.push((file, project));
             }
         }

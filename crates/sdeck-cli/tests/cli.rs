@@ -152,6 +152,7 @@ fn usage_errors_exit_2() {
         vec!["check", "--output", "yaml=report.yaml", "demo-models"],
         vec!["check", "--deny", "hints", "demo-models"],
         vec!["check", "-", "-"],
+        vec!["check", "--stdin-name", "a.sde", "demo-models"],
         vec!["explain", "no-such-rule"],
     ] {
         let out = sdeck().args(&args).output().unwrap();
@@ -879,4 +880,35 @@ fn expectations_wait_while_the_model_has_errors() {
         fired.iter().any(|(rule, _)| rule == "duplicate-name"),
         "{fired:?}"
     );
+}
+
+#[test]
+fn a_file_reached_twice_is_checked_once() {
+    let out = sdeck()
+        .args([
+            "check",
+            "demo-models/flawed/unused.sde",
+            "demo-models/flawed",
+            "./demo-models/flawed/unused.sde",
+            "--format",
+            "json",
+        ])
+        .output()
+        .unwrap();
+    let value = json_of(&out);
+    let flawed = std::fs::read_dir(root().join("demo-models/flawed"))
+        .unwrap()
+        .filter(|e| {
+            e.as_ref()
+                .is_ok_and(|e| e.path().extension().is_some_and(|x| x == "sde"))
+        })
+        .count();
+    assert_eq!(value["files"], flawed);
+    let unused = value["diagnostics"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|d| d["rule"] == "unused")
+        .count();
+    assert_eq!(unused, 3);
 }
