@@ -912,3 +912,32 @@ fn a_file_reached_twice_is_checked_once() {
         .count();
     assert_eq!(unused, 3);
 }
+
+#[test]
+fn hidden_folders_are_skipped_in_a_folder_search() {
+    let dir = tempfile::tempdir().unwrap();
+    write(&dir.path().join("models/a.sde"), SOUND_MODEL);
+    write(
+        &dir.path().join("models/.snapshots/old.sde"),
+        "model broken-name\n",
+    );
+    write(&dir.path().join("models/notes.txt"), "model broken-name\n");
+    let out = sdeck()
+        .arg("check")
+        .arg(dir.path().join("models"))
+        .args(["--format", "json"])
+        .output()
+        .unwrap();
+    assert_eq!(status(&out), 0, "{}", stdout(&out));
+    assert_eq!(json_of(&out)["files"], 1);
+    // Named explicitly, a hidden folder and a file of any extension are checked.
+    let out = sdeck()
+        .arg("check")
+        .arg(dir.path().join("models/.snapshots"))
+        .arg(dir.path().join("models/notes.txt"))
+        .args(["--format", "json"])
+        .output()
+        .unwrap();
+    assert_eq!(status(&out), 1);
+    assert_eq!(json_of(&out)["files"], 2);
+}
