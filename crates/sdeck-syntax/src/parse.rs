@@ -859,7 +859,10 @@ impl Builder {
                 let mut operand = None;
                 for p in pair.into_inner() {
                     if p.as_rule() == Rule::minus {
-                        minus_spans.push(self.span(&p));
+                        let minus = self.span(&p);
+                        // Every minus is a node: `----…1` must not nest without limit.
+                        self.count(&minus)?;
+                        minus_spans.push(minus);
                     } else {
                         operand = Some(self.expr(p)?);
                     }

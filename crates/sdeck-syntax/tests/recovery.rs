@@ -152,3 +152,11 @@ fn half_open_intervals_parse() {
     let file = parse("param a = 0.5 in [0, 1)\nparam b = 2 in (0, inf)\n");
     assert!(file.diagnostics.is_empty(), "{:?}", file.diagnostics);
 }
+
+#[test]
+fn a_hundred_thousand_unary_minuses_hit_the_node_limit() {
+    let text = format!("let m = {}1\n", "-".repeat(100_000));
+    let errors = error_lines(&text);
+    assert_eq!(errors.len(), 1);
+    assert!(errors[0].1.contains("expression nodes"), "{}", errors[0].1);
+}
