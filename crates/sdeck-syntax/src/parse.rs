@@ -106,6 +106,8 @@ fn precheck(src: &str, offset: usize) -> Result<()> {
     // closing bracket may end: `in [0, 1)`).
     let mut stack: Vec<(char, usize, bool)> = Vec::new();
     let mut in_comment = false;
+    // `a ^ b ^ c` nests to the right in the grammar: bound it like brackets.
+    let mut powers = 0usize;
     for (i, c) in src.char_indices() {
         if in_comment {
             in_comment = c != '\n';
@@ -114,6 +116,16 @@ fn precheck(src: &str, offset: usize) -> Result<()> {
         code_bytes += c.len_utf8();
         match c {
             '#' => in_comment = true,
+            '^' => {
+                powers += 1;
+                if powers > MAX_NESTING {
+                    return Err(syntax_error(
+                        offset + i..offset + i + 1,
+                        format!("more than {MAX_NESTING} `^` in one statement"),
+                    )
+                    .with_help("split the expression with `let` definitions"));
+                }
+            }
             '(' | '[' => {
                 stack.push((c, i, opens_interval(&src[..i])));
                 if stack.len() > MAX_NESTING {

@@ -160,3 +160,11 @@ fn a_hundred_thousand_unary_minuses_hit_the_node_limit() {
     assert_eq!(errors.len(), 1);
     assert!(errors[0].1.contains("expression nodes"), "{}", errors[0].1);
 }
+
+#[test]
+fn long_power_towers_are_an_error_not_a_stack_overflow() {
+    let text = format!("let x = {}1\n", "2^".repeat(100_000));
+    let errors = error_lines(&text);
+    assert_eq!(errors.len(), 1);
+    assert!(errors[0].1.contains("`^`"), "{}", errors[0].1);
+}
