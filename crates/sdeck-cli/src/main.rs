@@ -10,6 +10,7 @@ mod lsp_cmd;
 mod moments;
 mod render;
 mod sarif;
+mod simulate_cmd;
 
 use clap::{Parser, Subcommand};
 use std::process::ExitCode;
@@ -38,6 +39,8 @@ enum Command {
     Check(check::CheckArgs),
     /// Derive the family, closed forms and moments of each state of a model.
     Moments(moments::MomentsArgs),
+    /// Cross-check the derived law by Monte Carlo simulation.
+    Simulate(simulate_cmd::SimulateArgs),
     /// Format model files in place (aligned declarations, canonical spacing).
     Fmt(fmt_cmd::FmtArgs),
     /// Serve the Language Server Protocol on stdin/stdout, for editors.
@@ -64,6 +67,7 @@ fn main() -> ExitCode {
     match cli.command {
         Command::Check(args) => check::run(args),
         Command::Moments(args) => moments::run(args),
+        Command::Simulate(args) => simulate_cmd::run(args),
         Command::Fmt(args) => fmt_cmd::run(args),
         Command::Lsp(args) => lsp_cmd::run(args),
         Command::Explain { rule, markdown } => explain(rule.as_deref(), markdown),

@@ -1,0 +1,154 @@
+//! `sdeck simulate FILE`: an independent Monte Carlo cross-check of the derived law.
+
+use crate::files;
+use crate::moments::parse_time;
+use clap::{Args, ValueEnum};
+use sdeck_diagnostics::Severity;
+use sdeck_simulate::{
+    check, closed_form_means, render_text, simulate_and_compare, to_json, write_fan_chart,
+    SimulationOptions,
+};
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+#[derive(Clone, Copy, Debug, PartialEq, Eq, ValueEnum)]
+pub enum Format {
+    Text,
+    Json,
+}
+
+#[derive(Args)]
+pub struct SimulateArgs {
+    /// The model file.
+    file: PathBuf,
+    /// Number of simulated paths.
+    #[arg(long, default_value_t = 100_000)]
+    paths: usize,
+    /// Time steps between 0 and the reporting time.
+    #[arg(long, default_value_t = 100)]
+    steps: usize,
+    /// Reporting time: a number in clock units or with a time unit ("6 month").
+    /// Default: the model's horizon.
+    #[arg(long)]
+    at: Option<String>,
+    /// Seed of the random streams; the same seed gives the same numbers whatever the
+    /// thread count.
+    #[arg(long, default_value_t = 1)]
+    seed: u64,
+    /// Worker threads (default: all cores).
+    #[arg(long)]
+    threads: Option<usize>,
+    #[arg(long, value_enum, default_value_t = Format::Text)]
+    format: Format,
+    /// Exit 1 when a simulated mean or variance is more than 4 standard errors from its
+    /// closed form.
+    #[arg(long)]
+    check: bool,
+    /// Write a fan chart of the simulated quantile bands (SVG).
+    #[arg(long, value_name = "FILE.svg")]
+    plot: Option<PathBuf>,
+}
+
+pub fn run(args: SimulateArgs) -> ExitCode {
+    let source = match files::read(&args.file) {
+        Ok(s) => s,
+        Err(message) => {
+            eprintln!("sdeck: {message}");
+            return ExitCode::from(2);
+        }
+    };
+    let settings = sdeck_project::settings_for(&args.file);
+    let (checked, result) = crate::check::check_source(source, &settings);
+    let errors: Vec<_> = checked
+        .diagnostics
+        .iter()
+        .filter(|d| d.severity == Severity::Error && d.rule != "expectation-failed")
+        .cloned()
+        .collect();
+    if !errors.is_empty() {
+        let mut err = codespan_reporting::term::termcolor::StandardStream::stderr(
+            codespan_reporting::term::termcolor::ColorChoice::Never,
+        );
+        let _ = crate::render::human(
+            &mut err,
+            &checked.source.path,
+            &checked.source.text,
+            &errors,
+        );
+        eprintln!("sdeck: the model has errors; nothing is simulated until they are mended");
+        return ExitCode::from(1);
+    }
+    let model = &result.analysis.model;
+    let at = match &args.at {
+        None => None,
+        Some(text) => match parse_time(text, model) {
+            Ok(t) if t > 0.0 && t.is_finite() => Some(t),
+            Ok(_) => {
+                eprintln!("sdeck: --at must be a positive time");
+                return ExitCode::from(2);
+            }
+            Err(message) => {
+                eprintln!("sdeck: {message}");
+                return ExitCode::from(2);
+            }
+        },
+    };
+    if args.paths == 0 || args.steps == 0 {
+        eprintln!("sdeck: --paths and --steps must be at least 1");
+        return ExitCode::from(2);
+    }
+    let options = SimulationOptions {
+        paths: args.paths,
+        steps: args.steps,
+        at,
+        seed: args.seed,
+        threads: args.threads,
+        progress: true,
+        band_times: if args.plot.is_some() { 100 } else { 0 },
+    };
+    let simulated = match simulate_and_compare(model, &result.derivation, &options) {
+        Ok(r) => r,
+        Err(e) => {
+            eprintln!("sdeck: {e}");
+            return ExitCode::from(1);
+        }
+    };
+    for warning in &simulated.warnings {
+        eprintln!("sdeck: warning: {warning}");
+    }
+    match args.format {
+        Format::Json => match serde_json::to_string_pretty(&to_json(&simulated)) {
+            Ok(text) => println!("{text}"),
+            Err(e) => {
+                eprintln!("sdeck: cannot write the report: {e}");
+                return ExitCode::from(2);
+            }
+        },
+        Format::Text => {
+            print!("{}", render_text(&simulated));
+            println!("\n{}", crate::CAUTION);
+        }
+    }
+    if let Some(path) = &args.plot {
+        let times: Vec<f64> = simulated
+            .bands
+            .as_ref()
+            .map(|b| b.times.clone())
+            .unwrap_or_default();
+        let means = closed_form_means(model, &result.derivation, &times);
+        if let Err(e) = write_fan_chart(path, &simulated, Some(&means)) {
+            eprintln!("sdeck: cannot write the chart `{}`: {e}", path.display());
+            return ExitCode::from(2);
+        }
+    }
+    if args.check {
+        let disagreements = check(&simulated);
+        if !disagreements.is_empty() {
+            for d in &disagreements {
+                eprintln!("sdeck: disagreement: {d}");
+            }
+            return ExitCode::from(1);
+        }
+    }
+    ExitCode::SUCCESS
+}
