@@ -60,7 +60,10 @@ pub struct FileCheck {
 
 impl FileCheck {
     pub fn count(&self, severity: Severity) -> usize {
-        self.diagnostics.iter().filter(|d| d.severity == severity).count()
+        self.diagnostics
+            .iter()
+            .filter(|d| d.severity == severity)
+            .count()
     }
 }
 
@@ -101,9 +104,7 @@ fn finish(
             Some(d)
         })
         .collect();
-    out.sort_by(|a, b| {
-        (a.span.start, a.span.end, a.rule).cmp(&(b.span.start, b.span.end, b.rule))
-    });
+    out.sort_by(|a, b| (a.span.start, a.span.end, a.rule).cmp(&(b.span.start, b.span.end, b.rule)));
     out.dedup_by(|a, b| a.span == b.span && a.rule == b.rule && a.message == b.message);
     out
 }

@@ -25,7 +25,9 @@ fn models_in(dir: &Path) -> Vec<PathBuf> {
 fn expected_markers(text: &str) -> Vec<(u32, String)> {
     let mut out = Vec::new();
     for (i, line) in text.lines().enumerate() {
-        let Some(hash) = line.rfind('#') else { continue };
+        let Some(hash) = line.rfind('#') else {
+            continue;
+        };
         let comment = line[hash + 1..].trim();
         let (offset, list) = if let Some(rest) = comment.strip_prefix("expect-next-line:") {
             (2, rest)
@@ -124,6 +126,11 @@ fn manual_examples_fire_their_rule_once_and_the_fixed_ones_nothing() {
             rule.name
         );
         let fixed = fired(rule.fixed, rule.name);
-        assert!(fixed.is_empty(), "the fixed example of {} fires {:?}", rule.name, fixed);
+        assert!(
+            fixed.is_empty(),
+            "the fixed example of {} fires {:?}",
+            rule.name,
+            fixed
+        );
     }
 }
