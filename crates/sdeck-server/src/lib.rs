@@ -567,6 +567,40 @@ impl LanguageServer for Backend {
     }
 }
 
+/// Ends the process on the `exit` notification. tower-lsp stops serving only when the
+/// next message arrives or stdin closes; a client that sends `exit` and waits for the
+/// process (as the protocol allows) would wait for ever.
+struct EndOnExit<S> {
+    inner: S,
+    shut_down: bool,
+}
+
+impl<S> tower_service::Service<tower_lsp::jsonrpc::Request> for EndOnExit<S>
+where
+    S: tower_service::Service<tower_lsp::jsonrpc::Request>,
+{
+    type Response = S::Response;
+    type Error = S::Error;
+    type Future = S::Future;
+
+    fn poll_ready(
+        &mut self,
+        cx: &mut std::task::Context<'_>,
+    ) -> std::task::Poll<std::result::Result<(), Self::Error>> {
+        self.inner.poll_ready(cx)
+    }
+
+    fn call(&mut self, request: tower_lsp::jsonrpc::Request) -> Self::Future {
+        match request.method() {
+            "shutdown" => self.shut_down = true,
+            // The protocol: exit code 0 after a shutdown request, 1 without one.
+            "exit" => std::process::exit(if self.shut_down { 0 } else { 1 }),
+            _ => {}
+        }
+        self.inner.call(request)
+    }
+}
+
 /// Serves the protocol on stdin/stdout until the client exits.
 pub fn run_stdio() -> std::io::Result<()> {
     let runtime = tokio::runtime::Builder::new_multi_thread()
@@ -577,10 +611,17 @@ pub fn run_stdio() -> std::io::Result<()> {
         let (service, socket) = LspService::build(Backend::new)
             .custom_method(DOCUMENT_TEXT_METHOD, Backend::document_text)
             .finish();
+        let service = EndOnExit {
+            inner: service,
+            shut_down: false,
+        };
         Server::new(tokio::io::stdin(), tokio::io::stdout(), socket)
             .serve(service)
             .await;
     });
+    // The reader of stdin sits on a blocking thread that never returns while stdin is
+    // open; do not wait for it once the client has said `exit`.
+    runtime.shutdown_background();
     Ok(())
 }
 
