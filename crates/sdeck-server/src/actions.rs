@@ -314,13 +314,13 @@ fn moments_comment(a: &Analyzed, in_range: impl Fn(&Span) -> bool) -> Vec<(Strin
                 lines.push(format!("{label:<10} {}", t.replace('\n', " ")));
             }
         }
-        let mean = a.moments.mean.get(i).copied().flatten();
-        let variance = a.moments.variance.get(i).copied().flatten();
+        let mean = a.moments().mean.get(i).copied().flatten();
+        let variance = a.moments().variance.get(i).copied().flatten();
         if let (Some(m), Some(v)) = (mean, variance) {
             if m.is_finite() && v.is_finite() && v >= 0.0 {
                 lines.push(format!(
                     "at t = {} {clock}: mean {}, sd {}",
-                    fmt_num(a.moments.at),
+                    fmt_num(a.moments().at),
                     fmt_num(m),
                     fmt_num(v.sqrt())
                 ));

@@ -10,6 +10,7 @@ use sdeck_semantics::{Symbol, SymbolKind};
 use sdeck_syntax::ast::{Declaration, StatementKind};
 use sdeck_syntax::LineIndex;
 use std::path::Path;
+use std::sync::OnceLock;
 use tower_lsp::lsp_types::Url;
 
 /// The rule settings for a document: those of the `sdeck.toml` that governs its file
@@ -28,24 +29,31 @@ pub struct Analyzed {
     pub index: LineIndex,
     pub check: FileCheck,
     /// Means, variances and covariances at the model's horizon (what `sdeck moments`
-    /// prints by default).
-    pub moments: Moments,
+    /// prints by default), computed on first use: diagnostics do not need them, and on
+    /// a large system they cost far more than the checks.
+    moments: OnceLock<Moments>,
 }
 
 impl Analyzed {
     /// Runs the analysis. The caller guards against panics.
     pub fn compute(snapshot: TextSnapshot) -> Analyzed {
         let check = sdeck_checks::check(&snapshot.text, &snapshot.stem, &snapshot.settings);
-        let model = &check.analysis.model;
-        let moments = sdeck_calculus::moments_at(model, &check.derivation, model.horizon);
         let index = LineIndex::new(&snapshot.text);
         Analyzed {
             version: snapshot.version,
             text: snapshot.text,
             index,
             check,
-            moments,
+            moments: OnceLock::new(),
         }
+    }
+
+    /// The moments at the horizon (computed once per analysed version).
+    pub fn moments(&self) -> &Moments {
+        self.moments.get_or_init(|| {
+            let model = &self.check.analysis.model;
+            sdeck_calculus::moments_at(model, &self.check.derivation, model.horizon)
+        })
     }
 
     pub fn converter(&self, encoding: PositionEncoding) -> Converter<'_> {

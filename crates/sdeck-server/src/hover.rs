@@ -80,11 +80,11 @@ pub fn state_text(a: &Analyzed, i: usize) -> String {
             s.push_str(&format!("\n```text\n{}\n```\n", lines.join("\n")));
         }
     }
-    let mean = a.moments.mean.get(i).copied().flatten();
-    let variance = a.moments.variance.get(i).copied().flatten();
+    let mean = a.moments().mean.get(i).copied().flatten();
+    let variance = a.moments().variance.get(i).copied().flatten();
     s.push_str(&format!(
         "\nAt the horizon, t = {} {clock}:\n\n| figure | value |\n|---|---|\n",
-        fmt_num(a.moments.at)
+        fmt_num(a.moments().at)
     ));
     s.push_str(&format!("| mean | {} |\n", or_unknown(mean)));
     s.push_str(&format!("| variance | {} |\n", or_unknown(variance)));

@@ -148,6 +148,38 @@ impl Backend {
         }
     }
 
+    /// Runs a feature on the current analysis of a document, on a blocking thread: the
+    /// serving loop (which applies edits) never waits for an analysis. `None` when the
+    /// document is not open; a panic becomes an error response.
+    async fn with_analysis<T, F>(
+        &self,
+        uri: &Url,
+        what: &'static str,
+        feature: F,
+    ) -> Result<Option<T>>
+    where
+        T: Send + 'static,
+        F: FnOnce(&Analyzed, PositionEncoding) -> T + Send + 'static,
+    {
+        let shared = self.shared.clone();
+        let uri = uri.clone();
+        let encoding = shared.encoding();
+        let task = tokio::task::spawn_blocking(move || {
+            let Some(analyzed) = shared.analyzed(&uri)? else {
+                return Ok(None);
+            };
+            guard(what, || Some(feature(&analyzed, encoding)))
+        });
+        match task.await {
+            Ok(result) => result,
+            Err(e) => Err(Error {
+                code: ErrorCode::InternalError,
+                message: format!("sdeck: {what} failed ({e}); the server goes on serving").into(),
+                data: None,
+            }),
+        }
+    }
+
     /// Analyses the document after the debounce and publishes its diagnostics, unless a
     /// newer version arrived meanwhile.
     fn schedule_diagnostics(&self, uri: Url, version: i32, debounce: bool) {
@@ -380,19 +412,18 @@ impl LanguageServer for Backend {
         params: DocumentDiagnosticParams,
     ) -> Result<DocumentDiagnosticReportResult> {
         let uri = params.text_document.uri;
-        let items = match self.shared.analyzed(&uri)? {
-            Some(a) => {
-                let converter = a.converter(self.shared.encoding());
-                guard("diagnostics", || {
-                    a.check
-                        .diagnostics
-                        .iter()
-                        .map(|d| converter.diagnostic(&uri, d))
-                        .collect::<Vec<_>>()
-                })?
-            }
-            None => Vec::new(),
-        };
+        let for_uri = uri.clone();
+        let items = self
+            .with_analysis(&uri, "diagnostics", move |a, encoding| {
+                let converter = a.converter(encoding);
+                a.check
+                    .diagnostics
+                    .iter()
+                    .map(|d| converter.diagnostic(&for_uri, d))
+                    .collect::<Vec<_>>()
+            })
+            .await?
+            .unwrap_or_default();
         Ok(DocumentDiagnosticReportResult::Report(
             DocumentDiagnosticReport::Full(RelatedFullDocumentDiagnosticReport {
                 related_documents: None,
@@ -406,45 +437,39 @@ impl LanguageServer for Backend {
 
     async fn hover(&self, params: HoverParams) -> Result<Option<Hover>> {
         let p = params.text_document_position_params;
-        let Some(a) = self.shared.analyzed(&p.text_document.uri)? else {
-            return Ok(None);
-        };
-        let encoding = self.shared.encoding();
-        guard("hover", || hover::hover(&a, encoding, p.position))
+        self.with_analysis(&p.text_document.uri, "hover", move |a, encoding| {
+            hover::hover(a, encoding, p.position)
+        })
+        .await
+        .map(Option::flatten)
     }
 
     async fn inlay_hint(&self, params: InlayHintParams) -> Result<Option<Vec<InlayHint>>> {
-        let Some(a) = self.shared.analyzed(&params.text_document.uri)? else {
-            return Ok(None);
-        };
-        let encoding = self.shared.encoding();
-        guard("inlay hints", || {
-            Some(hints::inlay_hints(&a, encoding, params.range))
-        })
+        let range = params.range;
+        self.with_analysis(
+            &params.text_document.uri,
+            "inlay hints",
+            move |a, encoding| hints::inlay_hints(a, encoding, range),
+        )
+        .await
     }
 
     async fn code_action(&self, params: CodeActionParams) -> Result<Option<CodeActionResponse>> {
         let uri = params.text_document.uri.clone();
-        let Some(a) = self.shared.analyzed(&uri)? else {
-            return Ok(None);
-        };
-        let encoding = self.shared.encoding();
-        guard("code actions", || {
-            Some(actions::code_actions(&a, encoding, &uri, params.range))
+        let range = params.range;
+        let for_uri = uri.clone();
+        self.with_analysis(&uri, "code actions", move |a, encoding| {
+            actions::code_actions(a, encoding, &for_uri, range)
         })
+        .await
     }
 
     async fn completion(&self, params: CompletionParams) -> Result<Option<CompletionResponse>> {
         let p = params.text_document_position;
-        let Some(a) = self.shared.analyzed(&p.text_document.uri)? else {
-            return Ok(None);
-        };
-        let encoding = self.shared.encoding();
-        guard("completion", || {
-            Some(CompletionResponse::Array(completion::complete(
-                &a, encoding, p.position,
-            )))
+        self.with_analysis(&p.text_document.uri, "completion", move |a, encoding| {
+            CompletionResponse::Array(completion::complete(a, encoding, p.position))
         })
+        .await
     }
 
     async fn goto_definition(
@@ -452,93 +477,86 @@ impl LanguageServer for Backend {
         params: GotoDefinitionParams,
     ) -> Result<Option<GotoDefinitionResponse>> {
         let p = params.text_document_position_params;
-        let Some(a) = self.shared.analyzed(&p.text_document.uri)? else {
-            return Ok(None);
-        };
-        let encoding = self.shared.encoding();
-        guard("go to definition", || {
-            navigation::definition(&a, encoding, &p.text_document.uri, p.position)
-                .map(GotoDefinitionResponse::Scalar)
-        })
+        let uri = p.text_document.uri.clone();
+        self.with_analysis(
+            &p.text_document.uri,
+            "go to definition",
+            move |a, encoding| {
+                navigation::definition(a, encoding, &uri, p.position)
+                    .map(GotoDefinitionResponse::Scalar)
+            },
+        )
+        .await
+        .map(Option::flatten)
     }
 
     async fn references(&self, params: ReferenceParams) -> Result<Option<Vec<Location>>> {
         let p = params.text_document_position;
-        let Some(a) = self.shared.analyzed(&p.text_document.uri)? else {
-            return Ok(None);
-        };
-        let encoding = self.shared.encoding();
-        guard("references", || {
-            navigation::references(
-                &a,
-                encoding,
-                &p.text_document.uri,
-                p.position,
-                params.context.include_declaration,
-            )
+        let uri = p.text_document.uri.clone();
+        let include_declaration = params.context.include_declaration;
+        self.with_analysis(&p.text_document.uri, "references", move |a, encoding| {
+            navigation::references(a, encoding, &uri, p.position, include_declaration)
         })
+        .await
+        .map(Option::flatten)
     }
 
     async fn prepare_rename(
         &self,
         params: TextDocumentPositionParams,
     ) -> Result<Option<PrepareRenameResponse>> {
-        let Some(a) = self.shared.analyzed(&params.text_document.uri)? else {
-            return Ok(None);
-        };
-        let encoding = self.shared.encoding();
-        guard("prepare rename", || {
-            navigation::prepare_rename(&a, encoding, params.position)
-        })
+        let position = params.position;
+        self.with_analysis(
+            &params.text_document.uri,
+            "prepare rename",
+            move |a, encoding| navigation::prepare_rename(a, encoding, position),
+        )
+        .await
+        .map(Option::flatten)
     }
 
     async fn rename(&self, params: RenameParams) -> Result<Option<WorkspaceEdit>> {
         let p = params.text_document_position;
-        let Some(a) = self.shared.analyzed(&p.text_document.uri)? else {
-            return Ok(None);
-        };
-        let encoding = self.shared.encoding();
-        guard("rename", || {
-            navigation::rename(
-                &a,
-                encoding,
-                &p.text_document.uri,
-                p.position,
-                &params.new_name,
-            )
-        })?
-        .map_err(Error::invalid_params)
+        let uri = p.text_document.uri.clone();
+        let new_name = params.new_name;
+        let outcome = self
+            .with_analysis(&p.text_document.uri, "rename", move |a, encoding| {
+                navigation::rename(a, encoding, &uri, p.position, &new_name)
+            })
+            .await?;
+        match outcome {
+            None => Ok(None),
+            Some(result) => result.map_err(Error::invalid_params),
+        }
     }
 
     async fn document_symbol(
         &self,
         params: DocumentSymbolParams,
     ) -> Result<Option<DocumentSymbolResponse>> {
-        let Some(a) = self.shared.analyzed(&params.text_document.uri)? else {
-            return Ok(None);
-        };
-        let encoding = self.shared.encoding();
-        guard("document symbols", || {
-            Some(DocumentSymbolResponse::Nested(
-                navigation::document_symbols(&a, encoding),
-            ))
-        })
+        self.with_analysis(
+            &params.text_document.uri,
+            "document symbols",
+            |a, encoding| DocumentSymbolResponse::Nested(navigation::document_symbols(a, encoding)),
+        )
+        .await
     }
 
     async fn semantic_tokens_full(
         &self,
         params: SemanticTokensParams,
     ) -> Result<Option<SemanticTokensResult>> {
-        let Some(a) = self.shared.analyzed(&params.text_document.uri)? else {
-            return Ok(None);
-        };
-        let encoding = self.shared.encoding();
-        guard("semantic tokens", || {
-            Some(SemanticTokensResult::Tokens(SemanticTokens {
-                result_id: None,
-                data: tokens::semantic_tokens(&a, encoding),
-            }))
-        })
+        self.with_analysis(
+            &params.text_document.uri,
+            "semantic tokens",
+            |a, encoding| {
+                SemanticTokensResult::Tokens(SemanticTokens {
+                    result_id: None,
+                    data: tokens::semantic_tokens(a, encoding),
+                })
+            },
+        )
+        .await
     }
 
     async fn formatting(&self, params: DocumentFormattingParams) -> Result<Option<Vec<TextEdit>>> {
