@@ -80,3 +80,20 @@ async def utf8_client(lsp_client: LanguageClient):
     assert result.capabilities.position_encoding == types.PositionEncodingKind.Utf8
     yield
     await lsp_client.shutdown_session()
+
+
+@pytest_lsp.fixture(config=ClientServerConfig(server_command=[SDECK, "lsp"]))
+async def pull_client(lsp_client: LanguageClient):
+    """A client that pulls diagnostics itself (textDocument/diagnostic)."""
+    record_publishes(lsp_client)
+    await lsp_client.initialize_session(
+        types.InitializeParams(
+            capabilities=types.ClientCapabilities(
+                text_document=types.TextDocumentClientCapabilities(
+                    diagnostic=types.DiagnosticClientCapabilities(dynamic_registration=False)
+                )
+            )
+        )
+    )
+    yield
+    await lsp_client.shutdown_session()

@@ -315,3 +315,15 @@ async def test_formatting_and_navigation(client: LanguageClient):
         )
     )
     assert apply_edits(text, rename.changes[uri]).count("Z") == 2
+
+
+async def test_a_client_that_pulls_gets_no_pushes(pull_client: LanguageClient):
+    uri = uri_of("pull.sde")
+    open_document(pull_client, uri, UNDECLARED_NOISE)
+    report = await pull_client.text_document_diagnostic_async(
+        types.DocumentDiagnosticParams(text_document=types.TextDocumentIdentifier(uri=uri))
+    )
+    assert "undefined-name" in codes(report.items)
+    # Pushes would show every diagnostic twice in such a client: none is sent.
+    await asyncio.sleep(0.5)
+    assert [p for p in pull_client.published if p.uri == uri] == []
