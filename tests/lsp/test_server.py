@@ -327,3 +327,34 @@ async def test_a_client_that_pulls_gets_no_pushes(pull_client: LanguageClient):
     # Pushes would show every diagnostic twice in such a client: none is sent.
     await asyncio.sleep(0.5)
     assert [p for p in pull_client.published if p.uri == uri] == []
+
+
+async def test_the_project_file_sets_rule_levels_and_exclusions(client: LanguageClient, tmp_path):
+    (tmp_path / "sdeck.toml").write_text('[rules]\nunused = "off"\n\n[files]\nexclude = ["drafts/**"]\n')
+    text = "param spare = 1\nnoise W\nstate x = 0\ndx = 0.1 dW\n"
+    model = tmp_path / "penrith_rate.sde"
+    model.write_text(text)
+    uri = model.as_uri()
+    open_document(client, uri, text)
+    assert "unused" not in codes(await published(client, uri, 1))
+    # The project changes and the file is saved: the new level applies.
+    (tmp_path / "sdeck.toml").write_text('[rules]\nunused = "error"\n')
+    before = len(client.published)
+    client.text_document_did_save(
+        types.DidSaveTextDocumentParams(text_document=types.TextDocumentIdentifier(uri=uri))
+    )
+    deadline = time.monotonic() + 20
+    while time.monotonic() < deadline:
+        later = [p for p in client.published[before:] if p.uri == uri]
+        if later:
+            break
+        await asyncio.sleep(0.02)
+    unused = [d for d in later[-1].diagnostics if d.code == "unused"]
+    assert unused and unused[0].severity == types.DiagnosticSeverity.Error
+    # A file the project leaves out shows nothing, as `sdeck check` skips it.
+    (tmp_path / "sdeck.toml").write_text('[files]\nexclude = ["drafts/**"]\n')
+    (tmp_path / "drafts").mkdir()
+    draft = tmp_path / "drafts" / "draft.sde"
+    draft.write_text(UNDECLARED_NOISE)
+    open_document(client, draft.as_uri(), UNDECLARED_NOISE)
+    assert list(await published(client, draft.as_uri(), 1)) == []

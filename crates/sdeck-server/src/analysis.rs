@@ -13,12 +13,35 @@ use std::path::Path;
 use std::sync::OnceLock;
 use tower_lsp::lsp_types::Url;
 
-/// The rule settings for a document: those of the `sdeck.toml` that governs its file
-/// (the same resolver as the CLI), or the defaults for a document not on disk.
-pub fn settings_for(uri: &Url) -> RuleSettings {
-    match uri.to_file_path() {
-        Ok(path) => sdeck_project::settings_for(Path::new(&path)),
-        Err(()) => RuleSettings::default(),
+/// What the project that governs a document says about it.
+#[derive(Clone, Debug, Default)]
+pub struct ProjectSettings {
+    /// The rule levels (the defaults without a project file, or when it is broken).
+    pub settings: RuleSettings,
+    /// Whether the project's `[files]` leave the file out: `sdeck check` skips it, so the
+    /// editor shows no diagnostics for it either.
+    pub excluded: bool,
+    /// What is wrong with the project file, when it is broken.
+    pub problem: Option<String>,
+}
+
+/// The settings for a document, through the same resolver as the CLI (the nearest
+/// `sdeck.toml`); the defaults for a document not on disk.
+pub fn project_settings(uri: &Url) -> ProjectSettings {
+    let Ok(path) = uri.to_file_path() else {
+        return ProjectSettings::default();
+    };
+    match sdeck_project::find_project(Path::new(&path)) {
+        Ok(Some(project)) => ProjectSettings {
+            excluded: project.is_excluded(&path),
+            settings: project.settings,
+            problem: None,
+        },
+        Ok(None) => ProjectSettings::default(),
+        Err(e) => ProjectSettings {
+            problem: Some(e.to_string()),
+            ..ProjectSettings::default()
+        },
     }
 }
 
@@ -28,6 +51,8 @@ pub struct Analyzed {
     pub text: String,
     pub index: LineIndex,
     pub check: FileCheck,
+    /// Whether the project leaves the file out (no diagnostics are shown).
+    pub excluded: bool,
     /// Means, variances and covariances at the model's horizon (what `sdeck moments`
     /// prints by default), computed on first use: diagnostics do not need them, and on
     /// a large system they cost far more than the checks.
@@ -37,14 +62,25 @@ pub struct Analyzed {
 impl Analyzed {
     /// Runs the analysis. The caller guards against panics.
     pub fn compute(snapshot: TextSnapshot) -> Analyzed {
-        let check = sdeck_checks::check(&snapshot.text, &snapshot.stem, &snapshot.settings);
+        let check = sdeck_checks::check(&snapshot.text, &snapshot.stem, &snapshot.project.settings);
+        let excluded = snapshot.project.excluded;
         let index = LineIndex::new(&snapshot.text);
         Analyzed {
             version: snapshot.version,
             text: snapshot.text,
             index,
             check,
+            excluded,
             moments: OnceLock::new(),
+        }
+    }
+
+    /// The diagnostics the editor shows: none for a file the project leaves out.
+    pub fn shown_diagnostics(&self) -> &[sdeck_diagnostics::Diagnostic] {
+        if self.excluded {
+            &[]
+        } else {
+            &self.check.diagnostics
         }
     }
 

@@ -8,8 +8,8 @@
 //! committed only when every change in it applied, so a bad change leaves the document
 //! exactly as it was.
 
+use crate::analysis::ProjectSettings;
 use ropey::Rope;
-use sdeck_checks::RuleSettings;
 use std::collections::HashMap;
 use std::sync::{Arc, Mutex, MutexGuard};
 use tower_lsp::lsp_types::{Position, TextDocumentContentChangeEvent, Url};
@@ -36,8 +36,8 @@ pub struct Document {
     pub rope: Rope,
     /// The client's version of the text.
     pub version: i32,
-    /// The rule levels of the project that governs the file.
-    pub settings: Arc<RuleSettings>,
+    /// What the project that governs the file says about it.
+    pub project: Arc<ProjectSettings>,
     /// The model's default name (the file's stem).
     pub stem: String,
 }
@@ -47,7 +47,7 @@ pub struct Document {
 pub struct TextSnapshot {
     pub text: String,
     pub version: i32,
-    pub settings: Arc<RuleSettings>,
+    pub project: Arc<ProjectSettings>,
     pub stem: String,
 }
 
@@ -97,14 +97,14 @@ impl DocumentStore {
         self.documents.lock().unwrap_or_else(|p| p.into_inner())
     }
 
-    pub fn open(&self, uri: Url, text: &str, version: i32, settings: RuleSettings) {
+    pub fn open(&self, uri: Url, text: &str, version: i32, project: ProjectSettings) {
         let stem = stem_of(&uri);
         self.lock().insert(
             uri,
             Document {
                 rope: Rope::from_str(text),
                 version,
-                settings: Arc::new(settings),
+                project: Arc::new(project),
                 stem,
             },
         );
@@ -114,9 +114,9 @@ impl DocumentStore {
         self.lock().remove(uri);
     }
 
-    pub fn set_settings(&self, uri: &Url, settings: RuleSettings) {
+    pub fn set_project(&self, uri: &Url, project: ProjectSettings) {
         if let Some(doc) = self.lock().get_mut(uri) {
-            doc.settings = Arc::new(settings);
+            doc.project = Arc::new(project);
         }
     }
 
@@ -155,13 +155,13 @@ impl DocumentStore {
         // Copy the rope (O(1)) under the lock and build the string after releasing it.
         let rope = doc.rope.clone();
         let version = doc.version;
-        let settings = doc.settings.clone();
+        let project = doc.project.clone();
         let stem = doc.stem.clone();
         drop(documents);
         Some(TextSnapshot {
             text: rope.to_string(),
             version,
-            settings,
+            project,
             stem,
         })
     }
@@ -299,7 +299,12 @@ mod tests {
     fn edits_in_utf16_columns_around_greek_and_emoji() {
         let store = DocumentStore::default();
         // κ is one UTF-16 unit, 🚀 two.
-        store.open(uri(), "param κ = 1 # 🚀 go\n", 1, RuleSettings::default());
+        store.open(
+            uri(),
+            "param κ = 1 # 🚀 go\n",
+            1,
+            ProjectSettings::default(),
+        );
         // Replace "go" (after 🚀 and a space: columns 17..19 in UTF-16).
         let r = store.apply(
             &uri(),
@@ -323,7 +328,7 @@ mod tests {
     #[test]
     fn a_batch_is_applied_in_order() {
         let store = DocumentStore::default();
-        store.open(uri(), "ab\n", 1, RuleSettings::default());
+        store.open(uri(), "ab\n", 1, ProjectSettings::default());
         let batch = [change(0, 2, 0, 2, "c"), change(0, 0, 0, 1, "")];
         assert_eq!(
             store.apply(&uri(), 2, &batch, PositionEncoding::Utf16),
@@ -335,7 +340,7 @@ mod tests {
     #[test]
     fn a_bad_change_leaves_the_document_untouched() {
         let store = DocumentStore::default();
-        store.open(uri(), "abc\n", 1, RuleSettings::default());
+        store.open(uri(), "abc\n", 1, ProjectSettings::default());
         let batch = [change(0, 0, 0, 1, "X"), change(0, 2, 0, 1, "Y")];
         let r = store.apply(&uri(), 2, &batch, PositionEncoding::Utf16);
         assert!(matches!(r, Err(EditError::InvertedRange { .. })));
@@ -346,7 +351,7 @@ mod tests {
     #[test]
     fn an_older_version_is_refused_and_a_newer_one_kept() {
         let store = DocumentStore::default();
-        store.open(uri(), "a\n", 5, RuleSettings::default());
+        store.open(uri(), "a\n", 5, ProjectSettings::default());
         let r = store.apply(
             &uri(),
             4,
@@ -366,7 +371,7 @@ mod tests {
     #[test]
     fn positions_past_the_end_clamp_instead_of_panicking() {
         let store = DocumentStore::default();
-        store.open(uri(), "ab\r\ncd", 1, RuleSettings::default());
+        store.open(uri(), "ab\r\ncd", 1, ProjectSettings::default());
         // Column 99 on line 0 is the end of "ab" (before \r\n); line 99 is the end.
         let batch = [change(0, 99, 0, 99, "!"), change(99, 0, 99, 5, "?")];
         assert_eq!(
@@ -375,7 +380,7 @@ mod tests {
         );
         assert_eq!(text(&store), "ab!\r\ncd?");
         // A column in the middle of a surrogate pair rounds down to the pair's start.
-        store.open(uri(), "🚀x", 1, RuleSettings::default());
+        store.open(uri(), "🚀x", 1, ProjectSettings::default());
         assert_eq!(
             store.apply(
                 &uri(),
@@ -393,7 +398,7 @@ mod tests {
         // Each thread appends its own line; whatever the interleaving, every edit lands
         // whole and the versions count every edit once.
         let store = Arc::new(DocumentStore::default());
-        store.open(uri(), "", 0, RuleSettings::default());
+        store.open(uri(), "", 0, ProjectSettings::default());
         let next_version = Arc::new(Mutex::new(0));
         let handles: Vec<_> = (0..4)
             .map(|t| {

@@ -148,6 +148,23 @@ impl Backend {
         }
     }
 
+    /// Reads the project settings of an open document again and re-publishes its
+    /// diagnostics under them.
+    async fn refresh_project(&self, uri: Url) {
+        self.shared
+            .documents
+            .set_project(&uri, analysis::project_settings(&uri));
+        self.shared
+            .analyses
+            .lock()
+            .unwrap_or_else(|p| p.into_inner())
+            .remove(&uri);
+        if let Some(version) = self.shared.documents.version(&uri) {
+            self.shared.published.lock().await.remove(&uri);
+            self.schedule_diagnostics(uri, version, false);
+        }
+    }
+
     /// Runs a feature on the current analysis of a document, on a blocking thread: the
     /// serving loop (which applies edits) never waits for an analysis. `None` when the
     /// document is not open; a panic becomes an error response.
@@ -234,8 +251,7 @@ async fn publish(shared: &Shared, client: &Client, uri: &Url, analyzed: &Analyze
     let converter = analyzed.converter(shared.encoding());
     let diagnostics = match guard("converting diagnostics", || {
         analyzed
-            .check
-            .diagnostics
+            .shown_diagnostics()
             .iter()
             .map(|d| converter.diagnostic(uri, d))
             .collect::<Vec<_>>()
@@ -345,11 +361,22 @@ impl LanguageServer for Backend {
     async fn did_open(&self, params: DidOpenTextDocumentParams) {
         let doc = params.text_document;
         // Settings are read before the document is stored; nothing awaits in between.
-        let settings = analysis::settings_for(&doc.uri);
+        let project = analysis::project_settings(&doc.uri);
+        let problem = project.problem.clone();
         self.shared
             .documents
-            .open(doc.uri.clone(), &doc.text, doc.version, settings);
+            .open(doc.uri.clone(), &doc.text, doc.version, project);
         self.schedule_diagnostics(doc.uri, doc.version, false);
+        if let Some(problem) = problem {
+            self.client
+                .show_message(
+                    MessageType::WARNING,
+                    format!(
+                        "sdeck: the project file is broken, default rule levels apply: {problem}"
+                    ),
+                )
+                .await;
+        }
     }
 
     async fn did_change(&self, params: DidChangeTextDocumentParams) {
@@ -377,19 +404,15 @@ impl LanguageServer for Backend {
     }
 
     async fn did_save(&self, params: DidSaveTextDocumentParams) {
-        let uri = params.text_document.uri;
         // The project file may have changed: read the rule settings again.
-        self.shared
-            .documents
-            .set_settings(&uri, analysis::settings_for(&uri));
-        self.shared
-            .analyses
-            .lock()
-            .unwrap_or_else(|p| p.into_inner())
-            .remove(&uri);
-        if let Some(version) = self.shared.documents.version(&uri) {
-            self.shared.published.lock().await.remove(&uri);
-            self.schedule_diagnostics(uri, version, false);
+        self.refresh_project(params.text_document.uri).await;
+    }
+
+    async fn did_change_watched_files(&self, _: DidChangeWatchedFilesParams) {
+        // A project file changed (the client watches sdeck.toml): every open document
+        // takes its settings again.
+        for uri in self.shared.documents.uris() {
+            self.refresh_project(uri).await;
         }
     }
 
@@ -416,8 +439,7 @@ impl LanguageServer for Backend {
         let items = self
             .with_analysis(&uri, "diagnostics", move |a, encoding| {
                 let converter = a.converter(encoding);
-                a.check
-                    .diagnostics
+                a.shown_diagnostics()
                     .iter()
                     .map(|d| converter.diagnostic(&for_uri, d))
                     .collect::<Vec<_>>()

@@ -4,7 +4,6 @@
 
 use crate::analysis::Analyzed;
 use crate::documents::{PositionEncoding, TextSnapshot};
-use sdeck_checks::RuleSettings;
 use sdeck_syntax::{LineCol, LineIndex};
 use std::sync::Arc;
 use tower_lsp::lsp_types::{
@@ -17,7 +16,7 @@ fn analyzed(text: &str) -> Analyzed {
     Analyzed::compute(TextSnapshot {
         text: text.to_string(),
         version: 1,
-        settings: Arc::new(RuleSettings::default()),
+        project: Arc::new(crate::analysis::ProjectSettings::default()),
         stem: "test_model".to_string(),
     })
 }
