@@ -213,7 +213,21 @@ async def test_a_thousand_random_edits_leave_the_server_holding_the_clients_text
     text = "# κ-model 🚀 of the Osmere Rail desk\nparam κ = 2 [1/year]\n"
     open_document(client, uri, text)
     version = 1
-    for _ in range(1000):
+    # Requests in flight while edits arrive: the server must still apply every edit, in
+    # order, and answer every request.
+    pending = []
+    for n in range(1000):
+        if n % 25 == 0:
+            pending.append(
+                asyncio.ensure_future(
+                    client.text_document_hover_async(
+                        types.HoverParams(
+                            text_document=types.TextDocumentIdentifier(uri=uri),
+                            position=types.Position(line=0, character=rng.randint(0, 5)),
+                        )
+                    )
+                )
+            )
         version += 1
         changes = []
         for _ in range(rng.choice([1, 1, 1, 2, 3])):
@@ -232,6 +246,7 @@ async def test_a_thousand_random_edits_leave_the_server_holding_the_clients_text
                 content_changes=changes,
             )
         )
+    await asyncio.gather(*pending)
     held, held_version = await server_text(client, uri)
     assert held_version == version
     assert held == text
@@ -358,3 +373,27 @@ async def test_the_project_file_sets_rule_levels_and_exclusions(client: Language
     draft.write_text(UNDECLARED_NOISE)
     open_document(client, draft.as_uri(), UNDECLARED_NOISE)
     assert list(await published(client, draft.as_uri(), 1)) == []
+
+
+async def test_hover_on_coupled_states_equals_sdeck_moments(client: LanguageClient):
+    path = ROOT / "demo-models" / "two_factor_rates.sde"
+    text = path.read_text()
+    uri = path.as_uri()
+    open_document(client, uri, text)
+    await published(client, uri, 1)
+    out = subprocess.run(
+        [SDECK, "moments", "--format", "json", str(path)], capture_output=True, text=True, check=True
+    )
+    states = json.loads(out.stdout)["states"]
+    assert len(states) == 2
+    for state in states:
+        at = text.index(f"\nd{state['name']} =") + 2
+        hover = await client.text_document_hover_async(
+            types.HoverParams(text_document=types.TextDocumentIdentifier(uri=uri), position=position(text, at))
+        )
+        markdown = hover.contents.value
+        assert state["family"] in markdown
+        for label, key in [("mean", "mean"), ("variance", "variance")]:
+            match = re.search(rf"^\| {label} \| ([^ |]+)", markdown, re.MULTILINE)
+            assert match, markdown
+            assert float(match.group(1)) == pytest.approx(state[key], rel=1e-5)

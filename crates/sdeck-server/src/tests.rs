@@ -385,3 +385,27 @@ fn features_do_not_panic_on_broken_or_empty_text() {
         let _ = crate::tokens::semantic_tokens(&a, UTF16);
     }
 }
+
+#[test]
+fn the_feller_fix_writes_the_speed_in_its_declared_unit_and_style() {
+    // kappa = 0.1% a day = 0.365 a year; boundary κ = σ²/(2θ) = 0.04/0.04 = 1 a year
+    // (Feller 1951; common practice), which is 1/365 = 0.273973% a day.
+    let text = "clock year\nparam kappa = 0.1% [1/day] > 0\nparam level = 2% >= 0\n\
+param vol = 20% [1/sqrt(year)] > 0\nnoise W\nstate r = 1.8% >= 0\n\
+dr = kappa * (level - r) dt + vol * sqrt(r) dW\n";
+    let a = analyzed(text);
+    let raise = actions(&a, text)
+        .into_iter()
+        .find(|c| c.title.starts_with("Raise `kappa`"))
+        .expect("raise offered");
+    let raised = apply(text, raise.edit.as_ref().expect("edit"));
+    let written: f64 = raised
+        .split("param kappa = ")
+        .nth(1)
+        .and_then(|rest| rest.split('%').next())
+        .and_then(|x| x.parse().ok())
+        .expect("a percentage");
+    assert!((written / (100.0 / 365.0) - 1.0).abs() < 1e-4, "{raised}");
+    assert!(raised.contains("% [1/day]"), "{raised}");
+    assert!(!rules_of(&raised).contains(&"feller-condition"), "{raised}");
+}
