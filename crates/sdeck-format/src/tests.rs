@@ -131,3 +131,150 @@ fn empty_and_comment_only_files() {
     assert_eq!(formatted(""), "");
     assert_eq!(formatted("# only a note"), "# only a note\n");
 }
+
+/// What a file means, without positions: names, values in clock units, resolved
+/// expressions, bounds, correlations, the horizon and clock.
+fn meaning(source: &str) -> String {
+    let model = sdeck_semantics::analyze(source, "m").model;
+    let mut out = format!("{} {} {:?}\n", model.name, model.clock.unit, model.horizon);
+    for p in &model.params {
+        out += &format!(
+            "param {} {:?} {:?} {:?} {:?}\n",
+            p.name, p.value, p.unit_text, p.bound, p.description
+        );
+    }
+    for s in &model.states {
+        let eq = s.equation.as_ref().map(|e| {
+            let terms: Vec<String> = e
+                .diffusion
+                .iter()
+                .map(|d| format!("{}:{:?}", d.noise, d.coefficient))
+                .collect();
+            format!("{:?} | {}", e.drift, terms.join(" "))
+        });
+        out += &format!("state {} {:?} {:?} {:?}\n", s.name, s.initial, s.domain, eq);
+    }
+    for n in &model.noises {
+        out += &format!("noise {} {:?}\n", n.name, n.description);
+    }
+    for c in &model.correlations {
+        out += &format!("corr {} {} {:?}\n", c.first, c.second, c.value);
+    }
+    for l in &model.lets {
+        out += &format!("let {} {:?}\n", l.name, l.value);
+    }
+    for e in &model.expectations {
+        out += &format!(
+            "expect {:?} {} {:?} {:?}\n",
+            e.figure, e.state, e.at, e.admissible
+        );
+    }
+    out
+}
+
+#[test]
+fn formatting_keeps_the_meaning_of_the_demo_models() {
+    let root = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("../..");
+    for folder in ["demo-models", "crates/sdeck-diagnostics/src/rules"] {
+        let Ok(entries) = std::fs::read_dir(root.join(folder)) else {
+            continue;
+        };
+        for entry in entries.flatten() {
+            let path = entry.path();
+            let Ok(source) = std::fs::read_to_string(&path) else {
+                continue;
+            };
+            if let Outcome::Formatted(once) = format(&source) {
+                assert_eq!(meaning(&source), meaning(&once), "{}", path.display());
+            }
+        }
+    }
+}
+
+mod random_models {
+    use super::{format, meaning, Outcome};
+    use proptest::prelude::*;
+
+    /// Statements of a valid model, as token lists; spacing is chosen by the test.
+    fn statements() -> Vec<Vec<&'static str>> {
+        vec![
+            vec!["model", "quarry_bank"],
+            vec!["clock", "year"],
+            vec!["horizon", "6", "month"],
+            vec!["unit", "EUR"],
+            vec![
+                "param", "κ", "=", "0.5%", "[", "1", "/", "day", "]", ">", "0",
+            ],
+            vec![
+                "param", "level", "=", "2", "[", "EUR", "]", "in", "[", "0", ",", "10", ")",
+            ],
+            vec![
+                "param", "vol", "=", "3bp", "[", "EUR", "/", "sqrt", "(", "bday", ")", "]", ">=",
+                "0",
+            ],
+            vec!["noise", "W", ",", "V"],
+            vec!["corr", "W", "V", "=", "-0.25"],
+            vec![
+                "let", "target", "=", "(", "level", "-", "-", "1", ")", "*", "exp", "(", "-", "κ",
+                "^", "2", "*", "t", ")", "/", "2",
+            ],
+            vec!["state", "x", "=", "1", "[", "EUR", "]"],
+            vec![
+                "dx", "=", "κ", "*", "(", "level", "-", "x", ")", "*", "dt", "+", "vol", "dW", "-",
+                "0.1", "*", "vol", "*", "dV",
+            ],
+            vec![
+                "expect", "mean", "(", "x", ",", "1", "year", ")", ">", "0", "[", "EUR", "]",
+            ],
+        ]
+    }
+
+    fn render(gaps: &[usize], comments: &[bool]) -> String {
+        let mut out = String::new();
+        let mut k = 0;
+        for (si, tokens) in statements().iter().enumerate() {
+            for (ti, token) in tokens.iter().enumerate() {
+                if ti > 0 {
+                    let gap = gaps.get(k).copied().unwrap_or(1);
+                    k += 1;
+                    // Juxtaposed words need a space; elsewhere any spacing is allowed.
+                    let words = |t: &str| {
+                        t.chars()
+                            .next()
+                            .is_some_and(|c| c.is_alphanumeric() || c == '_' || c == '-')
+                    };
+                    let needs_space = words(token) && words(tokens[ti - 1]);
+                    let n = if needs_space { gap.max(1) } else { gap };
+                    out.extend(std::iter::repeat_n(' ', n));
+                }
+                out.push_str(token);
+            }
+            if comments.get(si).copied().unwrap_or(false) {
+                out.push_str(&format!("   # note {si} κ 🚀"));
+            }
+            out.push('\n');
+            if si % 4 == 3 {
+                out.push('\n');
+            }
+        }
+        out
+    }
+
+    proptest! {
+        #![proptest_config(ProptestConfig::with_cases(64))]
+        #[test]
+        fn any_spacing_formats_to_the_same_meaning_and_comments(
+            gaps in proptest::collection::vec(0usize..4, 200),
+            comments in proptest::collection::vec(any::<bool>(), 13),
+        ) {
+            let source = render(&gaps, &comments);
+            let Outcome::Formatted(once) = format(&source) else {
+                return Err(TestCaseError::fail(format!("not formatted:\n{source}")));
+            };
+            prop_assert_eq!(meaning(&source), meaning(&once));
+            prop_assert_eq!(format(&once), Outcome::Formatted(once.clone()));
+            let count = |t: &str| t.matches("# note").count();
+            prop_assert_eq!(count(&source), count(&once));
+        }
+    }
+}
