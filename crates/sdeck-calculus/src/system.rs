@@ -14,13 +14,29 @@ use nalgebra::{DMatrix, DVector};
 use sdeck_semantics::Model;
 use statrs::distribution::{ContinuousCDF, Normal};
 
+/// The most states the several-state engines take. The Lyapunov solve is a dense system in
+/// n² unknowns and the polynomial engine holds n⁴ coefficients: beyond this a model would
+/// cost seconds and gigabytes, so its coupled figures are reported as not known.
+pub const MAX_SYSTEM_STATES: usize = 24;
+
+/// Whether some state has no one-state law of its own, so the system engines are needed.
+fn needs_system(model: &Model, analysis: &Analysis) -> bool {
+    (0..model.states.len()).any(|i| analysis.one_state(i).is_none())
+}
+
 pub(crate) fn derive(model: &Model, analysis: &Analysis) -> Derivation {
     let n = model.states.len();
     let mut states = Vec::with_capacity(n);
     let params = &analysis.params;
     let system = &analysis.system;
-    let system_engine = linear_engine(model, analysis);
+    let use_system = needs_system(model, analysis);
+    let system_engine = if use_system {
+        linear_engine(model, analysis)
+    } else {
+        None
+    };
     let stationary_system = match &system_engine {
+        _ if !use_system => None,
         Some(engine) => engine
             .stationary_mean()
             .zip(engine.stationary_covariance())
@@ -49,7 +65,16 @@ pub(crate) fn derive(model: &Model, analysis: &Analysis) -> Derivation {
         }
         let coupled =
             !classified.depends_on.is_empty() && classified.reason.starts_with("the equation of");
-        let (family, reason, method) = if coupled && system.family != Family::General {
+        let (family, reason, method) = if coupled && n > MAX_SYSTEM_STATES {
+            (
+                Family::General,
+                format!(
+                    "{}; the model has {n} states, more than the {MAX_SYSTEM_STATES} the several-state engines take: simulate it",
+                    classified.reason
+                ),
+                Method::None,
+            )
+        } else if coupled && system.family != Family::General {
             let method = match (system.family, system.time_dependent) {
                 (Family::LinearSystem, false) => Method::ClosedForm,
                 (Family::LinearSystem, true) => Method::MomentEquations,
@@ -233,7 +258,10 @@ fn one_state_law(
 /// The affine Gaussian engine for a linear system with constant coefficients.
 pub(crate) fn linear_engine(model: &Model, analysis: &Analysis) -> Option<AffineGaussian> {
     let system = &analysis.system;
-    if system.family != Family::LinearSystem || system.time_dependent {
+    if system.family != Family::LinearSystem
+        || system.time_dependent
+        || model.states.len() > MAX_SYSTEM_STATES
+    {
         return None;
     }
     let (a, b, loadings) = linear_matrices(model, analysis, 0.0)?;
@@ -246,7 +274,10 @@ pub(crate) fn linear_engine(model: &Model, analysis: &Analysis) -> Option<Affine
 /// instantaneous covariance c0 + Σ_k x_k c1[k] + Σ_kl x_k x_l c2[k][l].
 pub(crate) fn polynomial_engine(model: &Model, analysis: &Analysis) -> Option<PolynomialSystem> {
     let system = &analysis.system;
-    if system.family != Family::Polynomial || system.time_dependent {
+    if system.family != Family::Polynomial
+        || system.time_dependent
+        || model.states.len() > MAX_SYSTEM_STATES
+    {
         return None;
     }
     let rows = system.drift_rows.as_ref()?;
@@ -466,7 +497,11 @@ pub(crate) fn moments_at(
         }
     }
     // Several states: the system engines give what the one-state forms cannot.
-    let system_figures = if valid_time && analysis.system.family == Family::LinearSystem {
+    // Beyond the size limit the engines would cost seconds and gigabytes.
+    let use_system = n <= MAX_SYSTEM_STATES;
+    let system_figures = if !use_system {
+        None
+    } else if valid_time && analysis.system.family == Family::LinearSystem {
         if let Some(engine) = linear_engine(model, analysis) {
             let start = DVector::from_vec(x0.clone());
             Some((
@@ -520,7 +555,7 @@ pub(crate) fn moments_at(
             if i == j {
                 *slot = variance.get(i).copied().flatten();
             } else if slot.is_none() {
-                *slot = pair_covariance(analysis, &x0, i, j, t);
+                *slot = pair_covariance(model, analysis, &x0, i, j, t);
             }
         }
     }
@@ -539,12 +574,35 @@ pub(crate) fn moments_at(
 /// Cov(X_t, Y_t) of two decoupled states with affine noise and constant coefficients:
 /// K' = (b₁ + b₂ + Σρ d₁d₂) K + Σ_kl ρ_kl (c₁ₖ + d₁ₖ m₁)(c₂ₗ + d₂ₗ m₂), K(0) = 0
 /// (Itô's product rule; Kloeden & Platen 1992, §4.2).
-fn pair_covariance(analysis: &Analysis, x0: &[f64], i: usize, j: usize, t: f64) -> Option<f64> {
+fn pair_covariance(
+    model: &Model,
+    analysis: &Analysis,
+    x0: &[f64],
+    i: usize,
+    j: usize,
+    t: f64,
+) -> Option<f64> {
     if !(t.is_finite() && t >= 0.0) {
         return None;
     }
     let (first, _) = analysis.one_state(i)?;
     let (second, _) = analysis.one_state(j)?;
+    // Two decoupled states driven by uncorrelated noises are independent, whatever
+    // their families.
+    let noises = |k: usize| -> Option<Vec<usize>> {
+        let equation = model.states.get(k)?.equation.as_ref()?;
+        Some(equation.diffusion.iter().map(|d| d.noise).collect())
+    };
+    if let (Some(of_first), Some(of_second)) = (noises(i), noises(j)) {
+        let independent = of_first.iter().all(|&k| {
+            of_second
+                .iter()
+                .all(|&l| correlation(&analysis.corr, k, l) == 0.0)
+        });
+        if independent {
+            return Some(0.0);
+        }
+    }
     if first.time_dependent || second.time_dependent {
         return None;
     }
