@@ -101,6 +101,10 @@ struct Analyzer<'a> {
     state_unit_ok: Vec<bool>,
     noise_used: Vec<bool>,
     let_used: Vec<bool>,
+    /// Nodes in the expression being resolved, each let counted at its inlined size.
+    expanded: usize,
+    /// Inlined size of each resolved let.
+    let_sizes: Vec<usize>,
     /// Unit spans of param/state declarations, for fixes.
     param_units: Vec<Option<(Span, String)>>,
 }
@@ -108,6 +112,11 @@ struct Analyzer<'a> {
 fn dimension_error(span: Span, message: impl Into<String>) -> Diagnostic {
     Diagnostic::new(&rules::DIMENSION_MISMATCH, span, message)
 }
+
+/// The most nodes a resolved expression may hold once its lets are written out: lets
+/// are inlined, and without a limit `let b = a * a`, `let c = b * b`, … doubles at every
+/// level.
+pub const MAX_EXPANDED_NODES: usize = 3000;
 
 /// Formats a number for messages: up to 6 significant digits, no trailing zeros.
 pub fn fmt_num(x: f64) -> String {
@@ -168,6 +177,8 @@ impl<'a> Analyzer<'a> {
             noise_used: Vec::new(),
             let_used: Vec::new(),
             param_units: Vec::new(),
+            expanded: 0,
+            let_sizes: Vec::new(),
         }
     }
 
@@ -468,6 +479,7 @@ impl<'a> Analyzer<'a> {
                             description: statement.description.clone(),
                         });
                         self.let_asts.push(value);
+                        self.let_sizes.push(0);
                         self.let_progress.push(LetProgress::Pending);
                         self.let_used.push(false);
                     }
@@ -587,7 +599,10 @@ impl<'a> Analyzer<'a> {
         }
         self.let_progress[index] = LetProgress::Busy;
         let ast = self.let_asts[index];
+        let outer = std::mem::replace(&mut self.expanded, 0);
         let (expr, dimension) = self.resolve(ast);
+        self.let_sizes[index] = self.expanded;
+        self.expanded = outer;
         let l = &mut self.model.lets[index];
         l.value = expr;
         l.dimension = dimension;
@@ -597,6 +612,7 @@ impl<'a> Analyzer<'a> {
     /// Resolves an expression and infers its dimension. Errors are reported once, where
     /// they arise; `None` means the dimension is unknown because of an earlier error.
     fn resolve(&mut self, e: &ast::Expr) -> (Expr, Option<Dimension>) {
+        self.expanded += 1;
         match e {
             ast::Expr::Number(n) => (Expr::Const(n.value), Some(Dimension::dimensionless())),
             ast::Expr::Paren { inner, .. } => self.resolve(inner),
@@ -840,6 +856,24 @@ impl<'a> Analyzer<'a> {
             Target::Let(i) => {
                 self.let_used[i] = true;
                 self.resolve_let(i);
+                let size = self.let_sizes[i];
+                if self.expanded + size > MAX_EXPANDED_NODES {
+                    let l = &self.model.lets[i];
+                    let dimension = l.dimension.clone();
+                    self.diagnostics.push(
+                        Diagnostic::new(
+                            &rules::SYNTAX,
+                            ident.span.clone(),
+                            format!(
+                                "with `{}` written out, this expression holds more than {MAX_EXPANDED_NODES} terms",
+                                ident.name
+                            ),
+                        )
+                        .with_help("lets are written out where they are used; a let that uses another let twice doubles in size at every level"),
+                    );
+                    return (Expr::Invalid, dimension);
+                }
+                self.expanded += size;
                 let l = &self.model.lets[i];
                 (l.value.clone(), l.dimension.clone())
             }
@@ -1137,6 +1171,7 @@ impl<'a> Analyzer<'a> {
         let mut diffusion: Vec<DiffusionTerm> = Vec::new();
         let mut noise_terms: HashMap<usize, Span> = HashMap::new();
         for term in &eq.terms {
+            self.expanded = 0;
             let (coefficient, dim) = match &term.coefficient {
                 Some(c) => self.resolve(c),
                 None => (Expr::Const(1.0), Some(Dimension::dimensionless())),
