@@ -33,7 +33,7 @@ fn a_long_product_and_nested_lets_are_analysed_on_a_small_stack() {
         text.push_str(&format!(
             "let l{i} = l{} + {}\n",
             i - 1,
-            vec!["k"; 9].join(" + ")
+            ["k"; 9].join(" + ")
         ));
     }
     text.push_str("state x = 1\ndx = -l199 * x dt + v * sqrt(x) dW\n");
