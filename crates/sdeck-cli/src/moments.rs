@@ -3,11 +3,11 @@
 use crate::files;
 use clap::{Args, ValueEnum};
 use sdeck_calculus::{moments_at, Derivation, Moments};
-use sdeck_checks::RuleSettings;
+use sdeck_checks::FileCheck;
 use sdeck_diagnostics::Severity;
 use sdeck_semantics::{fmt_num, Model};
 use serde_json::{json, Value};
-use std::path::PathBuf;
+use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
 #[derive(Clone, Copy, Debug, PartialEq, Eq, ValueEnum)]
@@ -58,43 +58,73 @@ pub fn parse_time(text: &str, model: &Model) -> Result<f64, String> {
     }
 }
 
-pub fn run(args: MomentsArgs) -> ExitCode {
-    let source = match files::read(&args.file) {
+/// Reads and checks a model for the commands that derive figures from it. A model with
+/// errors (other than failed expectations, which are themselves figures) is refused:
+/// its diagnostics go to stderr and the exit status is returned.
+pub fn load_sound_model(path: &Path, doing: &str) -> Result<FileCheck, ExitCode> {
+    let source = match files::read(path) {
         Ok(s) => s,
         Err(message) => {
             eprintln!("sdeck: {message}");
-            return ExitCode::from(2);
+            return Err(ExitCode::from(2));
         }
     };
-    let (checked, result) = crate::check::check_source(source, &RuleSettings::default());
+    let settings = sdeck_project::settings_for(path);
+    let (checked, result) = crate::check::check_source(source, &settings);
     let errors: Vec<_> = checked
         .diagnostics
         .iter()
         .filter(|d| d.severity == Severity::Error && d.rule != "expectation-failed")
+        .cloned()
         .collect();
     if !errors.is_empty() {
         let mut err = codespan_reporting::term::termcolor::StandardStream::stderr(
             codespan_reporting::term::termcolor::ColorChoice::Never,
         );
-        let owned: Vec<_> = errors.into_iter().cloned().collect();
-        let _ = crate::render::human(&mut err, &checked.source.path, &checked.source.text, &owned);
-        eprintln!("sdeck: the model has errors; no moments are derived until they are mended");
-        return ExitCode::from(1);
+        let _ = crate::render::human(
+            &mut err,
+            &checked.source.path,
+            &checked.source.text,
+            &errors,
+        );
+        eprintln!("sdeck: the model has errors; {doing} until they are mended");
+        return Err(ExitCode::from(1));
     }
+    Ok(result)
+}
+
+/// The `--at` option in clock units: the horizon when absent; `positive` refuses zero.
+pub fn time_option(text: Option<&str>, model: &Model, positive: bool) -> Result<f64, ExitCode> {
+    let Some(text) = text else {
+        return Ok(model.horizon);
+    };
+    match parse_time(text, model) {
+        Ok(t) if t.is_finite() && (t > 0.0 || (!positive && t == 0.0)) => Ok(t),
+        Ok(_) => {
+            let what = if positive {
+                "a positive time"
+            } else {
+                "a time from now (not negative)"
+            };
+            eprintln!("sdeck: --at must be {what}");
+            Err(ExitCode::from(2))
+        }
+        Err(message) => {
+            eprintln!("sdeck: {message}");
+            Err(ExitCode::from(2))
+        }
+    }
+}
+
+pub fn run(args: MomentsArgs) -> ExitCode {
+    let result = match load_sound_model(&args.file, "no moments are derived") {
+        Ok(r) => r,
+        Err(code) => return code,
+    };
     let model = &result.analysis.model;
-    let t = match &args.at {
-        None => model.horizon,
-        Some(text) => match parse_time(text, model) {
-            Ok(t) if t >= 0.0 && t.is_finite() => t,
-            Ok(_) => {
-                eprintln!("sdeck: --at must be a time from now (not negative)");
-                return ExitCode::from(2);
-            }
-            Err(message) => {
-                eprintln!("sdeck: {message}");
-                return ExitCode::from(2);
-            }
-        },
+    let t = match time_option(args.at.as_deref(), model, false) {
+        Ok(t) => t,
+        Err(code) => return code,
     };
     let moments = moments_at(model, &result.derivation, t);
     let output = match args.format {

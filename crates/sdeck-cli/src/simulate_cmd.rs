@@ -1,9 +1,7 @@
 //! `sdeck simulate FILE`: an independent Monte Carlo cross-check of the derived law.
 
-use crate::files;
-use crate::moments::parse_time;
+use crate::moments::{load_sound_model, time_option};
 use clap::{Args, ValueEnum};
-use sdeck_diagnostics::Severity;
 use sdeck_simulate::{
     check, closed_form_means, render_text, simulate_and_compare, to_json, write_fan_chart,
     SimulationOptions,
@@ -50,47 +48,16 @@ pub struct SimulateArgs {
 }
 
 pub fn run(args: SimulateArgs) -> ExitCode {
-    let source = match files::read(&args.file) {
-        Ok(s) => s,
-        Err(message) => {
-            eprintln!("sdeck: {message}");
-            return ExitCode::from(2);
-        }
+    let result = match load_sound_model(&args.file, "nothing is simulated") {
+        Ok(r) => r,
+        Err(code) => return code,
     };
-    let settings = sdeck_project::settings_for(&args.file);
-    let (checked, result) = crate::check::check_source(source, &settings);
-    let errors: Vec<_> = checked
-        .diagnostics
-        .iter()
-        .filter(|d| d.severity == Severity::Error && d.rule != "expectation-failed")
-        .cloned()
-        .collect();
-    if !errors.is_empty() {
-        let mut err = codespan_reporting::term::termcolor::StandardStream::stderr(
-            codespan_reporting::term::termcolor::ColorChoice::Never,
-        );
-        let _ = crate::render::human(
-            &mut err,
-            &checked.source.path,
-            &checked.source.text,
-            &errors,
-        );
-        eprintln!("sdeck: the model has errors; nothing is simulated until they are mended");
-        return ExitCode::from(1);
-    }
     let model = &result.analysis.model;
-    let at = match &args.at {
+    let at = match args.at.as_deref() {
         None => None,
-        Some(text) => match parse_time(text, model) {
-            Ok(t) if t > 0.0 && t.is_finite() => Some(t),
-            Ok(_) => {
-                eprintln!("sdeck: --at must be a positive time");
-                return ExitCode::from(2);
-            }
-            Err(message) => {
-                eprintln!("sdeck: {message}");
-                return ExitCode::from(2);
-            }
+        Some(text) => match time_option(Some(text), model, true) {
+            Ok(t) => Some(t),
+            Err(code) => return code,
         },
     };
     if args.paths == 0 || args.steps == 0 {
