@@ -1,0 +1,153 @@
+//! End-to-end tests of `sdeck moments`: the exact JSON shape, figures against published
+//! closed forms, the `--at` option, and refusals.
+
+use assert_cmd::Command;
+use serde_json::Value;
+use std::path::{Path, PathBuf};
+
+fn repo() -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR")).join("../..")
+}
+
+fn moments(args: &[&str]) -> (Option<i32>, Value, String) {
+    let out = Command::cargo_bin("sdeck")
+        .unwrap_or_else(|e| panic!("no binary: {e}"))
+        .current_dir(repo())
+        .arg("moments")
+        .args(args)
+        .output()
+        .unwrap_or_else(|e| panic!("{e}"));
+    let json = serde_json::from_slice(&out.stdout).unwrap_or(Value::Null);
+    (
+        out.status.code(),
+        json,
+        String::from_utf8_lossy(&out.stderr).into_owned(),
+    )
+}
+
+fn write_model(dir: &tempfile::TempDir, name: &str, text: &str) -> String {
+    let path = dir.path().join(name);
+    std::fs::write(&path, text).unwrap_or_else(|e| panic!("{e}"));
+    path.to_string_lossy().into_owned()
+}
+
+#[test]
+fn json_has_exactly_the_documented_shape() {
+    let (code, json, _) = moments(&["demo-models/two_factor_rates.sde", "--format", "json"]);
+    assert_eq!(code, Some(0));
+    let keys: Vec<&String> = json
+        .as_object()
+        .map(|o| o.keys().collect())
+        .unwrap_or_default();
+    assert_eq!(keys, ["model", "clock", "at", "states", "covariance"]);
+    let states = json["states"].as_array().cloned().unwrap_or_default();
+    assert_eq!(states.len(), 2);
+    for s in &states {
+        let keys: Vec<&String> = s
+            .as_object()
+            .map(|o| o.keys().collect())
+            .unwrap_or_default();
+        assert_eq!(
+            keys,
+            ["name", "family", "mean", "variance", "exact", "formulas"]
+        );
+        let f: Vec<&String> = s["formulas"]
+            .as_object()
+            .map(|o| o.keys().collect())
+            .unwrap_or_default();
+        assert_eq!(f, ["solution", "mean", "variance"]);
+    }
+    let cov = json["covariance"].as_array().cloned().unwrap_or_default();
+    assert_eq!(cov.len(), 2);
+    assert_eq!(cov[0][1], cov[1][0]);
+    assert_eq!(cov[0][0], states[0]["variance"]);
+}
+
+#[test]
+fn an_ornstein_uhlenbeck_state_matches_vasicek() {
+    // Vasicek 1977, J. Financial Economics 5: E[r_t] = θ + (r0 − θ)e^(−κt),
+    // Var[r_t] = σ²(1 − e^(−2κt))/(2κ).
+    let dir = tempfile::tempdir().unwrap_or_else(|e| panic!("{e}"));
+    let file = write_model(
+        &dir,
+        "vasicek.sde",
+        "param kappa = 0.9 [1/year]\nparam theta = 3.1%\nparam sigma = 0.9% [1/sqrt(year)]\n\
+         noise W\nstate r = 2.2%\ndr = kappa * (theta - r) dt + sigma dW\n",
+    );
+    let (code, json, _) = moments(&[&file, "--at", "18 month", "--format", "json"]);
+    assert_eq!(code, Some(0));
+    let (kappa, theta, sigma, r0, t) = (0.9f64, 0.031, 0.009, 0.022, 1.5);
+    let mean = theta + (r0 - theta) * (-kappa * t).exp();
+    let var = sigma * sigma * (1.0 - (-2.0 * kappa * t).exp()) / (2.0 * kappa);
+    assert_eq!(json["at"].as_f64(), Some(1.5));
+    assert_eq!(json["states"][0]["family"], "ornstein-uhlenbeck");
+    assert!((json["states"][0]["mean"].as_f64().unwrap_or(0.0) - mean).abs() < 1e-15);
+    assert!((json["states"][0]["variance"].as_f64().unwrap_or(0.0) - var).abs() < 1e-17);
+    assert_eq!(json["states"][0]["exact"], true);
+}
+
+#[test]
+fn at_accepts_clock_units_and_time_units_alike() {
+    let (_, in_months, _) = moments(&[
+        "demo-models/ou_short_rate.sde",
+        "--at",
+        "6 month",
+        "--format",
+        "json",
+    ]);
+    let (_, in_years, _) = moments(&[
+        "demo-models/ou_short_rate.sde",
+        "--at",
+        "0.5",
+        "--format",
+        "json",
+    ]);
+    assert_eq!(in_months["at"].as_f64(), Some(0.5));
+    assert_eq!(in_months["states"], in_years["states"]);
+    let (code, _, stderr) = moments(&["demo-models/ou_short_rate.sde", "--at", "6 parsec"]);
+    assert_eq!(code, Some(2));
+    assert!(stderr.contains("not a time unit"));
+}
+
+#[test]
+fn figures_that_are_not_known_are_null() {
+    let (code, json, _) = moments(&["demo-models/cubic_power_spread.sde", "--format", "json"]);
+    assert_eq!(code, Some(0));
+    let general: Vec<&Value> = json["states"]
+        .as_array()
+        .map(|a| a.iter().filter(|s| s["family"] == "general").collect())
+        .unwrap_or_default();
+    assert!(!general.is_empty());
+    for s in general {
+        assert!(s["mean"].is_null() && s["variance"].is_null());
+        assert_eq!(s["exact"], false);
+    }
+}
+
+#[test]
+fn a_model_with_errors_is_refused_with_its_diagnostics() {
+    let dir = tempfile::tempdir().unwrap_or_else(|e| panic!("{e}"));
+    let file = write_model(
+        &dir,
+        "broken.sde",
+        "noise W\nstate x = 1\ndx = -kappa * x dt + 0.1 dW\n",
+    );
+    let (code, _, stderr) = moments(&[&file]);
+    assert_eq!(code, Some(1));
+    assert!(stderr.contains("`kappa` is not declared"), "{stderr}");
+}
+
+#[test]
+fn text_output_names_the_family_and_the_formulas() {
+    let out = Command::cargo_bin("sdeck")
+        .unwrap_or_else(|e| panic!("{e}"))
+        .current_dir(repo())
+        .args(["moments", "demo-models/cir_funding_rate.sde"])
+        .output()
+        .unwrap_or_else(|e| panic!("{e}"));
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert!(text.contains("square-root"));
+    assert!(text.contains("noncentral χ²"));
+    assert!(text.contains("Gamma("));
+    assert!(text.contains("Caution"));
+}
