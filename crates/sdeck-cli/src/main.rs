@@ -13,6 +13,10 @@ mod sarif;
 mod simulate_cmd;
 
 use clap::{Parser, Subcommand};
+
+#[global_allocator]
+static ALLOCATOR: mimalloc::MiMalloc = mimalloc::MiMalloc;
+
 use std::process::ExitCode;
 
 const CAUTION: &str = "Caution: derived figures hold only under the model's assumptions. \
