@@ -349,20 +349,42 @@ fn integrate_linear_system(
     analysis: &Analysis,
     t: f64,
 ) -> Option<(DVector<f64>, DMatrix<f64>)> {
-    let n = model.states.len();
     let m = model.noises.len();
     let corr = DMatrix::from_fn(m, m, |k, l| correlation(&analysis.corr, k, l));
-    let derivative = |s: f64, y: &[f64], dy: &mut [f64]| {
-        let Some((a, b, loadings)) = linear_matrices(model, analysis, s) else {
-            dy.iter_mut().for_each(|v| *v = f64::NAN);
-            return;
-        };
+    integrate_mean_covariance(model, t, |s, _mean, _cov| {
+        let (a, b, loadings) = linear_matrices(model, analysis, s)?;
+        let noise = &loadings * &corr * loadings.transpose();
+        Some((a, b, noise))
+    })
+}
+
+/// Integrates the first two moment equations m' = A(s) m + b(s) and
+/// P' = A P + P Aᵀ + Q(s, m, P) from the initial state (P(0) = 0) to `t`, where
+/// `coefficients(s, m, P)` gives A, b and Q (`None` makes the result unknown).
+fn integrate_mean_covariance<F>(
+    model: &Model,
+    t: f64,
+    coefficients: F,
+) -> Option<(DVector<f64>, DMatrix<f64>)>
+where
+    F: Fn(f64, &DVector<f64>, &DMatrix<f64>) -> Option<(DMatrix<f64>, DVector<f64>, DMatrix<f64>)>,
+{
+    let n = model.states.len();
+    let unpack = |y: &[f64]| {
         let mean = DVector::from_fn(n, |r, _| y.get(r).copied().unwrap_or(f64::NAN));
         let cov = DMatrix::from_fn(n, n, |r, c| {
             y.get(n + r * n + c).copied().unwrap_or(f64::NAN)
         });
+        (mean, cov)
+    };
+    let derivative = |s: f64, y: &[f64], dy: &mut [f64]| {
+        let (mean, cov) = unpack(y);
+        let Some((a, b, noise)) = coefficients(s, &mean, &cov) else {
+            dy.iter_mut().for_each(|v| *v = f64::NAN);
+            return;
+        };
         let dm = &a * &mean + &b;
-        let dp = &a * &cov + &cov * a.transpose() + &loadings * &corr * loadings.transpose();
+        let dp = &a * &cov + &cov * a.transpose() + noise;
         for (r, v) in dm.iter().enumerate() {
             if let Some(slot) = dy.get_mut(r) {
                 *slot = *v;
@@ -379,11 +401,7 @@ fn integrate_linear_system(
     let mut start = model.initial_values();
     start.extend(std::iter::repeat_n(0.0, n * n));
     let end = ode::integrate(derivative, &start, 0.0, t, 1e-11, 1e-300).ok()?;
-    let mean = DVector::from_fn(n, |r, _| end.get(r).copied().unwrap_or(f64::NAN));
-    let cov = DMatrix::from_fn(n, n, |r, c| {
-        end.get(n + r * n + c).copied().unwrap_or(f64::NAN)
-    });
-    Some((mean, cov))
+    Some(unpack(&end))
 }
 
 /// E[x^key] from the means and covariances: 1, m_k, P_kk + m_k², P_kl + m_k m_l.
@@ -423,16 +441,12 @@ fn integrate_polynomial_system(
         }
         covariance_pieces.push(row);
     }
-    let derivative = |s: f64, y: &[f64], dy: &mut [f64]| {
+    integrate_mean_covariance(model, t, |s, mean, cov| {
         let value = |p: Option<&Poly>| p.map(|p| p.value(params, s)).unwrap_or(0.0);
         let a = DMatrix::from_fn(n, n, |r, c| {
             value(rows.get(r).and_then(|(cs, _)| cs.get(c)))
         });
         let b = DVector::from_fn(n, |r, _| value(rows.get(r).map(|(_, k)| k)));
-        let mean = DVector::from_fn(n, |r, _| y.get(r).copied().unwrap_or(f64::NAN));
-        let cov = DMatrix::from_fn(n, n, |r, c| {
-            y.get(n + r * n + c).copied().unwrap_or(f64::NAN)
-        });
         let noise = DMatrix::from_fn(n, n, |r, c| {
             covariance_pieces
                 .get(r)
@@ -441,35 +455,14 @@ fn integrate_polynomial_system(
                     pieces
                         .iter()
                         .map(|(key, coefficient)| {
-                            coefficient.value(params, s) * expected_monomial(key, &mean, &cov)
+                            coefficient.value(params, s) * expected_monomial(key, mean, cov)
                         })
                         .sum::<f64>()
                 })
                 .unwrap_or(f64::NAN)
         });
-        let dm = &a * &mean + &b;
-        let dp = &a * &cov + &cov * a.transpose() + noise;
-        for (r, v) in dm.iter().enumerate() {
-            if let Some(slot) = dy.get_mut(r) {
-                *slot = *v;
-            }
-        }
-        for r in 0..n {
-            for c in 0..n {
-                if let (Some(slot), Some(v)) = (dy.get_mut(n + r * n + c), dp.get((r, c))) {
-                    *slot = *v;
-                }
-            }
-        }
-    };
-    let mut start = model.initial_values();
-    start.extend(std::iter::repeat_n(0.0, n * n));
-    let end = ode::integrate(derivative, &start, 0.0, t, 1e-11, 1e-300).ok()?;
-    let mean = DVector::from_fn(n, |r, _| end.get(r).copied().unwrap_or(f64::NAN));
-    let cov = DMatrix::from_fn(n, n, |r, c| {
-        end.get(n + r * n + c).copied().unwrap_or(f64::NAN)
-    });
-    Some((mean, cov))
+        Some((a, b, noise))
+    })
 }
 
 pub(crate) fn moments_at(
