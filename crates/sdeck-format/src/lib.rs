@@ -43,8 +43,24 @@ impl Outcome {
     }
 }
 
-/// Formats a whole model file.
+/// Formats a whole model file. The result uses the file's line break (the first one it
+/// uses: LF, CRLF or CR) on every line.
 pub fn format(source: &str) -> Outcome {
+    let line_break = sdeck_syntax::lines::first_break(source);
+    if !source.contains('\r') {
+        return format_lf(source);
+    }
+    // Format with LF breaks, then write the file's own break back.
+    match format_lf(&sdeck_syntax::lines::with_breaks(source, "\n")) {
+        Outcome::Formatted(text) => {
+            Outcome::Formatted(sdeck_syntax::lines::with_breaks(&text, line_break))
+        }
+        other => other,
+    }
+}
+
+/// Formats a text whose only line break is LF.
+fn format_lf(source: &str) -> Outcome {
     let file = sdeck_syntax::parse(source);
     if !file.diagnostics.is_empty() {
         return Outcome::SyntaxErrors {

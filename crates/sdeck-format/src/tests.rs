@@ -278,3 +278,30 @@ mod random_models {
         }
     }
 }
+
+#[test]
+fn a_crlf_file_keeps_crlf_and_a_formatted_one_is_unchanged() {
+    let source = "param  k=2 # speed\r\nparam  v = 1\r\n";
+    let expected = "param k = 2  # speed\r\nparam v = 1\r\n";
+    assert_eq!(formatted(source), expected);
+    assert_eq!(formatted(expected), expected);
+}
+
+#[test]
+fn a_lone_cr_file_keeps_its_lines_and_its_breaks() {
+    // A lone CR ends a line: two statements, not one long broken one.
+    let source = "param a=1\rparam b=2 # two\r";
+    assert_eq!(formatted(source), "param a = 1\rparam b = 2  # two\r");
+}
+
+#[test]
+fn infinite_bounds_on_the_wrong_side_are_printed_as_written() {
+    // `>= inf` admits no value; rewriting it as `in (-inf, inf)` would erase that.
+    for source in [
+        "param a = 1 [1/year] >= inf\n",
+        "param a = 1 [1/year] < -inf\n",
+        "param a = 1 [1/year] in [inf, -inf]\n",
+    ] {
+        assert_eq!(formatted(source), source);
+    }
+}

@@ -1635,22 +1635,14 @@ impl<'a> Analyzer<'a> {
     }
 }
 
-/// The offset just after the line that holds `offset` (after its newline).
+/// The offset just after the line that holds `offset` (after its line break).
 fn line_end_after(source: &str, offset: usize) -> usize {
-    source
-        .get(offset..)
-        .and_then(|rest| rest.find('\n'))
-        .map(|i| offset + i + 1)
-        .unwrap_or(source.len())
+    sdeck_syntax::lines::next_line_start(source, offset)
 }
 
 /// The offset where the line holding `offset` starts.
 fn line_start_of(source: &str, offset: usize) -> usize {
-    source
-        .get(..offset)
-        .and_then(|head| head.rfind('\n'))
-        .map(|i| i + 1)
-        .unwrap_or(0)
+    sdeck_syntax::lines::line_start(source, offset)
 }
 
 /// The lines that hold `span`, newline included.

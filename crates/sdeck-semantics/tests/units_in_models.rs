@@ -157,3 +157,31 @@ fn bounds_are_in_the_unit_of_their_declaration() {
         1
     );
 }
+
+/// The findings of `text` other than the unused lone declaration.
+fn bound_rules(text: &str) -> Vec<(usize, &'static str)> {
+    let mut rules = rules_at_lines(text);
+    rules.retain(|(_, rule)| *rule != "unused");
+    rules
+}
+
+#[test]
+fn an_infinite_end_on_the_wrong_side_is_a_bound_no_value_meets() {
+    // `>= inf` and `< -inf` admit no number; an interval from inf down to -inf is empty.
+    for bound in [
+        ">= inf",
+        "> inf",
+        "< -inf",
+        "<= -inf",
+        "in [inf, -inf]",
+        "in (inf, 5)",
+    ] {
+        let text = format!("param a = 1 [1/year] {bound}\n");
+        assert_eq!(bound_rules(&text), vec![(1, "bound-violated")], "{bound}");
+    }
+    // On their own side the infinities bound nothing.
+    for bound in ["> -inf", "<= inf", "in (-inf, inf)", "in [-inf, 5]"] {
+        let text = format!("param a = 1 [1/year] {bound}\n");
+        assert_eq!(bound_rules(&text), vec![], "{bound}");
+    }
+}

@@ -251,11 +251,8 @@ fn nearest_correlation_fix(a: &Analyzed) -> Option<(String, Vec<TextEdit>)> {
     }
     if !added.is_empty() {
         let after = last_corr_end.or(last_noise_end).unwrap_or(0);
-        let at = a
-            .text
-            .get(after..)
-            .and_then(|rest| rest.find('\n'))
-            .map(|k| after + k + 1);
+        let next = sdeck_syntax::lines::next_line_start(&a.text, after);
+        let at = (next > sdeck_syntax::lines::line_end(&a.text, after)).then_some(next);
         match at {
             Some(at) => edits.push(TextEdit {
                 span: at..at,
@@ -291,12 +288,7 @@ fn moments_comment(a: &Analyzed, in_range: impl Fn(&Span) -> bool) -> Vec<(Strin
         let Some(law) = a.check.derivation.states.get(i) else {
             continue;
         };
-        let line_start = a
-            .text
-            .get(..equation.span.start)
-            .and_then(|t| t.rfind('\n'))
-            .map(|k| k + 1)
-            .unwrap_or(0);
+        let line_start = sdeck_syntax::lines::line_start(&a.text, equation.span.start);
         let indent: String = a
             .text
             .get(line_start..equation.span.start)

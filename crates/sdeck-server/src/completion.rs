@@ -17,12 +17,7 @@ pub fn complete(
 ) -> Vec<CompletionItem> {
     let converter = a.converter(encoding);
     let offset = converter.offset(position);
-    let line_start = a
-        .text
-        .get(..offset)
-        .and_then(|t| t.rfind('\n'))
-        .map(|k| k + 1)
-        .unwrap_or(0);
+    let line_start = sdeck_syntax::lines::line_start(&a.text, offset);
     let before = a.text.get(line_start..offset).unwrap_or("");
     let in_brackets = before
         .rfind('[')

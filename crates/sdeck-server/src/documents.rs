@@ -237,13 +237,14 @@ pub fn char_index(rope: &Rope, position: Position, encoding: PositionEncoding) -
     }
     let line_start = rope.line_to_char(line);
     let slice = rope.line(line);
-    // The line's content without its line break.
+    // The line's content without its line break (LF, CRLF or CR: the rope is built
+    // without `unicode_lines`, so these are its only breaks, as in the protocol).
     let mut content_chars = slice.len_chars();
     if content_chars > 0 && slice.char(content_chars - 1) == '\n' {
         content_chars -= 1;
-        if content_chars > 0 && slice.char(content_chars - 1) == '\r' {
-            content_chars -= 1;
-        }
+    }
+    if content_chars > 0 && slice.char(content_chars - 1) == '\r' {
+        content_chars -= 1;
     }
     let content = slice.slice(..content_chars);
     let col = position.character as usize;
@@ -391,6 +392,48 @@ mod tests {
             Ok(())
         );
         assert_eq!(text(&store), "<🚀x");
+    }
+
+    #[test]
+    fn only_lf_crlf_and_cr_break_lines() {
+        // U+2028, U+2029, U+0085, VT and FF are ordinary characters to the protocol: an
+        // edit on the line after one lands on that line, not inside the comment.
+        for odd in ['\u{2028}', '\u{2029}', '\u{85}', '\u{b}', '\u{c}'] {
+            let store = DocumentStore::default();
+            let before = format!("# a{odd}b\nparam k = 1\n");
+            store.open(uri(), &before, 1, ProjectSettings::default());
+            let r = store.apply(
+                &uri(),
+                2,
+                &[change(1, 10, 1, 11, "2")],
+                PositionEncoding::Utf16,
+            );
+            assert_eq!(r, Ok(()));
+            assert_eq!(text(&store), format!("# a{odd}b\nparam k = 2\n"), "{odd:?}");
+        }
+    }
+
+    #[test]
+    fn a_column_past_the_end_of_a_line_ending_in_cr_stays_on_that_line() {
+        let store = DocumentStore::default();
+        store.open(uri(), "ab\rcd\r\nef", 1, ProjectSettings::default());
+        let batch = [change(0, 99, 0, 99, "!"), change(1, 99, 1, 99, "?")];
+        assert_eq!(
+            store.apply(&uri(), 2, &batch, PositionEncoding::Utf16),
+            Ok(())
+        );
+        assert_eq!(text(&store), "ab!\rcd?\r\nef");
+        // Line 2 starts after the CRLF.
+        assert_eq!(
+            store.apply(
+                &uri(),
+                3,
+                &[change(2, 0, 2, 0, ">")],
+                PositionEncoding::Utf16
+            ),
+            Ok(())
+        );
+        assert_eq!(text(&store), "ab!\rcd?\r\n>ef");
     }
 
     #[test]

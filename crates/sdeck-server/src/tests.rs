@@ -409,3 +409,49 @@ dr = kappa * (level - r) dt + vol * sqrt(r) dW\n";
     assert!(raised.contains("% [1/day]"), "{raised}");
     assert!(!rules_of(&raised).contains(&"feller-condition"), "{raised}");
 }
+
+#[test]
+fn a_whole_text_edit_applied_by_the_document_store_gives_exactly_the_new_text() {
+    // The range of a whole-document edit comes from `LineIndex`, the store applies it
+    // with the rope: both must count lines alike (LF, CRLF, CR and nothing else), or the
+    // edit ends early and the tail of the document is duplicated.
+    use crate::documents::DocumentStore;
+    for text in [
+        "param a=1\rparam b=2\n",
+        "param a=1\r\nparam b=2\r\n",
+        "# note\u{2028}x\nparam a=1\u{85}\nparam b=2\r",
+        "param a=1\u{b}\u{c}\rparam b=2",
+    ] {
+        let store = DocumentStore::default();
+        store.open(uri(), text, 1, crate::analysis::ProjectSettings::default());
+        let index = LineIndex::new(text);
+        let range = crate::convert::Converter {
+            text,
+            index: &index,
+            encoding: UTF16,
+        }
+        .range(&(0..text.len()));
+        let change = tower_lsp::lsp_types::TextDocumentContentChangeEvent {
+            range: Some(range),
+            range_length: None,
+            text: "new text\n".to_string(),
+        };
+        assert_eq!(store.apply(&uri(), 2, &[change], UTF16), Ok(()));
+        let held = store.snapshot(&uri()).map(|s| s.text);
+        assert_eq!(held.as_deref(), Some("new text\n"), "{text:?}");
+    }
+}
+
+#[test]
+fn diagnostics_after_a_lone_cr_are_on_their_own_line() {
+    let text = "param a = 1\rparam b = 1 [1/year]\rparam a = 2\n";
+    let a = analyzed(text);
+    let converter = a.converter(UTF16);
+    let lines: Vec<u32> = a
+        .check
+        .diagnostics
+        .iter()
+        .map(|d| converter.position(d.span.start).line)
+        .collect();
+    assert!(lines.contains(&2), "{lines:?}");
+}

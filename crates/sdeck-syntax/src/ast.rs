@@ -142,7 +142,8 @@ impl Expr {
     }
 }
 
-/// One end of a bound. An infinite end (`inf`, `-inf`) is stored as `None` in [`Bound`].
+/// One end of a bound. An infinite end on its own side (`-inf` below, `inf` above) is
+/// stored as `None` in [`Bound`]; one on the wrong side (`>= inf`) as an infinite value.
 #[derive(Clone, Debug, PartialEq)]
 pub struct BoundEnd {
     pub value: Number,

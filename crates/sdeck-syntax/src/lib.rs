@@ -14,6 +14,7 @@
 
 pub mod ast;
 pub mod line_index;
+pub mod lines;
 mod parse;
 pub mod split;
 

@@ -29,11 +29,14 @@ pub struct LineIndex {
 
 impl LineIndex {
     pub fn new(text: &str) -> LineIndex {
+        // Lines end at LF, CRLF or a lone CR (see [`crate::lines`]).
         let mut starts = vec![0];
         let mut ascii = Vec::new();
         let mut line_ascii = true;
-        for (i, b) in text.bytes().enumerate() {
-            if b == b'\n' {
+        let bytes = text.as_bytes();
+        for (i, &b) in bytes.iter().enumerate() {
+            let ends_line = b == b'\n' || (b == b'\r' && bytes.get(i + 1) != Some(&b'\n'));
+            if ends_line {
                 starts.push(i + 1);
                 ascii.push(line_ascii);
                 line_ascii = true;
@@ -94,11 +97,12 @@ impl LineIndex {
         let Some(&start) = self.starts.get(line) else {
             return text.len();
         };
-        let end = self
-            .starts
-            .get(line + 1)
-            .map(|&next| next - 1)
-            .unwrap_or(text.len());
+        // The end of the line's content, before its break (LF, CRLF or CR).
+        let end = match self.starts.get(line + 1) {
+            Some(&next) if next >= 2 && text.get(next - 2..next) == Some("\r\n") => next - 2,
+            Some(&next) => next - 1,
+            None => text.len(),
+        };
         let col = position.col as usize;
         if self.ascii.get(line).copied().unwrap_or(false) {
             return (start + col).min(end);
@@ -157,6 +161,32 @@ mod tests {
             let lc = index.line_col(text, x, enc);
             assert_eq!(index.offset(text, lc, enc), x);
         }
+    }
+
+    #[test]
+    fn lone_cr_and_crlf_end_lines_and_unicode_separators_do_not() {
+        // The protocol's line breaks are LF, CRLF and CR; U+2028 is an ordinary character.
+        let text = "a\rb\r\nc\u{2028}d\ne";
+        let index = LineIndex::new(text);
+        assert_eq!(index.line_count(), 4);
+        let d = text.find('d').unwrap_or(0);
+        assert_eq!(
+            index.line_col(text, d, Encoding::Utf16),
+            LineCol { line: 2, col: 2 }
+        );
+        // A column past the end stops before the break, whichever it is.
+        assert_eq!(
+            index.offset(text, LineCol { line: 0, col: 9 }, Encoding::Utf16),
+            1
+        );
+        assert_eq!(
+            index.offset(text, LineCol { line: 1, col: 9 }, Encoding::Utf16),
+            3
+        );
+        assert_eq!(
+            index.line_col(text, text.len(), Encoding::Chars),
+            LineCol { line: 3, col: 1 }
+        );
     }
 
     #[test]

@@ -99,6 +99,13 @@ fn parse_piece(text: &str, span: Span, soft: &mut Vec<Diagnostic>) -> Result<Sta
     kind
 }
 
+/// Which end of a bound a value is.
+#[derive(Clone, Copy, PartialEq, Eq)]
+enum Side {
+    Lower,
+    Upper,
+}
+
 /// Size, bracket and nesting checks that run before pest.
 fn precheck(src: &str, offset: usize) -> Result<()> {
     let mut code_bytes = 0usize;
@@ -110,7 +117,7 @@ fn precheck(src: &str, offset: usize) -> Result<()> {
     let mut powers = 0usize;
     for (i, c) in src.char_indices() {
         if in_comment {
-            in_comment = c != '\n';
+            in_comment = c != '\n' && c != '\r';
             continue;
         }
         code_bytes += c.len_utf8();
@@ -748,7 +755,12 @@ impl Builder {
         let mut upper = None;
         match parts.as_slice() {
             [op, value] if op.as_rule() == Rule::compare_op => {
-                let end = self.bound_value(value.clone())?;
+                let side = if op.as_str().starts_with('>') {
+                    Side::Lower
+                } else {
+                    Side::Upper
+                };
+                let end = self.bound_value(value.clone(), side)?;
                 match op.as_str() {
                     ">" => {
                         lower = end.map(|value| BoundEnd {
@@ -777,14 +789,18 @@ impl Builder {
                 }
             }
             [open, a, b, close] => {
-                lower = self.bound_value(a.clone())?.map(|value| BoundEnd {
-                    value,
-                    inclusive: open.as_str() == "[",
-                });
-                upper = self.bound_value(b.clone())?.map(|value| BoundEnd {
-                    value,
-                    inclusive: close.as_str() == "]",
-                });
+                lower = self
+                    .bound_value(a.clone(), Side::Lower)?
+                    .map(|value| BoundEnd {
+                        value,
+                        inclusive: open.as_str() == "[",
+                    });
+                upper = self
+                    .bound_value(b.clone(), Side::Upper)?
+                    .map(|value| BoundEnd {
+                        value,
+                        inclusive: close.as_str() == "]",
+                    });
             }
             _ => {
                 return Err(syntax_error(
@@ -796,15 +812,33 @@ impl Builder {
         Ok(Bound { lower, upper, span })
     }
 
-    /// A bound end; `None` for an infinite end.
-    fn bound_value(&mut self, pair: Pair<Rule>) -> Result<Option<Number>> {
+    /// A bound end; `None` for an infinite end on its own side (`-inf` below, `inf`
+    /// above), which bounds nothing. An infinite end on the wrong side (`>= inf`,
+    /// `< -inf`) is kept as an infinite number: it admits no value, which the analysis
+    /// reports and the formatter prints as written.
+    fn bound_value(&mut self, pair: Pair<Rule>, side: Side) -> Result<Option<Number>> {
         let span = self.span(&pair);
         let inner = pair
             .into_inner()
             .next()
-            .ok_or_else(|| syntax_error(span, "a number or `inf` is expected"))?;
+            .ok_or_else(|| syntax_error(span.clone(), "a number or `inf` is expected"))?;
         match inner.as_rule() {
-            Rule::infinity => Ok(None),
+            Rule::infinity => {
+                let text: String = inner.as_str().split_whitespace().collect();
+                let negative = text.starts_with('-');
+                if negative == (side == Side::Lower) {
+                    return Ok(None);
+                }
+                Ok(Some(Number {
+                    value: if negative {
+                        f64::NEG_INFINITY
+                    } else {
+                        f64::INFINITY
+                    },
+                    text,
+                    span,
+                }))
+            }
             _ => self.signed_number(inner).map(Some),
         }
     }

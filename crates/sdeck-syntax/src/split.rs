@@ -58,19 +58,19 @@ pub fn split(text: &str) -> (Vec<Piece>, Vec<Comment>) {
     let mut comments = Vec::new();
     // The piece being built: (start, end of code, description).
     let mut current: Option<(usize, usize, Option<String>)> = None;
-    let mut line_start = 0;
-    for line in text.split_inclusive('\n') {
-        let line_end = line_start + line.len();
-        let content = line.strip_suffix('\n').unwrap_or(line);
+    // Lines end at LF, CRLF or a lone CR, as everywhere in sdeck.
+    for line in crate::lines::lines(text) {
+        let line_start = line.start;
+        let content = line.content;
         let (code, comment) = match content.find('#') {
             Some(i) => (&content[..i], Some(i)),
             None => (content, None),
         };
         let has_code = !code.trim().is_empty();
         if let Some(i) = comment {
-            let text_after = content[i + 1..].trim_end_matches('\r').to_string();
+            let text_after = content[i + 1..].to_string();
             comments.push(Comment {
-                span: line_start + i..line_start + content.trim_end_matches('\r').len(),
+                span: line_start + i..line_start + content.len(),
                 text: text_after,
                 trailing: has_code,
             });
@@ -102,7 +102,6 @@ pub fn split(text: &str) -> (Vec<Piece>, Vec<Comment>) {
                 }
             }
         }
-        line_start = line_end;
     }
     if let Some((start, end, desc)) = current {
         pieces.push(Piece {
@@ -146,6 +145,17 @@ mod tests {
     fn stray_text_before_any_statement_is_its_own_piece() {
         let src = "+ 1\nparam a = 1\n";
         assert_eq!(texts(src), vec!["+ 1", "param a = 1"]);
+    }
+
+    #[test]
+    fn a_lone_cr_ends_a_line_like_lf() {
+        let src = "param a = 1 # speed\u{2028}x\rparam b = 2\r\nparam c = 3\r";
+        assert_eq!(
+            texts(src),
+            vec!["param a = 1", "param b = 2", "param c = 3"]
+        );
+        let (_, comments) = split(src);
+        assert_eq!(&src[comments[0].span.clone()], "# speed\u{2028}x");
     }
 
     #[test]
