@@ -1245,6 +1245,170 @@ def model_record(spec: ModelSpec) -> dict:
     }
 
 
+# --------------------------------------------------------------------------------------
+# Laws, bond prices and explosion times of affine models
+# --------------------------------------------------------------------------------------
+
+SOURCE_VASICEK_BOND = "Vasicek 1977, J. Financial Economics 5, eq. 27 (Brigo & Mercurio 2006, eq. 3.8)"
+SOURCE_CIR_BOND = "Cox, Ingersoll & Ross 1985, Econometrica 53, eq. 23"
+SOURCE_G2_BOND = "Brigo & Mercurio 2006, Interest Rate Models, 2nd ed., eq. 4.10 with constant phi"
+SOURCE_HESTON = ("Heston 1993, Review of Financial Studies 6, eq. 17 (little-trap form of "
+                 "Albrecher et al. 2007); Gil-Pelaez 1951 by scipy.integrate.quad")
+SOURCE_NORM = "scipy.stats.norm with the Vasicek mean and variance"
+SOURCE_LOGNORM = "scipy.stats.lognorm, s = sigma sqrt(T), scale = S0 exp((mu - sigma^2/2) T)"
+SOURCE_NCX2 = "scipy.stats.ncx2, Cox, Ingersoll & Ross 1985, eq. 18"
+SOURCE_EXPLOSION = "Andersen & Piterbarg 2007, Finance and Stochastics 11, Prop. 3.1"
+
+# Transcriptions of the affine models: parameter literals as written in each file (the
+# file must contain each `param NAME = LITERAL`), values in the clock (year).
+AFFINE_MODELS = {
+    "affine_alderley_vasicek_rate.sde": {"kappa": "0.8", "theta": "4%", "sigma": "1.5%", "r0": "2.5%"},
+    "affine_bramble_cir_rate.sde": {"kappa": "0.6", "theta": "5%", "sigma": "0.12", "r0": "3%"},
+    "affine_corrin_two_factor_rate.sde": {"a": "0.5", "b": "0.08", "sigma": "1%", "eta": "0.7%",
+                                          "phi": "3%", "rho": "-0.6", "x0": "0.4%", "y0": "-0.2%"},
+    "affine_dunmore_index_variance.sde": {"mu": "3%", "kappa": "1.5", "theta": "0.04", "xi": "0.5",
+                                          "rho": "-0.7", "S0": "100", "v0": "0.05"},
+    "affine_fallow_explosive_variance.sde": {"mu": "3%", "kappa": "1.5", "theta": "0.04", "xi": "0.9",
+                                             "rho": "0.5", "S0": "100", "v0": "0.05"},
+}
+
+
+def affine_parameters(file: str) -> dict[str, float]:
+    text = (MODELS_DIR / file).read_text(encoding="utf-8")
+    values = {}
+    for name, literal in AFFINE_MODELS[file].items():
+        if re.fullmatch(r"[a-zA-Z]+", name) and len(name) > 0 and not name.endswith("0") and name != "rho":
+            if not re.search(rf"param\s+{name}\s*=\s*{re.escape(literal)}(?=\s|$)", text):
+                raise ReferenceError(f"{file}: the transcription of {name} = {literal} does not match the file")
+        values[name] = parse_literal(literal)
+    return values
+
+
+def vasicek_log_price(p: dict[str, float], t: float) -> float:
+    k, th, s, r0 = p["kappa"], p["theta"], p["sigma"], p["r0"]
+    b = (1 - math.exp(-k * t)) / k
+    return (th - s * s / (2 * k * k)) * (b - t) - s * s * b * b / (4 * k) - b * r0
+
+
+def cir_log_price(p: dict[str, float], t: float) -> float:
+    k, th, s, r0 = p["kappa"], p["theta"], p["sigma"], p["r0"]
+    h = math.sqrt(k * k + 2 * s * s)
+    grow = math.expm1(h * t)
+    denominator = 2 * h + (k + h) * grow
+    b = 2 * grow / denominator
+    ln_a = 2 * k * th / (s * s) * math.log(2 * h * math.exp((k + h) * t / 2) / denominator)
+    return ln_a - b * r0
+
+
+def g2_log_price(p: dict[str, float], t: float) -> float:
+    a, b, s, e, rho = p["a"], p["b"], p["sigma"], p["eta"], p["rho"]
+
+    def part(k: float, v: float) -> float:
+        return v * v / (k * k) * (t + 2 / k * math.exp(-k * t) - 1 / (2 * k) * math.exp(-2 * k * t) - 3 / (2 * k))
+
+    var = part(a, s) + part(b, e) + 2 * rho * s * e / (a * b) * (
+        t + math.expm1(-a * t) / a + math.expm1(-b * t) / b - math.expm1(-(a + b) * t) / (a + b))
+    return -p["phi"] * t - p["x0"] * (1 - math.exp(-a * t)) / a - p["y0"] * (1 - math.exp(-b * t)) / b + 0.5 * var
+
+
+def heston_log_characteristic(p: dict[str, float], u: float, t: float) -> complex:
+    mu, k, th, xi, rho, s0, v0 = (p[n] for n in ("mu", "kappa", "theta", "xi", "rho", "S0", "v0"))
+    i = 1j
+    d = np.sqrt((rho * xi * i * u - k) ** 2 + xi * xi * (i * u + u * u))
+    g = (k - rho * xi * i * u - d) / (k - rho * xi * i * u + d)
+    e = np.exp(-d * t)
+    c = i * u * (math.log(s0) + mu * t) + k * th / (xi * xi) * (
+        (k - rho * xi * i * u - d) * t - 2 * np.log((1 - g * e) / (1 - g)))
+    dd = (k - rho * xi * i * u - d) / (xi * xi) * (1 - e) / (1 - g * e)
+    return complex(c + dd * v0)
+
+
+def heston_probability_below(p: dict[str, float], level: float, t: float) -> float:
+    z = math.log(level)
+
+    def integrand(u: float) -> float:
+        return (np.exp(heston_log_characteristic(p, u, t) - 1j * u * z)).imag / u
+
+    value, _ = integrate.quad(integrand, 0.0, np.inf, epsabs=1e-13, epsrel=1e-12, limit=500)
+    return 0.5 - value / math.pi
+
+
+def explosion_time(p: dict[str, float], u: float) -> float:
+    k = p["rho"] * p["xi"] * u - p["kappa"]
+    d = k * k - p["xi"] ** 2 * u * (u - 1)
+    if d < 0:
+        root = math.sqrt(-d)
+        return 2 / root * ((math.pi if k < 0 else 0.0) + math.atan(root / k))
+    if k > 0:
+        root = math.sqrt(d)
+        return math.log((k + root) / (k - root)) / root
+    return math.inf
+
+
+def law_records() -> list[dict]:
+    records: list[dict] = []
+
+    def add(file: str, check: str, factor: str | None, at: float | None, argument, value: float,
+            source: str, rate: list[str] | None = None) -> None:
+        records.append({"file": f"tests/reference/models/{file}", "check": check, "factor": factor,
+                        "at": at, "argument": argument, "value": float(value), "source": source,
+                        "rate": rate, "tolerance": TOLERANCE_EXACT})
+
+    maturities = [0.25, 1.0, 5.0, 10.0, 30.0]
+    f = "affine_alderley_vasicek_rate.sde"
+    p = affine_parameters(f)
+    for t in maturities:
+        add(f, "bond_price", None, t, None, math.exp(vasicek_log_price(p, t)), SOURCE_VASICEK_BOND, ["r"])
+    t = 1.0
+    mean = p["theta"] + (p["r0"] - p["theta"]) * math.exp(-p["kappa"] * t)
+    sd = math.sqrt(p["sigma"] ** 2 * (1 - math.exp(-2 * p["kappa"] * t)) / (2 * p["kappa"]))
+    for q in (0.0, 0.02, 0.05):
+        add(f, "cdf", "r", t, q, stats.norm.cdf(q, mean, sd), SOURCE_NORM)
+    for prob in (0.01, 0.5, 0.99):
+        add(f, "quantile", "r", t, prob, stats.norm.ppf(prob, mean, sd), SOURCE_NORM)
+
+    f = "affine_bramble_cir_rate.sde"
+    p = affine_parameters(f)
+    for t in maturities:
+        add(f, "bond_price", None, t, None, math.exp(cir_log_price(p, t)), SOURCE_CIR_BOND, ["r"])
+    t = 2.0
+    c = 2 * p["kappa"] / (p["sigma"] ** 2 * (1 - math.exp(-p["kappa"] * t)))
+    df = 4 * p["kappa"] * p["theta"] / p["sigma"] ** 2
+    nc = 2 * c * p["r0"] * math.exp(-p["kappa"] * t)
+    for q in (0.01, 0.03, 0.08):
+        add(f, "cdf", "r", t, q, stats.ncx2.cdf(2 * c * q, df, nc), SOURCE_NCX2)
+    for prob in (0.01, 0.5, 0.99):
+        add(f, "quantile", "r", t, prob, stats.ncx2.ppf(prob, df, nc) / (2 * c), SOURCE_NCX2)
+
+    f = "affine_corrin_two_factor_rate.sde"
+    p = affine_parameters(f)
+    for t in maturities:
+        add(f, "bond_price", None, t, None, math.exp(g2_log_price(p, t)), SOURCE_G2_BOND, ["x", "y", "phi"])
+
+    f = "affine_dunmore_index_variance.sde"
+    p = affine_parameters(f)
+    t = 1.0
+    for level in (80.0, 100.0, 120.0):
+        add(f, "cdf", "S", t, level, heston_probability_below(p, level, t), SOURCE_HESTON)
+    for prob in (0.05, 0.5, 0.95):
+        from scipy.optimize import brentq
+        level = brentq(lambda x: heston_probability_below(p, x, t) - prob, 20.0, 400.0, xtol=1e-13, rtol=1e-15)
+        add(f, "quantile", "S", t, prob, level, SOURCE_HESTON)
+
+    f = "affine_fallow_explosive_variance.sde"
+    p = affine_parameters(f)
+    for u in (2.0, 3.0):
+        add(f, "explosion_time", "S", None, u, explosion_time(p, u), SOURCE_EXPLOSION)
+    f = "gbm_osterlund_share.sde"
+    mu, sigma, s0, t = 0.06, 0.22, 84.5, 2.0
+    lognormal = stats.lognorm(s=sigma * math.sqrt(t), scale=s0 * math.exp((mu - sigma ** 2 / 2) * t))
+    for level in (60.0, 84.5, 120.0):
+        add(f, "cdf", "S", t, level, lognormal.cdf(level), SOURCE_LOGNORM)
+    for prob in (0.01, 0.99):
+        add(f, "quantile", "S", t, prob, lognormal.ppf(prob), SOURCE_LOGNORM)
+    return records
+
+
 def compute_all(errors: dict[str, str] | None = None) -> dict:
     """All records. With `errors`, a model that fails is noted there and skipped;
     without it, the first failure raises."""
@@ -1263,6 +1427,7 @@ def compute_all(errors: dict[str, str] | None = None) -> dict:
         "scipy": scipy.__version__,
         "sympy": sp.__version__,
         "models": records,
+        "laws": law_records(),
     }
 
 
@@ -1303,7 +1468,7 @@ def compare_documents(expected: dict, actual: dict) -> list[str]:
         elif old != new:
             problems.append(f"{path}: {old!r} -> {new!r}")
 
-    for key in ("generated_by",):
+    for key in ("generated_by", "laws"):
         compare(key, expected.get(key), actual.get(key))
     old_models = {m.get("file"): m for m in expected.get("models", [])}
     new_models = {m["file"]: m for m in actual["models"]}

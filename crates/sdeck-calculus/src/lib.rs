@@ -27,10 +27,12 @@
 //! assert!((mean - 0.03 * (-2f64).exp()).abs() < 1e-15); // r₀·e^(−kappa·t)
 //! ```
 
+pub mod affine;
 pub mod algebra;
 pub mod describe;
 mod elementary;
 mod formulas;
+pub mod laws;
 pub mod linear_system;
 pub mod noncentral;
 pub mod ode;

@@ -1,0 +1,919 @@
+//! The affine transform engine: for a set of factors whose drift is affine in the
+//! factors and whose instantaneous covariance is affine in them,
+//!
+//! E[exp(u·X_T − ∫₀ᵀ (ρ₀(s) + ρ₁·X_s) ds)] = exp(α(T) + β(T)·X₀),
+//!
+//! with β and α solving the Riccati equations, in τ = time to maturity
+//! (Duffie, Pan & Singleton 2000, Econometrica 68, eq. 2.5–2.6; Duffie & Kan 1996):
+//!
+//! dβ_k/dτ = Σ_i K1_ik β_i + ½ βᵀ H1_k β − ρ1_k,  dα/dτ = K0·β + ½ βᵀ H0 β − ρ0,
+//!
+//! where the drift of factor i is K0_i + Σ_j K1_ij x_j and the instantaneous covariance is
+//! H0 + Σ_k x_k H1_k. A factor dS = S·(a + b·X) dt + S·(...) dW whose own covariance is
+//! quadratic in S enters through its logarithm: Y = ln S has the affine drift
+//! a + b·X − ½ (squared relative diffusion) by Itô's formula.
+//!
+//! Three ways to the answer, the first that applies:
+//! * Gaussian sets (no factor in any covariance, constant coefficients): the mean and
+//!   covariance of (X_T, ∫ρ₁·X ds) by the matrix exponential and Van Loan 1978, the
+//!   transform of a Gaussian vector then being exact for complex u;
+//! * sets whose Riccati system splits into scalar equations with constant coefficients
+//!   (square-root factors, a log-price driven by a square-root variance): the scalar
+//!   Riccati equation in closed form (Cox, Ingersoll & Ross 1985; Heston 1993), written
+//!   with the decaying exponential so that the complex logarithm stays on one branch
+//!   (Albrecher, Mayer, Schoutens & Tistaert 2007);
+//! * otherwise the adaptive Dormand–Prince integrator of [`crate::ode`] on the real and
+//!   imaginary parts, to 1e-11 relative.
+
+use crate::algebra::{to_poly, Atom, Monomial, Poly};
+use crate::linear_system::AffineGaussian;
+use crate::ode;
+use crate::shape::{diffusion_product, shape_of, NoiseTerm, Shape};
+use nalgebra::{DMatrix, DVector};
+use num_complex::Complex64;
+use sdeck_semantics::{Expr, Model};
+
+/// Relative tolerance of the Riccati integration.
+const RICCATI_RTOL: f64 = 1e-11;
+/// Absolute floor of the Riccati integration.
+const RICCATI_ATOL: f64 = 1e-14;
+/// |β| above which the transform is taken as exploding.
+const EXPLOSION_SIZE: f64 = 1e8;
+
+/// How a transform was computed.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum TransformMethod {
+    /// Matrix exponential of a Gaussian set, or the scalar Riccati solution.
+    ClosedForm,
+    /// The Riccati equations integrated numerically.
+    Riccati,
+}
+
+impl TransformMethod {
+    pub fn as_str(self) -> &'static str {
+        match self {
+            TransformMethod::ClosedForm => "closed-form",
+            TransformMethod::Riccati => "riccati",
+        }
+    }
+}
+
+/// Why a transform has no finite value.
+#[derive(Clone, Debug, PartialEq)]
+pub enum TransformError {
+    /// The Riccati solution blows up before the maturity (the moment is infinite).
+    Explodes,
+    /// The numbers could not be computed (non-finite coefficients, integration failure).
+    Failed(String),
+}
+
+/// Coefficients at one time, flat: k1[i·n + j], h0[i·n + j], h1[k·n·n + i·n + j].
+#[derive(Clone, Debug, PartialEq)]
+struct Numbers {
+    k0: Vec<f64>,
+    k1: Vec<f64>,
+    h0: Vec<f64>,
+    h1: Vec<f64>,
+}
+
+/// A set of factors with affine drift and affine instantaneous covariance.
+#[derive(Clone, Debug)]
+pub struct AffineSet {
+    n: usize,
+    /// Factor i is carried as ln X_i.
+    log: Vec<bool>,
+    /// Starting point in the set's coordinates (ln X₀ for log factors).
+    x0: Vec<f64>,
+    k0: Vec<Poly>,
+    k1: Vec<Vec<Poly>>,
+    h0: Vec<Vec<Poly>>,
+    /// h1[k][i][j]: coefficient of x_k in the covariance of i and j.
+    h1: Vec<Vec<Vec<Poly>>>,
+    params: Vec<f64>,
+    time_dependent: bool,
+    constant: Option<Numbers>,
+}
+
+/// A short rate ρ₀(t) + ρ₁·X in clock units (per clock unit of time).
+#[derive(Clone, Debug)]
+pub struct Rate {
+    r0: Poly,
+    r1: Vec<Poly>,
+}
+
+impl Rate {
+    /// The rate `expr` (already in per-clock-unit terms), which must be affine in the
+    /// factors of `set` that are not carried by their logarithm.
+    pub fn new(set: &AffineSet, expr: &Expr) -> Result<Rate, String> {
+        if expr.is_invalid() {
+            return Err("the rate did not resolve".to_string());
+        }
+        let poly = to_poly(expr).map_err(|_| {
+            "the rate is not a polynomial in the factors (it must be affine: a + b·x + ...)"
+                .to_string()
+        })?;
+        let mut r1 = vec![Poly::zero(); set.n];
+        let mut r0 = Poly::zero();
+        for (key, coefficient) in poly.by_state_monomial() {
+            match key.as_slice() {
+                [] => r0 = coefficient,
+                [(j, 1)] if !set.log.get(*j).copied().unwrap_or(true) => {
+                    if let Some(slot) = r1.get_mut(*j) {
+                        *slot = coefficient;
+                    }
+                }
+                [(j, 1)] => {
+                    return Err(format!(
+                        "the rate mentions factor {} whose law is lognormal-like; a short \
+                         rate must be affine in factors with affine dynamics",
+                        j + 1
+                    ))
+                }
+                _ => return Err("the rate is not affine in the factors".to_string()),
+            }
+        }
+        Ok(Rate { r0, r1 })
+    }
+
+    /// The zero rate.
+    pub fn zero(set: &AffineSet) -> Rate {
+        Rate {
+            r0: Poly::zero(),
+            r1: vec![Poly::zero(); set.n],
+        }
+    }
+
+    fn depends_on_time(&self) -> bool {
+        self.r0.depends_on_time() || self.r1.iter().any(Poly::depends_on_time)
+    }
+
+    fn values(&self, params: &[f64], t: f64) -> (f64, Vec<f64>) {
+        (
+            self.r0.value(params, t),
+            self.r1.iter().map(|p| p.value(params, t)).collect(),
+        )
+    }
+}
+
+/// `poly / x_state` when every term carries x_state exactly once.
+fn divide_by_state(poly: &Poly, state: usize) -> Option<Poly> {
+    let mut out = Poly::zero();
+    for (monomial, coefficient) in &poly.terms {
+        let mut found = false;
+        let mut rest: Monomial = Vec::with_capacity(monomial.len());
+        for (atom, power) in monomial {
+            match atom {
+                Atom::State(i) if *i == state => {
+                    if *power != 1 {
+                        return None;
+                    }
+                    found = true;
+                }
+                _ => rest.push((atom.clone(), *power)),
+            }
+        }
+        if !found {
+            return None;
+        }
+        out.terms.insert(rest, *coefficient);
+    }
+    Some(out)
+}
+
+/// The relative equation of a geometric factor: drift/S and diffusion/S, when neither
+/// mentions S again.
+fn relative_shape(shape: &Shape, state: usize) -> Option<Shape> {
+    let drift = divide_by_state(&shape.drift, state)?;
+    if drift.states().contains(&state) {
+        return None;
+    }
+    let mut noises = Vec::with_capacity(shape.noises.len());
+    for term in &shape.noises {
+        let scale = divide_by_state(&term.form.scale, state)?;
+        if scale.states().contains(&state) || term.form.radicand.states().contains(&state) {
+            return None;
+        }
+        let mut form = term.form.clone();
+        form.scale = scale;
+        noises.push(NoiseTerm {
+            noise: term.noise,
+            form,
+            expr: term.expr.clone(),
+        });
+    }
+    Some(Shape { drift, noises })
+}
+
+/// Splits an affine polynomial into (constant, coefficient per factor); `None` when it
+/// is not affine or mentions a log factor.
+fn affine_parts(poly: &Poly, log: &[bool]) -> Option<(Poly, Vec<Poly>)> {
+    let n = log.len();
+    let mut linear = vec![Poly::zero(); n];
+    let mut constant = Poly::zero();
+    for (key, coefficient) in poly.by_state_monomial() {
+        match key.as_slice() {
+            [] => constant = coefficient,
+            [(j, 1)] if !*log.get(*j)? => *linear.get_mut(*j)? = coefficient,
+            _ => return None,
+        }
+    }
+    Some((constant, linear))
+}
+
+impl AffineSet {
+    /// The affine set of every factor of `model`, or why the model has none.
+    pub fn from_model(model: &Model) -> Result<AffineSet, String> {
+        let n = model.states.len();
+        if n == 0 {
+            return Err("the model declares no factor".to_string());
+        }
+        let corr = model.correlation_matrix();
+        let mut shapes = Vec::with_capacity(n);
+        for i in 0..n {
+            shapes.push(shape_of(model, i).map_err(|_| {
+                format!(
+                    "the equation of {} is not a polynomial in the factors",
+                    name(model, i)
+                )
+            })?);
+        }
+        // A factor whose own squared diffusion is not affine is carried by its logarithm
+        // when its equation is S times something free of S.
+        let mut log = vec![false; n];
+        let mut relative = shapes.clone();
+        for i in 0..n {
+            let Some(shape) = shapes.get(i) else { continue };
+            let own = diffusion_product(&shape.noises, &shape.noises, &corr).ok();
+            let affine_itself =
+                shape.drift.state_degree() <= 1 && own.is_some_and(|p| p.state_degree() <= 1);
+            if affine_itself {
+                continue;
+            }
+            let start = model.states.get(i).map(|s| s.initial).unwrap_or(f64::NAN);
+            match relative_shape(shape, i) {
+                Some(r) if start > 0.0 => {
+                    log[i] = true;
+                    relative[i] = r;
+                }
+                _ => {
+                    return Err(format!(
+                        "{} has neither an affine drift and covariance nor the form \
+                         S·(affine) dt + S·(...) dW with a positive start",
+                        name(model, i)
+                    ))
+                }
+            }
+        }
+        let mut k0 = Vec::with_capacity(n);
+        let mut k1 = Vec::with_capacity(n);
+        let mut h0 = vec![vec![Poly::zero(); n]; n];
+        let mut h1 = vec![vec![vec![Poly::zero(); n]; n]; n];
+        for i in 0..n {
+            let shape = relative.get(i).ok_or("internal: missing shape")?;
+            let mut drift = shape.drift.clone();
+            if log[i] {
+                let squared = diffusion_product(&shape.noises, &shape.noises, &corr)
+                    .map_err(|_| format!("the diffusion of {} is not affine", name(model, i)))?;
+                drift = drift.sub(&squared.scale(0.5));
+            }
+            let (constant, linear) = affine_parts(&drift, &log).ok_or_else(|| {
+                format!(
+                    "the drift of {} is not affine in the factors{}",
+                    name(model, i),
+                    if log[i] { " (in logarithms)" } else { "" }
+                )
+            })?;
+            k0.push(constant);
+            k1.push(linear);
+            for j in 0..n {
+                let other = relative.get(j).ok_or("internal: missing shape")?;
+                let product = diffusion_product(&shape.noises, &other.noises, &corr)
+                    .ok()
+                    .and_then(|p| affine_parts(&p, &log))
+                    .ok_or_else(|| {
+                        format!(
+                            "the instantaneous covariance of {} and {} is not affine in the \
+                             factors",
+                            name(model, i),
+                            name(model, j)
+                        )
+                    })?;
+                h0[i][j] = product.0;
+                for (k, coefficient) in product.1.into_iter().enumerate() {
+                    h1[k][i][j] = coefficient;
+                }
+            }
+        }
+        let x0 = model
+            .states
+            .iter()
+            .zip(&log)
+            .map(|(s, &l)| if l { s.initial.ln() } else { s.initial })
+            .collect();
+        let time_dependent = k0.iter().any(Poly::depends_on_time)
+            || k1.iter().flatten().any(Poly::depends_on_time)
+            || h0.iter().flatten().any(Poly::depends_on_time)
+            || h1.iter().flatten().flatten().any(Poly::depends_on_time);
+        let mut set = AffineSet {
+            n,
+            log,
+            x0,
+            k0,
+            k1,
+            h0,
+            h1,
+            params: model.param_values(),
+            time_dependent,
+            constant: None,
+        };
+        if !time_dependent {
+            let numbers = set.numbers(0.0);
+            if numbers
+                .k0
+                .iter()
+                .chain(&numbers.k1)
+                .chain(&numbers.h0)
+                .chain(&numbers.h1)
+                .any(|v| !v.is_finite())
+            {
+                return Err("a coefficient is not a finite number".to_string());
+            }
+            set.constant = Some(numbers);
+        }
+        Ok(set)
+    }
+
+    fn numbers(&self, t: f64) -> Numbers {
+        let p = &self.params;
+        Numbers {
+            k0: self.k0.iter().map(|c| c.value(p, t)).collect(),
+            k1: self.k1.iter().flatten().map(|c| c.value(p, t)).collect(),
+            h0: self.h0.iter().flatten().map(|c| c.value(p, t)).collect(),
+            h1: self
+                .h1
+                .iter()
+                .flatten()
+                .flatten()
+                .map(|c| c.value(p, t))
+                .collect(),
+        }
+    }
+
+    /// Number of factors.
+    pub fn dimension(&self) -> usize {
+        self.n
+    }
+
+    /// Whether factor `i` is carried by its logarithm.
+    pub fn is_log(&self, i: usize) -> bool {
+        self.log.get(i).copied().unwrap_or(false)
+    }
+
+    /// Whether the coefficients change with t.
+    pub fn time_dependent(&self) -> bool {
+        self.time_dependent
+    }
+
+    /// Whether no factor enters any covariance: the set is Gaussian (in its coordinates).
+    pub fn is_gaussian(&self) -> bool {
+        self.h1.iter().flatten().flatten().all(Poly::is_zero)
+    }
+
+    /// The starting point in the set's coordinates.
+    pub fn start(&self) -> &[f64] {
+        &self.x0
+    }
+
+    /// How [`Self::log_transform`] computes for this rate.
+    pub fn method(&self, rate: &Rate) -> TransformMethod {
+        match self.plan(rate) {
+            Plan::Numeric => TransformMethod::Riccati,
+            _ => TransformMethod::ClosedForm,
+        }
+    }
+
+    fn plan(&self, rate: &Rate) -> Plan {
+        let Some(numbers) = &self.constant else {
+            return Plan::Numeric;
+        };
+        if rate.r1.iter().any(Poly::depends_on_time) {
+            return Plan::Numeric;
+        }
+        if self.is_gaussian() {
+            return Plan::Gaussian;
+        }
+        let (_, r1) = rate.values(&self.params, 0.0);
+        match scalar_structure(self.n, numbers, &r1) {
+            Some(fixed) => Plan::Scalar(fixed),
+            None => Plan::Numeric,
+        }
+    }
+
+    /// log E[exp(u·X_t − ∫₀ᵗ rate ds)] = α(t) + β(t)·X₀ at each of `times` (clock units,
+    /// non-negative). `u` has one entry per factor (on ln X for log factors).
+    pub fn log_transforms(
+        &self,
+        u: &[Complex64],
+        rate: &Rate,
+        times: &[f64],
+    ) -> Vec<Result<Complex64, TransformError>> {
+        if u.len() != self.n {
+            return times
+                .iter()
+                .map(|_| Err(TransformError::Failed("wrong number of arguments".into())))
+                .collect();
+        }
+        if times.iter().any(|t| !(t.is_finite() && *t >= 0.0)) {
+            return times
+                .iter()
+                .map(|_| {
+                    Err(TransformError::Failed(
+                        "a time is negative or not finite".into(),
+                    ))
+                })
+                .collect();
+        }
+        let shift = |t: f64| self.integrated_constant_rate(rate, t);
+        match (self.plan(rate), &self.constant) {
+            (Plan::Gaussian, Some(numbers)) => times
+                .iter()
+                .map(|&t| {
+                    let value = gaussian_log_transform(self, numbers, u, rate, t)?;
+                    Ok(value - shift(t)?)
+                })
+                .collect(),
+            (Plan::Scalar(fixed), Some(numbers)) => {
+                let (_, r1) = rate.values(&self.params, 0.0);
+                times
+                    .iter()
+                    .map(|&t| {
+                        let (alpha, beta) = scalar_solution(self.n, numbers, &r1, &fixed, u, t)?;
+                        Ok(alpha + dot(&beta, &self.x0) - shift(t)?)
+                    })
+                    .collect()
+            }
+            (_, Some(numbers)) if !rate.depends_on_time() => {
+                // Constant coefficients: one integration in τ through every time.
+                let (r0, r1) = rate.values(&self.params, 0.0);
+                let rhs = |_: f64, y: &[f64], dy: &mut [f64]| {
+                    riccati_rhs(self.n, numbers, r0, &r1, y, dy)
+                };
+                let mut order: Vec<usize> = (0..times.len()).collect();
+                order.sort_by(|a, b| times[*a].total_cmp(&times[*b]));
+                let sorted: Vec<f64> = order.iter().map(|&i| times[i]).collect();
+                let mut out = vec![Err(TransformError::Explodes); times.len()];
+                let start = pack(u);
+                // Integrate one stop at a time so that a blow-up only affects later times.
+                let mut state = start;
+                let mut current = 0.0;
+                for (slot, &t) in order.iter().zip(&sorted) {
+                    match ode::integrate(rhs, &state, current, t, RICCATI_RTOL, RICCATI_ATOL) {
+                        Ok(y) if exploded(&y) => break,
+                        Ok(y) => {
+                            out[*slot] = Ok(self.finish(&y));
+                            state = y;
+                            current = t;
+                        }
+                        Err(_) => break,
+                    }
+                }
+                out
+            }
+            _ => times
+                .iter()
+                .map(|&t| self.log_transform_backward(u, rate, t))
+                .collect(),
+        }
+    }
+
+    /// One transform, see [`Self::log_transforms`].
+    pub fn log_transform(
+        &self,
+        u: &[Complex64],
+        rate: &Rate,
+        t: f64,
+    ) -> Result<Complex64, TransformError> {
+        self.log_transforms(u, rate, &[t])
+            .pop()
+            .unwrap_or(Err(TransformError::Failed("no time".into())))
+    }
+
+    /// −∫₀ᵗ ρ₀(s) ds is subtracted here for the closed forms (which work without ρ₀).
+    fn integrated_constant_rate(&self, rate: &Rate, t: f64) -> Result<Complex64, TransformError> {
+        if rate.r0.is_zero() {
+            return Ok(Complex64::new(0.0, 0.0));
+        }
+        if !rate.r0.depends_on_time() {
+            return Ok(Complex64::new(rate.r0.value(&self.params, 0.0) * t, 0.0));
+        }
+        ode::quad(|s| rate.r0.value(&self.params, s), 0.0, t, 1e-13)
+            .map(|v| Complex64::new(v, 0.0))
+            .map_err(|e| TransformError::Failed(e.to_string()))
+    }
+
+    /// Time-dependent coefficients: integrate τ from 0 to t with calendar time t − τ.
+    fn log_transform_backward(
+        &self,
+        u: &[Complex64],
+        rate: &Rate,
+        t: f64,
+    ) -> Result<Complex64, TransformError> {
+        let rhs = |tau: f64, y: &[f64], dy: &mut [f64]| {
+            let s = t - tau;
+            let numbers = match &self.constant {
+                Some(numbers) => numbers.clone(),
+                None => self.numbers(s),
+            };
+            let (r0, r1) = rate.values(&self.params, s);
+            riccati_rhs(self.n, &numbers, r0, &r1, y, dy)
+        };
+        match ode::integrate(rhs, &pack(u), 0.0, t, RICCATI_RTOL, RICCATI_ATOL) {
+            Ok(y) if exploded(&y) => Err(TransformError::Explodes),
+            Ok(y) => Ok(self.finish(&y)),
+            Err(ode::OdeError::InvalidInput(why)) => Err(TransformError::Failed(why)),
+            Err(_) => Err(TransformError::Explodes),
+        }
+    }
+
+    fn finish(&self, y: &[f64]) -> Complex64 {
+        let (beta, alpha) = unpack(y, self.n);
+        alpha + dot(&beta, &self.x0)
+    }
+
+    /// The first time (clock units, up to `limit`) at which E[exp(u·X_t)] becomes
+    /// infinite, for real `u` and constant coefficients; `None` when it stays finite up
+    /// to `limit` or the coefficients change with time.
+    ///
+    /// The Riccati solution is followed until |β| reaches 10⁸, the crossing found by
+    /// bisection, and the rest of the way to the pole taken from β′ ≈ q|β|² near it
+    /// (Andersen & Piterbarg 2007, Finance and Stochastics 11, §3).
+    pub fn explosion_time(&self, u: &[f64], limit: f64) -> Option<f64> {
+        let numbers = self.constant.as_ref()?;
+        if u.len() != self.n || !(limit.is_finite() && limit > 0.0) {
+            return None;
+        }
+        let zero = vec![0.0; self.n];
+        let rhs =
+            |_: f64, y: &[f64], dy: &mut [f64]| riccati_rhs(self.n, numbers, 0.0, &zero, y, dy);
+        let complex: Vec<Complex64> = u.iter().map(|v| Complex64::new(*v, 0.0)).collect();
+        let size = |y: &[f64]| {
+            unpack(y, self.n)
+                .0
+                .iter()
+                .map(|b| b.norm_sqr())
+                .sum::<f64>()
+                .sqrt()
+        };
+        let mut state = pack(&complex);
+        let mut current = 0.0;
+        let grid = 256;
+        let step = limit / grid as f64;
+        let mut upper = None;
+        for k in 1..=grid {
+            let t = step * k as f64;
+            match ode::integrate(rhs, &state, current, t, RICCATI_RTOL, RICCATI_ATOL) {
+                Ok(y) if size(&y) < EXPLOSION_SIZE && y.iter().all(|v| v.is_finite()) => {
+                    state = y;
+                    current = t;
+                }
+                _ => {
+                    upper = Some(t);
+                    break;
+                }
+            }
+        }
+        let mut high = upper?;
+        for _ in 0..80 {
+            let middle = 0.5 * (current + high);
+            if middle <= current || middle >= high {
+                break;
+            }
+            match ode::integrate(rhs, &state, current, middle, RICCATI_RTOL, RICCATI_ATOL) {
+                Ok(y) if size(&y) < EXPLOSION_SIZE && y.iter().all(|v| v.is_finite()) => {
+                    state = y;
+                    current = middle;
+                }
+                _ => high = middle,
+            }
+        }
+        // β′ ≈ Q(β) near the pole; along the direction e of β, r′ ≈ (e·Q(e)) r².
+        let (beta, _) = unpack(&state, self.n);
+        let r = size(&state);
+        if r == 0.0 {
+            return Some(current);
+        }
+        let direction: Vec<f64> = beta.iter().map(|b| b.re / r).collect();
+        let mut growth = 0.0;
+        for k in 0..self.n {
+            let mut quadratic = 0.0;
+            for i in 0..self.n {
+                for j in 0..self.n {
+                    quadratic += direction[i]
+                        * numbers.h1[k * self.n * self.n + i * self.n + j]
+                        * direction[j];
+                }
+            }
+            growth += direction[k] * 0.5 * quadratic;
+        }
+        if growth > 0.0 {
+            Some(current + 1.0 / (growth * r))
+        } else {
+            Some(current)
+        }
+    }
+}
+
+fn name(model: &Model, i: usize) -> String {
+    model
+        .states
+        .get(i)
+        .map(|s| s.name.clone())
+        .unwrap_or_else(|| format!("factor {}", i + 1))
+}
+
+fn dot(beta: &[Complex64], x: &[f64]) -> Complex64 {
+    beta.iter().zip(x).map(|(b, x)| b * x).sum()
+}
+
+fn pack(u: &[Complex64]) -> Vec<f64> {
+    let mut y = Vec::with_capacity(2 * u.len() + 2);
+    for v in u {
+        y.push(v.re);
+        y.push(v.im);
+    }
+    y.push(0.0);
+    y.push(0.0);
+    y
+}
+
+fn unpack(y: &[f64], n: usize) -> (Vec<Complex64>, Complex64) {
+    let at = |k: usize| y.get(k).copied().unwrap_or(f64::NAN);
+    let beta = (0..n)
+        .map(|i| Complex64::new(at(2 * i), at(2 * i + 1)))
+        .collect();
+    (beta, Complex64::new(at(2 * n), at(2 * n + 1)))
+}
+
+fn exploded(y: &[f64]) -> bool {
+    y.iter().any(|v| !v.is_finite() || v.abs() > 1e300)
+}
+
+/// The Riccati right-hand side on packed (Re, Im) pairs: β then α.
+fn riccati_rhs(n: usize, c: &Numbers, r0: f64, r1: &[f64], y: &[f64], dy: &mut [f64]) {
+    let beta = |i: usize| {
+        Complex64::new(
+            y.get(2 * i).copied().unwrap_or(f64::NAN),
+            y.get(2 * i + 1).copied().unwrap_or(f64::NAN),
+        )
+    };
+    let mut write = |k: usize, v: Complex64| {
+        if let Some(slot) = dy.get_mut(2 * k) {
+            *slot = v.re;
+        }
+        if let Some(slot) = dy.get_mut(2 * k + 1) {
+            *slot = v.im;
+        }
+    };
+    let get = |v: &[f64], k: usize| v.get(k).copied().unwrap_or(f64::NAN);
+    for k in 0..n {
+        let mut total = Complex64::new(-get(r1, k), 0.0);
+        for i in 0..n {
+            let bi = beta(i);
+            total += get(&c.k1, i * n + k) * bi;
+            let mut row = Complex64::new(0.0, 0.0);
+            for j in 0..n {
+                let h = get(&c.h1, k * n * n + i * n + j);
+                if h != 0.0 {
+                    row += h * beta(j);
+                }
+            }
+            total += 0.5 * bi * row;
+        }
+        write(k, total);
+    }
+    let mut alpha = Complex64::new(-r0, 0.0);
+    for i in 0..n {
+        let bi = beta(i);
+        alpha += get(&c.k0, i) * bi;
+        for j in 0..n {
+            let h = get(&c.h0, i * n + j);
+            if h != 0.0 {
+                alpha += 0.5 * h * bi * beta(j);
+            }
+        }
+    }
+    write(n, alpha);
+}
+
+/// How a transform is computed.
+#[derive(Clone, Debug, PartialEq)]
+enum Plan {
+    Gaussian,
+    /// Which β are fixed at u (their equation is identically zero).
+    Scalar(Vec<bool>),
+    Numeric,
+}
+
+/// The fixed components, when every other β_j has a scalar Riccati equation with
+/// constant coefficients and α needs only ∫β_j and ∫β_j².
+fn scalar_structure(n: usize, c: &Numbers, r1: &[f64]) -> Option<Vec<bool>> {
+    let h1 = |k: usize, i: usize, j: usize| c.h1[k * n * n + i * n + j];
+    let fixed: Vec<bool> = (0..n)
+        .map(|j| {
+            (0..n).all(|i| c.k1[i * n + j] == 0.0)
+                && (0..n).all(|i| (0..n).all(|l| h1(j, i, l) == 0.0))
+                && r1.get(j).copied().unwrap_or(0.0) == 0.0
+        })
+        .collect();
+    for j in (0..n).filter(|&j| !fixed[j]) {
+        for i in (0..n).filter(|&i| !fixed[i] && i != j) {
+            if c.k1[i * n + j] != 0.0 || c.h0[i * n + j] != 0.0 {
+                return None;
+            }
+            for l in 0..n {
+                if h1(j, i, l) != 0.0 || h1(j, l, i) != 0.0 {
+                    return None;
+                }
+            }
+        }
+        if h1(j, j, j) == 0.0 && c.h0[j * n + j] != 0.0 {
+            return None;
+        }
+    }
+    Some(fixed)
+}
+
+/// (α, β) at τ = t for the scalar structure.
+fn scalar_solution(
+    n: usize,
+    c: &Numbers,
+    r1: &[f64],
+    fixed: &[bool],
+    u: &[Complex64],
+    t: f64,
+) -> Result<(Complex64, Vec<Complex64>), TransformError> {
+    let h1 = |k: usize, i: usize, j: usize| c.h1[k * n * n + i * n + j];
+    let zero = Complex64::new(0.0, 0.0);
+    let mut beta = u.to_vec();
+    let mut alpha = zero;
+    // The fixed part of α: K0·u + ½ uᵀH0u over the fixed components, times t.
+    for i in (0..n).filter(|&i| fixed[i]) {
+        alpha += c.k0[i] * u[i] * t;
+        for l in (0..n).filter(|&l| fixed[l]) {
+            alpha += 0.5 * c.h0[i * n + l] * u[i] * u[l] * t;
+        }
+    }
+    for j in (0..n).filter(|&j| !fixed[j]) {
+        let a = 0.5 * h1(j, j, j);
+        let mut b = Complex64::new(c.k1[j * n + j], 0.0);
+        let mut c0 = Complex64::new(-r1.get(j).copied().unwrap_or(0.0), 0.0);
+        for k in (0..n).filter(|&k| fixed[k]) {
+            b += 0.5 * (h1(j, j, k) + h1(j, k, j)) * u[k];
+            c0 += c.k1[k * n + j] * u[k];
+            for l in (0..n).filter(|&l| fixed[l]) {
+                c0 += 0.5 * u[k] * h1(j, k, l) * u[l];
+            }
+        }
+        let (value, integral) =
+            scalar_riccati(a, b, c0, u[j], t).ok_or(TransformError::Explodes)?;
+        let mut linear = Complex64::new(c.k0[j], 0.0);
+        for k in (0..n).filter(|&k| fixed[k]) {
+            linear += 0.5 * (c.h0[j * n + k] + c.h0[k * n + j]) * u[k];
+        }
+        alpha += linear * integral;
+        let hjj = c.h0[j * n + j];
+        if hjj != 0.0 {
+            // ∫β² from the equation itself: a∫β² = β(t) − β(0) − b∫β − c t.
+            let square = (value - u[j] - b * integral - c0 * t) / a;
+            alpha += 0.5 * hjj * square;
+        }
+        beta[j] = value;
+    }
+    if !alpha.is_finite() || beta.iter().any(|b| !b.is_finite()) {
+        return Err(TransformError::Explodes);
+    }
+    Ok((alpha, beta))
+}
+
+/// β′ = aβ² + bβ + c from β(0) = β₀: (β(t), ∫₀ᵗ β). `None` when the solution has a pole
+/// in [0, t].
+pub(crate) fn scalar_riccati(
+    a: f64,
+    b: Complex64,
+    c: Complex64,
+    beta0: Complex64,
+    t: f64,
+) -> Option<(Complex64, Complex64)> {
+    if a == 0.0 {
+        // Linear: β = β₀ e^{bt} + c (e^{bt} − 1)/b.
+        let bt = b * t;
+        let growth = bt.exp();
+        let phi = if bt.norm() < 1e-8 {
+            t * (1.0 + bt / 2.0 + bt * bt / 6.0)
+        } else {
+            (growth - 1.0) / b
+        };
+        let value = beta0 * growth + c * phi;
+        let integral = if bt.norm() < 1e-5 {
+            beta0 * phi + c * t * t * (0.5 + bt / 6.0 + bt * bt / 24.0)
+        } else {
+            beta0 * phi + c * (phi - t) / b
+        };
+        return Some((value, integral));
+    }
+    let mut d = (b * b - 4.0 * a * c).sqrt();
+    if d.re > 0.0 {
+        d = -d;
+    }
+    if d.norm() < 1e-300 {
+        // Double root r: 1/(β − r) = 1/(β₀ − r) − a t.
+        let r = -b / (2.0 * a);
+        let inverse = 1.0 / (beta0 - r) - a * t;
+        let value = r + 1.0 / inverse;
+        let integral = r * t - (1.0 - a * t * (beta0 - r)).ln() / a;
+        return (value.is_finite() && integral.is_finite()).then_some((value, integral));
+    }
+    let plus = (-b + d) / (2.0 * a);
+    let minus = (-b - d) / (2.0 * a);
+    let gap = beta0 - minus;
+    if gap.norm() <= 1e-15 * (minus.norm() + 1e-300) {
+        return Some((minus, minus * t));
+    }
+    let z0 = (beta0 - plus) / gap;
+    let decay = (d * t).exp();
+    let denominator = 1.0 - z0 * decay;
+    let real = beta0.im == 0.0 && b.im == 0.0 && c.im == 0.0;
+    let discriminant = (b * b - 4.0 * a * c).re;
+    if real && discriminant >= 0.0 && z0.re > 1.0 {
+        // Real roots: the denominator vanishes at e^{dτ} = 1/z0, a pole at −ln(z0)/d.
+        if -z0.re.ln() / d.re <= t {
+            return None;
+        }
+    }
+    if real && discriminant < 0.0 {
+        // Complex-conjugate roots of a real equation: β = −b/(2a) + (ω/a) tan(ωτ + θ₀)
+        // with ω = √(4ac − b²)/2, which has a pole at (π/2 − θ₀)/ω.
+        let omega = (-discriminant).sqrt() / 2.0;
+        let start = ((beta0.re + b.re / (2.0 * a)) * a / omega).atan();
+        if (std::f64::consts::FRAC_PI_2 - start) / omega <= t {
+            return None;
+        }
+    }
+    let value = (plus - minus * z0 * decay) / denominator;
+    let integral = plus * t - (denominator / (1.0 - z0)).ln() / a;
+    (value.is_finite() && integral.is_finite()).then_some((value, integral))
+}
+
+/// The Gaussian set: the vector (X_t, ∫ρ₁·X) is Gaussian with mean and covariance from
+/// the matrix exponential (Van Loan 1978), and log E[e^{w·Z}] = w·m + ½ wᵀPw with
+/// w = (u, −1), exact for complex u.
+fn gaussian_log_transform(
+    set: &AffineSet,
+    c: &Numbers,
+    u: &[Complex64],
+    rate: &Rate,
+    t: f64,
+) -> Result<Complex64, TransformError> {
+    let n = set.n;
+    let (_, r1) = rate.values(&set.params, 0.0);
+    let size = n + 1;
+    let a = DMatrix::from_fn(size, size, |i, j| {
+        if i < n && j < n {
+            c.k1[i * n + j]
+        } else if i == n && j < n {
+            r1[j]
+        } else {
+            0.0
+        }
+    });
+    let b = DVector::from_fn(size, |i, _| if i < n { c.k0[i] } else { 0.0 });
+    let loadings = DMatrix::from_fn(size, n, |i, j| if i == j { 1.0 } else { 0.0 });
+    let covariance = DMatrix::from_fn(n, n, |i, j| c.h0[i * n + j]);
+    let system = AffineGaussian::new(a, b, loadings, covariance).map_err(TransformError::Failed)?;
+    let mut start = set.x0.clone();
+    start.push(0.0);
+    let mean = system.mean_at(&DVector::from_vec(start), t);
+    let p = system.covariance_at(t);
+    let w: Vec<Complex64> = u
+        .iter()
+        .copied()
+        .chain([Complex64::new(-1.0, 0.0)])
+        .collect();
+    let mut value = Complex64::new(0.0, 0.0);
+    for i in 0..size {
+        value += w[i] * mean[i];
+        for j in 0..size {
+            value += 0.5 * w[i] * p[(i, j)] * w[j];
+        }
+    }
+    if value.is_finite() {
+        Ok(value)
+    } else {
+        Err(TransformError::Failed(
+            "the Gaussian figures are not finite".into(),
+        ))
+    }
+}
+
+#[cfg(test)]
+mod tests;

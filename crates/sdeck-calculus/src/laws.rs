@@ -1,0 +1,391 @@
+//! Whole laws of single factors at one time: distribution function and quantiles.
+//!
+//! Normal for Gaussian factors, lognormal for geometric ones (and for a price whose log is
+//! Gaussian), the scaled noncentral chi-square of a square-root factor (Cox, Ingersoll &
+//! Ross 1985, eq. 18), and for every other factor of an affine set, Fourier inversion of
+//! the characteristic function from the transform engine (Gil-Pelaez 1951, Biometrika 38):
+//!
+//! P(Z ≤ z) = ½ − (1/π) ∫₀^∞ Im(e^{−iωz} φ(ω)) / ω dω.
+
+use crate::affine::{AffineSet, Rate, TransformError};
+use crate::one_state::{mean_variance, square_root_transition};
+use crate::{analyse, noncentral, ode, Derivation, Family};
+use num_complex::Complex64;
+use sdeck_semantics::Model;
+use statrs::distribution::{ContinuousCDF, Normal};
+
+/// Which law a factor follows at a time.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum LawKind {
+    Normal,
+    Lognormal,
+    NoncentralChiSquare,
+    /// Known through its characteristic function only.
+    Fourier,
+}
+
+impl LawKind {
+    /// The name used in every output.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            LawKind::Normal => "normal",
+            LawKind::Lognormal => "lognormal",
+            LawKind::NoncentralChiSquare => "noncentral-chi-square",
+            LawKind::Fourier => "fourier",
+        }
+    }
+}
+
+#[derive(Clone, Debug)]
+enum Shape {
+    /// X ~ Normal(mean, sd²).
+    Normal { mean: f64, sd: f64 },
+    /// X = sign·exp(Normal(location, spread²)).
+    Lognormal {
+        location: f64,
+        spread: f64,
+        negative: bool,
+    },
+    /// X = Y / scale, Y ~ χ'²(degrees, noncentrality).
+    NoncentralChiSquare {
+        degrees: f64,
+        noncentrality: f64,
+        scale: f64,
+    },
+    /// Z = X (or ln X when `log`) with characteristic function from the transform.
+    Fourier {
+        set: Box<AffineSet>,
+        factor: usize,
+        log: bool,
+        t: f64,
+        mean: f64,
+        sd: f64,
+    },
+    /// X_t is the constant x (t = 0 or no noise).
+    Point(f64),
+}
+
+/// The law of one factor at one time.
+#[derive(Clone, Debug)]
+pub struct Law {
+    kind: LawKind,
+    shape: Shape,
+}
+
+fn standard() -> Option<Normal> {
+    Normal::new(0.0, 1.0).ok()
+}
+
+/// The law of factor `state` at time `t` (clock units), when it is known.
+pub fn law_of(model: &Model, derivation: &Derivation, state: usize, t: f64) -> Option<Law> {
+    if !(t.is_finite() && t >= 0.0) {
+        return None;
+    }
+    let x0 = model.states.get(state)?.initial;
+    if t == 0.0 {
+        return Some(Law {
+            kind: LawKind::Normal,
+            shape: Shape::Point(x0),
+        });
+    }
+    let analysis = analyse(model);
+    let params = &analysis.params;
+    if let Some((os, family)) = analysis.one_state(state) {
+        let gaussian = matches!(
+            family,
+            Family::ArithmeticBrownian | Family::OrnsteinUhlenbeck
+        ) || (family == Family::Linear && !os.state_dependent_noise());
+        if gaussian {
+            let mv = mean_variance(os, family, params, x0, t)?;
+            return Some(normal(mv.mean, mv.variance));
+        }
+        if family == Family::GeometricBrownian && !os.time_dependent {
+            if x0 == 0.0 {
+                return Some(Law {
+                    kind: LawKind::Lognormal,
+                    shape: Shape::Point(0.0),
+                });
+            }
+            // ln(X_t / x0) ~ Normal((b − γ/2) t, γ t) (Glasserman 2004, §3.2.1).
+            let v = os.values(params, 0.0);
+            return Some(Law {
+                kind: LawKind::Lognormal,
+                shape: Shape::Lognormal {
+                    location: x0.abs().ln() + (v.b - v.gamma / 2.0) * t,
+                    spread: (v.gamma * t).max(0.0).sqrt(),
+                    negative: x0 < 0.0,
+                },
+            });
+        }
+        if family == Family::SquareRoot && !os.time_dependent {
+            let law = square_root_transition(os, params, x0, t)?;
+            return Some(Law {
+                kind: LawKind::NoncentralChiSquare,
+                shape: Shape::NoncentralChiSquare {
+                    degrees: law.degrees,
+                    noncentrality: law.noncentrality,
+                    scale: law.scale,
+                },
+            });
+        }
+    }
+    if derivation.system_family == Family::LinearSystem {
+        let moments = crate::moments_at(model, derivation, t);
+        let mean = (*moments.mean.get(state)?)?;
+        let variance = (*moments.variance.get(state)?)?;
+        return Some(normal(mean, variance));
+    }
+    let set = AffineSet::from_model(model).ok()?;
+    let log = set.is_log(state);
+    let rate = Rate::zero(&set);
+    let transform = |u: Complex64| -> Result<Complex64, TransformError> {
+        let mut argument = vec![Complex64::new(0.0, 0.0); set.dimension()];
+        argument[state] = u;
+        set.log_transform(&argument, &rate, t)
+    };
+    if set.is_gaussian() {
+        // log E[e^{uZ}] = u m + ½u² v, so L(1) + L(−1) = v and L(1) − L(−1) = 2m.
+        let up = transform(Complex64::new(1.0, 0.0)).ok()?.re;
+        let down = transform(Complex64::new(-1.0, 0.0)).ok()?.re;
+        let (mean, variance) = ((up - down) / 2.0, up + down);
+        if log {
+            return Some(Law {
+                kind: LawKind::Lognormal,
+                shape: Shape::Lognormal {
+                    location: mean,
+                    spread: variance.max(0.0).sqrt(),
+                    negative: false,
+                },
+            });
+        }
+        return Some(normal(mean, variance));
+    }
+    // Cumulants from the transform at small imaginary arguments: L(ih) ≈ iκ₁h − κ₂h²/2.
+    let mut h = 1e-3;
+    let mut mean = f64::NAN;
+    let mut sd = f64::NAN;
+    for _ in 0..2 {
+        let value = transform(Complex64::new(0.0, h)).ok()?;
+        mean = value.im / h;
+        sd = (-2.0 * value.re / (h * h)).max(0.0).sqrt();
+        if !(sd > 0.0 && sd.is_finite()) {
+            return None;
+        }
+        h = 1e-3 / sd;
+    }
+    Some(Law {
+        kind: LawKind::Fourier,
+        shape: Shape::Fourier {
+            set: Box::new(set),
+            factor: state,
+            log,
+            t,
+            mean,
+            sd,
+        },
+    })
+}
+
+fn normal(mean: f64, variance: f64) -> Law {
+    let sd = variance.max(0.0).sqrt();
+    Law {
+        kind: LawKind::Normal,
+        shape: if sd == 0.0 {
+            Shape::Point(mean)
+        } else {
+            Shape::Normal { mean, sd }
+        },
+    }
+}
+
+impl Law {
+    pub fn kind(&self) -> LawKind {
+        self.kind
+    }
+
+    /// P(X ≤ x).
+    pub fn cdf(&self, x: f64) -> Option<f64> {
+        if x.is_nan() {
+            return None;
+        }
+        let z = standard()?;
+        let p = match &self.shape {
+            Shape::Point(value) => f64::from(u8::from(x >= *value)),
+            Shape::Normal { mean, sd } => z.cdf((x - mean) / sd),
+            Shape::Lognormal {
+                location,
+                spread,
+                negative,
+            } => {
+                let below = |y: f64| {
+                    if y <= 0.0 {
+                        0.0
+                    } else if *spread == 0.0 {
+                        f64::from(u8::from(y.ln() >= *location))
+                    } else {
+                        z.cdf((y.ln() - location) / spread)
+                    }
+                };
+                if *negative {
+                    1.0 - below(-x)
+                } else {
+                    below(x)
+                }
+            }
+            Shape::NoncentralChiSquare {
+                degrees,
+                noncentrality,
+                scale,
+            } => {
+                if x <= 0.0 {
+                    0.0
+                } else {
+                    noncentral::cdf(x * scale, *degrees, *noncentrality)
+                }
+            }
+            Shape::Fourier { log, .. } => {
+                if *log && x <= 0.0 {
+                    0.0
+                } else {
+                    self.fourier_cdf(if *log { x.ln() } else { x })?
+                }
+            }
+        };
+        p.is_finite().then_some(p.clamp(0.0, 1.0))
+    }
+
+    /// The x with P(X ≤ x) = p, 0 < p < 1.
+    pub fn quantile(&self, p: f64) -> Option<f64> {
+        if !(p > 0.0 && p < 1.0) {
+            return None;
+        }
+        let z = standard()?;
+        match &self.shape {
+            Shape::Point(value) => Some(*value),
+            Shape::Normal { mean, sd } => Some(mean + sd * z.inverse_cdf(p)),
+            Shape::Lognormal {
+                location,
+                spread,
+                negative,
+            } => {
+                let q = if *negative { 1.0 - p } else { p };
+                let value = (location + spread * z.inverse_cdf(q)).exp();
+                Some(if *negative { -value } else { value })
+            }
+            Shape::NoncentralChiSquare {
+                degrees,
+                noncentrality,
+                scale,
+            } => noncentral::quantile(p, *degrees, *noncentrality).map(|y| y / scale),
+            Shape::Fourier { mean, sd, log, .. } => {
+                let target = |v: f64| self.fourier_cdf(v).map(|c| c - p);
+                let value = solve_increasing(target, *mean, *sd)?;
+                Some(if *log { value.exp() } else { value })
+            }
+        }
+    }
+
+    /// P(Z ≤ z) for the Fourier law, on the coordinate Z (X or ln X).
+    fn fourier_cdf(&self, z: f64) -> Option<f64> {
+        let Shape::Fourier {
+            set,
+            factor,
+            t,
+            sd,
+            mean,
+            ..
+        } = &self.shape
+        else {
+            return None;
+        };
+        let rate = Rate::zero(set);
+        let size = set.dimension();
+        // In the scaled frequency s = ω·sd the integrand decays on a scale of one.
+        let integrand = |s: f64| -> f64 {
+            if s == 0.0 {
+                // Im(e^{−iωz} φ(ω))/ω → E[Z] − z as ω → 0.
+                return (mean - z) / sd;
+            }
+            let omega = s / sd;
+            let mut u = vec![Complex64::new(0.0, 0.0); size];
+            if let Some(slot) = u.get_mut(*factor) {
+                *slot = Complex64::new(0.0, omega);
+            }
+            match set.log_transform(&u, &rate, *t) {
+                Ok(l) => (l - Complex64::new(0.0, omega * z)).exp().im / s,
+                Err(_) => f64::NAN,
+            }
+        };
+        let mut total = 0.0;
+        let mut low = 0.0;
+        let mut high = 1.0;
+        for _ in 0..40 {
+            let piece = ode::quad(integrand, low, high, 1e-12)
+                .or_else(|_| ode::quad(integrand, low, high, 1e-9))
+                .ok()?;
+            total += piece;
+            let tail = integrand(high).abs() * high;
+            if tail < 1e-13 && piece.abs() < 1e-11 {
+                let p = 0.5 - total / std::f64::consts::PI;
+                return p.is_finite().then_some(p);
+            }
+            low = high;
+            high *= 2.0;
+        }
+        None
+    }
+}
+
+/// A root of an increasing function near `guess` with scale `scale`: bracket, then
+/// bisection with secant steps (Illinois).
+fn solve_increasing<F: Fn(f64) -> Option<f64>>(f: F, guess: f64, scale: f64) -> Option<f64> {
+    let mut low = guess - scale;
+    let mut high = guess + scale;
+    let mut f_low = f(low)?;
+    let mut f_high = f(high)?;
+    let mut widen = 0;
+    while f_low > 0.0 && widen < 60 {
+        high = low;
+        f_high = f_low;
+        low -= scale * 2f64.powi(widen);
+        f_low = f(low)?;
+        widen += 1;
+    }
+    while f_high < 0.0 && widen < 120 {
+        low = high;
+        f_low = f_high;
+        high += scale * 2f64.powi(widen - 60);
+        f_high = f(high)?;
+        widen += 1;
+    }
+    if f_low > 0.0 || f_high < 0.0 {
+        return None;
+    }
+    let mut side = 0;
+    for _ in 0..100 {
+        let mut x = (low * f_high - high * f_low) / (f_high - f_low);
+        if !(x > low && x < high) {
+            x = 0.5 * (low + high);
+        }
+        let fx = f(x)?;
+        if fx.abs() < 1e-13 || (high - low) < 1e-13 * (1.0 + x.abs()) {
+            return Some(x);
+        }
+        if fx < 0.0 {
+            low = x;
+            f_low = fx;
+            if side == -1 {
+                f_high /= 2.0;
+            }
+            side = -1;
+        } else {
+            high = x;
+            f_high = fx;
+            if side == 1 {
+                f_low /= 2.0;
+            }
+            side = 1;
+        }
+    }
+    Some(0.5 * (low + high))
+}
