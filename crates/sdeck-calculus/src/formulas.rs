@@ -408,7 +408,7 @@ fn linear_formulas(
         Some(format!("{x_t} = {}", sum(&parts)))
     } else if family == Family::Linear {
         // Kloeden & Platen 1992, §4.2, eq. (2.4): the fundamental solution Φ.
-        let corr = w.model.correlation_matrix();
+        let corr = w.model.correlations();
         let mut cross = Poly::zero();
         for (k, c, _) in terms {
             for (l, _, d) in terms {

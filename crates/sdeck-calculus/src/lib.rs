@@ -187,14 +187,14 @@ pub struct Moments {
 
 /// The structural analysis shared by every entry point.
 pub(crate) struct Analysis {
-    pub corr: Vec<Vec<f64>>,
+    pub corr: sdeck_semantics::Correlations,
     pub classified: Vec<Classified>,
     pub system: SystemShape,
     pub params: Vec<f64>,
 }
 
 pub(crate) fn analyse(model: &Model) -> Analysis {
-    let corr = model.correlation_matrix();
+    let corr = model.correlations();
     let classified: Vec<Classified> = (0..model.states.len())
         .map(|i| classify_state(model, i, &corr))
         .collect();

@@ -380,6 +380,11 @@ pub fn matrix_exponential(m: &DMatrix<f64>) -> DMatrix<f64> {
     if norm == 0.0 {
         return DMatrix::identity(n, n);
     }
+    if !norm.is_finite() {
+        // Finite entries whose sum overflows: the scaling exponent would saturate and
+        // the squaring loop run 2^31 times. No figure can come out finite anyway.
+        return nan_matrix(n, n);
+    }
     let identity = DMatrix::<f64>::identity(n, n);
     let (u, v, squarings) = if norm <= THETA_9 {
         let a2 = m * m;
@@ -419,6 +424,10 @@ pub fn matrix_exponential(m: &DMatrix<f64>) -> DMatrix<f64> {
     for _ in 0..squarings {
         result.mul_to(&result, &mut scratch);
         std::mem::swap(&mut result, &mut scratch);
+        if !result.iter().all(|v| v.is_finite()) {
+            // Overflowed: squaring again changes nothing but the time taken.
+            return nan_matrix(n, n);
+        }
     }
     result
 }
@@ -515,6 +524,14 @@ mod tests {
         // Finishes (overflow to non-finite values is the honest answer).
         let _ = matrix_exponential(&huge);
         assert!(eigenvalues(&infinite).iter().all(|(re, _)| re.is_nan()));
+    }
+
+    #[test]
+    fn a_one_norm_that_overflows_ends_at_once_with_nan() {
+        // Every entry is finite but each column sums past f64::MAX: the scaling exponent
+        // once saturated to i32::MAX and the squaring loop ran for minutes.
+        let m = DMatrix::from_row_slice(2, 2, &[-1e308, 1e308, 1e308, -1e308]);
+        assert!(matrix_exponential(&m).iter().all(|v| v.is_nan()));
     }
 
     #[test]

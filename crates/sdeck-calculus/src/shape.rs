@@ -5,7 +5,7 @@ use crate::algebra::{
     show_expr, show_poly, to_poly, to_root_form, Names, NotPolynomial, Poly, RootForm,
 };
 use crate::Family;
-use sdeck_semantics::{Expr, Model};
+use sdeck_semantics::{Correlations, Expr, Model};
 
 /// One diffusion term, normalised.
 #[derive(Clone, Debug)]
@@ -108,14 +108,8 @@ pub(crate) fn noise_name(model: &Model, noise: usize) -> String {
 }
 
 /// Correlation of two noises, 1 on the diagonal, 0 when unknown.
-pub(crate) fn correlation(corr: &[Vec<f64>], k: usize, l: usize) -> f64 {
-    if k == l {
-        return 1.0;
-    }
-    corr.get(k)
-        .and_then(|row| row.get(l))
-        .copied()
-        .unwrap_or(0.0)
+pub(crate) fn correlation(corr: &Correlations, k: usize, l: usize) -> f64 {
+    corr.get(k, l)
 }
 
 /// Σ_kl ρ_kl g_k h_l, the instantaneous covariance rate of two diffusions, when it is a
@@ -123,7 +117,7 @@ pub(crate) fn correlation(corr: &[Vec<f64>], k: usize, l: usize) -> f64 {
 pub(crate) fn diffusion_product(
     first: &[NoiseTerm],
     second: &[NoiseTerm],
-    corr: &[Vec<f64>],
+    corr: &Correlations,
 ) -> Result<Poly, Expr> {
     let mut total = Poly::zero();
     for g in first {
@@ -199,7 +193,7 @@ pub(crate) fn unresolved_reason(model: &Model, why: &Unresolved) -> String {
 }
 
 /// Classifies state `index` on its own.
-pub(crate) fn classify_state(model: &Model, index: usize, corr: &[Vec<f64>]) -> Classified {
+pub(crate) fn classify_state(model: &Model, index: usize, corr: &Correlations) -> Classified {
     let depends_on = mentioned_states(model, index);
     let shape = match shape_of(model, index) {
         Ok(s) => s,
@@ -404,7 +398,7 @@ pub(crate) struct SystemShape {
 pub(crate) fn classify_system(
     model: &Model,
     states: &[Classified],
-    corr: &[Vec<f64>],
+    corr: &Correlations,
 ) -> SystemShape {
     let n = model.states.len();
     if n == 0 {

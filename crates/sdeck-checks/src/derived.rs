@@ -600,26 +600,20 @@ fn correlation_not_psd(model: &Model, out: &mut Vec<Diagnostic>) {
     let Some(first) = model.correlations.first() else {
         return;
     };
-    let rows = model.correlation_matrix();
-    let n = rows.len();
-    if n < 2 {
-        return;
+    // The matrix is block diagonal: ones for the uncorrelated noises and one block per
+    // group of correlated noises. Its eigenvalues are those of the blocks, so only the
+    // blocks are decomposed (thousands of noises with one `corr` cost nothing).
+    let correlations = model.correlations();
+    let mut smallest = f64::INFINITY;
+    for block in correlations.blocks() {
+        let n = block.len();
+        let matrix = DMatrix::from_fn(n, n, |r, c| correlations.get(block[r], block[c]));
+        if matrix.iter().any(|v| !v.is_finite()) {
+            return;
+        }
+        let eigen = SymmetricEigen::new(matrix);
+        smallest = eigen.eigenvalues.iter().copied().fold(smallest, f64::min);
     }
-    let matrix = DMatrix::from_fn(n, n, |r, c| {
-        rows.get(r)
-            .and_then(|row| row.get(c))
-            .copied()
-            .unwrap_or(0.0)
-    });
-    if matrix.iter().any(|v| !v.is_finite()) {
-        return;
-    }
-    let eigen = SymmetricEigen::new(matrix);
-    let smallest = eigen
-        .eigenvalues
-        .iter()
-        .copied()
-        .fold(f64::INFINITY, f64::min);
     let negative = smallest < -EIGENVALUE_TOLERANCE;
     if !negative {
         return;
@@ -696,18 +690,20 @@ fn expectations(model: &Model, derivation: &Derivation, out: &mut Vec<Diagnostic
                         "no stationary law"
                     }
                 };
-                out.push(
-                    Diagnostic::new(
-                        &rules::EXPECTATION_FAILED,
-                        expectation.span.clone(),
-                        format!(
-                            "{described} does not exist: {name} is {} and has {why} ({})",
-                            law.family.as_str(),
-                            law.reason
-                        ),
-                    )
-                    .with_help("pin a figure that the family has, or remove the expectation"),
-                );
+                let mut d = Diagnostic::new(
+                    &rules::EXPECTATION_FAILED,
+                    expectation.span.clone(),
+                    format!(
+                        "{described} does not exist: {name} is {} and has {why} ({})",
+                        law.family.as_str(),
+                        law.reason
+                    ),
+                )
+                .with_help("pin a figure that the family has, or remove the expectation");
+                if let Some(note) = overflow_note(model) {
+                    d = d.with_note(note);
+                }
+                out.push(d);
             }
             Some(v) if !expectation.admissible.contains(v) => {
                 out.push(
@@ -735,6 +731,25 @@ fn expectations(model: &Model, derivation: &Derivation, out: &mut Vec<Diagnostic
     }
 }
 
+/// Why figures may have come out non-finite: a parameter so large that rates times time
+/// overflow double precision (about 1.8e308). The numerical routines stop at the first
+/// non-finite value and give no figure; this says which number to look at.
+fn overflow_note(model: &Model) -> Option<String> {
+    const HUGE: f64 = 1e100;
+    let scale = model.horizon.abs().max(1.0);
+    let largest = model
+        .params
+        .iter()
+        .filter(|p| !p.value.is_finite() || p.value.abs() * scale >= HUGE)
+        .max_by(|a, b| a.value.abs().total_cmp(&b.value.abs()))?;
+    Some(format!(
+        "the parameter `{}` = {} is too large for double precision: the figures overflow, so \
+         none is given",
+        largest.name,
+        number(largest.value, 6)
+    ))
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -751,6 +766,23 @@ mod tests {
 
     fn of_rule<'d>(diagnostics: &'d [Diagnostic], rule: &Rule) -> Vec<&'d Diagnostic> {
         diagnostics.iter().filter(|d| d.rule == rule.name).collect()
+    }
+
+    #[test]
+    fn a_rate_that_overflows_ends_quickly_and_says_why() {
+        // Once 263 s of squaring in the matrix exponential; now no figure, and a note
+        // naming the parameter.
+        let (_, diagnostics) = run("clock year\nhorizon 1 year\nparam k = 1e308 [1/year]\n\
+             param s = 0.1 [1/sqrt(year)]\nnoise W\nnoise V\nstate x = 1\nstate y = 1\n\
+             dx = k * (y - x) dt + s dW\ndy = k * (x - y) dt + s dV\n\
+             expect mean(x, 1 year) in [0, 2]\n");
+        let found = of_rule(&diagnostics, &rules::EXPECTATION_FAILED);
+        assert_eq!(found.len(), 1, "{diagnostics:?}");
+        assert!(
+            found[0].notes.iter().any(|n| n.contains("`k`")),
+            "{:?}",
+            found[0]
+        );
     }
 
     #[test]

@@ -123,20 +123,30 @@ pub fn describe_project_error(error: ProjectError) -> String {
 }
 
 /// Reads a file; text that is not UTF-8 is kept (lossily) and the offset reported.
+/// At most one byte past [`sdeck_syntax::MAX_FILE_BYTES`] is read: enough for the
+/// analysis to refuse the file, never a whole huge file in memory.
 pub fn read(path: &Path) -> Result<SourceText, String> {
-    let bytes =
-        std::fs::read(path).map_err(|e| format!("cannot read `{}`: {e}", path.display()))?;
-    Ok(from_bytes(display(path), bytes))
+    let cannot = |e: std::io::Error| format!("cannot read `{}`: {e}", path.display());
+    let file = std::fs::File::open(path).map_err(cannot)?;
+    Ok(from_bytes(
+        display(path),
+        read_bounded(file).map_err(cannot)?,
+    ))
 }
 
-/// Reads standard input to its end, shown in outputs as `name`.
+/// Reads standard input to its end (or just past the size limit), shown as `name`.
 pub fn read_stdin(name: &str) -> Result<SourceText, String> {
-    let mut bytes = Vec::new();
-    std::io::stdin()
-        .lock()
-        .read_to_end(&mut bytes)
+    let bytes = read_bounded(std::io::stdin().lock())
         .map_err(|e| format!("cannot read standard input: {e}"))?;
     Ok(from_bytes(name.to_string(), bytes))
+}
+
+pub fn read_bounded(reader: impl Read) -> std::io::Result<Vec<u8>> {
+    let mut bytes = Vec::new();
+    reader
+        .take(sdeck_syntax::MAX_FILE_BYTES as u64 + 1)
+        .read_to_end(&mut bytes)?;
+    Ok(bytes)
 }
 
 pub fn from_bytes(path: String, bytes: Vec<u8>) -> SourceText {

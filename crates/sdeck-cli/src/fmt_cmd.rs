@@ -28,7 +28,19 @@ pub fn run(args: FmtArgs) -> ExitCode {
     let mut failed = 0;
     for path in &paths {
         let shown = path.display();
-        let text = match std::fs::read(path).map(String::from_utf8) {
+        let bytes = std::fs::File::open(path).and_then(crate::files::read_bounded);
+        if let Ok(bytes) = &bytes {
+            if bytes.len() > sdeck_syntax::MAX_FILE_BYTES {
+                eprintln!(
+                    "sdeck: `{shown}` is larger than the {} MiB a model file may hold; left \
+                     unchanged",
+                    sdeck_syntax::MAX_FILE_BYTES >> 20
+                );
+                failed += 1;
+                continue;
+            }
+        }
+        let text = match bytes.map(String::from_utf8) {
             Ok(Ok(text)) => text,
             Ok(Err(_)) => {
                 eprintln!("sdeck: `{shown}` is not UTF-8 text; left unchanged");

@@ -47,6 +47,10 @@ pub struct SimulateArgs {
     plot: Option<PathBuf>,
 }
 
+/// The most path steps (paths × steps) one run may take: ten billion, a hundred times the
+/// default run. Past it a run would take hours; it is refused before it starts.
+pub const MAX_PATH_STEPS: usize = 10_000_000_000;
+
 pub fn run(args: SimulateArgs) -> ExitCode {
     let result = match load_sound_model(&args.file, "nothing is simulated") {
         Ok(r) => r,
@@ -62,6 +66,15 @@ pub fn run(args: SimulateArgs) -> ExitCode {
     };
     if args.paths == 0 || args.steps == 0 {
         eprintln!("sdeck: --paths and --steps must be at least 1");
+        return ExitCode::from(2);
+    }
+    let path_steps = args.paths.checked_mul(args.steps);
+    if path_steps.is_none_or(|n| n > MAX_PATH_STEPS) {
+        eprintln!(
+            "sdeck: --paths {} × --steps {} is more than {MAX_PATH_STEPS} path steps; \
+             nothing is simulated (use fewer paths or steps)",
+            args.paths, args.steps
+        );
         return ExitCode::from(2);
     }
     let options = SimulationOptions {

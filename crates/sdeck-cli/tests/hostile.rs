@@ -45,3 +45,45 @@ fn fmt_keeps_crlf_and_calls_a_formatted_crlf_file_formatted() {
     assert_eq!(status(&out), 0, "{}", stderr(&out));
     assert_eq!(std::fs::read_to_string(&file).unwrap(), formatted);
 }
+
+fn demo(name: &str) -> std::path::PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("../../demo-models")
+        .join(name)
+}
+
+// ------------------------------------------------------------- unbounded work
+
+#[test]
+fn a_path_step_count_past_the_limit_is_refused_before_starting() {
+    // Once ran for hours.
+    let out = sdeck()
+        .args(["simulate", "--steps", "1000000000000"])
+        .arg(demo("cir_funding_rate.sde"))
+        .timeout(std::time::Duration::from_secs(60))
+        .output()
+        .unwrap();
+    assert_eq!(status(&out), 2, "{}", stderr(&out));
+    assert!(
+        stderr(&out).contains("10000000000 path steps"),
+        "{}",
+        stderr(&out)
+    );
+    assert!(stdout(&out).is_empty());
+}
+
+#[test]
+fn a_file_past_the_size_limit_is_refused_with_one_error() {
+    let dir = tempfile::tempdir().unwrap();
+    let file = dir.path().join("huge.sde");
+    let mut text = String::from("param a = 1\n");
+    while text.len() <= 4 << 20 {
+        text.push_str("# a long comment line that repeats until the file is too large\n");
+    }
+    write(&file, &text);
+    let out = sdeck().arg("check").arg(&file).output().unwrap();
+    assert_eq!(status(&out), 1, "{}", stderr(&out));
+    let shown = stdout(&out);
+    assert!(shown.contains("4 MiB"), "{shown}");
+    assert!(shown.contains("1 error"), "{shown}");
+}

@@ -269,12 +269,94 @@ impl Model {
         m
     }
 
+    /// The correlations of the noises, sparse: only the pairs a `corr` statement names
+    /// (the last statement of a pair wins, as in [`Model::correlation_matrix`]).
+    pub fn correlations(&self) -> Correlations {
+        let mut pairs = std::collections::HashMap::new();
+        for c in &self.correlations {
+            if c.first != c.second {
+                pairs.insert((c.first.min(c.second), c.first.max(c.second)), c.value);
+            }
+        }
+        Correlations {
+            noises: self.noises.len(),
+            pairs,
+        }
+    }
+
     pub fn param_index(&self, name: &str) -> Option<usize> {
         self.params.iter().position(|p| p.name == name)
     }
 
     pub fn state_index(&self, name: &str) -> Option<usize> {
         self.states.iter().position(|s| s.name == name)
+    }
+}
+
+/// The correlation matrix of the noises without its n² zeros: a model may declare
+/// thousands of noises and correlate a few of them.
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct Correlations {
+    noises: usize,
+    pairs: std::collections::HashMap<(usize, usize), f64>,
+}
+
+impl Correlations {
+    /// The correlation of noises `k` and `l`: 1 on the diagonal, 0 where none is given.
+    pub fn get(&self, k: usize, l: usize) -> f64 {
+        if k == l {
+            return 1.0;
+        }
+        self.pairs
+            .get(&(k.min(l), k.max(l)))
+            .copied()
+            .unwrap_or(0.0)
+    }
+
+    /// Whether no two noises are correlated.
+    pub fn is_identity(&self) -> bool {
+        self.pairs.values().all(|v| *v == 0.0)
+    }
+
+    /// The blocks of the matrix: groups of two or more noises joined by nonzero
+    /// correlations, each sorted, in the order of their first noise. Every noise outside
+    /// them is uncorrelated with all others, so the matrix is block diagonal with these
+    /// blocks and ones.
+    pub fn blocks(&self) -> Vec<Vec<usize>> {
+        let mut parent: std::collections::HashMap<usize, usize> = std::collections::HashMap::new();
+        fn root(parent: &mut std::collections::HashMap<usize, usize>, i: usize) -> usize {
+            let mut r = i;
+            while let Some(&p) = parent.get(&r) {
+                if p == r {
+                    break;
+                }
+                r = p;
+            }
+            parent.insert(i, r);
+            r
+        }
+        for (&(k, l), &v) in &self.pairs {
+            if v == 0.0 || k >= self.noises || l >= self.noises {
+                continue;
+            }
+            parent.entry(k).or_insert(k);
+            parent.entry(l).or_insert(l);
+            let (rk, rl) = (root(&mut parent, k), root(&mut parent, l));
+            if rk != rl {
+                parent.insert(rk.max(rl), rk.min(rl));
+            }
+        }
+        let mut members: Vec<usize> = parent.keys().copied().collect();
+        members.sort_unstable();
+        let mut groups: std::collections::BTreeMap<usize, Vec<usize>> =
+            std::collections::BTreeMap::new();
+        for i in members {
+            let r = root(&mut parent, i);
+            groups.entry(r).or_default().push(i);
+        }
+        let mut blocks: Vec<Vec<usize>> = groups.into_values().filter(|b| b.len() > 1).collect();
+        blocks.sort_by_key(|b| b.first().copied());
+        blocks
     }
 }
 

@@ -19,4 +19,6 @@ mod parse;
 pub mod split;
 
 pub use line_index::{Encoding, LineCol, LineIndex};
-pub use parse::{parse, MAX_NESTING, MAX_NODES, MAX_STATEMENT_BYTES, RESERVED_NAMES};
+pub use parse::{
+    parse, MAX_FILE_BYTES, MAX_NESTING, MAX_NODES, MAX_STATEMENT_BYTES, RESERVED_NAMES,
+};

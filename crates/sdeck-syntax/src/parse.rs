@@ -23,6 +23,9 @@ struct StatementParser;
 
 /// The longest statement read, in bytes of code.
 pub const MAX_STATEMENT_BYTES: usize = 1 << 20;
+/// The largest file read: 4 MiB. Real models are a few kilobytes; past this size a file
+/// is refused whole, with one `syntax` error, before anything is built from it.
+pub const MAX_FILE_BYTES: usize = 4 << 20;
 /// The deepest nesting of brackets and parentheses read.
 pub const MAX_NESTING: usize = 64;
 /// The most expression nodes one statement may hold.
@@ -44,6 +47,23 @@ type Result<T> = std::result::Result<T, Diagnostic>;
 /// assert!(file.diagnostics.is_empty());
 /// ```
 pub fn parse(text: &str) -> SourceFile {
+    if text.len() > MAX_FILE_BYTES {
+        return SourceFile {
+            statements: Vec::new(),
+            comments: Vec::new(),
+            diagnostics: vec![syntax_error(
+                0..0,
+                format!(
+                    "the file is {} bytes, more than the {} MiB a model file may hold; \
+                     nothing in it is checked",
+                    text.len(),
+                    MAX_FILE_BYTES >> 20
+                ),
+            )
+            .with_help("split the model into smaller files")],
+            unparsed: std::iter::once(0..text.len()).collect(),
+        };
+    }
     let (pieces, comments) = split(text);
     let mut file = SourceFile {
         statements: Vec::with_capacity(pieces.len()),

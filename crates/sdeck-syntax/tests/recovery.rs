@@ -113,12 +113,25 @@ fn deep_nesting_is_an_error_not_a_stack_overflow() {
 }
 
 #[test]
-fn a_ten_megabyte_line_is_an_error() {
-    let text = format!("let x = {}1\nparam y = 2\n", "1 + ".repeat(2_500_000));
+fn a_two_megabyte_line_is_an_error() {
+    let text = format!("let x = {}1\nparam y = 2\n", "1 + ".repeat(500_000));
     let file = parse(&text);
     assert_eq!(file.diagnostics.len(), 1);
     assert!(file.diagnostics[0].message.contains("bytes long"));
     assert_eq!(file.statements.len(), 1);
+}
+
+#[test]
+fn a_file_past_four_mebibytes_is_refused_whole() {
+    let text = "param y = 2\n".repeat((4 << 20) / 12 + 1);
+    let file = parse(&text);
+    assert_eq!(file.diagnostics.len(), 1);
+    assert!(file.diagnostics[0].message.contains("4 MiB"));
+    assert!(file.statements.is_empty());
+    // Just under the limit, every statement is read.
+    let under = &text[..text.len() - 12 * 2];
+    assert!(under.len() <= sdeck_syntax::MAX_FILE_BYTES);
+    assert_eq!(parse(under).statements.len(), under.len() / 12);
 }
 
 #[test]
