@@ -227,7 +227,7 @@ impl AffineSet {
         if n == 0 {
             return Err("the model declares no factor".to_string());
         }
-        let corr = model.correlation_matrix();
+        let corr = model.correlations();
         let mut shapes = Vec::with_capacity(n);
         for i in 0..n {
             shapes.push(shape_of(model, i).map_err(|_| {
