@@ -1,9 +1,9 @@
 #!/usr/bin/env python3
 """Benchmark of `sdeck check` on a large model repository.
 
-Generates N varied models (default 20 000) into a temporary folder: one-state families
+Generates N varied models (default 20 000) into a temporary folder: one-factor families
 (arithmetic and geometric Brownian, Ornstein-Uhlenbeck, square-root), correlated linear
-systems of 2 to 6 states, polynomial and seasonal models, with pinned expectations, in
+systems of 2 to 6 factors, polynomial and seasonal models, with pinned expectations, in
 several clocks and units; about one model in ten carries a mistake (syntax, undefined
 name, unused parameter, Feller condition, dimension, failed expectation). Then it times,
 with a warm page cache:
@@ -40,7 +40,7 @@ def pct(x):
 
 
 def one_state(rng, name, noise, kind):
-    """Declarations and the equation of one state of family `kind`."""
+    """Declarations and the equation of one factor of family `kind`."""
     k = rng.uniform(0.2, 3.0)
     level = rng.uniform(0.005, 0.06)
     lines = []
@@ -50,7 +50,7 @@ def one_state(rng, name, noise, kind):
             f"param kappa_{name} = {k:.3f} [1/year] > 0   # speed of {name}",
             f"param level_{name} = {pct(level)}             # long-run level of {name}",
             f"param vol_{name} = {pct(vol)} [1/sqrt(year)] > 0",
-            f"state {name} = {pct(rng.uniform(0.0, 0.06))}",
+            f"factor {name} = {pct(rng.uniform(0.0, 0.06))}",
             f"d{name} = kappa_{name} * (level_{name} - {name}) dt + vol_{name} d{noise}",
         ]
     elif kind == "cir":
@@ -59,21 +59,21 @@ def one_state(rng, name, noise, kind):
             f"param kappa_{name} = {k:.3f} [1/year] > 0",
             f"param level_{name} = {pct(level)} >= 0",
             f"param vol_{name} = {vol:.5f} [1/sqrt(year)] > 0",
-            f"state {name} = {pct(rng.uniform(0.001, 0.06))} >= 0",
+            f"factor {name} = {pct(rng.uniform(0.001, 0.06))} >= 0",
             f"d{name} = kappa_{name} * (level_{name} - {name}) dt + vol_{name} * sqrt({name}) d{noise}",
         ]
     elif kind == "gbm":
         lines += [
             f"param mu_{name} = {pct(rng.uniform(-0.02, 0.1))} [1/year]",
             f"param sigma_{name} = {pct(rng.uniform(0.05, 0.6))} [1/sqrt(year)] > 0",
-            f"state {name} = {rng.uniform(10, 200):.2f} [WRC] > 0",
+            f"factor {name} = {rng.uniform(10, 200):.2f} [WRC] > 0",
             f"d{name} = mu_{name} * {name} dt + sigma_{name} * {name} d{noise}",
         ]
     else:  # abm
         lines += [
             f"param drift_{name} = {rng.uniform(-0.01, 0.01):.5f} [1/year]",
             f"param vol_{name} = {pct(rng.uniform(0.001, 0.02))} [1/sqrt(year)] > 0",
-            f"state {name} = {pct(rng.uniform(0.0, 0.05))}",
+            f"factor {name} = {pct(rng.uniform(0.0, 0.05))}",
             f"d{name} = drift_{name} dt + vol_{name} d{noise}",
         ]
     return lines
@@ -94,17 +94,17 @@ def expectation(rng, name, kind):
 
 
 def system(rng, size):
-    """A correlated linear system of `size` states (all Gaussian)."""
+    """A correlated linear system of `size` factors (all Gaussian)."""
     lines = []
     names = [f"x{i}" for i in range(size)]
     noises = [f"W{i}" for i in range(size)]
-    lines.append("noise " + ", ".join(noises))
+    lines.append("shock " + ", ".join(noises))
     for i in range(1, size):
         lines.append(f"corr W0 W{i} = {rng.uniform(-0.3, 0.3):.3f}")
     for i, n in enumerate(names):
         lines.append(f"param a{i} = {rng.uniform(0.5, 3.0):.3f} [1/year] > 0")
         lines.append(f"param s{i} = {pct(rng.uniform(0.002, 0.02))} [1/sqrt(year)] > 0")
-        lines.append(f"state {n} = {pct(rng.uniform(-0.01, 0.05))}")
+        lines.append(f"factor {n} = {pct(rng.uniform(-0.01, 0.05))}")
     for i, n in enumerate(names):
         coupling = ""
         if i > 0:
@@ -130,12 +130,12 @@ def model_text(rng, index):
     ]
     if shape == "single":
         kind = rng.choice(["ou", "cir", "gbm", "abm"])
-        lines.append("noise W")
+        lines.append("shock W")
         lines += one_state(rng, "r", "W", kind)
         lines.append(expectation(rng, "r", kind))
     elif shape == "pair":
         k1, k2 = rng.choice(["ou", "cir", "gbm", "abm"]), rng.choice(["ou", "cir", "gbm", "abm"])
-        lines.append("noise W, B")
+        lines.append("shock W, B")
         lines.append(f"corr W B = {rng.uniform(-0.8, 0.8):.2f}")
         lines += one_state(rng, "r", "W", k1)
         lines += one_state(rng, "s", "B", k2)
@@ -145,23 +145,23 @@ def model_text(rng, index):
         lines += system(rng, rng.randint(2, 6))
     elif shape == "polynomial":
         lines += [
-            "noise W",
+            "shock W",
             f"param kappa = {rng.uniform(0.5, 2):.3f} [1/year] > 0",
             f"param level = {rng.uniform(0.5, 2):.3f}",
             f"param vol = {rng.uniform(0.05, 0.3):.3f} [1/sqrt(year)] > 0",
-            f"state v = {rng.uniform(0.5, 2):.3f} >= 0",
+            f"factor v = {rng.uniform(0.5, 2):.3f} >= 0",
             "dv = kappa * (level - v) dt + vol * sqrt(v * v + 1) dW",
         ]
     else:
         lines += [
-            "noise W",
+            "shock W",
             "param freq = 1 [1/year] > 0",
             f"param amp = {rng.uniform(1, 10):.2f} [WRC/year]",
             f"param speed = {rng.uniform(1, 20):.2f} [1/year] > 0",
             f"param base = {rng.uniform(30, 90):.2f} [WRC]",
             f"param vol = {rng.uniform(1, 8):.2f} [WRC/sqrt(year)] > 0",
             "let season = sin(2 * pi * freq * t)",
-            f"state p = {rng.uniform(30, 90):.2f} [WRC]",
+            f"factor p = {rng.uniform(30, 90):.2f} [WRC]",
             "dp = (speed * (base - p) + amp * season) dt + vol dW",
             "expect halflife(p) < 1 year",
         ]

@@ -27,7 +27,7 @@ ROOT = pathlib.Path(__file__).resolve().parents[2]
 def book_model(lines_wanted: int = 2000) -> str:
     """A model of the (fictional) Quillmere Credit Fund's book: ten Ornstein-Uhlenbeck
     spreads, each with parameters, a long chain of named expressions and notes, padded to
-    exactly `lines_wanted` lines with comments. (Ten states, not hundreds: the calculus
+    exactly `lines_wanted` lines with comments. (Ten factors, not hundreds: the calculus
     solves the system's covariance as one dense linear system.)"""
     head = [
         "# Benchmark model: Ornstein-Uhlenbeck spreads of the (fictional) Quillmere",
@@ -47,8 +47,8 @@ def book_model(lines_wanted: int = 2000) -> str:
             f"param k{i} = {1 + i % 7}.5 [1/year] > 0   # speed of spread {i}",
             f"param s{i} = {1 + i % 5}bp [1/sqrt(day)] > 0  # volatility of spread {i}",
             f"param m{i} = {i % 9 + 1}0bp >= 0  # level of spread {i}",
-            f"noise W{i}  # shock to spread {i}",
-            f"state x{i} = {i % 9}0bp  # spread {i} today",
+            f"shock W{i}  # shock to spread {i}",
+            f"factor x{i} = {i % 9}0bp  # spread {i} today",
             f"let a{i}_0 = k{i}",
         ]
         block += [f"let a{i}_{j} = a{i}_{j - 1} * 1" for j in range(1, 120)]
@@ -151,7 +151,7 @@ def main() -> int:
     )
     server.wait(lambda m: m.get("method") == "textDocument/publishDiagnostics" and m["params"].get("version") == 1)
 
-    # Hover on states (the heaviest hover: family, formulas, figures at the horizon).
+    # Hover on factors (the heaviest hover: family, formulas, figures at the horizon).
     rng = random.Random(7)
     equation_lines = [k for k, line in enumerate(lines) if line.startswith("dx")]
     hover_ms = []
@@ -224,9 +224,9 @@ def main() -> int:
     server.close()
 
     print(f"binary: {args.binary}")
-    print(f"model: {len(lines) - 1} lines, {len(equation_lines)} states")
+    print(f"model: {len(lines) - 1} lines, {len(equation_lines)} factors")
     print(
-        f"hover on a state ({args.hovers} requests): p50 {percentile(hover_ms, 50):.1f} ms, "
+        f"hover on a factor ({args.hovers} requests): p50 {percentile(hover_ms, 50):.1f} ms, "
         f"p99 {percentile(hover_ms, 99):.1f} ms"
     )
     print(

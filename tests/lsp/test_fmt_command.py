@@ -6,8 +6,8 @@ import subprocess
 
 from conftest import SDECK
 
-MESSY = "param  k=2[1/year]>0 # speed\nnoise W\nstate x=0\ndx=-k*x dt+0.1 dW\n"
-TIDY = "param k = 2 [1/year] > 0  # speed\nnoise W\nstate x = 0\ndx = -k * x dt + 0.1 dW\n"
+MESSY = "param  k=2[1/year]>0 # speed\nshock W\nfactor x=0\ndx=-k*x dt+0.1 dW\n"
+TIDY = "param k = 2 [1/year] > 0  # speed\nshock W\nfactor x = 0\ndx = -k * x dt + 0.1 dW\n"
 
 
 def run(*args: str) -> subprocess.CompletedProcess:

@@ -26,8 +26,8 @@ param kappa = 0.5% [1/day]        > 0   # speed of mean reversion
 param theta = 3%                        # long-run level
 param sigma = 1%   [1/sqrt(year)] > 0   # volatility
 
-noise W
-state r = 1%
+shock W
+factor r = 1%
 dr = kappa * (theta - r) dt + sigma dW
 """
 
@@ -35,7 +35,7 @@ UNDECLARED_NOISE = """model brantmoor_deposit_rate
 param speed = 0.8 [1/year] > 0
 param level = 1%
 param vol = 0.4% [1/sqrt(year)] > 0
-state deposit = 1.1%
+factor deposit = 1.1%
 ddeposit = speed * (level - deposit) dt + vol dW
 """
 
@@ -155,7 +155,7 @@ async def test_hover_on_a_state_equals_sdeck_moments(client: LanguageClient, tmp
     out = subprocess.run(
         [SDECK, "moments", "--format", "json", str(path)], capture_output=True, text=True, check=True
     )
-    state = json.loads(out.stdout)["states"][0]
+    state = json.loads(out.stdout)["factors"][0]
     # The hover prints six significant digits, as `sdeck moments` does in text.
     assert row("mean") == pytest.approx(state["mean"], rel=1e-5)
     assert row("variance") == pytest.approx(state["variance"], rel=1e-5)
@@ -173,7 +173,7 @@ async def test_a_quick_fix_makes_its_diagnostic_disappear(client: LanguageClient
     text = UNDECLARED_NOISE
     open_document(client, uri, text)
     diagnostics = await published(client, uri, 1)
-    undefined = [d for d in diagnostics if d.code == "undefined-name" and "W" in d.message]
+    undefined = [d for d in diagnostics if d.code == "unknown-name" and "W" in d.message]
     assert undefined, diagnostics
     actions = await client.text_document_code_action_async(
         types.CodeActionParams(
@@ -182,7 +182,7 @@ async def test_a_quick_fix_makes_its_diagnostic_disappear(client: LanguageClient
             context=types.CodeActionContext(diagnostics=undefined),
         )
     )
-    fix = next(a for a in actions if isinstance(a, types.CodeAction) and "noise W" in a.title)
+    fix = next(a for a in actions if isinstance(a, types.CodeAction) and "shock W" in a.title)
     assert fix.kind == types.CodeActionKind.QuickFix
     edits = fix.edit.changes[uri]
     client.text_document_did_change(
@@ -196,7 +196,7 @@ async def test_a_quick_fix_makes_its_diagnostic_disappear(client: LanguageClient
     )
     text = apply_edits(text, edits)
     after = await published(client, uri, 2)
-    assert not [d for d in after if d.code == "undefined-name" and "W" in d.message], after
+    assert not [d for d in after if d.code == "unknown-name" and "W" in d.message], after
     assert (await server_text(client, uri)) == (text, 2)
 
 
@@ -304,7 +304,7 @@ async def test_a_malformed_request_gets_an_error_and_the_server_keeps_serving(cl
 
 async def test_formatting_and_navigation(client: LanguageClient):
     uri = uri_of("navigation.sde")
-    text = "param  k=2[1/year]>0\nnoise W\nstate x=0\ndx=-k*x dt+0.1 dW\n"
+    text = "param  k=2[1/year]>0\nshock W\nfactor x=0\ndx=-k*x dt+0.1 dW\n"
     open_document(client, uri, text)
     edits = await client.text_document_formatting_async(
         types.DocumentFormattingParams(
@@ -313,7 +313,7 @@ async def test_formatting_and_navigation(client: LanguageClient):
         )
     )
     formatted = apply_edits(text, edits)
-    assert formatted == "param k = 2 [1/year] > 0\nnoise W\nstate x = 0\ndx = -k * x dt + 0.1 dW\n"
+    assert formatted == "param k = 2 [1/year] > 0\nshock W\nfactor x = 0\ndx = -k * x dt + 0.1 dW\n"
     refs = await client.text_document_references_async(
         types.ReferenceParams(
             text_document=types.TextDocumentIdentifier(uri=uri),
@@ -338,7 +338,7 @@ async def test_a_client_that_pulls_gets_no_pushes(pull_client: LanguageClient):
     report = await pull_client.text_document_diagnostic_async(
         types.DocumentDiagnosticParams(text_document=types.TextDocumentIdentifier(uri=uri))
     )
-    assert "undefined-name" in codes(report.items)
+    assert "unknown-name" in codes(report.items)
     # Pushes would show every diagnostic twice in such a client: none is sent.
     await asyncio.sleep(0.5)
     assert [p for p in pull_client.published if p.uri == uri] == []
@@ -346,7 +346,7 @@ async def test_a_client_that_pulls_gets_no_pushes(pull_client: LanguageClient):
 
 async def test_the_project_file_sets_rule_levels_and_exclusions(client: LanguageClient, tmp_path):
     (tmp_path / "sdeck.toml").write_text('[rules]\nunused = "off"\n\n[files]\nexclude = ["drafts/**"]\n')
-    text = "param spare = 1\nnoise W\nstate x = 0\ndx = 0.1 dW\n"
+    text = "param spare = 1\nshock W\nfactor x = 0\ndx = 0.1 dW\n"
     model = tmp_path / "penrith_rate.sde"
     model.write_text(text)
     uri = model.as_uri()
@@ -384,7 +384,7 @@ async def test_hover_on_coupled_states_equals_sdeck_moments(client: LanguageClie
     out = subprocess.run(
         [SDECK, "moments", "--format", "json", str(path)], capture_output=True, text=True, check=True
     )
-    states = json.loads(out.stdout)["states"]
+    states = json.loads(out.stdout)["factors"]
     assert len(states) == 2
     for state in states:
         at = text.index(f"\nd{state['name']} =") + 2

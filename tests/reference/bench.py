@@ -34,8 +34,8 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 import compute  # noqa: E402  (the reference script next to this file)
 
 BENCHMARKED = {
-    "ou_quillon_overnight_daily_units.sde": "one-state Ornstein-Uhlenbeck",
-    "system_ostmarch_three_states.sde": "three-state linear system",
+    "ou_quillon_overnight_daily_units.sde": "one-factor Ornstein-Uhlenbeck",
+    "system_ostmarch_three_factors.sde": "three-factor linear system",
     "polynomial_wexcombe_log_price_variance.sde": "polynomial (log price + square-root variance)",
 }
 
@@ -82,7 +82,7 @@ def polynomial_numeric(model: compute.NumericModel):
     generator = np.array(system.generator.tolist(), dtype=float)
     start = np.zeros(len(system.exponents))
     start[0] = 1.0
-    variance_index = model.spec.states.index(next(s for s in model.spec.states if s.family == "square-root"))
+    variance_index = model.spec.factors.index(next(s for s in model.spec.factors if s.family == "square-root"))
     closure = compute.dependency_closure(model, variance_index)
     stationary_system = compute.moment_system(model, closure, np.zeros(len(closure)))
     stationary_generator = np.array(stationary_system.generator.tolist(), dtype=float)
@@ -124,7 +124,7 @@ def main(argv: list[str] | None = None) -> int:
         rows.append((label, model.size, method, numeric_us, full_us))
     print(f"python {platform.python_version()}, numpy {np.__version__}, scipy {scipy.__version__}, "
           f"BLAS threads {os.environ['OPENBLAS_NUM_THREADS']}, best of {arguments.repeat}")
-    header = ["model", "states", "method", "numeric µs/eval", "full µs/eval"]
+    header = ["model", "factors", "method", "numeric µs/eval", "full µs/eval"]
     table = [header] + [
         [label, str(size), method, f"{numeric_us:,.1f}", f"{full_us:,.0f}"]
         for label, size, method, numeric_us, full_us in rows

@@ -2,10 +2,10 @@
 """Independent reference figures for the models in tests/reference/models/.
 
 Each model file is transcribed here by hand, next to its file name: parameters as
-written (literal and unit), states, noises, correlations, and the drift and diffusion
+written (literal and unit), factors, shocks, correlations, and the drift and diffusion
 of every equation. The script converts the values to the model's clock itself, then
-computes at the horizon, for every state, the mean, the variance, the half-life and the
-stationary mean and variance, and the covariance matrix of all states.
+computes at the horizon, for every factor, the mean, the variance, the half-life and the
+stationary mean and variance, and the covariance matrix of all factors.
 
 Every figure is computed twice, by methods that share no code:
   * a primary method chosen by family: Van Loan's block matrix exponential for
@@ -16,7 +16,7 @@ Every figure is computed twice, by methods that share no code:
     models;
   * the moment equations of all monomials of degree <= 2, integrated with solve_ivp.
 The two must agree to 1e-9 (relative to the scale of each figure) or the script stops.
-One-state Ornstein-Uhlenbeck figures, and the elementary time-dependent model, are also
+One-factor Ornstein-Uhlenbeck figures, and the elementary time-dependent model, are also
 derived symbolically with sympy and compared.
 
 Usage:
@@ -151,8 +151,8 @@ class ModelSpec:
     clock: str
     horizon: tuple[str, str | None]
     params: list[Quantity]
-    states: list[StateSpec]
-    noises: list[str]
+    factors: list[StateSpec]
+    shocks: list[str]
     correlations: dict[tuple[str, str], str]
     drift: dict[str, str]
     diffusion: dict[str, dict[str, str]]
@@ -184,8 +184,8 @@ MODELS: list[ModelSpec] = [
         clock="year",
         horizon=("9", "month"),
         params=[P("widening", "20bp", "1/year"), P("vol", "35bp", "1/sqrt(year)")],
-        states=[S("s", "145bp", "arithmetic-brownian")],
-        noises=["W"],
+        factors=[S("s", "145bp", "arithmetic-brownian")],
+        shocks=["W"],
         correlations={},
         drift={"s": "widening"},
         diffusion={"s": {"W": "vol"}},
@@ -196,8 +196,8 @@ MODELS: list[ModelSpec] = [
         clock="year",
         horizon=("2", "year"),
         params=[P("mu", "6%", "1/year"), P("sigma", "22%", "1/sqrt(year)")],
-        states=[S("S", "84.5", "geometric-brownian", "VDM")],
-        noises=["W"],
+        factors=[S("S", "84.5", "geometric-brownian", "VDM")],
+        shocks=["W"],
         correlations={},
         drift={"S": "mu * S"},
         diffusion={"S": {"W": "sigma * S"}},
@@ -212,8 +212,8 @@ MODELS: list[ModelSpec] = [
             P("level", "3.2%"),
             P("vol", "4bp", "1/sqrt(day)"),
         ],
-        states=[S("r", "2.75%", "ornstein-uhlenbeck")],
-        noises=["W"],
+        factors=[S("r", "2.75%", "ornstein-uhlenbeck")],
+        shocks=["W"],
         correlations={},
         drift={"r": "kappa * (level - r)"},
         diffusion={"r": {"W": "vol"}},
@@ -228,8 +228,8 @@ MODELS: list[ModelSpec] = [
             P("target", "1.4%"),
             P("vol", "30bp", "1/sqrt(year)"),
         ],
-        states=[S("x", "0.9%", "ornstein-uhlenbeck")],
-        noises=["W"],
+        factors=[S("x", "0.9%", "ornstein-uhlenbeck")],
+        shocks=["W"],
         correlations={},
         drift={"x": "speed * (target - x)"},
         diffusion={"x": {"W": "vol"}},
@@ -246,8 +246,8 @@ MODELS: list[ModelSpec] = [
             P("vol", "5bp", "1/sqrt(bday)"),
         ],
         lets={"target": "level + premium"},
-        states=[S("r", "2.6%", "ornstein-uhlenbeck")],
-        noises=["W"],
+        factors=[S("r", "2.6%", "ornstein-uhlenbeck")],
+        shocks=["W"],
         correlations={},
         drift={"r": "kappa * (target - r)"},
         diffusion={"r": {"W": "vol"}},
@@ -262,8 +262,8 @@ MODELS: list[ModelSpec] = [
             P("level", "3.5%", "1/year"),
             P("vol", "8%", "1/year"),
         ],
-        states=[S("h", "2.5%", "square-root", "1/year")],
-        noises=["W"],
+        factors=[S("h", "2.5%", "square-root", "1/year")],
+        shocks=["W"],
         correlations={},
         drift={"h": "kappa * (level - h)"},
         diffusion={"h": {"W": "vol * sqrt(h)"}},
@@ -278,8 +278,8 @@ MODELS: list[ModelSpec] = [
             P("level", "2%", "1/year"),
             P("vol", "15%", "1/year"),
         ],
-        states=[S("h", "1.2%", "square-root", "1/year")],
-        noises=["W"],
+        factors=[S("h", "1.2%", "square-root", "1/year")],
+        shocks=["W"],
         correlations={},
         drift={"h": "kappa * (level - h)"},
         diffusion={"h": {"W": "vol * sqrt(h)"}},
@@ -295,8 +295,8 @@ MODELS: list[ModelSpec] = [
             P("base_vol", "0.6%", "1/sqrt(year)"),
             P("prop_vol", "25%", "1/sqrt(year)"),
         ],
-        states=[S("x", "1.9%", "linear")],
-        noises=["W"],
+        factors=[S("x", "1.9%", "linear")],
+        shocks=["W"],
         correlations={},
         drift={"x": "speed * (level - x)"},
         diffusion={"x": {"W": "base_vol + prop_vol * x"}},
@@ -314,8 +314,8 @@ MODELS: list[ModelSpec] = [
             P("lam", "0.7", "1/year"),
         ],
         lets={"level": "base + slope * t"},
-        states=[S("x", "1.5%", "linear")],
-        noises=["W"],
+        factors=[S("x", "1.5%", "linear")],
+        shocks=["W"],
         correlations={},
         drift={"x": "kappa * (level - x)"},
         diffusion={"x": {"W": "sigma * exp(-lam * t)"}},
@@ -335,15 +335,15 @@ MODELS: list[ModelSpec] = [
             P("eta", "0.5"),
         ],
         lets={"season": "2 * pi * freq * t"},
-        states=[S("x", "0.3", "linear")],
-        noises=["W"],
+        factors=[S("x", "0.3", "linear")],
+        shocks=["W"],
         correlations={},
         drift={"x": "kappa * (base + amp * sin(season) - x)"},
         diffusion={"x": {"W": "sigma * exp(eta * cos(season))"}},
         sources=[SOURCE_KLOEDEN_PLATEN, "scipy.integrate.quad"],
     ),
     ModelSpec(
-        file="ou_tamsworth_two_noises.sde",
+        file="ou_tamsworth_two_shocks.sde",
         clock="year",
         horizon=("1", "year"),
         params=[
@@ -352,8 +352,8 @@ MODELS: list[ModelSpec] = [
             P("σ_local", "0.5%", "1/sqrt(year)"),
             P("σ_global", "0.8%", "1/sqrt(year)"),
         ],
-        states=[S("x", "1.4%", "ornstein-uhlenbeck")],
-        noises=["W_local", "W_global"],
+        factors=[S("x", "1.4%", "ornstein-uhlenbeck")],
+        shocks=["W_local", "W_global"],
         correlations={("W_local", "W_global"): "0.35"},
         drift={"x": "κ * (θ - x)"},
         diffusion={"x": {"W_local": "σ_local", "W_global": "σ_global"}},
@@ -374,15 +374,15 @@ MODELS: list[ModelSpec] = [
         ],
         # r depends on no other state: its law is exactly Ornstein-Uhlenbeck, as the
         # variance of the polynomial model keeps "square-root".
-        states=[S("r", "2.6%", "ornstein-uhlenbeck"), S("s", "1.5%", "linear-system")],
-        noises=["Wr", "Ws"],
+        factors=[S("r", "2.6%", "ornstein-uhlenbeck"), S("s", "1.5%", "linear-system")],
+        shocks=["Wr", "Ws"],
         correlations={("Wr", "Ws"): "-0.4"},
         drift={"r": "kr * (mr - r)", "s": "ks * (ms - s) + beta * (r - mr)"},
         diffusion={"r": {"Wr": "vr"}, "s": {"Ws": "vs"}},
         sources=[SOURCE_VAN_LOAN, SOURCE_GARDINER, SOURCE_KLOEDEN_PLATEN],
     ),
     ModelSpec(
-        file="system_ostmarch_three_states.sde",
+        file="system_ostmarch_three_factors.sde",
         clock="year",
         horizon=("1", "year"),
         params=[
@@ -399,12 +399,12 @@ MODELS: list[ModelSpec] = [
             P("v_i", "0.9%", "1/sqrt(year)"),
             P("v_u", "1.1%", "1/sqrt(year)"),
         ],
-        states=[
+        factors=[
             S("r", "3%", "linear-system"),
             S("infl", "2.4%", "linear-system"),
             S("gap", "0.5%", "linear-system"),
         ],
-        noises=["Wr", "Wi", "Wu"],
+        shocks=["Wr", "Wi", "Wu"],
         correlations={("Wr", "Wi"): "0.3", ("Wr", "Wu"): "-0.2", ("Wi", "Wu"): "-0.25"},
         drift={
             "r": "a_r * (r_bar - r) + g_ri * (infl - i_bar)",
@@ -424,11 +424,11 @@ MODELS: list[ModelSpec] = [
             P("theta", "0.04", "1/year"),
             P("xi", "0.3", "1/year"),
         ],
-        states=[
+        factors=[
             S("x", "0.2", "polynomial"),
             S("v", "0.05", "square-root", "1/year"),
         ],
-        noises=["Wx", "Wv"],
+        shocks=["Wx", "Wv"],
         correlations={("Wx", "Wv"): "-0.6"},
         drift={"x": "mu - 0.5 * v", "v": "kappa * (theta - v)"},
         diffusion={"x": {"Wx": "sqrt(v)"}, "v": {"Wv": "xi * sqrt(v)"}},
@@ -444,8 +444,8 @@ MODELS: list[ModelSpec] = [
             P("a", "0.01", "1/year"),
             P("b", "0.09", "1/year"),
         ],
-        states=[S("x", "0.5", "polynomial")],
-        noises=["W"],
+        factors=[S("x", "0.5", "polynomial")],
+        shocks=["W"],
         correlations={},
         drift={"x": "kappa * (level - x)"},
         diffusion={"x": {"W": "sqrt(a + b * x**2)"}},
@@ -467,13 +467,13 @@ MODELS: list[ModelSpec] = [
             P("level_h", "1.8%", "1/year"),
             P("vol_h", "6%", "1/year"),
         ],
-        states=[
+        factors=[
             S("r", "2.8%", "ornstein-uhlenbeck"),
             S("s", "90bp", "arithmetic-brownian"),
             S("p", "100", "geometric-brownian"),
             S("h", "2%", "square-root", "1/year"),
         ],
-        noises=["Wr", "Ws", "Wp", "Wh"],
+        shocks=["Wr", "Ws", "Wp", "Wh"],
         correlations={("Wr", "Ws"): "0.3"},
         drift={
             "r": "kappa_r * (level_r - r)",
@@ -560,19 +560,19 @@ def normalise_unit(text: str | None) -> str | None:
 def cross_check_file_text(spec: ModelSpec) -> None:
     """Compares the hand transcription with the file's declarations.
 
-    Reads only the simple, line-shaped declarations (clock, horizon, param, state,
-    noise, corr, and which states have an equation); the equations themselves are
+    Reads only the simple, line-shaped declarations (clock, horizon, param, factor,
+    shock, corr, and which factors have an equation); the equations themselves are
     transcribed by hand above and not parsed here.
     """
     if not spec.path.is_file():
         raise ReferenceError(f"{spec.relative_path}: file not found")
     lines = [strip_comment(line) for line in spec.path.read_text(encoding="utf-8").splitlines()]
     declaration = re.compile(
-        r"^(param|state)\s+([^\W\d]\w*)\s*=\s*(-?[0-9.eE+\-]+(?:%|bp)?)\s*(?:\[([^\]]*)\])?"
+        r"^(param|factor)\s+([^\W\d]\w*)\s*=\s*(-?[0-9.eE+\-]+(?:%|bp)?)\s*(?:\[([^\]]*)\])?"
     )
     params: list[Quantity] = []
-    states: list[Quantity] = []
-    noises: list[str] = []
+    factors: list[Quantity] = []
+    shocks: list[str] = []
     correlations: dict[tuple[str, str], str] = {}
     equations: list[str] = []
     clock = "year"
@@ -583,15 +583,15 @@ def cross_check_file_text(spec: ModelSpec) -> None:
         match = declaration.match(line)
         if match:
             kind, name, literal, unit = match.groups()
-            target = params if kind == "param" else states
+            target = params if kind == "param" else factors
             target.append(Quantity(name, literal, normalise_unit(unit)))
             continue
         if m := re.match(r"^clock\s+(\w+)$", line):
             clock = m.group(1)
         elif m := re.match(r"^horizon\s+([0-9.eE+\-]+)\s*(\w+)?$", line):
             horizon = (m.group(1), m.group(2))
-        elif m := re.match(r"^noise\s+(.+)$", line):
-            noises.extend(part.strip() for part in m.group(1).split(","))
+        elif m := re.match(r"^shock\s+(.+)$", line):
+            shocks.extend(part.strip() for part in m.group(1).split(","))
         elif m := re.match(r"^corr\s+(\w+)\s+(\w+)\s*=\s*(\S+)$", line):
             correlations[(m.group(1), m.group(2))] = m.group(3)
         elif m := re.match(r"^d([^\W\d]\w*)\s*=", line):
@@ -604,15 +604,15 @@ def cross_check_file_text(spec: ModelSpec) -> None:
     expected_params = [Quantity(p.name, p.literal, normalise_unit(p.unit)) for p in spec.params]
     if params != expected_params:
         raise ReferenceError(f"{where}: params {params} differ from transcription {expected_params}")
-    expected_states = [Quantity(s.name, s.literal, normalise_unit(s.unit)) for s in spec.states]
-    if states != expected_states:
-        raise ReferenceError(f"{where}: states {states} differ from transcription {expected_states}")
-    if noises != spec.noises:
-        raise ReferenceError(f"{where}: noises {noises} differ from transcription {spec.noises}")
+    expected_states = [Quantity(s.name, s.literal, normalise_unit(s.unit)) for s in spec.factors]
+    if factors != expected_states:
+        raise ReferenceError(f"{where}: factors {factors} differ from transcription {expected_states}")
+    if shocks != spec.shocks:
+        raise ReferenceError(f"{where}: shocks {shocks} differ from transcription {spec.shocks}")
     if correlations != spec.correlations:
         raise ReferenceError(f"{where}: correlations {correlations} differ from {spec.correlations}")
-    if equations != [s.name for s in spec.states]:
-        raise ReferenceError(f"{where}: equations for {equations}, states {[s.name for s in spec.states]}")
+    if equations != [s.name for s in spec.factors]:
+        raise ReferenceError(f"{where}: equations for {equations}, factors {[s.name for s in spec.factors]}")
 
 
 # --------------------------------------------------------------------------------------
@@ -651,17 +651,17 @@ class NumericModel:
 
 def build_numeric_model(spec: ModelSpec) -> NumericModel:
     cross_check_file_text(spec)
-    for state in spec.states:
+    for state in spec.factors:
         if state.family not in FAMILIES:
             raise ReferenceError(f"{spec.relative_path}: unknown family {state.family}")
     values: dict[str, sp.Expr] = {}
     for param in spec.params:
         scaled = parse_literal(param.literal) * unit_scale(param.unit, spec.clock)
         values[param.name] = sp.Float(scaled, 17)
-    symbols = [sp.Symbol(state.name, real=True) for state in spec.states]
+    symbols = [sp.Symbol(state.name, real=True) for state in spec.factors]
     namespace: dict[str, object] = {"t": TIME, "pi": sp.pi, "sqrt": sp.sqrt, "exp": sp.exp,
                                     "log": sp.log, "sin": sp.sin, "cos": sp.cos, "abs": sp.Abs}
-    namespace.update({s.name: sym for s, sym in zip(spec.states, symbols)})
+    namespace.update({s.name: sym for s, sym in zip(spec.factors, symbols)})
     namespace.update(values)
     for name, text in spec.lets.items():
         namespace[name] = sp.sympify(text, locals=namespace)
@@ -670,16 +670,16 @@ def build_numeric_model(spec: ModelSpec) -> NumericModel:
         return sp.sympify(text, locals=namespace)
 
     initial = np.array(
-        [parse_literal(s.literal) * unit_scale(s.unit, spec.clock) for s in spec.states]
+        [parse_literal(s.literal) * unit_scale(s.unit, spec.clock) for s in spec.factors]
     )
-    drift = [sp.expand(parse(spec.drift[s.name])) for s in spec.states]
-    diffusion = sp.zeros(len(spec.states), len(spec.noises))
-    for i, state in enumerate(spec.states):
+    drift = [sp.expand(parse(spec.drift[s.name])) for s in spec.factors]
+    diffusion = sp.zeros(len(spec.factors), len(spec.shocks))
+    for i, state in enumerate(spec.factors):
         for noise, text in spec.diffusion[state.name].items():
-            diffusion[i, spec.noises.index(noise)] = parse(text)
-    correlation = np.eye(len(spec.noises))
+            diffusion[i, spec.shocks.index(noise)] = parse(text)
+    correlation = np.eye(len(spec.shocks))
     for (first, second), literal in spec.correlations.items():
-        a, b = spec.noises.index(first), spec.noises.index(second)
+        a, b = spec.shocks.index(first), spec.shocks.index(second)
         correlation[a, b] = correlation[b, a] = parse_literal(literal)
     if np.linalg.eigvalsh(correlation).min() < -1e-12:
         raise ReferenceError(f"{spec.relative_path}: correlation matrix is not positive semi-definite")
@@ -752,7 +752,7 @@ def moment_system(model: NumericModel, indices: list[int], shift: np.ndarray) ->
     for expression in drift + [c for row in covariance for c in row]:
         if expression.free_symbols - set(ys) - {TIME}:
             raise ReferenceError(
-                f"{model.spec.relative_path}: states {indices} are not a closed subsystem"
+                f"{model.spec.relative_path}: factors {indices} are not a closed subsystem"
             )
     exponents = monomial_exponents(len(indices))
     generator = sp.zeros(len(exponents), len(exponents))
@@ -796,7 +796,7 @@ def moments_to_mean_covariance(system: MomentSystem, moments: np.ndarray) -> tup
 
 
 def moments_by_solve_ivp(model: NumericModel) -> tuple[np.ndarray, np.ndarray]:
-    """Integrates the moment equations of all states with an explicit Runge-Kutta."""
+    """Integrates the moment equations of all factors with an explicit Runge-Kutta."""
     indices = list(range(model.size))
     system = moment_system(model, indices, model.initial)
     matrix = sp.lambdify(TIME, system.generator, modules="numpy")
@@ -1035,7 +1035,7 @@ def dependency_closure(model: NumericModel, i: int) -> list[int]:
 
 
 def coupled_blocks(model: NumericModel) -> list[list[int]]:
-    """Groups of states that share a drift dependency or correlated noises."""
+    """Groups of factors that share a drift dependency or correlated shocks."""
     parent = list(range(model.size))
 
     def find(k: int) -> int:
@@ -1123,7 +1123,7 @@ def compute_figures(model: NumericModel) -> Figures:
     methods: list[str] = []
     quadrature = False
     for block in coupled_blocks(model):
-        families = {model.spec.states[i].family for i in block}
+        families = {model.spec.factors[i].family for i in block}
         if model.depends_on_time(block):
             if len(block) != 1:
                 raise ReferenceError(f"{where}: time-dependent coupled block {block}")
@@ -1150,7 +1150,7 @@ def compute_figures(model: NumericModel) -> Figures:
             block_mean, block_cov = moments_by_generator_expm(model, block)
             methods.append("generator on monomials of degree <= 2 (sympy, scipy.linalg.expm)")
             for i in block:
-                if model.spec.states[i].family == "square-root" and dependency_closure(model, i) == [i]:
+                if model.spec.factors[i].family == "square-root" and dependency_closure(model, i) == [i]:
                     m, v = square_root_by_ncx2(model, i)
                     k = block.index(i)
                     assert_agree(where, f"generator and ncx2 for state {i}", [block_mean[k], block_cov[k, k]],
@@ -1170,7 +1170,7 @@ def compute_figures(model: NumericModel) -> Figures:
     for i in range(n):
         closure = dependency_closure(model, i)
         by_generator = stationary_by_generator(model, closure)
-        family = model.spec.states[i].family
+        family = model.spec.factors[i].family
         if by_generator is None:
             stationary.append(None)
             continue
@@ -1190,9 +1190,9 @@ def compute_figures(model: NumericModel) -> Figures:
                      [max(abs(primary[0]), math.sqrt(primary[1])), primary[1]], METHOD_AGREEMENT)
         stationary.append((float(primary[0]), float(primary[1])))
 
-    # One-state Ornstein-Uhlenbeck states: the sympy closed forms must match too.
+    # One-state Ornstein-Uhlenbeck factors: the sympy closed forms must match too.
     for i in range(n):
-        if model.spec.states[i].family == "ornstein-uhlenbeck" and dependency_closure(model, i) == [i]:
+        if model.spec.factors[i].family == "ornstein-uhlenbeck" and dependency_closure(model, i) == [i]:
             s_mean, s_variance, s_stat_mean, s_stat_variance = ou_by_sympy(model, i)
             assert_agree(where, f"sympy closed form for state {i}", [mean[i], covariance[i, i]],
                          [s_mean, s_variance], [abs(s_mean), s_variance], METHOD_AGREEMENT)
@@ -1221,11 +1221,11 @@ def snap_zero(value: float, scale: float) -> float:
 def model_record(spec: ModelSpec) -> dict:
     model = build_numeric_model(spec)
     figures = compute_figures(model)
-    states = []
-    for i, state in enumerate(spec.states):
+    factors = []
+    for i, state in enumerate(spec.factors):
         stationary = figures.stationary[i]
         variance = float(figures.covariance[i, i])
-        states.append({
+        factors.append({
             "name": state.name,
             "family": state.family,
             "mean": snap_zero(figures.mean[i], math.sqrt(variance)),
@@ -1240,7 +1240,7 @@ def model_record(spec: ModelSpec) -> dict:
         "tolerance": TOLERANCE_QUADRATURE if figures.quadrature else TOLERANCE_EXACT,
         "method": figures.method,
         "sources": list(spec.sources),
-        "states": states,
+        "factors": factors,
         "covariance": [[float(v) for v in row] for row in figures.covariance],
     }
 
@@ -1482,9 +1482,9 @@ def compare_documents(expected: dict, actual: dict) -> list[str]:
         old, new = old_models[name], new_models[name]
         # Covariance entries are compared on the scale of sd_i * sd_j, so that an
         # entry that is zero in exact arithmetic does not demand 1e-12 of itself.
-        variances = [s.get("variance", 0.0) for s in new.get("states", [])]
+        variances = [s.get("variance", 0.0) for s in new.get("factors", [])]
         for key in sorted(set(old) | set(new)):
-            if key == "states" and isinstance(old.get(key), list) and len(old[key]) == len(new[key]):
+            if key == "factors" and isinstance(old.get(key), list) and len(old[key]) == len(new[key]):
                 # A mean is compared on the scale of its standard deviation as well.
                 for k, (state_old, state_new) in enumerate(zip(old[key], new[key])):
                     for field_name in sorted(set(state_old) | set(state_new)):
@@ -1493,7 +1493,7 @@ def compare_documents(expected: dict, actual: dict) -> list[str]:
                             scale = math.sqrt(abs(state_new.get("variance") or 0.0))
                         elif field_name == "stationary_mean":
                             scale = math.sqrt(abs(state_new.get("stationary_variance") or 0.0))
-                        compare(f"{name}.states[{k}].{field_name}", state_old.get(field_name),
+                        compare(f"{name}.factors[{k}].{field_name}", state_old.get(field_name),
                                 state_new.get(field_name), scale)
             elif key == "covariance" and key in old and key in new:
                 rows_old, rows_new = old[key], new[key]

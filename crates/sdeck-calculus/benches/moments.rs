@@ -13,8 +13,8 @@ model bench_ou
 param kappa = 1.5 [1/year] > 0
 param level = 4%
 param vol = 1% [1/sqrt(year)] > 0
-noise W
-state r = 2%
+shock W
+factor r = 2%
 dr = kappa * (level - r) dt + vol dW
 ";
 
@@ -24,12 +24,12 @@ param a = 0.9 [1/year]
 param b = 0.3 [1/year]
 param c = 0.2 [1/year]
 param v = 1% [1/sqrt(year)]
-noise W1, W2, W3
+shock W1, W2, W3
 corr W1 W2 = 0.4
 corr W2 W3 = -0.2
-state r = 2%
-state i = 1.5%
-state g = 0
+factor r = 2%
+factor i = 1.5%
+factor g = 0
 dr = (a * (0.025 - r) + b * (i - 0.02) + c * g) dt + v dW1
 di = (b * (r - 0.025) - a * (i - 0.02)) dt + v dW2
 dg = (-a * g + c * (r - 0.025)) dt + v dW3
@@ -41,10 +41,10 @@ param mu = 5% [1/year]
 param kappa = 2.0 [1/year] > 0
 param theta = 0.04 [1/year] >= 0
 param xi = 0.3 [1/year] > 0
-noise Wx, Wv
+shock Wx, Wv
 corr Wx Wv = -0.6
-state x = 0.2
-state v = 0.05 [1/year] >= 0
+factor x = 0.2
+factor v = 0.05 [1/year] >= 0
 dx = (mu - 0.5 * v) dt + sqrt(v) dWx
 dv = kappa * (theta - v) dt + xi * sqrt(v) dWv
 ";
@@ -65,9 +65,9 @@ fn main() {
         "model", "derive ns/call", "moments_at ns/call"
     );
     for (name, source, iterations) in [
-        ("one-state OU", ONE_STATE_OU, 20_000),
-        ("three-state linear", THREE_STATE_LINEAR, 2_000),
-        ("two-state polynomial", POLYNOMIAL, 2_000),
+        ("one-factor OU", ONE_STATE_OU, 20_000),
+        ("three-factor linear", THREE_STATE_LINEAR, 2_000),
+        ("two-factor polynomial", POLYNOMIAL, 2_000),
     ] {
         let analysis = sdeck_semantics::analyze(source, name);
         let model = analysis.model;

@@ -26,7 +26,7 @@ fn main() {
         println!("drift eigenvalues: {eigen:?}");
     }
     let moments = sdeck_calculus::moments_at(model, &derivation, model.horizon);
-    for (i, (state, law)) in model.states.iter().zip(&derivation.states).enumerate() {
+    for (i, (state, law)) in model.factors.iter().zip(&derivation.states).enumerate() {
         println!(
             "\n{}: {} by {}",
             state.name,

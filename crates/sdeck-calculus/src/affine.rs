@@ -223,7 +223,7 @@ fn affine_parts(poly: &Poly, log: &[bool]) -> Option<(Poly, Vec<Poly>)> {
 impl AffineSet {
     /// The affine set of every factor of `model`, or why the model has none.
     pub fn from_model(model: &Model) -> Result<AffineSet, String> {
-        let n = model.states.len();
+        let n = model.factors.len();
         if n == 0 {
             return Err("the model declares no factor".to_string());
         }
@@ -249,7 +249,7 @@ impl AffineSet {
             if affine_itself {
                 continue;
             }
-            let start = model.states.get(i).map(|s| s.initial).unwrap_or(f64::NAN);
+            let start = model.factors.get(i).map(|s| s.initial).unwrap_or(f64::NAN);
             match relative_shape(shape, i) {
                 Some(r) if start > 0.0 => {
                     log[i] = true;
@@ -305,7 +305,7 @@ impl AffineSet {
             }
         }
         let x0 = model
-            .states
+            .factors
             .iter()
             .zip(&log)
             .map(|(s, &l)| if l { s.initial.ln() } else { s.initial })
@@ -625,7 +625,7 @@ impl AffineSet {
 
 fn name(model: &Model, i: usize) -> String {
     model
-        .states
+        .factors
         .get(i)
         .map(|s| s.name.clone())
         .unwrap_or_else(|| format!("factor {}", i + 1))

@@ -318,7 +318,7 @@ pub fn expr_mentions_time(expr: &Expr) -> bool {
 
 /// Whether a state appears in the expression.
 pub fn expr_mentions_states(expr: &Expr) -> bool {
-    any_leaf(expr, &|e| matches!(e, Expr::State(_)))
+    any_leaf(expr, &|e| matches!(e, Expr::Factor(_)))
 }
 
 fn any_leaf(expr: &Expr, test: &dyn Fn(&Expr) -> bool) -> bool {
@@ -340,7 +340,7 @@ fn constant_value(expr: &Expr) -> Option<f64> {
     let numeric_only = !any_leaf(expr, &|e| {
         matches!(
             e,
-            Expr::Param(_) | Expr::State(_) | Expr::Time | Expr::Invalid
+            Expr::Param(_) | Expr::Factor(_) | Expr::Time | Expr::Invalid
         )
     });
     numeric_only.then(|| expr.eval(&[], &[], 0.0))
@@ -354,7 +354,7 @@ pub fn to_poly(expr: &Expr) -> Result<Poly, NotPolynomial> {
     match expr {
         Expr::Const(c) => Ok(Poly::constant(*c)),
         Expr::Param(i) => Ok(Poly::atom(Atom::Param(*i))),
-        Expr::State(i) => Ok(Poly::atom(Atom::State(*i))),
+        Expr::Factor(i) => Ok(Poly::atom(Atom::State(*i))),
         Expr::Time => Ok(Poly::atom(Atom::Time)),
         Expr::Neg(a) => Ok(to_poly(a)?.neg()),
         Expr::Add(a, b) => Ok(to_poly(a)?.add(&to_poly(b)?)),
@@ -571,7 +571,7 @@ impl<'a> Names<'a> {
 
     fn state(&self, i: usize) -> String {
         self.model
-            .states
+            .factors
             .get(i)
             .map(|s| s.name.clone())
             .unwrap_or_else(|| format!("x{i}"))
@@ -749,7 +749,7 @@ pub fn show_expr(expr: &Expr, names: &Names) -> String {
             }
         }
         Expr::Param(i) => names.param(*i),
-        Expr::State(i) => names.state(*i),
+        Expr::Factor(i) => names.state(*i),
         Expr::Time => names.time.to_string(),
         Expr::Neg(a) => format!("−{}", wrap(a, 3)),
         Expr::Add(a, b) => format!("{} + {}", wrap(a, 1), wrap(b, 1)),
@@ -773,7 +773,7 @@ mod tests {
         Box::new(Expr::Param(i))
     }
     fn x(i: usize) -> Box<Expr> {
-        Box::new(Expr::State(i))
+        Box::new(Expr::Factor(i))
     }
 
     #[test]
@@ -816,7 +816,7 @@ mod tests {
         // vol * sqrt(r), sqrt(vol^2 * r) and sqrt(r) * vol all square to vol²·r.
         let a = Expr::Mul(
             p(0),
-            Box::new(Expr::Call(Function::Sqrt, vec![Expr::State(0)])),
+            Box::new(Expr::Call(Function::Sqrt, vec![Expr::Factor(0)])),
         );
         let b = Expr::Call(
             Function::Sqrt,
@@ -826,7 +826,7 @@ mod tests {
             )],
         );
         let c = Expr::Mul(
-            Box::new(Expr::Call(Function::Sqrt, vec![Expr::State(0)])),
+            Box::new(Expr::Call(Function::Sqrt, vec![Expr::Factor(0)])),
             p(0),
         );
         let expected = Poly::atom(Atom::Param(0))
@@ -841,8 +841,8 @@ mod tests {
 
     #[test]
     fn state_inside_a_function_is_not_polynomial() {
-        let e = Expr::Call(Function::Exp, vec![Expr::State(0)]);
-        let err = to_poly(&e).expect_err("exp of a state");
+        let e = Expr::Call(Function::Exp, vec![Expr::Factor(0)]);
+        let err = to_poly(&e).expect_err("exp of a factor");
         assert_eq!(err.piece, e);
         // but a function of parameters and t is an opaque coefficient
         let g = Expr::Mul(Box::new(Expr::Call(Function::Sin, vec![Expr::Time])), x(0));
@@ -859,7 +859,7 @@ mod tests {
         let leaf = prop_oneof![
             (-3.0..3.0f64).prop_map(Expr::Const),
             (0..2usize).prop_map(Expr::Param),
-            (0..2usize).prop_map(Expr::State),
+            (0..2usize).prop_map(Expr::Factor),
             Just(Expr::Time),
         ];
         leaf.prop_recursive(4, 24, 2, |inner| {

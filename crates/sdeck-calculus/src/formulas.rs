@@ -17,7 +17,7 @@ impl<'a> Writer<'a> {
             names: Names::new(model),
             model,
             state: model
-                .states
+                .factors
                 .get(state)
                 .map(|s| s.name.clone())
                 .unwrap_or_else(|| "x".to_string()),
@@ -512,7 +512,7 @@ pub(crate) fn coupled(
             mean: Some(format!(
                 "first and second moments of ({}) from their linear moment equations",
                 model
-                    .states
+                    .factors
                     .iter()
                     .map(|s| s.name.as_str())
                     .collect::<Vec<_>>()

@@ -81,7 +81,7 @@ pub fn law_of(model: &Model, derivation: &Derivation, state: usize, t: f64) -> O
     if !(t.is_finite() && t >= 0.0) {
         return None;
     }
-    let x0 = model.states.get(state)?.initial;
+    let x0 = model.factors.get(state)?.initial;
     if t == 0.0 {
         return Some(Law {
             kind: LawKind::Normal,

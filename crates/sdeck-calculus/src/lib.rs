@@ -16,7 +16,7 @@
 //!
 //! ```
 //! let analysis = sdeck_semantics::analyze(
-//!     "param kappa = 2 [1/year]\nparam vol = 1% [1/sqrt(year)]\nnoise W\n\
+//!     "param kappa = 2 [1/year]\nparam vol = 1% [1/sqrt(year)]\nshock W\n\
 //!      state r = 3%\ndr = -kappa * r dt + vol dW\n",
 //!     "demo",
 //! );
@@ -195,7 +195,7 @@ pub(crate) struct Analysis {
 
 pub(crate) fn analyse(model: &Model) -> Analysis {
     let corr = model.correlations();
-    let classified: Vec<Classified> = (0..model.states.len())
+    let classified: Vec<Classified> = (0..model.factors.len())
         .map(|i| classify_state(model, i, &corr))
         .collect();
     let system = classify_system(model, &classified, &corr);

@@ -74,14 +74,14 @@ impl AffineGaussian {
         }
         if self.b.len() != n {
             return Err(format!(
-                "the constant drift has {} entries for {} states",
+                "the constant drift has {} entries for {} factors",
                 self.b.len(),
                 n
             ));
         }
         if self.loadings.nrows() != n {
             return Err(format!(
-                "the diffusion loadings have {} rows for {} states",
+                "the diffusion loadings have {} rows for {} factors",
                 self.loadings.nrows(),
                 n
             ));
@@ -89,7 +89,7 @@ impl AffineGaussian {
         let m = self.loadings.ncols();
         if self.corr.nrows() != m || self.corr.ncols() != m {
             return Err(format!(
-                "the correlation matrix is {}×{} for {} noises",
+                "the correlation matrix is {}×{} for {} shocks",
                 self.corr.nrows(),
                 self.corr.ncols(),
                 m

@@ -317,7 +317,7 @@ fn integrate_in_place<F: Fn(f64, &[f64], &mut [f64])>(
     check_tolerances(rtol, atol)?;
     if !all_finite(y) {
         return Err(OdeError::InvalidInput(
-            "the initial state contains a non-finite value".to_string(),
+            "the initial values contain a non-finite number".to_string(),
         ));
     }
     if t0 == t1 || y.is_empty() {

@@ -87,12 +87,12 @@ impl PolynomialSystem {
             vec![DMatrix::zeros(n, n); n]
         } else if c1.len() != n {
             return Err(format!(
-                "{} linear covariance parts for {n} states",
+                "{} linear covariance parts for {n} factors",
                 c1.len()
             ));
         } else {
             for (k, matrix) in c1.iter().enumerate() {
-                check_square(matrix, &format!("the linear covariance part of state {k}"))?;
+                check_square(matrix, &format!("the linear covariance part of factor {k}"))?;
             }
             c1
         };
@@ -107,7 +107,7 @@ impl PolynomialSystem {
                 for (l, matrix) in row.iter().enumerate() {
                     check_square(
                         matrix,
-                        &format!("the quadratic covariance part of states ({k}, {l})"),
+                        &format!("the quadratic covariance part of factors ({k}, {l})"),
                     )?;
                 }
             }
@@ -137,26 +137,26 @@ impl PolynomialSystem {
         let m = s0.ncols();
         if s0.nrows() != n {
             return Err(format!(
-                "the constant loadings have {} rows for {n} states",
+                "the constant loadings have {} rows for {n} factors",
                 s0.nrows()
             ));
         }
         if corr.nrows() != m || corr.ncols() != m {
             return Err(format!(
-                "the correlation matrix is {}×{} for {m} noises",
+                "the correlation matrix is {}×{} for {m} shocks",
                 corr.nrows(),
                 corr.ncols()
             ));
         }
         if !s1.is_empty() && s1.len() != n {
-            return Err(format!("{} linear loading parts for {n} states", s1.len()));
+            return Err(format!("{} linear loading parts for {n} factors", s1.len()));
         }
         if let Some(k) = s1
             .iter()
             .position(|part| part.nrows() != n || part.ncols() != m)
         {
             return Err(format!(
-                "the linear loading part of state {k} is not {n}×{m}"
+                "the linear loading part of factor {k} is not {n}×{m}"
             ));
         }
         let c0 = s0 * corr * s0.transpose();
@@ -289,12 +289,12 @@ impl PolynomialSystem {
         let n = self.dimension();
         if x0.len() != n {
             return Err(format!(
-                "the initial state has {} entries for {n} states",
+                "the initial values have {} entries for {n} factors",
                 x0.len()
             ));
         }
         if !x0.iter().all(|v| v.is_finite()) {
-            return Err("the initial state has a non-finite entry".to_string());
+            return Err("the initial values have a non-finite entry".to_string());
         }
         if !(t.is_finite() && t >= 0.0) {
             return Err(format!(
@@ -469,7 +469,7 @@ impl MonomialBasis {
         let size = basis_size(dimension, order).filter(|size| *size <= MAX_BASIS_SIZE);
         let Some(size) = size else {
             return Err(format!(
-                "moments up to order {order} of {dimension} states need more than \
+                "moments up to order {order} of {dimension} factors need more than \
                  {MAX_BASIS_SIZE} monomials"
             ));
         };

@@ -34,7 +34,7 @@ pub(crate) enum Unresolved {
 /// Every state mentioned by the state's equation, itself excluded.
 pub(crate) fn mentioned_states(model: &Model, index: usize) -> Vec<usize> {
     let mut out = Vec::new();
-    if let Some(eq) = model.states.get(index).and_then(|s| s.equation.as_ref()) {
+    if let Some(eq) = model.factors.get(index).and_then(|s| s.equation.as_ref()) {
         collect_states(&eq.drift, &mut out);
         for term in &eq.diffusion {
             collect_states(&term.coefficient, &mut out);
@@ -48,7 +48,7 @@ pub(crate) fn mentioned_states(model: &Model, index: usize) -> Vec<usize> {
 
 fn collect_states(expr: &Expr, out: &mut Vec<usize>) {
     match expr {
-        Expr::State(i) => out.push(*i),
+        Expr::Factor(i) => out.push(*i),
         Expr::Neg(a) => collect_states(a, out),
         Expr::Add(a, b) | Expr::Sub(a, b) | Expr::Mul(a, b) | Expr::Div(a, b) | Expr::Pow(a, b) => {
             collect_states(a, out);
@@ -61,7 +61,7 @@ fn collect_states(expr: &Expr, out: &mut Vec<usize>) {
 
 pub(crate) fn shape_of(model: &Model, index: usize) -> Result<Shape, Unresolved> {
     let equation = model
-        .states
+        .factors
         .get(index)
         .and_then(|s| s.equation.as_ref())
         .ok_or(Unresolved::DidNotResolve)?;
@@ -73,7 +73,7 @@ pub(crate) fn shape_of(model: &Model, index: usize) -> Result<Shape, Unresolved>
         || equation
             .diffusion
             .iter()
-            .any(|d| d.noise >= model.noises.len())
+            .any(|d| d.noise >= model.shocks.len())
     {
         return Err(Unresolved::DidNotResolve);
     }
@@ -101,10 +101,10 @@ pub(crate) fn shape_of(model: &Model, index: usize) -> Result<Shape, Unresolved>
 
 pub(crate) fn noise_name(model: &Model, noise: usize) -> String {
     model
-        .noises
+        .shocks
         .get(noise)
         .map(|n| n.name.clone())
-        .unwrap_or_else(|| format!("noise {noise}"))
+        .unwrap_or_else(|| format!("shock {noise}"))
 }
 
 /// Correlation of two noises, 1 on the diagonal, 0 when unknown.
@@ -185,7 +185,7 @@ pub(crate) fn unresolved_reason(model: &Model, why: &Unresolved) -> String {
     match why {
         Unresolved::DidNotResolve => "the equation did not resolve".to_string(),
         Unresolved::NotPolynomial { place, piece } => format!(
-            "no closed form is known: in the {place}, `{}` is not a polynomial in the states \
+            "no closed form is known: in the {place}, `{}` is not a polynomial in the factors \
              (nor a square root of one)",
             show_expr(piece, &names)
         ),
@@ -201,7 +201,7 @@ pub(crate) fn classify_state(model: &Model, index: usize, corr: &Correlations) -
     };
     let names = Names::new(model);
     let name = model
-        .states
+        .factors
         .get(index)
         .map(|s| s.name.clone())
         .unwrap_or_default();
@@ -209,7 +209,7 @@ pub(crate) fn classify_state(model: &Model, index: usize, corr: &Correlations) -
         // Coupled: the system classification decides; here only say why.
         let others: Vec<String> = depends_on
             .iter()
-            .filter_map(|i| model.states.get(*i).map(|s| s.name.clone()))
+            .filter_map(|i| model.factors.get(*i).map(|s| s.name.clone()))
             .collect();
         return Classified {
             family: Family::General,
@@ -235,7 +235,7 @@ pub(crate) fn classify_state(model: &Model, index: usize, corr: &Correlations) -
             return general(
                 format!(
                     "no closed form is known: the diffusion `{}` combined with the other \
-                     noise terms is not the square root of a polynomial",
+                     shock terms is not the square root of a polynomial",
                     show_expr(&piece, &names)
                 ),
                 depends_on,
@@ -400,11 +400,11 @@ pub(crate) fn classify_system(
     states: &[Classified],
     corr: &Correlations,
 ) -> SystemShape {
-    let n = model.states.len();
+    let n = model.factors.len();
     if n == 0 {
         return SystemShape {
             family: Family::General,
-            reason: "the model declares no state".to_string(),
+            reason: "the model declares no factor".to_string(),
             drift_rows: None,
             loadings: None,
             shapes: Vec::new(),
@@ -420,8 +420,8 @@ pub(crate) fn classify_system(
                 return SystemShape {
                     family: Family::General,
                     reason: format!(
-                        "state {}: {}",
-                        model.states.get(i).map(|s| s.name.as_str()).unwrap_or("?"),
+                        "factor {}: {}",
+                        model.factors.get(i).map(|s| s.name.as_str()).unwrap_or("?"),
                         unresolved_reason(model, &why)
                     ),
                     drift_rows: None,
@@ -439,20 +439,20 @@ pub(crate) fn classify_system(
                 family: only.family,
                 reason: only.reason.clone(),
                 drift_rows: drift_rows(&shapes, n),
-                loadings: loadings(&shapes, model.noises.len()),
+                loadings: loadings(&shapes, model.shocks.len()),
                 time_dependent: only.one_state.as_ref().is_some_and(|o| o.time_dependent),
                 shapes,
             };
         }
     }
     let rows = drift_rows(&shapes, n);
-    let loads = loadings(&shapes, model.noises.len());
+    let loads = loadings(&shapes, model.shocks.len());
     let time_dependent = shapes.iter().any(|s| {
         s.drift.depends_on_time() || s.noises.iter().any(|t| t.form.square().depends_on_time())
     });
     let state_name = |i: usize| {
         model
-            .states
+            .factors
             .get(i)
             .map(|s| s.name.clone())
             .unwrap_or_default()
@@ -465,7 +465,7 @@ pub(crate) fn classify_system(
         return SystemShape {
             family: Family::General,
             reason: format!(
-                "no closed form is known: the drift of {} is not affine in the states{}",
+                "no closed form is known: the drift of {} is not affine in the factors{}",
                 state_name(culprit),
                 shapes
                     .get(culprit)
@@ -485,7 +485,7 @@ pub(crate) fn classify_system(
         return SystemShape {
             family: Family::LinearSystem,
             reason: format!(
-                "{n} states, drift affine in the states, diffusion independent of the states"
+                "{n} factors, drift affine in the factors, diffusion independent of the factors"
             ),
             drift_rows: rows,
             loadings: loads,
@@ -505,7 +505,7 @@ pub(crate) fn classify_system(
                         family: Family::General,
                         reason: format!(
                             "no closed form is known: the instantaneous covariance of {} and \
-                             {}{} is above quadratic in the states",
+                             {}{} is above quadratic in the factors",
                             state_name(i),
                             state_name(j),
                             shown(show_poly(&p, &names))
@@ -521,7 +521,7 @@ pub(crate) fn classify_system(
                         family: Family::General,
                         reason: format!(
                             "no closed form is known: the diffusion `{}` times the diffusion \
-                             of {} is not a polynomial in the states",
+                             of {} is not a polynomial in the factors",
                             show_expr(&piece, &names),
                             state_name(i)
                         ),
@@ -537,8 +537,8 @@ pub(crate) fn classify_system(
     SystemShape {
         family: Family::Polynomial,
         reason: format!(
-            "{n} states, drift affine in the states, instantaneous covariances at most \
-             quadratic in the states"
+            "{n} factors, drift affine in the factors, instantaneous covariances at most \
+             quadratic in the factors"
         ),
         drift_rows: rows,
         loadings: None,

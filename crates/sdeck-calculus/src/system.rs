@@ -21,11 +21,11 @@ pub const MAX_SYSTEM_STATES: usize = 24;
 
 /// Whether some state has no one-state law of its own, so the system engines are needed.
 fn needs_system(model: &Model, analysis: &Analysis) -> bool {
-    (0..model.states.len()).any(|i| analysis.one_state(i).is_none())
+    (0..model.factors.len()).any(|i| analysis.one_state(i).is_none())
 }
 
 pub(crate) fn derive(model: &Model, analysis: &Analysis) -> Derivation {
-    let n = model.states.len();
+    let n = model.factors.len();
     let mut states = Vec::with_capacity(n);
     let params = &analysis.params;
     let system = &analysis.system;
@@ -69,7 +69,7 @@ pub(crate) fn derive(model: &Model, analysis: &Analysis) -> Derivation {
             (
                 Family::General,
                 format!(
-                    "{}; the model has {n} states, more than the {MAX_SYSTEM_STATES} the several-state engines take: simulate it",
+                    "{}; the model has {n} factors, more than the {MAX_SYSTEM_STATES} the several-factor engines take: simulate it",
                     classified.reason
                 ),
                 Method::None,
@@ -225,7 +225,7 @@ fn one_state_law(
     let square_root = (family == Family::SquareRoot).then(|| {
         let speed = -values.b;
         let noise = model
-            .states
+            .factors
             .get(index)
             .and_then(|s| s.equation.as_ref())
             .and_then(|e| e.diffusion.first())
@@ -260,12 +260,12 @@ pub(crate) fn linear_engine(model: &Model, analysis: &Analysis) -> Option<Affine
     let system = &analysis.system;
     if system.family != Family::LinearSystem
         || system.time_dependent
-        || model.states.len() > MAX_SYSTEM_STATES
+        || model.factors.len() > MAX_SYSTEM_STATES
     {
         return None;
     }
     let (a, b, loadings) = linear_matrices(model, analysis, 0.0)?;
-    let m = model.noises.len();
+    let m = model.shocks.len();
     let corr = DMatrix::from_fn(m, m, |k, l| correlation(&analysis.corr, k, l));
     AffineGaussian::new(a, b, loadings, corr).ok()
 }
@@ -276,12 +276,12 @@ pub(crate) fn polynomial_engine(model: &Model, analysis: &Analysis) -> Option<Po
     let system = &analysis.system;
     if system.family != Family::Polynomial
         || system.time_dependent
-        || model.states.len() > MAX_SYSTEM_STATES
+        || model.factors.len() > MAX_SYSTEM_STATES
     {
         return None;
     }
     let rows = system.drift_rows.as_ref()?;
-    let n = model.states.len();
+    let n = model.factors.len();
     let params = &analysis.params;
     let a = DMatrix::from_fn(n, n, |r, c| {
         rows.get(r)
@@ -330,8 +330,8 @@ fn linear_matrices(
 ) -> Option<(DMatrix<f64>, DVector<f64>, DMatrix<f64>)> {
     let rows = analysis.system.drift_rows.as_ref()?;
     let loads = analysis.system.loadings.as_ref()?;
-    let n = model.states.len();
-    let m = model.noises.len();
+    let n = model.factors.len();
+    let m = model.shocks.len();
     let params = &analysis.params;
     let value = |p: Option<&Poly>| p.map(|p| p.value(params, t)).unwrap_or(0.0);
     let a = DMatrix::from_fn(n, n, |r, c| {
@@ -349,7 +349,7 @@ fn integrate_linear_system(
     analysis: &Analysis,
     t: f64,
 ) -> Option<(DVector<f64>, DMatrix<f64>)> {
-    let m = model.noises.len();
+    let m = model.shocks.len();
     let corr = DMatrix::from_fn(m, m, |k, l| correlation(&analysis.corr, k, l));
     integrate_mean_covariance(model, t, |s, _mean, _cov| {
         let (a, b, loadings) = linear_matrices(model, analysis, s)?;
@@ -369,7 +369,7 @@ fn integrate_mean_covariance<F>(
 where
     F: Fn(f64, &DVector<f64>, &DMatrix<f64>) -> Option<(DMatrix<f64>, DVector<f64>, DMatrix<f64>)>,
 {
-    let n = model.states.len();
+    let n = model.factors.len();
     let unpack = |y: &[f64]| {
         let mean = DVector::from_fn(n, |r, _| y.get(r).copied().unwrap_or(f64::NAN));
         let cov = DMatrix::from_fn(n, n, |r, c| {
@@ -428,7 +428,7 @@ fn integrate_polynomial_system(
 ) -> Option<(DVector<f64>, DMatrix<f64>)> {
     let system = &analysis.system;
     let rows = system.drift_rows.as_ref()?;
-    let n = model.states.len();
+    let n = model.factors.len();
     let params = &analysis.params;
     type Pieces = Vec<(Vec<(usize, i64)>, Poly)>;
     let mut covariance_pieces: Vec<Vec<Pieces>> = Vec::with_capacity(n);
@@ -471,7 +471,7 @@ pub(crate) fn moments_at(
     analysis: &Analysis,
     t: f64,
 ) -> Moments {
-    let n = model.states.len();
+    let n = model.factors.len();
     let params = &analysis.params;
     let x0 = model.initial_values();
     let mut mean = vec![None; n];
@@ -583,7 +583,7 @@ fn pair_covariance(
     // Two decoupled states driven by uncorrelated noises are independent, whatever
     // their families.
     let noises = |k: usize| -> Option<Vec<usize>> {
-        let equation = model.states.get(k)?.equation.as_ref()?;
+        let equation = model.factors.get(k)?.equation.as_ref()?;
         Some(equation.diffusion.iter().map(|d| d.noise).collect())
     };
     if let (Some(of_first), Some(of_second)) = (noises(i), noises(j)) {
@@ -655,7 +655,7 @@ pub(crate) fn autocovariance(
     t: f64,
 ) -> Option<f64> {
     let _ = derivation;
-    let x0 = model.states.get(state)?.initial;
+    let x0 = model.factors.get(state)?.initial;
     if let Some((os, family)) = analysis.one_state(state) {
         return one_state::autocovariance(os, family, &analysis.params, x0, s, t);
     }
@@ -692,7 +692,7 @@ pub(crate) fn quantile(
     t: f64,
     p: f64,
 ) -> Option<f64> {
-    let x0 = model.states.get(state)?.initial;
+    let x0 = model.factors.get(state)?.initial;
     if let Some((os, family)) = analysis.one_state(state) {
         return one_state::quantile(os, family, &analysis.params, x0, t, p);
     }

@@ -37,8 +37,8 @@ model brackenridge_rate
 param kappa = 1.5 [1/year] > 0
 param level = 4%
 param vol = 1% [1/sqrt(year)] > 0
-noise W
-state r = 2%
+shock W
+factor r = 2%
 dr = kappa * (level - r) dt + vol dW
 ";
 
@@ -116,8 +116,8 @@ model fenwick_hazard
 param kappa = 0.8 [1/year] > 0
 param level = 5%
 param vol = 0.12 [1/sqrt(year)] > 0
-noise W
-state h = 3% >= 0
+shock W
+factor h = 3% >= 0
 dh = kappa * (level - h) dt + vol * sqrt(h) dW
 ";
 
@@ -189,8 +189,8 @@ const GEOMETRIC: &str = "
 model tarrow_share
 param mu = 7% [1/year]
 param sigma = 25% [1/sqrt(year)] > 0
-noise W
-state S = 40 > 0
+shock W
+factor S = 40 > 0
 dS = mu * S dt + sigma * S dW
 ";
 
@@ -234,8 +234,8 @@ param a = 0.02 [1/year]
 param b = -0.9 [1/year]
 param c = 0.01 [1/sqrt(year)]
 param d = 0.3 [1/sqrt(year)]
-noise W
-state x = 0.05
+shock W
+factor x = 0.05
 dx = (a + b * x) dt + (c + d * x) dW
 ";
     let (m, d) = derived(source);
@@ -273,8 +273,8 @@ model stillwater_drift
 param kappa = 1e-13 [1/year]
 param target = 2e11
 param vol = 0.3 [1/sqrt(year)]
-noise W
-state x = 1
+shock W
+factor x = 1
 dx = kappa * (target - x) dt + vol dW
 ";
     let (m, d) = derived(source);
@@ -303,7 +303,7 @@ fn quadrature_agrees_with_the_closed_form() {
     // the elementary shapes, which forces the quadrature path.
     let forced = VASICEK
         .replace("vol dW", "vol * cos(0 * freq * t) dW")
-        .replace("noise W", "param freq = 1 [1/year]\nnoise W");
+        .replace("shock W", "param freq = 1 [1/year]\nshock W");
     let (m, d) = derived(&forced);
     assert_eq!(d.states[0].family, Family::Linear);
     assert_eq!(d.states[0].method, Method::Quadrature);
@@ -341,8 +341,8 @@ param base = 2%
 param slope = 0.5% [1/year]
 param sigma = 1% [1/sqrt(year)]
 param lam = 0.3 [1/year]
-noise W
-state x = 3%
+shock W
+factor x = 3%
 dx = kappa * (base + slope * t - x) dt + sigma * exp(-lam * t) dW
 ";
     let (m, d) = derived(source);
@@ -385,8 +385,8 @@ param a = 0.6 [1/year]
 param f = 1 [1/year]
 param c = 0.03 [1/year]
 param s = 0.02 [1/sqrt(year)]
-noise W
-state x = 0.01
+shock W
+factor x = 0.01
 dx = (c - (k + a * sin(2 * pi * f * t)) * x) dt + s * cos(pi * f * t) dW
 ";
     let (m, d) = derived(source);
@@ -428,9 +428,9 @@ model dunmore_rate
 param kappa = 2 [1/year]
 param s1 = 1% [1/sqrt(year)]
 param s2 = 0.5% [1/sqrt(year)]
-noise W1, W2
+shock W1, W2
 corr W1 W2 = -0.3
-state r = 1%
+factor r = 1%
 dr = -kappa * r dt + s1 dW1 + s2 dW2
 ";
     let (m, d) = derived(source);
@@ -467,7 +467,7 @@ fn families_are_recognised_structurally() {
     for (equation, family) in cases {
         let source = format!(
             "model kinds\nparam mu = 0.1 [1/year]\nparam vol = 0.2 [1/sqrt(year)]\n\
-             noise W\nstate x = 1\n{equation}\n"
+             shock W\nfactor x = 1\n{equation}\n"
         );
         // Dimension checks may object to some of these shapes; classification does not
         // depend on them, so only the model is used here.
@@ -492,7 +492,7 @@ fn families_are_recognised_structurally() {
 #[test]
 fn general_family_names_the_offending_term() {
     let analysis = analyze(
-        "model odd\nparam k = 1 [1/year]\nnoise W\nstate x = 1\ndx = -k * x dt + exp(x) dW\n",
+        "model odd\nparam k = 1 [1/year]\nshock W\nfactor x = 1\ndx = -k * x dt + exp(x) dW\n",
         "odd",
     );
     let d = derive(&analysis.model);
@@ -510,7 +510,7 @@ fn general_family_names_the_offending_term() {
 #[test]
 fn unresolved_equation_is_general_without_figures() {
     let analysis = analyze(
-        "model broken\nnoise W\nstate x = 1\ndx = -missing * x dt + dW\n",
+        "model broken\nshock W\nfactor x = 1\ndx = -missing * x dt + dW\n",
         "broken",
     );
     let d = derive(&analysis.model);

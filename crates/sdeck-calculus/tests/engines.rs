@@ -362,7 +362,7 @@ fn van_loan_tends_to_lyapunov() {
         &three.covariance_at(80.0),
         &three.stationary_covariance().unwrap(),
         1e-12,
-        "3-state limit",
+        "3-factor limit",
     );
     let stiff = AffineGaussian::new(
         DMatrix::from_row_slice(2, 2, &[-0.01, 5.0, 0.0, -100.0]),

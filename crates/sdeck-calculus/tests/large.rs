@@ -6,10 +6,10 @@ use sdeck_calculus::{derive, moments_at, Family};
 
 fn chain(n: usize, coupled: bool) -> String {
     let mut s = String::from(
-        "param k = 1 [1/year]\nparam v = 0.1 [1/sqrt(year)]\nparam c = 0.1 [1/year]\nnoise W\n",
+        "param k = 1 [1/year]\nparam v = 0.1 [1/sqrt(year)]\nparam c = 0.1 [1/year]\nshock W\n",
     );
     for i in 0..n {
-        s.push_str(&format!("state x{i} = {}\n", i as f64 / n as f64));
+        s.push_str(&format!("factor x{i} = {}\n", i as f64 / n as f64));
     }
     for i in 0..n {
         let extra = if coupled && i > 0 {

@@ -70,8 +70,8 @@ fn figures_agree_with_the_independent_reference() {
         let at = entry["at"].as_f64().expect("at");
         let tolerance = entry["tolerance"].as_f64().expect("tolerance");
         let moments = moments_at(model, &derivation, at);
-        let states = entry["states"].as_array().expect("states");
-        assert_eq!(states.len(), model.states.len(), "{file}: state count");
+        let states = entry["factors"].as_array().expect("factors");
+        assert_eq!(states.len(), model.factors.len(), "{file}: factor count");
         let sd: Vec<f64> = states
             .iter()
             .map(|s| number(&s["variance"]).unwrap_or(0.0).max(0.0).sqrt())

@@ -39,7 +39,7 @@ fn laws_and_bond_prices_agree_with_the_independent_reference() {
         let at = record["at"].as_f64();
         let factor = record["factor"]
             .as_str()
-            .map(|name| model.state_index(name).expect("factor"));
+            .map(|name| model.factor_index(name).expect("factor"));
         let argument = record["argument"].as_f64();
         let (ours, scale) = match check {
             "bond_price" => {
@@ -48,8 +48,8 @@ fn laws_and_bond_prices_agree_with_the_independent_reference() {
                 let expr = names
                     .iter()
                     .filter_map(Value::as_str)
-                    .map(|name| match model.state_index(name) {
-                        Some(i) => Expr::State(i),
+                    .map(|name| match model.factor_index(name) {
+                        Some(i) => Expr::Factor(i),
                         None => Expr::Param(model.param_index(name).expect("name")),
                     })
                     .reduce(|a, b| Expr::Add(Box::new(a), Box::new(b)))

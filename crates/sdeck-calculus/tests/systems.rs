@@ -32,10 +32,10 @@ param ks = 1.5 [1/year]
 param ms = 1.2%
 param beta = -0.25 [1/year]
 param vs = 0.6% [1/sqrt(year)]
-noise Wr, Ws
+shock Wr, Ws
 corr Wr Ws = -0.4
-state r = 2.6%
-state s = 1.5%
+factor r = 2.6%
+factor s = 1.5%
 dr = kr * (mr - r) dt + vr dWr
 ds = (ks * (ms - s) + beta * (r - mr)) dt + vs dWs
 ";
@@ -95,7 +95,7 @@ fn time_dependent_linear_system_integrates_to_the_constant_answer() {
     // the adaptive integrator instead of the Van Loan exponential; both must agree.
     let forced = TRIANGULAR
         .replace("vs dWs", "vs * exp(0 * f * t) dWs")
-        .replace("noise Wr, Ws", "param f = 1 [1/year]\nnoise Wr, Ws");
+        .replace("shock Wr, Ws", "param f = 1 [1/year]\nshock Wr, Ws");
     let m = model(&forced);
     let d = derive(&m);
     let m0 = model(TRIANGULAR);
@@ -133,10 +133,10 @@ param k1 = 1.2 [1/year]
 param k2 = 0.4 [1/year]
 param s1 = 1% [1/sqrt(year)]
 param s2 = 2% [1/sqrt(year)]
-noise A, B
+shock A, B
 corr A B = 0.55
-state x = 1%
-state y = 2%
+factor x = 1%
+factor y = 2%
 dx = -k1 * x dt + s1 dA
 dy = k2 * (0.03 - y) dt + s2 dB
 ";
@@ -166,10 +166,10 @@ param m1 = 5% [1/year]
 param m2 = 2% [1/year]
 param v1 = 30% [1/sqrt(year)]
 param v2 = 20% [1/sqrt(year)]
-noise A, B
+shock A, B
 corr A B = -0.35
-state p = 50
-state q = 20
+factor p = 50
+factor q = 20
 dp = m1 * p dt + v1 * p dA
 dq = m2 * q dt + v2 * q dB
 ";
@@ -202,11 +202,11 @@ param s1 = 1% [1/sqrt(year)]
 param mu = 4% [1/year]
 param s2 = 25% [1/sqrt(year)]
 param c = 0.1 [1/year]
-noise A, B, C
+shock A, B, C
 corr A B = 0.3
-state x = 1%
-state y = 10
-state z = 1
+factor x = 1%
+factor y = 10
+factor z = 1
 dx = -k * x dt + s1 dA
 dy = mu * y dt + s2 * y dB
 dz = -c * z^3 dt + s1 dC
@@ -235,7 +235,7 @@ fn time_dependent_polynomial_system_integrates_to_the_constant_answer() {
     let constant = WEXLEY.to_string();
     let forced = WEXLEY
         .replace("xi * sqrt(v) dWv", "xi * cos(0 * f * t) * sqrt(v) dWv")
-        .replace("noise Wx, Wv", "param f = 1 [1/year]\nnoise Wx, Wv");
+        .replace("shock Wx, Wv", "param f = 1 [1/year]\nshock Wx, Wv");
     let (m0, m1) = (model(&constant), model(&forced));
     let (d0, d1) = (derive(&m0), derive(&m1));
     let (a, b) = (moments_at(&m0, &d0, 0.8), moments_at(&m1, &d1, 0.8));
@@ -264,10 +264,10 @@ param mu = 5% [1/year]
 param kappa = 2.0 [1/year] > 0
 param theta = 0.04 [1/year] >= 0
 param xi = 0.3 [1/year] > 0
-noise Wx, Wv
+shock Wx, Wv
 corr Wx Wv = -0.6
-state x = 0.2
-state v = 0.05 [1/year] >= 0
+factor x = 0.2
+factor v = 0.05 [1/year] >= 0
 dx = (mu - 0.5 * v) dt + sqrt(v) dWx
 dv = kappa * (theta - v) dt + xi * sqrt(v) dWv
 ";
@@ -280,10 +280,10 @@ param mu = 5% [1/year]
 param kappa = 2.0 [1/year] > 0
 param theta = 0.04 [1/year] >= 0
 param xi = 0.3 [1/year] > 0
-noise Wx, Wv
+shock Wx, Wv
 corr Wx Wv = -0.6
-state x = 0.2
-state v = 0.05 [1/year] >= 0
+factor x = 0.2
+factor v = 0.05 [1/year] >= 0
 dx = (mu - 0.5 * v) dt + sqrt(v) dWx
 dv = kappa * (theta - v) dt + xi * sqrt(v) dWv
 ";

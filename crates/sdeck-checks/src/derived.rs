@@ -16,7 +16,7 @@ const EIGENVALUE_TOLERANCE: f64 = 1e-12;
 pub fn derived_checks(model: &Model, derivation: &Derivation) -> Vec<Diagnostic> {
     let mut out = Vec::new();
     feller_condition(model, derivation, &mut out);
-    state_domain(model, derivation, &mut out);
+    factor_domain(model, derivation, &mut out);
     not_mean_reverting(model, derivation, &mut out);
     correlation_not_psd(model, &mut out);
     expectations(model, derivation, &mut out);
@@ -55,7 +55,7 @@ fn round_significant(x: f64, digits: i32, up: bool) -> f64 {
 
 fn state_name(model: &Model, state: usize) -> String {
     model
-        .states
+        .factors
         .get(state)
         .map(|s| s.name.clone())
         .unwrap_or_default()
@@ -63,7 +63,7 @@ fn state_name(model: &Model, state: usize) -> String {
 
 fn equation_span(model: &Model, state: usize) -> Option<std::ops::Range<usize>> {
     model
-        .states
+        .factors
         .get(state)?
         .equation
         .as_ref()
@@ -232,11 +232,11 @@ fn restricted_calls<'e>(expr: &'e Expr, out: &mut Vec<(&'static str, &'e Expr)>)
     }
 }
 
-/// `state-domain`: sqrt/log of a state whose law leaves the domain, declared bounds a
+/// `factor-domain`: sqrt/log of a state whose law leaves the domain, declared bounds a
 /// family cannot keep, impossible starts.
-fn state_domain(model: &Model, derivation: &Derivation, out: &mut Vec<Diagnostic>) {
+fn factor_domain(model: &Model, derivation: &Derivation, out: &mut Vec<Diagnostic>) {
     // (a) sqrt or log of a Gaussian state.
-    for (owner, state) in model.states.iter().enumerate() {
+    for (owner, state) in model.factors.iter().enumerate() {
         let Some(eq) = &state.equation else {
             continue;
         };
@@ -291,12 +291,12 @@ fn state_domain(model: &Model, derivation: &Derivation, out: &mut Vec<Diagnostic
                     )
                 } else {
                     format!(
-                        "model log {name} itself as the state, or give {name} a proportional \
+                        "model log {name} itself as the factor, or give {name} a proportional \
                          diffusion (`vol * {name} dW`) so that it stays positive"
                     )
                 };
                 out.push(
-                    Diagnostic::new(&rules::STATE_DOMAIN, eq.span.clone(), message)
+                    Diagnostic::new(&rules::FACTOR_DOMAIN, eq.span.clone(), message)
                         .with_help(help)
                         .with_related(state_span(model, gaussian), format!("{name} declared here")),
                 );
@@ -306,7 +306,7 @@ fn state_domain(model: &Model, derivation: &Derivation, out: &mut Vec<Diagnostic
     }
     // (b), (c), (d): bounds and starts.
     for (index, law) in derivation.states.iter().enumerate() {
-        let Some(state) = model.states.get(index) else {
+        let Some(state) = model.factors.get(index) else {
             continue;
         };
         let name = &state.name;
@@ -320,7 +320,7 @@ fn state_domain(model: &Model, derivation: &Derivation, out: &mut Vec<Diagnostic
                 };
                 out.push(
                     Diagnostic::new(
-                        &rules::STATE_DOMAIN,
+                        &rules::FACTOR_DOMAIN,
                         state.span.clone(),
                         format!(
                             "{name} is geometric-brownian and starts at {}: it {what}, since a \
@@ -335,7 +335,7 @@ fn state_domain(model: &Model, derivation: &Derivation, out: &mut Vec<Diagnostic
             Family::SquareRoot if x0 < 0.0 => {
                 out.push(
                     Diagnostic::new(
-                        &rules::STATE_DOMAIN,
+                        &rules::FACTOR_DOMAIN,
                         state.span.clone(),
                         format!(
                             "{name} is square-root and starts at {}: sqrt({name}) is undefined \
@@ -373,7 +373,7 @@ fn state_domain(model: &Model, derivation: &Derivation, out: &mut Vec<Diagnostic
         };
         out.push(
             Diagnostic::new(
-                &rules::STATE_DOMAIN,
+                &rules::FACTOR_DOMAIN,
                 state.span.clone(),
                 format!(
                     "{name} is {} and its law spreads over {support_text}, so it leaves the \
@@ -393,7 +393,7 @@ fn state_domain(model: &Model, derivation: &Derivation, out: &mut Vec<Diagnostic
 
 fn state_span(model: &Model, state: usize) -> std::ops::Range<usize> {
     model
-        .states
+        .factors
         .get(state)
         .map(|s| s.name_span.clone())
         .unwrap_or(0..0)
@@ -622,13 +622,13 @@ fn correlation_not_psd(model: &Model, out: &mut Vec<Diagnostic>) {
         &rules::CORRELATION_NOT_PSD,
         first.span.clone(),
         format!(
-            "the correlations of the noises contradict each other: their matrix has the \
+            "the correlations of the shocks contradict each other: their matrix has the \
              eigenvalue {} < 0, so no set of Brownian motions has these correlations",
             number(smallest, 4)
         ),
     )
     .with_help(
-        "bring the correlations closer to zero (for three noises, two strong positive \
+        "bring the correlations closer to zero (for three shocks, two strong positive \
          correlations force the third to be positive too)",
     );
     for other in model.correlations.iter().skip(1) {
@@ -773,7 +773,7 @@ mod tests {
         // Once 263 s of squaring in the matrix exponential; now no figure, and a note
         // naming the parameter.
         let (_, diagnostics) = run("clock year\nhorizon 1 year\nparam k = 1e308 [1/year]\n\
-             param s = 0.1 [1/sqrt(year)]\nnoise W\nnoise V\nstate x = 1\nstate y = 1\n\
+             param s = 0.1 [1/sqrt(year)]\nshock W\nshock V\nfactor x = 1\nfactor y = 1\n\
              dx = k * (y - x) dt + s dW\ndy = k * (x - y) dt + s dV\n\
              expect mean(x, 1 year) in [0, 2]\n");
         let found = of_rule(&diagnostics, &rules::EXPECTATION_FAILED);
@@ -789,7 +789,7 @@ mod tests {
     fn manual_examples_fire_exactly_once_and_their_fixes_not_at_all() {
         let mine = [
             &rules::FELLER_CONDITION,
-            &rules::STATE_DOMAIN,
+            &rules::FACTOR_DOMAIN,
             &rules::NOT_MEAN_REVERTING,
             &rules::CORRELATION_NOT_PSD,
             &rules::EXPECTATION_FAILED,
@@ -816,7 +816,7 @@ mod tests {
         // 2·0.5·0.0576 = 0.0576 < 0.3² = 0.09; raising kappa needs 0.09/(2·0.0576) =
         // 0.78125, lowering vol needs √0.0576 = 0.24.
         let source = "model pike\nparam kappa = 0.5 [1/year] > 0\nparam level = 5.76%\n\
-                      param vol = 0.3 [1/sqrt(year)] > 0\nnoise W\nstate r = 2%\n\
+                      param vol = 0.3 [1/sqrt(year)] > 0\nshock W\nfactor r = 2%\n\
                       dr = kappa * (level - r) dt + vol * sqrt(r) dW\n";
         let (model, diagnostics) = run(source);
         let feller = of_rule(&diagnostics, &rules::FELLER_CONDITION);
@@ -834,7 +834,7 @@ mod tests {
             message.contains("lower vol to at most 0.24 [1/sqrt(year)]"),
             "{message}"
         );
-        let equation = model.states[0].equation.as_ref().expect("equation");
+        let equation = model.factors[0].equation.as_ref().expect("equation");
         assert_eq!(feller[0].span, equation.span);
     }
 
@@ -843,7 +843,7 @@ mod tests {
         // vol written per sqrt(day): the clock value is vol·√365, and the suggestion must
         // be converted back.
         let source = "model pike\nparam kappa = 0.5 [1/year] > 0\nparam level = 5.76%\n\
-                      param vol = 0.0157 [1/sqrt(day)] > 0\nnoise W\nstate r = 2%\n\
+                      param vol = 0.0157 [1/sqrt(day)] > 0\nshock W\nfactor r = 2%\n\
                       dr = kappa * (level - r) dt + vol * sqrt(r) dW\n";
         let (_, diagnostics) = run(source);
         let feller = of_rule(&diagnostics, &rules::FELLER_CONDITION);
@@ -861,17 +861,17 @@ mod tests {
     #[test]
     fn gaussian_state_under_a_square_root_is_reported() {
         let source = "model marl\nparam k = 1 [1/year]\nparam v = 0.1 [1/sqrt(year)]\n\
-                      noise W, Z\nstate r = 0.02\nstate y = 1\n\
+                      shock W, Z\nfactor r = 0.02\nfactor y = 1\n\
                       dr = -k * r dt + v dW\ndy = -k * y dt + v * sqrt(r) dZ\n";
         let (model, diagnostics) = run(source);
-        let domain = of_rule(&diagnostics, &rules::STATE_DOMAIN);
+        let domain = of_rule(&diagnostics, &rules::FACTOR_DOMAIN);
         assert_eq!(domain.len(), 1, "{diagnostics:#?}");
         assert!(
             domain[0].message.contains("`sqrt` of r"),
             "{}",
             domain[0].message
         );
-        let equation = model.states[1].equation.as_ref().expect("equation");
+        let equation = model.factors[1].equation.as_ref().expect("equation");
         assert_eq!(domain[0].span, equation.span);
     }
 
@@ -880,11 +880,11 @@ mod tests {
         // 2·0.5·0.02 = 0.02 < 0.2² = 0.04: zero is attainable, so log(v) is not safe.
         let source = "model fenby\nparam k = 0.5 [1/year]\nparam m = 0.02\n\
                       param s = 0.2 [1/sqrt(year)]\nparam c = 0.1 [1/sqrt(year)]\n\
-                      noise W, Z\nstate v = 0.02\nstate y = 0\n\
+                      shock W, Z\nfactor v = 0.02\nfactor y = 0\n\
                       dv = k * (m - v) dt + s * sqrt(v) dW\n\
                       dy = c * log(v) * k dt + c dZ\n";
         let (_, diagnostics) = run(source);
-        let domain = of_rule(&diagnostics, &rules::STATE_DOMAIN);
+        let domain = of_rule(&diagnostics, &rules::FACTOR_DOMAIN);
         assert_eq!(domain.len(), 1, "{diagnostics:#?}");
         assert!(
             domain[0].message.contains("fails the Feller condition"),
@@ -897,9 +897,9 @@ mod tests {
     #[test]
     fn impossible_starts_are_reported() {
         let gbm = "model quarry\nparam mu = 0.05 [1/year]\nparam s = 0.2 [1/sqrt(year)]\n\
-                   noise W\nstate p = 0\ndp = mu * p dt + s * p dW\n";
+                   shock W\nfactor p = 0\ndp = mu * p dt + s * p dW\n";
         let (_, diagnostics) = run(gbm);
-        let domain = of_rule(&diagnostics, &rules::STATE_DOMAIN);
+        let domain = of_rule(&diagnostics, &rules::FACTOR_DOMAIN);
         assert_eq!(domain.len(), 1, "{diagnostics:#?}");
         assert!(
             domain[0].message.contains("stays at zero"),
@@ -908,10 +908,10 @@ mod tests {
         );
 
         let square_root = "model quarry\nparam k = 1 [1/year]\nparam m = 0.05\n\
-                           param s = 0.1 [1/sqrt(year)]\nnoise W\nstate h = -0.01\n\
+                           param s = 0.1 [1/sqrt(year)]\nshock W\nfactor h = -0.01\n\
                            dh = k * (m - h) dt + s * sqrt(h) dW\n";
         let (_, diagnostics) = run(square_root);
-        let domain = of_rule(&diagnostics, &rules::STATE_DOMAIN);
+        let domain = of_rule(&diagnostics, &rules::FACTOR_DOMAIN);
         assert_eq!(domain.len(), 1, "{diagnostics:#?}");
         assert!(
             domain[0].message.contains("starts at -0.01"),
@@ -925,7 +925,7 @@ mod tests {
         // b = +0.8 per year: deviations double every ln 2/0.8 = 0.866 years.
         let (_, diagnostics) = run(
             "model osric\nparam kappa = 0.8 [1/year]\nparam level = 3%\n\
-             param vol = 1% [1/sqrt(year)]\nnoise W\nstate s = 3%\n\
+             param vol = 1% [1/sqrt(year)]\nshock W\nfactor s = 3%\n\
              ds = kappa * (s - level) dt + vol dW\n",
         );
         let found = of_rule(&diagnostics, &rules::NOT_MEAN_REVERTING);
@@ -946,7 +946,7 @@ mod tests {
     fn growth_of_a_geometric_brownian_is_not_explosive() {
         let (_, diagnostics) = run(
             "model ledger\nparam mu = 0.3 [1/year]\nparam s = 0.2 [1/sqrt(year)]\n\
-             noise W\nstate p = 10\ndp = mu * p dt + s * p dW\n",
+             shock W\nfactor p = 10\ndp = mu * p dt + s * p dW\n",
         );
         assert!(of_rule(&diagnostics, &rules::NOT_MEAN_REVERTING).is_empty());
     }
@@ -957,7 +957,7 @@ mod tests {
         // source: eigenvalues of a symmetric 2×2 matrix are a ± b).
         let (_, diagnostics) = run(
             "model tandem\nparam k = 0.1 [1/year]\nparam c = 1 [1/year]\n\
-             param v = 0.01 [1/sqrt(year)]\nnoise W, Z\nstate x = 0\nstate y = 0\n\
+             param v = 0.01 [1/sqrt(year)]\nshock W, Z\nfactor x = 0\nfactor y = 0\n\
              dx = (-k * x + c * y) dt + v dW\ndy = (c * x - k * y) dt + v dZ\n",
         );
         let found = of_rule(&diagnostics, &rules::NOT_MEAN_REVERTING);
@@ -974,9 +974,9 @@ mod tests {
     fn inconsistent_correlations_give_the_smallest_eigenvalue() {
         // [[1, .9, .9], [.9, 1, −.9], [.9, −.9, 1]]: eigenvalues 1.9, 1.9, −0.8 (numpy.linalg.eigvalsh).
         let (model, diagnostics) =
-            run("model trio\nparam v = 0.01 [1/sqrt(year)]\nnoise A, B, C\n\
+            run("model trio\nparam v = 0.01 [1/sqrt(year)]\nshock A, B, C\n\
              corr A B = 0.9\ncorr A C = 0.9\ncorr B C = -0.9\n\
-             state x = 0\nstate y = 0\nstate z = 0\n\
+             factor x = 0\nfactor y = 0\nfactor z = 0\n\
              dx = v dA\ndy = v dB\ndz = v dC\n");
         let found = of_rule(&diagnostics, &rules::CORRELATION_NOT_PSD);
         assert_eq!(found.len(), 1, "{diagnostics:#?}");
@@ -993,7 +993,7 @@ mod tests {
     fn expectations_report_value_interval_and_missing_figures() {
         // OU mean at 1 year: 0.03 + (0.025 − 0.03)e^{−1.2} = 0.0284940 (Vasicek 1977).
         let source = "model pinned\nparam kappa = 1.2 [1/year] > 0\nparam level = 3%\n\
-                      param vol = 0.8% [1/sqrt(year)] > 0\nnoise W\nstate r = 2.5%\n\
+                      param vol = 0.8% [1/sqrt(year)] > 0\nshock W\nfactor r = 2.5%\n\
                       dr = kappa * (level - r) dt + vol dW\n\
                       expect mean(r, 1 year) in [2.9%, 3.3%]\n\
                       expect halflife(r) < 1 year\n";
@@ -1008,7 +1008,7 @@ mod tests {
             found[0].message
         );
         let missing = "model drifting\nparam mu = 0.01 [1/year]\nparam v = 0.1 [1/sqrt(year)]\n\
-                       noise W\nstate x = 0\ndx = mu dt + v dW\n\
+                       shock W\nfactor x = 0\ndx = mu dt + v dW\n\
                        expect stationary_mean(x) > 0\n";
         let (_, diagnostics) = run(missing);
         let found = of_rule(&diagnostics, &rules::EXPECTATION_FAILED);

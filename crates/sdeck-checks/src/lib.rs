@@ -7,7 +7,7 @@
 //!
 //! ```
 //! let result = sdeck_checks::check(
-//!     "param kappa = 2 [1/year] > 0\nnoise W\nstate x = 0\ndx = -kappa * x dt + 0.1 [1/sqrt(year)] dW\n",
+//!     "param kappa = 2 [1/year] > 0\nshock W\nfactor x = 0\ndx = -kappa * x dt + 0.1 [1/sqrt(year)] dW\n",
 //!     "demo",
 //!     &sdeck_checks::RuleSettings::default(),
 //! );

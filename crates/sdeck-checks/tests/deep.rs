@@ -19,7 +19,7 @@ fn on_small_stack(text: String) {
 fn a_long_sum_in_an_equation_is_analysed_on_a_small_stack() {
     let sum = vec!["x"; 990].join(" + ");
     on_small_stack(format!(
-        "param k = 1 [1/year]\nparam v = 0.1 [1/sqrt(year)]\nnoise W\nstate x = 1\n\
+        "param k = 1 [1/year]\nparam v = 0.1 [1/sqrt(year)]\nshock W\nfactor x = 1\n\
          dx = -k * ({sum}) dt + v dW\n"
     ));
 }
@@ -27,7 +27,7 @@ fn a_long_sum_in_an_equation_is_analysed_on_a_small_stack() {
 #[test]
 fn a_long_product_and_nested_lets_are_analysed_on_a_small_stack() {
     let product = vec!["k"; 990].join(" * ");
-    let mut text = String::from("param k = 1 [1/year]\nparam v = 0.1 [1/sqrt(year)]\nnoise W\n");
+    let mut text = String::from("param k = 1 [1/year]\nparam v = 0.1 [1/sqrt(year)]\nshock W\n");
     text.push_str(&format!("let l0 = {product}\n"));
     for i in 1..200 {
         text.push_str(&format!(
@@ -36,18 +36,18 @@ fn a_long_product_and_nested_lets_are_analysed_on_a_small_stack() {
             ["k"; 9].join(" + ")
         ));
     }
-    text.push_str("state x = 1\ndx = -l199 * x dt + v * sqrt(x) dW\n");
+    text.push_str("factor x = 1\ndx = -l199 * x dt + v * sqrt(x) dW\n");
     on_small_stack(text);
 }
 
 #[test]
 fn lets_that_double_at_every_level_are_stopped() {
-    let mut text = String::from("param k = 1 [1/year]\nparam v = 0.1 [1/sqrt(year)]\nnoise W\n");
+    let mut text = String::from("param k = 1 [1/year]\nparam v = 0.1 [1/sqrt(year)]\nshock W\n");
     text.push_str("let a0 = k\n");
     for i in 1..60 {
         text.push_str(&format!("let a{i} = a{} + a{}\n", i - 1, i - 1));
     }
-    text.push_str("state x = 1\ndx = -a59 * x dt + v dW\n");
+    text.push_str("factor x = 1\ndx = -a59 * x dt + v dW\n");
     let result = check(&text, "doubling", &RuleSettings::default());
     assert!(result
         .diagnostics
@@ -57,11 +57,11 @@ fn lets_that_double_at_every_level_are_stopped() {
 
 #[test]
 fn a_chain_of_lets_up_to_the_limit_is_analysed_on_a_small_stack() {
-    let mut text = String::from("param k = 1 [1/year]\nparam v = 0.1 [1/sqrt(year)]\nnoise W\n");
+    let mut text = String::from("param k = 1 [1/year]\nparam v = 0.1 [1/sqrt(year)]\nshock W\n");
     text.push_str("let l0 = k\n");
     for i in 1..1400 {
         text.push_str(&format!("let l{i} = l{} + k\n", i - 1));
     }
-    text.push_str("state x = 1\ndx = -l1399 * x dt + v dW\n");
+    text.push_str("factor x = 1\ndx = -l1399 * x dt + v dW\n");
     on_small_stack(text);
 }

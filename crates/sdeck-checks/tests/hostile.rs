@@ -23,10 +23,10 @@ fn twenty_thousand_shocks_with_one_contradictory_block_are_checked_per_block() {
     // they are 0.066, 0.2, 2.73.
     let mut text = String::from("clock year\nparam s = 0.1 [1/sqrt(year)]\n");
     for i in 0..20_000 {
-        text.push_str(&format!("noise W{i}\n"));
+        text.push_str(&format!("shock W{i}\n"));
     }
     text.push_str("corr W10 W500 = 0.9\ncorr W10 W19999 = 0.9\ncorr W500 W19999 = -0.9\n");
-    text.push_str("state x = 0\ndx = s dW10 + s dW500\n");
+    text.push_str("factor x = 0\ndx = s dW10 + s dW500\n");
     assert_eq!(rules(&text), vec!["correlation-not-psd"]);
     // The same block with consistent correlations: nothing to report.
     let sound = text.replace("= -0.9", "= 0.8");

@@ -92,7 +92,7 @@ fn piece() -> impl Strategy<Value = String> {
         Just("inf".to_string()),
         Just("= ".to_string()),
         Just("\nparam ".to_string()),
-        Just("\nstate x = ".to_string()),
+        Just("\nfactor x = ".to_string()),
         Just("\nexpect mean(".to_string()),
         Just("\ncorr W W = ".to_string()),
         Just("\nclock ".to_string()),
@@ -187,7 +187,7 @@ fn check_survives_on_face_stack(text: String) {
 #[test]
 fn ten_thousand_nested_parentheses() {
     let deep = format!(
-        "param a = 1\nnoise W\nstate x = 0\ndx = {}a{} dt + a dW\n",
+        "param a = 1\nshock W\nfactor x = 0\ndx = {}a{} dt + a dW\n",
         "(".repeat(10_000),
         ")".repeat(10_000)
     );
@@ -226,7 +226,7 @@ fn odd_whole_files() {
         "# sdeck:",
         "dx =",
         "d = 1 dt",
-        "state x = 1e999\ndx = x dt",
+        "factor x = 1e999\ndx = x dt",
         "param a = 1 [year^(1/0)]",
         "param a = 1 [year^(99999999999999999999/1)]",
         "horizon -1e308 year",

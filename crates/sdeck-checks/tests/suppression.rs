@@ -40,8 +40,8 @@ param kappa = 0.5  [1/year]       > 0
 param level = 2%                  >= 0
 param vol   = 20%  [1/sqrt(year)] > 0
 param level_stress = 5.5%
-noise W
-state r = 1.8% >= 0
+shock W
+factor r = 1.8% >= 0
 # (line 9)
 # (line 10)
 dr = kappa * (level - r) dt + vol * sqrt(r) dW
@@ -208,7 +208,7 @@ fn quiet_file_silences_everywhere() {
 
 #[test]
 fn quiet_file_that_silences_nothing_is_reported() {
-    let text = with_line(9, "# sdeck: quiet-file state-domain");
+    let text = with_line(9, "# sdeck: quiet-file factor-domain");
     assert_eq!(
         fired(&text),
         vec![
@@ -280,11 +280,11 @@ fn the_report_points_at_the_rule_name() {
     // docs/language.md, section 11: `unused-suppression` is reported at the rule name.
     let text = with_line(
         9,
-        "# sdeck: quiet state-domain, feller-condition -- one of two is stale",
+        "# sdeck: quiet factor-domain, feller-condition -- one of two is stale",
     );
     let report = reports(&text, "unused-suppression");
     assert_eq!(report.len(), 1, "{report:?}");
-    assert_eq!(report[0].1, "state-domain");
+    assert_eq!(report[0].1, "factor-domain");
     let text = with_line(9, "# sdeck: quiet unsued");
     assert_eq!(reports(&text, "unused-suppression")[0].1, "unsued");
 }
@@ -333,7 +333,7 @@ fn silenced_diagnostics_stay_silenced_under_project_levels() {
         "unused-suppression".to_string(),
         sdeck_checks::RuleLevel::Off,
     );
-    let stale = with_line(9, "# sdeck: quiet-file state-domain");
+    let stale = with_line(9, "# sdeck: quiet-file factor-domain");
     let result = check(&stale, "suppression_test", &settings);
     assert!(result
         .diagnostics

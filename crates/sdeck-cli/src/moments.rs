@@ -147,7 +147,7 @@ fn num(x: Option<f64>) -> Value {
 
 pub fn moments_json(model: &Model, derivation: &Derivation, m: &Moments) -> Value {
     let states: Vec<Value> = model
-        .states
+        .factors
         .iter()
         .enumerate()
         .map(|(i, s)| {
@@ -175,7 +175,7 @@ pub fn moments_json(model: &Model, derivation: &Derivation, m: &Moments) -> Valu
         "model": model.name,
         "clock": model.clock.unit,
         "at": m.at,
-        "states": states,
+        "factors": states,
         "covariance": covariance,
     })
 }
@@ -196,7 +196,7 @@ pub fn moments_text(model: &Model, derivation: &Derivation, m: &Moments) -> Stri
         fmt_num(m.at),
         clock
     );
-    for (i, state) in model.states.iter().enumerate() {
+    for (i, state) in model.factors.iter().enumerate() {
         let Some(law) = derivation.states.get(i) else {
             continue;
         };
@@ -253,22 +253,26 @@ pub fn moments_text(model: &Model, derivation: &Derivation, m: &Moments) -> Stri
             ));
         }
     }
-    if model.states.len() > 1 {
+    if model.factors.len() > 1 {
         s.push_str("\ncovariance at t:\n");
         let width = model
-            .states
+            .factors
             .iter()
             .map(|st| st.name.chars().count())
             .max()
             .unwrap_or(1)
             .max(12);
         s.push_str(&format!("  {:width$}", ""));
-        for st in &model.states {
+        for st in &model.factors {
             s.push_str(&format!(" {:>width$}", st.name));
         }
         s.push('\n');
         for (i, row) in m.covariance.iter().enumerate() {
-            let name = model.states.get(i).map(|st| st.name.as_str()).unwrap_or("");
+            let name = model
+                .factors
+                .get(i)
+                .map(|st| st.name.as_str())
+                .unwrap_or("");
             s.push_str(&format!("  {name:width$}"));
             for x in row {
                 s.push_str(&format!(" {:>width$}", or_unknown(*x)));

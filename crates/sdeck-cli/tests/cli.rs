@@ -66,8 +66,8 @@ horizon 6 month
 param kappa = 0.9  [1/year]       > 0
 param theta = 3.1%
 param sigma = 0.9% [1/sqrt(year)] > 0
-noise W
-state r = 2.2%
+shock W
+factor r = 2.2%
 dr = kappa * (theta - r) dt + sigma dW
 ";
 
@@ -78,8 +78,8 @@ model fenmarch_funding
 param kappa = 0.5  [1/year]       > 0
 param level = 2%                  >= 0
 param vol   = 20%  [1/sqrt(year)] > 0
-noise W
-state r = 1.8% >= 0
+shock W
+factor r = 1.8% >= 0
 dr = kappa * (level - r) dt + vol * sqrt(r) dW
 ";
 
@@ -219,7 +219,7 @@ fn json_has_the_exact_shape_sorted_with_character_columns() {
         // `θκ` is two characters (four bytes) from column 7.
         ("b.sde", "unused", 2, 7, 2, 9),
         // `yr` starts at character 17 (byte 19) of `param θκ = 1 [1/yr]`.
-        ("b.sde", "undefined-name", 2, 17, 2, 19),
+        ("b.sde", "unknown-name", 2, 17, 2, 19),
     ];
     let expected: Vec<(String, String, u64, u64, u64, u64)> = expected
         .iter()
@@ -240,8 +240,8 @@ fn a_missing_bracket_and_a_later_unclosed_parenthesis_are_both_reported() {
          param kappa = 0.9 [1/year > 0\n\
          param theta = 3.1%\n\
          param sigma = 0.9% [1/sqrt(year)] > 0\n\
-         noise W\n\
-         state r = 2.2%\n\
+         shock W\n\
+         factor r = 2.2%\n\
          dr = kappa * (theta - r dt + sigma dW\n",
     );
     let out = sdeck()
@@ -843,8 +843,8 @@ model wrenmoor_share
 unit WRC
 param mu    = 6%  [1/year]       > 0
 param sigma = 25% [1/sqrt(year)] > 0
-noise W
-state S = 84 [WRC] > 0
+shock W
+factor S = 84 [WRC] > 0
 dS = mu * S dt + sigma * S dW
 ";
     for (line, holds) in [

@@ -39,8 +39,8 @@ fn json_has_exactly_the_documented_shape() {
         .as_object()
         .map(|o| o.keys().collect())
         .unwrap_or_default();
-    assert_eq!(keys, ["model", "clock", "at", "states", "covariance"]);
-    let states = json["states"].as_array().cloned().unwrap_or_default();
+    assert_eq!(keys, ["model", "clock", "at", "factors", "covariance"]);
+    let states = json["factors"].as_array().cloned().unwrap_or_default();
     assert_eq!(states.len(), 2);
     for s in &states {
         let keys: Vec<&String> = s
@@ -72,7 +72,7 @@ fn an_ornstein_uhlenbeck_state_matches_vasicek() {
         &dir,
         "vasicek.sde",
         "param kappa = 0.9 [1/year]\nparam theta = 3.1%\nparam sigma = 0.9% [1/sqrt(year)]\n\
-         noise W\nstate r = 2.2%\ndr = kappa * (theta - r) dt + sigma dW\n",
+         shock W\nfactor r = 2.2%\ndr = kappa * (theta - r) dt + sigma dW\n",
     );
     let (code, json, _) = moments(&[&file, "--at", "18 month", "--format", "json"]);
     assert_eq!(code, Some(0));
@@ -80,10 +80,10 @@ fn an_ornstein_uhlenbeck_state_matches_vasicek() {
     let mean = theta + (r0 - theta) * (-kappa * t).exp();
     let var = sigma * sigma * (1.0 - (-2.0 * kappa * t).exp()) / (2.0 * kappa);
     assert_eq!(json["at"].as_f64(), Some(1.5));
-    assert_eq!(json["states"][0]["family"], "ornstein-uhlenbeck");
-    assert!((json["states"][0]["mean"].as_f64().unwrap_or(0.0) - mean).abs() < 1e-15);
-    assert!((json["states"][0]["variance"].as_f64().unwrap_or(0.0) - var).abs() < 1e-17);
-    assert_eq!(json["states"][0]["exact"], true);
+    assert_eq!(json["factors"][0]["family"], "ornstein-uhlenbeck");
+    assert!((json["factors"][0]["mean"].as_f64().unwrap_or(0.0) - mean).abs() < 1e-15);
+    assert!((json["factors"][0]["variance"].as_f64().unwrap_or(0.0) - var).abs() < 1e-17);
+    assert_eq!(json["factors"][0]["exact"], true);
 }
 
 #[test]
@@ -103,7 +103,7 @@ fn at_accepts_clock_units_and_time_units_alike() {
         "json",
     ]);
     assert_eq!(in_months["at"].as_f64(), Some(0.5));
-    assert_eq!(in_months["states"], in_years["states"]);
+    assert_eq!(in_months["factors"], in_years["factors"]);
     let (code, _, stderr) = moments(&["demo-models/ou_short_rate.sde", "--at", "6 parsec"]);
     assert_eq!(code, Some(2));
     assert!(stderr.contains("not a time unit"));
@@ -113,7 +113,7 @@ fn at_accepts_clock_units_and_time_units_alike() {
 fn figures_that_are_not_known_are_null() {
     let (code, json, _) = moments(&["demo-models/cubic_power_spread.sde", "--format", "json"]);
     assert_eq!(code, Some(0));
-    let general: Vec<&Value> = json["states"]
+    let general: Vec<&Value> = json["factors"]
         .as_array()
         .map(|a| a.iter().filter(|s| s["family"] == "general").collect())
         .unwrap_or_default();
@@ -130,7 +130,7 @@ fn a_model_with_errors_is_refused_with_its_diagnostics() {
     let file = write_model(
         &dir,
         "broken.sde",
-        "noise W\nstate x = 1\ndx = -kappa * x dt + 0.1 dW\n",
+        "shock W\nfactor x = 1\ndx = -kappa * x dt + 0.1 dW\n",
     );
     let (code, _, stderr) = moments(&[&file]);
     assert_eq!(code, Some(1));

@@ -41,7 +41,7 @@ fn every_demo_model_with_a_closed_form_passes_the_cross_check() {
         );
         let json: serde_json::Value =
             serde_json::from_slice(&out.stdout).unwrap_or(serde_json::Value::Null);
-        let states = json["states"].as_array().cloned().unwrap_or_default();
+        let states = json["factors"].as_array().cloned().unwrap_or_default();
         assert!(!states.is_empty(), "{name}");
         for s in states {
             // Every state of these models has a closed form to compare with.
@@ -80,7 +80,7 @@ fn check_fails_and_names_the_figure_when_simulation_and_closed_form_disagree() {
     let file = dir.path().join("stiff.sde");
     std::fs::write(
         &file,
-        "param k = 20 [1/year]\nparam v = 0.1 [1/sqrt(year)]\nnoise W\nstate x = 2\n\
+        "param k = 20 [1/year]\nparam v = 0.1 [1/sqrt(year)]\nshock W\nfactor x = 2\n\
          dx = k * (1 - x) dt + v * x dW\n",
     )
     .unwrap_or(());
@@ -132,7 +132,7 @@ fn the_fan_chart_is_well_formed_svg() {
 fn a_model_with_errors_is_not_simulated() {
     let dir = tempfile::tempdir().unwrap_or_else(|e| panic!("{e}"));
     let file = dir.path().join("broken.sde");
-    std::fs::write(&file, "noise W\nstate x = 1\ndx = -k * x dt + 0.1 dW\n").unwrap_or(());
+    std::fs::write(&file, "shock W\nfactor x = 1\ndx = -k * x dt + 0.1 dW\n").unwrap_or(());
     let out = sdeck()
         .arg("simulate")
         .arg(&file)

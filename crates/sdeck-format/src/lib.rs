@@ -1,18 +1,18 @@
 //! The formatter of sdeck model files, shared by `sdeck fmt` and the language server.
 //!
 //! [`format`] prints every statement of a file in one canonical spacing, aligns the
-//! columns of consecutive `param`/`state` declarations and the trailing comments of a
+//! columns of consecutive `param`/`factor` declarations and the trailing comments of a
 //! block, keeps every comment, keeps at most one blank line between blocks, and is
 //! idempotent. It never loses text: a file with syntax errors is returned unchanged
 //! ([`Outcome::SyntaxErrors`]), a statement with a comment inside it is kept as written,
 //! and a result that would not read back to itself is refused.
 //!
 //! ```
-//! let outcome = sdeck_format::format("param  k=2[1/year]>0 # speed\nstate x=1\n");
+//! let outcome = sdeck_format::format("param  k=2[1/year]>0 # speed\nfactor x=1\n");
 //! assert_eq!(
 //!     outcome,
 //!     sdeck_format::Outcome::Formatted(
-//!         "param k = 2 [1/year] > 0  # speed\nstate x = 1\n".to_string()
+//!         "param  k = 2 [1/year] > 0  # speed\nfactor x = 1\n".to_string()
 //!     )
 //! );
 //! ```

@@ -17,10 +17,10 @@ pub(crate) fn statement(source: &str, kind: &StatementKind) -> Printed {
         }
         StatementKind::Unit { name } => Printed::Flat(format!("unit {}", name.name)),
         StatementKind::Param(d) => Printed::Declaration(declaration("param", source, d)),
-        StatementKind::State(d) => Printed::Declaration(declaration("state", source, d)),
-        StatementKind::Noise { names } => {
+        StatementKind::Factor(d) => Printed::Declaration(declaration("factor", source, d)),
+        StatementKind::Shock { names } => {
             let names: Vec<&str> = names.iter().map(|n| n.name.as_str()).collect();
-            Printed::Flat(format!("noise {}", names.join(", ")))
+            Printed::Flat(format!("shock {}", names.join(", ")))
         }
         StatementKind::Corr {
             first,
@@ -38,7 +38,7 @@ pub(crate) fn statement(source: &str, kind: &StatementKind) -> Printed {
             for (i, term) in eq.terms.iter().enumerate() {
                 let differential = match &term.differential {
                     Differential::Time(_) => "dt".to_string(),
-                    Differential::Noise { noise, .. } => format!("d{}", noise.name),
+                    Differential::Shock { shock, .. } => format!("d{}", shock.name),
                 };
                 let body = match &term.coefficient {
                     Some(c) => format!("{} {differential}", expr(c)),

@@ -13,10 +13,10 @@ fn formatted(source: &str) -> String {
 #[test]
 fn canonical_spacing_of_every_statement_kind() {
     let source = "model   m\nclock year\nhorizon 6   month\nunit EUR\nparam k=2[ 1 / year ]>0\n\
-noise W,V\ncorr W , V = -0.3\nlet half=k/2\nstate x=1[EUR]\n\
+shock W,V\ncorr W , V = -0.3\nlet half=k/2\nfactor x=1[EUR]\n\
 dx=-k*x*dt+0.1*sqrt( x )dW-0.2 dV\nexpect mean( x ,1 year )in[ 0 ,2 ]\n";
     let expected = "model m\nclock year\nhorizon 6 month\nunit EUR\nparam k = 2 [1/year] > 0\n\
-noise W, V\ncorr W V = -0.3\nlet half = k / 2\nstate x = 1 [EUR]\n\
+shock W, V\ncorr W V = -0.3\nlet half = k / 2\nfactor x = 1 [EUR]\n\
 dx = -k * x dt + 0.1 * sqrt(x) dW - 0.2 dV\nexpect mean(x, 1 year) in [0, 2]\n";
     assert_eq!(formatted(source), expected);
 }
@@ -24,13 +24,13 @@ dx = -k * x dt + 0.1 * sqrt(x) dW - 0.2 dV\nexpect mean(x, 1 year) in [0, 2]\n";
 #[test]
 fn consecutive_declarations_align_by_column_and_comments_align_per_block() {
     let source = "param kappa = 1.8 [1/year] > 0 # speed\nparam level = 3.2% >= 0 # level\n\
-param vol = 6bp [1/sqrt(day)] > 0 # vol\n\nnoise W # shock\n";
+param vol = 6bp [1/sqrt(day)] > 0 # vol\n\nshock W # shock\n";
     let expected = "\
 param kappa = 1.8  [1/year]      > 0   # speed
 param level = 3.2%               >= 0  # level
 param vol   = 6bp  [1/sqrt(day)] > 0   # vol
 
-noise W  # shock
+shock W  # shock
 ";
     assert_eq!(formatted(source), expected);
 }
@@ -45,29 +45,29 @@ fn greek_names_align_by_characters_not_bytes() {
 #[test]
 fn own_line_comments_and_single_blank_lines_are_kept() {
     let source =
-        "# header 🚀 ünïcode\n\n\n\nnoise W\n   # indented note\nstate x = 0\ndx = 0.1 dW\n";
-    let expected = "# header 🚀 ünïcode\n\nnoise W\n# indented note\nstate x = 0\ndx = 0.1 dW\n";
+        "# header 🚀 ünïcode\n\n\n\nshock W\n   # indented note\nfactor x = 0\ndx = 0.1 dW\n";
+    let expected = "# header 🚀 ünïcode\n\nshock W\n# indented note\nfactor x = 0\ndx = 0.1 dW\n";
     assert_eq!(formatted(source), expected);
 }
 
 #[test]
 fn a_statement_with_a_comment_inside_is_kept_as_written() {
-    let source = "noise W\nstate x = 0\ndx = -0.5 * x dt   # pull\n     + 0.1 dW  # push\n";
+    let source = "shock W\nfactor x = 0\ndx = -0.5 * x dt   # pull\n     + 0.1 dW  # push\n";
     assert_eq!(formatted(source), source);
 }
 
 #[test]
 fn a_multi_line_statement_without_comments_is_joined() {
-    let source = "noise W\nstate x = 0\ndx = -0.5 * x dt\n     + 0.1 dW\n";
+    let source = "shock W\nfactor x = 0\ndx = -0.5 * x dt\n     + 0.1 dW\n";
     assert_eq!(
         formatted(source),
-        "noise W\nstate x = 0\ndx = -0.5 * x dt + 0.1 dW\n"
+        "shock W\nfactor x = 0\ndx = -0.5 * x dt + 0.1 dW\n"
     );
 }
 
 #[test]
 fn text_with_syntax_errors_is_left_alone() {
-    let source = "param k = = 2\nstate x = 1\n";
+    let source = "param k = = 2\nfactor x = 1\n";
     assert!(matches!(format(source), Outcome::SyntaxErrors { count } if count >= 1));
 }
 
@@ -143,7 +143,7 @@ fn meaning(source: &str) -> String {
             p.name, p.value, p.unit_text, p.bound, p.description
         );
     }
-    for s in &model.states {
+    for s in &model.factors {
         let eq = s.equation.as_ref().map(|e| {
             let terms: Vec<String> = e
                 .diffusion
@@ -152,10 +152,13 @@ fn meaning(source: &str) -> String {
                 .collect();
             format!("{:?} | {}", e.drift, terms.join(" "))
         });
-        out += &format!("state {} {:?} {:?} {:?}\n", s.name, s.initial, s.domain, eq);
+        out += &format!(
+            "factor {} {:?} {:?} {:?}\n",
+            s.name, s.initial, s.domain, eq
+        );
     }
-    for n in &model.noises {
-        out += &format!("noise {} {:?}\n", n.name, n.description);
+    for n in &model.shocks {
+        out += &format!("shock {} {:?}\n", n.name, n.description);
     }
     for c in &model.correlations {
         out += &format!("corr {} {} {:?}\n", c.first, c.second, c.value);
@@ -212,13 +215,13 @@ mod random_models {
                 "param", "vol", "=", "3bp", "[", "EUR", "/", "sqrt", "(", "bday", ")", "]", ">=",
                 "0",
             ],
-            vec!["noise", "W", ",", "V"],
+            vec!["shock", "W", ",", "V"],
             vec!["corr", "W", "V", "=", "-0.25"],
             vec![
                 "let", "target", "=", "(", "level", "-", "-", "1", ")", "*", "exp", "(", "-", "κ",
                 "^", "2", "*", "t", ")", "/", "2",
             ],
-            vec!["state", "x", "=", "1", "[", "EUR", "]"],
+            vec!["factor", "x", "=", "1", "[", "EUR", "]"],
             vec![
                 "dx", "=", "κ", "*", "(", "level", "-", "x", ")", "*", "dt", "+", "vol", "dW", "-",
                 "0.1", "*", "vol", "*", "dV",

@@ -89,7 +89,7 @@ fn every_level_is_read() {
     let dir = tempfile::tempdir().unwrap();
     write(
         &dir.path().join("sdeck.toml"),
-        "[rules]\nunused = \"off\"\nunit-scale = \"hint\"\nfeller-condition = \"info\"\nsyntax = \"warning\"\nstate-domain = \"error\"\n[check]\ndeny = \"errors\"\n",
+        "[rules]\nunused = \"off\"\nunit-scale = \"hint\"\nfeller-condition = \"info\"\nsyntax = \"warning\"\nfactor-domain = \"error\"\n[check]\ndeny = \"errors\"\n",
     );
     let project = find_project(dir.path()).unwrap().unwrap();
     let level = |r: &str| project.settings.levels.get(r).copied();
@@ -100,7 +100,7 @@ fn every_level_is_read() {
         Some(RuleLevel::On(Severity::Info))
     );
     assert_eq!(level("syntax"), Some(RuleLevel::On(Severity::Warning)));
-    assert_eq!(level("state-domain"), Some(RuleLevel::On(Severity::Error)));
+    assert_eq!(level("factor-domain"), Some(RuleLevel::On(Severity::Error)));
     assert_eq!(project.deny, Some(DenyLevel::Errors));
 }
 

@@ -1,5 +1,5 @@
 //! From the syntax tree to the semantic model: names, units, values in clock units, and
-//! the structural rules (undefined-name, duplicate-name, missing-equation, duplicate-term,
+//! the structural rules (unknown-name, duplicate-name, missing-equation, duplicate-term,
 //! dimension-mismatch, bound-violated, correlation-range, unused, unit-scale).
 
 use crate::model::*;
@@ -39,7 +39,7 @@ impl Analysis {
 ///
 /// ```
 /// let analysis = sdeck_semantics::analyze(
-///     "param kappa = 2 [1/year] > 0\nparam vol = 1% [1/sqrt(day)]\nnoise W\nstate x = 0\ndx = -kappa * x dt + vol dW\n",
+///     "param kappa = 2 [1/year] > 0\nparam vol = 1% [1/sqrt(day)]\nshock W\nfactor x = 0\ndx = -kappa * x dt + vol dW\n",
 ///     "demo",
 /// );
 /// let vol = &analysis.model.params[1];
@@ -72,8 +72,8 @@ pub fn analyze(source: &str, default_name: &str) -> Analysis {
 enum Target {
     Unit(usize),
     Param(usize),
-    State(usize),
-    Noise(usize),
+    Factor(usize),
+    Shock(usize),
     Let(usize),
 }
 
@@ -159,8 +159,8 @@ impl<'a> Analyzer<'a> {
                 horizon: 1.0,
                 units: Vec::new(),
                 params: Vec::new(),
-                states: Vec::new(),
-                noises: Vec::new(),
+                factors: Vec::new(),
+                shocks: Vec::new(),
                 correlations: Vec::new(),
                 lets: Vec::new(),
                 expectations: Vec::new(),
@@ -334,7 +334,7 @@ impl<'a> Analyzer<'a> {
             Ok(v) => Some(v),
             Err(e) => {
                 let rule = if e.message.contains("not declared") || e.message.contains("unknown") {
-                    &rules::UNDEFINED_NAME
+                    &rules::UNKNOWN_NAME
                 } else {
                     &rules::DIMENSION_MISMATCH
                 };
@@ -358,7 +358,7 @@ impl<'a> Analyzer<'a> {
                 Diagnostic::new(&rules::DUPLICATE_NAME, span.clone(), format!("`{name}` is declared twice"))
                     .with_label("declared again here")
                     .with_related(first.clone(), format!("`{name}` first declared here"))
-                    .with_help("names are unique across units, parameters, states, noises and lets; rename one of them"),
+                    .with_help("names are unique across units, parameters, factors, shocks and lets; rename one of them"),
             );
             return false;
         }
@@ -411,13 +411,13 @@ impl<'a> Analyzer<'a> {
                     self.param_unit_ok.push(scale.is_finite());
                     self.check_declaration(decl, "parameter", value, scale, bound);
                 }
-                StatementKind::State(decl) => {
-                    let index = self.model.states.len();
+                StatementKind::Factor(decl) => {
+                    let index = self.model.factors.len();
                     if !self.declare(
                         &decl.name.name,
                         &decl.name.span,
-                        Target::State(index),
-                        SymbolKind::State,
+                        Target::Factor(index),
+                        SymbolKind::Factor,
                         &statement.span,
                     ) {
                         continue;
@@ -425,7 +425,7 @@ impl<'a> Analyzer<'a> {
                     let (dimension, scale, unit_text) = self.declared_unit(decl);
                     let initial = decl.value.value * scale;
                     let bound = decl.bound.as_ref().map(|b| convert_bound(b, scale));
-                    self.model.states.push(State {
+                    self.model.factors.push(Factor {
                         name: decl.name.name.clone(),
                         name_span: decl.name.span.clone(),
                         span: statement.span.clone(),
@@ -440,19 +440,19 @@ impl<'a> Analyzer<'a> {
                         equation: None,
                     });
                     self.state_unit_ok.push(scale.is_finite());
-                    self.check_declaration(decl, "initial value of state", initial, scale, bound);
+                    self.check_declaration(decl, "initial value of factor", initial, scale, bound);
                 }
-                StatementKind::Noise { names } => {
+                StatementKind::Shock { names } => {
                     for name in names {
-                        let index = self.model.noises.len();
+                        let index = self.model.shocks.len();
                         if self.declare(
                             &name.name,
                             &name.span,
-                            Target::Noise(index),
-                            SymbolKind::Noise,
+                            Target::Shock(index),
+                            SymbolKind::Shock,
                             &statement.span,
                         ) {
-                            self.model.noises.push(Noise {
+                            self.model.shocks.push(Shock {
                                 name: name.name.clone(),
                                 name_span: name.span.clone(),
                                 description: statement.description.clone(),
@@ -586,11 +586,11 @@ impl<'a> Analyzer<'a> {
                 let let_decl = &self.model.lets[index];
                 self.diagnostics.push(
                     Diagnostic::new(
-                        &rules::UNDEFINED_NAME,
+                        &rules::UNKNOWN_NAME,
                         let_decl.name_span.clone(),
                         format!("`{}` is defined in terms of itself", let_decl.name),
                     )
-                    .with_help("a let may use parameters, states, `t` and other lets, but not form a cycle"),
+                    .with_help("a let may use parameters, factors, `t` and other lets, but not form a cycle"),
                 );
                 self.let_progress[index] = LetProgress::Done;
                 return;
@@ -744,7 +744,7 @@ impl<'a> Analyzer<'a> {
         let Some(f) = Function::from_name(&function.name) else {
             self.diagnostics.push(
                 Diagnostic::new(
-                    &rules::UNDEFINED_NAME,
+                    &rules::UNKNOWN_NAME,
                     function.span.clone(),
                     format!("unknown function `{}`", function.name),
                 )
@@ -848,10 +848,10 @@ impl<'a> Analyzer<'a> {
                     self.param_unit_ok[i].then(|| self.model.params[i].dimension.clone());
                 (Expr::Param(i), dimension)
             }
-            Target::State(i) => {
+            Target::Factor(i) => {
                 let dimension =
-                    self.state_unit_ok[i].then(|| self.model.states[i].dimension.clone());
-                (Expr::State(i), dimension)
+                    self.state_unit_ok[i].then(|| self.model.factors[i].dimension.clone());
+                (Expr::Factor(i), dimension)
             }
             Target::Let(i) => {
                 self.let_used[i] = true;
@@ -877,15 +877,15 @@ impl<'a> Analyzer<'a> {
                 let l = &self.model.lets[i];
                 (l.value.clone(), l.dimension.clone())
             }
-            Target::Noise(_) => {
+            Target::Shock(_) => {
                 self.diagnostics.push(
                     Diagnostic::new(
-                        &rules::UNDEFINED_NAME,
+                        &rules::UNKNOWN_NAME,
                         ident.span.clone(),
-                        format!("`{}` is a noise and cannot be used as a value", ident.name),
+                        format!("`{}` is a shock and cannot be used as a value", ident.name),
                     )
                     .with_help(format!(
-                        "a noise appears only as the differential that ends a term: `vol d{}`",
+                        "a shock appears only as the differential that ends a term: `vol d{}`",
                         ident.name
                     )),
                 );
@@ -893,7 +893,7 @@ impl<'a> Analyzer<'a> {
             }
             Target::Unit(_) => {
                 self.diagnostics.push(
-                    Diagnostic::new(&rules::UNDEFINED_NAME, ident.span.clone(), format!("`{}` is a unit and cannot be used as a value", ident.name))
+                    Diagnostic::new(&rules::UNKNOWN_NAME, ident.span.clone(), format!("`{}` is a unit and cannot be used as a value", ident.name))
                         .with_help("units are written in brackets after a declaration's value: `param p = 100 [EUR]`"),
                 );
                 (Expr::Invalid, None)
@@ -904,8 +904,8 @@ impl<'a> Analyzer<'a> {
     fn reference(&mut self, ident: &ast::Ident, target: &Target) {
         let name_span = match *target {
             Target::Param(i) => self.model.params[i].name_span.clone(),
-            Target::State(i) => self.model.states[i].name_span.clone(),
-            Target::Noise(i) => self.model.noises[i].name_span.clone(),
+            Target::Factor(i) => self.model.factors[i].name_span.clone(),
+            Target::Shock(i) => self.model.shocks[i].name_span.clone(),
             Target::Let(i) => self.model.lets[i].name_span.clone(),
             Target::Unit(i) => self.model.units[i].name_span.clone(),
         };
@@ -918,7 +918,7 @@ impl<'a> Analyzer<'a> {
 
     fn undefined(&mut self, ident: &ast::Ident, what: &str) {
         let mut d = Diagnostic::new(
-            &rules::UNDEFINED_NAME,
+            &rules::UNKNOWN_NAME,
             ident.span.clone(),
             format!("{what}`{}` is not declared", ident.name),
         );
@@ -966,7 +966,7 @@ impl<'a> Analyzer<'a> {
                         format!("`{}` is correlated with itself", first.name),
                     )
                     .with_help(
-                        "a noise's correlation with itself is always 1; name two different noises",
+                        "a shock's correlation with itself is always 1; name two different shocks",
                     ),
                 );
                 continue;
@@ -991,7 +991,7 @@ impl<'a> Analyzer<'a> {
                         ),
                     )
                     .with_related(prev.clone(), "first given here")
-                    .with_help("keep one `corr` statement per pair of noises"),
+                    .with_help("keep one `corr` statement per pair of shocks"),
                 );
                 continue;
             }
@@ -1007,30 +1007,30 @@ impl<'a> Analyzer<'a> {
 
     fn noise_named(&mut self, ident: &ast::Ident) -> Option<usize> {
         match self.names.get(&ident.name).cloned() {
-            Some((Target::Noise(i), _)) => {
-                self.reference(ident, &Target::Noise(i));
+            Some((Target::Shock(i), _)) => {
+                self.reference(ident, &Target::Shock(i));
                 Some(i)
             }
             Some(_) => {
                 self.diagnostics.push(
                     Diagnostic::new(
-                        &rules::UNDEFINED_NAME,
+                        &rules::UNKNOWN_NAME,
                         ident.span.clone(),
-                        format!("`{}` is not a noise", ident.name),
+                        format!("`{}` is not a shock", ident.name),
                     )
-                    .with_help("`corr` relates two noises declared with `noise`"),
+                    .with_help("`corr` relates two shocks declared with `shock`"),
                 );
                 None
             }
             None => {
                 let mut d = Diagnostic::new(
-                    &rules::UNDEFINED_NAME,
+                    &rules::UNKNOWN_NAME,
                     ident.span.clone(),
-                    format!("noise `{}` is not declared", ident.name),
+                    format!("shock `{}` is not declared", ident.name),
                 );
-                d = match closest_name(&ident.name, self.model.noises.iter().map(|n| &n.name)) {
+                d = match closest_name(&ident.name, self.model.shocks.iter().map(|n| &n.name)) {
                     Some(close) => d.with_help(format!("did you mean `{close}`?")),
-                    None => d.with_help(format!("declare it with `noise {}`", ident.name)),
+                    None => d.with_help(format!("declare it with `shock {}`", ident.name)),
                 };
                 self.diagnostics.push(d);
                 None
@@ -1045,21 +1045,21 @@ impl<'a> Analyzer<'a> {
             let StatementKind::Equation(eq) = &statement.kind else {
                 continue;
             };
-            let state_index = match self.names.get(&eq.state.name).cloned() {
-                Some((Target::State(i), _)) => i,
+            let factor_index = match self.names.get(&eq.state.name).cloned() {
+                Some((Target::Factor(i), _)) => i,
                 Some((_, decl)) => {
                     self.diagnostics.push(
                         Diagnostic::new(
                             &rules::MISSING_EQUATION,
                             eq.lhs.clone(),
                             format!(
-                                "`d{}` names `{}`, which is not a state",
+                                "`d{}` names `{}`, which is not a factor",
                                 eq.state.name, eq.state.name
                             ),
                         )
                         .with_related(decl, "declared here")
                         .with_help(format!(
-                            "declare `{}` with `state` and an initial value",
+                            "declare `{}` with `factor` and an initial value",
                             eq.state.name
                         )),
                     );
@@ -1070,15 +1070,15 @@ impl<'a> Analyzer<'a> {
                     let mut d = Diagnostic::new(
                         &rules::MISSING_EQUATION,
                         eq.lhs.clone(),
-                        format!("the equation `d{}` names no state", eq.state.name),
+                        format!("the equation `d{}` names no factor", eq.state.name),
                     );
                     d = match closest_name(
                         &eq.state.name,
-                        self.model.states.iter().map(|s| &s.name),
+                        self.model.factors.iter().map(|s| &s.name),
                     ) {
                         Some(close) => d.with_help(format!("did you mean `d{close}`?")),
                         None => d.with_help(format!(
-                            "declare the state first: `state {} = 0`",
+                            "declare the factor first: `factor {} = 0`",
                             eq.state.name
                         )),
                     };
@@ -1086,8 +1086,8 @@ impl<'a> Analyzer<'a> {
                     continue;
                 }
             };
-            self.reference(&eq.state, &Target::State(state_index));
-            if let Some(prev) = first_equation.get(&state_index) {
+            self.reference(&eq.state, &Target::Factor(factor_index));
+            if let Some(prev) = first_equation.get(&factor_index) {
                 self.diagnostics.push(
                     Diagnostic::new(
                         &rules::DUPLICATE_NAME,
@@ -1095,30 +1095,30 @@ impl<'a> Analyzer<'a> {
                         format!("`{}` has a second equation", eq.state.name),
                     )
                     .with_related(prev.clone(), "first equation here")
-                    .with_help("a state has exactly one equation; merge the terms into one"),
+                    .with_help("a factor has exactly one equation; merge the terms into one"),
                 );
                 continue;
             }
-            first_equation.insert(state_index, eq.lhs.clone());
-            let equation = self.equation(state_index, eq, &statement.span);
-            self.model.states[state_index].equation = Some(equation);
+            first_equation.insert(factor_index, eq.lhs.clone());
+            let equation = self.equation(factor_index, eq, &statement.span);
+            self.model.factors[factor_index].equation = Some(equation);
         }
-        for i in 0..self.model.states.len() {
+        for i in 0..self.model.factors.len() {
             let equation_unparsed = self.file.unparsed.iter().any(|span| {
                 let text = self.source.get(span.clone()).unwrap_or("");
                 text.strip_prefix('d')
-                    .and_then(|rest| rest.strip_prefix(self.model.states[i].name.as_str()))
+                    .and_then(|rest| rest.strip_prefix(self.model.factors[i].name.as_str()))
                     .is_some_and(|rest| rest.trim_start().starts_with('='))
             });
-            if self.model.states[i].equation.is_none()
+            if self.model.factors[i].equation.is_none()
                 && !first_equation.contains_key(&i)
                 && !equation_unparsed
             {
-                let s = &self.model.states[i];
+                let s = &self.model.factors[i];
                 let insert_at = line_end_after(self.source, s.span.end);
                 let noise = self
                     .model
-                    .noises
+                    .shocks
                     .first()
                     .map(|n| n.name.clone())
                     .unwrap_or_else(|| "W".to_string());
@@ -1127,7 +1127,7 @@ impl<'a> Analyzer<'a> {
                     Diagnostic::new(
                         &rules::MISSING_EQUATION,
                         s.name_span.clone(),
-                        format!("state `{name}` has no equation"),
+                        format!("factor `{name}` has no equation"),
                     )
                     .with_help(format!(
                         "add its dynamics, e.g. `d{name} = ... dt + ... d{noise}`"
@@ -1151,19 +1151,19 @@ impl<'a> Analyzer<'a> {
             if let Some(c) = &term.coefficient {
                 self.resolve(c);
             }
-            if let ast::Differential::Noise { noise, .. } = &term.differential {
-                if let Some((Target::Noise(i), _)) = self.names.get(&noise.name).cloned() {
+            if let ast::Differential::Shock { shock: noise, .. } = &term.differential {
+                if let Some((Target::Shock(i), _)) = self.names.get(&noise.name).cloned() {
                     self.noise_used[i] = true;
-                    self.reference(noise, &Target::Noise(i));
+                    self.reference(noise, &Target::Shock(i));
                 }
             }
         }
     }
 
     fn equation(&mut self, state: usize, eq: &ast::Equation, span: &Span) -> Equation {
-        let state_dim = self.model.states[state].dimension.clone();
+        let state_dim = self.model.factors[state].dimension.clone();
         let state_unit_ok = self.state_unit_ok[state];
-        let state_name = self.model.states[state].name.clone();
+        let state_name = self.model.factors[state].name.clone();
         let drift_dim = state_dim.div(&Dimension::time());
         let diffusion_dim = state_dim.div(&Dimension::time().sqrt());
         let mut drift: Option<Expr> = None;
@@ -1200,24 +1200,27 @@ impl<'a> Analyzer<'a> {
                     drift = Some(coefficient);
                     drift_span = Some(term.span.clone());
                 }
-                ast::Differential::Noise { noise, token } => {
+                ast::Differential::Shock {
+                    shock: noise,
+                    token,
+                } => {
                     let noise_index = match self.names.get(&noise.name).cloned() {
-                        Some((Target::Noise(i), _)) => {
-                            self.reference(noise, &Target::Noise(i));
+                        Some((Target::Shock(i), _)) => {
+                            self.reference(noise, &Target::Shock(i));
                             i
                         }
                         other => {
                             let token_text = format!("d{}", noise.name);
                             let mut d = Diagnostic::new(
-                                &rules::UNDEFINED_NAME,
+                                &rules::UNKNOWN_NAME,
                                 token.clone(),
                                 match other {
                                     Some(_) => format!(
-                                        "`{token_text}` ends a term, but `{}` is not a noise",
+                                        "`{token_text}` ends a term, but `{}` is not a shock",
                                         noise.name
                                     ),
                                     None => format!(
-                                        "`{token_text}` ends a term, but no noise `{}` is declared",
+                                        "`{token_text}` ends a term, but no shock `{}` is declared",
                                         noise.name
                                     ),
                                 },
@@ -1226,20 +1229,20 @@ impl<'a> Analyzer<'a> {
                                 d = d.with_help(format!("`{token_text}` is a declared name; a term must end with `dt` or `dW`; write the differential after it: `{token_text} * ... dt`"));
                             } else {
                                 d = d.with_help(format!(
-                                    "declare the noise with `noise {}`",
+                                    "declare the shock with `shock {}`",
                                     noise.name
                                 ));
                                 let insert_at = self
                                     .model
-                                    .states
+                                    .factors
                                     .first()
                                     .map(|s| line_start_of(self.source, s.span.start))
                                     .unwrap_or(0);
                                 d = d.with_fix(
-                                    format!("Declare `noise {}`", noise.name),
+                                    format!("Declare `shock {}`", noise.name),
                                     vec![TextEdit {
                                         span: insert_at..insert_at,
-                                        new_text: format!("noise {}\n", noise.name),
+                                        new_text: format!("shock {}\n", noise.name),
                                     }],
                                 );
                             }
@@ -1319,9 +1322,9 @@ impl<'a> Analyzer<'a> {
             "per square root of clock time"
         };
         let state_words = if state_dim.is_dimensionless() {
-            format!("the dimensionless state `{state}`")
+            format!("the dimensionless factor `{state}`")
         } else {
-            format!("the state `{state}` ({})", state_dim.describe())
+            format!("the factor `{state}` ({})", state_dim.describe())
         };
         // Which parameter would mend it, if the coefficient is a product with one.
         let culprit = term.coefficient.as_ref().and_then(|c| self.factor_param(c));
@@ -1332,7 +1335,7 @@ impl<'a> Analyzer<'a> {
             let wanted = needed.div(found).mul(&p.dimension);
             let suggestion = suggest_unit_text(&wanted, &clock);
             message = format!(
-                "`{}` is {}, but the {which} of {state_words} must be {} ({which} is the state's dimension {per}): did you mean [{suggestion}]?",
+                "`{}` is {}, but the {which} of {state_words} must be {} ({which} is the factor's dimension {per}): did you mean [{suggestion}]?",
                 p.name,
                 p.dimension.describe(),
                 needed.describe(),
@@ -1341,7 +1344,7 @@ impl<'a> Analyzer<'a> {
                 // The coefficient is the parameter alone (up to numbers).
             } else {
                 message = format!(
-                    "the {which} coefficient of {state_words} is {}, but must be {} ({which} is the state's dimension {per}); if `{}` is the culprit, did you mean [{suggestion}]?",
+                    "the {which} coefficient of {state_words} is {}, but must be {} ({which} is the factor's dimension {per}); if `{}` is the culprit, did you mean [{suggestion}]?",
                     found.describe(),
                     needed.describe(),
                     p.name,
@@ -1384,7 +1387,7 @@ impl<'a> Analyzer<'a> {
             }
         } else {
             message = format!(
-                "the {which} coefficient of {state_words} is {}, but must be {} ({which} is the state's dimension {per})",
+                "the {which} coefficient of {state_words} is {}, but must be {} ({which} is the factor's dimension {per})",
                 found.describe(),
                 needed.describe()
             );
@@ -1436,23 +1439,23 @@ impl<'a> Analyzer<'a> {
                 continue;
             };
             let state = match self.names.get(&x.state.name).cloned() {
-                Some((Target::State(i), _)) => {
-                    self.reference(&x.state, &Target::State(i));
+                Some((Target::Factor(i), _)) => {
+                    self.reference(&x.state, &Target::Factor(i));
                     i
                 }
                 Some(_) => {
                     self.diagnostics.push(
                         Diagnostic::new(
-                            &rules::UNDEFINED_NAME,
+                            &rules::UNKNOWN_NAME,
                             x.state.span.clone(),
-                            format!("`{}` is not a state", x.state.name),
+                            format!("`{}` is not a factor", x.state.name),
                         )
-                        .with_help("expectations pin figures of a state"),
+                        .with_help("expectations pin figures of a factor"),
                     );
                     continue;
                 }
                 None => {
-                    self.undefined(&x.state, "state ");
+                    self.undefined(&x.state, "factor ");
                     continue;
                 }
             };
@@ -1474,8 +1477,8 @@ impl<'a> Analyzer<'a> {
                 },
                 None => None,
             };
-            let state_dim = self.model.states[state].dimension.clone();
-            let state_scale = self.model.states[state].scale;
+            let state_dim = self.model.factors[state].dimension.clone();
+            let state_scale = self.model.factors[state].scale;
             let (figure_dim, figure_scale) = match x.figure {
                 Figure::Mean | Figure::Sd | Figure::StationaryMean | Figure::StationarySd => {
                     (state_dim.clone(), state_scale)
@@ -1598,16 +1601,16 @@ impl<'a> Analyzer<'a> {
                 );
             }
         }
-        for (i, n) in self.model.noises.iter().enumerate() {
+        for (i, n) in self.model.shocks.iter().enumerate() {
             if !self.noise_used[i] && !self.mentioned_in_unparsed(&n.name) {
                 self.diagnostics.push(
                     Diagnostic::new(
                         &rules::UNUSED,
                         n.name_span.clone(),
-                        format!("noise `{}` drives no equation", n.name),
+                        format!("shock `{}` drives no equation", n.name),
                     )
                     .with_help(format!(
-                        "add a term `... d{}` to an equation, or remove the noise",
+                        "add a term `... d{}` to an equation, or remove the shock",
                         n.name
                     )),
                 );
@@ -1670,7 +1673,7 @@ fn is_zero_literal(e: &ast::Expr) -> bool {
 
 fn contains_state_or_time(e: &Expr) -> bool {
     match e {
-        Expr::State(_) | Expr::Time => true,
+        Expr::Factor(_) | Expr::Time => true,
         Expr::Const(_) | Expr::Param(_) | Expr::Invalid => false,
         Expr::Neg(a) => contains_state_or_time(a),
         Expr::Add(a, b) | Expr::Sub(a, b) | Expr::Mul(a, b) | Expr::Div(a, b) | Expr::Pow(a, b) => {

@@ -68,7 +68,7 @@ pub enum Expr {
     /// Index into [`Model::params`].
     Param(usize),
     /// Index into [`Model::states`].
-    State(usize),
+    Factor(usize),
     /// The time `t`, in clock units.
     Time,
     Neg(Box<Expr>),
@@ -136,7 +136,7 @@ pub struct Param {
 
 /// A `state` with its initial value and its equation.
 #[derive(Clone, Debug, PartialEq)]
-pub struct State {
+pub struct Factor {
     pub name: String,
     pub name_span: Span,
     pub span: Span,
@@ -158,7 +158,7 @@ pub struct State {
 /// One diffusion term `coefficient dNOISE`.
 #[derive(Clone, Debug, PartialEq)]
 pub struct DiffusionTerm {
-    /// Index into [`Model::noises`].
+    /// Index into [`Model::shocks`].
     pub noise: usize,
     pub coefficient: Expr,
     pub span: Span,
@@ -180,7 +180,7 @@ pub struct Equation {
 
 /// A `noise`.
 #[derive(Clone, Debug, PartialEq)]
-pub struct Noise {
+pub struct Shock {
     pub name: String,
     pub name_span: Span,
     pub description: Option<String>,
@@ -244,18 +244,18 @@ pub struct Model {
     pub horizon: f64,
     pub units: Vec<UnitDecl>,
     pub params: Vec<Param>,
-    pub states: Vec<State>,
-    pub noises: Vec<Noise>,
+    pub factors: Vec<Factor>,
+    pub shocks: Vec<Shock>,
     pub correlations: Vec<Correlation>,
     pub lets: Vec<Let>,
     pub expectations: Vec<Expectation>,
 }
 
 impl Model {
-    /// The correlation matrix of the noises, in declaration order (identity where no
+    /// The correlation matrix of the shocks, in declaration order (identity where no
     /// `corr` was given).
     pub fn correlation_matrix(&self) -> Vec<Vec<f64>> {
-        let n = self.noises.len();
+        let n = self.shocks.len();
         let mut m = vec![vec![0.0; n]; n];
         for (i, row) in m.iter_mut().enumerate() {
             row[i] = 1.0;
@@ -269,7 +269,7 @@ impl Model {
         m
     }
 
-    /// The correlations of the noises, sparse: only the pairs a `corr` statement names
+    /// The correlations of the shocks, sparse: only the pairs a `corr` statement names
     /// (the last statement of a pair wins, as in [`Model::correlation_matrix`]).
     pub fn correlations(&self) -> Correlations {
         let mut pairs = std::collections::HashMap::new();
@@ -279,7 +279,7 @@ impl Model {
             }
         }
         Correlations {
-            noises: self.noises.len(),
+            shocks: self.shocks.len(),
             pairs,
         }
     }
@@ -288,21 +288,21 @@ impl Model {
         self.params.iter().position(|p| p.name == name)
     }
 
-    pub fn state_index(&self, name: &str) -> Option<usize> {
-        self.states.iter().position(|s| s.name == name)
+    pub fn factor_index(&self, name: &str) -> Option<usize> {
+        self.factors.iter().position(|s| s.name == name)
     }
 }
 
-/// The correlation matrix of the noises without its n² zeros: a model may declare
-/// thousands of noises and correlate a few of them.
+/// The correlation matrix of the shocks without its n² zeros: a model may declare
+/// thousands of shocks and correlate a few of them.
 #[derive(Clone, Debug, Default, PartialEq)]
 pub struct Correlations {
-    noises: usize,
+    shocks: usize,
     pairs: std::collections::HashMap<(usize, usize), f64>,
 }
 
 impl Correlations {
-    /// The correlation of noises `k` and `l`: 1 on the diagonal, 0 where none is given.
+    /// The correlation of shocks `k` and `l`: 1 on the diagonal, 0 where none is given.
     pub fn get(&self, k: usize, l: usize) -> f64 {
         if k == l {
             return 1.0;
@@ -313,12 +313,12 @@ impl Correlations {
             .unwrap_or(0.0)
     }
 
-    /// Whether no two noises are correlated.
+    /// Whether no two shocks are correlated.
     pub fn is_identity(&self) -> bool {
         self.pairs.values().all(|v| *v == 0.0)
     }
 
-    /// The blocks of the matrix: groups of two or more noises joined by nonzero
+    /// The blocks of the matrix: groups of two or more shocks joined by nonzero
     /// correlations, each sorted, in the order of their first noise. Every noise outside
     /// them is uncorrelated with all others, so the matrix is block diagonal with these
     /// blocks and ones.
@@ -336,7 +336,7 @@ impl Correlations {
             r
         }
         for (&(k, l), &v) in &self.pairs {
-            if v == 0.0 || k >= self.noises || l >= self.noises {
+            if v == 0.0 || k >= self.shocks || l >= self.shocks {
                 continue;
             }
             parent.entry(k).or_insert(k);
@@ -368,7 +368,7 @@ impl Expr {
         match self {
             Expr::Const(c) => *c,
             Expr::Param(i) => params.get(*i).copied().unwrap_or(f64::NAN),
-            Expr::State(i) => states.get(*i).copied().unwrap_or(f64::NAN),
+            Expr::Factor(i) => states.get(*i).copied().unwrap_or(f64::NAN),
             Expr::Time => t,
             Expr::Neg(a) => -ev(a),
             Expr::Add(a, b) => ev(a) + ev(b),
@@ -403,7 +403,7 @@ impl Expr {
     pub fn is_invalid(&self) -> bool {
         match self {
             Expr::Invalid => true,
-            Expr::Const(_) | Expr::Param(_) | Expr::State(_) | Expr::Time => false,
+            Expr::Const(_) | Expr::Param(_) | Expr::Factor(_) | Expr::Time => false,
             Expr::Neg(a) => a.is_invalid(),
             Expr::Add(a, b)
             | Expr::Sub(a, b)
@@ -423,6 +423,6 @@ impl Model {
 
     /// Initial state values in clock units, in declaration order.
     pub fn initial_values(&self) -> Vec<f64> {
-        self.states.iter().map(|s| s.initial).collect()
+        self.factors.iter().map(|s| s.initial).collect()
     }
 }

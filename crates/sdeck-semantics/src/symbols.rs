@@ -6,8 +6,8 @@ use sdeck_diagnostics::Span;
 pub enum SymbolKind {
     Unit,
     Param,
-    State,
-    Noise,
+    Factor,
+    Shock,
     Let,
 }
 
@@ -16,8 +16,8 @@ impl SymbolKind {
         match self {
             SymbolKind::Unit => "unit",
             SymbolKind::Param => "param",
-            SymbolKind::State => "state",
-            SymbolKind::Noise => "noise",
+            SymbolKind::Factor => "factor",
+            SymbolKind::Shock => "shock",
             SymbolKind::Let => "let",
         }
     }

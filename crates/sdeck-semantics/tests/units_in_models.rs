@@ -26,7 +26,7 @@ fn param(a: &Analysis, name: &str) -> f64 {
 
 #[test]
 fn a_yearly_diffusion_on_a_dimensionless_state_is_a_mismatch_at_the_equation() {
-    let text = "param k = 1 [1/year]\nparam vol = 0.2 [1/year]\nnoise W\nstate x = 0\n\
+    let text = "param k = 1 [1/year]\nparam vol = 0.2 [1/year]\nshock W\nfactor x = 0\n\
                 dx = -k * x dt + vol dW\n";
     assert_eq!(rules_at_lines(text), vec![(5, "dimension-mismatch")]);
     let a = analyze(text, "t");
@@ -88,7 +88,7 @@ fn horizons_convert_to_the_clock() {
 #[test]
 fn a_price_in_a_declared_currency_checks_clean() {
     let text = "unit EUR\nparam mu = 4% [1/year]\nparam sigma = 25% [1/sqrt(year)] > 0\n\
-                param floor = 80 [EUR]\nnoise W\nstate S = 100 [EUR] > 0\n\
+                param floor = 80 [EUR]\nshock W\nfactor S = 100 [EUR] > 0\n\
                 dS = mu * S dt + sigma * S dW\nlet cushion = S - floor\n\
                 expect mean(S, 1 year) in [100 EUR, 110 EUR]\n";
     let a = analyze(text, "t");
@@ -104,7 +104,7 @@ fn a_price_in_a_declared_currency_checks_clean() {
 #[test]
 fn a_let_that_mixes_dimensions_is_an_error_at_the_let() {
     let text = "param k = 1 [1/year]\nparam v = 0.1 [1/sqrt(year)]\nlet bad = k + v\n\
-                noise W\nstate x = 0\ndx = -k * x dt + v dW\n";
+                shock W\nfactor x = 0\ndx = -k * x dt + v dW\n";
     assert_eq!(
         rules_at_lines(text),
         vec![(3, "dimension-mismatch"), (3, "unused")]
@@ -113,7 +113,7 @@ fn a_let_that_mixes_dimensions_is_an_error_at_the_let() {
 
 #[test]
 fn a_sound_let_used_where_it_does_not_fit_is_an_error_at_the_use() {
-    let text = "param k = 1 [1/year]\nlet speed = 2 * k\nnoise W\nstate x = 0\n\
+    let text = "param k = 1 [1/year]\nlet speed = 2 * k\nshock W\nfactor x = 0\n\
                 dx = -k * x dt + speed dW\n";
     let got = rules_at_lines(text);
     assert_eq!(got, vec![(5, "dimension-mismatch")]);
@@ -121,10 +121,10 @@ fn a_sound_let_used_where_it_does_not_fit_is_an_error_at_the_use() {
 
 #[test]
 fn exponents_need_constant_pure_numbers() {
-    let text = "param k = 1 [1/year]\nparam v = 0.1 [1/sqrt(year)]\nnoise W\nstate x = 1\n\
+    let text = "param k = 1 [1/year]\nparam v = 0.1 [1/sqrt(year)]\nshock W\nfactor x = 1\n\
                 dx = -k * x^t dt + v dW\n";
     assert_eq!(rules_at_lines(text), vec![(5, "dimension-mismatch")]);
-    let sound = "param k = 1 [1/year]\nparam v = 0.1 [1/sqrt(year)]\nnoise W\nstate x = 1\n\
+    let sound = "param k = 1 [1/year]\nparam v = 0.1 [1/sqrt(year)]\nshock W\nfactor x = 1\n\
                  dx = -k * x^3 dt + v * x^1.5 dW\n";
     assert_eq!(rules_at_lines(sound), vec![]);
 }
@@ -132,7 +132,7 @@ fn exponents_need_constant_pure_numbers() {
 #[test]
 fn functions_need_dimensionless_arguments() {
     let text = "param freq = 1 [1/year]\nparam k = 1 [1/year]\nparam v = 0.1 [1/sqrt(year)]\n\
-                noise W\nstate x = 1\ndx = k * (sin(2 * pi * t) - x) dt + v dW\n";
+                shock W\nfactor x = 1\ndx = k * (sin(2 * pi * t) - x) dt + v dW\n";
     assert_eq!(
         rules_at_lines(text),
         vec![(1, "unused"), (6, "dimension-mismatch")]

@@ -126,7 +126,7 @@ fn safe_text(
 fn feller_fixes(a: &Analyzed, span: &Span) -> Vec<(String, Vec<TextEdit>)> {
     let model = &a.check.analysis.model;
     let mut out = Vec::new();
-    for (j, state) in model.states.iter().enumerate() {
+    for (j, state) in model.factors.iter().enumerate() {
         let touches = overlaps(&state.span, span)
             || state
                 .equation
@@ -217,8 +217,8 @@ fn nearest_correlation_fix(a: &Analyzed) -> Option<(String, Vec<TextEdit>)> {
                 value,
             } => {
                 last_corr_end = Some(statement.span.end);
-                let i = model.noises.iter().position(|n| n.name == first.name)?;
-                let j = model.noises.iter().position(|n| n.name == second.name)?;
+                let i = model.shocks.iter().position(|n| n.name == first.name)?;
+                let j = model.shocks.iter().position(|n| n.name == second.name)?;
                 if i == j {
                     continue;
                 }
@@ -232,7 +232,7 @@ fn nearest_correlation_fix(a: &Analyzed) -> Option<(String, Vec<TextEdit>)> {
                     });
                 }
             }
-            StatementKind::Noise { .. } => last_noise_end = Some(statement.span.end),
+            StatementKind::Shock { .. } => last_noise_end = Some(statement.span.end),
             _ => {}
         }
     }
@@ -242,8 +242,8 @@ fn nearest_correlation_fix(a: &Analyzed) -> Option<(String, Vec<TextEdit>)> {
             if !written[i][j] && near[i][j] != 0.0 {
                 added.push_str(&format!(
                     "corr {} {} = {}\n",
-                    model.noises[i].name,
-                    model.noises[j].name,
+                    model.shocks[i].name,
+                    model.shocks[j].name,
                     fmt_num(near[i][j])
                 ));
             }
@@ -278,7 +278,7 @@ fn moments_comment(a: &Analyzed, in_range: impl Fn(&Span) -> bool) -> Vec<(Strin
     let model = &a.check.analysis.model;
     let clock = &model.clock.unit;
     let mut out = Vec::new();
-    for (i, state) in model.states.iter().enumerate() {
+    for (i, state) in model.factors.iter().enumerate() {
         let Some(equation) = &state.equation else {
             continue;
         };

@@ -144,7 +144,7 @@ impl Analyzed {
             .iter()
             .find_map(|s| match (&s.kind, kind) {
                 (StatementKind::Param(d), SymbolKind::Param)
-                | (StatementKind::State(d), SymbolKind::State)
+                | (StatementKind::Factor(d), SymbolKind::Factor)
                     if d.name.name == name =>
                 {
                     Some(d)

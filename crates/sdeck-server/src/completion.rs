@@ -73,17 +73,17 @@ pub fn complete(
     for s in &a.check.analysis.symbols {
         let (kind, detail) = match s.kind {
             SymbolKind::Param => (CompletionItemKind::CONSTANT, "param"),
-            SymbolKind::State => (CompletionItemKind::VARIABLE, "state"),
-            SymbolKind::Noise => (CompletionItemKind::EVENT, "noise"),
+            SymbolKind::Factor => (CompletionItemKind::VARIABLE, "factor"),
+            SymbolKind::Shock => (CompletionItemKind::EVENT, "shock"),
             SymbolKind::Let => (CompletionItemKind::VARIABLE, "let"),
             SymbolKind::Unit => continue,
         };
         items.push(item(&s.name, kind, detail));
-        if s.kind == SymbolKind::Noise {
+        if s.kind == SymbolKind::Shock {
             items.push(item(
                 &format!("d{}", s.name),
                 CompletionItemKind::EVENT,
-                "noise differential",
+                "shock differential",
             ));
         }
     }

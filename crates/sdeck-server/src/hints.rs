@@ -41,7 +41,7 @@ pub fn inlay_hints(a: &Analyzed, encoding: PositionEncoding, range: Range) -> Ve
             }
         }
     }
-    for (i, state) in model.states.iter().enumerate() {
+    for (i, state) in model.factors.iter().enumerate() {
         let Some(equation) = &state.equation else {
             continue;
         };

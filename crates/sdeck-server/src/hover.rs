@@ -14,9 +14,9 @@ pub fn hover(a: &Analyzed, encoding: PositionEncoding, position: Position) -> Op
     let model = &a.check.analysis.model;
     let (markdown, span) = if let Some(symbol) = a.symbol_at(offset) {
         let text = match symbol.kind {
-            SymbolKind::State => state_text(a, model.state_index(&symbol.name)?),
+            SymbolKind::Factor => state_text(a, model.factor_index(&symbol.name)?),
             SymbolKind::Param => param_text(a, model.param_index(&symbol.name)?),
-            SymbolKind::Noise => noise_text(model, &symbol.name)?,
+            SymbolKind::Shock => noise_text(model, &symbol.name)?,
             SymbolKind::Let => let_text(model, &symbol.name)?,
             SymbolKind::Unit => unit_text(model, &symbol.name),
         };
@@ -49,11 +49,11 @@ fn or_unknown(x: Option<f64>) -> String {
 /// Family, formulas and the figures at the horizon.
 pub fn state_text(a: &Analyzed, i: usize) -> String {
     let model = &a.check.analysis.model;
-    let Some(state) = model.states.get(i) else {
+    let Some(state) = model.factors.get(i) else {
         return String::new();
     };
     let clock = &model.clock.unit;
-    let mut s = format!("**state `{}`**", state.name);
+    let mut s = format!("**factor `{}`**", state.name);
     let law = a.check.derivation.states.get(i);
     if let Some(law) = law {
         s.push_str(&format!(" · {}\n\n{}\n", law.family.as_str(), law.reason));
@@ -155,7 +155,7 @@ fn param_text(a: &Analyzed, i: usize) -> String {
         match role {
             Role::Speed { state, half_life } => {
                 let name = model
-                    .states
+                    .factors
                     .get(state)
                     .map(|s| s.name.as_str())
                     .unwrap_or("?");
@@ -169,11 +169,13 @@ fn param_text(a: &Analyzed, i: usize) -> String {
             }
             Role::Volatility { state } => {
                 let name = model
-                    .states
+                    .factors
                     .get(state)
                     .map(|s| s.name.as_str())
                     .unwrap_or("?");
-                s.push_str(&format!("\nvolatility of the square-root state `{name}`\n"));
+                s.push_str(&format!(
+                    "\nvolatility of the square-root factor `{name}`\n"
+                ));
             }
         }
     }
@@ -181,9 +183,9 @@ fn param_text(a: &Analyzed, i: usize) -> String {
 }
 
 fn noise_text(model: &Model, name: &str) -> Option<String> {
-    let index = model.noises.iter().position(|n| n.name == name)?;
-    let noise = &model.noises[index];
-    let mut s = format!("**noise `{}`** · standard Brownian motion\n", noise.name);
+    let index = model.shocks.iter().position(|n| n.name == name)?;
+    let noise = &model.shocks[index];
+    let mut s = format!("**shock `{}`** · standard Brownian motion\n", noise.name);
     if let Some(description) = &noise.description {
         s.push_str(&format!("\n_{}_\n", description.trim()));
     }
@@ -197,7 +199,7 @@ fn noise_text(model: &Model, name: &str) -> Option<String> {
             continue;
         };
         let other = model
-            .noises
+            .shocks
             .get(other)
             .map(|n| n.name.as_str())
             .unwrap_or("?");
@@ -208,7 +210,7 @@ fn noise_text(model: &Model, name: &str) -> Option<String> {
         ));
     }
     if lines.is_empty() {
-        s.push_str("\nindependent of every other noise\n");
+        s.push_str("\nindependent of every other shock\n");
     } else {
         s.push_str(&format!("\ncorrelations:\n\n{}\n", lines.join("\n")));
     }
@@ -234,7 +236,7 @@ fn let_text(model: &Model, name: &str) -> Option<String> {
             ));
         }
     } else {
-        s.push_str("\ndepends on the states or on time\n");
+        s.push_str("\ndepends on the factors or on time\n");
     }
     if let Some(description) = &l.description {
         s.push_str(&format!("\n_{}_\n", description.trim()));
@@ -274,7 +276,7 @@ fn unit_name_at(a: &Analyzed, offset: usize) -> Option<(String, sdeck_diagnostic
             continue;
         }
         match &statement.kind {
-            StatementKind::Param(d) | StatementKind::State(d) => {
+            StatementKind::Param(d) | StatementKind::Factor(d) => {
                 if let Some(u) = &d.unit {
                     visit(u);
                 }

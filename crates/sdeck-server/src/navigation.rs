@@ -12,7 +12,7 @@ use tower_lsp::lsp_types::{
 
 /// The keywords of the language: never names.
 pub const KEYWORDS: [&str; 12] = [
-    "model", "clock", "horizon", "unit", "param", "state", "noise", "corr", "let", "expect", "in",
+    "model", "clock", "horizon", "unit", "param", "factor", "shock", "corr", "let", "expect", "in",
     "inf",
 ];
 
@@ -135,15 +135,15 @@ pub fn document_symbols(a: &Analyzed, encoding: PositionEncoding) -> Vec<Documen
         .map(|s| {
             let (kind, detail) = match s.kind {
                 SymbolKind::Param => (LspSymbolKind::CONSTANT, "param".to_string()),
-                SymbolKind::State => {
+                SymbolKind::Factor => {
                     let family = model
-                        .state_index(&s.name)
+                        .factor_index(&s.name)
                         .and_then(|i| a.check.derivation.states.get(i))
-                        .map(|l| format!("state · {}", l.family.as_str()))
-                        .unwrap_or_else(|| "state".to_string());
+                        .map(|l| format!("factor · {}", l.family.as_str()))
+                        .unwrap_or_else(|| "factor".to_string());
                     (LspSymbolKind::VARIABLE, family)
                 }
-                SymbolKind::Noise => (LspSymbolKind::EVENT, "noise".to_string()),
+                SymbolKind::Shock => (LspSymbolKind::EVENT, "shock".to_string()),
                 SymbolKind::Let => (LspSymbolKind::FUNCTION, "let".to_string()),
                 SymbolKind::Unit => (LspSymbolKind::STRUCT, "unit".to_string()),
             };

@@ -98,7 +98,7 @@ fn row_value(markdown: &str, label: &str) -> f64 {
 
 const VASICEK: &str = "model larkspur_short_rate\nclock year\nhorizon 2 year\n\
 param kappa = 0.5% [1/day] > 0  # speed\nparam theta = 3%\nparam sigma = 1% [1/sqrt(year)] > 0\n\
-noise W\nstate r = 1%\ndr = kappa * (theta - r) dt + sigma dW\n";
+shock W\nfactor r = 1%\ndr = kappa * (theta - r) dt + sigma dW\n";
 
 #[test]
 fn hover_on_a_state_shows_the_vasicek_moments_at_the_horizon() {
@@ -134,7 +134,7 @@ fn hover_on_a_param_shows_its_clock_value_bound_description_and_half_life() {
 
 #[test]
 fn hover_on_a_noise_lists_its_correlations_and_on_a_unit_its_scale() {
-    let text = "noise W, V\ncorr W V = 0.4\nparam k = 2 [1/month]\nstate x = 0\n\
+    let text = "shock W, V\ncorr W V = 0.4\nparam k = 2 [1/month]\nfactor x = 0\n\
 dx = -k * x dt + 0.1 [1/sqrt(year)] dW\n";
     let text = text.replace(" [1/sqrt(year)]", "");
     let a = analyzed(&text);
@@ -194,7 +194,7 @@ fn rules_of(text: &str) -> Vec<&'static str> {
 #[test]
 fn the_feller_quick_fixes_reach_the_boundary() {
     let text = "clock year\nparam kappa = 0.5 [1/year] > 0\nparam level = 2% >= 0\n\
-param vol = 20% [1/sqrt(year)] > 0\nnoise W\nstate r = 1.8% >= 0\n\
+param vol = 20% [1/sqrt(year)] > 0\nshock W\nfactor r = 1.8% >= 0\n\
 dr = kappa * (level - r) dt + vol * sqrt(r) dW\n";
     assert!(rules_of(text).contains(&"feller-condition"));
     let a = analyzed(text);
@@ -226,8 +226,8 @@ dr = kappa * (level - r) dt + vol * sqrt(r) dW\n";
 
 #[test]
 fn the_nearest_correlation_fix_clears_the_psd_error() {
-    let text = "noise A, B, C\ncorr A B = 0.9\ncorr B C = 0.9\ncorr A C = -0.9\n\
-state x = 0\ndx = 0.1 dA + 0.1 dB + 0.1 dC\n";
+    let text = "shock A, B, C\ncorr A B = 0.9\ncorr B C = 0.9\ncorr A C = -0.9\n\
+factor x = 0\ndx = 0.1 dA + 0.1 dB + 0.1 dC\n";
     assert!(rules_of(text).contains(&"correlation-not-psd"));
     let a = analyzed(text);
     let fix = actions(&a, text)
@@ -244,16 +244,40 @@ state x = 0\ndx = 0.1 dA + 0.1 dB + 0.1 dC\n";
 
 #[test]
 fn a_semantic_fix_becomes_a_quick_fix_that_removes_its_diagnostic() {
-    let text = "param k = 1 [1/year]\nstate x = 0\ndx = -k * x dt + 0.1 dW\n";
-    assert!(rules_of(text).contains(&"undefined-name"));
+    let text = "param k = 1 [1/year]\nfactor x = 0\ndx = -k * x dt + 0.1 dW\n";
+    assert!(rules_of(text).contains(&"unknown-name"));
     let a = analyzed(text);
     let fix = actions(&a, text)
         .into_iter()
-        .find(|c| c.title.contains("noise W"))
-        .expect("declare-noise fix");
+        .find(|c| c.title.contains("shock W"))
+        .expect("declare-shock fix");
     assert!(fix.diagnostics.as_ref().is_some_and(|d| !d.is_empty()));
     let fixed = apply(text, fix.edit.as_ref().expect("edit"));
-    assert!(!rules_of(&fixed).contains(&"undefined-name"), "{fixed}");
+    assert!(!rules_of(&fixed).contains(&"unknown-name"), "{fixed}");
+}
+
+#[test]
+fn a_retired_keyword_is_rewritten_by_its_quick_fixes() {
+    let text = "param k = 1 [1/year] > 0\nparam v = 0.1 [1/sqrt(year)]\nnoise W\nstate x = 0\n\
+                dx = -k * x dt + v dW\n";
+    assert_eq!(rules_of(text), ["syntax", "syntax"]);
+    let a = analyzed(text);
+    let mut fixed = text.to_string();
+    for old in ["state", "noise"] {
+        let a = analyzed(&fixed);
+        let fix = actions(&a, &fixed)
+            .into_iter()
+            .find(|c| c.title.contains(&format!("for `{old}`")))
+            .expect("rewrite offered");
+        fixed = apply(&fixed, fix.edit.as_ref().expect("edit"));
+    }
+    assert!(actions(&a, text).len() >= 2);
+    assert_eq!(
+        fixed,
+        "param k = 1 [1/year] > 0\nparam v = 0.1 [1/sqrt(year)]\nshock W\nfactor x = 0\n\
+         dx = -k * x dt + v dW\n"
+    );
+    assert!(rules_of(&fixed).is_empty(), "{fixed}");
 }
 
 #[test]
@@ -271,18 +295,18 @@ fn the_moments_refactor_inserts_a_comment_and_changes_nothing_else() {
 
 #[test]
 fn rename_changes_the_declaration_and_every_use_including_differentials() {
-    let text = "noise W\nstate x = 0\ndx = 0.1 dW\n";
+    let text = "shock W\nfactor x = 0\ndx = 0.1 dW\n";
     let a = analyzed(text);
     let edit = crate::navigation::rename(&a, UTF16, &uri(), position_of(text, "W", 0), "Z")
         .expect("valid name")
         .expect("an edit");
-    assert_eq!(apply(text, &edit), "noise Z\nstate x = 0\ndx = 0.1 dZ\n");
+    assert_eq!(apply(text, &edit), "shock Z\nfactor x = 0\ndx = 0.1 dZ\n");
     let edit = crate::navigation::rename(&a, UTF16, &uri(), position_of(text, "dx", 1), "σ_x")
         .expect("valid")
         .expect("edit");
     assert_eq!(
         apply(text, &edit),
-        "noise W\nstate σ_x = 0\ndσ_x = 0.1 dW\n"
+        "shock W\nfactor σ_x = 0\ndσ_x = 0.1 dW\n"
     );
     for bad in ["exp", "param", "1x", "x y", "W"] {
         let r = crate::navigation::rename(&a, UTF16, &uri(), position_of(text, "x =", 0), bad);
@@ -305,7 +329,7 @@ fn definition_and_references_find_the_declaration_and_uses() {
 #[test]
 fn semantic_tokens_are_ordered_single_line_and_typed() {
     let text =
-        "# κ model 🚀\nparam κ = 2 [1/year]\nnoise W\nstate x = 0\ndx = -κ * exp(x) dt + 0.1 dW\n";
+        "# κ model 🚀\nparam κ = 2 [1/year]\nshock W\nfactor x = 0\ndx = -κ * exp(x) dt + 0.1 dW\n";
     let a = analyzed(text);
     let tokens = crate::tokens::semantic_tokens(&a, UTF16);
     assert!(tokens.len() >= 10, "{tokens:?}");
@@ -350,7 +374,7 @@ fn completion_inside_brackets_offers_units_only() {
             character: 0,
         },
     );
-    assert!(items.iter().any(|i| i.label == "noise"));
+    assert!(items.iter().any(|i| i.label == "shock"));
 }
 
 #[test]
@@ -368,8 +392,8 @@ fn features_do_not_panic_on_broken_or_empty_text() {
         "",
         "param",
         "dx = = dW\n",
-        "state x = 1 [\u{1F680}]\n",
-        "noise W\ncorr W W = 2\n",
+        "factor x = 1 [\u{1F680}]\n",
+        "shock W\ncorr W W = 2\n",
     ] {
         let a = analyzed(text);
         for line in 0..3 {
@@ -391,7 +415,7 @@ fn the_feller_fix_writes_the_speed_in_its_declared_unit_and_style() {
     // kappa = 0.1% a day = 0.365 a year; boundary κ = σ²/(2θ) = 0.04/0.04 = 1 a year
     // (Feller 1951; common practice), which is 1/365 = 0.273973% a day.
     let text = "clock year\nparam kappa = 0.1% [1/day] > 0\nparam level = 2% >= 0\n\
-param vol = 20% [1/sqrt(year)] > 0\nnoise W\nstate r = 1.8% >= 0\n\
+param vol = 20% [1/sqrt(year)] > 0\nshock W\nfactor r = 1.8% >= 0\n\
 dr = kappa * (level - r) dt + vol * sqrt(r) dW\n";
     let a = analyzed(text);
     let raise = actions(&a, text)

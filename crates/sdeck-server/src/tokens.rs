@@ -43,8 +43,8 @@ pub fn legend() -> SemanticTokensLegend {
 fn kind_type(kind: SymbolKind) -> u32 {
     match kind {
         SymbolKind::Param => PARAMETER,
-        SymbolKind::State => VARIABLE,
-        SymbolKind::Noise => EVENT,
+        SymbolKind::Factor => VARIABLE,
+        SymbolKind::Shock => EVENT,
         SymbolKind::Let => MACRO,
         SymbolKind::Unit => TYPE,
     }
@@ -86,14 +86,14 @@ pub fn semantic_tokens(a: &Analyzed, encoding: PositionEncoding) -> Vec<Semantic
                 7
             }
             StatementKind::Unit { .. } => 4,
-            StatementKind::Param(d) | StatementKind::State(d) => {
+            StatementKind::Param(d) | StatementKind::Factor(d) => {
                 spans.push((d.value.span.clone(), NUMBER, 0));
                 if let Some(u) = &d.unit {
                     unit(u, &mut spans);
                 }
                 5
             }
-            StatementKind::Noise { .. } => 5,
+            StatementKind::Shock { .. } => 5,
             StatementKind::Corr { value, .. } => {
                 spans.push((value.span.clone(), NUMBER, 0));
                 4
@@ -120,7 +120,13 @@ pub fn semantic_tokens(a: &Analyzed, encoding: PositionEncoding) -> Vec<Semantic
         };
         if keyword_len > 0 {
             let start = statement.span.start;
-            spans.push((start..start + keyword_len, KEYWORD, 0));
+            // The word as written: a retired keyword (`state`) is shorter than its
+            // replacement, and is still coloured as the keyword it stands for.
+            let written = a.text.get(start..).map_or(keyword_len, |rest| {
+                rest.find(|c: char| !(c.is_alphanumeric() || c == '_'))
+                    .unwrap_or(rest.len())
+            });
+            spans.push((start..start + written, KEYWORD, 0));
         }
     }
     encode(a, encoding, spans)

@@ -12,8 +12,8 @@ use std::time::Instant;
 const DOUBLE_WELL: &str = "
 param rate = 1 [1/year] > 0
 param vol = 0.5 [1/sqrt(year)] > 0
-noise W
-state x = 0.1
+shock W
+factor x = 0.1
 dx = rate * (x - x^3) dt + vol dW
 ";
 
@@ -21,8 +21,8 @@ const SQUARE_ROOT: &str = "
 param kappa = 1.6 [1/year] > 0
 param theta = 3.4% >= 0
 param sigma = 9% [1/sqrt(year)] > 0
-noise W
-state r = 2.9% >= 0
+shock W
+factor r = 2.9% >= 0
 dr = kappa * (theta - r) dt + sigma * sqrt(r) dW
 ";
 

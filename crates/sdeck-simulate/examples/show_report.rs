@@ -2,7 +2,7 @@
 
 fn main() {
     let source = "param kappa = 1.6 [1/year] > 0\nparam theta = 3.4% >= 0\nparam sigma = 9% [1/sqrt(year)] > 0\n\
-                  noise W\nstate r = 2.9% >= 0\ndr = kappa * (theta - r) dt + sigma * sqrt(r) dW\n";
+                  shock W\nfactor r = 2.9% >= 0\ndr = kappa * (theta - r) dt + sigma * sqrt(r) dW\n";
     let model = sdeck_semantics::analyze(source, "demo").model;
     let derivation = sdeck_calculus::derive(&model);
     // SDECK_EXAMPLE_PATHS makes the run long enough to show the progress bar.

@@ -137,7 +137,7 @@ fn fold(expr: &Expr, params: &[f64], state_count: usize) -> Result<Node, Compile
         Expr::Invalid => return Err(CompileError::Invalid),
         Expr::Const(c) => Node::Const(*c),
         Expr::Param(i) => Node::Const(*params.get(*i).ok_or(CompileError::UnknownIndex)?),
-        Expr::State(i) => {
+        Expr::Factor(i) => {
             if *i >= state_count {
                 return Err(CompileError::UnknownIndex);
             }
@@ -326,7 +326,7 @@ impl Emitter<'_> {
 pub fn mark_root_states(expr: &Expr, marks: &mut [bool]) {
     fn mark_all(expr: &Expr, marks: &mut [bool]) {
         match expr {
-            Expr::State(i) => {
+            Expr::Factor(i) => {
                 if let Some(mark) = marks.get_mut(*i) {
                     *mark = true;
                 }
@@ -363,7 +363,7 @@ pub fn mark_root_states(expr: &Expr, marks: &mut [bool]) {
             mark_root_states(a, marks);
             mark_root_states(b, marks);
         }
-        Expr::Const(_) | Expr::Param(_) | Expr::State(_) | Expr::Time | Expr::Invalid => {}
+        Expr::Const(_) | Expr::Param(_) | Expr::Factor(_) | Expr::Time | Expr::Invalid => {}
     }
 }
 
@@ -525,24 +525,24 @@ mod tests {
         use Expr::*;
         vec![
             // kappa * (level - x)
-            Mul(b(Param(0)), b(Sub(b(Param(1)), b(State(0))))),
+            Mul(b(Param(0)), b(Sub(b(Param(1)), b(Factor(0))))),
             // vol * sqrt(x)
-            Mul(b(Param(2)), b(Call(Function::Sqrt, vec![State(0)]))),
+            Mul(b(Param(2)), b(Call(Function::Sqrt, vec![Factor(0)]))),
             // x - x^3 + y / 2
             Add(
-                b(Sub(b(State(0)), b(Pow(b(State(0)), b(Const(3.0)))))),
-                b(Div(b(State(1)), b(Const(2.0)))),
+                b(Sub(b(Factor(0)), b(Pow(b(Factor(0)), b(Const(3.0)))))),
+                b(Div(b(Factor(1)), b(Const(2.0)))),
             ),
             // exp(-x) * log(y) + abs(sin(t)) - cos(x * t)
             Sub(
                 b(Add(
                     b(Mul(
-                        b(Call(Function::Exp, vec![Neg(b(State(0)))])),
-                        b(Call(Function::Log, vec![State(1)])),
+                        b(Call(Function::Exp, vec![Neg(b(Factor(0)))])),
+                        b(Call(Function::Log, vec![Factor(1)])),
                     )),
                     b(Call(Function::Abs, vec![Call(Function::Sin, vec![Time])])),
                 )),
-                b(Call(Function::Cos, vec![Mul(b(State(0)), b(Time))])),
+                b(Call(Function::Cos, vec![Mul(b(Factor(0)), b(Time))])),
             ),
             // min(x, level) + max(y, 1) - 1 / x + x ^ y + x ^ 0.5 + (2 - y) + (x - 1)
             Add(
@@ -550,18 +550,18 @@ mod tests {
                     b(Add(
                         b(Sub(
                             b(Add(
-                                b(Call(Function::Min, vec![State(0), Param(1)])),
-                                b(Call(Function::Max, vec![State(1), Const(1.0)])),
+                                b(Call(Function::Min, vec![Factor(0), Param(1)])),
+                                b(Call(Function::Max, vec![Factor(1), Const(1.0)])),
                             )),
-                            b(Div(b(Const(1.0)), b(State(0)))),
+                            b(Div(b(Const(1.0)), b(Factor(0)))),
                         )),
-                        b(Pow(b(State(0)), b(State(1)))),
+                        b(Pow(b(Factor(0)), b(Factor(1)))),
                     )),
-                    b(Pow(b(State(0)), b(Const(0.5)))),
+                    b(Pow(b(Factor(0)), b(Const(0.5)))),
                 )),
                 b(Add(
-                    b(Sub(b(Const(2.0)), b(State(1)))),
-                    b(Sub(b(State(0)), b(Const(1.0)))),
+                    b(Sub(b(Const(2.0)), b(Factor(1)))),
+                    b(Sub(b(Factor(0)), b(Const(1.0)))),
                 )),
             ),
             // a constant expression: 2 * kappa ^ 2
@@ -569,12 +569,12 @@ mod tests {
             // x ^ -2 + x ^ 7 + (1 + x) + (x * 3)
             Add(
                 b(Add(
-                    b(Pow(b(State(0)), b(Const(-2.0)))),
-                    b(Pow(b(State(0)), b(Const(7.0)))),
+                    b(Pow(b(Factor(0)), b(Const(-2.0)))),
+                    b(Pow(b(Factor(0)), b(Const(7.0)))),
                 )),
                 b(Add(
-                    b(Add(b(Const(1.0)), b(State(0)))),
-                    b(Mul(b(State(0)), b(Const(3.0)))),
+                    b(Add(b(Const(1.0)), b(Factor(0)))),
+                    b(Mul(b(Factor(0)), b(Const(3.0)))),
                 )),
             ),
         ]
@@ -610,7 +610,7 @@ mod tests {
         assert_eq!(program.constant(), Some(18.0));
         let expr = Expr::Mul(
             b(Expr::Param(0)),
-            b(Expr::Sub(b(Expr::Param(1)), b(Expr::State(0)))),
+            b(Expr::Sub(b(Expr::Param(1)), b(Expr::Factor(0)))),
         );
         let program = Program::compile(&expr, &[1.5, 0.04], 1, &[false]).unwrap();
         assert!(program
@@ -622,7 +622,7 @@ mod tests {
 
     #[test]
     fn truncated_states_read_their_positive_part() {
-        let expr = Expr::Call(Function::Sqrt, vec![Expr::State(0)]);
+        let expr = Expr::Call(Function::Sqrt, vec![Expr::Factor(0)]);
         let program = Program::compile(&expr, &[], 1, &[true]).unwrap();
         assert_eq!(program.evaluate_one(&[-0.3], 0.0), 0.0);
         assert_eq!(program.evaluate_one(&[0.25], 0.0), 0.5);
@@ -639,7 +639,7 @@ mod tests {
             Err(CompileError::UnknownIndex)
         );
         assert_eq!(
-            Program::compile(&Expr::State(1), &[], 1, &[false]),
+            Program::compile(&Expr::Factor(1), &[], 1, &[false]),
             Err(CompileError::UnknownIndex)
         );
         let bad_call = Expr::Call(Function::Min, vec![Expr::Const(1.0)]);
@@ -656,10 +656,10 @@ mod tests {
         // sqrt(x) * y^2 + z^1.5
         let expr = Add(
             b(Mul(
-                b(Call(Function::Sqrt, vec![State(0)])),
-                b(Pow(b(State(1)), b(Const(2.0)))),
+                b(Call(Function::Sqrt, vec![Factor(0)])),
+                b(Pow(b(Factor(1)), b(Const(2.0)))),
             )),
-            b(Pow(b(State(2)), b(Const(1.5)))),
+            b(Pow(b(Factor(2)), b(Const(1.5)))),
         );
         mark_root_states(&expr, &mut marks);
         assert_eq!(marks, [true, false, true]);
@@ -678,7 +678,7 @@ mod properties {
         let leaf = prop_oneof![
             (-3.0f64..3.0).prop_map(Expr::Const),
             (0usize..2).prop_map(Expr::Param),
-            (0usize..2).prop_map(Expr::State),
+            (0usize..2).prop_map(Expr::Factor),
             Just(Expr::Time),
             // Small integer and half-integer constants reach the power shortcuts.
             (-4i32..6).prop_map(|n| Expr::Const(f64::from(n) * 0.5)),

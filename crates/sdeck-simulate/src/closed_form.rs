@@ -11,7 +11,7 @@ use sdeck_semantics::Model;
 /// declaration order.
 pub fn closed_forms_at(model: &Model, derivation: &Derivation, t: f64) -> Vec<Option<(f64, f64)>> {
     let moments = moments_at(model, derivation, t);
-    (0..model.states.len())
+    (0..model.factors.len())
         .map(|i| {
             let mean = moments.mean.get(i).copied().flatten()?;
             let variance = moments.variance.get(i).copied().flatten()?;
@@ -30,7 +30,7 @@ pub fn closed_form_means(
         .iter()
         .map(|t| moments_at(model, derivation, *t).mean)
         .collect();
-    (0..model.states.len())
+    (0..model.factors.len())
         .map(|i| {
             per_time
                 .iter()

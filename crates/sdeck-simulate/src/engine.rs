@@ -81,16 +81,16 @@ pub enum SimulateError {
 impl fmt::Display for SimulateError {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         match self {
-            SimulateError::NoStates => write!(f, "the model declares no state: there is nothing to simulate"),
+            SimulateError::NoStates => write!(f, "the model declares no factor: there is nothing to simulate"),
             SimulateError::MissingEquation { state } => {
-                write!(f, "state `{state}` has no equation; add `d{state} = ... dt + ... dW`")
+                write!(f, "factor `{state}` has no equation; add `d{state} = ... dt + ... dW`")
             }
             SimulateError::UnresolvedEquation { state } => write!(
                 f,
                 "the equation of `{state}` did not resolve (see the errors of `check`); fix them before simulating"
             ),
             SimulateError::UnknownNoise { state } => {
-                write!(f, "the equation of `{state}` refers to a noise that is not declared")
+                write!(f, "the equation of `{state}` refers to a shock that is not declared")
             }
             SimulateError::NoPaths => write!(f, "the number of paths must be at least 1"),
             SimulateError::NoSteps => write!(f, "the number of steps must be at least 1"),
@@ -99,7 +99,7 @@ impl fmt::Display for SimulateError {
             }
             SimulateError::TooLarge { paths, states } => write!(
                 f,
-                "{paths} paths of {states} states would not fit in memory; use at most {} paths",
+                "{paths} paths of {states} factors would not fit in memory; use at most {} paths",
                 MAX_STORED_VALUES / states.max(&1)
             ),
             SimulateError::ThreadPool(message) => write!(f, "could not start the worker threads: {message}"),
@@ -123,11 +123,11 @@ pub const MAX_BAND_TIMES: usize = 400;
 /// Checks that a plan (possibly built by hand) fits the model, so that the engine never
 /// indexes outside it.
 fn validate_plan(model: &Model, plan: &Plan) -> Result<(), SimulateError> {
-    let states = model.states.len();
-    let noises = model.noises.len();
+    let states = model.factors.len();
+    let noises = model.shocks.len();
     if plan.schemes.len() != states {
         return Err(SimulateError::InconsistentPlan(format!(
-            "{} schemes for {states} states",
+            "{} schemes for {states} factors",
             plan.schemes.len()
         )));
     }
@@ -135,7 +135,7 @@ fn validate_plan(model: &Model, plan: &Plan) -> Result<(), SimulateError> {
         if let Scheme::Exact(ExactLaw::Lognormal { loadings, .. }) = scheme {
             if loadings.iter().any(|(noise, _)| *noise >= noises) {
                 return Err(SimulateError::InconsistentPlan(
-                    "a lognormal loading on an unknown noise".into(),
+                    "a lognormal loading on an unknown shock".into(),
                 ));
             }
         }
@@ -158,7 +158,7 @@ fn validate_plan(model: &Model, plan: &Plan) -> Result<(), SimulateError> {
             && group.constant.len() == m)
         {
             return Err(SimulateError::InconsistentPlan(
-                "the Gaussian group's matrices do not match its states".into(),
+                "the Gaussian group's matrices do not match its factors".into(),
             ));
         }
     }
@@ -171,7 +171,7 @@ fn validate_plan(model: &Model, plan: &Plan) -> Result<(), SimulateError> {
     });
     if orphans {
         return Err(SimulateError::InconsistentPlan(
-            "a Gaussian state outside the Gaussian group".into(),
+            "a Gaussian factor outside the Gaussian group".into(),
         ));
     }
     Ok(())
@@ -259,8 +259,8 @@ fn compile(
     steps: usize,
     warnings: &mut Vec<String>,
 ) -> Result<Compiled, SimulateError> {
-    let state_count = model.states.len();
-    let noise_count = model.noises.len();
+    let state_count = model.factors.len();
+    let noise_count = model.shocks.len();
     let params = model.param_values();
     let truncated: Vec<bool> = (0..state_count)
         .map(|i| plan.truncated.get(i).copied().unwrap_or(false))
@@ -269,7 +269,7 @@ fn compile(
     // Every equation must compile, whatever its scheme: an exact scheme on a broken model
     // would hide the error.
     let mut programs = Vec::with_capacity(state_count);
-    for state in &model.states {
+    for state in &model.factors {
         let equation = state
             .equation
             .as_ref()
@@ -297,7 +297,7 @@ fn compile(
     let factor = correlation_factor(&correlation);
     if factor.repaired {
         warnings.push(
-            "the correlation matrix of the noises is not positive semi-definite; simulated with a repaired matrix \
+            "the correlation matrix of the shocks is not positive semi-definite; simulated with a repaired matrix \
              (negative eigenvalues set to zero, unit diagonal restored)"
                 .to_string(),
         );
@@ -597,7 +597,7 @@ pub fn simulate_paths(
     plan: &Plan,
     options: &SimulationOptions,
 ) -> Result<PathSamples, SimulateError> {
-    let states = model.states.len();
+    let states = model.factors.len();
     if states == 0 {
         return Err(SimulateError::NoStates);
     }
@@ -683,7 +683,7 @@ pub fn simulate_paths(
         paths: options.paths,
         steps: options.steps,
         seed: options.seed,
-        state_names: model.states.iter().map(|s| s.name.clone()).collect(),
+        state_names: model.factors.iter().map(|s| s.name.clone()).collect(),
         schemes: (0..states).map(|i| plan.describe_state(i)).collect(),
         finals,
         band_times: record_steps.iter().map(|s| *s as f64 * step).collect(),

@@ -14,7 +14,7 @@
 //! use sdeck_simulate::{check, simulate_and_compare, to_json, SimulationOptions};
 //!
 //! let source = "param kappa = 1.2 [1/year] > 0\nparam theta = 4%\n\
-//!               param sigma = 1.5% [1/sqrt(year)] > 0\nnoise W\nstate r = 1%\n\
+//!               param sigma = 1.5% [1/sqrt(year)] > 0\nshock W\nfactor r = 1%\n\
 //!               dr = kappa * (theta - r) dt + sigma dW\n";
 //! let model = sdeck_semantics::analyze(source, "demo").model;
 //! let derivation = sdeck_calculus::derive(&model);

@@ -80,7 +80,7 @@ impl Plan {
     /// classify).
     pub fn all_euler(model: &Model) -> Plan {
         Plan {
-            schemes: vec![Scheme::Euler; model.states.len()],
+            schemes: vec![Scheme::Euler; model.factors.len()],
             gaussian_group: None,
             truncated: root_states(model),
             notes: Vec::new(),
@@ -103,17 +103,17 @@ impl Plan {
 /// it appears under `sqrt`, `log` or a fractional power and either
 /// - that argument is affine with non-negative constant and positive coefficients
 ///   (`sqrt(v)`, `sqrt(theta * v)`, `x^1.5`): reading x⁺ keeps the argument in its domain; or
-/// - the state's declared domain has a lower bound at or above 0 (`state v = 4% >= 0`):
+/// - the state's declared domain has a lower bound at or above 0 (`factor v = 4% >= 0`):
 ///   reading x⁺ keeps to the declared domain.
 ///
 /// A state that may be negative and appears only under a root whose argument stays
 /// positive anyway (`sqrt(1 + p^2)`) is left alone: truncating it would change the model.
 fn root_states(model: &Model) -> Vec<bool> {
-    let n = model.states.len();
+    let n = model.factors.len();
     let params = model.param_values();
     let mut under_root = vec![false; n];
     let mut affine_argument = vec![false; n];
-    for state in &model.states {
+    for state in &model.factors {
         if let Some(equation) = &state.equation {
             let coefficients = std::iter::once(&equation.drift)
                 .chain(equation.diffusion.iter().map(|term| &term.coefficient));
@@ -125,7 +125,7 @@ fn root_states(model: &Model) -> Vec<bool> {
     }
     (0..n)
         .map(|i| {
-            let declared_non_negative = model.states[i]
+            let declared_non_negative = model.factors[i]
                 .domain
                 .lower
                 .is_some_and(|(bound, _)| bound >= 0.0);
@@ -171,7 +171,7 @@ fn mark_affine_root_arguments(expr: &Expr, params: &[f64], marks: &mut [bool]) {
         Expr::Call(_, args) => args
             .iter()
             .for_each(|a| mark_affine_root_arguments(a, params, marks)),
-        Expr::Const(_) | Expr::Param(_) | Expr::State(_) | Expr::Time | Expr::Invalid => {}
+        Expr::Const(_) | Expr::Param(_) | Expr::Factor(_) | Expr::Time | Expr::Invalid => {}
     }
 }
 
@@ -186,9 +186,9 @@ struct StateShape {
 
 fn read_shapes(model: &Model) -> Vec<Option<StateShape>> {
     let params = model.param_values();
-    let n = model.states.len();
+    let n = model.factors.len();
     model
-        .states
+        .factors
         .iter()
         .enumerate()
         .map(|(index, state)| {
@@ -233,7 +233,7 @@ fn noises_exclusive(own: &[usize], others: &[usize], correlation: &[Vec<f64>]) -
 
 /// Chooses a scheme for every state from the equations alone.
 pub fn plan_from_model(model: &Model) -> Plan {
-    let n = model.states.len();
+    let n = model.factors.len();
     let shapes = read_shapes(model);
     let correlation = model.correlation_matrix();
     let mut schemes = vec![Scheme::Euler; n];
@@ -300,7 +300,7 @@ pub fn plan_from_model(model: &Model) -> Plan {
             };
             drift.push(states.iter().map(|j| form.coefficients[*j]).collect());
             constant.push(form.constant);
-            let mut row = vec![0.0; model.noises.len()];
+            let mut row = vec![0.0; model.shocks.len()];
             for (noise, term) in shape.diffusion.iter().flatten() {
                 if let Some(slot) = row.get_mut(*noise) {
                     *slot += term.constant;
@@ -415,7 +415,7 @@ pub fn plan(model: &Model, derivation: &Derivation) -> Plan {
         });
         // When the calculus gives the drift matrix of the whole system, it must match.
         let matrix_agrees = match &derivation.drift_matrix {
-            Some(matrix) if group.states.len() == model.states.len() => {
+            Some(matrix) if group.states.len() == model.factors.len() => {
                 group.states.iter().enumerate().all(|(a, _)| {
                     group.drift[a].iter().enumerate().all(|(b, value)| {
                         matrix
@@ -463,7 +463,7 @@ pub fn plan(model: &Model, derivation: &Derivation) -> Plan {
 
     let names: Vec<&str> = to_euler
         .iter()
-        .filter_map(|i| model.states.get(*i).map(|s| s.name.as_str()))
+        .filter_map(|i| model.factors.get(*i).map(|s| s.name.as_str()))
         .collect();
     if !names.is_empty() {
         plan.notes.push(format!(

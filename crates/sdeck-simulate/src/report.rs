@@ -239,7 +239,7 @@ fn probability_key(p: f64) -> String {
 }
 
 /// The JSON report:
-/// `{"at", "paths", "steps", "seed", "states": [{"name", "mean", "mean_se", "variance",
+/// `{"at", "paths", "steps", "seed", "factors": [{"name", "mean", "mean_se", "variance",
 /// "variance_se", "quantiles": {"0.01": ..}, "quantiles_se": {..}, "closed_form": {..} | null}]}`.
 pub fn to_json(result: &SimulationResult) -> Value {
     let states: Vec<Value> = result
@@ -278,7 +278,7 @@ pub fn to_json(result: &SimulationResult) -> Value {
         "paths": result.paths,
         "steps": result.steps,
         "seed": result.seed,
-        "states": states,
+        "factors": states,
     })
 }
 

@@ -47,8 +47,8 @@ clock year
 param kappa = 1.2 [1/year] > 0
 param theta = 4%
 param sigma = 1.5% [1/sqrt(year)] > 0
-noise W
-state r = 1%
+shock W
+factor r = 1%
 dr = kappa * (theta - r) dt + sigma dW
 ";
 
@@ -86,8 +86,8 @@ fn geometric_brownian_exact_scheme_matches_lognormal_moments() {
         unit EUR
         param mu = 6% [1/year]
         param sigma = 25% [1/sqrt(year)] > 0
-        noise W
-        state S = 84 [EUR] > 0
+        shock W
+        factor S = 84 [EUR] > 0
         dS = mu * S dt + sigma * S dW
         ",
     );
@@ -130,8 +130,8 @@ const CIR_FELLER_VIOLATED: &str = "
 param kappa = 0.8 [1/year] > 0
 param theta = 2% >= 0
 param sigma = 30% [1/sqrt(year)] > 0
-noise W
-state r = 1.5% >= 0
+shock W
+factor r = 1.5% >= 0
 dr = kappa * (theta - r) dt + sigma * sqrt(r) dW
 ";
 
@@ -173,8 +173,8 @@ fn euler_with_full_truncation_converges_to_cir_moments() {
         param kappa = 1.6 [1/year] > 0
         param theta = 3.4% >= 0
         param sigma = 9% [1/sqrt(year)] > 0
-        noise W
-        state r = 2.9% >= 0
+        shock W
+        factor r = 2.9% >= 0
         dr = kappa * (theta - r) dt + sigma * sqrt(r) dW
         ",
     );
@@ -207,8 +207,8 @@ fn euler_on_a_cubic_drift_converges_to_the_stationary_law() {
         "
         param sigma = 1 [1/sqrt(year)] > 0
         param rate = 1 [1/year] > 0
-        noise W
-        state x = 1.5
+        shock W
+        factor x = 1.5
         dx = -rate * x^3 dt + sigma dW
         ",
     );
@@ -238,10 +238,10 @@ fn correlated_gaussian_system_has_the_exact_covariance() {
         param k2 = 0.2 [1/year] > 0
         param s1 = 1% [1/sqrt(year)] > 0
         param s2 = 0.8% [1/sqrt(year)] > 0
-        noise A, B
+        shock A, B
         corr A B = -0.6
-        state x = 0
-        state y = 0
+        factor x = 0
+        factor y = 0
         dx = -k1 * x dt + s1 dA
         dy = -k2 * y dt + s2 dB
         ",
@@ -284,10 +284,10 @@ fn euler_increments_carry_the_noise_correlation() {
         param s1 = 0.3 [1/sqrt(year)] > 0
         param s2 = 0.5 [1/sqrt(year)] > 0
         param w = 2 [1/year]
-        noise A, B
+        shock A, B
         corr A B = 0.7
-        state x = 0
-        state y = 0
+        factor x = 0
+        factor y = 0
         dx = s1 * cos(w * t) dA
         dy = s2 * cos(w * t) dB
         ",
@@ -312,10 +312,10 @@ param sigma = 9% [1/sqrt(year)] > 0
 param a = 0.5 [1/year] > 0
 param b = 0.2 [1/sqrt(year)] > 0
 param c = 2 [1/year]
-noise W, V, U
-state r = 2.9% >= 0
-state y = 1
-state p = 0
+shock W, V, U
+factor r = 2.9% >= 0
+factor y = 1
+factor p = 0
 dr = kappa * (theta - r) dt + sigma * sqrt(r) dW
 dy = -a * y dt + b dV
 dp = (c * y - a * p - c * p^3) dt + b * sqrt(1 + p^2) dU
@@ -363,12 +363,12 @@ fn json_report_has_the_documented_shape() {
         k.sort();
         k
     };
-    assert_eq!(keys(&json), ["at", "paths", "seed", "states", "steps"]);
+    assert_eq!(keys(&json), ["at", "factors", "paths", "seed", "steps"]);
     assert_eq!(json["paths"], 2000);
     assert_eq!(json["steps"], 10);
     assert_eq!(json["seed"], 5);
     assert_eq!(json["at"], 1.0);
-    let state = &json["states"][0];
+    let state = &json["factors"][0];
     assert_eq!(
         keys(state),
         [
@@ -396,7 +396,7 @@ fn json_report_has_the_documented_shape() {
         ["mean", "variance", "z_mean", "z_variance"]
     );
     result.states[0].closed_form = None;
-    assert!(to_json(&result)["states"][0]["closed_form"].is_null());
+    assert!(to_json(&result)["factors"][0]["closed_form"].is_null());
 }
 
 #[test]
@@ -483,7 +483,7 @@ fn fan_chart_is_well_formed_svg_with_one_panel_per_state() {
 #[test]
 fn unusable_models_and_options_give_clear_errors() {
     let missing = analyze(
-        "noise W\nstate x = 1\nstate y = 2\ndx = -x dt + 1 dW\n",
+        "shock W\nfactor x = 1\nfactor y = 2\ndx = -x dt + 1 dW\n",
         "test",
     )
     .model;
@@ -493,7 +493,7 @@ fn unusable_models_and_options_give_clear_errors() {
     assert!(error.to_string().contains("`y` has no equation"));
 
     let unresolved = analyze(
-        "noise W\nstate x = 1\ndx = -nothing * x dt + 1 dW\n",
+        "shock W\nfactor x = 1\ndx = -nothing * x dt + 1 dW\n",
         "test",
     )
     .model;
@@ -529,13 +529,13 @@ fn unusable_models_and_options_give_clear_errors() {
 fn indefinite_correlation_is_repaired_with_a_warning() {
     let analysis = analyze(
         "
-        noise A, B, C
+        shock A, B, C
         corr A B = -0.9
         corr A C = -0.9
         corr B C = -0.9
-        state x = 0
-        state y = 0
-        state z = 0
+        factor x = 0
+        factor y = 0
+        factor z = 0
         dx = 0.1 * x^2 dt + 1 dA
         dy = 1 dB
         dz = 1 dC
@@ -567,9 +567,9 @@ fn coupled_states_keep_exact_schemes_only_when_noises_are_not_shared() {
         "
         param a = 0.5 [1/year]
         param b = 0.2 [1/sqrt(year)]
-        noise W
-        state y = 1
-        state p = 0
+        shock W
+        factor y = 1
+        factor p = 0
         dy = -a * y dt + b dW
         dp = -a * p^3 dt + b dW
         ",
@@ -579,9 +579,9 @@ fn coupled_states_keep_exact_schemes_only_when_noises_are_not_shared() {
         "
         param a = 0.5 [1/year]
         param b = 0.2 [1/sqrt(year)]
-        noise W, V
-        state y = 1
-        state p = 0
+        shock W, V
+        factor y = 1
+        factor p = 0
         dy = -a * y dt + b dW
         dp = -a * p^3 dt + b dV
         ",
@@ -634,10 +634,10 @@ fn truncation_applies_to_roots_of_non_negative_states_only() {
         param level = 4%
         param b = 0.2 [1/sqrt(year)]
         param c = 1 [1/year]
-        noise W, V, U
-        state v = 4% >= 0
-        state p = 0
-        state S = 1 > 0
+        shock W, V, U
+        factor v = 4% >= 0
+        factor p = 0
+        factor S = 1 > 0
         dv = k * (level - v) dt + b * sqrt(v) dW
         dp = -k * p dt + b * sqrt(1 + p^2) dV
         dS = k * S dt + sqrt(c * v * S) dU

@@ -158,7 +158,7 @@ pub struct Bound {
     pub span: Span,
 }
 
-/// `param NAME = NUMBER [UNIT]? BOUND?` and `state NAME = NUMBER [UNIT]? BOUND?`.
+/// `param NAME = NUMBER [UNIT]? BOUND?` and `factor NAME = NUMBER [UNIT]? BOUND?`.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Declaration {
     pub name: Ident,
@@ -179,7 +179,7 @@ pub enum Differential {
     /// `dt`, with the span of the token.
     Time(Span),
     /// `dW`: the noise name `W` (its span covers `W` only) and the span of the whole token.
-    Noise { noise: Ident, token: Span },
+    Shock { shock: Ident, token: Span },
 }
 
 /// One term of an equation: `± coefficient differential`.
@@ -306,8 +306,8 @@ pub enum StatementKind {
         name: Ident,
     },
     Param(Declaration),
-    State(Declaration),
-    Noise {
+    Factor(Declaration),
+    Shock {
         names: Vec<Ident>,
     },
     Corr {

@@ -7,7 +7,7 @@
 //!
 //! ```
 //! use sdeck_syntax::ast::StatementKind;
-//! let file = sdeck_syntax::parse("noise W\nstate x = 1\ndx = -0.5 * x dt + 0.2 dW\n");
+//! let file = sdeck_syntax::parse("shock W\nfactor x = 1\ndx = -0.5 * x dt + 0.2 dW\n");
 //! assert!(file.diagnostics.is_empty());
 //! assert!(matches!(file.statements[2].kind, StatementKind::Equation(_)));
 //! ```

@@ -11,11 +11,11 @@
 #![allow(clippy::result_large_err)]
 
 use crate::ast::*;
-use crate::split::{is_ident_char, is_ident_start, split};
+use crate::split::{is_ident_char, is_ident_start, split, RETIRED_KEYWORDS};
 use pest::error::{ErrorVariant, InputLocation};
 use pest::iterators::Pair;
 use pest::Parser;
-use sdeck_diagnostics::{rules, Diagnostic, Span};
+use sdeck_diagnostics::{rules, Diagnostic, Span, TextEdit};
 
 #[derive(pest_derive::Parser)]
 #[grammar = "../../../grammar/sdeck.pest"]
@@ -97,16 +97,28 @@ fn syntax_error(span: Span, message: impl Into<String>) -> Diagnostic {
 /// Parses one piece. Errors that spoil the whole statement are returned; errors confined
 /// to one part (a term with no differential) go to `soft` and the rest is kept.
 fn parse_piece(text: &str, span: Span, soft: &mut Vec<Diagnostic>) -> Result<StatementKind> {
-    let src = &text[span.clone()];
+    let original = &text[span.clone()];
     let offset = span.start;
-    precheck(src, offset)?;
+    precheck(original, offset)?;
+    // A retired keyword is reported once, with a fix, and the statement is then read as
+    // if the new word were written: one old word gives one error, not a cascade.
+    let renamed = retired_keyword(original, offset);
+    let (src, shift) = match &renamed {
+        Some((diagnostic, new, rewritten)) => {
+            soft.push(diagnostic.clone());
+            let old_len = diagnostic.span.len();
+            (rewritten.as_str(), new.len() - old_len)
+        }
+        None => (original, 0),
+    };
     let mut pairs = StatementParser::parse(Rule::statement, src)
-        .map_err(|error| convert_pest_error(&error, src, offset))?;
+        .map_err(|error| convert_pest_error(&error, src, offset, shift))?;
     let statement = pairs
         .next()
         .ok_or_else(|| syntax_error(span.clone(), "empty statement"))?;
     let mut builder = Builder {
         offset,
+        shift,
         nodes: 0,
         soft: Vec::new(),
     };
@@ -124,6 +136,41 @@ fn parse_piece(text: &str, span: Span, soft: &mut Vec<Diagnostic>) -> Result<Sta
 enum Side {
     Lower,
     Upper,
+}
+
+/// When the statement starts with a keyword of the first version of the language
+/// (`state`, `noise`): the `syntax` diagnostic naming the new word, with a fix that
+/// rewrites it, the new word, and the statement with the new word in place.
+fn retired_keyword(src: &str, offset: usize) -> Option<(Diagnostic, &'static str, String)> {
+    let word_len = src
+        .char_indices()
+        .find(|&(_, c)| !is_ident_char(c))
+        .map_or(src.len(), |(i, _)| i);
+    let word = &src[..word_len];
+    let &(old, new) = RETIRED_KEYWORDS.iter().find(|(old, _)| *old == word)?;
+    let rest = &src[word_len..];
+    let first_line = rest.lines().next().unwrap_or("").trim();
+    let example = if first_line.chars().count() <= 40 {
+        format!("`{new} {first_line}`")
+    } else {
+        format!("`{new} ...`")
+    };
+    let diagnostic = syntax_error(
+        offset..offset + word_len,
+        format!("`{old}` is now `{new}`: write {example}"),
+    )
+    .with_help(
+        "language v2 renamed two keywords: a factor is declared with `factor` (was `state`) \
+         and a shock with `shock` (was `noise`); everything else about the statement stays",
+    )
+    .with_fix(
+        format!("Write `{new}` for `{old}`"),
+        vec![TextEdit {
+            span: offset..offset + word_len,
+            new_text: new.to_string(),
+        }],
+    );
+    Some((diagnostic, new, format!("{new}{rest}")))
 }
 
 /// Size, bracket and nesting checks that run before pest.
@@ -240,8 +287,8 @@ fn is_keyword_token(rule: Rule) -> bool {
             | Rule::kw_horizon
             | Rule::kw_unit
             | Rule::kw_param
-            | Rule::kw_state
-            | Rule::kw_noise
+            | Rule::kw_factor
+            | Rule::kw_shock
             | Rule::kw_corr
             | Rule::kw_let
             | Rule::kw_expect
@@ -291,8 +338,8 @@ fn describe_rule(rule: Rule) -> Option<&'static str> {
         | Rule::horizon_stmt
         | Rule::unit_stmt
         | Rule::param_stmt
-        | Rule::state_stmt
-        | Rule::noise_stmt
+        | Rule::factor_stmt
+        | Rule::shock_stmt
         | Rule::corr_stmt
         | Rule::let_stmt
         | Rule::expect_stmt
@@ -342,8 +389,8 @@ fn statement_help(src: &str) -> Option<&'static str> {
         "horizon" => "the horizon is `horizon NUMBER UNIT`, e.g. `horizon 6 month`",
         "unit" => "a unit is declared with `unit NAME`, e.g. `unit EUR`",
         "param" => "a parameter is `param NAME = NUMBER [UNIT] BOUND`, e.g. `param kappa = 1.8 [1/year] > 0`",
-        "state" => "a state is `state NAME = NUMBER [UNIT] BOUND`, e.g. `state r = 2.75% >= 0`",
-        "noise" => "noises are declared with `noise NAME, NAME`, e.g. `noise W1, W2`",
+        "factor" => "a factor is `factor NAME = NUMBER [UNIT] BOUND`, e.g. `factor r = 2.75% >= 0`",
+        "shock" => "shocks are declared with `shock NAME, NAME`, e.g. `shock W1, W2`",
         "corr" => "a correlation is `corr NAME NAME = NUMBER`, e.g. `corr W1 W2 = -0.4`",
         "let" => "a named expression is `let NAME = EXPR`",
         "expect" => "an expectation is `expect FIGURE(STATE[, TIME]) CONDITION`, e.g. `expect mean(r, 1 year) in [2.9%, 3.3%]`",
@@ -354,7 +401,14 @@ fn statement_help(src: &str) -> Option<&'static str> {
     })
 }
 
-fn convert_pest_error(error: &pest::error::Error<Rule>, src: &str, offset: usize) -> Diagnostic {
+/// `shift` is the number of bytes the renaming of a retired keyword added at the start
+/// of `src` (see [`retired_keyword`]).
+fn convert_pest_error(
+    error: &pest::error::Error<Rule>,
+    src: &str,
+    offset: usize,
+    shift: usize,
+) -> Diagnostic {
     let pos = match error.location {
         InputLocation::Pos(p) => p,
         InputLocation::Span((s, _)) => s,
@@ -378,13 +432,13 @@ fn convert_pest_error(error: &pest::error::Error<Rule>, src: &str, offset: usize
     } else {
         format!("expected {}, found {found}", join_or(&unique))
     };
-    let start = offset + pos;
+    let start = offset + pos.saturating_sub(shift);
     let mut diagnostic = syntax_error(start..start + len, message);
     if let Some(help) = statement_help(src) {
         diagnostic = diagnostic.with_help(help);
     } else {
         diagnostic = diagnostic.with_help(
-            "a statement starts with a keyword (model, clock, horizon, unit, param, state, noise, corr, let, expect) or with `dNAME =`",
+            "a statement starts with a keyword (model, clock, horizon, unit, param, factor, shock, corr, let, expect) or with `dNAME =`",
         );
     }
     diagnostic
@@ -401,6 +455,9 @@ fn join_or(items: &[&str]) -> String {
 /// Turns pest pairs into our tree, shifting spans by the piece's offset.
 struct Builder {
     offset: usize,
+    /// Bytes added at the start of the parsed text by renaming a retired keyword; every
+    /// position after the keyword is moved back by this much.
+    shift: usize,
     nodes: usize,
     /// Errors confined to one part of the statement.
     soft: Vec<Diagnostic>,
@@ -409,7 +466,8 @@ struct Builder {
 impl Builder {
     fn span(&self, pair: &Pair<Rule>) -> Span {
         let s = pair.as_span();
-        self.offset + s.start()..self.offset + s.end()
+        self.offset + s.start().saturating_sub(self.shift)
+            ..self.offset + s.end().saturating_sub(self.shift)
     }
 
     fn count(&mut self, span: &Span) -> Result<()> {
@@ -466,13 +524,13 @@ impl Builder {
                 name: self.declared_name(&next()?)?,
             },
             Rule::param_stmt => StatementKind::Param(self.declaration(next()?)?),
-            Rule::state_stmt => StatementKind::State(self.declaration(next()?)?),
-            Rule::noise_stmt => {
+            Rule::factor_stmt => StatementKind::Factor(self.declaration(next()?)?),
+            Rule::shock_stmt => {
                 let mut names = Vec::new();
                 for p in inner {
                     names.push(self.declared_name(&p)?);
                 }
-                StatementKind::Noise { names }
+                StatementKind::Shock { names }
             }
             Rule::corr_stmt => {
                 let first = self.ident(&next()?);
@@ -1061,7 +1119,7 @@ impl Builder {
                     NO_DIFFERENTIAL,
                 )
                 .with_label("a term ends with `dt` or `dW`")
-                .with_help("end the term with `dt` for drift or `dW` for diffusion on the noise `W`, e.g. `kappa * (level - x) dt`"));
+                .with_help("end the term with `dt` for drift or `dW` for diffusion on the shock `W`, e.g. `kappa * (level - x) dt`"));
             };
             if op == BinaryOp::Div {
                 return Err(
@@ -1108,8 +1166,8 @@ fn differential_of(ident: &Ident) -> Option<Differential> {
     if rest.is_empty() || !rest.chars().next().is_some_and(is_ident_start) {
         return None;
     }
-    Some(Differential::Noise {
-        noise: Ident {
+    Some(Differential::Shock {
+        shock: Ident {
             name: rest.to_string(),
             span: ident.span.start + 1..ident.span.end,
         },
@@ -1122,7 +1180,7 @@ fn not_a_differential(ident: &Ident) -> Diagnostic {
         ident.span.clone(),
         format!("`{}` is not a differential", ident.name),
     )
-    .with_help("a term ends with `dt` (drift) or `dW` (diffusion on the noise `W`); write `*` between factors")
+    .with_help("a term ends with `dt` (drift) or `dW` (diffusion on the shock `W`); write `*` between the numbers and names you multiply")
 }
 
 fn binary(op: BinaryOp, lhs: Expr, rhs: Expr) -> Expr {

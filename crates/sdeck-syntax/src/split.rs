@@ -10,8 +10,13 @@ use sdeck_diagnostics::Span;
 
 /// Keywords that start a statement.
 pub const STATEMENT_KEYWORDS: [&str; 10] = [
-    "model", "clock", "horizon", "unit", "param", "state", "noise", "corr", "let", "expect",
+    "model", "clock", "horizon", "unit", "param", "factor", "shock", "corr", "let", "expect",
 ];
+
+/// Keywords of the first version of the language and the words that replaced them. A
+/// line that starts with one followed by a name still opens a statement, so that the
+/// parser can name the new word instead of reporting a cascade of errors.
+pub const RETIRED_KEYWORDS: [(&str, &str); 2] = [("state", "factor"), ("noise", "shock")];
 
 /// A piece of the file that holds one statement (or stray text).
 #[derive(Clone, Debug, PartialEq)]
@@ -44,6 +49,11 @@ fn opens_statement(code: &str) -> bool {
     }
     if STATEMENT_KEYWORDS.contains(&word) {
         return true;
+    }
+    if RETIRED_KEYWORDS.iter().any(|(old, _)| *old == word) {
+        let rest = &trimmed[word_len..];
+        let after = rest.trim_start_matches([' ', '\t']);
+        return after.len() < rest.len() && after.chars().next().is_some_and(is_ident_start);
     }
     if word.len() > 1 && word.starts_with('d') {
         let rest = trimmed[word_len..].trim_start_matches([' ', '\t', '\r']);
@@ -122,17 +132,31 @@ mod tests {
 
     #[test]
     fn cuts_at_keywords_and_equations() {
-        let src = "param a = 1 # speed\nstate x = 0\ndx = -a * x dt\n   + 0.1 dW\nnoise W\n";
+        let src = "param a = 1 # speed\nfactor x = 0\ndx = -a * x dt\n   + 0.1 dW\nshock W\n";
+        assert_eq!(
+            texts(src),
+            vec![
+                "param a = 1",
+                "factor x = 0",
+                "dx = -a * x dt\n   + 0.1 dW",
+                "shock W"
+            ]
+        );
+        assert_eq!(split(src).0[0].description.as_deref(), Some("speed"));
+    }
+
+    #[test]
+    fn a_retired_keyword_followed_by_a_name_opens_a_statement() {
+        let src = "param a = 1\nstate x = 0\nnoise W\nlet b = a\n  + state\n";
         assert_eq!(
             texts(src),
             vec![
                 "param a = 1",
                 "state x = 0",
-                "dx = -a * x dt\n   + 0.1 dW",
-                "noise W"
+                "noise W",
+                "let b = a\n  + state"
             ]
         );
-        assert_eq!(split(src).0[0].description.as_deref(), Some("speed"));
     }
 
     #[test]

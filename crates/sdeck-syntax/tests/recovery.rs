@@ -20,8 +20,8 @@ fn error_lines(text: &str) -> Vec<(u32, String)> {
 
 #[test]
 fn a_missing_bracket_and_an_unclosed_parenthesis_are_both_reported() {
-    let text = "param kappa = 1.8 [1/year > 0\nparam level = 3%\nnoise W\n\
-                let gap = (level - 1\nstate r = 2%\ndr = kappa * (level - r) dt + 0.01 dW\n";
+    let text = "param kappa = 1.8 [1/year > 0\nparam level = 3%\nshock W\n\
+                let gap = (level - 1\nfactor r = 2%\ndr = kappa * (level - r) dt + 0.01 dW\n";
     let errors = error_lines(text);
     assert_eq!(errors.len(), 2, "{errors:?}");
     assert_eq!(errors[0].0, 1);
@@ -50,7 +50,7 @@ fn the_error_points_at_the_opening_bracket() {
 
 #[test]
 fn every_bad_statement_gets_one_error_and_the_rest_is_kept() {
-    let text = "param a = \nparam b = 2\nstate x = 1 >\nnoise W\ndx = -b * x dt + dW\n";
+    let text = "param a = \nparam b = 2\nfactor x = 1 >\nshock W\ndx = -b * x dt + dW\n";
     let file = parse(text);
     assert_eq!(file.diagnostics.len(), 2);
     assert_eq!(file.statements.len(), 3);
@@ -151,13 +151,13 @@ fn nul_and_control_characters_are_named() {
 
 #[test]
 fn greek_names_parse_and_columns_count_characters() {
-    let text = "param κ = 1 [1/year]\nparam θ = 2 [1/year] > 0\nstate σ = x\n";
+    let text = "param κ = 1 [1/year]\nparam θ = 2 [1/year] > 0\nfactor σ = x\n";
     let file = parse(text);
     assert_eq!(file.statements.len(), 2);
     let d = &file.diagnostics[0];
     let index = LineIndex::new(text);
     let at = index.line_col(text, d.span.start, Encoding::Chars);
-    assert_eq!((at.line, at.col), (2, 10));
+    assert_eq!((at.line, at.col), (2, 11));
 }
 
 #[test]
@@ -180,4 +180,48 @@ fn long_power_towers_are_an_error_not_a_stack_overflow() {
     let errors = error_lines(&text);
     assert_eq!(errors.len(), 1);
     assert!(errors[0].1.contains("`^`"), "{}", errors[0].1);
+}
+
+/// A file in the first version's words: one error per retired keyword, naming the new
+/// word, with a fix that rewrites it; the statements are still read, spans intact.
+#[test]
+fn retired_keywords_get_one_error_each_with_a_fix() {
+    let text = "param k = 2 [1/year]\nnoise W, B\nstate   r = 2% >= 0 # rate\n\
+                dr = -k * r dt + 0.01 dW + 0.01 dB\n";
+    let file = parse(text);
+    assert_eq!(file.diagnostics.len(), 2, "{:?}", file.diagnostics);
+    let noise = &file.diagnostics[0];
+    assert_eq!(&text[noise.span.clone()], "noise");
+    assert_eq!(noise.message, "`noise` is now `shock`: write `shock W, B`");
+    assert_eq!(noise.fixes.len(), 1);
+    assert_eq!(noise.fixes[0].edits[0].span, noise.span);
+    assert_eq!(noise.fixes[0].edits[0].new_text, "shock");
+    let state = &file.diagnostics[1];
+    assert_eq!(&text[state.span.clone()], "state");
+    assert_eq!(
+        state.message,
+        "`state` is now `factor`: write `factor r = 2% >= 0`"
+    );
+    assert_eq!(state.fixes[0].edits[0].new_text, "factor");
+    // Every statement is kept, read as if the new word were written.
+    assert_eq!(file.statements.len(), 4);
+    let StatementKind::Factor(declaration) = &file.statements[2].kind else {
+        panic!("not a factor: {:?}", file.statements[2].kind);
+    };
+    assert_eq!(&text[declaration.name.span.clone()], "r");
+    assert_eq!(&text[declaration.value.span.clone()], "2%");
+    let StatementKind::Shock { names } = &file.statements[1].kind else {
+        panic!("not a shock: {:?}", file.statements[1].kind);
+    };
+    assert_eq!(&text[names[1].span.clone()], "B");
+}
+
+/// A second mistake in a statement with a retired keyword is reported at its own place.
+#[test]
+fn a_second_error_after_a_retired_keyword_keeps_its_position() {
+    let text = "state r = 2% >\n";
+    let file = parse(text);
+    assert_eq!(file.diagnostics.len(), 2, "{:?}", file.diagnostics);
+    assert_eq!(file.diagnostics[0].span.start, 14, "{:?}", file.diagnostics);
+    assert_eq!(&text[file.diagnostics[1].span.clone()], "state");
 }

@@ -22,7 +22,7 @@ fn units_of(file: &SourceFile) -> Units {
         match &statement.kind {
             StatementKind::Clock { unit } => units.clock = unit.name.clone(),
             StatementKind::Unit { name } => units.declared.push(name.name.clone()),
-            StatementKind::Param(declaration) | StatementKind::State(declaration) => {
+            StatementKind::Param(declaration) | StatementKind::Factor(declaration) => {
                 if let Some(unit) = &declaration.unit {
                     units
                         .written
@@ -65,8 +65,8 @@ horizon 6 month
 param kappa = 1.8   [1/year]        > 0   # speed of mean reversion
 param level = 3.2%                  >= 0  # long-run level
 param vol   = 6bp   [1/sqrt(day)]   > 0   # daily volatility of the rate
-noise W
-state r = 2.75% >= 0
+shock W
+factor r = 2.75% >= 0
 dr = kappa * (level - r) dt + vol * sqrt(r) dW
 ";
 
@@ -81,8 +81,8 @@ param pull  = 0.9  [1/month]          > 0
 param level = 0.42 [EUR]
 param vol   = 0.03 [EUR/sqrt(month)]  > 0
 param wobble = 0.001 [EUR/bday^(1/2)]
-noise W
-state price = 0.40 [EUR] >= 0
+shock W
+factor price = 0.40 [EUR] >= 0
 dprice = pull * (level - price) dt + (vol + wobble) dW
 ";
 

@@ -470,8 +470,8 @@ fn clock_length_must_be_positive_and_finite() {
 #[test]
 fn errors_become_diagnostics() {
     let error = eval_error("yaer");
-    let diagnostic = error.to_diagnostic(&sdeck_diagnostics::rules::UNDEFINED_NAME);
-    assert_eq!(diagnostic.rule, "undefined-name");
+    let diagnostic = error.to_diagnostic(&sdeck_diagnostics::rules::UNKNOWN_NAME);
+    assert_eq!(diagnostic.rule, "unknown-name");
     assert_eq!(diagnostic.message, error.message);
     assert_eq!(diagnostic.help, error.help);
 }

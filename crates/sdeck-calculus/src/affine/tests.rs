@@ -28,13 +28,13 @@ fn numeric(set: &AffineSet, u: &[Complex64], rate: &Rate, t: f64) -> Complex64 {
 }
 
 fn short_rate(set: &AffineSet, model: &Model, text: &str) -> Rate {
-    let index = model.state_index(text).expect("factor");
-    let expr = Expr::State(index);
+    let index = model.factor_index(text).expect("factor");
+    let expr = Expr::Factor(index);
     Rate::new(set, &expr).expect("affine rate")
 }
 
 const VASICEK: &str = "model v\nclock year\nparam kappa = 0.8 [1/year]\nparam theta = 4%\n\
-    param sigma = 1.5% [1/sqrt(year)]\nnoise W\nstate r = 2.5%\n\
+    param sigma = 1.5% [1/sqrt(year)]\nshock W\nfactor r = 2.5%\n\
     dr = kappa * (theta - r) dt + sigma dW\n";
 
 #[test]
@@ -67,7 +67,7 @@ fn vasicek_bond_prices_match_the_published_formula() {
 }
 
 const CIR: &str = "model c\nclock year\nparam kappa = 0.6 [1/year]\nparam theta = 5%\n\
-    param sigma = 0.12 [1/sqrt(year)]\nnoise W\nstate r = 3%\n\
+    param sigma = 0.12 [1/sqrt(year)]\nshock W\nfactor r = 3%\n\
     dr = kappa * (theta - r) dt + sigma * sqrt(r) dW\n";
 
 #[test]
@@ -103,7 +103,7 @@ fn square_root_bond_prices_match_cox_ingersoll_ross() {
 
 const G2: &str = "model g\nclock year\nparam a = 0.5 [1/year]\nparam b = 0.08 [1/year]\n\
     param sigma = 1% [1/sqrt(year)]\nparam eta = 0.7% [1/sqrt(year)]\nparam phi = 3%\n\
-    noise W1, W2\ncorr W1 W2 = -0.6\nstate x = 0.4%\nstate y = -0.2%\n\
+    shock W1, W2\ncorr W1 W2 = -0.6\nfactor x = 0.4%\nfactor y = -0.2%\n\
     dx = -a * x dt + sigma dW1\ndy = -b * y dt + eta dW2\n";
 
 #[test]
@@ -114,8 +114,8 @@ fn two_factor_gaussian_bond_prices_match_brigo_mercurio() {
     let set = AffineSet::from_model(&m).expect("affine");
     let expr = Expr::Add(
         Box::new(Expr::Add(
-            Box::new(Expr::State(0)),
-            Box::new(Expr::State(1)),
+            Box::new(Expr::Factor(0)),
+            Box::new(Expr::Factor(1)),
         )),
         Box::new(Expr::Param(m.param_index("phi").expect("phi"))),
     );
@@ -150,8 +150,8 @@ fn two_factor_gaussian_bond_prices_match_brigo_mercurio() {
 }
 
 const HESTON: &str = "model h\nclock year\nparam mu = 3% [1/year]\nparam kappa = 1.5 [1/year]\n\
-    param theta = 0.04 [1/year]\nparam xi = 0.5 [1/year]\nnoise Ws, Wv\ncorr Ws Wv = -0.7\n\
-    state S = 100\nstate v = 0.05 [1/year]\n\
+    param theta = 0.04 [1/year]\nparam xi = 0.5 [1/year]\nshock Ws, Wv\ncorr Ws Wv = -0.7\n\
+    factor S = 100\nfactor v = 0.05 [1/year]\n\
     dS = mu * S dt + sqrt(v) * S dWs\ndv = kappa * (theta - v) dt + xi * sqrt(v) dWv\n";
 
 fn heston_characteristic(omega: f64, t: f64) -> Complex64 {
@@ -246,7 +246,7 @@ fn time_dependent_coefficients_go_through_the_riccati_integration() {
     // ln P = −B r₀ − κ∫₀ᵀ θ(s) B(T − s) ds + σ²/(2κ²) ∫₀ᵀ (1 − e^{−κ(T−s)})² ds
     // (common practice, no source), taken here by quadrature.
     let text = VASICEK
-        .replace("noise W", "param g = 0.01 [1/year]\nnoise W")
+        .replace("shock W", "param g = 0.01 [1/year]\nshock W")
         .replace("theta - r", "theta + g * t - r");
     let m = model(&text);
     let set = AffineSet::from_model(&m).expect("affine");
@@ -266,7 +266,7 @@ fn time_dependent_coefficients_go_through_the_riccati_integration() {
 #[test]
 fn a_model_that_is_not_affine_is_refused_with_a_reason() {
     let text = "model q\nclock year\nparam k = 1 [1/year]\nparam s = 0.1 [1/sqrt(year)]\n\
-        noise W\nstate x = 1\ndx = -k * x * x dt + s dW\n";
+        shock W\nfactor x = 1\ndx = -k * x * x dt + s dW\n";
     let why = AffineSet::from_model(&model(text)).expect_err("not affine");
     assert!(why.contains("x"), "{why}");
 }

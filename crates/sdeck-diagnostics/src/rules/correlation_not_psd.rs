@@ -5,7 +5,7 @@ use crate::{Rule, Severity};
 pub const CORRELATION_NOT_PSD: Rule = Rule {
     name: "correlation-not-psd",
     default_severity: Severity::Error,
-    summary: "The correlation matrix of the noises is not positive semi-definite.",
+    summary: "The correlation matrix of the shocks is not positive semi-definite.",
     explanation: include_str!("correlation_not_psd.md"),
     flawed: include_str!("correlation_not_psd.flawed.sde"),
     fixed: include_str!("correlation_not_psd.fixed.sde"),

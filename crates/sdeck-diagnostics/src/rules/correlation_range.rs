@@ -5,7 +5,7 @@ use crate::{Rule, Severity};
 pub const CORRELATION_RANGE: Rule = Rule {
     name: "correlation-range",
     default_severity: Severity::Error,
-    summary: "A correlation outside [-1, 1], or a noise correlated with itself.",
+    summary: "A correlation outside [-1, 1], or a shock correlated with itself.",
     explanation: include_str!("correlation_range.md"),
     flawed: include_str!("correlation_range.flawed.sde"),
     fixed: include_str!("correlation_range.fixed.sde"),

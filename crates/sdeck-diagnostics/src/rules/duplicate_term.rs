@@ -5,7 +5,7 @@ use crate::{Rule, Severity};
 pub const DUPLICATE_TERM: Rule = Rule {
     name: "duplicate-term",
     default_severity: Severity::Error,
-    summary: "Two dt terms, or two terms for one noise, in one equation.",
+    summary: "Two dt terms, or two terms for one shock, in one equation.",
     explanation: include_str!("duplicate_term.md"),
     flawed: include_str!("duplicate_term.flawed.sde"),
     fixed: include_str!("duplicate_term.fixed.sde"),

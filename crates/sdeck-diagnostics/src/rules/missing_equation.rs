@@ -5,7 +5,7 @@ use crate::{Rule, Severity};
 pub const MISSING_EQUATION: Rule = Rule {
     name: "missing-equation",
     default_severity: Severity::Error,
-    summary: "A state has no equation, or an equation names no state.",
+    summary: "A factor has no equation, or an equation names no factor.",
     explanation: include_str!("missing_equation.md"),
     flawed: include_str!("missing_equation.flawed.sde"),
     fixed: include_str!("missing_equation.fixed.sde"),

@@ -7,13 +7,13 @@ mod dimension_mismatch;
 mod duplicate_name;
 mod duplicate_term;
 mod expectation_failed;
+mod factor_domain;
 mod feller_condition;
 mod missing_equation;
 mod not_mean_reverting;
-mod state_domain;
 mod syntax;
-mod undefined_name;
 mod unit_scale;
+mod unknown_name;
 mod unused;
 mod unused_suppression;
 
@@ -24,13 +24,13 @@ pub use dimension_mismatch::DIMENSION_MISMATCH;
 pub use duplicate_name::DUPLICATE_NAME;
 pub use duplicate_term::DUPLICATE_TERM;
 pub use expectation_failed::EXPECTATION_FAILED;
+pub use factor_domain::FACTOR_DOMAIN;
 pub use feller_condition::FELLER_CONDITION;
 pub use missing_equation::MISSING_EQUATION;
 pub use not_mean_reverting::NOT_MEAN_REVERTING;
-pub use state_domain::STATE_DOMAIN;
 pub use syntax::SYNTAX;
-pub use undefined_name::UNDEFINED_NAME;
 pub use unit_scale::UNIT_SCALE;
+pub use unknown_name::UNKNOWN_NAME;
 pub use unused::UNUSED;
 pub use unused_suppression::UNUSED_SUPPRESSION;
 
@@ -39,7 +39,7 @@ use crate::Rule;
 /// Every rule, in the order the manual lists them.
 pub static ALL: &[&Rule] = &[
     &SYNTAX,
-    &UNDEFINED_NAME,
+    &UNKNOWN_NAME,
     &DUPLICATE_NAME,
     &MISSING_EQUATION,
     &DUPLICATE_TERM,
@@ -48,7 +48,7 @@ pub static ALL: &[&Rule] = &[
     &CORRELATION_RANGE,
     &CORRELATION_NOT_PSD,
     &FELLER_CONDITION,
-    &STATE_DOMAIN,
+    &FACTOR_DOMAIN,
     &NOT_MEAN_REVERTING,
     &UNUSED,
     &UNIT_SCALE,
