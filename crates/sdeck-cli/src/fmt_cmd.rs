@@ -58,12 +58,12 @@ pub fn run(args: FmtArgs) -> ExitCode {
             Outcome::Formatted(formatted) => {
                 unformatted += 1;
                 if args.check {
-                    println!("{shown}: not formatted");
+                    outln!("{shown}: not formatted");
                 } else if let Err(e) = std::fs::write(path, formatted) {
                     eprintln!("sdeck: cannot write `{shown}`: {e}");
                     failed += 1;
                 } else {
-                    println!("{shown}: formatted");
+                    outln!("{shown}: formatted");
                 }
             }
             Outcome::SyntaxErrors { count } => {

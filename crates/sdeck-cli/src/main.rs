@@ -1,6 +1,18 @@
 //! `sdeck`: the command-line face of the analysis. It reads files, calls the one analysis
 //! entry point (`sdeck_checks::check`) and renders the result; it decides nothing itself.
 
+/// `print!` that ends quietly when the reader of standard output has gone (`| head`):
+/// the rest of the output is dropped and the command keeps its exit status.
+macro_rules! out {
+    ($($arg:tt)*) => { $crate::write_stdout(format_args!($($arg)*)) };
+}
+
+/// `println!` with the behaviour of [`out!`].
+macro_rules! outln {
+    () => { $crate::write_stdout(format_args!("\n")) };
+    ($($arg:tt)*) => { $crate::write_stdout(format_args!("{}\n", format_args!($($arg)*))) };
+}
+
 mod check;
 mod files;
 mod fmt_cmd;
@@ -59,6 +71,26 @@ enum Command {
     },
 }
 
+/// Set once standard output cannot be written any more.
+static STDOUT_GONE: std::sync::atomic::AtomicBool = std::sync::atomic::AtomicBool::new(false);
+
+/// Writes to standard output. A closed pipe ends the output quietly; any other error is
+/// said once on stderr.
+pub(crate) fn write_stdout(args: std::fmt::Arguments) {
+    use std::io::Write;
+    use std::sync::atomic::Ordering;
+    if STDOUT_GONE.load(Ordering::Relaxed) {
+        return;
+    }
+    let mut stdout = std::io::stdout().lock();
+    if let Err(e) = stdout.write_fmt(args).and_then(|()| stdout.flush()) {
+        STDOUT_GONE.store(true, Ordering::Relaxed);
+        if e.kind() != std::io::ErrorKind::BrokenPipe {
+            eprintln!("sdeck: cannot write to standard output: {e}");
+        }
+    }
+}
+
 fn main() -> ExitCode {
     let cli = match Cli::try_parse() {
         Ok(cli) => cli,
@@ -82,14 +114,14 @@ fn explain(rule: Option<&str>, markdown: bool) -> ExitCode {
     use sdeck_diagnostics::rules;
     if markdown {
         // The whole manual, as docs/rules.md holds it (clap refuses a rule beside it).
-        print!("{}", render::rules_markdown());
+        out!("{}", render::rules_markdown());
         return ExitCode::SUCCESS;
     }
     match rule {
         None => {
             let width = rules::ALL.iter().map(|r| r.name.len()).max().unwrap_or(0);
             for r in rules::ALL {
-                println!(
+                outln!(
                     "{:width$}  {:7}  {}",
                     r.name,
                     r.default_severity.as_str(),
@@ -100,7 +132,7 @@ fn explain(rule: Option<&str>, markdown: bool) -> ExitCode {
         }
         Some(name) => match rules::by_name(name) {
             Some(r) => {
-                print!("{}", render::explain_text(r));
+                out!("{}", render::explain_text(r));
                 ExitCode::SUCCESS
             }
             None => {

@@ -134,7 +134,7 @@ pub fn run(args: MomentsArgs) -> ExitCode {
         }
         Format::Text => moments_text(model, &result.derivation, &moments),
     };
-    println!("{output}");
+    outln!("{output}");
     ExitCode::SUCCESS
 }
 

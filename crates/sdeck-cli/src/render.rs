@@ -61,42 +61,140 @@ fn report_severity(s: Severity) -> ReportSeverity {
     }
 }
 
-/// Writes the diagnostics of one file for a person.
+/// The most findings shown with a snippet per line of a file; past it, one note says how
+/// many more the line holds (each snippet reprints the line: 2,000 findings on one long
+/// line would print megabytes).
+pub const MAX_SNIPPETS_PER_LINE: usize = 3;
+
+/// Writes the diagnostics of one file for a person. Control characters of the file (an
+/// ESC in a comment, a binary file) and of the messages are printed escaped (`\u{1b}`),
+/// never raw, so no file can drive the terminal.
 pub fn human(
     out: &mut dyn WriteColor,
     path: &str,
     text: &str,
     diagnostics: &[Diagnostic],
 ) -> std::io::Result<()> {
+    let shown = Escaped::new(text);
     let mut files = SimpleFiles::new();
-    let id = files.add(path, text);
+    let id = files.add(escape(path), shown.text.as_str());
     let config = term::Config::default();
     let clamp = |r: &std::ops::Range<usize>| {
         let start = r.start.min(text.len());
         let end = r.end.clamp(start, text.len());
-        start..end
+        shown.offset(start)..shown.offset(end)
     };
+    let index = LineIndex::new(text);
+    let line_of = |d: &Diagnostic| {
+        index
+            .line_col(text, d.span.start.min(text.len()), Encoding::Utf8)
+            .line
+    };
+    let mut on_line: std::collections::HashMap<u32, usize> = std::collections::HashMap::new();
     for d in diagnostics {
+        let line = line_of(d);
+        let count = on_line.entry(line).or_insert(0);
+        *count += 1;
+        if *count > MAX_SNIPPETS_PER_LINE {
+            continue;
+        }
         let mut primary = Label::primary(id, clamp(&d.span));
         if let Some(label) = &d.label {
-            primary = primary.with_message(label.clone());
+            primary = primary.with_message(escape(label));
         }
         let mut labels = vec![primary];
         for r in &d.related {
-            labels.push(Label::secondary(id, clamp(&r.span)).with_message(r.message.clone()));
+            labels.push(Label::secondary(id, clamp(&r.span)).with_message(escape(&r.message)));
         }
-        let mut notes: Vec<String> = d.notes.clone();
+        let mut notes: Vec<String> = d.notes.iter().map(|n| escape(n)).collect();
         if let Some(help) = &d.help {
-            notes.push(format!("help: {help}"));
+            notes.push(format!("help: {}", escape(help)));
         }
         let report = Report::new(report_severity(d.severity))
             .with_code(d.rule)
-            .with_message(d.message.clone())
+            .with_message(escape(&d.message))
             .with_labels(labels)
             .with_notes(notes);
         term::emit(out, &config, &files, &report).map_err(std::io::Error::other)?;
     }
+    let mut crowded: Vec<(u32, usize)> = on_line
+        .into_iter()
+        .filter(|(_, n)| *n > MAX_SNIPPETS_PER_LINE)
+        .collect();
+    crowded.sort_unstable();
+    for (line, n) in crowded {
+        writeln!(
+            out,
+            "note: {}:{}: {} more finding{} on this line not shown (the counts below and \
+             `--format json` include them)\n",
+            escape(path),
+            line + 1,
+            n - MAX_SNIPPETS_PER_LINE,
+            if n - MAX_SNIPPETS_PER_LINE == 1 {
+                ""
+            } else {
+                "s"
+            }
+        )?;
+    }
     Ok(())
+}
+
+/// `text` with every control character other than tab and line breaks written as
+/// `\u{..}`.
+pub fn escape(text: &str) -> String {
+    Escaped::new(text).text
+}
+
+fn is_shown_raw(c: char) -> bool {
+    !c.is_control() || c == '\n' || c == '\t' || c == '\r'
+}
+
+/// A text with its control characters escaped, and the way from offsets of the original
+/// to offsets of the escaped text. A lone CR (a line break) becomes LF, the one break the
+/// snippet printer knows.
+struct Escaped {
+    text: String,
+    /// (offset in the original just after an escaped character, bytes added so far).
+    shifts: Vec<(usize, usize)>,
+}
+
+impl Escaped {
+    fn new(text: &str) -> Escaped {
+        if text.chars().all(is_shown_raw) && !text.contains('\r') {
+            return Escaped {
+                text: text.to_string(),
+                shifts: Vec::new(),
+            };
+        }
+        let mut out = String::with_capacity(text.len());
+        let mut shifts = Vec::new();
+        let mut added = 0;
+        let bytes = text.as_bytes();
+        for (i, c) in text.char_indices() {
+            if c == '\r' {
+                out.push(if bytes.get(i + 1) == Some(&b'\n') {
+                    '\r'
+                } else {
+                    '\n'
+                });
+            } else if is_shown_raw(c) {
+                out.push(c);
+            } else {
+                let written = format!("\\u{{{:x}}}", c as u32);
+                added += written.len() - c.len_utf8();
+                out.push_str(&written);
+                shifts.push((i + c.len_utf8(), added));
+            }
+        }
+        Escaped { text: out, shifts }
+    }
+
+    /// Where an offset of the original text lies in the escaped one.
+    fn offset(&self, offset: usize) -> usize {
+        let before = self.shifts.partition_point(|(end, _)| *end <= offset);
+        offset + before.checked_sub(1).map(|k| self.shifts[k].1).unwrap_or(0)
+    }
 }
 
 /// The manual of one rule, as `sdeck explain RULE` prints it.

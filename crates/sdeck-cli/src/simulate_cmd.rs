@@ -98,15 +98,15 @@ pub fn run(args: SimulateArgs) -> ExitCode {
     }
     match args.format {
         Format::Json => match serde_json::to_string_pretty(&to_json(&simulated)) {
-            Ok(text) => println!("{text}"),
+            Ok(text) => outln!("{text}"),
             Err(e) => {
                 eprintln!("sdeck: cannot write the report: {e}");
                 return ExitCode::from(2);
             }
         },
         Format::Text => {
-            print!("{}", render_text(&simulated));
-            println!("\n{}", crate::CAUTION);
+            out!("{}", render_text(&simulated));
+            outln!("\n{}", crate::CAUTION);
         }
     }
     if let Some(path) = &args.plot {

@@ -87,3 +87,50 @@ fn a_file_past_the_size_limit_is_refused_with_one_error() {
     assert!(shown.contains("4 MiB"), "{shown}");
     assert!(shown.contains("1 error"), "{shown}");
 }
+
+// ------------------------------------------------------------- human output
+
+#[test]
+fn control_characters_of_the_file_are_printed_escaped() {
+    // An ESC sequence in a comment once reached the terminal raw, even with NO_COLOR.
+    let dir = tempfile::tempdir().unwrap();
+    let file = dir.path().join("esc.sde");
+    write(&file, "param a = 1 # \u{1b}[31mred\u{1b}[0m\u{7}\n");
+    let out = sdeck()
+        .arg("check")
+        .arg(&file)
+        .env("NO_COLOR", "1")
+        .output()
+        .unwrap();
+    let shown = stdout(&out);
+    assert!(
+        !shown.contains('\u{1b}') && !shown.contains('\u{7}'),
+        "{shown:?}"
+    );
+    assert!(shown.contains("\\u{1b}[31mred\\u{1b}[0m\\u{7}"), "{shown}");
+    // The caret still points at `a` (column 7), past nothing that moved.
+    assert!(shown.contains(":1:7"), "{shown}");
+}
+
+#[test]
+fn findings_on_one_line_are_capped_and_the_rest_counted() {
+    // 400 unknown names on one line: each snippet reprinted the whole line.
+    let dir = tempfile::tempdir().unwrap();
+    let file = dir.path().join("crowded.sde");
+    let line = format!("let x = {}\n", vec!["zz"; 400].join(" + "));
+    write(&file, &line);
+    let out = sdeck().arg("check").arg(&file).output().unwrap();
+    let shown = stdout(&out);
+    assert!(shown.len() < 20 * line.len(), "{} bytes", shown.len());
+    // 400 unknown names and the unused `x`, three shown.
+    assert!(shown.contains("398 more findings on this line"), "{shown}");
+    assert!(shown.contains("400 errors"), "{shown}");
+    // JSON keeps every finding.
+    let out = sdeck()
+        .args(["check", "--format", "json"])
+        .arg(&file)
+        .output()
+        .unwrap();
+    let report: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(report["diagnostics"].as_array().map(Vec::len), Some(401));
+}
