@@ -315,7 +315,7 @@ pub(crate) fn one_state(model: &Model, os: &OneState, family: Family) -> Formula
             }
         }
         Family::Linear | Family::Polynomial => linear_formulas(&w, os, family, terms),
-        Family::LinearSystem | Family::General => Formulas::default(),
+        Family::LinearSystem | Family::ExponentialAffine | Family::General => Formulas::default(),
     }
 }
 

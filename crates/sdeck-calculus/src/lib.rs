@@ -29,8 +29,10 @@
 
 pub mod affine;
 pub mod algebra;
+pub mod curve;
 pub mod describe;
 mod elementary;
+pub mod exponential_affine;
 mod formulas;
 pub mod laws;
 pub mod linear_system;
@@ -54,6 +56,8 @@ pub enum Family {
     Linear,
     LinearSystem,
     Polynomial,
+    /// dS = S·(a + b·X) dt + S·(...) dW with ln S in an affine set.
+    ExponentialAffine,
     General,
 }
 
@@ -68,6 +72,7 @@ impl Family {
             Family::Linear => "linear",
             Family::LinearSystem => "linear-system",
             Family::Polynomial => "polynomial",
+            Family::ExponentialAffine => "exponential-affine",
             Family::General => "general",
         }
     }
@@ -183,6 +188,9 @@ pub struct Moments {
     /// Per state: closed form or exact moment equations (not Monte Carlo).
     pub exact: Vec<bool>,
     pub method: Vec<Method>,
+    /// Per state: the time (clock units, at most `at`) from which the variance is
+    /// infinite, when it is (moment explosion of an exponential-affine factor).
+    pub variance_infinite_from: Vec<Option<f64>>,
 }
 
 /// The structural analysis shared by every entry point.
@@ -221,13 +229,17 @@ impl Analysis {
 /// Classifies every state and the system, and derives what is known in closed form.
 pub fn derive(model: &Model) -> Derivation {
     let analysis = analyse(model);
-    system::derive(model, &analysis)
+    let mut derivation = system::derive(model, &analysis);
+    exponential_affine::classify(model, &mut derivation);
+    derivation
 }
 
 /// Means, variances and covariances of every state at time `t` (clock units).
 pub fn moments_at(model: &Model, derivation: &Derivation, t: f64) -> Moments {
     let analysis = analyse(model);
-    system::moments_at(model, derivation, &analysis, t)
+    let mut moments = system::moments_at(model, derivation, &analysis, t);
+    exponential_affine::fill_moments(model, derivation, &mut moments);
+    moments
 }
 
 /// Cov(X_s, X_t) for s <= t, where known.

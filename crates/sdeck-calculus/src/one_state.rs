@@ -113,7 +113,7 @@ pub(crate) fn mean_variance(
                 },
             })
         }
-        Family::LinearSystem | Family::General => None,
+        Family::LinearSystem | Family::ExponentialAffine | Family::General => None,
     }
 }
 

@@ -561,6 +561,7 @@ pub(crate) fn moments_at(
         covariance,
         exact,
         method,
+        variance_infinite_from: vec![None; n],
     }
 }
 

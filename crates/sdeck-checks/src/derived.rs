@@ -18,9 +18,40 @@ pub fn derived_checks(model: &Model, derivation: &Derivation) -> Vec<Diagnostic>
     feller_condition(model, derivation, &mut out);
     factor_domain(model, derivation, &mut out);
     not_mean_reverting(model, derivation, &mut out);
+    moment_explosion(model, derivation, &mut out);
     correlation_not_psd(model, &mut out);
     expectations(model, derivation, &mut out);
     out
+}
+
+/// A price whose second moment becomes infinite before the horizon.
+fn moment_explosion(model: &Model, derivation: &Derivation, out: &mut Vec<Diagnostic>) {
+    let clock = &model.clock.unit;
+    let horizon = model.horizon;
+    for (index, time) in
+        sdeck_calculus::exponential_affine::variance_explosions(model, derivation, horizon)
+    {
+        let Some(span) = equation_span(model, index) else {
+            continue;
+        };
+        let name = state_name(model, index);
+        out.push(
+            Diagnostic::new(
+                &rules::MOMENT_EXPLOSION,
+                span,
+                format!(
+                    "the variance of {name} is infinite from t = {} {clock}, before the horizon \
+                     ({} {clock}): E[{name}²] has no finite value after that time",
+                    number(time, 4),
+                    number(horizon, 4)
+                ),
+            )
+            .with_help(
+                "lower the volatility of the factor that drives the variance, make its \
+                 correlation with the price smaller or negative, or shorten the horizon",
+            ),
+        );
+    }
 }
 
 /// A number with `digits` significant digits, trailing zeros dropped.
@@ -793,6 +824,7 @@ mod tests {
             &rules::NOT_MEAN_REVERTING,
             &rules::CORRELATION_NOT_PSD,
             &rules::EXPECTATION_FAILED,
+            &rules::MOMENT_EXPLOSION,
         ];
         for rule in mine {
             let (_, flawed) = run(rule.flawed);
@@ -809,6 +841,31 @@ mod tests {
                 rule.name
             );
         }
+    }
+
+    #[test]
+    fn moment_explosion_gives_the_time_from_which_the_variance_is_infinite() {
+        let (model, diagnostics) = run(rules::MOMENT_EXPLOSION.flawed);
+        let found = of_rule(&diagnostics, &rules::MOMENT_EXPLOSION);
+        assert_eq!(found.len(), 1);
+        // Andersen & Piterbarg 2007, Prop. 3.1 with κ = 0.5, ξ = 0.3, ρ = 0.9, u = 2:
+        // k = ρξu − κ = 0.04, D = k² − 2ξ² = −0.1784, T* = (2/√−D)·arctan(√−D/k).
+        let root = 0.1784f64.sqrt();
+        let expected = 2.0 / root * (root / 0.04).atan();
+        assert!(
+            found[0].message.contains(&number(expected, 4)),
+            "{}",
+            found[0].message
+        );
+        // Past that time the variance is reported infinite, and before it finite.
+        let derivation = sdeck_calculus::derive(&model);
+        let after = moments_at(&model, &derivation, expected + 0.5);
+        let from = after.variance_infinite_from[0].expect("infinite");
+        assert!((from - expected).abs() < 1e-8, "{from} vs {expected}");
+        assert_eq!(after.variance[0], None);
+        let before = moments_at(&model, &derivation, expected - 0.5);
+        assert!(before.variance[0].is_some_and(f64::is_finite));
+        assert_eq!(before.variance_infinite_from[0], None);
     }
 
     #[test]

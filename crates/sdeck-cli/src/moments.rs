@@ -26,6 +26,101 @@ pub struct MomentsArgs {
     at: Option<String>,
     #[arg(long, value_enum, default_value_t = Format::Text)]
     format: Format,
+    /// Probabilities of the quantiles to report, comma-separated ("1%,50%,0.99").
+    #[arg(long, default_value = "1%,5%,50%,95%,99%")]
+    quantiles: String,
+    /// Levels whose probability of not being exceeded is reported, as NAME=VALUE pairs
+    /// ("r=0,S=80").
+    #[arg(long)]
+    below: Option<String>,
+}
+
+/// A number as the language writes it: `0.5`, `2%`, `25bp`.
+fn parse_level(text: &str) -> Option<f64> {
+    let t = text.trim();
+    let (number, scale) = if let Some(n) = t.strip_suffix('%') {
+        (n, 0.01)
+    } else if let Some(n) = t.strip_suffix("bp") {
+        (n, 1e-4)
+    } else {
+        (t, 1.0)
+    };
+    number
+        .trim()
+        .parse::<f64>()
+        .ok()
+        .map(|v| v * scale)
+        .filter(|v| v.is_finite())
+}
+
+/// `--quantiles`: probabilities strictly between 0 and 1.
+pub fn parse_probabilities(text: &str) -> Result<Vec<f64>, String> {
+    text.split(',')
+        .map(|piece| match parse_level(piece) {
+            Some(p) if p > 0.0 && p < 1.0 => Ok(p),
+            _ => Err(format!(
+                "`{}` is not a probability: write one between 0 and 1, e.g. `5%` or `0.05`",
+                piece.trim()
+            )),
+        })
+        .collect()
+}
+
+/// `--below`: (factor, level) pairs.
+pub fn parse_below(text: &str, model: &Model) -> Result<Vec<(usize, f64)>, String> {
+    text.split(',')
+        .map(|piece| {
+            let (name, value) = piece
+                .split_once('=')
+                .ok_or_else(|| format!("`{}` is not NAME=VALUE, e.g. `r=0`", piece.trim()))?;
+            let index = model
+                .factor_index(name.trim())
+                .ok_or_else(|| format!("`{}` is not a factor of the model", name.trim()))?;
+            let level =
+                parse_level(value).ok_or_else(|| format!("`{}` is not a number", value.trim()))?;
+            Ok((index, level))
+        })
+        .collect()
+}
+
+/// The law-based figures of every factor at one time: the law, quantiles and the
+/// probabilities of staying below the asked levels.
+pub struct LawFigures {
+    pub law: Vec<Option<&'static str>>,
+    pub quantiles: Vec<Vec<(f64, Option<f64>)>>,
+    pub below: Vec<Vec<(f64, Option<f64>)>>,
+}
+
+pub fn law_figures(
+    model: &Model,
+    derivation: &Derivation,
+    t: f64,
+    probabilities: &[f64],
+    below: &[(usize, f64)],
+) -> LawFigures {
+    let mut out = LawFigures {
+        law: Vec::new(),
+        quantiles: Vec::new(),
+        below: Vec::new(),
+    };
+    for i in 0..model.factors.len() {
+        let law = sdeck_calculus::laws::law_of(model, derivation, i, t);
+        out.law.push(law.as_ref().map(|l| l.kind().as_str()));
+        out.quantiles.push(
+            probabilities
+                .iter()
+                .map(|&p| (p, law.as_ref().and_then(|l| l.quantile(p))))
+                .collect(),
+        );
+        out.below.push(
+            below
+                .iter()
+                .filter(|(k, _)| *k == i)
+                .map(|&(_, q)| (q, law.as_ref().and_then(|l| l.cdf(q))))
+                .collect(),
+        );
+    }
+    out
 }
 
 /// Parses "0.5", "6 month", "6month", "18 [month]" into clock units.
@@ -126,13 +221,29 @@ pub fn run(args: MomentsArgs) -> ExitCode {
         Ok(t) => t,
         Err(code) => return code,
     };
+    let probabilities = match parse_probabilities(&args.quantiles) {
+        Ok(p) => p,
+        Err(message) => {
+            eprintln!("sdeck: --quantiles: {message}");
+            return ExitCode::from(2);
+        }
+    };
+    let below = match args.below.as_deref().map(|b| parse_below(b, model)) {
+        None => Vec::new(),
+        Some(Ok(b)) => b,
+        Some(Err(message)) => {
+            eprintln!("sdeck: --below: {message}");
+            return ExitCode::from(2);
+        }
+    };
     let moments = moments_at(model, &result.derivation, t);
+    let laws = law_figures(model, &result.derivation, t, &probabilities, &below);
     let output = match args.format {
         Format::Json => {
-            serde_json::to_string_pretty(&moments_json(model, &result.derivation, &moments))
+            serde_json::to_string_pretty(&moments_json(model, &result.derivation, &moments, &laws))
                 .unwrap_or_default()
         }
-        Format::Text => moments_text(model, &result.derivation, &moments),
+        Format::Text => moments_text(model, &result.derivation, &moments, &laws),
     };
     outln!("{output}");
     ExitCode::SUCCESS
@@ -145,18 +256,39 @@ fn num(x: Option<f64>) -> Value {
     }
 }
 
-pub fn moments_json(model: &Model, derivation: &Derivation, m: &Moments) -> Value {
+pub fn moments_json(
+    model: &Model,
+    derivation: &Derivation,
+    m: &Moments,
+    laws: &LawFigures,
+) -> Value {
     let states: Vec<Value> = model
         .factors
         .iter()
         .enumerate()
         .map(|(i, s)| {
             let law = derivation.states.get(i);
+            let variance = m.variance.get(i).copied().flatten();
+            let pairs = |list: Option<&Vec<(f64, Option<f64>)>>, key: &str, value: &str| {
+                Value::Array(
+                    list.map(|l| {
+                        l.iter()
+                            .map(|(a, b)| json!({ key: a, value: num(*b) }))
+                            .collect()
+                    })
+                    .unwrap_or_default(),
+                )
+            };
             json!({
                 "name": s.name,
                 "family": law.map(|l| l.family.as_str()),
                 "mean": num(m.mean.get(i).copied().flatten()),
-                "variance": num(m.variance.get(i).copied().flatten()),
+                "variance": num(variance),
+                "variance_infinite_from": num(m.variance_infinite_from.get(i).copied().flatten()),
+                "sd": num(variance.filter(|v| *v >= 0.0).map(f64::sqrt)),
+                "law": laws.law.get(i).copied().flatten(),
+                "quantiles": pairs(laws.quantiles.get(i), "p", "value"),
+                "below": pairs(laws.below.get(i), "value", "probability"),
                 "exact": m.exact.get(i).copied().unwrap_or(false),
                 "formulas": {
                     "solution": law.and_then(|l| l.formulas.solution.clone()),
@@ -187,7 +319,12 @@ fn or_unknown(x: Option<f64>) -> String {
     }
 }
 
-pub fn moments_text(model: &Model, derivation: &Derivation, m: &Moments) -> String {
+pub fn moments_text(
+    model: &Model,
+    derivation: &Derivation,
+    m: &Moments,
+    laws: &LawFigures,
+) -> String {
     let clock = &model.clock.unit;
     let mut s = format!(
         "model {}   clock {}   at t = {} {}\n",
@@ -223,23 +360,42 @@ pub fn moments_text(model: &Model, derivation: &Derivation, m: &Moments) -> Stri
             state.name,
             or_unknown(mean)
         ));
-        s.push_str(&format!("  Var[{}(t)] = {}\n", state.name, or_unknown(var)));
+        let infinite = m.variance_infinite_from.get(i).copied().flatten();
+        match infinite {
+            Some(from) => s.push_str(&format!(
+                "  Var[{}(t)] = infinite (from t = {} {clock})\n",
+                state.name,
+                fmt_num(from)
+            )),
+            None => s.push_str(&format!("  Var[{}(t)] = {}\n", state.name, or_unknown(var))),
+        }
         s.push_str(&format!(
             "  sd        = {}\n",
-            or_unknown(var.filter(|v| *v >= 0.0).map(f64::sqrt))
+            if infinite.is_some() {
+                "infinite".to_string()
+            } else {
+                or_unknown(var.filter(|v| *v >= 0.0).map(f64::sqrt))
+            }
         ));
-        let levels = [0.01, 0.05, 0.5, 0.95, 0.99];
-        let quantiles: Vec<Option<f64>> = levels
-            .iter()
-            .map(|&p| sdeck_calculus::quantile(model, derivation, i, m.at, p))
-            .collect();
-        if quantiles.iter().all(Option::is_some) {
-            let parts: Vec<String> = levels
-                .iter()
-                .zip(&quantiles)
-                .map(|(p, q)| format!("{}% {}", fmt_num(p * 100.0), or_unknown(*q)))
-                .collect();
-            s.push_str(&format!("  quantiles = {}\n", parts.join(", ")));
+        if let Some(kind) = laws.law.get(i).copied().flatten() {
+            s.push_str(&format!("  law       = {kind}\n"));
+        }
+        if let Some(quantiles) = laws.quantiles.get(i) {
+            if !quantiles.is_empty() && quantiles.iter().all(|(_, q)| q.is_some()) {
+                let parts: Vec<String> = quantiles
+                    .iter()
+                    .map(|(p, q)| format!("{}% {}", fmt_num(p * 100.0), or_unknown(*q)))
+                    .collect();
+                s.push_str(&format!("  quantiles = {}\n", parts.join(", ")));
+            }
+        }
+        for (level, probability) in laws.below.get(i).map(Vec::as_slice).unwrap_or(&[]) {
+            s.push_str(&format!(
+                "  P({} < {}) = {}\n",
+                state.name,
+                fmt_num(*level),
+                or_unknown(*probability)
+            ));
         }
         if let Some(h) = law.half_life {
             s.push_str(&format!("  half-life = {} {clock}\n", fmt_num(h)));

@@ -25,6 +25,21 @@ fn moments(args: &[&str]) -> (Option<i32>, Value, String) {
     )
 }
 
+fn moments_text(args: &[&str]) -> (Option<i32>, String, String) {
+    let out = Command::cargo_bin("sdeck")
+        .unwrap_or_else(|e| panic!("no binary: {e}"))
+        .current_dir(repo())
+        .arg("moments")
+        .args(args)
+        .output()
+        .unwrap_or_else(|e| panic!("{e}"));
+    (
+        out.status.code(),
+        String::from_utf8_lossy(&out.stdout).into_owned(),
+        String::from_utf8_lossy(&out.stderr).into_owned(),
+    )
+}
+
 fn write_model(dir: &tempfile::TempDir, name: &str, text: &str) -> String {
     let path = dir.path().join(name);
     std::fs::write(&path, text).unwrap_or_else(|e| panic!("{e}"));
@@ -49,7 +64,19 @@ fn json_has_exactly_the_documented_shape() {
             .unwrap_or_default();
         assert_eq!(
             keys,
-            ["name", "family", "mean", "variance", "exact", "formulas"]
+            [
+                "name",
+                "family",
+                "mean",
+                "variance",
+                "variance_infinite_from",
+                "sd",
+                "law",
+                "quantiles",
+                "below",
+                "exact",
+                "formulas"
+            ]
         );
         let f: Vec<&String> = s["formulas"]
             .as_object()
@@ -150,4 +177,74 @@ fn text_output_names_the_family_and_the_formulas() {
     assert!(text.contains("noncentral χ²"));
     assert!(text.contains("Gamma("));
     assert!(text.contains("Caution"));
+}
+
+#[test]
+fn laws_quantiles_and_probabilities_below_levels() {
+    let (code, json, _) = moments(&[
+        "tests/reference/models/affine_alderley_vasicek_rate.sde",
+        "--format",
+        "json",
+        "--quantiles",
+        "1%,0.5",
+        "--below",
+        "r=0,r=2%",
+    ]);
+    assert_eq!(code, Some(0));
+    let r = &json["factors"][0];
+    assert_eq!(r["law"], "normal");
+    // Vasicek 1977 at t = 1: mean θ + (r₀ − θ)e^{−κ}, variance σ²(1 − e^{−2κ})/(2κ); the
+    // normal law's 1% point and P(r < 0) from scipy.stats.norm (tests/reference).
+    let (kappa, theta, sigma, r0) = (0.8f64, 0.04f64, 0.015f64, 0.025f64);
+    let mean = theta + (r0 - theta) * (-kappa).exp();
+    let sd = (sigma * sigma * (1.0 - (-2.0 * kappa).exp()) / (2.0 * kappa)).sqrt();
+    assert!((r["sd"].as_f64().unwrap_or(0.0) - sd).abs() < 1e-15);
+    let quantiles = r["quantiles"].as_array().cloned().unwrap_or_default();
+    assert_eq!(quantiles.len(), 2);
+    assert_eq!(quantiles[0]["p"].as_f64(), Some(0.01));
+    assert!((quantiles[0]["value"].as_f64().unwrap_or(0.0) - 0.008614684978747046).abs() < 1e-12);
+    assert!((quantiles[1]["value"].as_f64().unwrap_or(0.0) - mean).abs() < 1e-15);
+    let below = r["below"].as_array().cloned().unwrap_or_default();
+    assert_eq!(below.len(), 2);
+    assert_eq!(below[0]["value"].as_f64(), Some(0.0));
+    assert!(
+        (below[0]["probability"].as_f64().unwrap_or(0.0) - 0.0008461456890931849).abs() < 1e-12
+    );
+    assert_eq!(below[1]["value"].as_f64(), Some(0.02));
+}
+
+#[test]
+fn an_exploding_variance_is_infinite_from_a_time() {
+    let (code, json, _) = moments(&[
+        "tests/reference/models/affine_fallow_explosive_variance.sde",
+        "--format",
+        "json",
+    ]);
+    assert_eq!(code, Some(0));
+    let s = &json["factors"][0];
+    assert_eq!(s["family"], "exponential-affine");
+    assert_eq!(s["law"], "fourier");
+    // E[S_t] = S₀e^{μt} whatever the variance does; E[S²] explodes at the time of
+    // Andersen & Piterbarg 2007 (3.6734 years, tests/reference/expected.json).
+    assert!((s["mean"].as_f64().unwrap_or(0.0) - 100.0 * (0.15f64).exp()).abs() < 1e-9);
+    assert!(s["variance"].is_null() && s["sd"].is_null());
+    assert!((s["variance_infinite_from"].as_f64().unwrap_or(0.0) - 3.673379275490512).abs() < 1e-8);
+    let (code, text, _) =
+        moments_text(&["tests/reference/models/affine_fallow_explosive_variance.sde"]);
+    assert_eq!(code, Some(0));
+    assert!(text.contains("infinite (from t = 3.67338 year)"), "{text}");
+}
+
+#[test]
+fn bad_quantile_and_below_options_are_refused() {
+    let model = "tests/reference/models/affine_alderley_vasicek_rate.sde";
+    for (option, value, says) in [
+        ("--quantiles", "150%", "not a probability"),
+        ("--below", "q=0", "not a factor"),
+        ("--below", "r", "NAME=VALUE"),
+    ] {
+        let (code, _, stderr) = moments(&[model, option, value]);
+        assert_eq!(code, Some(2), "{option} {value}");
+        assert!(stderr.contains(says), "{stderr}");
+    }
 }

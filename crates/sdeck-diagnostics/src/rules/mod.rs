@@ -10,6 +10,7 @@ mod expectation_failed;
 mod factor_domain;
 mod feller_condition;
 mod missing_equation;
+mod moment_explosion;
 mod not_mean_reverting;
 mod syntax;
 mod unit_scale;
@@ -27,6 +28,7 @@ pub use expectation_failed::EXPECTATION_FAILED;
 pub use factor_domain::FACTOR_DOMAIN;
 pub use feller_condition::FELLER_CONDITION;
 pub use missing_equation::MISSING_EQUATION;
+pub use moment_explosion::MOMENT_EXPLOSION;
 pub use not_mean_reverting::NOT_MEAN_REVERTING;
 pub use syntax::SYNTAX;
 pub use unit_scale::UNIT_SCALE;
@@ -50,6 +52,7 @@ pub static ALL: &[&Rule] = &[
     &FELLER_CONDITION,
     &FACTOR_DOMAIN,
     &NOT_MEAN_REVERTING,
+    &MOMENT_EXPLOSION,
     &UNUSED,
     &UNIT_SCALE,
     &EXPECTATION_FAILED,
