@@ -134,3 +134,41 @@ fn findings_on_one_line_are_capped_and_the_rest_counted() {
     let report: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
     assert_eq!(report["diagnostics"].as_array().map(Vec::len), Some(401));
 }
+
+// ------------------------------------------------------------- simulate --check
+
+const NO_VOLATILITY: &str = "clock year\nhorizon 1 year\nparam k = 1.3 [1/year]\n\
+param v = 0 [1/sqrt(year)]\nshock W\nfactor x = 2\ndx = -k * x dt + v dW\n";
+
+#[test]
+fn simulate_check_agrees_with_a_closed_form_without_volatility() {
+    // Rounding alone once gave z = 22.6 or z = inf.
+    let dir = tempfile::tempdir().unwrap();
+    let file = dir.path().join("still.sde");
+    write(&file, NO_VOLATILITY);
+    for paths in ["1000", "2"] {
+        let out = sdeck()
+            .args(["simulate", "--check", "--paths", paths])
+            .arg(&file)
+            .output()
+            .unwrap();
+        assert_eq!(status(&out), 0, "{paths} paths: {}", stderr(&out));
+    }
+}
+
+#[test]
+fn one_path_has_no_standard_errors() {
+    let dir = tempfile::tempdir().unwrap();
+    let file = dir.path().join("still.sde");
+    write(&file, NO_VOLATILITY);
+    let out = sdeck()
+        .args(["simulate", "--paths", "1", "--format", "json"])
+        .arg(&file)
+        .output()
+        .unwrap();
+    let report: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let factor = &report["factors"][0];
+    assert!(factor["variance"].is_null(), "{factor}");
+    assert!(factor["variance_se"].is_null(), "{factor}");
+    assert!(factor["mean_se"].is_null(), "{factor}");
+}

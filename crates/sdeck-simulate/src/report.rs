@@ -75,6 +75,17 @@ pub struct Disagreement {
 
 impl std::fmt::Display for Disagreement {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        if self.z.is_nan() {
+            return write!(
+                f,
+                "{} of `{}` cannot be compared with its closed form {}: the simulation gives \
+                 {} with no standard error (too few paths)",
+                self.figure,
+                self.state,
+                format_number(self.closed_form),
+                format_number(self.simulated),
+            );
+        }
         write!(
             f,
             "{} of `{}`: simulated {} ± {} but the closed form gives {} (z = {:.2}, beyond ±{})",
@@ -164,19 +175,40 @@ impl SimulationResult {
             state.closed_form = closed.map(|(mean, variance)| ClosedFormComparison {
                 mean,
                 variance,
-                z_mean: z_score(state.mean, mean, state.mean_se),
-                z_variance: z_score(state.variance, variance, state.variance_se),
+                z_mean: z_score(state.mean, mean, state.mean_se, rounding(state.mean, mean)),
+                z_variance: z_score(
+                    state.variance,
+                    variance,
+                    state.variance_se,
+                    rounding(state.variance, variance) + rounding(state.mean, mean).powi(2),
+                ),
             });
         }
     }
 }
 
-/// (simulated − expected) / se; 0 when both agree exactly (a deterministic state).
-fn z_score(simulated: f64, expected: f64, standard_error: f64) -> f64 {
+/// The relative rounding allowed between a simulated figure and its closed form: a path
+/// of many steps and a closed form compute the same number by different roundings (a
+/// state without volatility has a standard error of zero, or of rounding noise).
+const ROUNDING: f64 = 1e-9;
+
+/// The rounding allowed for a figure of the size of `a` and `b`.
+fn rounding(a: f64, b: f64) -> f64 {
+    ROUNDING * a.abs().max(b.abs())
+}
+
+/// (simulated − expected) / se, with the rounding allowance added to the standard error
+/// in quadrature; 0 when both agree exactly (a deterministic state), NaN when the
+/// standard error is undefined (too few paths).
+fn z_score(simulated: f64, expected: f64, standard_error: f64, rounding: f64) -> f64 {
+    if standard_error.is_nan() {
+        return f64::NAN;
+    }
     let difference = simulated - expected;
-    if standard_error > 0.0 {
-        difference / standard_error
-    } else if difference.abs() <= 1e-12 * expected.abs().max(1e-300) {
+    let allowed = standard_error.hypot(if rounding.is_finite() { rounding } else { 0.0 });
+    if allowed > 0.0 {
+        difference / allowed
+    } else if difference == 0.0 {
         0.0
     } else {
         f64::INFINITY.copysign(difference)
@@ -380,8 +412,14 @@ mod tests {
 
     #[test]
     fn z_scores_handle_deterministic_states() {
-        assert_eq!(z_score(1.0, 1.0, 0.0), 0.0);
-        assert_eq!(z_score(1.5, 1.0, 0.0), f64::INFINITY);
-        assert_eq!(z_score(1.2, 1.0, 0.1), 1.9999999999999996);
+        assert_eq!(z_score(1.0, 1.0, 0.0, 0.0), 0.0);
+        assert_eq!(z_score(1.5, 1.0, 0.0, 0.0), f64::INFINITY);
+        assert_eq!(z_score(1.2, 1.0, 0.1, 0.0), 1.9999999999999996);
+        // A standard error of rounding noise and a difference of rounding: agreement.
+        let (simulated, expected) = (0.367_879_441_171_442_4, 0.367_879_441_171_442_3);
+        let z = z_score(simulated, expected, 1e-18, rounding(simulated, expected));
+        assert!(z.abs() < 1e-3, "{z}");
+        // Undefined standard error: no z.
+        assert!(z_score(1.0, 1.0, f64::NAN, 0.0).is_nan());
     }
 }

@@ -107,7 +107,14 @@ pub fn summarize(values: &[f64]) -> SampleSummary {
         (mean, variance, fourth / n)
     };
     let mean_se = (variance / n).sqrt();
-    let variance_se = ((fourth - variance * variance).max(0.0) / n).sqrt();
+    // Undefined (not zero) with fewer than two values, and when the estimate of
+    // m4 − s⁴ comes out negative for a sample of two or three values that vary.
+    let spread = fourth - variance * variance;
+    let variance_se = if count < 2 || (count < 4 && spread <= 0.0 && variance > 0.0) {
+        f64::NAN
+    } else {
+        (spread.max(0.0) / n).sqrt()
+    };
     sorted.sort_by(f64::total_cmp);
     let quantiles = QUANTILE_PROBABILITIES
         .iter()
@@ -174,6 +181,20 @@ mod tests {
                 "p = {p}"
             );
         }
+    }
+
+    #[test]
+    fn standard_errors_are_undefined_not_zero_for_one_or_two_values() {
+        let one = summarize(&[1.0]);
+        assert!(one.variance.is_nan() && one.variance_se.is_nan());
+        assert!(one.mean_se.is_nan());
+        // Two values: m4 − s⁴ = d⁴ − 4d⁴ < 0 for values ±d.
+        let two = summarize(&[-1.0, 1.0]);
+        assert_eq!(two.variance, 2.0);
+        assert!(two.variance_se.is_nan());
+        // A sample without spread has exact figures.
+        let flat = summarize(&[3.0; 10]);
+        assert_eq!((flat.variance, flat.variance_se), (0.0, 0.0));
     }
 
     #[test]
