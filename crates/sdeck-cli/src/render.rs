@@ -206,11 +206,11 @@ pub fn explain_text(rule: &Rule) -> String {
         rule.summary,
         rule.explanation.trim_end()
     );
-    s.push_str("\nA flawed model:\n\n");
+    s.push_str("\n## Example\n\nFlawed:\n\n");
     for line in rule.flawed.lines() {
         s.push_str(&format!("    {line}\n"));
     }
-    s.push_str("\nThe same model, mended:\n\n");
+    s.push_str("\nMended:\n\n");
     for line in rule.fixed.lines() {
         s.push_str(&format!("    {line}\n"));
     }
@@ -260,9 +260,9 @@ pub fn rule_markdown(rule: &Rule) -> String {
         s.push_str(line);
         s.push('\n');
     }
-    s.push_str("\n### A flawed model\n\n```text\n");
+    s.push_str("\n### Example\n\nFlawed:\n\n```text\n");
     s.push_str(rule.flawed.trim_end());
-    s.push_str("\n```\n\n### The same model, mended\n\n```text\n");
+    s.push_str("\n```\n\nMended:\n\n```text\n");
     s.push_str(rule.fixed.trim_end());
     s.push_str("\n```\n");
     s

@@ -19,12 +19,12 @@ pub fn level(severity: Severity) -> &'static str {
     }
 }
 
-/// The text of a rule's "What it does" section, or its summary when there is none.
+/// The text of a rule's "Finds" section, or its summary when there is none.
 fn what_it_does(rule: &Rule) -> String {
     let mut lines = rule
         .explanation
         .lines()
-        .skip_while(|l| !l.starts_with("## What it does"));
+        .skip_while(|l| !l.starts_with("## Finds"));
     if lines.next().is_none() {
         return rule.summary.to_string();
     }

@@ -311,7 +311,7 @@ fn sarif_is_valid_and_carries_rules_levels_and_places() {
         .as_str()
         .unwrap()
         .contains("2·speed·level"));
-    assert!(feller["help"]["text"].as_str().unwrap().contains("mended"));
+    assert!(feller["help"]["text"].as_str().unwrap().contains("Mended:"));
     let results = run["results"].as_array().unwrap();
     let result = results
         .iter()
@@ -725,8 +725,17 @@ fn explain_prints_the_manual_with_both_examples() {
     assert_eq!(status(&out), 0);
     let text = stdout(&out);
     assert!(text.starts_with("feller-condition (warning by default)"));
-    assert!(text.contains("A flawed model:"));
-    assert!(text.contains("The same model, mended:"));
+    // The manual's own headings, in this order.
+    let at = |heading: &str| text.find(heading).unwrap_or(usize::MAX);
+    let order = [
+        at("\n## Finds\n"),
+        at("\n## Why a reviewer cares\n"),
+        at("\n## How to mend\n"),
+        at("\n## Example\n\nFlawed:\n"),
+        at("\nMended:\n"),
+    ];
+    assert!(order.windows(2).all(|w| w[0] < w[1]), "{order:?}\n{text}");
+    assert!(order[4] < usize::MAX);
     let out = sdeck().arg("explain").output().unwrap();
     assert!(stdout(&out)
         .lines()

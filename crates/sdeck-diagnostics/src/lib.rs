@@ -67,7 +67,8 @@ pub struct Rule {
     pub default_severity: Severity,
     /// One line: when the rule fires.
     pub summary: &'static str,
-    /// What it does and why it matters, in prose (Markdown).
+    /// What the rule finds, why a reviewer cares and how to mend it, in prose (Markdown)
+    /// under the headings `## Finds`, `## Why a reviewer cares` and `## How to mend`.
     pub explanation: &'static str,
     /// A small model on which the rule fires exactly once.
     pub flawed: &'static str,

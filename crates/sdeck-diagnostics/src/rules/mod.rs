@@ -63,3 +63,28 @@ pub static ALL: &[&Rule] = &[
 pub fn by_name(name: &str) -> Option<&'static Rule> {
     ALL.iter().copied().find(|rule| rule.name == name)
 }
+
+#[cfg(test)]
+mod tests {
+    /// Every manual page has the same three sections, in order, each with text.
+    #[test]
+    fn every_explanation_has_the_three_sections_in_order() {
+        for rule in super::ALL {
+            let headings: Vec<&str> = rule
+                .explanation
+                .lines()
+                .filter(|l| l.starts_with('#'))
+                .collect();
+            assert_eq!(
+                headings,
+                ["## Finds", "## Why a reviewer cares", "## How to mend"],
+                "{}",
+                rule.name
+            );
+            for section in rule.explanation.split("## ").skip(1) {
+                let body = section.split_once('\n').map_or("", |(_, b)| b);
+                assert!(!body.trim().is_empty(), "{}: empty section", rule.name);
+            }
+        }
+    }
+}
