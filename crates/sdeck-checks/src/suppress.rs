@@ -1,4 +1,4 @@
-//! Suppression comments: `# sdeck: quiet RULE[, RULE] [-- reason]` and its range and file
+//! Suppression comments: `# sdeck: quiet RULE[, RULE] [because REASON]` and its range and file
 //! forms.
 //!
 //! - After code on a line, `quiet` silences the rules on that statement's lines.
@@ -8,9 +8,11 @@
 //!
 //! Each rule name that silences nothing is reported as `unused-suppression`, at the name.
 //! So is an unknown rule name (the known names beside it still work), a comment that names
-//! no rule, and an unknown directive (`# sdeck: hush unused`).
+//! no rule, and an unknown directive (`# sdeck: hush unused`). A reason written after
+//! `--` (the first version's form) is reported too, with a fix that writes `because`; the
+//! comment still silences its rules, so the old form gives one finding, not two.
 
-use sdeck_diagnostics::{rules, Diagnostic, Span};
+use sdeck_diagnostics::{rules, Diagnostic, Span, TextEdit};
 use sdeck_syntax::ast::SourceFile;
 use sdeck_syntax::LineIndex;
 
@@ -47,7 +49,27 @@ struct Directive {
 
 fn problem(span: Span, message: String) -> Diagnostic {
     Diagnostic::new(&rules::UNUSED_SUPPRESSION, span, message)
-        .with_help("write `# sdeck: quiet RULE -- reason`; `sdeck explain` lists the rules")
+        .with_help("write `# sdeck: quiet RULE because REASON`; `sdeck explain` lists the rules")
+}
+
+/// The byte offset in `text` of the first whole word equal to `word` (words are separated
+/// by white space and commas).
+fn word_offset(text: &str, word: &str) -> Option<usize> {
+    let mut from = 0;
+    while let Some(i) = text
+        .get(from..)
+        .and_then(|t| t.find(word))
+        .map(|i| from + i)
+    {
+        let before = text.get(..i).and_then(|t| t.chars().next_back());
+        let after = text.get(i + word.len()..).and_then(|t| t.chars().next());
+        let apart = |c: Option<char>| c.is_none_or(|c| c.is_whitespace() || c == ',');
+        if apart(before) && apart(after) {
+            return Some(i);
+        }
+        from = i + word.len();
+    }
+    None
 }
 
 /// Parses the text of a comment (after `#`) whose first byte is at `base` in the source.
@@ -59,12 +81,24 @@ fn parse_directive(text: &str, base: usize, comment: &Span) -> Option<Directive>
             .get(lead..)?
             .strip_prefix("sdeck:")
             .map(|_| "sdeck:".len())?;
-    // Everything up to `--` is the directive; the rest is the reason.
-    let directive_end = text
-        .get(after_prefix..)
-        .and_then(|rest| rest.find("--"))
-        .map(|i| after_prefix + i)
-        .unwrap_or(text.len());
+    // Everything up to the word `because` is the directive; the rest is the reason. The
+    // first version's `--` before the reason still ends the directive, but is reported.
+    let rest = text.get(after_prefix..).unwrap_or("");
+    let because = word_offset(rest, "because");
+    let dashes = rest.find("--");
+    let mut old_reason = None;
+    let directive_end = match (because, dashes) {
+        (Some(b), Some(d)) if d < b => {
+            old_reason = Some(after_prefix + d);
+            after_prefix + d
+        }
+        (Some(b), _) => after_prefix + b,
+        (None, Some(d)) => {
+            old_reason = Some(after_prefix + d);
+            after_prefix + d
+        }
+        (None, None) => text.len(),
+    };
     // Words: maximal runs of characters other than white space and commas, with offsets.
     let mut words: Vec<(usize, &str)> = Vec::new();
     let directive = text.get(after_prefix..directive_end).unwrap_or("");
@@ -123,6 +157,32 @@ fn parse_directive(text: &str, base: usize, comment: &Span) -> Option<Directive>
     }
     let mut known = Vec::new();
     let mut problems = Vec::new();
+    if let Some(at) = old_reason {
+        let span = base + at..base + at + 2;
+        let after = text.get(at + 2..).unwrap_or("");
+        let new_text = if after.starts_with(char::is_whitespace) || after.is_empty() {
+            "because"
+        } else {
+            "because "
+        };
+        problems.push(
+            Diagnostic::new(
+                &rules::UNUSED_SUPPRESSION,
+                span.clone(),
+                "the reason of a suppression now follows the word `because`, not `--`",
+            )
+            .with_help(format!(
+                "write `# sdeck: {word} RULE because REASON`; the comment still silences its rules"
+            ))
+            .with_fix(
+                "Write `because` for `--`",
+                vec![TextEdit {
+                    span,
+                    new_text: new_text.to_string(),
+                }],
+            ),
+        );
+    }
     for &(at, name) in names {
         let span = absolute(at, name);
         if rules::by_name(name).is_some() {

@@ -71,7 +71,7 @@ fn the_base_model_fires_both_rules() {
 fn trailing_quiet_silences_its_statement() {
     let text = with_line(
         6,
-        "param level_stress = 5.5%   # sdeck: quiet unused -- read by the stress script",
+        "param level_stress = 5.5%   # sdeck: quiet unused because read by the stress script",
     );
     assert_eq!(fired(&text), vec![(11, "feller-condition")]);
 }
@@ -86,7 +86,7 @@ fn trailing_quiet_without_a_reason_works_too() {
 fn standalone_quiet_silences_the_next_statement() {
     let text = with_line(
         10,
-        "# sdeck: quiet feller-condition -- zero is accepted, see risk memo 14",
+        "# sdeck: quiet feller-condition because zero is accepted, see risk memo 14",
     );
     assert_eq!(fired(&text), vec![(6, "unused")]);
 }
@@ -100,11 +100,14 @@ fn standalone_quiet_covers_every_line_of_a_multi_line_statement() {
         "dr = kappa * (level - r) dt\n     + vol * sqrt(r) dW\n",
     );
     assert_eq!(fired(&split), vec![(6, "unused"), (11, "feller-condition")]);
-    let above = split.replace("# (line 10)", "# sdeck: quiet feller-condition -- accepted");
+    let above = split.replace(
+        "# (line 10)",
+        "# sdeck: quiet feller-condition because accepted",
+    );
     assert_eq!(fired(&above), vec![(6, "unused")]);
     let trailing = split.replace(
         "     + vol * sqrt(r) dW\n",
-        "     + vol * sqrt(r) dW   # sdeck: quiet feller-condition -- accepted\n",
+        "     + vol * sqrt(r) dW   # sdeck: quiet feller-condition because accepted\n",
     );
     assert_eq!(fired(&trailing), vec![(6, "unused")]);
 }
@@ -130,7 +133,7 @@ fn a_trailing_quiet_does_not_reach_the_next_statement() {
 fn standalone_quiet_skips_blank_and_comment_lines_to_the_next_statement() {
     let text = with_line(
         9,
-        "# sdeck: quiet feller-condition -- the next statement is two lines down",
+        "# sdeck: quiet feller-condition because the next statement is two lines down",
     );
     assert_eq!(fired(&text), vec![(6, "unused")]);
 }
@@ -139,7 +142,7 @@ fn standalone_quiet_skips_blank_and_comment_lines_to_the_next_statement() {
 fn several_rules_in_one_comment() {
     let text = BASE.replace(
         "param level_stress = 5.5%\n",
-        "param level_stress = 5.5%   # sdeck: quiet unused, feller-condition -- both\n",
+        "param level_stress = 5.5%   # sdeck: quiet unused, feller-condition because both\n",
     );
     // `unused` silences line 6; `feller-condition` silences nothing there.
     assert_eq!(
@@ -155,7 +158,7 @@ fn several_rules_in_one_comment() {
 fn begin_and_end_silence_the_lines_between() {
     let text = with_line(
         4,
-        "# sdeck: quiet-begin unused, feller-condition -- legacy block",
+        "# sdeck: quiet-begin unused, feller-condition because legacy block",
     )
     .replace("# (line 9)", "param level = 2%                  >= 0");
     // Line 4 now opens the range; `level` moves to line 9 (inside the range too).
@@ -170,14 +173,20 @@ fn begin_and_end_silence_the_lines_between() {
 
 #[test]
 fn an_open_begin_runs_to_the_end_of_the_file() {
-    let text = with_line(9, "# sdeck: quiet-begin feller-condition -- until the end");
+    let text = with_line(
+        9,
+        "# sdeck: quiet-begin feller-condition because until the end",
+    );
     assert_eq!(fired(&text), vec![(6, "unused")]);
 }
 
 #[test]
 fn an_unused_range_is_reported_at_its_begin() {
-    let text = with_line(9, "# sdeck: quiet-begin unused -- nothing unused below")
-        .replace("dr = kappa", "# sdeck: quiet-end unused\ndr = kappa");
+    let text = with_line(
+        9,
+        "# sdeck: quiet-begin unused because nothing unused below",
+    )
+    .replace("dr = kappa", "# sdeck: quiet-end unused\ndr = kappa");
     assert_eq!(
         fired(&text),
         vec![
@@ -201,7 +210,7 @@ fn an_end_without_a_begin_is_reported() {
 fn quiet_file_silences_everywhere() {
     let text = with_line(
         1,
-        "# sdeck: quiet-file unused, feller-condition -- a scratch model",
+        "# sdeck: quiet-file unused, feller-condition because a scratch model",
     );
     assert_eq!(fired(&text), vec![]);
 }
@@ -223,7 +232,7 @@ fn quiet_file_that_silences_nothing_is_reported() {
 fn an_unknown_rule_is_reported_and_silences_nothing() {
     let text = with_line(
         6,
-        "param level_stress = 5.5%   # sdeck: quiet unsued -- misspelt",
+        "param level_stress = 5.5%   # sdeck: quiet unsued because misspelt",
     );
     assert_eq!(
         fired(&text),
@@ -241,7 +250,7 @@ fn an_unknown_rule_is_reported_and_silences_nothing() {
 fn a_known_rule_beside_an_unknown_one_still_silences() {
     let text = with_line(
         6,
-        "param level_stress = 5.5%   # sdeck: quiet unused, unsued -- one misspelt",
+        "param level_stress = 5.5%   # sdeck: quiet unused, unsued because one misspelt",
     );
     assert_eq!(
         fired(&text),
@@ -267,7 +276,10 @@ fn an_unknown_directive_is_reported() {
 
 #[test]
 fn a_directive_naming_no_rule_is_reported() {
-    for comment in ["# sdeck: quiet", "# sdeck: quiet -- no rule, only a reason"] {
+    for comment in [
+        "# sdeck: quiet",
+        "# sdeck: quiet because no rule, only a reason",
+    ] {
         let text = with_line(9, comment);
         let report = reports(&text, "unused-suppression");
         assert_eq!(report.len(), 1, "{comment}: {report:?}");
@@ -280,7 +292,7 @@ fn the_report_points_at_the_rule_name() {
     // docs/language.md, section 11: `unused-suppression` is reported at the rule name.
     let text = with_line(
         9,
-        "# sdeck: quiet factor-domain, feller-condition -- one of two is stale",
+        "# sdeck: quiet factor-domain, feller-condition because one of two is stale",
     );
     let report = reports(&text, "unused-suppression");
     assert_eq!(report.len(), 1, "{report:?}");
@@ -293,7 +305,7 @@ fn the_report_points_at_the_rule_name() {
 fn a_reason_may_hold_rule_names_and_commas() {
     let text = with_line(
         6,
-        "param level_stress = 5.5%   # sdeck: quiet unused -- not feller-condition, nor unused elsewhere",
+        "param level_stress = 5.5%   # sdeck: quiet unused because not feller-condition, nor unused elsewhere",
     );
     assert_eq!(fired(&text), vec![(11, "feller-condition")]);
 }
@@ -322,7 +334,7 @@ fn silenced_diagnostics_stay_silenced_under_project_levels() {
         "feller-condition".to_string(),
         sdeck_checks::RuleLevel::On(sdeck_diagnostics::Severity::Error),
     );
-    let text = with_line(10, "# sdeck: quiet feller-condition -- accepted");
+    let text = with_line(10, "# sdeck: quiet feller-condition because accepted");
     let result = check(&text, "suppression_test", &settings);
     assert!(result
         .diagnostics
@@ -339,4 +351,44 @@ fn silenced_diagnostics_stay_silenced_under_project_levels() {
         .diagnostics
         .iter()
         .all(|d| d.rule != "unused-suppression"));
+}
+
+#[test]
+fn a_reason_after_dashes_still_silences_but_is_reported_with_a_fix() {
+    let text = with_line(
+        10,
+        "# sdeck: quiet feller-condition -- zero is accepted, see risk memo 14",
+    );
+    // The rule stays silenced; the `--` is the one report on that line.
+    assert_eq!(
+        fired(&text),
+        vec![(6, "unused"), (10, "unused-suppression")]
+    );
+    let result = check(&text, "suppression_test", &RuleSettings::default());
+    let report = result
+        .diagnostics
+        .iter()
+        .find(|d| d.rule == "unused-suppression")
+        .expect("reported");
+    assert_eq!(&text[report.span.clone()], "--");
+    assert!(report.message.contains("`because`"), "{}", report.message);
+    let edit = &report.fixes[0].edits[0];
+    let mut fixed = text.clone();
+    fixed.replace_range(edit.span.clone(), &edit.new_text);
+    assert!(fixed.contains("# sdeck: quiet feller-condition because zero is accepted"));
+    assert_eq!(fired(&fixed), vec![(6, "unused")]);
+}
+
+#[test]
+fn because_ends_the_rule_list_only_as_a_whole_word() {
+    // `becausal` is not `because`: it is read as a (misspelt) rule name.
+    let text = with_line(10, "# sdeck: quiet feller-condition becausal");
+    let report = reports(&text, "unused-suppression");
+    assert_eq!(
+        report,
+        vec![("`becausal` is not a rule".to_string(), "becausal")]
+    );
+    // A comma before `because` is fine, and the reason may name rules freely.
+    let text = with_line(10, "# sdeck: quiet feller-condition,because unused is fine");
+    assert_eq!(fired(&text), vec![(6, "unused")]);
 }
