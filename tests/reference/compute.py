@@ -48,9 +48,12 @@ MODELS_DIR = REFERENCE_DIR / "models"
 EXPECTED_PATH = REFERENCE_DIR / "expected.json"
 
 # Length of each built-in time unit in years, as the language design defines them:
-# month = year/12, week = 7 day, day = year/365, bday = year/252.
+# quarter = year/4, month = year/12, week = 7 day, day = year/365, bday = year/252,
+# hour = day/24.
 TIME_UNIT_YEARS = {
     "year": Fraction(1),
+    "quarter": Fraction(1, 4),
+    "hour": Fraction(1, 365 * 24),
     "month": Fraction(1, 12),
     "week": Fraction(7, 365),
     "day": Fraction(1, 365),

@@ -148,7 +148,8 @@ pub fn parse_time(text: &str, model: &Model) -> Result<f64, String> {
     match sdeck_units::time_unit_years(unit) {
         Some(years) => Ok(value * years / model.clock.years),
         None => Err(format!(
-            "`{unit}` is not a time unit; use year, month, week, day or bday"
+            "`{unit}` is not a time unit; use one of {}",
+            sdeck_units::TIME_UNITS.join(", ")
         )),
     }
 }

@@ -256,7 +256,7 @@ impl<'a> Analyzer<'a> {
                                 name.span.clone(),
                                 format!("`{}` is a built-in time unit and cannot be declared again", name.name),
                             )
-                            .with_help("remove this line; the time units year, month, week, day and bday always exist"),
+                            .with_help("remove this line; the time units year, quarter, month, week, day, bday and hour always exist"),
                         );
                         continue;
                     }

@@ -83,6 +83,27 @@ fn horizons_convert_to_the_clock() {
     assert_eq!(horizon("horizon 2\n"), 2.0);
     assert_eq!(horizon("clock month\nhorizon 2 year\n"), 24.0);
     assert_eq!(horizon("horizon 126 bday\n"), 0.5);
+    // A quarter is a year/4 and an hour a day/24: common practice, no source.
+    assert_eq!(horizon("horizon 2 quarter\n"), 0.5);
+    assert_eq!(horizon("horizon 3 [quarter]\n"), 0.75);
+    assert_eq!(horizon("clock hour\nhorizon 1 day\n"), 24.0);
+    assert_eq!(horizon("clock quarter\nhorizon 18 month\n"), 6.0);
+    assert_eq!(horizon("clock day\nhorizon 36 hour\n"), 1.5);
+}
+
+#[test]
+fn hours_and_quarters_convert_in_values_and_expectations() {
+    let text = "param a = 0.2% [1/hour]\nparam b = 1 [1/quarter]\nparam c = 0.01 [1/sqrt(hour)]\n";
+    let a = analyze(text, "t");
+    assert!((param(&a, "a") - 0.002 * 8760.0).abs() < 1e-12);
+    assert_eq!(param(&a, "b"), 4.0);
+    assert!((param(&a, "c") - 0.01 * 8760f64.sqrt()).abs() < 1e-15);
+    let hints = a
+        .diagnostics
+        .iter()
+        .filter(|d| d.rule == "unit-scale")
+        .count();
+    assert_eq!(hints, 3);
 }
 
 #[test]

@@ -8,7 +8,6 @@ use sdeck_semantics::{Function, SymbolKind};
 use sdeck_syntax::ast::Figure;
 use tower_lsp::lsp_types::{CompletionItem, CompletionItemKind, Position};
 
-const TIME_UNITS: [&str; 5] = ["year", "month", "week", "day", "bday"];
 
 pub fn complete(
     a: &Analyzed,
@@ -29,7 +28,7 @@ pub fn complete(
         .iter()
         .filter(|s| s.kind == SymbolKind::Unit)
         .map(|s| s.name.clone());
-    let mut items: Vec<CompletionItem> = TIME_UNITS
+    let mut items: Vec<CompletionItem> = sdeck_units::TIME_UNITS
         .iter()
         .map(|u| item(u, CompletionItemKind::UNIT, "time unit"))
         .chain(declared_units.map(|u| item(&u, CompletionItemKind::UNIT, "declared unit")))

@@ -333,8 +333,13 @@ impl Evaluator<'_> {
 
 /// Short forms people type for time units, mapped to the built-in name (common practice,
 /// no source).
-const TIME_ABBREVIATIONS: [(&str, &str); 12] = [
+const TIME_ABBREVIATIONS: [(&str, &str); 17] = [
     ("y", "year"),
+    ("q", "quarter"),
+    ("qtr", "quarter"),
+    ("h", "hour"),
+    ("hr", "hour"),
+    ("hrs", "hour"),
     ("yr", "year"),
     ("yrs", "year"),
     ("mo", "month"),

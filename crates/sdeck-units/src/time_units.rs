@@ -2,29 +2,34 @@
 //!
 //! A day is 1/365 of a year (the ACT/365 Fixed convention) and a business day 1/252 of a
 //! year (252 trading days a year); both are common practice, no source. A month is 1/12
-//! of a year and a week 7 days.
+//! of a year and a week 7 days. A quarter is 1/4 of a year and an hour 1/24 of a day
+//! (so 1/8760 of a year under ACT/365 Fixed): common practice, no source.
 
 use crate::rational::Rational;
 
 /// The names of the built-in time units, longest first in length of time.
-pub const TIME_UNITS: [&str; 5] = ["year", "month", "week", "day", "bday"];
+pub const TIME_UNITS: [&str; 7] = [
+    "year", "quarter", "month", "week", "day", "bday", "hour",
+];
 
-/// The length of a built-in time unit in years, exactly: year 1, month 1/12, week 7/365,
-/// day 1/365, bday 1/252. `None` for any other name.
+/// The length of a built-in time unit in years, exactly: year 1, quarter 1/4, month 1/12,
+/// week 7/365, day 1/365, bday 1/252, hour 1/8760. `None` for any other name.
 pub fn time_unit_years_exact(name: &str) -> Option<Rational> {
     let (num, den) = match name {
         "year" => (1, 1),
+        "quarter" => (1, 4),
         "month" => (1, 12),
         "week" => (7, 365),
         "day" => (1, 365),
         "bday" => (1, 252),
+        "hour" => (1, 365 * 24),
         _ => return None,
     };
     Rational::new(num, den)
 }
 
 /// The length of a built-in time unit in years, as the nearest `f64`: year 1;
-/// month 1/12; week 7/365; day 1/365; bday 1/252. `None` for any other name.
+/// quarter 1/4; month 1/12; week 7/365; day 1/365; bday 1/252; hour 1/8760. `None` for any other name.
 pub fn time_unit_years(name: &str) -> Option<f64> {
     time_unit_years_exact(name).map(Rational::to_f64)
 }
@@ -50,13 +55,16 @@ mod tests {
     #[test]
     fn lengths_in_years() {
         // ACT/365 Fixed day count and 252 business days per year: common practice, no
-        // source. 12 months and 7 days a week: calendar facts.
+        // source. 12 months and 7 days a week: calendar facts. A quarter of a year and 24
+        // hours a day: common practice, no source.
         let expected = [
             ("year", 1.0),
+            ("quarter", 0.25),
             ("month", 1.0 / 12.0),
             ("week", 7.0 / 365.0),
             ("day", 1.0 / 365.0),
             ("bday", 1.0 / 252.0),
+            ("hour", 1.0 / 8760.0),
         ];
         for (name, years) in expected {
             assert_eq!(time_unit_years(name), Some(years), "{name}");

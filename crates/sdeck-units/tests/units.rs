@@ -62,34 +62,60 @@ fn assert_close(actual: f64, expected: f64, what: &str) {
 /// `(unit, clock, p, q)`: one `unit` lasts `p/q` clock units.
 ///
 /// ACT/365 Fixed day count and 252 business days per year: common practice, no source.
-/// With year = 1, month = 1/12, week = 7/365, day = 1/365, bday = 1/252 (in years), the
-/// ratios were worked by hand and cross-checked with Python's `fractions.Fraction`.
-const LENGTH_IN_CLOCK_UNITS: [(&str, &str, i64, i64); 25] = [
+/// Quarter = year/4 and hour = day/24: common practice, no source.
+/// With year = 1, quarter = 1/4, month = 1/12, week = 7/365, day = 1/365, bday = 1/252 and
+/// hour = 1/8760 (in years), the ratios were worked by hand and cross-checked with Python's
+/// `fractions.Fraction`.
+const LENGTH_IN_CLOCK_UNITS: [(&str, &str, i64, i64); 49] = [
     ("year", "year", 1, 1),
+    ("quarter", "year", 1, 4),
     ("month", "year", 1, 12),
     ("week", "year", 7, 365),
     ("day", "year", 1, 365),
     ("bday", "year", 1, 252),
+    ("hour", "year", 1, 8760),
+    ("year", "quarter", 4, 1),
+    ("quarter", "quarter", 1, 1),
+    ("month", "quarter", 1, 3),
+    ("week", "quarter", 28, 365),
+    ("day", "quarter", 4, 365),
+    ("bday", "quarter", 1, 63),
+    ("hour", "quarter", 1, 2190),
     ("year", "month", 12, 1),
+    ("quarter", "month", 3, 1),
     ("month", "month", 1, 1),
     ("week", "month", 84, 365),
     ("day", "month", 12, 365),
     ("bday", "month", 1, 21),
+    ("hour", "month", 1, 730),
     ("year", "week", 365, 7),
+    ("quarter", "week", 365, 28),
     ("month", "week", 365, 84),
     ("week", "week", 1, 1),
     ("day", "week", 1, 7),
     ("bday", "week", 365, 1764),
+    ("hour", "week", 1, 168),
     ("year", "day", 365, 1),
+    ("quarter", "day", 365, 4),
     ("month", "day", 365, 12),
     ("week", "day", 7, 1),
     ("day", "day", 1, 1),
     ("bday", "day", 365, 252),
+    ("hour", "day", 1, 24),
     ("year", "bday", 252, 1),
+    ("quarter", "bday", 63, 1),
     ("month", "bday", 21, 1),
     ("week", "bday", 1764, 365),
     ("day", "bday", 252, 365),
     ("bday", "bday", 1, 1),
+    ("hour", "bday", 21, 730),
+    ("year", "hour", 8760, 1),
+    ("quarter", "hour", 2190, 1),
+    ("month", "hour", 730, 1),
+    ("week", "hour", 168, 1),
+    ("day", "hour", 24, 1),
+    ("bday", "hour", 730, 21),
+    ("hour", "hour", 1, 1),
 ];
 
 #[test]
@@ -360,6 +386,8 @@ fn unknown_units_say_how_to_declare_and_suggest_a_close_name() {
         ("Year", "Year", Some("did you mean `year`?")),
         ("1/sqrt(yr)", "yr", Some("did you mean `year`?")),
         ("wk", "wk", Some("did you mean `week`?")),
+        ("1/hr", "hr", Some("did you mean `hour`?")),
+        ("qtr", "qtr", Some("did you mean `quarter`?")),
         ("furlong", "furlong", None),
         ("GBP/year", "GBP", None),
     ];
@@ -369,7 +397,7 @@ fn unknown_units_say_how_to_declare_and_suggest_a_close_name() {
             error.message,
             format!(
                 "unit `{name}` is not declared; declare it with `unit {name}` or use a time \
-                 unit (year, month, week, day, bday)"
+                 unit (year, quarter, month, week, day, bday, hour)"
             ),
             "[{text}]"
         );
