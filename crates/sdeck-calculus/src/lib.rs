@@ -8,7 +8,9 @@
 //! autocovariance, stationary law, half-life. [`moments_at`], [`autocovariance`] and
 //! [`quantile`] then give numbers at any time.
 //!
-//! Layout: `algebra` (polynomials in the states), `shape` (classification), `one_state`
+//! Layout: `algebra` (polynomials in the states), `breaks` (the times at which the
+//! coefficients jump or bend; every time integral is split there), `shape`
+//! (classification), `one_state`
 //! (figures of one decoupled state), `formulas` (readable math), `system` (several
 //! states, through the engines of `linear_system`, `polynomial` and `ode`),
 //! `noncentral` (the noncentral chi-square law), `elementary` (closed-form integrals of
@@ -29,6 +31,7 @@
 
 pub mod affine;
 pub mod algebra;
+pub mod breaks;
 pub mod curve;
 pub mod describe;
 mod elementary;

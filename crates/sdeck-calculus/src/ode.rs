@@ -214,6 +214,46 @@ pub fn integrate_through<F: Fn(f64, &[f64], &mut [f64])>(
     Ok(out)
 }
 
+/// Integrates y' = f(t, y) across a partition `pieces` (from its first point to its
+/// last, monotone) and returns y at the last point.
+///
+/// On each piece [a, b] the right-hand side is called only with times inside
+/// [a + δ, b − δ], δ a few units of `f64` resolution: a coefficient that jumps at a
+/// break (a `step`) is then always read on the piece's own side of the jump, whatever
+/// time the Runge–Kutta stages ask for at the ends.
+pub fn integrate_pieces<F: Fn(f64, &[f64], &mut [f64])>(
+    f: F,
+    y0: &[f64],
+    pieces: &[f64],
+    rtol: f64,
+    atol: f64,
+) -> Result<Vec<f64>, OdeError> {
+    let mut y = y0.to_vec();
+    let mut buffers = StageBuffers::new(y.len());
+    for window in pieces.windows(2) {
+        let (a, b) = (window[0], window[1]);
+        let (low, high) = if a <= b { (a, b) } else { (b, a) };
+        let margin = 16.0 * f64::EPSILON * low.abs().max(high.abs()).max(1.0);
+        let (inner_low, inner_high) = if high - low > 4.0 * margin {
+            (low + margin, high - margin)
+        } else {
+            (low, high)
+        };
+        let inside = |t: f64, y: &[f64], dy: &mut [f64]| f(t.clamp(inner_low, inner_high), y, dy);
+        integrate_in_place(&inside, &mut y, a, b, rtol, atol, &mut buffers)?;
+    }
+    Ok(y)
+}
+
+/// Integrates `f` over a partition `pieces` by [`quad`] on each piece, and adds.
+pub fn quad_pieces<F: Fn(f64) -> f64>(f: F, pieces: &[f64], rtol: f64) -> Result<f64, OdeError> {
+    let mut total = 0.0;
+    for window in pieces.windows(2) {
+        total += quad(&f, window[0], window[1], rtol)?;
+    }
+    Ok(total)
+}
+
 /// Root-mean-square of `error_i / (atol + rtol·max(|y_i|, |y_new_i|))`.
 fn scaled_error_norm(buffers: &StageBuffers, y: &[f64], h: f64, rtol: f64, atol: f64) -> f64 {
     let dimension = y.len();

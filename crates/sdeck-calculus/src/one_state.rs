@@ -4,8 +4,11 @@
 //! Constant coefficients use closed forms built on φ(x, t) = (e^{x t} − 1)/x, evaluated
 //! with `exp_m1` so that a tiny slope loses no precision and x = 0 gives t exactly.
 //! Time-dependent coefficients use the integrating factor with adaptive Gauss–Kronrod
-//! quadrature (or the moment equations when the noise depends on the state).
+//! quadrature (or the moment equations when the noise depends on the state), split at
+//! the breaks of the coefficients ([`TimeBreaks`]: knots of `step` and `ramp`, kinks of
+//! `min`, `max`, `abs` of t) so that every piece is smooth.
 
+use crate::breaks::TimeBreaks;
 use crate::elementary::{convolve, exp_polynomial, ExpPolynomial};
 use crate::linear_system::matrix_exponential;
 use crate::noncentral;
@@ -137,18 +140,30 @@ fn moment_equation_variance(v: &Values, x0: f64, t: f64) -> Option<f64> {
     variance.is_finite().then_some(variance)
 }
 
-/// ∫₀ᵗ f by adaptive Gauss–Kronrod; NaN when the integrator gives up.
-fn integral(f: impl Fn(f64) -> f64, from: f64, to: f64) -> f64 {
+/// ∫ f from `from` to `to` by adaptive Gauss–Kronrod on each smooth piece between the
+/// breaks; NaN when the integrator gives up.
+fn integral(f: impl Fn(f64) -> f64, from: f64, to: f64, breaks: &TimeBreaks) -> f64 {
     if from == to {
         return 0.0;
     }
-    ode::quad(f, from, to, QUADRATURE_TOLERANCE).unwrap_or(f64::NAN)
+    ode::quad_pieces(f, &breaks.pieces(from, to), QUADRATURE_TOLERANCE).unwrap_or(f64::NAN)
+}
+
+impl OneState {
+    /// The breaks of every coefficient of the equation.
+    pub(crate) fn breaks(&self, params: &[f64]) -> TimeBreaks {
+        TimeBreaks::of_polys(
+            [&self.a, &self.b, &self.alpha, &self.beta, &self.gamma],
+            params,
+        )
+    }
 }
 
 /// exp(∫ₛᵗ b(u) du).
 pub(crate) fn growth_factor(os: &OneState, params: &[f64], s: f64, t: f64) -> f64 {
     if os.b.depends_on_time() {
-        integral(|u| os.b.value(params, u), s, t).exp()
+        let breaks = TimeBreaks::of_polys([&os.b], params);
+        integral(|u| os.b.value(params, u), s, t, &breaks).exp()
     } else {
         (os.b.value(params, 0.0) * (t - s)).exp()
     }
@@ -162,13 +177,14 @@ fn integrating_factor(
     q: &dyn Fn(f64) -> f64,
     y0: f64,
     t: f64,
+    breaks: &TimeBreaks,
 ) -> f64 {
     let p0 = p(0.0);
     let exponent = |s: f64| {
         if p_is_constant {
             p0 * (t - s)
         } else {
-            integral(p, s, t)
+            integral(p, s, t, breaks)
         }
     };
     let homogeneous = if y0 == 0.0 {
@@ -176,7 +192,7 @@ fn integrating_factor(
     } else {
         y0 * exponent(0.0).exp()
     };
-    homogeneous + integral(|s| exponent(s).exp() * q(s), 0.0, t)
+    homogeneous + integral(|s| exponent(s).exp() * q(s), 0.0, t, breaks)
 }
 
 /// Whether a time-dependent state has closed forms: constant slope b, additive noise,
@@ -212,16 +228,17 @@ fn time_dependent_mean_variance(
             method: Method::ClosedForm,
         });
     }
+    let breaks = os.breaks(params);
     let b_constant = !os.b.depends_on_time();
     let b = |s: f64| os.b.value(params, s);
     let a = |s: f64| os.a.value(params, s);
-    let mean = integrating_factor(&b, b_constant, &a, x0, t);
+    let mean = integrating_factor(&b, b_constant, &a, x0, t, &breaks);
     if !os.state_dependent_noise() {
         // V' = 2b V + α(t): the Itô isometry with a time-dependent integrand
         // (Kloeden & Platen 1992, §4.2, eq. 2.9 with d = 0).
         let two_b = |s: f64| 2.0 * os.b.value(params, s);
         let alpha = |s: f64| os.alpha.value(params, s);
-        let variance = integrating_factor(&two_b, b_constant, &alpha, 0.0, t);
+        let variance = integrating_factor(&two_b, b_constant, &alpha, 0.0, t, &breaks);
         return (mean.is_finite() && variance.is_finite()).then_some(MeanVariance {
             mean,
             variance,
@@ -240,7 +257,9 @@ fn time_dependent_mean_variance(
             *slot = v.alpha + v.beta * m + v.gamma * m * m + (2.0 * v.b + v.gamma) * var;
         }
     };
-    let end = ode::integrate(derivative, &[x0, 0.0], 0.0, t, 1e-11, 1e-300).ok()?;
+    let end =
+        ode::integrate_pieces(derivative, &[x0, 0.0], &breaks.pieces(0.0, t), 1e-11, 1e-300)
+            .ok()?;
     let variance = end.get(1).copied()?;
     (mean.is_finite() && variance.is_finite()).then_some(MeanVariance {
         mean,

@@ -1,6 +1,7 @@
 //! Derivations and figures of whole models: decoupled states through `one_state`,
 //! coupled states and cross-covariances through the engines for several states.
 
+use crate::breaks::TimeBreaks;
 use crate::algebra::Poly;
 use crate::linear_system::{eigenvalues, matrix_exponential, AffineGaussian};
 use crate::one_state::{self, phi};
@@ -400,7 +401,10 @@ where
     };
     let mut start = model.initial_values();
     start.extend(std::iter::repeat_n(0.0, n * n));
-    let end = ode::integrate(derivative, &start, 0.0, t, 1e-11, 1e-300).ok()?;
+    // Split at the knots and kinks of the coefficients, so that every step of the
+    // integrator sees a smooth right-hand side.
+    let pieces = TimeBreaks::of_model(model, &model.param_values()).pieces(0.0, t);
+    let end = ode::integrate_pieces(derivative, &start, &pieces, 1e-11, 1e-300).ok()?;
     Some(unpack(&end))
 }
 

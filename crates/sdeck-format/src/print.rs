@@ -31,7 +31,7 @@ pub(crate) fn statement(source: &str, kind: &StatementKind) -> Printed {
             first.name, second.name, value.text
         )),
         StatementKind::Let { name, value } => {
-            Printed::Flat(format!("let {} = {}", name.name, expr(value)))
+            Printed::Flat(format!("let {} = {}", name.name, expr(source, value)))
         }
         StatementKind::Equation(eq) => {
             let mut text = format!("d{} =", eq.state.name);
@@ -41,7 +41,7 @@ pub(crate) fn statement(source: &str, kind: &StatementKind) -> Printed {
                     Differential::Shock { shock, .. } => format!("d{}", shock.name),
                 };
                 let body = match &term.coefficient {
-                    Some(c) => format!("{} {differential}", expr(c)),
+                    Some(c) => format!("{} {differential}", expr(source, c)),
                     None => differential,
                 };
                 match (i, term.sign) {
@@ -170,9 +170,14 @@ fn bound(b: &Bound) -> String {
 
 /// An expression with canonical spacing. Parentheses are kept as the tree records
 /// them, so printing never changes how the expression groups.
-pub(crate) fn expr(e: &Expr) -> String {
+pub(crate) fn expr(source: &str, e: &Expr) -> String {
+    let expr = |e: &Expr| expr(source, e);
     match e {
         Expr::Number(n) => n.text.clone(),
+        Expr::Quantity(q) => match &q.unit {
+            Some(u) => format!("{} [{}]", q.number.text, unit(source, q.number.span.end, u).0),
+            None => q.number.text.clone(),
+        },
         Expr::Name(i) => i.name.clone(),
         Expr::Neg { operand, .. } => format!("-{}", expr(operand)),
         Expr::Binary { op, lhs, rhs, .. } => match op {

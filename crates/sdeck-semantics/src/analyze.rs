@@ -615,6 +615,13 @@ impl<'a> Analyzer<'a> {
         self.expanded += 1;
         match e {
             ast::Expr::Number(n) => (Expr::Const(n.value), Some(Dimension::dimensionless())),
+            ast::Expr::Quantity(q) => match &q.unit {
+                None => (Expr::Const(q.number.value), Some(Dimension::dimensionless())),
+                Some(unit) => match self.eval_unit(unit) {
+                    Some(v) => (Expr::Const(q.number.value * v.scale), Some(v.dimension)),
+                    None => (Expr::Invalid, None),
+                },
+            },
             ast::Expr::Paren { inner, .. } => self.resolve(inner),
             ast::Expr::Name(ident) => self.resolve_name(ident),
             ast::Expr::Neg { operand, .. } => {
@@ -630,8 +637,11 @@ impl<'a> Analyzer<'a> {
                 let dimension = match (op, ld, rd) {
                     (_, None, _) | (_, _, None) => None,
                     (ast::BinaryOp::Add | ast::BinaryOp::Sub, Some(a), Some(b)) => {
-                        if a == b || is_zero_literal(lhs) || is_zero_literal(rhs) {
-                            Some(if is_zero_literal(lhs) { b } else { a })
+                        if a == b {
+                            Some(a)
+                        } else if let Some(d) = self.bare_zero(lhs, &b).or_else(|| self.bare_zero(rhs, &a)) {
+                            self.diagnostics.push(d);
+                            None
                         } else {
                             let verb = if *op == ast::BinaryOp::Add {
                                 "add"
@@ -748,32 +758,36 @@ impl<'a> Analyzer<'a> {
                     function.span.clone(),
                     format!("unknown function `{}`", function.name),
                 )
-                .with_help("the functions are exp, log, sqrt, abs, min, max, sin and cos"),
+                .with_help("the functions are exp, log, sqrt, abs, min, max, sin, cos, step and ramp"),
             );
             return (Expr::Invalid, None);
         };
-        if args.len() != f.arity() {
-            let plural = if f.arity() == 1 {
-                "argument"
-            } else {
-                "arguments"
+        if !f.accepts(args.len()) {
+            let (expected, help) = match f.arity() {
+                Some(1) => ("1 argument".to_string(), format!("write `{}(x)`", f.name())),
+                Some(n) => (format!("{n} arguments"), format!("write `{}(a, b)`", f.name())),
+                None if f == Function::Step => (
+                    "a time, a first value and one or more knot-value pairs".to_string(),
+                    "write `step(t, v0, t1, v1, ...)`: v0 before the knot t1, v1 from it on"
+                        .to_string(),
+                ),
+                None => (
+                    "a time and two or more knot-value pairs".to_string(),
+                    "write `ramp(t, t0, v0, t1, v1, ...)`: linear between the knots, flat outside"
+                        .to_string(),
+                ),
             };
             self.diagnostics.push(
                 Diagnostic::new(
                     &rules::SYNTAX,
                     span.clone(),
                     format!(
-                        "`{}` takes {} {plural}, found {}",
+                        "`{}` takes {expected}, found {} arguments",
                         f.name(),
-                        f.arity(),
                         args.len()
                     ),
                 )
-                .with_help(if f.arity() == 1 {
-                    format!("write `{}(x)`", f.name())
-                } else {
-                    format!("write `{}(a, b)`", f.name())
-                }),
+                .with_help(help),
             );
             return (Expr::Invalid, None);
         }
@@ -796,10 +810,16 @@ impl<'a> Analyzer<'a> {
             },
             Function::Sqrt => dims[0].as_ref().map(|d| d.sqrt()),
             Function::Abs => dims[0].clone(),
+            Function::Step | Function::Ramp => self.schedule(f, args, &exprs, &dims),
             Function::Min | Function::Max => match (&dims[0], &dims[1]) {
-                (Some(a), Some(b))
-                    if a != b && !is_zero_literal(&args[0]) && !is_zero_literal(&args[1]) =>
-                {
+                (Some(a), Some(b)) if a != b => {
+                    if let Some(d) = self
+                        .bare_zero(&args[0], b)
+                        .or_else(|| self.bare_zero(&args[1], a))
+                    {
+                        self.diagnostics.push(d);
+                        return (Expr::Call(f, exprs), None);
+                    }
                     self.diagnostics.push(
                         dimension_error(
                             span.clone(),
@@ -814,15 +834,183 @@ impl<'a> Analyzer<'a> {
                     );
                     None
                 }
-                (Some(a), Some(b)) => Some(if is_zero_literal(&args[0]) {
-                    b.clone()
-                } else {
-                    a.clone()
-                }),
+                (Some(a), Some(_)) => Some(a.clone()),
                 _ => None,
             },
         };
         (Expr::Call(f, exprs), dimension)
+    }
+
+    /// A bare `0` where a quantity in `other` is needed: the `dimension-mismatch` that
+    /// says so, with a fix that writes the unit. `None` when `e` is not a bare zero.
+    fn bare_zero(&self, e: &ast::Expr, other: &Dimension) -> Option<Diagnostic> {
+        if !is_zero_literal(e) || other.is_dimensionless() {
+            return None;
+        }
+        let unit = other.display_in(self.clock_unit());
+        let span = e.span();
+        Some(
+            dimension_error(
+                span.clone(),
+                format!(
+                    "this `0` is a plain number, but it stands beside {}: a zero has the dimension it is written with",
+                    other.describe()
+                ),
+            )
+            .with_label(format!("write `0 [{unit}]`"))
+            .with_help(format!("write the unit: `0 [{unit}]`"))
+            .with_fix(
+                format!("Write 0 [{unit}]"),
+                vec![TextEdit {
+                    span,
+                    new_text: format!("0 [{unit}]"),
+                }],
+            ),
+        )
+    }
+
+    /// Checks the arguments of `step` and `ramp`: the first is a time, the knots are
+    /// constant times in strictly increasing order, the values share one dimension.
+    /// Returns the dimension of the values.
+    fn schedule(
+        &mut self,
+        f: Function,
+        args: &[ast::Expr],
+        exprs: &[Expr],
+        dims: &[Option<Dimension>],
+    ) -> Option<Dimension> {
+        let name = f.name();
+        let mut sound = true;
+        if let Some(Some(d)) = dims.first() {
+            if *d != Dimension::time() {
+                self.diagnostics.push(
+                    dimension_error(
+                        args[0].span(),
+                        format!(
+                            "the first argument of `{name}` is the time it follows, but this one is {}",
+                            d.describe()
+                        ),
+                    )
+                    .with_help(format!("write `{name}(t, ...)`")),
+                );
+                sound = false;
+            }
+        }
+        let params = self.model.param_values();
+        let clock = self.clock_unit().to_string();
+        let mut previous: Option<f64> = None;
+        for (count, k) in f.knot_positions(args.len()).enumerate() {
+            let (Some(arg), Some(expr)) = (args.get(k), exprs.get(k)) else {
+                continue;
+            };
+            match dims.get(k) {
+                Some(Some(d)) if *d != Dimension::time() => {
+                    let mut diagnostic = dimension_error(
+                        arg.span(),
+                        format!(
+                            "a knot of `{name}` is a time, but this one is {}",
+                            d.describe()
+                        ),
+                    )
+                    .with_help(format!("write the knot with a time unit, e.g. `6 [month]` or `1 [{clock}]`"));
+                    if let ast::Expr::Number(n) = arg {
+                        let new_text = format!("{} [{clock}]", n.text);
+                        diagnostic = diagnostic.with_fix(
+                            format!("Write {new_text}"),
+                            vec![TextEdit {
+                                span: n.span.clone(),
+                                new_text,
+                            }],
+                        );
+                    }
+                    self.diagnostics.push(diagnostic);
+                    sound = false;
+                    continue;
+                }
+                Some(Some(_)) => {}
+                _ => {
+                    sound = false;
+                    continue;
+                }
+            }
+            if contains_state_or_time(expr) {
+                self.diagnostics.push(
+                    Diagnostic::new(
+                        &rules::BOUND_VIOLATED,
+                        arg.span(),
+                        format!("knot {} of `{name}` moves with time or a factor; a knot is a fixed time", count + 1),
+                    )
+                    .with_help("write a time such as `6 [month]`, or a constant expression of parameters"),
+                );
+                sound = false;
+                continue;
+            }
+            let value = expr.eval(&params, &[], 0.0);
+            if let Some(before) = previous {
+                if value.is_finite() && before.is_finite() && value <= before {
+                    self.diagnostics.push(
+                        Diagnostic::new(
+                            &rules::BOUND_VIOLATED,
+                            arg.span(),
+                            format!(
+                                "knot {} of `{name}` is at {} {clock}, not after the knot before it ({} {clock})",
+                                count + 1,
+                                fmt_num(value),
+                                fmt_num(before)
+                            ),
+                        )
+                        .with_label("not after the previous knot")
+                        .with_help("the knots of a schedule must be strictly increasing times"),
+                    );
+                    sound = false;
+                }
+            }
+            previous = Some(value);
+        }
+        let value_positions: Vec<usize> = {
+            let knots: Vec<usize> = f.knot_positions(args.len()).collect();
+            (1..args.len()).filter(|k| !knots.contains(k)).collect()
+        };
+        // The values' dimension is that of the first one written with its unit: a bare
+        // `0` among them is then the one reported.
+        let dimension: Option<Dimension> = value_positions
+            .iter()
+            .find(|k| args.get(**k).is_some_and(|a| !is_zero_literal(a)))
+            .or(value_positions.first())
+            .and_then(|k| dims.get(*k).cloned().flatten());
+        for k in value_positions {
+            let (Some(arg), Some(found)) = (args.get(k), dims.get(k)) else {
+                continue;
+            };
+            let Some(found) = found else {
+                sound = false;
+                continue;
+            };
+            match &dimension {
+                None => {}
+                Some(first) if first != found => {
+                    let d = self.bare_zero(arg, first).unwrap_or_else(|| {
+                        dimension_error(
+                            arg.span(),
+                            format!(
+                                "the values of `{name}` share one dimension: the first is {}, this one {}",
+                                first.describe(),
+                                found.describe()
+                            ),
+                        )
+                        .with_help("write every value in the same unit")
+                    });
+                    self.diagnostics.push(d);
+                    sound = false;
+                }
+                Some(_) => {}
+            }
+        }
+        if sound {
+            dimension
+        } else {
+            None
+        }
     }
 
     fn resolve_name(&mut self, ident: &ast::Ident) -> (Expr, Option<Dimension>) {
@@ -1306,7 +1494,7 @@ impl<'a> Analyzer<'a> {
         state_dim: &Dimension,
         is_drift: bool,
     ) {
-        if found == needed || term.coefficient.as_ref().is_some_and(is_zero_literal) {
+        if found == needed {
             return;
         }
         let clock = self.clock_unit().to_string();

@@ -21,10 +21,14 @@ pub enum Function {
     Max,
     Sin,
     Cos,
+    /// `step(t, v0, t1, v1, ..., tn, vn)`: v0 before t1, vk from tk until t(k+1).
+    Step,
+    /// `ramp(t, t0, v0, ..., tn, vn)`: linear between the knots, flat outside them.
+    Ramp,
 }
 
 impl Function {
-    pub const ALL: [Function; 8] = [
+    pub const ALL: [Function; 10] = [
         Function::Exp,
         Function::Log,
         Function::Sqrt,
@@ -33,6 +37,8 @@ impl Function {
         Function::Max,
         Function::Sin,
         Function::Cos,
+        Function::Step,
+        Function::Ramp,
     ];
 
     pub fn name(self) -> &'static str {
@@ -45,6 +51,8 @@ impl Function {
             Function::Max => "max",
             Function::Sin => "sin",
             Function::Cos => "cos",
+            Function::Step => "step",
+            Function::Ramp => "ramp",
         }
     }
 
@@ -52,13 +60,76 @@ impl Function {
         Function::ALL.into_iter().find(|f| f.name() == name)
     }
 
-    /// How many arguments the function takes.
-    pub fn arity(self) -> usize {
+    /// How many arguments the function takes; `None` for the schedules, which take a
+    /// time and then knots and values (see [`Function::accepts`]).
+    pub fn arity(self) -> Option<usize> {
         match self {
-            Function::Min | Function::Max => 2,
-            _ => 1,
+            Function::Min | Function::Max => Some(2),
+            Function::Step | Function::Ramp => None,
+            _ => Some(1),
         }
     }
+
+    /// Whether the function takes `count` arguments: `step` takes a time, a value, and
+    /// one or more knot-value pairs (4, 6, 8, ...); `ramp` a time and two or more
+    /// knot-value pairs (5, 7, 9, ...).
+    pub fn accepts(self, count: usize) -> bool {
+        match self {
+            Function::Step => count >= 4 && count % 2 == 0,
+            Function::Ramp => count >= 5 && count % 2 == 1,
+            _ => self.arity() == Some(count),
+        }
+    }
+
+    /// Whether the function is a schedule of time (`step`, `ramp`).
+    pub fn is_schedule(self) -> bool {
+        matches!(self, Function::Step | Function::Ramp)
+    }
+
+    /// The argument positions of a schedule's knots (times), for `count` arguments.
+    pub fn knot_positions(self, count: usize) -> impl Iterator<Item = usize> {
+        let first = match self {
+            Function::Step => 2,
+            Function::Ramp => 1,
+            _ => count,
+        };
+        (first..count).step_by(2)
+    }
+}
+
+/// `step(x, v0, k1, v1, ..., kn, vn)` with `rest` = `[k1, v1, ..., kn, vn]`: the value
+/// of the last knot at or before `x` (right-continuous), `v0` before the first.
+pub fn step_value(x: f64, v0: f64, rest: &[f64]) -> f64 {
+    let mut value = v0;
+    for pair in rest.chunks_exact(2) {
+        if x >= pair[0] {
+            value = pair[1];
+        } else {
+            break;
+        }
+    }
+    value
+}
+
+/// `ramp(x, k0, v0, ..., kn, vn)` with `pairs` = `[k0, v0, ..., kn, vn]`: linear
+/// interpolation between the knots, the first value before the first knot and the last
+/// after the last.
+pub fn ramp_value(x: f64, pairs: &[f64]) -> f64 {
+    let mut previous: Option<(f64, f64)> = None;
+    for pair in pairs.chunks_exact(2) {
+        let (knot, value) = (pair[0], pair[1]);
+        if x < knot {
+            return match previous {
+                None => value,
+                Some((k0, v0)) => {
+                    let weight = (x - k0) / (knot - k0);
+                    v0 + weight * (value - v0)
+                }
+            };
+        }
+        previous = Some((knot, value));
+    }
+    previous.map_or(f64::NAN, |(_, value)| value)
 }
 
 /// A resolved expression. Lets are inlined; `pi` is a constant.
@@ -378,6 +449,14 @@ impl Expr {
             Expr::Pow(a, b) => ev(a).powf(ev(b)),
             Expr::Call(f, args) => {
                 let x = args.first().map(ev).unwrap_or(f64::NAN);
+                if f.is_schedule() {
+                    let rest: Vec<f64> = args.iter().skip(1).map(ev).collect();
+                    return match (f, rest.split_first()) {
+                        (Function::Step, Some((v0, pairs))) => step_value(x, *v0, pairs),
+                        (Function::Ramp, _) => ramp_value(x, &rest),
+                        _ => f64::NAN,
+                    };
+                }
                 match f {
                     Function::Exp => x.exp(),
                     Function::Log => x.ln(),
@@ -393,6 +472,7 @@ impl Expr {
                             x.max(y)
                         }
                     }
+                    Function::Step | Function::Ramp => f64::NAN,
                 }
             }
             Expr::Invalid => f64::NAN,

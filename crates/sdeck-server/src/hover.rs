@@ -282,6 +282,22 @@ fn unit_name_at(a: &Analyzed, offset: usize) -> Option<(String, sdeck_diagnostic
                 }
             }
             StatementKind::Horizon { value } => visit_quantity(value, &mut visit),
+            StatementKind::Let { value, .. } => walk_expr(value, &mut |e| {
+                if let Expr::Quantity(q) = e {
+                    visit_quantity(q, &mut visit);
+                }
+            }),
+            StatementKind::Equation(eq) => {
+                for term in &eq.terms {
+                    if let Some(c) = &term.coefficient {
+                        walk_expr(c, &mut |e| {
+                            if let Expr::Quantity(q) = e {
+                                visit_quantity(q, &mut visit);
+                            }
+                        });
+                    }
+                }
+            }
             StatementKind::Clock { unit }
                 if unit.span.start <= offset && offset <= unit.span.end =>
             {
@@ -331,7 +347,7 @@ pub fn walk_unit(u: &UnitExpr, f: &mut impl FnMut(&sdeck_syntax::ast::Ident)) {
 pub fn walk_expr(e: &Expr, f: &mut impl FnMut(&Expr)) {
     f(e);
     match e {
-        Expr::Number(_) | Expr::Name(_) => {}
+        Expr::Number(_) | Expr::Quantity(_) | Expr::Name(_) => {}
         Expr::Neg { operand, .. } => walk_expr(operand, f),
         Expr::Binary { lhs, rhs, .. } => {
             walk_expr(lhs, f);

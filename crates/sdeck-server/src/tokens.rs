@@ -135,6 +135,12 @@ pub fn semantic_tokens(a: &Analyzed, encoding: PositionEncoding) -> Vec<Semantic
 fn expression(e: &Expr, spans: &mut Vec<(Span, u32, u32)>) {
     walk_expr(e, &mut |x| match x {
         Expr::Number(n) => spans.push((n.span.clone(), NUMBER, 0)),
+        Expr::Quantity(q) => {
+            spans.push((q.number.span.clone(), NUMBER, 0));
+            if let Some(u) = &q.unit {
+                walk_unit(u, &mut |ident| spans.push((ident.span.clone(), TYPE, 0)));
+            }
+        }
         Expr::Call { function, .. } => spans.push((function.span.clone(), FUNCTION, 0)),
         _ => {}
     });

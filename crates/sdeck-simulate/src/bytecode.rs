@@ -46,6 +46,8 @@ pub enum Instruction {
     ConstMinus(f64),
     /// c / x.
     ConstDivide(f64),
+    /// 1 where x ≥ c, else 0: the jump of a `step` at the knot c.
+    AtOrAfter(f64),
 }
 
 /// Why an expression could not be compiled.
@@ -77,6 +79,7 @@ enum Node {
     Unary(UnaryOp, Box<Node>),
     Binary(BinaryOp, Box<Node>, Box<Node>),
     PowerInteger(Box<Node>, i32),
+    AtOrAfter(Box<Node>, f64),
 }
 
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -183,8 +186,18 @@ fn fold(expr: &Expr, params: &[f64], state_count: usize) -> Result<Node, Compile
                 exponent => binary(BinaryOp::Power, base, exponent),
             }
         }
+        Expr::Call(function, args) if function.is_schedule() => {
+            if !function.accepts(args.len()) {
+                return Err(CompileError::Arity(function.name()));
+            }
+            let folded = args
+                .iter()
+                .map(|arg| fold(arg, params, state_count))
+                .collect::<Result<Vec<Node>, CompileError>>()?;
+            schedule(*function, folded)?
+        }
         Expr::Call(function, args) => {
-            if args.len() != function.arity() {
+            if !function.accepts(args.len()) {
                 return Err(CompileError::Arity(function.name()));
             }
             let mut folded = Vec::with_capacity(args.len());
@@ -209,6 +222,56 @@ fn fold(expr: &Expr, params: &[f64], state_count: usize) -> Result<Node, Compile
         }
     };
     Ok(node)
+}
+
+/// `step` as v0 + Σ (vₖ − vₖ₋₁)·[x ≥ tₖ], `ramp` as v0 + Σ slopeₖ·(clamp(x, tₖ₋₁, tₖ) − tₖ₋₁):
+/// the knots are numbers once parameters are folded in.
+fn schedule(function: Function, folded: Vec<Node>) -> Result<Node, CompileError> {
+    let mut items = folded.into_iter();
+    let x = items.next().ok_or(CompileError::Arity(function.name()))?;
+    let rest: Vec<Node> = items.collect();
+    let knot = |node: &Node| match node {
+        Node::Const(k) => Ok(*k),
+        _ => Err(CompileError::Invalid),
+    };
+    match function {
+        Function::Step => {
+            let (first, pairs) = rest
+                .split_first()
+                .ok_or(CompileError::Arity(function.name()))?;
+            let mut acc = first.clone();
+            let mut previous = first.clone();
+            for pair in pairs.chunks_exact(2) {
+                let at = knot(&pair[0])?;
+                let jump = binary(BinaryOp::Subtract, pair[1].clone(), previous);
+                let indicator = match &x {
+                    Node::Const(value) => Node::Const(if *value >= at { 1.0 } else { 0.0 }),
+                    _ => Node::AtOrAfter(Box::new(x.clone()), at),
+                };
+                acc = binary(BinaryOp::Add, acc, binary(BinaryOp::Multiply, jump, indicator));
+                previous = pair[1].clone();
+            }
+            Ok(acc)
+        }
+        _ => {
+            let pairs: Vec<&[Node]> = rest.chunks_exact(2).collect();
+            let first = pairs.first().ok_or(CompileError::Arity(function.name()))?;
+            let mut acc = first[1].clone();
+            for window in pairs.windows(2) {
+                let (low, high) = (knot(&window[0][0])?, knot(&window[1][0])?);
+                let rise = binary(BinaryOp::Subtract, window[1][1].clone(), window[0][1].clone());
+                let slope = binary(BinaryOp::Divide, rise, Node::Const(high - low));
+                let clamped = binary(
+                    BinaryOp::Max,
+                    binary(BinaryOp::Min, x.clone(), Node::Const(high)),
+                    Node::Const(low),
+                );
+                let run = binary(BinaryOp::Subtract, clamped, Node::Const(low));
+                acc = binary(BinaryOp::Add, acc, binary(BinaryOp::Multiply, slope, run));
+            }
+            Ok(acc)
+        }
+    }
 }
 
 fn unary(op: UnaryOp, a: Node) -> Node {
@@ -268,6 +331,10 @@ impl Emitter<'_> {
             Node::PowerInteger(a, n) => {
                 self.emit(a);
                 self.push(Instruction::PowerInteger(*n), 0);
+            }
+            Node::AtOrAfter(a, c) => {
+                self.emit(a);
+                self.push(Instruction::AtOrAfter(*c), 0);
             }
             Node::Binary(op, a, b) => {
                 // Peephole: an operand that is a number rides on the instruction.
@@ -450,6 +517,9 @@ impl Program {
                 Instruction::MultiplyConst(c) => map_top(stack, top, |x| x * c),
                 Instruction::ConstMinus(c) => map_top(stack, top, |x| c - x),
                 Instruction::ConstDivide(c) => map_top(stack, top, |x| c / x),
+                Instruction::AtOrAfter(c) => {
+                    map_top(stack, top, |x| if x >= c { 1.0 } else { 0.0 })
+                }
                 Instruction::Add => top = combine_top(stack, top, |x, y| x + y),
                 Instruction::Subtract => top = combine_top(stack, top, |x, y| x - y),
                 Instruction::Multiply => top = combine_top(stack, top, |x, y| x * y),
@@ -667,11 +737,70 @@ mod tests {
 }
 
 #[cfg(test)]
+mod schedules {
+    use super::*;
+
+    /// `step(t, 2, 0.5, 3, 1.5, -1)` and `ramp(t, 0.5, 2, 0.75, 3·x, 1.5, -1)` at times
+    /// around their knots: the program agrees with the tree walk, on the knot too
+    /// (right-continuous step).
+    #[test]
+    fn step_and_ramp_agree_with_the_tree_walk() {
+        let c = Expr::Const;
+        let step = Expr::Call(
+            Function::Step,
+            vec![Expr::Time, c(2.0), c(0.5), c(3.0), Expr::Param(0), c(-1.0)],
+        );
+        let ramp = Expr::Call(
+            Function::Ramp,
+            vec![
+                Expr::Time,
+                c(0.5),
+                c(2.0),
+                c(0.75),
+                Expr::Mul(Box::new(c(3.0)), Box::new(Expr::State(0))),
+                Expr::Param(0),
+                c(-1.0),
+            ],
+        );
+        let params = [1.5];
+        for expr in [step, ramp] {
+            let program = Program::compile(&expr, &params, 1, &[false]).unwrap();
+            for t in [0.0, 0.25, 0.5, 0.6, 0.75, 1.0, 1.4999, 1.5, 2.0] {
+                let expected = expr.eval(&params, &[0.7], t);
+                let got = program.evaluate_one(&[0.7], t);
+                assert!(
+                    (got - expected).abs() <= 1e-14,
+                    "{expr:?} at {t}: {got} vs {expected}"
+                );
+            }
+        }
+        // Worked by hand: the step is 3 on [0.5, 1.5) and −1 from 1.5; the ramp rises
+        // from 2 at 0.5 to 2.1 at 0.75, then falls to −1 at 1.5.
+        let at = |expr: &Expr, t: f64| expr.eval(&params, &[0.7], t);
+        let step = Expr::Call(
+            Function::Step,
+            vec![Expr::Time, c(2.0), c(0.5), c(3.0), c(1.5), c(-1.0)],
+        );
+        assert_eq!((at(&step, 0.49), at(&step, 0.5), at(&step, 1.5)), (2.0, 3.0, -1.0));
+    }
+}
+
+#[cfg(test)]
 mod properties {
     use super::*;
     use proptest::prelude::*;
 
-    const FUNCTIONS: [Function; 8] = Function::ALL;
+    /// The functions of fixed arity (the schedules have their own test).
+    const FUNCTIONS: [Function; 8] = [
+        Function::Exp,
+        Function::Log,
+        Function::Sqrt,
+        Function::Abs,
+        Function::Min,
+        Function::Max,
+        Function::Sin,
+        Function::Cos,
+    ];
 
     /// Random expressions over two parameters, two states and `t`.
     fn expression() -> impl Strategy<Value = Expr> {
@@ -698,7 +827,7 @@ mod properties {
                     .prop_map(|(a, b)| Expr::Pow(Box::new(a), Box::new(b))),
                 (0usize..8, inner.clone(), inner).prop_map(|(f, a, b)| {
                     let function = FUNCTIONS[f];
-                    let args = if function.arity() == 2 {
+                    let args = if function.arity() == Some(2) {
                         vec![a, b]
                     } else {
                         vec![a]

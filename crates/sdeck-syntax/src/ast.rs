@@ -103,6 +103,8 @@ impl BinaryOp {
 #[derive(Clone, Debug, PartialEq)]
 pub enum Expr {
     Number(Number),
+    /// A number with a bracketed unit inside an expression: `6 [month]`, `0.4% [1/year]`.
+    Quantity(Quantity),
     /// Any name, including the reserved `t` and `pi`.
     Name(Ident),
     /// Unary minus.
@@ -133,6 +135,7 @@ impl Expr {
     pub fn span(&self) -> Span {
         match self {
             Expr::Number(n) => n.span.clone(),
+            Expr::Quantity(q) => q.span.clone(),
             Expr::Name(i) => i.span.clone(),
             Expr::Neg { span, .. }
             | Expr::Binary { span, .. }

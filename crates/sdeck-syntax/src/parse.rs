@@ -307,7 +307,7 @@ fn matching(open: char) -> char {
 fn describe_rule(rule: Rule) -> Option<&'static str> {
     Some(match rule {
         Rule::name | Rule::name_or_function | Rule::juxtaposed | Rule::declaration => "a name",
-        Rule::number | Rule::signed_number | Rule::quantity => "a number",
+        Rule::number | Rule::signed_number | Rule::quantity | Rule::quantity_atom => "a number",
         Rule::minus => "`-`",
         Rule::add_op => "`+` or `-`",
         Rule::mul_op | Rule::unit_op => "`*` or `/`",
@@ -1017,6 +1017,15 @@ impl Builder {
                 }
             }
             Rule::number => Ok(Expr::Number(self.plain_number(pair)?)),
+            Rule::quantity_atom => {
+                let mut inner = pair.into_inner();
+                let (Some(number_pair), Some(unit_pair)) = (inner.next(), inner.next()) else {
+                    return Err(syntax_error(span, "a number with a unit is expected"));
+                };
+                let number = self.plain_number(number_pair)?;
+                let unit = Some(self.bracket_unit(unit_pair)?);
+                Ok(Expr::Quantity(Quantity { number, unit, span }))
+            }
             Rule::name | Rule::name_or_function => Ok(Expr::Name(self.ident(&pair))),
             Rule::call => {
                 let mut inner = pair.into_inner();
