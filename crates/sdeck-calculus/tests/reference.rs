@@ -39,6 +39,37 @@ fn check(
     }
 }
 
+/// Every covariance entry on the scale sd_i · sd_j of the reference.
+fn check_covariance(
+    failures: &mut Vec<String>,
+    what: &str,
+    ours: &[Vec<Option<f64>>],
+    reference: &Value,
+    tolerance: f64,
+) {
+    let rows = reference.as_array().expect("covariance");
+    let sd = |i: usize| {
+        rows.get(i)
+            .and_then(|r| r.get(i))
+            .and_then(Value::as_f64)
+            .unwrap_or(0.0)
+            .max(0.0)
+            .sqrt()
+    };
+    for (i, row) in rows.iter().enumerate() {
+        for (j, value) in row.as_array().expect("row").iter().enumerate() {
+            check(
+                failures,
+                format!("{what} covariance[{i}][{j}]"),
+                ours.get(i).and_then(|r| r.get(j)).copied().flatten(),
+                number(value),
+                sd(i) * sd(j),
+                tolerance,
+            );
+        }
+    }
+}
+
 #[test]
 fn figures_agree_with_the_independent_reference() {
     let root = workspace_root();
@@ -138,19 +169,39 @@ fn figures_agree_with_the_independent_reference() {
                 tolerance,
             );
         }
-        let covariance = entry["covariance"].as_array().expect("covariance");
-        for (i, row) in covariance.iter().enumerate() {
-            for (j, value) in row.as_array().expect("row").iter().enumerate() {
-                let scale = sd[i] * sd[j];
+        check_covariance(
+            &mut failures,
+            &format!("{file} at {at}"),
+            &moments.covariance,
+            &entry["covariance"],
+            tolerance,
+        );
+        // Models with schedules are also pinned at further times (the half-day ramp
+        // of the Kestrel model before, inside and after its knots).
+        for other in entry["also_at"].as_array().into_iter().flatten() {
+            let at = other["at"].as_f64().expect("at");
+            let moments = moments_at(model, &derivation, at);
+            let means = other["mean"].as_array().expect("mean");
+            let covariance = other["covariance"].as_array().expect("covariance");
+            for (i, mean) in means.iter().enumerate() {
+                let sd = covariance[i][i].as_f64().unwrap_or(0.0).max(0.0).sqrt();
+                let reference = number(mean);
                 check(
                     &mut failures,
-                    format!("{file} covariance[{i}][{j}]"),
-                    moments.covariance[i][j],
-                    number(value),
-                    scale,
+                    format!("{file} mean[{i}] at {at}"),
+                    moments.mean[i],
+                    reference,
+                    reference.unwrap_or(0.0).abs().max(sd),
                     tolerance,
                 );
             }
+            check_covariance(
+                &mut failures,
+                &format!("{file} at {at}"),
+                &moments.covariance,
+                &other["covariance"],
+                tolerance,
+            );
         }
     }
     assert!(

@@ -72,6 +72,15 @@ fn text_with_syntax_errors_is_left_alone() {
 }
 
 #[test]
+fn quantities_and_schedules_print_with_canonical_spacing() {
+    let source = "let p = step( t,2%,6[ month ],3% )# policy\n\
+let q = ramp(t , 1[quarter],0[1/year],1[year]+12 [hour], 0.4%[ 1 / year ])\n";
+    let expected = "let p = step(t, 2%, 6 [month], 3%)  # policy\n\
+let q = ramp(t, 1 [quarter], 0 [1/year], 1 [year] + 12 [hour], 0.4% [1/year])\n";
+    assert_eq!(formatted(source), expected);
+}
+
+#[test]
 fn parentheses_bounds_and_units_keep_their_meaning() {
     let source = "unit EUR\nparam a = 1 [EUR/(year*day)] in (-inf, 5]\nparam b = 2 in [0, 1)\n\
 let c = (a - (b - 1))^2 / -b\n";
@@ -221,6 +230,18 @@ mod random_models {
                 "let", "target", "=", "(", "level", "-", "-", "1", ")", "*", "exp", "(", "-", "κ",
                 "^", "2", "*", "t", ")", "/", "2",
             ],
+            // Schedules of time and quantities inside expressions.
+            vec![
+                "let", "path", "=", "step", "(", "t", ",", "2", "[", "EUR", "]", ",", "6", "[",
+                "month", "]", ",", "level", ",", "1", "[", "year", "]", "+", "12", "[", "hour",
+                "]", ",", "3", "[", "EUR", "]", ")",
+            ],
+            vec![
+                "let", "glide", "=", "ramp", "(", "t", ",", "1", "[", "quarter", "]", ",", "0",
+                "[", "EUR", "]", ",", "2", "[", "quarter", "]", ",", "level", ")", "+", "max", "(",
+                "t", "-", "1", "[", "year", "]", ",", "0", "[", "year", "]", ")", "*", "level",
+                "/", "1", "[", "year", "]",
+            ],
             vec!["factor", "x", "=", "1", "[", "EUR", "]"],
             vec![
                 "dx", "=", "κ", "*", "(", "level", "-", "x", ")", "*", "dt", "+", "vol", "dW", "-",
@@ -267,8 +288,8 @@ mod random_models {
         #![proptest_config(ProptestConfig::with_cases(64))]
         #[test]
         fn any_spacing_formats_to_the_same_meaning_and_comments(
-            gaps in proptest::collection::vec(0usize..4, 200),
-            comments in proptest::collection::vec(any::<bool>(), 13),
+            gaps in proptest::collection::vec(0usize..4, 300),
+            comments in proptest::collection::vec(any::<bool>(), 15),
         ) {
             let source = render(&gaps, &comments);
             let Outcome::Formatted(once) = format(&source) else {

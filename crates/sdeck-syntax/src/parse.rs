@@ -32,8 +32,8 @@ pub const MAX_NESTING: usize = 64;
 pub const MAX_NODES: usize = 2000;
 
 /// Names that can never be declared.
-pub const RESERVED_NAMES: [&str; 11] = [
-    "t", "pi", "dt", "exp", "log", "sqrt", "abs", "min", "max", "sin", "cos",
+pub const RESERVED_NAMES: [&str; 13] = [
+    "t", "pi", "dt", "exp", "log", "sqrt", "abs", "min", "max", "sin", "cos", "step", "ramp",
 ];
 
 type Result<T> = std::result::Result<T, Diagnostic>;
@@ -496,7 +496,7 @@ impl Builder {
                 ident.span.clone(),
                 format!("`{}` is a reserved name and cannot be declared", ident.name),
             )
-            .with_help("`t`, `pi`, `dt` and the function names exp, log, sqrt, abs, min, max, sin, cos are reserved; choose another name"));
+            .with_help("`t`, `pi`, `dt` and the function names exp, log, sqrt, abs, min, max, sin, cos, step, ramp are reserved; choose another name"));
         }
         Ok(ident)
     }
