@@ -185,8 +185,7 @@ fn sign_changes(g: impl Fn(f64) -> f64, low: f64, high: f64) -> Vec<f64> {
         let (s0, v0) = previous;
         if value == 0.0 {
             out.push(s);
-        } else if v0 != 0.0 && v0.is_finite() && value.is_finite() && (v0 < 0.0) != (value < 0.0)
-        {
+        } else if v0 != 0.0 && v0.is_finite() && value.is_finite() && (v0 < 0.0) != (value < 0.0) {
             let (mut a, mut b) = (s0, s);
             for _ in 0..BISECTIONS {
                 let middle = 0.5 * (a + b);

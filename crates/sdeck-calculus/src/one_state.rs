@@ -257,9 +257,14 @@ fn time_dependent_mean_variance(
             *slot = v.alpha + v.beta * m + v.gamma * m * m + (2.0 * v.b + v.gamma) * var;
         }
     };
-    let end =
-        ode::integrate_pieces(derivative, &[x0, 0.0], &breaks.pieces(0.0, t), 1e-11, 1e-300)
-            .ok()?;
+    let end = ode::integrate_pieces(
+        derivative,
+        &[x0, 0.0],
+        &breaks.pieces(0.0, t),
+        1e-11,
+        1e-300,
+    )
+    .ok()?;
     let variance = end.get(1).copied()?;
     (mean.is_finite() && variance.is_finite()).then_some(MeanVariance {
         mean,

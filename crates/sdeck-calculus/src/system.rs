@@ -1,8 +1,8 @@
 //! Derivations and figures of whole models: decoupled states through `one_state`,
 //! coupled states and cross-covariances through the engines for several states.
 
-use crate::breaks::TimeBreaks;
 use crate::algebra::Poly;
+use crate::breaks::TimeBreaks;
 use crate::linear_system::{eigenvalues, matrix_exponential, AffineGaussian};
 use crate::one_state::{self, phi};
 use crate::polynomial::PolynomialSystem;

@@ -133,7 +133,11 @@ fn at_accepts_clock_units_and_time_units_alike() {
     assert_eq!(in_months["factors"], in_years["factors"]);
     // A quarter is a year/4 and an hour a day/24: common practice, no source.
     for (at, years) in [("2 quarter", 0.5), ("[quarter]", 0.25), ("876 hour", 0.1)] {
-        let at = if at.starts_with('[') { format!("1 {at}") } else { at.to_string() };
+        let at = if at.starts_with('[') {
+            format!("1 {at}")
+        } else {
+            at.to_string()
+        };
         let (code, json, stderr) = moments(&[
             "demo-models/ou_short_rate.sde",
             "--at",

@@ -175,7 +175,11 @@ pub(crate) fn expr(source: &str, e: &Expr) -> String {
     match e {
         Expr::Number(n) => n.text.clone(),
         Expr::Quantity(q) => match &q.unit {
-            Some(u) => format!("{} [{}]", q.number.text, unit(source, q.number.span.end, u).0),
+            Some(u) => format!(
+                "{} [{}]",
+                q.number.text,
+                unit(source, q.number.span.end, u).0
+            ),
             None => q.number.text.clone(),
         },
         Expr::Name(i) => i.name.clone(),

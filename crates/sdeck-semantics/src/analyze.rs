@@ -616,7 +616,10 @@ impl<'a> Analyzer<'a> {
         match e {
             ast::Expr::Number(n) => (Expr::Const(n.value), Some(Dimension::dimensionless())),
             ast::Expr::Quantity(q) => match &q.unit {
-                None => (Expr::Const(q.number.value), Some(Dimension::dimensionless())),
+                None => (
+                    Expr::Const(q.number.value),
+                    Some(Dimension::dimensionless()),
+                ),
                 Some(unit) => match self.eval_unit(unit) {
                     Some(v) => (Expr::Const(q.number.value * v.scale), Some(v.dimension)),
                     None => (Expr::Invalid, None),
@@ -639,7 +642,9 @@ impl<'a> Analyzer<'a> {
                     (ast::BinaryOp::Add | ast::BinaryOp::Sub, Some(a), Some(b)) => {
                         if a == b {
                             Some(a)
-                        } else if let Some(d) = self.bare_zero(lhs, &b).or_else(|| self.bare_zero(rhs, &a)) {
+                        } else if let Some(d) =
+                            self.bare_zero(lhs, &b).or_else(|| self.bare_zero(rhs, &a))
+                        {
                             self.diagnostics.push(d);
                             None
                         } else {
@@ -758,14 +763,19 @@ impl<'a> Analyzer<'a> {
                     function.span.clone(),
                     format!("unknown function `{}`", function.name),
                 )
-                .with_help("the functions are exp, log, sqrt, abs, min, max, sin, cos, step and ramp"),
+                .with_help(
+                    "the functions are exp, log, sqrt, abs, min, max, sin, cos, step and ramp",
+                ),
             );
             return (Expr::Invalid, None);
         };
         if !f.accepts(args.len()) {
             let (expected, help) = match f.arity() {
                 Some(1) => ("1 argument".to_string(), format!("write `{}(x)`", f.name())),
-                Some(n) => (format!("{n} arguments"), format!("write `{}(a, b)`", f.name())),
+                Some(n) => (
+                    format!("{n} arguments"),
+                    format!("write `{}(a, b)`", f.name()),
+                ),
                 None if f == Function::Step => (
                     "a time, a first value and one or more knot-value pairs".to_string(),
                     "write `step(t, v0, t1, v1, ...)`: v0 before the knot t1, v1 from it on"
@@ -912,7 +922,9 @@ impl<'a> Analyzer<'a> {
                             d.describe()
                         ),
                     )
-                    .with_help(format!("write the knot with a time unit, e.g. `6 [month]` or `1 [{clock}]`"));
+                    .with_help(format!(
+                        "write the knot with a time unit, e.g. `6 [month]` or `1 [{clock}]`"
+                    ));
                     if let ast::Expr::Number(n) = arg {
                         let new_text = format!("{} [{clock}]", n.text);
                         diagnostic = diagnostic.with_fix(

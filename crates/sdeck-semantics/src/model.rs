@@ -75,8 +75,8 @@ impl Function {
     /// knot-value pairs (5, 7, 9, ...).
     pub fn accepts(self, count: usize) -> bool {
         match self {
-            Function::Step => count >= 4 && count % 2 == 0,
-            Function::Ramp => count >= 5 && count % 2 == 1,
+            Function::Step => count >= 4 && count.is_multiple_of(2),
+            Function::Ramp => count >= 5 && !count.is_multiple_of(2),
             _ => self.arity() == Some(count),
         }
     }

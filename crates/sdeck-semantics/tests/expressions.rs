@@ -137,7 +137,11 @@ fn schedule_mistakes_are_reported_where_they_are() {
             "bound-violated",
         ),
         // Wrong counts of arguments.
-        ("let x = step(t, 1, 6 [month])\n", "step(t, 1, 6 [month])", "syntax"),
+        (
+            "let x = step(t, 1, 6 [month])\n",
+            "step(t, 1, 6 [month])",
+            "syntax",
+        ),
         (
             "let x = ramp(t, 1 [month], 1)\n",
             "ramp(t, 1 [month], 1)",

@@ -8,7 +8,6 @@ use sdeck_semantics::{Function, SymbolKind};
 use sdeck_syntax::ast::Figure;
 use tower_lsp::lsp_types::{CompletionItem, CompletionItemKind, Position};
 
-
 pub fn complete(
     a: &Analyzed,
     encoding: PositionEncoding,

@@ -248,7 +248,11 @@ fn schedule(function: Function, folded: Vec<Node>) -> Result<Node, CompileError>
                     Node::Const(value) => Node::Const(if *value >= at { 1.0 } else { 0.0 }),
                     _ => Node::AtOrAfter(Box::new(x.clone()), at),
                 };
-                acc = binary(BinaryOp::Add, acc, binary(BinaryOp::Multiply, jump, indicator));
+                acc = binary(
+                    BinaryOp::Add,
+                    acc,
+                    binary(BinaryOp::Multiply, jump, indicator),
+                );
                 previous = pair[1].clone();
             }
             Ok(acc)
@@ -259,7 +263,11 @@ fn schedule(function: Function, folded: Vec<Node>) -> Result<Node, CompileError>
             let mut acc = first[1].clone();
             for window in pairs.windows(2) {
                 let (low, high) = (knot(&window[0][0])?, knot(&window[1][0])?);
-                let rise = binary(BinaryOp::Subtract, window[1][1].clone(), window[0][1].clone());
+                let rise = binary(
+                    BinaryOp::Subtract,
+                    window[1][1].clone(),
+                    window[0][1].clone(),
+                );
                 let slope = binary(BinaryOp::Divide, rise, Node::Const(high - low));
                 let clamped = binary(
                     BinaryOp::Max,
@@ -781,7 +789,10 @@ mod schedules {
             Function::Step,
             vec![Expr::Time, c(2.0), c(0.5), c(3.0), c(1.5), c(-1.0)],
         );
-        assert_eq!((at(&step, 0.49), at(&step, 0.5), at(&step, 1.5)), (2.0, 3.0, -1.0));
+        assert_eq!(
+            (at(&step, 0.49), at(&step, 0.5), at(&step, 1.5)),
+            (2.0, 3.0, -1.0)
+        );
     }
 }
 

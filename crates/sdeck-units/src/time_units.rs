@@ -8,9 +8,7 @@
 use crate::rational::Rational;
 
 /// The names of the built-in time units, longest first in length of time.
-pub const TIME_UNITS: [&str; 7] = [
-    "year", "quarter", "month", "week", "day", "bday", "hour",
-];
+pub const TIME_UNITS: [&str; 7] = ["year", "quarter", "month", "week", "day", "bday", "hour"];
 
 /// The length of a built-in time unit in years, exactly: year 1, quarter 1/4, month 1/12,
 /// week 7/365, day 1/365, bday 1/252, hour 1/8760. `None` for any other name.
