@@ -26,6 +26,7 @@
 //!   imaginary parts, to 1e-11 relative.
 
 use crate::algebra::{to_poly, Atom, Monomial, Poly};
+use crate::breaks::TimeBreaks;
 use crate::linear_system::AffineGaussian;
 use crate::ode;
 use crate::shape::{diffusion_product, shape_of, NoiseTerm, Shape};
@@ -92,6 +93,9 @@ pub struct AffineSet {
     params: Vec<f64>,
     time_dependent: bool,
     constant: Option<Numbers>,
+    /// Where the coefficients jump or bend (knots of `step`, `ramp`; kinks of `min`,
+    /// `max`, `abs` of t): the integrations in time are split there.
+    breaks: TimeBreaks,
 }
 
 /// A short rate ρ₀(t) + ρ₁·X in clock units (per clock unit of time).
@@ -314,6 +318,14 @@ impl AffineSet {
             || k1.iter().flatten().any(Poly::depends_on_time)
             || h0.iter().flatten().any(Poly::depends_on_time)
             || h1.iter().flatten().flatten().any(Poly::depends_on_time);
+        let params = model.param_values();
+        let breaks = TimeBreaks::of_polys(
+            k0.iter()
+                .chain(k1.iter().flatten())
+                .chain(h0.iter().flatten())
+                .chain(h1.iter().flatten().flatten()),
+            &params,
+        );
         let mut set = AffineSet {
             n,
             log,
@@ -322,9 +334,10 @@ impl AffineSet {
             k1,
             h0,
             h1,
-            params: model.param_values(),
+            params,
             time_dependent,
             constant: None,
+            breaks,
         };
         if !time_dependent {
             let numbers = set.numbers(0.0);
@@ -506,7 +519,8 @@ impl AffineSet {
         if !rate.r0.depends_on_time() {
             return Ok(Complex64::new(rate.r0.value(&self.params, 0.0) * t, 0.0));
         }
-        ode::quad(|s| rate.r0.value(&self.params, s), 0.0, t, 1e-13)
+        let pieces = TimeBreaks::of_polys([&rate.r0], &self.params).pieces(0.0, t);
+        ode::quad_pieces(|s| rate.r0.value(&self.params, s), &pieces, 1e-13)
             .map(|v| Complex64::new(v, 0.0))
             .map_err(|e| TransformError::Failed(e.to_string()))
     }
@@ -527,7 +541,18 @@ impl AffineSet {
             let (r0, r1) = rate.values(&self.params, s);
             riccati_rhs(self.n, &numbers, r0, &r1, y, dy)
         };
-        match ode::integrate(rhs, &pack(u), 0.0, t, RICCATI_RTOL, RICCATI_ATOL) {
+        // The breaks in calendar time s, as times τ = t − s from 0 to t.
+        let rate_breaks = TimeBreaks::of_polys(rate.r1.iter().chain([&rate.r0]), &self.params);
+        let mut taus: Vec<f64> = self
+            .breaks
+            .pieces(t, 0.0)
+            .into_iter()
+            .chain(rate_breaks.pieces(t, 0.0))
+            .map(|s| t - s)
+            .collect();
+        taus.sort_by(f64::total_cmp);
+        taus.dedup();
+        match ode::integrate_pieces(rhs, &pack(u), &taus, RICCATI_RTOL, RICCATI_ATOL) {
             Ok(y) if exploded(&y) => Err(TransformError::Explodes),
             Ok(y) => Ok(self.finish(&y)),
             Err(ode::OdeError::InvalidInput(why)) => Err(TransformError::Failed(why)),
