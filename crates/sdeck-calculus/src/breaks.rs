@@ -60,7 +60,7 @@ impl TimeBreaks {
     /// The breaks of every drift and diffusion coefficient of a model.
     pub fn of_model(model: &Model, params: &[f64]) -> Self {
         let exprs = model
-            .states
+            .factors
             .iter()
             .filter_map(|s| s.equation.as_ref())
             .flat_map(|eq| {
@@ -153,7 +153,7 @@ impl TimeBreaks {
                 self.collect(a);
                 self.collect(b);
             }
-            Expr::Const(_) | Expr::Param(_) | Expr::State(_) | Expr::Time | Expr::Invalid => {}
+            Expr::Const(_) | Expr::Param(_) | Expr::Factor(_) | Expr::Time | Expr::Invalid => {}
         }
     }
 }
@@ -249,7 +249,7 @@ mod tests {
         // Only the breaks inside the interval, in the direction of integration.
         assert_eq!(breaks.pieces(1.0, 0.3), vec![1.0, 0.5, 0.3]);
         // A kink of a factor is no break of time.
-        let of_state = Expr::Call(Function::Max, vec![Expr::State(0), Expr::Time]);
-        assert!(TimeBreaks::of_exprs([&of_state], &[]).is_empty());
+        let of_factor = Expr::Call(Function::Max, vec![Expr::Factor(0), Expr::Time]);
+        assert!(TimeBreaks::of_exprs([&of_factor], &[]).is_empty());
     }
 }

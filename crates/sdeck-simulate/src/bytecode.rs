@@ -765,7 +765,7 @@ mod schedules {
                 c(0.5),
                 c(2.0),
                 c(0.75),
-                Expr::Mul(Box::new(c(3.0)), Box::new(Expr::State(0))),
+                Expr::Mul(Box::new(c(3.0)), Box::new(Expr::Factor(0))),
                 Expr::Param(0),
                 c(-1.0),
             ],
