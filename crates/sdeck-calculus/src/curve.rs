@@ -85,7 +85,7 @@ fn long_yield(set: &AffineSet, rate: &Rate, years: f64) -> Option<f64> {
         return None;
     }
     let zero = vec![Complex64::new(0.0, 0.0); set.dimension()];
-    let far = 1000.0 / years;
+    let far = 4000.0 / years;
     let times = [far / 4.0, far / 2.0, far];
     let values: Vec<f64> = set
         .log_transforms(&zero, rate, &times)

@@ -19,9 +19,48 @@ pub fn derived_checks(model: &Model, derivation: &Derivation) -> Vec<Diagnostic>
     factor_domain(model, derivation, &mut out);
     not_mean_reverting(model, derivation, &mut out);
     moment_explosion(model, derivation, &mut out);
+    discount_measure(model, &mut out);
     correlation_not_psd(model, &mut out);
     expectations(model, derivation, &mut out);
     out
+}
+
+/// A `discount` rate whose drifts are not stated to be risk-neutral.
+fn discount_measure(model: &Model, out: &mut Vec<Diagnostic>) {
+    let Some(discount) = &model.discount else {
+        return;
+    };
+    match &model.measure {
+        Some(m) if m.measure == sdeck_semantics::MeasureKind::RiskNeutral => {}
+        Some(m) => out.push(
+            Diagnostic::new(
+                &rules::DISCOUNT_MEASURE,
+                discount.span.clone(),
+                "the drifts are written under the real-world measure: the curve of this \
+                 rate is not the model's arbitrage-free price of a bond",
+            )
+            .with_related(m.span.clone(), "the measure is stated here")
+            .with_help(
+                "put the market price of risk into the drifts and state `measure risk-neutral`",
+            ),
+        ),
+        None => out.push(
+            Diagnostic::new(
+                &rules::DISCOUNT_MEASURE,
+                discount.span.clone(),
+                "no `measure` line: bond prices from this rate are arbitrage-free only if the \
+                 drifts are risk-neutral, and the model does not say so",
+            )
+            .with_help("add `measure risk-neutral` if the drifts are written under it")
+            .with_fix(
+                "Add `measure risk-neutral`",
+                vec![sdeck_diagnostics::TextEdit {
+                    span: discount.span.start..discount.span.start,
+                    new_text: "measure risk-neutral\n".to_string(),
+                }],
+            ),
+        ),
+    }
 }
 
 /// A price whose second moment becomes infinite before the horizon.
@@ -825,6 +864,7 @@ mod tests {
             &rules::CORRELATION_NOT_PSD,
             &rules::EXPECTATION_FAILED,
             &rules::MOMENT_EXPLOSION,
+            &rules::DISCOUNT_MEASURE,
         ];
         for rule in mine {
             let (_, flawed) = run(rule.flawed);

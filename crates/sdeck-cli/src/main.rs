@@ -14,6 +14,7 @@ macro_rules! outln {
 }
 
 mod check;
+mod curve_cmd;
 mod files;
 mod fmt_cmd;
 mod github;
@@ -55,6 +56,8 @@ enum Command {
     Check(check::CheckArgs),
     /// Derive the family, closed forms and moments of each state of a model.
     Moments(moments::MomentsArgs),
+    /// Zero-coupon prices, yields and forwards of the model's `discount` rate.
+    Curve(curve_cmd::CurveArgs),
     /// Cross-check the derived law by Monte Carlo simulation.
     Simulate(simulate_cmd::SimulateArgs),
     /// Format model files in place (aligned declarations, canonical spacing).
@@ -103,6 +106,7 @@ fn main() -> ExitCode {
     match cli.command {
         Command::Check(args) => check::run(args),
         Command::Moments(args) => moments::run(args),
+        Command::Curve(args) => curve_cmd::run(args),
         Command::Simulate(args) => simulate_cmd::run(args),
         Command::Fmt(args) => fmt_cmd::run(args),
         Command::Lsp(args) => lsp_cmd::run(args),

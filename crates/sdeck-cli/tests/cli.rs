@@ -585,7 +585,7 @@ fn the_demo_models_pass_and_a_named_fixture_still_fires() {
         .unwrap();
     assert_eq!(status(&out), 0, "{}", stdout(&out));
     let value = json_of(&out);
-    assert_eq!(value["files"], 8);
+    assert_eq!(value["files"], 9);
     let out = sdeck()
         .args([
             "check",

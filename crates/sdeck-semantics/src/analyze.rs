@@ -164,6 +164,8 @@ impl<'a> Analyzer<'a> {
                 correlations: Vec::new(),
                 lets: Vec::new(),
                 expectations: Vec::new(),
+                measure: None,
+                discount: None,
             },
             diagnostics: Vec::new(),
             symbols: Vec::new(),
@@ -188,6 +190,7 @@ impl<'a> Analyzer<'a> {
         self.resolve_lets();
         self.correlations();
         self.equations();
+        self.short_rate();
         self.expectations();
         self.unused();
     }
@@ -1629,6 +1632,88 @@ impl<'a> Analyzer<'a> {
                 _ => None,
             }),
             _ => None,
+        }
+    }
+
+    /// `measure` and `discount`: the rate is read per year when dimensionless and per
+    /// its own time unit when its dimension is 1/time.
+    fn short_rate(&mut self) {
+        let file = self.file;
+        for statement in &file.statements {
+            match &statement.kind {
+                StatementKind::Measure { name } => {
+                    let measure = match name.name.as_str() {
+                        "risk-neutral" => MeasureKind::RiskNeutral,
+                        _ => MeasureKind::RealWorld,
+                    };
+                    if self.model.measure.is_some() {
+                        self.diagnostics.push(
+                            Diagnostic::new(
+                                &rules::DUPLICATE_NAME,
+                                statement.span.clone(),
+                                "the measure is stated twice",
+                            )
+                            .with_help("keep one `measure` line"),
+                        );
+                        continue;
+                    }
+                    self.model.measure = Some(Measure {
+                        measure,
+                        span: statement.span.clone(),
+                    });
+                }
+                StatementKind::Discount { rate } => {
+                    let (expr, dimension) = self.resolve(rate);
+                    if self.model.discount.is_some() {
+                        self.diagnostics.push(
+                            Diagnostic::new(
+                                &rules::DUPLICATE_NAME,
+                                statement.span.clone(),
+                                "the short rate is given twice",
+                            )
+                            .with_help("keep one `discount` line"),
+                        );
+                        continue;
+                    }
+                    let per_time = Dimension::dimensionless().div(&Dimension::time());
+                    let years = self.model.clock.years;
+                    let (rate_expr, per_year) = match dimension {
+                        Some(d) if d == Dimension::dimensionless() => {
+                            let converted = if years == 1.0 {
+                                expr
+                            } else {
+                                Expr::Mul(Box::new(expr), Box::new(Expr::Const(years)))
+                            };
+                            (converted, true)
+                        }
+                        Some(d) if d == per_time => (expr, false),
+                        Some(d) => {
+                            self.diagnostics.push(
+                                Diagnostic::new(
+                                    &rules::DIMENSION_MISMATCH,
+                                    rate.span(),
+                                    format!(
+                                        "a short rate is a number per year or has the \
+                                         dimension 1/time, not {d}"
+                                    ),
+                                )
+                                .with_help(
+                                    "write the rate as a fraction per year (`discount r` with \
+                                     r = 3%) or in [1/year]",
+                                ),
+                            );
+                            (Expr::Invalid, true)
+                        }
+                        None => (Expr::Invalid, true),
+                    };
+                    self.model.discount = Some(Discount {
+                        rate: rate_expr,
+                        span: statement.span.clone(),
+                        per_year,
+                    });
+                }
+                _ => {}
+            }
         }
     }
 

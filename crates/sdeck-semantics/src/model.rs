@@ -290,6 +290,40 @@ pub struct Expectation {
     pub span: Span,
 }
 
+/// Under which measure the drifts are written.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum MeasureKind {
+    RiskNeutral,
+    RealWorld,
+}
+
+impl MeasureKind {
+    pub fn as_str(self) -> &'static str {
+        match self {
+            MeasureKind::RiskNeutral => "risk-neutral",
+            MeasureKind::RealWorld => "real-world",
+        }
+    }
+}
+
+/// A `measure` statement.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Measure {
+    pub measure: MeasureKind,
+    pub span: Span,
+}
+
+/// A `discount` statement: the short rate.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Discount {
+    /// The rate per clock unit of time (a dimensionless rate is read per year and
+    /// converted).
+    pub rate: Expr,
+    pub span: Span,
+    /// Whether the rate was written without a time dimension (read as per year).
+    pub per_year: bool,
+}
+
 /// A declared unit (`unit EUR`).
 #[derive(Clone, Debug, PartialEq)]
 pub struct UnitDecl {
@@ -320,6 +354,8 @@ pub struct Model {
     pub correlations: Vec<Correlation>,
     pub lets: Vec<Let>,
     pub expectations: Vec<Expectation>,
+    pub measure: Option<Measure>,
+    pub discount: Option<Discount>,
 }
 
 impl Model {

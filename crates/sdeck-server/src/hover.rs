@@ -26,6 +26,8 @@ pub fn hover(a: &Analyzed, encoding: PositionEncoding, position: Position) -> Op
             .find(|s| s.start <= offset && offset <= s.end)
             .unwrap_or(symbol.name_span.clone());
         (text, span)
+    } else if let Some((text, span)) = discount_at(a, offset) {
+        (text, span)
     } else {
         let (name, span) = unit_name_at(a, offset)?;
         (unit_text(model, &name), span)
@@ -37,6 +39,49 @@ pub fn hover(a: &Analyzed, encoding: PositionEncoding, position: Position) -> Op
         }),
         range: Some(converter.range(&span)),
     })
+}
+
+/// Hover on the `discount` keyword: how the rate is read and the curve at a few maturities.
+fn discount_at(a: &Analyzed, offset: usize) -> Option<(String, sdeck_diagnostics::Span)> {
+    let statement = a.check.analysis.file.statements.iter().find(|s| {
+        matches!(s.kind, StatementKind::Discount { .. })
+            && s.span.start <= offset
+            && offset <= s.span.start + "discount".len()
+    })?;
+    let model = &a.check.analysis.model;
+    let discount = model.discount.as_ref()?;
+    let mut s = "**discount** · the short rate\n\n".to_string();
+    s.push_str(if discount.per_year {
+        "A dimensionless rate, read as a rate per year (the trade's convention).\n"
+    } else {
+        "A rate with the dimension 1/time, converted to the clock.\n"
+    });
+    s.push_str(&format!(
+        "Measure: {}.\n",
+        model
+            .measure
+            .as_ref()
+            .map_or("not stated", |m| m.measure.as_str())
+    ));
+    let years: [f64; 4] = [1.0, 2.0, 5.0, 10.0];
+    let maturities: Vec<f64> = years.iter().map(|y| y / model.clock.years).collect();
+    match sdeck_calculus::curve::curve(model, &discount.rate, &maturities) {
+        Ok(c) => {
+            s.push_str("\n| maturity | price | zero yield | forward |\n|---|---|---|---|\n");
+            for (p, y) in c.points.iter().zip(years) {
+                s.push_str(&format!(
+                    "| {} year | {} | {}% | {}% |\n",
+                    fmt_num(y),
+                    fmt_num(p.price),
+                    fmt_num(p.yield_rate * 100.0),
+                    fmt_num(p.forward * 100.0)
+                ));
+            }
+        }
+        Err(why) => s.push_str(&format!("\nNo curve: {why}.\n")),
+    }
+    let start = statement.span.start;
+    Some((s, start..start + "discount".len()))
 }
 
 fn or_unknown(x: Option<f64>) -> String {
@@ -92,6 +137,20 @@ pub fn state_text(a: &Analyzed, i: usize) -> String {
         "| standard deviation | {} |\n",
         or_unknown(variance.filter(|v| *v >= 0.0).map(f64::sqrt))
     ));
+    if let Some(whole) = sdeck_calculus::laws::law_of(model, &a.check.derivation, i, a.moments().at)
+    {
+        s.push_str(&format!("| law | {} |\n", whole.kind().as_str()));
+        let sign_change = matches!(
+            whole.kind(),
+            sdeck_calculus::laws::LawKind::Normal | sdeck_calculus::laws::LawKind::Fourier
+        );
+        if let Some(p) = whole
+            .cdf(0.0)
+            .filter(|p| sign_change && *p > 0.0 && *p < 1.0)
+        {
+            s.push_str(&format!("| P({} < 0) | {} |\n", state.name, fmt_num(p)));
+        }
+    }
     if let Some(law) = law {
         if let Some(h) = law.half_life {
             s.push_str(&format!("| half-life | {} {clock} |\n", fmt_num(h)));

@@ -479,3 +479,27 @@ fn diagnostics_after_a_lone_cr_are_on_their_own_line() {
         .collect();
     assert!(lines.contains(&2), "{lines:?}");
 }
+
+#[test]
+fn hover_shows_the_law_the_chance_of_a_negative_rate_and_the_curve() {
+    let text = format!("{VASICEK}measure risk-neutral\ndiscount r\n");
+    let a = analyzed(&text);
+    let md = hover_text(&a, position_of(&text, "dr =", 1));
+    assert!(md.contains("| law | normal |"), "{md}");
+    // P(r < 0) at the horizon from the normal law of Vasicek 1977 (eq. 27-28).
+    let (kappa, theta, sigma, r0, t) = (0.005 * 365.0, 0.03f64, 0.01f64, 0.01f64, 2.0);
+    let mean = theta + (r0 - theta) * f64::exp(-kappa * t);
+    let sd = (sigma * sigma * (1.0 - f64::exp(-2.0 * kappa * t)) / (2.0 * kappa)).sqrt();
+    let below = statrs::distribution::ContinuousCDF::cdf(
+        &statrs::distribution::Normal::new(mean, sd).expect("normal"),
+        0.0,
+    );
+    assert!(
+        (row_value(&md, "P(r < 0)") / below - 1.0).abs() < 1e-5,
+        "{md}"
+    );
+    let md = hover_text(&a, position_of(&text, "discount", 2));
+    assert!(md.contains("read as a rate per year"), "{md}");
+    assert!(md.contains("Measure: risk-neutral"), "{md}");
+    assert!(md.contains("| 10 year |"), "{md}");
+}

@@ -102,6 +102,11 @@ pub fn semantic_tokens(a: &Analyzed, encoding: PositionEncoding) -> Vec<Semantic
                 expression(value, &mut spans);
                 3
             }
+            StatementKind::Measure { .. } => 7,
+            StatementKind::Discount { rate } => {
+                expression(rate, &mut spans);
+                8
+            }
             StatementKind::Equation(eq) => {
                 for term in &eq.terms {
                     if let Some(c) = &term.coefficient {

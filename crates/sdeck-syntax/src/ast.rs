@@ -324,6 +324,14 @@ pub enum StatementKind {
     },
     Equation(Equation),
     Expect(Expectation),
+    /// `measure risk-neutral` or `measure real-world`.
+    Measure {
+        name: Ident,
+    },
+    /// `discount EXPR`: the short rate.
+    Discount {
+        rate: Expr,
+    },
 }
 
 /// A statement, its span (without trailing comments) and its description comment.

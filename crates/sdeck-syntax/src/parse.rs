@@ -293,6 +293,8 @@ fn is_keyword_token(rule: Rule) -> bool {
             | Rule::kw_let
             | Rule::kw_expect
             | Rule::kw_in
+            | Rule::kw_measure
+            | Rule::kw_discount
     )
 }
 
@@ -332,6 +334,7 @@ fn describe_rule(rule: Rule) -> Option<&'static str> {
         Rule::eq_terms | Rule::eq_term => "a term such as `kappa * x dt` or `vol dW`",
         Rule::integer | Rule::natural | Rule::unit_exponent => "an integer exponent",
         Rule::EOI => "the end of the statement",
+        Rule::measure_name => "`risk-neutral` or `real-world`",
         Rule::statement
         | Rule::model_stmt
         | Rule::clock_stmt
@@ -343,6 +346,10 @@ fn describe_rule(rule: Rule) -> Option<&'static str> {
         | Rule::corr_stmt
         | Rule::let_stmt
         | Rule::expect_stmt
+        | Rule::measure_stmt
+        | Rule::discount_stmt
+        | Rule::kw_measure
+        | Rule::kw_discount
         | Rule::equation
         | Rule::keyword => "a statement (a keyword such as `param`, or `dNAME =`)",
         _ => return None,
@@ -393,6 +400,8 @@ fn statement_help(src: &str) -> Option<&'static str> {
         "shock" => "shocks are declared with `shock NAME, NAME`, e.g. `shock W1, W2`",
         "corr" => "a correlation is `corr NAME NAME = NUMBER`, e.g. `corr W1 W2 = -0.4`",
         "let" => "a named expression is `let NAME = EXPR`",
+        "measure" => "the measure is `measure risk-neutral` or `measure real-world`",
+        "discount" => "the short rate is `discount EXPR`, affine in the factors, e.g. `discount r` or `discount x + y + phi`",
         "expect" => "an expectation is `expect FIGURE(STATE[, TIME]) CONDITION`, e.g. `expect mean(r, 1 year) in [2.9%, 3.3%]`",
         w if w.starts_with('d') && w.len() > 1 => {
             "an equation is `dX = DRIFT dt + VOL dW`, e.g. `dr = kappa * (level - r) dt + vol * sqrt(r) dW`"
@@ -542,6 +551,12 @@ impl Builder {
                     value,
                 }
             }
+            Rule::measure_stmt => StatementKind::Measure {
+                name: self.ident(&next()?),
+            },
+            Rule::discount_stmt => StatementKind::Discount {
+                rate: self.expr(next()?)?,
+            },
             Rule::let_stmt => {
                 let name = self.declared_name(&next()?)?;
                 let value = self.expr(next()?)?;

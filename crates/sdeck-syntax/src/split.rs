@@ -9,8 +9,9 @@ use crate::ast::Comment;
 use sdeck_diagnostics::Span;
 
 /// Keywords that start a statement.
-pub const STATEMENT_KEYWORDS: [&str; 10] = [
+pub const STATEMENT_KEYWORDS: [&str; 12] = [
     "model", "clock", "horizon", "unit", "param", "factor", "shock", "corr", "let", "expect",
+    "measure", "discount",
 ];
 
 /// Keywords of the first version of the language and the words that replaced them. A

@@ -4,6 +4,7 @@ mod bound_violated;
 mod correlation_not_psd;
 mod correlation_range;
 mod dimension_mismatch;
+mod discount_measure;
 mod duplicate_name;
 mod duplicate_term;
 mod expectation_failed;
@@ -22,6 +23,7 @@ pub use bound_violated::BOUND_VIOLATED;
 pub use correlation_not_psd::CORRELATION_NOT_PSD;
 pub use correlation_range::CORRELATION_RANGE;
 pub use dimension_mismatch::DIMENSION_MISMATCH;
+pub use discount_measure::DISCOUNT_MEASURE;
 pub use duplicate_name::DUPLICATE_NAME;
 pub use duplicate_term::DUPLICATE_TERM;
 pub use expectation_failed::EXPECTATION_FAILED;
@@ -53,6 +55,7 @@ pub static ALL: &[&Rule] = &[
     &FACTOR_DOMAIN,
     &NOT_MEAN_REVERTING,
     &MOMENT_EXPLOSION,
+    &DISCOUNT_MEASURE,
     &UNUSED,
     &UNIT_SCALE,
     &EXPECTATION_FAILED,
