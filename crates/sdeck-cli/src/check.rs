@@ -77,7 +77,8 @@ pub struct CheckArgs {
     #[arg(long, value_enum, default_value_t = Format::Human)]
     format: Format,
     /// Also write a report to a file, as FORMAT=FILE (e.g. `sarif=report.sarif`);
-    /// repeat for several reports from one run.
+    /// repeat for several reports from one run. FILE `-` is standard output, in place of
+    /// the `--format` report.
     #[arg(long = "output", value_name = "FORMAT=FILE", value_parser = parse_output)]
     outputs: Vec<OutputTarget>,
     /// Which findings make the exit status 1 [default: the project's `[check] deny`, else
@@ -88,6 +89,10 @@ pub struct CheckArgs {
     /// the path is shown in reports and chooses the project file.
     #[arg(long, value_name = "PATH")]
     stdin_name: Option<PathBuf>,
+    /// Exit 0 when the folders named hold no model file (by default that is exit 2: a
+    /// run that checks nothing is usually a wrong path).
+    #[arg(long)]
+    allow_empty: bool,
 }
 
 /// One checked file with what the outputs need.
@@ -220,6 +225,29 @@ fn run_in_pool(args: CheckArgs) -> ExitCode {
         eprintln!("sdeck: standard input can be read once: give `-` once");
         return ExitCode::from(2);
     }
+    // `--output FORMAT=-` is standard output; no two reports may go to one place.
+    let mut destinations: Vec<PathBuf> = Vec::new();
+    for output in &args.outputs {
+        let destination = if output.file.as_os_str() == "-" {
+            output.file.clone()
+        } else {
+            sdeck_project::absolute(&output.file)
+        };
+        if destinations.contains(&destination) {
+            eprintln!(
+                "sdeck: two reports would be written to `{}`; give each `--output` its own file",
+                output.file.display()
+            );
+            return ExitCode::from(2);
+        }
+        destinations.push(destination);
+    }
+    let stdout_format = args
+        .outputs
+        .iter()
+        .find(|o| o.file.as_os_str() == "-")
+        .map(|o| o.format)
+        .unwrap_or(args.format);
     let disk_paths: Vec<PathBuf> = args
         .paths
         .iter()
@@ -233,6 +261,32 @@ fn run_in_pool(args: CheckArgs) -> ExitCode {
             return ExitCode::from(2);
         }
     };
+    if targets.is_empty() && !reads_stdin {
+        let shown: Vec<String> = disk_paths
+            .iter()
+            .map(|p| format!("`{}`", p.display()))
+            .collect();
+        let folders = disk_paths.iter().any(|p| p.is_dir());
+        if folders {
+            eprintln!(
+                "sdeck: no model files found under {}{}",
+                shown.join(", "),
+                if args.allow_empty {
+                    ""
+                } else {
+                    " (`--allow-empty` accepts that)"
+                }
+            );
+            if !args.allow_empty {
+                return ExitCode::from(2);
+            }
+        } else {
+            eprintln!(
+                "sdeck: nothing checked: the project file (sdeck.toml) excludes {}",
+                shown.join(", ")
+            );
+        }
+    }
     let mut checked: Vec<Checked> = Vec::with_capacity(targets.len() + 1);
     let mut unreadable = false;
     if reads_stdin {
@@ -277,7 +331,7 @@ fn run_in_pool(args: CheckArgs) -> ExitCode {
     checked.sort_by(|a, b| a.source.path.cmp(&b.source.path));
 
     let mut status_two = unreadable;
-    for output in &args.outputs {
+    for output in args.outputs.iter().filter(|o| o.file.as_os_str() != "-") {
         let written = std::fs::File::create(&output.file).and_then(|file| {
             let mut writer = std::io::BufWriter::new(file);
             write_report(output.format, &checked, &mut NoColor::new(&mut writer))?;
@@ -293,7 +347,7 @@ fn run_in_pool(args: CheckArgs) -> ExitCode {
         }
     }
     let color =
-        if std::io::IsTerminal::is_terminal(&std::io::stdout()) && args.format == Format::Human {
+        if std::io::IsTerminal::is_terminal(&std::io::stdout()) && stdout_format == Format::Human {
             ColorChoice::Auto
         } else {
             ColorChoice::Never
@@ -301,7 +355,7 @@ fn run_in_pool(args: CheckArgs) -> ExitCode {
     // Buffered: a report of thousands of findings is written in large blocks, not a
     // system call per line.
     let mut stdout = BufferedStandardStream::stdout(color);
-    let printed = write_report(args.format, &checked, &mut stdout).and_then(|()| stdout.flush());
+    let printed = write_report(stdout_format, &checked, &mut stdout).and_then(|()| stdout.flush());
     if let Err(e) = printed {
         if e.kind() != std::io::ErrorKind::BrokenPipe {
             eprintln!("sdeck: cannot write the report: {e}");

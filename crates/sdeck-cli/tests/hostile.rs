@@ -172,3 +172,86 @@ fn one_path_has_no_standard_errors() {
     assert!(factor["variance_se"].is_null(), "{factor}");
     assert!(factor["mean_se"].is_null(), "{factor}");
 }
+
+// ------------------------------------------------------------- runs that check nothing
+
+#[test]
+fn an_empty_folder_is_exit_2_unless_allowed_and_says_so() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = sdeck().arg("check").arg(dir.path()).output().unwrap();
+    assert_eq!(status(&out), 2, "{}", stdout(&out));
+    assert!(
+        stderr(&out).contains("no model files found under"),
+        "{}",
+        stderr(&out)
+    );
+    let out = sdeck()
+        .args(["check", "--allow-empty"])
+        .arg(dir.path())
+        .output()
+        .unwrap();
+    assert_eq!(status(&out), 0, "{}", stderr(&out));
+    assert!(stderr(&out).contains("no model files found under"));
+}
+
+#[cfg(unix)]
+#[test]
+fn a_folder_with_only_a_dangling_link_checks_nothing_and_says_so() {
+    let dir = tempfile::tempdir().unwrap();
+    std::os::unix::fs::symlink(dir.path().join("gone.sde"), dir.path().join("link.sde")).unwrap();
+    let out = sdeck().arg("check").arg(dir.path()).output().unwrap();
+    assert_eq!(status(&out), 2, "{}", stdout(&out));
+    assert!(
+        stderr(&out).contains("no model files found under"),
+        "{}",
+        stderr(&out)
+    );
+}
+
+#[test]
+fn a_named_file_the_project_excludes_is_said_on_stderr() {
+    let dir = tempfile::tempdir().unwrap();
+    write(
+        &dir.path().join("sdeck.toml"),
+        "[files]\nexclude = [\"skip.sde\"]\n",
+    );
+    write(&dir.path().join("skip.sde"), "param a = 1\n");
+    let out = sdeck()
+        .arg("check")
+        .arg(dir.path().join("skip.sde"))
+        .output()
+        .unwrap();
+    assert_eq!(status(&out), 0, "{}", stderr(&out));
+    assert!(stderr(&out).contains("excludes"), "{}", stderr(&out));
+}
+
+#[test]
+fn output_dash_is_stdout_and_one_path_twice_is_a_usage_error() {
+    let dir = tempfile::tempdir().unwrap();
+    let file = dir.path().join("m.sde");
+    write(&file, "param a = 1 [1/year] >= inf\n");
+    let out = sdeck()
+        .current_dir(dir.path())
+        .args(["check", "--output", "json=-"])
+        .arg(&file)
+        .output()
+        .unwrap();
+    let report: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(report["files"], 1);
+    assert!(!dir.path().join("-").exists());
+    let out = sdeck()
+        .current_dir(dir.path())
+        .args([
+            "check",
+            "--output",
+            "json=r.json",
+            "--output",
+            "sarif=./r.json",
+        ])
+        .arg(&file)
+        .output()
+        .unwrap();
+    assert_eq!(status(&out), 2);
+    assert!(stderr(&out).contains("two reports"), "{}", stderr(&out));
+    assert!(!dir.path().join("r.json").exists());
+}
