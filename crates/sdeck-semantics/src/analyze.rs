@@ -760,6 +760,9 @@ impl<'a> Analyzer<'a> {
         let resolved: Vec<(Expr, Option<Dimension>)> =
             args.iter().map(|a| self.resolve(a)).collect();
         let Some(f) = Function::from_name(&function.name) else {
+            if let Some(mended) = self.misread_call(function, span) {
+                return mended;
+            }
             self.diagnostics.push(
                 Diagnostic::new(
                     &rules::UNKNOWN_NAME,
@@ -1026,6 +1029,70 @@ impl<'a> Analyzer<'a> {
         } else {
             None
         }
+    }
+
+    /// Two common slips that look like a call of an unknown function: a declared value
+    /// followed by `(` (`kappa(theta - r)`, a product without its `*`) and `ln` for the
+    /// natural logarithm. Reports the slip with a fix; for a product the name still counts
+    /// as used, so it is not also reported as unused. `None` for any other unknown name.
+    fn misread_call(
+        &mut self,
+        function: &ast::Ident,
+        span: &Span,
+    ) -> Option<(Expr, Option<Dimension>)> {
+        let name = function.name.as_str();
+        let value = matches!(
+            self.names.get(name),
+            Some((Target::Param(_) | Target::Factor(_) | Target::Let(_), _))
+        );
+        if value {
+            self.resolve_name(function);
+            let rest = self.source.get(function.span.end..span.end).unwrap_or("");
+            let gap = if rest.starts_with(char::is_whitespace) {
+                ""
+            } else {
+                " "
+            };
+            let written = format!("{name} *{gap}{rest}");
+            let message = if written.chars().count() <= 60 {
+                format!("a name followed by `(`: did you mean `{written}`?")
+            } else {
+                format!("a name followed by `(`: did you mean `{name} * (...)`?")
+            };
+            self.diagnostics.push(
+                Diagnostic::new(&rules::SYNTAX, function.span.clone(), message)
+                    .with_help(format!(
+                        "`{name}` is a declared value, not a function; products are written with `*`"
+                    ))
+                    .with_fix(
+                        format!("Multiply: `{name} * (...)`"),
+                        vec![TextEdit {
+                            span: function.span.end..function.span.end,
+                            new_text: format!(" *{gap}"),
+                        }],
+                    ),
+            );
+            return Some((Expr::Invalid, None));
+        }
+        if name == "ln" {
+            self.diagnostics.push(
+                Diagnostic::new(
+                    &rules::UNKNOWN_NAME,
+                    function.span.clone(),
+                    "there is no function `ln`: the natural logarithm is `log`",
+                )
+                .with_help("write `log(...)`; the logarithm in any other base is `log(x) / log(b)`")
+                .with_fix(
+                    "Write `log` for `ln`",
+                    vec![TextEdit {
+                        span: function.span.clone(),
+                        new_text: "log".to_string(),
+                    }],
+                ),
+            );
+            return Some((Expr::Invalid, None));
+        }
+        None
     }
 
     fn resolve_name(&mut self, ident: &ast::Ident) -> (Expr, Option<Dimension>) {

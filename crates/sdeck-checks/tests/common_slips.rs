@@ -1,0 +1,55 @@
+//! Messages for slips people commonly make (docs/language.md, section 6): each names the
+//! form that was meant, offers a fix, and the fixed model checks clean.
+
+use sdeck_checks::{check, RuleSettings};
+
+fn findings(text: &str) -> Vec<sdeck_diagnostics::Diagnostic> {
+    check(text, "slips", &RuleSettings::default()).diagnostics
+}
+
+fn apply_first_fix(text: &str, d: &sdeck_diagnostics::Diagnostic) -> String {
+    let mut out = text.to_string();
+    let edit = &d.fixes[0].edits[0];
+    out.replace_range(edit.span.clone(), &edit.new_text);
+    out
+}
+
+const HEAD: &str = "param kappa = 1.2 [1/year] > 0\nparam theta = 3%\n\
+                    param vol = 1% [1/sqrt(year)] > 0\nshock W\nfactor r = 2%\n";
+
+#[test]
+fn a_name_followed_by_a_parenthesis_is_read_as_a_missing_product() {
+    let text = format!("{HEAD}dr = kappa(theta - r) dt + vol dW\n");
+    let found = findings(&text);
+    // One finding: `kappa` is not also called unused, nor `theta`.
+    assert_eq!(found.len(), 1, "{found:?}");
+    assert_eq!(found[0].rule, "syntax");
+    assert_eq!(
+        found[0].message,
+        "a name followed by `(`: did you mean `kappa * (theta - r)`?"
+    );
+    assert_eq!(&text[found[0].span.clone()], "kappa");
+    let fixed = apply_first_fix(&text, &found[0]);
+    assert!(fixed.contains("dr = kappa * (theta - r) dt"), "{fixed}");
+    assert!(findings(&fixed).is_empty(), "{:?}", findings(&fixed));
+}
+
+#[test]
+fn ln_points_to_log() {
+    let text = format!("{HEAD}let gap = ln(1 + r)\ndr = kappa * (theta - r) * gap dt + vol dW\n");
+    let found = findings(&text);
+    assert_eq!(found.len(), 1, "{found:?}");
+    assert_eq!(found[0].rule, "unknown-name");
+    assert!(found[0].message.contains("`log`"), "{}", found[0].message);
+    let fixed = apply_first_fix(&text, &found[0]);
+    assert!(fixed.contains("let gap = log(1 + r)"), "{fixed}");
+    assert!(findings(&fixed).is_empty(), "{:?}", findings(&fixed));
+}
+
+#[test]
+fn another_unknown_function_is_still_unknown() {
+    let text = format!("{HEAD}dr = kappa * (theta - tanh(r)) dt + vol dW\n");
+    let found = findings(&text);
+    assert_eq!(found.len(), 1, "{found:?}");
+    assert_eq!(found[0].message, "unknown function `tanh`");
+}
