@@ -2,7 +2,7 @@
 //! of the one-state form dX = (a + b X) dt + g dW, g² = α + β X + γ X², held constant
 //! over the step `dt`.
 
-use crate::bessel::ln_bessel_i;
+use crate::bessel::ln_bessel_i_scaled;
 use sdeck_calculus::coefficients::OneStateValues;
 use sdeck_calculus::one_state::phi;
 use sdeck_calculus::Family;
@@ -46,6 +46,11 @@ pub(crate) fn ln_transition(family: Family, v: &OneStateValues, x: f64, y: f64, 
 /// 1985, eq. 18, with κ = −b, θ = a/κ, σ² = β): c = 2 / (β φ(b,Δ)), u = c x e^{bΔ},
 /// v = c y, q = 2a/β − 1, and
 /// p(y | x) = c e^{−u−v} (v/u)^{q/2} I_q(2√(uv)).
+///
+/// Written as ln c − (√v − √u)² + (q/2) ln(v/u) + ln(e^{−z} I_q(z)) with z = 2√(uv): the
+/// terms u, v and ln I_q(z) are each near z (10³ and more with weekly data) while the
+/// density is of order 1, and summing them directly would leave a rounding noise that
+/// moves with the parameters and spoils the finite-difference Hessian.
 fn ln_square_root(a: f64, b: f64, beta: f64, x: f64, y: f64, dt: f64) -> f64 {
     if !(beta > 0.0 && x > 0.0 && y > 0.0) {
         return f64::NAN;
@@ -55,9 +60,11 @@ fn ln_square_root(a: f64, b: f64, beta: f64, x: f64, y: f64, dt: f64) -> f64 {
         return f64::NAN;
     }
     let c = 2.0 / (beta * phi(b, dt));
-    let u = c * x * (b * dt).exp();
-    let w = c * y;
-    c.ln() - u - w + 0.5 * q * (w / u).ln() + ln_bessel_i(q, 2.0 * (u * w).sqrt())
+    // x e^{bΔ}: the conditional mean of X without its level part.
+    let decayed = x * (b * dt).exp();
+    let gap = y.sqrt() - decayed.sqrt();
+    let z = 2.0 * c * (decayed * y).sqrt();
+    c.ln() - c * gap * gap + 0.5 * q * (y.ln() - x.ln() - b * dt) + ln_bessel_i_scaled(q, z)
 }
 
 /// Whether an observed value lies in the family's domain; the reason when not.

@@ -690,7 +690,7 @@ pub fn fit(problem: &Problem) -> Result<Fit, FitError> {
     if !loglik.is_finite() {
         return Err(FitError::NoFiniteLikelihood);
     }
-    let (gradient, hessian) = optimise::derivatives(&cost, &theta);
+    let (gradient, hessian) = optimise::derivatives(&cost, &theta, optimise::HESSIAN_STEP);
     // At a bound when the one-parameter Newton step would cross it.
     let at_bound: Vec<bool> = (0..k)
         .map(|j| {
