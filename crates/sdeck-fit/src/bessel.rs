@@ -80,12 +80,12 @@ fn series(nu: f64, z: f64) -> f64 {
 
 fn hankel(nu: f64, z: f64) -> f64 {
     let mu = 4.0 * nu * nu;
+    let inverse = 1.0 / (8.0 * z);
     let mut sum = 1.0;
     let mut term = 1.0_f64;
-    let mut k = 1.0;
-    while k < 200.0 {
-        let odd = 2.0 * k - 1.0;
-        let next = -term * (mu - odd * odd) / (8.0 * k * z);
+    for (k, reciprocal) in RECIPROCALS.iter().enumerate() {
+        let odd = 2.0 * k as f64 + 1.0;
+        let next = -term * (mu - odd * odd) * inverse * reciprocal;
         if next.abs() >= term.abs() || next == 0.0 {
             break;
         }
@@ -94,10 +94,21 @@ fn hankel(nu: f64, z: f64) -> f64 {
         if term.abs() < NEGLIGIBLE {
             break;
         }
-        k += 1.0;
     }
-    -0.5 * (2.0 * std::f64::consts::PI * z).ln() + sum.ln()
+    // −½ ln(2πz) + ln(sum) with one logarithm.
+    0.5 * (sum * sum / (2.0 * std::f64::consts::PI * z)).ln()
 }
+
+/// 1/k for k = 1..64: the expansion multiplies instead of dividing in its inner loop.
+const RECIPROCALS: [f64; 64] = {
+    let mut table = [0.0; 64];
+    let mut k = 0;
+    while k < 64 {
+        table[k] = 1.0 / (k as f64 + 1.0);
+        k += 1;
+    }
+    table
+};
 
 #[cfg(test)]
 mod tests {

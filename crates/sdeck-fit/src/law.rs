@@ -67,6 +67,89 @@ fn ln_square_root(a: f64, b: f64, beta: f64, x: f64, y: f64, dt: f64) -> f64 {
     c.ln() - c * gap * gap + 0.5 * q * (y.ln() - x.ln() - b * dt) + ln_bessel_i_scaled(q, z)
 }
 
+/// One observed step, with what the densities need of it computed once.
+#[derive(Clone, Copy, Debug)]
+pub(crate) struct Transition {
+    pub dt: f64,
+    pub x: f64,
+    pub y: f64,
+    /// ln y − ln x, √x, √y, √(xy): NaN unless both values are positive.
+    pub ln_ratio: f64,
+    pub sqrt_x: f64,
+    pub sqrt_y: f64,
+    pub sqrt_xy: f64,
+}
+
+impl Transition {
+    pub(crate) fn new(dt: f64, x: f64, y: f64) -> Transition {
+        Transition {
+            dt,
+            x,
+            y,
+            ln_ratio: y.ln() - x.ln(),
+            sqrt_x: x.sqrt(),
+            sqrt_y: y.sqrt(),
+            sqrt_xy: (x * y).sqrt(),
+        }
+    }
+}
+
+/// Observations per chunk of the parallel sum; the chunks are summed in order, so the
+/// total does not depend on the number of threads.
+const CHUNK: usize = 2048;
+
+/// Σ ln p over the transitions, in parallel chunks.
+pub(crate) fn ln_likelihood(family: Family, v: &OneStateValues, steps: &[Transition]) -> f64 {
+    use rayon::prelude::*;
+    let chunk_sum = |chunk: &[Transition]| -> f64 {
+        match family {
+            Family::SquareRoot => square_root_sum(v, chunk),
+            _ => chunk
+                .iter()
+                .map(|s| ln_transition(family, v, s.x, s.y, s.dt))
+                .sum(),
+        }
+    };
+    if steps.len() <= CHUNK {
+        return chunk_sum(steps);
+    }
+    let parts: Vec<f64> = steps.par_chunks(CHUNK).map(chunk_sum).collect();
+    parts.iter().sum()
+}
+
+/// The square-root density summed over steps, with the step-dependent constants kept
+/// while the step stays the same (regular data: computed once).
+fn square_root_sum(v: &OneStateValues, steps: &[Transition]) -> f64 {
+    let (a, b, beta) = (v.a, v.b, v.beta);
+    if !(beta > 0.0) {
+        return f64::NAN;
+    }
+    let q = 2.0 * a / beta - 1.0;
+    if q <= -1.0 {
+        return f64::NAN;
+    }
+    let mut cached_dt = f64::NAN;
+    let (mut c, mut ln_c, mut half_decay, mut shift) = (0.0, 0.0, 0.0, 0.0);
+    let mut total = 0.0;
+    for s in steps {
+        if s.dt != cached_dt {
+            cached_dt = s.dt;
+            c = 2.0 / (beta * phi(b, s.dt));
+            ln_c = c.ln();
+            half_decay = (0.5 * b * s.dt).exp();
+            shift = b * s.dt;
+        }
+        if !(s.x > 0.0 && s.y > 0.0) {
+            return f64::NAN;
+        }
+        // The same terms as `ln_square_root`, from the precomputed roots.
+        let gap = s.sqrt_y - s.sqrt_x * half_decay;
+        let z = 2.0 * c * s.sqrt_xy * half_decay;
+        total += ln_c - c * gap * gap + 0.5 * q * (s.ln_ratio - shift) + ln_bessel_i_scaled(q, z);
+    }
+    total
+}
+
 /// Whether an observed value lies in the family's domain; the reason when not.
 pub(crate) fn domain(family: Family) -> Option<&'static str> {
     match family {
@@ -99,6 +182,30 @@ mod tests {
         let got = ln_transition(Family::SquareRoot, &v, 0.04, 0.045, 0.25);
         let expected = 3.482_127_161_333_650_6;
         assert!((got - expected).abs() < 1e-12, "{got} vs {expected}");
+    }
+
+    #[test]
+    fn the_summed_square_root_density_is_the_sum_of_the_densities() {
+        let v = values(0.04, -0.8, 0.0, 0.0144, 0.0);
+        let steps: Vec<Transition> = (0..5000)
+            .map(|i| {
+                let dt = if i % 7 == 0 { 0.5 / 52.0 } else { 1.0 / 52.0 };
+                Transition::new(
+                    dt,
+                    0.03 + 0.001 * (i % 11) as f64,
+                    0.031 + 0.001 * (i % 5) as f64,
+                )
+            })
+            .collect();
+        let one_by_one: f64 = steps
+            .iter()
+            .map(|s| ln_transition(Family::SquareRoot, &v, s.x, s.y, s.dt))
+            .sum();
+        let summed = ln_likelihood(Family::SquareRoot, &v, &steps);
+        assert!(
+            (summed - one_by_one).abs() < 1e-9 * one_by_one.abs(),
+            "{summed} vs {one_by_one}"
+        );
     }
 
     #[test]

@@ -228,6 +228,8 @@ struct Single {
     form: OneStateForm,
     /// `(time, value, observation index)` of the observed values.
     points: Vec<(f64, f64, usize)>,
+    /// Consecutive pairs of `points`.
+    steps: Vec<law::Transition>,
 }
 
 enum Plan {
@@ -279,11 +281,17 @@ fn plan(problem: &Problem) -> Result<Plan, FitError> {
                                 .collect()
                         })
                         .unwrap_or_default();
+                    let points: Vec<(f64, f64, usize)> = points;
+                    let steps = points
+                        .windows(2)
+                        .map(|w| law::Transition::new(w[1].0 - w[0].0, w[0].1, w[1].1))
+                        .collect();
                     singles.push(Single {
                         column,
                         family: form.family,
                         form,
                         points,
+                        steps,
                     })
                 }
                 family => {
@@ -397,13 +405,7 @@ impl Plan {
         match self {
             Plan::Singles(singles) => singles
                 .iter()
-                .map(|s| {
-                    let v = s.form.at(params, 0.0);
-                    s.points
-                        .windows(2)
-                        .map(|w| law::ln_transition(s.family, &v, w[0].1, w[1].1, w[1].0 - w[0].0))
-                        .sum::<f64>()
-                })
+                .map(|s| law::ln_likelihood(s.family, &s.form.at(params, 0.0), &s.steps))
                 .sum(),
             Plan::System {
                 form,
@@ -683,9 +685,16 @@ pub fn fit(problem: &Problem) -> Result<Fit, FitError> {
         .min_by(|a, b| a.0.total_cmp(&b.0))
         .map(|(_, s)| s)
         .ok_or(FitError::NoFiniteLikelihood)?;
-    let found = optimise::simplex(&cost, &transforms, &best_start, 20_000);
-    let found = optimise::simplex(&cost, &transforms, &found, 20_000);
-    let theta = optimise::polish(&cost, &transforms, found);
+    // Newton steps straight from the start converge in a few steps when it is close (the
+    // moment estimates usually are); otherwise the simplex search first.
+    let theta = match optimise::polish(&cost, &transforms, best_start.clone()) {
+        (theta, true) => theta,
+        (_, false) => {
+            let found = optimise::simplex(&cost, &transforms, &best_start, 20_000);
+            let found = optimise::simplex(&cost, &transforms, &found, 20_000);
+            optimise::polish(&cost, &transforms, found).0
+        }
+    };
     let loglik = -cost(&theta);
     if !loglik.is_finite() {
         return Err(FitError::NoFiniteLikelihood);

@@ -206,22 +206,27 @@ pub(crate) fn derivatives<F: Fn(&[f64]) -> f64>(
 
 /// Newton steps on the finite-difference derivatives, halved until the cost falls and the
 /// bounds hold; stops when a step no longer moves any parameter by more than 10⁻¹¹
-/// relative.
+/// relative. Returns the point and whether it converged so (a Hessian that is not
+/// positive definite, a step that cannot lower the cost before that, or 30 steps, do not).
 pub(crate) fn polish<F: Fn(&[f64]) -> f64>(
     cost: &F,
     transforms: &[Transform],
     start: Vec<f64>,
-) -> Vec<f64> {
+) -> (Vec<f64>, bool) {
     let mut theta = start;
     let mut current = cost(&theta);
+    if !current.is_finite() {
+        return (theta, false);
+    }
     for _ in 0..30 {
         let (gradient, hessian) = derivatives(cost, &theta, HESSIAN_STEP);
         let Some(cholesky) = hessian.clone().cholesky() else {
-            break;
+            return (theta, false);
         };
         let step = cholesky.solve(&gradient);
         let mut scale = 1.0;
         let mut moved = false;
+        let mut small = false;
         for _ in 0..40 {
             let candidate: Vec<f64> = theta
                 .iter()
@@ -232,23 +237,34 @@ pub(crate) fn polish<F: Fn(&[f64]) -> f64>(
             if inside {
                 let c = cost(&candidate);
                 if c.is_finite() && c <= current {
-                    let small = theta
+                    // Converged when the step is tiny or the cost no longer falls beyond
+                    // its rounding noise.
+                    small = theta
                         .iter()
                         .zip(candidate.iter())
-                        .all(|(a, b)| (a - b).abs() <= 1e-11 * a.abs().max(1e-12));
+                        .all(|(a, b)| (a - b).abs() <= 1e-11 * a.abs().max(1e-12))
+                        || current - c <= 1e-14 * current.abs().max(1.0);
                     theta = candidate;
                     current = c;
-                    moved = !small;
+                    moved = true;
                     break;
                 }
             }
             scale /= 2.0;
         }
+        if small {
+            return (theta, true);
+        }
         if !moved {
-            break;
+            // No step lowers the cost: converged if the full step was already tiny.
+            let tiny = theta
+                .iter()
+                .zip(step.iter())
+                .all(|(a, s)| s.abs() <= 1e-9 * a.abs().max(1e-12));
+            return (theta, tiny);
         }
     }
-    theta
+    (theta, false)
 }
 
 #[cfg(test)]
@@ -283,11 +299,12 @@ mod tests {
         // Minimum at (2, 0.5); the second parameter is declared > 0.
         let cost = |x: &[f64]| (x[0] - 2.0).powi(2) + 10.0 * (x[1] - 0.5).powi(2) + x[0] * x[1];
         let transforms = [Transform::Free { scale: 1.0 }, Transform::Above { lo: 0.0 }];
-        let found = polish(
+        let (found, converged) = polish(
             &cost,
             &transforms,
             simplex(&cost, &transforms, &[0.1, 3.0], 2000),
         );
+        assert!(converged);
         // ∂/∂x0: 2(x0−2) + x1 = 0, ∂/∂x1: 20(x1−0.5) + x0 = 0.
         let x1 = (10.0 - 2.0) / (20.0 - 0.5);
         let x0 = 2.0 - x1 / 2.0;
@@ -301,7 +318,7 @@ mod tests {
     fn a_minimum_beyond_the_bound_stays_inside() {
         let cost = |x: &[f64]| (x[0] + 1.0).powi(2);
         let transforms = [Transform::Above { lo: 0.0 }];
-        let found = polish(&cost, &transforms, simplex(&cost, &transforms, &[1.0], 500));
+        let (found, _) = polish(&cost, &transforms, simplex(&cost, &transforms, &[1.0], 500));
         assert!(found[0] > 0.0 && found[0] < 1e-3, "{found:?}");
     }
 }

@@ -167,7 +167,16 @@ pub fn rewrite(
             .comments
             .iter()
             .find(|c| c.trailing && c.span.start >= statement.span.end && c.span.start <= line_end);
+        // A directive (`# sdeck: ...`, `# expect: ...`) is not a description: left alone,
+        // and the note is not written (a line holds one comment).
+        let directive = |text: &str| {
+            let t = text.trim();
+            ["sdeck:", "expect:", "expect-next-line:"]
+                .iter()
+                .any(|d| t.starts_with(d))
+        };
         match trailing {
+            Some(comment) if directive(&comment.text) => {}
             Some(comment) => {
                 let text = described(Some(&comment.text), &note_text);
                 edits.push((comment.span.clone(), format!("# {text}")));
@@ -237,5 +246,53 @@ mod tests {
         );
         assert_eq!(described(Some("fitted 2025-01-01 from b.csv"), note), note);
         assert_eq!(described(None, note), note);
+    }
+
+    #[test]
+    fn values_and_notes_are_written_in_place() {
+        let source = "model m\nclock year\nparam k = 2 [1/year] > 0  # speed\n\
+                      param v = 30bp [1/sqrt(year)] > 0  # sdeck: allow unit-scale\n\
+                      param l = 3%\nshock W\nfactor x = 1%\ndx = k * (l - x) dt + v dW\n";
+        let analysis = analyze(source, "m");
+        assert!(!analysis.has_errors(), "{:?}", analysis.diagnostics);
+        let model = &analysis.model;
+        let rewrites = [
+            Rewrite {
+                param: 0,
+                value: 1.2345,
+                se: 0.21,
+            },
+            Rewrite {
+                param: 1,
+                value: 0.004_567,
+                se: 0.000_12,
+            },
+            Rewrite {
+                param: 2,
+                value: 0.021_23,
+                se: 0.001,
+            },
+        ];
+        let note = Note {
+            date: "2026-12-02".to_string(),
+            data: "x.csv".to_string(),
+        };
+        let text = rewrite(source, "m", model, &rewrites, &note).unwrap_or_else(|e| panic!("{e}"));
+        assert!(text.contains("param k = 1.23 [1/year] > 0  # speed; fitted 2026-12-02 from x.csv, se 0.21 [1/year]\n"), "{text}");
+        assert!(
+            text.contains("param v = 45.7bp [1/sqrt(year)] > 0  # sdeck: allow unit-scale\n"),
+            "{text}"
+        );
+        assert!(
+            text.contains("param l = 2.12%  # fitted 2026-12-02 from x.csv, se 0.1%\n"),
+            "{text}"
+        );
+        // A bound broken by the estimate: nothing.
+        let broken = [Rewrite {
+            param: 0,
+            value: -1.0,
+            se: 0.1,
+        }];
+        assert!(rewrite(source, "m", model, &broken, &note).is_err());
     }
 }
