@@ -53,7 +53,7 @@ impl OneStateForm {
 /// The one-state form of factor `state`, or why it has none (it mentions other factors,
 /// or its equation is not affine in drift with an at most quadratic squared diffusion).
 pub fn one_state_form(model: &Model, state: usize) -> Result<OneStateForm, String> {
-    let corr = model.correlation_matrix();
+    let corr = model.correlations();
     let classified = classify_state(model, state, &corr);
     match classified.one_state {
         Some(form) if classified.family != Family::General => Ok(OneStateForm {
@@ -74,7 +74,8 @@ pub struct LinearSystemForm {
     rows: Vec<(Vec<Poly>, Poly)>,
     /// Per factor: the loading on each noise.
     loads: Vec<Vec<Poly>>,
-    corr: Vec<Vec<f64>>,
+    corr: sdeck_semantics::Correlations,
+    shocks: usize,
 }
 
 impl LinearSystemForm {
@@ -83,7 +84,7 @@ impl LinearSystemForm {
     pub fn at(&self, params: &[f64], t: f64) -> Option<AffineGaussian> {
         let (rows, loads) = (&self.rows, &self.loads);
         let n = rows.len();
-        let m = self.corr.len();
+        let m = self.shocks;
         let value = |p: Option<&Poly>| p.map(|p| p.value(params, t)).unwrap_or(0.0);
         let a = DMatrix::from_fn(n, n, |r, c| {
             value(rows.get(r).and_then(|(cs, _)| cs.get(c)))
@@ -106,6 +107,7 @@ pub fn linear_system_form(model: &Model) -> Result<LinearSystemForm, String> {
             rows,
             loads,
             corr: analysis.corr,
+            shocks: model.shocks.len(),
         }),
         _ => Err(system.reason),
     }

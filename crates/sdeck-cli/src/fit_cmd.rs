@@ -78,7 +78,7 @@ pub fn run(args: FitArgs) -> ExitCode {
             return usage(format!("--column `{pair}`: write FACTOR=COLUMN"));
         };
         let (factor, column) = (factor.trim(), column.trim());
-        let Some(index) = model.state_index(factor) else {
+        let Some(index) = model.factor_index(factor) else {
             return usage(format!(
                 "--column `{pair}`: the model has no factor `{factor}` (factors: {})",
                 factor_names(model)
@@ -88,8 +88,8 @@ pub fn run(args: FitArgs) -> ExitCode {
         mapping.push((index, column.to_string()));
     }
     let (_, header) = fit_data::header(&data_text);
-    for (index, state) in model.states.iter().enumerate() {
-        if !mapping.iter().any(|(f, _)| *f == index) && header.iter().any(|h| *h == state.name) {
+    for (index, state) in model.factors.iter().enumerate() {
+        if !mapping.iter().any(|(f, _)| *f == index) && header.contains(&state.name) {
             mapping.push((index, state.name.clone()));
         }
     }
@@ -125,7 +125,7 @@ pub fn run(args: FitArgs) -> ExitCode {
             .iter()
             .zip(&factors)
             .map(|(column, &f)| {
-                let scale = model.states[f].scale;
+                let scale = model.factors[f].scale;
                 column.iter().map(|v| v.map(|x| x * scale)).collect()
             })
             .collect(),
@@ -184,7 +184,7 @@ pub fn run(args: FitArgs) -> ExitCode {
             .filter_map(|e| {
                 let p = &model.params[e.param];
                 let (lo, hi) = e.interval(LEVEL_CHECKED);
-                (!e.at_bound && !(p.value >= lo && p.value <= hi)).then(|| {
+                outside(e, p.value, lo, hi).then(|| {
                     format!(
                         "{} = {} in the file lies outside the 99% interval [{}, {}] of its \
                          estimate from {data_name}",
@@ -206,9 +206,15 @@ pub fn run(args: FitArgs) -> ExitCode {
     ExitCode::SUCCESS
 }
 
+/// Whether the file's value lies outside the interval [lo, hi] (clock units); never for an
+/// estimate at its bound, which has no interval.
+fn outside(e: &sdeck_fit::Estimate, value: f64, lo: f64, hi: f64) -> bool {
+    !e.at_bound && !(lo..=hi).contains(&value)
+}
+
 fn factor_names(model: &Model) -> String {
     model
-        .states
+        .factors
         .iter()
         .map(|s| s.name.as_str())
         .collect::<Vec<_>>()
@@ -288,7 +294,7 @@ impl Report<'_> {
         for (f, family) in self.factors.iter().zip(&self.fit.families) {
             out.push_str(&format!(
                 "  {}: {} transition law, exact likelihood\n",
-                self.model.states[*f].name,
+                self.model.factors[*f].name,
                 family.as_str()
             ));
         }
@@ -311,7 +317,7 @@ impl Report<'_> {
         for e in &self.fit.estimates {
             let p = &self.model.params[e.param];
             let (lo, hi) = e.interval(LEVEL_SHOWN);
-            let outside = !(p.value >= lo && p.value <= hi) && !e.at_bound;
+            let outside = outside(e, p.value, lo, hi);
             any_outside |= outside;
             any_at_bound |= e.at_bound;
             rows.push([

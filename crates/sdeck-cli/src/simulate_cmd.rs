@@ -179,7 +179,7 @@ fn export(
     let samples =
         sdeck_simulate::simulate_paths(model, &plan, &recording).map_err(|e| e.to_string())?;
     let mut out = String::from("t");
-    for state in &model.states {
+    for state in &model.factors {
         for p in 0..count {
             if count == 1 {
                 out.push_str(&format!(",{}", state.name));
@@ -191,7 +191,7 @@ fn export(
     out.push('\n');
     for (time, per_state) in samples.band_times.iter().zip(&samples.band_values) {
         out.push_str(&format!("{time}"));
-        for (state, values) in model.states.iter().zip(per_state) {
+        for (state, values) in model.factors.iter().zip(per_state) {
             for value in values.iter().take(count) {
                 out.push_str(&format!(",{}", value / state.scale));
             }

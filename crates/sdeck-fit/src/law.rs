@@ -11,7 +11,7 @@ const LN_2PI: f64 = 1.837_877_066_409_345_5;
 
 /// ln of the normal density N(mean, variance) at x.
 pub(crate) fn ln_normal(x: f64, mean: f64, variance: f64) -> f64 {
-    if !(variance > 0.0) {
+    if variance.is_nan() || variance <= 0.0 {
         return f64::NAN;
     }
     let d = x - mean;
@@ -121,7 +121,7 @@ pub(crate) fn ln_likelihood(family: Family, v: &OneStateValues, steps: &[Transit
 /// while the step stays the same (regular data: computed once).
 fn square_root_sum(v: &OneStateValues, steps: &[Transition]) -> f64 {
     let (a, b, beta) = (v.a, v.b, v.beta);
-    if !(beta > 0.0) {
+    if beta.is_nan() || beta <= 0.0 {
         return f64::NAN;
     }
     let q = 2.0 * a / beta - 1.0;

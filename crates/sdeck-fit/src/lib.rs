@@ -64,7 +64,7 @@ pub struct Series {
 #[derive(Clone, Copy, Debug)]
 pub struct Problem<'a> {
     pub model: &'a Model,
-    /// The observed factors (indices into `model.states`), in the order of `series.values`.
+    /// The observed factors (indices into `model.factors`), in the order of `series.values`.
     pub factors: &'a [usize],
     /// Parameters held at their file values (indices into `model.params`).
     pub fixed: &'a [usize],
@@ -194,7 +194,7 @@ fn normal_quantile(p: f64) -> f64 {
 pub fn parameters_in(model: &Model, factors: &[usize]) -> Vec<usize> {
     let mut out = Vec::new();
     for &f in factors {
-        if let Some(eq) = model.states.get(f).and_then(|s| s.equation.as_ref()) {
+        if let Some(eq) = model.factors.get(f).and_then(|s| s.equation.as_ref()) {
             collect(&eq.drift, &mut out, &mut Vec::new());
             for term in &eq.diffusion {
                 collect(&term.coefficient, &mut out, &mut Vec::new());
@@ -210,7 +210,7 @@ pub fn parameters_in(model: &Model, factors: &[usize]) -> Vec<usize> {
 fn collect(expr: &Expr, params: &mut Vec<usize>, states: &mut Vec<usize>) {
     match expr {
         Expr::Param(i) => params.push(*i),
-        Expr::State(i) => states.push(*i),
+        Expr::Factor(i) => states.push(*i),
         Expr::Neg(a) => collect(a, params, states),
         Expr::Add(a, b) | Expr::Sub(a, b) | Expr::Mul(a, b) | Expr::Div(a, b) | Expr::Pow(a, b) => {
             collect(a, params, states);
@@ -245,7 +245,7 @@ enum Plan {
 
 fn factor_name(model: &Model, i: usize) -> String {
     model
-        .states
+        .factors
         .get(i)
         .map(|s| s.name.clone())
         .unwrap_or_default()
@@ -312,7 +312,7 @@ fn plan(problem: &Problem) -> Result<Plan, FitError> {
     // Independent factors: no shock shared or correlated between two fitted equations.
     let shocks = |factor: usize| -> Vec<usize> {
         model
-            .states
+            .factors
             .get(factor)
             .and_then(|s| s.equation.as_ref())
             .map(|eq| eq.diffusion.iter().map(|d| d.noise).collect())
@@ -342,7 +342,7 @@ fn plan(problem: &Problem) -> Result<Plan, FitError> {
         return Ok(Plan::Singles(singles));
     }
     // Otherwise: the whole model as a fully observed linear system.
-    let n = model.states.len();
+    let n = model.factors.len();
     let mut columns = vec![usize::MAX; n];
     for (column, &factor) in problem.factors.iter().enumerate() {
         if let Some(slot) = columns.get_mut(factor) {
@@ -431,6 +431,15 @@ impl Plan {
     }
 }
 
+/// Per distinct step Δ: Δ, e^{AΔ}, the mean from zero and the Cholesky factor of the
+/// covariance.
+type StepLaw = (
+    f64,
+    DMatrix<f64>,
+    DVector<f64>,
+    nalgebra::Cholesky<f64, nalgebra::Dyn>,
+);
+
 /// Σ ln N(y; e^{AΔ} x + m(Δ), P(Δ)) over consecutive complete rows, with m and P the mean
 /// from zero and the covariance of the system after Δ (Van Loan 1978 via
 /// `AffineGaussian`), cached per distinct step.
@@ -455,12 +464,7 @@ fn system_log_likelihood(
                 .unwrap_or(f64::NAN)
         })
     };
-    let mut cache: Vec<(
-        f64,
-        DMatrix<f64>,
-        DVector<f64>,
-        nalgebra::Cholesky<f64, nalgebra::Dyn>,
-    )> = Vec::new();
+    let mut cache: Vec<StepLaw> = Vec::new();
     let mut total = 0.0;
     for pair in rows.windows(2) {
         let (Some(&t0), Some(&t1)) = (series.times.get(pair[0]), series.times.get(pair[1])) else {
@@ -590,7 +594,7 @@ pub fn fit(problem: &Problem) -> Result<Fit, FitError> {
         Plan::Singles(singles) => {
             for s in singles {
                 if let Some(domain) = law::domain(s.family) {
-                    if let Some(bad) = s.points.iter().find(|p| !(p.1 > 0.0)) {
+                    if let Some(bad) = s.points.iter().find(|p| p.1.is_nan() || p.1 <= 0.0) {
                         return Err(FitError::OutsideDomain {
                             column: s.column,
                             observation: bad.2,
@@ -705,7 +709,9 @@ pub fn fit(problem: &Problem) -> Result<Fit, FitError> {
         .map(|j| {
             let newton = theta[j] - gradient[j] / hessian[(j, j)];
             !matches!(transforms[j], Transform::Free { .. })
-                && (!(hessian[(j, j)] > 0.0) || !transforms[j].admits(newton))
+                && (hessian[(j, j)].is_nan()
+                    || hessian[(j, j)] <= 0.0
+                    || !transforms[j].admits(newton))
                 && gradient[j].abs() > 1e-6 * hessian[(j, j)].abs().sqrt()
         })
         .collect();

@@ -187,7 +187,7 @@ pub fn rewrite(
             }
         }
     }
-    edits.sort_by(|a, b| b.0.start.cmp(&a.0.start));
+    edits.sort_by_key(|edit| std::cmp::Reverse(edit.0.start));
     let mut text = source.to_string();
     for (span, replacement) in edits {
         if span.end > text.len() || !text.is_char_boundary(span.start) {
