@@ -32,6 +32,7 @@
 pub mod affine;
 pub mod algebra;
 pub mod breaks;
+pub mod coefficients;
 pub mod curve;
 pub mod describe;
 mod elementary;

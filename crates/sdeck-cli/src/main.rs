@@ -16,6 +16,8 @@ macro_rules! outln {
 mod check;
 mod curve_cmd;
 mod files;
+mod fit_cmd;
+mod fit_data;
 mod fmt_cmd;
 mod github;
 mod junit;
@@ -60,6 +62,9 @@ enum Command {
     Curve(curve_cmd::CurveArgs),
     /// Cross-check the derived law by Monte Carlo simulation.
     Simulate(simulate_cmd::SimulateArgs),
+    /// Estimate the model's parameters from a time series by exact maximum likelihood.
+    #[command(after_help = fit_cmd::CAUTION)]
+    Fit(fit_cmd::FitArgs),
     /// Format model files in place (aligned declarations, canonical spacing).
     Fmt(fmt_cmd::FmtArgs),
     /// Serve the Language Server Protocol on stdin/stdout, for editors.
@@ -108,6 +113,7 @@ fn main() -> ExitCode {
         Command::Moments(args) => moments::run(args),
         Command::Curve(args) => curve_cmd::run(args),
         Command::Simulate(args) => simulate_cmd::run(args),
+        Command::Fit(args) => fit_cmd::run(args),
         Command::Fmt(args) => fmt_cmd::run(args),
         Command::Lsp(args) => lsp_cmd::run(args),
         Command::Explain { rule, markdown } => explain(rule.as_deref(), markdown),

@@ -45,6 +45,14 @@ pub struct SimulateArgs {
     /// Write a fan chart of the simulated quantile bands (SVG).
     #[arg(long, value_name = "FILE.svg")]
     plot: Option<PathBuf>,
+    /// Write the first paths on the time grid as CSV in the form `sdeck fit` reads: a `t`
+    /// column (clock units) and one column per factor (`NAME` for one path, `NAME.1`,
+    /// `NAME.2`, ... for several), values in the factor's declared unit.
+    #[arg(long, value_name = "FILE.csv")]
+    export: Option<PathBuf>,
+    /// How many paths --export writes.
+    #[arg(long, value_name = "N", default_value_t = 1, requires = "export")]
+    export_paths: usize,
 }
 
 /// The most path steps (paths × steps) one run may take: ten billion, a hundred times the
@@ -121,6 +129,12 @@ pub fn run(args: SimulateArgs) -> ExitCode {
             return ExitCode::from(2);
         }
     }
+    if let Some(path) = &args.export {
+        if let Err(message) = export(path, model, &result.derivation, &options, args.export_paths) {
+            eprintln!("sdeck: {message}");
+            return ExitCode::from(2);
+        }
+    }
     if args.check {
         let disagreements = check(&simulated);
         if !disagreements.is_empty() {
@@ -131,4 +145,58 @@ pub fn run(args: SimulateArgs) -> ExitCode {
         }
     }
     ExitCode::SUCCESS
+}
+
+/// Writes the first `count` paths of the same random streams (the first paths do not
+/// depend on how many are simulated) at every step of the grid.
+fn export(
+    path: &std::path::Path,
+    model: &sdeck_semantics::Model,
+    derivation: &sdeck_calculus::Derivation,
+    options: &SimulationOptions,
+    count: usize,
+) -> Result<(), String> {
+    use sdeck_simulate::engine::{MAX_BAND_PATHS, MAX_BAND_TIMES};
+    if count == 0 || count > MAX_BAND_PATHS.min(options.paths) {
+        return Err(format!(
+            "--export-paths must be between 1 and {} (and at most --paths)",
+            MAX_BAND_PATHS
+        ));
+    }
+    if options.steps > MAX_BAND_TIMES {
+        return Err(format!(
+            "--export writes at most {MAX_BAND_TIMES} steps; use --steps {MAX_BAND_TIMES} or \
+             fewer"
+        ));
+    }
+    let recording = SimulationOptions {
+        paths: count,
+        band_times: options.steps,
+        progress: false,
+        ..options.clone()
+    };
+    let plan = sdeck_simulate::plan(model, derivation);
+    let samples =
+        sdeck_simulate::simulate_paths(model, &plan, &recording).map_err(|e| e.to_string())?;
+    let mut out = String::from("t");
+    for state in &model.factors {
+        for p in 0..count {
+            if count == 1 {
+                out.push_str(&format!(",{}", state.name));
+            } else {
+                out.push_str(&format!(",{}.{}", state.name, p + 1));
+            }
+        }
+    }
+    out.push('\n');
+    for (time, per_state) in samples.band_times.iter().zip(&samples.band_values) {
+        out.push_str(&format!("{time}"));
+        for (state, values) in model.factors.iter().zip(per_state) {
+            for value in values.iter().take(count) {
+                out.push_str(&format!(",{}", value / state.scale));
+            }
+        }
+        out.push('\n');
+    }
+    std::fs::write(path, out).map_err(|e| format!("cannot write `{}`: {e}", path.display()))
 }

@@ -1,0 +1,111 @@
+"""Reference maximum-likelihood fits made with scipy alone, for checking `sdeck fit`.
+
+The likelihoods are written from the published transition laws with scipy's densities:
+- Ornstein–Uhlenbeck (Vasicek 1977): X_{t+Δ} | x ~ N(θ + (x − θ)e^{−κΔ}, σ²(1 − e^{−2κΔ})/(2κ));
+- square-root (Cox, Ingersoll & Ross 1985, eq. 18): with c = 2κ/(σ²(1 − e^{−κΔ})),
+  2c X_{t+Δ} | x is noncentral chi-square with 4κθ/σ² degrees of freedom and
+  noncentrality 2c x e^{−κΔ}, so ln p(y | x) = ln 2c + ncx2.logpdf(2c y).
+scipy.optimize.minimize (Nelder–Mead, tight tolerances, on log κ and log σ) maximises
+them; standard errors come from a central-difference Hessian of the negative
+log-likelihood at the optimum.
+"""
+
+import numpy as np
+from scipy import optimize, stats
+
+
+def ou_negloglik(params, t, x):
+    kappa, theta, sigma = params
+    if kappa <= 0 or sigma <= 0:
+        return np.inf
+    dt = np.diff(t)
+    decay = np.exp(-kappa * dt)
+    mean = theta + (x[:-1] - theta) * decay
+    var = sigma**2 * (1 - decay**2) / (2 * kappa)
+    return -np.sum(stats.norm.logpdf(x[1:], loc=mean, scale=np.sqrt(var)))
+
+
+def cir_negloglik(params, t, x):
+    kappa, theta, sigma = params
+    if kappa <= 0 or sigma <= 0 or theta <= 0:
+        return np.inf
+    dt = np.diff(t)
+    c = 2 * kappa / (sigma**2 * (1 - np.exp(-kappa * dt)))
+    df = 4 * kappa * theta / sigma**2
+    nc = 2 * c * x[:-1] * np.exp(-kappa * dt)
+    value = -np.sum(np.log(2 * c) + stats.ncx2.logpdf(2 * c * x[1:], df, nc))
+    return value if np.isfinite(value) else np.inf
+
+
+def ar1_start(t, x):
+    """κ, θ, σ from the AR(1) regression at the mean step (a moment estimate)."""
+    dt = np.mean(np.diff(t))
+    slope, intercept = np.polyfit(x[:-1], x[1:], 1)
+    slope = min(max(slope, 1e-3), 1 - 1e-6)
+    kappa = -np.log(slope) / dt
+    theta = intercept / (1 - slope)
+    resid = x[1:] - intercept - slope * x[:-1]
+    sigma = np.sqrt(np.var(resid) * 2 * kappa / (1 - slope**2))
+    return kappa, theta, sigma
+
+
+def maximise(negloglik, t, x, start, square_root=False):
+    """(κ, θ, σ) maximising the likelihood, searched on (ln κ, θ, ln σ)."""
+    if square_root:
+        # σ of a square-root factor is a vol per sqrt(level): rescale the Gaussian start.
+        start = (start[0], start[1], start[2] / np.sqrt(max(np.mean(x), 1e-12)))
+
+    def objective(u):
+        return negloglik((np.exp(u[0]), u[1], np.exp(u[2])), t, x)
+
+    u = np.array([np.log(start[0]), start[1], np.log(start[2])])
+    for _ in range(3):
+        result = optimize.minimize(
+            objective,
+            u,
+            method="Nelder-Mead",
+            options={"xatol": 1e-13, "fatol": 1e-13, "maxiter": 40000, "maxfev": 80000},
+        )
+        u = result.x
+    return np.array([np.exp(u[0]), u[1], np.exp(u[2])])
+
+
+def standard_errors(negloglik, t, x, theta_hat, step=1e-4):
+    """sqrt of the diagonal of the inverse central-difference Hessian."""
+    k = len(theta_hat)
+    h = step * np.maximum(np.abs(theta_hat), 1e-8)
+    f = lambda p: negloglik(p, t, x)
+    hessian = np.zeros((k, k))
+    for i in range(k):
+        for j in range(k):
+            def shifted(si, sj):
+                p = np.array(theta_hat, dtype=float)
+                p[i] += si * h[i]
+                p[j] += sj * h[j]
+                return f(p)
+
+            hessian[i, j] = (
+                shifted(1, 1) - shifted(1, -1) - shifted(-1, 1) + shifted(-1, -1)
+            ) / (4 * h[i] * h[j])
+    return np.sqrt(np.diag(np.linalg.inv(hessian)))
+
+
+def simulate_cir(rng, n, dt, kappa, theta, sigma, x0):
+    """Exact sampling of the square-root transition (Glasserman 2004, §3.4.1)."""
+    x = np.empty(n)
+    x[0] = x0
+    c = 2 * kappa / (sigma**2 * (1 - np.exp(-kappa * dt)))
+    df = 4 * kappa * theta / sigma**2
+    for i in range(1, n):
+        x[i] = rng.noncentral_chisquare(df, 2 * c * x[i - 1] * np.exp(-kappa * dt)) / (2 * c)
+    return x
+
+
+def simulate_ou(rng, n, dt, kappa, theta, sigma, x0):
+    x = np.empty(n)
+    x[0] = x0
+    decay = np.exp(-kappa * dt)
+    sd = sigma * np.sqrt((1 - decay**2) / (2 * kappa))
+    for i in range(1, n):
+        x[i] = theta + (x[i - 1] - theta) * decay + sd * rng.standard_normal()
+    return x
