@@ -32,8 +32,7 @@ static ALLOCATOR: mimalloc::MiMalloc = mimalloc::MiMalloc;
 
 use std::process::ExitCode;
 
-const CAUTION: &str = "Caution: derived figures hold only under the model's assumptions. \
-Defer to your firm's model-validation practice and to local regulation before relying on them.";
+const CAUTION: &str = sdeck_report::CAUTION;
 
 #[derive(Parser)]
 #[command(

@@ -53,7 +53,7 @@ pub const MAX_PATH_STEPS: usize = 10_000_000_000;
 
 pub fn run(args: SimulateArgs) -> ExitCode {
     let result = match load_sound_model(&args.file, "nothing is simulated") {
-        Ok(r) => r,
+        Ok((_, r)) => r,
         Err(code) => return code,
     };
     let model = &result.analysis.model;
