@@ -168,9 +168,7 @@ impl StateLaw {
     /// Whether the law of the state is Gaussian (support the whole real line) with noise.
     pub fn is_gaussian_with_noise(&self) -> bool {
         let additive = match self.family {
-            Family::ArithmeticBrownian | Family::OrnsteinUhlenbeck | Family::LinearSystem => {
-                true
-            }
+            Family::ArithmeticBrownian | Family::OrnsteinUhlenbeck | Family::LinearSystem => true,
             Family::Linear => match &self.linear {
                 Some(lc) => lc.d.is_empty(),
                 None => self.method == Method::Quadrature,

@@ -701,7 +701,13 @@ fn expectations(model: &Model, derivation: &Derivation, out: &mut Vec<Diagnostic
         let name = state_name(model, expectation.state);
         let keyword = expectation.figure.keyword();
         let time = expectation.at.unwrap_or(model.horizon);
-        let value = figure_value(model, derivation, expectation.state, expectation.figure, time);
+        let value = figure_value(
+            model,
+            derivation,
+            expectation.state,
+            expectation.figure,
+            time,
+        );
         let described = if expectation.figure.takes_time() {
             format!("{keyword}({name}, {} {clock})", number(time, 6))
         } else {

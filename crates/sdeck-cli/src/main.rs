@@ -22,6 +22,7 @@ mod junit;
 mod lsp_cmd;
 mod moments;
 mod render;
+mod report_cmd;
 mod sarif;
 mod simulate_cmd;
 
@@ -59,6 +60,8 @@ enum Command {
     Curve(curve_cmd::CurveArgs),
     /// Cross-check the derived law by Monte Carlo simulation.
     Simulate(simulate_cmd::SimulateArgs),
+    /// Write the review document of models: derivation, figures, charts (HTML or Markdown).
+    Report(report_cmd::ReportArgs),
     /// Format model files in place (aligned declarations, canonical spacing).
     Fmt(fmt_cmd::FmtArgs),
     /// Serve the Language Server Protocol on stdin/stdout, for editors.
@@ -107,6 +110,7 @@ fn main() -> ExitCode {
         Command::Moments(args) => moments::run(args),
         Command::Curve(args) => curve_cmd::run(args),
         Command::Simulate(args) => simulate_cmd::run(args),
+        Command::Report(args) => report_cmd::run(args),
         Command::Fmt(args) => fmt_cmd::run(args),
         Command::Lsp(args) => lsp_cmd::run(args),
         Command::Explain { rule, markdown } => explain(rule.as_deref(), markdown),

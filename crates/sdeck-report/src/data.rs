@@ -149,7 +149,9 @@ pub fn figures_at(model: &Model, derivation: &Derivation, t: f64) -> Vec<Figures
                 .is_some_and(|law| law.is_gaussian_with_noise());
             let start = model.states.get(i).map_or(0.0, |s| s.initial);
             let sign_change = match (mean, variance) {
-                (Some(m), Some(v)) if gaussian && quantiles.is_some() && v > 0.0 && start != 0.0 => {
+                (Some(m), Some(v))
+                    if gaussian && quantiles.is_some() && v > 0.0 && start != 0.0 =>
+                {
                     Normal::new(0.0, 1.0).ok().map(|n| {
                         let z = m / v.sqrt();
                         // Below zero from a positive start, above it from a negative one.

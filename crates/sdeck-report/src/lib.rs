@@ -22,15 +22,31 @@
 //! assert_eq!(r.half_life, Some(2f64.ln() / 2.0));
 //! ```
 
+pub mod charts;
 pub mod data;
+pub mod html;
+pub mod markdown;
+pub mod mathml;
 pub mod moments;
+pub mod review;
 
 pub use data::{
-    figures_at, time_grid, ExpectationRow, FactorReport, Figures, ModelReport, ParamRow,
-    Quantile, StationaryLaw, QUANTILE_LEVELS,
+    figures_at, time_grid, ExpectationRow, FactorReport, Figures, ModelReport, ParamRow, Quantile,
+    StationaryLaw, QUANTILE_LEVELS,
 };
 
 use sdeck_calculus::Formulas;
+
+pub use review::{Review, ReviewOptions};
+
+/// What the header of a document says besides the model: when and by what it was made.
+#[derive(Clone, Debug, PartialEq)]
+pub struct DocumentInfo {
+    /// e.g. `2026-12-02`.
+    pub date: String,
+    /// e.g. `sdeck 0.1.0`.
+    pub version: String,
+}
 
 /// The caution every report carries.
 pub const CAUTION: &str = "Caution: derived figures hold only under the model's assumptions. \

@@ -64,7 +64,11 @@ pub fn moments_text(report: &ModelReport, caution: &str) -> String {
             s.push_str(&format!("  {label:<11} {text}\n"));
         }
         let fig = &f.figures;
-        s.push_str(&format!("  E[{}(t)]   = {}\n", f.name, or_unknown(fig.mean)));
+        s.push_str(&format!(
+            "  E[{}(t)]   = {}\n",
+            f.name,
+            or_unknown(fig.mean)
+        ));
         s.push_str(&format!(
             "  Var[{}(t)] = {}\n",
             f.name,
