@@ -15,6 +15,7 @@ macro_rules! outln {
 
 mod check;
 mod curve_cmd;
+mod diff_cmd;
 mod files;
 mod fmt_cmd;
 mod github;
@@ -62,6 +63,8 @@ enum Command {
     Simulate(simulate_cmd::SimulateArgs),
     /// Write the review document of models: derivation, figures, charts (HTML or Markdown).
     Report(report_cmd::ReportArgs),
+    /// What a change of model text does to the derived law (two files, or --since REV).
+    Diff(diff_cmd::DiffArgs),
     /// Format model files in place (aligned declarations, canonical spacing).
     Fmt(fmt_cmd::FmtArgs),
     /// Serve the Language Server Protocol on stdin/stdout, for editors.
@@ -111,6 +114,7 @@ fn main() -> ExitCode {
         Command::Curve(args) => curve_cmd::run(args),
         Command::Simulate(args) => simulate_cmd::run(args),
         Command::Report(args) => report_cmd::run(args),
+        Command::Diff(args) => diff_cmd::run(args),
         Command::Fmt(args) => fmt_cmd::run(args),
         Command::Lsp(args) => lsp_cmd::run(args),
         Command::Explain { rule, markdown } => explain(rule.as_deref(), markdown),

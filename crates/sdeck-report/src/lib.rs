@@ -24,6 +24,7 @@
 
 pub mod charts;
 pub mod data;
+pub mod diff;
 pub mod html;
 pub mod markdown;
 pub mod mathml;
