@@ -31,7 +31,8 @@ pre.source .finding { display: block; margin-left: 4em; padding: .1rem .5rem; wh
 .error { background: #fde8e8; color: #8a1c1c; } .warning { background: #fff4d6; color: #6b4d00; }
 .hint, .info { background: #e8f0fb; color: #1f4a7c; }
 math { font-size: 1.1rem; }
-.formula { display: grid; grid-template-columns: 7rem 1fr; align-items: center; margin: .3rem 0; }
+.formula { display: grid; grid-template-columns: 7rem minmax(0, 1fr); align-items: center; margin: .3rem 0; }
+.formula .math { overflow-x: auto; }
 .formula .label { color: var(--muted); font-size: .85rem; }
 .holds { color: #1d6b34; } .fails { color: #8a1c1c; font-weight: bold; }
 svg { max-width: 100%; height: auto; display: block; margin: .5rem 0; }
@@ -198,7 +199,7 @@ fn factors(s: &mut String, r: &ModelReport, grid: &[Vec<Figures>]) {
         for (label, text) in formula_lines(&f.formulas) {
             let _ = write!(
                 s,
-                r#"<div class="formula"><span class="label">{label}</span>{}</div>"#,
+                r#"<div class="formula"><span class="label">{label}</span><div class="math">{}</div></div>"#,
                 math(text)
             );
         }
