@@ -132,10 +132,17 @@ pub fn figures_at(model: &Model, derivation: &Derivation, t: f64) -> Vec<Figures
         .map(|i| {
             let mean = moments.mean.get(i).copied().flatten();
             let variance = moments.variance.get(i).copied().flatten();
+            let start = model.states.get(i).map_or(0.0, |s| s.initial);
             let quantiles: Option<Vec<Quantile>> = QUANTILE_LEVELS
                 .iter()
                 .map(|&p| {
-                    quantile(model, derivation, i, t, p)
+                    // At 0 every law is the point mass at the start.
+                    let q = if t == 0.0 {
+                        Some(start)
+                    } else {
+                        quantile(model, derivation, i, t, p)
+                    };
+                    q
                         .filter(|v| v.is_finite())
                         .map(|value| Quantile {
                             probability: p,
@@ -147,7 +154,6 @@ pub fn figures_at(model: &Model, derivation: &Derivation, t: f64) -> Vec<Figures
                 .states
                 .get(i)
                 .is_some_and(|law| law.is_gaussian_with_noise());
-            let start = model.states.get(i).map_or(0.0, |s| s.initial);
             let sign_change = match (mean, variance) {
                 (Some(m), Some(v))
                     if gaussian && quantiles.is_some() && v > 0.0 && start != 0.0 =>
