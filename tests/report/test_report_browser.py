@@ -61,8 +61,7 @@ def moments(model, at=None):
     if at is not None:
         args += ["--at", repr(at)]
     data = json.loads(sdeck(*args))
-    # Accept either key while the language's words change.
-    return data, data.get("factors", data.get("states"))
+    return data, data["factors"]
 
 
 @pytest.mark.parametrize("model", MODELS, ids=[m.stem for m in MODELS])

@@ -115,7 +115,8 @@ pub fn run(args: SimulateArgs) -> ExitCode {
             .map(|b| b.times.clone())
             .unwrap_or_default();
         let closed = closed_bands(model, &result.derivation, &times);
-        let units: Vec<Option<String>> = model.states.iter().map(|s| s.unit_text.clone()).collect();
+        let units: Vec<Option<String>> =
+            model.factors.iter().map(|s| s.unit_text.clone()).collect();
         let charts = fan_charts(&simulated, &closed, &units);
         if let Err(e) = std::fs::write(path, stack(&charts)) {
             eprintln!("sdeck: cannot write the chart `{}`: {e}", path.display());

@@ -87,8 +87,8 @@ fn a_changed_speed_reports_the_exact_old_and_new_figures() {
     let old_moments: Value = serde_json::from_str(&old_moments).unwrap_or(Value::Null);
     let new_moments: Value = serde_json::from_str(&new_moments).unwrap_or(Value::Null);
     let mean = figure(&json, "r", "mean");
-    assert_eq!(mean["old"], old_moments["states"][0]["mean"]);
-    assert_eq!(mean["new"], new_moments["states"][0]["mean"]);
+    assert_eq!(mean["old"], old_moments["factors"][0]["mean"]);
+    assert_eq!(mean["new"], new_moments["factors"][0]["mean"]);
     let (old_m, new_m) = (
         mean["old"].as_f64().unwrap_or(f64::NAN),
         mean["new"].as_f64().unwrap_or(f64::NAN),

@@ -128,11 +128,11 @@ pub struct ModelReport {
 /// The figures of every factor at time `t`.
 pub fn figures_at(model: &Model, derivation: &Derivation, t: f64) -> Vec<Figures> {
     let moments = moments_at(model, derivation, t);
-    (0..model.states.len())
+    (0..model.factors.len())
         .map(|i| {
             let mean = moments.mean.get(i).copied().flatten();
             let variance = moments.variance.get(i).copied().flatten();
-            let start = model.states.get(i).map_or(0.0, |s| s.initial);
+            let start = model.factors.get(i).map_or(0.0, |s| s.initial);
             let quantiles: Option<Vec<Quantile>> = QUANTILE_LEVELS
                 .iter()
                 .map(|&p| {
@@ -142,12 +142,10 @@ pub fn figures_at(model: &Model, derivation: &Derivation, t: f64) -> Vec<Figures
                     } else {
                         quantile(model, derivation, i, t, p)
                     };
-                    q
-                        .filter(|v| v.is_finite())
-                        .map(|value| Quantile {
-                            probability: p,
-                            value,
-                        })
+                    q.filter(|v| v.is_finite()).map(|value| Quantile {
+                        probability: p,
+                        value,
+                    })
                 })
                 .collect();
             let gaussian = derivation
@@ -237,7 +235,7 @@ fn expectation_row(
         text: source.get(e.span.clone()).unwrap_or("").trim().to_string(),
         line: line_of(source, e.span.start),
         factor: model
-            .states
+            .factors
             .get(e.state)
             .map(|s| s.name.clone())
             .unwrap_or_default(),
@@ -256,7 +254,7 @@ impl ModelReport {
         let figures = figures_at(model, derivation, at);
         let moments = moments_at(model, derivation, at);
         let factors = model
-            .states
+            .factors
             .iter()
             .zip(figures)
             .enumerate()

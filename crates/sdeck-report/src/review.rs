@@ -92,7 +92,7 @@ pub fn closed_bands(
         .iter()
         .map(|t| figures_at(model, derivation, *t))
         .collect();
-    (0..model.states.len())
+    (0..model.factors.len())
         .map(|i| {
             let pick = |f: &dyn Fn(&Figures) -> Option<f64>| -> Vec<Option<f64>> {
                 per_time.iter().map(|row| row.get(i).and_then(f)).collect()
