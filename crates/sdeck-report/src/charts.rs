@@ -255,8 +255,9 @@ impl FanChart<'_> {
                 continue;
             };
             let mut y = frame.y(v) + 4.0;
-            if used.iter().any(|u| (u - y).abs() < 13.0) {
-                y += 13.0;
+            if let Some(u) = used.iter().find(|u| (*u - y).abs() < 13.0) {
+                // Too close to a label already placed: stand clear of it on this side.
+                y = if y >= *u { u + 13.0 } else { u - 13.0 };
             }
             used.push(y);
             let _ = write!(

@@ -1,8 +1,8 @@
 //! The report of one model as data: built once from the analysis, rendered by every face.
 
-use sdeck_calculus::{figure_value, moments_at, quantile, Derivation, Family, Formulas, Method};
+use sdeck_calculus::laws::{law_of, LawKind};
+use sdeck_calculus::{figure_value, moments_at, Derivation, Family, Formulas, Method};
 use sdeck_semantics::{Expectation, Interval, Model};
-use statrs::distribution::{ContinuousCDF, Normal};
 
 /// The probabilities at which quantiles are reported.
 pub const QUANTILE_LEVELS: [f64; 5] = [0.01, 0.05, 0.5, 0.95, 0.99];
@@ -21,6 +21,9 @@ pub struct Figures {
     pub mean: Option<f64>,
     pub variance: Option<f64>,
     pub sd: Option<f64>,
+    /// The name of the law at `at` when it is known (`normal`, `lognormal`,
+    /// `noncentral-chi-square`, `fourier`).
+    pub law: Option<&'static str>,
     /// At [`QUANTILE_LEVELS`], when the law is known (all of them or none).
     pub quantiles: Option<Vec<Quantile>>,
     /// The probability that the factor's sign at `at` differs from its sign at 0, when
@@ -133,46 +136,37 @@ pub fn figures_at(model: &Model, derivation: &Derivation, t: f64) -> Vec<Figures
             let mean = moments.mean.get(i).copied().flatten();
             let variance = moments.variance.get(i).copied().flatten();
             let start = model.factors.get(i).map_or(0.0, |s| s.initial);
-            let quantiles: Option<Vec<Quantile>> = QUANTILE_LEVELS
-                .iter()
-                .map(|&p| {
-                    // At 0 every law is the point mass at the start.
-                    let q = if t == 0.0 {
-                        Some(start)
-                    } else {
-                        quantile(model, derivation, i, t, p)
-                    };
-                    q.filter(|v| v.is_finite()).map(|value| Quantile {
-                        probability: p,
-                        value,
+            let law = law_of(model, derivation, i, t);
+            let quantiles: Option<Vec<Quantile>> = law.as_ref().and_then(|law| {
+                QUANTILE_LEVELS
+                    .iter()
+                    .map(|&p| {
+                        law.quantile(p)
+                            .filter(|v| v.is_finite())
+                            .map(|value| Quantile {
+                                probability: p,
+                                value,
+                            })
                     })
-                })
-                .collect();
-            let gaussian = derivation
-                .states
-                .get(i)
-                .is_some_and(|law| law.is_gaussian_with_noise());
-            let sign_change = match (mean, variance) {
-                (Some(m), Some(v))
-                    if gaussian && quantiles.is_some() && v > 0.0 && start != 0.0 =>
-                {
-                    Normal::new(0.0, 1.0).ok().map(|n| {
-                        let z = m / v.sqrt();
-                        // Below zero from a positive start, above it from a negative one.
-                        if start > 0.0 {
-                            n.cdf(-z)
-                        } else {
-                            n.cdf(z)
-                        }
-                    })
+                    .collect()
+            });
+            // Only a law on the whole line lets the sign change (normal, or known through
+            // its transform and putting mass below zero).
+            let sign_change = law.as_ref().and_then(|law| {
+                let whole_line = matches!(law.kind(), LawKind::Normal | LawKind::Fourier);
+                if !(whole_line && t > 0.0 && start != 0.0) {
+                    return None;
                 }
-                _ => None,
-            };
+                let below = law.cdf(0.0)?;
+                let p = if start > 0.0 { below } else { 1.0 - below };
+                (law.kind() == LawKind::Normal || p > 0.0).then_some(p)
+            });
             Figures {
                 at: t,
                 mean,
                 variance,
                 sd: variance.filter(|v| *v >= 0.0).map(f64::sqrt),
+                law: law.as_ref().map(|l| l.kind().as_str()),
                 quantiles,
                 sign_change,
             }

@@ -205,6 +205,9 @@ fn factors(s: &mut String, r: &ModelReport, grid: &[Vec<Figures>]) {
         }
         grid_table(s, r, i, grid);
         s.push_str("<ul>");
+        if let Some(law) = f.figures.law {
+            let _ = write!(s, "<li>law at the horizon: {law}</li>");
+        }
         match f.half_life {
             Some(h) => {
                 let _ = write!(

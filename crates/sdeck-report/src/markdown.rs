@@ -105,6 +105,9 @@ fn model(s: &mut String, review: &Review, r: &ModelReport) {
             .collect();
         let head_refs: Vec<&str> = head.iter().map(String::as_str).collect();
         table(s, &head_refs, &rows);
+        if let Some(law) = f.figures.law {
+            let _ = writeln!(s, "- law at the horizon: {law}");
+        }
         match f.half_life {
             Some(h) => {
                 let _ = writeln!(s, "- half-life: {} {}", plain(h), r.clock);

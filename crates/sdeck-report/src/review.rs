@@ -88,23 +88,25 @@ pub fn closed_bands(
     derivation: &sdeck_calculus::Derivation,
     times: &[f64],
 ) -> Vec<ClosedBands> {
-    let per_time: Vec<Vec<Figures>> = times
-        .iter()
-        .map(|t| figures_at(model, derivation, *t))
-        .collect();
-    (0..model.factors.len())
-        .map(|i| {
-            let pick = |f: &dyn Fn(&Figures) -> Option<f64>| -> Vec<Option<f64>> {
-                per_time.iter().map(|row| row.get(i).and_then(f)).collect()
-            };
-            ClosedBands {
-                mean: pick(&|f| f.mean),
-                low: pick(&|f| f.quantile(0.05)),
-                median: pick(&|f| f.quantile(0.5)),
-                high: pick(&|f| f.quantile(0.95)),
-            }
-        })
-        .collect()
+    use sdeck_calculus::laws::{law_of, LawKind};
+    // A law known only through its transform costs a numerical inversion per quantile:
+    // its band is drawn through about a dozen times, which its smooth curve allows.
+    let stride = times.len().div_ceil(10).max(1);
+    let mut bands = vec![ClosedBands::default(); model.factors.len()];
+    for (k, t) in times.iter().enumerate() {
+        let moments = sdeck_calculus::moments_at(model, derivation, *t);
+        let sparse = k % stride != 0 && k + 1 != times.len();
+        for (i, band) in bands.iter_mut().enumerate() {
+            let law = law_of(model, derivation, i, *t)
+                .filter(|l| !(sparse && l.kind() == LawKind::Fourier));
+            let q = |p: f64| law.as_ref().and_then(|l| l.quantile(p));
+            band.mean.push(moments.mean.get(i).copied().flatten());
+            band.low.push(q(0.05));
+            band.median.push(q(0.5));
+            band.high.push(q(0.95));
+        }
+    }
+    bands
 }
 
 /// The diagnostics of a check, located.

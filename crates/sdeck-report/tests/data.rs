@@ -31,6 +31,7 @@ fn an_ornstein_uhlenbeck_factor_has_the_vasicek_law_and_its_sign_change() {
     let variance = r.figures.variance.unwrap_or(f64::NAN);
     assert!((mean - 0.023482032441269146).abs() < 1e-15);
     assert!((variance - 4.1975751926711254e-05).abs() < 1e-18);
+    assert_eq!(r.figures.law, Some("normal"));
     let p = r.figures.sign_change.unwrap_or(f64::NAN);
     assert!((p - 0.00014481503297789774).abs() < 1e-12, "{p}");
     // Quantiles of a normal law: the median is the mean, the 5% and 95% points are
@@ -77,6 +78,7 @@ fn a_square_root_factor_allows_no_sign_change() {
     let report = report_of(&demo("cir_funding_rate.sde"), 1.0);
     let r = &report.factors[0];
     assert_eq!(r.family.as_str(), "square-root");
+    assert_eq!(r.figures.law, Some("noncentral-chi-square"));
     assert!(r.figures.quantiles.is_some());
     assert_eq!(r.figures.sign_change, None);
 }
@@ -90,4 +92,23 @@ fn correlation_is_the_covariance_scaled_by_both_deviations() {
     assert_eq!(report.correlation[0][0], Some(1.0));
     assert_eq!(report.correlation[1][0], report.correlation[0][1]);
     assert!(rho > 0.0 && rho < 1.0);
+}
+
+#[test]
+fn a_factor_known_through_its_transform_has_quantiles_and_its_law_named() {
+    // The log-index of the demo stochastic-variance model: its law is known only through
+    // the affine transform. Its quantiles must straddle the mean and increase.
+    let report = report_of(&demo("stochastic_variance_index.sde"), 1.0);
+    let x = &report.factors[0];
+    assert_eq!(x.figures.law, Some("fourier"));
+    let q: Vec<f64> = x
+        .figures
+        .quantiles
+        .as_ref()
+        .map(|q| q.iter().map(|q| q.value).collect())
+        .unwrap_or_default();
+    assert_eq!(q.len(), 5);
+    assert!(q.windows(2).all(|w| w[0] < w[1]), "{q:?}");
+    let mean = x.figures.mean.unwrap_or(f64::NAN);
+    assert!(q[0] < mean && mean < q[4]);
 }
