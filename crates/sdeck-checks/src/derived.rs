@@ -789,7 +789,7 @@ fn overflow_note(model: &Model) -> Option<String> {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use sdeck_calculus::derive;
+    use sdeck_calculus::{derive, moments_at};
     use sdeck_diagnostics::Rule;
 
     fn run(source: &str) -> (Model, Vec<Diagnostic>) {

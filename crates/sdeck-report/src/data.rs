@@ -11,7 +11,34 @@ pub const QUANTILE_LEVELS: [f64; 5] = [0.01, 0.05, 0.5, 0.95, 0.99];
 #[derive(Clone, Debug, PartialEq)]
 pub struct Quantile {
     pub probability: f64,
-    pub value: f64,
+    /// `None` when the law is not known.
+    pub value: Option<f64>,
+}
+
+/// The probability that a factor stays below a level.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Below {
+    pub level: f64,
+    /// P(X ≤ level); `None` when the law is not known.
+    pub probability: Option<f64>,
+}
+
+/// Which quantiles and levels the figures are asked for.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Levels {
+    /// Probabilities strictly between 0 and 1.
+    pub quantiles: Vec<f64>,
+    /// `(factor, level)` pairs.
+    pub below: Vec<(usize, f64)>,
+}
+
+impl Default for Levels {
+    fn default() -> Self {
+        Levels {
+            quantiles: QUANTILE_LEVELS.to_vec(),
+            below: Vec::new(),
+        }
+    }
 }
 
 /// The figures of one factor at one time (clock units).
@@ -20,25 +47,33 @@ pub struct Figures {
     pub at: f64,
     pub mean: Option<f64>,
     pub variance: Option<f64>,
+    /// The time from which the variance is infinite, when it explodes.
+    pub variance_infinite_from: Option<f64>,
     pub sd: Option<f64>,
     /// The name of the law at `at` when it is known (`normal`, `lognormal`,
     /// `noncentral-chi-square`, `fourier`).
     pub law: Option<&'static str>,
-    /// At [`QUANTILE_LEVELS`], when the law is known (all of them or none).
-    pub quantiles: Option<Vec<Quantile>>,
+    /// At the asked probabilities ([`QUANTILE_LEVELS`] by default).
+    pub quantiles: Vec<Quantile>,
+    /// At the asked levels of this factor.
+    pub below: Vec<Below>,
     /// The probability that the factor's sign at `at` differs from its sign at 0, when
     /// its law is Gaussian (a law that allows a sign change) and it starts away from 0.
     pub sign_change: Option<f64>,
 }
 
 impl Figures {
-    /// The quantile at probability `p` (one of [`QUANTILE_LEVELS`]).
+    /// The quantile at probability `p` (one of those asked).
     pub fn quantile(&self, p: f64) -> Option<f64> {
         self.quantiles
-            .as_ref()?
             .iter()
             .find(|q| q.probability == p)
-            .map(|q| q.value)
+            .and_then(|q| q.value)
+    }
+
+    /// Whether every asked quantile is known.
+    pub fn quantiles_known(&self) -> bool {
+        !self.quantiles.is_empty() && self.quantiles.iter().all(|q| q.value.is_some())
     }
 }
 
@@ -128,8 +163,18 @@ pub struct ModelReport {
     pub expectations: Vec<ExpectationRow>,
 }
 
-/// The figures of every factor at time `t`.
+/// The figures of every factor at time `t`, with the default quantiles.
 pub fn figures_at(model: &Model, derivation: &Derivation, t: f64) -> Vec<Figures> {
+    figures_with(model, derivation, t, &Levels::default())
+}
+
+/// The figures of every factor at time `t`, with the quantiles and levels asked.
+pub fn figures_with(
+    model: &Model,
+    derivation: &Derivation,
+    t: f64,
+    levels: &Levels,
+) -> Vec<Figures> {
     let moments = moments_at(model, derivation, t);
     (0..model.factors.len())
         .map(|i| {
@@ -137,19 +182,26 @@ pub fn figures_at(model: &Model, derivation: &Derivation, t: f64) -> Vec<Figures
             let variance = moments.variance.get(i).copied().flatten();
             let start = model.factors.get(i).map_or(0.0, |s| s.initial);
             let law = law_of(model, derivation, i, t);
-            let quantiles: Option<Vec<Quantile>> = law.as_ref().and_then(|law| {
-                QUANTILE_LEVELS
-                    .iter()
-                    .map(|&p| {
-                        law.quantile(p)
-                            .filter(|v| v.is_finite())
-                            .map(|value| Quantile {
-                                probability: p,
-                                value,
-                            })
-                    })
-                    .collect()
-            });
+            let quantiles: Vec<Quantile> = levels
+                .quantiles
+                .iter()
+                .map(|&p| Quantile {
+                    probability: p,
+                    value: law
+                        .as_ref()
+                        .and_then(|l| l.quantile(p))
+                        .filter(|v| v.is_finite()),
+                })
+                .collect();
+            let below: Vec<Below> = levels
+                .below
+                .iter()
+                .filter(|(k, _)| *k == i)
+                .map(|&(_, level)| Below {
+                    level,
+                    probability: law.as_ref().and_then(|l| l.cdf(level)),
+                })
+                .collect();
             // Only a law on the whole line lets the sign change (normal, or known through
             // its transform and putting mass below zero).
             let sign_change = law.as_ref().and_then(|law| {
@@ -165,9 +217,11 @@ pub fn figures_at(model: &Model, derivation: &Derivation, t: f64) -> Vec<Figures
                 at: t,
                 mean,
                 variance,
+                variance_infinite_from: moments.variance_infinite_from.get(i).copied().flatten(),
                 sd: variance.filter(|v| *v >= 0.0).map(f64::sqrt),
                 law: law.as_ref().map(|l| l.kind().as_str()),
                 quantiles,
+                below,
                 sign_change,
             }
         })
@@ -245,7 +299,18 @@ impl ModelReport {
     /// Builds the report of `model` at time `at` (clock units). `source` is the model's
     /// text, from which the expectations are quoted.
     pub fn build(model: &Model, derivation: &Derivation, source: &str, at: f64) -> ModelReport {
-        let figures = figures_at(model, derivation, at);
+        Self::build_with(model, derivation, source, at, &Levels::default())
+    }
+
+    /// [`ModelReport::build`] with the quantiles and levels asked.
+    pub fn build_with(
+        model: &Model,
+        derivation: &Derivation,
+        source: &str,
+        at: f64,
+        levels: &Levels,
+    ) -> ModelReport {
+        let figures = figures_with(model, derivation, at, levels);
         let moments = moments_at(model, derivation, at);
         let factors = model
             .factors

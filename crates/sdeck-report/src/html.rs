@@ -208,6 +208,14 @@ fn factors(s: &mut String, r: &ModelReport, grid: &[Vec<Figures>]) {
         if let Some(law) = f.figures.law {
             let _ = write!(s, "<li>law at the horizon: {law}</li>");
         }
+        if let Some(from) = f.figures.variance_infinite_from {
+            let _ = write!(
+                s,
+                "<li>the variance is infinite from t = {} {}</li>",
+                plain(from),
+                escape(&r.clock)
+            );
+        }
         match f.half_life {
             Some(h) => {
                 let _ = write!(
@@ -237,7 +245,7 @@ fn factors(s: &mut String, r: &ModelReport, grid: &[Vec<Figures>]) {
             }
             None => s.push_str("<li>no stationary law</li>"),
         }
-        if f.figures.sign_change.is_none() && f.figures.quantiles.is_some() {
+        if f.figures.sign_change.is_none() && f.figures.quantiles_known() {
             s.push_str(
                 "<li>its law allows no change of sign from its start, or it starts at zero</li>",
             );

@@ -32,8 +32,8 @@ pub mod moments;
 pub mod review;
 
 pub use data::{
-    figures_at, time_grid, ExpectationRow, FactorReport, Figures, ModelReport, ParamRow, Quantile,
-    StationaryLaw, QUANTILE_LEVELS,
+    figures_at, figures_with, time_grid, Below, ExpectationRow, FactorReport, Figures, Levels,
+    ModelReport, ParamRow, Quantile, StationaryLaw, QUANTILE_LEVELS,
 };
 
 use sdeck_calculus::Formulas;

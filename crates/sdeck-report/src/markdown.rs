@@ -108,6 +108,14 @@ fn model(s: &mut String, review: &Review, r: &ModelReport) {
         if let Some(law) = f.figures.law {
             let _ = writeln!(s, "- law at the horizon: {law}");
         }
+        if let Some(from) = f.figures.variance_infinite_from {
+            let _ = writeln!(
+                s,
+                "- the variance is infinite from t = {} {}",
+                plain(from),
+                r.clock
+            );
+        }
         match f.half_life {
             Some(h) => {
                 let _ = writeln!(s, "- half-life: {} {}", plain(h), r.clock);

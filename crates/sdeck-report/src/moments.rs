@@ -1,6 +1,6 @@
 //! `sdeck moments`: the report at one time as text and as JSON.
 
-use crate::data::{ModelReport, QUANTILE_LEVELS};
+use crate::data::ModelReport;
 use sdeck_units::number::{or_unknown, plain};
 use serde_json::{json, Value};
 
@@ -18,11 +18,17 @@ pub fn moments_json(report: &ModelReport) -> Value {
         .factors
         .iter()
         .map(|f| {
+            let g = &f.figures;
             json!({
                 "name": f.name,
                 "family": f.family.as_str(),
-                "mean": num(f.figures.mean),
-                "variance": num(f.figures.variance),
+                "mean": num(g.mean),
+                "variance": num(g.variance),
+                "variance_infinite_from": num(g.variance_infinite_from),
+                "sd": num(g.sd),
+                "law": g.law,
+                "quantiles": g.quantiles.iter().map(|q| json!({"p": q.probability, "value": num(q.value)})).collect::<Vec<_>>(),
+                "below": g.below.iter().map(|b| json!({"value": b.level, "probability": num(b.probability)})).collect::<Vec<_>>(),
                 "exact": f.exact,
                 "formulas": {
                     "solution": f.formulas.solution,
@@ -69,19 +75,44 @@ pub fn moments_text(report: &ModelReport, caution: &str) -> String {
             f.name,
             or_unknown(fig.mean)
         ));
+        match fig.variance_infinite_from {
+            Some(from) => s.push_str(&format!(
+                "  Var[{}(t)] = infinite (from t = {} {clock})\n",
+                f.name,
+                plain(from)
+            )),
+            None => s.push_str(&format!(
+                "  Var[{}(t)] = {}\n",
+                f.name,
+                or_unknown(fig.variance)
+            )),
+        }
         s.push_str(&format!(
-            "  Var[{}(t)] = {}\n",
-            f.name,
-            or_unknown(fig.variance)
+            "  sd        = {}\n",
+            if fig.variance_infinite_from.is_some() {
+                "infinite".to_string()
+            } else {
+                or_unknown(fig.sd)
+            }
         ));
-        s.push_str(&format!("  sd        = {}\n", or_unknown(fig.sd)));
-        if let Some(quantiles) = &fig.quantiles {
-            let parts: Vec<String> = QUANTILE_LEVELS
+        if let Some(kind) = fig.law {
+            s.push_str(&format!("  law       = {kind}\n"));
+        }
+        if fig.quantiles_known() {
+            let parts: Vec<String> = fig
+                .quantiles
                 .iter()
-                .zip(quantiles)
-                .map(|(p, q)| format!("{}% {}", plain(p * 100.0), plain(q.value)))
+                .map(|q| format!("{}% {}", plain(q.probability * 100.0), or_unknown(q.value)))
                 .collect();
             s.push_str(&format!("  quantiles = {}\n", parts.join(", ")));
+        }
+        for b in &fig.below {
+            s.push_str(&format!(
+                "  P({} < {}) = {}\n",
+                f.name,
+                plain(b.level),
+                or_unknown(b.probability)
+            ));
         }
         if let Some(h) = f.half_life {
             s.push_str(&format!("  half-life = {} {clock}\n", plain(h)));
