@@ -48,6 +48,7 @@ mod shape;
 mod system;
 
 use sdeck_semantics::Model;
+use sdeck_syntax::ast::Figure;
 use shape::{classify_state, classify_system, Classified, OneState, SystemShape};
 
 /// The family a state (or a whole system) belongs to.
@@ -164,6 +165,25 @@ pub struct StateLaw {
     pub depends_on: Vec<usize>,
 }
 
+impl StateLaw {
+    /// Whether the law of the state is Gaussian (support the whole real line) with noise.
+    pub fn is_gaussian_with_noise(&self) -> bool {
+        let additive = match self.family {
+            Family::ArithmeticBrownian | Family::OrnsteinUhlenbeck | Family::LinearSystem => true,
+            Family::Linear => match &self.linear {
+                Some(lc) => lc.d.is_empty(),
+                None => self.method == Method::Quadrature,
+            },
+            _ => false,
+        };
+        let has_noise = match &self.linear {
+            Some(lc) => lc.c.iter().any(|(_, c)| *c != 0.0),
+            None => true,
+        };
+        additive && has_noise
+    }
+}
+
 /// Everything derived from a model.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Derivation {
@@ -269,4 +289,37 @@ pub fn quantile(
 ) -> Option<f64> {
     let analysis = analyse(model);
     system::quantile(model, derivation, &analysis, state, t, p)
+}
+
+/// The value of a figure an `expect` line can pin (`mean`, `sd`, `halflife`,
+/// `stationary_sd`, ...) for one state; `at` is the time of the time-dependent figures
+/// (clock units). `None` when the family has no such figure or it is not known.
+pub fn figure_value(
+    model: &Model,
+    derivation: &Derivation,
+    state: usize,
+    figure: Figure,
+    at: f64,
+) -> Option<f64> {
+    let law = derivation.states.get(state)?;
+    let stationary = law.stationary.as_ref();
+    match figure {
+        Figure::Mean | Figure::Variance | Figure::Sd => {
+            let moments = moments_at(model, derivation, at);
+            match figure {
+                Figure::Mean => moments.mean.get(state).copied().flatten(),
+                Figure::Variance => moments.variance.get(state).copied().flatten(),
+                _ => moments
+                    .variance
+                    .get(state)
+                    .copied()
+                    .flatten()
+                    .map(|v| v.max(0.0).sqrt()),
+            }
+        }
+        Figure::Halflife => law.half_life,
+        Figure::StationaryMean => stationary.map(|s| s.mean),
+        Figure::StationaryVariance => stationary.map(|s| s.variance),
+        Figure::StationarySd => stationary.map(|s| s.variance.max(0.0).sqrt()),
+    }
 }

@@ -4,7 +4,7 @@
 use nalgebra::{DMatrix, SymmetricEigen};
 use sdeck_calculus::algebra::to_poly;
 use sdeck_calculus::describe::square_root_terms;
-use sdeck_calculus::{moments_at, Derivation, Family, Method, StateLaw};
+use sdeck_calculus::{figure_value, Derivation, Family, StateLaw};
 use sdeck_diagnostics::{rules, Diagnostic};
 use sdeck_semantics::{Expr, Function, Interval, Model};
 use sdeck_syntax::ast::Figure;
@@ -248,23 +248,6 @@ fn feller_condition(model: &Model, derivation: &Derivation, out: &mut Vec<Diagno
     }
 }
 
-/// Whether the law of a state is Gaussian (support the whole real line) with noise.
-fn is_gaussian_with_noise(law: &StateLaw) -> bool {
-    let additive = match law.family {
-        Family::ArithmeticBrownian | Family::OrnsteinUhlenbeck | Family::LinearSystem => true,
-        Family::Linear => match &law.linear {
-            Some(lc) => lc.d.is_empty(),
-            None => law.method == Method::Quadrature,
-        },
-        _ => false,
-    };
-    let has_noise = match &law.linear {
-        Some(lc) => lc.c.iter().any(|(_, c)| *c != 0.0),
-        None => true,
-    };
-    additive && has_noise
-}
-
 /// Whether a square-root state fails the Feller condition (zero is attainable).
 fn square_root_reaches_zero(law: &StateLaw) -> bool {
     law.square_root
@@ -328,7 +311,7 @@ fn factor_domain(model: &Model, derivation: &Derivation, out: &mut Vec<Diagnosti
                     continue;
                 };
                 let reaches_zero = function == "log" && square_root_reaches_zero(law);
-                let gaussian_law = is_gaussian_with_noise(law);
+                let gaussian_law = law.is_gaussian_with_noise();
                 if !(gaussian_law || reaches_zero) || reported.contains(&(function, gaussian)) {
                     continue;
                 }
@@ -425,7 +408,7 @@ fn factor_domain(model: &Model, derivation: &Derivation, out: &mut Vec<Diagnosti
         let support = match law.family {
             Family::GeometricBrownian if x0 > 0.0 => Some((Some((0.0, false)), "(0, ∞)")),
             Family::SquareRoot => Some((Some((0.0, true)), "[0, ∞)")),
-            _ if is_gaussian_with_noise(law) => Some((None, "the whole real line")),
+            _ if law.is_gaussian_with_noise() => Some((None, "the whole real line")),
             _ => None,
         };
         let Some((lower, support_text)) = support else {
@@ -718,34 +701,17 @@ fn expectations(model: &Model, derivation: &Derivation, out: &mut Vec<Diagnostic
         let name = state_name(model, expectation.state);
         let keyword = expectation.figure.keyword();
         let time = expectation.at.unwrap_or(model.horizon);
-        let (value, described) = match expectation.figure {
-            Figure::Mean | Figure::Variance | Figure::Sd => {
-                let moments = moments_at(model, derivation, time);
-                let mean = moments.mean.get(expectation.state).copied().flatten();
-                let variance = moments.variance.get(expectation.state).copied().flatten();
-                let value = match expectation.figure {
-                    Figure::Mean => mean,
-                    Figure::Variance => variance,
-                    _ => variance.map(|v| v.max(0.0).sqrt()),
-                };
-                (
-                    value,
-                    format!("{keyword}({name}, {} {clock})", number(time, 6)),
-                )
-            }
-            Figure::Halflife => (law.half_life, format!("halflife({name})")),
-            Figure::StationaryMean => (
-                law.stationary.as_ref().map(|s| s.mean),
-                format!("stationary_mean({name})"),
-            ),
-            Figure::StationaryVariance => (
-                law.stationary.as_ref().map(|s| s.variance),
-                format!("stationary_variance({name})"),
-            ),
-            Figure::StationarySd => (
-                law.stationary.as_ref().map(|s| s.variance.max(0.0).sqrt()),
-                format!("{keyword}({name})"),
-            ),
+        let value = figure_value(
+            model,
+            derivation,
+            expectation.state,
+            expectation.figure,
+            time,
+        );
+        let described = if expectation.figure.takes_time() {
+            format!("{keyword}({name}, {} {clock})", number(time, 6))
+        } else {
+            format!("{keyword}({name})")
         };
         match value {
             None => {
@@ -823,7 +789,7 @@ fn overflow_note(model: &Model) -> Option<String> {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use sdeck_calculus::derive;
+    use sdeck_calculus::{derive, moments_at};
     use sdeck_diagnostics::Rule;
 
     fn run(source: &str) -> (Model, Vec<Diagnostic>) {

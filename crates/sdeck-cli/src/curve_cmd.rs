@@ -55,7 +55,7 @@ pub fn parse_maturities(text: &str, model: &Model) -> Result<Vec<f64>, String> {
 
 pub fn run(args: CurveArgs) -> ExitCode {
     let result = match load_sound_model(&args.file, "no curve is derived") {
-        Ok(r) => r,
+        Ok((_, r)) => r,
         Err(code) => return code,
     };
     let model = &result.analysis.model;

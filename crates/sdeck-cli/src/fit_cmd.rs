@@ -58,7 +58,7 @@ const LEVEL_SHOWN: f64 = 0.95;
 const LEVEL_CHECKED: f64 = 0.99;
 
 pub fn run(args: FitArgs) -> ExitCode {
-    let loaded = match load_sound_model(&args.model, "nothing is fitted") {
+    let (_source, loaded) = match load_sound_model(&args.model, "nothing is fitted") {
         Ok(r) => r,
         Err(code) => return code,
     };

@@ -15,6 +15,7 @@ macro_rules! outln {
 
 mod check;
 mod curve_cmd;
+mod diff_cmd;
 mod files;
 mod fit_cmd;
 mod fit_data;
@@ -24,6 +25,7 @@ mod junit;
 mod lsp_cmd;
 mod moments;
 mod render;
+mod report_cmd;
 mod sarif;
 mod simulate_cmd;
 
@@ -34,8 +36,7 @@ static ALLOCATOR: mimalloc::MiMalloc = mimalloc::MiMalloc;
 
 use std::process::ExitCode;
 
-const CAUTION: &str = "Caution: derived figures hold only under the model's assumptions. \
-Defer to your firm's model-validation practice and to local regulation before relying on them.";
+const CAUTION: &str = sdeck_report::CAUTION;
 
 #[derive(Parser)]
 #[command(
@@ -65,6 +66,10 @@ enum Command {
     /// Estimate the model's parameters from a time series by exact maximum likelihood.
     #[command(after_help = fit_cmd::CAUTION)]
     Fit(fit_cmd::FitArgs),
+    /// Write the review document of models: derivation, figures, charts (HTML or Markdown).
+    Report(report_cmd::ReportArgs),
+    /// What a change of model text does to the derived law (two files, or --since REV).
+    Diff(diff_cmd::DiffArgs),
     /// Format model files in place (aligned declarations, canonical spacing).
     Fmt(fmt_cmd::FmtArgs),
     /// Serve the Language Server Protocol on stdin/stdout, for editors.
@@ -114,6 +119,8 @@ fn main() -> ExitCode {
         Command::Curve(args) => curve_cmd::run(args),
         Command::Simulate(args) => simulate_cmd::run(args),
         Command::Fit(args) => fit_cmd::run(args),
+        Command::Report(args) => report_cmd::run(args),
+        Command::Diff(args) => diff_cmd::run(args),
         Command::Fmt(args) => fmt_cmd::run(args),
         Command::Lsp(args) => lsp_cmd::run(args),
         Command::Explain { rule, markdown } => explain(rule.as_deref(), markdown),

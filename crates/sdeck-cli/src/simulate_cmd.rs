@@ -2,10 +2,9 @@
 
 use crate::moments::{load_sound_model, time_option};
 use clap::{Args, ValueEnum};
-use sdeck_simulate::{
-    check, closed_form_means, render_text, simulate_and_compare, to_json, write_fan_chart,
-    SimulationOptions,
-};
+use sdeck_report::charts::stack;
+use sdeck_report::review::{closed_bands, fan_charts};
+use sdeck_simulate::{check, render_text, simulate_and_compare, to_json, SimulationOptions};
 use std::path::PathBuf;
 use std::process::ExitCode;
 
@@ -61,7 +60,7 @@ pub const MAX_PATH_STEPS: usize = 10_000_000_000;
 
 pub fn run(args: SimulateArgs) -> ExitCode {
     let result = match load_sound_model(&args.file, "nothing is simulated") {
-        Ok(r) => r,
+        Ok((_, r)) => r,
         Err(code) => return code,
     };
     let model = &result.analysis.model;
@@ -123,8 +122,11 @@ pub fn run(args: SimulateArgs) -> ExitCode {
             .as_ref()
             .map(|b| b.times.clone())
             .unwrap_or_default();
-        let means = closed_form_means(model, &result.derivation, &times);
-        if let Err(e) = write_fan_chart(path, &simulated, Some(&means)) {
+        let closed = closed_bands(model, &result.derivation, &times);
+        let units: Vec<Option<String>> =
+            model.factors.iter().map(|s| s.unit_text.clone()).collect();
+        let charts = fan_charts(&simulated, &closed, &units);
+        if let Err(e) = std::fs::write(path, stack(&charts)) {
             eprintln!("sdeck: cannot write the chart `{}`: {e}", path.display());
             return ExitCode::from(2);
         }

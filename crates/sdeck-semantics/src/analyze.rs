@@ -118,31 +118,10 @@ fn dimension_error(span: Span, message: impl Into<String>) -> Diagnostic {
 /// level.
 pub const MAX_EXPANDED_NODES: usize = 3000;
 
-/// Formats a number for messages: up to 6 significant digits, no trailing zeros.
+/// Formats a number for messages: up to 6 significant digits, no trailing zeros (the
+/// one formatter, [`sdeck_units::number::plain`]).
 pub fn fmt_num(x: f64) -> String {
-    if x == 0.0 {
-        return "0".to_string();
-    }
-    if !x.is_finite() {
-        return format!("{x}");
-    }
-    let magnitude = x.abs().log10().floor() as i32;
-    if !(-4..6).contains(&magnitude) {
-        let s = format!("{x:.5e}");
-        // Trim zeros in the mantissa: 1.50000e-5 -> 1.5e-5.
-        if let Some((m, e)) = s.split_once('e') {
-            let m = m.trim_end_matches('0').trim_end_matches('.');
-            return format!("{m}e{e}");
-        }
-        return s;
-    }
-    let decimals = (5 - magnitude).clamp(0, 12) as usize;
-    let s = format!("{x:.decimals$}");
-    if s.contains('.') {
-        s.trim_end_matches('0').trim_end_matches('.').to_string()
-    } else {
-        s
-    }
+    sdeck_units::number::plain(x)
 }
 
 impl<'a> Analyzer<'a> {

@@ -5,6 +5,7 @@
 //! - [`rational`]: [`Rational`], exact exponents with checked arithmetic.
 //! - [`dimension`]: [`Dimension`], its algebra and its human forms.
 //! - [`time_units`]: `year`, `month`, `week`, `day`, `bday` and their lengths in years.
+//! - [`number`]: the one number formatter (significant digits, %, bp, units).
 //! - [`eval`]: [`eval_unit`], from a written [`UnitExpr`](sdeck_syntax::ast::UnitExpr) to a
 //!   dimension and a scale factor to the clock, with errors that say what to write.
 //!
@@ -35,6 +36,7 @@
 
 pub mod dimension;
 pub mod eval;
+pub mod number;
 pub mod rational;
 pub mod time_units;
 

@@ -1,0 +1,153 @@
+//! `sdeck moments`: the report at one time as text and as JSON.
+
+use crate::data::ModelReport;
+use sdeck_units::number::{or_unknown, plain};
+use serde_json::{json, Value};
+
+/// A finite number, or `null`.
+pub fn num(x: Option<f64>) -> Value {
+    match x {
+        Some(v) if v.is_finite() => json!(v),
+        _ => Value::Null,
+    }
+}
+
+/// The JSON of `sdeck moments --format json`.
+pub fn moments_json(report: &ModelReport) -> Value {
+    let states: Vec<Value> = report
+        .factors
+        .iter()
+        .map(|f| {
+            let g = &f.figures;
+            json!({
+                "name": f.name,
+                "family": f.family.as_str(),
+                "mean": num(g.mean),
+                "variance": num(g.variance),
+                "variance_infinite_from": num(g.variance_infinite_from),
+                "sd": num(g.sd),
+                "law": g.law,
+                "quantiles": g.quantiles.iter().map(|q| json!({"p": q.probability, "value": num(q.value)})).collect::<Vec<_>>(),
+                "below": g.below.iter().map(|b| json!({"value": b.level, "probability": num(b.probability)})).collect::<Vec<_>>(),
+                "exact": f.exact,
+                "formulas": {
+                    "solution": f.formulas.solution,
+                    "mean": f.formulas.mean,
+                    "variance": f.formulas.variance,
+                },
+            })
+        })
+        .collect();
+    let covariance: Vec<Value> = report
+        .covariance
+        .iter()
+        .map(|row| Value::Array(row.iter().map(|x| num(*x)).collect()))
+        .collect();
+    json!({
+        "model": report.model,
+        "clock": report.clock,
+        "at": report.at,
+        "factors": states,
+        "covariance": covariance,
+    })
+}
+
+/// The text of `sdeck moments`, ending with `caution`.
+pub fn moments_text(report: &ModelReport, caution: &str) -> String {
+    let clock = &report.clock;
+    let mut s = format!(
+        "model {}   clock {}   at t = {} {}\n",
+        report.model,
+        clock,
+        plain(report.at),
+        clock
+    );
+    for f in &report.factors {
+        s.push_str(&format!("\n{}: {}\n", f.name, f.family.as_str()));
+        s.push_str(&format!("  {:<11} {}\n", "why", f.reason));
+        s.push_str(&format!("  {:<11} {}\n", "method", f.method.as_str()));
+        for (label, text) in crate::formula_lines(&f.formulas) {
+            s.push_str(&format!("  {label:<11} {text}\n"));
+        }
+        let fig = &f.figures;
+        s.push_str(&format!(
+            "  E[{}(t)]   = {}\n",
+            f.name,
+            or_unknown(fig.mean)
+        ));
+        match fig.variance_infinite_from {
+            Some(from) => s.push_str(&format!(
+                "  Var[{}(t)] = infinite (from t = {} {clock})\n",
+                f.name,
+                plain(from)
+            )),
+            None => s.push_str(&format!(
+                "  Var[{}(t)] = {}\n",
+                f.name,
+                or_unknown(fig.variance)
+            )),
+        }
+        s.push_str(&format!(
+            "  sd        = {}\n",
+            if fig.variance_infinite_from.is_some() {
+                "infinite".to_string()
+            } else {
+                or_unknown(fig.sd)
+            }
+        ));
+        if let Some(kind) = fig.law {
+            s.push_str(&format!("  law       = {kind}\n"));
+        }
+        if fig.quantiles_known() {
+            let parts: Vec<String> = fig
+                .quantiles
+                .iter()
+                .map(|q| format!("{}% {}", plain(q.probability * 100.0), or_unknown(q.value)))
+                .collect();
+            s.push_str(&format!("  quantiles = {}\n", parts.join(", ")));
+        }
+        for b in &fig.below {
+            s.push_str(&format!(
+                "  P({} < {}) = {}\n",
+                f.name,
+                plain(b.level),
+                or_unknown(b.probability)
+            ));
+        }
+        if let Some(h) = f.half_life {
+            s.push_str(&format!("  half-life = {} {clock}\n", plain(h)));
+        }
+        if let Some(st) = &f.stationary {
+            s.push_str(&format!(
+                "  stationary: {} (mean {}, sd {})\n",
+                st.law,
+                plain(st.mean),
+                plain(st.sd)
+            ));
+        }
+    }
+    if report.factors.len() > 1 {
+        s.push_str("\ncovariance at t:\n");
+        let width = report
+            .factors
+            .iter()
+            .map(|f| f.name.chars().count())
+            .max()
+            .unwrap_or(1)
+            .max(12);
+        s.push_str(&format!("  {:width$}", ""));
+        for f in &report.factors {
+            s.push_str(&format!(" {:>width$}", f.name));
+        }
+        s.push('\n');
+        for (f, row) in report.factors.iter().zip(&report.covariance) {
+            s.push_str(&format!("  {:width$}", f.name));
+            for x in row {
+                s.push_str(&format!(" {:>width$}", or_unknown(*x)));
+            }
+            s.push('\n');
+        }
+    }
+    s.push_str(&format!("\n{caution}\n"));
+    s
+}
