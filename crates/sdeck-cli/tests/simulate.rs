@@ -113,8 +113,19 @@ fn check_says_it_cannot_decide_when_the_bias_is_large_and_passes_with_fine_steps
 #[test]
 fn several_dates_and_probabilities_below_in_one_run() {
     let out = sdeck()
-        .args(["simulate", "demo-models/ou_short_rate.sde", "--paths", "20000"])
-        .args(["--at", "3 month,6 month,1 year", "--below", "r=0", "--check"])
+        .args([
+            "simulate",
+            "demo-models/ou_short_rate.sde",
+            "--paths",
+            "20000",
+        ])
+        .args([
+            "--at",
+            "3 month,6 month,1 year",
+            "--below",
+            "r=0",
+            "--check",
+        ])
         .args(["--format", "json"])
         .output()
         .unwrap_or_else(|e| panic!("{e}"));

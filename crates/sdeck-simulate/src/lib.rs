@@ -42,8 +42,8 @@ pub mod samplers;
 pub mod stats;
 
 pub use closed_form::{
-    closed_figures_at, closed_form_means, closed_forms_at, known_law, noncentral_chi_square_cdf,
-    simulate_and_compare, simulate_and_compare_below, KnownLaw,
+    closed_figures_at, closed_form_means, closed_forms_at, simulate_and_compare,
+    simulate_and_compare_below,
 };
 pub use engine::{
     reporting_dates, simulate_paths, PathSamples, SimulateError, SimulationOptions,

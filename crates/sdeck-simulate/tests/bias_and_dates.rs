@@ -2,12 +2,13 @@
 //! (Feller condition met and broken), the bias of discretised schemes by step doubling,
 //! several reporting dates, P(X < q) against closed-form laws, and degenerate sizes.
 
+use sdeck_calculus::laws::{law_of, LawKind};
 use sdeck_calculus::{derive, moments_at};
 use sdeck_semantics::{analyze, Model};
 use sdeck_simulate::{
-    check, closed_figures_at, known_law, plan, render_text, simulate_and_compare_below,
-    simulate_paths, to_json, verdicts, ClosedFigures, ExactLaw, KnownLaw, Plan, Scheme,
-    SimulateError, SimulationOptions, SimulationResult,
+    check, closed_figures_at, plan, render_text, simulate_and_compare_below, simulate_paths,
+    to_json, verdicts, ClosedFigures, ExactLaw, Plan, Scheme, SimulateError, SimulationOptions,
+    SimulationResult,
 };
 use statrs::distribution::{ContinuousCDF, Normal};
 
@@ -241,12 +242,12 @@ ds = mu * s dt + sigma * s dW
     );
     let derivation = derive(&gbm);
     // P(S_t < 100) = Φ((ln(100/100) − (μ − σ²/2)t)/(σ√t)) (Black & Scholes 1973).
-    let law = known_law(&gbm, &derivation, 0, 1.0).unwrap();
-    assert!(matches!(law, KnownLaw::Lognormal { .. }));
+    let law = law_of(&gbm, &derivation, 0, 1.0).unwrap();
+    assert_eq!(law.kind(), LawKind::Lognormal);
     let expected = Normal::new(0.0, 1.0)
         .unwrap()
         .cdf(-(0.06 - 0.5 * 0.0625) / 0.25);
-    assert!((law.below(100.0).unwrap() - expected).abs() < 1e-12);
+    assert!((law.cdf(100.0).unwrap() - expected).abs() < 1e-12);
     let result = simulated(&gbm, &options(40_000, 10, &[1.0], 5), &[Some(100.0)]);
     assert!(check(&result).is_empty(), "{}", render_text(&result));
 
@@ -262,10 +263,10 @@ dr = kappa * (theta - r) dt + sigma * sqrt(r) dW
 ",
     );
     let derivation = derive(&cir);
-    assert!(matches!(
-        known_law(&cir, &derivation, 0, 1.0),
-        Some(KnownLaw::ScaledNoncentralChiSquare { .. })
-    ));
+    assert_eq!(
+        law_of(&cir, &derivation, 0, 1.0).map(|l| l.kind()),
+        Some(LawKind::NoncentralChiSquare)
+    );
     let result = simulated(&cir, &options(40_000, 10, &[0.5, 1.0], 5), &[Some(0.01)]);
     assert!(check(&result).is_empty(), "{}", render_text(&result));
     // A wrong law fails: P shifted by 10 standard errors.
