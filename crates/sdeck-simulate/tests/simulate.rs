@@ -401,7 +401,14 @@ fn json_report_has_the_documented_shape() {
     );
     assert_eq!(
         keys(&state["closed_form"]),
-        ["below", "mean", "variance", "z_below", "z_mean", "z_variance"]
+        [
+            "below",
+            "mean",
+            "variance",
+            "z_below",
+            "z_mean",
+            "z_variance"
+        ]
     );
     // An exact scheme has no bias estimate; no threshold, no probability.
     assert!(state["bias"].is_null());
