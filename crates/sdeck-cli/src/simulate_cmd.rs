@@ -4,7 +4,10 @@ use crate::moments::{load_sound_model, time_option};
 use clap::{Args, ValueEnum};
 use sdeck_report::charts::stack;
 use sdeck_report::review::{closed_bands, fan_charts};
-use sdeck_simulate::{check, render_text, simulate_and_compare, to_json, SimulationOptions};
+use sdeck_semantics::Model;
+use sdeck_simulate::{
+    render_text, simulate_and_compare_below, to_json, verdicts, SimulationOptions,
+};
 use std::path::PathBuf;
 use std::process::ExitCode;
 
@@ -21,13 +24,17 @@ pub struct SimulateArgs {
     /// Number of simulated paths.
     #[arg(long, default_value_t = 100_000)]
     paths: usize,
-    /// Time steps between 0 and the reporting time.
+    /// Time steps between 0 and the last reporting date.
     #[arg(long, default_value_t = 100)]
     steps: usize,
-    /// Reporting time: a number in clock units or with a time unit ("6 month").
-    /// Default: the model's horizon.
+    /// Reporting dates, comma-separated: numbers in clock units or times with a unit
+    /// ("3 month,6 month,1 year"). Default: the model's horizon.
     #[arg(long)]
     at: Option<String>,
+    /// Estimate P(X < q) at each date, e.g. `--below r=0` or `--below r=0,v=1%`
+    /// (values in the factor's units as the model stores them; `%` and `bp` accepted).
+    #[arg(long, value_name = "FACTOR=VALUE")]
+    below: Vec<String>,
     /// Seed of the random streams; the same seed gives the same numbers whatever the
     /// thread count.
     #[arg(long, default_value_t = 1)]
@@ -37,8 +44,9 @@ pub struct SimulateArgs {
     threads: Option<usize>,
     #[arg(long, value_enum, default_value_t = Format::Text)]
     format: Format,
-    /// Exit 1 when a simulated mean or variance is more than 4 standard errors from its
-    /// closed form.
+    /// Exit 1 when a simulated figure is more than 4 standard errors from its closed form
+    /// (for discretised schemes: the extrapolated figure, and only when the bias estimate
+    /// is below the standard error; otherwise the run says it cannot decide).
     #[arg(long)]
     check: bool,
     /// Write a fan chart of the simulated quantile bands (SVG).
@@ -58,19 +66,72 @@ pub struct SimulateArgs {
 /// default run. Past it a run would take hours; it is refused before it starts.
 pub const MAX_PATH_STEPS: usize = 10_000_000_000;
 
+/// The reporting dates of `--at`, in clock units.
+fn dates_option(text: Option<&str>, model: &Model) -> Result<Vec<f64>, ExitCode> {
+    let Some(text) = text else {
+        return Ok(Vec::new());
+    };
+    text.split(',')
+        .map(|part| time_option(Some(part.trim()), model, true))
+        .collect()
+}
+
+/// A threshold value: a number, or a number followed by `%` or `bp`.
+fn threshold_value(text: &str) -> Option<f64> {
+    let text = text.trim();
+    let (number, scale) = if let Some(n) = text.strip_suffix('%') {
+        (n, 1e-2)
+    } else if let Some(n) = text.strip_suffix("bp") {
+        (n, 1e-4)
+    } else {
+        (text, 1.0)
+    };
+    number
+        .trim()
+        .parse::<f64>()
+        .ok()
+        .map(|x| x * scale)
+        .filter(|x| x.is_finite())
+}
+
+/// `--below` settings: one optional threshold per factor, declaration order.
+fn thresholds_option(parts: &[String], model: &Model) -> Result<Vec<Option<f64>>, ExitCode> {
+    let mut thresholds = vec![None; model.factors.len()];
+    for part in parts.iter().flat_map(|p| p.split(',')) {
+        let Some((name, value)) = part.split_once('=') else {
+            eprintln!("sdeck: --below takes FACTOR=VALUE, e.g. `--below r=0`; got `{part}`");
+            return Err(ExitCode::from(2));
+        };
+        let name = name.trim();
+        let Some(index) = model.factors.iter().position(|s| s.name == name) else {
+            let names: Vec<&str> = model.factors.iter().map(|s| s.name.as_str()).collect();
+            eprintln!(
+                "sdeck: --below names `{name}`, which is not a factor of the model (its factors: {})",
+                names.join(", ")
+            );
+            return Err(ExitCode::from(2));
+        };
+        let Some(value) = threshold_value(value) else {
+            eprintln!(
+                "sdeck: --below {name}=`{}` is not a number (write e.g. 0, -0.5, 2% or 25bp)",
+                value.trim()
+            );
+            return Err(ExitCode::from(2));
+        };
+        thresholds[index] = Some(value);
+    }
+    Ok(thresholds)
+}
+
+/// Memory the simulation may keep: most of what the machine has available now.
+fn memory_limit() -> Option<u64> {
+    let text = std::fs::read_to_string("/proc/meminfo").ok()?;
+    let line = text.lines().find(|l| l.starts_with("MemAvailable:"))?;
+    let kib: u64 = line.split_whitespace().nth(1)?.parse().ok()?;
+    Some(kib.saturating_mul(1024) / 10 * 8)
+}
+
 pub fn run(args: SimulateArgs) -> ExitCode {
-    let result = match load_sound_model(&args.file, "nothing is simulated") {
-        Ok((_, r)) => r,
-        Err(code) => return code,
-    };
-    let model = &result.analysis.model;
-    let at = match args.at.as_deref() {
-        None => None,
-        Some(text) => match time_option(Some(text), model, true) {
-            Ok(t) => Some(t),
-            Err(code) => return code,
-        },
-    };
     if args.paths == 0 || args.steps == 0 {
         eprintln!("sdeck: --paths and --steps must be at least 1");
         return ExitCode::from(2);
@@ -84,24 +145,41 @@ pub fn run(args: SimulateArgs) -> ExitCode {
         );
         return ExitCode::from(2);
     }
+    let result = match load_sound_model(&args.file, "nothing is simulated") {
+        Ok((_, r)) => r,
+        Err(code) => return code,
+    };
+    let model = &result.analysis.model;
+    let dates = match dates_option(args.at.as_deref(), model) {
+        Ok(d) => d,
+        Err(code) => return code,
+    };
+    let thresholds = match thresholds_option(&args.below, model) {
+        Ok(t) => t,
+        Err(code) => return code,
+    };
     let options = SimulationOptions {
         paths: args.paths,
         steps: args.steps,
-        at,
+        at: None,
+        dates,
         seed: args.seed,
         threads: args.threads,
         progress: true,
         band_times: if args.plot.is_some() { 100 } else { 0 },
+        step_doubling: true,
+        memory_limit: memory_limit(),
     };
-    let simulated = match simulate_and_compare(model, &result.derivation, &options) {
-        Ok(r) => r,
-        Err(e) => {
-            eprintln!("sdeck: {e}");
-            return ExitCode::from(1);
-        }
-    };
+    let simulated =
+        match simulate_and_compare_below(model, &result.derivation, &options, &thresholds) {
+            Ok(r) => r,
+            Err(e) => {
+                eprintln!("sdeck: {e}");
+                return ExitCode::from(2);
+            }
+        };
     for warning in &simulated.warnings {
-        eprintln!("sdeck: warning: {warning}");
+        eprintln!("sdeck: note: {warning}");
     }
     match args.format {
         Format::Json => match serde_json::to_string_pretty(&to_json(&simulated)) {
@@ -138,13 +216,26 @@ pub fn run(args: SimulateArgs) -> ExitCode {
         }
     }
     if args.check {
-        let disagreements = check(&simulated);
+        let (disagreements, undecided) = verdicts(&simulated);
+        for u in &undecided {
+            eprintln!("sdeck: undecided: {u}");
+        }
+        for d in &disagreements {
+            eprintln!("sdeck: disagreement: {d}");
+        }
         if !disagreements.is_empty() {
-            for d in &disagreements {
-                eprintln!("sdeck: disagreement: {d}");
-            }
             return ExitCode::from(1);
         }
+        let compared = simulated
+            .dates
+            .iter()
+            .flat_map(|d| &d.states)
+            .filter(|s| s.closed_form.is_some())
+            .count();
+        eprintln!(
+            "sdeck: check: no disagreement ({compared} factor-dates compared with closed forms, {} figures undecided)",
+            undecided.len()
+        );
     }
     ExitCode::SUCCESS
 }
@@ -201,4 +292,19 @@ fn export(
         out.push('\n');
     }
     std::fs::write(path, out).map_err(|e| format!("cannot write `{}`: {e}", path.display()))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::threshold_value;
+
+    #[test]
+    fn thresholds_read_percent_and_basis_points() {
+        assert_eq!(threshold_value("0"), Some(0.0));
+        assert_eq!(threshold_value(" -0.5 "), Some(-0.5));
+        assert_eq!(threshold_value("2%"), Some(0.02));
+        assert!((threshold_value("25bp").unwrap() - 0.0025).abs() < 1e-15);
+        assert_eq!(threshold_value("abc"), None);
+        assert_eq!(threshold_value("inf"), None);
+    }
 }

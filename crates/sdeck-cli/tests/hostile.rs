@@ -167,7 +167,7 @@ fn one_path_has_no_standard_errors() {
         .output()
         .unwrap();
     let report: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
-    let factor = &report["factors"][0];
+    let factor = &report["dates"][0]["factors"][0];
     assert!(factor["variance"].is_null(), "{factor}");
     assert!(factor["variance_se"].is_null(), "{factor}");
     assert!(factor["mean_se"].is_null(), "{factor}");

@@ -31,7 +31,9 @@ pub(crate) fn statement(source: &str, kind: &StatementKind) -> Printed {
             first.name, second.name, value.text
         )),
         StatementKind::Measure { name } => Printed::Flat(format!("measure {}", name.name)),
-        StatementKind::Discount { rate } => Printed::Flat(format!("discount {}", expr(source, rate))),
+        StatementKind::Discount { rate } => {
+            Printed::Flat(format!("discount {}", expr(source, rate)))
+        }
         StatementKind::Let { name, value } => {
             Printed::Flat(format!("let {} = {}", name.name, expr(source, value)))
         }

@@ -169,6 +169,9 @@ impl Review {
             threads: options.threads,
             progress: false,
             band_times: 50,
+            dates: Vec::new(),
+            step_doubling: true,
+            memory_limit: None,
         };
         match simulate_and_compare(model, derivation, &simulation) {
             Ok(result) => {

@@ -1,20 +1,31 @@
-//! Throughput of Euler–Maruyama (path-steps per second) on a model with no closed form,
-//! the double well dx = rate (x − x³) dt + vol dW, on one thread and on all cores; then,
-//! for scale, the exact noncentral chi-square step of a square-root model.
+//! Throughput of the engine on a model with no closed form, the logistic-type model
+//! dc = r c (cap − c) dt + s c (cap − c) dW (Euler–Maruyama), against the floor: the time
+//! to draw the same number of standard normals with the generator and sampler alone, in
+//! the same blocks of paths on the same threads. Then, for scale, the exact noncentral
+//! chi-square step of a square-root model.
 //!
-//! Run: `cargo bench -p sdeck-simulate --bench throughput`. Paths and steps can be set with
-//! SDECK_BENCH_PATHS and SDECK_BENCH_STEPS; bench/numpy_euler.py runs the same model.
+//! Run: `cargo bench -p sdeck-simulate --bench throughput`. Environment:
+//! SDECK_BENCH_PATHS (400000), SDECK_BENCH_STEPS (200), SDECK_BENCH_THREADS (all cores),
+//! SDECK_BENCH_RUNS (3 timed runs after a warm-up), SDECK_BENCH_ONLY=yardstick to skip the
+//! square-root part. bench/simulate_vs_numpy.py runs it beside numpy and prints the ratios.
+//! Lines starting with `result ` are read by that script.
 
+use rand::SeedableRng;
+use rand_chacha::ChaCha8Rng;
+use rayon::prelude::*;
 use sdeck_semantics::analyze;
+use sdeck_simulate::bytecode::{Lanes, LANES};
+use sdeck_simulate::normals::fill_normals_chunk;
 use sdeck_simulate::{plan_from_model, simulate_paths, Scheme, SimulationOptions};
 use std::time::Instant;
 
-const DOUBLE_WELL: &str = "
-param rate = 1 [1/year] > 0
-param vol = 0.5 [1/sqrt(year)] > 0
+const LOGISTIC: &str = "
+param r = 1.5 [1/year] > 0
+param cap = 1
+param s = 0.3 [1/sqrt(year)] > 0
 shock W
-factor x = 0.1
-dx = rate * (x - x^3) dt + vol dW
+factor c = 0.1
+dc = r * c * (cap - c) dt + s * c * (cap - c) dW
 ";
 
 const SQUARE_ROOT: &str = "
@@ -33,48 +44,6 @@ fn from_env(name: &str, default: usize) -> usize {
         .unwrap_or(default)
 }
 
-/// Best of three timed runs after a warm-up; prints path-steps per second.
-fn measure(
-    model: &sdeck_semantics::Model,
-    plan: &sdeck_simulate::Plan,
-    paths: usize,
-    steps: usize,
-    threads: usize,
-) {
-    let options = SimulationOptions {
-        paths,
-        steps,
-        at: Some(1.0),
-        seed: 2026,
-        threads: Some(threads),
-        ..Default::default()
-    };
-    let mut best = f64::INFINITY;
-    let mut mean = 0.0;
-    let mut standard_error = 0.0;
-    for run in 0..4 {
-        let start = Instant::now();
-        let samples = match simulate_paths(model, plan, &options) {
-            Ok(samples) => samples,
-            Err(error) => {
-                eprintln!("simulation failed: {error}");
-                std::process::exit(1);
-            }
-        };
-        let seconds = start.elapsed().as_secs_f64();
-        let values = &samples.finals[0];
-        let n = values.len() as f64;
-        mean = values.iter().sum::<f64>() / n;
-        let variance = values.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (n - 1.0);
-        standard_error = (variance / n).sqrt();
-        if run > 0 {
-            best = best.min(seconds);
-        }
-    }
-    let rate = (paths * steps) as f64 / best;
-    println!("threads {threads}: {best:.3} s, {rate:.3e} path-steps/s (mean at t = 1: {mean:.4e} ± {standard_error:.1e})");
-}
-
 fn analysed(source: &str, name: &str) -> sdeck_semantics::Model {
     let analysis = analyze(source, name);
     if analysis.has_errors() {
@@ -87,32 +56,127 @@ fn analysed(source: &str, name: &str) -> sdeck_semantics::Model {
     analysis.model
 }
 
-fn main() {
-    let paths = from_env("SDECK_BENCH_PATHS", 100_000);
-    let steps = from_env("SDECK_BENCH_STEPS", 1_000);
-    let cores = std::thread::available_parallelism().map_or(1, |n| n.get());
+/// Best time of `runs` after one warm-up.
+fn best_of(runs: usize, mut run: impl FnMut() -> f64) -> f64 {
+    run();
+    (0..runs.max(1))
+        .map(|_| run())
+        .fold(f64::INFINITY, f64::min)
+}
 
-    let model = analysed(DOUBLE_WELL, "double_well");
+/// Seconds for one engine run; prints the mean so that the run is not optimised away and
+/// can be compared with numpy's.
+fn engine_seconds(
+    model: &sdeck_semantics::Model,
+    plan: &sdeck_simulate::Plan,
+    options: &SimulationOptions,
+) -> (f64, f64, f64) {
+    let start = Instant::now();
+    let samples = match simulate_paths(model, plan, options) {
+        Ok(samples) => samples,
+        Err(error) => {
+            eprintln!("simulation failed: {error}");
+            std::process::exit(1);
+        }
+    };
+    let seconds = start.elapsed().as_secs_f64();
+    let values = &samples.finals()[0];
+    let n = values.len() as f64;
+    let mean = values.iter().sum::<f64>() / n;
+    let variance = values.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (n - 1.0);
+    (seconds, mean, (variance / n).sqrt())
+}
+
+/// The floor: `paths × steps` normals drawn block by block (one ChaCha8 stream per block of
+/// 64 paths, as the engine does) on `threads` threads, summed so that nothing is skipped.
+fn floor_seconds(paths: usize, steps: usize, threads: usize, seed: u64) -> f64 {
+    let pool = match rayon::ThreadPoolBuilder::new().num_threads(threads).build() {
+        Ok(pool) => pool,
+        Err(error) => {
+            eprintln!("no thread pool: {error}");
+            std::process::exit(1);
+        }
+    };
+    let blocks = paths.div_ceil(LANES);
+    let start = Instant::now();
+    let total: f64 = pool.install(|| {
+        (0..blocks)
+            .into_par_iter()
+            .map(|block| {
+                let mut rng = ChaCha8Rng::seed_from_u64(seed);
+                rng.set_stream(block as u64);
+                let mut words = [0u64; LANES / 2];
+                let mut normals: Lanes = [0.0; LANES];
+                let mut sum = [0.0; LANES];
+                for _ in 0..steps {
+                    fill_normals_chunk(&mut rng, &mut words, &mut normals);
+                    for (s, z) in sum.iter_mut().zip(&normals) {
+                        *s += z;
+                    }
+                }
+                sum.iter().sum::<f64>()
+            })
+            .sum()
+    });
+    let seconds = start.elapsed().as_secs_f64();
+    std::hint::black_box(total);
+    seconds
+}
+
+fn main() {
+    let paths = from_env("SDECK_BENCH_PATHS", 400_000);
+    let steps = from_env("SDECK_BENCH_STEPS", 200);
+    let runs = from_env("SDECK_BENCH_RUNS", 3);
+    let cores = std::thread::available_parallelism().map_or(1, |n| n.get());
+    let threads = from_env("SDECK_BENCH_THREADS", cores);
+
+    let model = analysed(LOGISTIC, "logistic");
     let plan = plan_from_model(&model);
     if plan.schemes != vec![Scheme::Euler] {
         eprintln!(
-            "the double well should run on Euler–Maruyama, got {:?}",
+            "the logistic model should run on Euler–Maruyama, got {:?}",
             plan.schemes
         );
         std::process::exit(1);
     }
-    println!("double well, Euler–Maruyama: {paths} paths × {steps} steps");
-    for threads in [1, cores] {
-        measure(&model, &plan, paths, steps, threads);
-    }
+    let options = SimulationOptions {
+        paths,
+        steps,
+        at: Some(1.0),
+        seed: 2026,
+        threads: Some(threads),
+        ..Default::default()
+    };
+    let mut figures = (0.0, 0.0);
+    let engine = best_of(runs, || {
+        let (seconds, mean, se) = engine_seconds(&model, &plan, &options);
+        figures = (mean, se);
+        seconds
+    });
+    let floor = best_of(runs, || floor_seconds(paths, steps, threads, 2026));
+    let path_steps = (paths * steps) as f64;
+    println!("logistic, Euler–Maruyama: {paths} paths × {steps} steps, {threads} threads");
+    println!(
+        "  engine {engine:.3} s ({:.2} ns per path-step), floor {floor:.3} s ({:.2} ns per normal): engine / floor = {:.2}",
+        engine / path_steps * 1e9,
+        floor / path_steps * 1e9,
+        engine / floor
+    );
+    println!("  mean c(1) = {:.5} ± {:.5}", figures.0, figures.1);
+    println!(
+        "result engine_seconds={engine:.6} floor_seconds={floor:.6} mean={:.6} se={:.6} threads={threads}",
+        figures.0, figures.1
+    );
 
+    if std::env::var("SDECK_BENCH_ONLY").is_ok_and(|v| v == "yardstick") {
+        return;
+    }
     let model = analysed(SQUARE_ROOT, "square_root");
     let plan = plan_from_model(&model);
+    let seconds = best_of(runs, || engine_seconds(&model, &plan, &options).0);
     println!(
-        "square root, {}: {paths} paths × {steps} steps",
-        plan.describe_state(0)
+        "square root, {}: {paths} paths × {steps} steps, {threads} threads: {seconds:.3} s ({:.2} ns per path-step)",
+        plan.describe_state(0),
+        seconds / path_steps * 1e9
     );
-    for threads in [1, cores] {
-        measure(&model, &plan, paths, steps, threads);
-    }
 }

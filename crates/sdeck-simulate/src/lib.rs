@@ -4,10 +4,13 @@
 //!
 //! Layout:
 //! - [`mod@plan`]: the scheme of each state (exact Gaussian, lognormal, noncentral chi-square,
-//!   or Euler–Maruyama), read from the equations;
+//!   Andersen's log-price step over an exact variance, or Euler–Maruyama), read from the
+//!   equations;
+//! - [`normals`]: standard normals in bulk, Box–Muller vectorised over a ChaCha8 stream;
 //! - [`bytecode`]: drift and diffusion compiled to a flat program run over 64 paths at once;
 //! - [`engine`]: blocks of paths with one random stream each, on a local thread pool;
-//! - [`stats`] and [`report`]: figures with Monte Carlo standard errors, JSON, text, check;
+//! - [`stats`] and [`report`]: figures with Monte Carlo standard errors, the bias by step
+//!   doubling, P(X < q), JSON, text, and the verdicts of `--check`;
 //! - [`plot`]: fan charts as SVG.
 //!
 //! ```
@@ -30,6 +33,7 @@ pub mod bytecode;
 pub mod closed_form;
 pub mod engine;
 pub mod linalg;
+pub mod normals;
 pub mod plan;
 pub mod plot;
 pub mod progress;
@@ -37,13 +41,20 @@ pub mod report;
 pub mod samplers;
 pub mod stats;
 
-pub use closed_form::{closed_form_means, closed_forms_at, simulate_and_compare};
-pub use engine::{simulate_paths, PathSamples, SimulateError, SimulationOptions};
-pub use plan::{plan, plan_from_model, ExactLaw, GaussianGroup, Plan, Scheme};
+pub use closed_form::{
+    closed_figures_at, closed_form_means, closed_forms_at, simulate_and_compare,
+    simulate_and_compare_below,
+};
+pub use engine::{
+    reporting_dates, simulate_paths, PathSamples, SimulateError, SimulationOptions,
+    DEFAULT_MEMORY_LIMIT,
+};
+pub use plan::{plan, plan_from_model, ExactLaw, GaussianGroup, Plan, Scheme, VarianceDriven};
 pub use plot::{fan_chart_svg, write_fan_chart, PlotError};
 pub use report::{
-    check, render_text, to_json, Bands, ClosedFormComparison, Disagreement, SimulationResult,
-    StateResult, CHECK_THRESHOLD,
+    check, render_text, to_json, verdicts, Bands, BelowEstimate, BiasEstimate, ClosedFigures,
+    ClosedFormComparison, DateResult, Disagreement, SimulationResult, StateResult, Undecided,
+    CHECK_THRESHOLD,
 };
 pub use stats::QUANTILE_PROBABILITIES;
 

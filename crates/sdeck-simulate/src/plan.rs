@@ -4,7 +4,10 @@
 //! Exact steps are only used when they keep the joint law of the whole system right:
 //! a linear Gaussian group or a square-root state draws its own normals, so it must not
 //! share a noise (or a correlated noise) with a state simulated otherwise. The lognormal
-//! step reuses the Brownian increments themselves and can share noises freely.
+//! step reuses the Brownian increments themselves and can share noises freely. A
+//! square-root variance is autonomous, so it keeps its exact step when log-prices it
+//! drives share or correlate with its noise: those take the log-price step of Andersen
+//! (2008) over the exact variance path ([`VarianceDriven`]).
 
 use crate::affine::{affine_form, scaled_square_root, AffineForm};
 use crate::bytecode::mark_root_states;
@@ -15,8 +18,28 @@ use sdeck_semantics::{Expr, Function, Model};
 #[derive(Clone, Debug, PartialEq)]
 pub enum Scheme {
     Exact(ExactLaw),
+    /// A log-price driven by a square-root variance sampled exactly.
+    VarianceDriven(VarianceDriven),
     /// Euler–Maruyama; coefficients read max(x, 0) for the states in [`Plan::truncated`].
     Euler,
+}
+
+/// dX = (drift_constant + drift_slope · V) dt + loading · √V dW_X with corr(W_X, W_V) =
+/// `correlation`, V a square-root state simulated exactly. The step is Andersen's
+/// (L. Andersen 2008, "Simple and efficient simulation of the Heston stochastic volatility
+/// model", Journal of Computational Finance 11(3), eq. (33) with γ₁ = γ₂ = ½):
+/// ∫√V dW_V is read off the exact variance step, ∫V ds is the trapezoid rule, and the
+/// part of the noise orthogonal to W_V is Gaussian given the variance path.
+#[derive(Clone, Debug, PartialEq)]
+pub struct VarianceDriven {
+    /// Index of the square-root state.
+    pub variance: usize,
+    /// The state's own noise (its orthogonal part is drawn from this noise's normals).
+    pub noise: usize,
+    pub drift_constant: f64,
+    pub drift_slope: f64,
+    pub loading: f64,
+    pub correlation: f64,
 }
 
 /// A transition law sampled exactly.
@@ -66,12 +89,18 @@ impl Scheme {
             Scheme::Exact(ExactLaw::LinearGaussian) => "exact (Gaussian)",
             Scheme::Exact(ExactLaw::Lognormal { .. }) => "exact (lognormal)",
             Scheme::Exact(ExactLaw::SquareRoot { .. }) => "exact (noncentral chi-square)",
+            Scheme::VarianceDriven(_) => "log-price step over the exact variance (Andersen 2008)",
             Scheme::Euler => "Euler–Maruyama",
         }
     }
 
     pub fn is_exact(&self) -> bool {
         matches!(self, Scheme::Exact(_))
+    }
+
+    /// Whether the figures of a state on this scheme carry a discretisation bias.
+    pub fn is_discretised(&self) -> bool {
+        !self.is_exact()
     }
 }
 
@@ -96,6 +125,12 @@ impl Plan {
             Some(scheme) => scheme.describe().to_string(),
             None => "none".to_string(),
         }
+    }
+
+    /// Whether any state is simulated with a discretised scheme (its figures then carry a
+    /// bias that step doubling estimates).
+    pub fn has_discretised(&self) -> bool {
+        self.schemes.iter().any(Scheme::is_discretised)
     }
 }
 
@@ -182,6 +217,8 @@ struct StateShape {
     diffusion: Option<Vec<(usize, AffineForm)>>,
     noises: Vec<usize>,
     square_root: Option<(usize, f64)>,
+    /// `(noise, c, j)` when the one diffusion term is c·√x_j of another state j.
+    variance_root: Option<(usize, f64, usize)>,
 }
 
 fn read_shapes(model: &Model) -> Vec<Option<StateShape>> {
@@ -202,17 +239,21 @@ fn read_shapes(model: &Model) -> Vec<Option<StateShape>> {
                 })
                 .collect::<Option<Vec<_>>>();
             // Only a square root of the state itself counts.
-            let square_root = match equation.diffusion.as_slice() {
+            let root = match equation.diffusion.as_slice() {
                 [term] => scaled_square_root(&term.coefficient, &params, n)
-                    .filter(|(_, root_state)| *root_state == index)
-                    .map(|(vol, _)| (term.noise, vol)),
+                    .map(|(vol, root_state)| (term.noise, vol, root_state)),
                 _ => None,
             };
+            let square_root = root
+                .filter(|(_, _, root_state)| *root_state == index)
+                .map(|(noise, vol, _)| (noise, vol));
+            let variance_root = root.filter(|(_, _, root_state)| *root_state != index);
             Some(StateShape {
                 drift,
                 diffusion,
                 noises: equation.diffusion.iter().map(|t| t.noise).collect(),
                 square_root,
+                variance_root,
             })
         })
         .collect()
@@ -229,6 +270,84 @@ fn noises_exclusive(own: &[usize], others: &[usize], correlation: &[Vec<f64>]) -
                     .is_none_or(|rho| *rho == 0.0)
         })
     })
+}
+
+/// The states that are log-prices driven by the square-root state `variance` (noise
+/// `variance_noise`): dX = (a + b V) dt + c √V dW_X, read structurally, each with a noise
+/// of its own that no other state uses and that correlates with no noise but the
+/// variance's. A state that reads the variance in another way keeps its scheme.
+fn driven_by(
+    variance: usize,
+    variance_noise: usize,
+    shapes: &[Option<StateShape>],
+    schemes: &[Scheme],
+    correlation: &[Vec<f64>],
+) -> Vec<(usize, VarianceDriven)> {
+    let n = shapes.len();
+    let rho = |a: usize, b: usize| -> f64 {
+        if a == b {
+            1.0
+        } else {
+            correlation
+                .get(a)
+                .and_then(|row| row.get(b))
+                .copied()
+                .unwrap_or(0.0)
+        }
+    };
+    let mut driven = Vec::new();
+    for (j, shape) in shapes.iter().enumerate() {
+        if j == variance || schemes[j].is_exact() {
+            continue;
+        }
+        let Some(shape) = shape else { continue };
+        let Some(drift) = shape.drift.as_ref() else {
+            continue;
+        };
+        let Some((noise, loading, root_state)) = shape.variance_root else {
+            continue;
+        };
+        if root_state != variance || loading == 0.0 || !drift.involves_only(variance) {
+            continue;
+        }
+        // The state's noise: used by no other state (the variance aside when it is the
+        // same noise), correlated with no noise other than the variance's.
+        let alone = (0..n).filter(|k| *k != j).all(|k| {
+            shapes[k].as_ref().is_none_or(|other| {
+                other.noises.iter().all(|m| {
+                    (k == variance && *m == variance_noise)
+                        || (*m != noise && rho(*m, noise) == 0.0)
+                })
+            })
+        });
+        let correlated_elsewhere = (0..correlation.len())
+            .any(|m| m != noise && m != variance_noise && rho(m, noise) != 0.0);
+        if !alone || correlated_elsewhere {
+            continue;
+        }
+        driven.push((
+            j,
+            VarianceDriven {
+                variance,
+                noise,
+                drift_constant: drift.constant,
+                drift_slope: drift.coefficients.get(variance).copied().unwrap_or(0.0),
+                loading,
+                correlation: rho(noise, variance_noise),
+            },
+        ));
+    }
+    // Two log-prices on correlated noises would need their joint law: keep them on Euler.
+    let independent = driven.iter().all(|(a, da)| {
+        driven
+            .iter()
+            .all(|(b, db)| a == b || (da.noise != db.noise && rho(da.noise, db.noise) == 0.0))
+    });
+    if independent {
+        driven
+    } else {
+        Vec::new()
+    }
 }
 
 /// Chooses a scheme for every state from the equations alone.
@@ -331,21 +450,24 @@ pub fn plan_from_model(model: &Model) -> Plan {
             continue;
         }
         let own_slope = drift.coefficients.get(i).copied().unwrap_or(0.0);
-        // Square root: drift a + b x with b < 0, a >= 0, one unshared noise.
+        // Square root: drift a + b x with b < 0, a >= 0, its noise shared or correlated
+        // only with the log-prices it drives.
         if let Some((noise, vol)) = shape.square_root {
-            let others = noises_of(&|j| j != i);
-            if own_slope < 0.0
-                && drift.constant >= 0.0
-                && vol != 0.0
-                && noises_exclusive(&[noise], &others, &correlation)
-            {
-                let speed = -own_slope;
-                schemes[i] = Scheme::Exact(ExactLaw::SquareRoot {
-                    speed,
-                    level: drift.constant / speed,
-                    vol: vol.abs(),
-                });
-                continue;
+            if own_slope < 0.0 && drift.constant >= 0.0 && vol != 0.0 {
+                let driven = driven_by(i, noise, &shapes, &schemes, &correlation);
+                let outside = noises_of(&|j| j != i && !driven.iter().any(|d| d.0 == j));
+                if noises_exclusive(&[noise], &outside, &correlation) {
+                    let speed = -own_slope;
+                    schemes[i] = Scheme::Exact(ExactLaw::SquareRoot {
+                        speed,
+                        level: drift.constant / speed,
+                        vol: vol.abs(),
+                    });
+                    for (j, step) in driven {
+                        schemes[j] = Scheme::VarianceDriven(step);
+                    }
+                    continue;
+                }
             }
         }
         // Geometric Brownian: no constant parts, only the state itself.
@@ -457,7 +579,16 @@ pub fn plan(model: &Model, derivation: &Derivation) -> Plan {
                     _ => to_euler.push(i),
                 }
             }
-            Scheme::Exact(ExactLaw::LinearGaussian) | Scheme::Euler => {}
+            Scheme::Exact(ExactLaw::LinearGaussian) | Scheme::VarianceDriven(_) | Scheme::Euler => {
+            }
+        }
+    }
+    // A log-price whose variance lost its exact step goes to Euler with it.
+    for i in 0..plan.schemes.len() {
+        if let Scheme::VarianceDriven(driven) = &plan.schemes[i] {
+            if to_euler.contains(&driven.variance) {
+                to_euler.push(i);
+            }
         }
     }
 

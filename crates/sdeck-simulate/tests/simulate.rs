@@ -146,7 +146,7 @@ fn square_root_exact_scheme_matches_cir_moments_and_stays_non_negative() {
     ));
     let t = 1.0;
     let samples = simulate_paths(&model, &plan, &options(100_000, 4, t, 3)).unwrap();
-    assert!(samples.finals[0].iter().all(|x| *x >= 0.0));
+    assert!(samples.finals()[0].iter().all(|x| *x >= 0.0));
     let result = simulate(&model, &plan, &options(100_000, 4, t, 3)).unwrap();
     let (mean, variance) = cir_moments(0.8, 0.02, 0.3, 0.015, t);
     assert_z(
@@ -181,7 +181,7 @@ fn euler_with_full_truncation_converges_to_cir_moments() {
     let plan = Plan::all_euler(&model);
     assert_eq!(plan.truncated, vec![true]);
     let samples = simulate_paths(&model, &plan, &options(40_000, 400, 1.0, 8)).unwrap();
-    assert!(samples.finals[0].iter().all(|x| *x >= 0.0));
+    assert!(samples.finals()[0].iter().all(|x| *x >= 0.0));
     let result = simulate(&model, &plan, &options(40_000, 400, 1.0, 8)).unwrap();
     let (mean, variance) = cir_moments(1.6, 0.034, 0.09, 0.029, 1.0);
     assert_z(
@@ -254,7 +254,7 @@ fn correlated_gaussian_system_has_the_exact_covariance() {
     let t = 1.5;
     let samples = simulate_paths(&model, &plan, &options(80_000, 5, t, 4)).unwrap();
     let expected = -0.6 * 0.01 * 0.008 * (1.0 - (-(1.1f64) * t).exp()) / 1.1;
-    let (covariance, se) = sample_covariance(&samples.finals[0], &samples.finals[1]);
+    let (covariance, se) = sample_covariance(&samples.finals()[0], &samples.finals()[1]);
     assert_z(covariance, expected, se, "covariance");
 }
 
@@ -301,7 +301,7 @@ fn euler_increments_carry_the_noise_correlation() {
         .map(|k| (2.0 * k as f64 * dt).cos().powi(2) * dt)
         .sum();
     let expected = 0.7 * 0.3 * 0.5 * grid_sum;
-    let (covariance, se) = sample_covariance(&samples.finals[0], &samples.finals[1]);
+    let (covariance, se) = sample_covariance(&samples.finals()[0], &samples.finals()[1]);
     assert_z(covariance, expected, se, "covariance");
 }
 
@@ -363,21 +363,29 @@ fn json_report_has_the_documented_shape() {
         k.sort();
         k
     };
-    assert_eq!(keys(&json), ["at", "factors", "paths", "seed", "steps"]);
+    assert_eq!(
+        keys(&json),
+        ["clock", "dates", "notes", "paths", "seed", "steps"]
+    );
     assert_eq!(json["paths"], 2000);
     assert_eq!(json["steps"], 10);
     assert_eq!(json["seed"], 5);
-    assert_eq!(json["at"], 1.0);
-    let state = &json["factors"][0];
+    assert_eq!(json["clock"], "year");
+    assert_eq!(json["dates"].as_array().unwrap().len(), 1);
+    assert_eq!(json["dates"][0]["at"], 1.0);
+    let state = &json["dates"][0]["factors"][0];
     assert_eq!(
         keys(state),
         [
+            "below",
+            "bias",
             "closed_form",
             "mean",
             "mean_se",
             "name",
             "quantiles",
             "quantiles_se",
+            "scheme",
             "variance",
             "variance_se"
         ]
@@ -393,10 +401,20 @@ fn json_report_has_the_documented_shape() {
     );
     assert_eq!(
         keys(&state["closed_form"]),
-        ["mean", "variance", "z_mean", "z_variance"]
+        [
+            "below",
+            "mean",
+            "variance",
+            "z_below",
+            "z_mean",
+            "z_variance"
+        ]
     );
-    result.states[0].closed_form = None;
-    assert!(to_json(&result)["factors"][0]["closed_form"].is_null());
+    // An exact scheme has no bias estimate; no threshold, no probability.
+    assert!(state["bias"].is_null());
+    assert!(state["below"].is_null());
+    result.attach_closed_forms(&[None]);
+    assert!(to_json(&result)["dates"][0]["factors"][0]["closed_form"].is_null());
 }
 
 #[test]
@@ -647,7 +665,7 @@ fn truncation_applies_to_roots_of_non_negative_states_only() {
     assert_eq!(plan.truncated, vec![true, false, true]);
     let samples = simulate_paths(&model, &plan, &options(2_000, 50, 1.0, 3)).unwrap();
     assert!(
-        samples.finals[1].iter().any(|p| *p < 0.0),
+        samples.finals()[1].iter().any(|p| *p < 0.0),
         "p must keep its negative values"
     );
 }
