@@ -8,7 +8,7 @@ use crate::mathml::math;
 use crate::review::{fan_charts, CrossCheck, Review};
 use crate::{formula_lines, DocumentInfo, CAUTION};
 use sdeck_diagnostics::Severity;
-use sdeck_units::number::{plain, significant};
+use sdeck_units::number::{percent, plain, significant};
 use std::fmt::Write as _;
 
 const STYLE: &str = r#"
@@ -283,6 +283,41 @@ fn matrix(s: &mut String, title: &str, names: &[String], m: &[Vec<Option<f64>>],
     s.push_str("</table>");
 }
 
+/// The zero-coupon curve of a model with a `discount` line: chart and table.
+fn yield_curve(s: &mut String, review: &Review) {
+    let Some(derived) = &review.curve else {
+        return;
+    };
+    s.push_str(r#"<section class="curve"><h2>Yield curve</h2>"#);
+    match derived {
+        Err(why) => {
+            let _ = write!(s, "<p>No curve is derived: {}</p>", escape(why));
+        }
+        Ok(c) => {
+            s.push_str(&c.svg);
+            s.push_str(
+                "<table><thead><tr><th>maturity (year)</th><th>price</th>\
+                 <th>zero yield</th><th>forward</th></tr></thead><tbody>",
+            );
+            for p in &c.curve.points {
+                let _ = write!(
+                    s,
+                    r#"<tr><td>{}</td><td data-figure="price">{}</td><td data-figure="yield">{}</td><td data-figure="forward">{}</td></tr>"#,
+                    plain(p.maturity * c.years_per_clock),
+                    significant(p.price, 8),
+                    rate_percent(p.yield_rate),
+                    rate_percent(p.forward),
+                );
+            }
+            s.push_str("</tbody></table>");
+            if let Some(y) = c.curve.long_yield {
+                let _ = write!(s, "<p>Long yield: {}</p>", rate_percent(y));
+            }
+        }
+    }
+    s.push_str("</section>");
+}
+
 fn matrices(s: &mut String, r: &ModelReport) {
     if r.factors.len() < 2 {
         return;
@@ -412,6 +447,7 @@ pub fn html(reviews: &[Review], info: &DocumentInfo) -> String {
                 params(&mut s, r);
                 factors(&mut s, r, &review.grid);
                 matrices(&mut s, r);
+                yield_curve(&mut s, review);
                 cross_check(&mut s, r, review);
                 expectations(&mut s, r);
             }
@@ -423,4 +459,13 @@ pub fn html(reviews: &[Review], info: &DocumentInfo) -> String {
     }
     s.push_str("</body></html>\n");
     s
+}
+
+/// A rate as a percentage with four significant digits, or "not known".
+fn rate_percent(x: f64) -> String {
+    if x.is_finite() {
+        percent(x, 4)
+    } else {
+        "not known".to_string()
+    }
 }

@@ -23,6 +23,7 @@
 //! ```
 
 pub mod charts;
+pub mod curve_chart;
 pub mod data;
 pub mod diff;
 pub mod html;

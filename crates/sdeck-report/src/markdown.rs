@@ -4,7 +4,7 @@
 use crate::data::{ModelReport, QUANTILE_LEVELS};
 use crate::review::Review;
 use crate::{formula_lines, DocumentInfo, CAUTION};
-use sdeck_units::number::{or_unknown, plain, significant};
+use sdeck_units::number::{or_unknown, percent, plain, significant};
 use std::fmt::Write as _;
 
 /// Escapes the characters that would break a table cell or start markup.
@@ -215,6 +215,37 @@ fn model(s: &mut String, review: &Review, r: &ModelReport) {
     } else if let Some(note) = &review.cross_check_note {
         let _ = writeln!(s, "### Monte Carlo cross-check\n\n{}\n", cell(note));
     }
+    if let Some(derived) = &review.curve {
+        let _ = writeln!(s, "### Yield curve\n");
+        match derived {
+            Err(why) => {
+                let _ = writeln!(s, "No curve is derived: {}\n", cell(why));
+            }
+            Ok(c) => {
+                let rows: Vec<Vec<String>> = c
+                    .curve
+                    .points
+                    .iter()
+                    .map(|p| {
+                        vec![
+                            plain(p.maturity * c.years_per_clock),
+                            significant(p.price, 8),
+                            rate_percent(p.yield_rate),
+                            rate_percent(p.forward),
+                        ]
+                    })
+                    .collect();
+                table(
+                    s,
+                    &["maturity (year)", "price", "zero yield", "forward"],
+                    &rows,
+                );
+                if let Some(y) = c.curve.long_yield {
+                    let _ = writeln!(s, "Long yield: {}\n", rate_percent(y));
+                }
+            }
+        }
+    }
     if !r.expectations.is_empty() {
         let _ = writeln!(s, "### Expectations\n");
         let rows: Vec<Vec<String>> = r
@@ -292,4 +323,13 @@ pub fn markdown(reviews: &[Review], info: &DocumentInfo) -> String {
         }
     }
     s
+}
+
+/// A rate as a percentage with four significant digits, or "not known".
+fn rate_percent(x: f64) -> String {
+    if x.is_finite() {
+        percent(x, 4)
+    } else {
+        "not known".to_string()
+    }
 }

@@ -1,7 +1,9 @@
 //! The review document of one model as data: the report on the horizon, the figures on a
 //! time grid, the diagnostics located, and the Monte Carlo cross-check.
 
+use crate::curve_chart::yield_curve_svg;
 use crate::data::{figures_at, time_grid, Figures, ModelReport};
+use sdeck_calculus::curve::{curve, Curve};
 use sdeck_checks::FileCheck;
 use sdeck_diagnostics::Severity;
 use sdeck_simulate::{simulate_and_compare, SimulationOptions, SimulationResult};
@@ -52,7 +54,35 @@ pub struct Review {
     pub cross_check: Option<CrossCheck>,
     /// Why there is no cross-check, when there is none.
     pub cross_check_note: Option<String>,
+    /// The zero-coupon curve at [`CURVE_MATURITIES_YEARS`] when the model has a
+    /// `discount` line: the curve, or why it could not be derived.
+    pub curve: Option<Result<CurveReview, String>>,
 }
+
+/// The yield curve of a model with a `discount` line, as the review shows it.
+#[derive(Clone, Debug, PartialEq)]
+pub struct CurveReview {
+    pub curve: Curve,
+    /// Years per clock unit, to state maturities in years.
+    pub years_per_clock: f64,
+    /// The chart of zero yields and forwards (inline SVG).
+    pub svg: String,
+}
+
+/// Maturities of the review's curve, in years: the same as `sdeck curve`'s default.
+pub const CURVE_MATURITIES_YEARS: [f64; 11] = [
+    1.0 / 12.0,
+    0.25,
+    0.5,
+    1.0,
+    2.0,
+    3.0,
+    5.0,
+    7.0,
+    10.0,
+    20.0,
+    30.0,
+];
 
 /// How the review is made.
 #[derive(Clone, Debug)]
@@ -146,6 +176,7 @@ impl Review {
             grid: Vec::new(),
             cross_check: None,
             cross_check_note: None,
+            curve: None,
         };
         if broken {
             return review;
@@ -153,6 +184,17 @@ impl Review {
         let model = &check.analysis.model;
         let derivation = &check.derivation;
         review.report = Some(ModelReport::build(model, derivation, source, model.horizon));
+        review.curve = model.discount.as_ref().map(|discount| {
+            let maturities: Vec<f64> = CURVE_MATURITIES_YEARS
+                .iter()
+                .map(|years| years / model.clock.years)
+                .collect();
+            curve(model, &discount.rate, &maturities).map(|c| CurveReview {
+                svg: yield_curve_svg(model, &c),
+                years_per_clock: model.clock.years,
+                curve: c,
+            })
+        });
         review.grid = time_grid(model.horizon)
             .iter()
             .map(|t| figures_at(model, derivation, *t))

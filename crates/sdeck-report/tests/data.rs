@@ -107,3 +107,48 @@ fn a_factor_known_through_its_transform_has_quantiles_and_its_law_named() {
     let mean = x.figures.mean.unwrap_or(f64::NAN);
     assert!(q[0] < mean && mean < q[4]);
 }
+
+#[test]
+fn a_model_with_a_discount_line_gets_its_yield_curve_in_both_documents() {
+    // The review's curve is the calculus curve (checked against Brigo & Mercurio 2006,
+    // eq. 4.10, in sdeck-calculus) at the default maturities; here: it is there, its
+    // 10-year yield equals the one `curve` derives, and both renderings carry it.
+    use sdeck_report::review::{Review, ReviewOptions, CURVE_MATURITIES_YEARS};
+    let source = demo("kestrel_bank_short_rate.sde");
+    let check = sdeck_checks::check(&source, "kestrel", &Default::default());
+    let options = ReviewOptions {
+        paths: 0,
+        ..Default::default()
+    };
+    let review = Review::build("kestrel_bank_short_rate.sde", &source, &check, &options);
+    let curve = match &review.curve {
+        Some(Ok(c)) => c,
+        other => panic!("no curve in the review: {other:?}"),
+    };
+    assert_eq!(curve.curve.points.len(), CURVE_MATURITIES_YEARS.len());
+    let model = &check.analysis.model;
+    let rate = &model.discount.as_ref().expect("discount line").rate;
+    let ten = 10.0 / model.clock.years;
+    let direct = sdeck_calculus::curve::curve(model, rate, &[ten]).expect("curve");
+    let in_review = curve
+        .curve
+        .points
+        .iter()
+        .find(|p| (p.maturity - ten).abs() < 1e-12)
+        .expect("10-year point");
+    assert!((in_review.yield_rate - direct.points[0].yield_rate).abs() < 1e-15);
+    let info = sdeck_report::DocumentInfo {
+        date: "2026-12-02".into(),
+        version: "sdeck test".into(),
+    };
+    let html = sdeck_report::html::html(std::slice::from_ref(&review), &info);
+    assert!(html.contains("<h2>Yield curve</h2>") && html.contains("zero yields and forwards"));
+    let markdown = sdeck_report::markdown::markdown(std::slice::from_ref(&review), &info);
+    assert!(markdown.contains("### Yield curve"));
+    // A model without a discount line has no curve section.
+    let plain = report_of(VASICEK, 1.0);
+    assert!(plain.factors.len() == 1);
+    let check = sdeck_checks::check(VASICEK, "vasicek", &Default::default());
+    let review = Review::build("vasicek.sde", VASICEK, &check, &options);
+    assert!(review.curve.is_none());
+}
