@@ -191,7 +191,26 @@ fn parse_directive(text: &str, base: usize, comment: &Span) -> Option<Directive>
                 span,
             });
         } else {
-            problems.push(problem(span, format!("`{name}` is not a rule")));
+            let diagnostic = match rules::closest(name) {
+                Some(close) => Diagnostic::new(
+                    &rules::UNUSED_SUPPRESSION,
+                    span.clone(),
+                    format!("`{name}` is not a rule; did you mean `{}`?", close.name),
+                )
+                .with_help(format!(
+                    "write `{}`; `sdeck explain` lists the rules",
+                    close.name
+                ))
+                .with_fix(
+                    format!("Write `{}`", close.name),
+                    vec![TextEdit {
+                        span,
+                        new_text: close.name.to_string(),
+                    }],
+                ),
+                None => problem(span, format!("`{name}` is not a rule")),
+            };
+            problems.push(diagnostic);
         }
     }
     Some(Directive {

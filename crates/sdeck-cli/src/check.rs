@@ -346,12 +346,11 @@ fn run_in_pool(args: CheckArgs) -> ExitCode {
             status_two = true;
         }
     }
-    let color =
-        if std::io::IsTerminal::is_terminal(&std::io::stdout()) && stdout_format == Format::Human {
-            ColorChoice::Auto
-        } else {
-            ColorChoice::Never
-        };
+    let color = if stdout_format == Format::Human {
+        crate::color_choice(std::io::IsTerminal::is_terminal(&std::io::stdout()))
+    } else {
+        ColorChoice::Never
+    };
     // Buffered: a report of thousands of findings is written in large blocks, not a
     // system call per line.
     let mut stdout = BufferedStandardStream::stdout(color);
@@ -414,6 +413,7 @@ fn plural(n: usize, word: &str) -> String {
 fn write_human(checked: &[Checked], out: &mut dyn WriteColor) -> std::io::Result<()> {
     let mut errors = 0;
     let mut warnings = 0;
+    let mut infos = 0;
     let mut hints = 0;
     for c in checked {
         render::human(out, &c.source.path, &c.source.text, &c.diagnostics)?;
@@ -421,13 +421,21 @@ fn write_human(checked: &[Checked], out: &mut dyn WriteColor) -> std::io::Result
             match d.severity {
                 Severity::Error => errors += 1,
                 Severity::Warning => warnings += 1,
-                Severity::Info | Severity::Hint => hints += 1,
+                Severity::Info => infos += 1,
+                Severity::Hint => hints += 1,
             }
         }
     }
+    // Each level counted under its own name, the word its findings carry above; `info`
+    // (a level only a project file sets) is counted only when there is one.
+    let infos = if infos > 0 {
+        format!(", {}", plural(infos, "info"))
+    } else {
+        String::new()
+    };
     writeln!(
         out,
-        "{} checked: {}, {}, {}",
+        "{} checked: {}, {}{infos}, {}",
         plural(checked.len(), "file"),
         plural(errors, "error"),
         plural(warnings, "warning"),

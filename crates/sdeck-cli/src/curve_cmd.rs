@@ -28,7 +28,7 @@ pub struct CurveArgs {
     /// Comma-separated maturities, each a number in clock units or with a time unit
     /// ("1 month,3 month,1 year"). Default: 1, 3, 6 months and 1, 2, 3, 5, 7, 10, 20,
     /// 30 years.
-    #[arg(long)]
+    #[arg(long, allow_hyphen_values = true)]
     maturities: Option<String>,
     #[arg(long, value_enum, default_value_t = Format::Text)]
     format: Format,

@@ -1,5 +1,6 @@
-//! `sdeck fmt [--check] PATH...`: formats model files in place with the one formatter
-//! the language server also uses. A file with syntax errors is never changed.
+//! `sdeck fmt [--check | --diff] PATH...`: formats model files in place with the one
+//! formatter the language server also uses. A file with syntax errors is never changed.
+//! `sdeck fmt -` formats standard input to standard output (for editors and hooks).
 
 use clap::Args;
 use sdeck_format::Outcome;
@@ -8,15 +9,91 @@ use std::process::ExitCode;
 
 #[derive(Args)]
 pub struct FmtArgs {
-    /// Model files or folders (searched recursively for *.sde).
+    /// Model files or folders (searched recursively for *.sde); `-` formats standard
+    /// input to standard output.
     #[arg(required = true)]
     paths: Vec<PathBuf>,
     /// Change nothing; list the files that are not formatted and exit 1 if any.
     #[arg(long)]
     check: bool,
+    /// Change nothing; print what formatting would change as a unified diff and exit 1
+    /// if anything would.
+    #[arg(long, conflicts_with = "check")]
+    diff: bool,
+}
+
+/// The unified diff from `old` to `new` of the file shown as `name`, with three lines
+/// of context.
+fn unified_diff(name: &str, old: &str, new: &str) -> String {
+    similar::TextDiff::from_lines(old, new)
+        .unified_diff()
+        .context_radius(3)
+        .header(&format!("{name} (as written)"), &format!("{name} (formatted)"))
+        .to_string()
+}
+
+/// `sdeck fmt -`: standard input to standard output. A text that cannot be formatted is
+/// written back unchanged (an editor piping through the command loses nothing) and the
+/// reason goes to stderr with exit status 2.
+fn run_stdin(args: &FmtArgs) -> ExitCode {
+    if args.paths.len() > 1 {
+        eprintln!("sdeck: `-` (standard input) cannot be formatted beside other paths");
+        return ExitCode::from(2);
+    }
+    let source = match crate::files::read_stdin("<stdin>") {
+        Ok(s) => s,
+        Err(message) => {
+            eprintln!("sdeck: {message}");
+            return ExitCode::from(2);
+        }
+    };
+    if source.invalid_utf8_at.is_some() {
+        eprintln!("sdeck: standard input is not UTF-8 text; nothing formatted");
+        return ExitCode::from(2);
+    }
+    let text = source.text;
+    let formatted = match sdeck_format::format(&text) {
+        Outcome::Formatted(formatted) => formatted,
+        Outcome::SyntaxErrors { count } => {
+            eprintln!(
+                "sdeck: standard input has {count} syntax error{}; written back unchanged",
+                if count == 1 { "" } else { "s" }
+            );
+            if !args.check && !args.diff {
+                out!("{text}");
+            }
+            return ExitCode::from(2);
+        }
+        Outcome::Refused { reason } => {
+            eprintln!("sdeck: standard input written back unchanged: {reason}");
+            if !args.check && !args.diff {
+                out!("{text}");
+            }
+            return ExitCode::from(2);
+        }
+    };
+    let changed = formatted != text;
+    if args.check {
+        if changed {
+            outln!("<stdin>: not formatted");
+        }
+    } else if args.diff {
+        out!("{}", unified_diff("<stdin>", &text, &formatted));
+    } else {
+        out!("{formatted}");
+        return ExitCode::SUCCESS;
+    }
+    if changed {
+        ExitCode::from(1)
+    } else {
+        ExitCode::SUCCESS
+    }
 }
 
 pub fn run(args: FmtArgs) -> ExitCode {
+    if args.paths.iter().any(|p| p.as_os_str() == "-") {
+        return run_stdin(&args);
+    }
     let paths = match collect(&args.paths) {
         Ok(p) => p,
         Err(message) => {
@@ -59,6 +136,8 @@ pub fn run(args: FmtArgs) -> ExitCode {
                 unformatted += 1;
                 if args.check {
                     outln!("{shown}: not formatted");
+                } else if args.diff {
+                    out!("{}", unified_diff(&shown.to_string(), &text, &formatted));
                 } else if let Err(e) = std::fs::write(path, formatted) {
                     eprintln!("sdeck: cannot write `{shown}`: {e}");
                     failed += 1;
@@ -81,7 +160,7 @@ pub fn run(args: FmtArgs) -> ExitCode {
     }
     if failed > 0 {
         ExitCode::from(2)
-    } else if args.check && unformatted > 0 {
+    } else if (args.check || args.diff) && unformatted > 0 {
         ExitCode::from(1)
     } else {
         ExitCode::SUCCESS

@@ -32,10 +32,10 @@ pub fn report(checked: &[Checked]) -> String {
     for c in checked {
         let file = escape_property(&c.source.path);
         for (d, (start, end)) in c.diagnostics.iter().zip(&c.positions) {
-            let mut message = d.message.clone();
-            if let Some(help) = &d.help {
-                message.push_str(&format!("\nhelp: {help}"));
-            }
+            // The message alone: the annotation's title names the rule, and the help is
+            // one `sdeck explain` or the human report away (repeated here, it doubled
+            // the height of every annotation).
+            let message = &d.message;
             out.push_str(&format!(
                 "::{} file={file},line={},col={},endLine={},endColumn={},title={}::{}\n",
                 command(d.severity),
@@ -44,7 +44,7 @@ pub fn report(checked: &[Checked]) -> String {
                 end.0,
                 end.1,
                 escape_property(d.rule),
-                escape_data(&message)
+                escape_data(message)
             ));
         }
     }

@@ -51,6 +51,36 @@ reversion. It derives closed-form solutions and moments, and cross-checks them b
 struct Cli {
     #[command(subcommand)]
     command: Command,
+    /// Colour in the human report and in the findings printed on stderr: `auto` colours a
+    /// terminal unless NO_COLOR is set.
+    #[arg(long, global = true, value_enum, default_value_t = ColorWhen::Auto)]
+    color: ColorWhen,
+}
+
+/// When to colour output for people.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, clap::ValueEnum)]
+pub enum ColorWhen {
+    /// On a terminal, unless the NO_COLOR environment variable is set.
+    Auto,
+    /// Always, even into a pipe or file (and despite NO_COLOR).
+    Always,
+    /// Never.
+    Never,
+}
+
+/// The `--color` of this run, set once at start.
+static COLOR: std::sync::OnceLock<ColorWhen> = std::sync::OnceLock::new();
+
+/// The colour choice for a stream: `terminal` says whether it is a terminal.
+pub(crate) fn color_choice(terminal: bool) -> codespan_reporting::term::termcolor::ColorChoice {
+    use codespan_reporting::term::termcolor::ColorChoice;
+    match COLOR.get().copied().unwrap_or(ColorWhen::Auto) {
+        ColorWhen::Always => ColorChoice::Always,
+        ColorWhen::Never => ColorChoice::Never,
+        // termcolor's `Auto` honours NO_COLOR and TERM=dumb.
+        ColorWhen::Auto if terminal => ColorChoice::Auto,
+        ColorWhen::Auto => ColorChoice::Never,
+    }
 }
 
 #[derive(Subcommand)]
@@ -113,6 +143,7 @@ fn main() -> ExitCode {
             return ExitCode::from(code);
         }
     };
+    let _ = COLOR.set(cli.color);
     match cli.command {
         Command::Check(args) => check::run(args),
         Command::Moments(args) => moments::run(args),
@@ -153,7 +184,15 @@ fn explain(rule: Option<&str>, markdown: bool) -> ExitCode {
                 ExitCode::SUCCESS
             }
             None => {
-                eprintln!("sdeck: no rule is called `{name}`; `sdeck explain` lists them");
+                match rules::closest(name) {
+                    Some(close) => eprintln!(
+                        "sdeck: no rule is called `{name}`; did you mean `{}`? (`sdeck explain` lists them)",
+                        close.name
+                    ),
+                    None => {
+                        eprintln!("sdeck: no rule is called `{name}`; `sdeck explain` lists them")
+                    }
+                }
                 ExitCode::from(2)
             }
         },

@@ -22,8 +22,8 @@ pub struct MomentsArgs {
     /// The model file.
     file: PathBuf,
     /// The time at which to report: a number in clock units, or a number with a time unit
-    /// ("6 month", "2 year"). Default: the model's horizon.
-    #[arg(long)]
+    /// ("6 month", "2 year"); 0 is today. Default: the model's horizon.
+    #[arg(long, allow_hyphen_values = true)]
     at: Option<String>,
     #[arg(long, value_enum, default_value_t = Format::Text)]
     format: Format,
@@ -138,7 +138,7 @@ pub fn load_sound_model(path: &Path, doing: &str) -> Result<(String, FileCheck),
         .collect();
     if !errors.is_empty() {
         let mut err = codespan_reporting::term::termcolor::StandardStream::stderr(
-            codespan_reporting::term::termcolor::ColorChoice::Never,
+            crate::color_choice(std::io::IsTerminal::is_terminal(&std::io::stderr())),
         );
         let _ = crate::render::human(
             &mut err,
@@ -152,20 +152,27 @@ pub fn load_sound_model(path: &Path, doing: &str) -> Result<(String, FileCheck),
     Ok((text, result))
 }
 
-/// The `--at` option in clock units: the horizon when absent; `positive` refuses zero.
-pub fn time_option(text: Option<&str>, model: &Model, positive: bool) -> Result<f64, ExitCode> {
+/// The `--at` option in clock units: the horizon when absent. Zero (today) is a time;
+/// a negative time is refused with the value in the message.
+pub fn time_option(text: Option<&str>, model: &Model) -> Result<f64, ExitCode> {
     let Some(text) = text else {
         return Ok(model.horizon);
     };
     match parse_time(text, model) {
-        Ok(t) if t.is_finite() && (t > 0.0 || (!positive && t == 0.0)) => Ok(t),
+        Ok(t) if t.is_finite() && t >= 0.0 => Ok(t),
+        Ok(t) if t < 0.0 => {
+            eprintln!(
+                "sdeck: --at `{}` is in the past: give a time from now, 0 (today) or later, \
+                 e.g. `--at 0` or `--at 6 month`",
+                text.trim()
+            );
+            Err(ExitCode::from(2))
+        }
         Ok(_) => {
-            let what = if positive {
-                "a positive time"
-            } else {
-                "a time from now (not negative)"
-            };
-            eprintln!("sdeck: --at must be {what}");
+            eprintln!(
+                "sdeck: --at `{}` is not a finite time: give a time from now, e.g. `--at 6 month`",
+                text.trim()
+            );
             Err(ExitCode::from(2))
         }
         Err(message) => {
@@ -181,7 +188,7 @@ pub fn run(args: MomentsArgs) -> ExitCode {
         Err(code) => return code,
     };
     let model = &result.analysis.model;
-    let t = match time_option(args.at.as_deref(), model, false) {
+    let t = match time_option(args.at.as_deref(), model) {
         Ok(t) => t,
         Err(code) => return code,
     };

@@ -66,6 +66,58 @@ fn report_severity(s: Severity) -> ReportSeverity {
 /// line would print megabytes).
 pub const MAX_SNIPPETS_PER_LINE: usize = 3;
 
+/// The longest line shown whole in a snippet, in characters. A finding on a longer line
+/// shows an excerpt of it instead (a file of one 40,000-character line once printed the
+/// whole line once per finding).
+pub const MAX_SNIPPET_CHARS: usize = 200;
+
+/// Characters of context shown on each side of a finding in an excerpt.
+const EXCERPT_CONTEXT: usize = 40;
+
+/// The most characters of the finding itself shown in an excerpt.
+const EXCERPT_SPAN: usize = 80;
+
+/// For a span on a line longer than [`MAX_SNIPPET_CHARS`]: `LINE:COLUMN (...)` and an
+/// excerpt of the line around the span with carets under it; `None` for a shorter line.
+fn excerpt(text: &str, index: &LineIndex, span: &Span) -> Option<String> {
+    use sdeck_syntax::lines::{line_end, line_start};
+    let start = span.start.min(text.len());
+    let end = span.end.clamp(start, text.len());
+    let (line_from, line_to) = (line_start(text, start), line_end(text, start));
+    let line = text.get(line_from..line_to)?;
+    let length = line.chars().count();
+    if length <= MAX_SNIPPET_CHARS {
+        return None;
+    }
+    let at = index.line_col(text, start, Encoding::Chars);
+    let before: Vec<char> = text.get(line_from..start)?.chars().collect();
+    let inside: Vec<char> = text.get(start..end.min(line_to))?.chars().collect();
+    let after: Vec<char> = text.get(end.min(line_to)..line_to)?.chars().collect();
+    let shown_before: String = before[before.len().saturating_sub(EXCERPT_CONTEXT)..]
+        .iter()
+        .collect();
+    let shown_inside: String = inside.iter().take(EXCERPT_SPAN).collect();
+    let shown_after: String = after.iter().take(EXCERPT_CONTEXT).collect();
+    let lead = if before.len() > EXCERPT_CONTEXT { "…" } else { "" };
+    let tail = if after.len() > EXCERPT_CONTEXT || inside.len() > EXCERPT_SPAN {
+        "…"
+    } else {
+        ""
+    };
+    let pad = escape(&format!("{lead}{shown_before}")).chars().count();
+    let carets = escape(&shown_inside).chars().count().max(1);
+    Some(format!(
+        "{}:{} (the line has {length} characters; an excerpt):\n{lead}{}{}{}{tail}\n{}{}",
+        at.line + 1,
+        at.col + 1,
+        escape(&shown_before),
+        escape(&shown_inside),
+        escape(&shown_after),
+        " ".repeat(pad),
+        "^".repeat(carets),
+    ))
+}
+
 /// Writes the diagnostics of one file for a person. Control characters of the file (an
 /// ESC in a comment, a binary file) and of the messages are printed escaped (`\u{1b}`),
 /// never raw, so no file can drive the terminal.
@@ -98,15 +150,27 @@ pub fn human(
         if *count > MAX_SNIPPETS_PER_LINE {
             continue;
         }
-        let mut primary = Label::primary(id, clamp(&d.span));
-        if let Some(label) = &d.label {
-            primary = primary.with_message(escape(label));
+        let mut labels = Vec::new();
+        let mut excerpts = Vec::new();
+        match excerpt(text, &index, &d.span) {
+            None => {
+                let mut primary = Label::primary(id, clamp(&d.span));
+                if let Some(label) = &d.label {
+                    primary = primary.with_message(escape(label));
+                }
+                labels.push(primary);
+            }
+            Some(cut) => excerpts.push(format!("at {}:{cut}", escape(path))),
         }
-        let mut labels = vec![primary];
         for r in &d.related {
-            labels.push(Label::secondary(id, clamp(&r.span)).with_message(escape(&r.message)));
+            match excerpt(text, &index, &r.span) {
+                None => labels
+                    .push(Label::secondary(id, clamp(&r.span)).with_message(escape(&r.message))),
+                Some(cut) => excerpts.push(format!("{}: {}:{cut}", escape(&r.message), escape(path))),
+            }
         }
-        let mut notes: Vec<String> = d.notes.iter().map(|n| escape(n)).collect();
+        let mut notes: Vec<String> = excerpts;
+        notes.extend(d.notes.iter().map(|n| escape(n)));
         if let Some(help) = &d.help {
             notes.push(format!("help: {}", escape(help)));
         }
@@ -115,7 +179,7 @@ pub fn human(
             .with_message(escape(&d.message))
             .with_labels(labels)
             .with_notes(notes);
-        term::emit(out, &config, &files, &report).map_err(std::io::Error::other)?;
+        emit_with_level_word(out, &config, &files, &report, d.severity)?;
     }
     let mut crowded: Vec<(u32, usize)> = on_line
         .into_iter()
@@ -138,6 +202,43 @@ pub fn human(
         )?;
     }
     Ok(())
+}
+
+/// Emits one report, its header word the level's own name (`hint`, `info`, `warning`,
+/// `error`: the words of `sdeck.toml`, the JSON report and the summary line) rather than
+/// the snippet printer's `help` and `note`.
+fn emit_with_level_word(
+    out: &mut dyn WriteColor,
+    config: &term::Config,
+    files: &SimpleFiles<String, &str>,
+    report: &Report<usize>,
+    severity: Severity,
+) -> std::io::Result<()> {
+    use codespan_reporting::term::termcolor::Buffer;
+    let mut buffer = if out.supports_color() {
+        Buffer::ansi()
+    } else {
+        Buffer::no_color()
+    };
+    term::emit(&mut buffer, config, files, report).map_err(std::io::Error::other)?;
+    let mut bytes = buffer.into_inner();
+    let printed = match report.severity {
+        ReportSeverity::Help => "help[",
+        ReportSeverity::Note => "note[",
+        _ => "",
+    };
+    if !printed.is_empty() {
+        // Only in the header, the first line: a snippet may show the same letters.
+        let header_end = bytes.iter().position(|b| *b == b'\n').unwrap_or(bytes.len());
+        if let Some(at) = bytes[..header_end]
+            .windows(printed.len())
+            .position(|w| w == printed.as_bytes())
+        {
+            let word = format!("{}[", severity.as_str());
+            bytes.splice(at..at + printed.len(), word.bytes());
+        }
+    }
+    out.write_all(&bytes)
 }
 
 /// `text` with every control character other than tab and line breaks written as

@@ -86,6 +86,49 @@ pub fn path_to_uri(path: &str) -> String {
     }
 }
 
+/// The name of the folder relative artifact paths are resolved against: the folder
+/// `sdeck check` ran in, given in the run's `originalUriBaseIds`.
+pub const ROOT_BASE_ID: &str = "SRCROOT";
+
+/// The location of an artifact: its URI, relative to [`ROOT_BASE_ID`] unless absolute.
+fn artifact_location(uri: &str) -> Value {
+    if uri.starts_with("file://") {
+        json!({"uri": uri})
+    } else {
+        json!({"uri": uri, "uriBaseId": ROOT_BASE_ID})
+    }
+}
+
+/// The folder the run started in, as a `file://` URI ending with `/`.
+fn root_uri() -> Option<String> {
+    let cwd = std::env::current_dir().ok()?;
+    let mut uri = path_to_uri(&cwd.to_string_lossy());
+    if !uri.starts_with("file://") {
+        return None;
+    }
+    if !uri.ends_with('/') {
+        uri.push('/');
+    }
+    Some(uri)
+}
+
+/// The fingerprint that follows a finding across commits: a hash of the rule, the file,
+/// the text of the finding's first line with its white space trimmed (not its number,
+/// which moves when lines are added above), and how many times the same rule fired on a
+/// line of the same text earlier in the file.
+fn fingerprint(rule: &str, uri: &str, line_text: &str, occurrence: usize) -> String {
+    use sha2::{Digest, Sha256};
+    let mut hasher = Sha256::new();
+    for part in [rule, uri, line_text.trim(), &occurrence.to_string()] {
+        hasher.update(part.as_bytes());
+        hasher.update([0u8]);
+    }
+    hasher.finalize()[..16]
+        .iter()
+        .map(|b| format!("{b:02x}"))
+        .collect()
+}
+
 fn region(start: (u32, u32), end: (u32, u32)) -> Value {
     json!({
         "startLine": start.0,
@@ -101,7 +144,19 @@ pub fn report(checked: &[Checked]) -> Value {
     for c in checked {
         let uri = path_to_uri(&c.source.path);
         let index = sdeck_syntax::LineIndex::new(&c.source.text);
+        let lines: Vec<&str> = sdeck_syntax::lines::lines(&c.source.text)
+            .map(|l| l.content)
+            .collect();
+        let mut seen: std::collections::HashMap<(&str, &str), usize> =
+            std::collections::HashMap::new();
         for (d, (start, end)) in c.diagnostics.iter().zip(&c.positions) {
+            let line_text = lines
+                .get(start.0.saturating_sub(1) as usize)
+                .copied()
+                .unwrap_or("");
+            let occurrence = seen.entry((d.rule, line_text.trim())).or_insert(0);
+            let print = fingerprint(d.rule, &uri, line_text, *occurrence);
+            *occurrence += 1;
             let rule_index = rules::ALL.iter().position(|r| r.name == d.rule);
             let mut message = d.message.clone();
             if let Some(help) = &d.help {
@@ -117,7 +172,7 @@ pub fn report(checked: &[Checked]) -> Value {
                         "id": i,
                         "message": {"text": label.message},
                         "physicalLocation": {
-                            "artifactLocation": {"uri": uri},
+                            "artifactLocation": artifact_location(&uri),
                             "region": region(s, e),
                         }
                     })
@@ -129,10 +184,11 @@ pub fn report(checked: &[Checked]) -> Value {
                 "message": {"text": message},
                 "locations": [{
                     "physicalLocation": {
-                        "artifactLocation": {"uri": uri},
+                        "artifactLocation": artifact_location(&uri),
                         "region": region(*start, *end),
                     }
                 }],
+                "partialFingerprints": {"findingHash/v1": print},
             });
             if let (Some(i), Some(object)) = (rule_index, result.as_object_mut()) {
                 object.insert("ruleIndex".to_string(), json!(i));
@@ -147,8 +203,12 @@ pub fn report(checked: &[Checked]) -> Value {
     }
     let artifacts: Vec<Value> = checked
         .iter()
-        .map(|c| json!({"location": {"uri": path_to_uri(&c.source.path)}}))
+        .map(|c| json!({"location": artifact_location(&path_to_uri(&c.source.path))}))
         .collect();
+    let mut base_ids = serde_json::Map::new();
+    if let Some(root) = root_uri() {
+        base_ids.insert(ROOT_BASE_ID.to_string(), json!({"uri": root}));
+    }
     json!({
         "$schema": SCHEMA_URI,
         "version": "2.1.0",
@@ -161,6 +221,7 @@ pub fn report(checked: &[Checked]) -> Value {
                     "rules": rules::ALL.iter().map(|r| rule_descriptor(r)).collect::<Vec<_>>(),
                 }
             },
+            "originalUriBaseIds": base_ids,
             "columnKind": "unicodeCodePoints",
             "artifacts": artifacts,
             "results": results,
@@ -178,6 +239,16 @@ mod tests {
         assert_eq!(path_to_uri("my models/θ.sde"), "my%20models/%CE%B8.sde");
         assert_eq!(path_to_uri("/srv/a b.sde"), "file:///srv/a%20b.sde");
         assert_eq!(path_to_uri("a\\b.sde"), "a/b.sde");
+    }
+
+    #[test]
+    fn a_fingerprint_ignores_the_line_number_and_indentation_but_not_the_text() {
+        let a = fingerprint("unused", "m.sde", "param a = 1", 0);
+        assert_eq!(a, fingerprint("unused", "m.sde", "   param a = 1  ", 0));
+        assert_ne!(a, fingerprint("unused", "m.sde", "param a = 2", 0));
+        assert_ne!(a, fingerprint("unused", "m.sde", "param a = 1", 1));
+        assert_ne!(a, fingerprint("unused", "n.sde", "param a = 1", 0));
+        assert_eq!(a.len(), 32);
     }
 
     #[test]

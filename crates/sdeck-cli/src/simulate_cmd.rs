@@ -28,8 +28,9 @@ pub struct SimulateArgs {
     #[arg(long, default_value_t = 100)]
     steps: usize,
     /// Reporting dates, comma-separated: numbers in clock units or times with a unit
-    /// ("3 month,6 month,1 year"). Default: the model's horizon.
-    #[arg(long)]
+    /// ("3 month,6 month,1 year"); 0 is today, where every path is at its start.
+    /// Default: the model's horizon.
+    #[arg(long, allow_hyphen_values = true)]
     at: Option<String>,
     /// Estimate P(X < q) at each date, e.g. `--below r=0` or `--below r=0,v=1%`
     /// (values in the factor's units as the model stores them; `%` and `bp` accepted).
@@ -72,7 +73,7 @@ fn dates_option(text: Option<&str>, model: &Model) -> Result<Vec<f64>, ExitCode>
         return Ok(Vec::new());
     };
     text.split(',')
-        .map(|part| time_option(Some(part.trim()), model, true))
+        .map(|part| time_option(Some(part.trim()), model))
         .collect()
 }
 

@@ -135,6 +135,34 @@ fn findings_on_one_line_are_capped_and_the_rest_counted() {
     assert_eq!(report["diagnostics"].as_array().map(Vec::len), Some(401));
 }
 
+#[test]
+fn a_finding_on_a_very_long_line_shows_an_excerpt_not_the_line() {
+    // One finding on a 20,000-character line printed the whole line.
+    let dir = tempfile::tempdir().unwrap();
+    let file = dir.path().join("wide.sde");
+    let padding = "+ 1 ".repeat(40);
+    let line = format!("let x = 1 {padding}+ zz  # {}\n", "a".repeat(20_000));
+    write(&file, &line);
+    let out = sdeck().arg("check").arg(&file).output().unwrap();
+    let shown = stdout(&out);
+    assert!(shown.len() < 2_000, "{} bytes:\n{shown}", shown.len());
+    assert!(shown.contains("zz"), "{shown}");
+    // Where it is, the line's length, the finding in its context and carets under it.
+    let column = line.find("zz").unwrap() + 1;
+    assert!(shown.contains(&format!("wide.sde:1:{column}")), "{shown}");
+    let length = line.chars().count() - 1;
+    assert!(shown.contains(&format!("the line has {length} characters")), "{shown}");
+    assert!(shown.contains("…1 + 1 + 1 + 1 + 1 + 1 + 1 + 1 + 1 + 1 + zz  # aaaa"), "{shown}");
+    let excerpt = shown.lines().find(|l| l.contains("+ zz  #")).unwrap();
+    let carets = shown.lines().find(|l| l.trim() == "^^").unwrap();
+    let column_of = |line: &str, at: usize| line[..at].chars().count();
+    assert_eq!(
+        column_of(carets, carets.find('^').unwrap()),
+        column_of(excerpt, excerpt.find("zz").unwrap()),
+        "{shown}"
+    );
+}
+
 // ------------------------------------------------------------- simulate --check
 
 const NO_VOLATILITY: &str = "clock year\nhorizon 1 year\nparam k = 1.3 [1/year]\n\

@@ -59,6 +59,22 @@ impl fmt::Display for Severity {
     }
 }
 
+/// The candidate closest to `word` by edit distance, when it is close enough to be a
+/// typing slip: at most 2 edits, or a third of the longer word's length. Case is ignored.
+/// Ties go to the first candidate.
+pub fn closest_word<'c>(word: &str, candidates: impl IntoIterator<Item = &'c str>) -> Option<&'c str> {
+    let lower = word.to_lowercase();
+    let mut best: Option<(usize, &'c str)> = None;
+    for candidate in candidates {
+        let distance = strsim::levenshtein(&lower, &candidate.to_lowercase());
+        let limit = (lower.chars().count().max(candidate.chars().count()) / 3).max(2);
+        if distance <= limit && best.is_none_or(|(d, _)| distance < d) {
+            best = Some((distance, candidate));
+        }
+    }
+    best.map(|(_, c)| c)
+}
+
 /// One rule of the catalogue: its name, default severity and its manual.
 #[derive(Debug)]
 pub struct Rule {

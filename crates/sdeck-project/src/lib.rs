@@ -212,8 +212,8 @@ fn parse_rules(value: &toml::Value) -> Result<RuleSettings, String> {
     let mut settings = RuleSettings::default();
     for (name, level) in table {
         let Some(rule) = rules::by_name(name) else {
-            let hint = closest_rule(name)
-                .map(|r| format!("did you mean `{r}`? "))
+            let hint = rules::closest(name)
+                .map(|r| format!("did you mean `{}`? ", r.name))
                 .unwrap_or_default();
             return Err(format!(
                 "unknown rule `rules.{name}`; {hint}`sdeck explain` lists the rules"
@@ -289,39 +289,6 @@ fn parse_deny(value: &toml::Value) -> Result<DenyLevel, String> {
         )),
         None => Err("`check.deny` must be the string \"errors\" or \"warnings\"".to_string()),
     }
-}
-
-/// The known rule closest to a misspelt name, when one is close (edit distance ≤ 2).
-fn closest_rule(name: &str) -> Option<&'static str> {
-    rules::ALL
-        .iter()
-        .map(|r| (edit_distance(name, r.name), r.name))
-        .filter(|(d, _)| *d <= 2)
-        .min()
-        .map(|(_, n)| n)
-}
-
-fn edit_distance(a: &str, b: &str) -> usize {
-    let b: Vec<char> = b.chars().collect();
-    let mut row: Vec<usize> = (0..=b.len()).collect();
-    for (i, ca) in a.chars().enumerate() {
-        let mut previous = row.first().copied().unwrap_or(0);
-        if let Some(first) = row.first_mut() {
-            *first = i + 1;
-        }
-        for (j, cb) in b.iter().enumerate() {
-            let substitute = previous + usize::from(ca != *cb);
-            let (left, up) = (
-                row.get(j).copied().unwrap_or(0),
-                row.get(j + 1).copied().unwrap_or(0),
-            );
-            previous = up;
-            if let Some(cell) = row.get_mut(j + 1) {
-                *cell = substitute.min(left + 1).min(up + 1);
-            }
-        }
-    }
-    row.last().copied().unwrap_or(0)
 }
 
 /// The absolute form of `path`, with `.` and `..` removed lexically (symbolic links are

@@ -127,7 +127,7 @@ impl fmt::Display for SimulateError {
             SimulateError::NoPaths => write!(f, "the number of paths must be at least 1 (use --paths 1 or more)"),
             SimulateError::NoSteps => write!(f, "the number of steps must be at least 1 (use --steps 1 or more)"),
             SimulateError::BadTime { at } => {
-                write!(f, "a reporting date must be a positive number of clock units, not {at}")
+                write!(f, "a reporting date must be a time from now, 0 or later, in clock units, not {at}")
             }
             SimulateError::TooLarge { paths, needed, limit, max_paths } => write!(
                 f,
@@ -399,7 +399,10 @@ fn cut_segments(dates: &[f64], steps: usize, even: bool) -> Vec<(f64, f64, usize
         .iter()
         .map(|&end| {
             let share = (steps as f64 * (end - start) / last).round();
-            let mut n = if share.is_finite() && share >= 1.0 {
+            // A date at the start (today) takes no step: its values are the start values.
+            let mut n = if end <= start {
+                0
+            } else if share.is_finite() && share >= 1.0 {
                 share as usize
             } else {
                 1
@@ -545,7 +548,7 @@ fn compile(
     let segments = cut_segments(dates, steps, step_doubling)
         .into_iter()
         .map(|(start, end, n)| {
-            let dt = (end - start) / n as f64;
+            let dt = if n == 0 { 0.0 } else { (end - start) / n as f64 };
             Segment {
                 start,
                 dt,
@@ -1039,6 +1042,9 @@ fn band_steps(steps: usize, count: usize) -> Vec<usize> {
         return Vec::new();
     }
     let count = count.min(steps);
+    if count == 0 {
+        return vec![0];
+    }
     let mut indices: Vec<usize> = (0..=count).map(|j| (j * steps).div_ceil(count)).collect();
     indices.dedup();
     indices
@@ -1054,7 +1060,7 @@ pub fn reporting_dates(
     } else {
         options.dates.clone()
     };
-    if let Some(bad) = dates.iter().find(|t| !(t.is_finite() && **t > 0.0)) {
+    if let Some(bad) = dates.iter().find(|t| !(t.is_finite() && **t >= 0.0)) {
         return Err(SimulateError::BadTime { at: *bad });
     }
     dates.sort_by(f64::total_cmp);
