@@ -244,21 +244,30 @@ fn an_unknown_rule_is_reported_and_silences_nothing() {
     );
     let report = reports(&text, "unused-suppression");
     assert!(
-        report[0].0.contains("`unsued` is not a rule; did you mean `unused`?"),
+        report[0]
+            .0
+            .contains("`unsued` is not a rule; did you mean `unused`?"),
         "{report:?}"
     );
 }
 
 #[test]
 fn a_misspelt_rule_gets_a_fix_to_the_nearest_name() {
-    let text = with_line(10, "# sdeck: quiet feler-condition because zero is accepted");
+    let text = with_line(
+        10,
+        "# sdeck: quiet feler-condition because zero is accepted",
+    );
     let found = sdeck_checks::check(&text, "m", &RuleSettings::default());
     let d = found
         .diagnostics
         .iter()
         .find(|d| d.rule == "unused-suppression")
         .expect("the misspelt name is reported");
-    assert!(d.message.contains("did you mean `feller-condition`?"), "{}", d.message);
+    assert!(
+        d.message.contains("did you mean `feller-condition`?"),
+        "{}",
+        d.message
+    );
     let edit = &d.fixes[0].edits[0];
     let mut fixed = text.clone();
     fixed.replace_range(edit.span.clone(), &edit.new_text);

@@ -28,7 +28,10 @@ fn unified_diff(name: &str, old: &str, new: &str) -> String {
     similar::TextDiff::from_lines(old, new)
         .unified_diff()
         .context_radius(3)
-        .header(&format!("{name} (as written)"), &format!("{name} (formatted)"))
+        .header(
+            &format!("{name} (as written)"),
+            &format!("{name} (formatted)"),
+        )
         .to_string()
 }
 

@@ -98,7 +98,11 @@ fn excerpt(text: &str, index: &LineIndex, span: &Span) -> Option<String> {
         .collect();
     let shown_inside: String = inside.iter().take(EXCERPT_SPAN).collect();
     let shown_after: String = after.iter().take(EXCERPT_CONTEXT).collect();
-    let lead = if before.len() > EXCERPT_CONTEXT { "…" } else { "" };
+    let lead = if before.len() > EXCERPT_CONTEXT {
+        "…"
+    } else {
+        ""
+    };
     let tail = if after.len() > EXCERPT_CONTEXT || inside.len() > EXCERPT_SPAN {
         "…"
     } else {
@@ -166,7 +170,9 @@ pub fn human(
             match excerpt(text, &index, &r.span) {
                 None => labels
                     .push(Label::secondary(id, clamp(&r.span)).with_message(escape(&r.message))),
-                Some(cut) => excerpts.push(format!("{}: {}:{cut}", escape(&r.message), escape(path))),
+                Some(cut) => {
+                    excerpts.push(format!("{}: {}:{cut}", escape(&r.message), escape(path)))
+                }
             }
         }
         let mut notes: Vec<String> = excerpts;
@@ -229,7 +235,10 @@ fn emit_with_level_word(
     };
     if !printed.is_empty() {
         // Only in the header, the first line: a snippet may show the same letters.
-        let header_end = bytes.iter().position(|b| *b == b'\n').unwrap_or(bytes.len());
+        let header_end = bytes
+            .iter()
+            .position(|b| *b == b'\n')
+            .unwrap_or(bytes.len());
         if let Some(at) = bytes[..header_end]
             .windows(printed.len())
             .position(|w| w == printed.as_bytes())

@@ -40,7 +40,10 @@ fn a_negative_time_is_refused_in_our_words() {
         let out = sdeck().args([command, OU, "--at", "-1"]).output().unwrap();
         assert_eq!(status(&out), 2, "{command}: {}", stderr(&out));
         let said = stderr(&out);
-        assert!(said.contains("--at `-1` is in the past"), "{command}: {said}");
+        assert!(
+            said.contains("--at `-1` is in the past"),
+            "{command}: {said}"
+        );
         assert!(!said.contains("-- -1"), "{command}: {said}");
     }
 }
@@ -123,16 +126,29 @@ fn fmt_diff_shows_the_change_and_changes_nothing() {
     let dir = tempfile::tempdir().unwrap();
     let file = dir.path().join("m.sde");
     std::fs::write(&file, UNFORMATTED).unwrap();
-    let out = sdeck().arg("fmt").arg("--diff").arg(&file).output().unwrap();
+    let out = sdeck()
+        .arg("fmt")
+        .arg("--diff")
+        .arg(&file)
+        .output()
+        .unwrap();
     assert_eq!(status(&out), 1, "{}", stderr(&out));
     let diff = stdout(&out);
-    assert!(diff.contains("-factor x=1\n-dx = -0.5*x dt\n-   + 0.2 dW\n"), "{diff}");
+    assert!(
+        diff.contains("-factor x=1\n-dx = -0.5*x dt\n-   + 0.2 dW\n"),
+        "{diff}"
+    );
     assert!(diff.contains("+factor x = 1\n"), "{diff}");
     assert!(diff.contains("+dx = -0.5 * x dt + 0.2 dW\n"), "{diff}");
     assert!(diff.contains("@@ -1,4 +1,3 @@"), "{diff}");
     assert_eq!(std::fs::read_to_string(&file).unwrap(), UNFORMATTED);
     std::fs::write(&file, FORMATTED).unwrap();
-    let out = sdeck().arg("fmt").arg("--diff").arg(&file).output().unwrap();
+    let out = sdeck()
+        .arg("fmt")
+        .arg("--diff")
+        .arg(&file)
+        .output()
+        .unwrap();
     assert_eq!(status(&out), 0);
     assert_eq!(stdout(&out), "");
 }
@@ -154,7 +170,10 @@ fn each_level_is_shown_and_counted_under_its_own_word() {
     let shown = stdout(&out);
     assert!(shown.contains("hint[unit-scale]"), "{shown}");
     assert!(shown.contains("info[unused]"), "{shown}");
-    assert!(!shown.contains("help[") && !shown.contains("note["), "{shown}");
+    assert!(
+        !shown.contains("help[") && !shown.contains("note["),
+        "{shown}"
+    );
     assert!(
         shown.contains("1 file checked: 0 errors, 0 warnings, 1 info, 2 hints"),
         "{shown}"
@@ -179,12 +198,20 @@ fn color_is_chosen_by_the_option() {
 #[test]
 fn annotation_lines_carry_the_message_without_the_help() {
     let out = sdeck()
-        .args(["check", "--format", "github", "demo-models/flawed/unused.sde"])
+        .args([
+            "check",
+            "--format",
+            "github",
+            "demo-models/flawed/unused.sde",
+        ])
         .output()
         .unwrap();
     let lines = stdout(&out);
     let line = lines.lines().next().unwrap();
-    assert!(line.ends_with("::parameter `level_prev` is never used"), "{line}");
+    assert!(
+        line.ends_with("::parameter `level_prev` is never used"),
+        "{line}"
+    );
     assert!(!line.contains("help"), "{line}");
 }
 
@@ -203,7 +230,11 @@ fn sarif_fingerprints_follow_a_finding_when_lines_move() {
         serde_json::from_slice(&out.stdout).unwrap()
     };
     let before = sarif(dir.path());
-    std::fs::write(dir.path().join("m.sde"), format!("# a new first line\n\n{text}")).unwrap();
+    std::fs::write(
+        dir.path().join("m.sde"),
+        format!("# a new first line\n\n{text}"),
+    )
+    .unwrap();
     let after = sarif(dir.path());
     let result = |log: &Value| log["runs"][0]["results"][0].clone();
     assert_eq!(
@@ -217,7 +248,10 @@ fn sarif_fingerprints_follow_a_finding_when_lines_move() {
     );
     let print = &result(&before)["partialFingerprints"]["findingHash/v1"];
     assert!(print.is_string(), "{}", result(&before));
-    assert_eq!(print, &result(&after)["partialFingerprints"]["findingHash/v1"]);
+    assert_eq!(
+        print,
+        &result(&after)["partialFingerprints"]["findingHash/v1"]
+    );
     // Relative paths are resolved against the folder of the run.
     let artifact = &result(&before)["locations"][0]["physicalLocation"]["artifactLocation"];
     assert_eq!(artifact["uri"], "m.sde");
@@ -226,5 +260,8 @@ fn sarif_fingerprints_follow_a_finding_when_lines_move() {
         .as_str()
         .unwrap()
         .to_string();
-    assert!(base.starts_with("file:///") && base.ends_with('/'), "{base}");
+    assert!(
+        base.starts_with("file:///") && base.ends_with('/'),
+        "{base}"
+    );
 }

@@ -151,8 +151,14 @@ fn a_finding_on_a_very_long_line_shows_an_excerpt_not_the_line() {
     let column = line.find("zz").unwrap() + 1;
     assert!(shown.contains(&format!("wide.sde:1:{column}")), "{shown}");
     let length = line.chars().count() - 1;
-    assert!(shown.contains(&format!("the line has {length} characters")), "{shown}");
-    assert!(shown.contains("…1 + 1 + 1 + 1 + 1 + 1 + 1 + 1 + 1 + 1 + zz  # aaaa"), "{shown}");
+    assert!(
+        shown.contains(&format!("the line has {length} characters")),
+        "{shown}"
+    );
+    assert!(
+        shown.contains("…1 + 1 + 1 + 1 + 1 + 1 + 1 + 1 + 1 + 1 + zz  # aaaa"),
+        "{shown}"
+    );
     let excerpt = shown.lines().find(|l| l.contains("+ zz  #")).unwrap();
     let carets = shown.lines().find(|l| l.trim() == "^^").unwrap();
     let column_of = |line: &str, at: usize| line[..at].chars().count();

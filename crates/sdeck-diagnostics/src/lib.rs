@@ -62,7 +62,10 @@ impl fmt::Display for Severity {
 /// The candidate closest to `word` by edit distance, when it is close enough to be a
 /// typing slip: at most 2 edits, or a third of the longer word's length. Case is ignored.
 /// Ties go to the first candidate.
-pub fn closest_word<'c>(word: &str, candidates: impl IntoIterator<Item = &'c str>) -> Option<&'c str> {
+pub fn closest_word<'c>(
+    word: &str,
+    candidates: impl IntoIterator<Item = &'c str>,
+) -> Option<&'c str> {
     let lower = word.to_lowercase();
     let mut best: Option<(usize, &'c str)> = None;
     for candidate in candidates {

@@ -548,7 +548,11 @@ fn compile(
     let segments = cut_segments(dates, steps, step_doubling)
         .into_iter()
         .map(|(start, end, n)| {
-            let dt = if n == 0 { 0.0 } else { (end - start) / n as f64 };
+            let dt = if n == 0 {
+                0.0
+            } else {
+                (end - start) / n as f64
+            };
             Segment {
                 start,
                 dt,

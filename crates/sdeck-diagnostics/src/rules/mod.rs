@@ -70,16 +70,21 @@ pub fn by_name(name: &str) -> Option<&'static Rule> {
 /// The rule whose name is closest to a misspelt `name`, when one is close enough to be a
 /// slip of the keyboard (edit distance at most 2, or a third of the name's length).
 pub fn closest(name: &str) -> Option<&'static Rule> {
-    crate::closest_word(name, ALL.iter().map(|rule| rule.name))
-        .and_then(by_name)
+    crate::closest_word(name, ALL.iter().map(|rule| rule.name)).and_then(by_name)
 }
 
 #[cfg(test)]
 mod tests {
     #[test]
     fn a_slip_finds_the_rule_and_a_stranger_finds_none() {
-        assert_eq!(super::closest("feler-condition").map(|r| r.name), Some("feller-condition"));
-        assert_eq!(super::closest("unused-supression").map(|r| r.name), Some("unused-suppression"));
+        assert_eq!(
+            super::closest("feler-condition").map(|r| r.name),
+            Some("feller-condition")
+        );
+        assert_eq!(
+            super::closest("unused-supression").map(|r| r.name),
+            Some("unused-suppression")
+        );
         assert_eq!(super::closest("Unused").map(|r| r.name), Some("unused"));
         assert!(super::closest("volatility").is_none());
     }
