@@ -34,7 +34,7 @@ fn main() {
             law.method.as_str()
         );
         println!("  why: {}", law.reason);
-        let f = &law.formulas;
+        let f = sdeck_calculus::formulas(model, &derivation, i);
         for (label, text) in [
             ("solution", &f.solution),
             ("mean", &f.mean),

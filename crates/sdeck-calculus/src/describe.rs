@@ -2,7 +2,7 @@
 //! level, the volatility of a square-root state, and how they print.
 
 use crate::algebra::{show_poly, Atom, Names, Poly};
-use crate::{analyse, Family};
+use crate::{Derivation, Family};
 use sdeck_semantics::Model;
 
 /// The speed, level and squared volatility of a square-root state as the model writes
@@ -31,8 +31,12 @@ fn single_param(poly: &Poly, power: i64) -> Option<usize> {
 }
 
 /// Describes state `state` when its family is square-root.
-pub fn square_root_terms(model: &Model, state: usize) -> Option<SquareRootTerms> {
-    let analysis = analyse(model);
+pub fn square_root_terms(
+    model: &Model,
+    derivation: &Derivation,
+    state: usize,
+) -> Option<SquareRootTerms> {
+    let analysis = derivation.analysis();
     let (os, family) = analysis.one_state(state)?;
     if family != Family::SquareRoot {
         return None;
@@ -59,8 +63,8 @@ pub fn square_root_terms(model: &Model, state: usize) -> Option<SquareRootTerms>
 
 /// The coefficient of the state in its own drift, printed (`−kappa`), for a state with a
 /// one-state family.
-pub fn drift_slope_text(model: &Model, state: usize) -> Option<String> {
-    let analysis = analyse(model);
+pub fn drift_slope_text(model: &Model, derivation: &Derivation, state: usize) -> Option<String> {
+    let analysis = derivation.analysis();
     let (os, _) = analysis.one_state(state)?;
     Some(show_poly(&os.b, &Names::new(model)))
 }

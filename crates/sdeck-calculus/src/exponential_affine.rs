@@ -6,7 +6,7 @@
 //! Piterbarg 2007).
 
 use crate::affine::{AffineSet, Rate, TransformError};
-use crate::{Derivation, Family, Formulas, Method, Moments};
+use crate::{Derivation, Family, Formulas, Method, Moments, StateMoments};
 use num_complex::Complex64;
 use sdeck_semantics::Model;
 
@@ -40,22 +40,58 @@ pub(crate) fn classify(model: &Model, derivation: &mut Derivation) {
             "the equation of {name} is {name} times an expression free of {name}, and \
              ln {name} has a drift and covariances affine in the other factors"
         );
-        law.formulas = Formulas {
-            solution: Some(format!(
-                "ln {name}(t) = ln {name}(0) + ∫₀ᵗ (drift/{name} − ½·(diffusion/{name})²) ds \
-                 + ∫₀ᵗ diffusion/{name} dW"
-            )),
-            mean: Some(format!(
-                "E[{name}(t)^u] = exp(α(t) + β(t)·X(0)), α and β solving the Riccati \
-                 equations of the affine factors; the mean is u = 1"
-            )),
-            variance: Some(format!(
-                "Var[{name}(t)] = E[{name}(t)²] − E[{name}(t)]², the transform at u = 2 and \
-                 u = 1; infinite from the first pole of the u = 2 equation"
-            )),
-            ..Formulas::default()
-        };
     }
+}
+
+/// Readable math for exponential-affine factor `state`.
+pub(crate) fn formulas(model: &Model, state: usize) -> Formulas {
+    let name = model
+        .factors
+        .get(state)
+        .map(|s| s.name.as_str())
+        .unwrap_or("S");
+    Formulas {
+        solution: Some(format!(
+            "ln {name}(t) = ln {name}(0) + ∫₀ᵗ (drift/{name} − ½·(diffusion/{name})²) ds \
+             + ∫₀ᵗ diffusion/{name} dW"
+        )),
+        mean: Some(format!(
+            "E[{name}(t)^u] = exp(α(t) + β(t)·X(0)), α and β solving the Riccati \
+             equations of the affine factors; the mean is u = 1"
+        )),
+        variance: Some(format!(
+            "Var[{name}(t)] = E[{name}(t)²] − E[{name}(t)]², the transform at u = 2 and \
+             u = 1; infinite from the first pole of the u = 2 equation"
+        )),
+        ..Formulas::default()
+    }
+}
+
+/// Mean and variance of one exponential-affine factor at `t`.
+pub(crate) fn state_moments(model: &Model, state: usize, t: f64) -> StateMoments {
+    let mut out = StateMoments {
+        mean: None,
+        variance: None,
+        method: Method::None,
+    };
+    if !(t.is_finite() && t >= 0.0) {
+        return out;
+    }
+    let Ok(set) = AffineSet::from_model(model) else {
+        return out;
+    };
+    let first = power_moment(&set, state, 1.0, t);
+    let second = power_moment(&set, state, 2.0, t);
+    if let Ok(mean) = first {
+        out.mean = Some(mean).filter(|m| m.is_finite());
+        if let Ok(square) = second {
+            out.variance = Some((square - mean * mean).max(0.0)).filter(|v| v.is_finite());
+        }
+    }
+    if out.mean.is_some() {
+        out.method = Method::ClosedForm;
+    }
+    out
 }
 
 /// Fills the mean and variance of exponential-affine factors, and the time from which a

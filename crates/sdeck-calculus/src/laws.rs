@@ -9,7 +9,7 @@
 
 use crate::affine::{AffineSet, Rate, TransformError};
 use crate::one_state::{mean_variance, square_root_transition};
-use crate::{analyse, noncentral, ode, Derivation, Family};
+use crate::{noncentral, ode, Derivation, Family};
 use num_complex::Complex64;
 use sdeck_semantics::Model;
 use statrs::distribution::{ContinuousCDF, Normal};
@@ -88,7 +88,7 @@ pub fn law_of(model: &Model, derivation: &Derivation, state: usize, t: f64) -> O
             shape: Shape::Point(x0),
         });
     }
-    let analysis = analyse(model);
+    let analysis = derivation.analysis();
     let params = &analysis.params;
     if let Some((os, family)) = analysis.one_state(state) {
         let gaussian = matches!(
@@ -130,10 +130,8 @@ pub fn law_of(model: &Model, derivation: &Derivation, state: usize, t: f64) -> O
         }
     }
     if derivation.system_family == Family::LinearSystem {
-        let moments = crate::moments_at(model, derivation, t);
-        let mean = (*moments.mean.get(state)?)?;
-        let variance = (*moments.variance.get(state)?)?;
-        return Some(normal(mean, variance));
+        let moments = crate::state_moments(model, derivation, state, t);
+        return Some(normal(moments.mean?, moments.variance?));
     }
     let set = AffineSet::from_model(model).ok()?;
     let log = set.is_log(state);

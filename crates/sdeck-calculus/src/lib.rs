@@ -50,6 +50,7 @@ mod system;
 use sdeck_semantics::Model;
 use sdeck_syntax::ast::Figure;
 use shape::{classify_state, classify_system, Classified, OneState, SystemShape};
+use std::sync::{Arc, OnceLock};
 
 /// The family a state (or a whole system) belongs to.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
@@ -151,8 +152,6 @@ pub struct StateLaw {
     /// Why, in words: "drift affine in r with negative slope, diffusion constant".
     pub reason: String,
     pub method: Method,
-    /// Readable math, Unicode, using the model's own names.
-    pub formulas: Formulas,
     /// Clock units: ln 2 / |b| for constant b < 0.
     pub half_life: Option<f64>,
     pub stationary: Option<Stationary>,
@@ -193,10 +192,62 @@ pub struct Derivation {
     pub system_family: Family,
     pub system_reason: String,
     /// The drift matrix A of an affine system dX = (A X + b(t)) dt + ..., when the drift
-    /// is affine with constant A.
+    /// is affine with constant A and the model has at most [`MAX_SYSTEM_STATES`] states
+    /// (a larger dense matrix would cost memory quadratic in the model; see `blocks`).
     pub drift_matrix: Option<Vec<Vec<f64>>>,
     /// Eigenvalues of the drift matrix, `(re, im)`.
     pub drift_eigenvalues: Option<Vec<(f64, f64)>>,
+    /// Groups of two or more states linked through their equations, each with its own
+    /// drift matrix; states outside every block are decoupled.
+    pub blocks: Vec<CoupledBlock>,
+    /// The structural analysis behind the figures, kept so that every later question
+    /// (moments of one state, a covariance, a quantile) reuses it.
+    prepared: Prepared,
+}
+
+/// States coupled through their equations (a connected group of the graph "the equation
+/// of i mentions j"), with what is known of their joint drift.
+#[derive(Clone, Debug, PartialEq)]
+pub struct CoupledBlock {
+    /// State indices, ascending.
+    pub states: Vec<usize>,
+    /// The block's drift matrix (rows and columns in the order of `states`), when every
+    /// drift in the block is affine with constant coefficients and the block has at most
+    /// [`MAX_BLOCK_EIGEN`] states.
+    pub drift_matrix: Option<Vec<Vec<f64>>>,
+    /// Its eigenvalues, `(re, im)`.
+    pub drift_eigenvalues: Option<Vec<(f64, f64)>>,
+}
+
+/// The largest coupled block whose drift matrix and eigenvalues are computed (a dense
+/// eigen-decomposition costs the cube of the size: 500 states take about 0.1 s).
+pub const MAX_BLOCK_EIGEN: usize = 500;
+
+pub use system::MAX_SYSTEM_STATES;
+
+/// The structural analysis of a derivation, shared by its clones. Not part of the
+/// derivation's value: two derivations compare by what they say.
+#[derive(Clone)]
+struct Prepared(Arc<Analysis>);
+
+impl std::fmt::Debug for Prepared {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str("Prepared")
+    }
+}
+
+impl PartialEq for Prepared {
+    fn eq(&self, _: &Prepared) -> bool {
+        true
+    }
+}
+
+/// Mean and variance of one state at one time, and how they were obtained.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct StateMoments {
+    pub mean: Option<f64>,
+    pub variance: Option<f64>,
+    pub method: Method,
 }
 
 /// Figures of every state at one time.
@@ -223,19 +274,57 @@ pub(crate) struct Analysis {
     pub classified: Vec<Classified>,
     pub system: SystemShape,
     pub params: Vec<f64>,
+    /// The engine of the whole system, built on first use.
+    pub linear: OnceLock<Option<linear_system::AffineGaussian>>,
+    /// Figures of the whole system at the last few times asked (the expectations of one
+    /// model mostly share a horizon).
+    pub system_figures: std::sync::Mutex<Vec<(f64, Option<system::SystemFigures>)>>,
 }
+
+/// The most states the calculus derives. Its cost is linear in the model (about 0.1 ms
+/// and 15 KB per state, tree included); past this a model is reported as not derived
+/// rather than let the memory grow without bound.
+pub const MAX_DERIVED_STATES: usize = 50_000;
 
 pub(crate) fn analyse(model: &Model) -> Analysis {
     let corr = model.correlations();
+    let params = model.param_values();
+    let n = model.factors.len();
+    if n > MAX_DERIVED_STATES {
+        let reason = format!(
+            "the model has {n} states, more than the {MAX_DERIVED_STATES} the calculus \
+             derives: split it into several models"
+        );
+        return Analysis {
+            corr,
+            classified: (0..n)
+                .map(|_| shape::general(reason.clone(), Vec::new()))
+                .collect(),
+            system: SystemShape {
+                family: Family::General,
+                reason,
+                drift_rows: None,
+                loadings: None,
+                shapes: Vec::new(),
+                time_dependent: false,
+            },
+            params,
+            linear: OnceLock::new(),
+            system_figures: std::sync::Mutex::new(Vec::new()),
+        };
+    }
+    let names = algebra::Names::new(model);
     let classified: Vec<Classified> = (0..model.factors.len())
-        .map(|i| classify_state(model, i, &corr))
+        .map(|i| classify_state(model, i, &corr, &params, &names))
         .collect();
     let system = classify_system(model, &classified, &corr);
     Analysis {
         corr,
         classified,
         system,
-        params: model.param_values(),
+        params,
+        linear: OnceLock::new(),
+        system_figures: std::sync::Mutex::new(Vec::new()),
     }
 }
 
@@ -251,17 +340,75 @@ impl Analysis {
 }
 
 /// Classifies every state and the system, and derives what is known in closed form.
+///
+/// The cost is linear in the model: each state is classified and derived on its own,
+/// coupled blocks together; nothing of size states × states is built unless the model
+/// has at most [`MAX_SYSTEM_STATES`] states. Formula text is written only when asked
+/// ([`formulas`]).
 pub fn derive(model: &Model) -> Derivation {
-    let analysis = analyse(model);
-    let mut derivation = system::derive(model, &analysis);
+    let analysis = Arc::new(analyse(model));
+    let mut derivation = system::derive(model, analysis);
     exponential_affine::classify(model, &mut derivation);
     derivation
 }
 
-/// Means, variances and covariances of every state at time `t` (clock units).
+/// Readable math (Unicode, the model's own names) for one state; empty when the state
+/// does not exist or nothing is known in closed form.
+pub fn formulas(model: &Model, derivation: &Derivation, state: usize) -> Formulas {
+    let analysis = derivation.analysis();
+    let Some(law) = derivation.states.get(state) else {
+        return Formulas::default();
+    };
+    if let Some((os, family)) = analysis.one_state(state) {
+        let mut out = formulas::one_state(model, os, family);
+        if law.stationary.is_none() {
+            out.stationary = None;
+        }
+        return out;
+    }
+    if law.family == Family::ExponentialAffine {
+        return exponential_affine::formulas(model, state);
+    }
+    formulas::coupled(model, analysis, state, law.family)
+}
+
+impl Derivation {
+    pub(crate) fn analysis(&self) -> &Analysis {
+        &self.prepared.0
+    }
+}
+
+/// Mean and variance of one state at time `t` (clock units): a closed form for a
+/// decoupled state (a few operations, whatever the size of the model), the engine of
+/// the system for a coupled one.
+pub fn state_moments(model: &Model, derivation: &Derivation, state: usize, t: f64) -> StateMoments {
+    let exponential = derivation
+        .states
+        .get(state)
+        .is_some_and(|law| law.family == Family::ExponentialAffine);
+    if exponential {
+        return exponential_affine::state_moments(model, state, t);
+    }
+    system::state_moments(model, derivation.analysis(), state, t)
+}
+
+/// Cov(X_i(t), X_j(t)), where known; the variance when `i == j`. Two decoupled states
+/// cost one closed form, whatever the size of the model.
+pub fn covariance(
+    model: &Model,
+    derivation: &Derivation,
+    i: usize,
+    j: usize,
+    t: f64,
+) -> Option<f64> {
+    system::covariance(model, derivation.analysis(), i, j, t)
+}
+
+/// Means, variances and covariances of every state at time `t` (clock units). The full
+/// matrix costs states × states closed forms: ask [`state_moments`] and [`covariance`]
+/// for single figures.
 pub fn moments_at(model: &Model, derivation: &Derivation, t: f64) -> Moments {
-    let analysis = analyse(model);
-    let mut moments = system::moments_at(model, derivation, &analysis, t);
+    let mut moments = system::moments_at(model, derivation.analysis(), t);
     exponential_affine::fill_moments(model, derivation, &mut moments);
     moments
 }
@@ -274,8 +421,7 @@ pub fn autocovariance(
     s: f64,
     t: f64,
 ) -> Option<f64> {
-    let analysis = analyse(model);
-    system::autocovariance(model, derivation, &analysis, state, s, t)
+    system::autocovariance(model, derivation, state, s, t)
 }
 
 /// Quantile of the law of one state at t where the law is known (Gaussian, lognormal,
@@ -287,8 +433,7 @@ pub fn quantile(
     t: f64,
     p: f64,
 ) -> Option<f64> {
-    let analysis = analyse(model);
-    system::quantile(model, derivation, &analysis, state, t, p)
+    system::quantile(model, derivation.analysis(), state, t, p)
 }
 
 /// The value of a figure an `expect` line can pin (`mean`, `sd`, `halflife`,
@@ -305,16 +450,11 @@ pub fn figure_value(
     let stationary = law.stationary.as_ref();
     match figure {
         Figure::Mean | Figure::Variance | Figure::Sd => {
-            let moments = moments_at(model, derivation, at);
+            let moments = state_moments(model, derivation, state, at);
             match figure {
-                Figure::Mean => moments.mean.get(state).copied().flatten(),
-                Figure::Variance => moments.variance.get(state).copied().flatten(),
-                _ => moments
-                    .variance
-                    .get(state)
-                    .copied()
-                    .flatten()
-                    .map(|v| v.max(0.0).sqrt()),
+                Figure::Mean => moments.mean,
+                Figure::Variance => moments.variance,
+                _ => moments.variance.map(|v| v.max(0.0).sqrt()),
             }
         }
         Figure::Halflife => law.half_life,

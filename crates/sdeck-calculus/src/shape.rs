@@ -4,6 +4,7 @@
 use crate::algebra::{
     show_expr, show_poly, to_poly, to_root_form, Names, NotPolynomial, Poly, RootForm,
 };
+use crate::system::MAX_SYSTEM_STATES;
 use crate::Family;
 use sdeck_semantics::{Correlations, Expr, Model};
 
@@ -159,7 +160,7 @@ pub(crate) struct Classified {
     pub depends_on: Vec<usize>,
 }
 
-fn general(reason: String, depends_on: Vec<usize>) -> Classified {
+pub(crate) fn general(reason: String, depends_on: Vec<usize>) -> Classified {
     Classified {
         family: Family::General,
         reason,
@@ -193,13 +194,18 @@ pub(crate) fn unresolved_reason(model: &Model, why: &Unresolved) -> String {
 }
 
 /// Classifies state `index` on its own.
-pub(crate) fn classify_state(model: &Model, index: usize, corr: &Correlations) -> Classified {
+pub(crate) fn classify_state(
+    model: &Model,
+    index: usize,
+    corr: &Correlations,
+    params: &[f64],
+    names: &Names,
+) -> Classified {
     let depends_on = mentioned_states(model, index);
     let shape = match shape_of(model, index) {
         Ok(s) => s,
         Err(why) => return general(unresolved_reason(model, &why), depends_on),
     };
-    let names = Names::new(model);
     let name = model
         .factors
         .get(index)
@@ -224,7 +230,7 @@ pub(crate) fn classify_state(model: &Model, index: usize, corr: &Correlations) -
             format!(
                 "no closed form is known: the drift{} is of degree {drift_degree} in {name} \
                  (not affine)",
-                shown(show_poly(&shape.drift, &names))
+                shown(show_poly(&shape.drift, names))
             ),
             depends_on,
         );
@@ -236,7 +242,7 @@ pub(crate) fn classify_state(model: &Model, index: usize, corr: &Correlations) -
                 format!(
                     "no closed form is known: the diffusion `{}` combined with the other \
                      shock terms is not the square root of a polynomial",
-                    show_expr(&piece, &names)
+                    show_expr(&piece, names)
                 ),
                 depends_on,
             )
@@ -248,7 +254,7 @@ pub(crate) fn classify_state(model: &Model, index: usize, corr: &Correlations) -
             format!(
                 "no closed form is known: the squared diffusion{} is of degree \
                  {squared_degree} in {name} (above quadratic)",
-                shown(show_poly(&squared, &names))
+                shown(show_poly(&squared, names))
             ),
             depends_on,
         );
@@ -278,9 +284,8 @@ pub(crate) fn classify_state(model: &Model, index: usize, corr: &Correlations) -
     let time_dependent = [&a, &b, &alpha, &beta, &gamma]
         .iter()
         .any(|p| p.depends_on_time());
-    let params = model.param_values();
-    let b_value = b.value(&params, 0.0);
-    let drift_text = show_poly(&shape.drift, &names);
+    let b_value = b.value(params, 0.0);
+    let drift_text = show_poly(&shape.drift, names);
     let one_state = OneState {
         state: index,
         a: a.clone(),
@@ -304,7 +309,7 @@ pub(crate) fn classify_state(model: &Model, index: usize, corr: &Correlations) -
             .iter()
             .map(|(noise, c, d)| {
                 let g = c.add(&d.mul(&Poly::atom(crate::algebra::Atom::State(index))));
-                format!("{} on {}", show_poly(&g, &names), noise_name(model, *noise))
+                format!("{} on {}", show_poly(&g, names), noise_name(model, *noise))
             })
             .collect::<Vec<_>>()
             .join(", ");
@@ -330,7 +335,7 @@ pub(crate) fn classify_state(model: &Model, index: usize, corr: &Correlations) -
                     format!(
                         "drift {drift_text} is affine in {name} with {slope} slope {}, \
                          {diffusion_text} does not depend on {name}",
-                        show_poly(&b, &names)
+                        show_poly(&b, names)
                     ),
                 )
             } else {
@@ -354,7 +359,7 @@ pub(crate) fn classify_state(model: &Model, index: usize, corr: &Correlations) -
             )
         }
     } else {
-        let squared_text = show_poly(&squared, &names);
+        let squared_text = show_poly(&squared, names);
         let pure_square_root = alpha.is_zero() && gamma.is_zero() && !beta.is_zero();
         if pure_square_root && constant && b_value != 0.0 {
             (
@@ -445,11 +450,14 @@ pub(crate) fn classify_system(
             };
         }
     }
-    let rows = drift_rows(&shapes, n);
-    let loads = loadings(&shapes, model.shocks.len());
     let time_dependent = shapes.iter().any(|s| {
         s.drift.depends_on_time() || s.noises.iter().any(|t| t.form.square().depends_on_time())
     });
+    if n > MAX_SYSTEM_STATES {
+        return large_system(model, shapes, time_dependent);
+    }
+    let rows = drift_rows(&shapes, n);
+    let loads = loadings(&shapes, model.shocks.len());
     let state_name = |i: usize| {
         model
             .factors
@@ -541,6 +549,42 @@ pub(crate) fn classify_system(
              quadratic in the factors"
         ),
         drift_rows: rows,
+        loadings: None,
+        shapes,
+        time_dependent,
+    }
+}
+
+/// The shape of a model with more states than the several-state engines take, in time
+/// linear in the model: no matrix of size states × states is built (the engines would
+/// not use it), only whether every drift is affine and every diffusion free of states.
+fn large_system(model: &Model, shapes: Vec<Shape>, time_dependent: bool) -> SystemShape {
+    let n = shapes.len();
+    let affine = shapes.iter().all(|s| s.drift.state_degree() <= 1);
+    let state_free = shapes.iter().all(|s| {
+        s.noises
+            .iter()
+            .all(|t| t.form.is_polynomial() && !t.form.scale.mentions_states())
+    });
+    let (family, reason) = if affine && state_free {
+        (
+            Family::LinearSystem,
+            format!("{n} states, drift affine in the states, diffusion independent of the states"),
+        )
+    } else {
+        (
+            Family::General,
+            format!(
+                "the model has {n} states, more than the {MAX_SYSTEM_STATES} the several-state \
+                 engines take"
+            ),
+        )
+    };
+    let _ = model;
+    SystemShape {
+        family,
+        reason,
+        drift_rows: None,
         loadings: None,
         shapes,
         time_dependent,

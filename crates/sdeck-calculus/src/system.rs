@@ -6,14 +6,15 @@ use crate::breaks::TimeBreaks;
 use crate::linear_system::{eigenvalues, matrix_exponential, AffineGaussian};
 use crate::one_state::{self, phi};
 use crate::polynomial::PolynomialSystem;
-use crate::shape::{correlation, diffusion_product, OneState};
+use crate::shape::{correlation, diffusion_product, shape_of, OneState};
 use crate::{
-    formulas, ode, Analysis, Derivation, Family, LinearCoefficients, Method, Moments,
-    SquareRootParams, StateLaw, Stationary,
+    formulas, ode, Analysis, CoupledBlock, Derivation, Family, LinearCoefficients, Method, Moments,
+    Prepared, SquareRootParams, StateLaw, StateMoments, Stationary, MAX_BLOCK_EIGEN,
 };
 use nalgebra::{DMatrix, DVector};
 use sdeck_semantics::Model;
 use statrs::distribution::{ContinuousCDF, Normal};
+use std::sync::Arc;
 
 /// The most states the several-state engines take. The Lyapunov solve is a dense system in
 /// n² unknowns and the polynomial engine holds n⁴ coefficients: beyond this a model would
@@ -25,14 +26,15 @@ fn needs_system(model: &Model, analysis: &Analysis) -> bool {
     (0..model.factors.len()).any(|i| analysis.one_state(i).is_none())
 }
 
-pub(crate) fn derive(model: &Model, analysis: &Analysis) -> Derivation {
+pub(crate) fn derive(model: &Model, prepared: Arc<Analysis>) -> Derivation {
+    let analysis = prepared.as_ref();
     let n = model.factors.len();
     let mut states = Vec::with_capacity(n);
     let params = &analysis.params;
     let system = &analysis.system;
     let use_system = needs_system(model, analysis);
     let system_engine = if use_system {
-        linear_engine(model, analysis)
+        cached_linear_engine(model, analysis)
     } else {
         None
     };
@@ -109,12 +111,10 @@ pub(crate) fn derive(model: &Model, analysis: &Analysis) -> Derivation {
         } else {
             None
         };
-        let formulas = formulas::coupled(model, analysis, i, family);
         states.push(StateLaw {
             family,
             reason,
             method,
-            formulas,
             half_life: None,
             stationary,
             linear: None,
@@ -122,6 +122,7 @@ pub(crate) fn derive(model: &Model, analysis: &Analysis) -> Derivation {
             depends_on: classified.depends_on.clone(),
         });
     }
+    let blocks = coupled_blocks(model, analysis);
     let drift_matrix = system.drift_rows.as_ref().and_then(|rows| {
         let constant = rows
             .iter()
@@ -157,7 +158,110 @@ pub(crate) fn derive(model: &Model, analysis: &Analysis) -> Derivation {
         system_reason: system.reason.clone(),
         drift_matrix,
         drift_eigenvalues,
+        blocks,
+        prepared: Prepared(prepared),
     }
+}
+
+/// Connected groups (two states or more) of the graph "the equation of i mentions j",
+/// each with its drift matrix and eigenvalues when the drifts are affine with constant
+/// coefficients. Linear in the model (union–find over the mentions).
+fn coupled_blocks(model: &Model, analysis: &Analysis) -> Vec<CoupledBlock> {
+    let n = analysis.classified.len();
+    let mut parent: Vec<usize> = (0..n).collect();
+    fn root(parent: &mut [usize], mut i: usize) -> usize {
+        while let Some(&up) = parent.get(i) {
+            if up == i {
+                break;
+            }
+            // Path halving keeps the trees shallow.
+            let grand = parent.get(up).copied().unwrap_or(up);
+            if let Some(slot) = parent.get_mut(i) {
+                *slot = grand;
+            }
+            i = grand;
+        }
+        i
+    }
+    for (i, classified) in analysis.classified.iter().enumerate() {
+        for &j in &classified.depends_on {
+            if j >= n {
+                continue;
+            }
+            let (ri, rj) = (root(&mut parent, i), root(&mut parent, j));
+            if ri != rj {
+                if let Some(slot) = parent.get_mut(ri) {
+                    *slot = rj;
+                }
+            }
+        }
+    }
+    let mut members: std::collections::BTreeMap<usize, Vec<usize>> = Default::default();
+    for i in 0..n {
+        let r = root(&mut parent, i);
+        members.entry(r).or_default().push(i);
+    }
+    let mut blocks: Vec<CoupledBlock> = members
+        .into_values()
+        .filter(|states| states.len() > 1)
+        .map(|states| {
+            let drift_matrix = (states.len() <= MAX_BLOCK_EIGEN)
+                .then(|| block_drift_matrix(model, analysis, &states))
+                .flatten();
+            let drift_eigenvalues = drift_matrix.as_ref().and_then(|rows| {
+                let size = rows.len();
+                let matrix = DMatrix::from_fn(size, size, |r, c| {
+                    rows.get(r)
+                        .and_then(|row| row.get(c))
+                        .copied()
+                        .unwrap_or(0.0)
+                });
+                (size > 0 && matrix.iter().all(|v| v.is_finite())).then(|| eigenvalues(&matrix))
+            });
+            CoupledBlock {
+                states,
+                drift_matrix,
+                drift_eigenvalues,
+            }
+        })
+        .collect();
+    blocks.sort_by_key(|b| b.states.first().copied());
+    blocks
+}
+
+/// The drift matrix of the states `block` (in that order), when every drift is affine in
+/// the states with constant coefficients.
+fn block_drift_matrix(
+    model: &Model,
+    analysis: &Analysis,
+    block: &[usize],
+) -> Option<Vec<Vec<f64>>> {
+    let position: std::collections::HashMap<usize, usize> =
+        block.iter().enumerate().map(|(p, s)| (*s, p)).collect();
+    let mut rows = Vec::with_capacity(block.len());
+    for &state in block {
+        let shape = shape_of(model, state).ok()?;
+        if shape.drift.state_degree() > 1 {
+            return None;
+        }
+        let mut row = vec![0.0; block.len()];
+        for (key, coefficient) in shape.drift.by_state_monomial() {
+            if coefficient.depends_on_time() {
+                return None;
+            }
+            match key.as_slice() {
+                [] => {}
+                [(j, 1)] => {
+                    let slot = row.get_mut(*position.get(j)?)?;
+                    // + 0.0 turns −0 into 0 for display.
+                    *slot = coefficient.value(&analysis.params, 0.0) + 0.0;
+                }
+                _ => return None,
+            }
+        }
+        rows.push(row);
+    }
+    Some(rows)
 }
 
 fn one_state_law(
@@ -202,10 +306,6 @@ fn one_state_law(
     } else {
         None
     };
-    let mut formulas = formulas::one_state(model, os, family);
-    if stationary.is_none() {
-        formulas.stationary = None;
-    }
     let linear = match (&os.affine_terms, os.time_dependent) {
         (Some(terms), false) => Some(LinearCoefficients {
             a: values.a,
@@ -247,13 +347,20 @@ fn one_state_law(
             .map(|c| c.reason.clone())
             .unwrap_or_default(),
         method,
-        formulas,
         half_life,
         stationary,
         linear,
         square_root,
         depends_on: Vec::new(),
     }
+}
+
+/// The affine Gaussian engine of the system, built once per derivation.
+fn cached_linear_engine<'a>(model: &Model, analysis: &'a Analysis) -> Option<&'a AffineGaussian> {
+    analysis
+        .linear
+        .get_or_init(|| linear_engine(model, analysis))
+        .as_ref()
 }
 
 /// The affine Gaussian engine for a linear system with constant coefficients.
@@ -469,94 +576,174 @@ fn integrate_polynomial_system(
     })
 }
 
-pub(crate) fn moments_at(
-    model: &Model,
-    derivation: &Derivation,
-    analysis: &Analysis,
-    t: f64,
-) -> Moments {
-    let n = model.factors.len();
-    let params = &analysis.params;
-    let x0 = model.initial_values();
-    let mut mean = vec![None; n];
-    let mut variance = vec![None; n];
-    let mut method = vec![Method::None; n];
-    let mut covariance = vec![vec![None; n]; n];
-    let valid_time = t.is_finite() && t >= 0.0;
-    for i in 0..n {
-        if let Some((os, family)) = analysis.one_state(i) {
-            let start = x0.get(i).copied().unwrap_or(f64::NAN);
-            if let Some(mv) = one_state::mean_variance(os, family, params, start, t) {
-                mean[i] = Some(mv.mean);
-                variance[i] = Some(mv.variance);
-                method[i] = mv.method;
-            }
+/// Means and covariance matrix of the whole system at one time, from its engine.
+#[derive(Clone, Debug)]
+pub(crate) struct SystemFigures {
+    mean: DVector<f64>,
+    covariance: DMatrix<f64>,
+    method: Method,
+}
+
+/// How many times' system figures a derivation keeps.
+const KEPT_TIMES: usize = 8;
+
+/// The figures of the system engines at `t`, computed once per time and kept (the
+/// expectations and hovers of one model mostly ask for a few times). `None` when the
+/// model has no system engine or more states than they take.
+fn system_figures(model: &Model, analysis: &Analysis, t: f64) -> Option<SystemFigures> {
+    if model.factors.len() > MAX_SYSTEM_STATES || !(t.is_finite() && t >= 0.0) {
+        return None;
+    }
+    if let Ok(kept) = analysis.system_figures.lock() {
+        if let Some((_, figures)) = kept.iter().find(|(at, _)| at.to_bits() == t.to_bits()) {
+            return figures.clone();
         }
     }
-    // Several states: the system engines give what the one-state forms cannot.
-    // Beyond the size limit the engines would cost seconds and gigabytes.
-    let use_system = n <= MAX_SYSTEM_STATES;
-    let system_figures = if !use_system {
-        None
-    } else if valid_time && analysis.system.family == Family::LinearSystem {
-        if let Some(engine) = linear_engine(model, analysis) {
-            let start = DVector::from_vec(x0.clone());
-            Some((
+    let figures = compute_system_figures(model, analysis, t);
+    if let Ok(mut kept) = analysis.system_figures.lock() {
+        if kept.len() >= KEPT_TIMES {
+            kept.remove(0);
+        }
+        kept.push((t, figures.clone()));
+    }
+    figures
+}
+
+fn compute_system_figures(model: &Model, analysis: &Analysis, t: f64) -> Option<SystemFigures> {
+    let x0 = model.initial_values();
+    let (mean, covariance, method) = if analysis.system.family == Family::LinearSystem {
+        if let Some(engine) = cached_linear_engine(model, analysis) {
+            let start = DVector::from_vec(x0);
+            (
                 engine.mean_at(&start, t),
                 engine.covariance_at(t),
                 Method::ClosedForm,
-            ))
+            )
         } else if analysis.system.time_dependent {
-            integrate_linear_system(model, analysis, t)
-                .map(|(m, p)| (m, p, Method::MomentEquations))
+            let (m, p) = integrate_linear_system(model, analysis, t)?;
+            (m, p, Method::MomentEquations)
         } else {
-            None
+            return None;
         }
-    } else if valid_time && analysis.system.family == Family::Polynomial {
+    } else if analysis.system.family == Family::Polynomial {
         if analysis.system.time_dependent {
-            integrate_polynomial_system(model, analysis, t)
-                .map(|(m, p)| (m, p, Method::MomentEquations))
+            let (m, p) = integrate_polynomial_system(model, analysis, t)?;
+            (m, p, Method::MomentEquations)
         } else {
-            polynomial_engine(model, analysis).and_then(|engine| {
-                let table = engine.moments_at(&DVector::from_vec(x0.clone()), t, 2);
-                Some((
-                    table.means(),
-                    table.covariance_matrix()?,
-                    Method::MomentEquations,
-                ))
-            })
+            let engine = polynomial_engine(model, analysis)?;
+            let table = engine.moments_at(&DVector::from_vec(x0), t, 2);
+            (
+                table.means(),
+                table.covariance_matrix()?,
+                Method::MomentEquations,
+            )
         }
     } else {
-        None
+        return None;
     };
-    if let Some((system_mean, system_cov, system_method)) = &system_figures {
-        for i in 0..n {
-            if mean[i].is_none() {
-                mean[i] = system_mean.get(i).copied().filter(|v| v.is_finite());
-                variance[i] = system_cov.get((i, i)).copied().filter(|v| v.is_finite());
-                if mean[i].is_some() {
-                    method[i] = *system_method;
-                }
-            }
-            if let Some(row) = covariance.get_mut(i) {
-                for (j, slot) in row.iter_mut().enumerate() {
-                    if i != j {
-                        *slot = system_cov.get((i, j)).copied().filter(|v| v.is_finite());
-                    }
-                }
+    Some(SystemFigures {
+        mean,
+        covariance,
+        method,
+    })
+}
+
+/// Mean and variance of one state: its closed form when decoupled, else the system's.
+pub(crate) fn state_moments(
+    model: &Model,
+    analysis: &Analysis,
+    state: usize,
+    t: f64,
+) -> StateMoments {
+    let unknown = StateMoments {
+        mean: None,
+        variance: None,
+        method: Method::None,
+    };
+    if let Some((os, family)) = analysis.one_state(state) {
+        let start = model
+            .factors
+            .get(state)
+            .map(|s| s.initial)
+            .unwrap_or(f64::NAN);
+        return match one_state::mean_variance(os, family, &analysis.params, start, t) {
+            Some(mv) => StateMoments {
+                mean: Some(mv.mean),
+                variance: Some(mv.variance),
+                method: mv.method,
+            },
+            None => unknown,
+        };
+    }
+    let Some(figures) = system_figures(model, analysis, t) else {
+        return unknown;
+    };
+    let mean = figures.mean.get(state).copied().filter(|v| v.is_finite());
+    if mean.is_none() {
+        return unknown;
+    }
+    StateMoments {
+        mean,
+        variance: figures
+            .covariance
+            .get((state, state))
+            .copied()
+            .filter(|v| v.is_finite()),
+        method: figures.method,
+    }
+}
+
+/// Cov(X_i(t), X_j(t)): the variance on the diagonal, the system engine's entry when the
+/// model has one, else the closed form of the pair.
+pub(crate) fn covariance(
+    model: &Model,
+    analysis: &Analysis,
+    i: usize,
+    j: usize,
+    t: f64,
+) -> Option<f64> {
+    if i >= model.factors.len() || j >= model.factors.len() {
+        return None;
+    }
+    if i == j {
+        return state_moments(model, analysis, i, t).variance;
+    }
+    if let Some(figures) = system_figures(model, analysis, t) {
+        if let Some(value) = figures.covariance.get((i, j)).copied() {
+            if value.is_finite() {
+                return Some(value);
             }
         }
     }
+    pair_covariance(model, analysis, i, j, t)
+}
+
+pub(crate) fn moments_at(model: &Model, analysis: &Analysis, t: f64) -> Moments {
+    let n = model.factors.len();
+    let mut mean = vec![None; n];
+    let mut variance = vec![None; n];
+    let mut method = vec![Method::None; n];
+    for i in 0..n {
+        let figures = state_moments(model, analysis, i, t);
+        mean[i] = figures.mean;
+        variance[i] = figures.variance;
+        method[i] = figures.method;
+    }
+    let system = system_figures(model, analysis, t);
+    let mut covariance = vec![vec![None; n]; n];
     for (i, row) in covariance.iter_mut().enumerate() {
         for (j, slot) in row.iter_mut().enumerate() {
-            if i == j {
-                *slot = variance.get(i).copied().flatten();
-            } else if slot.is_none() {
-                *slot = pair_covariance(model, analysis, &x0, i, j, t);
-            }
+            *slot = if i == j {
+                variance.get(i).copied().flatten()
+            } else {
+                system
+                    .as_ref()
+                    .and_then(|f| f.covariance.get((i, j)).copied())
+                    .filter(|v| v.is_finite())
+                    .or_else(|| pair_covariance(model, analysis, i, j, t))
+            };
         }
     }
-    let _ = derivation;
     let exact = method.iter().map(|m| *m != Method::None).collect();
     Moments {
         at: t,
@@ -572,14 +759,7 @@ pub(crate) fn moments_at(
 /// Cov(X_t, Y_t) of two decoupled states with affine noise and constant coefficients:
 /// K' = (b₁ + b₂ + Σρ d₁d₂) K + Σ_kl ρ_kl (c₁ₖ + d₁ₖ m₁)(c₂ₗ + d₂ₗ m₂), K(0) = 0
 /// (Itô's product rule; Kloeden & Platen 1992, §4.2).
-fn pair_covariance(
-    model: &Model,
-    analysis: &Analysis,
-    x0: &[f64],
-    i: usize,
-    j: usize,
-    t: f64,
-) -> Option<f64> {
+fn pair_covariance(model: &Model, analysis: &Analysis, i: usize, j: usize, t: f64) -> Option<f64> {
     if !(t.is_finite() && t >= 0.0) {
         return None;
     }
@@ -609,8 +789,8 @@ fn pair_covariance(
     let params = &analysis.params;
     let v1 = first.values(params, 0.0);
     let v2 = second.values(params, 0.0);
-    let x1 = x0.get(i).copied()?;
-    let x2 = x0.get(j).copied()?;
+    let x1 = model.factors.get(i)?.initial;
+    let x2 = model.factors.get(j)?.initial;
     let mut cross_constant = 0.0;
     let mut cross_first = Vec::new();
     let mut q = 0.0;
@@ -654,12 +834,11 @@ fn pair_covariance(
 pub(crate) fn autocovariance(
     model: &Model,
     derivation: &Derivation,
-    analysis: &Analysis,
     state: usize,
     s: f64,
     t: f64,
 ) -> Option<f64> {
-    let _ = derivation;
+    let analysis = derivation.analysis();
     let x0 = model.factors.get(state)?.initial;
     if let Some((os, family)) = analysis.one_state(state) {
         return one_state::autocovariance(os, family, &analysis.params, x0, s, t);
@@ -675,7 +854,7 @@ pub(crate) fn autocovariance(
             .copied()
             .unwrap_or(f64::NAN)
     });
-    let moments = moments_at(model, derivation, analysis, early);
+    let moments = moments_at(model, analysis, early);
     let mut cov = DMatrix::zeros(n, n);
     for r in 0..n {
         for c in 0..n {
@@ -691,7 +870,6 @@ pub(crate) fn autocovariance(
 
 pub(crate) fn quantile(
     model: &Model,
-    derivation: &Derivation,
     analysis: &Analysis,
     state: usize,
     t: f64,
@@ -705,9 +883,9 @@ pub(crate) fn quantile(
         return None;
     }
     // A linear system with state-free noise is Gaussian.
-    let moments = moments_at(model, derivation, analysis, t);
-    let mean = (*moments.mean.get(state)?)?;
-    let variance = (*moments.variance.get(state)?)?;
+    let moments = state_moments(model, analysis, state, t);
+    let mean = moments.mean?;
+    let variance = moments.variance?;
     let standard = Normal::new(0.0, 1.0).ok()?;
     Some(mean + variance.max(0.0).sqrt() * standard.inverse_cdf(p))
 }

@@ -99,8 +99,8 @@ fn ornstein_uhlenbeck_quantile_and_autocovariance() {
 
 #[test]
 fn ornstein_uhlenbeck_formulas_use_the_model_names() {
-    let (_, d) = derived(VASICEK);
-    let formulas = &d.states[0].formulas;
+    let (m, d) = derived(VASICEK);
+    let formulas = sdeck_calculus::formulas(&m, &d, 0);
     assert_eq!(
         formulas.solution.as_deref(),
         Some("r(t) = level + (r₀ − level)·e^(−kappa·t) + vol·∫₀ᵗ e^(−kappa·(t − s)) dW(s)")

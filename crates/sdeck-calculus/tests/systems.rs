@@ -61,6 +61,27 @@ fn drift_matrix_and_families_of_a_triangular_system() {
 }
 
 #[test]
+fn figures_of_one_state_or_pair_agree_with_the_whole_matrix() {
+    let m = model(TRIANGULAR);
+    let d = derive(&m);
+    let t = 1.3;
+    let whole = moments_at(&m, &d, t);
+    for i in 0..2 {
+        let one = sdeck_calculus::state_moments(&m, &d, i, t);
+        assert_eq!(one.mean, whole.mean[i]);
+        assert_eq!(one.variance, whole.variance[i]);
+        assert_eq!(one.method, whole.method[i]);
+        for j in 0..2 {
+            assert_eq!(
+                sdeck_calculus::covariance(&m, &d, i, j, t),
+                whole.covariance[i][j]
+            );
+        }
+    }
+    assert!(whole.covariance[0][1].is_some());
+}
+
+#[test]
 fn coupled_autocovariance_matches_the_engine_cross_covariance() {
     let m = model(TRIANGULAR);
     let d = derive(&m);

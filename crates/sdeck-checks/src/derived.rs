@@ -174,7 +174,7 @@ fn feller_condition(model: &Model, derivation: &Derivation, out: &mut Vec<Diagno
         let Some(span) = equation_span(model, state) else {
             continue;
         };
-        let terms = square_root_terms(model, state);
+        let terms = square_root_terms(model, derivation, state);
         let (speed, level, vol2) = terms
             .as_ref()
             .map(|t| (t.speed.clone(), t.level.clone(), t.vol_squared.clone()))
@@ -508,7 +508,7 @@ fn not_mean_reverting(model: &Model, derivation: &Derivation, out: &mut Vec<Diag
             continue;
         };
         let name = state_name(model, index);
-        let slope = sdeck_calculus::describe::drift_slope_text(model, index)
+        let slope = sdeck_calculus::describe::drift_slope_text(model, derivation, index)
             .unwrap_or_else(|| "b".to_string());
         let doubling = std::f64::consts::LN_2 / b;
         out.push(
@@ -530,29 +530,12 @@ fn not_mean_reverting(model: &Model, derivation: &Derivation, out: &mut Vec<Diag
             )),
         );
     }
-    // Coupled states: eigenvalues of each connected block of the drift matrix.
-    let Some(matrix) = &derivation.drift_matrix else {
-        return;
-    };
-    if derivation.system_family != Family::LinearSystem {
-        return;
-    }
-    for block in coupled_blocks(derivation) {
-        let size = block.len();
-        let sub = DMatrix::from_fn(size, size, |r, c| {
-            let (Some(&i), Some(&j)) = (block.get(r), block.get(c)) else {
-                return 0.0;
-            };
-            matrix
-                .get(i)
-                .and_then(|row| row.get(j))
-                .copied()
-                .unwrap_or(0.0)
-        });
-        if sub.iter().any(|v| !v.is_finite()) {
+    // Coupled states: eigenvalues of each connected block's drift matrix.
+    for coupled in &derivation.blocks {
+        let block = &coupled.states;
+        let Some(eigen) = &coupled.drift_eigenvalues else {
             continue;
-        }
-        let eigen = sdeck_calculus::linear_system::eigenvalues(&sub);
+        };
         let Some(&(re, im)) = eigen
             .iter()
             .max_by(|x, y| x.0.partial_cmp(&y.0).unwrap_or(std::cmp::Ordering::Equal))
@@ -599,52 +582,6 @@ fn not_mean_reverting(model: &Model, derivation: &Derivation, out: &mut Vec<Diag
         }
         out.push(diagnostic);
     }
-}
-
-/// Connected groups (size > 1) of states linked through their equations.
-fn coupled_blocks(derivation: &Derivation) -> Vec<Vec<usize>> {
-    let n = derivation.states.len();
-    let mut group: Vec<usize> = (0..n).collect();
-    fn root(group: &mut [usize], mut i: usize) -> usize {
-        while let Some(&parent) = group.get(i) {
-            if parent == i {
-                break;
-            }
-            i = parent;
-        }
-        i
-    }
-    for (i, law) in derivation.states.iter().enumerate() {
-        for &j in &law.depends_on {
-            if j >= n {
-                continue;
-            }
-            let (ri, rj) = (root(&mut group, i), root(&mut group, j));
-            if ri != rj {
-                if let Some(slot) = group.get_mut(ri) {
-                    *slot = rj;
-                }
-            }
-        }
-    }
-    let mut blocks: Vec<Vec<usize>> = Vec::new();
-    let mut roots: Vec<usize> = Vec::new();
-    for i in 0..n {
-        let r = root(&mut group, i);
-        match roots.iter().position(|x| *x == r) {
-            Some(k) => {
-                if let Some(block) = blocks.get_mut(k) {
-                    block.push(i);
-                }
-            }
-            None => {
-                roots.push(r);
-                blocks.push(vec![i]);
-            }
-        }
-    }
-    blocks.retain(|b| b.len() > 1);
-    blocks
 }
 
 /// `correlation-not-psd`: the correlation matrix must be positive semi-definite for the
@@ -1031,6 +968,30 @@ mod tests {
             found[0].message
         );
         assert_eq!(found[0].related.len(), 1);
+    }
+
+    #[test]
+    fn an_explosive_block_in_a_model_too_large_for_the_system_engines() {
+        // 30 decoupled states, then x and y with A = [[-0.1, 1], [1, -0.1]]: eigenvalue 0.9.
+        let mut source = String::from(
+            "model wide_tandem\nparam k = 0.1 [1/year]\nparam c = 1 [1/year]\n\
+             param v = 0.01 [1/sqrt(year)]\nshock W, Z\n",
+        );
+        for i in 0..30 {
+            source.push_str(&format!("factor q{i} = 0\ndq{i} = -k * q{i} dt + v dW\n"));
+        }
+        source.push_str(
+            "factor x = 0\nfactor y = 0\ndx = (-k * x + c * y) dt + v dW\n\
+             dy = (c * x - k * y) dt + v dZ\n",
+        );
+        let (_, diagnostics) = run(&source);
+        let found = of_rule(&diagnostics, &rules::NOT_MEAN_REVERTING);
+        assert_eq!(found.len(), 1, "{diagnostics:#?}");
+        assert!(
+            found[0].message.contains("coupled drift of x, y"),
+            "{}",
+            found[0].message
+        );
     }
 
     #[test]

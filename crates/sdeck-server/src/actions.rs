@@ -139,7 +139,9 @@ fn feller_fixes(a: &Analyzed, span: &Span) -> Vec<(String, Vec<TextEdit>)> {
             continue;
         };
         let Some(sr) = &law.square_root else { continue };
-        let Some(terms) = sdeck_calculus::describe::square_root_terms(model, j) else {
+        let Some(terms) =
+            sdeck_calculus::describe::square_root_terms(model, &a.check.derivation, j)
+        else {
             continue;
         };
         if !(sr.level > 0.0 && sr.speed > 0.0 && sr.vol.is_finite()) {
@@ -297,22 +299,23 @@ fn moments_comment(a: &Analyzed, in_range: impl Fn(&Span) -> bool) -> Vec<(Strin
             .take_while(|c| c.is_whitespace())
             .collect();
         let mut lines = vec![format!("{}: {}", state.name, law.family.as_str())];
+        let formulas = sdeck_calculus::formulas(model, &a.check.derivation, i);
         for (label, text) in [
-            ("mean", &law.formulas.mean),
-            ("variance", &law.formulas.variance),
-            ("stationary", &law.formulas.stationary),
+            ("mean", &formulas.mean),
+            ("variance", &formulas.variance),
+            ("stationary", &formulas.stationary),
         ] {
             if let Some(t) = text {
                 lines.push(format!("{label:<10} {}", t.replace('\n', " ")));
             }
         }
-        let mean = a.moments().mean.get(i).copied().flatten();
-        let variance = a.moments().variance.get(i).copied().flatten();
+        let figures = a.horizon_moments(i);
+        let (mean, variance) = (figures.mean, figures.variance);
         if let (Some(m), Some(v)) = (mean, variance) {
             if m.is_finite() && v.is_finite() && v >= 0.0 {
                 lines.push(format!(
                     "at t = {} {clock}: mean {}, sd {}",
-                    fmt_num(a.moments().at),
+                    fmt_num(model.horizon),
                     fmt_num(m),
                     fmt_num(v.sqrt())
                 ));

@@ -4,7 +4,7 @@
 
 use crate::convert::Converter;
 use crate::documents::{PositionEncoding, TextSnapshot};
-use sdeck_calculus::Moments;
+use sdeck_calculus::StateMoments;
 use sdeck_checks::{FileCheck, RuleSettings};
 use sdeck_semantics::{Symbol, SymbolKind};
 use sdeck_syntax::ast::{Declaration, StatementKind};
@@ -53,10 +53,11 @@ pub struct Analyzed {
     pub check: FileCheck,
     /// Whether the project leaves the file out (no diagnostics are shown).
     pub excluded: bool,
-    /// Means, variances and covariances at the model's horizon (what `sdeck moments`
-    /// prints by default), computed on first use: diagnostics do not need them, and on
-    /// a large system they cost far more than the checks.
-    moments: OnceLock<Moments>,
+    /// Per state, mean and variance at the model's horizon (what `sdeck moments` prints
+    /// by default), each computed on first use: diagnostics do not need them.
+    horizon: Vec<OnceLock<StateMoments>>,
+    /// Per parameter, the roles it plays, found once per version on first use.
+    roles: OnceLock<Vec<Vec<Role>>>,
 }
 
 impl Analyzed {
@@ -65,13 +66,15 @@ impl Analyzed {
         let check = sdeck_checks::check(&snapshot.text, &snapshot.stem, &snapshot.project.settings);
         let excluded = snapshot.project.excluded;
         let index = LineIndex::new(&snapshot.text);
+        let states = check.analysis.model.factors.len();
         Analyzed {
             version: snapshot.version,
             text: snapshot.text,
             index,
             check,
             excluded,
-            moments: OnceLock::new(),
+            horizon: (0..states).map(|_| OnceLock::new()).collect(),
+            roles: OnceLock::new(),
         }
     }
 
@@ -84,12 +87,16 @@ impl Analyzed {
         }
     }
 
-    /// The moments at the horizon (computed once per analysed version).
-    pub fn moments(&self) -> &Moments {
-        self.moments.get_or_init(|| {
-            let model = &self.check.analysis.model;
-            sdeck_calculus::moments_at(model, &self.check.derivation, model.horizon)
-        })
+    /// Mean and variance of `state` at the horizon (computed once per analysed version,
+    /// for that state only).
+    pub fn horizon_moments(&self, state: usize) -> StateMoments {
+        let model = &self.check.analysis.model;
+        let compute =
+            || sdeck_calculus::state_moments(model, &self.check.derivation, state, model.horizon);
+        match self.horizon.get(state) {
+            Some(slot) => *slot.get_or_init(compute),
+            None => compute(),
+        }
     }
 
     pub fn converter(&self, encoding: PositionEncoding) -> Converter<'_> {
@@ -154,29 +161,45 @@ impl Analyzed {
     }
 
     /// The roles a parameter plays in the equations, with the state each concerns.
-    pub fn roles_of_param(&self, param: usize) -> Vec<Role> {
+    pub fn roles_of_param(&self, param: usize) -> &[Role] {
+        self.roles
+            .get_or_init(|| self.all_roles())
+            .get(param)
+            .map(Vec::as_slice)
+            .unwrap_or(&[])
+    }
+
+    /// The roles of every parameter, in one pass over the states.
+    fn all_roles(&self) -> Vec<Vec<Role>> {
         let model = &self.check.analysis.model;
-        let Some(p) = model.params.get(param) else {
-            return Vec::new();
-        };
-        let mut roles = Vec::new();
-        for (state, law) in self.check.derivation.states.iter().enumerate() {
-            if let Some(terms) = sdeck_calculus::describe::square_root_terms(model, state) {
-                if terms.speed_param == Some(param) {
-                    roles.push(Role::Speed {
-                        state,
-                        half_life: law.half_life,
-                    });
+        let derivation = &self.check.derivation;
+        let mut roles = vec![Vec::new(); model.params.len()];
+        let by_name: std::collections::HashMap<&str, usize> = model
+            .params
+            .iter()
+            .enumerate()
+            .map(|(i, p)| (p.name.as_str(), i))
+            .collect();
+        for (state, law) in derivation.states.iter().enumerate() {
+            if let Some(terms) =
+                sdeck_calculus::describe::square_root_terms(model, derivation, state)
+            {
+                let half_life = law.half_life;
+                if let Some(slot) = terms.speed_param.and_then(|p| roles.get_mut(p)) {
+                    slot.push(Role::Speed { state, half_life });
                 }
-                if terms.vol_param == Some(param) {
-                    roles.push(Role::Volatility { state });
+                if let Some(slot) = terms.vol_param.and_then(|p| roles.get_mut(p)) {
+                    slot.push(Role::Volatility { state });
                 }
                 continue;
             }
-            if let Some(slope) = sdeck_calculus::describe::drift_slope_text(model, state) {
+            if let Some(slope) =
+                sdeck_calculus::describe::drift_slope_text(model, derivation, state)
+            {
                 let slope = slope.replace('−', "-");
-                if slope == format!("-{}", p.name) {
-                    roles.push(Role::Speed {
+                let speed = slope.strip_prefix('-').and_then(|name| by_name.get(name));
+                if let Some(slot) = speed.and_then(|p| roles.get_mut(*p)) {
+                    slot.push(Role::Speed {
                         state,
                         half_life: law.half_life,
                     });

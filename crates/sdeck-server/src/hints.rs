@@ -32,7 +32,7 @@ pub fn inlay_hints(a: &Analyzed, encoding: PositionEncoding, range: Range) -> Ve
                 ));
             }
         }
-        for role in a.roles_of_param(i) {
+        for role in a.roles_of_param(i).iter().cloned() {
             if let Role::Speed {
                 half_life: Some(h), ..
             } = role

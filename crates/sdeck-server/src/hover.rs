@@ -108,8 +108,8 @@ pub fn state_text(a: &Analyzed, i: usize) -> String {
     if let Some(description) = &state.description {
         s.push_str(&format!("\n_{}_\n", description.trim()));
     }
-    if let Some(law) = law {
-        let f = &law.formulas;
+    if law.is_some() {
+        let f = sdeck_calculus::formulas(&a.check.analysis.model, &a.check.derivation, i);
         let lines: Vec<String> = [
             ("solution", &f.solution),
             ("mean", &f.mean),
@@ -125,11 +125,11 @@ pub fn state_text(a: &Analyzed, i: usize) -> String {
             s.push_str(&format!("\n```text\n{}\n```\n", lines.join("\n")));
         }
     }
-    let mean = a.moments().mean.get(i).copied().flatten();
-    let variance = a.moments().variance.get(i).copied().flatten();
+    let figures = a.horizon_moments(i);
+    let (mean, variance) = (figures.mean, figures.variance);
     s.push_str(&format!(
         "\nAt the horizon, t = {} {clock}:\n\n| figure | value |\n|---|---|\n",
-        fmt_num(a.moments().at)
+        fmt_num(a.check.analysis.model.horizon)
     ));
     s.push_str(&format!("| mean | {} |\n", or_unknown(mean)));
     s.push_str(&format!("| variance | {} |\n", or_unknown(variance)));
@@ -210,7 +210,7 @@ fn param_text(a: &Analyzed, i: usize) -> String {
     if let Some(description) = &p.description {
         s.push_str(&format!("\n_{}_\n", description.trim()));
     }
-    for role in a.roles_of_param(i) {
+    for role in a.roles_of_param(i).iter().cloned() {
         match role {
             Role::Speed { state, half_life } => {
                 let name = model
