@@ -231,6 +231,14 @@ impl AffineSet {
         if n == 0 {
             return Err("the model declares no factor".to_string());
         }
+        // The set is dense (n³ coefficients for the covariances' slopes): past the size
+        // the several-factor engines take it would not fit in memory.
+        if n > crate::MAX_SYSTEM_STATES {
+            return Err(format!(
+                "the model has {n} factors, more than the {} the transform engine takes",
+                crate::MAX_SYSTEM_STATES
+            ));
+        }
         let corr = model.correlations();
         let mut shapes = Vec::with_capacity(n);
         for i in 0..n {

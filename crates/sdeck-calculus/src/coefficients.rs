@@ -54,7 +54,9 @@ impl OneStateForm {
 /// or its equation is not affine in drift with an at most quadratic squared diffusion).
 pub fn one_state_form(model: &Model, state: usize) -> Result<OneStateForm, String> {
     let corr = model.correlations();
-    let classified = classify_state(model, state, &corr);
+    let params = model.param_values();
+    let names = crate::algebra::Names::new(model);
+    let classified = classify_state(model, state, &corr, &params, &names);
     match classified.one_state {
         Some(form) if classified.family != Family::General => Ok(OneStateForm {
             family: classified.family,

@@ -22,6 +22,14 @@ fn power_moment(set: &AffineSet, state: usize, u: f64, t: f64) -> Result<f64, Tr
 
 /// Moves the factors carried by their logarithm from `general` to `exponential-affine`.
 pub(crate) fn classify(model: &Model, derivation: &mut Derivation) {
+    // Only a factor left `general` can move; most models have none.
+    if derivation
+        .states
+        .iter()
+        .all(|law| law.family != Family::General)
+    {
+        return;
+    }
     let Ok(set) = AffineSet::from_model(model) else {
         return;
     };

@@ -533,6 +533,16 @@ fn not_mean_reverting(model: &Model, derivation: &Derivation, out: &mut Vec<Diag
     // Coupled states: eigenvalues of each connected block's drift matrix.
     for coupled in &derivation.blocks {
         let block = &coupled.states;
+        // A factor carried by its logarithm, or a polynomial system, grows as its own
+        // family says (`moment-explosion` speaks of it): only linear blocks are judged here.
+        let nonlinear = block.iter().any(|&i| {
+            derivation.states.get(i).is_some_and(|law| {
+                matches!(law.family, Family::ExponentialAffine | Family::Polynomial)
+            })
+        });
+        if nonlinear {
+            continue;
+        }
         let Some(eigen) = &coupled.drift_eigenvalues else {
             continue;
         };

@@ -327,7 +327,7 @@ impl ModelReport {
                     family: law.family,
                     reason: law.reason.clone(),
                     method: law.method,
-                    formulas: law.formulas.clone(),
+                    formulas: sdeck_calculus::formulas(model, derivation, i),
                     exact: moments.exact.get(i).copied().unwrap_or(false),
                     half_life: law.half_life,
                     stationary: law.stationary.as_ref().map(|s| StationaryLaw {

@@ -137,7 +137,7 @@ pub fn state_text(a: &Analyzed, i: usize) -> String {
         "| standard deviation | {} |\n",
         or_unknown(variance.filter(|v| *v >= 0.0).map(f64::sqrt))
     ));
-    if let Some(whole) = sdeck_calculus::laws::law_of(model, &a.check.derivation, i, a.moments().at)
+    if let Some(whole) = sdeck_calculus::laws::law_of(model, &a.check.derivation, i, model.horizon)
     {
         s.push_str(&format!("| law | {} |\n", whole.kind().as_str()));
         let sign_change = matches!(
