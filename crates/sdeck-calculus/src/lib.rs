@@ -47,8 +47,8 @@ pub mod polynomial;
 mod shape;
 mod system;
 
-use sdeck_semantics::Model;
-use sdeck_syntax::ast::Figure;
+use sdeck_semantics::{Expectation, Model};
+use sdeck_syntax::ast::{Figure, Side};
 use shape::{classify_state, classify_system, Classified, OneState, SystemShape};
 use std::sync::{Arc, OnceLock};
 
@@ -461,5 +461,59 @@ pub fn figure_value(
         Figure::StationaryMean => stationary.map(|s| s.mean),
         Figure::StationaryVariance => stationary.map(|s| s.variance),
         Figure::StationarySd => stationary.map(|s| s.variance.max(0.0).sqrt()),
+        Figure::Prob | Figure::Quantile | Figure::Price | Figure::Yield | Figure::Forward => None,
+    }
+}
+
+/// The value of the figure an `expect` line pins, in the units of
+/// [`Expectation::admissible`]: clock units for the moments and quantiles, a probability
+/// for `prob`, the bond price, and annual decimals for `yield` and `forward`. The error
+/// says in words why the figure does not exist.
+pub fn expectation_value(
+    model: &Model,
+    derivation: &Derivation,
+    e: &Expectation,
+) -> Result<f64, String> {
+    let t = e.at.unwrap_or(model.horizon);
+    match (e.figure, e.state) {
+        (Figure::Prob | Figure::Quantile, Some(state)) => {
+            let law = laws::law_of(model, derivation, state, t)
+                .ok_or_else(|| "no known law at that time".to_string())?;
+            let level = e
+                .level
+                .ok_or_else(|| "no level to compare with".to_string())?;
+            let value = if e.figure == Figure::Quantile {
+                law.quantile(level)
+            } else {
+                law.cdf(level).map(|p| match e.side {
+                    Some(Side::Above) => 1.0 - p,
+                    _ => p,
+                })
+            };
+            value.ok_or_else(|| {
+                format!(
+                    "its {} law could not be evaluated at that level",
+                    law.kind().as_str()
+                )
+            })
+        }
+        (Figure::Price | Figure::Yield | Figure::Forward, _) => {
+            let discount = model.discount.as_ref().ok_or_else(|| {
+                "the model has no `discount` line, so it has no bond prices".to_string()
+            })?;
+            let point = curve::curve(model, &discount.rate, &[t])?
+                .points
+                .into_iter()
+                .next()
+                .ok_or_else(|| "no point on the curve".to_string())?;
+            Ok(match e.figure {
+                Figure::Price => point.price,
+                Figure::Yield => point.yield_rate,
+                _ => point.forward,
+            })
+        }
+        (figure, Some(state)) => figure_value(model, derivation, state, figure, t)
+            .ok_or_else(|| "no known value for this figure".to_string()),
+        (_, None) => Err("no factor".to_string()),
     }
 }

@@ -4,10 +4,10 @@
 use nalgebra::{DMatrix, SymmetricEigen};
 use sdeck_calculus::algebra::to_poly;
 use sdeck_calculus::describe::square_root_terms;
-use sdeck_calculus::{figure_value, Derivation, Family, StateLaw};
+use sdeck_calculus::{expectation_value, Derivation, Family, StateLaw};
 use sdeck_diagnostics::{rules, Diagnostic};
-use sdeck_semantics::{Expr, Function, Interval, Model};
-use sdeck_syntax::ast::Figure;
+use sdeck_semantics::{Expectation, Expr, Function, Interval, Model, Shown};
+use sdeck_syntax::ast::{Figure, Side};
 
 /// Eigenvalues above this negative tolerance count as zero (rounding of a PSD matrix).
 const EIGENVALUE_TOLERANCE: f64 = 1e-12;
@@ -468,15 +468,20 @@ fn interval_keeps(domain: &Interval, lower: Option<(f64, bool)>) -> bool {
 }
 
 fn show_interval(interval: &Interval) -> String {
+    show_interval_with(interval, |v| number(v, 6))
+}
+
+/// An interval with its ends shown by `show`.
+fn show_interval_with(interval: &Interval, show: impl Fn(f64) -> String) -> String {
     let lower = match interval.lower {
         None => "(−∞".to_string(),
-        Some((v, true)) => format!("[{}", number(v, 6)),
-        Some((v, false)) => format!("({}", number(v, 6)),
+        Some((v, true)) => format!("[{}", show(v)),
+        Some((v, false)) => format!("({}", show(v)),
     };
     let upper = match interval.upper {
         None => "∞)".to_string(),
-        Some((v, true)) => format!("{}]", number(v, 6)),
-        Some((v, false)) => format!("{})", number(v, 6)),
+        Some((v, true)) => format!("{}]", show(v)),
+        Some((v, false)) => format!("{})", show(v)),
     };
     format!("{lower}, {upper}")
 }
@@ -642,37 +647,48 @@ fn correlation_not_psd(model: &Model, out: &mut Vec<Diagnostic>) {
 fn expectations(model: &Model, derivation: &Derivation, out: &mut Vec<Diagnostic>) {
     let clock = &model.clock.unit;
     for expectation in &model.expectations {
-        let Some(law) = derivation.states.get(expectation.state) else {
-            continue;
+        let law = match expectation.state {
+            Some(state) => match derivation.states.get(state) {
+                Some(law) => Some(law),
+                None => continue,
+            },
+            None => None,
         };
-        let name = state_name(model, expectation.state);
-        let keyword = expectation.figure.keyword();
-        let time = expectation.at.unwrap_or(model.horizon);
-        let value = figure_value(
-            model,
-            derivation,
-            expectation.state,
-            expectation.figure,
-            time,
-        );
-        let described = if expectation.figure.takes_time() {
-            format!("{keyword}({name}, {} {clock})", number(time, 6))
-        } else {
-            format!("{keyword}({name})")
-        };
-        match value {
-            None => {
+        let described = describe_expectation(model, expectation);
+        let value = expectation_value(model, derivation, expectation);
+        let show = |v: f64| show_figure(&expectation.shown, v);
+        match (value, law) {
+            (Err(reason), _) if expectation.figure.on_curve() => {
+                let help = if model.discount.is_none() {
+                    "add the short rate, affine in the factors, e.g. `discount r`, or remove \
+                     the expectation"
+                } else {
+                    "the rate must be affine in the factors and its transform finite up to \
+                     the maturity; pin a shorter maturity or remove the expectation"
+                };
+                out.push(
+                    Diagnostic::new(
+                        &rules::EXPECTATION_FAILED,
+                        expectation.span.clone(),
+                        format!("{described} does not exist: {reason}"),
+                    )
+                    .with_help(help),
+                );
+            }
+            (Err(reason), Some(law)) => {
                 let why = match expectation.figure {
                     Figure::Halflife => {
                         "no half-life (that needs a constant negative slope of its own drift)"
                     }
-                    Figure::Mean | Figure::Variance | Figure::Sd => {
-                        "no known value for this figure"
-                    }
                     Figure::StationaryMean | Figure::StationaryVariance | Figure::StationarySd => {
                         "no stationary law"
                     }
+                    _ => reason.as_str(),
                 };
+                let name = expectation
+                    .state
+                    .map(|i| state_name(model, i))
+                    .unwrap_or_default();
                 let mut d = Diagnostic::new(
                     &rules::EXPECTATION_FAILED,
                     expectation.span.clone(),
@@ -688,29 +704,72 @@ fn expectations(model: &Model, derivation: &Derivation, out: &mut Vec<Diagnostic
                 }
                 out.push(d);
             }
-            Some(v) if !expectation.admissible.contains(v) => {
+            (Err(_), None) => {}
+            (Ok(v), _) if !expectation.admissible.contains(v) => {
+                let note = match (&expectation.shown, law) {
+                    (Shown::Clock, Some(law)) => format!(
+                        "figures are in clock units ({clock}); derived by {}",
+                        law.method.as_str()
+                    ),
+                    (_, Some(law)) => format!("derived by {}", law.method.as_str()),
+                    (_, None) => "yields and forwards are continuously compounded annual \
+                                  rates; derived from the `discount` rate"
+                        .to_string(),
+                };
                 out.push(
                     Diagnostic::new(
                         &rules::EXPECTATION_FAILED,
                         expectation.span.clone(),
                         format!(
                             "{described} = {} is outside the expected {}",
-                            number(v, 6),
-                            show_interval(&expectation.admissible)
+                            show(v),
+                            show_interval_with(&expectation.admissible, show)
                         ),
                     )
-                    .with_note(format!(
-                        "figures are in clock units ({clock}); derived by {}",
-                        law.method.as_str()
-                    ))
+                    .with_note(note)
                     .with_help(
                         "change the parameters so that the figure falls in the interval, or \
                          update the expectation if the model is right",
                     ),
                 );
             }
-            Some(_) => {}
+            (Ok(_), _) => {}
         }
+    }
+}
+
+/// An expectation's figure as the reader wrote it, with the times in clock units:
+/// `mean(r, 12 month)`, `prob(r < 0, 12 month)`, `yield(120 month)`.
+fn describe_expectation(model: &Model, e: &Expectation) -> String {
+    let clock = &model.clock.unit;
+    let keyword = e.figure.keyword();
+    let time = e.at.unwrap_or(model.horizon);
+    let time_text = format!("{} {clock}", number(time, 6));
+    let Some(state) = e.state else {
+        return format!("{keyword}({time_text})");
+    };
+    let name = state_name(model, state);
+    match (e.figure, e.level) {
+        (Figure::Prob, Some(level)) => {
+            let side = e.side.unwrap_or(Side::Below).symbol();
+            format!(
+                "{keyword}({name} {side} {}, {time_text})",
+                e.level_shown.show(level)
+            )
+        }
+        (Figure::Quantile, Some(p)) => {
+            format!("{keyword}({name}, {}, {time_text})", e.level_shown.show(p))
+        }
+        (figure, _) if figure.takes_time() => format!("{keyword}({name}, {time_text})"),
+        _ => format!("{keyword}({name})"),
+    }
+}
+
+/// A figure in the units the reader sees it in (the moments keep the messages' form).
+fn show_figure(shown: &Shown, v: f64) -> String {
+    match shown {
+        Shown::Clock => number(v, 6),
+        _ => shown.show(v),
     }
 }
 

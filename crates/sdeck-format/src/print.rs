@@ -58,10 +58,6 @@ pub(crate) fn statement(source: &str, kind: &StatementKind) -> Printed {
             Printed::Flat(text)
         }
         StatementKind::Expect(e) => {
-            let at = match &e.at {
-                Some(q) => format!(", {}", quantity(source, q)),
-                None => String::new(),
-            };
             let condition = match &e.condition {
                 Condition::Compare { op, value } => {
                     format!("{} {}", op.symbol(), quantity(source, value))
@@ -79,10 +75,28 @@ pub(crate) fn statement(source: &str, kind: &StatementKind) -> Printed {
                     if *upper_inclusive { "]" } else { ")" },
                 ),
             };
+            let mut args: Vec<String> = Vec::new();
+            if let Some(state) = &e.state {
+                args.push(match (&e.side, &e.level) {
+                    (Some(side), Some(level)) => format!(
+                        "{} {} {}",
+                        state.name,
+                        side.symbol(),
+                        quantity(source, level)
+                    ),
+                    _ => state.name.clone(),
+                });
+            }
+            if let (None, Some(level)) = (&e.side, &e.level) {
+                args.push(quantity(source, level));
+            }
+            if let Some(q) = &e.at {
+                args.push(quantity(source, q));
+            }
             Printed::Flat(format!(
-                "expect {}({}{at}) {condition}",
+                "expect {}({}) {condition}",
                 e.figure.keyword(),
-                e.state.name
+                args.join(", ")
             ))
         }
     }

@@ -177,8 +177,8 @@ fn meaning(source: &str) -> String {
     }
     for e in &model.expectations {
         out += &format!(
-            "expect {:?} {} {:?} {:?}\n",
-            e.figure, e.state, e.at, e.admissible
+            "expect {:?} {:?} {:?} {:?} {:?} {:?}\n",
+            e.figure, e.state, e.side, e.level, e.at, e.admissible
         );
     }
     out
@@ -250,6 +250,15 @@ mod random_models {
             vec![
                 "expect", "mean", "(", "x", ",", "1", "year", ")", ">", "0", "[", "EUR", "]",
             ],
+            vec![
+                "expect", "prob", "(", "x", ">", "1.5", "[", "EUR", "]", ",", "6", "month", ")",
+                "<", "90%",
+            ],
+            vec![
+                "expect", "quantile", "(", "x", ",", "99%", ",", "1", "quarter", ")", "in", "(",
+                "0", ",", "5", "[", "EUR", "]", "]",
+            ],
+            vec!["expect", "yield", "(", "10", "year", ")", ">=", "25bp"],
         ]
     }
 
@@ -289,7 +298,7 @@ mod random_models {
         #[test]
         fn any_spacing_formats_to_the_same_meaning_and_comments(
             gaps in proptest::collection::vec(0usize..4, 300),
-            comments in proptest::collection::vec(any::<bool>(), 15),
+            comments in proptest::collection::vec(any::<bool>(), 18),
         ) {
             let source = render(&gaps, &comments);
             let Outcome::Formatted(once) = format(&source) else {

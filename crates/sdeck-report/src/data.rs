@@ -1,7 +1,7 @@
 //! The report of one model as data: built once from the analysis, rendered by every face.
 
 use sdeck_calculus::laws::{law_of, LawKind};
-use sdeck_calculus::{figure_value, moments_at, Derivation, Family, Formulas, Method};
+use sdeck_calculus::{expectation_value, moments_at, Derivation, Family, Formulas, Method};
 use sdeck_semantics::{Expectation, Interval, Model};
 
 /// The probabilities at which quantiles are reported.
@@ -134,8 +134,9 @@ pub struct ExpectationRow {
     pub text: String,
     /// 1-based line of the statement.
     pub line: usize,
+    /// The factor; empty for a figure of the curve (`price`, `yield`, `forward`).
     pub factor: String,
-    /// The figure's keyword (`mean`, `halflife`, ...).
+    /// The figure's keyword (`mean`, `halflife`, `prob`, `yield`, ...).
     pub figure: &'static str,
     /// The time of a time-dependent figure (clock units).
     pub at: Option<f64>,
@@ -278,13 +279,13 @@ fn expectation_row(
     e: &Expectation,
 ) -> ExpectationRow {
     let time = e.at.unwrap_or(model.horizon);
-    let value = figure_value(model, derivation, e.state, e.figure, time);
+    let value = expectation_value(model, derivation, e).ok();
     ExpectationRow {
         text: source.get(e.span.clone()).unwrap_or("").trim().to_string(),
         line: line_of(source, e.span.start),
-        factor: model
-            .factors
-            .get(e.state)
+        factor: e
+            .state
+            .and_then(|i| model.factors.get(i))
             .map(|s| s.name.clone())
             .unwrap_or_default(),
         figure: e.figure.keyword(),

@@ -7,7 +7,7 @@
 //! and `t`.
 
 use sdeck_diagnostics::Span;
-use sdeck_syntax::ast::Figure;
+use sdeck_syntax::ast::{Figure, Side};
 use sdeck_units::Dimension;
 
 /// A function of the language.
@@ -281,13 +281,51 @@ pub struct Let {
 #[derive(Clone, Debug, PartialEq)]
 pub struct Expectation {
     pub figure: Figure,
-    /// Index into [`Model::states`].
-    pub state: usize,
-    /// The time at which the figure is taken (clock units); `None` means the horizon.
+    /// Index into [`Model::factors`]; `None` for the figures of the curve (`price`,
+    /// `yield`, `forward`).
+    pub state: Option<usize>,
+    /// `prob`: whether the probability is of being below or above the level.
+    pub side: Option<Side>,
+    /// `prob`: the level in the factor's clock units; `quantile`: the probability, in
+    /// (0, 1).
+    pub level: Option<f64>,
+    /// The time at which the figure is taken (clock units; the maturity of a curve
+    /// figure); `None` means the horizon.
     pub at: Option<f64>,
-    /// The admissible values, in the figure's clock units.
+    /// The admissible values, in the figure's clock units (probabilities, prices and
+    /// annual decimals for yields and forwards).
     pub admissible: Interval,
+    /// How messages show the figure to the reader.
+    pub shown: Shown,
+    /// How messages show the level of `prob` (as written: in % or in the factor's unit).
+    pub level_shown: Shown,
     pub span: Span,
+}
+
+/// The units in which the reader sees a figure of an expectation.
+#[derive(Clone, Debug, PartialEq)]
+pub enum Shown {
+    /// The model's clock units (the moments and half-lives).
+    Clock,
+    /// As a percentage (probabilities, yields, forwards, rates written with `%`).
+    Percent,
+    /// Divided by `scale` and followed by the unit as declared (a quantile of a factor,
+    /// a bond price).
+    Scaled { scale: f64, unit: Option<String> },
+}
+
+impl Shown {
+    /// A value of the figure (in the units of [`Expectation::admissible`]) as the reader
+    /// sees it: `3.142%`, `81.5 EUR`, `0.7312`.
+    pub fn show(&self, value: f64) -> String {
+        match self {
+            Shown::Clock => sdeck_units::number::plain(value),
+            Shown::Percent => sdeck_units::number::percent(value, 4),
+            Shown::Scaled { scale, unit } => {
+                sdeck_units::number::with_unit(value / scale, unit.as_deref())
+            }
+        }
+    }
 }
 
 /// Under which measure the drifts are written.

@@ -50,13 +50,11 @@ pub fn complete(
             .iter()
             .map(|f| item(f.name(), CompletionItemKind::FUNCTION, "function")),
     );
-    items.extend(Figure::ALL.iter().map(|f| {
-        item(
-            f.keyword(),
-            CompletionItemKind::PROPERTY,
-            "figure for `expect`",
-        )
-    }));
+    items.extend(
+        Figure::ALL
+            .iter()
+            .map(|f| item(f.keyword(), CompletionItemKind::PROPERTY, f.form())),
+    );
     items.push(item(
         "t",
         CompletionItemKind::VARIABLE,

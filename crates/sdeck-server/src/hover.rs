@@ -28,6 +28,8 @@ pub fn hover(a: &Analyzed, encoding: PositionEncoding, position: Position) -> Op
         (text, span)
     } else if let Some((text, span)) = discount_at(a, offset) {
         (text, span)
+    } else if let Some((text, span)) = expectation_at(a, offset) {
+        (text, span)
     } else {
         let (name, span) = unit_name_at(a, offset)?;
         (unit_text(model, &name), span)
@@ -39,6 +41,56 @@ pub fn hover(a: &Analyzed, encoding: PositionEncoding, position: Position) -> Op
         }),
         range: Some(converter.range(&span)),
     })
+}
+
+/// Hover on the figure of an `expect` line: what it is, how it is written, and its
+/// derived value in the reader's units with the verdict.
+fn expectation_at(a: &Analyzed, offset: usize) -> Option<(String, sdeck_diagnostics::Span)> {
+    let (statement, x) = a
+        .check
+        .analysis
+        .file
+        .statements
+        .iter()
+        .find_map(|s| match &s.kind {
+            StatementKind::Expect(x)
+                if x.figure_span.start <= offset && offset <= x.figure_span.end =>
+            {
+                Some((s, x))
+            }
+            _ => None,
+        })?;
+    let model = &a.check.analysis.model;
+    let mut s = format!(
+        "**{}** · {}
+
+`{}`
+",
+        x.figure.keyword(),
+        x.figure.meaning(),
+        x.figure.form()
+    );
+    if let Some(e) = model.expectations.iter().find(|e| e.span == statement.span) {
+        match sdeck_calculus::expectation_value(model, &a.check.derivation, e) {
+            Ok(v) => s.push_str(&format!(
+                "
+Derived: {} ({}).
+",
+                e.shown.show(v),
+                if e.admissible.contains(v) {
+                    "as expected"
+                } else {
+                    "outside the expected values"
+                }
+            )),
+            Err(why) => s.push_str(&format!(
+                "
+Not derived: {why}.
+"
+            )),
+        }
+    }
+    Some((s, x.figure_span.clone()))
 }
 
 /// Hover on the `discount` keyword: how the rate is read and the curve at a few maturities.

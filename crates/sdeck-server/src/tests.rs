@@ -481,6 +481,21 @@ fn diagnostics_after_a_lone_cr_are_on_their_own_line() {
 }
 
 #[test]
+fn hover_on_a_pinned_figure_gives_its_form_value_and_verdict() {
+    let text = format!(
+        "{VASICEK}discount r\nexpect prob(r < 0, 1 year) < 50%\nexpect yield(10 year) < 1%\n"
+    );
+    let a = analyzed(&text);
+    let md = hover_text(&a, position_of(&text, "prob(", 1));
+    assert!(md.starts_with("**prob** · the probability"), "{md}");
+    assert!(md.contains("`prob(FACTOR < LEVEL[, TIME])"), "{md}");
+    assert!(md.contains("% (as expected)"), "{md}");
+    let md = hover_text(&a, position_of(&text, "yield(", 2));
+    assert!(md.contains("`yield(MATURITY)`"), "{md}");
+    assert!(md.contains("% (outside the expected values)"), "{md}");
+}
+
+#[test]
 fn hover_shows_the_law_the_chance_of_a_negative_rate_and_the_curve() {
     let text = format!("{VASICEK}measure risk-neutral\ndiscount r\n");
     let a = analyzed(&text);

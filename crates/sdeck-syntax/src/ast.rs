@@ -215,10 +215,20 @@ pub enum Figure {
     StationaryMean,
     StationaryVariance,
     StationarySd,
+    /// `prob(X < Q, TIME)` or `prob(X > Q, TIME)`.
+    Prob,
+    /// `quantile(X, P, TIME)`.
+    Quantile,
+    /// `price(TIME)`: the zero-coupon bond price of the `discount` rate.
+    Price,
+    /// `yield(TIME)`: the continuously compounded zero yield, per year.
+    Yield,
+    /// `forward(TIME)`: the instantaneous forward rate, per year.
+    Forward,
 }
 
 impl Figure {
-    pub const ALL: [Figure; 7] = [
+    pub const ALL: [Figure; 12] = [
         Figure::Mean,
         Figure::Variance,
         Figure::Sd,
@@ -226,6 +236,11 @@ impl Figure {
         Figure::StationaryMean,
         Figure::StationaryVariance,
         Figure::StationarySd,
+        Figure::Prob,
+        Figure::Quantile,
+        Figure::Price,
+        Figure::Yield,
+        Figure::Forward,
     ];
 
     pub fn keyword(self) -> &'static str {
@@ -237,6 +252,11 @@ impl Figure {
             Figure::StationaryMean => "stationary_mean",
             Figure::StationaryVariance => "stationary_variance",
             Figure::StationarySd => "stationary_sd",
+            Figure::Prob => "prob",
+            Figure::Quantile => "quantile",
+            Figure::Price => "price",
+            Figure::Yield => "yield",
+            Figure::Forward => "forward",
         }
     }
 
@@ -246,7 +266,73 @@ impl Figure {
 
     /// Whether the figure depends on a time (`mean(x, 1 year)`).
     pub fn takes_time(self) -> bool {
-        matches!(self, Figure::Mean | Figure::Variance | Figure::Sd)
+        !matches!(
+            self,
+            Figure::Halflife
+                | Figure::StationaryMean
+                | Figure::StationaryVariance
+                | Figure::StationarySd
+        )
+    }
+
+    /// Whether the figure belongs to the curve of the `discount` rate rather than to a
+    /// factor (`price`, `yield`, `forward`).
+    pub fn on_curve(self) -> bool {
+        matches!(self, Figure::Price | Figure::Yield | Figure::Forward)
+    }
+
+    /// The arguments as the reader writes them, for help texts.
+    pub fn form(self) -> &'static str {
+        match self {
+            Figure::Mean => "mean(FACTOR[, TIME])",
+            Figure::Variance => "variance(FACTOR[, TIME])",
+            Figure::Sd => "sd(FACTOR[, TIME])",
+            Figure::Halflife => "halflife(FACTOR)",
+            Figure::StationaryMean => "stationary_mean(FACTOR)",
+            Figure::StationaryVariance => "stationary_variance(FACTOR)",
+            Figure::StationarySd => "stationary_sd(FACTOR)",
+            Figure::Prob => "prob(FACTOR < LEVEL[, TIME]) or prob(FACTOR > LEVEL[, TIME])",
+            Figure::Quantile => "quantile(FACTOR, PROBABILITY[, TIME])",
+            Figure::Price => "price(MATURITY)",
+            Figure::Yield => "yield(MATURITY)",
+            Figure::Forward => "forward(MATURITY)",
+        }
+    }
+
+    /// One line on what the figure is, for hover and completion.
+    pub fn meaning(self) -> &'static str {
+        match self {
+            Figure::Mean => "the mean of a factor at a time (the horizon by default)",
+            Figure::Variance => "the variance of a factor at a time",
+            Figure::Sd => "the standard deviation of a factor at a time",
+            Figure::Halflife => "the time for the expected distance to the level to halve",
+            Figure::StationaryMean => "the mean of the stationary law",
+            Figure::StationaryVariance => "the variance of the stationary law",
+            Figure::StationarySd => "the standard deviation of the stationary law",
+            Figure::Prob => "the probability that a factor is below (or above) a level at a time",
+            Figure::Quantile => {
+                "the level a factor stays below with the given probability at a time"
+            }
+            Figure::Price => "the zero-coupon bond price P(0, T) of the `discount` rate",
+            Figure::Yield => "the continuously compounded zero yield to T, per year",
+            Figure::Forward => "the instantaneous forward rate at T, per year",
+        }
+    }
+}
+
+/// The side of the level in `prob(X < Q, T)`.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Side {
+    Below,
+    Above,
+}
+
+impl Side {
+    pub fn symbol(self) -> &'static str {
+        match self {
+            Side::Below => "<",
+            Side::Above => ">",
+        }
     }
 }
 
@@ -284,12 +370,18 @@ pub enum Condition {
     },
 }
 
-/// `expect FIGURE(STATE[, TIME]) CONDITION`.
+/// `expect FIGURE(ARGS) CONDITION`.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Expectation {
     pub figure: Figure,
     pub figure_span: Span,
-    pub state: Ident,
+    /// The factor; `None` for the figures of the curve (`price`, `yield`, `forward`).
+    pub state: Option<Ident>,
+    /// `prob`: which side of the level.
+    pub side: Option<Side>,
+    /// `prob`: the level Q (in the factor's units); `quantile`: the probability P.
+    pub level: Option<Quantity>,
+    /// The time of the figure (the maturity of a curve figure).
     pub at: Option<Quantity>,
     pub condition: Condition,
 }

@@ -330,6 +330,8 @@ fn describe_rule(rule: Rule) -> Option<&'static str> {
         Rule::close_end => "`]` or `)`",
         Rule::bound_value | Rule::infinity => "a number or `inf`",
         Rule::condition => "a condition such as `< 6 month` or `in [a, b]`",
+        Rule::threshold => "a comparison of a factor with a level, e.g. `r < 0`",
+        Rule::side_op => "`<` or `>`",
         Rule::differential => "`dNAME`",
         Rule::eq_terms | Rule::eq_term => "a term such as `kappa * x dt` or `vol dW`",
         Rule::integer | Rule::natural | Rule::unit_exponent => "an integer exponent",
@@ -387,6 +389,24 @@ fn describe_found(src: &str, pos: usize) -> (String, usize) {
     (format!("`{c}`"), c.len_utf8())
 }
 
+/// An `expect` line pinning `figure`, for help texts.
+fn example(figure: Figure) -> &'static str {
+    match figure {
+        Figure::Mean => "expect mean(r, 1 year) in [2.9%, 3.3%]",
+        Figure::Variance => "expect variance(r, 1 year) < 1e-4",
+        Figure::Sd => "expect sd(r, 1 year) < 1%",
+        Figure::Halflife => "expect halflife(r) in [6 month, 2 year]",
+        Figure::StationaryMean => "expect stationary_mean(r) in [2%, 4%]",
+        Figure::StationaryVariance => "expect stationary_variance(r) < 1e-4",
+        Figure::StationarySd => "expect stationary_sd(r) < 1%",
+        Figure::Prob => "expect prob(r < 0, 1 year) < 2%",
+        Figure::Quantile => "expect quantile(r, 99%, 6 month) < 6%",
+        Figure::Price => "expect price(10 year) > 0.7",
+        Figure::Yield => "expect yield(10 year) in [2.5%, 4.5%]",
+        Figure::Forward => "expect forward(5 year) < 6%",
+    }
+}
+
 /// The shape of a statement, for the help line of a syntax error.
 fn statement_help(src: &str) -> Option<&'static str> {
     let word: String = src.chars().take_while(|&c| is_ident_char(c)).collect();
@@ -402,7 +422,7 @@ fn statement_help(src: &str) -> Option<&'static str> {
         "let" => "a named expression is `let NAME = EXPR`",
         "measure" => "the measure is `measure risk-neutral` or `measure real-world`",
         "discount" => "the short rate is `discount EXPR`, affine in the factors, e.g. `discount r` or `discount x + y + phi`",
-        "expect" => "an expectation is `expect FIGURE(STATE[, TIME]) CONDITION`, e.g. `expect mean(r, 1 year) in [2.9%, 3.3%]`",
+        "expect" => "an expectation is `expect FIGURE(ARGS) CONDITION`, e.g. `expect mean(r, 1 year) in [2.9%, 3.3%]`, `expect prob(r < 0, 1 year) < 2%`, `expect yield(10 year) in [2.5%, 4.5%]`",
         w if w.starts_with('d') && w.len() > 1 => {
             "an equation is `dX = DRIFT dt + VOL dW`, e.g. `dr = kappa * (level - r) dt + vol * sqrt(r) dW`"
         }
@@ -564,44 +584,19 @@ impl Builder {
             }
             Rule::expect_stmt => {
                 let figure_pair = next()?;
-                let figure_span = self.span(&figure_pair);
-                let figure = Figure::from_keyword(figure_pair.as_str()).ok_or_else(|| {
-                    syntax_error(
-                        figure_span.clone(),
-                        format!("`{}` is not a figure that can be pinned", figure_pair.as_str()),
-                    )
-                    .with_help("the figures are mean, variance, sd, halflife, stationary_mean, stationary_variance and stationary_sd")
-                })?;
-                let state = self.ident(&next()?);
-                let mut at = None;
-                let mut condition_pair = next()?;
-                if condition_pair.as_rule() == Rule::quantity {
-                    let q = self.quantity(condition_pair)?;
-                    if !figure.takes_time() {
-                        return Err(syntax_error(
-                            q.span.clone(),
-                            format!(
-                                "`{}` does not depend on time and takes no time argument",
-                                figure.keyword()
-                            ),
-                        )
-                        .with_help(format!(
-                            "write `{}({})`",
-                            figure.keyword(),
-                            state.name
-                        )));
-                    }
-                    at = Some(q);
-                    condition_pair = next()?;
+                let mut rest: Vec<Pair<Rule>> = Vec::new();
+                while let Ok(p) = next() {
+                    rest.push(p);
                 }
+                let condition_pair = rest
+                    .pop()
+                    .ok_or_else(|| syntax_error(span.clone(), "a condition is expected"))?;
+                let args_span = match (rest.first(), rest.last()) {
+                    (Some(first), Some(last)) => self.span(first).start..self.span(last).end,
+                    _ => span.clone(),
+                };
                 let condition = self.condition(condition_pair)?;
-                StatementKind::Expect(Expectation {
-                    figure,
-                    figure_span,
-                    state,
-                    at,
-                    condition,
-                })
+                StatementKind::Expect(self.expectation(figure_pair, rest, args_span, condition)?)
             }
             Rule::equation => {
                 let lhs_pair = next()?;
@@ -934,6 +929,139 @@ impl Builder {
             }
             _ => self.signed_number(inner).map(Some),
         }
+    }
+
+    /// The figure and arguments of an `expect` line. Each figure takes its own arguments
+    /// (see [`Figure::form`]).
+    fn expectation(
+        &mut self,
+        figure_pair: Pair<Rule>,
+        args: Vec<Pair<Rule>>,
+        args_span: Span,
+        condition: Condition,
+    ) -> Result<Expectation> {
+        let figure_span = self.span(&figure_pair);
+        let figure = Figure::from_keyword(figure_pair.as_str()).ok_or_else(|| {
+            syntax_error(
+                figure_span.clone(),
+                format!(
+                    "`{}` is not a figure that can be pinned",
+                    figure_pair.as_str()
+                ),
+            )
+            .with_help(
+                "the figures are mean, variance, sd, halflife, stationary_mean, \
+                 stationary_variance, stationary_sd, prob, quantile, price, yield and forward",
+            )
+        })?;
+        let shape = |what: String| {
+            syntax_error(args_span.clone(), what).with_help(format!(
+                "write `{}`, e.g. `{}`",
+                figure.form(),
+                example(figure)
+            ))
+        };
+        let mut x = Expectation {
+            figure,
+            figure_span,
+            state: None,
+            side: None,
+            level: None,
+            at: None,
+            condition,
+        };
+        let rules: Vec<Rule> = args.iter().map(Pair::as_rule).collect();
+        let mut args = args.into_iter();
+        match (figure, rules.as_slice()) {
+            (Figure::Prob, [Rule::threshold] | [Rule::threshold, Rule::quantity]) => {
+                let threshold = args.next().map(Pair::into_inner);
+                let mut parts = threshold.into_iter().flatten();
+                let (Some(name), Some(op), Some(level)) =
+                    (parts.next(), parts.next(), parts.next())
+                else {
+                    return Err(shape(
+                        "a factor, `<` or `>` and a level are expected".into(),
+                    ));
+                };
+                x.state = Some(self.ident(&name));
+                x.side = Some(match op.as_str() {
+                    "<" => crate::ast::Side::Below,
+                    ">" => crate::ast::Side::Above,
+                    other => {
+                        return Err(syntax_error(
+                            self.span(&op),
+                            format!("`{other}` is not taken in `prob`"),
+                        )
+                        .with_help(format!(
+                            "the laws are continuous, so the probability is the same with `{}`; write that",
+                            &other[..1]
+                        )))
+                    }
+                });
+                x.level = Some(self.quantity(level)?);
+            }
+            (Figure::Prob, _) => {
+                return Err(shape(
+                    "`prob` takes a comparison of a factor with a level, then an optional time"
+                        .into(),
+                ))
+            }
+            (
+                Figure::Quantile,
+                [Rule::name, Rule::quantity] | [Rule::name, Rule::quantity, Rule::quantity],
+            ) => {
+                if let Some(name) = args.next() {
+                    x.state = Some(self.ident(&name));
+                }
+                if let Some(p) = args.next() {
+                    x.level = Some(self.quantity(p)?);
+                }
+            }
+            (Figure::Quantile, _) => {
+                return Err(shape(
+                    "`quantile` takes a factor, a probability and an optional time".into(),
+                ))
+            }
+            (Figure::Price | Figure::Yield | Figure::Forward, [Rule::quantity]) => {}
+            (Figure::Price | Figure::Yield | Figure::Forward, _) => {
+                return Err(shape(format!(
+                    "`{}` belongs to the curve of the `discount` rate and takes one maturity",
+                    figure.keyword()
+                )))
+            }
+            (_, [Rule::name] | [Rule::name, Rule::quantity]) => {
+                if let Some(name) = args.next() {
+                    x.state = Some(self.ident(&name));
+                }
+            }
+            (_, _) => {
+                return Err(shape(format!(
+                    "`{}` takes a factor{}",
+                    figure.keyword(),
+                    if figure.takes_time() {
+                        " and an optional time"
+                    } else {
+                        ""
+                    }
+                )))
+            }
+        }
+        if let Some(q) = args.next() {
+            let q = self.quantity(q)?;
+            if !figure.takes_time() {
+                let state = x.state.as_ref().map_or("", |s| s.name.as_str());
+                return Err(syntax_error(
+                    q.span.clone(),
+                    format!(
+                        "`{}` does not depend on time and takes no time argument",
+                        figure.keyword()
+                    ),
+                )
+                .with_help(format!("write `{}({state})`", figure.keyword())));
+            }
+            x.at = Some(q);
+        }
+        Ok(x)
     }
 
     fn condition(&mut self, pair: Pair<Rule>) -> Result<Condition> {
