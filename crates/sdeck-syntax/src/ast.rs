@@ -415,7 +415,7 @@ pub enum StatementKind {
         value: Expr,
     },
     Equation(Equation),
-    Expect(Expectation),
+    Expect(Box<Expectation>),
     /// `measure risk-neutral` or `measure real-world`.
     Measure {
         name: Ident,

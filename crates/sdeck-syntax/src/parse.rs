@@ -596,7 +596,12 @@ impl Builder {
                     _ => span.clone(),
                 };
                 let condition = self.condition(condition_pair)?;
-                StatementKind::Expect(self.expectation(figure_pair, rest, args_span, condition)?)
+                StatementKind::Expect(Box::new(self.expectation(
+                    figure_pair,
+                    rest,
+                    args_span,
+                    condition,
+                )?))
             }
             Rule::equation => {
                 let lhs_pair = next()?;
