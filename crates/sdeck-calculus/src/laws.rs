@@ -82,6 +82,13 @@ pub fn law_of(model: &Model, derivation: &Derivation, state: usize, t: f64) -> O
         return None;
     }
     let x0 = model.factors.get(state)?.initial;
+    if derivation
+        .states
+        .get(state)
+        .is_some_and(|l| l.outside_domain.is_some())
+    {
+        return None;
+    }
     if t == 0.0 {
         return Some(Law {
             kind: LawKind::Normal,

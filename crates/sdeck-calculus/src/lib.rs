@@ -162,6 +162,10 @@ pub struct StateLaw {
     pub square_root: Option<SquareRootParams>,
     /// States that appear in this state's drift or diffusion (besides itself).
     pub depends_on: Vec<usize>,
+    /// Why the family's figures do not apply to this factor, when its start or
+    /// parameters lie outside the family's domain (a square-root factor starting below
+    /// zero): its mean, variance and law are then unknown, never a number.
+    pub outside_domain: Option<String>,
 }
 
 impl StateLaw {
@@ -349,7 +353,53 @@ pub fn derive(model: &Model) -> Derivation {
     let analysis = Arc::new(analyse(model));
     let mut derivation = system::derive(model, analysis);
     exponential_affine::classify(model, &mut derivation);
+    for (i, law) in derivation.states.iter_mut().enumerate() {
+        law.outside_domain = outside_domain(model, law, i);
+        if law.outside_domain.is_some() {
+            law.stationary = None;
+            law.half_life = None;
+        }
+    }
     derivation
+}
+
+/// Why a factor lies outside its family's domain, if it does. A square-root factor
+/// dX = κ(θ − X) dt + σ√X dW is defined for X ≥ 0 with κθ ≥ 0: its law is a scaled
+/// noncentral chi-square with 4κθ/σ² degrees of freedom (Cox, Ingersoll & Ross 1985,
+/// eq. 18), which needs a start at or above zero and degrees of freedom at or above zero.
+fn outside_domain(model: &Model, law: &StateLaw, state: usize) -> Option<String> {
+    if law.family != Family::SquareRoot {
+        return None;
+    }
+    let sr = law.square_root.as_ref()?;
+    let factor = model.factors.get(state)?;
+    let shown = |x: f64| sdeck_units::number::plain(x);
+    if factor.initial < 0.0 {
+        return Some(format!(
+            "a square-root factor is defined only from a start at or above zero, and {} starts at {}",
+            factor.name,
+            shown(factor.initial)
+        ));
+    }
+    let dof = 4.0 * sr.speed * sr.level / (sr.vol * sr.vol);
+    if dof < 0.0 {
+        return Some(format!(
+            "the degrees of freedom of {}'s noncentral chi-square law, 4·κθ/σ² = {}, are negative",
+            factor.name,
+            shown(dof)
+        ));
+    }
+    None
+}
+
+impl Derivation {
+    /// Whether the figures of `state` are unknown because it lies outside its family's
+    /// domain.
+    fn outside_domain(&self, state: usize) -> bool {
+        self.states
+            .get(state)
+            .is_some_and(|law| law.outside_domain.is_some())
+    }
 }
 
 /// Readable math (Unicode, the model's own names) for one state; empty when the state
@@ -382,6 +432,13 @@ impl Derivation {
 /// decoupled state (a few operations, whatever the size of the model), the engine of
 /// the system for a coupled one.
 pub fn state_moments(model: &Model, derivation: &Derivation, state: usize, t: f64) -> StateMoments {
+    if derivation.outside_domain(state) {
+        return StateMoments {
+            mean: None,
+            variance: None,
+            method: Method::None,
+        };
+    }
     let exponential = derivation
         .states
         .get(state)
@@ -401,6 +458,9 @@ pub fn covariance(
     j: usize,
     t: f64,
 ) -> Option<f64> {
+    if derivation.outside_domain(i) || derivation.outside_domain(j) {
+        return None;
+    }
     system::covariance(model, derivation.analysis(), i, j, t)
 }
 
@@ -410,6 +470,27 @@ pub fn covariance(
 pub fn moments_at(model: &Model, derivation: &Derivation, t: f64) -> Moments {
     let mut moments = system::moments_at(model, derivation.analysis(), t);
     exponential_affine::fill_moments(model, derivation, &mut moments);
+    // Figures of a factor outside its family's domain are unknown, not numbers.
+    for i in (0..derivation.states.len()).filter(|i| derivation.outside_domain(*i)) {
+        for slot in [&mut moments.mean, &mut moments.variance] {
+            if let Some(x) = slot.get_mut(i) {
+                *x = None;
+            }
+        }
+        if let Some(x) = moments.exact.get_mut(i) {
+            *x = false;
+        }
+        if let Some(m) = moments.method.get_mut(i) {
+            *m = Method::None;
+        }
+        for (j, row) in moments.covariance.iter_mut().enumerate() {
+            for (k, cell) in row.iter_mut().enumerate() {
+                if j == i || k == i {
+                    *cell = None;
+                }
+            }
+        }
+    }
     moments
 }
 
@@ -421,6 +502,9 @@ pub fn autocovariance(
     s: f64,
     t: f64,
 ) -> Option<f64> {
+    if derivation.outside_domain(state) {
+        return None;
+    }
     system::autocovariance(model, derivation, state, s, t)
 }
 
@@ -433,6 +517,9 @@ pub fn quantile(
     t: f64,
     p: f64,
 ) -> Option<f64> {
+    if derivation.outside_domain(state) {
+        return None;
+    }
     system::quantile(model, derivation.analysis(), state, t, p)
 }
 

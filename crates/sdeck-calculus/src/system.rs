@@ -120,6 +120,7 @@ pub(crate) fn derive(model: &Model, prepared: Arc<Analysis>) -> Derivation {
             linear: None,
             square_root: None,
             depends_on: classified.depends_on.clone(),
+            outside_domain: None,
         });
     }
     let blocks = coupled_blocks(model, analysis);
@@ -352,6 +353,7 @@ fn one_state_law(
         linear,
         square_root,
         depends_on: Vec::new(),
+        outside_domain: None,
     }
 }
 

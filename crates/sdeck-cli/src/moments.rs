@@ -39,10 +39,11 @@ pub struct MomentsArgs {
 /// A number as the language writes it: `0.5`, `2%`, `25bp`.
 fn parse_level(text: &str) -> Option<f64> {
     let t = text.trim();
-    let (number, scale) = if let Some(n) = t.strip_suffix('%') {
-        (n, 0.01)
+    // Divided, not multiplied by 0.01: 95% is then exactly 0.95.
+    let (number, divisor) = if let Some(n) = t.strip_suffix('%') {
+        (n, 100.0)
     } else if let Some(n) = t.strip_suffix("bp") {
-        (n, 1e-4)
+        (n, 10_000.0)
     } else {
         (t, 1.0)
     };
@@ -50,7 +51,7 @@ fn parse_level(text: &str) -> Option<f64> {
         .trim()
         .parse::<f64>()
         .ok()
-        .map(|v| v * scale)
+        .map(|v| v / divisor)
         .filter(|v| v.is_finite())
 }
 

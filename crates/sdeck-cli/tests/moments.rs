@@ -74,7 +74,10 @@ fn json_has_exactly_the_documented_shape() {
                 "law",
                 "quantiles",
                 "below",
+                "halflife",
+                "stationary",
                 "exact",
+                "outside_domain",
                 "formulas"
             ]
         );
@@ -110,7 +113,16 @@ fn an_ornstein_uhlenbeck_state_matches_vasicek() {
     assert_eq!(json["factors"][0]["family"], "ornstein-uhlenbeck");
     assert!((json["factors"][0]["mean"].as_f64().unwrap_or(0.0) - mean).abs() < 1e-15);
     assert!((json["factors"][0]["variance"].as_f64().unwrap_or(0.0) - var).abs() < 1e-17);
-    assert_eq!(json["factors"][0]["exact"], true);
+    for figure in ["mean", "variance", "sd", "quantiles", "below"] {
+        assert_eq!(json["factors"][0]["exact"][figure], true, "{figure}");
+    }
+    // ln 2/κ; Normal(θ, σ²/(2κ)) (Vasicek 1977).
+    let halflife = json["factors"][0]["halflife"].as_f64().unwrap();
+    assert!((halflife - std::f64::consts::LN_2 / kappa).abs() < 1e-15);
+    let stationary = &json["factors"][0]["stationary"];
+    assert_eq!(stationary["mean"].as_f64(), Some(theta));
+    let v = stationary["variance"].as_f64().unwrap();
+    assert!((v - sigma * sigma / (2.0 * kappa)).abs() < 1e-18, "{v}");
 }
 
 #[test]
@@ -165,7 +177,8 @@ fn figures_that_are_not_known_are_null() {
     assert!(!general.is_empty());
     for s in general {
         assert!(s["mean"].is_null() && s["variance"].is_null());
-        assert_eq!(s["exact"], false);
+        assert_eq!(s["exact"]["mean"], false);
+        assert_eq!(s["exact"]["variance"], false);
     }
 }
 
@@ -264,5 +277,62 @@ fn bad_quantile_and_below_options_are_refused() {
         let (code, _, stderr) = moments(&[model, option, value]);
         assert_eq!(code, Some(2), "{option} {value}");
         assert!(stderr.contains(says), "{stderr}");
+    }
+}
+
+#[test]
+fn text_and_json_carry_the_same_figures() {
+    let (code, json, _) = moments(&["demo-models/ou_short_rate.sde", "--format", "json"]);
+    assert_eq!(code, Some(0));
+    let (_, text, _) = moments_text(&["demo-models/ou_short_rate.sde"]);
+    let f = &json["factors"][0];
+    let shown = |x: &Value| sdeck_units::number::plain(x.as_f64().unwrap());
+    for (label, value) in [("sd        = ", &f["sd"]), ("half-life = ", &f["halflife"])] {
+        assert!(
+            text.contains(&format!("{label}{}", shown(value))),
+            "{label}: {text}"
+        );
+    }
+    let st = &f["stationary"];
+    assert!(
+        text.contains(&format!(
+            "(mean {}, variance {}, sd ",
+            shown(&st["mean"]),
+            shown(&st["variance"])
+        )),
+        "{text}"
+    );
+    assert!(text.contains(st["law"].as_str().unwrap()), "{text}");
+    assert!(text.contains("exact     = all figures"), "{text}");
+}
+
+#[test]
+fn figures_outside_a_family_domain_are_null_with_the_reason() {
+    let dir = tempfile::tempdir().unwrap_or_else(|e| panic!("{e}"));
+    let body = |start: &str, level: &str| {
+        format!(
+            "param kappa = 0.5 [1/year] > 0\nparam level = {level}\n\
+             param vol = 10% [1/sqrt(year)] > 0\nshock W\nfactor r = {start}\n\
+             dr = kappa * (level - r) dt + vol * sqrt(r) dW\n"
+        )
+    };
+    for (name, start, level, reason) in [
+        ("below.sde", "-1%", "2%", "starts at -0.01"),
+        ("dof.sde", "1%", "-2%", "4·κθ/σ² = -4, are negative"),
+    ] {
+        let file = write_model(&dir, name, &body(start, level));
+        let (code, json, stderr) = moments(&[&file, "--format", "json"]);
+        assert_eq!(code, Some(0), "{stderr}");
+        let f = &json["factors"][0];
+        assert_eq!(f["family"], "square-root");
+        for figure in ["mean", "variance", "sd", "law", "stationary", "halflife"] {
+            assert!(f[figure].is_null(), "{name}: {figure} = {}", f[figure]);
+        }
+        assert!(f["quantiles"][0]["value"].is_null());
+        let why = f["outside_domain"].as_str().unwrap_or_default();
+        assert!(why.contains(reason), "{name}: {why}");
+        let (_, text, _) = moments_text(&[&file]);
+        assert!(text.contains("not defined: "), "{text}");
+        assert!(text.contains("Var[r(t)] = not known"), "{text}");
     }
 }

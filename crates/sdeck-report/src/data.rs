@@ -60,6 +60,19 @@ pub struct Figures {
     /// The probability that the factor's sign at `at` differs from its sign at 0, when
     /// its law is Gaussian (a law that allows a sign change) and it starts away from 0.
     pub sign_change: Option<f64>,
+    /// Which of these figures are exact (closed form or exact moment equations).
+    pub exact: Exactness,
+}
+
+/// Per figure, whether it is exact: from a closed form or exact moment equations, not
+/// from a numerical inversion or an approximation. An unknown figure is not exact.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub struct Exactness {
+    pub mean: bool,
+    pub variance: bool,
+    /// The quantiles and the probabilities below levels: exact for a law in closed form
+    /// (normal, lognormal, noncentral chi-square), not for a Fourier inversion.
+    pub law: bool,
 }
 
 impl Figures {
@@ -103,6 +116,9 @@ pub struct FactorReport {
     pub formulas: Formulas,
     /// Whether the figures are exact (closed form or exact moment equations).
     pub exact: bool,
+    /// Why the family's figures do not apply (a start or parameters outside its
+    /// domain); the figures are then unknown.
+    pub outside_domain: Option<String>,
     /// Clock units.
     pub half_life: Option<f64>,
     pub stationary: Option<StationaryLaw>,
@@ -214,7 +230,14 @@ pub fn figures_with(
                 let p = if start > 0.0 { below } else { 1.0 - below };
                 (law.kind() == LawKind::Normal || p > 0.0).then_some(p)
             });
+            let exact_moments = moments.exact.get(i).copied().unwrap_or(false);
+            let exact = Exactness {
+                mean: exact_moments && mean.is_some(),
+                variance: exact_moments && variance.is_some(),
+                law: exact_moments && law.as_ref().is_some_and(|l| l.kind() != LawKind::Fourier),
+            };
             Figures {
+                exact,
                 at: t,
                 mean,
                 variance,
@@ -330,6 +353,7 @@ impl ModelReport {
                     method: law.method,
                     formulas: sdeck_calculus::formulas(model, derivation, i),
                     exact: moments.exact.get(i).copied().unwrap_or(false),
+                    outside_domain: law.outside_domain.clone(),
                     half_life: law.half_life,
                     stationary: law.stationary.as_ref().map(|s| StationaryLaw {
                         law: s.law.clone(),

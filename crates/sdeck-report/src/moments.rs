@@ -29,7 +29,20 @@ pub fn moments_json(report: &ModelReport) -> Value {
                 "law": g.law,
                 "quantiles": g.quantiles.iter().map(|q| json!({"p": q.probability, "value": num(q.value)})).collect::<Vec<_>>(),
                 "below": g.below.iter().map(|b| json!({"value": b.level, "probability": num(b.probability)})).collect::<Vec<_>>(),
-                "exact": f.exact,
+                "halflife": num(f.half_life),
+                "stationary": f.stationary.as_ref().map(|st| json!({
+                    "law": st.law,
+                    "mean": num(Some(st.mean)),
+                    "variance": num(Some(st.variance)),
+                })),
+                "exact": {
+                    "mean": g.exact.mean,
+                    "variance": g.exact.variance,
+                    "sd": g.exact.variance,
+                    "quantiles": g.exact.law,
+                    "below": g.exact.law,
+                },
+                "outside_domain": f.outside_domain,
                 "formulas": {
                     "solution": f.formulas.solution,
                     "mean": f.formulas.mean,
@@ -52,6 +65,29 @@ pub fn moments_json(report: &ModelReport) -> Value {
     })
 }
 
+/// Which figures are exact, in words: `all figures`, `none`, or the exact ones named.
+fn exactness_text(fig: &crate::data::Figures) -> String {
+    let e = fig.exact;
+    // (known, exact, name)
+    let figures = [
+        (fig.mean.is_some(), e.mean, "mean"),
+        (fig.variance.is_some(), e.variance, "variance, sd"),
+        (fig.quantiles_known(), e.law, "quantiles"),
+    ];
+    let exact: Vec<&str> = figures
+        .iter()
+        .filter(|(_, exact, _)| *exact)
+        .map(|(_, _, name)| *name)
+        .collect();
+    if exact.is_empty() {
+        "none".to_string()
+    } else if figures.iter().all(|(known, exact, _)| *exact || !*known) {
+        "all figures".to_string()
+    } else {
+        exact.join(", ")
+    }
+}
+
 /// The text of `sdeck moments`, ending with `caution`.
 pub fn moments_text(report: &ModelReport, caution: &str) -> String {
     let clock = &report.clock;
@@ -70,6 +106,9 @@ pub fn moments_text(report: &ModelReport, caution: &str) -> String {
             s.push_str(&format!("  {label:<11} {text}\n"));
         }
         let fig = &f.figures;
+        if let Some(why) = &f.outside_domain {
+            s.push_str(&format!("  not defined: {why}\n"));
+        }
         s.push_str(&format!(
             "  E[{}(t)]   = {}\n",
             f.name,
@@ -119,12 +158,14 @@ pub fn moments_text(report: &ModelReport, caution: &str) -> String {
         }
         if let Some(st) = &f.stationary {
             s.push_str(&format!(
-                "  stationary: {} (mean {}, sd {})\n",
+                "  stationary: {} (mean {}, variance {}, sd {})\n",
                 st.law,
                 plain(st.mean),
+                plain(st.variance),
                 plain(st.sd)
             ));
         }
+        s.push_str(&format!("  exact     = {}\n", exactness_text(fig)));
     }
     if report.factors.len() > 1 {
         s.push_str("\ncovariance at t:\n");
