@@ -86,6 +86,13 @@ def two_thousand_lines() -> str:
     return "\n".join(lines[:2000]) + "\n"
 
 
+def param_lines(count: int) -> str:
+    """`count` plain `param` lines: the input of the memory-per-byte figure."""
+    lines = ["model harrowgate_parameters", "clock year"]
+    lines += [f"param p{i} = {i % 97 + 0.25} [1/year] > 0  # desk input {i}" for i in range(count)]
+    return "\n".join(lines) + "\n"
+
+
 def measure(binary: str, path: pathlib.Path, runs: int) -> tuple[float, float, float, float, str]:
     # Each measurement in its own child process, so ru_maxrss is the model's own.
     code = (
@@ -123,6 +130,9 @@ def main() -> int:
     parser.add_argument("--write", help="only write a model to this path")
     parser.add_argument("--factors", type=int, default=270)
     parser.add_argument("--two-thousand", action="store_true", help="with --write: the 2,000-line model")
+    parser.add_argument(
+        "--params", type=int, nargs="*", default=[100_000], help="param-line counts for the memory per input byte"
+    )
     args = parser.parse_args()
     if args.write:
         text = two_thousand_lines() if args.two_thousand else shared_shock_model(args.factors)
@@ -146,6 +156,26 @@ def main() -> int:
             if "expectation-failed" in rules:
                 print("error: an expectation failed; the figures are wrong", file=sys.stderr)
                 return 1
+
+        # Resident memory per byte of input: peak RSS of `sdeck check` on files of plain
+        # `param` lines, whole and less that of an empty model (the program itself).
+        print()
+        print("| input | bytes | peak RSS MiB | RSS bytes per input byte | net of an empty model |")
+        print("|---|---:|---:|---:|---:|")
+        empty = pathlib.Path(folder) / "empty.sde"
+        empty.write_text("model harrowgate_parameters\nclock year\n")
+        base = measure(args.binary, empty, 1)[3]
+        for count in args.params:
+            path = pathlib.Path(folder) / "params.sde"
+            text = param_lines(count)
+            path.write_text(text)
+            rss = measure(args.binary, path, 1)[3]
+            size = len(text.encode())
+            print(
+                f"| {count:,} param lines | {size:,} | {rss:.1f} | {rss * 2**20 / size:.0f} "
+                f"| {(rss - base) * 2**20 / size:.0f} |",
+                flush=True,
+            )
     return 0
 
 

@@ -1,5 +1,6 @@
-"""Benchmark of `sdeck lsp` (not a test): hover latency, edit-to-diagnostics latency and
-resident memory after many edits, on a generated 2,000-line model.
+"""Benchmark of `sdeck lsp` (not a test): hover, inlay hint and completion latency, a
+burst of typing to its final diagnostics, resident memory and threads after many edits,
+on the 2,000-line model of bench/scale_check.py (270 factors, 180 expectations).
 
     python3 tests/lsp/bench_lsp.py [--binary target/release/sdeck] [--edits 10000]
 
@@ -11,54 +12,17 @@ server is a child process on this machine and nothing touches the network.
 from __future__ import annotations
 
 import argparse
+import importlib.util
 import json
 import pathlib
 import queue
 import random
-import statistics
 import subprocess
 import sys
 import threading
 import time
 
 ROOT = pathlib.Path(__file__).resolve().parents[2]
-
-
-def book_model(lines_wanted: int = 2000) -> str:
-    """A model of the (fictional) Quillmere Credit Fund's book: ten Ornstein-Uhlenbeck
-    spreads, each with parameters, a long chain of named expressions and notes, padded to
-    exactly `lines_wanted` lines with comments. (Ten factors, not hundreds: the calculus
-    solves the system's covariance as one dense linear system.)"""
-    head = [
-        "# Benchmark model: Ornstein-Uhlenbeck spreads of the (fictional) Quillmere",
-        "# Credit Fund's book, each with its parameters, named expressions and notes.",
-        "model quillmere_book",
-        "clock year",
-        "horizon 1 year",
-        "",
-    ]
-    blocks: list[str] = []
-    i = 0
-    while True:
-        i += 1
-        block = [f"# Spread {i}: issuer {i} of the fund's book (fictional)."]
-        block += [f"# note {j} on spread {i}: calibrated on the desk's history" for j in range(60)]
-        block += [
-            f"param k{i} = {1 + i % 7}.5 [1/year] > 0   # speed of spread {i}",
-            f"param s{i} = {1 + i % 5}bp [1/sqrt(day)] > 0  # volatility of spread {i}",
-            f"param m{i} = {i % 9 + 1}0bp >= 0  # level of spread {i}",
-            f"shock W{i}  # shock to spread {i}",
-            f"factor x{i} = {i % 9}0bp  # spread {i} today",
-            f"let a{i}_0 = k{i}",
-        ]
-        block += [f"let a{i}_{j} = a{i}_{j - 1} * 1" for j in range(1, 120)]
-        block += [f"dx{i} = a{i}_119 * (m{i} - x{i}) dt + s{i} dW{i}", ""]
-        if len(head) + len(blocks) + len(block) > lines_wanted:
-            break
-        blocks += block
-    lines = head + blocks
-    lines += [f"# padding {k}" for k in range(lines_wanted - len(lines))]
-    return "\n".join(lines) + "\n"
 
 
 class Server:
@@ -106,6 +70,12 @@ class Server:
             if predicate(message):
                 return at, message
 
+    def threads(self) -> int:
+        for line in pathlib.Path(f"/proc/{self.process.pid}/status").read_text().splitlines():
+            if line.startswith("Threads:"):
+                return int(line.split()[1])
+        return -1
+
     def rss_kib(self) -> int:
         for line in pathlib.Path(f"/proc/{self.process.pid}/status").read_text().splitlines():
             if line.startswith("VmRSS:"):
@@ -127,54 +97,82 @@ def percentile(values: list[float], p: float) -> float:
     return ordered[k]
 
 
+def scale_model() -> str:
+    """The 2,000-line model of bench/scale_check.py: 270 factors, 180 expectations."""
+    spec = importlib.util.spec_from_file_location("scale_check", ROOT / "bench" / "scale_check.py")
+    module = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(module)
+    return module.two_thousand_lines()
+
+
 def main() -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     default = ROOT / "target" / "release" / "sdeck"
     if not default.exists():
         default = ROOT / "target" / "debug" / "sdeck"
     parser.add_argument("--binary", default=str(default))
-    parser.add_argument("--hovers", type=int, default=300)
-    parser.add_argument("--timed-edits", type=int, default=100)
+    parser.add_argument("--requests", type=int, default=300)
+    parser.add_argument("--burst", type=int, default=45)
     parser.add_argument("--edits", type=int, default=10_000)
     args = parser.parse_args()
 
-    text = book_model()
+    text = scale_model()
     lines = text.split("\n")
-    uri = "file:///tmp/sdeck-bench/quillmere_book.sde"
+    uri = "file:///tmp/sdeck-bench/harrowgate_spreads.sde"
     server = Server(args.binary)
     server.request("initialize", {"capabilities": {}, "processId": None, "rootUri": None})
     server.notify("initialized", {})
     rss_start = server.rss_kib()
+    opened = time.perf_counter()
     server.notify(
         "textDocument/didOpen",
         {"textDocument": {"uri": uri, "languageId": "sdeck", "version": 1, "text": text}},
     )
-    server.wait(lambda m: m.get("method") == "textDocument/publishDiagnostics" and m["params"].get("version") == 1)
+    at, _ = server.wait(lambda m: m.get("method") == "textDocument/publishDiagnostics" and m["params"].get("version") == 1)
+    open_ms = (at - opened) * 1000
 
-    # Hover on factors (the heaviest hover: family, formulas, figures at the horizon).
     rng = random.Random(7)
     equation_lines = [k for k, line in enumerate(lines) if line.startswith("dx")]
-    hover_ms = []
-    for _ in range(args.hovers):
-        line = rng.choice(equation_lines)
-        start = time.perf_counter()
-        _, answer = server.request(
-            "textDocument/hover",
-            {"textDocument": {"uri": uri}, "position": {"line": line, "character": 1}},
-        )
-        hover_ms.append((time.perf_counter() - start) * 1000)
-        assert "result" in answer and answer["result"], answer
 
-    # Edit to diagnostics: change a parameter's value, wait for that version's diagnostics.
-    param_lines = [k for k, line in enumerate(lines) if line.startswith("param k")]
+    def timed(method: str, params_of) -> list[float]:
+        out = []
+        for _ in range(args.requests):
+            params = params_of()
+            start = time.perf_counter()
+            _, answer = server.request(method, params)
+            out.append((time.perf_counter() - start) * 1000)
+            assert "result" in answer, answer
+        return out
+
+    doc = {"uri": uri}
+    hover_ms = timed(
+        "textDocument/hover",
+        lambda: {"textDocument": doc, "position": {"line": rng.choice(equation_lines), "character": 1}},
+    )
+
+    def hint_range():
+        first = rng.randrange(0, len(lines) - 41)
+        return {
+            "textDocument": doc,
+            "range": {"start": {"line": first, "character": 0}, "end": {"line": first + 40, "character": 0}},
+        }
+
+    hint_ms = timed("textDocument/inlayHint", hint_range)
+
+    def completion_at():
+        line = rng.choice(equation_lines)
+        return {"textDocument": doc, "position": {"line": line, "character": lines[line].index("=") + 2}}
+
+    completion_ms = timed("textDocument/completion", completion_at)
+
+    # A burst of typing: edits 200 ms apart to a parameter, then the final diagnostics.
+    param_lines = [k for k, line in enumerate(lines) if line.startswith("param kappa")]
     version = 1
-    edit_ms = []
-    for n in range(args.timed_edits):
+    last_sent = 0.0
+    for n in range(args.burst):
         version += 1
         line = rng.choice(param_lines)
         column = lines[line].index("=") + 2
-        digit = str(n % 9 + 1)
-        start = time.perf_counter()
         server.notify(
             "textDocument/didChange",
             {
@@ -185,21 +183,22 @@ def main() -> int:
                             "start": {"line": line, "character": column},
                             "end": {"line": line, "character": column + 1},
                         },
-                        "text": digit,
+                        "text": str(n % 9 + 1),
                     }
                 ],
             },
         )
-        wanted = version
-        at, _ = server.wait(
-            lambda m: m.get("method") == "textDocument/publishDiagnostics"
-            and m["params"].get("version") == wanted
-        )
-        edit_ms.append((at - start) * 1000)
-
+        last_sent = time.perf_counter()
+        time.sleep(0.2)
+    final = version
+    at, _ = server.wait(
+        lambda m: m.get("method") == "textDocument/publishDiagnostics" and m["params"].get("version") == final
+    )
+    # The wait above began 200 ms after the last edit; `at` is when the answer arrived.
+    burst_ms = (at - last_sent) * 1000
     rss_before_edits = server.rss_kib()
 
-    # Many edits in a burst (typing into a comment and deleting again), then memory.
+    # Many edits in a row (typing into a comment and deleting again), then memory.
     comment_line = 0
     for n in range(args.edits):
         version += 1
@@ -221,23 +220,27 @@ def main() -> int:
         timeout=300,
     )
     rss_end = server.rss_kib()
+    threads = server.threads()
     server.close()
 
+    def p(values, q):
+        return f"{percentile(values, q):.1f}"
+
+    expectations = sum(1 for line in lines if line.startswith("expect"))
     print(f"binary: {args.binary}")
-    print(f"model: {len(lines) - 1} lines, {len(equation_lines)} factors")
+    print(f"model: {len(lines) - 1} lines, {len(equation_lines)} factors, {expectations} expectations")
+    print(f"open to first diagnostics: {open_ms:.1f} ms")
+    print(f"hover on a factor ({args.requests}): p50 {p(hover_ms, 50)} ms, p99 {p(hover_ms, 99)} ms")
+    print(f"inlay hints, 40-line range ({args.requests}): p50 {p(hint_ms, 50)} ms, p99 {p(hint_ms, 99)} ms")
+    print(f"completion ({args.requests}): p50 {p(completion_ms, 50)} ms, p99 {p(completion_ms, 99)} ms")
     print(
-        f"hover on a factor ({args.hovers} requests): p50 {percentile(hover_ms, 50):.1f} ms, "
-        f"p99 {percentile(hover_ms, 99):.1f} ms"
+        f"burst of {args.burst} edits 200 ms apart: final diagnostics {burst_ms:.1f} ms after the last "
+        f"edit (includes the {120} ms debounce)"
     )
     print(
-        f"edit to diagnostics ({args.timed_edits} edits, includes the "
-        f"{120} ms debounce): p50 {percentile(edit_ms, 50):.1f} ms, "
-        f"p99 {percentile(edit_ms, 99):.1f} ms, mean {statistics.mean(edit_ms):.1f} ms"
-    )
-    print(
-        f"resident memory: {rss_start / 1024:.1f} MiB before opening the model, "
-        f"{rss_before_edits / 1024:.1f} MiB after the hovers and timed edits, "
-        f"{rss_end / 1024:.1f} MiB after {args.edits} more edits"
+        f"resident memory: {rss_start / 1024:.1f} MiB before opening, {rss_before_edits / 1024:.1f} MiB "
+        f"after the requests and the burst, {rss_end / 1024:.1f} MiB after {args.edits} more edits; "
+        f"{threads} threads"
     )
     return 0
 

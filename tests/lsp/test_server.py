@@ -156,9 +156,9 @@ async def test_hover_on_a_state_equals_sdeck_moments(client: LanguageClient, tmp
         [SDECK, "moments", "--format", "json", str(path)], capture_output=True, text=True, check=True
     )
     state = json.loads(out.stdout)["factors"][0]
-    # The hover prints six significant digits, as `sdeck moments` does in text.
-    assert row("mean") == pytest.approx(state["mean"], rel=1e-5)
-    assert row("variance") == pytest.approx(state["variance"], rel=1e-5)
+    # The hover prints four significant digits (within half a unit of the fourth).
+    assert row("mean") == pytest.approx(state["mean"], rel=5e-4)
+    assert row("variance") == pytest.approx(state["variance"], rel=5e-4)
     # And both agree with Vasicek 1977 (J. Financial Economics 5, eq. 27-28):
     # mean θ + (r0 − θ)e^{−κt}, variance σ²(1 − e^{−2κt})/(2κ), κ = 0.005·365, t = 2.
     import math
@@ -396,4 +396,4 @@ async def test_hover_on_coupled_states_equals_sdeck_moments(client: LanguageClie
         for label, key in [("mean", "mean"), ("variance", "variance")]:
             match = re.search(rf"^\| {label} \| ([^ |]+)", markdown, re.MULTILINE)
             assert match, markdown
-            assert float(match.group(1)) == pytest.approx(state[key], rel=1e-5)
+            assert float(match.group(1)) == pytest.approx(state[key], rel=5e-4)

@@ -123,6 +123,81 @@ fn round_significant(x: f64, digits: i32, up: bool) -> f64 {
     rounded / factor
 }
 
+/// The parameter values that meet the Feller condition 2·speed·level ≥ vol² for the
+/// square-root factor `state`, each in its parameter's written unit and rounded to
+/// three significant digits (up for the speed, down for the volatility) so that the
+/// rounded value still meets it. The message of `feller-condition` and its quick fix
+/// both write these numbers, through [`feller_number`].
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct FellerBounds {
+    /// The speed's parameter and its least value.
+    pub speed: Option<(usize, f64)>,
+    /// The volatility's parameter and its greatest value.
+    pub vol: Option<(usize, f64)>,
+}
+
+/// [`FellerBounds`] of factor `state`; `None` when it is not a square-root factor that
+/// fails the condition with a positive level.
+pub fn feller_bounds(model: &Model, derivation: &Derivation, state: usize) -> Option<FellerBounds> {
+    let sr = derivation.states.get(state)?.square_root.as_ref()?;
+    let vol_squared = sr.vol * sr.vol;
+    if !(sr.level > 0.0 && sr.speed > 0.0 && vol_squared.is_finite())
+        || 2.0 * sr.speed * sr.level >= vol_squared
+    {
+        return None;
+    }
+    let terms = square_root_terms(model, derivation, state);
+    // How a parameter enters its coefficient (1 when the coefficient is the parameter).
+    let written_per_clock = |p: usize, coefficient: f64| -> Option<(f64, f64)> {
+        let param = model.params.get(p)?;
+        let factor = coefficient / param.value;
+        let per_written = factor * param.scale;
+        (per_written.is_finite() && per_written > 0.0).then_some((per_written, param.written))
+    };
+    let speed = terms.as_ref().and_then(|t| t.speed_param).and_then(|p| {
+        let (per_written, _) = written_per_clock(p, sr.speed)?;
+        let meets = |w: f64| 2.0 * w * per_written * sr.level >= vol_squared;
+        let value = rounded_meeting(vol_squared / (2.0 * sr.level) / per_written, true, meets)?;
+        Some((p, value))
+    });
+    let vol = terms.as_ref().and_then(|t| t.vol_param).and_then(|p| {
+        let (per_written, _) = written_per_clock(p, sr.vol)?;
+        let meets = |w: f64| {
+            let vol = w * per_written;
+            2.0 * sr.speed * sr.level >= vol * vol
+        };
+        let value = rounded_meeting(
+            (2.0 * sr.speed * sr.level).sqrt() / per_written,
+            false,
+            meets,
+        )?;
+        Some((p, value))
+    });
+    Some(FellerBounds { speed, vol })
+}
+
+/// `x` rounded to three significant digits in direction `up`, stepped on by one unit of
+/// the third digit while `meets` fails (floating rounding at the boundary).
+fn rounded_meeting(x: f64, up: bool, meets: impl Fn(f64) -> bool) -> Option<f64> {
+    if !(x.is_finite() && x > 0.0) {
+        return None;
+    }
+    let mut value = round_significant(x, 3, up);
+    for _ in 0..4 {
+        if meets(value) {
+            return Some(value);
+        }
+        let step = 10f64.powi(value.abs().log10().floor() as i32 - 2);
+        value = if up { value + step } else { value - step };
+    }
+    None
+}
+
+/// A Feller bound as the message and the quick fix write it (three significant digits).
+pub fn feller_number(x: f64) -> String {
+    number(x, 3)
+}
+
 fn state_name(model: &Model, state: usize) -> String {
     model
         .factors
@@ -138,23 +213,6 @@ fn equation_span(model: &Model, state: usize) -> Option<std::ops::Range<usize>> 
         .equation
         .as_ref()
         .map(|e| e.span.clone())
-}
-
-/// A value in clock units printed in the parameter's own unit.
-fn in_param_unit(model: &Model, param: usize, clock_value: f64, up: bool) -> String {
-    let Some(p) = model.params.get(param) else {
-        return number(clock_value, 3);
-    };
-    let written = if p.scale != 0.0 {
-        clock_value / p.scale
-    } else {
-        clock_value
-    };
-    let rounded = round_significant(written, 3, up);
-    match &p.unit_text {
-        Some(unit) => format!("{} [{unit}]", number(rounded, 3)),
-        None => number(rounded, 3),
-    }
 }
 
 /// `feller-condition`: 2·speed·level < vol² makes zero attainable
@@ -198,42 +256,44 @@ fn feller_condition(model: &Model, derivation: &Derivation, out: &mut Vec<Diagno
             );
             continue;
         }
-        let needed_speed = vol_squared / (2.0 * sr.level);
-        let allowed_vol = drift_side.max(0.0).sqrt();
-        let raise = match terms.as_ref().and_then(|t| t.speed_param) {
-            Some(p) => format!(
+        let bounds = feller_bounds(model, derivation, state);
+        let param_name = |p: usize, or: &str| {
+            model
+                .params
+                .get(p)
+                .map(|p| p.name.clone())
+                .unwrap_or_else(|| or.to_string())
+        };
+        let with_unit =
+            |p: usize, value: f64| match model.params.get(p).and_then(|p| p.unit_text.as_ref()) {
+                Some(unit) => format!("{} [{unit}]", feller_number(value)),
+                None => feller_number(value),
+            };
+        let raise = match bounds.as_ref().and_then(|b| b.speed) {
+            Some((p, value)) => format!(
                 "raise {} to at least {}",
-                model
-                    .params
-                    .get(p)
-                    .map(|p| p.name.as_str())
-                    .unwrap_or("the speed"),
-                in_param_unit(model, p, needed_speed, true)
+                param_name(p, "the speed"),
+                with_unit(p, value)
             ),
             None => format!(
                 "raise the speed {speed} to at least {} per {clock}",
-                number(round_significant(needed_speed, 3, true), 3)
+                feller_number(round_significant(vol_squared / (2.0 * sr.level), 3, true))
             ),
         };
-        let lower = match terms.as_ref().and_then(|t| t.vol_param) {
-            Some(p) => format!(
+        let lower = match bounds.as_ref().and_then(|b| b.vol) {
+            Some((p, value)) => format!(
                 "lower {} to at most {}",
-                model
-                    .params
-                    .get(p)
-                    .map(|p| p.name.as_str())
-                    .unwrap_or("the volatility"),
-                in_param_unit(model, p, allowed_vol, false)
+                param_name(p, "the volatility"),
+                with_unit(p, value)
             ),
             None => format!(
                 "lower the volatility so that {vol2} is at most {}",
-                number(round_significant(drift_side, 3, false), 3)
+                feller_number(round_significant(drift_side, 3, false))
             ),
         };
         let name = state_name(model, state);
         let message = format!(
-            "2·{speed}·{level} = {} < {vol2} = {} (per {clock}): zero is attainable for {name}; \
-             {raise} or {lower}",
+            "2·{speed}·{level} = {} < {vol2} = {} (per {clock}): zero is attainable for {name}",
             number(drift_side, 3),
             number(vol_squared, 3),
         );
@@ -895,13 +955,16 @@ mod tests {
             message.starts_with("2·kappa·level = 0.0576 < vol² = 0.09 (per year)"),
             "{message}"
         );
+        // The mend is the help, not repeated in the message.
+        let help = feller[0].help.clone().unwrap_or_default();
+        assert!(!message.contains("raise"), "{message}");
         assert!(
-            message.contains("raise kappa to at least 0.782 [1/year]"),
-            "{message}"
+            help.contains("raise kappa to at least 0.782 [1/year]"),
+            "{help}"
         );
         assert!(
-            message.contains("lower vol to at most 0.24 [1/sqrt(year)]"),
-            "{message}"
+            help.contains("lower vol to at most 0.24 [1/sqrt(year)]"),
+            "{help}"
         );
         let equation = model.factors[0].equation.as_ref().expect("equation");
         assert_eq!(feller[0].span, equation.span);
@@ -918,12 +981,10 @@ mod tests {
         let feller = of_rule(&diagnostics, &rules::FELLER_CONDITION);
         assert_eq!(feller.len(), 1);
         // √0.0576 / √365 = 0.012562...
+        let help = feller[0].help.clone().unwrap_or_default();
         assert!(
-            feller[0]
-                .message
-                .contains("lower vol to at most 0.0125 [1/sqrt(day)]"),
-            "{}",
-            feller[0].message
+            help.contains("lower vol to at most 0.0125 [1/sqrt(day)]"),
+            "{help}"
         );
     }
 

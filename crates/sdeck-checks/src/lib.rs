@@ -18,7 +18,7 @@
 mod derived;
 pub mod suppress;
 
-pub use derived::derived_checks;
+pub use derived::{derived_checks, feller_bounds, feller_number, FellerBounds};
 
 use sdeck_calculus::Derivation;
 use sdeck_diagnostics::{rules, Diagnostic, Severity};

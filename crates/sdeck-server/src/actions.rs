@@ -88,9 +88,9 @@ fn overlaps(a: &Span, b: &Span) -> bool {
     a.start <= b.end && b.start <= a.end
 }
 
-/// `value` written in the style of `original` (`%`, `bp` or plain), and the value that
-/// text stands for.
-fn write_like(original: &str, value: f64) -> (String, f64) {
+/// A Feller bound written in the style of the literal it replaces (`%`, `bp` or plain),
+/// with the digits of the diagnostic's message.
+fn written_like(original: &str, value: f64) -> String {
     let (factor, suffix) = if original.ends_with('%') {
         (100.0, "%")
     } else if original.ends_with("bp") {
@@ -98,28 +98,7 @@ fn write_like(original: &str, value: f64) -> (String, f64) {
     } else {
         (1.0, "")
     };
-    let text = fmt_num(value * factor);
-    let parsed = text.parse::<f64>().map(|v| v / factor).unwrap_or(f64::NAN);
-    (format!("{text}{suffix}"), parsed)
-}
-
-/// The text for a value rounded so that `safe` holds, nudging in `direction` (+1 up,
-/// −1 down) until it does.
-fn safe_text(
-    original: &str,
-    value: f64,
-    direction: f64,
-    safe: impl Fn(f64) -> bool,
-) -> Option<String> {
-    let mut target = value;
-    for _ in 0..40 {
-        let (text, written) = write_like(original, target);
-        if written.is_finite() && safe(written) {
-            return Some(text);
-        }
-        target *= 1.0 + direction * 1e-5;
-    }
-    None
+    format!("{}{suffix}", sdeck_checks::feller_number(value * factor))
 }
 
 /// Moving the speed up, or the volatility down, to the Feller boundary 2·speed·level = vol².
@@ -135,67 +114,41 @@ fn feller_fixes(a: &Analyzed, span: &Span) -> Vec<(String, Vec<TextEdit>)> {
         if !touches {
             continue;
         }
-        let Some(law) = a.check.derivation.states.get(j) else {
+        let Some(bounds) = sdeck_checks::feller_bounds(model, &a.check.derivation, j) else {
             continue;
         };
-        let Some(sr) = &law.square_root else { continue };
         let Some(terms) =
             sdeck_calculus::describe::square_root_terms(model, &a.check.derivation, j)
         else {
             continue;
         };
-        if !(sr.level > 0.0 && sr.speed > 0.0 && sr.vol.is_finite()) {
-            continue;
-        }
-        let vol_squared = sr.vol * sr.vol;
-        if 2.0 * sr.speed * sr.level >= vol_squared {
-            continue;
-        }
-        if let Some(p) = terms.speed_param.and_then(|i| model.params.get(i)) {
-            if let Some(decl) = a.declaration(SymbolKind::Param, &p.name) {
-                // The speed in clock units is written × scale.
-                let boundary = vol_squared / (2.0 * sr.level) / p.scale;
-                let factor = sr.speed / p.value; // how the param enters the speed
-                if let Some(text) = safe_text(&decl.value.text, boundary, 1.0, |w| {
-                    2.0 * w * p.scale * factor * sr.level >= vol_squared
-                }) {
-                    if factor == 1.0 {
-                        out.push((
-                            format!(
-                                "Raise `{}` to {text} (Feller boundary: 2·{}·{} = {} at {})",
-                                p.name, terms.speed, terms.level, terms.vol_squared, text
-                            ),
-                            vec![TextEdit {
-                                span: decl.value.span.clone(),
-                                new_text: text,
-                            }],
-                        ));
-                    }
-                }
-            }
-        }
-        if let Some(p) = terms.vol_param.and_then(|i| model.params.get(i)) {
-            if let Some(decl) = a.declaration(SymbolKind::Param, &p.name) {
-                let boundary = (2.0 * sr.speed * sr.level).sqrt() / p.scale;
-                let factor = sr.vol / p.value;
-                if factor == 1.0 {
-                    if let Some(text) = safe_text(&decl.value.text, boundary, -1.0, |w| {
-                        let vol = w * p.scale;
-                        2.0 * sr.speed * sr.level >= vol * vol
-                    }) {
-                        out.push((
-                            format!(
-                                "Lower `{}` to {text} (Feller boundary: {} = 2·{}·{} at {})",
-                                p.name, terms.vol_squared, terms.speed, terms.level, text
-                            ),
-                            vec![TextEdit {
-                                span: decl.value.span.clone(),
-                                new_text: text,
-                            }],
-                        ));
-                    }
-                }
-            }
+        let wanted = [
+            (bounds.speed, "Raise", "2·{speed}·{level} = {vol2}"),
+            (bounds.vol, "Lower", "{vol2} = 2·{speed}·{level}"),
+        ];
+        for (bound, verb, boundary) in wanted {
+            let Some((p, value)) = bound else { continue };
+            let Some(p) = model.params.get(p) else {
+                continue;
+            };
+            let Some(decl) = a.declaration(SymbolKind::Param, &p.name) else {
+                continue;
+            };
+            let text = written_like(&decl.value.text, value);
+            let boundary = boundary
+                .replace("{speed}", &terms.speed)
+                .replace("{level}", &terms.level)
+                .replace("{vol2}", &terms.vol_squared);
+            out.push((
+                format!(
+                    "{verb} `{}` to {text} (Feller boundary: {boundary})",
+                    p.name
+                ),
+                vec![TextEdit {
+                    span: decl.value.span.clone(),
+                    new_text: text,
+                }],
+            ));
         }
     }
     out

@@ -58,6 +58,12 @@ pub struct Analyzed {
     horizon: Vec<OnceLock<StateMoments>>,
     /// Per parameter, the roles it plays, found once per version on first use.
     roles: OnceLock<Vec<Vec<Role>>>,
+    /// Every inlay hint of the version (offset, label), by offset; built on first use so
+    /// that a request for a range costs that range.
+    pub(crate) hints: OnceLock<Vec<(usize, String)>>,
+    /// Every semantic token of the version (span, type, modifiers), by start, without
+    /// overlaps; built on first use.
+    pub(crate) tokens: OnceLock<Vec<(sdeck_diagnostics::Span, u32, u32)>>,
 }
 
 impl Analyzed {
@@ -75,6 +81,8 @@ impl Analyzed {
             excluded,
             horizon: (0..states).map(|_| OnceLock::new()).collect(),
             roles: OnceLock::new(),
+            hints: OnceLock::new(),
+            tokens: OnceLock::new(),
         }
     }
 

@@ -7,8 +7,31 @@ use crate::documents::PositionEncoding;
 use sdeck_semantics::{fmt_num, SymbolKind};
 use tower_lsp::lsp_types::{InlayHint, InlayHintKind, InlayHintLabel, Range};
 
+/// The hints that fall in `range`: a binary search in the version's hints, built once.
 pub fn inlay_hints(a: &Analyzed, encoding: PositionEncoding, range: Range) -> Vec<InlayHint> {
     let converter = a.converter(encoding);
+    let all = a.hints.get_or_init(|| all_hints(a));
+    let (start, end) = (converter.offset(range.start), converter.offset(range.end));
+    let first = all.partition_point(|(offset, _)| *offset < start);
+    let last = all.partition_point(|(offset, _)| *offset <= end);
+    all.get(first..last.max(first))
+        .unwrap_or(&[])
+        .iter()
+        .map(|(offset, label)| InlayHint {
+            position: converter.position(*offset),
+            label: InlayHintLabel::String(label.clone()),
+            kind: Some(InlayHintKind::TYPE),
+            text_edits: None,
+            tooltip: None,
+            padding_left: Some(true),
+            padding_right: Some(false),
+            data: None,
+        })
+        .collect()
+}
+
+/// Every hint of the model, by offset.
+fn all_hints(a: &Analyzed) -> Vec<(usize, String)> {
     let model = &a.check.analysis.model;
     let clock = &model.clock.unit;
     let mut hints: Vec<(usize, String)> = Vec::new();
@@ -63,17 +86,4 @@ pub fn inlay_hints(a: &Analyzed, encoding: PositionEncoding, range: Range) -> Ve
     }
     hints.sort_by_key(|(offset, _)| *offset);
     hints
-        .into_iter()
-        .filter(|(offset, _)| converter.meets(&(*offset..*offset), range))
-        .map(|(offset, label)| InlayHint {
-            position: converter.position(offset),
-            label: InlayHintLabel::String(label),
-            kind: Some(InlayHintKind::TYPE),
-            text_edits: None,
-            tooltip: None,
-            padding_left: Some(true),
-            padding_right: Some(false),
-            data: None,
-        })
-        .collect()
 }

@@ -8,7 +8,13 @@ use sdeck_semantics::{fmt_num, Model, SymbolKind};
 use sdeck_syntax::ast::{Expr, Quantity, StatementKind, UnitExpr};
 use tower_lsp::lsp_types::{Hover, HoverContents, MarkupContent, MarkupKind, Position};
 
-pub fn hover(a: &Analyzed, encoding: PositionEncoding, position: Position) -> Option<Hover> {
+/// The hover at `position`, in Markdown or in plain text as the client asked.
+pub fn hover(
+    a: &Analyzed,
+    encoding: PositionEncoding,
+    position: Position,
+    format: MarkupKind,
+) -> Option<Hover> {
     let converter = a.converter(encoding);
     let offset = converter.offset(position);
     let model = &a.check.analysis.model;
@@ -34,10 +40,15 @@ pub fn hover(a: &Analyzed, encoding: PositionEncoding, position: Position) -> Op
         let (name, span) = unit_name_at(a, offset)?;
         (unit_text(model, &name), span)
     };
+    let value = if format == MarkupKind::PlainText {
+        plain_text(&markdown)
+    } else {
+        markdown
+    };
     Some(Hover {
         contents: HoverContents::Markup(MarkupContent {
-            kind: MarkupKind::Markdown,
-            value: markdown,
+            kind: format,
+            value: fit_columns(&value, COLUMNS),
         }),
         range: Some(converter.range(&span)),
     })
@@ -93,6 +104,72 @@ Not derived: {why}.
     Some((s, x.figure_span.clone()))
 }
 
+/// The widest line of a hover.
+pub const COLUMNS: usize = 80;
+
+/// The Markdown of a hover as plain text: no emphasis, code marks or fences; a table
+/// row `| label | value |` becomes `label  value`.
+pub fn plain_text(markdown: &str) -> String {
+    let mut out = Vec::new();
+    for line in markdown.lines() {
+        let trimmed = line.trim();
+        if trimmed.starts_with("```")
+            || trimmed.starts_with("|---")
+            || trimmed == "| figure | value |"
+        {
+            continue;
+        }
+        if let Some(row) = trimmed.strip_prefix('|').and_then(|r| r.strip_suffix('|')) {
+            let cells: Vec<&str> = row.split(" | ").map(str::trim).collect();
+            if let [label, value] = cells.as_slice() {
+                out.push(format!("{label:<15} {value}"));
+                continue;
+            }
+            out.push(cells.join("  "));
+            continue;
+        }
+        let text = line.replace("**", "").replace('`', "");
+        let text = match text.strip_prefix('_').and_then(|t| t.strip_suffix('_')) {
+            Some(inner) => inner.to_string(),
+            None => text,
+        };
+        out.push(text);
+    }
+    out.join("\n")
+}
+
+/// Breaks the lines longer than `width` at spaces; a continuation is indented as its
+/// line was, plus two spaces. A word longer than the width stays whole.
+pub fn fit_columns(text: &str, width: usize) -> String {
+    let mut out: Vec<String> = Vec::new();
+    for line in text.lines() {
+        if line.chars().count() <= width {
+            out.push(line.to_string());
+            continue;
+        }
+        let indent: String = line.chars().take_while(|c| *c == ' ').collect();
+        let follow = format!("{indent}  ");
+        let mut current = indent.clone();
+        for word in line.trim_start().split(' ') {
+            let fresh = current.trim().is_empty();
+            let wanted = current.chars().count() + usize::from(!fresh) + word.chars().count();
+            if !fresh && wanted > width {
+                out.push(std::mem::replace(&mut current, follow.clone()));
+            }
+            if !current.trim().is_empty() {
+                current.push(' ');
+            }
+            current.push_str(word);
+        }
+        out.push(current);
+    }
+    let mut joined = out.join("\n");
+    if text.ends_with('\n') {
+        joined.push('\n');
+    }
+    joined
+}
+
 /// Hover on the `discount` keyword: how the rate is read and the curve at a few maturities.
 fn discount_at(a: &Analyzed, offset: usize) -> Option<(String, sdeck_diagnostics::Span)> {
     let statement = a.check.analysis.file.statements.iter().find(|s| {
@@ -136,32 +213,152 @@ fn discount_at(a: &Analyzed, offset: usize) -> Option<(String, sdeck_diagnostics
     Some((s, start..start + "discount".len()))
 }
 
-fn or_unknown(x: Option<f64>) -> String {
+/// Four significant digits: what a reader takes in at a glance.
+fn figure(x: f64) -> String {
+    sdeck_units::number::significant(x, 4)
+}
+
+fn figure_or_unknown(x: Option<f64>) -> String {
     match x {
-        Some(v) if v.is_finite() => fmt_num(v),
+        Some(v) if v.is_finite() => figure(v),
         _ => "not known".to_string(),
     }
 }
 
-/// Family, formulas and the figures at the horizon.
+/// A time unit and its length in clock units.
+struct TimeUnit {
+    name: String,
+    clock_units: f64,
+}
+
+impl TimeUnit {
+    fn of(model: &Model, name: &str) -> Option<TimeUnit> {
+        let years = sdeck_units::time_unit_years(name)?;
+        (years > 0.0 && model.clock.years > 0.0).then(|| TimeUnit {
+            name: name.to_string(),
+            clock_units: years / model.clock.years,
+        })
+    }
+
+    fn clock(model: &Model) -> TimeUnit {
+        TimeUnit {
+            name: model.clock.unit.clone(),
+            clock_units: 1.0,
+        }
+    }
+
+    /// A duration in clock units, written in this unit.
+    fn show(&self, clock_value: f64) -> String {
+        format!("{} {}", figure(clock_value / self.clock_units), self.name)
+    }
+}
+
+/// The unit the horizon was written in (`horizon 18 month`), else the clock's.
+fn horizon_unit(a: &Analyzed) -> TimeUnit {
+    let model = &a.check.analysis.model;
+    a.check
+        .analysis
+        .file
+        .statements
+        .iter()
+        .find_map(|s| match &s.kind {
+            StatementKind::Horizon { value } => match &value.unit {
+                Some(UnitExpr::Name(ident)) => TimeUnit::of(model, &ident.name),
+                _ => None,
+            },
+            _ => None,
+        })
+        .unwrap_or_else(|| TimeUnit::clock(model))
+}
+
+/// The time unit of the speed of factor `state` as written (`[1/day]` gives days),
+/// else the clock's.
+fn speed_unit(a: &Analyzed, state: usize) -> TimeUnit {
+    let model = &a.check.analysis.model;
+    for (i, p) in model.params.iter().enumerate() {
+        let speed_of_state = a
+            .roles_of_param(i)
+            .iter()
+            .any(|r| matches!(r, Role::Speed { state: s, .. } if *s == state));
+        if !speed_of_state {
+            continue;
+        }
+        let unit = p.unit_text.as_deref().unwrap_or("").replace(' ', "");
+        if let Some(unit) = unit.strip_prefix("1/").and_then(|u| TimeUnit::of(model, u)) {
+            return unit;
+        }
+    }
+    TimeUnit::clock(model)
+}
+
+/// The figures a reader wants first (mean, sd, quantiles at the horizon, half-life),
+/// then why the family, the description and the formulas.
 pub fn state_text(a: &Analyzed, i: usize) -> String {
     let model = &a.check.analysis.model;
     let Some(state) = model.factors.get(i) else {
         return String::new();
     };
-    let clock = &model.clock.unit;
+    let derivation = &a.check.derivation;
+    let law = derivation.states.get(i);
     let mut s = format!("**factor `{}`**", state.name);
-    let law = a.check.derivation.states.get(i);
     if let Some(law) = law {
-        s.push_str(&format!(" · {}\n\n{}\n", law.family.as_str(), law.reason));
-    } else {
-        s.push('\n');
+        s.push_str(&format!(" · {}", law.family.as_str()));
+    }
+    s.push('\n');
+    let horizon = model.horizon;
+    let figures = a.horizon_moments(i);
+    let (mean, variance) = (figures.mean, figures.variance);
+    s.push_str(&format!(
+        "\nAt the horizon, t = {}:\n\n| figure | value |\n|---|---|\n",
+        horizon_unit(a).show(horizon)
+    ));
+    s.push_str(&format!("| mean | {} |\n", figure_or_unknown(mean)));
+    s.push_str(&format!(
+        "| sd | {} |\n",
+        figure_or_unknown(variance.filter(|v| *v >= 0.0).map(f64::sqrt))
+    ));
+    let quantile = |p: f64| sdeck_calculus::quantile(model, derivation, i, horizon, p);
+    if let (Some(low), Some(mid), Some(high)) = (quantile(0.05), quantile(0.5), quantile(0.95)) {
+        s.push_str(&format!(
+            "| 5% · 50% · 95% | {} · {} · {} |\n",
+            figure(low),
+            figure(mid),
+            figure(high)
+        ));
+    }
+    if let Some(h) = law.and_then(|l| l.half_life) {
+        s.push_str(&format!("| half-life | {} |\n", speed_unit(a, i).show(h)));
+    }
+    s.push_str(&format!("| variance | {} |\n", figure_or_unknown(variance)));
+    if let Some(whole) = sdeck_calculus::laws::law_of(model, derivation, i, horizon) {
+        s.push_str(&format!("| law | {} |\n", whole.kind().as_str()));
+        let sign_change = matches!(
+            whole.kind(),
+            sdeck_calculus::laws::LawKind::Normal | sdeck_calculus::laws::LawKind::Fourier
+        );
+        if let Some(p) = whole
+            .cdf(0.0)
+            .filter(|p| sign_change && *p > 0.0 && *p < 1.0)
+        {
+            s.push_str(&format!("| P({} < 0) | {} |\n", state.name, figure(p)));
+        }
+    }
+    if let Some(st) = law.and_then(|l| l.stationary.as_ref()) {
+        s.push_str(&format!(
+            "| stationary | {}, mean {}, sd {} |\n",
+            st.law,
+            figure(st.mean),
+            figure(st.variance.max(0.0).sqrt())
+        ));
+    }
+    if let Some(law) = law {
+        s.push_str(&format!("\n{}\n", law.reason));
     }
     if let Some(description) = &state.description {
         s.push_str(&format!("\n_{}_\n", description.trim()));
     }
     if law.is_some() {
-        let f = sdeck_calculus::formulas(&a.check.analysis.model, &a.check.derivation, i);
+        let f = sdeck_calculus::formulas(model, derivation, i);
         let lines: Vec<String> = [
             ("solution", &f.solution),
             ("mean", &f.mean),
@@ -175,45 +372,6 @@ pub fn state_text(a: &Analyzed, i: usize) -> String {
         .collect();
         if !lines.is_empty() {
             s.push_str(&format!("\n```text\n{}\n```\n", lines.join("\n")));
-        }
-    }
-    let figures = a.horizon_moments(i);
-    let (mean, variance) = (figures.mean, figures.variance);
-    s.push_str(&format!(
-        "\nAt the horizon, t = {} {clock}:\n\n| figure | value |\n|---|---|\n",
-        fmt_num(a.check.analysis.model.horizon)
-    ));
-    s.push_str(&format!("| mean | {} |\n", or_unknown(mean)));
-    s.push_str(&format!("| variance | {} |\n", or_unknown(variance)));
-    s.push_str(&format!(
-        "| standard deviation | {} |\n",
-        or_unknown(variance.filter(|v| *v >= 0.0).map(f64::sqrt))
-    ));
-    if let Some(whole) = sdeck_calculus::laws::law_of(model, &a.check.derivation, i, model.horizon)
-    {
-        s.push_str(&format!("| law | {} |\n", whole.kind().as_str()));
-        let sign_change = matches!(
-            whole.kind(),
-            sdeck_calculus::laws::LawKind::Normal | sdeck_calculus::laws::LawKind::Fourier
-        );
-        if let Some(p) = whole
-            .cdf(0.0)
-            .filter(|p| sign_change && *p > 0.0 && *p < 1.0)
-        {
-            s.push_str(&format!("| P({} < 0) | {} |\n", state.name, fmt_num(p)));
-        }
-    }
-    if let Some(law) = law {
-        if let Some(h) = law.half_life {
-            s.push_str(&format!("| half-life | {} {clock} |\n", fmt_num(h)));
-        }
-        if let Some(st) = &law.stationary {
-            s.push_str(&format!(
-                "| stationary law | {} (mean {}, sd {}) |\n",
-                st.law,
-                fmt_num(st.mean),
-                fmt_num(st.variance.max(0.0).sqrt())
-            ));
         }
     }
     if a.check.analysis.has_errors() {
@@ -272,8 +430,8 @@ fn param_text(a: &Analyzed, i: usize) -> String {
                     .unwrap_or("?");
                 match half_life {
                     Some(h) => s.push_str(&format!(
-                        "\nspeed of mean reversion of `{name}`: half-life {} {clock}\n",
-                        fmt_num(h)
+                        "\nspeed of mean reversion of `{name}`: half-life {}\n",
+                        speed_unit(a, state).show(h)
                     )),
                     None => s.push_str(&format!("\nspeed of mean reversion of `{name}`\n")),
                 }

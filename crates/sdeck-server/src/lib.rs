@@ -6,7 +6,14 @@
 //! protocol. Layout: [`documents`] holds the open texts (edits applied in order, under a
 //! synchronous lock), `analysis` runs the analysis of one version, `convert` is the one
 //! place where byte offsets become protocol positions, and one module per feature
-//! (`hover`, `hints`, `actions`, `navigation`, `completion`, `tokens`).
+//! (`hover`, `hints`, `actions`, `navigation`, `completion`, `tokens`). [`transport`]
+//! checks every frame before tower-lsp reads it, so a malformed one is answered with an
+//! error instead of ending the session.
+//!
+//! Analyses: at most one runs per document, on a blocking thread, always for the newest
+//! version (versions that arrive meanwhile are skipped, not queued); every feature and
+//! the diagnostics share its result. A request waits for it without holding the serving
+//! loop, at most [`ANALYSIS_WAIT`], and a `$/cancelRequest` ends the wait.
 //!
 //! Start it with [`run_stdio`] (what `sdeck lsp` does).
 
@@ -20,12 +27,14 @@ mod hover;
 mod navigation;
 pub mod nearest_correlation;
 mod tokens;
+pub mod transport;
 
 use analysis::Analyzed;
 use documents::{DocumentStore, PositionEncoding};
 use serde::{Deserialize, Serialize};
 use std::collections::HashMap;
 use std::panic::AssertUnwindSafe;
+use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::{Arc, Mutex, RwLock};
 use std::time::Duration;
 use tower_lsp::jsonrpc::{Error, ErrorCode, Result};
@@ -35,6 +44,30 @@ use tower_lsp::{Client, LanguageServer, LspService, Server};
 /// How long the server waits after an edit before it analyses (a burst of typing is
 /// analysed once, at its end).
 pub const DIAGNOSTICS_DEBOUNCE: Duration = Duration::from_millis(120);
+
+/// The longest a request waits for the analysis of its document; past this it gets an
+/// error (the analysis goes on, and the next request finds it).
+pub const ANALYSIS_WAIT: Duration = Duration::from_secs(10);
+
+/// How many messages tower-lsp handles at once. Requests waiting for a slow analysis
+/// hold a place each; this many leaves room for every other document and for
+/// `$/cancelRequest`.
+pub const CONCURRENT_MESSAGES: usize = 64;
+
+/// How often the server looks whether the process that started it is still alive.
+pub const PARENT_CHECK: Duration = Duration::from_secs(2);
+
+/// Whether `shutdown` was received (the exit code of `exit` and of a closed stdin).
+static SHUT_DOWN: AtomicBool = AtomicBool::new(false);
+
+/// The protocol's exit code: 0 after a `shutdown` request, 1 without one.
+fn exit_code() -> i32 {
+    if SHUT_DOWN.load(Ordering::SeqCst) {
+        0
+    } else {
+        1
+    }
+}
 
 /// The custom request that returns the server's copy of a document. It exists for the
 /// end-to-end tests (tests/lsp), which compare it with the client's text after many
@@ -52,17 +85,42 @@ pub struct DocumentTextParams {
 pub struct DocumentTextResult {
     pub text: String,
     pub version: i32,
+    /// How many analyses of the document have run since it was opened (the tests check
+    /// that requests share one, and that a burst of edits is analysed once).
+    pub analyses: u64,
 }
 
-/// State shared by the handlers and the diagnostics tasks.
+/// The analysis of one version of a document, or the error it ended with.
+struct Outcome {
+    version: i32,
+    result: Result<Arc<Analyzed>>,
+}
+
+/// The analyses of one document.
+#[derive(Default)]
+struct Slot {
+    /// The analysis of the newest version analysed so far.
+    latest: Option<Arc<Outcome>>,
+    /// Whether an analysis of this document is running.
+    running: bool,
+    /// Analyses run since the document was opened.
+    count: u64,
+}
+
+/// State shared by the handlers and the analysis threads.
 struct Shared {
+    client: Client,
     documents: DocumentStore,
     encoding: RwLock<PositionEncoding>,
     /// Whether to push diagnostics (off when the client pulls them itself, so that no
     /// editor shows every diagnostic twice).
     push: RwLock<bool>,
-    /// The latest analysis of each document.
-    analyses: Mutex<HashMap<Url, Arc<Analyzed>>>,
+    /// Whether hovers are plain text (the client does not take Markdown).
+    plain_hover: AtomicBool,
+    /// Per document, its analyses.
+    slots: Mutex<HashMap<Url, Slot>>,
+    /// Woken whenever an analysis ends.
+    analysed: tokio::sync::Notify,
     /// The version last published per document; held while publishing so that a stale
     /// result can never be sent after a newer one.
     published: tokio::sync::Mutex<HashMap<Url, i32>>,
@@ -73,31 +131,153 @@ impl Shared {
         *self.encoding.read().unwrap_or_else(|p| p.into_inner())
     }
 
-    /// The analysis of the document's current version, computed if not yet known.
-    fn analyzed(&self, uri: &Url) -> Result<Option<Arc<Analyzed>>> {
-        let Some(snapshot) = self.documents.snapshot(uri) else {
-            return Ok(None);
-        };
-        {
-            let cache = self.analyses.lock().unwrap_or_else(|p| p.into_inner());
-            if let Some(a) = cache.get(uri) {
-                if a.version == snapshot.version {
-                    return Ok(Some(a.clone()));
-                }
-            }
-        }
-        let analyzed = Arc::new(guard("the analysis", || Analyzed::compute(snapshot))?);
-        self.remember(uri, &analyzed);
-        Ok(Some(analyzed))
+    fn slots(&self) -> std::sync::MutexGuard<'_, HashMap<Url, Slot>> {
+        self.slots.lock().unwrap_or_else(|p| p.into_inner())
     }
 
-    /// Keeps an analysis unless a newer one is already kept.
-    fn remember(&self, uri: &Url, analyzed: &Arc<Analyzed>) {
-        let mut cache = self.analyses.lock().unwrap_or_else(|p| p.into_inner());
-        let newer_known = cache.get(uri).is_some_and(|a| a.version > analyzed.version);
-        if !newer_known && self.documents.version(uri).is_some() {
-            cache.insert(uri.clone(), analyzed.clone());
+    fn latest(&self, uri: &Url) -> Option<Arc<Outcome>> {
+        self.slots().get(uri).and_then(|slot| slot.latest.clone())
+    }
+
+    /// Starts analysing the document's newest version, unless an analysis of it is
+    /// running or its newest version is analysed already.
+    fn start(self: &Arc<Self>, uri: &Url) {
+        let Some(current) = self.documents.version(uri) else {
+            return;
+        };
+        {
+            let mut slots = self.slots();
+            let slot = slots.entry(uri.clone()).or_default();
+            let done = slot.latest.as_ref().is_some_and(|o| o.version == current);
+            if slot.running || done {
+                return;
+            }
+            slot.running = true;
         }
+        let shared = self.clone();
+        let uri = uri.clone();
+        let runtime = tokio::runtime::Handle::current();
+        tokio::task::spawn_blocking(move || shared.run(&uri, &runtime));
+    }
+
+    /// The one analysis thread of a document: analyses its newest version until no
+    /// newer one is waiting, publishing each result.
+    fn run(self: &Arc<Self>, uri: &Url, runtime: &tokio::runtime::Handle) {
+        loop {
+            let snapshot = self.documents.snapshot(uri);
+            {
+                let mut slots = self.slots();
+                let Some(slot) = slots.get_mut(uri) else {
+                    return; // closed meanwhile
+                };
+                let newest_done = match &snapshot {
+                    None => true,
+                    Some(s) => slot.latest.as_ref().is_some_and(|o| o.version == s.version),
+                };
+                if newest_done {
+                    slot.running = false;
+                    drop(slots);
+                    self.analysed.notify_waiters();
+                    return;
+                }
+            }
+            let Some(snapshot) = snapshot else { return };
+            let version = snapshot.version;
+            let result = guard("the analysis", || Analyzed::compute(snapshot)).map(Arc::new);
+            let outcome = Arc::new(Outcome { version, result });
+            match self.slots().get_mut(uri) {
+                Some(slot) => {
+                    slot.latest = Some(outcome.clone());
+                    slot.count += 1;
+                }
+                None => return,
+            }
+            self.analysed.notify_waiters();
+            if *self.push.read().unwrap_or_else(|p| p.into_inner()) {
+                let shared = self.clone();
+                let uri = uri.clone();
+                runtime.spawn(async move { shared.publish(&uri, &outcome).await });
+            }
+        }
+    }
+
+    /// The analysis of the document as it is now (or of a newer version), waiting for
+    /// it at most [`ANALYSIS_WAIT`]. `None` when the document is not open.
+    async fn analysis(self: &Arc<Self>, uri: &Url) -> Result<Option<Arc<Analyzed>>> {
+        let Some(wanted) = self.documents.version(uri) else {
+            return Ok(None);
+        };
+        let deadline = tokio::time::Instant::now() + ANALYSIS_WAIT;
+        loop {
+            let woken = self.analysed.notified();
+            tokio::pin!(woken);
+            woken.as_mut().enable();
+            if let Some(outcome) = self.latest(uri).filter(|o| o.version >= wanted) {
+                return outcome.result.clone().map(Some);
+            }
+            if self.documents.version(uri).is_none() {
+                return Ok(None);
+            }
+            self.start(uri);
+            if tokio::time::timeout_at(deadline, woken).await.is_err() {
+                return Err(Error {
+                    code: ErrorCode::ServerError(-32803),
+                    message: format!(
+                        "sdeck: the analysis of version {wanted} is still running after {} s; \
+                         ask again",
+                        ANALYSIS_WAIT.as_secs()
+                    )
+                    .into(),
+                    data: None,
+                });
+            }
+        }
+    }
+
+    /// Forgets the analyses of a document (its settings changed, or it closed).
+    fn forget(&self, uri: &Url) {
+        if let Some(slot) = self.slots().get_mut(uri) {
+            slot.latest = None;
+        }
+    }
+
+    /// Publishes the diagnostics of one analysis if it is still the document's current
+    /// version and nothing newer was published.
+    async fn publish(&self, uri: &Url, outcome: &Outcome) {
+        let analyzed = match &outcome.result {
+            Ok(a) => a,
+            Err(e) => {
+                self.client
+                    .log_message(MessageType::ERROR, e.message.clone())
+                    .await;
+                return;
+            }
+        };
+        let mut published = self.published.lock().await;
+        if self.documents.version(uri) != Some(analyzed.version) {
+            return;
+        }
+        if published.get(uri).is_some_and(|v| *v >= analyzed.version) {
+            return;
+        }
+        let converter = analyzed.converter(self.encoding());
+        let diagnostics = match guard("converting diagnostics", || {
+            analyzed
+                .shown_diagnostics()
+                .iter()
+                .map(|d| converter.diagnostic(uri, d))
+                .collect::<Vec<_>>()
+        }) {
+            Ok(d) => d,
+            Err(e) => {
+                self.client.log_message(MessageType::ERROR, e.message).await;
+                return;
+            }
+        };
+        published.insert(uri.clone(), analyzed.version);
+        self.client
+            .publish_diagnostics(uri.clone(), diagnostics, Some(analyzed.version))
+            .await;
     }
 }
 
@@ -126,12 +306,15 @@ pub struct Backend {
 impl Backend {
     pub fn new(client: Client) -> Backend {
         Backend {
-            client,
+            client: client.clone(),
             shared: Arc::new(Shared {
+                client,
                 documents: DocumentStore::default(),
                 encoding: RwLock::new(PositionEncoding::Utf16),
                 push: RwLock::new(true),
-                analyses: Mutex::new(HashMap::new()),
+                plain_hover: AtomicBool::new(false),
+                slots: Mutex::new(HashMap::new()),
+                analysed: tokio::sync::Notify::new(),
                 published: tokio::sync::Mutex::new(HashMap::new()),
             }),
         }
@@ -143,6 +326,11 @@ impl Backend {
             Some(s) => Ok(DocumentTextResult {
                 text: s.text,
                 version: s.version,
+                analyses: self
+                    .shared
+                    .slots()
+                    .get(&params.uri)
+                    .map_or(0, |slot| slot.count),
             }),
             None => Err(Error::invalid_params(format!("{} is not open", params.uri))),
         }
@@ -154,11 +342,7 @@ impl Backend {
         self.shared
             .documents
             .set_project(&uri, analysis::project_settings(&uri));
-        self.shared
-            .analyses
-            .lock()
-            .unwrap_or_else(|p| p.into_inner())
-            .remove(&uri);
+        self.shared.forget(&uri);
         if let Some(version) = self.shared.documents.version(&uri) {
             self.shared.published.lock().await.remove(&uri);
             self.schedule_diagnostics(uri, version, false);
@@ -166,8 +350,8 @@ impl Backend {
     }
 
     /// Runs a feature on the current analysis of a document, on a blocking thread: the
-    /// serving loop (which applies edits) never waits for an analysis. `None` when the
-    /// document is not open; a panic becomes an error response.
+    /// serving loop never waits for an analysis. `None` when the document is not open; a
+    /// panic becomes an error response.
     async fn with_analysis<T, F>(
         &self,
         uri: &Url,
@@ -178,15 +362,12 @@ impl Backend {
         T: Send + 'static,
         F: FnOnce(&Analyzed, PositionEncoding) -> T + Send + 'static,
     {
-        let shared = self.shared.clone();
-        let uri = uri.clone();
-        let encoding = shared.encoding();
-        let task = tokio::task::spawn_blocking(move || {
-            let Some(analyzed) = shared.analyzed(&uri)? else {
-                return Ok(None);
-            };
-            guard(what, || Some(feature(&analyzed, encoding)))
-        });
+        let Some(analyzed) = self.shared.analysis(uri).await? else {
+            return Ok(None);
+        };
+        let encoding = self.shared.encoding();
+        let task =
+            tokio::task::spawn_blocking(move || guard(what, || Some(feature(&analyzed, encoding))));
         match task.await {
             Ok(result) => result,
             Err(e) => Err(Error {
@@ -197,14 +378,13 @@ impl Backend {
         }
     }
 
-    /// Analyses the document after the debounce and publishes its diagnostics, unless a
-    /// newer version arrived meanwhile.
+    /// Analyses the document (after the debounce when typing) and publishes its
+    /// diagnostics, unless a newer version arrived meanwhile.
     fn schedule_diagnostics(&self, uri: Url, version: i32, debounce: bool) {
         if !*self.shared.push.read().unwrap_or_else(|p| p.into_inner()) {
             return;
         }
         let shared = self.shared.clone();
-        let client = self.client.clone();
         tokio::spawn(async move {
             if debounce {
                 tokio::time::sleep(DIAGNOSTICS_DEBOUNCE).await;
@@ -212,60 +392,9 @@ impl Backend {
             if shared.documents.version(&uri) != Some(version) {
                 return; // a newer edit has its own task
             }
-            let task_shared = shared.clone();
-            let task_uri = uri.clone();
-            let analysed =
-                tokio::task::spawn_blocking(move || task_shared.analyzed(&task_uri)).await;
-            let analyzed = match analysed {
-                Ok(Ok(Some(a))) => a,
-                Ok(Ok(None)) => return,
-                Ok(Err(e)) => {
-                    client.log_message(MessageType::ERROR, e.message).await;
-                    return;
-                }
-                Err(e) => {
-                    client
-                        .log_message(
-                            MessageType::ERROR,
-                            format!("sdeck: analysis task failed: {e}"),
-                        )
-                        .await;
-                    return;
-                }
-            };
-            publish(&shared, &client, &uri, &analyzed).await;
+            shared.start(&uri);
         });
     }
-}
-
-/// Publishes the diagnostics of one analysis if it is still the document's current
-/// version and nothing newer was published.
-async fn publish(shared: &Shared, client: &Client, uri: &Url, analyzed: &Analyzed) {
-    let mut published = shared.published.lock().await;
-    if shared.documents.version(uri) != Some(analyzed.version) {
-        return;
-    }
-    if published.get(uri).is_some_and(|v| *v > analyzed.version) {
-        return;
-    }
-    let converter = analyzed.converter(shared.encoding());
-    let diagnostics = match guard("converting diagnostics", || {
-        analyzed
-            .shown_diagnostics()
-            .iter()
-            .map(|d| converter.diagnostic(uri, d))
-            .collect::<Vec<_>>()
-    }) {
-        Ok(d) => d,
-        Err(e) => {
-            client.log_message(MessageType::ERROR, e.message).await;
-            return;
-        }
-    };
-    published.insert(uri.clone(), analyzed.version);
-    client
-        .publish_diagnostics(uri.clone(), diagnostics, Some(analyzed.version))
-        .await;
 }
 
 fn capabilities(encoding: PositionEncoding) -> ServerCapabilities {
@@ -285,7 +414,7 @@ fn capabilities(encoding: PositionEncoding) -> ServerCapabilities {
         )),
         hover_provider: Some(HoverProviderCapability::Simple(true)),
         completion_provider: Some(CompletionOptions {
-            trigger_characters: Some(vec!["[".to_string()]),
+            trigger_characters: Some(vec!["[".to_string(), "(".to_string()]),
             ..CompletionOptions::default()
         }),
         definition_provider: Some(OneOf::Left(true)),
@@ -306,7 +435,7 @@ fn capabilities(encoding: PositionEncoding) -> ServerCapabilities {
             SemanticTokensOptions {
                 legend: tokens::legend(),
                 full: Some(SemanticTokensFullOptions::Bool(true)),
-                range: None,
+                range: Some(true),
                 work_done_progress_options: WorkDoneProgressOptions::default(),
             },
         )),
@@ -345,6 +474,20 @@ impl LanguageServer for Backend {
             .as_ref()
             .is_some_and(|t| t.diagnostic.is_some());
         *self.shared.push.write().unwrap_or_else(|p| p.into_inner()) = !pulls;
+        // Plain text when the client puts it first, or does not take Markdown at all.
+        let formats = params
+            .capabilities
+            .text_document
+            .as_ref()
+            .and_then(|t| t.hover.as_ref())
+            .and_then(|h| h.content_format.as_ref());
+        let plain = formats.is_some_and(|list| {
+            list.first() == Some(&MarkupKind::PlainText) || !list.contains(&MarkupKind::Markdown)
+        });
+        self.shared.plain_hover.store(plain, Ordering::SeqCst);
+        if let Some(pid) = params.process_id {
+            watch_parent(pid);
+        }
         Ok(InitializeResult {
             capabilities: capabilities(encoding),
             server_info: Some(ServerInfo {
@@ -355,6 +498,7 @@ impl LanguageServer for Backend {
     }
 
     async fn shutdown(&self) -> Result<()> {
+        SHUT_DOWN.store(true, Ordering::SeqCst);
         Ok(())
     }
 
@@ -419,11 +563,7 @@ impl LanguageServer for Backend {
     async fn did_close(&self, params: DidCloseTextDocumentParams) {
         let uri = params.text_document.uri;
         self.shared.documents.close(&uri);
-        self.shared
-            .analyses
-            .lock()
-            .unwrap_or_else(|p| p.into_inner())
-            .remove(&uri);
+        self.shared.slots().remove(&uri);
         self.shared.published.lock().await.remove(&uri);
         if *self.shared.push.read().unwrap_or_else(|p| p.into_inner()) {
             self.client.publish_diagnostics(uri, Vec::new(), None).await;
@@ -459,8 +599,13 @@ impl LanguageServer for Backend {
 
     async fn hover(&self, params: HoverParams) -> Result<Option<Hover>> {
         let p = params.text_document_position_params;
+        let format = if self.shared.plain_hover.load(Ordering::SeqCst) {
+            MarkupKind::PlainText
+        } else {
+            MarkupKind::Markdown
+        };
         self.with_analysis(&p.text_document.uri, "hover", move |a, encoding| {
-            hover::hover(a, encoding, p.position)
+            hover::hover(a, encoding, p.position, format)
         })
         .await
         .map(Option::flatten)
@@ -574,7 +719,25 @@ impl LanguageServer for Backend {
             |a, encoding| {
                 SemanticTokensResult::Tokens(SemanticTokens {
                     result_id: None,
-                    data: tokens::semantic_tokens(a, encoding),
+                    data: tokens::semantic_tokens(a, encoding, None),
+                })
+            },
+        )
+        .await
+    }
+
+    async fn semantic_tokens_range(
+        &self,
+        params: SemanticTokensRangeParams,
+    ) -> Result<Option<SemanticTokensRangeResult>> {
+        let range = params.range;
+        self.with_analysis(
+            &params.text_document.uri,
+            "semantic tokens",
+            move |a, encoding| {
+                SemanticTokensRangeResult::Tokens(SemanticTokens {
+                    result_id: None,
+                    data: tokens::semantic_tokens(a, encoding, Some(range)),
                 })
             },
         )
@@ -612,7 +775,6 @@ impl LanguageServer for Backend {
 /// process (as the protocol allows) would wait for ever.
 struct EndOnExit<S> {
     inner: S,
-    shut_down: bool,
 }
 
 impl<S> tower_service::Service<tower_lsp::jsonrpc::Request> for EndOnExit<S>
@@ -632,30 +794,69 @@ where
 
     fn call(&mut self, request: tower_lsp::jsonrpc::Request) -> Self::Future {
         match request.method() {
-            "shutdown" => self.shut_down = true,
+            "shutdown" => SHUT_DOWN.store(true, Ordering::SeqCst),
             // The protocol: exit code 0 after a shutdown request, 1 without one.
-            "exit" => std::process::exit(if self.shut_down { 0 } else { 1 }),
+            "exit" => std::process::exit(exit_code()),
             _ => {}
         }
         self.inner.call(request)
     }
 }
 
-/// Serves the protocol on stdin/stdout until the client exits.
+/// Ends the process when the process `pid` (the client, from `initialize`) is gone, so
+/// that a server whose editor died does not live on.
+fn watch_parent(pid: u32) {
+    tokio::spawn(async move {
+        let mut every = tokio::time::interval(PARENT_CHECK);
+        loop {
+            every.tick().await;
+            if !process_alive(pid) {
+                std::process::exit(exit_code());
+            }
+        }
+    });
+}
+
+/// Whether a process exists (signal 0 delivers nothing and only checks).
+#[cfg(unix)]
+fn process_alive(pid: u32) -> bool {
+    let Ok(pid) = libc::pid_t::try_from(pid) else {
+        return true;
+    };
+    // SAFETY: kill with signal 0 sends no signal; it only reports whether `pid` exists.
+    let status = unsafe { libc::kill(pid, 0) };
+    status == 0 || std::io::Error::last_os_error().raw_os_error() == Some(libc::EPERM)
+}
+
+/// Elsewhere the check is not made; stdin closing still ends the server.
+#[cfg(not(unix))]
+fn process_alive(_pid: u32) -> bool {
+    true
+}
+
+/// Serves the protocol on stdin/stdout until the client exits, closes stdin or dies.
 pub fn run_stdio() -> std::io::Result<()> {
     let runtime = tokio::runtime::Builder::new_multi_thread()
         .worker_threads(2)
+        // One analysis per document at a time, and features run after it: a bounded pool.
+        .max_blocking_threads(16)
         .enable_all()
         .build()?;
     runtime.block_on(async {
         let (service, socket) = LspService::build(Backend::new)
             .custom_method(DOCUMENT_TEXT_METHOD, Backend::document_text)
             .finish();
-        let service = EndOnExit {
-            inner: service,
-            shut_down: false,
-        };
-        Server::new(tokio::io::stdin(), tokio::io::stdout(), socket)
+        let service = EndOnExit { inner: service };
+        // When the client closes stdin it is gone: give tower-lsp a moment to send what
+        // it still has, then end.
+        let pipes = transport::start(tokio::io::stdin(), tokio::io::stdout(), || {
+            std::thread::spawn(|| {
+                std::thread::sleep(Duration::from_millis(500));
+                std::process::exit(exit_code());
+            });
+        });
+        Server::new(pipes.input, pipes.output, socket)
+            .concurrency_level(CONCURRENT_MESSAGES)
             .serve(service)
             .await;
     });

@@ -8,7 +8,7 @@ use sdeck_diagnostics::Span;
 use sdeck_semantics::SymbolKind;
 use sdeck_syntax::ast::{Expr, StatementKind, UnitExpr};
 use tower_lsp::lsp_types::{
-    SemanticToken, SemanticTokenModifier, SemanticTokenType, SemanticTokensLegend,
+    Range, SemanticToken, SemanticTokenModifier, SemanticTokenType, SemanticTokensLegend,
 };
 
 const KEYWORD: u32 = 0;
@@ -50,8 +50,35 @@ fn kind_type(kind: SymbolKind) -> u32 {
     }
 }
 
-pub fn semantic_tokens(a: &Analyzed, encoding: PositionEncoding) -> Vec<SemanticToken> {
+/// The tokens of the whole document, or of `range`: the version's token spans are found
+/// once, and a request costs the tokens it returns.
+pub fn semantic_tokens(
+    a: &Analyzed,
+    encoding: PositionEncoding,
+    range: Option<Range>,
+) -> Vec<SemanticToken> {
+    let all = a.tokens.get_or_init(|| token_spans(a));
+    let converter = a.converter(encoding);
+    let part = match range {
+        None => all.as_slice(),
+        Some(range) => {
+            let (start, end) = (converter.offset(range.start), converter.offset(range.end));
+            let first = all.partition_point(|(span, _, _)| span.end <= start);
+            let last = all.partition_point(|(span, _, _)| span.start < end);
+            all.get(first..last.max(first)).unwrap_or(&[])
+        }
+    };
+    encode(a, encoding, part)
+}
+
+/// Every token span of the version, sorted, without overlaps or empty spans.
+fn token_spans(a: &Analyzed) -> Vec<(Span, u32, u32)> {
     let analysis = &a.check.analysis;
+    let kind_of: std::collections::HashMap<usize, SymbolKind> = analysis
+        .symbols
+        .iter()
+        .map(|s| (s.name_span.start, s.kind))
+        .collect();
     let mut spans: Vec<(Span, u32, u32)> = Vec::new();
     for c in &analysis.file.comments {
         spans.push((c.span.clone(), COMMENT, 0));
@@ -60,12 +87,8 @@ pub fn semantic_tokens(a: &Analyzed, encoding: PositionEncoding) -> Vec<Semantic
         spans.push((s.name_span.clone(), kind_type(s.kind), DECLARATION));
     }
     for r in &analysis.references {
-        if let Some(s) = analysis
-            .symbols
-            .iter()
-            .find(|s| s.name_span == r.declaration)
-        {
-            spans.push((r.span.clone(), kind_type(s.kind), 0));
+        if let Some(kind) = kind_of.get(&r.declaration.start) {
+            spans.push((r.span.clone(), kind_type(*kind), 0));
         }
     }
     let unit = |u: &UnitExpr, spans: &mut Vec<(Span, u32, u32)>| {
@@ -134,7 +157,16 @@ pub fn semantic_tokens(a: &Analyzed, encoding: PositionEncoding) -> Vec<Semantic
             spans.push((start..start + written, KEYWORD, 0));
         }
     }
-    encode(a, encoding, spans)
+    spans.sort_by_key(|(span, _, _)| (span.start, span.end));
+    let mut last_end = 0usize;
+    spans.retain(|(span, _, _)| {
+        let keep = span.start >= last_end && span.end > span.start && span.end <= a.text.len();
+        if keep {
+            last_end = span.end;
+        }
+        keep
+    });
+    spans
 }
 
 fn expression(e: &Expr, spans: &mut Vec<(Span, u32, u32)>) {
@@ -151,21 +183,16 @@ fn expression(e: &Expr, spans: &mut Vec<(Span, u32, u32)>) {
     });
 }
 
-/// Sorts, drops overlaps and empty or multi-line tokens, and delta-encodes.
+/// Delta-encodes sorted token spans, dropping those that span lines.
 fn encode(
     a: &Analyzed,
     encoding: PositionEncoding,
-    mut spans: Vec<(Span, u32, u32)>,
+    spans: &[(Span, u32, u32)],
 ) -> Vec<SemanticToken> {
     let converter = a.converter(encoding);
-    spans.sort_by_key(|(span, _, _)| (span.start, span.end));
-    let mut out = Vec::new();
-    let mut last_end = 0usize;
+    let mut out = Vec::with_capacity(spans.len());
     let (mut prev_line, mut prev_col) = (0u32, 0u32);
     for (span, token_type, modifiers) in spans {
-        if span.start < last_end || span.end <= span.start || span.end > a.text.len() {
-            continue;
-        }
         let start = converter.position(span.start);
         let end = converter.position(span.end);
         if end.line != start.line {
@@ -181,12 +208,11 @@ fn encode(
             delta_line,
             delta_start,
             length: end.character - start.character,
-            token_type,
-            token_modifiers_bitset: modifiers,
+            token_type: *token_type,
+            token_modifiers_bitset: *modifiers,
         });
         prev_line = start.line;
         prev_col = start.character;
-        last_end = span.end;
     }
     out
 }
