@@ -233,6 +233,19 @@ def test_hovers_on_a_slow_document_do_not_hold_up_other_documents(raw):
     cancelled = client.answer(hovers[0], timeout=5)
     assert cancelled["error"]["code"] == -32800, cancelled
     answers = [client.answer(h, timeout=60) for h in hovers[1:]]
+    # On a loaded machine the analysis may outlast the server's wait (10 s): the answer
+    # is then an error that says so, and asking again finds the analysis.
+    deadline = time.monotonic() + 120
+    while any("result" not in a for a in answers) and time.monotonic() < deadline:
+        assert all(a.get("error", {}).get("code") in (None, -32803) for a in answers), answers
+        answers = [
+            a if "result" in a else client.request(
+                "textDocument/hover",
+                {"textDocument": {"uri": slow_uri}, "position": at(slow_text, "dx1 =", 1)},
+                timeout=60,
+            )
+            for a in answers
+        ]
     slow_at = time.monotonic() - started
     assert all("factor" in a["result"]["contents"]["value"] for a in answers), answers
     assert quick_at < slow_at, (quick_at, slow_at)
