@@ -699,7 +699,34 @@ fn correlation_not_psd(model: &Model, out: &mut Vec<Diagnostic>) {
     for other in model.correlations.iter().skip(1) {
         diagnostic = diagnostic.with_related(other.span.clone(), "also part of the matrix");
     }
+    for c in &model.correlations {
+        match &c.expr {
+            None => {}
+            Some(sdeck_semantics::Expr::Param(p)) => {
+                let name = model.params.get(*p).map_or("?", |p| p.name.as_str());
+                diagnostic = diagnostic.with_note(format!(
+                    "the correlation of `{}` and `{}` is the parameter `{name}` = {}: mend its value",
+                    shock_name(model, c.first),
+                    shock_name(model, c.second),
+                    number(c.value, 4)
+                ));
+            }
+            Some(_) => {
+                diagnostic = diagnostic.with_note(format!(
+                    "the correlation of `{}` and `{}` is written as an expression ({}); no \
+                     quick fix rewrites an expression: mend the parameters it uses",
+                    shock_name(model, c.first),
+                    shock_name(model, c.second),
+                    number(c.value, 4)
+                ));
+            }
+        }
+    }
     out.push(diagnostic);
+}
+
+fn shock_name(model: &Model, i: usize) -> &str {
+    model.shocks.get(i).map_or("?", |s| s.name.as_str())
 }
 
 /// `expectation-failed`: a pinned figure outside its admissible interval, or a figure

@@ -355,6 +355,16 @@ impl Report<'_> {
                  the estimate would lie beyond. No standard error is given there.\n",
             );
         }
+        for i in sdeck_fit::written_in(self.model, self.factors) {
+            let p = &self.model.params[i];
+            if p.expr.is_some() {
+                out.push_str(&format!(
+                    "\n{} is written as an expression of other parameters: it is not estimated \
+                     itself but follows them, and --write leaves it as written\n",
+                    p.name
+                ));
+            }
+        }
         if self.fit.estimates.len() > 1 {
             out.push_str("\ncorrelation of the estimates\n");
             let names: Vec<String> = self

@@ -190,8 +190,22 @@ fn normal_quantile(p: f64) -> f64 {
         .unwrap_or(f64::NAN)
 }
 
-/// Parameters that appear in the equations of the given factors, in declaration order.
+/// Parameters that appear in the equations of the given factors, in declaration order. A
+/// parameter written as an expression of others (`param stress = theta + 150bp`) is not
+/// estimated itself: the free parameters of its expression stand in its place, and it
+/// follows them.
 pub fn parameters_in(model: &Model, factors: &[usize]) -> Vec<usize> {
+    let mut out: Vec<usize> = written_in(model, factors)
+        .into_iter()
+        .flat_map(|p| model.free_params_of(p))
+        .collect();
+    out.sort_unstable();
+    out.dedup();
+    out
+}
+
+/// Parameters written in the equations of the given factors, derived ones included.
+pub fn written_in(model: &Model, factors: &[usize]) -> Vec<usize> {
     let mut out = Vec::new();
     for &f in factors {
         if let Some(eq) = model.factors.get(f).and_then(|s| s.equation.as_ref()) {
@@ -638,6 +652,7 @@ pub fn fit(problem: &Problem) -> Result<Fit, FitError> {
         for (slot, value) in estimated.iter().zip(theta) {
             all[*slot] = *value;
         }
+        model.derive_params(&mut all);
         all
     };
     let cost = |theta: &[f64]| {

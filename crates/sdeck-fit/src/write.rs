@@ -115,9 +115,17 @@ pub fn rewrite(
         let StatementKind::Param(declaration) = &statement.kind else {
             continue;
         };
+        let Some(number) = declaration.literal() else {
+            return Err(format!(
+                "{} is written as an expression of other parameters (`{}`); its value follows \
+                 them and is not rewritten",
+                p.name,
+                source.get(declaration.value_span()).unwrap_or("").trim()
+            ));
+        };
         let written = r.value / p.scale;
         let se = r.se / p.scale;
-        let original = declaration.value.text.as_str();
+        let original = number.text.as_str();
         // More decimals until the rounded value keeps the bound (0 for a `> 0`).
         let mut text = styled(original, written, se, 0);
         for extra in 1..12 {
@@ -125,7 +133,7 @@ pub fn rewrite(
                 .statements
                 .first()
                 .and_then(|s| match &s.kind {
-                    StatementKind::Param(d) => Some(d.value.value * p.scale),
+                    StatementKind::Param(d) => d.literal().map(|n| n.value * p.scale),
                     _ => None,
                 });
             if value.is_some_and(|v| p.bound.as_ref().is_none_or(|b| b.contains(v))) {
@@ -135,7 +143,7 @@ pub fn rewrite(
         }
         // Keep the columns of a hand-aligned file: the spaces after the number absorb the
         // change of width (at least one stays).
-        let span = declaration.value.span.clone();
+        let span = number.span.clone();
         let after = &source[span.end..];
         let spaces = after.chars().take_while(|c| *c == ' ').count();
         let at_line_end = matches!(after[spaces..].chars().next(), None | Some('\n' | '\r'));

@@ -398,3 +398,80 @@ fn fixed_parameters_keep_their_file_values() {
     assert_eq!(fit.estimates.len(), 2);
     assert!(fit.estimates.iter().all(|e| e.param != level));
 }
+
+#[test]
+fn a_parameter_written_as_an_expression_follows_the_estimates_and_is_not_rewritten() {
+    // level = base + gap: base is estimated (gap fixed), level follows; the OU closed form
+    // for the level (Brigo et al. 2007, as in the test above) is then base + gap.
+    let text = "model rate\nclock year\n\
+        param kappa = 1.0 [1/year] > 0\n\
+        param base = 1.5%\n\
+        param gap = 50bp\n\
+        param level = base + gap\n\
+        param vol = 1% [1/sqrt(year)] > 0\n\
+        shock W\n\
+        factor r = level\n\
+        dr = kappa * (level - r) dt + vol dW\n";
+    let m = model(text);
+    let dt = 1.0 / 52.0;
+    let x = ou_path(11, 600, dt, 2.5, 0.03, 0.012);
+    let times: Vec<f64> = (0..x.len()).map(|i| i as f64 * dt).collect();
+    let series = Series {
+        times: times.clone(),
+        values: vec![x.iter().map(|v| Some(*v)).collect()],
+    };
+    let gap = m.param_index("gap").expect("gap");
+    let fitted = fit(&Problem {
+        model: &m,
+        factors: &[0],
+        fixed: &[gap],
+        series: &series,
+    })
+    .expect("fits");
+    let names: Vec<&str> = fitted
+        .estimates
+        .iter()
+        .map(|e| m.params[e.param].name.as_str())
+        .collect();
+    assert_eq!(names, ["kappa", "base", "vol"]);
+    // The same series with the level as a plain parameter.
+    let plain = model(OU);
+    let direct = run(&plain, &times, &x).expect("fits");
+    let (base, _) = estimate(&fitted, &m, "base");
+    let (level, _) = estimate(&direct, &plain, "level");
+    assert!(
+        (base + 0.005 - level).abs() < 1e-7,
+        "{base} + 0.005 vs {level}"
+    );
+    // Write-back rewrites base and leaves `level = base + gap` as written.
+    let rewrites: Vec<sdeck_fit::write::Rewrite> = fitted
+        .estimates
+        .iter()
+        .map(|e| sdeck_fit::write::Rewrite {
+            param: e.param,
+            value: e.estimate,
+            se: e.se,
+        })
+        .collect();
+    let note = sdeck_fit::write::Note {
+        date: "2026-12-02".to_string(),
+        data: "rates.csv".to_string(),
+    };
+    let written = sdeck_fit::write::rewrite(text, "rate", &m, &rewrites, &note).expect("writes");
+    assert!(written.contains("param level = base + gap\n"), "{written}");
+    assert!(!written.contains("param base = 1.5%"), "{written}");
+    // Asked to rewrite the expression itself, it refuses and writes nothing.
+    let level_index = m.param_index("level").expect("level");
+    let refused = sdeck_fit::write::rewrite(
+        text,
+        "rate",
+        &m,
+        &[sdeck_fit::write::Rewrite {
+            param: level_index,
+            value: 0.03,
+            se: 0.001,
+        }],
+        &note,
+    );
+    assert!(refused.is_err_and(|e| e.contains("written as an expression")));
+}

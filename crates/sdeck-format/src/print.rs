@@ -3,8 +3,8 @@
 
 use crate::Printed;
 use sdeck_syntax::ast::{
-    BinaryOp, Bound, Condition, Declaration, Differential, Expr, Quantity, Sign, StatementKind,
-    UnitExpr,
+    BinaryOp, Bound, Condition, Declaration, DeclaredValue, Differential, Expr, Quantity, Sign,
+    StatementKind, UnitExpr,
 };
 
 /// Prints a statement; declarations come back as columns for alignment.
@@ -28,7 +28,9 @@ pub(crate) fn statement(source: &str, kind: &StatementKind) -> Printed {
             value,
         } => Printed::Flat(format!(
             "corr {} {} = {}",
-            first.name, second.name, value.text
+            first.name,
+            second.name,
+            expr(source, value)
         )),
         StatementKind::Measure { name } => Printed::Flat(format!("measure {}", name.name)),
         StatementKind::Discount { rate } => {
@@ -106,10 +108,12 @@ fn declaration(keyword: &str, source: &str, d: &Declaration) -> [String; 5] {
     [
         keyword.to_string(),
         d.name.name.clone(),
-        format!("= {}", d.value.text),
-        d.unit
-            .as_ref()
-            .map(|u| format!("[{}]", unit(source, d.value.span.end, u).0))
+        match &d.value {
+            DeclaredValue::Literal { number, .. } => format!("= {}", number.text),
+            DeclaredValue::Expr(e) => format!("= {}", expr(source, e)),
+        },
+        d.unit()
+            .map(|u| format!("[{}]", unit(source, d.value_span().end, u).0))
             .unwrap_or_default(),
         d.bound.as_ref().map(bound).unwrap_or_default(),
     ]

@@ -148,8 +148,8 @@ fn meaning(source: &str) -> String {
     let mut out = format!("{} {} {:?}\n", model.name, model.clock.unit, model.horizon);
     for p in &model.params {
         out += &format!(
-            "param {} {:?} {:?} {:?} {:?}\n",
-            p.name, p.value, p.unit_text, p.bound, p.description
+            "param {} {:?} {:?} {:?} {:?} {:?}\n",
+            p.name, p.value, p.unit_text, p.bound, p.description, p.expr
         );
     }
     for s in &model.factors {
@@ -162,15 +162,15 @@ fn meaning(source: &str) -> String {
             format!("{:?} | {}", e.drift, terms.join(" "))
         });
         out += &format!(
-            "factor {} {:?} {:?} {:?}\n",
-            s.name, s.initial, s.domain, eq
+            "factor {} {:?} {:?} {:?} {:?}\n",
+            s.name, s.initial, s.domain, eq, s.initial_expr
         );
     }
     for n in &model.shocks {
         out += &format!("shock {} {:?}\n", n.name, n.description);
     }
     for c in &model.correlations {
-        out += &format!("corr {} {} {:?}\n", c.first, c.second, c.value);
+        out += &format!("corr {} {} {:?} {:?}\n", c.first, c.second, c.value, c.expr);
     }
     for l in &model.lets {
         out += &format!("let {} {:?}\n", l.name, l.value);
@@ -224,8 +224,17 @@ mod random_models {
                 "param", "vol", "=", "3bp", "[", "EUR", "/", "sqrt", "(", "bday", ")", "]", ">=",
                 "0",
             ],
-            vec!["shock", "W", ",", "V"],
-            vec!["corr", "W", "V", "=", "-0.25"],
+            // Declared values and correlations as constant expressions of parameters.
+            vec![
+                "param", "stressed", "=", "level", "+", "50bp", "[", "EUR", "]", "*", "(", "1",
+                "-", "0.5", ")", "in", "[", "0", ",", "100", "]",
+            ],
+            vec!["param", "rho", "=", "-0.25", "in", "[", "-1", ",", "1", "]"],
+            vec!["shock", "W", ",", "V", ",", "U"],
+            vec![
+                "corr", "W", ",", "V", "=", "rho", "*", "(", "1", "-", "0.2", ")",
+            ],
+            vec!["corr", "V", "U", "=", "-", "0.25"],
             vec![
                 "let", "target", "=", "(", "level", "-", "-", "1", ")", "*", "exp", "(", "-", "κ",
                 "^", "2", "*", "t", ")", "/", "2",
@@ -242,7 +251,7 @@ mod random_models {
                 "t", "-", "1", "[", "year", "]", ",", "0", "[", "year", "]", ")", "*", "level",
                 "/", "1", "[", "year", "]",
             ],
-            vec!["factor", "x", "=", "1", "[", "EUR", "]"],
+            vec!["factor", "x", "=", "stressed", "-", "1", "[", "EUR", "]"],
             vec![
                 "dx", "=", "κ", "*", "(", "level", "-", "x", ")", "*", "dt", "+", "vol", "dW", "-",
                 "0.1", "*", "vol", "*", "dV",
@@ -298,7 +307,7 @@ mod random_models {
         #[test]
         fn any_spacing_formats_to_the_same_meaning_and_comments(
             gaps in proptest::collection::vec(0usize..4, 300),
-            comments in proptest::collection::vec(any::<bool>(), 18),
+            comments in proptest::collection::vec(any::<bool>(), 24),
         ) {
             let source = render(&gaps, &comments);
             let Outcome::Formatted(once) = format(&source) else {

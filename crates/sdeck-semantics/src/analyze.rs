@@ -107,6 +107,38 @@ struct Analyzer<'a> {
     let_sizes: Vec<usize>,
     /// Unit spans of param/state declarations, for fixes.
     param_units: Vec<Option<(Span, String)>>,
+    /// Set while a declared value or a correlation is resolved: it may use only numbers
+    /// and parameters (declared before it, for a declaration).
+    constant: Option<Constant>,
+    /// Every name declared anywhere in the file and what it is (`parameter`, `factor`,
+    /// ...), to tell a name declared later from one never declared.
+    declared_anywhere: HashMap<String, &'static str>,
+}
+
+/// A declared value resolved: see [`Analyzer::declared_value`].
+struct DeclaredValue {
+    /// In the declared unit (clock units for an expression).
+    written: f64,
+    /// In clock units.
+    value: f64,
+    scale: f64,
+    /// Whether the unit and dimension are known (no error in them).
+    known: bool,
+    dimension: Dimension,
+    unit_text: Option<String>,
+    expr: Option<Expr>,
+}
+
+/// What a constant expression being resolved belongs to.
+#[derive(Clone)]
+struct Constant {
+    /// "the value of parameter `stress`", "the correlation of `W` and `B`".
+    what: String,
+    /// Whether it is a declaration (parameters declared after it are then refused).
+    declaration: bool,
+    /// For a `param` whose value uses `t`: the span of the keyword `param`, for the fix
+    /// that makes it a `let` (`None` when a bound would be lost).
+    param_keyword: Option<Span>,
 }
 
 fn dimension_error(span: Span, message: impl Into<String>) -> Diagnostic {
@@ -160,6 +192,8 @@ impl<'a> Analyzer<'a> {
             param_units: Vec::new(),
             expanded: 0,
             let_sizes: Vec::new(),
+            constant: None,
+            declared_anywhere: HashMap::new(),
         }
     }
 
@@ -357,6 +391,23 @@ impl<'a> Analyzer<'a> {
     fn declarations(&mut self) {
         let file = self.file;
         for statement in &file.statements {
+            let declared: Vec<(&str, &'static str)> = match &statement.kind {
+                StatementKind::Param(d) => vec![(d.name.name.as_str(), "parameter")],
+                StatementKind::Factor(d) => vec![(d.name.name.as_str(), "factor")],
+                StatementKind::Let { name, .. } => vec![(name.name.as_str(), "let")],
+                StatementKind::Shock { names } => {
+                    names.iter().map(|n| (n.name.as_str(), "shock")).collect()
+                }
+                StatementKind::Unit { name } => vec![(name.name.as_str(), "unit")],
+                _ => Vec::new(),
+            };
+            for (name, kind) in declared {
+                self.declared_anywhere
+                    .entry(name.to_string())
+                    .or_insert(kind);
+            }
+        }
+        for statement in &file.statements {
             match &statement.kind {
                 StatementKind::Param(decl) => {
                     let index = self.model.params.len();
@@ -369,29 +420,29 @@ impl<'a> Analyzer<'a> {
                     ) {
                         continue;
                     }
-                    let (dimension, scale, unit_text) = self.declared_unit(decl);
-                    let value = decl.value.value * scale;
-                    let bound = decl.bound.as_ref().map(|b| convert_bound(b, scale));
+                    let keyword = statement.span.start..statement.span.start + "param".len();
+                    let value = self.declared_value(decl, "parameter", Some(keyword));
+                    let bound = decl.bound.as_ref().map(|b| convert_bound(b, value.scale));
                     self.param_units.push(
-                        decl.unit
-                            .as_ref()
+                        decl.unit()
                             .map(|u| (u.span(), sdeck_units::unit_expr_text(u))),
                     );
                     self.model.params.push(Param {
                         name: decl.name.name.clone(),
                         name_span: decl.name.span.clone(),
                         span: statement.span.clone(),
-                        written: decl.value.value,
-                        value,
-                        scale,
-                        dimension,
-                        unit_text,
+                        written: value.written,
+                        value: value.value,
+                        scale: value.scale,
+                        dimension: value.dimension,
+                        unit_text: value.unit_text,
                         bound,
                         description: statement.description.clone(),
+                        expr: value.expr,
                     });
                     self.param_used.push(false);
-                    self.param_unit_ok.push(scale.is_finite());
-                    self.check_declaration(decl, "parameter", value, scale, bound);
+                    self.param_unit_ok.push(value.known);
+                    self.check_declaration(decl, "parameter", value.value, value.scale, bound);
                 }
                 StatementKind::Factor(decl) => {
                     let index = self.model.factors.len();
@@ -404,25 +455,31 @@ impl<'a> Analyzer<'a> {
                     ) {
                         continue;
                     }
-                    let (dimension, scale, unit_text) = self.declared_unit(decl);
-                    let initial = decl.value.value * scale;
-                    let bound = decl.bound.as_ref().map(|b| convert_bound(b, scale));
+                    let value = self.declared_value(decl, "factor", None);
+                    let bound = decl.bound.as_ref().map(|b| convert_bound(b, value.scale));
                     self.model.factors.push(Factor {
                         name: decl.name.name.clone(),
                         name_span: decl.name.span.clone(),
                         span: statement.span.clone(),
-                        written: decl.value.value,
-                        initial,
-                        scale,
-                        dimension,
-                        unit_text,
+                        written: value.written,
+                        initial: value.value,
+                        scale: value.scale,
+                        dimension: value.dimension,
+                        unit_text: value.unit_text,
                         domain: bound.unwrap_or_default(),
                         has_domain: bound.is_some(),
                         description: statement.description.clone(),
                         equation: None,
+                        initial_expr: value.expr,
                     });
-                    self.state_unit_ok.push(scale.is_finite());
-                    self.check_declaration(decl, "initial value of factor", initial, scale, bound);
+                    self.state_unit_ok.push(value.known);
+                    self.check_declaration(
+                        decl,
+                        "initial value of factor",
+                        value.value,
+                        value.scale,
+                        bound,
+                    );
                 }
                 StatementKind::Shock { names } => {
                     for name in names {
@@ -471,8 +528,8 @@ impl<'a> Analyzer<'a> {
         }
     }
 
-    fn declared_unit(&mut self, decl: &ast::Declaration) -> (Dimension, f64, Option<String>) {
-        match &decl.unit {
+    fn declared_unit(&mut self, unit: Option<&ast::UnitExpr>) -> (Dimension, f64, Option<String>) {
+        match unit {
             None => (Dimension::dimensionless(), 1.0, None),
             Some(unit) => {
                 let text = sdeck_units::unit_expr_text(unit);
@@ -482,6 +539,162 @@ impl<'a> Analyzer<'a> {
                 }
             }
         }
+    }
+
+    /// The value of a `param` or `factor`: a number in its declared unit, or a constant
+    /// expression of the parameters declared before it, resolved with its dimension and
+    /// evaluated in clock units.
+    fn declared_value(
+        &mut self,
+        decl: &ast::Declaration,
+        kind: &str,
+        param_keyword: Option<Span>,
+    ) -> DeclaredValue {
+        match &decl.value {
+            ast::DeclaredValue::Literal { number, unit } => {
+                let (dimension, scale, unit_text) = self.declared_unit(unit.as_ref());
+                DeclaredValue {
+                    written: number.value,
+                    value: number.value * scale,
+                    scale,
+                    known: scale.is_finite(),
+                    dimension,
+                    unit_text,
+                    expr: None,
+                }
+            }
+            ast::DeclaredValue::Expr(e) => {
+                let what = if kind == "parameter" {
+                    format!("the value of parameter `{}`", decl.name.name)
+                } else {
+                    format!("the initial value of factor `{}`", decl.name.name)
+                };
+                let (expr, dimension) = self.constant_expression(
+                    e,
+                    Constant {
+                        what,
+                        declaration: true,
+                        param_keyword: param_keyword.filter(|_| decl.bound.is_none()),
+                    },
+                );
+                let value = expr.eval(&self.model.param_values(), &[], 0.0);
+                let known = dimension.is_some() && !expr.is_invalid();
+                let dimension = dimension.unwrap_or_else(Dimension::dimensionless);
+                let unit_text = (!dimension.is_dimensionless())
+                    .then(|| dimension.display_in(self.clock_unit()));
+                DeclaredValue {
+                    written: value,
+                    value,
+                    scale: 1.0,
+                    known,
+                    dimension,
+                    unit_text,
+                    expr: Some(expr),
+                }
+            }
+        }
+    }
+
+    /// Resolves a constant expression: only numbers and parameters (see [`Constant`]).
+    fn constant_expression(
+        &mut self,
+        e: &ast::Expr,
+        constant: Constant,
+    ) -> (Expr, Option<Dimension>) {
+        let outer = self.constant.replace(constant);
+        self.expanded = 0;
+        let resolved = self.resolve(e);
+        self.constant = outer;
+        resolved
+    }
+
+    /// In a constant expression, a name that is not a parameter declared before it (or
+    /// `pi`): the error that says what may be used. `None` when the name is allowed.
+    fn refuse_in_constant(&mut self, ident: &ast::Ident) -> Option<(Expr, Option<Dimension>)> {
+        let constant = self.constant.clone()?;
+        let name = ident.name.as_str();
+        let allowed = if constant.declaration {
+            "numbers and parameters declared before it"
+        } else {
+            "numbers and parameters"
+        };
+        let (message, help, fix) = match (
+            name,
+            self.names.get(name),
+            self.declared_anywhere.get(name),
+        ) {
+            ("pi", ..) => return None,
+            ("t", ..) => {
+                let fix = constant.param_keyword.clone().map(|keyword| {
+                    (
+                        "Make it a `let`".to_string(),
+                        vec![TextEdit {
+                            span: keyword,
+                            new_text: "let".to_string(),
+                        }],
+                    )
+                });
+                let message = match constant.what.strip_prefix("the value of parameter ") {
+                    Some(param) => format!(
+                        "a parameter is a constant, but {param} uses the time `t`: use `let` for a value that moves with time"
+                    ),
+                    None => format!("{} uses the time `t`, but it is a constant", constant.what),
+                };
+                let help = match (&fix, constant.what.split('`').nth(1)) {
+                    (Some(_), Some(name)) => format!(
+                        "write `let {name} = ...` (a let has no bound); {} may use only {allowed}",
+                        constant.what
+                    ),
+                    _ => format!("{} may use only {allowed}", constant.what),
+                };
+                (message, help, fix)
+            }
+            (_, Some((Target::Param(_), _)), _) => return None,
+            (_, Some((Target::Factor(_), _)), _) | (_, None, Some(&"factor")) => (
+                format!(
+                    "{} uses the factor `{name}`, whose value moves",
+                    constant.what
+                ),
+                format!(
+                    "{} may use only {allowed}; write a parameter for the level you mean",
+                    constant.what
+                ),
+                None,
+            ),
+            (_, Some((Target::Let(_), _)), _) | (_, None, Some(&"let")) => (
+                format!("{} uses the let `{name}`", constant.what),
+                format!(
+                    "{} may use only {allowed}; declare `{name}` as a `param` if it is a constant",
+                    constant.what
+                ),
+                None,
+            ),
+            (_, None, Some(&"parameter")) => (
+                format!(
+                    "{} uses `{name}`, which is declared after it",
+                    constant.what
+                ),
+                format!(
+                    "{} may use only {allowed}: move `param {name}` above it",
+                    constant.what
+                ),
+                None,
+            ),
+            _ => return None,
+        };
+        let mut d =
+            Diagnostic::new(&rules::UNKNOWN_NAME, ident.span.clone(), message).with_help(help);
+        if let Some((title, edits)) = fix {
+            d = d.with_fix(title, edits);
+        }
+        self.diagnostics.push(d);
+        if let Some((target, _)) = self.names.get(name).cloned() {
+            self.reference(ident, &target);
+            if let Target::Let(i) = target {
+                self.let_used[i] = true;
+            }
+        }
+        Some((Expr::Invalid, None))
     }
 
     /// Bound and unit-scale checks of a param or state declaration.
@@ -496,13 +709,20 @@ impl<'a> Analyzer<'a> {
         if let Some(bound_interval) = bound {
             if value.is_finite() && !bound_interval.contains(value) {
                 let bound_text = decl.bound.as_ref().map(|b| b.span.clone());
+                let written = match decl.literal() {
+                    Some(number) => number.text.clone(),
+                    None => format!(
+                        "`{}` = {}",
+                        self.source.get(decl.value_span()).unwrap_or("").trim(),
+                        fmt_num(value)
+                    ),
+                };
                 let mut d = Diagnostic::new(
                     &rules::BOUND_VIOLATED,
-                    decl.value.span.clone(),
+                    decl.value_span(),
                     format!(
-                        "the {what} `{}` is {}, outside its declared bound {}",
+                        "the {what} `{}` is {written}, outside its declared bound {}",
                         decl.name.name,
-                        decl.value.text,
                         describe_bound(decl.bound.as_ref()),
                     ),
                 )
@@ -514,7 +734,7 @@ impl<'a> Analyzer<'a> {
                 self.diagnostics.push(d);
             }
         }
-        if let Some(unit) = &decl.unit {
+        if let (Some(unit), Some(number)) = (decl.unit(), decl.literal()) {
             if scale.is_finite() && scale != 1.0 {
                 let names: Vec<&str> = self.model.units.iter().map(|u| u.name.as_str()).collect();
                 let declared = |n: &str| names.contains(&n);
@@ -522,9 +742,9 @@ impl<'a> Analyzer<'a> {
                     .map(|v| v.dimension)
                     .unwrap_or_default();
                 let clock_text = dimension.display_in(self.clock_unit());
-                let converted = decl.value.value * scale;
+                let converted = number.value * scale;
                 let new_text = format!("{} [{}]", fmt_num(converted), clock_text);
-                let replace = decl.value.span.start..unit_bracket_end(self.source, unit);
+                let replace = number.span.start..unit_bracket_end(self.source, unit);
                 self.diagnostics.push(
                     Diagnostic::new(
                         &rules::UNIT_SCALE,
@@ -532,7 +752,7 @@ impl<'a> Analyzer<'a> {
                         format!(
                             "`{}` = {} [{}] is {} [{}] on the model's clock (×{})",
                             decl.name.name,
-                            decl.value.text,
+                            number.text,
                             sdeck_units::unit_expr_text(unit),
                             fmt_num(converted),
                             clock_text,
@@ -1075,6 +1295,9 @@ impl<'a> Analyzer<'a> {
     }
 
     fn resolve_name(&mut self, ident: &ast::Ident) -> (Expr, Option<Dimension>) {
+        if let Some(refused) = self.refuse_in_constant(ident) {
+            return refused;
+        }
         match ident.name.as_str() {
             "t" => return (Expr::Time, Some(Dimension::time())),
             "pi" => {
@@ -1220,14 +1443,49 @@ impl<'a> Analyzer<'a> {
                 );
                 continue;
             }
-            if !(-1.0..=1.0).contains(&value.value) {
+            let (expr, dimension) = self.constant_expression(
+                value,
+                Constant {
+                    what: format!("the correlation of `{}` and `{}`", first.name, second.name),
+                    declaration: false,
+                    param_keyword: None,
+                },
+            );
+            if let Some(d) = dimension.as_ref().filter(|d| !d.is_dimensionless()) {
                 self.diagnostics.push(
-                    Diagnostic::new(&rules::CORRELATION_RANGE, value.span.clone(), format!("the correlation of `{}` and `{}` is {}, outside [-1, 1]", first.name, second.name, value.text))
+                    dimension_error(
+                        value.span(),
+                        format!(
+                            "the correlation of `{}` and `{}` must be a pure number, but this one is {}",
+                            first.name,
+                            second.name,
+                            d.describe()
+                        ),
+                    )
+                    .with_help("write a number between -1 and 1, or a dimensionless parameter"),
+                );
+                continue;
+            }
+            if dimension.is_none() || expr.is_invalid() {
+                continue;
+            }
+            let rho = expr.eval(&self.model.param_values(), &[], 0.0);
+            let text = self.source.get(value.span()).unwrap_or("").trim();
+            let written = if matches!(expr, Expr::Const(_)) || is_negated_number(value) {
+                text.to_string()
+            } else {
+                format!("`{text}` = {}", fmt_num(rho))
+            };
+            if !(-1.0..=1.0).contains(&rho) {
+                self.diagnostics.push(
+                    Diagnostic::new(&rules::CORRELATION_RANGE, value.span(), format!("the correlation of `{}` and `{}` is {written}, outside [-1, 1]", first.name, second.name))
                         .with_label("must lie in [-1, 1]")
                         .with_help("a correlation is a number between -1 and 1; a value in percent is written `40%`"),
                 );
                 continue;
             }
+            let mut mentioned = Vec::new();
+            expr.params(&mut mentioned);
             let key = (a.min(b), a.max(b));
             if let Some(prev) = seen.get(&key) {
                 self.diagnostics.push(
@@ -1248,8 +1506,10 @@ impl<'a> Analyzer<'a> {
             self.model.correlations.push(Correlation {
                 first: a,
                 second: b,
-                value: value.value,
+                value: rho,
                 span: statement.span.clone(),
+                value_span: value.span(),
+                expr: (!mentioned.is_empty()).then_some(expr),
             });
         }
     }
@@ -1653,7 +1913,7 @@ impl<'a> Analyzer<'a> {
     fn param_value_end(&self, param_index: usize) -> Option<usize> {
         let name = &self.model.params[param_index].name;
         self.file.statements.iter().find_map(|s| match &s.kind {
-            StatementKind::Param(decl) if &decl.name.name == name => Some(decl.value.span.end),
+            StatementKind::Param(decl) if &decl.name.name == name => Some(decl.value_span().end),
             _ => None,
         })
     }
@@ -2156,6 +2416,17 @@ impl<'a> Analyzer<'a> {
                 );
             }
         }
+    }
+}
+
+/// Whether `e` is a number, possibly negated (`-0.4`).
+fn is_negated_number(e: &ast::Expr) -> bool {
+    match e {
+        ast::Expr::Number(_) => true,
+        ast::Expr::Neg { operand, .. } | ast::Expr::Paren { inner: operand, .. } => {
+            is_negated_number(operand)
+        }
+        _ => false,
     }
 }
 

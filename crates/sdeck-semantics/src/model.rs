@@ -203,6 +203,10 @@ pub struct Param {
     /// The bound, converted to clock units.
     pub bound: Option<Interval>,
     pub description: Option<String>,
+    /// The value as a constant expression of earlier parameters (`param stress = theta +
+    /// 150bp`), when it is written as one; `value` is then its value at the file's
+    /// parameters, and [`Model::derive_params`] recomputes it after others change.
+    pub expr: Option<Expr>,
 }
 
 /// A `state` with its initial value and its equation.
@@ -224,6 +228,9 @@ pub struct Factor {
     pub has_domain: bool,
     pub description: Option<String>,
     pub equation: Option<Equation>,
+    /// The initial value as a constant expression of parameters (`factor r = theta`),
+    /// when it is written as one; `initial` is its value at the file's parameters.
+    pub initial_expr: Option<Expr>,
 }
 
 /// One diffusion term `coefficient dNOISE`.
@@ -262,8 +269,14 @@ pub struct Shock {
 pub struct Correlation {
     pub first: usize,
     pub second: usize,
+    /// The value at the file's parameters.
     pub value: f64,
     pub span: Span,
+    /// The span of the value as written (a number or an expression).
+    pub value_span: Span,
+    /// The value as a constant expression of parameters (`corr W, B = rho`), when it is
+    /// written with at least one parameter; `None` for a plain number.
+    pub expr: Option<Expr>,
 }
 
 /// A `let`, kept for hover and inlay hints (its uses are already inlined).
@@ -553,6 +566,24 @@ impl Expr {
         }
     }
 
+    /// Appends the index of every parameter the expression mentions.
+    pub fn params(&self, out: &mut Vec<usize>) {
+        match self {
+            Expr::Param(i) => out.push(*i),
+            Expr::Const(_) | Expr::Factor(_) | Expr::Time | Expr::Invalid => {}
+            Expr::Neg(a) => a.params(out),
+            Expr::Add(a, b)
+            | Expr::Sub(a, b)
+            | Expr::Mul(a, b)
+            | Expr::Div(a, b)
+            | Expr::Pow(a, b) => {
+                a.params(out);
+                b.params(out);
+            }
+            Expr::Call(_, args) => args.iter().for_each(|a| a.params(out)),
+        }
+    }
+
     /// Whether any part of the expression failed to resolve.
     pub fn is_invalid(&self) -> bool {
         match self {
@@ -570,6 +601,37 @@ impl Expr {
 }
 
 impl Model {
+    /// Recomputes, in declaration order, every parameter written as an expression of
+    /// earlier ones from `values` (clock units, one per parameter): after a fit or any
+    /// change of the free parameters, the derived ones follow.
+    pub fn derive_params(&self, values: &mut [f64]) {
+        for (i, p) in self.params.iter().enumerate() {
+            if let Some(expr) = &p.expr {
+                let value = expr.eval(values, &[], 0.0);
+                if let Some(slot) = values.get_mut(i) {
+                    *slot = value;
+                }
+            }
+        }
+    }
+
+    /// The free parameters a parameter's value rests on: itself when it is written as a
+    /// number, else the free parameters of its expression (in declaration order).
+    pub fn free_params_of(&self, param: usize) -> Vec<usize> {
+        let mut out = Vec::new();
+        let mut pending = vec![param];
+        while let Some(i) = pending.pop() {
+            match self.params.get(i).and_then(|p| p.expr.as_ref()) {
+                Some(expr) => expr.params(&mut pending),
+                None if i < self.params.len() => out.push(i),
+                None => {}
+            }
+        }
+        out.sort_unstable();
+        out.dedup();
+        out
+    }
+
     /// Parameter values in clock units, in declaration order.
     pub fn param_values(&self) -> Vec<f64> {
         self.params.iter().map(|p| p.value).collect()

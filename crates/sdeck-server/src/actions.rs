@@ -131,10 +131,13 @@ fn feller_fixes(a: &Analyzed, span: &Span) -> Vec<(String, Vec<TextEdit>)> {
             let Some(p) = model.params.get(p) else {
                 continue;
             };
-            let Some(decl) = a.declaration(SymbolKind::Param, &p.name) else {
+            let Some(number) = a
+                .declaration(SymbolKind::Param, &p.name)
+                .and_then(|d| d.literal())
+            else {
                 continue;
             };
-            let text = written_like(&decl.value.text, value);
+            let text = written_like(&number.text, value);
             let boundary = boundary
                 .replace("{speed}", &terms.speed)
                 .replace("{level}", &terms.level)
@@ -145,7 +148,7 @@ fn feller_fixes(a: &Analyzed, span: &Span) -> Vec<(String, Vec<TextEdit>)> {
                     p.name
                 ),
                 vec![TextEdit {
-                    span: decl.value.span.clone(),
+                    span: number.span.clone(),
                     new_text: text,
                 }],
             ));
@@ -164,13 +167,12 @@ fn nearest_correlation_fix(a: &Analyzed) -> Option<(String, Vec<TextEdit>)> {
     let mut written = vec![vec![false; near.len()]; near.len()];
     let mut last_corr_end: Option<usize> = None;
     let mut last_noise_end: Option<usize> = None;
+    // A correlation written as a parameter alone (`corr W, B = rho`) is mended by
+    // rewriting the parameter's value; one written as any other expression cannot be.
+    let mut param_targets: Vec<(usize, f64)> = Vec::new();
     for statement in &a.check.analysis.file.statements {
         match &statement.kind {
-            StatementKind::Corr {
-                first,
-                second,
-                value,
-            } => {
+            StatementKind::Corr { first, second, .. } => {
                 last_corr_end = Some(statement.span.end);
                 let i = model.shocks.iter().position(|n| n.name == first.name)?;
                 let j = model.shocks.iter().position(|n| n.name == second.name)?;
@@ -180,16 +182,54 @@ fn nearest_correlation_fix(a: &Analyzed) -> Option<(String, Vec<TextEdit>)> {
                 let target = near.get(i)?.get(j).copied()?;
                 written[i][j] = true;
                 written[j][i] = true;
-                if (target - value.value).abs() > 1e-12 {
-                    edits.push(TextEdit {
-                        span: value.span.clone(),
+                let c = model
+                    .correlations
+                    .iter()
+                    .find(|c| c.span == statement.span)?;
+                if (target - c.value).abs() <= 1e-12 {
+                    continue;
+                }
+                match &c.expr {
+                    None => edits.push(TextEdit {
+                        span: c.value_span.clone(),
                         new_text: fmt_num(target),
-                    });
+                    }),
+                    Some(sdeck_semantics::Expr::Param(p)) => {
+                        if param_targets.iter().any(|(q, t)| q == p && *t != target) {
+                            return None;
+                        }
+                        param_targets.push((*p, target));
+                    }
+                    Some(_) => return None,
                 }
             }
             StatementKind::Shock { .. } => last_noise_end = Some(statement.span.end),
             _ => {}
         }
+    }
+    for (p, target) in param_targets {
+        let param = model.params.get(p)?;
+        let number = a
+            .declaration(SymbolKind::Param, &param.name)
+            .and_then(|d| d.literal())?;
+        if param.scale != 1.0 || param.bound.is_some_and(|b| !b.contains(target)) {
+            return None;
+        }
+        // The parameter must not also be used anywhere but in correlations.
+        let elsewhere = a.check.analysis.references.iter().any(|r| {
+            r.declaration == param.name_span
+                && !model
+                    .correlations
+                    .iter()
+                    .any(|c| c.value_span.start <= r.span.start && r.span.end <= c.value_span.end)
+        });
+        if elsewhere {
+            return None;
+        }
+        edits.push(TextEdit {
+            span: number.span.clone(),
+            new_text: fmt_num(target),
+        });
     }
     let mut added = String::new();
     for i in 0..near.len() {

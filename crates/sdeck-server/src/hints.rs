@@ -40,7 +40,7 @@ fn all_hints(a: &Analyzed) -> Vec<(usize, String)> {
             continue;
         };
         if p.scale.is_finite() && p.scale != 1.0 {
-            if let Some(unit) = &declaration.unit {
+            if let Some(unit) = declaration.unit() {
                 // After the closing bracket of the unit.
                 let unit_end = unit.span().end;
                 let close = a

@@ -5,7 +5,7 @@
 use crate::analysis::{Analyzed, Role};
 use crate::documents::PositionEncoding;
 use sdeck_semantics::{fmt_num, Model, SymbolKind};
-use sdeck_syntax::ast::{Expr, Quantity, StatementKind, UnitExpr};
+use sdeck_syntax::ast::{DeclaredValue, Expr, Quantity, StatementKind, UnitExpr};
 use tower_lsp::lsp_types::{Hover, HoverContents, MarkupContent, MarkupKind, Position};
 
 /// The hover at `position`, in Markdown or in plain text as the client asked.
@@ -357,6 +357,16 @@ pub fn state_text(a: &Analyzed, i: usize) -> String {
     if let Some(description) = &state.description {
         s.push_str(&format!("\n_{}_\n", description.trim()));
     }
+    if state.initial_expr.is_some() {
+        if let Some(d) = a.declaration(SymbolKind::Factor, &state.name) {
+            s.push_str(&format!(
+                "\ninitial value `{}` = {} [{}]\n",
+                a.text.get(d.value_span()).unwrap_or("").trim(),
+                fmt_num(state.initial),
+                state.dimension.display_in(&model.clock.unit)
+            ));
+        }
+    }
     if law.is_some() {
         let f = sdeck_calculus::formulas(model, derivation, i);
         let lines: Vec<String> = [
@@ -393,9 +403,11 @@ fn param_text(a: &Analyzed, i: usize) -> String {
         .map(|u| format!(" [{u}]"))
         .unwrap_or_default();
     let declaration = a.declaration(SymbolKind::Param, &p.name);
-    let written = declaration
-        .map(|d| d.value.text.clone())
-        .unwrap_or_else(|| fmt_num(p.written));
+    let written = match declaration.map(|d| &d.value) {
+        Some(DeclaredValue::Literal { number, .. }) => number.text.clone(),
+        Some(DeclaredValue::Expr(e)) => format!("`{}`", a.text.get(e.span()).unwrap_or("").trim()),
+        None => fmt_num(p.written),
+    };
     let mut s = format!("**param `{}`** = {written}{written_unit}\n", p.name);
     if p.scale.is_finite() && p.scale != 1.0 {
         s.push_str(&format!(
@@ -546,7 +558,7 @@ fn unit_name_at(a: &Analyzed, offset: usize) -> Option<(String, sdeck_diagnostic
         }
         match &statement.kind {
             StatementKind::Param(d) | StatementKind::Factor(d) => {
-                if let Some(u) = &d.unit {
+                if let Some(u) = d.unit() {
                     visit(u);
                 }
             }

@@ -265,6 +265,56 @@ factor x = 0\ndx = 0.1 dA + 0.1 dB + 0.1 dC\n";
 }
 
 #[test]
+fn the_nearest_correlation_fix_rewrites_a_correlation_parameter_and_leaves_expressions() {
+    // `corr A B = rho`: the parameter's value is rewritten.
+    let text = "param rho = 0.9 in [-1, 1]\nshock A, B, C\ncorr A B = rho\ncorr B C = 0.9\n\
+corr A C = -0.9\nfactor x = 0\ndx = 0.1 dA + 0.1 dB + 0.1 dC\n";
+    assert!(rules_of(text).contains(&"correlation-not-psd"));
+    let a = analyzed(text);
+    let fix = actions(&a, text)
+        .into_iter()
+        .find(|c| c.title.contains("nearest correlation"))
+        .expect("fix offered");
+    let fixed = apply(text, fix.edit.as_ref().expect("edit"));
+    assert!(fixed.contains("corr A B = rho\n"), "{fixed}");
+    assert!(!fixed.contains("param rho = 0.9 "), "{fixed}");
+    assert!(
+        !rules_of(&fixed).contains(&"correlation-not-psd"),
+        "{fixed}"
+    );
+    // `corr A B = rho * 1`: no quick fix can rewrite an expression; the diagnostic says so.
+    let text = text.replace("corr A B = rho", "corr A B = rho * 1");
+    let a = analyzed(&text);
+    assert!(!actions(&a, &text)
+        .iter()
+        .any(|c| c.title.contains("nearest correlation")));
+    let psd = a
+        .check
+        .diagnostics
+        .iter()
+        .find(|d| d.rule == "correlation-not-psd")
+        .expect("still reported");
+    assert!(
+        psd.notes
+            .iter()
+            .any(|n| n.contains("no quick fix rewrites an expression")),
+        "{psd:?}"
+    );
+}
+
+#[test]
+fn hover_on_a_param_written_as_an_expression_shows_its_value() {
+    let text = "param theta = 3%\nparam stress = theta + 150bp\nshock W\nfactor r = stress\n\
+dr = (theta - r) * 1 [1/year] dt + 1% [1/sqrt(year)] dW\n";
+    let a = analyzed(text);
+    let shown = hover_text(&a, Position::new(1, 8));
+    assert!(shown.contains("`theta + 150bp`"), "{shown}");
+    assert!(shown.contains("value 0.045"), "{shown}");
+    let shown = hover_text(&a, Position::new(3, 8));
+    assert!(shown.contains("initial value `stress` = 0.045"), "{shown}");
+}
+
+#[test]
 fn a_semantic_fix_becomes_a_quick_fix_that_removes_its_diagnostic() {
     let text = "param k = 1 [1/year]\nfactor x = 0\ndx = -k * x dt + 0.1 dW\n";
     assert!(rules_of(text).contains(&"unknown-name"));

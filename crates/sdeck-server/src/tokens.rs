@@ -6,7 +6,7 @@ use crate::documents::PositionEncoding;
 use crate::hover::{walk_expr, walk_unit};
 use sdeck_diagnostics::Span;
 use sdeck_semantics::SymbolKind;
-use sdeck_syntax::ast::{Expr, StatementKind, UnitExpr};
+use sdeck_syntax::ast::{DeclaredValue, Expr, StatementKind, UnitExpr};
 use tower_lsp::lsp_types::{
     Range, SemanticToken, SemanticTokenModifier, SemanticTokenType, SemanticTokensLegend,
 };
@@ -110,15 +110,20 @@ fn token_spans(a: &Analyzed) -> Vec<(Span, u32, u32)> {
             }
             StatementKind::Unit { .. } => 4,
             StatementKind::Param(d) | StatementKind::Factor(d) => {
-                spans.push((d.value.span.clone(), NUMBER, 0));
-                if let Some(u) = &d.unit {
-                    unit(u, &mut spans);
+                match &d.value {
+                    DeclaredValue::Literal { number, unit: u } => {
+                        spans.push((number.span.clone(), NUMBER, 0));
+                        if let Some(u) = u {
+                            unit(u, &mut spans);
+                        }
+                    }
+                    DeclaredValue::Expr(e) => expression(e, &mut spans),
                 }
                 5
             }
             StatementKind::Shock { .. } => 5,
             StatementKind::Corr { value, .. } => {
-                spans.push((value.span.clone(), NUMBER, 0));
+                expression(value, &mut spans);
                 4
             }
             StatementKind::Let { value, .. } => {

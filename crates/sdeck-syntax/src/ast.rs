@@ -161,13 +161,58 @@ pub struct Bound {
     pub span: Span,
 }
 
-/// `param NAME = NUMBER [UNIT]? BOUND?` and `factor NAME = NUMBER [UNIT]? BOUND?`.
+/// `param NAME = VALUE BOUND?` and `factor NAME = VALUE BOUND?`.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Declaration {
     pub name: Ident,
-    pub value: Number,
-    pub unit: Option<UnitExpr>,
+    pub value: DeclaredValue,
     pub bound: Option<Bound>,
+}
+
+/// The value of a declaration as written.
+#[derive(Clone, Debug, PartialEq)]
+pub enum DeclaredValue {
+    /// A number with an optional unit: `2.4%`, `1.2 [1/year]`.
+    Literal {
+        number: Number,
+        unit: Option<UnitExpr>,
+    },
+    /// A constant expression of earlier parameters: `theta`, `theta + 150bp [1/year]`.
+    Expr(Expr),
+}
+
+impl Declaration {
+    /// The number, when the value is written as one.
+    pub fn literal(&self) -> Option<&Number> {
+        match &self.value {
+            DeclaredValue::Literal { number, .. } => Some(number),
+            DeclaredValue::Expr(_) => None,
+        }
+    }
+
+    /// The unit written after the number, if any.
+    pub fn unit(&self) -> Option<&UnitExpr> {
+        match &self.value {
+            DeclaredValue::Literal { unit, .. } => unit.as_ref(),
+            DeclaredValue::Expr(_) => None,
+        }
+    }
+
+    /// The expression, when the value is written as one.
+    pub fn expression(&self) -> Option<&Expr> {
+        match &self.value {
+            DeclaredValue::Literal { .. } => None,
+            DeclaredValue::Expr(e) => Some(e),
+        }
+    }
+
+    /// The span of the value (the number, or the whole expression), without its unit.
+    pub fn value_span(&self) -> Span {
+        match &self.value {
+            DeclaredValue::Literal { number, .. } => number.span.clone(),
+            DeclaredValue::Expr(e) => e.span(),
+        }
+    }
 }
 
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -405,10 +450,11 @@ pub enum StatementKind {
     Shock {
         names: Vec<Ident>,
     },
+    /// `corr A, B = EXPR`: a number or a constant expression of parameters.
     Corr {
         first: Ident,
         second: Ident,
-        value: Number,
+        value: Expr,
     },
     Let {
         name: Ident,

@@ -310,6 +310,7 @@ fn describe_rule(rule: Rule) -> Option<&'static str> {
     Some(match rule {
         Rule::name | Rule::name_or_function | Rule::juxtaposed | Rule::declaration => "a name",
         Rule::number | Rule::signed_number | Rule::quantity | Rule::quantity_atom => "a number",
+        Rule::literal_value => "a value",
         Rule::minus => "`-`",
         Rule::add_op => "`+` or `-`",
         Rule::mul_op | Rule::unit_op => "`*` or `/`",
@@ -415,10 +416,10 @@ fn statement_help(src: &str) -> Option<&'static str> {
         "clock" => "the clock is set with `clock UNIT`, e.g. `clock year`",
         "horizon" => "the horizon is `horizon NUMBER UNIT`, e.g. `horizon 6 month`",
         "unit" => "a unit is declared with `unit NAME`, e.g. `unit EUR`",
-        "param" => "a parameter is `param NAME = NUMBER [UNIT] BOUND`, e.g. `param kappa = 1.8 [1/year] > 0`",
+        "param" => "a parameter is `param NAME = NUMBER [UNIT] BOUND`, e.g. `param kappa = 1.8 [1/year] > 0`, or a constant expression of earlier parameters, e.g. `param stressed = theta + 150bp`",
         "factor" => "a factor is `factor NAME = NUMBER [UNIT] BOUND`, e.g. `factor r = 2.75% >= 0`",
         "shock" => "shocks are declared with `shock NAME, NAME`, e.g. `shock W1, W2`",
-        "corr" => "a correlation is `corr NAME NAME = NUMBER`, e.g. `corr W1 W2 = -0.4`",
+        "corr" => "a correlation is `corr NAME, NAME = VALUE`, a number or an expression of parameters, e.g. `corr W1, W2 = -0.4` or `corr W1, W2 = rho`",
         "let" => "a named expression is `let NAME = EXPR`",
         "measure" => "the measure is `measure risk-neutral` or `measure real-world`",
         "discount" => "the short rate is `discount EXPR`, affine in the factors, e.g. `discount r` or `discount x + y + phi`",
@@ -564,7 +565,7 @@ impl Builder {
             Rule::corr_stmt => {
                 let first = self.ident(&next()?);
                 let second = self.ident(&next()?);
-                let value = self.signed_number(next()?)?;
+                let value = self.expr(next()?)?;
                 StatementKind::Corr {
                     first,
                     second,
@@ -629,22 +630,27 @@ impl Builder {
         let value_pair = inner
             .next()
             .ok_or_else(|| syntax_error(span.clone(), "a value is expected"))?;
-        let value = self.signed_number(value_pair)?;
-        let mut unit = None;
+        let value = if value_pair.as_rule() == Rule::literal_value {
+            let mut parts = value_pair.into_inner();
+            let number_pair = parts
+                .next()
+                .ok_or_else(|| syntax_error(span.clone(), "a value is expected"))?;
+            let number = self.signed_number(number_pair)?;
+            let unit = match parts.next() {
+                Some(p) if p.as_rule() == Rule::bracket_unit => Some(self.bracket_unit(p)?),
+                _ => None,
+            };
+            DeclaredValue::Literal { number, unit }
+        } else {
+            DeclaredValue::Expr(self.expr(value_pair)?)
+        };
         let mut bound = None;
         for p in inner {
-            match p.as_rule() {
-                Rule::bracket_unit => unit = Some(self.bracket_unit(p)?),
-                Rule::bound => bound = Some(self.bound(p)?),
-                _ => {}
+            if p.as_rule() == Rule::bound {
+                bound = Some(self.bound(p)?);
             }
         }
-        Ok(Declaration {
-            name,
-            value,
-            unit,
-            bound,
-        })
+        Ok(Declaration { name, value, bound })
     }
 
     fn number_value(&self, text: &str, span: &Span) -> Result<f64> {

@@ -83,7 +83,7 @@ fn percent_and_basis_points_are_exact() {
         .statements
         .iter()
         .filter_map(|s| match &s.kind {
-            StatementKind::Param(d) => Some(d.value.value),
+            StatementKind::Param(d) => d.literal().map(|n| n.value),
             _ => None,
         })
         .collect();
@@ -151,7 +151,7 @@ fn nul_and_control_characters_are_named() {
 
 #[test]
 fn greek_names_parse_and_columns_count_characters() {
-    let text = "param κ = 1 [1/year]\nparam θ = 2 [1/year] > 0\nfactor σ = x\n";
+    let text = "param κ = 1 [1/year]\nparam θ = 2 [1/year] > 0\nfactor σ = $\n";
     let file = parse(text);
     assert_eq!(file.statements.len(), 2);
     let d = &file.diagnostics[0];
@@ -209,7 +209,7 @@ fn retired_keywords_get_one_error_each_with_a_fix() {
         panic!("not a factor: {:?}", file.statements[2].kind);
     };
     assert_eq!(&text[declaration.name.span.clone()], "r");
-    assert_eq!(&text[declaration.value.span.clone()], "2%");
+    assert_eq!(&text[declaration.value_span()], "2%");
     let StatementKind::Shock { names } = &file.statements[1].kind else {
         panic!("not a shock: {:?}", file.statements[1].kind);
     };

@@ -23,7 +23,7 @@ fn units_of(file: &SourceFile) -> Units {
             StatementKind::Clock { unit } => units.clock = unit.name.clone(),
             StatementKind::Unit { name } => units.declared.push(name.name.clone()),
             StatementKind::Param(declaration) | StatementKind::Factor(declaration) => {
-                if let Some(unit) = &declaration.unit {
+                if let Some(unit) = declaration.unit() {
                     units
                         .written
                         .push((declaration.name.name.clone(), unit.clone()));
