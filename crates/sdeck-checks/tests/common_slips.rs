@@ -53,3 +53,57 @@ fn another_unknown_function_is_still_unknown() {
     assert_eq!(found.len(), 1, "{found:?}");
     assert_eq!(found[0].message, "unknown function `tanh`");
 }
+
+#[test]
+fn an_ordinary_differential_equation_gives_the_form_of_an_equation() {
+    let text = format!("{HEAD}dr/dt = kappa * (theta - r)\n");
+    let found = findings(&text);
+    let syntax: Vec<_> = found.iter().filter(|d| d.rule == "syntax").collect();
+    assert_eq!(syntax.len(), 1, "{found:?}");
+    assert_eq!(
+        syntax[0].message,
+        "`dr/dt = ...` is not how sdeck writes an equation: an equation is written `dr = DRIFT dt + VOL dW`"
+    );
+    // Not also "factor `r` has no equation".
+    assert!(
+        !found.iter().any(|d| d.rule == "missing-equation"),
+        "{found:?}"
+    );
+    let fixed = apply_first_fix(&text, syntax[0]);
+    assert!(fixed.contains("dr = (kappa * (theta - r)) dt\n"), "{fixed}");
+    let after = findings(&fixed);
+    assert!(after.iter().all(|d| d.rule == "unused"), "{after:?}");
+}
+
+#[test]
+fn a_space_inside_the_differential_gives_the_form_of_an_equation() {
+    let text = format!("{HEAD}d r = kappa * (theta - r) dt + vol dW\n");
+    let found = findings(&text);
+    assert_eq!(found.len(), 1, "{found:?}");
+    assert_eq!(
+        found[0].message,
+        "`d r` has a space inside the differential: an equation is written `dr = DRIFT dt + VOL dW`"
+    );
+    let fixed = apply_first_fix(&text, &found[0]);
+    assert!(fixed.contains("\ndr = kappa"), "{fixed}");
+    assert!(findings(&fixed).is_empty(), "{:?}", findings(&fixed));
+}
+
+#[test]
+fn an_undeclared_shock_close_to_a_declared_one_is_suggested() {
+    let text = format!("{HEAD}dr = kappa * (theta - r) dt + vol dB\n");
+    let found = findings(&text);
+    let unknown: Vec<_> = found.iter().filter(|d| d.rule == "unknown-name").collect();
+    assert_eq!(unknown.len(), 1, "{found:?}");
+    assert!(
+        unknown[0]
+            .help
+            .as_deref()
+            .is_some_and(|h| h.starts_with("did you mean `dW`?")),
+        "{:?}",
+        unknown[0]
+    );
+    let fixed = apply_first_fix(&text, unknown[0]);
+    assert!(fixed.contains("vol dW\n"), "{fixed}");
+    assert!(findings(&fixed).is_empty(), "{:?}", findings(&fixed));
+}

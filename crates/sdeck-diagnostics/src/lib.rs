@@ -59,6 +59,14 @@ impl fmt::Display for Severity {
     }
 }
 
+/// The edit distance behind every suggestion sdeck makes (names, units, rules): the
+/// optimal-string-alignment distance of `strsim`, where an insertion, a deletion, a
+/// substitution and a swap of two adjacent characters each cost 1 (`yaer` is 1 from
+/// `year`). Characters, not bytes: `κ` is 1 from `k`.
+pub fn edit_distance(left: &str, right: &str) -> usize {
+    strsim::osa_distance(left, right)
+}
+
 /// The candidate closest to `word` by edit distance, when it is close enough to be a
 /// typing slip: at most 2 edits, or a third of the longer word's length. Case is ignored.
 /// Ties go to the first candidate.
@@ -69,7 +77,7 @@ pub fn closest_word<'c>(
     let lower = word.to_lowercase();
     let mut best: Option<(usize, &'c str)> = None;
     for candidate in candidates {
-        let distance = strsim::levenshtein(&lower, &candidate.to_lowercase());
+        let distance = edit_distance(&lower, &candidate.to_lowercase());
         let limit = (lower.chars().count().max(candidate.chars().count()) / 3).max(2);
         if distance <= limit && best.is_none_or(|(d, _)| distance < d) {
             best = Some((distance, candidate));

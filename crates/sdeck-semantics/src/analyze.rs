@@ -1615,9 +1615,14 @@ impl<'a> Analyzer<'a> {
         for i in 0..self.model.factors.len() {
             let equation_unparsed = self.file.unparsed.iter().any(|span| {
                 let text = self.source.get(span.clone()).unwrap_or("");
+                // `dr = ...`, and the slips `d r = ...` and `dr/dt = ...`.
                 text.strip_prefix('d')
+                    .map(str::trim_start)
                     .and_then(|rest| rest.strip_prefix(self.model.factors[i].name.as_str()))
-                    .is_some_and(|rest| rest.trim_start().starts_with('='))
+                    .is_some_and(|rest| {
+                        let rest = rest.trim_start();
+                        rest.starts_with('=') || rest.starts_with('/')
+                    })
             });
             if self.model.factors[i].equation.is_none()
                 && !first_equation.contains_key(&i)
@@ -1734,8 +1739,29 @@ impl<'a> Analyzer<'a> {
                                     ),
                                 },
                             );
+                            let similar = (other.is_none())
+                                .then(|| {
+                                    closest_name(
+                                        &noise.name,
+                                        self.model.shocks.iter().map(|n| &n.name),
+                                    )
+                                })
+                                .flatten();
                             if self.names.contains_key(&token_text) {
                                 d = d.with_help(format!("`{token_text}` is a declared name; a term must end with `dt` or `dW`; write the differential after it: `{token_text} * ... dt`"));
+                            } else if let Some(close) = similar {
+                                d = d
+                                    .with_help(format!(
+                                        "did you mean `d{close}`? (or declare the shock with `shock {}`)",
+                                        noise.name
+                                    ))
+                                    .with_fix(
+                                        format!("Write `d{close}`"),
+                                        vec![TextEdit {
+                                            span: noise.span.clone(),
+                                            new_text: close,
+                                        }],
+                                    );
                             } else {
                                 d = d.with_help(format!(
                                     "declare the shock with `shock {}`",
@@ -2517,26 +2543,11 @@ fn describe_bound(b: Option<&ast::Bound>) -> String {
 fn closest_name<'n>(name: &str, candidates: impl Iterator<Item = &'n String>) -> Option<String> {
     let mut best: Option<(usize, &String)> = None;
     for c in candidates {
-        let d = edit_distance(name, c);
+        let d = sdeck_diagnostics::edit_distance(name, c);
         let limit = (name.chars().count().max(c.chars().count()) / 3).max(1);
         if d <= limit && best.is_none_or(|(bd, _)| d < bd) {
             best = Some((d, c));
         }
     }
     best.map(|(_, c)| c.clone())
-}
-
-fn edit_distance(a: &str, b: &str) -> usize {
-    let a: Vec<char> = a.chars().collect();
-    let b: Vec<char> = b.chars().collect();
-    let mut prev: Vec<usize> = (0..=b.len()).collect();
-    for (i, ca) in a.iter().enumerate() {
-        let mut row = vec![i + 1; b.len() + 1];
-        for (j, cb) in b.iter().enumerate() {
-            let cost = usize::from(ca != cb);
-            row[j + 1] = (prev[j] + cost).min(prev[j + 1] + 1).min(row[j] + 1);
-        }
-        prev = row;
-    }
-    prev[b.len()]
 }

@@ -100,6 +100,7 @@ fn parse_piece(text: &str, span: Span, soft: &mut Vec<Diagnostic>) -> Result<Sta
     let original = &text[span.clone()];
     let offset = span.start;
     precheck(original, offset)?;
+    misshapen_equation(original, offset)?;
     // A retired keyword is reported once, with a fix, and the statement is then read as
     // if the new word were written: one old word gives one error, not a cascade.
     let renamed = retired_keyword(original, offset);
@@ -129,6 +130,85 @@ fn parse_piece(text: &str, span: Span, soft: &mut Vec<Diagnostic>) -> Result<Sta
     let kind = builder.statement(inner);
     soft.append(&mut builder.soft);
     kind
+}
+
+/// Two slips for an equation: `dr/dt = ...` (an ordinary differential equation's
+/// notation) and `d r = ...` (a space inside the differential). Each is a `syntax` error
+/// that gives the form `dr = DRIFT dt + VOL dW`, with a fix where the mend is mechanical.
+fn misshapen_equation(src: &str, offset: usize) -> Result<()> {
+    let lead = src.len() - src.trim_start().len();
+    let code = src.split('#').next().unwrap_or("").trim_end();
+    let body = &code[lead..];
+    let name_end = |text: &str| {
+        text.char_indices()
+            .find(|&(_, c)| !is_ident_char(c))
+            .map(|(i, _)| i)
+            .unwrap_or(text.len())
+    };
+    let Some(after_d) = body.strip_prefix('d') else {
+        return Ok(());
+    };
+    let form = |name: &str| format!("an equation is written `d{name} = DRIFT dt + VOL dW`");
+    // `d r = ...`
+    let spaced = after_d.trim_start_matches([' ', '\t']);
+    if spaced.len() < after_d.len() {
+        let n = name_end(spaced);
+        let name = &spaced[..n];
+        if n > 0 && spaced[n..].trim_start().starts_with('=') {
+            let gap = offset + lead + 1..offset + lead + 1 + (after_d.len() - spaced.len());
+            return Err(syntax_error(
+                offset + lead..offset + lead + 1 + (after_d.len() - spaced.len()) + n,
+                format!(
+                    "`d {name}` has a space inside the differential: {}",
+                    form(name)
+                ),
+            )
+            .with_help(format!("write `d{name}` without the space"))
+            .with_fix(
+                format!("Write `d{name}`"),
+                vec![TextEdit {
+                    span: gap,
+                    new_text: String::new(),
+                }],
+            ));
+        }
+        return Ok(());
+    }
+    // `dr/dt = ...`
+    let n = name_end(after_d);
+    let name = &after_d[..n];
+    let rest = after_d[n..].trim_start();
+    let Some(over) = rest.strip_prefix('/') else {
+        return Ok(());
+    };
+    let Some(after_dt) = over.trim_start().strip_prefix("dt") else {
+        return Ok(());
+    };
+    let Some(rhs) = after_dt.trim_start().strip_prefix('=') else {
+        return Ok(());
+    };
+    let lhs_end = code.len() - rhs.len();
+    let mut error = syntax_error(
+        offset + lead..offset + lhs_end - 1,
+        format!(
+            "`d{name}/dt = ...` is not how sdeck writes an equation: {}",
+            form(name)
+        ),
+    )
+    .with_help(format!(
+        "the drift is the coefficient of `dt` and each shock gets its own term: `d{name} = kappa * (theta - {name}) dt + vol dW`"
+    ));
+    let drift = rhs.trim();
+    if !drift.is_empty() {
+        error = error.with_fix(
+            format!("Write `d{name} = (...) dt`"),
+            vec![TextEdit {
+                span: offset + lead..offset + code.len(),
+                new_text: format!("d{name} = ({drift}) dt"),
+            }],
+        );
+    }
+    Err(error)
 }
 
 /// Which end of a bound a value is.

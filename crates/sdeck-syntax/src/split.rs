@@ -58,7 +58,28 @@ fn opens_statement(code: &str) -> bool {
     }
     if word.len() > 1 && word.starts_with('d') {
         let rest = trimmed[word_len..].trim_start_matches([' ', '\t', '\r']);
+        // `dr/dt = ...`: a slip for an equation, reported as such by the parser.
+        if let Some(over) = rest.strip_prefix('/') {
+            let over = over.trim_start_matches([' ', '\t']);
+            if let Some(after) = over.strip_prefix("dt") {
+                return after.trim_start_matches([' ', '\t']).starts_with('=');
+            }
+        }
         return rest.starts_with('=') && !rest.starts_with("==");
+    }
+    // `d r = ...`: a slip for `dr = ...`, reported as such by the parser.
+    if word == "d" {
+        let rest = trimmed[1..].trim_start_matches([' ', '\t']);
+        let name_len = rest
+            .char_indices()
+            .find(|&(_, c)| !is_ident_char(c))
+            .map(|(i, _)| i)
+            .unwrap_or(rest.len());
+        return rest.len() < trimmed.len() - 1
+            && name_len > 0
+            && rest[name_len..]
+                .trim_start_matches([' ', '\t'])
+                .starts_with('=');
     }
     false
 }

@@ -324,7 +324,12 @@ impl Evaluator<'_> {
             .iter()
             .chain(self.declared_names.iter())
             .filter(|candidate| **candidate != TIME_BASE)
-            .map(|candidate| (edit_distance(name, candidate), *candidate))
+            .map(|candidate| {
+                (
+                    sdeck_diagnostics::edit_distance(name, candidate),
+                    *candidate,
+                )
+            })
             .filter(|(distance, _)| *distance <= limit)
             .min_by_key(|(distance, _)| *distance)
             .map(|(_, candidate)| candidate.to_string())
@@ -352,39 +357,6 @@ const TIME_ABBREVIATIONS: [(&str, &str); 17] = [
     ("bd", "bday"),
     ("business_day", "bday"),
 ];
-
-/// The optimal-string-alignment distance: insertions, deletions, substitutions and
-/// swaps of two adjacent characters each cost 1 (so `yaer` is 1 away from `year`).
-fn edit_distance(left: &str, right: &str) -> usize {
-    let left: Vec<char> = left.chars().collect();
-    let right: Vec<char> = right.chars().collect();
-    let width = right.len() + 1;
-    // rows[i * width + j] = distance between left[..i] and right[..j].
-    let mut rows = vec![0usize; (left.len() + 1) * width];
-    for (i, slot) in rows.iter_mut().step_by(width).enumerate() {
-        *slot = i;
-    }
-    for (j, slot) in rows.iter_mut().take(width).enumerate() {
-        *slot = j;
-    }
-    for i in 1..=left.len() {
-        for j in 1..=right.len() {
-            let cost = usize::from(left.get(i - 1) != right.get(j - 1));
-            let mut best = (rows[(i - 1) * width + j] + 1)
-                .min(rows[i * width + j - 1] + 1)
-                .min(rows[(i - 1) * width + j - 1] + cost);
-            if i > 1
-                && j > 1
-                && left.get(i - 1) == right.get(j - 2)
-                && left.get(i - 2) == right.get(j - 1)
-            {
-                best = best.min(rows[(i - 2) * width + j - 2] + 1);
-            }
-            rows[i * width + j] = best;
-        }
-    }
-    rows[left.len() * width + right.len()]
-}
 
 /// The product over time units `u` of `(years(u) / clock_years)^e_u`.
 ///
@@ -446,7 +418,8 @@ mod tests {
 
     #[test]
     fn edit_distances() {
-        // Optimal string alignment distance, worked by hand.
+        // The distance the suggestions use (strsim's optimal string alignment), worked
+        // by hand.
         let cases = [
             ("year", "year", 0),
             ("yaer", "year", 1),
@@ -459,6 +432,7 @@ mod tests {
             ("κ", "k", 1),
         ];
         for (left, right, distance) in cases {
+            let edit_distance = sdeck_diagnostics::edit_distance;
             assert_eq!(edit_distance(left, right), distance, "{left} / {right}");
             assert_eq!(edit_distance(right, left), distance, "{right} / {left}");
         }
