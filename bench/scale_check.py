@@ -89,7 +89,7 @@ def two_thousand_lines() -> str:
 def param_lines(count: int) -> str:
     """`count` plain `param` lines: the input of the memory-per-byte figure."""
     lines = ["model harrowgate_parameters", "clock year"]
-    lines += [f"param p{i} = {i % 97 + 0.25} [1/year] > 0  # desk input {i}" for i in range(count)]
+    lines += [f"param p{i} = {i % 97 + 0.25}" for i in range(count)]
     return "\n".join(lines) + "\n"
 
 
@@ -131,7 +131,7 @@ def main() -> int:
     parser.add_argument("--factors", type=int, default=270)
     parser.add_argument("--two-thousand", action="store_true", help="with --write: the 2,000-line model")
     parser.add_argument(
-        "--params", type=int, nargs="*", default=[100_000], help="param-line counts for the memory per input byte"
+        "--params", type=int, nargs="*", default=[10_000, 100_000, 200_000], help="param-line counts for the memory per input byte"
     )
     args = parser.parse_args()
     if args.write:
@@ -160,8 +160,8 @@ def main() -> int:
         # Resident memory per byte of input: peak RSS of `sdeck check` on files of plain
         # `param` lines, whole and less that of an empty model (the program itself).
         print()
-        print("| input | bytes | peak RSS MiB | RSS bytes per input byte | net of an empty model |")
-        print("|---|---:|---:|---:|---:|")
+        print("| input | bytes | peak RSS MiB | RSS bytes per input byte | net of an empty model | rules fired |")
+        print("|---|---:|---:|---:|---:|---|")
         empty = pathlib.Path(folder) / "empty.sde"
         empty.write_text("model harrowgate_parameters\nclock year\n")
         base = measure(args.binary, empty, 1)[3]
@@ -169,11 +169,11 @@ def main() -> int:
             path = pathlib.Path(folder) / "params.sde"
             text = param_lines(count)
             path.write_text(text)
-            rss = measure(args.binary, path, 1)[3]
+            *_, rss, rules = measure(args.binary, path, 1)
             size = len(text.encode())
             print(
                 f"| {count:,} param lines | {size:,} | {rss:.1f} | {rss * 2**20 / size:.0f} "
-                f"| {(rss - base) * 2**20 / size:.0f} |",
+                f"| {(rss - base) * 2**20 / size:.0f} | {rules} |",
                 flush=True,
             )
     return 0
