@@ -8,6 +8,7 @@ const vscode = require("vscode");
 const { LanguageClient, TransportKind } = require("vscode-languageclient/node");
 
 let client;
+let watcher;
 
 /** The binary to run: the setting when given, else the one bundled in server/. */
 function serverCommand(context) {
@@ -23,28 +24,22 @@ function serverCommand(context) {
   return "sdeck";
 }
 
-async function activate(context) {
+/** Starts a client for the current settings. Only one exists at a time. */
+async function startClient(context) {
   const command = serverCommand(context);
   const extraArgs = vscode.workspace.getConfiguration("sdeck").get("server.extraArgs", []);
   const run = { command, args: ["lsp", ...extraArgs], transport: TransportKind.stdio };
+  // Rule levels live in sdeck.toml; the server reads them again when it changes. The
+  // watcher belongs to this client and is disposed with it.
+  watcher = vscode.workspace.createFileSystemWatcher("**/sdeck.toml");
   client = new LanguageClient(
     "sdeck",
     "sdeck language server",
     { run, debug: run },
     {
       documentSelector: [{ language: "sdeck" }],
-      synchronize: {
-        // Rule levels live in sdeck.toml; the server reads them again on save.
-        fileEvents: vscode.workspace.createFileSystemWatcher("**/sdeck.toml"),
-      },
+      synchronize: { fileEvents: watcher },
     }
-  );
-  context.subscriptions.push(
-    vscode.workspace.onDidChangeConfiguration(async (event) => {
-      if (event.affectsConfiguration("sdeck.server")) {
-        await restart(context);
-      }
-    })
   );
   try {
     await client.start();
@@ -55,17 +50,49 @@ async function activate(context) {
   }
 }
 
-async function restart(context) {
-  if (client) {
-    await client.stop();
+/** Stops the client and its watcher, if any. */
+async function stopClient() {
+  const old = client;
+  client = undefined;
+  if (watcher) {
+    watcher.dispose();
+    watcher = undefined;
   }
-  await activate(context);
+  if (old) {
+    try {
+      await old.stop();
+    } catch (_) {
+      // A client that never started has nothing to stop.
+    }
+  }
+}
+
+let restarting = Promise.resolve();
+
+/** Restarts the server once per change, one restart after another. */
+function restart(context) {
+  restarting = restarting.then(async () => {
+    await stopClient();
+    await startClient(context);
+  });
+  return restarting;
+}
+
+async function activate(context) {
+  // Registered once, here: a restart does not add another listener.
+  context.subscriptions.push(
+    vscode.workspace.onDidChangeConfiguration((event) => {
+      if (event.affectsConfiguration("sdeck.server")) {
+        restart(context);
+      }
+    })
+  );
+  await startClient(context);
 }
 
 async function deactivate() {
-  if (client) {
-    await client.stop();
-  }
+  await restarting;
+  await stopClient();
 }
 
 module.exports = { activate, deactivate };
