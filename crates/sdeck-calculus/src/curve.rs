@@ -39,6 +39,14 @@ pub fn curve(model: &Model, rate: &Expr, maturities: &[f64]) -> Result<Curve, St
     }
     let set = AffineSet::from_model(model)?;
     let rate = Rate::new(&set, rate)?;
+    let years = model.clock.years;
+    if let Some(points) = integrated_curve(&set, &rate, maturities, years) {
+        return Ok(Curve {
+            method: set.method(&rate),
+            points: points?,
+            long_yield: long_yield(&set, &rate, years),
+        });
+    }
     let zero = vec![Complex64::new(0.0, 0.0); set.dimension()];
     // Each maturity with its four neighbours for the forward: T ± h, T ± 2h.
     let mut times = Vec::with_capacity(maturities.len() * 5);
@@ -47,7 +55,6 @@ pub fn curve(model: &Model, rate: &Expr, maturities: &[f64]) -> Result<Curve, St
         times.extend([t - 2.0 * h, t - h, t, t + h, t + 2.0 * h]);
     }
     let values = set.log_transforms(&zero, &rate, &times);
-    let years = model.clock.years;
     let mut points = Vec::with_capacity(maturities.len());
     for (k, &t) in maturities.iter().enumerate() {
         let at = |j: usize| -> Result<f64, String> {
@@ -79,13 +86,46 @@ pub fn curve(model: &Model, rate: &Expr, maturities: &[f64]) -> Result<Curve, St
     })
 }
 
+/// The curve of a system whose Riccati equations are integrated: one pass through the
+/// sorted maturities, the forward read from the right-hand side at each (exact up to
+/// the integration's tolerance). `None` when the set has a closed form.
+fn integrated_curve(
+    set: &AffineSet,
+    rate: &Rate,
+    maturities: &[f64],
+    years: f64,
+) -> Option<Result<Vec<CurvePoint>, String>> {
+    let mut order: Vec<usize> = (0..maturities.len()).collect();
+    order.sort_by(|a, b| maturities[*a].total_cmp(&maturities[*b]));
+    let sorted: Vec<f64> = order.iter().map(|&i| maturities[i]).collect();
+    let values = set.discount_with_slopes(rate, &sorted)?;
+    let mut points = vec![None; maturities.len()];
+    for (&slot, (&t, value)) in order.iter().zip(sorted.iter().zip(values)) {
+        let Some((log_price, slope)) = value else {
+            return Some(Err(format!(
+                "the bond price at {t} is not finite: the rate's transform explodes"
+            )));
+        };
+        points[slot] = Some(CurvePoint {
+            maturity: t,
+            price: log_price.exp(),
+            yield_rate: -log_price / (t * years),
+            forward: -slope / years,
+        });
+    }
+    Some(Ok(points.into_iter().flatten().collect()))
+}
+
 /// The slope of −ln P over a far stretch, when two stretches agree.
 fn long_yield(set: &AffineSet, rate: &Rate, years: f64) -> Option<f64> {
     if set.time_dependent() {
         return None;
     }
-    let zero = vec![Complex64::new(0.0, 0.0); set.dimension()];
     let far = 4000.0 / years;
+    if set.method(rate) == TransformMethod::Riccati {
+        return set.settled_rate(rate, far).map(|r| r / years);
+    }
+    let zero = vec![Complex64::new(0.0, 0.0); set.dimension()];
     let times = [far / 4.0, far / 2.0, far];
     let values: Vec<f64> = set
         .log_transforms(&zero, rate, &times)
@@ -134,6 +174,47 @@ mod tests {
         }
         let long = c.long_yield.expect("settles");
         assert!((long - level).abs() < 1e-9, "{long} vs {level}");
+    }
+
+    #[test]
+    fn the_settled_long_yield_of_an_integrated_system_is_the_far_slope() {
+        // A square-root factor whose level follows another: Riccati, integrated. The long
+        // yield read from the settled right-hand side must equal the slope of −ln P over
+        // a far stretch (2000 to 4000 years), the definition.
+        let text = "model s\nclock year\nparam k = 0.8 [1/year]\nparam m = 2%\n\
+            param w = 0.1 [1/sqrt(year)]\nparam c = 0.3 [1/year]\nshock W2, W3\n\
+            factor y = 2% >= 0\nfactor z = 1% >= 0\n\
+            dy = k * (m - y) dt + w * sqrt(y) dW2\ndz = c * (y - z) dt + w * sqrt(z) dW3\n";
+        let model = sdeck_semantics::analyze(text, "s").model;
+        let rate = Expr::Add(Box::new(Expr::Factor(0)), Box::new(Expr::Factor(1)));
+        let maturities = [7.0, 0.5, 30.0];
+        let c = curve(&model, &rate, &maturities).expect("a curve");
+        assert_eq!(c.method, TransformMethod::Riccati);
+        let long = c.long_yield.expect("settles");
+        let set = AffineSet::from_model(&model).expect("affine");
+        let r = Rate::new(&set, &rate).expect("rate");
+        let zero = vec![Complex64::new(0.0, 0.0); 2];
+        // Prices from the transform one maturity at a time; forwards by a five-point
+        // central difference of ln P (error of order h⁴).
+        for (point, t) in c.points.iter().zip(maturities) {
+            let h = 1e-3 * t;
+            let ln_p: Vec<f64> = set
+                .log_transforms(&zero, &r, &[t - 2.0 * h, t - h, t, t + h, t + 2.0 * h])
+                .into_iter()
+                .map(|v| v.expect("finite").re)
+                .collect();
+            assert_eq!(point.maturity, t);
+            assert!((point.price.ln() - ln_p[2]).abs() < 1e-11, "{t}");
+            let forward = -(ln_p[0] - 8.0 * ln_p[1] + 8.0 * ln_p[3] - ln_p[4]) / (12.0 * h);
+            assert!((point.forward - forward).abs() < 1e-8, "{t}: {forward}");
+        }
+        let far: Vec<f64> = set
+            .log_transforms(&zero, &r, &[2000.0, 4000.0])
+            .into_iter()
+            .map(|v| v.expect("finite").re)
+            .collect();
+        let slope = -(far[1] - far[0]) / 2000.0;
+        assert!((long - slope).abs() < 1e-9, "{long} vs {slope}");
     }
 
     #[test]
