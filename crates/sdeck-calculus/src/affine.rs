@@ -396,6 +396,20 @@ impl AffineSet {
     }
 
     /// Whether no factor enters any covariance: the set is Gaussian (in its coordinates).
+    /// The same set with the log factor `i` started at ln X₀ = 0, and the ln X₀ taken
+    /// out. Nothing in an affine set depends on a log coordinate, so its transform only
+    /// gains the exact phase u·ln X₀; leaving that phase out keeps the characteristic
+    /// function of a nearly constant log-price free of the cancellation between two
+    /// large phases. `None` when `i` is not a log factor.
+    pub fn centred_log(&self, i: usize) -> Option<(AffineSet, f64)> {
+        if !self.is_log(i) {
+            return None;
+        }
+        let mut centred = self.clone();
+        let start = std::mem::replace(centred.x0.get_mut(i)?, 0.0);
+        Some((centred, start))
+    }
+
     pub fn is_gaussian(&self) -> bool {
         self.h1.iter().flatten().flatten().all(Poly::is_zero)
     }

@@ -13,6 +13,8 @@ use crate::{noncentral, ode, Derivation, Family};
 use num_complex::Complex64;
 use sdeck_semantics::Model;
 use statrs::distribution::{ContinuousCDF, Normal};
+use std::sync::atomic::{AtomicUsize, Ordering};
+use std::sync::Arc;
 
 /// Which law a factor follows at a time.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -53,13 +55,20 @@ enum Shape {
         scale: f64,
     },
     /// Z = X (or ln X when `log`) with characteristic function from the transform.
+    /// The transform of `set` is that of Z − `origin`; `mean` is E[Z − origin].
     Fourier {
         set: Box<AffineSet>,
         factor: usize,
         log: bool,
         t: f64,
+        origin: f64,
         mean: f64,
         sd: f64,
+        /// Transform evaluations left for every probability and quantile of this law
+        /// together: past it they are unknown, never slow (a nearly constant law, whose
+        /// characteristic function decays only at very high frequencies, would
+        /// otherwise take minutes).
+        budget: Arc<AtomicUsize>,
     },
     /// X_t is the constant x (t = 0 or no noise).
     Point(f64),
@@ -142,6 +151,8 @@ pub fn law_of(model: &Model, derivation: &Derivation, state: usize, t: f64) -> O
     }
     let set = AffineSet::from_model(model).ok()?;
     let log = set.is_log(state);
+    // A log factor is inverted around ln X₀ (see `AffineSet::centred_log`).
+    let (set, origin) = set.centred_log(state).unwrap_or((set, 0.0));
     let rate = Rate::zero(&set);
     let transform = |u: Complex64| -> Result<Complex64, TransformError> {
         let mut argument = vec![Complex64::new(0.0, 0.0); set.dimension()];
@@ -152,7 +163,7 @@ pub fn law_of(model: &Model, derivation: &Derivation, state: usize, t: f64) -> O
         // log E[e^{uZ}] = u m + ½u² v, so L(1) + L(−1) = v and L(1) − L(−1) = 2m.
         let up = transform(Complex64::new(1.0, 0.0)).ok()?.re;
         let down = transform(Complex64::new(-1.0, 0.0)).ok()?.re;
-        let (mean, variance) = ((up - down) / 2.0, up + down);
+        let (mean, variance) = (origin + (up - down) / 2.0, up + down);
         if log {
             return Some(Law {
                 kind: LawKind::Lognormal,
@@ -185,11 +196,18 @@ pub fn law_of(model: &Model, derivation: &Derivation, state: usize, t: f64) -> O
             factor: state,
             log,
             t,
+            origin,
             mean,
             sd,
+            budget: Arc::new(AtomicUsize::new(FOURIER_EVALUATIONS)),
         },
     })
 }
+
+/// The transform evaluations one Fourier law may spend on all its probabilities and
+/// quantiles: a quantile takes some thirty distribution functions of a few hundred
+/// evaluations each on a well-scaled law; this is ten times a full set of five.
+const FOURIER_EVALUATIONS: usize = 200_000;
 
 fn normal(mean: f64, variance: f64) -> Law {
     let sd = variance.max(0.0).sqrt();
@@ -282,9 +300,15 @@ impl Law {
                 noncentrality,
                 scale,
             } => noncentral::quantile(p, *degrees, *noncentrality).map(|y| y / scale),
-            Shape::Fourier { mean, sd, log, .. } => {
+            Shape::Fourier {
+                mean,
+                sd,
+                log,
+                origin,
+                ..
+            } => {
                 let target = |v: f64| self.fourier_cdf(v).map(|c| c - p);
-                let value = solve_increasing(target, *mean, *sd)?;
+                let value = solve_increasing(target, origin + mean, *sd)?;
                 Some(if *log { value.exp() } else { value })
             }
         }
@@ -296,41 +320,55 @@ impl Law {
             set,
             factor,
             t,
+            origin,
             sd,
             mean,
+            budget,
             ..
         } = &self.shape
         else {
             return None;
         };
+        let z = z - origin;
         let rate = Rate::zero(set);
         let size = set.dimension();
-        // In the scaled frequency s = ω·sd the integrand decays on a scale of one.
+        // ln φ at the scaled frequency s = ω·sd, on which the integrand decays on a
+        // scale of one.
+        let log_phi = |s: f64| -> Option<Complex64> {
+            budget
+                .fetch_update(Ordering::Relaxed, Ordering::Relaxed, |n| n.checked_sub(1))
+                .ok()?;
+            let mut u = vec![Complex64::new(0.0, 0.0); size];
+            *u.get_mut(*factor)? = Complex64::new(0.0, s / sd);
+            set.log_transform(&u, &rate, *t).ok()
+        };
         let integrand = |s: f64| -> f64 {
             if s == 0.0 {
                 // Im(e^{−iωz} φ(ω))/ω → E[Z] − z as ω → 0.
                 return (mean - z) / sd;
             }
-            let omega = s / sd;
-            let mut u = vec![Complex64::new(0.0, 0.0); size];
-            if let Some(slot) = u.get_mut(*factor) {
-                *slot = Complex64::new(0.0, omega);
-            }
-            match set.log_transform(&u, &rate, *t) {
-                Ok(l) => (l - Complex64::new(0.0, omega * z)).exp().im / s,
-                Err(_) => f64::NAN,
+            match log_phi(s) {
+                Some(l) => (l - Complex64::new(0.0, s / sd * z)).exp().im / s,
+                None => f64::NAN,
             }
         };
         let mut total = 0.0;
         let mut low = 0.0;
         let mut high = 1.0;
+        // The doubling stops when the modulus |φ(ω)|/s (free of the oscillating phase,
+        // and so of its rounding) says the rest of the integral is negligible; at most
+        // 2⁴⁰ scaled frequencies, then the probability is unknown rather than slow.
         for _ in 0..40 {
-            let piece = ode::quad(integrand, low, high, 1e-12)
-                .or_else(|_| ode::quad(integrand, low, high, 1e-9))
+            // 1e-10 relative per piece keeps the probability within 1e-10 absolute
+            // (the pieces add to at most π/2 in size), inside the 1e-9 promised, and
+            // above the rounding of the transform's phase, which a tighter tolerance
+            // would chase through every subdivision.
+            let piece = ode::quad(integrand, low, high, 1e-10)
+                .or_else(|_| ode::quad(integrand, low, high, 1e-8))
                 .ok()?;
             total += piece;
-            let tail = integrand(high).abs() * high;
-            if tail < 1e-13 && piece.abs() < 1e-11 {
+            let envelope = log_phi(high)?.re.exp() / high;
+            if envelope < 1e-14 || (envelope * high < 1e-13 && piece.abs() < 1e-11) {
                 let p = 0.5 - total / std::f64::consts::PI;
                 return p.is_finite().then_some(p);
             }

@@ -141,47 +141,10 @@ fn empty_and_comment_only_files() {
     assert_eq!(formatted("# only a note"), "# only a note\n");
 }
 
-/// What a file means, without positions: names, values in clock units, resolved
-/// expressions, bounds, correlations, the horizon and clock.
+/// What a file means, without positions (names, values in clock units, resolved
+/// expressions, bounds, correlations, horizon, clock, measure and discount).
 fn meaning(source: &str) -> String {
-    let model = sdeck_semantics::analyze(source, "m").model;
-    let mut out = format!("{} {} {:?}\n", model.name, model.clock.unit, model.horizon);
-    for p in &model.params {
-        out += &format!(
-            "param {} {:?} {:?} {:?} {:?} {:?}\n",
-            p.name, p.value, p.unit_text, p.bound, p.description, p.expr
-        );
-    }
-    for s in &model.factors {
-        let eq = s.equation.as_ref().map(|e| {
-            let terms: Vec<String> = e
-                .diffusion
-                .iter()
-                .map(|d| format!("{}:{:?}", d.noise, d.coefficient))
-                .collect();
-            format!("{:?} | {}", e.drift, terms.join(" "))
-        });
-        out += &format!(
-            "factor {} {:?} {:?} {:?} {:?}\n",
-            s.name, s.initial, s.domain, eq, s.initial_expr
-        );
-    }
-    for n in &model.shocks {
-        out += &format!("shock {} {:?}\n", n.name, n.description);
-    }
-    for c in &model.correlations {
-        out += &format!("corr {} {} {:?} {:?}\n", c.first, c.second, c.value, c.expr);
-    }
-    for l in &model.lets {
-        out += &format!("let {} {:?}\n", l.name, l.value);
-    }
-    for e in &model.expectations {
-        out += &format!(
-            "expect {:?} {:?} {:?} {:?} {:?} {:?}\n",
-            e.figure, e.state, e.side, e.level, e.at, e.admissible
-        );
-    }
-    out
+    sdeck_semantics::meaning(&sdeck_semantics::analyze(source, "m").model)
 }
 
 #[test]

@@ -6,9 +6,11 @@
 //! model that holds what could be understood, plus diagnostics.
 
 mod analyze;
+mod meaning;
 pub mod model;
 pub mod symbols;
 
 pub use analyze::{analyze, fmt_num, Analysis};
+pub use meaning::meaning;
 pub use model::*;
 pub use symbols::{Reference, Symbol, SymbolKind};

@@ -29,6 +29,9 @@ pub mod nearest_correlation;
 mod tokens;
 pub mod transport;
 
+/// The protocol's types, as this crate uses them (for tests and the fuzz targets).
+pub use tower_lsp::lsp_types;
+
 use analysis::Analyzed;
 use documents::{DocumentStore, PositionEncoding};
 use serde::{Deserialize, Serialize};
