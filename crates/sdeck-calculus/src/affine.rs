@@ -316,6 +316,21 @@ impl AffineSet {
                 }
             }
         }
+        // A factor that scales a covariance must stay non-negative, which in an affine
+        // set means its own variance is proportional to it (a square-root factor; the
+        // admissibility of Duffie, Filipović & Schachermayer 2003, Annals of Applied
+        // Probability 13). A Gaussian factor under a square root makes the covariance
+        // negative with positive probability: the transform then describes no law.
+        for (k, scales) in h1.iter().enumerate() {
+            let drives = scales.iter().flatten().any(|c| !c.is_zero());
+            let own = scales.get(k).and_then(|row| row.get(k));
+            if drives && (log[k] || own.is_none_or(Poly::is_zero)) {
+                return Err(format!(
+                    "{} scales a covariance but has no diffusion proportional to itself, so                      nothing keeps it non-negative",
+                    name(model, k)
+                ));
+            }
+        }
         let x0 = model
             .factors
             .iter()
