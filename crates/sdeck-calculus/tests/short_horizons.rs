@@ -42,7 +42,11 @@ fn quantiles_of_a_variance_driven_price_over_an_hour_and_a_minute() {
             let q = law.quantile(p).expect("a quantile");
             let euler = centre + sd * z.inverse_cdf(p);
             let gap = (q.ln() - euler).abs();
-            assert!(gap < 5.0 * t.sqrt() * sd, "t = {t}, p = {p}: {q} vs {}", euler.exp());
+            assert!(
+                gap < 5.0 * t.sqrt() * sd,
+                "t = {t}, p = {p}: {q} vs {}",
+                euler.exp()
+            );
             let back = law.cdf(q).expect("a probability");
             assert!((back - p).abs() < 1e-8, "t = {t}: P(S ≤ q{p}) = {back}");
         }

@@ -32,3 +32,22 @@ fn twenty_thousand_shocks_with_one_contradictory_block_are_checked_per_block() {
     let sound = text.replace("= -0.9", "= 0.8");
     assert_eq!(rules(&sound), Vec::<&str>::new());
 }
+
+/// Found by the `check` fuzz target: a value defined by itself indexed the parameter
+/// list before the parameter was in it.
+#[test]
+fn a_parameter_whose_value_is_itself_is_an_error_not_a_panic() {
+    for text in [
+        "param k = k\n",
+        "param k = 2 * k + 1%\nfactor x = k\ndx = k dt\n",
+    ] {
+        let result = check(text, "m", &RuleSettings::default());
+        let own = result
+            .diagnostics
+            .iter()
+            .find(|d| d.message.contains("uses `k` itself"))
+            .unwrap_or_else(|| panic!("no diagnostic for {text:?}: {:?}", rules(text)));
+        assert_eq!(own.rule, "unknown-name");
+        assert!(own.help.as_deref().unwrap_or("").contains("as a number"));
+    }
+}

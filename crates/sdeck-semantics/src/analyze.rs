@@ -649,7 +649,16 @@ impl<'a> Analyzer<'a> {
                 };
                 (message, help, fix)
             }
-            (_, Some((Target::Param(_), _)), _) => return None,
+            (_, Some((Target::Param(i), _)), _) if *i < self.model.params.len() => return None,
+            // The parameter being declared: its value cannot rest on itself.
+            (_, Some((Target::Param(_), _)), _) => (
+                format!("{} uses `{name}` itself", constant.what),
+                format!(
+                    "{} may use only {allowed}: write its value as a number or in terms of other parameters",
+                    constant.what
+                ),
+                None,
+            ),
             (_, Some((Target::Factor(_), _)), _) | (_, None, Some(&"factor")) => (
                 format!(
                     "{} uses the factor `{name}`, whose value moves",
@@ -1374,12 +1383,17 @@ impl<'a> Analyzer<'a> {
     }
 
     fn reference(&mut self, ident: &ast::Ident, target: &Target) {
+        // A name may be used while its own declaration is being resolved (`param k = k`),
+        // before it is in the model: no reference is recorded then.
         let name_span = match *target {
-            Target::Param(i) => self.model.params[i].name_span.clone(),
-            Target::Factor(i) => self.model.factors[i].name_span.clone(),
-            Target::Shock(i) => self.model.shocks[i].name_span.clone(),
-            Target::Let(i) => self.model.lets[i].name_span.clone(),
-            Target::Unit(i) => self.model.units[i].name_span.clone(),
+            Target::Param(i) => self.model.params.get(i).map(|p| p.name_span.clone()),
+            Target::Factor(i) => self.model.factors.get(i).map(|f| f.name_span.clone()),
+            Target::Shock(i) => self.model.shocks.get(i).map(|n| n.name_span.clone()),
+            Target::Let(i) => self.model.lets.get(i).map(|l| l.name_span.clone()),
+            Target::Unit(i) => self.model.units.get(i).map(|u| u.name_span.clone()),
+        };
+        let Some(name_span) = name_span else {
+            return;
         };
         self.references.push(Reference {
             span: ident.span.clone(),
