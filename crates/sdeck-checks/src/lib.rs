@@ -81,12 +81,37 @@ pub fn check(source: &str, name: &str, settings: &RuleSettings) -> FileCheck {
         }
         diagnostics.push(d);
     }
+    if !broken && analysis.model.factors.is_empty() {
+        diagnostics.push(no_factor(&analysis.file));
+    }
     let diagnostics = finish(source, &analysis.file, diagnostics, settings);
     FileCheck {
         analysis,
         derivation,
         diagnostics,
     }
+}
+
+/// `no-factor`, at the `model` line, else the first statement, else the start of the file.
+fn no_factor(file: &sdeck_syntax::ast::SourceFile) -> Diagnostic {
+    use sdeck_syntax::ast::StatementKind;
+    let span = file
+        .statements
+        .iter()
+        .find(|s| matches!(s.kind, StatementKind::Model { .. }))
+        .or(file.statements.first())
+        .map_or(0..0, |s| s.span.clone());
+    let what = if file.statements.is_empty() {
+        "the file holds no statement"
+    } else {
+        "the model declares no factor"
+    };
+    Diagnostic::new(
+        &rules::NO_FACTOR,
+        span,
+        format!("{what}: nothing is derived, and no equation, unit or figure is checked"),
+    )
+    .with_help("declare a factor and its equation (`factor r = 2%` and `dr = ... dt + ... dW`), or leave this file out of the paths checked")
 }
 
 /// Applies suppressions and settings, then sorts.

@@ -214,6 +214,8 @@ fn json_has_the_exact_shape_sorted_with_character_columns() {
         })
         .collect();
     let expected = [
+        // A file of parameters alone checks nothing: said at its first statement.
+        ("a.sde", "no-factor", 1, 1, 1, 21),
         ("a.sde", "unused", 1, 7, 1, 17),
         ("a.sde", "unused", 2, 7, 2, 17),
         // `θκ` is two characters (four bytes) from column 7.
@@ -227,7 +229,7 @@ fn json_has_the_exact_shape_sorted_with_character_columns() {
         .collect();
     assert_eq!(summary, expected);
     assert_eq!(diagnostics[0]["severity"], "warning");
-    assert_eq!(diagnostics[3]["severity"], "error");
+    assert_eq!(diagnostics[4]["severity"], "error");
 }
 
 #[test]

@@ -169,6 +169,42 @@ fn a_finding_on_a_very_long_line_shows_an_excerpt_not_the_line() {
     );
 }
 
+#[test]
+fn an_empty_model_is_a_finding_not_a_silent_pass() {
+    // An empty file, comments alone, or parameters without a factor once passed clean.
+    let dir = tempfile::tempdir().unwrap();
+    for (name, text, said) in [
+        ("empty.sde", "", "the file holds no statement"),
+        (
+            "comments.sde",
+            "# nothing yet\n",
+            "the file holds no statement",
+        ),
+        (
+            "params.sde",
+            "model m\nparam a = 1\n",
+            "the model declares no factor",
+        ),
+    ] {
+        let file = dir.path().join(name);
+        write(&file, text);
+        let out = sdeck()
+            .args(["check", "--format", "json"])
+            .arg(&file)
+            .output()
+            .unwrap();
+        let report: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+        let found = &report["diagnostics"];
+        assert_eq!(found[0]["rule"], "no-factor", "{name}: {found}");
+        assert_eq!(found[0]["severity"], "warning", "{name}");
+        assert!(
+            found[0]["message"].as_str().unwrap().contains(said),
+            "{name}: {found}"
+        );
+        assert_eq!(found[0]["range"]["start"]["line"], 1, "{name}");
+    }
+}
+
 // ------------------------------------------------------------- simulate --check
 
 const NO_VOLATILITY: &str = "clock year\nhorizon 1 year\nparam k = 1.3 [1/year]\n\

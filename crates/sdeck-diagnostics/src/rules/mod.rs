@@ -12,6 +12,7 @@ mod factor_domain;
 mod feller_condition;
 mod missing_equation;
 mod moment_explosion;
+mod no_factor;
 mod not_mean_reverting;
 mod syntax;
 mod unit_scale;
@@ -31,6 +32,7 @@ pub use factor_domain::FACTOR_DOMAIN;
 pub use feller_condition::FELLER_CONDITION;
 pub use missing_equation::MISSING_EQUATION;
 pub use moment_explosion::MOMENT_EXPLOSION;
+pub use no_factor::NO_FACTOR;
 pub use not_mean_reverting::NOT_MEAN_REVERTING;
 pub use syntax::SYNTAX;
 pub use unit_scale::UNIT_SCALE;
@@ -46,6 +48,7 @@ pub static ALL: &[&Rule] = &[
     &UNKNOWN_NAME,
     &DUPLICATE_NAME,
     &MISSING_EQUATION,
+    &NO_FACTOR,
     &DUPLICATE_TERM,
     &DIMENSION_MISMATCH,
     &BOUND_VIOLATED,
