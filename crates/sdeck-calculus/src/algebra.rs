@@ -313,31 +313,17 @@ fn multiply_monomials(a: &Monomial, b: &Monomial) -> Monomial {
 
 /// Whether `t` appears in the expression.
 pub fn expr_mentions_time(expr: &Expr) -> bool {
-    any_leaf(expr, &|e| matches!(e, Expr::Time))
+    expr.any(&mut |e| matches!(e, Expr::Time))
 }
 
 /// Whether a state appears in the expression.
 pub fn expr_mentions_states(expr: &Expr) -> bool {
-    any_leaf(expr, &|e| matches!(e, Expr::Factor(_)))
-}
-
-fn any_leaf(expr: &Expr, test: &dyn Fn(&Expr) -> bool) -> bool {
-    if test(expr) {
-        return true;
-    }
-    match expr {
-        Expr::Neg(a) => any_leaf(a, test),
-        Expr::Add(a, b) | Expr::Sub(a, b) | Expr::Mul(a, b) | Expr::Div(a, b) | Expr::Pow(a, b) => {
-            any_leaf(a, test) || any_leaf(b, test)
-        }
-        Expr::Call(_, args) => args.iter().any(|a| any_leaf(a, test)),
-        _ => false,
-    }
+    expr.any(&mut |e| matches!(e, Expr::Factor(_)))
 }
 
 /// The value of an expression made only of numbers (and `pi`, already a number).
 fn constant_value(expr: &Expr) -> Option<f64> {
-    let numeric_only = !any_leaf(expr, &|e| {
+    let numeric_only = !expr.any(&mut |e| {
         matches!(
             e,
             Expr::Param(_) | Expr::Factor(_) | Expr::Time | Expr::Invalid

@@ -105,56 +105,42 @@ impl TimeBreaks {
     }
 
     fn collect(&mut self, expr: &Expr) {
-        match expr {
-            Expr::Call(f, args) => {
-                let time_only = mentions_time(expr) && !mentions_states(expr);
-                match f {
-                    Function::Step | Function::Ramp => {
-                        if let Some(x) = args.first() {
-                            for k in f.knot_positions(args.len()) {
-                                let Some(knot) = args.get(k) else {
-                                    continue;
-                                };
-                                let at = knot.eval(&self.params, &[], 0.0);
-                                if *x == Expr::Time {
-                                    self.knots.push(at);
-                                } else if mentions_time(x) && !mentions_states(x) {
-                                    self.crossings.push(Expr::Sub(
-                                        Box::new(x.clone()),
-                                        Box::new(Expr::Const(at)),
-                                    ));
-                                }
+        if let Expr::Call(f, args) = expr {
+            let time_only = mentions_time(expr) && !mentions_states(expr);
+            match f {
+                Function::Step | Function::Ramp => {
+                    if let Some(x) = args.first() {
+                        for k in f.knot_positions(args.len()) {
+                            let Some(knot) = args.get(k) else {
+                                continue;
+                            };
+                            let at = knot.eval(&self.params, &[], 0.0);
+                            if *x == Expr::Time {
+                                self.knots.push(at);
+                            } else if mentions_time(x) && !mentions_states(x) {
+                                self.crossings.push(Expr::Sub(
+                                    Box::new(x.clone()),
+                                    Box::new(Expr::Const(at)),
+                                ));
                             }
                         }
                     }
-                    Function::Min | Function::Max if time_only => {
-                        if let [a, b] = args.as_slice() {
-                            self.crossings
-                                .push(Expr::Sub(Box::new(a.clone()), Box::new(b.clone())));
-                        }
-                    }
-                    Function::Abs if time_only => {
-                        if let Some(a) = args.first() {
-                            self.crossings.push(a.clone());
-                        }
-                    }
-                    _ => {}
                 }
-                for arg in args {
-                    self.collect(arg);
+                Function::Min | Function::Max if time_only => {
+                    if let [a, b] = args.as_slice() {
+                        self.crossings
+                            .push(Expr::Sub(Box::new(a.clone()), Box::new(b.clone())));
+                    }
                 }
+                Function::Abs if time_only => {
+                    if let Some(a) = args.first() {
+                        self.crossings.push(a.clone());
+                    }
+                }
+                _ => {}
             }
-            Expr::Neg(a) => self.collect(a),
-            Expr::Add(a, b)
-            | Expr::Sub(a, b)
-            | Expr::Mul(a, b)
-            | Expr::Div(a, b)
-            | Expr::Pow(a, b) => {
-                self.collect(a);
-                self.collect(b);
-            }
-            Expr::Const(_) | Expr::Param(_) | Expr::Factor(_) | Expr::Time | Expr::Invalid => {}
         }
+        expr.for_each_child(|child| self.collect(child));
     }
 }
 

@@ -36,28 +36,15 @@ pub(crate) enum Unresolved {
 pub(crate) fn mentioned_states(model: &Model, index: usize) -> Vec<usize> {
     let mut out = Vec::new();
     if let Some(eq) = model.factors.get(index).and_then(|s| s.equation.as_ref()) {
-        collect_states(&eq.drift, &mut out);
+        eq.drift.factors(&mut out);
         for term in &eq.diffusion {
-            collect_states(&term.coefficient, &mut out);
+            term.coefficient.factors(&mut out);
         }
     }
     out.sort_unstable();
     out.dedup();
     out.retain(|s| *s != index);
     out
-}
-
-fn collect_states(expr: &Expr, out: &mut Vec<usize>) {
-    match expr {
-        Expr::Factor(i) => out.push(*i),
-        Expr::Neg(a) => collect_states(a, out),
-        Expr::Add(a, b) | Expr::Sub(a, b) | Expr::Mul(a, b) | Expr::Div(a, b) | Expr::Pow(a, b) => {
-            collect_states(a, out);
-            collect_states(b, out);
-        }
-        Expr::Call(_, args) => args.iter().for_each(|a| collect_states(a, out)),
-        _ => {}
-    }
 }
 
 pub(crate) fn shape_of(model: &Model, index: usize) -> Result<Shape, Unresolved> {

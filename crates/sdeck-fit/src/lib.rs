@@ -47,7 +47,7 @@ use sdeck_calculus::coefficients::{
 use sdeck_calculus::linear_system::matrix_exponential;
 use sdeck_calculus::one_state::phi;
 use sdeck_calculus::Family;
-use sdeck_semantics::{Expr, Model};
+use sdeck_semantics::Model;
 use statrs::distribution::{ContinuousCDF, Normal};
 
 /// Observations of the fitted factors.
@@ -209,30 +209,15 @@ pub fn written_in(model: &Model, factors: &[usize]) -> Vec<usize> {
     let mut out = Vec::new();
     for &f in factors {
         if let Some(eq) = model.factors.get(f).and_then(|s| s.equation.as_ref()) {
-            collect(&eq.drift, &mut out, &mut Vec::new());
+            eq.drift.params(&mut out);
             for term in &eq.diffusion {
-                collect(&term.coefficient, &mut out, &mut Vec::new());
+                term.coefficient.params(&mut out);
             }
         }
     }
     out.sort_unstable();
     out.dedup();
     out
-}
-
-/// Params and states mentioned by an expression.
-fn collect(expr: &Expr, params: &mut Vec<usize>, states: &mut Vec<usize>) {
-    match expr {
-        Expr::Param(i) => params.push(*i),
-        Expr::Factor(i) => states.push(*i),
-        Expr::Neg(a) => collect(a, params, states),
-        Expr::Add(a, b) | Expr::Sub(a, b) | Expr::Mul(a, b) | Expr::Div(a, b) | Expr::Pow(a, b) => {
-            collect(a, params, states);
-            collect(b, params, states);
-        }
-        Expr::Call(_, args) => args.iter().for_each(|a| collect(a, params, states)),
-        Expr::Const(_) | Expr::Time | Expr::Invalid => {}
-    }
 }
 
 /// One factor fitted on its own.

@@ -9,6 +9,7 @@ mod analyze;
 mod meaning;
 pub mod model;
 pub mod symbols;
+mod walk;
 
 pub use analyze::{analyze, fmt_num, Analysis};
 pub use meaning::meaning;

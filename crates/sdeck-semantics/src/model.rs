@@ -41,19 +41,9 @@ impl Function {
         Function::Ramp,
     ];
 
+    /// The function's name, from the language's one table of function names.
     pub fn name(self) -> &'static str {
-        match self {
-            Function::Exp => "exp",
-            Function::Log => "log",
-            Function::Sqrt => "sqrt",
-            Function::Abs => "abs",
-            Function::Min => "min",
-            Function::Max => "max",
-            Function::Sin => "sin",
-            Function::Cos => "cos",
-            Function::Step => "step",
-            Function::Ramp => "ramp",
-        }
+        sdeck_syntax::vocabulary::FUNCTION_NAMES[self as usize]
     }
 
     pub fn from_name(name: &str) -> Option<Function> {
@@ -565,39 +555,6 @@ impl Expr {
             Expr::Invalid => f64::NAN,
         }
     }
-
-    /// Appends the index of every parameter the expression mentions.
-    pub fn params(&self, out: &mut Vec<usize>) {
-        match self {
-            Expr::Param(i) => out.push(*i),
-            Expr::Const(_) | Expr::Factor(_) | Expr::Time | Expr::Invalid => {}
-            Expr::Neg(a) => a.params(out),
-            Expr::Add(a, b)
-            | Expr::Sub(a, b)
-            | Expr::Mul(a, b)
-            | Expr::Div(a, b)
-            | Expr::Pow(a, b) => {
-                a.params(out);
-                b.params(out);
-            }
-            Expr::Call(_, args) => args.iter().for_each(|a| a.params(out)),
-        }
-    }
-
-    /// Whether any part of the expression failed to resolve.
-    pub fn is_invalid(&self) -> bool {
-        match self {
-            Expr::Invalid => true,
-            Expr::Const(_) | Expr::Param(_) | Expr::Factor(_) | Expr::Time => false,
-            Expr::Neg(a) => a.is_invalid(),
-            Expr::Add(a, b)
-            | Expr::Sub(a, b)
-            | Expr::Mul(a, b)
-            | Expr::Div(a, b)
-            | Expr::Pow(a, b) => a.is_invalid() || b.is_invalid(),
-            Expr::Call(_, args) => args.iter().any(Expr::is_invalid),
-        }
-    }
 }
 
 impl Model {
@@ -640,5 +597,21 @@ impl Model {
     /// Initial state values in clock units, in declaration order.
     pub fn initial_values(&self) -> Vec<f64> {
         self.factors.iter().map(|s| s.initial).collect()
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::Function;
+
+    #[test]
+    fn functions_follow_the_table_of_function_names() {
+        let names: Vec<&str> = Function::ALL.iter().map(|f| f.name()).collect();
+        assert_eq!(names, sdeck_syntax::vocabulary::FUNCTION_NAMES);
+        for (index, function) in Function::ALL.into_iter().enumerate() {
+            assert_eq!(function as usize, index);
+            assert_eq!(Function::from_name(function.name()), Some(function));
+        }
+        assert_eq!(Function::from_name("t"), None);
     }
 }

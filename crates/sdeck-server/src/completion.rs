@@ -3,9 +3,9 @@
 
 use crate::analysis::Analyzed;
 use crate::documents::PositionEncoding;
-use crate::navigation::KEYWORDS;
 use sdeck_semantics::{Function, SymbolKind};
 use sdeck_syntax::ast::Figure;
+use sdeck_syntax::vocabulary::KEYWORDS;
 use tower_lsp::lsp_types::{CompletionItem, CompletionItemKind, Position};
 
 pub fn complete(
@@ -52,8 +52,8 @@ pub fn complete(
             items.extend(
                 KEYWORDS
                     .iter()
-                    .filter(|k| k.starts_with(prefix))
-                    .map(|k| item(k, CompletionItemKind::KEYWORD, "keyword")),
+                    .filter(|k| k.word.starts_with(prefix))
+                    .map(|k| item(k.word, CompletionItemKind::KEYWORD, k.summary)),
             );
             return items;
         }
@@ -81,7 +81,7 @@ pub fn complete(
     items.extend(
         KEYWORDS
             .iter()
-            .map(|k| item(k, CompletionItemKind::KEYWORD, "keyword")),
+            .map(|k| item(k.word, CompletionItemKind::KEYWORD, k.summary)),
     );
     items.extend(
         Function::ALL

@@ -546,7 +546,7 @@ fn unit_text(model: &Model, name: &str) -> String {
 fn unit_name_at(a: &Analyzed, offset: usize) -> Option<(String, sdeck_diagnostics::Span)> {
     let mut found = None;
     let mut visit = |u: &UnitExpr| {
-        walk_unit(u, &mut |ident| {
+        u.walk_names(&mut |ident| {
             if ident.span.start <= offset && offset <= ident.span.end {
                 found = Some((ident.name.clone(), ident.span.clone()));
             }
@@ -563,7 +563,7 @@ fn unit_name_at(a: &Analyzed, offset: usize) -> Option<(String, sdeck_diagnostic
                 }
             }
             StatementKind::Horizon { value } => visit_quantity(value, &mut visit),
-            StatementKind::Let { value, .. } => walk_expr(value, &mut |e| {
+            StatementKind::Let { value, .. } => value.walk(&mut |e| {
                 if let Expr::Quantity(q) = e {
                     visit_quantity(q, &mut visit);
                 }
@@ -571,7 +571,7 @@ fn unit_name_at(a: &Analyzed, offset: usize) -> Option<(String, sdeck_diagnostic
             StatementKind::Equation(eq) => {
                 for term in &eq.terms {
                     if let Some(c) = &term.coefficient {
-                        walk_expr(c, &mut |e| {
+                        c.walk(&mut |e| {
                             if let Expr::Quantity(q) = e {
                                 visit_quantity(q, &mut visit);
                             }
@@ -607,34 +607,5 @@ fn unit_name_at(a: &Analyzed, offset: usize) -> Option<(String, sdeck_diagnostic
 fn visit_quantity(q: &Quantity, visit: &mut impl FnMut(&UnitExpr)) {
     if let Some(u) = &q.unit {
         visit(u);
-    }
-}
-
-/// Calls `f` on every unit name in a unit expression.
-pub fn walk_unit(u: &UnitExpr, f: &mut impl FnMut(&sdeck_syntax::ast::Ident)) {
-    match u {
-        UnitExpr::One { .. } => {}
-        UnitExpr::Name(ident) => f(ident),
-        UnitExpr::Mul { lhs, rhs, .. } | UnitExpr::Div { lhs, rhs, .. } => {
-            walk_unit(lhs, f);
-            walk_unit(rhs, f);
-        }
-        UnitExpr::Pow { base, .. } => walk_unit(base, f),
-        UnitExpr::Sqrt { inner, .. } => walk_unit(inner, f),
-    }
-}
-
-/// Calls `f` on every sub-expression, outermost first.
-pub fn walk_expr(e: &Expr, f: &mut impl FnMut(&Expr)) {
-    f(e);
-    match e {
-        Expr::Number(_) | Expr::Quantity(_) | Expr::Name(_) => {}
-        Expr::Neg { operand, .. } => walk_expr(operand, f),
-        Expr::Binary { lhs, rhs, .. } => {
-            walk_expr(lhs, f);
-            walk_expr(rhs, f);
-        }
-        Expr::Call { args, .. } => args.iter().for_each(|x| walk_expr(x, f)),
-        Expr::Paren { inner, .. } => walk_expr(inner, f),
     }
 }

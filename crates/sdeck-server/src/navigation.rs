@@ -4,17 +4,12 @@
 use crate::analysis::Analyzed;
 use crate::documents::PositionEncoding;
 use sdeck_semantics::SymbolKind;
+use sdeck_syntax::vocabulary;
 use std::collections::HashMap;
 use tower_lsp::lsp_types::{
     DocumentSymbol, Location, Position, PrepareRenameResponse, SymbolKind as LspSymbolKind,
     TextEdit, Url, WorkspaceEdit,
 };
-
-/// The keywords of the language: never names.
-pub const KEYWORDS: [&str; 12] = [
-    "model", "clock", "horizon", "unit", "param", "factor", "shock", "corr", "let", "expect", "in",
-    "inf",
-];
 
 pub fn definition(
     a: &Analyzed,
@@ -80,7 +75,7 @@ pub fn invalid_name(a: &Analyzed, name: &str) -> Option<String> {
             "`{name}` is not a name: a name is letters, digits and `_`, not starting with a digit"
         ));
     }
-    if KEYWORDS.contains(&name) || sdeck_syntax::RESERVED_NAMES.contains(&name) {
+    if vocabulary::is_keyword(name) || vocabulary::is_reserved(name) {
         return Some(format!("`{name}` is reserved by the language"));
     }
     if a.check.analysis.symbols.iter().any(|s| s.name == name) {

@@ -3,7 +3,6 @@
 
 use crate::analysis::Analyzed;
 use crate::documents::PositionEncoding;
-use crate::hover::{walk_expr, walk_unit};
 use sdeck_diagnostics::Span;
 use sdeck_semantics::SymbolKind;
 use sdeck_syntax::ast::{DeclaredValue, Expr, StatementKind, UnitExpr};
@@ -92,49 +91,35 @@ fn token_spans(a: &Analyzed) -> Vec<(Span, u32, u32)> {
         }
     }
     let unit = |u: &UnitExpr, spans: &mut Vec<(Span, u32, u32)>| {
-        walk_unit(u, &mut |ident| spans.push((ident.span.clone(), TYPE, 0)));
+        u.walk_names(&mut |ident| spans.push((ident.span.clone(), TYPE, 0)));
     };
     for statement in &analysis.file.statements {
-        let keyword_len = match &statement.kind {
-            StatementKind::Model { .. } => 5,
+        match &statement.kind {
+            StatementKind::Model { .. }
+            | StatementKind::Unit { .. }
+            | StatementKind::Shock { .. }
+            | StatementKind::Measure { .. } => {}
             StatementKind::Clock { unit: u } => {
                 spans.push((u.span.clone(), TYPE, 0));
-                5
             }
             StatementKind::Horizon { value } => {
                 spans.push((value.number.span.clone(), NUMBER, 0));
                 if let Some(u) = &value.unit {
                     unit(u, &mut spans);
                 }
-                7
             }
-            StatementKind::Unit { .. } => 4,
-            StatementKind::Param(d) | StatementKind::Factor(d) => {
-                match &d.value {
-                    DeclaredValue::Literal { number, unit: u } => {
-                        spans.push((number.span.clone(), NUMBER, 0));
-                        if let Some(u) = u {
-                            unit(u, &mut spans);
-                        }
+            StatementKind::Param(d) | StatementKind::Factor(d) => match &d.value {
+                DeclaredValue::Literal { number, unit: u } => {
+                    spans.push((number.span.clone(), NUMBER, 0));
+                    if let Some(u) = u {
+                        unit(u, &mut spans);
                     }
-                    DeclaredValue::Expr(e) => expression(e, &mut spans),
                 }
-                5
-            }
-            StatementKind::Shock { .. } => 5,
-            StatementKind::Corr { value, .. } => {
-                expression(value, &mut spans);
-                4
-            }
-            StatementKind::Let { value, .. } => {
-                expression(value, &mut spans);
-                3
-            }
-            StatementKind::Measure { .. } => 7,
-            StatementKind::Discount { rate } => {
-                expression(rate, &mut spans);
-                8
-            }
+                DeclaredValue::Expr(e) => expression(e, &mut spans),
+            },
+            StatementKind::Corr { value, .. }
+            | StatementKind::Let { value, .. }
+            | StatementKind::Discount { rate: value } => expression(value, &mut spans),
             StatementKind::Equation(eq) => {
                 for term in &eq.terms {
                     if let Some(c) = &term.coefficient {
@@ -144,13 +129,12 @@ fn token_spans(a: &Analyzed) -> Vec<(Span, u32, u32)> {
                         spans.push((span.clone(), KEYWORD, 0));
                     }
                 }
-                0
             }
             StatementKind::Expect(e) => {
                 spans.push((e.figure_span.clone(), FUNCTION, 0));
-                6
             }
-        };
+        }
+        let keyword_len = statement.kind.keyword().map_or(0, str::len);
         if keyword_len > 0 {
             let start = statement.span.start;
             // The word as written: a retired keyword (`state`) is shorter than its
@@ -175,12 +159,12 @@ fn token_spans(a: &Analyzed) -> Vec<(Span, u32, u32)> {
 }
 
 fn expression(e: &Expr, spans: &mut Vec<(Span, u32, u32)>) {
-    walk_expr(e, &mut |x| match x {
+    e.walk(&mut |x| match x {
         Expr::Number(n) => spans.push((n.span.clone(), NUMBER, 0)),
         Expr::Quantity(q) => {
             spans.push((q.number.span.clone(), NUMBER, 0));
             if let Some(u) = &q.unit {
-                walk_unit(u, &mut |ident| spans.push((ident.span.clone(), TYPE, 0)));
+                u.walk_names(&mut |ident| spans.push((ident.span.clone(), TYPE, 0)));
             }
         }
         Expr::Call { function, .. } => spans.push((function.span.clone(), FUNCTION, 0)),

@@ -400,24 +400,13 @@ impl Emitter<'_> {
 /// decides which are truncated).
 pub fn mark_root_states(expr: &Expr, marks: &mut [bool]) {
     fn mark_all(expr: &Expr, marks: &mut [bool]) {
-        match expr {
-            Expr::Factor(i) => {
+        expr.walk(&mut |e| {
+            if let Expr::Factor(i) = e {
                 if let Some(mark) = marks.get_mut(*i) {
                     *mark = true;
                 }
             }
-            Expr::Neg(a) => mark_all(a, marks),
-            Expr::Add(a, b)
-            | Expr::Sub(a, b)
-            | Expr::Mul(a, b)
-            | Expr::Div(a, b)
-            | Expr::Pow(a, b) => {
-                mark_all(a, marks);
-                mark_all(b, marks);
-            }
-            Expr::Call(_, args) => args.iter().for_each(|a| mark_all(a, marks)),
-            Expr::Const(_) | Expr::Param(_) | Expr::Time | Expr::Invalid => {}
-        }
+        });
     }
     match expr {
         Expr::Call(Function::Sqrt | Function::Log, args) => {
@@ -433,12 +422,7 @@ pub fn mark_root_states(expr: &Expr, marks: &mut [bool]) {
                 mark_root_states(exponent, marks);
             }
         }
-        Expr::Neg(a) => mark_root_states(a, marks),
-        Expr::Add(a, b) | Expr::Sub(a, b) | Expr::Mul(a, b) | Expr::Div(a, b) => {
-            mark_root_states(a, marks);
-            mark_root_states(b, marks);
-        }
-        Expr::Const(_) | Expr::Param(_) | Expr::Factor(_) | Expr::Time | Expr::Invalid => {}
+        _ => expr.for_each_child(|child| mark_root_states(child, marks)),
     }
 }
 

@@ -197,17 +197,7 @@ fn mark_affine_root_arguments(expr: &Expr, params: &[f64], marks: &mut [bool]) {
         }
         _ => {}
     }
-    match expr {
-        Expr::Neg(a) => mark_affine_root_arguments(a, params, marks),
-        Expr::Add(a, b) | Expr::Sub(a, b) | Expr::Mul(a, b) | Expr::Div(a, b) | Expr::Pow(a, b) => {
-            mark_affine_root_arguments(a, params, marks);
-            mark_affine_root_arguments(b, params, marks);
-        }
-        Expr::Call(_, args) => args
-            .iter()
-            .for_each(|a| mark_affine_root_arguments(a, params, marks)),
-        Expr::Const(_) | Expr::Param(_) | Expr::Factor(_) | Expr::Time | Expr::Invalid => {}
-    }
+    expr.for_each_child(|child| mark_affine_root_arguments(child, params, marks));
 }
 
 /// What the equations say about each state, read structurally.

@@ -2,8 +2,9 @@
 //!
 //! Layout: [`split`] cuts a file into statements; [`parse`](parse()) parses each with the
 //! pest grammar in `grammar/sdeck.pest` and builds the tree of [`ast`], every node with a
-//! byte span; [`line_index`] converts spans to lines and columns at the edges. This crate
-//! does no IO and knows nothing of names, units or meaning.
+//! byte span; [`vocabulary`] lists the words of the language once; [`line_index`]
+//! converts spans to lines and columns at the edges. This crate does no IO and knows
+//! nothing of names, units or meaning.
 //!
 //! ```
 //! use sdeck_syntax::ast::StatementKind;
@@ -17,6 +18,8 @@ pub mod line_index;
 pub mod lines;
 mod parse;
 pub mod split;
+pub mod vocabulary;
+pub mod walk;
 
 pub use line_index::{Encoding, LineCol, LineIndex};
 pub use parse::{

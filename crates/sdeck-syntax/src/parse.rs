@@ -31,10 +31,7 @@ pub const MAX_NESTING: usize = 64;
 /// The most expression nodes one statement may hold.
 pub const MAX_NODES: usize = 2000;
 
-/// Names that can never be declared.
-pub const RESERVED_NAMES: [&str; 13] = [
-    "t", "pi", "dt", "exp", "log", "sqrt", "abs", "min", "max", "sin", "cos", "step", "ramp",
-];
+pub use crate::vocabulary::RESERVED_NAMES;
 
 type Result<T> = std::result::Result<T, Diagnostic>;
 

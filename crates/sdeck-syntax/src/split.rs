@@ -8,11 +8,7 @@
 use crate::ast::Comment;
 use sdeck_diagnostics::Span;
 
-/// Keywords that start a statement.
-pub const STATEMENT_KEYWORDS: [&str; 12] = [
-    "model", "clock", "horizon", "unit", "param", "factor", "shock", "corr", "let", "expect",
-    "measure", "discount",
-];
+pub use crate::vocabulary::STATEMENT_KEYWORDS;
 
 /// Keywords of the first version of the language and the words that replaced them. A
 /// line that starts with one followed by a name still opens a statement, so that the

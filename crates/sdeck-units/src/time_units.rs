@@ -7,22 +7,33 @@
 
 use crate::rational::Rational;
 
+/// The built-in time units, longest first, each with its length in years as a fraction
+/// (numerator, denominator): the one table every list of units is read from.
+const TABLE: [(&str, i64, i64); 7] = [
+    ("year", 1, 1),
+    ("quarter", 1, 4),
+    ("month", 1, 12),
+    ("week", 7, 365),
+    ("day", 1, 365),
+    ("bday", 1, 252),
+    ("hour", 1, 365 * 24),
+];
+
 /// The names of the built-in time units, longest first in length of time.
-pub const TIME_UNITS: [&str; 7] = ["year", "quarter", "month", "week", "day", "bday", "hour"];
+pub const TIME_UNITS: [&str; TABLE.len()] = {
+    let mut out = [""; TABLE.len()];
+    let mut i = 0;
+    while i < TABLE.len() {
+        out[i] = TABLE[i].0;
+        i += 1;
+    }
+    out
+};
 
 /// The length of a built-in time unit in years, exactly: year 1, quarter 1/4, month 1/12,
 /// week 7/365, day 1/365, bday 1/252, hour 1/8760. `None` for any other name.
 pub fn time_unit_years_exact(name: &str) -> Option<Rational> {
-    let (num, den) = match name {
-        "year" => (1, 1),
-        "quarter" => (1, 4),
-        "month" => (1, 12),
-        "week" => (7, 365),
-        "day" => (1, 365),
-        "bday" => (1, 252),
-        "hour" => (1, 365 * 24),
-        _ => return None,
-    };
+    let &(_, num, den) = TABLE.iter().find(|(unit, _, _)| *unit == name)?;
     Rational::new(num, den)
 }
 
@@ -73,5 +84,21 @@ mod tests {
         assert_eq!(time_unit_years("EUR"), None);
         assert!(!is_time_unit("days"));
         assert_eq!(exact_years_of(0.5), None);
+    }
+
+    #[test]
+    fn the_docs_list_the_units_of_the_table() {
+        let docs = include_str!("../../../docs/language.md");
+        let section = docs
+            .split("### 5.2 Time units")
+            .nth(1)
+            .and_then(|rest| rest.split("###").next())
+            .unwrap_or("");
+        let documented: Vec<&str> = section
+            .lines()
+            .filter_map(|line| line.strip_prefix("| `"))
+            .filter_map(|rest| rest.split('`').next())
+            .collect();
+        assert_eq!(documented, TIME_UNITS);
     }
 }
