@@ -33,6 +33,7 @@ pub mod affine;
 pub mod algebra;
 pub mod breaks;
 pub mod coefficients;
+pub mod correlation;
 pub mod curve;
 pub mod describe;
 mod elementary;

@@ -1,6 +1,7 @@
 //! The one analysis entry point of sdeck, called by the CLI and the language server alike.
 //!
-//! [`check`] runs the layers in order (syntax → semantics → calculus → derived checks),
+//! [`check`] runs the layers in order (syntax → semantics → calculus → the rules of
+//! [`rules`], one module each),
 //! applies the suppression comments of the file and the rule settings of the project,
 //! and returns everything a face needs: the tree, the model, the derivation and the final
 //! diagnostics, sorted by position. Nothing here does IO.
@@ -15,13 +16,11 @@
 //! assert!(result.diagnostics.is_empty(), "{:?}", result.diagnostics);
 //! ```
 
-mod derived;
+pub mod rules;
 pub mod suppress;
 
-pub use derived::{derived_checks, feller_bounds, feller_number, FellerBounds};
-
 use sdeck_calculus::Derivation;
-use sdeck_diagnostics::{rules, Diagnostic, Severity};
+use sdeck_diagnostics::{Diagnostic, RuleId, Severity};
 use sdeck_semantics::Analysis;
 use std::collections::HashMap;
 
@@ -35,13 +34,13 @@ pub enum RuleLevel {
 /// Per-rule levels that override the default severities.
 #[derive(Clone, Debug, Default, PartialEq)]
 pub struct RuleSettings {
-    pub levels: HashMap<String, RuleLevel>,
+    pub levels: HashMap<RuleId, RuleLevel>,
 }
 
 impl RuleSettings {
     /// The severity of `rule` under these settings; `None` when it is off.
-    pub fn severity(&self, rule: &str, default: Severity) -> Option<Severity> {
-        match self.levels.get(rule) {
+    pub fn severity(&self, rule: RuleId, default: Severity) -> Option<Severity> {
+        match self.levels.get(&rule) {
             Some(RuleLevel::Off) => None,
             Some(RuleLevel::On(s)) => Some(*s),
             None => Some(default),
@@ -72,46 +71,17 @@ pub fn check(source: &str, name: &str, settings: &RuleSettings) -> FileCheck {
     let analysis = sdeck_semantics::analyze(source, name);
     let derivation = sdeck_calculus::derive(&analysis.model);
     let mut diagnostics = analysis.diagnostics.clone();
-    let broken = analysis.has_errors();
-    for d in derived_checks(&analysis.model, &derivation) {
-        // On a model with errors the derived figures may rest on what did not resolve;
-        // pinned expectations wait until the model is sound.
-        if broken && d.rule == rules::EXPECTATION_FAILED.name {
-            continue;
-        }
-        diagnostics.push(d);
-    }
-    if !broken && analysis.model.factors.is_empty() {
-        diagnostics.push(no_factor(&analysis.file));
-    }
+    diagnostics.extend(rules::run_all(&rules::Context::new(
+        source,
+        &analysis,
+        &derivation,
+    )));
     let diagnostics = finish(source, &analysis.file, diagnostics, settings);
     FileCheck {
         analysis,
         derivation,
         diagnostics,
     }
-}
-
-/// `no-factor`, at the `model` line, else the first statement, else the start of the file.
-fn no_factor(file: &sdeck_syntax::ast::SourceFile) -> Diagnostic {
-    use sdeck_syntax::ast::StatementKind;
-    let span = file
-        .statements
-        .iter()
-        .find(|s| matches!(s.kind, StatementKind::Model { .. }))
-        .or(file.statements.first())
-        .map_or(0..0, |s| s.span.clone());
-    let what = if file.statements.is_empty() {
-        "the file holds no statement"
-    } else {
-        "the model declares no factor"
-    };
-    Diagnostic::new(
-        &rules::NO_FACTOR,
-        span,
-        format!("{what}: nothing is derived, and no equation, unit or figure is checked"),
-    )
-    .with_help("declare a factor and its equation (`factor r = 2%` and `dr = ... dt + ... dW`), or leave this file out of the paths checked")
 }
 
 /// Applies suppressions and settings, then sorts.
@@ -129,7 +99,8 @@ fn finish(
             Some(d)
         })
         .collect();
-    out.sort_by(|a, b| (a.span.start, a.span.end, a.rule).cmp(&(b.span.start, b.span.end, b.rule)));
+    // Same place: the rules in catalogue order.
+    out.sort_by_key(|d| (d.span.start, d.span.end, d.rule));
     out.dedup_by(|a, b| a.span == b.span && a.rule == b.rule && a.message == b.message);
     out
 }

@@ -12,14 +12,14 @@
 //! `--` (the first version's form) is reported too, with a fix that writes `because`; the
 //! comment still silences its rules, so the old form gives one finding, not two.
 
-use sdeck_diagnostics::{rules, Diagnostic, Span, TextEdit};
+use sdeck_diagnostics::{rules, Diagnostic, RuleId, Span, TextEdit};
 use sdeck_syntax::ast::SourceFile;
 use sdeck_syntax::LineIndex;
 
 /// One rule named in a suppression comment, with where its name stands.
 #[derive(Debug, Clone)]
 struct NamedRule {
-    rule: String,
+    rule: RuleId,
     /// The bytes of the name in the source: unused-suppression is reported there.
     span: Span,
 }
@@ -185,9 +185,9 @@ fn parse_directive(text: &str, base: usize, comment: &Span) -> Option<Directive>
     }
     for &(at, name) in names {
         let span = absolute(at, name);
-        if rules::by_name(name).is_some() {
+        if let Some(rule) = rules::by_name(name) {
             known.push(NamedRule {
-                rule: name.to_string(),
+                rule: rule.id,
                 span,
             });
         } else {

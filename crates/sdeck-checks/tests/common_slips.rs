@@ -23,7 +23,7 @@ fn a_name_followed_by_a_parenthesis_is_read_as_a_missing_product() {
     let found = findings(&text);
     // One finding: `kappa` is not also called unused, nor `theta`.
     assert_eq!(found.len(), 1, "{found:?}");
-    assert_eq!(found[0].rule, "syntax");
+    assert_eq!(found[0].rule.name(), "syntax");
     assert_eq!(
         found[0].message,
         "a name followed by `(`: did you mean `kappa * (theta - r)`?"
@@ -39,7 +39,7 @@ fn ln_points_to_log() {
     let text = format!("{HEAD}let gap = ln(1 + r)\ndr = kappa * (theta - r) * gap dt + vol dW\n");
     let found = findings(&text);
     assert_eq!(found.len(), 1, "{found:?}");
-    assert_eq!(found[0].rule, "unknown-name");
+    assert_eq!(found[0].rule.name(), "unknown-name");
     assert!(found[0].message.contains("`log`"), "{}", found[0].message);
     let fixed = apply_first_fix(&text, &found[0]);
     assert!(fixed.contains("let gap = log(1 + r)"), "{fixed}");
@@ -58,7 +58,7 @@ fn another_unknown_function_is_still_unknown() {
 fn an_ordinary_differential_equation_gives_the_form_of_an_equation() {
     let text = format!("{HEAD}dr/dt = kappa * (theta - r)\n");
     let found = findings(&text);
-    let syntax: Vec<_> = found.iter().filter(|d| d.rule == "syntax").collect();
+    let syntax: Vec<_> = found.iter().filter(|d| d.rule.name() == "syntax").collect();
     assert_eq!(syntax.len(), 1, "{found:?}");
     assert_eq!(
         syntax[0].message,
@@ -66,13 +66,13 @@ fn an_ordinary_differential_equation_gives_the_form_of_an_equation() {
     );
     // Not also "factor `r` has no equation".
     assert!(
-        !found.iter().any(|d| d.rule == "missing-equation"),
+        !found.iter().any(|d| d.rule.name() == "missing-equation"),
         "{found:?}"
     );
     let fixed = apply_first_fix(&text, syntax[0]);
     assert!(fixed.contains("dr = (kappa * (theta - r)) dt\n"), "{fixed}");
     let after = findings(&fixed);
-    assert!(after.iter().all(|d| d.rule == "unused"), "{after:?}");
+    assert!(after.iter().all(|d| d.rule.name() == "unused"), "{after:?}");
 }
 
 #[test]
@@ -93,7 +93,10 @@ fn a_space_inside_the_differential_gives_the_form_of_an_equation() {
 fn an_undeclared_shock_close_to_a_declared_one_is_suggested() {
     let text = format!("{HEAD}dr = kappa * (theta - r) dt + vol dB\n");
     let found = findings(&text);
-    let unknown: Vec<_> = found.iter().filter(|d| d.rule == "unknown-name").collect();
+    let unknown: Vec<_> = found
+        .iter()
+        .filter(|d| d.rule.name() == "unknown-name")
+        .collect();
     assert_eq!(unknown.len(), 1, "{found:?}");
     assert!(
         unknown[0]

@@ -21,7 +21,7 @@ fn run(text: &str) -> FileCheck {
 fn failed(c: &FileCheck) -> Vec<String> {
     c.diagnostics
         .iter()
-        .filter(|d| d.rule == "expectation-failed")
+        .filter(|d| d.rule.name() == "expectation-failed")
         .map(|d| d.message.clone())
         .collect()
 }
@@ -161,7 +161,7 @@ fn messages_give_probabilities_and_yields_in_percent_and_times_in_the_clock() {
     let help = c
         .diagnostics
         .iter()
-        .find(|d| d.rule == "expectation-failed")
+        .find(|d| d.rule.name() == "expectation-failed")
         .and_then(|d| d.help.clone())
         .unwrap_or_default();
     assert!(help.contains("discount r"), "{help}");
@@ -232,7 +232,11 @@ fn rates_in_units_of_time_convert_and_bad_arguments_are_explained() {
         ("expect prob(q < 0, 1 year) < 2%", "unknown-name", "q"),
     ] {
         let c = run(&format!("{VASICEK}discount r\n{line}\n"));
-        let found: Vec<_> = c.diagnostics.iter().filter(|d| d.rule == rule).collect();
+        let found: Vec<_> = c
+            .diagnostics
+            .iter()
+            .filter(|d| d.rule.name() == rule)
+            .collect();
         assert_eq!(found.len(), 1, "{line}: {:?}", c.diagnostics);
         let text = format!(
             "{} {}",

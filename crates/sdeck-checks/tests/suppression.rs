@@ -15,7 +15,7 @@ fn fired(text: &str) -> Vec<(u32, &'static str)> {
         .map(|d| {
             (
                 index.line_col(text, d.span.start, Encoding::Chars).line + 1,
-                d.rule,
+                d.rule.name(),
             )
         })
         .collect()
@@ -26,7 +26,7 @@ fn reports<'a>(text: &'a str, rule: &str) -> Vec<(String, &'a str)> {
     check(text, "suppression_test", &RuleSettings::default())
         .diagnostics
         .into_iter()
-        .filter(|d| d.rule == rule)
+        .filter(|d| d.rule.name() == rule)
         .map(|d| (d.message.clone(), text.get(d.span.clone()).unwrap_or("")))
         .collect()
 }
@@ -261,7 +261,7 @@ fn a_misspelt_rule_gets_a_fix_to_the_nearest_name() {
     let d = found
         .diagnostics
         .iter()
-        .find(|d| d.rule == "unused-suppression")
+        .find(|d| d.rule.name() == "unused-suppression")
         .expect("the misspelt name is reported");
     assert!(
         d.message.contains("did you mean `feller-condition`?"),
@@ -360,7 +360,7 @@ fn silenced_diagnostics_stay_silenced_under_project_levels() {
     // A project that raises a rule to error does not bring back a silenced finding.
     let mut settings = RuleSettings::default();
     settings.levels.insert(
-        "feller-condition".to_string(),
+        sdeck_diagnostics::RuleId::FellerCondition,
         sdeck_checks::RuleLevel::On(sdeck_diagnostics::Severity::Error),
     );
     let text = with_line(10, "# sdeck: quiet feller-condition because accepted");
@@ -368,10 +368,10 @@ fn silenced_diagnostics_stay_silenced_under_project_levels() {
     assert!(result
         .diagnostics
         .iter()
-        .all(|d| d.rule != "feller-condition"));
+        .all(|d| d.rule.name() != "feller-condition"));
     // Turning `unused-suppression` off hides the reports of stale suppressions.
     settings.levels.insert(
-        "unused-suppression".to_string(),
+        sdeck_diagnostics::RuleId::UnusedSuppression,
         sdeck_checks::RuleLevel::Off,
     );
     let stale = with_line(9, "# sdeck: quiet-file factor-domain");
@@ -379,7 +379,7 @@ fn silenced_diagnostics_stay_silenced_under_project_levels() {
     assert!(result
         .diagnostics
         .iter()
-        .all(|d| d.rule != "unused-suppression"));
+        .all(|d| d.rule.name() != "unused-suppression"));
 }
 
 #[test]
@@ -397,7 +397,7 @@ fn a_reason_after_dashes_still_silences_but_is_reported_with_a_fix() {
     let report = result
         .diagnostics
         .iter()
-        .find(|d| d.rule == "unused-suppression")
+        .find(|d| d.rule.name() == "unused-suppression")
         .expect("reported");
     assert_eq!(&text[report.span.clone()], "--");
     assert!(report.message.contains("`because`"), "{}", report.message);

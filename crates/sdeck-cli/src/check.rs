@@ -1,11 +1,16 @@
 //! `sdeck check PATH...`: check files and folders, print the findings, set the exit status.
 //!
+//! With `--fix`, the preferred fix of every finding is applied to each file first (see
+//! `fixing.rs`), and the report says what remains.
+//!
 //! Exit status: 0 when nothing fails, 1 when a finding fails under the deny level (errors,
-//! or warnings too with `--deny warnings` or `[check] deny = "warnings"`), 2 when a path
+//! or warnings too with `--deny warnings` or `[check] deny = "warnings"`) or when `--fix`
+//! left a file unwritten because its fixes overlap, 2 when a path
 //! cannot be read, a project file is broken, a report cannot be written, or the command
 //! line is wrong.
 
 use crate::files::{self, SourceText, Target};
+use crate::fixing::{fix_file, FixOutcome};
 use crate::{github, junit, render, sarif};
 use clap::{Args, ValueEnum};
 use codespan_reporting::term::termcolor::{
@@ -93,6 +98,11 @@ pub struct CheckArgs {
     /// run that checks nothing is usually a wrong path).
     #[arg(long)]
     allow_empty: bool,
+    /// Apply the preferred fix of every finding to the files, then report what remains.
+    /// A file whose fixes overlap is left as it was, the clash is named, and the exit
+    /// status is at least 1. Standard input is not fixed.
+    #[arg(long)]
+    fix: bool,
 }
 
 /// One checked file with what the outputs need.
@@ -139,7 +149,7 @@ pub fn check_source(source: SourceText, settings: &RuleSettings) -> (Checked, Fi
         )
         .with_help("save the file as UTF-8");
         if settings
-            .severity(rules::SYNTAX.name, rules::SYNTAX.default_severity)
+            .severity(rules::SYNTAX.id, rules::SYNTAX.default_severity)
             .is_some()
         {
             diagnostics.insert(0, diagnostic);
@@ -221,6 +231,10 @@ fn run_in_pool(args: CheckArgs) -> ExitCode {
         eprintln!("sdeck: `--stdin-name` names standard input, which is read only when `-` is among the paths (or no path is given)");
         return ExitCode::from(2);
     }
+    if args.fix && reads_stdin {
+        eprintln!("sdeck: `--fix` rewrites files; standard input cannot be fixed (name the file instead of `-`)");
+        return ExitCode::from(2);
+    }
     if args.paths.iter().filter(|p| p.as_os_str() == "-").count() > 1 {
         eprintln!("sdeck: standard input can be read once: give `-` once");
         return ExitCode::from(2);
@@ -287,8 +301,30 @@ fn run_in_pool(args: CheckArgs) -> ExitCode {
             );
         }
     }
-    let mut checked: Vec<Checked> = Vec::with_capacity(targets.len() + 1);
     let mut unreadable = false;
+    let mut fixes_refused = false;
+    if args.fix {
+        let outcomes: Vec<Result<FixOutcome, String>> = targets.par_iter().map(fix_file).collect();
+        for (target, outcome) in targets.iter().zip(outcomes) {
+            let path = files::display(&target.path);
+            match outcome {
+                Ok(FixOutcome::Fixed(0)) => {}
+                Ok(FixOutcome::Fixed(n)) => {
+                    let fixes = if n == 1 { "fix" } else { "fixes" };
+                    eprintln!("sdeck: {path}: applied {n} {fixes}");
+                }
+                Ok(FixOutcome::Refused(reason)) => {
+                    eprintln!("sdeck: {path}: nothing written: {reason}");
+                    fixes_refused = true;
+                }
+                Err(message) => {
+                    eprintln!("sdeck: {message}");
+                    unreadable = true;
+                }
+            }
+        }
+    }
+    let mut checked: Vec<Checked> = Vec::with_capacity(targets.len() + 1);
     if reads_stdin {
         let name = args
             .stdin_name
@@ -363,7 +399,7 @@ fn run_in_pool(args: CheckArgs) -> ExitCode {
     }
     if status_two {
         ExitCode::from(2)
-    } else if checked.iter().any(Checked::failed) {
+    } else if fixes_refused || checked.iter().any(Checked::failed) {
         ExitCode::from(1)
     } else {
         ExitCode::SUCCESS

@@ -43,7 +43,7 @@ pub fn report(checked: &[Checked]) -> String {
                 start.1,
                 end.0,
                 end.1,
-                escape_property(d.rule),
+                escape_property(d.rule.name()),
                 escape_data(message)
             ));
         }

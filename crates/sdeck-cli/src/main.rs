@@ -19,6 +19,7 @@ mod diff_cmd;
 mod files;
 mod fit_cmd;
 mod fit_data;
+mod fixing;
 mod fmt_cmd;
 mod github;
 mod junit;

@@ -4,7 +4,7 @@
 use crate::files;
 use clap::{Args, ValueEnum};
 use sdeck_checks::FileCheck;
-use sdeck_diagnostics::Severity;
+use sdeck_diagnostics::{RuleId, Severity};
 use sdeck_report::moments::{moments_json, moments_text};
 use sdeck_report::{Levels, ModelReport};
 use sdeck_semantics::Model;
@@ -134,7 +134,7 @@ pub fn load_sound_model(path: &Path, doing: &str) -> Result<(String, FileCheck),
     let errors: Vec<_> = checked
         .diagnostics
         .iter()
-        .filter(|d| d.severity == Severity::Error && d.rule != "expectation-failed")
+        .filter(|d| d.severity == Severity::Error && d.rule != RuleId::ExpectationFailed)
         .cloned()
         .collect();
     if !errors.is_empty() {

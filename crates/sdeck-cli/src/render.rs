@@ -35,7 +35,7 @@ pub fn json_report(checked: &[Checked]) -> Value {
         for (d, (start, end)) in c.diagnostics.iter().zip(&c.positions) {
             entries.push(json!({
                 "file": c.source.path,
-                "rule": d.rule,
+                "rule": d.rule.name(),
                 "severity": d.severity.as_str(),
                 "message": d.message,
                 "range": {
@@ -181,7 +181,7 @@ pub fn human(
             notes.push(format!("help: {}", escape(help)));
         }
         let report = Report::new(report_severity(d.severity))
-            .with_code(d.rule)
+            .with_code(d.rule.name())
             .with_message(escape(&d.message))
             .with_labels(labels)
             .with_notes(notes);

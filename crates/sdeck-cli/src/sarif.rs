@@ -3,7 +3,7 @@
 
 use crate::check::Checked;
 use crate::render;
-use sdeck_diagnostics::{rules, Rule, Severity};
+use sdeck_diagnostics::{rules, Rule, RuleId, Severity};
 use serde_json::{json, Value};
 
 /// The schema URI of SARIF 2.1.0, as published with the OASIS standard.
@@ -147,7 +147,7 @@ pub fn report(checked: &[Checked]) -> Value {
         let lines: Vec<&str> = sdeck_syntax::lines::lines(&c.source.text)
             .map(|l| l.content)
             .collect();
-        let mut seen: std::collections::HashMap<(&str, &str), usize> =
+        let mut seen: std::collections::HashMap<(RuleId, &str), usize> =
             std::collections::HashMap::new();
         for (d, (start, end)) in c.diagnostics.iter().zip(&c.positions) {
             let line_text = lines
@@ -155,9 +155,9 @@ pub fn report(checked: &[Checked]) -> Value {
                 .copied()
                 .unwrap_or("");
             let occurrence = seen.entry((d.rule, line_text.trim())).or_insert(0);
-            let print = fingerprint(d.rule, &uri, line_text, *occurrence);
+            let print = fingerprint(d.rule.name(), &uri, line_text, *occurrence);
             *occurrence += 1;
-            let rule_index = rules::ALL.iter().position(|r| r.name == d.rule);
+            let rule_index = d.rule.index();
             let mut message = d.message.clone();
             if let Some(help) = &d.help {
                 message.push_str(&format!(" (help: {help})"));
@@ -179,7 +179,7 @@ pub fn report(checked: &[Checked]) -> Value {
                 })
                 .collect();
             let mut result = json!({
-                "ruleId": d.rule,
+                "ruleId": d.rule.name(),
                 "level": level(d.severity),
                 "message": {"text": message},
                 "locations": [{
@@ -190,8 +190,8 @@ pub fn report(checked: &[Checked]) -> Value {
                 }],
                 "partialFingerprints": {"findingHash/v1": print},
             });
-            if let (Some(i), Some(object)) = (rule_index, result.as_object_mut()) {
-                object.insert("ruleIndex".to_string(), json!(i));
+            if let Some(object) = result.as_object_mut() {
+                object.insert("ruleIndex".to_string(), json!(rule_index));
             }
             if !related.is_empty() {
                 if let Some(object) = result.as_object_mut() {

@@ -8,11 +8,16 @@
 //! ```
 //! use sdeck_diagnostics::{rules, Diagnostic, Severity};
 //! let d = Diagnostic::new(&rules::UNUSED, 10..15, "parameter `beta` is never used");
-//! assert_eq!(d.rule, "unused");
+//! assert_eq!(d.rule, rules::RuleId::Unused);
+//! assert_eq!(d.rule.name(), "unused");
 //! assert_eq!(d.severity, Severity::Warning);
 //! ```
 
+mod apply;
 pub mod rules;
+
+pub use apply::{apply_fixes, FixConflict};
+pub use rules::RuleId;
 
 use serde::Serialize;
 use std::fmt;
@@ -89,6 +94,8 @@ pub fn closest_word<'c>(
 /// One rule of the catalogue: its name, default severity and its manual.
 #[derive(Debug)]
 pub struct Rule {
+    /// The rule's identity; its place in [`rules::ALL`].
+    pub id: RuleId,
     /// Kebab-case name, shown in every output format.
     pub name: &'static str,
     pub default_severity: Severity,
@@ -122,12 +129,15 @@ pub struct TextEdit {
 pub struct Fix {
     pub title: String,
     pub edits: Vec<TextEdit>,
+    /// The fix to apply when nobody chooses (`sdeck check --fix`, an editor's "fix all"):
+    /// the first fix of a diagnostic; the others are alternatives to it.
+    pub preferred: bool,
 }
 
 /// A finding about a model file, located by byte spans.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Diagnostic {
-    pub rule: &'static str,
+    pub rule: RuleId,
     pub severity: Severity,
     /// What is wrong, in one sentence.
     pub message: String,
@@ -149,7 +159,7 @@ impl Diagnostic {
     /// A diagnostic of `rule` at its default severity.
     pub fn new(rule: &'static Rule, span: Span, message: impl Into<String>) -> Diagnostic {
         Diagnostic {
-            rule: rule.name,
+            rule: rule.id,
             severity: rule.default_severity,
             message: message.into(),
             span,
@@ -184,10 +194,13 @@ impl Diagnostic {
         self
     }
 
+    /// Adds a fix; the first one added is the preferred one, later ones are alternatives.
     pub fn with_fix(mut self, title: impl Into<String>, edits: Vec<TextEdit>) -> Self {
+        let preferred = self.fixes.is_empty();
         self.fixes.push(Fix {
             title: title.into(),
             edits,
+            preferred,
         });
         self
     }

@@ -25,7 +25,7 @@
 //! assert!(project.is_excluded(&dir.join("flawed/feller.sde")));
 //! assert!(!project.is_excluded(&dir.join("rate.sde")));
 //! assert_eq!(
-//!     project.settings.levels.get("unused"),
+//!     project.settings.levels.get(&sdeck_diagnostics::RuleId::Unused),
 //!     Some(&sdeck_checks::RuleLevel::Off)
 //! );
 //! std::fs::remove_dir_all(&dir).unwrap();
@@ -233,7 +233,7 @@ fn parse_rules(value: &toml::Value) -> Result<RuleSettings, String> {
                 }
             },
         };
-        settings.levels.insert(rule.name.to_string(), level);
+        settings.levels.insert(rule.id, level);
     }
     Ok(settings)
 }

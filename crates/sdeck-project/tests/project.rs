@@ -1,7 +1,7 @@
 //! Tests of the project resolver: nearest file wins, globs, levels, deny and the errors.
 
 use sdeck_checks::RuleLevel;
-use sdeck_diagnostics::Severity;
+use sdeck_diagnostics::{RuleId, Severity};
 use sdeck_project::{find_project, settings_for, DenyLevel, ProjectCache};
 use std::fs;
 use std::path::Path;
@@ -37,7 +37,10 @@ fn nearest_file_wins_and_is_not_merged() {
         "[rules]\nfeller-condition = \"error\"\n",
     );
     let outer = find_project(&dir.path().join("rate.sde")).unwrap().unwrap();
-    assert_eq!(outer.settings.levels.get("unused"), Some(&RuleLevel::Off));
+    assert_eq!(
+        outer.settings.levels.get(&RuleId::Unused),
+        Some(&RuleLevel::Off)
+    );
     assert!(outer.deny_warnings());
     assert!(outer.is_excluded(&dir.path().join("flawed/feller.sde")));
     assert!(outer.is_excluded(&dir.path().join("flawed/deeper/x.sde")));
@@ -47,11 +50,11 @@ fn nearest_file_wins_and_is_not_merged() {
         .unwrap()
         .unwrap();
     assert_eq!(
-        inner.settings.levels.get("feller-condition"),
+        inner.settings.levels.get(&RuleId::FellerCondition),
         Some(&RuleLevel::On(Severity::Error))
     );
     // Not merged: the outer `unused = "off"` does not reach the inner project.
-    assert_eq!(inner.settings.levels.get("unused"), None);
+    assert_eq!(inner.settings.levels.get(&RuleId::Unused), None);
     assert!(!inner.deny_warnings());
     assert!(!inner.is_excluded(&dir.path().join("flawed/feller.sde")));
 }
@@ -92,7 +95,10 @@ fn every_level_is_read() {
         "[rules]\nunused = \"off\"\nunit-scale = \"hint\"\nfeller-condition = \"info\"\nsyntax = \"warning\"\nfactor-domain = \"error\"\n[check]\ndeny = \"errors\"\n",
     );
     let project = find_project(dir.path()).unwrap().unwrap();
-    let level = |r: &str| project.settings.levels.get(r).copied();
+    let level = |r: &str| {
+        let rule = sdeck_diagnostics::rules::by_name(r)?;
+        project.settings.levels.get(&rule.id).copied()
+    };
     assert_eq!(level("unused"), Some(RuleLevel::Off));
     assert_eq!(level("unit-scale"), Some(RuleLevel::On(Severity::Hint)));
     assert_eq!(

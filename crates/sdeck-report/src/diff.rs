@@ -7,7 +7,7 @@ use crate::data::{FactorReport, ModelReport, ParamRow};
 use crate::markdown::cell;
 use crate::review::{findings, Finding};
 use sdeck_checks::FileCheck;
-use sdeck_diagnostics::Severity;
+use sdeck_diagnostics::{RuleId, Severity};
 use sdeck_units::number::{or_unknown, plain, significant};
 use serde_json::{json, Value};
 use std::fmt::Write as _;
@@ -27,7 +27,7 @@ impl Side {
         let broken = check
             .diagnostics
             .iter()
-            .any(|d| d.severity == Severity::Error && d.rule != "expectation-failed");
+            .any(|d| d.severity == Severity::Error && d.rule != RuleId::ExpectationFailed);
         let model = &check.analysis.model;
         Side {
             source: source.to_string(),

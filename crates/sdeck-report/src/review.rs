@@ -5,7 +5,7 @@ use crate::curve_chart::yield_curve_svg;
 use crate::data::{figures_at, time_grid, Figures, ModelReport};
 use sdeck_calculus::curve::{curve, Curve};
 use sdeck_checks::FileCheck;
-use sdeck_diagnostics::Severity;
+use sdeck_diagnostics::{RuleId, Severity};
 use sdeck_simulate::{simulate_and_compare, SimulationOptions, SimulationResult};
 use sdeck_syntax::{Encoding, LineIndex};
 
@@ -151,7 +151,7 @@ pub fn findings(source: &str, check: &FileCheck) -> Vec<Finding> {
                 line: at.line as usize + 1,
                 column: at.col as usize + 1,
                 severity: d.severity,
-                rule: d.rule,
+                rule: d.rule.name(),
                 message: d.message.clone(),
                 help: d.help.clone(),
             }
@@ -166,7 +166,7 @@ impl Review {
         let broken = check
             .diagnostics
             .iter()
-            .any(|d| d.severity == Severity::Error && d.rule != "expectation-failed");
+            .any(|d| d.severity == Severity::Error && d.rule != RuleId::ExpectationFailed);
         let mut review = Review {
             path: path.to_string(),
             source: source.to_string(),

@@ -10,11 +10,11 @@ fn findings(text: &str) -> Vec<(usize, &'static str, String)> {
     let mut out: Vec<(usize, &'static str, String)> = a
         .diagnostics
         .iter()
-        .filter(|d| d.rule != "unit-scale" && d.rule != "unused")
+        .filter(|d| d.rule.name() != "unit-scale" && d.rule.name() != "unused")
         .map(|d| {
             (
                 text[..d.span.start].matches('\n').count() + 1,
-                d.rule,
+                d.rule.name(),
                 d.message.clone(),
             )
         })
@@ -48,7 +48,7 @@ fn a_declared_value_may_be_an_expression_of_earlier_parameters() {
     assert!(a.model.params[3].expr.is_some());
     assert!(a.model.factors[0].initial_expr.is_some());
     // A parameter used only in another's value is used.
-    assert!(!a.diagnostics.iter().any(|d| d.rule == "unused"));
+    assert!(!a.diagnostics.iter().any(|d| d.rule.name() == "unused"));
 }
 
 #[test]
@@ -130,7 +130,7 @@ fn a_parameter_that_moves_with_time_is_told_to_be_a_let() {
     let text = "param lvl = 2% + 0.5% [1/year] * t\n";
     let a = analyze(text, "test");
     let d = &a.diagnostics[0];
-    assert_eq!(d.rule, "unknown-name");
+    assert_eq!(d.rule.name(), "unknown-name");
     assert_eq!(
         d.message,
         "a parameter is a constant, but `lvl` uses the time `t`: use `let` for a value that moves with time"
@@ -157,7 +157,7 @@ fn a_correlation_may_be_an_expression_of_parameters() {
     assert!(!a
         .diagnostics
         .iter()
-        .any(|d| d.rule == "unused" && d.message.contains("rho")));
+        .any(|d| d.rule.name() == "unused" && d.message.contains("rho")));
     // A plain number keeps no expression.
     let plain = analyze("shock W, B\ncorr W, B = -0.4\n", "test");
     assert_eq!(plain.model.correlations[0].value, -0.4);

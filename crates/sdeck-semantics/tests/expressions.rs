@@ -9,8 +9,13 @@ fn rules_at_lines(text: &str) -> Vec<(usize, &'static str)> {
     let mut out: Vec<(usize, &'static str)> = a
         .diagnostics
         .iter()
-        .filter(|d| d.rule != "unit-scale" && d.rule != "unused")
-        .map(|d| (text[..d.span.start].matches('\n').count() + 1, d.rule))
+        .filter(|d| d.rule.name() != "unit-scale" && d.rule.name() != "unused")
+        .map(|d| {
+            (
+                text[..d.span.start].matches('\n').count() + 1,
+                d.rule.name(),
+            )
+        })
         .collect();
     out.sort();
     out
@@ -53,7 +58,7 @@ fn a_bare_zero_has_no_dimension_of_its_own() {
         let mismatches: Vec<_> = a
             .diagnostics
             .iter()
-            .filter(|d| d.rule == "dimension-mismatch")
+            .filter(|d| d.rule.name() == "dimension-mismatch")
             .collect();
         assert_eq!(mismatches.len(), 1, "{text}: {:?}", a.diagnostics);
         let d = mismatches[0];
@@ -153,8 +158,8 @@ fn schedule_mistakes_are_reported_where_they_are() {
         let found: Vec<_> = a
             .diagnostics
             .iter()
-            .filter(|d| d.rule != "unused")
-            .map(|d| (d.rule, &text[d.span.clone()]))
+            .filter(|d| d.rule.name() != "unused")
+            .map(|d| (d.rule.name(), &text[d.span.clone()]))
             .collect();
         assert_eq!(found, vec![(rule, at)], "{text}");
     }
@@ -163,7 +168,7 @@ fn schedule_mistakes_are_reported_where_they_are() {
     let fix = a
         .diagnostics
         .iter()
-        .find(|d| d.rule == "dimension-mismatch")
+        .find(|d| d.rule.name() == "dimension-mismatch")
         .and_then(|d| d.fixes.first())
         .map(|f| f.edits[0].new_text.clone());
     assert_eq!(fix.as_deref(), Some("0.5 [year]"));

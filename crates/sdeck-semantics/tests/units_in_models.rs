@@ -8,8 +8,13 @@ fn rules_at_lines(text: &str) -> Vec<(usize, &'static str)> {
     let mut out: Vec<(usize, &'static str)> = a
         .diagnostics
         .iter()
-        .filter(|d| d.rule != "unit-scale")
-        .map(|d| (text[..d.span.start].matches('\n').count() + 1, d.rule))
+        .filter(|d| d.rule.name() != "unit-scale")
+        .map(|d| {
+            (
+                text[..d.span.start].matches('\n').count() + 1,
+                d.rule.name(),
+            )
+        })
         .collect();
     out.sort();
     out
@@ -33,7 +38,7 @@ fn a_yearly_diffusion_on_a_dimensionless_state_is_a_mismatch_at_the_equation() {
     let d = a
         .diagnostics
         .iter()
-        .find(|d| d.rule == "dimension-mismatch");
+        .find(|d| d.rule.name() == "dimension-mismatch");
     let message = d.map(|d| d.message.clone()).unwrap_or_default();
     assert!(message.contains("did you mean [1/sqrt(year)]"), "{message}");
     // The fix rewrites the unit of `vol`.
@@ -60,7 +65,7 @@ fn conversions_to_a_year_clock_follow_act365_and_252_business_days() {
     let hints = a
         .diagnostics
         .iter()
-        .filter(|d| d.rule == "unit-scale")
+        .filter(|d| d.rule.name() == "unit-scale")
         .count();
     assert_eq!(hints, 7);
 }
@@ -101,7 +106,7 @@ fn hours_and_quarters_convert_in_values_and_expectations() {
     let hints = a
         .diagnostics
         .iter()
-        .filter(|d| d.rule == "unit-scale")
+        .filter(|d| d.rule.name() == "unit-scale")
         .count();
     assert_eq!(hints, 3);
 }
@@ -116,7 +121,7 @@ fn a_price_in_a_declared_currency_checks_clean() {
     let loud: Vec<_> = a
         .diagnostics
         .iter()
-        .filter(|d| d.rule != "unused")
+        .filter(|d| d.rule.name() != "unused")
         .map(|d| d.message.clone())
         .collect();
     assert!(loud.is_empty(), "{loud:?}");
@@ -167,13 +172,16 @@ fn bounds_are_in_the_unit_of_their_declaration() {
     // 0.02 per sqrt(day) is 0.38 per sqrt(year): inside a bound of (0, 0.05) written per day.
     let text = "param v = 0.02 [1/sqrt(day)] in (0, 0.05)\n";
     let a = analyze(text, "t");
-    assert!(a.diagnostics.iter().all(|d| d.rule != "bound-violated"));
+    assert!(a
+        .diagnostics
+        .iter()
+        .all(|d| d.rule.name() != "bound-violated"));
     let outside = analyze("param v = 0.06 [1/sqrt(day)] in (0, 0.05)\n", "t");
     assert_eq!(
         outside
             .diagnostics
             .iter()
-            .filter(|d| d.rule == "bound-violated")
+            .filter(|d| d.rule.name() == "bound-violated")
             .count(),
         1
     );

@@ -79,7 +79,7 @@ impl<'a> Converter<'a> {
         lsp::Diagnostic {
             range: self.range(&d.span),
             severity: Some(severity(d.severity)),
-            code: Some(NumberOrString::String(d.rule.to_string())),
+            code: Some(NumberOrString::String(d.rule.name().to_string())),
             code_description: None,
             source: Some("sdeck".to_string()),
             message,

@@ -25,7 +25,6 @@ pub mod documents;
 mod hints;
 mod hover;
 mod navigation;
-pub mod nearest_correlation;
 mod tokens;
 pub mod transport;
 

@@ -190,7 +190,7 @@ fn rules_of(text: &str) -> Vec<&'static str> {
         .check
         .diagnostics
         .iter()
-        .map(|d| d.rule)
+        .map(|d| d.rule.name())
         .collect()
 }
 
@@ -232,7 +232,7 @@ dr = kappa * (level - r) dt + vol * sqrt(r) dW\n";
         .check
         .diagnostics
         .iter()
-        .find(|d| d.rule == "feller-condition")
+        .find(|d| d.rule.name() == "feller-condition")
         .expect("feller");
     let help = feller.help.clone().unwrap_or_default();
     assert!(
@@ -292,7 +292,7 @@ corr A C = -0.9\nfactor x = 0\ndx = 0.1 dA + 0.1 dB + 0.1 dC\n";
         .check
         .diagnostics
         .iter()
-        .find(|d| d.rule == "correlation-not-psd")
+        .find(|d| d.rule.name() == "correlation-not-psd")
         .expect("still reported");
     assert!(
         psd.notes

@@ -499,7 +499,7 @@ fn clock_length_must_be_positive_and_finite() {
 fn errors_become_diagnostics() {
     let error = eval_error("yaer");
     let diagnostic = error.to_diagnostic(&sdeck_diagnostics::rules::UNKNOWN_NAME);
-    assert_eq!(diagnostic.rule, "unknown-name");
+    assert_eq!(diagnostic.rule.name(), "unknown-name");
     assert_eq!(diagnostic.message, error.message);
     assert_eq!(diagnostic.help, error.help);
 }

@@ -1,8 +1,10 @@
 //! The `dimension-mismatch` rule.
 
+use super::RuleId;
 use crate::{Rule, Severity};
 
 pub const DIMENSION_MISMATCH: Rule = Rule {
+    id: RuleId::DimensionMismatch,
     name: "dimension-mismatch",
     default_severity: Severity::Error,
     summary: "Dimensions disagree (drift, diffusion, sums, function arguments, bounds).",

@@ -1,8 +1,10 @@
 //! The `discount-measure` rule.
 
+use super::RuleId;
 use crate::{Rule, Severity};
 
 pub const DISCOUNT_MEASURE: Rule = Rule {
+    id: RuleId::DiscountMeasure,
     name: "discount-measure",
     default_severity: Severity::Warning,
     summary: "A `discount` rate whose drifts are not stated to be risk-neutral.",

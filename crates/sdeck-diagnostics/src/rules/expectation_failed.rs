@@ -1,8 +1,10 @@
 //! The `expectation-failed` rule.
 
+use super::RuleId;
 use crate::{Rule, Severity};
 
 pub const EXPECTATION_FAILED: Rule = Rule {
+    id: RuleId::ExpectationFailed,
     name: "expectation-failed",
     default_severity: Severity::Error,
     summary: "A pinned expectation on a derived figure does not hold.",

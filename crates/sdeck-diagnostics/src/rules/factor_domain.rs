@@ -1,8 +1,10 @@
 //! The `factor-domain` rule.
 
+use super::RuleId;
 use crate::{Rule, Severity};
 
 pub const FACTOR_DOMAIN: Rule = Rule {
+    id: RuleId::FactorDomain,
     name: "factor-domain",
     default_severity: Severity::Warning,
     summary: "A factor can leave its declared domain, or the domain of sqrt/log applied to it.",

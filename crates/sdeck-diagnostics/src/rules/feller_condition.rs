@@ -1,8 +1,10 @@
 //! The `feller-condition` rule.
 
+use super::RuleId;
 use crate::{Rule, Severity};
 
 pub const FELLER_CONDITION: Rule = Rule {
+    id: RuleId::FellerCondition,
     name: "feller-condition",
     default_severity: Severity::Warning,
     summary: "A square-root diffusion with 2·speed·level < vol²: zero is attainable.",

@@ -1,8 +1,10 @@
 //! The `missing-equation` rule.
 
+use super::RuleId;
 use crate::{Rule, Severity};
 
 pub const MISSING_EQUATION: Rule = Rule {
+    id: RuleId::MissingEquation,
     name: "missing-equation",
     default_severity: Severity::Error,
     summary: "A factor has no equation, or an equation names no factor.",

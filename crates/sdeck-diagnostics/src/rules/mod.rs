@@ -1,71 +1,87 @@
 //! The catalogue: one file per rule, its text the manual (`sdeck explain`, docs/rules.md, hover).
 
-mod bound_violated;
-mod correlation_not_psd;
-mod correlation_range;
-mod dimension_mismatch;
-mod discount_measure;
-mod duplicate_name;
-mod duplicate_term;
-mod expectation_failed;
-mod factor_domain;
-mod feller_condition;
-mod missing_equation;
-mod moment_explosion;
-mod no_factor;
-mod not_mean_reverting;
-mod syntax;
-mod unit_scale;
-mod unknown_name;
-mod unused;
-mod unused_suppression;
-
-pub use bound_violated::BOUND_VIOLATED;
-pub use correlation_not_psd::CORRELATION_NOT_PSD;
-pub use correlation_range::CORRELATION_RANGE;
-pub use dimension_mismatch::DIMENSION_MISMATCH;
-pub use discount_measure::DISCOUNT_MEASURE;
-pub use duplicate_name::DUPLICATE_NAME;
-pub use duplicate_term::DUPLICATE_TERM;
-pub use expectation_failed::EXPECTATION_FAILED;
-pub use factor_domain::FACTOR_DOMAIN;
-pub use feller_condition::FELLER_CONDITION;
-pub use missing_equation::MISSING_EQUATION;
-pub use moment_explosion::MOMENT_EXPLOSION;
-pub use no_factor::NO_FACTOR;
-pub use not_mean_reverting::NOT_MEAN_REVERTING;
-pub use syntax::SYNTAX;
-pub use unit_scale::UNIT_SCALE;
-pub use unknown_name::UNKNOWN_NAME;
-pub use unused::UNUSED;
-pub use unused_suppression::UNUSED_SUPPRESSION;
-
 use crate::Rule;
+use serde::{Serialize, Serializer};
+use std::fmt;
 
-/// Every rule, in the order the manual lists them.
-pub static ALL: &[&Rule] = &[
-    &SYNTAX,
-    &UNKNOWN_NAME,
-    &DUPLICATE_NAME,
-    &MISSING_EQUATION,
-    &NO_FACTOR,
-    &DUPLICATE_TERM,
-    &DIMENSION_MISMATCH,
-    &BOUND_VIOLATED,
-    &CORRELATION_RANGE,
-    &CORRELATION_NOT_PSD,
-    &FELLER_CONDITION,
-    &FACTOR_DOMAIN,
-    &NOT_MEAN_REVERTING,
-    &MOMENT_EXPLOSION,
-    &DISCOUNT_MEASURE,
-    &UNUSED,
-    &UNIT_SCALE,
-    &EXPECTATION_FAILED,
-    &UNUSED_SUPPRESSION,
-];
+/// Declares the catalogue from one list: each line names a rule's identity, its module
+/// and its constant. The list's order is the manual's order, the order of [`ALL`] and of
+/// [`RuleId`], so that `ALL[id as usize]` is the rule of `id`.
+macro_rules! catalogue {
+    ($($variant:ident => $module:ident :: $constant:ident,)*) => {
+        $(mod $module; pub use $module::$constant;)*
 
-/// The rule called `name`, if there is one.
+        /// The identity of a rule: what a diagnostic, a suppression comment and a project
+        /// setting name. Compared, hashed and ordered as a value (the order is the
+        /// catalogue's); its text is [`RuleId::name`].
+        #[derive(Clone, Copy, Debug, PartialEq, Eq, PartialOrd, Ord, Hash)]
+        pub enum RuleId {
+            $($variant,)*
+        }
+
+        /// Every rule, in the order the manual lists them; indexed by [`RuleId`].
+        pub static ALL: &[&Rule] = &[$(&$constant,)*];
+
+        impl RuleId {
+            /// Every identity, in catalogue order.
+            pub const ALL: &'static [RuleId] = &[$(RuleId::$variant,)*];
+        }
+    };
+}
+
+catalogue! {
+    Syntax => syntax::SYNTAX,
+    UnknownName => unknown_name::UNKNOWN_NAME,
+    DuplicateName => duplicate_name::DUPLICATE_NAME,
+    MissingEquation => missing_equation::MISSING_EQUATION,
+    NoFactor => no_factor::NO_FACTOR,
+    DuplicateTerm => duplicate_term::DUPLICATE_TERM,
+    DimensionMismatch => dimension_mismatch::DIMENSION_MISMATCH,
+    BoundViolated => bound_violated::BOUND_VIOLATED,
+    CorrelationRange => correlation_range::CORRELATION_RANGE,
+    CorrelationNotPsd => correlation_not_psd::CORRELATION_NOT_PSD,
+    FellerCondition => feller_condition::FELLER_CONDITION,
+    FactorDomain => factor_domain::FACTOR_DOMAIN,
+    NotMeanReverting => not_mean_reverting::NOT_MEAN_REVERTING,
+    MomentExplosion => moment_explosion::MOMENT_EXPLOSION,
+    DiscountMeasure => discount_measure::DISCOUNT_MEASURE,
+    Unused => unused::UNUSED,
+    UnitScale => unit_scale::UNIT_SCALE,
+    ExpectationFailed => expectation_failed::EXPECTATION_FAILED,
+    UnusedSuppression => unused_suppression::UNUSED_SUPPRESSION,
+}
+
+impl RuleId {
+    /// The rule's entry in the catalogue.
+    pub fn rule(self) -> &'static Rule {
+        ALL[self as usize]
+    }
+
+    /// The kebab-case name shown in every output format.
+    pub fn name(self) -> &'static str {
+        self.rule().name
+    }
+
+    /// The position of the rule in the catalogue (SARIF's rule index).
+    pub fn index(self) -> usize {
+        self as usize
+    }
+}
+
+impl fmt::Display for RuleId {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(self.name())
+    }
+}
+
+impl Serialize for RuleId {
+    fn serialize<S: Serializer>(&self, serializer: S) -> Result<S::Ok, S::Error> {
+        serializer.serialize_str(self.name())
+    }
+}
+
+/// The rule called `name`, if there is one. Only text a user typed is looked up by name
+/// (a suppression comment, a project setting, `sdeck explain NAME`).
 pub fn by_name(name: &str) -> Option<&'static Rule> {
     ALL.iter().copied().find(|rule| rule.name == name)
 }
@@ -78,6 +94,22 @@ pub fn closest(name: &str) -> Option<&'static Rule> {
 
 #[cfg(test)]
 mod tests {
+    use super::{RuleId, ALL};
+
+    /// The identity of each rule is its place in the catalogue, both ways.
+    #[test]
+    fn every_identity_indexes_its_own_rule() {
+        assert_eq!(ALL.len(), RuleId::ALL.len());
+        for (index, rule) in ALL.iter().enumerate() {
+            assert_eq!(rule.id.index(), index, "{}", rule.name);
+            assert_eq!(RuleId::ALL[index], rule.id, "{}", rule.name);
+            assert_eq!(rule.id.name(), rule.name);
+            assert_eq!(rule.id.to_string(), rule.name);
+        }
+        let names: std::collections::HashSet<&str> = ALL.iter().map(|r| r.name).collect();
+        assert_eq!(names.len(), ALL.len(), "two rules share a name");
+    }
+
     #[test]
     fn a_slip_finds_the_rule_and_a_stranger_finds_none() {
         assert_eq!(

@@ -1,8 +1,10 @@
 //! The `moment-explosion` rule.
 
+use super::RuleId;
 use crate::{Rule, Severity};
 
 pub const MOMENT_EXPLOSION: Rule = Rule {
+    id: RuleId::MomentExplosion,
     name: "moment-explosion",
     default_severity: Severity::Warning,
     summary: "A price whose variance becomes infinite before the horizon.",

@@ -1,8 +1,10 @@
 //! The `syntax` rule.
 
+use super::RuleId;
 use crate::{Rule, Severity};
 
 pub const SYNTAX: Rule = Rule {
+    id: RuleId::Syntax,
     name: "syntax",
     default_severity: Severity::Error,
     summary: "The text does not parse.",

@@ -1,8 +1,10 @@
 //! The `unknown-name` rule.
 
+use super::RuleId;
 use crate::{Rule, Severity};
 
 pub const UNKNOWN_NAME: Rule = Rule {
+    id: RuleId::UnknownName,
     name: "unknown-name",
     default_severity: Severity::Error,
     summary: "A name is used but never declared.",

@@ -1,8 +1,10 @@
 //! The `unused` rule.
 
+use super::RuleId;
 use crate::{Rule, Severity};
 
 pub const UNUSED: Rule = Rule {
+    id: RuleId::Unused,
     name: "unused",
     default_severity: Severity::Warning,
     summary: "A parameter, shock or let that nothing uses.",

@@ -1,8 +1,10 @@
 //! The `unused-suppression` rule.
 
+use super::RuleId;
 use crate::{Rule, Severity};
 
 pub const UNUSED_SUPPRESSION: Rule = Rule {
+    id: RuleId::UnusedSuppression,
     name: "unused-suppression",
     default_severity: Severity::Warning,
     summary: "A suppression comment that suppresses nothing.",

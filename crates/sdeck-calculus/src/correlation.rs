@@ -1,14 +1,30 @@
-//! The nearest correlation matrix (Frobenius norm), for the quick fix of a correlation
-//! matrix that is not positive semi-definite.
+//! Correlation matrices: the positive semi-definite test, the smallest eigenvalue and the
+//! nearest correlation matrix (Frobenius norm), for the rule `correlation-not-psd` and its
+//! fix. Every eigen-decomposition goes through [`symmetric_eigen`], which refuses
+//! non-finite input and stops after a bounded number of sweeps.
 //!
-//! Method: alternating projections with Dykstra's correction (Higham 2002, "Computing the
-//! nearest correlation matrix — a problem from finance", IMA J. Numerical Analysis 22,
-//! 329–343, Algorithm 3.3), onto the positive semi-definite cone (eigenvalues clipped) and
-//! onto the matrices with unit diagonal. The quick fix writes numbers with a few
-//! decimals; [`nearest_correlation_rounded`] keeps the smallest eigenvalue a little above
-//! zero so that the rounded matrix is still positive semi-definite.
+//! Method of the nearest matrix: alternating projections with Dykstra's correction
+//! (Higham 2002, "Computing the nearest correlation matrix — a problem from finance", IMA
+//! J. Numerical Analysis 22, 329–343, Algorithm 3.3), onto the positive semi-definite cone
+//! (eigenvalues clipped) and onto the matrices with unit diagonal. A fix writes numbers
+//! with a few decimals; [`nearest_correlation_rounded`] keeps the smallest eigenvalue a
+//! little above zero so that the rounded matrix is still positive semi-definite.
 
-use nalgebra::{DMatrix, SymmetricEigen};
+use nalgebra::{DMatrix, Dyn, SymmetricEigen};
+
+/// The convergence tolerance of the eigen-decomposition's sweeps.
+const EIGEN_TOLERANCE: f64 = 1e-14;
+/// The most sweeps an eigen-decomposition may take before it gives up.
+const EIGEN_MAX_SWEEPS: usize = 10_000;
+
+/// The eigen-decomposition of the symmetric matrix `matrix`; `None` when an entry is not
+/// finite or the sweeps do not settle within [`EIGEN_MAX_SWEEPS`].
+pub fn symmetric_eigen(matrix: DMatrix<f64>) -> Option<SymmetricEigen<f64, Dyn>> {
+    if matrix.iter().any(|x| !x.is_finite()) {
+        return None;
+    }
+    SymmetricEigen::try_new(matrix, EIGEN_TOLERANCE, EIGEN_MAX_SWEEPS)
+}
 
 /// The nearest correlation matrix to the symmetric matrix `a`, with every eigenvalue at
 /// least `floor` (0 for Higham's problem proper). `None` for a non-square or non-finite
@@ -80,7 +96,8 @@ pub fn nearest_correlation_rounded(a: &[Vec<f64>], decimals: i32) -> Option<Vec<
     None
 }
 
-/// The smallest eigenvalue of a symmetric matrix.
+/// The smallest eigenvalue of a symmetric matrix; `None` when it is not square, not
+/// finite or its decomposition does not settle.
 pub fn smallest_eigenvalue(m: &[Vec<f64>]) -> Option<f64> {
     let n = m.len();
     if m.iter().any(|row| row.len() != n) {
@@ -90,7 +107,7 @@ pub fn smallest_eigenvalue(m: &[Vec<f64>]) -> Option<f64> {
         return Some(0.0);
     }
     let matrix = DMatrix::from_fn(n, n, |i, j| m[i][j]);
-    SymmetricEigen::try_new(matrix, 1e-14, 10_000)?
+    symmetric_eigen(matrix)?
         .eigenvalues
         .iter()
         .copied()
@@ -99,7 +116,7 @@ pub fn smallest_eigenvalue(m: &[Vec<f64>]) -> Option<f64> {
 
 fn project_psd(m: &DMatrix<f64>, floor: f64) -> Option<DMatrix<f64>> {
     let symmetric = 0.5 * (m + m.transpose());
-    let eigen = SymmetricEigen::try_new(symmetric, 1e-14, 10_000)?;
+    let eigen = symmetric_eigen(symmetric)?;
     let clipped = eigen.eigenvalues.map(|l| l.max(floor));
     let q = &eigen.eigenvectors;
     let result = q * DMatrix::from_diagonal(&clipped) * q.transpose();
@@ -205,5 +222,7 @@ mod tests {
     fn bad_input_gives_none() {
         assert_eq!(nearest_correlation(&[vec![1.0, 2.0]], 0.0), None);
         assert_eq!(nearest_correlation(&[vec![f64::NAN]], 0.0), None);
+        assert_eq!(smallest_eigenvalue(&[vec![f64::INFINITY]]), None);
+        assert!(symmetric_eigen(DMatrix::from_element(2, 2, f64::NAN)).is_none());
     }
 }

@@ -1,0 +1,165 @@
+//! `expectation-failed`: a pinned figure outside its admissible interval, or a figure
+//! that does not exist for the factor's family.
+
+use super::shared::{number, show_interval_with, state_name};
+use super::Context;
+use sdeck_calculus::expectation_value;
+use sdeck_diagnostics::{rules, Diagnostic};
+use sdeck_semantics::{Expectation, Model, Shown};
+use sdeck_syntax::ast::{Figure, Side};
+
+/// `expectation-failed`: a pinned figure outside its admissible interval, or a figure
+/// that does not exist for the state's family.
+pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
+    let (model, derivation) = (cx.model, cx.derivation);
+    // On a model with errors the derived figures may rest on what did not resolve;
+    // pinned expectations wait until the model is sound.
+    if cx.broken {
+        return;
+    }
+    let clock = &model.clock.unit;
+    for expectation in &model.expectations {
+        let law = match expectation.state {
+            Some(state) => match derivation.states.get(state) {
+                Some(law) => Some(law),
+                None => continue,
+            },
+            None => None,
+        };
+        let described = describe_expectation(model, expectation);
+        let value = expectation_value(model, derivation, expectation);
+        let show = |v: f64| show_figure(&expectation.shown, v);
+        match (value, law) {
+            (Err(reason), _) if expectation.figure.on_curve() => {
+                let help = if model.discount.is_none() {
+                    "add the short rate, affine in the factors, e.g. `discount r`, or remove \
+                     the expectation"
+                } else {
+                    "the rate must be affine in the factors and its transform finite up to \
+                     the maturity; pin a shorter maturity or remove the expectation"
+                };
+                out.push(
+                    Diagnostic::new(
+                        &rules::EXPECTATION_FAILED,
+                        expectation.span.clone(),
+                        format!("{described} does not exist: {reason}"),
+                    )
+                    .with_help(help),
+                );
+            }
+            (Err(reason), Some(law)) => {
+                let why = match expectation.figure {
+                    Figure::Halflife => {
+                        "no half-life (that needs a constant negative slope of its own drift)"
+                    }
+                    Figure::StationaryMean | Figure::StationaryVariance | Figure::StationarySd => {
+                        "no stationary law"
+                    }
+                    _ => reason.as_str(),
+                };
+                let name = expectation
+                    .state
+                    .map(|i| state_name(model, i))
+                    .unwrap_or_default();
+                let mut d = Diagnostic::new(
+                    &rules::EXPECTATION_FAILED,
+                    expectation.span.clone(),
+                    format!(
+                        "{described} does not exist: {name} is {} and has {why} ({})",
+                        law.family.as_str(),
+                        law.reason
+                    ),
+                )
+                .with_help("pin a figure that the family has, or remove the expectation");
+                if let Some(note) = overflow_note(model) {
+                    d = d.with_note(note);
+                }
+                out.push(d);
+            }
+            (Err(_), None) => {}
+            (Ok(v), _) if !expectation.admissible.contains(v) => {
+                let note = match (&expectation.shown, law) {
+                    (Shown::Clock, Some(law)) => format!(
+                        "figures are in clock units ({clock}); derived by {}",
+                        law.method.as_str()
+                    ),
+                    (_, Some(law)) => format!("derived by {}", law.method.as_str()),
+                    (_, None) => "yields and forwards are continuously compounded annual \
+                                  rates; derived from the `discount` rate"
+                        .to_string(),
+                };
+                out.push(
+                    Diagnostic::new(
+                        &rules::EXPECTATION_FAILED,
+                        expectation.span.clone(),
+                        format!(
+                            "{described} = {} is outside the expected {}",
+                            show(v),
+                            show_interval_with(&expectation.admissible, show)
+                        ),
+                    )
+                    .with_note(note)
+                    .with_help(
+                        "change the parameters so that the figure falls in the interval, or \
+                         update the expectation if the model is right",
+                    ),
+                );
+            }
+            (Ok(_), _) => {}
+        }
+    }
+}
+
+/// An expectation's figure as the reader wrote it, with the times in clock units:
+/// `mean(r, 12 month)`, `prob(r < 0, 12 month)`, `yield(120 month)`.
+fn describe_expectation(model: &Model, e: &Expectation) -> String {
+    let clock = &model.clock.unit;
+    let keyword = e.figure.keyword();
+    let time = e.at.unwrap_or(model.horizon);
+    let time_text = format!("{} {clock}", number(time, 6));
+    let Some(state) = e.state else {
+        return format!("{keyword}({time_text})");
+    };
+    let name = state_name(model, state);
+    match (e.figure, e.level) {
+        (Figure::Prob, Some(level)) => {
+            let side = e.side.unwrap_or(Side::Below).symbol();
+            format!(
+                "{keyword}({name} {side} {}, {time_text})",
+                e.level_shown.show(level)
+            )
+        }
+        (Figure::Quantile, Some(p)) => {
+            format!("{keyword}({name}, {}, {time_text})", e.level_shown.show(p))
+        }
+        (figure, _) if figure.takes_time() => format!("{keyword}({name}, {time_text})"),
+        _ => format!("{keyword}({name})"),
+    }
+}
+
+/// A figure in the units the reader sees it in (the moments keep the messages' form).
+fn show_figure(shown: &Shown, v: f64) -> String {
+    match shown {
+        Shown::Clock => number(v, 6),
+        _ => shown.show(v),
+    }
+}
+
+/// Why figures may have come out non-finite: a parameter so large that rates times time
+/// overflow double precision (about 1.8e308). The numerical routines stop at the first
+/// non-finite value and give no figure; this says which number to look at.
+fn overflow_note(model: &Model) -> Option<String> {
+    const HUGE: f64 = 1e100;
+    let scale = model.horizon.abs().max(1.0);
+    let largest = model
+        .params
+        .iter()
+        .filter(|p| !p.value.is_finite() || p.value.abs() * scale >= HUGE)
+        .max_by(|a, b| a.value.abs().total_cmp(&b.value.abs()))?;
+    Some(format!(
+        "the parameter `{}` = {} is too large for double precision: the figures overflow, so \
+         none is given",
+        largest.name,
+        number(largest.value, 6)
+    ))
+}

@@ -1,0 +1,237 @@
+//! `feller-condition`: a square-root factor with 2·speed·level < vol², for which zero is
+//! attainable; the boundary values of its parameters, computed once for the message and
+//! the fixes.
+
+use super::shared::param_literal;
+use super::shared::{equation_span, number, round_significant, state_name};
+use super::Context;
+use sdeck_calculus::describe::{square_root_terms, SquareRootTerms};
+use sdeck_calculus::Derivation;
+use sdeck_diagnostics::{rules, Diagnostic, TextEdit};
+use sdeck_semantics::Model;
+
+/// The parameter values that meet the Feller condition 2·speed·level ≥ vol² for the
+/// square-root factor `state`, each in its parameter's written unit and rounded to
+/// three significant digits (up for the speed, down for the volatility) so that the
+/// rounded value still meets it. The message of `feller-condition` and its quick fix
+/// both write these numbers, through [`feller_number`].
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct FellerBounds {
+    /// The speed's parameter and its least value.
+    pub speed: Option<(usize, f64)>,
+    /// The volatility's parameter and its greatest value.
+    pub vol: Option<(usize, f64)>,
+}
+
+/// [`FellerBounds`] of factor `state`; `None` when it is not a square-root factor that
+/// fails the condition with a positive level.
+pub fn feller_bounds(model: &Model, derivation: &Derivation, state: usize) -> Option<FellerBounds> {
+    let sr = derivation.states.get(state)?.square_root.as_ref()?;
+    let vol_squared = sr.vol * sr.vol;
+    if !(sr.level > 0.0 && sr.speed > 0.0 && vol_squared.is_finite())
+        || 2.0 * sr.speed * sr.level >= vol_squared
+    {
+        return None;
+    }
+    let terms = square_root_terms(model, derivation, state);
+    // How a parameter enters its coefficient (1 when the coefficient is the parameter).
+    let written_per_clock = |p: usize, coefficient: f64| -> Option<(f64, f64)> {
+        let param = model.params.get(p)?;
+        let factor = coefficient / param.value;
+        let per_written = factor * param.scale;
+        (per_written.is_finite() && per_written > 0.0).then_some((per_written, param.written))
+    };
+    let speed = terms.as_ref().and_then(|t| t.speed_param).and_then(|p| {
+        let (per_written, _) = written_per_clock(p, sr.speed)?;
+        let meets = |w: f64| 2.0 * w * per_written * sr.level >= vol_squared;
+        let value = rounded_meeting(vol_squared / (2.0 * sr.level) / per_written, true, meets)?;
+        Some((p, value))
+    });
+    let vol = terms.as_ref().and_then(|t| t.vol_param).and_then(|p| {
+        let (per_written, _) = written_per_clock(p, sr.vol)?;
+        let meets = |w: f64| {
+            let vol = w * per_written;
+            2.0 * sr.speed * sr.level >= vol * vol
+        };
+        let value = rounded_meeting(
+            (2.0 * sr.speed * sr.level).sqrt() / per_written,
+            false,
+            meets,
+        )?;
+        Some((p, value))
+    });
+    Some(FellerBounds { speed, vol })
+}
+
+/// `x` rounded to three significant digits in direction `up`, stepped on by one unit of
+/// the third digit while `meets` fails (floating rounding at the boundary).
+fn rounded_meeting(x: f64, up: bool, meets: impl Fn(f64) -> bool) -> Option<f64> {
+    if !(x.is_finite() && x > 0.0) {
+        return None;
+    }
+    let mut value = round_significant(x, 3, up);
+    for _ in 0..4 {
+        if meets(value) {
+            return Some(value);
+        }
+        let step = 10f64.powi(value.abs().log10().floor() as i32 - 2);
+        value = if up { value + step } else { value - step };
+    }
+    None
+}
+
+/// A Feller bound as the message and the quick fix write it (three significant digits).
+pub fn feller_number(x: f64) -> String {
+    number(x, 3)
+}
+
+/// `feller-condition`: 2·speed·level < vol² makes zero attainable
+/// (Feller 1951; Cox, Ingersoll & Ross 1985, §3).
+pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
+    let (model, derivation) = (cx.model, cx.derivation);
+    for (state, law) in derivation.states.iter().enumerate() {
+        let Some(sr) = &law.square_root else {
+            continue;
+        };
+        let drift_side = 2.0 * sr.speed * sr.level;
+        let vol_squared = sr.vol * sr.vol;
+        // Written as positive tests so that NaN never fires the rule.
+        let violated = drift_side < vol_squared && sr.speed > 0.0;
+        if !violated {
+            continue;
+        }
+        let Some(span) = equation_span(model, state) else {
+            continue;
+        };
+        let terms = square_root_terms(model, derivation, state);
+        let (speed, level, vol2) = terms
+            .as_ref()
+            .map(|t| (t.speed.clone(), t.level.clone(), t.vol_squared.clone()))
+            .unwrap_or_else(|| ("speed".into(), "level".into(), "vol²".into()));
+        let clock = &model.clock.unit;
+        if sr.level <= 0.0 {
+            let name = state_name(model, state);
+            out.push(
+                Diagnostic::new(
+                    &rules::FELLER_CONDITION,
+                    span,
+                    format!(
+                        "2·{speed}·{level} = {} < {vol2} = {} (per {clock}): the level of {name} \
+                         is not above zero, so {name} is pulled to zero and stays near it; \
+                         give it a positive level",
+                        number(drift_side, 3),
+                        number(vol_squared, 3),
+                    ),
+                )
+                .with_help(format!("set {level} above zero")),
+            );
+            continue;
+        }
+        let bounds = feller_bounds(model, derivation, state);
+        let param_name = |p: usize, or: &str| {
+            model
+                .params
+                .get(p)
+                .map(|p| p.name.clone())
+                .unwrap_or_else(|| or.to_string())
+        };
+        let with_unit =
+            |p: usize, value: f64| match model.params.get(p).and_then(|p| p.unit_text.as_ref()) {
+                Some(unit) => format!("{} [{unit}]", feller_number(value)),
+                None => feller_number(value),
+            };
+        let raise = match bounds.as_ref().and_then(|b| b.speed) {
+            Some((p, value)) => format!(
+                "raise {} to at least {}",
+                param_name(p, "the speed"),
+                with_unit(p, value)
+            ),
+            None => format!(
+                "raise the speed {speed} to at least {} per {clock}",
+                feller_number(round_significant(vol_squared / (2.0 * sr.level), 3, true))
+            ),
+        };
+        let lower = match bounds.as_ref().and_then(|b| b.vol) {
+            Some((p, value)) => format!(
+                "lower {} to at most {}",
+                param_name(p, "the volatility"),
+                with_unit(p, value)
+            ),
+            None => format!(
+                "lower the volatility so that {vol2} is at most {}",
+                feller_number(round_significant(drift_side, 3, false))
+            ),
+        };
+        let name = state_name(model, state);
+        let message = format!(
+            "2·{speed}·{level} = {} < {vol2} = {} (per {clock}): zero is attainable for {name}",
+            number(drift_side, 3),
+            number(vol_squared, 3),
+        );
+        let mut diagnostic = Diagnostic::new(&rules::FELLER_CONDITION, span, message)
+            .with_label(format!("{name} can reach zero"))
+            .with_help(format!("{raise}, or {lower}"))
+            .with_note(
+                "with 2·speed·level ≥ vol² a square-root process started above zero never \
+                 reaches zero; below it, zero is hit with positive probability",
+            );
+        if let (Some(bounds), Some(terms)) = (&bounds, &terms) {
+            for (title, edit) in boundary_fixes(cx, bounds, terms) {
+                diagnostic = diagnostic.with_fix(title, vec![edit]);
+            }
+        }
+        out.push(diagnostic);
+    }
+}
+
+/// The fixes that move the speed up (preferred), or the volatility down, to the bounds,
+/// each replacing the number of the parameter's declaration, written like it.
+fn boundary_fixes(
+    cx: &Context,
+    bounds: &FellerBounds,
+    terms: &SquareRootTerms,
+) -> Vec<(String, TextEdit)> {
+    let wanted = [
+        (bounds.speed, "Raise", "2·{speed}·{level} = {vol2}"),
+        (bounds.vol, "Lower", "{vol2} = 2·{speed}·{level}"),
+    ];
+    let mut out = Vec::new();
+    for (bound, verb, boundary) in wanted {
+        let Some((p, value)) = bound else { continue };
+        let Some(param) = cx.model.params.get(p) else {
+            continue;
+        };
+        let Some(number) = param_literal(cx.analysis, &param.name) else {
+            continue;
+        };
+        let text = written_like(&number.text, value);
+        let boundary = boundary
+            .replace("{speed}", &terms.speed)
+            .replace("{level}", &terms.level)
+            .replace("{vol2}", &terms.vol_squared);
+        out.push((
+            format!(
+                "{verb} `{}` to {text} (Feller boundary: {boundary})",
+                param.name
+            ),
+            TextEdit {
+                span: number.span.clone(),
+                new_text: text,
+            },
+        ));
+    }
+    out
+}
+
+/// A Feller bound written in the style of the literal it replaces (`%`, `bp` or plain),
+/// with the digits of the diagnostic's message.
+fn written_like(original: &str, value: f64) -> String {
+    let (factor, suffix) = if original.ends_with('%') {
+        (100.0, "%")
+    } else if original.ends_with("bp") {
+        (10_000.0, "bp")
+    } else {
+        (1.0, "")
+    };
+    format!("{}{suffix}", feller_number(value * factor))
+}

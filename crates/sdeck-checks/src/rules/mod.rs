@@ -1,0 +1,74 @@
+//! The rules decided after the calculus, one module each (detection, message and fixes),
+//! and the registry that runs them in order.
+//!
+//! Adding a rule here: write `NAME.rs` with `pub(super) fn run(cx: &Context, out: &mut
+//! Vec<Diagnostic>)`, declare the module below and add its line to [`REGISTRY`].
+
+mod correlation_not_psd;
+mod discount_measure;
+mod expectation_failed;
+mod factor_domain;
+mod feller_condition;
+mod moment_explosion;
+mod no_factor;
+mod not_mean_reverting;
+mod shared;
+
+use sdeck_calculus::Derivation;
+use sdeck_diagnostics::{Diagnostic, RuleId};
+use sdeck_semantics::{Analysis, Model};
+
+/// What a rule may read: the text, the analysis (tree, model, names) and the derivation.
+pub struct Context<'a> {
+    pub source: &'a str,
+    pub analysis: &'a Analysis,
+    pub model: &'a Model,
+    pub derivation: &'a Derivation,
+    /// Whether the analysis found an error: the model may be incomplete.
+    pub broken: bool,
+}
+
+impl<'a> Context<'a> {
+    pub fn new(source: &'a str, analysis: &'a Analysis, derivation: &'a Derivation) -> Self {
+        Context {
+            source,
+            analysis,
+            model: &analysis.model,
+            derivation,
+            broken: analysis.has_errors(),
+        }
+    }
+}
+
+/// A rule's detection: appends what it finds to `out`.
+type Runner = fn(&Context, &mut Vec<Diagnostic>);
+
+/// Every rule decided after the calculus, with the runner that decides it, in the order
+/// they run.
+static REGISTRY: &[(RuleId, Runner)] = &[
+    (RuleId::FellerCondition, feller_condition::run),
+    (RuleId::FactorDomain, factor_domain::run),
+    (RuleId::NotMeanReverting, not_mean_reverting::run),
+    (RuleId::MomentExplosion, moment_explosion::run),
+    (RuleId::DiscountMeasure, discount_measure::run),
+    (RuleId::CorrelationNotPsd, correlation_not_psd::run),
+    (RuleId::ExpectationFailed, expectation_failed::run),
+    (RuleId::NoFactor, no_factor::run),
+];
+
+/// The rules the registry runs, in order.
+pub fn registered() -> impl Iterator<Item = RuleId> {
+    REGISTRY.iter().map(|(rule, _)| *rule)
+}
+
+/// Every diagnostic of the registered rules.
+pub fn run_all(cx: &Context) -> Vec<Diagnostic> {
+    let mut out = Vec::new();
+    for (_, run) in REGISTRY {
+        run(cx, &mut out);
+    }
+    out
+}
+
+#[cfg(test)]
+mod tests;

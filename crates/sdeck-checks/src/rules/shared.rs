@@ -1,0 +1,92 @@
+//! Helpers shared by the rules that need the calculus: names and spans of factors, numbers
+//! with significant digits, intervals as a reader writes them.
+
+use sdeck_semantics::{Analysis, Interval, Model};
+use sdeck_syntax::ast::{Number, StatementKind};
+
+/// A number with `digits` significant digits, trailing zeros dropped.
+pub(crate) fn number(x: f64, digits: i32) -> String {
+    if x == 0.0 || !x.is_finite() {
+        return format!("{x}");
+    }
+    let magnitude = x.abs().log10().floor() as i32;
+    if !(-5..=8).contains(&magnitude) {
+        return format!("{:.*e}", (digits - 1).max(0) as usize, x);
+    }
+    let decimals = (digits - 1 - magnitude).max(0) as usize;
+    let text = format!("{x:.decimals$}");
+    if text.contains('.') {
+        text.trim_end_matches('0').trim_end_matches('.').to_string()
+    } else {
+        text
+    }
+}
+
+/// Rounds up (`up`) or down to `digits` significant digits.
+pub(crate) fn round_significant(x: f64, digits: i32, up: bool) -> f64 {
+    if x == 0.0 || !x.is_finite() {
+        return x;
+    }
+    let magnitude = x.abs().log10().floor() as i32;
+    let factor = 10f64.powi(digits - 1 - magnitude);
+    let scaled = x * factor;
+    let rounded = if up { scaled.ceil() } else { scaled.floor() };
+    rounded / factor
+}
+
+pub(crate) fn state_name(model: &Model, state: usize) -> String {
+    model
+        .factors
+        .get(state)
+        .map(|s| s.name.clone())
+        .unwrap_or_default()
+}
+
+pub(crate) fn equation_span(model: &Model, state: usize) -> Option<std::ops::Range<usize>> {
+    model
+        .factors
+        .get(state)?
+        .equation
+        .as_ref()
+        .map(|e| e.span.clone())
+}
+
+pub(crate) fn state_span(model: &Model, state: usize) -> std::ops::Range<usize> {
+    model
+        .factors
+        .get(state)
+        .map(|s| s.name_span.clone())
+        .unwrap_or(0..0)
+}
+
+pub(crate) fn show_interval(interval: &Interval) -> String {
+    show_interval_with(interval, |v| number(v, 6))
+}
+
+/// An interval with its ends shown by `show`.
+pub(crate) fn show_interval_with(interval: &Interval, show: impl Fn(f64) -> String) -> String {
+    let lower = match interval.lower {
+        None => "(−∞".to_string(),
+        Some((v, true)) => format!("[{}", show(v)),
+        Some((v, false)) => format!("({}", show(v)),
+    };
+    let upper = match interval.upper {
+        None => "∞)".to_string(),
+        Some((v, true)) => format!("{}]", show(v)),
+        Some((v, false)) => format!("{})", show(v)),
+    };
+    format!("{lower}, {upper}")
+}
+
+/// The number of the `param` declaration of `name`, when its value is written as one.
+pub(crate) fn param_literal<'a>(analysis: &'a Analysis, name: &str) -> Option<&'a Number> {
+    analysis
+        .file
+        .statements
+        .iter()
+        .find_map(|s| match &s.kind {
+            StatementKind::Param(d) if d.name.name == name => Some(d),
+            _ => None,
+        })?
+        .literal()
+}
