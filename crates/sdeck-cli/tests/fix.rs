@@ -125,6 +125,20 @@ fn overlapping_fixes_write_nothing_and_name_the_clash() {
 }
 
 #[test]
+fn a_stub_is_offered_to_an_editor_but_never_written_by_fix() {
+    // `missing-equation` offers `dr = 0 dt  # TODO`, which would silence the error
+    // without mending it.
+    let text = "clock year\nshock W\nfactor r = 2%\n";
+    let dir = tempfile::tempdir().unwrap();
+    let file = dir.path().join("bare.sde");
+    std::fs::write(&file, text).unwrap();
+    let (status, after, stderr) = fix(&file);
+    assert_eq!(std::fs::read_to_string(&file).unwrap(), text);
+    assert!(after.iter().any(|r| r == "missing-equation"), "{after:?}");
+    assert_eq!(status, 1, "{stderr}");
+}
+
+#[test]
 fn standard_input_is_not_fixed() {
     let output = Command::cargo_bin("sdeck")
         .unwrap()

@@ -130,7 +130,7 @@ pub struct Fix {
     pub title: String,
     pub edits: Vec<TextEdit>,
     /// The fix to apply when nobody chooses (`sdeck check --fix`, an editor's "fix all"):
-    /// the first fix of a diagnostic; the others are alternatives to it.
+    /// the first fix of a diagnostic, unless it is a stub; the others are alternatives.
     pub preferred: bool,
 }
 
@@ -201,6 +201,17 @@ impl Diagnostic {
             title: title.into(),
             edits,
             preferred,
+        });
+        self
+    }
+
+    /// Adds a fix that a person must choose, never applied unattended: a stub that
+    /// silences the finding without mending it (a `# TODO` placeholder).
+    pub fn with_manual_fix(mut self, title: impl Into<String>, edits: Vec<TextEdit>) -> Self {
+        self.fixes.push(Fix {
+            title: title.into(),
+            edits,
+            preferred: false,
         });
         self
     }

@@ -1419,7 +1419,7 @@ impl<'a> Analyzer<'a> {
             .last()
             .map(|p| line_end_after(self.source, p.span.end))
             .unwrap_or(0);
-        d = d.with_fix(
+        d = d.with_manual_fix(
             format!("Declare `param {}`", ident.name),
             vec![TextEdit {
                 span: insert_at..insert_at,
@@ -1660,7 +1660,7 @@ impl<'a> Analyzer<'a> {
                     .with_help(format!(
                         "add its dynamics, e.g. `d{name} = ... dt + ... d{noise}`"
                     ))
-                    .with_fix(
+                    .with_manual_fix(
                         format!("Add an equation for `{name}`"),
                         vec![TextEdit {
                             span: insert_at..insert_at,
