@@ -28,17 +28,18 @@ pub struct DiffArgs {
     max_change: Option<f64>,
 }
 
-fn side(path: &Path, text: String) -> Side {
-    let settings = sdeck_project::settings_for(path);
+/// One version of a model, checked under the rule settings of the project of `path`.
+fn side(path: &Path, text: String) -> Result<Side, String> {
+    let settings = crate::files::settings_of(path)?;
     let source = crate::files::from_bytes(path.display().to_string(), text.into_bytes());
     let shown = source.text.clone();
     let (_, check) = crate::check::check_source(source, &settings);
-    Side::new(&shown, &check)
+    Ok(Side::new(&shown, &check))
 }
 
 fn read_side(path: &Path) -> Result<Side, String> {
     let source = crate::files::read(path)?;
-    Ok(side(path, source.text))
+    side(path, source.text)
 }
 
 fn git(root: Option<&Path>, args: &[&str]) -> Result<Vec<u8>, String> {
@@ -93,8 +94,7 @@ fn since(rev: &str, paths: &[PathBuf]) -> Result<Vec<ModelDiff>, String> {
             .map_or_else(|_| name.clone(), |p| p.display().to_string());
         let excluded = projects
             .project_for(&path)
-            .ok()
-            .flatten()
+            .map_err(crate::files::describe_project_error)?
             .is_some_and(|p| p.is_excluded(&path));
         if excluded {
             continue;
@@ -103,7 +103,7 @@ fn since(rev: &str, paths: &[PathBuf]) -> Result<Vec<ModelDiff>, String> {
             None
         } else {
             let text = git(Some(&root), &["show", &format!("{rev}:{name}")])?;
-            Some(side(&path, String::from_utf8_lossy(&text).into_owned()))
+            Some(side(&path, String::from_utf8_lossy(&text).into_owned())?)
         };
         let new = if status.starts_with('D') {
             None

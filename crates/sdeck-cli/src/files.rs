@@ -1,4 +1,7 @@
-//! Finding model files and reading them as text, reporting what cannot be read.
+//! The one loader of the commands: finding model files with the project that governs
+//! each, and reading them as text, reporting what cannot be read. Every command goes
+//! through it, so a broken `sdeck.toml` is the same error (exit status 2) for all, and
+//! folders are searched with the same exclusions.
 
 use sdeck_project::{Project, ProjectCache, ProjectError};
 use std::collections::HashSet;
@@ -115,6 +118,23 @@ pub fn collect(paths: &[PathBuf], projects: &mut ProjectCache) -> Result<Vec<Tar
 fn is_hidden(name: &std::ffi::OsStr) -> bool {
     name.to_str()
         .is_some_and(|n| n.starts_with('.') && n != "." && n != "..")
+}
+
+/// The project that governs one file named on the command line (its nearest
+/// `sdeck.toml`), for the commands that read one model. A broken project file is an error,
+/// with the same message [`collect`] gives.
+pub fn project_of(path: &Path) -> Result<Option<Arc<Project>>, String> {
+    ProjectCache::new()
+        .project_for(path)
+        .map_err(describe_project_error)
+}
+
+/// The rule settings of one file named on the command line: its project's, or the
+/// defaults when no project governs it. A broken project file is an error.
+pub fn settings_of(path: &Path) -> Result<sdeck_checks::RuleSettings, String> {
+    Ok(project_of(path)?
+        .map(|project| project.settings.clone())
+        .unwrap_or_default())
 }
 
 /// The message for a broken project file.

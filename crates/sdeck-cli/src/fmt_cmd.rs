@@ -97,8 +97,11 @@ pub fn run(args: FmtArgs) -> ExitCode {
     if args.paths.iter().any(|p| p.as_os_str() == "-") {
         return run_stdin(&args);
     }
-    let paths = match collect(&args.paths) {
-        Ok(p) => p,
+    // The same discovery as `sdeck check`: hidden folders skipped, the project's exclusions
+    // honoured, a broken project file an error.
+    let mut projects = sdeck_project::ProjectCache::new();
+    let paths = match crate::files::collect(&args.paths, &mut projects) {
+        Ok(targets) => targets.into_iter().map(|t| t.path).collect::<Vec<_>>(),
         Err(message) => {
             eprintln!("sdeck: {message}");
             return ExitCode::from(2);
@@ -168,27 +171,4 @@ pub fn run(args: FmtArgs) -> ExitCode {
     } else {
         ExitCode::SUCCESS
     }
-}
-
-/// Files as given, and every *.sde file under the folders given, sorted per folder.
-fn collect(paths: &[PathBuf]) -> Result<Vec<PathBuf>, String> {
-    let mut out = Vec::new();
-    for path in paths {
-        let meta = std::fs::metadata(path)
-            .map_err(|e| format!("cannot read `{}`: {e}", path.display()))?;
-        if meta.is_dir() {
-            let mut found: Vec<PathBuf> = walkdir::WalkDir::new(path)
-                .into_iter()
-                .filter_map(Result::ok)
-                .filter(|e| e.file_type().is_file())
-                .map(|e| e.into_path())
-                .filter(|p| p.extension().is_some_and(|x| x == "sde"))
-                .collect();
-            found.sort();
-            out.extend(found);
-        } else {
-            out.push(path.clone());
-        }
-    }
-    Ok(out)
 }

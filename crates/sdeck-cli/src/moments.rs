@@ -128,7 +128,13 @@ pub fn load_sound_model(path: &Path, doing: &str) -> Result<(String, FileCheck),
             return Err(ExitCode::from(2));
         }
     };
-    let settings = sdeck_project::settings_for(path);
+    let settings = match files::settings_of(path) {
+        Ok(settings) => settings,
+        Err(message) => {
+            eprintln!("sdeck: {message}");
+            return Err(ExitCode::from(2));
+        }
+    };
     let text = source.text.clone();
     let (checked, result) = crate::check::check_source(source, &settings);
     let errors: Vec<_> = checked

@@ -2,37 +2,10 @@
 //! shape, SARIF (validated against the OASIS schema), JUnit, annotation lines, standard
 //! input, several reports in one run, project files, and the generated rule manual.
 
-use assert_cmd::Command;
 use serde_json::Value;
-use std::path::{Path, PathBuf};
-
-/// The repository root (two folders above this crate).
-fn root() -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR"))
-        .ancestors()
-        .nth(2)
-        .map(Path::to_path_buf)
-        .unwrap_or_default()
-}
-
-/// `sdeck` run from the repository root.
-fn sdeck() -> Command {
-    let mut command = Command::cargo_bin("sdeck").unwrap();
-    command.current_dir(root());
-    command
-}
-
-fn status(output: &std::process::Output) -> i32 {
-    output.status.code().unwrap_or(-1)
-}
-
-fn stdout(output: &std::process::Output) -> String {
-    String::from_utf8_lossy(&output.stdout).into_owned()
-}
-
-fn stderr(output: &std::process::Output) -> String {
-    String::from_utf8_lossy(&output.stderr).into_owned()
-}
+use std::path::Path;
+mod common;
+use common::{root, sdeck, status, stderr, stdout, write};
 
 fn json_of(output: &std::process::Output) -> Value {
     serde_json::from_slice(&output.stdout)
@@ -47,13 +20,6 @@ fn keys(value: &Value) -> Vec<String> {
         .unwrap_or_default();
     keys.sort();
     keys
-}
-
-fn write(path: &Path, text: &str) {
-    if let Some(parent) = path.parent() {
-        std::fs::create_dir_all(parent).unwrap();
-    }
-    std::fs::write(path, text).unwrap();
 }
 
 /// A sound Ornstein–Uhlenbeck model (the first example of docs/language.md), with room

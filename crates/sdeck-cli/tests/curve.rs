@@ -1,27 +1,13 @@
 //! End-to-end tests of `sdeck curve`: the exact JSON shape, prices against Brigo &
 //! Mercurio 2006 for the two-factor Gaussian demo model, the options and refusals.
 
-use assert_cmd::Command;
 use serde_json::Value;
-use std::path::{Path, PathBuf};
-
-fn repo() -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join("../..")
-}
+mod common;
 
 fn curve(args: &[&str]) -> (Option<i32>, String, String) {
-    let out = Command::cargo_bin("sdeck")
-        .unwrap_or_else(|e| panic!("no binary: {e}"))
-        .current_dir(repo())
-        .arg("curve")
-        .args(args)
-        .output()
-        .unwrap_or_else(|e| panic!("{e}"));
-    (
-        out.status.code(),
-        String::from_utf8_lossy(&out.stdout).into_owned(),
-        String::from_utf8_lossy(&out.stderr).into_owned(),
-    )
+    let mut with_command = vec!["curve"];
+    with_command.extend_from_slice(args);
+    common::run(&with_command)
 }
 
 const DEMO: &str = "demo-models/kestrel_bank_short_rate.sde";

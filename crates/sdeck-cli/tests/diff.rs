@@ -2,30 +2,14 @@
 //! moments` of each file), a comment-only change, the `--max-change` gate, `--since`
 //! against a git revision, and the JSON shape.
 
-use assert_cmd::Command;
 use serde_json::Value;
-use std::path::{Path, PathBuf};
-
-fn repo() -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join("../..")
-}
+use std::path::Path;
+mod common;
+use common::{root as repo, run as sdeck};
 
 fn sdeck_in(dir: &Path, args: &[&str]) -> (Option<i32>, String, String) {
-    let out = Command::cargo_bin("sdeck")
-        .unwrap_or_else(|e| panic!("no binary: {e}"))
-        .current_dir(dir)
-        .args(args)
-        .output()
-        .unwrap_or_else(|e| panic!("{e}"));
-    (
-        out.status.code(),
-        String::from_utf8_lossy(&out.stdout).into_owned(),
-        String::from_utf8_lossy(&out.stderr).into_owned(),
-    )
-}
-
-fn sdeck(args: &[&str]) -> (Option<i32>, String, String) {
-    sdeck_in(&repo(), args)
+    let out = common::run_in(dir, args);
+    (out.code, out.stdout, out.stderr)
 }
 
 fn demo(name: &str) -> String {

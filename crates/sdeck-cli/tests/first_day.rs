@@ -4,33 +4,9 @@
 
 use assert_cmd::Command;
 use serde_json::Value;
-use std::path::{Path, PathBuf};
-
-fn root() -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR"))
-        .ancestors()
-        .nth(2)
-        .map(Path::to_path_buf)
-        .unwrap_or_default()
-}
-
-fn sdeck() -> Command {
-    let mut command = Command::cargo_bin("sdeck").unwrap();
-    command.current_dir(root());
-    command
-}
-
-fn status(output: &std::process::Output) -> i32 {
-    output.status.code().unwrap_or(-1)
-}
-
-fn stdout(output: &std::process::Output) -> String {
-    String::from_utf8_lossy(&output.stdout).into_owned()
-}
-
-fn stderr(output: &std::process::Output) -> String {
-    String::from_utf8_lossy(&output.stderr).into_owned()
-}
+use std::path::Path;
+mod common;
+use common::{root, sdeck, status, stderr, stdout};
 
 const OU: &str = "demo-models/ou_short_rate.sde";
 

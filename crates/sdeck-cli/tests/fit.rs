@@ -1,29 +1,10 @@
 //! End-to-end tests of `sdeck fit` and `sdeck simulate --export`: the JSON shape, the
 //! day counts, bad data (row, column, exit 2, nothing written), `--write` and `--check`.
 
-use assert_cmd::Command;
 use serde_json::Value;
 use std::path::Path;
-
-struct Run {
-    code: Option<i32>,
-    stdout: String,
-    stderr: String,
-}
-
-fn sdeck(dir: &Path, args: &[&str]) -> Run {
-    let out = Command::cargo_bin("sdeck")
-        .unwrap_or_else(|e| panic!("no binary: {e}"))
-        .current_dir(dir)
-        .args(args)
-        .output()
-        .unwrap_or_else(|e| panic!("{e}"));
-    Run {
-        code: out.status.code(),
-        stdout: String::from_utf8_lossy(&out.stdout).into_owned(),
-        stderr: String::from_utf8_lossy(&out.stderr).into_owned(),
-    }
-}
+mod common;
+use common::run_in as sdeck;
 
 fn write(dir: &Path, name: &str, text: &str) {
     std::fs::write(dir.join(name), text).unwrap_or_else(|e| panic!("{e}"));

@@ -1,28 +1,9 @@
 //! End-to-end reproducers of hostile input: each test is the smallest input that once
 //! corrupted text, hung, flooded the terminal or checked nothing without saying so.
 
-use assert_cmd::Command;
 use std::path::Path;
-
-fn sdeck() -> Command {
-    Command::cargo_bin("sdeck").unwrap()
-}
-
-fn status(output: &std::process::Output) -> i32 {
-    output.status.code().unwrap_or(-1)
-}
-
-fn stdout(output: &std::process::Output) -> String {
-    String::from_utf8_lossy(&output.stdout).into_owned()
-}
-
-fn stderr(output: &std::process::Output) -> String {
-    String::from_utf8_lossy(&output.stderr).into_owned()
-}
-
-fn write(path: &Path, text: &str) {
-    std::fs::write(path, text).unwrap();
-}
+mod common;
+use common::{sdeck, status, stderr, stdout, write};
 
 // ------------------------------------------------------------------ line breaks
 

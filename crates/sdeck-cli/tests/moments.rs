@@ -3,40 +3,21 @@
 
 use assert_cmd::Command;
 use serde_json::Value;
-use std::path::{Path, PathBuf};
+mod common;
+use common::root as repo;
 
-fn repo() -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join("../..")
+fn moments_text(args: &[&str]) -> (Option<i32>, String, String) {
+    let mut with_command = vec!["moments"];
+    with_command.extend_from_slice(args);
+    common::run(&with_command)
 }
 
 fn moments(args: &[&str]) -> (Option<i32>, Value, String) {
-    let out = Command::cargo_bin("sdeck")
-        .unwrap_or_else(|e| panic!("no binary: {e}"))
-        .current_dir(repo())
-        .arg("moments")
-        .args(args)
-        .output()
-        .unwrap_or_else(|e| panic!("{e}"));
-    let json = serde_json::from_slice(&out.stdout).unwrap_or(Value::Null);
+    let (code, stdout, stderr) = moments_text(args);
     (
-        out.status.code(),
-        json,
-        String::from_utf8_lossy(&out.stderr).into_owned(),
-    )
-}
-
-fn moments_text(args: &[&str]) -> (Option<i32>, String, String) {
-    let out = Command::cargo_bin("sdeck")
-        .unwrap_or_else(|e| panic!("no binary: {e}"))
-        .current_dir(repo())
-        .arg("moments")
-        .args(args)
-        .output()
-        .unwrap_or_else(|e| panic!("{e}"));
-    (
-        out.status.code(),
-        String::from_utf8_lossy(&out.stdout).into_owned(),
-        String::from_utf8_lossy(&out.stderr).into_owned(),
+        code,
+        serde_json::from_str(&stdout).unwrap_or(Value::Null),
+        stderr,
     )
 }
 

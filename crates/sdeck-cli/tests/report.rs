@@ -1,26 +1,8 @@
 //! End-to-end tests of `sdeck report`: the Markdown and HTML documents, a model with
 //! errors, and the fan chart of `sdeck simulate --plot`.
 
-use assert_cmd::Command;
-use std::path::{Path, PathBuf};
-
-fn repo() -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join("../..")
-}
-
-fn sdeck(args: &[&str]) -> (Option<i32>, String, String) {
-    let out = Command::cargo_bin("sdeck")
-        .unwrap_or_else(|e| panic!("no binary: {e}"))
-        .current_dir(repo())
-        .args(args)
-        .output()
-        .unwrap_or_else(|e| panic!("{e}"));
-    (
-        out.status.code(),
-        String::from_utf8_lossy(&out.stdout).into_owned(),
-        String::from_utf8_lossy(&out.stderr).into_owned(),
-    )
-}
+mod common;
+use common::run as sdeck;
 
 #[test]
 fn markdown_has_the_same_content_as_tables_and_no_image() {

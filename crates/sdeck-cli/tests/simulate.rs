@@ -1,18 +1,8 @@
 //! End-to-end tests of `sdeck simulate`: the closed-form cross-check on the demo models,
 //! reproducibility across thread counts, and the fan chart.
 
-use assert_cmd::Command;
-use std::path::{Path, PathBuf};
-
-fn repo() -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join("../..")
-}
-
-fn sdeck() -> Command {
-    let mut cmd = Command::cargo_bin("sdeck").unwrap_or_else(|e| panic!("no binary: {e}"));
-    cmd.current_dir(repo());
-    cmd
-}
+mod common;
+use common::sdeck;
 
 #[test]
 fn every_demo_model_with_a_closed_form_passes_the_cross_check() {
