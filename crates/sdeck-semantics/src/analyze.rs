@@ -23,6 +23,16 @@ pub struct Analysis {
     pub symbols: Vec<Symbol>,
     /// Every use of a declared name (declarations themselves are not included).
     pub references: Vec<Reference>,
+    /// Which parameters, shocks and lets something uses (the rule `unused` reads it).
+    pub usage: Usage,
+}
+
+/// Which declared names something uses, by index in the model's lists.
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct Usage {
+    pub params: Vec<bool>,
+    pub shocks: Vec<bool>,
+    pub lets: Vec<bool>,
 }
 
 impl Analysis {
@@ -55,6 +65,9 @@ pub fn analyze(source: &str, default_name: &str) -> Analysis {
         mut diagnostics,
         symbols,
         references,
+        param_used,
+        noise_used,
+        let_used,
         ..
     } = analyzer;
     let mut all = file.diagnostics.clone();
@@ -65,6 +78,11 @@ pub fn analyze(source: &str, default_name: &str) -> Analysis {
         diagnostics: all,
         symbols,
         references,
+        usage: Usage {
+            params: param_used,
+            shocks: noise_used,
+            lets: let_used,
+        },
     }
 }
 
@@ -205,7 +223,6 @@ impl<'a> Analyzer<'a> {
         self.equations();
         self.short_rate();
         self.expectations();
-        self.unused();
     }
 
     fn clock_unit(&self) -> &str {
@@ -2392,71 +2409,6 @@ impl<'a> Analyzer<'a> {
             }
         }
     }
-
-    /// Whether `name` appears as a word in text that did not parse.
-    fn mentioned_in_unparsed(&self, name: &str) -> bool {
-        self.file.unparsed.iter().any(|span| {
-            let text = self.source.get(span.clone()).unwrap_or("");
-            text.split(|c: char| !(c.is_alphanumeric() || c == '_'))
-                .any(|word| word == name || word.strip_prefix('d') == Some(name))
-        })
-    }
-
-    fn unused(&mut self) {
-        for (i, p) in self.model.params.iter().enumerate() {
-            if !self.param_used[i] && !self.mentioned_in_unparsed(&p.name) {
-                self.diagnostics.push(
-                    Diagnostic::new(
-                        &rules::UNUSED,
-                        p.name_span.clone(),
-                        format!("parameter `{}` is never used", p.name),
-                    )
-                    .with_help("use it in an equation or a let, or remove it")
-                    .with_fix(
-                        format!("Remove `{}`", p.name),
-                        vec![TextEdit {
-                            span: whole_lines(self.source, &p.span),
-                            new_text: String::new(),
-                        }],
-                    ),
-                );
-            }
-        }
-        for (i, n) in self.model.shocks.iter().enumerate() {
-            if !self.noise_used[i] && !self.mentioned_in_unparsed(&n.name) {
-                self.diagnostics.push(
-                    Diagnostic::new(
-                        &rules::UNUSED,
-                        n.name_span.clone(),
-                        format!("shock `{}` drives no equation", n.name),
-                    )
-                    .with_help(format!(
-                        "add a term `... d{}` to an equation, or remove the shock",
-                        n.name
-                    )),
-                );
-            }
-        }
-        for (i, l) in self.model.lets.iter().enumerate() {
-            if !self.let_used[i] && !self.mentioned_in_unparsed(&l.name) {
-                self.diagnostics.push(
-                    Diagnostic::new(
-                        &rules::UNUSED,
-                        l.name_span.clone(),
-                        format!("let `{}` is never used", l.name),
-                    )
-                    .with_help("use it in an equation or another let, or remove it")
-                    .with_fix(
-                        format!("Remove `{}`", l.name),
-                        vec![TextEdit {
-                            span: whole_lines(self.source, &l.span),
-                            new_text: String::new(),
-                        }],
-                    ),
-                );
-            }
-        }
-    }
 }
 
 /// Whether `e` is a number, possibly negated (`-0.4`).
@@ -2478,11 +2430,6 @@ fn line_end_after(source: &str, offset: usize) -> usize {
 /// The offset where the line holding `offset` starts.
 fn line_start_of(source: &str, offset: usize) -> usize {
     sdeck_syntax::lines::line_start(source, offset)
-}
-
-/// The lines that hold `span`, newline included.
-fn whole_lines(source: &str, span: &Span) -> Span {
-    line_start_of(source, span.start)..line_end_after(source, span.end)
 }
 
 /// The offset just after the `]` that closes a bracketed unit.

@@ -11,7 +11,7 @@ pub mod model;
 pub mod symbols;
 mod walk;
 
-pub use analyze::{analyze, fmt_num, Analysis};
+pub use analyze::{analyze, fmt_num, Analysis, Usage};
 pub use meaning::meaning;
 pub use model::*;
 pub use symbols::{Reference, Symbol, SymbolKind};

@@ -3,19 +3,34 @@
 
 use sdeck_semantics::{analyze, Analysis};
 
+/// The rules found by the analysis, by line, beside `unused` where the analysis records
+/// a name as used by nothing (the rule itself is decided in sdeck-checks from that record).
 fn rules_at_lines(text: &str) -> Vec<(usize, &'static str)> {
     let a = analyze(text, "test");
+    let line = |offset: usize| text[..offset].matches('\n').count() + 1;
     let mut out: Vec<(usize, &'static str)> = a
         .diagnostics
         .iter()
         .filter(|d| d.rule.name() != "unit-scale")
-        .map(|d| {
-            (
-                text[..d.span.start].matches('\n').count() + 1,
-                d.rule.name(),
-            )
-        })
+        .map(|d| (line(d.span.start), d.rule.name()))
         .collect();
+    let unused = |used: &[bool], i: usize| !used.get(i).copied().unwrap_or(true);
+    let params = a.model.params.iter().enumerate();
+    let shocks = a.model.shocks.iter().enumerate();
+    let lets = a.model.lets.iter().enumerate();
+    let unused_names = params
+        .filter(|(i, _)| unused(&a.usage.params, *i))
+        .map(|(_, p)| p.name_span.start)
+        .chain(
+            shocks
+                .filter(|(i, _)| unused(&a.usage.shocks, *i))
+                .map(|(_, s)| s.name_span.start),
+        )
+        .chain(
+            lets.filter(|(i, _)| unused(&a.usage.lets, *i))
+                .map(|(_, l)| l.name_span.start),
+        );
+    out.extend(unused_names.map(|start| (line(start), "unused")));
     out.sort();
     out
 }

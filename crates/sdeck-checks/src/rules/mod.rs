@@ -1,4 +1,4 @@
-//! The rules decided after the calculus, one module each (detection, message and fixes),
+//! The rules decided on the finished model and its derivation, one module each (detection, message and fixes),
 //! and the registry that runs them in order.
 //!
 //! Adding a rule here: write `NAME.rs` with `pub(super) fn run(cx: &Context, out: &mut
@@ -13,6 +13,7 @@ mod moment_explosion;
 mod no_factor;
 mod not_mean_reverting;
 mod shared;
+mod unused;
 
 use sdeck_calculus::Derivation;
 use sdeck_diagnostics::{Diagnostic, RuleId};
@@ -54,6 +55,7 @@ static REGISTRY: &[(RuleId, Runner)] = &[
     (RuleId::CorrelationNotPsd, correlation_not_psd::run),
     (RuleId::ExpectationFailed, expectation_failed::run),
     (RuleId::NoFactor, no_factor::run),
+    (RuleId::Unused, unused::run),
 ];
 
 /// The rules the registry runs, in order.

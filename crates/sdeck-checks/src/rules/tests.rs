@@ -37,15 +37,8 @@ fn a_rate_that_overflows_ends_quickly_and_says_why() {
 
 #[test]
 fn manual_examples_fire_exactly_once_and_their_fixes_not_at_all() {
-    let mine = [
-        &rules::FELLER_CONDITION,
-        &rules::FACTOR_DOMAIN,
-        &rules::NOT_MEAN_REVERTING,
-        &rules::CORRELATION_NOT_PSD,
-        &rules::EXPECTATION_FAILED,
-        &rules::MOMENT_EXPLOSION,
-        &rules::DISCOUNT_MEASURE,
-    ];
+    // Every rule of the registry.
+    let mine: Vec<&Rule> = super::registered().map(|id| id.rule()).collect();
     for rule in mine {
         let (_, flawed) = run(rule.flawed);
         assert_eq!(
@@ -349,4 +342,52 @@ fn bound_containment() {
     };
     assert!(!interval_keeps(&positive, Some((0.0, true))));
     assert!(interval_keeps(&positive, Some((0.0, false))));
+}
+
+#[test]
+fn the_registry_runs_each_rule_once() {
+    let registered: Vec<_> = super::registered().collect();
+    let mut unique = registered.clone();
+    unique.sort();
+    unique.dedup();
+    assert_eq!(unique.len(), registered.len(), "{registered:?}");
+}
+
+/// On each registered rule's flawed example, its preferred fixes clear it and bring no
+/// rule that was not there before.
+#[test]
+fn preferred_fixes_clear_their_own_diagnostic_and_add_none() {
+    let settings = crate::RuleSettings::default();
+    let mut fixed_some = 0;
+    for rule in super::registered().map(|id| id.rule()) {
+        let before = crate::check(rule.flawed, "manual", &settings).diagnostics;
+        let fixes: Vec<&sdeck_diagnostics::Fix> = before
+            .iter()
+            .filter(|d| d.rule == rule.id)
+            .filter_map(|d| d.fixes.iter().find(|f| f.preferred))
+            .collect();
+        if fixes.is_empty() {
+            continue;
+        }
+        fixed_some += 1;
+        let text = sdeck_diagnostics::apply_fixes(rule.flawed, &fixes)
+            .unwrap_or_else(|e| panic!("{}: {e:?}", rule.name));
+        let after = crate::check(&text, "manual", &settings).diagnostics;
+        assert!(
+            after.iter().all(|d| d.rule != rule.id),
+            "{} still fires after its fix:\n{text}",
+            rule.name
+        );
+        for d in &after {
+            assert!(
+                before.iter().any(|b| b.rule == d.rule),
+                "{}'s fix brings {}: {}\n{text}",
+                rule.name,
+                d.rule,
+                d.message
+            );
+        }
+    }
+    // feller-condition, correlation-not-psd, discount-measure and unused carry fixes.
+    assert!(fixed_some >= 4, "{fixed_some}");
 }
