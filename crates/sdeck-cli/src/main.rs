@@ -25,6 +25,7 @@ mod github;
 mod junit;
 mod lsp_cmd;
 mod moments;
+mod progress_bar;
 mod render;
 mod report_cmd;
 mod sarif;

@@ -166,7 +166,7 @@ pub fn run(args: SimulateArgs) -> ExitCode {
         dates,
         seed: args.seed,
         threads: args.threads,
-        progress: true,
+        progress: Some(crate::progress_bar::on_terminal()),
         band_times: if args.plot.is_some() { 100 } else { 0 },
         step_doubling: true,
         memory_limit: memory_limit(),
@@ -266,7 +266,7 @@ fn export(
     let recording = SimulationOptions {
         paths: count,
         band_times: options.steps,
-        progress: false,
+        progress: None,
         ..options.clone()
     };
     let plan = sdeck_simulate::plan(model, derivation);

@@ -209,7 +209,7 @@ impl Review {
             at: None,
             seed: options.seed,
             threads: options.threads,
-            progress: false,
+            progress: None,
             band_times: 50,
             dates: Vec::new(),
             step_doubling: true,

@@ -5,7 +5,7 @@ fn main() {
                   shock W\nfactor r = 2.9% >= 0\ndr = kappa * (theta - r) dt + sigma * sqrt(r) dW\n";
     let model = sdeck_semantics::analyze(source, "demo").model;
     let derivation = sdeck_calculus::derive(&model);
-    // SDECK_EXAMPLE_PATHS makes the run long enough to show the progress bar.
+    // SDECK_EXAMPLE_PATHS sets the number of paths (the progress bar is the CLI's).
     let paths = std::env::var("SDECK_EXAMPLE_PATHS")
         .ok()
         .and_then(|v| v.parse().ok())
@@ -13,7 +13,6 @@ fn main() {
     let options = sdeck_simulate::SimulationOptions {
         paths,
         steps: 20,
-        progress: true,
         ..Default::default()
     };
     match sdeck_simulate::simulate_and_compare(&model, &derivation, &options) {

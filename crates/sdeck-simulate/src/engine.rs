@@ -21,7 +21,7 @@ use crate::bytecode::{CompileError, Lanes, Program, LANES};
 use crate::linalg::{correlation_factor, gaussian_step, GaussianStep};
 use crate::normals::fill_normals_chunk;
 use crate::plan::{ExactLaw, Plan, Scheme, VarianceDriven};
-use crate::progress::Progress;
+use crate::progress::{Progress, Reporting};
 use crate::samplers::SquareRootStep;
 use nalgebra::{DMatrix, DVector};
 use rand::SeedableRng;
@@ -46,9 +46,9 @@ pub struct SimulationOptions {
     pub seed: u64,
     /// Worker threads; `None` means one per core.
     pub threads: Option<usize>,
-    /// Show a progress bar on stderr (only drawn when stderr is a terminal and the run
-    /// lasts more than a second).
-    pub progress: bool,
+    /// Where to report how far the run has got (the caller draws it); `None` reports
+    /// nothing.
+    pub progress: Option<Progress>,
     /// Number of times on the grid (besides 0) at which quantile bands are recorded for a
     /// fan chart; 0 records none.
     pub band_times: usize,
@@ -68,7 +68,7 @@ impl Default for SimulationOptions {
             dates: Vec::new(),
             seed: 1,
             threads: None,
-            progress: false,
+            progress: None,
             band_times: 0,
             step_doubling: false,
             memory_limit: None,
@@ -1131,7 +1131,7 @@ pub fn simulate_paths(
     let pool = builder
         .build()
         .map_err(|e| SimulateError::ThreadPool(e.to_string()))?;
-    let progress = Progress::start(options.progress, blocks);
+    let progress = Reporting::start(options.progress.as_ref(), blocks);
     let outputs: Vec<BlockOutput> = pool.install(|| {
         (0..blocks)
             .into_par_iter()
@@ -1150,7 +1150,7 @@ pub fn simulate_paths(
             )
             .collect()
     });
-    progress.finish();
+    drop(progress);
 
     let gather = |pick: &dyn Fn(&BlockOutput) -> &[f64]| -> Vec<Vec<Vec<f64>>> {
         let mut gathered = vec![vec![Vec::with_capacity(options.paths); states]; dates.len()];

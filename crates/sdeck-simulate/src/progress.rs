@@ -1,133 +1,111 @@
-//! A progress bar on stderr for long simulations: drawn only when stderr is a terminal and
-//! only once a run has lasted a second, so short runs and pipes stay clean.
+//! How a simulation tells its caller how far it has got. The simulator draws nothing:
+//! it calls a [`ProgressSink`] the caller gives in
+//! [`SimulationOptions::progress`](crate::SimulationOptions::progress) (the command line
+//! draws a bar on a terminal; the review document and the tests give none).
 
-use std::io::{IsTerminal, Write};
-use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
+use std::fmt;
 use std::sync::Arc;
-use std::thread::JoinHandle;
-use std::time::{Duration, Instant};
 
-/// Delay before the bar appears.
-const SHOW_AFTER: Duration = Duration::from_secs(1);
-/// Redraw period.
-const REDRAW_EVERY: Duration = Duration::from_millis(100);
-const BAR_WIDTH: usize = 40;
-
-struct Shared {
-    done: AtomicUsize,
-    finished: AtomicBool,
+/// Receives the progress of a run: how many blocks of paths there are, and each one as
+/// it finishes. Called from the worker threads, so it must be cheap and thread-safe.
+pub trait ProgressSink: Send + Sync {
+    /// The run starts with `total` blocks of paths to simulate.
+    fn start(&self, total: usize);
+    /// One more block finished.
+    fn advance(&self);
+    /// The run is over (called once, also when it ends early).
+    fn finish(&self);
 }
 
-/// Counts finished blocks; a watcher thread draws the bar.
-pub struct Progress {
-    shared: Arc<Shared>,
-    watcher: Option<JoinHandle<()>>,
-}
+/// A shared [`ProgressSink`], as the options of a simulation hold it. Two are equal when
+/// they are the same sink.
+#[derive(Clone)]
+pub struct Progress(pub Arc<dyn ProgressSink>);
 
 impl Progress {
-    /// Starts the watcher when `wanted` and stderr is a terminal.
-    pub fn start(wanted: bool, total: usize) -> Progress {
-        let shared = Arc::new(Shared {
-            done: AtomicUsize::new(0),
-            finished: AtomicBool::new(false),
-        });
-        let watcher = if wanted && std::io::stderr().is_terminal() {
-            let watched = Arc::clone(&shared);
-            // A thread that cannot be started only costs the bar, never the run.
-            std::thread::Builder::new()
-                .name("sdeck-progress".into())
-                .spawn(move || watch(&watched, total))
-                .ok()
-        } else {
-            None
-        };
-        Progress { shared, watcher }
+    pub fn new(sink: impl ProgressSink + 'static) -> Progress {
+        Progress(Arc::new(sink))
+    }
+}
+
+impl fmt::Debug for Progress {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str("Progress(..)")
+    }
+}
+
+impl PartialEq for Progress {
+    fn eq(&self, other: &Progress) -> bool {
+        Arc::ptr_eq(&self.0, &other.0)
+    }
+}
+
+/// Calls `finish` on the sink when dropped, so that a run that stops early (an error, a
+/// panic in a worker) still ends the caller's display.
+pub(crate) struct Reporting<'p>(pub(crate) Option<&'p Progress>);
+
+impl<'p> Reporting<'p> {
+    pub(crate) fn start(progress: Option<&'p Progress>, total: usize) -> Reporting<'p> {
+        if let Some(p) = progress {
+            p.0.start(total);
+        }
+        Reporting(progress)
     }
 
-    /// One more block finished.
-    pub fn advance(&self) {
-        self.shared.done.fetch_add(1, Ordering::Relaxed);
-    }
-
-    /// Stops the watcher and clears the bar.
-    pub fn finish(mut self) {
-        self.stop();
-    }
-
-    fn stop(&mut self) {
-        self.shared.finished.store(true, Ordering::Relaxed);
-        if let Some(watcher) = self.watcher.take() {
-            // A panicking watcher only loses the bar.
-            let _ = watcher.join();
+    pub(crate) fn advance(&self) {
+        if let Some(p) = self.0 {
+            p.0.advance();
         }
     }
 }
 
-impl Drop for Progress {
+impl Drop for Reporting<'_> {
     fn drop(&mut self) {
-        self.stop();
-    }
-}
-
-/// The bar as text: `[#####-----]  42% simulating paths`.
-pub fn render_bar(done: usize, total: usize) -> String {
-    let fraction = if total == 0 {
-        1.0
-    } else {
-        (done as f64 / total as f64).clamp(0.0, 1.0)
-    };
-    let filled = (fraction * BAR_WIDTH as f64).round() as usize;
-    format!(
-        "[{}{}] {:>3}% simulating paths",
-        "#".repeat(filled),
-        "-".repeat(BAR_WIDTH - filled.min(BAR_WIDTH)),
-        (fraction * 100.0).round() as u32
-    )
-}
-
-fn watch(shared: &Shared, total: usize) {
-    let start = Instant::now();
-    let mut drawn = false;
-    while !shared.finished.load(Ordering::Relaxed) {
-        std::thread::sleep(REDRAW_EVERY);
-        if start.elapsed() < SHOW_AFTER {
-            continue;
+        if let Some(p) = self.0 {
+            p.0.finish();
         }
-        let bar = render_bar(shared.done.load(Ordering::Relaxed), total);
-        let mut stderr = std::io::stderr().lock();
-        // Drawing is best effort: a closed stderr must not stop the simulation.
-        let _ = write!(stderr, "\r{bar}");
-        let _ = stderr.flush();
-        drawn = true;
-    }
-    if drawn {
-        let mut stderr = std::io::stderr().lock();
-        let _ = write!(stderr, "\r{}\r", " ".repeat(BAR_WIDTH + 24));
-        let _ = stderr.flush();
     }
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
+    use std::sync::atomic::{AtomicUsize, Ordering};
+
+    #[derive(Default)]
+    struct Count {
+        total: AtomicUsize,
+        done: AtomicUsize,
+        finished: AtomicUsize,
+    }
+
+    impl ProgressSink for Count {
+        fn start(&self, total: usize) {
+            self.total.store(total, Ordering::Relaxed);
+        }
+        fn advance(&self) {
+            self.done.fetch_add(1, Ordering::Relaxed);
+        }
+        fn finish(&self) {
+            self.finished.fetch_add(1, Ordering::Relaxed);
+        }
+    }
 
     #[test]
-    fn bar_fills_in_proportion() {
-        assert_eq!(
-            render_bar(0, 4),
-            format!("[{}]   0% simulating paths", "-".repeat(40))
-        );
-        assert_eq!(
-            render_bar(1, 4),
-            format!(
-                "[{}{}]  25% simulating paths",
-                "#".repeat(10),
-                "-".repeat(30)
-            )
-        );
-        assert_eq!(
-            render_bar(9, 4),
-            format!("[{}] 100% simulating paths", "#".repeat(40))
-        );
+    fn reporting_starts_advances_and_finishes_once() {
+        let count = Arc::new(Count::default());
+        let progress = Progress(count.clone());
+        {
+            let reporting = Reporting::start(Some(&progress), 3);
+            reporting.advance();
+            reporting.advance();
+        }
+        assert_eq!(count.total.load(Ordering::Relaxed), 3);
+        assert_eq!(count.done.load(Ordering::Relaxed), 2);
+        assert_eq!(count.finished.load(Ordering::Relaxed), 1);
+        assert_eq!(progress, progress.clone());
+        assert_ne!(progress, Progress::new(Count::default()));
+        // No sink: nothing to call, nothing to fail.
+        Reporting::start(None, 3).advance();
     }
 }
