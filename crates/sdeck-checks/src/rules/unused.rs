@@ -12,21 +12,15 @@ pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
     };
     for (i, p) in cx.model.params.iter().enumerate() {
         if unused(&usage.params, i, &p.name) {
-            out.push(
-                Diagnostic::new(
-                    &rules::UNUSED,
-                    p.name_span.clone(),
-                    format!("parameter `{}` is never used", p.name),
-                )
-                .with_help("use it in an equation or a let, or remove it")
-                .with_fix(
-                    format!("Remove `{}`", p.name),
-                    vec![TextEdit {
-                        span: whole_lines(cx.source, &p.span),
-                        new_text: String::new(),
-                    }],
-                ),
-            );
+            let help = "use it in an equation or a let, or remove it";
+            out.push(removable(
+                cx,
+                "parameter",
+                &p.name,
+                &p.name_span,
+                &p.span,
+                help,
+            ));
         }
     }
     for (i, n) in cx.model.shocks.iter().enumerate() {
@@ -46,23 +40,35 @@ pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
     }
     for (i, l) in cx.model.lets.iter().enumerate() {
         if unused(&usage.lets, i, &l.name) {
-            out.push(
-                Diagnostic::new(
-                    &rules::UNUSED,
-                    l.name_span.clone(),
-                    format!("let `{}` is never used", l.name),
-                )
-                .with_help("use it in an equation or another let, or remove it")
-                .with_fix(
-                    format!("Remove `{}`", l.name),
-                    vec![TextEdit {
-                        span: whole_lines(cx.source, &l.span),
-                        new_text: String::new(),
-                    }],
-                ),
-            );
+            let help = "use it in an equation or another let, or remove it";
+            out.push(removable(cx, "let", &l.name, &l.name_span, &l.span, help));
         }
     }
+}
+
+/// `WHAT NAME is never used`, at the name, with the fix that removes the declaration's
+/// lines.
+fn removable(
+    cx: &Context,
+    what: &str,
+    name: &str,
+    name_span: &Span,
+    declaration: &Span,
+    help: &str,
+) -> Diagnostic {
+    Diagnostic::new(
+        &rules::UNUSED,
+        name_span.clone(),
+        format!("{what} `{name}` is never used"),
+    )
+    .with_help(help)
+    .with_fix(
+        format!("Remove `{name}`"),
+        vec![TextEdit {
+            span: whole_lines(cx.source, declaration),
+            new_text: String::new(),
+        }],
+    )
 }
 
 /// Whether `name` appears as a word (or as `dNAME`) in text that did not parse: a use
