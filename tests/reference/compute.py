@@ -75,6 +75,7 @@ TOLERANCE_QUADRATURE = 1e-7
 TOLERANCE_SCHEDULE = 1e-10
 
 FAMILIES = (
+    "deterministic",
     "arithmetic-brownian",
     "geometric-brownian",
     "ornstein-uhlenbeck",
@@ -610,6 +611,53 @@ MODELS: list[ModelSpec] = [
         # Issue 10 asks 1e-10 relative of these models.
         tolerance=1e-10,
     ),
+    # A positive slope: the Gaussian closed forms hold, the factor is `linear`, not
+    # Ornstein-Uhlenbeck (no mean reversion, no stationary law, no half-life).
+    ModelSpec(
+        file="linear_fernhollow_explosive_spread.sde",
+        clock="year",
+        horizon=("2", "year"),
+        params=[P("k", "0.35", "1/year"), P("level", "1.2%"), P("vol", "0.6%", "1/sqrt(year)")],
+        factors=[S("x", "1.5%", "linear")],
+        shocks=["W"],
+        correlations={},
+        drift={"x": "k * (x - level)"},
+        diffusion={"x": {"W": "vol"}},
+        sources=[SOURCE_VASICEK, SOURCE_VAN_LOAN, SOURCE_KLOEDEN_PLATEN],
+    ),
+    # No shock: each path is the solution of an ordinary differential equation, its
+    # variance 0 (the mean by the matrix exponential and by solve_ivp).
+    ModelSpec(
+        file="deterministic_hartwell_accrual.sde",
+        clock="year",
+        horizon=("5", "year"),
+        params=[P("r", "2.5%", "1/year"), P("decay", "0.8", "1/year"), P("floor", "40", "GBP")],
+        factors=[S("B", "1000", "deterministic", "GBP"), S("f", "120", "deterministic", "GBP")],
+        shocks=[],
+        correlations={},
+        drift={"B": "r * B", "f": "decay * (floor - f)"},
+        diffusion={"B": {}, "f": {}},
+        sources=[SOURCE_KLOEDEN_PLATEN, "scipy.linalg.expm and scipy.integrate.solve_ivp"],
+    ),
+    # Names that formulas like to use as their own letters (s, b, A, L, R, t0).
+    ModelSpec(
+        file="names_quarrington_letters.sde",
+        clock="year",
+        horizon=("1", "year"),
+        params=[
+            P("b", "0.9", "1/year"),
+            P("A", "1.4", "1/year"),
+            P("L", "0.8%", "1/sqrt(year)"),
+            P("R", "0.5%", "1/sqrt(year)"),
+            P("t0", "2.5%"),
+        ],
+        factors=[S("s", "3%", "ornstein-uhlenbeck"), S("X", "1%", "linear-system")],
+        shocks=["W", "B"],
+        correlations={("W", "B"): "0.35"},
+        drift={"s": "b * (t0 - s)", "X": "A * (s - t0 - X)"},
+        diffusion={"s": {"W": "L"}, "X": {"B": "R"}},
+        sources=[SOURCE_VASICEK, SOURCE_VAN_LOAN],
+    ),
 ]
 
 
@@ -860,7 +908,7 @@ def build_numeric_model(spec: ModelSpec) -> NumericModel:
     for (first, second), literal in spec.correlations.items():
         a, b = spec.shocks.index(first), spec.shocks.index(second)
         correlation[a, b] = correlation[b, a] = constant_value(literal, values)
-    if np.linalg.eigvalsh(correlation).min() < -1e-12:
+    if correlation.size and np.linalg.eigvalsh(correlation).min() < -1e-12:
         raise ReferenceError(f"{spec.relative_path}: correlation matrix is not positive semi-definite")
     correlation_sym = sp.Matrix(correlation.tolist()).applyfunc(lambda v: sp.Float(v, 17))
     diffusion_covariance = (diffusion * correlation_sym * diffusion.T).applyfunc(sp.expand)
@@ -1384,9 +1432,16 @@ def assert_agree(where: str, what: str, first: np.ndarray, second: np.ndarray, s
         )
 
 
-def covariance_scale(covariance: np.ndarray) -> np.ndarray:
+def covariance_scale(covariance: np.ndarray, mean: np.ndarray | None = None) -> np.ndarray:
+    """sd_i sd_j; for a factor that no shock drives (variance 0) the scale of its raw
+    second moment, |m_i m_j|, from which a moment-equation solver subtracts m_i m_j."""
     sd = np.sqrt(np.abs(np.diag(covariance)))
-    return np.maximum(np.outer(sd, sd), 1e-300)
+    scale = np.outer(sd, sd)
+    if mean is not None:
+        still = sd == 0.0
+        raw = np.abs(np.outer(mean, mean))
+        scale = np.where(np.logical_or.outer(still, still), raw, scale)
+    return np.maximum(scale, 1e-300)
 
 
 def compute_figures(model: NumericModel) -> Figures:
@@ -1443,7 +1498,7 @@ def compute_figures(model: NumericModel) -> Figures:
     assert_agree(where, "means (primary vs solve_ivp)", mean, check_mean,
                  np.maximum(np.abs(mean), scale), agreement)
     assert_agree(where, "covariances (primary vs solve_ivp)", covariance, check_covariance,
-                 covariance_scale(covariance), agreement)
+                 covariance_scale(covariance, mean), agreement)
 
     half_lives = [half_life(model, i) for i in range(n)]
     stationary: list[tuple[float, float] | None] = []
@@ -1466,8 +1521,11 @@ def compute_figures(model: NumericModel) -> Figures:
         else:
             long_run = stationary_by_long_run_expm(model, closure)
             primary = (long_run[0][position], long_run[1][position, position])
+        # A stationary variance of 0 (no shock) is compared on the scale of the mean's
+        # square, as the covariances are.
+        variance_scale = primary[1] if primary[1] > 0 else primary[0] ** 2
         assert_agree(where, f"stationary law of state {i}", primary, generic,
-                     [max(abs(primary[0]), math.sqrt(primary[1])), primary[1]], METHOD_AGREEMENT)
+                     [max(abs(primary[0]), math.sqrt(primary[1])), variance_scale], METHOD_AGREEMENT)
         stationary.append((float(primary[0]), float(primary[1])))
 
     # One-state Ornstein-Uhlenbeck factors: the sympy closed forms must match too.

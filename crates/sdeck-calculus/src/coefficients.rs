@@ -37,6 +37,12 @@ pub struct OneStateForm {
 }
 
 impl OneStateForm {
+    /// Whether the equation is dX = (a + bX) dt + Σ c dW with constant coefficients: its
+    /// transition is Gaussian, with the Ornstein–Uhlenbeck moments for either sign of b.
+    pub fn gaussian_with_constant_coefficients(&self) -> bool {
+        !self.time_dependent && !self.form.state_dependent_noise()
+    }
+
     /// The coefficients at parameters `params` (clock units) and time `t`.
     pub fn at(&self, params: &[f64], t: f64) -> OneStateValues {
         let f = &self.form;

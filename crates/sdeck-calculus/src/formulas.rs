@@ -5,10 +5,92 @@ use crate::shape::{correlation, noise_name, OneState};
 use crate::{Analysis, Family, Formulas};
 use sdeck_semantics::Model;
 
+/// The letters a formula uses besides the model's names: the integration variable, the
+/// moment functions and the matrices of a linear system. Each is the first of its
+/// candidates that no factor, parameter, shock or let of the model is called, so a factor
+/// named `s` never reads as "Cov(s(s), s(t))"; past the candidates a prime makes a letter
+/// no identifier can be.
+struct Symbols {
+    /// Integration variable and its subscript (`s`, `ₛ`).
+    s: String,
+    s_sub: String,
+    /// A second integration variable, inside an exponent.
+    u: String,
+    /// Mean and variance as functions of time in the moment equations.
+    m: String,
+    v: String,
+    /// The scale of the square-root transition.
+    c: String,
+    /// Vector of factors, drift matrix and vector, loadings, correlation, stationary
+    /// covariance of a linear system.
+    x: String,
+    a: String,
+    b: String,
+    l: String,
+    r: String,
+    p: String,
+}
+
+impl Symbols {
+    fn new(model: &Model) -> Symbols {
+        // Only a name of at most two characters can equal a candidate.
+        let short: Vec<&str> = model
+            .factors
+            .iter()
+            .map(|f| f.name.as_str())
+            .chain(model.params.iter().map(|p| p.name.as_str()))
+            .chain(model.shocks.iter().map(|s| s.name.as_str()))
+            .chain(model.lets.iter().map(|l| l.name.as_str()))
+            .filter(|name| name.chars().count() <= 2)
+            .collect();
+        let mut taken: Vec<String> = short.iter().map(|s| s.to_string()).collect();
+        let mut pick = |candidates: &[&str]| -> String {
+            let chosen = candidates
+                .iter()
+                .find(|c| !taken.iter().any(|t| t == *c))
+                .map(|c| c.to_string())
+                .unwrap_or_else(|| format!("{}′", candidates[0]));
+            taken.push(chosen.clone());
+            chosen
+        };
+        const VARIABLES: [(&str, &str); 4] = [("s", "ₛ"), ("u", "ᵤ"), ("r", "ᵣ"), ("v", "ᵥ")];
+        let s = pick(&VARIABLES.map(|(v, _)| v));
+        let s_sub = VARIABLES
+            .iter()
+            .find(|(v, _)| *v == s)
+            .map_or_else(|| s.clone(), |(_, sub)| sub.to_string());
+        let u = pick(&["u", "r", "v", "q"]);
+        let m = pick(&["m", "μ", "M"]);
+        let v = pick(&["v", "w", "V"]);
+        let c = pick(&["c", "h", "k"]);
+        let x = pick(&["X", "Y", "Z"]);
+        let a = pick(&["A", "K", "M"]);
+        let b = pick(&["b", "a", "h"]);
+        let l = pick(&["L", "G", "H"]);
+        let r = pick(&["R", "C", "Q"]);
+        let p = pick(&["P", "S", "V"]);
+        Symbols {
+            s,
+            s_sub,
+            u,
+            m,
+            v,
+            c,
+            x,
+            a,
+            b,
+            l,
+            r,
+            p,
+        }
+    }
+}
+
 struct Writer<'a> {
     names: Names<'a>,
     model: &'a Model,
     state: String,
+    sym: Symbols,
 }
 
 impl<'a> Writer<'a> {
@@ -21,6 +103,7 @@ impl<'a> Writer<'a> {
                 .get(state)
                 .map(|s| s.name.clone())
                 .unwrap_or_else(|| "x".to_string()),
+            sym: Symbols::new(model),
         }
     }
 
@@ -98,7 +181,7 @@ impl<'a> Writer<'a> {
             .filter(|(_, c, _)| !c.is_zero())
             .map(|(noise, c, _)| {
                 let body = integrand(c);
-                format!("{body} d{}(s)", noise_name(self.model, *noise))
+                format!("{body} d{}({})", noise_name(self.model, *noise), self.sym.s)
             })
             .collect::<Vec<_>>()
             .join(" + ")
@@ -119,6 +202,7 @@ pub(crate) fn stationary_law(model: &Model, os: &OneState, family: Family) -> St
     let w = Writer::new(model, os.state);
     let minus_b = os.b.neg();
     match family {
+        Family::Deterministic => format!("point mass at {}", w.ratio(&os.a, &minus_b)),
         Family::OrnsteinUhlenbeck => format!(
             "Normal({}, {})",
             w.ratio(&os.a, &minus_b),
@@ -131,6 +215,7 @@ pub(crate) fn stationary_law(model: &Model, os: &OneState, family: Family) -> St
         ),
         _ => {
             // Fixed point of m' = a + b m and v' = α + β m + γ m² + (2b + γ) v.
+            let m = &w.sym.m;
             let mean = w.ratio(&os.a, &minus_b);
             let rate = os.b.scale(-2.0).sub(&os.gamma);
             let source = sum(&[
@@ -139,11 +224,11 @@ pub(crate) fn stationary_law(model: &Model, os: &OneState, family: Family) -> St
                 } else {
                     w.show(&os.alpha)
                 },
-                w.term(&os.beta, "m∞"),
-                w.term(&os.gamma, "m∞²"),
+                w.term(&os.beta, &format!("{m}∞")),
+                w.term(&os.gamma, &format!("{m}∞²")),
             ]);
             format!(
-                "no named law; mean m∞ = {mean}, variance ({source})/{}",
+                "no named law; mean {m}∞ = {mean}, variance ({source})/{}",
                 w.denominator(&rate)
             )
         }
@@ -172,9 +257,11 @@ fn reverting_mean(w: &Writer, os: &OneState, start: &str, elapsed: &str) -> Stri
 
 pub(crate) fn one_state(model: &Model, os: &OneState, family: Family) -> Formulas {
     let w = Writer::new(model, os.state);
+    let s = w.sym.s.as_str();
     let x_t = w.at("t");
-    let x_s = w.at("s");
+    let x_s = w.at(s);
     let x0 = w.start();
+    let elapsed = format!("(t − {s})");
     let empty = Vec::new();
     let terms = os.affine_terms.as_ref().unwrap_or(&empty);
     match family {
@@ -200,47 +287,49 @@ pub(crate) fn one_state(model: &Model, os: &OneState, family: Family) -> Formula
                 mean: Some(format!("E[{x_t}] = {x0}{drift}")),
                 variance: Some(format!("Var[{x_t}] = {}", w.times(&os.alpha, "t"))),
                 autocovariance: Some(format!(
-                    "Cov({x_s}, {x_t}) = {}, s ≤ t",
-                    w.times(&os.alpha, "s")
+                    "Cov({x_s}, {x_t}) = {}, {s} ≤ t",
+                    w.times(&os.alpha, s)
                 )),
                 stationary: None,
                 transition: Some(format!(
                     "{x_t} | {x_s} ~ Normal({x_s} + {}, {})",
-                    w.times(&os.a, "(t − s)"),
-                    w.times(&os.alpha, "(t − s)")
+                    w.times(&os.a, &elapsed),
+                    w.times(&os.alpha, &elapsed)
                 )),
             }
         }
+        Family::Deterministic => {
+            let mut formulas = if os.time_dependent {
+                linear_formulas(&w, os, family, terms)
+            } else {
+                let path = if os.b.is_zero() {
+                    sum(&[x0.clone(), w.term(&os.a, "t")])
+                } else {
+                    reverting_mean(&w, os, &x0, "t")
+                };
+                Formulas {
+                    solution: Some(format!("{x_t} = {path}")),
+                    mean: Some(format!("E[{x_t}] = {path}")),
+                    stationary: None,
+                    transition: None,
+                    ..Formulas::default()
+                }
+            };
+            formulas.variance = Some(format!("Var[{x_t}] = 0"));
+            formulas.autocovariance = Some(format!("Cov({x_s}, {x_t}) = 0, {s} ≤ t"));
+            formulas.stationary =
+                (!os.time_dependent && !os.b.is_zero()).then(|| stationary_law(model, os, family));
+            formulas
+        }
+        Family::Linear if !os.time_dependent && !os.state_dependent_noise() => {
+            let mut formulas = gaussian_affine(&w, os, terms);
+            formulas.stationary = None;
+            formulas
+        }
         Family::OrnsteinUhlenbeck => {
-            let mean = reverting_mean(&w, os, &x0, "t");
-            let noise = w.noise_sum(terms, &|c| {
-                format!("{}·∫₀ᵗ {}", w.factor(c), w.exp(&os.b, "(t − s)"))
-            });
-            let two_b = os.b.scale(2.0);
-            let minus_two_b = os.b.scale(-2.0);
-            let alpha = w.factor(&os.alpha);
-            Formulas {
-                solution: Some(format!("{x_t} = {mean} + {noise}")),
-                mean: Some(format!("E[{x_t}] = {mean}")),
-                variance: Some(format!(
-                    "Var[{x_t}] = {alpha}·(1 − {})/{}",
-                    w.exp(&two_b, "t"),
-                    w.denominator(&minus_two_b)
-                )),
-                autocovariance: Some(format!(
-                    "Cov({x_s}, {x_t}) = {alpha}·({} − {})/{}, s ≤ t",
-                    w.exp(&os.b, "(t − s)"),
-                    w.exp(&os.b, "(t + s)"),
-                    w.denominator(&minus_two_b)
-                )),
-                stationary: Some(stationary_law(model, os, family)),
-                transition: Some(format!(
-                    "{x_t} | {x_s} ~ Normal({}, {alpha}·(1 − {})/{})",
-                    reverting_mean(&w, os, &x_s, "(t − s)"),
-                    w.exp(&two_b, "(t − s)"),
-                    w.denominator(&minus_two_b)
-                )),
-            }
+            let mut formulas = gaussian_affine(&w, os, terms);
+            formulas.stationary = Some(stationary_law(model, os, family));
+            formulas
         }
         Family::GeometricBrownian => {
             let log_drift = os.b.sub(&os.gamma.scale(0.5));
@@ -263,14 +352,14 @@ pub(crate) fn one_state(model: &Model, os: &OneState, family: Family) -> Formula
                     w.exp(&os.gamma, "t")
                 )),
                 autocovariance: Some(format!(
-                    "Cov({x_s}, {x_t}) = {x0}²·{}·({} − 1), s ≤ t",
-                    w.exp(&os.b, "(s + t)"),
-                    w.exp(&os.gamma, "s")
+                    "Cov({x_s}, {x_t}) = {x0}²·{}·({} − 1), {s} ≤ t",
+                    w.exp(&os.b, &format!("({s} + t)")),
+                    w.exp(&os.gamma, s)
                 )),
                 stationary: None,
                 transition: Some(format!(
-                    "log {x_t} | {x_s} ~ Normal(log {x_s} + {}, {gamma}·(t − s))",
-                    w.times(&log_drift, "(t − s)")
+                    "log {x_t} | {x_s} ~ Normal(log {x_s} + {}, {gamma}·{elapsed})",
+                    w.times(&log_drift, &elapsed)
                 )),
             }
         }
@@ -300,22 +389,63 @@ pub(crate) fn one_state(model: &Model, os: &OneState, family: Family) -> Formula
                     }
                 }),
                 autocovariance: Some(format!(
-                    "Cov({x_s}, {x_t}) = Var[{x_s}]·{}, s ≤ t",
-                    w.exp(&os.b, "(t − s)")
+                    "Cov({x_s}, {x_t}) = Var[{x_s}]·{}, {s} ≤ t",
+                    w.exp(&os.b, &elapsed)
                 )),
                 stationary: Some(stationary_law(model, os, family)),
                 transition: Some(format!(
-                    "2c·{x_t} | {x_s} ~ noncentral χ²(degrees {}, noncentrality 2c·{x_s}·{}), \
-                     c = {}/({beta}·(1 − {}))",
+                    "2{c}·{x_t} | {x_s} ~ noncentral χ²(degrees {}, noncentrality 2{c}·{x_s}·{}), \
+                     {c} = {}/({beta}·(1 − {}))",
                     w.ratio(&os.a.scale(4.0), &os.beta),
-                    w.exp(&os.b, "(t − s)"),
+                    w.exp(&os.b, &elapsed),
                     w.factor(&os.b.scale(-2.0)),
-                    w.exp(&os.b, "(t − s)")
+                    w.exp(&os.b, &elapsed),
+                    c = w.sym.c
                 )),
             }
         }
         Family::Linear | Family::Polynomial => linear_formulas(&w, os, family, terms),
         Family::LinearSystem | Family::ExponentialAffine | Family::General => Formulas::default(),
+    }
+}
+
+/// The Gaussian closed forms of dX = (a + bX) dt + Σ c dW with constant coefficients and
+/// b ≠ 0 (Vasicek 1977, eqs. 23–25, written with b = −κ so that they hold for either
+/// sign); the stationary law is the caller's to add.
+fn gaussian_affine(w: &Writer, os: &OneState, terms: &[(usize, Poly, Poly)]) -> Formulas {
+    let s = w.sym.s.as_str();
+    let x_t = w.at("t");
+    let x_s = w.at(s);
+    let x0 = w.start();
+    let elapsed = format!("(t − {s})");
+    let mean = reverting_mean(w, os, &x0, "t");
+    let noise = w.noise_sum(terms, &|c| {
+        format!("{}·∫₀ᵗ {}", w.factor(c), w.exp(&os.b, &elapsed))
+    });
+    let two_b = os.b.scale(2.0);
+    let minus_two_b = os.b.scale(-2.0);
+    let alpha = w.factor(&os.alpha);
+    Formulas {
+        solution: Some(format!("{x_t} = {mean} + {noise}")),
+        mean: Some(format!("E[{x_t}] = {mean}")),
+        variance: Some(format!(
+            "Var[{x_t}] = {alpha}·(1 − {})/{}",
+            w.exp(&two_b, "t"),
+            w.denominator(&minus_two_b)
+        )),
+        autocovariance: Some(format!(
+            "Cov({x_s}, {x_t}) = {alpha}·({} − {})/{}, {s} ≤ t",
+            w.exp(&os.b, &elapsed),
+            w.exp(&os.b, &format!("(t + {s})")),
+            w.denominator(&minus_two_b)
+        )),
+        stationary: None,
+        transition: Some(format!(
+            "{x_t} | {x_s} ~ Normal({}, {alpha}·(1 − {})/{})",
+            reverting_mean(w, os, &x_s, &elapsed),
+            w.exp(&two_b, &elapsed),
+            w.denominator(&minus_two_b)
+        )),
     }
 }
 
@@ -350,9 +480,9 @@ impl Writer<'_> {
         }
     }
 
-    /// The polynomial with `t` written as `s` (inside an integral over s).
+    /// The polynomial with `t` written as the integration variable (inside an integral).
     fn show_at_s(&self, p: &Poly) -> String {
-        show_poly(p, &self.names.with_time("s"))
+        show_poly(p, &self.names.with_time(&self.sym.s))
     }
 
     fn factor_at_s(&self, p: &Poly) -> String {
@@ -371,19 +501,21 @@ fn linear_formulas(
     family: Family,
     terms: &[(usize, Poly, Poly)],
 ) -> Formulas {
+    let (s, s_sub, u) = (w.sym.s.as_str(), w.sym.s_sub.as_str(), w.sym.u.as_str());
+    let (m, v) = (w.sym.m.as_str(), w.sym.v.as_str());
     let x_t = w.at("t");
-    let x_s = w.at("s");
+    let x_s = w.at(s);
     let x0 = w.start();
     let b_varies = os.b.depends_on_time();
     // e^(∫ₛᵗ b) written out when b is constant.
     let growth = |from: &str| {
         if b_varies {
-            let slope = show_poly(&os.b, &w.names.with_time("u"));
-            format!("e^(∫{from}ᵗ ({slope}) du)")
+            let slope = show_poly(&os.b, &w.names.with_time(u));
+            format!("e^(∫{from}ᵗ ({slope}) d{u})")
         } else if from == "₀" {
             w.exp(&os.b, "t")
         } else {
-            w.exp(&os.b, "(t − s)")
+            w.exp(&os.b, &format!("(t − {s})"))
         }
     };
     let multiplicative = terms.iter().any(|(_, _, d)| !d.is_zero());
@@ -393,8 +525,8 @@ fn linear_formulas(
             .filter(|(_, c, _)| !c.is_zero())
             .map(|(k, c, _)| {
                 format!(
-                    "∫₀ᵗ {}·{} d{}(s)",
-                    growth("ₛ"),
+                    "∫₀ᵗ {}·{} d{}({s})",
+                    growth(s_sub),
                     w.factor_at_s(c),
                     noise_name(w.model, *k)
                 )
@@ -402,7 +534,11 @@ fn linear_formulas(
             .collect();
         let mut parts = vec![format!("{}·{x0}", growth("₀"))];
         if !os.a.is_zero() {
-            parts.push(format!("∫₀ᵗ {}·{} ds", growth("ₛ"), w.factor_at_s(&os.a)));
+            parts.push(format!(
+                "∫₀ᵗ {}·{} d{s}",
+                growth(s_sub),
+                w.factor_at_s(&os.a)
+            ));
         }
         parts.extend(noise);
         Some(format!("{x_t} = {}", sum(&parts)))
@@ -426,19 +562,19 @@ fn linear_formulas(
             .filter(|(_, c, _)| !c.is_zero())
             .map(|(k, c, _)| {
                 format!(
-                    " + ∫₀ᵗ Φ(s)⁻¹·{} d{}(s)",
+                    " + ∫₀ᵗ Φ({s})⁻¹·{} d{}({s})",
                     w.factor_at_s(c),
                     noise_name(w.model, *k)
                 )
             })
             .collect();
         let mut exponent = vec![format!(
-            "∫₀ᵗ ({}) ds",
+            "∫₀ᵗ ({}) d{s}",
             w.show_at_s(&os.b.sub(&os.gamma.scale(0.5)))
         )];
         exponent.extend(phi_noise);
         Some(format!(
-            "{x_t} = Φ(t)·({x0} + ∫₀ᵗ Φ(s)⁻¹·({}) ds{additive}), Φ(t) = exp({})",
+            "{x_t} = Φ(t)·({x0} + ∫₀ᵗ Φ({s})⁻¹·({}) d{s}{additive}), Φ(t) = exp({})",
             w.show_at_s(&os.a.sub(&cross)),
             sum(&exponent)
         ))
@@ -447,23 +583,23 @@ fn linear_formulas(
     };
     let mean = if os.time_dependent {
         format!(
-            "m′(t) = {}, m(0) = {x0}",
-            sum(&[w.show(&os.a), w.term(&os.b, "m(t)")])
+            "{m}′(t) = {}, {m}(0) = {x0}",
+            sum(&[w.show(&os.a), w.term(&os.b, &format!("{m}(t)"))])
         )
     } else {
         format!("E[{x_t}] = {}", reverting_mean(w, os, &x0, "t"))
     };
     let variance = format!(
-        "v′(t) = {}, v(0) = 0",
+        "{v}′(t) = {}, {v}(0) = 0",
         sum(&[
             if os.alpha.is_zero() {
                 String::new()
             } else {
                 w.show(&os.alpha)
             },
-            w.term(&os.beta, "m(t)"),
-            w.term(&os.gamma, "m(t)²"),
-            w.term(&os.b.scale(2.0).add(&os.gamma), "v(t)"),
+            w.term(&os.beta, &format!("{m}(t)")),
+            w.term(&os.gamma, &format!("{m}(t)²")),
+            w.term(&os.b.scale(2.0).add(&os.gamma), &format!("{v}(t)")),
         ])
     );
     let stationary = (!os.time_dependent).then(|| stationary_law(w.model, os, family));
@@ -472,8 +608,8 @@ fn linear_formulas(
         mean: Some(mean),
         variance: Some(variance),
         autocovariance: Some(format!(
-            "Cov({x_s}, {x_t}) = Var[{x_s}]·{}, s ≤ t",
-            growth("ₛ")
+            "Cov({x_s}, {x_t}) = Var[{x_s}]·{}, {s} ≤ t",
+            growth(s_sub)
         )),
         stationary,
         transition: None,
@@ -491,23 +627,39 @@ pub(crate) fn coupled(
     let _ = analysis;
     let x = &w.state;
     match family {
-        Family::LinearSystem => Formulas {
-            solution: Some(format!(
-                "X(t) = e^(A·t)·X₀ + ∫₀ᵗ e^(A·(t − s))·b ds + ∫₀ᵗ e^(A·(t − s))·L dW(s), \
-                 {x} its component"
-            )),
-            mean: Some(format!(
-                "E[X(t)] = e^(A·t)·X₀ + ∫₀ᵗ e^(A·s)·b ds, {x} its component"
-            )),
-            variance: Some(format!(
-                "Cov[X(t)] = ∫₀ᵗ e^(A·s)·L·R·Lᵀ·e^(Aᵀ·s) ds (Van Loan), entry ({x}, {x})"
-            )),
-            autocovariance: Some(format!(
-                "Cov(X(s), X(t)) = Cov[X(s)]·e^(Aᵀ·(t − s)), s ≤ t, entry ({x}, {x})"
-            )),
-            stationary: Some("Normal(−A⁻¹·b, P) with A·P + P·Aᵀ + L·R·Lᵀ = 0".to_string()),
-            transition: None,
-        },
+        Family::LinearSystem => {
+            let Symbols {
+                s,
+                x: v,
+                a,
+                b,
+                l,
+                r,
+                p,
+                ..
+            } = &w.sym;
+            Formulas {
+                solution: Some(format!(
+                    "{v}(t) = e^({a}·t)·{v}₀ + ∫₀ᵗ e^({a}·(t − {s}))·{b} d{s} \
+                     + ∫₀ᵗ e^({a}·(t − {s}))·{l} dW({s}), {x} its component"
+                )),
+                mean: Some(format!(
+                    "E[{v}(t)] = e^({a}·t)·{v}₀ + ∫₀ᵗ e^({a}·{s})·{b} d{s}, {x} its component"
+                )),
+                variance: Some(format!(
+                    "Cov[{v}(t)] = ∫₀ᵗ e^({a}·{s})·{l}·{r}·{l}ᵀ·e^({a}ᵀ·{s}) d{s} (Van Loan), \
+                     entry ({x}, {x})"
+                )),
+                autocovariance: Some(format!(
+                    "Cov({v}({s}), {v}(t)) = Cov[{v}({s})]·e^({a}ᵀ·(t − {s})), {s} ≤ t, \
+                     entry ({x}, {x})"
+                )),
+                stationary: Some(format!(
+                    "Normal(−{a}⁻¹·{b}, {p}) with {a}·{p} + {p}·{a}ᵀ + {l}·{r}·{l}ᵀ = 0"
+                )),
+                transition: None,
+            }
+        }
         Family::Polynomial => Formulas {
             mean: Some(format!(
                 "first and second moments of ({}) from their linear moment equations",

@@ -109,7 +109,7 @@ pub fn law_of(model: &Model, derivation: &Derivation, state: usize, t: f64) -> O
     if let Some((os, family)) = analysis.one_state(state) {
         let gaussian = matches!(
             family,
-            Family::ArithmeticBrownian | Family::OrnsteinUhlenbeck
+            Family::Deterministic | Family::ArithmeticBrownian | Family::OrnsteinUhlenbeck
         ) || (family == Family::Linear && !os.state_dependent_noise());
         if gaussian {
             let mv = mean_variance(os, family, params, x0, t)?;

@@ -56,6 +56,9 @@ use std::sync::{Arc, OnceLock};
 /// The family a state (or a whole system) belongs to.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
 pub enum Family {
+    /// No shock drives the factor: its path is the solution of an ordinary differential
+    /// equation, with variance 0.
+    Deterministic,
     ArithmeticBrownian,
     GeometricBrownian,
     OrnsteinUhlenbeck,
@@ -72,6 +75,7 @@ impl Family {
     /// The kebab-case name used in every output.
     pub fn as_str(self) -> &'static str {
         match self {
+            Family::Deterministic => "deterministic",
             Family::ArithmeticBrownian => "arithmetic-brownian",
             Family::GeometricBrownian => "geometric-brownian",
             Family::OrnsteinUhlenbeck => "ornstein-uhlenbeck",

@@ -90,10 +90,16 @@ pub(crate) fn mean_variance(
         })
     };
     match family {
+        // No shock: the path is the mean.
+        Family::Deterministic => closed(0.0),
         // Var = α t (Itô isometry with constant integrand).
         Family::ArithmeticBrownian => closed(v.alpha * t),
         // Var = α ∫₀ᵗ e^{2b(t−s)} ds = α φ(2b, t) (Vasicek 1977, eq. 25 with α = σ²).
         Family::OrnsteinUhlenbeck => closed(v.alpha * phi(2.0 * v.b, t)),
+        // The same isometry with a positive slope: the variance grows without bound.
+        Family::Linear if !os.state_dependent_noise() && v.b != 0.0 => {
+            closed(v.alpha * phi(2.0 * v.b, t))
+        }
         // Var = x0² e^{2bt} (e^{γ t} − 1) (Glasserman 2004, §3.2.1).
         Family::GeometricBrownian => {
             closed(x0 * x0 * (2.0 * v.b * t).exp() * (v.gamma * t).exp_m1())
@@ -319,7 +325,7 @@ pub(crate) fn quantile(
     let standard = Normal::new(0.0, 1.0).ok()?;
     let gaussian = matches!(
         family,
-        Family::ArithmeticBrownian | Family::OrnsteinUhlenbeck
+        Family::Deterministic | Family::ArithmeticBrownian | Family::OrnsteinUhlenbeck
     ) || (family == Family::Linear && !os.state_dependent_noise());
     if gaussian {
         let mv = mean_variance(os, family, params, x0, t)?;

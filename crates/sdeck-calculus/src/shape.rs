@@ -305,22 +305,37 @@ pub(crate) fn classify_state(
         } else {
             format!("diffusion {diffusion_text}")
         };
-        if !multiplicative {
+        if !multiplicative && !additive {
+            (
+                Family::Deterministic,
+                format!(
+                    "no shock drives {name}: its path solves d{name}/dt = {drift_text}, \
+                     so its variance is 0{time_note}"
+                ),
+            )
+        } else if !multiplicative {
             if b.is_zero() && constant {
                 (
                     Family::ArithmeticBrownian,
                     format!("drift {drift_text} is constant, {diffusion_text} is constant"),
                 )
-            } else if constant && b_value != 0.0 {
-                let slope = if b_value < 0.0 {
-                    "negative"
-                } else {
-                    "positive"
-                };
+            } else if constant && b_value < 0.0 {
                 (
                     Family::OrnsteinUhlenbeck,
                     format!(
-                        "drift {drift_text} is affine in {name} with {slope} slope {}, \
+                        "drift {drift_text} is affine in {name} with negative slope {}, \
+                         {diffusion_text} does not depend on {name}",
+                        show_poly(&b, names)
+                    ),
+                )
+            } else if constant && b_value > 0.0 {
+                // Mean reversion needs a negative slope; with a positive one the same
+                // Gaussian closed forms hold but the factor runs away from its level.
+                (
+                    Family::Linear,
+                    format!(
+                        "drift {drift_text} is affine in {name} with positive slope {}, so it \
+                         pushes {name} away from its level (not mean-reverting), \
                          {diffusion_text} does not depend on {name}",
                         show_poly(&b, names)
                     ),

@@ -289,7 +289,11 @@ fn one_state_law(
     };
     let mean_reverting_family = matches!(
         family,
-        Family::OrnsteinUhlenbeck | Family::SquareRoot | Family::Linear | Family::Polynomial
+        Family::Deterministic
+            | Family::OrnsteinUhlenbeck
+            | Family::SquareRoot
+            | Family::Linear
+            | Family::Polynomial
     );
     // The half-life needs only a constant slope: a level that moves with t still
     // reverts at the rate |b|.

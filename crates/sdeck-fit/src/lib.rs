@@ -265,7 +265,16 @@ fn plan(problem: &Problem) -> Result<Plan, FitError> {
                         .to_string(),
                 ));
             }
-            Ok(form) => match form.family {
+            Ok(form) => match fitted_family(&form) {
+                Family::Deterministic => {
+                    single_reason = Some((
+                        name,
+                        "no shock drives it, so its path is fixed by its start and its \
+                         parameters: a transition with variance 0 has no likelihood to \
+                         maximise (add a shock, or fix its parameters with --fix)"
+                            .to_string(),
+                    ));
+                }
                 Family::ArithmeticBrownian
                 | Family::OrnsteinUhlenbeck
                 | Family::GeometricBrownian
@@ -287,7 +296,7 @@ fn plan(problem: &Problem) -> Result<Plan, FitError> {
                         .collect();
                     singles.push(Single {
                         column,
-                        family: form.family,
+                        family: fitted_family(&form),
                         form,
                         points,
                         steps,
@@ -770,4 +779,14 @@ pub fn fit(problem: &Problem) -> Result<Fit, FitError> {
         used: plan.used(),
         families,
     })
+}
+
+/// The family whose transition law the likelihood uses: a linear factor with a positive
+/// slope and constant, factor-free noise has the Gaussian transition of the
+/// Ornstein–Uhlenbeck family (the same formulas hold for either sign of the slope).
+fn fitted_family(form: &OneStateForm) -> Family {
+    match form.family {
+        Family::Linear if form.gaussian_with_constant_coefficients() => Family::OrnsteinUhlenbeck,
+        family => family,
+    }
 }

@@ -518,7 +518,8 @@ pub fn plan(model: &Model, derivation: &Derivation) -> Plan {
             matches!(
                 family_of(i),
                 Some(
-                    Family::ArithmeticBrownian
+                    Family::Deterministic
+                        | Family::ArithmeticBrownian
                         | Family::OrnsteinUhlenbeck
                         | Family::Linear
                         | Family::LinearSystem

@@ -1,0 +1,130 @@
+//! Family names that say what the law is: a positive slope is `linear`, not
+//! Ornstein–Uhlenbeck; a factor that no shock drives is `deterministic`.
+
+use sdeck_calculus::{derive, formulas, moments_at, Family};
+use sdeck_semantics::analyze;
+
+fn derived(source: &str) -> (sdeck_semantics::Model, sdeck_calculus::Derivation) {
+    let analysis = analyze(source, "families");
+    assert!(!analysis.has_errors(), "{:#?}", analysis.diagnostics);
+    let derivation = derive(&analysis.model);
+    (analysis.model, derivation)
+}
+
+fn assert_close(what: &str, actual: f64, expected: f64, relative: f64) {
+    assert!(
+        (actual - expected).abs() <= relative * expected.abs(),
+        "{what}: {actual:e} vs {expected:e}"
+    );
+}
+
+#[test]
+fn a_positive_slope_is_linear_with_the_gaussian_closed_forms() {
+    let (model, d) = derived(
+        "
+model runaway
+param k = 0.35 [1/year]
+param level = 1.2%
+param vol = 0.6% [1/sqrt(year)]
+shock W
+factor x = 1.5%
+dx = k * (x - level) dt + vol dW
+",
+    );
+    let law = &d.states[0];
+    assert_eq!(law.family, Family::Linear);
+    assert!(law.reason.contains("positive slope"), "{}", law.reason);
+    assert!(law.half_life.is_none());
+    assert!(law.stationary.is_none());
+    // Vasicek 1977, eqs. 23–25 with κ = −k: mean θ + (x0 − θ)e^{kt}, variance
+    // σ²(e^{2kt} − 1)/(2k), for either sign of the slope.
+    let (k, level, vol, x0, t): (f64, f64, f64, f64, f64) = (0.35, 0.012, 0.006, 0.015, 2.0);
+    let m = moments_at(&model, &d, t);
+    let mean = m.mean[0].expect("mean");
+    let variance = m.variance[0].expect("variance");
+    assert_close("mean", mean, level + (x0 - level) * (k * t).exp(), 1e-13);
+    assert_close(
+        "variance",
+        variance,
+        vol * vol * (2.0 * k * t).exp_m1() / (2.0 * k),
+        1e-13,
+    );
+    let f = formulas(&model, &d, 0);
+    assert!(f.stationary.is_none());
+    assert_eq!(
+        f.variance.as_deref(),
+        Some("Var[x(t)] = vol²·(1 − e^(2·k·t))/(−2·k)")
+    );
+}
+
+#[test]
+fn a_factor_no_shock_drives_is_deterministic() {
+    let (model, d) = derived(
+        "
+model accrual
+unit GBP
+param r = 2.5% [1/year]
+param decay = 0.8 [1/year] > 0
+param floor = 40 [GBP]
+factor B = 1000 [GBP]
+factor f = 120 [GBP]
+dB = r * B dt
+df = decay * (floor - f) dt
+",
+    );
+    for law in &d.states {
+        assert_eq!(law.family, Family::Deterministic, "{}", law.reason);
+        assert!(law.reason.contains("no shock drives"), "{}", law.reason);
+    }
+    let t = 5.0_f64;
+    let m = moments_at(&model, &d, t);
+    assert_close(
+        "B",
+        m.mean[0].expect("mean"),
+        1000.0 * (0.025 * t).exp(),
+        1e-13,
+    );
+    assert_close(
+        "f",
+        m.mean[1].expect("mean"),
+        40.0 + 80.0 * (-0.8 * t).exp(),
+        1e-13,
+    );
+    assert_eq!(m.variance[0], Some(0.0));
+    assert_eq!(m.variance[1], Some(0.0));
+    // Growth has no half-life; decay towards the floor has ln 2/0.8.
+    assert!(d.states[0].half_life.is_none());
+    assert_close(
+        "half-life",
+        d.states[1].half_life.expect("half-life"),
+        std::f64::consts::LN_2 / 0.8,
+        1e-15,
+    );
+    let stationary = d.states[1].stationary.as_ref().expect("a fixed point");
+    assert_eq!(stationary.law, "point mass at floor");
+    assert_close("fixed point", stationary.mean, 40.0, 1e-15);
+    let f = formulas(&model, &d, 0);
+    assert_eq!(f.solution.as_deref(), Some("B(t) = B₀·e^(r·t)"));
+    assert_eq!(f.variance.as_deref(), Some("Var[B(t)] = 0"));
+    assert!(f.transition.is_none());
+}
+
+#[test]
+fn a_deterministic_factor_with_a_moving_level_solves_its_equation() {
+    let (model, d) = derived(
+        "
+model moving
+param k = 2 [1/year]
+factor x = 1%
+dx = k * (ramp(t, 0 [year], 1%, 1 [year], 3%) - x) dt
+",
+    );
+    assert_eq!(d.states[0].family, Family::Deterministic);
+    // x' = k (L(t) − x) with L(t) = 0.01 + 0.02 t on [0, 1] and x(0) = L(0):
+    // x(t) = L(t) − (0.02/k)(1 − e^{−kt}) (integrating factor, solved by hand).
+    let t = 0.5_f64;
+    let m = moments_at(&model, &d, t);
+    let expected = 0.01 + 0.02 * t - 0.02 / 2.0 * (1.0 - (-2.0 * t).exp());
+    assert_close("mean", m.mean[0].expect("mean"), expected, 1e-10);
+    assert_eq!(m.variance[0], Some(0.0));
+}
