@@ -44,6 +44,7 @@ pub mod linear_system;
 pub mod noncentral;
 pub mod ode;
 pub mod one_state;
+mod partial;
 pub mod polynomial;
 mod shape;
 mod system;
@@ -358,6 +359,7 @@ pub fn derive(model: &Model) -> Derivation {
     let analysis = Arc::new(analyse(model));
     let mut derivation = system::derive(model, analysis);
     exponential_affine::classify(model, &mut derivation);
+    partial::explain(model, &mut derivation);
     for (i, law) in derivation.states.iter_mut().enumerate() {
         law.outside_domain = outside_domain(model, law, i);
         if law.outside_domain.is_some() {
@@ -475,6 +477,7 @@ pub fn covariance(
 pub fn moments_at(model: &Model, derivation: &Derivation, t: f64) -> Moments {
     let mut moments = system::moments_at(model, derivation.analysis(), t);
     exponential_affine::fill_moments(model, derivation, &mut moments);
+    partial::fill_means(model, derivation, &mut moments);
     // Figures of a factor outside its family's domain are unknown, not numbers.
     for i in (0..derivation.states.len()).filter(|i| derivation.outside_domain(*i)) {
         for slot in [&mut moments.mean, &mut moments.variance] {

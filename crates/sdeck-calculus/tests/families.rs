@@ -128,3 +128,66 @@ dx = k * (ramp(t, 0 [year], 1%, 1 [year], 3%) - x) dt
     assert_close("mean", m.mean[0].expect("mean"), expected, 1e-10);
     assert_eq!(m.variance[0], Some(0.0));
 }
+
+#[test]
+fn a_general_factor_with_an_affine_drift_has_an_exact_mean_and_no_variance() {
+    // The diffusion g·S·v is not affine in the factors: no family applies to S, but
+    // E[S(t)] = S₀·e^{μt} from m′ = μ·m (Kloeden & Platen 1992, §4.2).
+    let (model, d) = derived(
+        "
+model partial
+param mu = 5% [1/year]
+param k = 1.5 [1/year]
+param theta = 4%
+param xi = 30% [1/sqrt(year)]
+param g = 4 [1/sqrt(year)]
+shock W
+shock B
+factor S = 100
+factor v = 4%
+dv = k * (theta - v) dt + xi * sqrt(v) dB
+dS = mu * S dt + g * S * v dW
+",
+    );
+    let s = 0;
+    assert_eq!(
+        d.states[s].family,
+        Family::General,
+        "{}",
+        d.states[s].reason
+    );
+    assert!(
+        d.states[s].reason.contains("its mean follows from"),
+        "{}",
+        d.states[s].reason
+    );
+    let t = 2.0_f64;
+    let m = moments_at(&model, &d, t);
+    assert_close(
+        "E[S]",
+        m.mean[s].expect("mean"),
+        100.0 * (0.05 * t).exp(),
+        1e-14,
+    );
+    assert_eq!(m.variance[s], None);
+    assert!(m.exact[s]);
+}
+
+#[test]
+fn a_drift_that_is_not_affine_gives_no_mean() {
+    let (model, d) = derived(
+        "
+model logistic
+param r = 0.8 [1/year]
+param s = 20% [1/sqrt(year)]
+shock W
+factor c = 0.3
+dc = r * c * (1 - c) dt + s * c * (1 - c) dW
+",
+    );
+    assert_eq!(d.states[0].family, Family::General);
+    assert!(!d.states[0].reason.contains("its mean follows from"));
+    let m = moments_at(&model, &d, 1.0);
+    assert_eq!(m.mean[0], None);
+    assert!(!m.exact[0]);
+}

@@ -65,7 +65,8 @@ pub fn moments_json(report: &ModelReport) -> Value {
     })
 }
 
-/// Which figures are exact, in words: `all figures`, `none`, or the exact ones named.
+/// Which figures are exact, in words: `all figures`, `none`, or the exact ones named
+/// (with the unknown ones when every known figure is exact).
 fn exactness_text(fig: &crate::data::Figures) -> String {
     let e = fig.exact;
     // (known, exact, name)
@@ -79,12 +80,20 @@ fn exactness_text(fig: &crate::data::Figures) -> String {
         .filter(|(_, exact, _)| *exact)
         .map(|(_, _, name)| *name)
         .collect();
+    let unknown: Vec<&str> = figures
+        .iter()
+        .filter(|(known, _, _)| !*known)
+        .map(|(_, _, name)| *name)
+        .collect();
     if exact.is_empty() {
         "none".to_string()
-    } else if figures.iter().all(|(known, exact, _)| *exact || !*known) {
+    } else if !figures.iter().all(|(known, exact, _)| *exact || !*known) {
+        exact.join(", ")
+    } else if unknown.is_empty() {
         "all figures".to_string()
     } else {
-        exact.join(", ")
+        // A partial result: say what is exact and what is missing, never "all".
+        format!("{} ({} not known)", exact.join(", "), unknown.join(", "))
     }
 }
 
