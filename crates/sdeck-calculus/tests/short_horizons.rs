@@ -67,3 +67,40 @@ fn a_nearly_constant_law_answers_or_says_unknown_but_never_stalls() {
         }
     }
 }
+
+/// A factor with no shock of its own that integrates a geometric one, dY = c·S dt: its
+/// variance near t = 0 is about S₀²σ²c²t³/3, far below the raw second moment (S₀ c t)², so
+/// it is computed about the mean path. The reference is the closed form
+/// Var[Y] = 2S₀²c²/(μ + σ²)·((e^{(2μ+σ²)t} − 1)/(2μ + σ²) − (e^{μt} − 1)/μ) − (S₀c(e^{μt} − 1)/μ)²
+/// (E[Y²] = 2∫₀ᵗ∫₀ᵘ E[S_v S_u] dv du with E[S_v S_u] = S₀² e^{μ(u−v)} e^{(2μ+σ²)v}), the
+/// values from sympy's exact integration evaluated to 20 digits, written here to 17.
+#[test]
+fn an_integrated_geometric_factor_keeps_its_variance_at_tiny_times() {
+    let analysis = sdeck_semantics::analyze(
+        "model integ
+param mu = 5% [1/year]
+param sig = 20% [1/sqrt(year)]
+param c = 1 [1/year]
+shock W
+factor S = 100
+factor Y = 0
+dS = mu*S dt + sig*S dW
+dY = c*S dt
+",
+        "integ",
+    );
+    assert!(!analysis.has_errors(), "{:#?}", analysis.diagnostics);
+    let d = sdeck_calculus::derive(&analysis.model);
+    for (t, expected) in [
+        (1e-6, 1.3333334300000038e-16),
+        (1e-3, 1.3334300038734445e-07),
+        (1.0, 143.39871252238495),
+    ] {
+        let m = sdeck_calculus::moments_at(&analysis.model, &d, t);
+        let variance = m.variance[1].expect("variance of Y");
+        assert!(
+            ((variance - expected) / expected).abs() < 1e-12,
+            "t = {t}: {variance:e} vs {expected:e}"
+        );
+    }
+}
