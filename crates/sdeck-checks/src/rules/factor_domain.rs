@@ -17,32 +17,16 @@ fn square_root_reaches_zero(law: &StateLaw) -> bool {
 
 /// Applications of sqrt, log or a half power to an expression mentioning states.
 fn restricted_calls<'e>(expr: &'e Expr, out: &mut Vec<(&'static str, &'e Expr)>) {
-    match expr {
-        Expr::Call(Function::Sqrt, args) => {
-            args.iter().for_each(|a| out.push(("sqrt", a)));
-            args.iter().for_each(|a| restricted_calls(a, out));
-        }
-        Expr::Call(Function::Log, args) => {
-            args.iter().for_each(|a| out.push(("log", a)));
-            args.iter().for_each(|a| restricted_calls(a, out));
-        }
-        Expr::Call(_, args) => args.iter().for_each(|a| restricted_calls(a, out)),
+    expr.walk(&mut |e| match e {
+        Expr::Call(Function::Sqrt, args) => args.iter().for_each(|a| out.push(("sqrt", a))),
+        Expr::Call(Function::Log, args) => args.iter().for_each(|a| out.push(("log", a))),
         Expr::Pow(base, exponent) => {
-            if let Expr::Const(e) = **exponent {
-                if e.fract() != 0.0 {
-                    out.push(("sqrt", base));
-                }
+            if matches!(**exponent, Expr::Const(e) if e.fract() != 0.0) {
+                out.push(("sqrt", base.as_ref()));
             }
-            restricted_calls(base, out);
-            restricted_calls(exponent, out);
-        }
-        Expr::Neg(a) => restricted_calls(a, out),
-        Expr::Add(a, b) | Expr::Sub(a, b) | Expr::Mul(a, b) | Expr::Div(a, b) => {
-            restricted_calls(a, out);
-            restricted_calls(b, out);
         }
         _ => {}
-    }
+    });
 }
 
 /// `factor-domain`: sqrt/log of a state whose law leaves the domain, declared bounds a
