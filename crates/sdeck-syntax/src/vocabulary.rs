@@ -1,6 +1,7 @@
 //! The words of the language, each listed once: keywords, built-in functions and
 //! built-in names. The grammar, the splitter, reserved names, completion, the semantic
-//! tokens and the docs read these tables; a test compares them with `grammar/sdeck.pest`.
+//! tokens and the docs read these tables; tests compare them with `grammar/sdeck.pest`,
+//! docs/language.md and the editor grammar `editors/vscode/syntaxes/sdeck.tmLanguage.json`.
 
 /// A keyword of the language: never a name.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -232,6 +233,45 @@ mod tests {
         assert_eq!(documented_words("other keywords"), others);
         assert_eq!(documented_words("built-in names"), BUILT_IN_NAMES);
         assert_eq!(documented_words("functions"), FUNCTION_NAMES);
+    }
+
+    /// The alternatives of the first `(a|b|c)` group of the editor grammar's pattern that
+    /// contains `marker`.
+    fn editor_alternatives(marker: &str) -> BTreeSet<String> {
+        let grammar = include_str!("../../../editors/vscode/syntaxes/sdeck.tmLanguage.json");
+        let line = grammar
+            .lines()
+            .find(|l| l.contains("\"match\"") && l.contains(marker))
+            .unwrap_or_else(|| panic!("the editor grammar has a pattern with `{marker}`"));
+        let open = line.find('(').map_or(0, |i| i + 1);
+        let close = line[open..].find(')').map_or(line.len(), |i| open + i);
+        line[open..close].split('|').map(str::to_string).collect()
+    }
+
+    #[test]
+    fn the_editor_grammar_colours_every_word_of_the_tables() {
+        let keywords: BTreeSet<String> = KEYWORDS
+            .iter()
+            .map(|k| k.word.to_string())
+            .filter(|w| w != "inf")
+            .collect();
+        assert_eq!(editor_alternatives("model|clock"), keywords);
+        let callables: BTreeSet<String> = FUNCTION_NAMES
+            .iter()
+            .map(|f| f.to_string())
+            .chain(
+                crate::ast::Figure::ALL
+                    .iter()
+                    .map(|f| f.keyword().to_string()),
+            )
+            .collect();
+        assert_eq!(editor_alternatives("exp|log"), callables);
+        // `inf` is coloured as a constant, beside the built-in names.
+        let constants = editor_alternatives("t|pi");
+        assert!(
+            constants.contains("inf") && constants.contains("pi"),
+            "{constants:?}"
+        );
     }
 
     #[test]
