@@ -107,6 +107,17 @@ pub fn run(args: FmtArgs) -> ExitCode {
             return ExitCode::from(2);
         }
     };
+    if paths.is_empty() && !args.paths.iter().any(|p| p.is_dir()) {
+        let shown: Vec<String> = args
+            .paths
+            .iter()
+            .map(|p| format!("`{}`", p.display()))
+            .collect();
+        eprintln!(
+            "sdeck: nothing formatted: the project file (sdeck.toml) excludes {}",
+            shown.join(", ")
+        );
+    }
     let mut unformatted = 0;
     let mut failed = 0;
     for path in &paths {

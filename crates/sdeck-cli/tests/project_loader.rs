@@ -137,3 +137,30 @@ fn fmt_honours_the_exclusions_and_skips_hidden_folders_as_check_does() {
     }
     assert!(check.stdout.contains("kept.sde"), "{}", check.stdout);
 }
+
+#[test]
+fn a_named_file_the_project_excludes_is_left_alone_and_said_by_fmt_as_by_check() {
+    let dir = tempfile::tempdir().unwrap_or_else(|e| panic!("{e}"));
+    write(
+        &dir.path().join("sdeck.toml"),
+        "[files]\nexclude = [\"skip.sde\"]\n",
+    );
+    write(&dir.path().join("skip.sde"), UNFORMATTED);
+    let check = run_in(dir.path(), &["check", "skip.sde"]);
+    let fmt = run_in(dir.path(), &["fmt", "skip.sde"]);
+    assert_eq!(
+        (check.code, fmt.code),
+        (Some(0), Some(0)),
+        "{}{}",
+        check.stderr,
+        fmt.stderr
+    );
+    assert!(
+        check.stderr.contains("excludes `skip.sde`"),
+        "{}",
+        check.stderr
+    );
+    assert!(fmt.stderr.contains("excludes `skip.sde`"), "{}", fmt.stderr);
+    let kept = std::fs::read_to_string(dir.path().join("skip.sde")).unwrap_or_default();
+    assert_eq!(kept, UNFORMATTED);
+}
