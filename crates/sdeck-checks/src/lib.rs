@@ -19,6 +19,7 @@
 pub mod rules;
 pub mod suppress;
 
+pub use rules::implausible_value::Plausibility;
 use sdeck_calculus::Derivation;
 use sdeck_diagnostics::{Diagnostic, RuleId, Severity};
 use sdeck_semantics::Analysis;
@@ -31,10 +32,12 @@ pub enum RuleLevel {
     On(Severity),
 }
 
-/// Per-rule levels that override the default severities.
+/// Per-rule levels that override the default severities, and the thresholds of
+/// `implausible-value`.
 #[derive(Clone, Debug, Default, PartialEq)]
 pub struct RuleSettings {
     pub levels: HashMap<RuleId, RuleLevel>,
+    pub plausibility: Plausibility,
 }
 
 impl RuleSettings {
@@ -71,11 +74,10 @@ pub fn check(source: &str, name: &str, settings: &RuleSettings) -> FileCheck {
     let analysis = sdeck_semantics::analyze(source, name);
     let derivation = sdeck_calculus::derive(&analysis.model);
     let mut diagnostics = analysis.diagnostics.clone();
-    diagnostics.extend(rules::run_all(&rules::Context::new(
-        source,
-        &analysis,
-        &derivation,
-    )));
+    diagnostics.extend(rules::run_all(
+        &rules::Context::new(source, &analysis, &derivation)
+            .with_plausibility(settings.plausibility),
+    ));
     let diagnostics = finish(source, &analysis.file, diagnostics, settings);
     FileCheck {
         analysis,

@@ -32,7 +32,7 @@
 //! ```
 
 use globset::{Glob, GlobBuilder, GlobSet, GlobSetBuilder};
-use sdeck_checks::{RuleLevel, RuleSettings};
+use sdeck_checks::{Plausibility, RuleLevel, RuleSettings};
 use sdeck_diagnostics::{rules, Severity};
 use std::collections::HashMap;
 use std::fmt;
@@ -113,7 +113,12 @@ impl Project {
         let mut exclude = GlobSet::empty();
         for (key, value) in &table {
             match key.as_str() {
-                "rules" => settings = parse_rules(value).map_err(fail)?,
+                "rules" => {
+                    let plausibility = settings.plausibility;
+                    settings = parse_rules(value).map_err(fail)?;
+                    settings.plausibility = plausibility;
+                }
+                "plausibility" => settings.plausibility = parse_plausibility(value).map_err(fail)?,
                 "files" => {
                     let files = value
                         .as_table()
@@ -147,7 +152,8 @@ impl Project {
                 }
                 other => {
                     return Err(fail(format!(
-                        "unknown key `{other}`; a project file has the tables [rules], [files] and [check]"
+                        "unknown key `{other}`; a project file has the tables [rules], [files], [check] \
+                         and [plausibility]"
                     )))
                 }
             }
@@ -391,4 +397,76 @@ impl ProjectCache {
         self.by_folder.insert(folder.to_path_buf(), found.clone());
         found
     }
+}
+
+/// `[plausibility]`: the thresholds of `implausible-value`. Volatilities and levels are
+/// written `"200%"` or as a fraction (`2.0`); half-lives as `"1 day"`, `"100 year"`.
+fn parse_plausibility(value: &toml::Value) -> Result<Plausibility, String> {
+    let table = value
+        .as_table()
+        .ok_or_else(|| "`plausibility` must be a table: write `[plausibility]`".to_string())?;
+    let mut limits = Plausibility::default();
+    for (key, value) in table {
+        let slot = match key.as_str() {
+            "max-volatility" => &mut limits.max_volatility,
+            "max-rate-level" => &mut limits.max_rate_level,
+            "min-half-life" => &mut limits.min_half_life,
+            "max-half-life" => &mut limits.max_half_life,
+            other => {
+                return Err(format!(
+                    "unknown key `plausibility.{other}`; the keys of [plausibility] are \
+                     `max-volatility`, `max-rate-level`, `min-half-life` and `max-half-life`"
+                ))
+            }
+        };
+        let parsed = if key.ends_with("half-life") {
+            parse_duration(value)
+        } else {
+            parse_fraction(value)
+        };
+        *slot = parsed.map_err(|why| format!("`plausibility.{key}`: {why}"))?;
+    }
+    if limits.min_half_life > limits.max_half_life {
+        return Err("`plausibility.min-half-life` is longer than `max-half-life`".to_string());
+    }
+    Ok(limits)
+}
+
+/// `"200%"`, `"150bp"` or a plain positive number (a fraction).
+fn parse_fraction(value: &toml::Value) -> Result<f64, String> {
+    let number = match value {
+        toml::Value::Float(x) => Some(*x),
+        toml::Value::Integer(n) => Some(*n as f64),
+        toml::Value::String(text) => {
+            let text = text.trim();
+            if let Some(percent) = text.strip_suffix('%') {
+                percent.trim().parse::<f64>().ok().map(|x| x / 100.0)
+            } else if let Some(bp) = text.strip_suffix("bp") {
+                bp.trim().parse::<f64>().ok().map(|x| x / 10_000.0)
+            } else {
+                text.parse::<f64>().ok()
+            }
+        }
+        _ => None,
+    };
+    number.filter(|x| x.is_finite() && *x > 0.0).ok_or_else(|| {
+        "write a positive percentage such as \"200%\", or a fraction such as 2.0".to_string()
+    })
+}
+
+/// `"1 day"`, `"100 year"`: a positive number and a time unit, in years.
+fn parse_duration(value: &toml::Value) -> Result<f64, String> {
+    let units = sdeck_units::time_units::TIME_UNITS.join(", ");
+    let hint = || format!("write a positive number and a time unit ({units}), such as \"1 day\"");
+    let text = value.as_str().ok_or_else(hint)?;
+    let mut words = text.split_whitespace();
+    let (Some(number), Some(unit), None) = (words.next(), words.next(), words.next()) else {
+        return Err(hint());
+    };
+    let number: f64 = number.parse().map_err(|_| hint())?;
+    let years = sdeck_units::time_units::time_unit_years(unit).ok_or_else(hint)?;
+    let duration = number * years;
+    (duration.is_finite() && duration > 0.0)
+        .then_some(duration)
+        .ok_or_else(hint)
 }

@@ -164,3 +164,40 @@ fn the_cache_agrees_with_find_project() {
         assert_eq!(cached.settings, direct.settings, "{rel}");
     }
 }
+
+#[test]
+fn plausibility_thresholds_are_read_with_their_units() {
+    let project = sdeck_project::Project::parse(
+        "[plausibility]\nmax-volatility = \"300%\"\nmin-half-life = \"1 hour\"\nmax-half-life = \"200 year\"\nmax-rate-level = 0.8\n",
+        "sdeck.toml".into(),
+        ".".into(),
+    )
+    .expect("a valid project");
+    let p = project.settings.plausibility;
+    assert!((p.max_volatility - 3.0).abs() < 1e-15);
+    assert!((p.min_half_life - 1.0 / 8760.0).abs() < 1e-15);
+    assert!((p.max_half_life - 200.0).abs() < 1e-12);
+    assert!((p.max_rate_level - 0.8).abs() < 1e-15);
+}
+
+#[test]
+fn a_bad_plausibility_threshold_says_how_to_write_it() {
+    for (text, words) in [
+        (
+            "[plausibility]\nmax-volatility = \"lots\"\n",
+            "positive percentage",
+        ),
+        (
+            "[plausibility]\nmin-half-life = \"3 fortnights\"\n",
+            "time unit",
+        ),
+        (
+            "[plausibility]\nmax-vol = 2\n",
+            "unknown key `plausibility.max-vol`",
+        ),
+    ] {
+        let error =
+            sdeck_project::Project::parse(text, "sdeck.toml".into(), ".".into()).expect_err(text);
+        assert!(error.message.contains(words), "{}", error.message);
+    }
+}

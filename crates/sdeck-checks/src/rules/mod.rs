@@ -9,6 +9,7 @@ mod discount_measure;
 mod expectation_failed;
 mod factor_domain;
 mod feller_condition;
+pub mod implausible_value;
 mod moment_explosion;
 mod no_factor;
 mod not_mean_reverting;
@@ -27,6 +28,8 @@ pub struct Context<'a> {
     pub derivation: &'a Derivation,
     /// Whether the analysis found an error: the model may be incomplete.
     pub broken: bool,
+    /// The thresholds of `implausible-value` (the project's, or the defaults).
+    pub plausibility: implausible_value::Plausibility,
 }
 
 impl<'a> Context<'a> {
@@ -37,7 +40,14 @@ impl<'a> Context<'a> {
             model: &analysis.model,
             derivation,
             broken: analysis.has_errors(),
+            plausibility: implausible_value::Plausibility::default(),
         }
+    }
+
+    /// The same context with the project's thresholds for `implausible-value`.
+    pub fn with_plausibility(mut self, plausibility: implausible_value::Plausibility) -> Self {
+        self.plausibility = plausibility;
+        self
     }
 }
 
@@ -50,6 +60,7 @@ static REGISTRY: &[(RuleId, Runner)] = &[
     (RuleId::FellerCondition, feller_condition::run),
     (RuleId::FactorDomain, factor_domain::run),
     (RuleId::NotMeanReverting, not_mean_reverting::run),
+    (RuleId::ImplausibleValue, implausible_value::run),
     (RuleId::MomentExplosion, moment_explosion::run),
     (RuleId::DiscountMeasure, discount_measure::run),
     (RuleId::CorrelationNotPsd, correlation_not_psd::run),

@@ -43,6 +43,7 @@ catalogue! {
     FellerCondition => feller_condition::FELLER_CONDITION,
     FactorDomain => factor_domain::FACTOR_DOMAIN,
     NotMeanReverting => not_mean_reverting::NOT_MEAN_REVERTING,
+    ImplausibleValue => implausible_value::IMPLAUSIBLE_VALUE,
     MomentExplosion => moment_explosion::MOMENT_EXPLOSION,
     DiscountMeasure => discount_measure::DISCOUNT_MEASURE,
     Unused => unused::UNUSED,
