@@ -6,6 +6,34 @@ use crate::affine::{AffineSet, Rate, TransformError, TransformMethod};
 use num_complex::Complex64;
 use sdeck_semantics::{Expr, Model};
 
+/// The maturities of a curve when none are asked for (`sdeck curve`, the review
+/// document), as (amount, time unit): 1, 3 and 6 months, 1, 2, 3, 5, 7, 10, 20 and 30
+/// years.
+pub const DEFAULT_MATURITIES: [(f64, &str); 11] = [
+    (1.0, "month"),
+    (3.0, "month"),
+    (6.0, "month"),
+    (1.0, "year"),
+    (2.0, "year"),
+    (3.0, "year"),
+    (5.0, "year"),
+    (7.0, "year"),
+    (10.0, "year"),
+    (20.0, "year"),
+    (30.0, "year"),
+];
+
+/// [`DEFAULT_MATURITIES`] in clock units, for a clock of `clock_years` years: amount ×
+/// unit length in years / clock length in years, as a maturity written `6 month` reads.
+pub fn default_maturities(clock_years: f64) -> Vec<f64> {
+    DEFAULT_MATURITIES
+        .iter()
+        .filter_map(|(amount, unit)| {
+            sdeck_units::time_unit_years(unit).map(|years| amount * years / clock_years)
+        })
+        .collect()
+}
+
 /// One maturity of the curve.
 #[derive(Clone, Debug, PartialEq)]
 pub struct CurvePoint {
@@ -139,6 +167,20 @@ fn long_yield(set: &AffineSet, rate: &Rate, years: f64) -> Option<f64> {
 
 #[cfg(test)]
 mod tests {
+
+    #[test]
+    fn default_maturities_read_as_written_in_any_clock() {
+        let years = default_maturities(1.0);
+        assert_eq!(years.len(), DEFAULT_MATURITIES.len());
+        assert_eq!(years.first(), Some(&(1.0 / 12.0)));
+        assert_eq!(years.last(), Some(&30.0));
+        // On a monthly clock a month is 1 and a year 12.
+        let months = default_maturities(1.0 / 12.0);
+        assert!((months[0] - 1.0).abs() < 1e-12);
+        assert!((months[3] - 12.0).abs() < 1e-12);
+        assert!(years.windows(2).all(|w| w[0] < w[1]));
+    }
+
     use super::*;
 
     #[test]

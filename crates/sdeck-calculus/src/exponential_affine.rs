@@ -77,29 +77,47 @@ pub(crate) fn formulas(model: &Model, state: usize) -> Formulas {
 
 /// Mean and variance of one exponential-affine factor at `t`.
 pub(crate) fn state_moments(model: &Model, state: usize, t: f64) -> StateMoments {
+    state_figures(model, state, t).0
+}
+
+/// Mean and variance of one exponential-affine factor at `t`, and the time (at most `t`)
+/// from which its variance is infinite, when it is.
+pub(crate) fn state_figures(model: &Model, state: usize, t: f64) -> (StateMoments, Option<f64>) {
     let mut out = StateMoments {
         mean: None,
         variance: None,
         method: Method::None,
     };
     if !(t.is_finite() && t >= 0.0) {
-        return out;
+        return (out, None);
     }
     let Ok(set) = AffineSet::from_model(model) else {
-        return out;
+        return (out, None);
     };
     let first = power_moment(&set, state, 1.0, t);
     let second = power_moment(&set, state, 2.0, t);
     if let Ok(mean) = first {
         out.mean = Some(mean).filter(|m| m.is_finite());
-        if let Ok(square) = second {
+        if let Ok(square) = &second {
             out.variance = Some((square - mean * mean).max(0.0)).filter(|v| v.is_finite());
         }
     }
     if out.mean.is_some() {
         out.method = Method::ClosedForm;
     }
-    out
+    let infinite_from =
+        matches!(second, Err(TransformError::Explodes)).then(|| explosion_from(&set, state, t));
+    (out, infinite_from)
+}
+
+/// The first time, at most `t`, from which E[S²] of log factor `state` is infinite.
+fn explosion_from(set: &AffineSet, state: usize, t: f64) -> f64 {
+    let mut u = vec![0.0; set.dimension()];
+    if let Some(entry) = u.get_mut(state) {
+        *entry = 2.0;
+    }
+    set.explosion_time(&u, t.max(f64::MIN_POSITIVE))
+        .unwrap_or(t)
 }
 
 /// Fills the mean and variance of exponential-affine factors, and the time from which a
@@ -139,14 +157,7 @@ pub(crate) fn fill_moments(model: &Model, derivation: &Derivation, moments: &mut
             }
             (_, Err(TransformError::Explodes)) => {
                 if let Some(slot) = moments.variance_infinite_from.get_mut(i) {
-                    let mut u = vec![0.0; set.dimension()];
-                    if let Some(entry) = u.get_mut(i) {
-                        *entry = 2.0;
-                    }
-                    *slot = Some(
-                        set.explosion_time(&u, t.max(f64::MIN_POSITIVE))
-                            .unwrap_or(t),
-                    );
+                    *slot = Some(explosion_from(&set, i, t));
                 }
             }
             _ => {}

@@ -36,6 +36,12 @@ impl LawKind {
             LawKind::Fourier => "fourier",
         }
     }
+
+    /// Whether the law may put mass on both sides of zero, so a factor may change sign:
+    /// a normal law, or one known through its transform.
+    pub fn on_whole_line(self) -> bool {
+        matches!(self, LawKind::Normal | LawKind::Fourier)
+    }
 }
 
 #[derive(Clone, Debug)]

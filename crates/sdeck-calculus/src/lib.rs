@@ -456,6 +456,44 @@ pub fn state_moments(model: &Model, derivation: &Derivation, state: usize, t: f6
     system::state_moments(model, derivation.analysis(), state, t)
 }
 
+/// The figures of one state at one time, as [`moments_at`] gives them for that state.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct StateFigures {
+    pub mean: Option<f64>,
+    pub variance: Option<f64>,
+    /// Closed form or exact moment equations (not Monte Carlo).
+    pub exact: bool,
+    /// The time (clock units, at most the time asked) from which the variance is
+    /// infinite, when it is (moment explosion of an exponential-affine factor).
+    pub variance_infinite_from: Option<f64>,
+}
+
+/// What [`moments_at`] says of state `state` at time `t`, at the cost of that state alone
+/// (a closed form for a decoupled state, whatever the size of the model).
+pub fn state_figures(model: &Model, derivation: &Derivation, state: usize, t: f64) -> StateFigures {
+    let exponential = derivation
+        .states
+        .get(state)
+        .is_some_and(|law| law.family == Family::ExponentialAffine);
+    let (moments, variance_infinite_from) = if exponential {
+        let (moments, infinite_from) = exponential_affine::state_figures(model, state, t);
+        // Outside its domain the moments are unknown; the explosion time stays, as in
+        // `moments_at`.
+        match derivation.outside_domain(state) {
+            true => (state_moments(model, derivation, state, t), infinite_from),
+            false => (moments, infinite_from),
+        }
+    } else {
+        (state_moments(model, derivation, state, t), None)
+    };
+    StateFigures {
+        mean: moments.mean,
+        variance: moments.variance,
+        exact: moments.method != Method::None,
+        variance_infinite_from,
+    }
+}
+
 /// Cov(X_i(t), X_j(t)), where known; the variance when `i == j`. Two decoupled states
 /// cost one closed form, whatever the size of the model.
 pub fn covariance(

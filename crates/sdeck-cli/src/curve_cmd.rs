@@ -17,10 +17,6 @@ pub enum Format {
     Svg,
 }
 
-/// Maturities reported when none are asked for.
-pub const DEFAULT_MATURITIES: &str =
-    "1 month,3 month,6 month,1 year,2 year,3 year,5 year,7 year,10 year,20 year,30 year";
-
 #[derive(Args)]
 pub struct CurveArgs {
     /// The model file; it needs a `discount` line.
@@ -67,8 +63,11 @@ pub fn run(args: CurveArgs) -> ExitCode {
         );
         return ExitCode::from(2);
     };
-    let text = args.maturities.as_deref().unwrap_or(DEFAULT_MATURITIES);
-    let maturities = match parse_maturities(text, model) {
+    let asked = match args.maturities.as_deref() {
+        Some(text) => parse_maturities(text, model),
+        None => Ok(sdeck_calculus::curve::default_maturities(model.clock.years)),
+    };
+    let maturities = match asked {
         Ok(m) => m,
         Err(message) => {
             eprintln!("sdeck: {message}");

@@ -217,6 +217,7 @@ pub fn run(args: MomentsArgs) -> ExitCode {
     let levels = Levels {
         quantiles: probabilities,
         below,
+        ..Levels::default()
     };
     let report = ModelReport::build_with(model, &result.derivation, &source, t, &levels);
     let output = match args.format {

@@ -4,7 +4,8 @@
 
 use crate::charts::escape;
 use sdeck_calculus::curve::Curve;
-use sdeck_semantics::{fmt_num, Model};
+use sdeck_semantics::Model;
+use sdeck_units::number::plain;
 use std::fmt::Write as _;
 
 /// A line chart of yields and forwards (per cent per year) against maturity in years.
@@ -74,7 +75,7 @@ pub fn yield_curve_svg(model: &Model, c: &Curve) -> String {
             r#"<text x="{:.1}" y="{:.1}" text-anchor="middle">{}</text>"#,
             px(x),
             y1 + 18.0,
-            fmt_num((x * 100.0).round() / 100.0)
+            plain((x * 100.0).round() / 100.0)
         );
     }
     let _ = writeln!(

@@ -1,7 +1,10 @@
 //! The report of one model as data: built once from the analysis, rendered by every face.
 
 use sdeck_calculus::laws::{law_of, LawKind};
-use sdeck_calculus::{expectation_value, moments_at, Derivation, Family, Formulas, Method};
+use sdeck_calculus::{
+    expectation_value, moments_at, state_figures, Derivation, Family, Formulas, Method, Moments,
+    StateFigures,
+};
 use sdeck_semantics::{Expectation, Interval, Model};
 
 /// The probabilities at which quantiles are reported.
@@ -30,6 +33,9 @@ pub struct Levels {
     pub quantiles: Vec<f64>,
     /// `(factor, level)` pairs.
     pub below: Vec<(usize, f64)>,
+    /// Whether the quantiles of a law known only through its transform are asked too:
+    /// each is a numerical inversion, too slow for a face that answers every keystroke.
+    pub quantiles_by_inversion: bool,
 }
 
 impl Default for Levels {
@@ -37,6 +43,7 @@ impl Default for Levels {
         Levels {
             quantiles: QUANTILE_LEVELS.to_vec(),
             below: Vec::new(),
+            quantiles_by_inversion: true,
         }
     }
 }
@@ -50,9 +57,9 @@ pub struct Figures {
     /// The time from which the variance is infinite, when it explodes.
     pub variance_infinite_from: Option<f64>,
     pub sd: Option<f64>,
-    /// The name of the law at `at` when it is known (`normal`, `lognormal`,
-    /// `noncentral-chi-square`, `fourier`).
-    pub law: Option<&'static str>,
+    /// The law at `at` when it is known (its name, `LawKind::as_str`, is what the faces
+    /// print: `normal`, `lognormal`, `noncentral-chi-square`, `fourier`).
+    pub law: Option<LawKind>,
     /// At the asked probabilities ([`QUANTILE_LEVELS`] by default).
     pub quantiles: Vec<Quantile>,
     /// At the asked levels of this factor.
@@ -194,62 +201,99 @@ pub fn figures_with(
 ) -> Vec<Figures> {
     let moments = moments_at(model, derivation, t);
     (0..model.factors.len())
-        .map(|i| {
-            let mean = moments.mean.get(i).copied().flatten();
-            let variance = moments.variance.get(i).copied().flatten();
-            let start = model.factors.get(i).map_or(0.0, |s| s.initial);
-            let law = law_of(model, derivation, i, t);
-            let quantiles: Vec<Quantile> = levels
-                .quantiles
-                .iter()
-                .map(|&p| Quantile {
-                    probability: p,
-                    value: law
-                        .as_ref()
-                        .and_then(|l| l.quantile(p))
-                        .filter(|v| v.is_finite()),
-                })
-                .collect();
-            let below: Vec<Below> = levels
-                .below
-                .iter()
-                .filter(|(k, _)| *k == i)
-                .map(|&(_, level)| Below {
-                    level,
-                    probability: law.as_ref().and_then(|l| l.cdf(level)),
-                })
-                .collect();
-            // Only a law on the whole line lets the sign change (normal, or known through
-            // its transform and putting mass below zero).
-            let sign_change = law.as_ref().and_then(|law| {
-                let whole_line = matches!(law.kind(), LawKind::Normal | LawKind::Fourier);
-                if !(whole_line && t > 0.0 && start != 0.0) {
-                    return None;
-                }
-                let below = law.cdf(0.0)?;
-                let p = if start > 0.0 { below } else { 1.0 - below };
-                (law.kind() == LawKind::Normal || p > 0.0).then_some(p)
-            });
-            let exact_moments = moments.exact.get(i).copied().unwrap_or(false);
-            let exact = Exactness {
-                mean: exact_moments && mean.is_some(),
-                variance: exact_moments && variance.is_some(),
-                law: exact_moments && law.as_ref().is_some_and(|l| l.kind() != LawKind::Fourier),
-            };
-            Figures {
-                exact,
-                at: t,
-                mean,
-                variance,
-                variance_infinite_from: moments.variance_infinite_from.get(i).copied().flatten(),
-                sd: variance.filter(|v| *v >= 0.0).map(f64::sqrt),
-                law: law.as_ref().map(|l| l.kind().as_str()),
-                quantiles,
-                below,
-                sign_change,
-            }
-        })
+        .map(|i| figures_of(model, derivation, i, t, levels, column(&moments, i)))
         .collect()
+}
+
+/// The figures of factor `i` alone at time `t`, with the quantiles and levels asked: the
+/// cost of that factor, whatever the size of the model.
+pub fn factor_figures(
+    model: &Model,
+    derivation: &Derivation,
+    i: usize,
+    t: f64,
+    levels: &Levels,
+) -> Figures {
+    let state = state_figures(model, derivation, i, t);
+    figures_of(model, derivation, i, t, levels, state)
+}
+
+/// Factor `i`'s part of the figures of the whole model.
+fn column(moments: &Moments, i: usize) -> StateFigures {
+    StateFigures {
+        mean: moments.mean.get(i).copied().flatten(),
+        variance: moments.variance.get(i).copied().flatten(),
+        exact: moments.exact.get(i).copied().unwrap_or(false),
+        variance_infinite_from: moments.variance_infinite_from.get(i).copied().flatten(),
+    }
+}
+
+/// The figures of factor `i` at time `t` from its mean and variance.
+fn figures_of(
+    model: &Model,
+    derivation: &Derivation,
+    i: usize,
+    t: f64,
+    levels: &Levels,
+    state: StateFigures,
+) -> Figures {
+    let StateFigures {
+        mean,
+        variance,
+        exact: exact_moments,
+        variance_infinite_from,
+    } = state;
+    let start = model.factors.get(i).map_or(0.0, |s| s.initial);
+    let law = law_of(model, derivation, i, t);
+    let quantile_law = law
+        .as_ref()
+        .filter(|l| levels.quantiles_by_inversion || l.kind() != LawKind::Fourier);
+    let quantiles: Vec<Quantile> = levels
+        .quantiles
+        .iter()
+        .map(|&p| Quantile {
+            probability: p,
+            value: quantile_law
+                .and_then(|l| l.quantile(p))
+                .filter(|v| v.is_finite()),
+        })
+        .collect();
+    let below: Vec<Below> = levels
+        .below
+        .iter()
+        .filter(|(k, _)| *k == i)
+        .map(|&(_, level)| Below {
+            level,
+            probability: law.as_ref().and_then(|l| l.cdf(level)),
+        })
+        .collect();
+    // Only a law on the whole line lets the sign change (normal, or known through
+    // its transform and putting mass below zero).
+    let sign_change = law.as_ref().and_then(|law| {
+        if !(law.kind().on_whole_line() && t > 0.0 && start != 0.0) {
+            return None;
+        }
+        let below = law.cdf(0.0)?;
+        let p = if start > 0.0 { below } else { 1.0 - below };
+        (law.kind() == LawKind::Normal || p > 0.0).then_some(p)
+    });
+    let exact = Exactness {
+        mean: exact_moments && mean.is_some(),
+        variance: exact_moments && variance.is_some(),
+        law: exact_moments && law.as_ref().is_some_and(|l| l.kind() != LawKind::Fourier),
+    };
+    Figures {
+        exact,
+        at: t,
+        mean,
+        variance,
+        variance_infinite_from,
+        sd: variance.filter(|v| *v >= 0.0).map(f64::sqrt),
+        law: law.as_ref().map(|l| l.kind()),
+        quantiles,
+        below,
+        sign_change,
+    }
 }
 
 /// The times of the report's grid: 0, a quarter, half, three quarters of `end`, `end`.
@@ -334,35 +378,12 @@ impl ModelReport {
         at: f64,
         levels: &Levels,
     ) -> ModelReport {
-        let figures = figures_with(model, derivation, at, levels);
         let moments = moments_at(model, derivation, at);
-        let factors = model
-            .factors
-            .iter()
-            .zip(figures)
-            .enumerate()
-            .filter_map(|(i, (state, figures))| {
-                let law = derivation.states.get(i)?;
-                Some(FactorReport {
-                    name: state.name.clone(),
-                    unit: state.unit_text.clone(),
-                    description: state.description.clone(),
-                    initial: state.initial,
-                    family: law.family,
-                    reason: law.reason.clone(),
-                    method: law.method,
-                    formulas: sdeck_calculus::formulas(model, derivation, i),
-                    exact: moments.exact.get(i).copied().unwrap_or(false),
-                    outside_domain: law.outside_domain.clone(),
-                    half_life: law.half_life,
-                    stationary: law.stationary.as_ref().map(|s| StationaryLaw {
-                        law: s.law.clone(),
-                        mean: s.mean,
-                        variance: s.variance,
-                        sd: s.variance.max(0.0).sqrt(),
-                    }),
-                    figures,
-                })
+        let factors = (0..model.factors.len())
+            .filter_map(|i| {
+                let state = column(&moments, i);
+                let figures = figures_of(model, derivation, i, at, levels, state);
+                FactorReport::from_figures(model, derivation, i, state.exact, figures)
             })
             .collect();
         let covariance = moments.covariance.clone();
@@ -417,5 +438,54 @@ impl ModelReport {
     /// The factor called `name`.
     pub fn factor(&self, name: &str) -> Option<&FactorReport> {
         self.factors.iter().find(|f| f.name == name)
+    }
+}
+
+impl FactorReport {
+    /// The report of factor `i` alone at time `at` (clock units), with the quantiles and
+    /// levels asked: what [`ModelReport::build_with`] says of it, at the cost of that
+    /// factor (a hover on one factor of a large model derives that factor only).
+    /// `None` when the model has no factor `i`.
+    pub fn build(
+        model: &Model,
+        derivation: &Derivation,
+        i: usize,
+        at: f64,
+        levels: &Levels,
+    ) -> Option<FactorReport> {
+        let state = state_figures(model, derivation, i, at);
+        let figures = figures_of(model, derivation, i, at, levels, state);
+        Self::from_figures(model, derivation, i, state.exact, figures)
+    }
+
+    fn from_figures(
+        model: &Model,
+        derivation: &Derivation,
+        i: usize,
+        exact: bool,
+        figures: Figures,
+    ) -> Option<FactorReport> {
+        let state = model.factors.get(i)?;
+        let law = derivation.states.get(i)?;
+        Some(FactorReport {
+            name: state.name.clone(),
+            unit: state.unit_text.clone(),
+            description: state.description.clone(),
+            initial: state.initial,
+            family: law.family,
+            reason: law.reason.clone(),
+            method: law.method,
+            formulas: sdeck_calculus::formulas(model, derivation, i),
+            exact,
+            outside_domain: law.outside_domain.clone(),
+            half_life: law.half_life,
+            stationary: law.stationary.as_ref().map(|s| StationaryLaw {
+                law: s.law.clone(),
+                mean: s.mean,
+                variance: s.variance,
+                sd: s.variance.max(0.0).sqrt(),
+            }),
+            figures,
+        })
     }
 }

@@ -8,7 +8,7 @@ use crate::mathml::math;
 use crate::review::{fan_charts, CrossCheck, Review};
 use crate::{formula_lines, DocumentInfo, CAUTION};
 use sdeck_diagnostics::Severity;
-use sdeck_units::number::{percent, plain, significant};
+use sdeck_units::number::{percent_or_unknown, plain, significant};
 use std::fmt::Write as _;
 
 const STYLE: &str = r#"
@@ -206,7 +206,7 @@ fn factors(s: &mut String, r: &ModelReport, grid: &[Vec<Figures>]) {
         grid_table(s, r, i, grid);
         s.push_str("<ul>");
         if let Some(law) = f.figures.law {
-            let _ = write!(s, "<li>law at the horizon: {law}</li>");
+            let _ = write!(s, "<li>law at the horizon: {}</li>", law.as_str());
         }
         if let Some(from) = f.figures.variance_infinite_from {
             let _ = write!(
@@ -305,13 +305,13 @@ fn yield_curve(s: &mut String, review: &Review) {
                     r#"<tr><td>{}</td><td data-figure="price">{}</td><td data-figure="yield">{}</td><td data-figure="forward">{}</td></tr>"#,
                     plain(p.maturity * c.years_per_clock),
                     significant(p.price, 8),
-                    rate_percent(p.yield_rate),
-                    rate_percent(p.forward),
+                    percent_or_unknown(p.yield_rate, 4),
+                    percent_or_unknown(p.forward, 4),
                 );
             }
             s.push_str("</tbody></table>");
             if let Some(y) = c.curve.long_yield {
-                let _ = write!(s, "<p>Long yield: {}</p>", rate_percent(y));
+                let _ = write!(s, "<p>Long yield: {}</p>", percent_or_unknown(y, 4));
             }
         }
     }
@@ -459,13 +459,4 @@ pub fn html(reviews: &[Review], info: &DocumentInfo) -> String {
     }
     s.push_str("</body></html>\n");
     s
-}
-
-/// A rate as a percentage with four significant digits, or "not known".
-fn rate_percent(x: f64) -> String {
-    if x.is_finite() {
-        percent(x, 4)
-    } else {
-        "not known".to_string()
-    }
 }

@@ -33,8 +33,8 @@ pub mod moments;
 pub mod review;
 
 pub use data::{
-    figures_at, figures_with, time_grid, Below, ExpectationRow, FactorReport, Figures, Levels,
-    ModelReport, ParamRow, Quantile, StationaryLaw, QUANTILE_LEVELS,
+    factor_figures, figures_at, figures_with, time_grid, Below, ExpectationRow, FactorReport,
+    Figures, Levels, ModelReport, ParamRow, Quantile, StationaryLaw, QUANTILE_LEVELS,
 };
 
 use sdeck_calculus::Formulas;

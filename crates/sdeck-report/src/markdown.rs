@@ -4,7 +4,7 @@
 use crate::data::{ModelReport, QUANTILE_LEVELS};
 use crate::review::Review;
 use crate::{formula_lines, DocumentInfo, CAUTION};
-use sdeck_units::number::{or_unknown, percent, plain, significant};
+use sdeck_units::number::{or_unknown, percent_or_unknown, plain, significant};
 use std::fmt::Write as _;
 
 /// Escapes the characters that would break a table cell or start markup.
@@ -106,7 +106,7 @@ fn model(s: &mut String, review: &Review, r: &ModelReport) {
         let head_refs: Vec<&str> = head.iter().map(String::as_str).collect();
         table(s, &head_refs, &rows);
         if let Some(law) = f.figures.law {
-            let _ = writeln!(s, "- law at the horizon: {law}");
+            let _ = writeln!(s, "- law at the horizon: {}", law.as_str());
         }
         if let Some(from) = f.figures.variance_infinite_from {
             let _ = writeln!(
@@ -230,8 +230,8 @@ fn model(s: &mut String, review: &Review, r: &ModelReport) {
                         vec![
                             plain(p.maturity * c.years_per_clock),
                             significant(p.price, 8),
-                            rate_percent(p.yield_rate),
-                            rate_percent(p.forward),
+                            percent_or_unknown(p.yield_rate, 4),
+                            percent_or_unknown(p.forward, 4),
                         ]
                     })
                     .collect();
@@ -241,7 +241,7 @@ fn model(s: &mut String, review: &Review, r: &ModelReport) {
                     &rows,
                 );
                 if let Some(y) = c.curve.long_yield {
-                    let _ = writeln!(s, "Long yield: {}\n", rate_percent(y));
+                    let _ = writeln!(s, "Long yield: {}\n", percent_or_unknown(y, 4));
                 }
             }
         }
@@ -323,13 +323,4 @@ pub fn markdown(reviews: &[Review], info: &DocumentInfo) -> String {
         }
     }
     s
-}
-
-/// A rate as a percentage with four significant digits, or "not known".
-fn rate_percent(x: f64) -> String {
-    if x.is_finite() {
-        percent(x, 4)
-    } else {
-        "not known".to_string()
-    }
 }

@@ -26,7 +26,7 @@ pub fn moments_json(report: &ModelReport) -> Value {
                 "variance": num(g.variance),
                 "variance_infinite_from": num(g.variance_infinite_from),
                 "sd": num(g.sd),
-                "law": g.law,
+                "law": g.law.map(|k| k.as_str()),
                 "quantiles": g.quantiles.iter().map(|q| json!({"p": q.probability, "value": num(q.value)})).collect::<Vec<_>>(),
                 "below": g.below.iter().map(|b| json!({"value": b.level, "probability": num(b.probability)})).collect::<Vec<_>>(),
                 "halflife": num(f.half_life),
@@ -144,7 +144,7 @@ pub fn moments_text(report: &ModelReport, caution: &str) -> String {
             }
         ));
         if let Some(kind) = fig.law {
-            s.push_str(&format!("  law       = {kind}\n"));
+            s.push_str(&format!("  law       = {}\n", kind.as_str()));
         }
         if fig.quantiles_known() {
             let parts: Vec<String> = fig

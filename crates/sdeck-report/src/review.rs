@@ -54,7 +54,7 @@ pub struct Review {
     pub cross_check: Option<CrossCheck>,
     /// Why there is no cross-check, when there is none.
     pub cross_check_note: Option<String>,
-    /// The zero-coupon curve at [`CURVE_MATURITIES_YEARS`] when the model has a
+    /// The zero-coupon curve at [`sdeck_calculus::curve::DEFAULT_MATURITIES`] when the model has a
     /// `discount` line: the curve, or why it could not be derived.
     pub curve: Option<Result<CurveReview, String>>,
 }
@@ -68,21 +68,6 @@ pub struct CurveReview {
     /// The chart of zero yields and forwards (inline SVG).
     pub svg: String,
 }
-
-/// Maturities of the review's curve, in years: the same as `sdeck curve`'s default.
-pub const CURVE_MATURITIES_YEARS: [f64; 11] = [
-    1.0 / 12.0,
-    0.25,
-    0.5,
-    1.0,
-    2.0,
-    3.0,
-    5.0,
-    7.0,
-    10.0,
-    20.0,
-    30.0,
-];
 
 /// How the review is made.
 #[derive(Clone, Debug)]
@@ -185,10 +170,7 @@ impl Review {
         let derivation = &check.derivation;
         review.report = Some(ModelReport::build(model, derivation, source, model.horizon));
         review.curve = model.discount.as_ref().map(|discount| {
-            let maturities: Vec<f64> = CURVE_MATURITIES_YEARS
-                .iter()
-                .map(|years| years / model.clock.years)
-                .collect();
+            let maturities = sdeck_calculus::curve::default_maturities(model.clock.years);
             curve(model, &discount.rate, &maturities).map(|c| CurveReview {
                 svg: yield_curve_svg(model, &c),
                 years_per_clock: model.clock.years,

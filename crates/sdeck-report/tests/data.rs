@@ -31,7 +31,7 @@ fn an_ornstein_uhlenbeck_factor_has_the_vasicek_law_and_its_sign_change() {
     let variance = r.figures.variance.unwrap_or(f64::NAN);
     assert!((mean - 0.023482032441269146).abs() < 1e-15);
     assert!((variance - 4.1975751926711254e-05).abs() < 1e-18);
-    assert_eq!(r.figures.law, Some("normal"));
+    assert_eq!(r.figures.law.map(|k| k.as_str()), Some("normal"));
     let p = r.figures.sign_change.unwrap_or(f64::NAN);
     assert!((p - 0.00014481503297789774).abs() < 1e-12, "{p}");
     // Quantiles of a normal law: the median is the mean, the 5% and 95% points are
@@ -78,7 +78,10 @@ fn a_square_root_factor_allows_no_sign_change() {
     let report = report_of(&demo("cir_funding_rate.sde"), 1.0);
     let r = &report.factors[0];
     assert_eq!(r.family.as_str(), "square-root");
-    assert_eq!(r.figures.law, Some("noncentral-chi-square"));
+    assert_eq!(
+        r.figures.law.map(|k| k.as_str()),
+        Some("noncentral-chi-square")
+    );
     assert!(r.figures.quantiles_known());
     assert_eq!(r.figures.sign_change, None);
 }
@@ -100,7 +103,7 @@ fn a_factor_known_through_its_transform_has_quantiles_and_its_law_named() {
     // the affine transform. Its quantiles must straddle the mean and increase.
     let report = report_of(&demo("stochastic_variance_index.sde"), 1.0);
     let x = &report.factors[0];
-    assert_eq!(x.figures.law, Some("fourier"));
+    assert_eq!(x.figures.law.map(|k| k.as_str()), Some("fourier"));
     let q: Vec<f64> = x.figures.quantiles.iter().filter_map(|q| q.value).collect();
     assert_eq!(q.len(), 5);
     assert!(q.windows(2).all(|w| w[0] < w[1]), "{q:?}");
@@ -113,7 +116,8 @@ fn a_model_with_a_discount_line_gets_its_yield_curve_in_both_documents() {
     // The review's curve is the calculus curve (checked against Brigo & Mercurio 2006,
     // eq. 4.10, in sdeck-calculus) at the default maturities; here: it is there, its
     // 10-year yield equals the one `curve` derives, and both renderings carry it.
-    use sdeck_report::review::{Review, ReviewOptions, CURVE_MATURITIES_YEARS};
+    use sdeck_calculus::curve::DEFAULT_MATURITIES;
+    use sdeck_report::review::{Review, ReviewOptions};
     let source = demo("kestrel_bank_short_rate.sde");
     let check = sdeck_checks::check(&source, "kestrel", &Default::default());
     let options = ReviewOptions {
@@ -125,7 +129,7 @@ fn a_model_with_a_discount_line_gets_its_yield_curve_in_both_documents() {
         Some(Ok(c)) => c,
         other => panic!("no curve in the review: {other:?}"),
     };
-    assert_eq!(curve.curve.points.len(), CURVE_MATURITIES_YEARS.len());
+    assert_eq!(curve.curve.points.len(), DEFAULT_MATURITIES.len());
     let model = &check.analysis.model;
     let rate = &model.discount.as_ref().expect("discount line").rate;
     let ten = 10.0 / model.clock.years;
@@ -151,4 +155,54 @@ fn a_model_with_a_discount_line_gets_its_yield_curve_in_both_documents() {
     let check = sdeck_checks::check(VASICEK, "vasicek", &Default::default());
     let review = Review::build("vasicek.sde", VASICEK, &check, &options);
     assert!(review.curve.is_none());
+}
+
+#[test]
+fn the_report_of_one_factor_is_its_part_of_the_report_of_the_model() {
+    // The hover builds one factor's report alone; it must say what the whole report says
+    // of that factor, for every demo and reference model, with levels asked.
+    let root = Path::new(env!("CARGO_MANIFEST_DIR")).join("../..");
+    let mut checked = 0;
+    for dir in ["demo-models", "tests/reference/models"] {
+        let mut paths: Vec<_> = std::fs::read_dir(root.join(dir))
+            .unwrap_or_else(|e| panic!("{dir}: {e}"))
+            .filter_map(|e| e.ok().map(|e| e.path()))
+            .filter(|p| p.extension().is_some_and(|x| x == "sde"))
+            .collect();
+        paths.sort();
+        for path in paths {
+            let source = std::fs::read_to_string(&path).unwrap_or_default();
+            let check = sdeck_checks::check(&source, "test", &Default::default());
+            let model = &check.analysis.model;
+            let at = model.horizon * 0.75;
+            let levels = sdeck_report::Levels {
+                quantiles: vec![0.1, 0.5],
+                below: (0..model.factors.len()).map(|i| (i, 0.0)).collect(),
+                ..Default::default()
+            };
+            let whole = ModelReport::build_with(model, &check.derivation, &source, at, &levels);
+            assert_eq!(
+                whole.factors.len(),
+                model.factors.len(),
+                "{}",
+                path.display()
+            );
+            for (i, expected) in whole.factors.iter().enumerate() {
+                let alone =
+                    sdeck_report::FactorReport::build(model, &check.derivation, i, at, &levels);
+                assert_eq!(
+                    alone.as_ref(),
+                    Some(expected),
+                    "{} factor {i}",
+                    path.display()
+                );
+                checked += 1;
+            }
+            let past = model.factors.len();
+            let none =
+                sdeck_report::FactorReport::build(model, &check.derivation, past, at, &levels);
+            assert_eq!(none, None);
+        }
+    }
+    assert!(checked > 20, "only {checked} factors checked");
 }

@@ -6,7 +6,7 @@
 use crate::analysis::Analyzed;
 use crate::documents::PositionEncoding;
 use sdeck_diagnostics::{Span, TextEdit};
-use sdeck_semantics::fmt_num;
+use sdeck_units::number::plain;
 use std::collections::HashMap;
 use tower_lsp::lsp_types::{
     CodeAction, CodeActionKind, CodeActionOrCommand, Range, Url, WorkspaceEdit,
@@ -60,7 +60,8 @@ pub fn code_actions(
     out
 }
 
-/// For each equation the range touches: its derived moments as a comment above it.
+/// For each equation the range touches: its derived moments as a comment above it, from
+/// the factor's report at the horizon (the data `sdeck moments` prints).
 fn moments_comment(a: &Analyzed, in_range: impl Fn(&Span) -> bool) -> Vec<(String, Vec<TextEdit>)> {
     let model = &a.check.analysis.model;
     let clock = &model.clock.unit;
@@ -72,7 +73,7 @@ fn moments_comment(a: &Analyzed, in_range: impl Fn(&Span) -> bool) -> Vec<(Strin
         if !in_range(&equation.span) {
             continue;
         }
-        let Some(law) = a.check.derivation.states.get(i) else {
+        let Some(report) = a.horizon_report(i) else {
             continue;
         };
         let line_start = sdeck_syntax::lines::line_start(&a.text, equation.span.start);
@@ -83,8 +84,8 @@ fn moments_comment(a: &Analyzed, in_range: impl Fn(&Span) -> bool) -> Vec<(Strin
             .chars()
             .take_while(|c| c.is_whitespace())
             .collect();
-        let mut lines = vec![format!("{}: {}", state.name, law.family.as_str())];
-        let formulas = sdeck_calculus::formulas(model, &a.check.derivation, i);
+        let mut lines = vec![format!("{}: {}", report.name, report.family.as_str())];
+        let formulas = &report.formulas;
         for (label, text) in [
             ("mean", &formulas.mean),
             ("variance", &formulas.variance),
@@ -94,26 +95,25 @@ fn moments_comment(a: &Analyzed, in_range: impl Fn(&Span) -> bool) -> Vec<(Strin
                 lines.push(format!("{label:<10} {}", t.replace('\n', " ")));
             }
         }
-        let figures = a.horizon_moments(i);
-        let (mean, variance) = (figures.mean, figures.variance);
-        if let (Some(m), Some(v)) = (mean, variance) {
+        let figures = &report.figures;
+        if let (Some(m), Some(v)) = (figures.mean, figures.variance) {
             if m.is_finite() && v.is_finite() && v >= 0.0 {
                 lines.push(format!(
                     "at t = {} {clock}: mean {}, sd {}",
-                    fmt_num(model.horizon),
-                    fmt_num(m),
-                    fmt_num(v.sqrt())
+                    plain(figures.at),
+                    plain(m),
+                    plain(v.sqrt())
                 ));
             }
         }
-        if let Some(h) = law.half_life {
-            lines.push(format!("half-life {} {clock}", fmt_num(h)));
+        if let Some(h) = report.half_life {
+            lines.push(format!("half-life {} {clock}", plain(h)));
         }
         let text: String = lines.iter().map(|l| format!("{indent}# {l}\n")).collect();
         out.push((
             format!(
                 "Insert the derived moments of `{}` as a comment",
-                state.name
+                report.name
             ),
             vec![TextEdit {
                 span: line_start..line_start,

@@ -4,8 +4,8 @@
 
 use crate::convert::Converter;
 use crate::documents::{PositionEncoding, TextSnapshot};
-use sdeck_calculus::StateMoments;
 use sdeck_checks::{FileCheck, RuleSettings};
+use sdeck_report::{FactorReport, Levels};
 use sdeck_semantics::{Symbol, SymbolKind};
 use sdeck_syntax::ast::{Declaration, StatementKind};
 use sdeck_syntax::LineIndex;
@@ -45,6 +45,20 @@ pub fn project_settings(uri: &Url) -> ProjectSettings {
     }
 }
 
+/// The quantiles the hover shows, at the horizon.
+pub const HORIZON_QUANTILES: [f64; 3] = [0.05, 0.5, 0.95];
+
+/// What the server asks of the report of `state`: [`HORIZON_QUANTILES`] (none by a
+/// numerical inversion of a transform: a hover answers at once) and the probability of a
+/// value below zero.
+pub fn horizon_levels(state: usize) -> Levels {
+    Levels {
+        quantiles: HORIZON_QUANTILES.to_vec(),
+        below: vec![(state, 0.0)],
+        quantiles_by_inversion: false,
+    }
+}
+
 /// A document's text at one version, analysed.
 pub struct Analyzed {
     pub version: i32,
@@ -53,9 +67,9 @@ pub struct Analyzed {
     pub check: FileCheck,
     /// Whether the project leaves the file out (no diagnostics are shown).
     pub excluded: bool,
-    /// Per state, mean and variance at the model's horizon (what `sdeck moments` prints
-    /// by default), each computed on first use: diagnostics do not need them.
-    horizon: Vec<OnceLock<StateMoments>>,
+    /// Per state, its report at the model's horizon (what `sdeck moments` prints by
+    /// default), each built on first use: diagnostics do not need them.
+    horizon: Vec<OnceLock<Option<FactorReport>>>,
     /// Per parameter, the roles it plays, found once per version on first use.
     roles: OnceLock<Vec<Vec<Role>>>,
     /// Every inlay hint of the version (offset, label), by offset; built on first use so
@@ -95,16 +109,23 @@ impl Analyzed {
         }
     }
 
-    /// Mean and variance of `state` at the horizon (computed once per analysed version,
-    /// for that state only).
-    pub fn horizon_moments(&self, state: usize) -> StateMoments {
+    /// The report of `state` at the horizon, with the quantiles and the probability below
+    /// zero the hover shows ([`horizon_levels`]): built once per analysed version, for that
+    /// state only. `None` when there is no such state.
+    pub fn horizon_report(&self, state: usize) -> Option<&FactorReport> {
         let model = &self.check.analysis.model;
-        let compute =
-            || sdeck_calculus::state_moments(model, &self.check.derivation, state, model.horizon);
-        match self.horizon.get(state) {
-            Some(slot) => *slot.get_or_init(compute),
-            None => compute(),
-        }
+        self.horizon
+            .get(state)?
+            .get_or_init(|| {
+                FactorReport::build(
+                    model,
+                    &self.check.derivation,
+                    state,
+                    model.horizon,
+                    &horizon_levels(state),
+                )
+            })
+            .as_ref()
     }
 
     pub fn converter(&self, encoding: PositionEncoding) -> Converter<'_> {

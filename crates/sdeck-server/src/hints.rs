@@ -4,7 +4,8 @@
 
 use crate::analysis::{Analyzed, Role};
 use crate::documents::PositionEncoding;
-use sdeck_semantics::{fmt_num, SymbolKind};
+use sdeck_semantics::SymbolKind;
+use sdeck_units::number::plain;
 use tower_lsp::lsp_types::{InlayHint, InlayHintKind, InlayHintLabel, Range};
 
 /// The hints that fall in `range`: a binary search in the version's hints, built once.
@@ -51,7 +52,7 @@ fn all_hints(a: &Analyzed) -> Vec<(usize, String)> {
                     .unwrap_or(unit_end);
                 hints.push((
                     close,
-                    format!("= {} [{}]", fmt_num(p.value), p.dimension.display_in(clock)),
+                    format!("= {} [{}]", plain(p.value), p.dimension.display_in(clock)),
                 ));
             }
         }
@@ -60,7 +61,7 @@ fn all_hints(a: &Analyzed) -> Vec<(usize, String)> {
                 half_life: Some(h), ..
             } = role
             {
-                hints.push((p.span.end, format!("half-life {} {clock}", fmt_num(h))));
+                hints.push((p.span.end, format!("half-life {} {clock}", plain(h))));
             }
         }
     }
@@ -80,7 +81,7 @@ fn all_hints(a: &Analyzed) -> Vec<(usize, String)> {
         if stationary.variance.is_finite() && stationary.variance >= 0.0 {
             hints.push((
                 equation.span.end,
-                format!("stationary sd {}", fmt_num(stationary.variance.sqrt())),
+                format!("stationary sd {}", plain(stationary.variance.sqrt())),
             ));
         }
     }

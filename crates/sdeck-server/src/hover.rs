@@ -1,11 +1,13 @@
 //! Hover: the derived law of a state, the converted value and role of a param, the
-//! correlations of a noise, the scale of a unit. Every figure is formatted with
-//! `sdeck_semantics::fmt_num`, as `sdeck moments` prints it.
+//! correlations of a noise, the scale of a unit. A factor's hover renders its report
+//! (`sdeck_report::FactorReport`), the data `sdeck moments` prints; every number is
+//! written by the one formatter, `sdeck_units::number`.
 
-use crate::analysis::{Analyzed, Role};
+use crate::analysis::{Analyzed, Role, HORIZON_QUANTILES};
 use crate::documents::PositionEncoding;
-use sdeck_semantics::{fmt_num, Model, SymbolKind};
+use sdeck_semantics::{Model, SymbolKind};
 use sdeck_syntax::ast::{DeclaredValue, Expr, Quantity, StatementKind, UnitExpr};
+use sdeck_units::number::{brief, brief_or_unknown, plain};
 use tower_lsp::lsp_types::{Hover, HoverContents, MarkupContent, MarkupKind, Position};
 
 /// The hover at `position`, in Markdown or in plain text as the client asked.
@@ -200,10 +202,10 @@ fn discount_at(a: &Analyzed, offset: usize) -> Option<(String, sdeck_diagnostics
             for (p, y) in c.points.iter().zip(years) {
                 s.push_str(&format!(
                     "| {} year | {} | {}% | {}% |\n",
-                    fmt_num(y),
-                    fmt_num(p.price),
-                    fmt_num(p.yield_rate * 100.0),
-                    fmt_num(p.forward * 100.0)
+                    plain(y),
+                    plain(p.price),
+                    plain(p.yield_rate * 100.0),
+                    plain(p.forward * 100.0)
                 ));
             }
         }
@@ -211,18 +213,6 @@ fn discount_at(a: &Analyzed, offset: usize) -> Option<(String, sdeck_diagnostics
     }
     let start = statement.span.start;
     Some((s, start..start + "discount".len()))
-}
-
-/// Four significant digits: what a reader takes in at a glance.
-fn figure(x: f64) -> String {
-    sdeck_units::number::significant(x, 4)
-}
-
-fn figure_or_unknown(x: Option<f64>) -> String {
-    match x {
-        Some(v) if v.is_finite() => figure(v),
-        _ => "not known".to_string(),
-    }
 }
 
 /// A time unit and its length in clock units.
@@ -249,7 +239,7 @@ impl TimeUnit {
 
     /// A duration in clock units, written in this unit.
     fn show(&self, clock_value: f64) -> String {
-        format!("{} {}", figure(clock_value / self.clock_units), self.name)
+        format!("{} {}", brief(clock_value / self.clock_units), self.name)
     }
 }
 
@@ -292,69 +282,62 @@ fn speed_unit(a: &Analyzed, state: usize) -> TimeUnit {
 }
 
 /// The figures a reader wants first (mean, sd, quantiles at the horizon, half-life),
-/// then why the family, the description and the formulas.
+/// then why the family, the description and the formulas: the factor's report at the
+/// horizon, as `sdeck moments` derives it.
 pub fn state_text(a: &Analyzed, i: usize) -> String {
     let model = &a.check.analysis.model;
-    let Some(state) = model.factors.get(i) else {
+    let (Some(state), Some(report)) = (model.factors.get(i), a.horizon_report(i)) else {
         return String::new();
     };
-    let derivation = &a.check.derivation;
-    let law = derivation.states.get(i);
-    let mut s = format!("**factor `{}`**", state.name);
-    if let Some(law) = law {
-        s.push_str(&format!(" · {}", law.family.as_str()));
-    }
-    s.push('\n');
-    let horizon = model.horizon;
-    let figures = a.horizon_moments(i);
-    let (mean, variance) = (figures.mean, figures.variance);
+    let figures = &report.figures;
+    let mut s = format!(
+        "**factor `{}`** · {}\n",
+        report.name,
+        report.family.as_str()
+    );
     s.push_str(&format!(
         "\nAt the horizon, t = {}:\n\n| figure | value |\n|---|---|\n",
-        horizon_unit(a).show(horizon)
+        horizon_unit(a).show(figures.at)
     ));
-    s.push_str(&format!("| mean | {} |\n", figure_or_unknown(mean)));
-    s.push_str(&format!(
-        "| sd | {} |\n",
-        figure_or_unknown(variance.filter(|v| *v >= 0.0).map(f64::sqrt))
-    ));
-    let quantile = |p: f64| sdeck_calculus::quantile(model, derivation, i, horizon, p);
-    if let (Some(low), Some(mid), Some(high)) = (quantile(0.05), quantile(0.5), quantile(0.95)) {
+    s.push_str(&format!("| mean | {} |\n", brief_or_unknown(figures.mean)));
+    s.push_str(&format!("| sd | {} |\n", brief_or_unknown(figures.sd)));
+    if let [Some(low), Some(mid), Some(high)] = HORIZON_QUANTILES.map(|p| figures.quantile(p)) {
         s.push_str(&format!(
             "| 5% · 50% · 95% | {} · {} · {} |\n",
-            figure(low),
-            figure(mid),
-            figure(high)
+            brief(low),
+            brief(mid),
+            brief(high)
         ));
     }
-    if let Some(h) = law.and_then(|l| l.half_life) {
+    if let Some(h) = report.half_life {
         s.push_str(&format!("| half-life | {} |\n", speed_unit(a, i).show(h)));
     }
-    s.push_str(&format!("| variance | {} |\n", figure_or_unknown(variance)));
-    if let Some(whole) = sdeck_calculus::laws::law_of(model, derivation, i, horizon) {
-        s.push_str(&format!("| law | {} |\n", whole.kind().as_str()));
-        let sign_change = matches!(
-            whole.kind(),
-            sdeck_calculus::laws::LawKind::Normal | sdeck_calculus::laws::LawKind::Fourier
-        );
-        if let Some(p) = whole
-            .cdf(0.0)
-            .filter(|p| sign_change && *p > 0.0 && *p < 1.0)
-        {
-            s.push_str(&format!("| P({} < 0) | {} |\n", state.name, figure(p)));
+    s.push_str(&format!(
+        "| variance | {} |\n",
+        brief_or_unknown(figures.variance)
+    ));
+    if let Some(kind) = figures.law {
+        s.push_str(&format!("| law | {} |\n", kind.as_str()));
+        let below_zero = figures
+            .below
+            .iter()
+            .find(|b| b.level == 0.0)
+            .and_then(|b| b.probability)
+            .filter(|p| kind.on_whole_line() && *p > 0.0 && *p < 1.0);
+        if let Some(p) = below_zero {
+            s.push_str(&format!("| P({} < 0) | {} |\n", report.name, brief(p)));
         }
     }
-    if let Some(st) = law.and_then(|l| l.stationary.as_ref()) {
+    if let Some(st) = &report.stationary {
         s.push_str(&format!(
             "| stationary | {}, mean {}, sd {} |\n",
             st.law,
-            figure(st.mean),
-            figure(st.variance.max(0.0).sqrt())
+            brief(st.mean),
+            brief(st.sd)
         ));
     }
-    if let Some(law) = law {
-        s.push_str(&format!("\n{}\n", law.reason));
-    }
-    if let Some(description) = &state.description {
+    s.push_str(&format!("\n{}\n", report.reason));
+    if let Some(description) = &report.description {
         s.push_str(&format!("\n_{}_\n", description.trim()));
     }
     if state.initial_expr.is_some() {
@@ -362,27 +345,17 @@ pub fn state_text(a: &Analyzed, i: usize) -> String {
             s.push_str(&format!(
                 "\ninitial value `{}` = {} [{}]\n",
                 a.text.get(d.value_span()).unwrap_or("").trim(),
-                fmt_num(state.initial),
+                plain(report.initial),
                 state.dimension.display_in(&model.clock.unit)
             ));
         }
     }
-    if law.is_some() {
-        let f = sdeck_calculus::formulas(model, derivation, i);
-        let lines: Vec<String> = [
-            ("solution", &f.solution),
-            ("mean", &f.mean),
-            ("variance", &f.variance),
-            ("autocov.", &f.autocovariance),
-            ("transition", &f.transition),
-            ("stationary", &f.stationary),
-        ]
-        .iter()
-        .filter_map(|(label, text)| text.as_ref().map(|t| format!("{label:<10} {t}")))
+    let lines: Vec<String> = sdeck_report::formula_lines(&report.formulas)
+        .into_iter()
+        .map(|(label, text)| format!("{label:<10} {text}"))
         .collect();
-        if !lines.is_empty() {
-            s.push_str(&format!("\n```text\n{}\n```\n", lines.join("\n")));
-        }
+    if !lines.is_empty() {
+        s.push_str(&format!("\n```text\n{}\n```\n", lines.join("\n")));
     }
     if a.check.analysis.has_errors() {
         s.push_str("\n_The model has errors: these figures rest on what could be resolved._\n");
@@ -406,21 +379,21 @@ fn param_text(a: &Analyzed, i: usize) -> String {
     let written = match declaration.map(|d| &d.value) {
         Some(DeclaredValue::Literal { number, .. }) => number.text.clone(),
         Some(DeclaredValue::Expr(e)) => format!("`{}`", a.text.get(e.span()).unwrap_or("").trim()),
-        None => fmt_num(p.written),
+        None => plain(p.written),
     };
     let mut s = format!("**param `{}`** = {written}{written_unit}\n", p.name);
     if p.scale.is_finite() && p.scale != 1.0 {
         s.push_str(&format!(
             "\n= {} [{}] on the model's clock ({} × {})\n",
-            fmt_num(p.value),
+            plain(p.value),
             p.dimension.display_in(clock),
             written,
-            fmt_num(p.scale)
+            plain(p.scale)
         ));
     } else {
         s.push_str(&format!(
             "\nvalue {} [{}]\n",
-            fmt_num(p.value),
+            plain(p.value),
             p.dimension.display_in(clock)
         ));
     }
@@ -484,11 +457,7 @@ fn noise_text(model: &Model, name: &str) -> Option<String> {
             .get(other)
             .map(|n| n.name.as_str())
             .unwrap_or("?");
-        lines.push(format!(
-            "- ρ({}, {other}) = {}",
-            noise.name,
-            fmt_num(c.value)
-        ));
+        lines.push(format!("- ρ({}, {other}) = {}", noise.name, plain(c.value)));
     }
     if lines.is_empty() {
         s.push_str("\nindependent of every other shock\n");
@@ -513,7 +482,7 @@ fn let_text(model: &Model, name: &str) -> Option<String> {
                 .unwrap_or_default();
             s.push_str(&format!(
                 "\n= {}{unit} on the model's clock\n",
-                fmt_num(value)
+                plain(value)
             ));
         }
     } else {
@@ -532,7 +501,7 @@ fn unit_text(model: &Model, name: &str) -> String {
             let scale = years / model.clock.years;
             format!(
                 "**unit `{name}`** · time\n\n1 {name} = {} {} (the model's clock)\n",
-                fmt_num(scale),
+                plain(scale),
                 model.clock.unit
             )
         }

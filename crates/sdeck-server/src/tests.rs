@@ -161,7 +161,7 @@ fn inlay_hints_show_conversion_half_life_and_stationary_sd() {
         labels.contains(&"= 1.825 [1/year]".to_string()),
         "{labels:?}"
     );
-    let half_life = sdeck_semantics::fmt_num(2f64.ln() / 1.825);
+    let half_life = sdeck_units::number::plain(2f64.ln() / 1.825);
     assert!(
         labels.contains(&format!("half-life {half_life} year")),
         "{labels:?}"

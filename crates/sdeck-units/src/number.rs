@@ -5,6 +5,7 @@
 //! - [`plain`]: six significant digits, trailing zeros dropped, scientific notation
 //!   outside 1e-4 ..= 1e6 (`0.0329858`, `1.5e-5`).
 //! - [`significant`]: the same with a chosen number of significant digits.
+//! - [`brief`]: four significant digits, for a figure read at a glance (`0.03299`).
 //! - [`percent`] and [`basis_points`]: a rate as `3.3%` or `92.8bp`.
 //! - [`with_unit`]: a figure followed by its unit (`0.385 year`, `2.4%` stays bare).
 //!
@@ -63,10 +64,33 @@ pub fn plain(x: f64) -> String {
     significant(x, 6)
 }
 
+/// Four significant digits: a figure taken in at a glance (the editor's hover).
+pub fn brief(x: f64) -> String {
+    significant(x, 4)
+}
+
+/// A figure that may be unknown or not finite: [`brief`], or `not known`.
+pub fn brief_or_unknown(x: Option<f64>) -> String {
+    match x {
+        Some(v) if v.is_finite() => brief(v),
+        _ => "not known".to_string(),
+    }
+}
+
 /// A fraction as a percentage with `digits` significant digits: `0.0329858` → `3.3%`
 /// with 2 digits.
 pub fn percent(x: f64, digits: u32) -> String {
     format!("{}%", significant(x * 100.0, digits))
+}
+
+/// A rate as a percentage with `digits` significant digits, or `not known` when it is
+/// not finite.
+pub fn percent_or_unknown(x: f64, digits: u32) -> String {
+    if x.is_finite() {
+        percent(x, digits)
+    } else {
+        "not known".to_string()
+    }
 }
 
 /// A fraction in basis points (1bp = 0.01%) with `digits` significant digits.
@@ -119,5 +143,10 @@ mod tests {
         assert_eq!(or_unknown(None), "not known");
         assert_eq!(or_unknown(Some(f64::NAN)), "not known");
         assert_eq!(with_unit(3.0, Some("1")), "3");
+        assert_eq!(brief(0.0329858), "0.03299");
+        assert_eq!(percent_or_unknown(0.0329858, 4), "3.299%");
+        assert_eq!(percent_or_unknown(f64::NAN, 4), "not known");
+        assert_eq!(brief_or_unknown(Some(f64::INFINITY)), "not known");
+        assert_eq!(brief_or_unknown(Some(-1234.56)), "-1235");
     }
 }
