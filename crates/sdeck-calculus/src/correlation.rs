@@ -1,7 +1,7 @@
 //! Correlation matrices: the positive semi-definite test, the smallest eigenvalue and the
 //! nearest correlation matrix (Frobenius norm), for the rule `correlation-not-psd` and its
-//! fix. Every eigen-decomposition goes through [`symmetric_eigen`], which refuses
-//! non-finite input and stops after a bounded number of sweeps.
+//! fix. Every eigen-decomposition goes through [`crate::symmetric::symmetric_eigen`],
+//! which refuses non-finite input and stops after a bounded number of sweeps.
 //!
 //! Method of the nearest matrix: alternating projections with Dykstra's correction
 //! (Higham 2002, "Computing the nearest correlation matrix — a problem from finance", IMA
@@ -10,21 +10,8 @@
 //! with a few decimals; [`nearest_correlation_rounded`] keeps the smallest eigenvalue a
 //! little above zero so that the rounded matrix is still positive semi-definite.
 
-use nalgebra::{DMatrix, Dyn, SymmetricEigen};
-
-/// The convergence tolerance of the eigen-decomposition's sweeps.
-const EIGEN_TOLERANCE: f64 = 1e-14;
-/// The most sweeps an eigen-decomposition may take before it gives up.
-const EIGEN_MAX_SWEEPS: usize = 10_000;
-
-/// The eigen-decomposition of the symmetric matrix `matrix`; `None` when an entry is not
-/// finite or the sweeps do not settle within [`EIGEN_MAX_SWEEPS`].
-pub fn symmetric_eigen(matrix: DMatrix<f64>) -> Option<SymmetricEigen<f64, Dyn>> {
-    if matrix.iter().any(|x| !x.is_finite()) {
-        return None;
-    }
-    SymmetricEigen::try_new(matrix, EIGEN_TOLERANCE, EIGEN_MAX_SWEEPS)
-}
+use crate::symmetric::symmetric_eigen;
+use nalgebra::DMatrix;
 
 /// The nearest correlation matrix to the symmetric matrix `a`, with every eigenvalue at
 /// least `floor` (0 for Higham's problem proper). `None` for a non-square or non-finite
@@ -107,7 +94,7 @@ pub fn smallest_eigenvalue(m: &[Vec<f64>]) -> Option<f64> {
         return Some(0.0);
     }
     let matrix = DMatrix::from_fn(n, n, |i, j| m[i][j]);
-    symmetric_eigen(matrix)?
+    symmetric_eigen(&matrix)?
         .eigenvalues
         .iter()
         .copied()
@@ -116,7 +103,7 @@ pub fn smallest_eigenvalue(m: &[Vec<f64>]) -> Option<f64> {
 
 fn project_psd(m: &DMatrix<f64>, floor: f64) -> Option<DMatrix<f64>> {
     let symmetric = 0.5 * (m + m.transpose());
-    let eigen = symmetric_eigen(symmetric)?;
+    let eigen = symmetric_eigen(&symmetric)?;
     let clipped = eigen.eigenvalues.map(|l| l.max(floor));
     let q = &eigen.eigenvectors;
     let result = q * DMatrix::from_diagonal(&clipped) * q.transpose();
@@ -223,6 +210,6 @@ mod tests {
         assert_eq!(nearest_correlation(&[vec![1.0, 2.0]], 0.0), None);
         assert_eq!(nearest_correlation(&[vec![f64::NAN]], 0.0), None);
         assert_eq!(smallest_eigenvalue(&[vec![f64::INFINITY]]), None);
-        assert!(symmetric_eigen(DMatrix::from_element(2, 2, f64::NAN)).is_none());
+        assert!(symmetric_eigen(&DMatrix::from_element(2, 2, f64::NAN)).is_none());
     }
 }

@@ -47,6 +47,7 @@ pub mod one_state;
 mod partial;
 pub mod polynomial;
 mod shape;
+pub mod symmetric;
 mod system;
 
 use sdeck_semantics::{Expectation, Model};

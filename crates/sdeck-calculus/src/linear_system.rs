@@ -1,6 +1,7 @@
 //! Exact moments of linear SDE systems with state-independent noise,
 //! dX = (A X + b) dt + L dW with d⟨W⟩ = R dt: mean, covariance, cross-covariance in time,
-//! stationary law, plus the matrix exponential and eigenvalues they rest on.
+//! stationary law, the exact step the simulator takes ([`gaussian_step`]), plus the matrix
+//! exponential and eigenvalues they rest on.
 //!
 //! Everything here is plain numerics over `nalgebra` matrices and knows nothing of the model
 //! language. Nothing panics on bad input: inconsistent shapes, non-finite numbers or negative
@@ -136,73 +137,18 @@ impl AffineGaussian {
         if self.validate().is_err() || x0.len() != n || !(t.is_finite() && t >= 0.0) {
             return DVector::from_element(n, f64::NAN);
         }
-        let mut augmented = DMatrix::<f64>::zeros(n + 1, n + 1);
-        augmented.view_mut((0, 0), (n, n)).copy_from(&(&self.a * t));
-        augmented.view_mut((0, n), (n, 1)).copy_from(&(&self.b * t));
-        let exponential = matrix_exponential(&augmented);
-        let propagator = exponential.view((0, 0), (n, n));
-        let forcing = exponential.view((0, n), (n, 1));
+        let (propagator, forcing) = propagate(&self.a, &self.b, t);
         propagator * x0 + forcing
     }
 
-    /// Cov(X_t) = ∫₀ᵗ e^{As} Q e^{Aᵀs} ds for a deterministic X_0.
-    ///
-    /// Van Loan 1978 (IEEE Trans. Automatic Control 23, "Computing integrals involving the
-    /// matrix exponential", Theorem 1): with C = [[−A, Q], [0, Aᵀ]]·h, exp(C) = [[·, F₁₂],
-    /// [0, F₂₂]] and P(h) = F₂₂ᵀ F₁₂. The block exponential is taken on a short step h with
-    /// ‖A‖h ≤ ½, where it is accurate, and P(t) follows by doubling:
-    /// P(2h) = P(h) + e^{Ah} P(h) e^{Aᵀh}. Reason: the direct block exponential holds
-    /// e^{−At}, which overflows for fast rates (a rate of 100 per year at t = 10 already
-    /// gives NaN), and multiplying it back by e^{At} cancels away the slow directions.
+    /// Cov(X_t) = ∫₀ᵗ e^{As} Q e^{Aᵀs} ds for a deterministic X_0, by Van Loan's block
+    /// exponential on a short step and doubling (see `van_loan_covariance`).
     pub fn covariance_at(&self, t: f64) -> DMatrix<f64> {
         let n = self.dimension();
         if self.validate().is_err() || !(t.is_finite() && t >= 0.0) {
             return nan_matrix(n, n);
         }
-        let q = self.noise_covariance();
-        let q_scale = q.amax();
-        if t == 0.0 || q_scale == 0.0 {
-            return DMatrix::zeros(n, n);
-        }
-        let norm_a = one_norm(&self.a);
-        // Number of doublings k such that ‖A‖ t / 2^k ≤ ½, computed in logarithms so a huge
-        // t cannot overflow; capped at the f64 exponent range.
-        let doublings = if norm_a == 0.0 {
-            0
-        } else {
-            let log2_size = norm_a.log2() + t.log2() + 1.0;
-            log2_size.ceil().clamp(0.0, 1100.0) as i32
-        };
-        let step = t * 2f64.powi(-doublings);
-        // P is linear in Q, so the block matrix is built with Q scaled to unit size.
-        let mut block = DMatrix::<f64>::zeros(2 * n, 2 * n);
-        block
-            .view_mut((0, 0), (n, n))
-            .copy_from(&(&self.a * (-step)));
-        block
-            .view_mut((0, n), (n, n))
-            .copy_from(&(&q * (step / q_scale)));
-        block
-            .view_mut((n, n), (n, n))
-            .copy_from(&(self.a.transpose() * step));
-        let exponential = matrix_exponential(&block);
-        let f12 = exponential.view((0, n), (n, n)).into_owned();
-        let f22 = exponential.view((n, n), (n, n)).into_owned();
-        let mut propagator = f22.transpose();
-        let mut covariance = &propagator * f12;
-        // Buffers allocated once: the doubling loop itself allocates nothing.
-        let mut scratch = DMatrix::<f64>::zeros(n, n);
-        let mut propagator_transposed = DMatrix::<f64>::zeros(n, n);
-        for _ in 0..doublings {
-            // covariance ← covariance + Φ covariance Φᵀ
-            propagator.mul_to(&covariance, &mut scratch);
-            propagator.transpose_to(&mut propagator_transposed);
-            covariance.gemm(1.0, &scratch, &propagator_transposed, 1.0);
-            // Φ ← Φ²
-            propagator.mul_to(&propagator, &mut scratch);
-            std::mem::swap(&mut propagator, &mut scratch);
-        }
-        symmetrised(&covariance) * q_scale
+        van_loan_covariance(&self.a, &self.noise_covariance(), t)
     }
 
     /// Cov(X_s, X_t) = E[(X_s − m_s)(X_t − m_t)ᵀ]: P(s) e^{A(t−s)}ᵀ when s ≤ t, and
@@ -250,6 +196,114 @@ impl AffineGaussian {
         let mean = -solution;
         mean.iter().all(|v| v.is_finite()).then_some(mean)
     }
+}
+
+/// ∫₀ᵗ e^{As} Q e^{Aᵀs} ds, the covariance after `t` of dX = A X dt + dM with
+/// d⟨M⟩ = Q dt (finite inputs of matching shapes, t finite and non-negative).
+///
+/// Van Loan 1978 (IEEE Trans. Automatic Control 23, "Computing integrals involving the
+/// matrix exponential", Theorem 1): with C = [[−A, Q], [0, Aᵀ]]·h, exp(C) = [[·, F₁₂],
+/// [0, F₂₂]] and P(h) = F₂₂ᵀ F₁₂. The block exponential is taken on a short step h with
+/// ‖A‖h ≤ ½, where it is accurate, and P(t) follows by doubling:
+/// P(2h) = P(h) + e^{Ah} P(h) e^{Aᵀh}. Reason: the direct block exponential holds
+/// e^{−At}, which overflows for fast rates (a rate of 100 per year at t = 10 already
+/// gives NaN), and multiplying it back by e^{At} cancels away the slow directions.
+fn van_loan_covariance(a: &DMatrix<f64>, q: &DMatrix<f64>, t: f64) -> DMatrix<f64> {
+    let n = a.nrows();
+    let q_scale = q.amax();
+    if t == 0.0 || q_scale == 0.0 {
+        return DMatrix::zeros(n, n);
+    }
+    let norm_a = one_norm(a);
+    // Number of doublings k such that ‖A‖ t / 2^k ≤ ½, computed in logarithms so a huge
+    // t cannot overflow; capped at the f64 exponent range.
+    let doublings = if norm_a == 0.0 {
+        0
+    } else {
+        let log2_size = norm_a.log2() + t.log2() + 1.0;
+        log2_size.ceil().clamp(0.0, 1100.0) as i32
+    };
+    let step = t * 2f64.powi(-doublings);
+    // P is linear in Q, so the block matrix is built with Q scaled to unit size.
+    let mut block = DMatrix::<f64>::zeros(2 * n, 2 * n);
+    block.view_mut((0, 0), (n, n)).copy_from(&(a * (-step)));
+    block
+        .view_mut((0, n), (n, n))
+        .copy_from(&(q * (step / q_scale)));
+    block
+        .view_mut((n, n), (n, n))
+        .copy_from(&(a.transpose() * step));
+    let exponential = matrix_exponential(&block);
+    let f12 = exponential.view((0, n), (n, n)).into_owned();
+    let f22 = exponential.view((n, n), (n, n)).into_owned();
+    let mut propagator = f22.transpose();
+    let mut covariance = &propagator * f12;
+    // Buffers allocated once: the doubling loop itself allocates nothing.
+    let mut scratch = DMatrix::<f64>::zeros(n, n);
+    let mut propagator_transposed = DMatrix::<f64>::zeros(n, n);
+    for _ in 0..doublings {
+        // covariance ← covariance + Φ covariance Φᵀ
+        propagator.mul_to(&covariance, &mut scratch);
+        propagator.transpose_to(&mut propagator_transposed);
+        covariance.gemm(1.0, &scratch, &propagator_transposed, 1.0);
+        // Φ ← Φ²
+        propagator.mul_to(&propagator, &mut scratch);
+        std::mem::swap(&mut propagator, &mut scratch);
+    }
+    symmetrised(&covariance) * q_scale
+}
+
+/// e^{At} and ∫₀ᵗ e^{As} b ds, both read from the exponential of the augmented matrix
+/// [[A, b], [0, 0]]·t, so a singular A (a random walk) works.
+fn propagate(a: &DMatrix<f64>, b: &DVector<f64>, t: f64) -> (DMatrix<f64>, DVector<f64>) {
+    let n = a.nrows();
+    let mut augmented = DMatrix::<f64>::zeros(n + 1, n + 1);
+    augmented.view_mut((0, 0), (n, n)).copy_from(&(a * t));
+    augmented.view_mut((0, n), (n, 1)).copy_from(&(b * t));
+    let exponential = matrix_exponential(&augmented);
+    let propagator = exponential.view((0, 0), (n, n)).into_owned();
+    let forcing = exponential.view((0, n), (n, 1)).column(0).into_owned();
+    (propagator, forcing)
+}
+
+/// The exact step of dX = (A X + b) dt + dM with d⟨M⟩ = Q dt over Δ:
+/// X(t + Δ) = transition · X(t) + shift + noise_factor · Z, Z standard normal.
+#[derive(Clone, Debug, PartialEq)]
+pub struct GaussianStep {
+    pub transition: DMatrix<f64>,
+    pub shift: DVector<f64>,
+    /// A square root of the step's covariance (see [`crate::symmetric::covariance_factor`]).
+    pub noise_factor: DMatrix<f64>,
+}
+
+/// The exact step over `step` (Van Loan's block exponentials, as in
+/// [`AffineGaussian::covariance_at`]): e^{AΔ}, ∫₀^Δ e^{As} b ds and a factor of
+/// ∫₀^Δ e^{As} Q e^{Aᵀs} ds. `None` when the shapes disagree, an entry or the step is not
+/// finite, the step is negative, or the covariance cannot be factored.
+pub fn gaussian_step(
+    a: &DMatrix<f64>,
+    b: &DVector<f64>,
+    q: &DMatrix<f64>,
+    step: f64,
+) -> Option<GaussianStep> {
+    let n = a.nrows();
+    let shapes = a.ncols() == n && b.len() == n && q.nrows() == n && q.ncols() == n;
+    let finite = a
+        .iter()
+        .chain(b.iter())
+        .chain(q.iter())
+        .all(|v| v.is_finite());
+    if !(shapes && finite && step.is_finite() && step >= 0.0) {
+        return None;
+    }
+    let (transition, shift) = propagate(a, b, step);
+    let covariance = van_loan_covariance(a, &symmetrised(q), step);
+    let factor = crate::symmetric::covariance_factor(&covariance)?;
+    Some(GaussianStep {
+        transition,
+        shift,
+        noise_factor: factor.lower,
+    })
 }
 
 /// Solves A P + P Aᵀ + Q = 0 by the Kronecker system (I⊗A + A⊗I) vec P = −vec Q.
@@ -470,6 +524,89 @@ fn nan_matrix(rows: usize, columns: usize) -> DMatrix<f64> {
 
 #[cfg(test)]
 mod tests {
+
+    // The exact step, as the simulator takes it.
+
+    fn step_of(a: &[f64], b: &[f64], q: &[f64], step: f64) -> GaussianStep {
+        let n = b.len();
+        gaussian_step(
+            &DMatrix::from_row_slice(n, n, a),
+            &DVector::from_row_slice(b),
+            &DMatrix::from_row_slice(n, n, q),
+            step,
+        )
+        .expect("finite inputs")
+    }
+
+    #[test]
+    fn one_state_step_matches_the_ornstein_uhlenbeck_transition() {
+        // dX = κ(θ − X) dt + σ dW: transition e^{−κΔ}, shift θ(1 − e^{−κΔ}),
+        // variance σ²(1 − e^{−2κΔ})/(2κ) (Vasicek 1977, J. Financial Economics 5, §4).
+        let (kappa, theta, sigma, step) = (1.8, 0.032, 0.15, 0.25);
+        let result = step_of(&[-kappa], &[kappa * theta], &[sigma * sigma], step);
+        let decay = (-kappa * step).exp();
+        assert!((result.transition[(0, 0)] - decay).abs() < 1e-13);
+        assert!((result.shift[0] - theta * (1.0 - decay)).abs() < 1e-13);
+        let variance = sigma * sigma * (1.0 - (-2.0 * kappa * step).exp()) / (2.0 * kappa);
+        assert!((result.noise_factor[(0, 0)].powi(2) - variance).abs() < 1e-13);
+    }
+
+    #[test]
+    fn two_state_step_covariance_matches_the_correlated_ou_formula() {
+        // Two independent-drift OU states on noises with correlation ρ:
+        // Cov = ρ σ1 σ2 (1 − e^{−(κ1+κ2)Δ})/(κ1+κ2) (Brigo & Mercurio 2006, Interest Rate
+        // Models, §4.2, the G2++ covariance of x and y).
+        let (k1, k2, s1, s2, rho, step) = (0.9, 0.2, 0.01, 0.008, -0.6, 1.5);
+        let q = [s1 * s1, rho * s1 * s2, rho * s1 * s2, s2 * s2];
+        let result = step_of(&[-k1, 0.0, 0.0, -k2], &[0.0, 0.0], &q, step);
+        let p = &result.noise_factor * result.noise_factor.transpose();
+        let expected = rho * s1 * s2 * (1.0 - (-(k1 + k2) * step).exp()) / (k1 + k2);
+        assert!(
+            (p[(0, 1)] - expected).abs() < 1e-15,
+            "{} vs {expected}",
+            p[(0, 1)]
+        );
+        let expected_first = s1 * s1 * (1.0 - (-2.0 * k1 * step).exp()) / (2.0 * k1);
+        assert!((p[(0, 0)] - expected_first).abs() < 1e-15);
+    }
+
+    #[test]
+    fn long_steps_of_fast_mean_reversion_stay_finite_and_exact() {
+        // κΔ = 1000: the plain block exponential would overflow. Same Vasicek formulas.
+        let (kappa, theta, sigma, step) = (365.0, 0.02, 0.5, 2.74);
+        let result = step_of(&[-kappa], &[kappa * theta], &[sigma * sigma], step);
+        let decay = (-kappa * step).exp();
+        assert!((result.transition[(0, 0)] - decay).abs() < 1e-15);
+        assert!((result.shift[0] - theta * (1.0 - decay)).abs() < 1e-15);
+        let variance = sigma * sigma * (1.0 - (-2.0 * kappa * step).exp()) / (2.0 * kappa);
+        let got = result.noise_factor[(0, 0)].powi(2);
+        assert!(
+            (got - variance).abs() < 1e-12 * variance,
+            "{got} vs {variance}"
+        );
+    }
+
+    #[test]
+    fn arithmetic_brownian_step_has_linear_shift_and_variance() {
+        // A = 0: shift b Δ and variance σ² Δ (common practice, no source).
+        let result = step_of(&[0.0], &[0.5], &[0.04], 2.0);
+        assert!((result.transition[(0, 0)] - 1.0).abs() < 1e-14);
+        assert!((result.shift[0] - 1.0).abs() < 1e-14);
+        assert!((result.noise_factor[(0, 0)].powi(2) - 0.08).abs() < 1e-14);
+    }
+
+    #[test]
+    fn a_step_of_non_finite_or_mismatched_inputs_is_refused() {
+        let one = DMatrix::from_element(1, 1, -1.0);
+        let b = DVector::from_element(1, 0.0);
+        let nan = DMatrix::from_element(1, 1, f64::NAN);
+        assert!(gaussian_step(&one, &b, &nan, 1.0).is_none());
+        assert!(gaussian_step(&nan, &b, &one, 1.0).is_none());
+        assert!(gaussian_step(&one, &b, &one, f64::INFINITY).is_none());
+        assert!(gaussian_step(&one, &b, &one, -1.0).is_none());
+        assert!(gaussian_step(&one, &DVector::zeros(2), &one, 1.0).is_none());
+    }
+
     use super::*;
 
     /// e^{[[0, θ], [−θ, 0]]} is the rotation [[cos θ, sin θ], [−sin θ, cos θ]]

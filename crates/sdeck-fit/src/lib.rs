@@ -487,7 +487,8 @@ fn system_log_likelihood(
             None => {
                 let propagator = matrix_exponential(&(&system.a * dt));
                 let offset = system.mean_at(&DVector::zeros(n), dt);
-                let Some(cholesky) = system.covariance_at(dt).cholesky() else {
+                let Some(cholesky) = sdeck_calculus::symmetric::cholesky(&system.covariance_at(dt))
+                else {
                     return f64::NAN;
                 };
                 cache.push((dt, propagator, offset, cholesky));
@@ -737,7 +738,7 @@ pub fn fit(problem: &Problem) -> Result<Fit, FitError> {
     let sub_covariance = if inside.is_empty() {
         DMatrix::zeros(0, 0)
     } else {
-        sub.cholesky()
+        sdeck_calculus::symmetric::cholesky(&sub)
             .map(|c| c.inverse())
             .filter(|c| c.iter().all(|v| v.is_finite()))
             .ok_or_else(|| FitError::NotIdentifiable { params: names() })?

@@ -18,7 +18,6 @@
 //! the discretisation bias with little noise.
 
 use crate::bytecode::{CompileError, Lanes, Program, LANES};
-use crate::linalg::{correlation_factor, gaussian_step, GaussianStep};
 use crate::normals::fill_normals_chunk;
 use crate::plan::{ExactLaw, Plan, Scheme, VarianceDriven};
 use crate::progress::{Progress, Reporting};
@@ -27,6 +26,8 @@ use nalgebra::{DMatrix, DVector};
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
 use rayon::prelude::*;
+use sdeck_calculus::linear_system::{gaussian_step, GaussianStep};
+use sdeck_calculus::symmetric::correlation_factor;
 use sdeck_semantics::Model;
 use std::fmt;
 
@@ -104,6 +105,8 @@ pub enum SimulateError {
     ThreadPool(String),
     /// A hand-made [`Plan`] whose sizes do not match the model.
     InconsistentPlan(String),
+    /// A matrix the steps need has a value that is not finite, or cannot be factored.
+    Matrix(String),
 }
 
 fn gib(bytes: u64) -> String {
@@ -137,6 +140,7 @@ impl fmt::Display for SimulateError {
             ),
             SimulateError::ThreadPool(message) => write!(f, "could not start the worker threads: {message}"),
             SimulateError::InconsistentPlan(message) => write!(f, "the simulation plan does not fit the model: {message}"),
+            SimulateError::Matrix(what) => write!(f, "{what} has a value that is not finite or cannot be factored: nothing is simulated"),
         }
     }
 }
@@ -461,7 +465,8 @@ fn compile(
 
     let correlation = model.correlation_matrix();
     let correlation = DMatrix::from_fn(noise_count, noise_count, |i, j| correlation[i][j]);
-    let factor = correlation_factor(&correlation);
+    let factor = correlation_factor(&correlation)
+        .ok_or_else(|| SimulateError::Matrix("the correlation matrix of the shocks".to_string()))?;
     if factor.repaired {
         warnings.push(
             "the correlation matrix of the shocks is not positive semi-definite; simulated with a repaired matrix \
@@ -547,13 +552,13 @@ fn compile(
     let step_doubling = step_doubling && discretised.iter().any(|d| *d);
     let segments = cut_segments(dates, steps, step_doubling)
         .into_iter()
-        .map(|(start, end, n)| {
+        .map(|(start, end, n)| -> Result<Segment, SimulateError> {
             let dt = if n == 0 {
                 0.0
             } else {
                 (end - start) / n as f64
             };
-            Segment {
+            Ok(Segment {
                 start,
                 dt,
                 sqrt_dt: dt.sqrt(),
@@ -563,27 +568,34 @@ fn compile(
                     .iter()
                     .map(|q| SquareRootStep::new(q.speed, q.level, q.vol, dt))
                     .collect(),
-                group: group_matrices.as_ref().map(|(states, drift, constant, q)| {
-                    let GaussianStep {
-                        transition,
-                        shift,
-                        noise_factor,
-                    } = gaussian_step(drift, constant, q, dt);
-                    GroupStep {
-                        states: states.clone(),
-                        transition: matrix_rows(&transition),
-                        shift: shift.iter().copied().collect(),
-                        noise_factor: matrix_rows(&noise_factor),
+                group: match group_matrices.as_ref() {
+                    None => None,
+                    Some((states, drift, constant, q)) => {
+                        let GaussianStep {
+                            transition,
+                            shift,
+                            noise_factor,
+                        } = gaussian_step(drift, constant, q, dt).ok_or_else(|| {
+                            SimulateError::Matrix(
+                                "the exact step of the Gaussian factors".to_string(),
+                            )
+                        })?;
+                        Some(GroupStep {
+                            states: states.clone(),
+                            transition: matrix_rows(&transition),
+                            shift: shift.iter().copied().collect(),
+                            noise_factor: matrix_rows(&noise_factor),
+                        })
                     }
-                }),
+                },
                 driven: driven.iter().map(|d| DrivenStep::new(d, dt)).collect(),
                 driven_coarse: driven
                     .iter()
                     .map(|d| DrivenStep::new(d, 2.0 * dt))
                     .collect(),
-            }
+            })
         })
-        .collect();
+        .collect::<Result<Vec<_>, _>>()?;
 
     let stack_depth = euler
         .iter()

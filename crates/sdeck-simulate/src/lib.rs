@@ -32,7 +32,6 @@ pub mod affine;
 pub mod bytecode;
 pub mod closed_form;
 pub mod engine;
-pub mod linalg;
 pub mod normals;
 pub mod plan;
 pub mod plot;
