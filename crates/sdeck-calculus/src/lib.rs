@@ -89,6 +89,27 @@ impl Family {
             Family::General => "general",
         }
     }
+
+    /// The laws one step of a factor of this family may follow in closed form, given its
+    /// value at the start of the step and constant coefficients: normal (of variance 0
+    /// for a deterministic factor) for the deterministic, arithmetic-Brownian,
+    /// Ornstein–Uhlenbeck and linear-system families and for a
+    /// linear factor with noise free of itself; lognormal for the geometric-Brownian
+    /// family and a linear factor with noise proportional to itself; noncentral
+    /// chi-square for the square-root family. None for the others.
+    pub fn step_laws(self) -> &'static [laws::LawKind] {
+        use laws::LawKind::{Lognormal, NoncentralChiSquare, Normal};
+        match self {
+            Family::Deterministic
+            | Family::ArithmeticBrownian
+            | Family::OrnsteinUhlenbeck
+            | Family::LinearSystem => &[Normal],
+            Family::Linear => &[Normal, Lognormal],
+            Family::GeometricBrownian => &[Lognormal],
+            Family::SquareRoot => &[NoncentralChiSquare],
+            Family::Polynomial | Family::ExponentialAffine | Family::General => &[],
+        }
+    }
 }
 
 /// How the figures of a state were obtained.

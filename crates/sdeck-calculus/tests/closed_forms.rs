@@ -533,3 +533,33 @@ fn nonsense_times_and_probabilities_give_nothing() {
     assert_eq!(quantile(&m, &d, 7, 1.0, 0.5), None);
     assert_eq!(autocovariance(&m, &d, 3, 0.0, 1.0), None);
 }
+
+#[test]
+fn the_exact_step_a_family_allows_is_the_law_it_derives() {
+    // A factor with constant coefficients follows, from its start, the law of one step:
+    // the law the calculus derives must be among those its family allows.
+    use sdeck_calculus::laws::{law_of, LawKind};
+    let cases = [
+        ("dx = 0.02 dt + 0.1 dW", LawKind::Normal),
+        ("dx = 1.5 * (0.03 - x) dt + 0.01 dW", LawKind::Normal),
+        ("dx = 0.05 * x dt + 0.2 * x dW", LawKind::Lognormal),
+        (
+            "dx = 1.2 * (0.04 - x) dt + 0.1 * sqrt(x) dW",
+            LawKind::NoncentralChiSquare,
+        ),
+    ];
+    for (equation, kind) in cases {
+        let source = format!("shock W\nfactor x = 0.03\n{equation}\n");
+        let model = sdeck_semantics::analyze(&source, "step").model;
+        let derivation = sdeck_calculus::derive(&model);
+        let family = derivation.states[0].family;
+        let law = law_of(&model, &derivation, 0, 0.5).map(|l| l.kind());
+        assert_eq!(law, Some(kind), "{equation}");
+        assert!(family.step_laws().contains(&kind), "{equation}: {family:?}");
+    }
+    // A family without a law in closed form allows no exact step.
+    let source = "shock W\nfactor x = 1\ndx = -x^3 dt + 0.2 dW\n";
+    let model = sdeck_semantics::analyze(source, "step").model;
+    let family = sdeck_calculus::derive(&model).states[0].family;
+    assert!(family.step_laws().is_empty(), "{family:?}");
+}

@@ -11,7 +11,8 @@
 
 use crate::affine::{affine_form, scaled_square_root, AffineForm};
 use crate::bytecode::mark_root_states;
-use sdeck_calculus::{Derivation, Family};
+use sdeck_calculus::laws::LawKind;
+use sdeck_calculus::Derivation;
 use sdeck_semantics::{Expr, Function, Model};
 
 /// How one state advances over a step.
@@ -510,22 +511,17 @@ fn agree(x: f64, y: f64) -> bool {
 /// the numbers. Every other state is simulated with Euler–Maruyama.
 pub fn plan(model: &Model, derivation: &Derivation) -> Plan {
     let mut plan = plan_from_model(model);
-    let family_of = |i: usize| derivation.states.get(i).map(|law| law.family);
+    // Which exact steps the calculus's classification allows for factor `i`.
+    let allows = |i: usize, step: LawKind| {
+        derivation
+            .states
+            .get(i)
+            .is_some_and(|law| law.family.step_laws().contains(&step))
+    };
     let mut to_euler = Vec::new();
 
     if let Some(group) = &plan.gaussian_group {
-        let families_agree = group.states.iter().all(|&i| {
-            matches!(
-                family_of(i),
-                Some(
-                    Family::Deterministic
-                        | Family::ArithmeticBrownian
-                        | Family::OrnsteinUhlenbeck
-                        | Family::Linear
-                        | Family::LinearSystem
-                )
-            )
-        });
+        let families_agree = group.states.iter().all(|&i| allows(i, LawKind::Normal));
         // When the calculus gives the drift matrix of the whole system, it must match.
         let matrix_agrees = match &derivation.drift_matrix {
             Some(matrix) if group.states.len() == model.factors.len() => {
@@ -547,18 +543,17 @@ pub fn plan(model: &Model, derivation: &Derivation) -> Plan {
     }
 
     for i in 0..plan.schemes.len() {
-        let family = family_of(i);
         let law = derivation.states.get(i);
         match &mut plan.schemes[i] {
             Scheme::Exact(ExactLaw::Lognormal { .. }) => {
-                if !matches!(family, Some(Family::GeometricBrownian | Family::Linear)) {
+                if !allows(i, LawKind::Lognormal) {
                     to_euler.push(i);
                 }
             }
             Scheme::Exact(ExactLaw::SquareRoot { speed, level, vol }) => {
                 match law
                     .and_then(|l| l.square_root.as_ref())
-                    .filter(|_| family == Some(Family::SquareRoot))
+                    .filter(|_| allows(i, LawKind::NoncentralChiSquare))
                 {
                     Some(params)
                         if agree(params.speed, *speed)
