@@ -20,32 +20,32 @@ pub fn hover(
     let converter = a.converter(encoding);
     let offset = converter.offset(position);
     let model = &a.check.analysis.model;
-    let (markdown, span) = if let Some(symbol) = a.symbol_at(offset) {
-        let text = match symbol.kind {
-            SymbolKind::Factor => state_text(a, model.factor_index(&symbol.name)?),
-            SymbolKind::Param => param_text(a, model.param_index(&symbol.name)?),
-            SymbolKind::Shock => noise_text(model, &symbol.name)?,
-            SymbolKind::Let => let_text(model, &symbol.name)?,
-            SymbolKind::Unit => unit_text(model, &symbol.name),
+    let (doc, span) = if let Some(symbol) = a.symbol_at(offset) {
+        let doc = match symbol.kind {
+            SymbolKind::Factor => state_doc(a, model.factor_index(&symbol.name)?),
+            SymbolKind::Param => Doc::text(param_text(a, model.param_index(&symbol.name)?)),
+            SymbolKind::Shock => Doc::text(noise_text(model, &symbol.name)?),
+            SymbolKind::Let => Doc::text(let_text(model, &symbol.name)?),
+            SymbolKind::Unit => Doc::text(unit_text(model, &symbol.name)),
         };
         let span = a
             .occurrences(symbol)
             .into_iter()
             .find(|s| s.start <= offset && offset <= s.end)
             .unwrap_or(symbol.name_span.clone());
-        (text, span)
-    } else if let Some((text, span)) = discount_at(a, offset) {
-        (text, span)
+        (doc, span)
+    } else if let Some((doc, span)) = discount_at(a, offset) {
+        (doc, span)
     } else if let Some((text, span)) = expectation_at(a, offset) {
-        (text, span)
+        (Doc::text(text), span)
     } else {
         let (name, span) = unit_name_at(a, offset)?;
-        (unit_text(model, &name), span)
+        (Doc::text(unit_text(model, &name)), span)
     };
     let value = if format == MarkupKind::PlainText {
-        plain_text(&markdown)
+        doc.plain()
     } else {
-        markdown
+        doc.markdown()
     };
     Some(Hover {
         contents: HoverContents::Markup(MarkupContent {
@@ -109,35 +109,110 @@ Not derived: {why}.
 /// The widest line of a hover.
 pub const COLUMNS: usize = 80;
 
-/// The Markdown of a hover as plain text: no emphasis, code marks or fences; a table
-/// row `| label | value |` becomes `label  value`.
-pub fn plain_text(markdown: &str) -> String {
-    let mut out = Vec::new();
-    for line in markdown.lines() {
-        let trimmed = line.trim();
-        if trimmed.starts_with("```")
-            || trimmed.starts_with("|---")
-            || trimmed == "| figure | value |"
-        {
-            continue;
-        }
-        if let Some(row) = trimmed.strip_prefix('|').and_then(|r| r.strip_suffix('|')) {
-            let cells: Vec<&str> = row.split(" | ").map(str::trim).collect();
-            if let [label, value] = cells.as_slice() {
-                out.push(format!("{label:<15} {value}"));
-                continue;
-            }
-            out.push(cells.join("  "));
-            continue;
-        }
-        let text = line.replace("**", "").replace('`', "");
-        let text = match text.strip_prefix('_').and_then(|t| t.strip_suffix('_')) {
-            Some(inner) => inner.to_string(),
-            None => text,
-        };
-        out.push(text);
+/// A hover as blocks of text, tables and code, rendered as Markdown or as plain text by
+/// their kind (never by reading the rendered text back).
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct Doc {
+    blocks: Vec<Block>,
+}
+
+#[derive(Clone, Debug, PartialEq)]
+enum Block {
+    /// Markdown lines, each ending with a newline; `**`, backticks and a line wrapped in
+    /// `_` are their only marks.
+    Text(String),
+    /// A table; in plain text each row is its cells, a two-cell row as `label  value`,
+    /// and the header is shown only when `header_in_plain`.
+    Table {
+        header: Vec<String>,
+        rows: Vec<Vec<String>>,
+        header_in_plain: bool,
+    },
+    /// The lines of a code block.
+    Code(Vec<String>),
+}
+
+impl Doc {
+    /// A hover of Markdown text alone.
+    pub fn text(markdown: String) -> Doc {
+        let mut doc = Doc::default();
+        doc.push_text(markdown);
+        doc
     }
-    out.join("\n")
+
+    fn push_text(&mut self, markdown: String) {
+        self.blocks.push(Block::Text(markdown));
+    }
+
+    fn push_table(&mut self, header: &[&str], rows: Vec<Vec<String>>, header_in_plain: bool) {
+        self.blocks.push(Block::Table {
+            header: header.iter().map(|h| h.to_string()).collect(),
+            rows,
+            header_in_plain,
+        });
+    }
+
+    fn push_code(&mut self, lines: Vec<String>) {
+        self.blocks.push(Block::Code(lines));
+    }
+
+    pub fn markdown(&self) -> String {
+        let mut s = String::new();
+        for block in &self.blocks {
+            match block {
+                Block::Text(text) => s.push_str(text),
+                Block::Table { header, rows, .. } => {
+                    s.push_str(&format!("| {} |\n", header.join(" | ")));
+                    s.push_str(&format!("|{}\n", "---|".repeat(header.len())));
+                    for row in rows {
+                        s.push_str(&format!("| {} |\n", row.join(" | ")));
+                    }
+                }
+                Block::Code(lines) => {
+                    s.push_str(&format!("```text\n{}\n```\n", lines.join("\n")));
+                }
+            }
+        }
+        s
+    }
+
+    /// Plain text: no emphasis, code marks or fences; a table row `label | value` becomes
+    /// `label  value` in aligned columns.
+    pub fn plain(&self) -> String {
+        let mut out: Vec<String> = Vec::new();
+        let cells = |cells: &[String]| match cells {
+            [label, value] => format!("{label:<15} {value}"),
+            _ => cells.join("  "),
+        };
+        for block in &self.blocks {
+            match block {
+                Block::Text(text) => out.extend(text.lines().map(without_marks)),
+                Block::Table {
+                    header,
+                    rows,
+                    header_in_plain,
+                } => {
+                    if *header_in_plain {
+                        out.push(cells(header));
+                    }
+                    out.extend(rows.iter().map(|row| cells(row)));
+                }
+                Block::Code(lines) => {
+                    out.extend(lines.iter().flat_map(|l| l.lines()).map(without_marks))
+                }
+            }
+        }
+        out.join("\n")
+    }
+}
+
+/// A line of Markdown without its marks: no `**`, no backticks, no `_` around it.
+fn without_marks(line: &str) -> String {
+    let text = line.replace("**", "").replace('`', "");
+    match text.strip_prefix('_').and_then(|t| t.strip_suffix('_')) {
+        Some(inner) => inner.to_string(),
+        None => text,
+    }
 }
 
 /// Breaks the lines longer than `width` at spaces; a continuation is indented as its
@@ -173,7 +248,7 @@ pub fn fit_columns(text: &str, width: usize) -> String {
 }
 
 /// Hover on the `discount` keyword: how the rate is read and the curve at a few maturities.
-fn discount_at(a: &Analyzed, offset: usize) -> Option<(String, sdeck_diagnostics::Span)> {
+fn discount_at(a: &Analyzed, offset: usize) -> Option<(Doc, sdeck_diagnostics::Span)> {
     let statement = a.check.analysis.file.statements.iter().find(|s| {
         matches!(s.kind, StatementKind::Discount { .. })
             && s.span.start <= offset
@@ -196,23 +271,33 @@ fn discount_at(a: &Analyzed, offset: usize) -> Option<(String, sdeck_diagnostics
     ));
     let years: [f64; 4] = [1.0, 2.0, 5.0, 10.0];
     let maturities: Vec<f64> = years.iter().map(|y| y / model.clock.years).collect();
+    let mut doc = Doc::default();
     match sdeck_calculus::curve::curve(model, &discount.rate, &maturities) {
         Ok(c) => {
-            s.push_str("\n| maturity | price | zero yield | forward |\n|---|---|---|---|\n");
-            for (p, y) in c.points.iter().zip(years) {
-                s.push_str(&format!(
-                    "| {} year | {} | {}% | {}% |\n",
-                    plain(y),
-                    plain(p.price),
-                    plain(p.yield_rate * 100.0),
-                    plain(p.forward * 100.0)
-                ));
-            }
+            s.push('\n');
+            doc.push_text(s);
+            let rows = c
+                .points
+                .iter()
+                .zip(years)
+                .map(|(p, y)| {
+                    vec![
+                        format!("{} year", plain(y)),
+                        plain(p.price),
+                        format!("{}%", plain(p.yield_rate * 100.0)),
+                        format!("{}%", plain(p.forward * 100.0)),
+                    ]
+                })
+                .collect();
+            doc.push_table(&["maturity", "price", "zero yield", "forward"], rows, true);
         }
-        Err(why) => s.push_str(&format!("\nNo curve: {why}.\n")),
+        Err(why) => {
+            s.push_str(&format!("\nNo curve: {why}.\n"));
+            doc.push_text(s);
+        }
     }
     let start = statement.span.start;
-    Some((s, start..start + "discount".len()))
+    Some((doc, start..start + "discount".len()))
 }
 
 /// A time unit and its length in clock units.
@@ -284,40 +369,35 @@ fn speed_unit(a: &Analyzed, state: usize) -> TimeUnit {
 /// The figures a reader wants first (mean, sd, quantiles at the horizon, half-life),
 /// then why the family, the description and the formulas: the factor's report at the
 /// horizon, as `sdeck moments` derives it.
-pub fn state_text(a: &Analyzed, i: usize) -> String {
+fn state_doc(a: &Analyzed, i: usize) -> Doc {
+    let mut doc = Doc::default();
     let model = &a.check.analysis.model;
     let (Some(state), Some(report)) = (model.factors.get(i), a.horizon_report(i)) else {
-        return String::new();
+        return doc;
     };
     let figures = &report.figures;
-    let mut s = format!(
-        "**factor `{}`** · {}\n",
+    doc.push_text(format!(
+        "**factor `{}`** · {}\n\nAt the horizon, t = {}:\n\n",
         report.name,
-        report.family.as_str()
-    );
-    s.push_str(&format!(
-        "\nAt the horizon, t = {}:\n\n| figure | value |\n|---|---|\n",
+        report.family.as_str(),
         horizon_unit(a).show(figures.at)
     ));
-    s.push_str(&format!("| mean | {} |\n", brief_or_unknown(figures.mean)));
-    s.push_str(&format!("| sd | {} |\n", brief_or_unknown(figures.sd)));
+    let mut rows: Vec<Vec<String>> = Vec::new();
+    let mut row = |label: String, value: String| rows.push(vec![label, value]);
+    row("mean".into(), brief_or_unknown(figures.mean));
+    row("sd".into(), brief_or_unknown(figures.sd));
     if let [Some(low), Some(mid), Some(high)] = HORIZON_QUANTILES.map(|p| figures.quantile(p)) {
-        s.push_str(&format!(
-            "| 5% · 50% · 95% | {} · {} · {} |\n",
-            brief(low),
-            brief(mid),
-            brief(high)
-        ));
+        row(
+            "5% · 50% · 95%".into(),
+            format!("{} · {} · {}", brief(low), brief(mid), brief(high)),
+        );
     }
     if let Some(h) = report.half_life {
-        s.push_str(&format!("| half-life | {} |\n", speed_unit(a, i).show(h)));
+        row("half-life".into(), speed_unit(a, i).show(h));
     }
-    s.push_str(&format!(
-        "| variance | {} |\n",
-        brief_or_unknown(figures.variance)
-    ));
+    row("variance".into(), brief_or_unknown(figures.variance));
     if let Some(kind) = figures.law {
-        s.push_str(&format!("| law | {} |\n", kind.as_str()));
+        row("law".into(), kind.as_str().to_string());
         let below_zero = figures
             .below
             .iter()
@@ -325,18 +405,17 @@ pub fn state_text(a: &Analyzed, i: usize) -> String {
             .and_then(|b| b.probability)
             .filter(|p| kind.on_whole_line() && *p > 0.0 && *p < 1.0);
         if let Some(p) = below_zero {
-            s.push_str(&format!("| P({} < 0) | {} |\n", report.name, brief(p)));
+            row(format!("P({} < 0)", report.name), brief(p));
         }
     }
     if let Some(st) = &report.stationary {
-        s.push_str(&format!(
-            "| stationary | {}, mean {}, sd {} |\n",
-            st.law,
-            brief(st.mean),
-            brief(st.sd)
-        ));
+        row(
+            "stationary".into(),
+            format!("{}, mean {}, sd {}", st.law, brief(st.mean), brief(st.sd)),
+        );
     }
-    s.push_str(&format!("\n{}\n", report.reason));
+    doc.push_table(&["figure", "value"], rows, false);
+    let mut s = format!("\n{}\n", report.reason);
     if let Some(description) = &report.description {
         s.push_str(&format!("\n_{}_\n", description.trim()));
     }
@@ -355,12 +434,17 @@ pub fn state_text(a: &Analyzed, i: usize) -> String {
         .map(|(label, text)| format!("{label:<10} {text}"))
         .collect();
     if !lines.is_empty() {
-        s.push_str(&format!("\n```text\n{}\n```\n", lines.join("\n")));
+        s.push('\n');
+        doc.push_text(std::mem::take(&mut s));
+        doc.push_code(lines);
     }
     if a.check.analysis.has_errors() {
         s.push_str("\n_The model has errors: these figures rest on what could be resolved._\n");
     }
-    s
+    if !s.is_empty() {
+        doc.push_text(s);
+    }
+    doc
 }
 
 /// Value in the clock's units, bound, description and role.
@@ -576,5 +660,39 @@ fn unit_name_at(a: &Analyzed, offset: usize) -> Option<(String, sdeck_diagnostic
 fn visit_quantity(q: &Quantity, visit: &mut impl FnMut(&UnitExpr)) {
     if let Some(u) = &q.unit {
         visit(u);
+    }
+}
+
+#[cfg(test)]
+mod doc_tests {
+    use super::Doc;
+
+    #[test]
+    fn a_doc_renders_by_its_blocks_not_by_its_text() {
+        let mut doc = Doc::text("**factor `r`** · x\n\n".to_string());
+        doc.push_table(
+            &["figure", "value"],
+            vec![vec!["mean".into(), "0.03".into()]],
+            false,
+        );
+        // Text that looks like a table row or a fence stays text.
+        doc.push_text("\n| not | a row |\n_said_\n".to_string());
+        doc.push_code(vec!["mean       E[r(t)] = `m`".into()]);
+        assert_eq!(
+            doc.markdown(),
+            "**factor `r`** · x\n\n| figure | value |\n|---|---|\n| mean | 0.03 |\n\n\
+             | not | a row |\n_said_\n```text\nmean       E[r(t)] = `m`\n```\n"
+        );
+        assert_eq!(
+            doc.plain(),
+            "factor r · x\n\nmean            0.03\n\n| not | a row |\nsaid\nmean       E[r(t)] = m"
+        );
+        let mut curve = Doc::default();
+        curve.push_table(
+            &["maturity", "price"],
+            vec![vec!["1 year".into(), "0.97".into()]],
+            true,
+        );
+        assert_eq!(curve.plain(), "maturity        price\n1 year          0.97");
     }
 }
