@@ -508,12 +508,20 @@ pub fn state_figures(model: &Model, derivation: &Derivation, state: usize, t: f6
     } else {
         (state_moments(model, derivation, state, t), None)
     };
-    StateFigures {
+    let mut figures = StateFigures {
         mean: moments.mean,
         variance: moments.variance,
         exact: moments.method != Method::None,
         variance_infinite_from,
+    };
+    // A general factor with a drift affine in itself has its exact mean alone.
+    if figures.mean.is_none() && !derivation.outside_domain(state) {
+        if let Some(mean) = partial::state_mean(model, derivation, state, t) {
+            figures.mean = Some(mean);
+            figures.exact = true;
+        }
     }
+    figures
 }
 
 /// Cov(X_i(t), X_j(t)), where known; the variance when `i == j`. Two decoupled states

@@ -55,24 +55,13 @@ pub(crate) fn explain(model: &Model, derivation: &mut Derivation) {
 /// exact; its variance stays unknown.
 pub(crate) fn fill_means(model: &Model, derivation: &Derivation, moments: &mut Moments) {
     let t = moments.at;
-    if !(t.is_finite() && t >= 0.0) {
-        return;
-    }
-    let params = &derivation.analysis().params;
-    for (i, law) in derivation.states.iter().enumerate() {
-        if law.family != Family::General || moments.mean.get(i).is_some_and(|m| m.is_some()) {
+    for i in 0..derivation.states.len() {
+        if moments.mean.get(i).is_some_and(|m| m.is_some()) {
             continue;
         }
-        let Some((a, b)) = own_affine_drift(model, i, params) else {
+        let Some(mean) = state_mean(model, derivation, i, t) else {
             continue;
         };
-        let Some(x0) = model.factors.get(i).map(|f| f.initial) else {
-            continue;
-        };
-        let mean = x0 * (b * t).exp() + a * phi(b, t);
-        if !mean.is_finite() {
-            continue;
-        }
         if let Some(slot) = moments.mean.get_mut(i) {
             *slot = Some(mean);
         }
@@ -80,4 +69,24 @@ pub(crate) fn fill_means(model: &Model, derivation: &Derivation, moments: &mut M
             *exact = true;
         }
     }
+}
+
+/// The exact mean at `t` of factor `state` when it is `general` with a drift affine in
+/// itself (exact, as [`fill_means`] marks it).
+pub(crate) fn state_mean(
+    model: &Model,
+    derivation: &Derivation,
+    state: usize,
+    t: f64,
+) -> Option<f64> {
+    if !(t.is_finite() && t >= 0.0) {
+        return None;
+    }
+    if derivation.states.get(state)?.family != Family::General {
+        return None;
+    }
+    let (a, b) = own_affine_drift(model, state, &derivation.analysis().params)?;
+    let x0 = model.factors.get(state)?.initial;
+    let mean = x0 * (b * t).exp() + a * phi(b, t);
+    mean.is_finite().then_some(mean)
 }
