@@ -136,7 +136,7 @@ const VASICEK: &str = "model stress\nclock month\nhorizon 1 year\n\
     shock W\nfactor r = 2.5%\ndr = kappa * (theta - r) dt + sigma dW\n";
 
 #[test]
-fn messages_give_probabilities_and_yields_in_percent_and_times_in_the_clock() {
+fn messages_give_probabilities_and_yields_in_percent_and_times_as_written() {
     // P(r₁ < 0) = scipy.stats.norm.cdf(0, m, s) = 8.461457e-4 with the Vasicek mean
     // m = θ + (r₀ − θ)e^{−κ} = 3.326007% and s² = σ²(1 − e^{−2κ})/(2κ), s = 1.059402%
     // (Vasicek 1977); shown as 0.08461%.
@@ -144,17 +144,21 @@ fn messages_give_probabilities_and_yields_in_percent_and_times_in_the_clock() {
     let messages = failed(&c);
     assert_eq!(messages.len(), 1, "{messages:?}");
     assert!(
-        messages[0].starts_with("prob(r < 0, 12 month) = 0.08461% "),
+        messages[0].starts_with("prob(r < 0, 1 year) = 0.08461%; "),
         "{}",
         messages[0]
     );
-    assert!(messages[0].ends_with("is outside the expected (−∞, 0.01%)"));
+    assert!(
+        messages[0].ends_with("; expected < 0.01%"),
+        "{}",
+        messages[0]
+    );
     // The yield in % and the bound as written; no `discount` line is a clear failure.
     let c = run(&format!("{VASICEK}expect yield(10 year) in [2.5%, 3%]\n"));
     let messages = failed(&c);
     assert_eq!(messages.len(), 1);
     assert!(
-        messages[0].contains("yield(120 month) does not exist: the model has no `discount` line"),
+        messages[0].contains("yield(10 year) does not exist: the model has no `discount` line"),
         "{}",
         messages[0]
     );
@@ -171,8 +175,8 @@ fn messages_give_probabilities_and_yields_in_percent_and_times_in_the_clock() {
     let messages = failed(&c);
     assert_eq!(messages.len(), 1, "{messages:?}");
     assert!(
-        messages[0].starts_with("yield(120 month) = 3.")
-            && messages[0].ends_with("% is outside the expected [2.5%, 3%]"),
+        messages[0].starts_with("yield(10 year) = 3.")
+            && messages[0].ends_with("%; expected in [2.5%, 3%]"),
         "{}",
         messages[0]
     );
@@ -181,7 +185,8 @@ fn messages_give_probabilities_and_yields_in_percent_and_times_in_the_clock() {
     let messages = failed(&c);
     assert_eq!(messages.len(), 1);
     assert!(
-        messages[0].starts_with("quantile(r, 99%, 6 month) = ") && messages[0].contains("% is"),
+        messages[0].starts_with("quantile(r, 99%, 6 month) = ")
+            && messages[0].contains("%; expected < 1%"),
         "{}",
         messages[0]
     );
@@ -244,5 +249,37 @@ fn rates_in_units_of_time_convert_and_bad_arguments_are_explained() {
             found[0].help.clone().unwrap_or_default()
         );
         assert!(text.contains(says), "{line}: {text}");
+    }
+}
+
+#[test]
+fn failed_expectations_speak_in_the_units_the_bound_is_written_in() {
+    // κ = 25 per year: half-life ln 2/25 year = 10.12 day; stationary-free OU figures
+    // from Vasicek 1977: mean at 1 month 3% − 1%·e^{−25/12} = 2.875%, sd at 1 year
+    // 1%·√((1 − e^{−50})/50) = 14.14bp.
+    let model = "model exp\nclock year\nhorizon 1 year\nparam k = 25 [1/year]\n\
+                 param level = 3%\nparam vol = 1% [1/sqrt(year)]\nshock W\nfactor s = 2%\n\
+                 ds = k*(level - s) dt + vol dW\n";
+    for (line, message) in [
+        (
+            "expect halflife(s) < 10 day",
+            "halflife(s) = 10.12 day; expected < 10 day",
+        ),
+        (
+            "expect mean(s, 1 month) in [2.5%, 2.6%]",
+            "mean(s, 1 month) = 2.875%; expected in [2.5%, 2.6%]",
+        ),
+        (
+            "expect sd(s) < 10bp",
+            "sd(s, 1 year) = 14.14bp; expected < 10bp",
+        ),
+        (
+            "expect halflife(s) >= 2 week",
+            "halflife(s) = 1.446 week; expected ≥ 2 week",
+        ),
+    ] {
+        let c = run(&format!("{model}{line}\n"));
+        let messages = failed(&c);
+        assert_eq!(messages, vec![message.to_string()], "{line}");
     }
 }

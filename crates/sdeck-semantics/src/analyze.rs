@@ -2288,8 +2288,13 @@ impl<'a> Analyzer<'a> {
                 unit: None,
             },
             (Figure::Quantile, Some(i)) => factor_shown(self, i, written_percent),
+            (figure, Some(i)) => self.moment_shown(figure, i, &x.condition),
             _ => Shown::Clock,
         };
+        let at_text = x.at.as_ref().and_then(|q| {
+            let text = self.source.get(q.span.clone())?;
+            Some(text.split_whitespace().collect::<Vec<_>>().join(" "))
+        });
         let figure_name = match &x.state {
             Some(s) => format!("{}({})", x.figure.keyword(), s.name),
             None => format!("{}(…)", x.figure.keyword()),
@@ -2352,11 +2357,54 @@ impl<'a> Analyzer<'a> {
             side: x.side,
             level,
             at,
+            at_text,
             admissible,
             shown,
             level_shown,
             span,
         })
+    }
+
+    /// How a message shows a moment or a half-life: as the bound is written. A mean or sd
+    /// of a dimensionless factor bounded in `%` or `bp` is shown in %/bp; a half-life
+    /// bounded in a time unit (`10 day`) in that unit; anything else in clock units.
+    fn moment_shown(&self, figure: Figure, state: usize, condition: &ast::Condition) -> Shown {
+        let bounds: Vec<&ast::Quantity> = match condition {
+            ast::Condition::Compare { value, .. } => vec![value],
+            ast::Condition::Within { lower, upper, .. } => vec![lower, upper],
+        };
+        let dimensionless = self
+            .model
+            .factors
+            .get(state)
+            .is_some_and(|f| f.dimension == Dimension::dimensionless());
+        match figure {
+            Figure::Mean | Figure::Sd | Figure::StationaryMean | Figure::StationarySd
+                if dimensionless =>
+            {
+                if bounds.iter().any(|q| q.number.text.ends_with('%')) {
+                    Shown::Percent
+                } else if bounds.iter().any(|q| q.number.text.ends_with("bp")) {
+                    Shown::BasisPoints
+                } else {
+                    Shown::Clock
+                }
+            }
+            Figure::Halflife => bounds
+                .iter()
+                .find_map(|q| {
+                    let unit = q.unit.as_ref()?;
+                    let text = self.source.get(unit.span())?.trim();
+                    let text = text.trim_start_matches('[').trim_end_matches(']').trim();
+                    let years = sdeck_units::time_units::time_unit_years(text)?;
+                    Some(Shown::Time {
+                        scale: years / self.model.clock.years,
+                        unit: text.to_string(),
+                    })
+                })
+                .unwrap_or(Shown::Clock),
+            _ => Shown::Clock,
+        }
     }
 
     /// A bound of a figure of the factor `state` (its moments, half-life, quantile) in

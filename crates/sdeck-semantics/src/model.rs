@@ -295,6 +295,8 @@ pub struct Expectation {
     /// The time at which the figure is taken (clock units; the maturity of a curve
     /// figure); `None` means the horizon.
     pub at: Option<f64>,
+    /// The time as written (`1 month`), for messages.
+    pub at_text: Option<String>,
     /// The admissible values, in the figure's clock units (probabilities, prices and
     /// annual decimals for yields and forwards).
     pub admissible: Interval,
@@ -315,6 +317,11 @@ pub enum Shown {
     /// Divided by `scale` and followed by the unit as declared (a quantile of a factor,
     /// a bond price).
     Scaled { scale: f64, unit: Option<String> },
+    /// In basis points (a mean or sd of a rate whose bound is written in `bp`).
+    BasisPoints,
+    /// A duration in the time unit the bound is written in (`10 day`): `scale` is that
+    /// unit's length in clock units.
+    Time { scale: f64, unit: String },
 }
 
 impl Shown {
@@ -326,6 +333,13 @@ impl Shown {
             Shown::Percent => sdeck_units::number::percent(value, 4),
             Shown::Scaled { scale, unit } => {
                 sdeck_units::number::with_unit(value / scale, unit.as_deref())
+            }
+            Shown::BasisPoints => sdeck_units::number::basis_points(value, 4),
+            Shown::Time { scale, unit } => {
+                format!(
+                    "{} {unit}",
+                    sdeck_units::number::significant(value / scale, 4)
+                )
             }
         }
     }

@@ -5,7 +5,7 @@ use super::shared::{number, show_interval_with, state_name};
 use super::Context;
 use sdeck_calculus::expectation_value;
 use sdeck_diagnostics::{rules, Diagnostic};
-use sdeck_semantics::{Expectation, Model, Shown};
+use sdeck_semantics::{Expectation, Interval, Model, Shown};
 use sdeck_syntax::ast::{Figure, Side};
 
 /// `expectation-failed`: a pinned figure outside its admissible interval, or a figure
@@ -93,9 +93,9 @@ pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
                         &rules::EXPECTATION_FAILED,
                         expectation.span.clone(),
                         format!(
-                            "{described} = {} is outside the expected {}",
+                            "{described} = {}; expected {}",
                             show(v),
-                            show_interval_with(&expectation.admissible, show)
+                            expected_text(&expectation.admissible, &show)
                         ),
                     )
                     .with_note(note)
@@ -110,13 +110,16 @@ pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
     }
 }
 
-/// An expectation's figure as the reader wrote it, with the times in clock units:
-/// `mean(r, 12 month)`, `prob(r < 0, 12 month)`, `yield(120 month)`.
+/// An expectation's figure as the reader wrote it, with its time as written (the horizon
+/// in clock units): `mean(r, 1 year)`, `prob(r < 0, 12 month)`, `yield(10 year)`.
 fn describe_expectation(model: &Model, e: &Expectation) -> String {
     let clock = &model.clock.unit;
     let keyword = e.figure.keyword();
     let time = e.at.unwrap_or(model.horizon);
-    let time_text = format!("{} {clock}", number(time, 6));
+    let time_text = e
+        .at_text
+        .clone()
+        .unwrap_or_else(|| format!("{} {clock}", number(time, 6)));
     let Some(state) = e.state else {
         return format!("{keyword}({time_text})");
     };
@@ -134,6 +137,19 @@ fn describe_expectation(model: &Model, e: &Expectation) -> String {
         }
         (figure, _) if figure.takes_time() => format!("{keyword}({name}, {time_text})"),
         _ => format!("{keyword}({name})"),
+    }
+}
+
+/// The admissible values as the reader wrote them: `< 10 day`, `≥ 0.5`, `in [2.5%, 2.6%]`.
+fn expected_text(admissible: &Interval, show: &dyn Fn(f64) -> String) -> String {
+    match (admissible.lower, admissible.upper) {
+        (None, Some((u, inclusive))) => {
+            format!("{} {}", if inclusive { "≤" } else { "<" }, show(u))
+        }
+        (Some((l, inclusive)), None) => {
+            format!("{} {}", if inclusive { "≥" } else { ">" }, show(l))
+        }
+        _ => format!("in {}", show_interval_with(admissible, show)),
     }
 }
 

@@ -297,7 +297,7 @@ fn expectations_report_value_interval_and_missing_figures() {
     assert!(
         found[0]
             .message
-            .starts_with("mean(r, 1 year) = 0.028494 is outside the expected [0.029, 0.033]"),
+            .starts_with("mean(r, 1 year) = 2.849%; expected in [2.9%, 3.3%]"),
         "{}",
         found[0].message
     );
