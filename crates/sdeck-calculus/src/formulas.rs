@@ -283,6 +283,7 @@ pub(crate) fn one_state(model: &Model, os: &OneState, family: Family) -> Formula
                 format!(" + {noise}")
             };
             Formulas {
+                matrices: None,
                 solution: Some(format!("{x_t} = {x0}{drift}{noise}")),
                 mean: Some(format!("E[{x_t}] = {x0}{drift}")),
                 variance: Some(format!("Var[{x_t}] = {}", w.times(&os.alpha, "t"))),
@@ -341,6 +342,7 @@ pub(crate) fn one_state(model: &Model, os: &OneState, family: Family) -> Formula
                 .join(" + ");
             let gamma = w.factor(&os.gamma);
             Formulas {
+                matrices: None,
                 solution: Some(format!(
                     "{x_t} = {x0}·e^({} + {noise})",
                     w.times(&log_drift, "t")
@@ -368,6 +370,7 @@ pub(crate) fn one_state(model: &Model, os: &OneState, family: Family) -> Formula
             let beta = w.factor(&os.beta);
             let level = w.ratio(&os.a, &minus_b);
             Formulas {
+                matrices: None,
                 solution: None,
                 mean: Some(format!("E[{x_t}] = {}", reverting_mean(&w, os, &x0, "t"))),
                 variance: Some({
@@ -426,6 +429,7 @@ fn gaussian_affine(w: &Writer, os: &OneState, terms: &[(usize, Poly, Poly)]) -> 
     let minus_two_b = os.b.scale(-2.0);
     let alpha = w.factor(&os.alpha);
     Formulas {
+        matrices: None,
         solution: Some(format!("{x_t} = {mean} + {noise}")),
         mean: Some(format!("E[{x_t}] = {mean}")),
         variance: Some(format!(
@@ -604,6 +608,7 @@ fn linear_formulas(
     );
     let stationary = (!os.time_dependent).then(|| stationary_law(w.model, os, family));
     Formulas {
+        matrices: None,
         solution,
         mean: Some(mean),
         variance: Some(variance),
@@ -624,7 +629,6 @@ pub(crate) fn coupled(
     family: Family,
 ) -> Formulas {
     let w = Writer::new(model, state);
-    let _ = analysis;
     let x = &w.state;
     match family {
         Family::LinearSystem => {
@@ -658,6 +662,7 @@ pub(crate) fn coupled(
                     "Normal(−{a}⁻¹·{b}, {p}) with {a}·{p} + {p}·{a}ᵀ + {l}·{r}·{l}ᵀ = 0"
                 )),
                 transition: None,
+                matrices: system_numbers(model, analysis, &w.sym),
             }
         }
         Family::Polynomial => Formulas {
@@ -674,4 +679,63 @@ pub(crate) fn coupled(
         },
         _ => Formulas::default(),
     }
+}
+
+/// The most factors (and shocks) whose matrices are printed as numbers; a larger system
+/// keeps its formulas in letters only.
+const MAX_PRINTED_SYSTEM: usize = 6;
+
+/// A, b, L and R of a linear system with constant coefficients, as numbers in the
+/// factors' declaration order (rows of A and L: factors; columns of L and R: shocks).
+fn system_numbers(model: &Model, analysis: &Analysis, sym: &Symbols) -> Option<String> {
+    let system = &analysis.system;
+    let (rows, loadings) = (system.drift_rows.as_ref()?, system.loadings.as_ref()?);
+    let (n, k) = (model.factors.len(), model.shocks.len());
+    if system.time_dependent || n == 0 || n > MAX_PRINTED_SYSTEM || k > MAX_PRINTED_SYSTEM {
+        return None;
+    }
+    let params = &analysis.params;
+    let show = |x: f64| sdeck_units::number::plain(x).replace('-', "−");
+    let vector = |values: Vec<f64>| {
+        format!(
+            "({})",
+            values.into_iter().map(show).collect::<Vec<_>>().join(", ")
+        )
+    };
+    let matrix = |rows: Vec<Vec<f64>>| {
+        format!(
+            "({})",
+            rows.into_iter().map(vector).collect::<Vec<_>>().join(", ")
+        )
+    };
+    let a = matrix(
+        rows.iter()
+            .map(|(coefficients, _)| coefficients.iter().map(|c| c.value(params, 0.0)).collect())
+            .collect(),
+    );
+    let b = vector(
+        rows.iter()
+            .map(|(_, constant)| constant.value(params, 0.0))
+            .collect(),
+    );
+    let l = matrix(
+        loadings
+            .iter()
+            .map(|row| {
+                (0..k)
+                    .map(|j| row.get(j).map_or(0.0, |p| p.value(params, 0.0)))
+                    .collect()
+            })
+            .collect(),
+    );
+    let corr = &analysis.corr;
+    let r = matrix(
+        (0..k)
+            .map(|i| (0..k).map(|j| correlation(corr, i, j)).collect())
+            .collect(),
+    );
+    Some(format!(
+        "{} = {a}; {} = {b}; {} = {l}; {} = {r}",
+        sym.a, sym.b, sym.l, sym.r
+    ))
 }

@@ -171,6 +171,9 @@ pub struct Formulas {
     pub autocovariance: Option<String>,
     pub stationary: Option<String>,
     pub transition: Option<String>,
+    /// The numbers of a linear system's matrices at the file's parameters, in the letters
+    /// of the formulas: `A = ((−0.9, 0), (1.4, −1.4)); b = ...; L = ...; R = ...`.
+    pub matrices: Option<String>,
 }
 
 /// What is known of one state.

@@ -143,3 +143,34 @@ dy = (b*X - b*y) dt + R dB
     let solution = f.solution.as_deref().unwrap_or_default();
     assert!(solution.starts_with("Y(t) = e^(K·t)·Y₀"), "{solution}");
 }
+
+#[test]
+fn a_linear_system_prints_its_matrices_as_numbers_in_its_letters() {
+    // ds = b(t0 − s) dt + L dW, dX = A(s − t0 − X) dt + R dB with b = 0.9, A = 1.4,
+    // t0 = 2.5%, L = 0.8%, R = 0.5%, corr(W, B) = 0.35: drift matrix ((−b, 0), (A, −A)),
+    // constant (b·t0, −A·t0), loadings diag(L, R).
+    let source = "
+model names
+param b = 0.9 [1/year]
+param A = 1.4 [1/year]
+param L = 0.8% [1/sqrt(year)]
+param R = 0.5% [1/sqrt(year)]
+param t0 = 2.5%
+shock W
+shock B
+corr W, B = 0.35
+factor s = 3%
+factor X = 1%
+ds = b * (t0 - s) dt + L dW
+dX = A * (s - t0 - X) dt + R dB
+";
+    let all = formulas_of(source);
+    let (_, f) = all.iter().find(|(name, _)| name == "X").expect("factor X");
+    assert_eq!(
+        f.matrices.as_deref(),
+        Some(
+            "K = ((−0.9, 0), (1.4, −1.4)); a = (0.0225, −0.035); \
+             G = ((0.008, 0), (0, 0.005)); C = ((1, 0.35), (0.35, 1))"
+        )
+    );
+}

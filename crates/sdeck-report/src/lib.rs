@@ -63,6 +63,7 @@ pub fn formula_lines(f: &Formulas) -> Vec<(&'static str, &str)> {
         ("autocov.", &f.autocovariance),
         ("transition", &f.transition),
         ("stationary", &f.stationary),
+        ("numbers", &f.matrices),
     ]
     .into_iter()
     .filter_map(|(label, text)| text.as_deref().map(|t| (label, t)))
