@@ -8,7 +8,7 @@ use super::shared::{equation_span, number, param_literal, state_name};
 use super::Context;
 use sdeck_calculus::StateLaw;
 use sdeck_diagnostics::{rules, Diagnostic, TextEdit};
-use sdeck_semantics::Model;
+use sdeck_semantics::{Correlations, Model};
 
 /// A dimensionless factor that starts within ±20% is read as a rate (a proportion such as
 /// a utilisation starting at 50% is not): common practice, no source.
@@ -40,6 +40,8 @@ impl Default for Plausibility {
 }
 
 pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
+    // Built once: the correlations of every factor's shocks are looked up in it.
+    let corr = cx.model.correlations();
     for (index, law) in cx.derivation.states.iter().enumerate() {
         let Some(factor) = cx.model.factors.get(index) else {
             continue;
@@ -49,7 +51,7 @@ pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
         };
         let rate_like =
             factor.dimension.is_dimensionless() && factor.initial.abs() <= RATE_LIKE_START;
-        volatility(cx, index, law, rate_like, span.clone(), out);
+        volatility(cx, &corr, index, law, rate_like, span.clone(), out);
         half_life(cx, index, law, span.clone(), out);
         if rate_like {
             level(cx, index, law, span, out);
@@ -62,11 +64,11 @@ pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
 /// factor, absolute for a rate-like factor; with the loadings (clock units) it rests on.
 fn start_volatility(
     model: &Model,
+    corr: &Correlations,
     law: &StateLaw,
     x0: f64,
     rate_like: bool,
 ) -> Option<(f64, bool, Vec<f64>)> {
-    let corr = model.correlations();
     let per_year = |rate: f64| (rate / model.clock.years).sqrt();
     if let Some(lc) = &law.linear {
         let quadratic = |terms: &[(usize, f64)], shift: &dyn Fn(usize) -> f64| -> f64 {
@@ -133,6 +135,7 @@ fn percent_fix(cx: &Context, values: &[f64]) -> Option<(String, TextEdit)> {
 
 fn volatility(
     cx: &Context,
+    corr: &Correlations,
     index: usize,
     law: &StateLaw,
     rate_like: bool,
@@ -143,7 +146,8 @@ fn volatility(
     let Some(x0) = cx.model.factors.get(index).map(|f| f.initial) else {
         return;
     };
-    let Some((vol, relative, loadings)) = start_volatility(cx.model, law, x0, rate_like) else {
+    let Some((vol, relative, loadings)) = start_volatility(cx.model, corr, law, x0, rate_like)
+    else {
         return;
     };
     if vol.is_nan() || vol <= limit {
