@@ -36,6 +36,10 @@ use nalgebra::{DMatrix, DVector};
 
 use crate::linear_system::{is_stable, matrix_exponential};
 
+/// Largest system (1 + n + n(n + 1)) for which covariances are computed about the mean
+/// path; 14 factors give 225.
+const MAX_CENTRED_SIZE: usize = 240;
+
 /// Largest monomial basis (number of moments) the engine will build: the matrix
 /// exponential costs O(size³). C(n + 4, 4) stays below it up to n = 11 states at order 4.
 pub const MAX_BASIS_SIZE: usize = 1500;
@@ -354,7 +358,9 @@ impl PolynomialSystem {
         let w0 = m0 + n;
         let p0 = w0 + pairs.len();
         let size = p0 + pairs.len();
-        if size > MAX_BASIS_SIZE {
+        // The exponential costs O(size³): past this size (14 factors) the raw moments'
+        // difference is kept rather than let one figure cost seconds.
+        if size > MAX_CENTRED_SIZE {
             return None;
         }
         let b = &self.drift_constant;
