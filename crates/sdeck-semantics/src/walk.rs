@@ -6,6 +6,8 @@
 
 use crate::model::Expr;
 
+sdeck_syntax::expression_walks!(Expr);
+
 impl Expr {
     /// Calls `f` on each direct sub-expression, left to right.
     pub fn for_each_child<'e>(&'e self, mut f: impl FnMut(&'e Expr)) {
@@ -22,23 +24,6 @@ impl Expr {
             }
             Expr::Call(_, args) => args.iter().for_each(f),
         }
-    }
-
-    /// Calls `f` on this expression and every sub-expression, outermost first, left to
-    /// right.
-    pub fn walk<'e>(&'e self, f: &mut impl FnMut(&'e Expr)) {
-        f(self);
-        self.for_each_child(|child| child.walk(f));
-    }
-
-    /// Whether `f` holds for this expression or any sub-expression; stops at the first.
-    pub fn any(&self, f: &mut impl FnMut(&Expr) -> bool) -> bool {
-        if f(self) {
-            return true;
-        }
-        let mut found = false;
-        self.for_each_child(|child| found = found || child.any(f));
-        found
     }
 
     /// Appends the index of every parameter the expression mentions, left to right.

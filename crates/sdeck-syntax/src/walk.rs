@@ -5,6 +5,36 @@
 
 use crate::ast::{Expr, Ident, Quantity, StatementKind, UnitExpr};
 
+/// Gives a tree type with a `for_each_child` method its `walk` (every node, outermost
+/// first) and `any` (stops at the first node that holds): the syntax tree and the
+/// semantic tree share these two from one text.
+#[macro_export]
+macro_rules! expression_walks {
+    ($tree:ty) => {
+        impl $tree {
+            /// Calls `f` on this expression and every sub-expression, outermost first, in
+            /// order.
+            pub fn walk<'e>(&'e self, f: &mut impl FnMut(&'e $tree)) {
+                f(self);
+                self.for_each_child(|child| child.walk(f));
+            }
+
+            /// Whether `f` holds for this expression or any sub-expression; stops at the
+            /// first.
+            pub fn any(&self, f: &mut impl FnMut(&$tree) -> bool) -> bool {
+                if f(self) {
+                    return true;
+                }
+                let mut found = false;
+                self.for_each_child(|child| found = found || child.any(f));
+                found
+            }
+        }
+    };
+}
+
+expression_walks!(Expr);
+
 impl Expr {
     /// Calls `f` on each direct sub-expression, in source order.
     pub fn for_each_child<'e>(&'e self, mut f: impl FnMut(&'e Expr)) {
@@ -18,23 +48,6 @@ impl Expr {
             Expr::Call { args, .. } => args.iter().for_each(f),
             Expr::Paren { inner, .. } => f(inner),
         }
-    }
-
-    /// Calls `f` on this expression and every sub-expression, outermost first, in source
-    /// order.
-    pub fn walk<'e>(&'e self, f: &mut impl FnMut(&'e Expr)) {
-        f(self);
-        self.for_each_child(|child| child.walk(f));
-    }
-
-    /// Whether `f` holds for this expression or any sub-expression; stops at the first.
-    pub fn any(&self, f: &mut impl FnMut(&Expr) -> bool) -> bool {
-        if f(self) {
-            return true;
-        }
-        let mut found = false;
-        self.for_each_child(|child| found = found || child.any(f));
-        found
     }
 
     /// Calls `f` on every unit name in the quantities of this expression.
