@@ -140,3 +140,17 @@ fn the_project_moves_the_thresholds() {
     };
     assert!(findings(&source, &settings).is_empty());
 }
+
+#[test]
+fn an_overflowing_volatility_is_not_reported_as_infinite_percent() {
+    // v² = 1e400 overflows: no figure to quote, so no finding (and never "inf%").
+    let found = findings(
+        &rate("1e200 [1/sqrt(year)]", "0.5 [1/year]", "3%"),
+        &RuleSettings::default(),
+    );
+    assert!(
+        found.iter().all(|d| !d.message.contains("inf")),
+        "{found:#?}"
+    );
+    assert!(found.is_empty(), "{found:#?}");
+}

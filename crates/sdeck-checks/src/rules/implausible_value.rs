@@ -150,7 +150,8 @@ fn volatility(
     else {
         return;
     };
-    if vol.is_nan() || vol <= limit {
+    // An overflowing figure (a parameter near 1e308) says nothing about a slip of units.
+    if !vol.is_finite() || vol <= limit {
         return;
     }
     let name = state_name(cx.model, index);
@@ -237,7 +238,7 @@ fn level(
         return;
     };
     let level = stationary.mean;
-    if level.abs().is_nan() || level.abs() <= limit {
+    if !level.is_finite() || level.abs() <= limit {
         return;
     }
     let name = state_name(cx.model, index);
