@@ -73,6 +73,9 @@ TOLERANCE_QUADRATURE = 1e-7
 # figures must agree to 1e-10 relative, so the two reference methods must agree to a
 # tenth of that.
 TOLERANCE_SCHEDULE = 1e-10
+# Closed forms evaluated exactly (symbolic or 50-digit): the project's figures must agree
+# to 1e-12 relative.
+TOLERANCE_CLOSED_FORM = 1e-12
 
 FAMILIES = (
     "deterministic",
@@ -122,6 +125,16 @@ SOURCE_POLYNOMIAL = (
 SOURCE_HESTON = (
     "Heston 1993, A closed-form solution for options with stochastic volatility, "
     "Review of Financial Studies 6, 327-343 (log price with square-root variance)"
+)
+SOURCE_INTEGRATED_GEOMETRIC = (
+    "A = c int_0^t S du with S geometric: E[A] = c S0 (e^{mu t} - 1)/mu and "
+    "E[A^2] = 2 c^2 S0^2 int_0^t int_0^u e^{mu (u - v)} e^{(2 mu + sigma^2) v} dv du "
+    "(E[S_v S_u] for v <= u by the Markov property; Kloeden & Platen 1992, section 4.4), "
+    "integrated exactly by sympy"
+)
+SOURCE_PARTIAL_MEAN = (
+    "Kloeden & Platen 1992, section 4.2: with drifts affine in the factors, "
+    "m' = A m + b whatever the diffusion (the stochastic integrals being martingales)"
 )
 SOURCE_GAMMA = (
     "Cox, Ingersoll & Ross 1985, Econometrica 53: stationary law of the square-root "
@@ -176,6 +189,10 @@ class ModelSpec:
     also_at: list[float] = field(default_factory=list)
     # Tolerance published for the project's figures, when tighter than the default.
     tolerance: float | None = None
+    # Compute the moments in 50-digit arithmetic (mpmath) and check them against a
+    # symbolic closed form named here (see HIGH_PRECISION_CHECKS): for figures that
+    # cancel in double precision, such as the variance of an integral near t = 0.
+    high_precision_check: str | None = None
 
     @property
     def path(self) -> Path:
@@ -657,6 +674,48 @@ MODELS: list[ModelSpec] = [
         drift={"s": "b * (t0 - s)", "X": "A * (s - t0 - X)"},
         diffusion={"s": {"W": "L"}, "X": {"B": "R"}},
         sources=[SOURCE_VASICEK, SOURCE_VAN_LOAN],
+    ),
+    ModelSpec(
+        file="polynomial_saltmarsh_fuel_average.sde",
+        clock="year",
+        horizon=("1", "year"),
+        params=[P("mu", "3%", "1/year"), P("sigma", "35%", "1/sqrt(year)"), P("c", "1", "1/year")],
+        factors=[S("S", "80", "geometric-brownian"), S("A", "0", "polynomial")],
+        shocks=["W"],
+        correlations={},
+        drift={"S": "mu * S", "A": "c * S"},
+        diffusion={"S": {"W": "sigma * S"}, "A": {}},
+        sources=[SOURCE_POLYNOMIAL, SOURCE_INTEGRATED_GEOMETRIC, "mpmath.expm at 50 digits",
+                 "sympy.integrate (exact double integral)"],
+        also_at=[1e-6, 1e-3],
+        tolerance=TOLERANCE_CLOSED_FORM,
+        high_precision_check="integrated-geometric",
+    ),
+    ModelSpec(
+        file="partial_ketterby_capped_variance.sde",
+        clock="year",
+        horizon=("2", "year"),
+        params=[
+            P("kappa", "1.5", "1/year"),
+            P("theta", "0.04", "1/year"),
+            P("xi", "0.3", "1/year"),
+            P("vmax", "0.09", "1/year"),
+            P("mu", "4%", "1/year"),
+            P("a", "6", "1/year"),
+        ],
+        factors=[
+            S("v", "0.05", "square-root", "1/year"),
+            S("S", "100", "general", "KMC"),
+            S("q", "98", "general", "KMC"),
+        ],
+        shocks=["Wv", "Ws"],
+        correlations={("Wv", "Ws"): "-0.5"},
+        drift={"v": "kappa * (theta - v)", "S": "mu * S", "q": "a * (S - q)"},
+        diffusion={"v": {"Wv": "xi * sqrt(v)"}, "S": {"Ws": "S * sqrt(Min(v, vmax))"}, "q": {}},
+        sources=[SOURCE_PARTIAL_MEAN, SOURCE_CIR, "scipy.stats.ncx2",
+                 "scipy.linalg.expm of the augmented mean equations", "sympy Matrix.exp (exact)"],
+        also_at=[0.5],
+        tolerance=TOLERANCE_CLOSED_FORM,
     ),
 ]
 
@@ -1445,6 +1504,10 @@ def covariance_scale(covariance: np.ndarray, mean: np.ndarray | None = None) -> 
 
 
 def compute_figures(model: NumericModel) -> Figures:
+    if model.spec.high_precision_check is not None:
+        return high_precision_figures(model)
+    if any(state.family == "general" for state in model.spec.factors):
+        return partial_figures(model)
     where = model.spec.relative_path
     # Two methods must agree well inside the tolerance published for the project.
     agreement = METHOD_AGREEMENT if model.spec.tolerance is None else model.spec.tolerance / 10.0
@@ -1500,10 +1563,25 @@ def compute_figures(model: NumericModel) -> Figures:
     assert_agree(where, "covariances (primary vs solve_ivp)", covariance, check_covariance,
                  covariance_scale(covariance, mean), agreement)
 
+    half_lives, stationary = half_lives_and_stationary_laws(model, mean, covariance)
+    method = "; ".join(dict.fromkeys(methods)) + "; checked against solve_ivp on the moment equations"
+    return Figures(mean, (covariance + covariance.T) / 2.0, half_lives, stationary, method, quadrature)
+
+
+def half_lives_and_stationary_laws(
+    model: NumericModel, mean: np.ndarray, covariance: np.ndarray, unknown: frozenset[int] = frozenset()
+) -> tuple[list[float | None], list[tuple[float, float] | None]]:
+    """Half-life and stationary law of every factor, each checked two ways; none for the
+    factors in `unknown` (no law known) and those whose laws depend on them."""
+    where = model.spec.relative_path
+    n = model.size
     half_lives = [half_life(model, i) for i in range(n)]
     stationary: list[tuple[float, float] | None] = []
     for i in range(n):
         closure = dependency_closure(model, i)
+        if unknown & set(closure):
+            stationary.append(None)
+            continue
         by_generator = stationary_by_generator(model, closure)
         family = model.spec.factors[i].family
         if by_generator is None:
@@ -1541,9 +1619,159 @@ def compute_figures(model: NumericModel) -> Figures:
             expected_half_life = math.log(2.0) / (-scalar_coefficients(model, i)[1])
             if half_lives[i] is None or abs(half_lives[i] - expected_half_life) > 1e-15 * expected_half_life:
                 raise ReferenceError(f"{where}: half-life of OU state {i} is {half_lives[i]}")
+    return half_lives, stationary
 
-    method = "; ".join(dict.fromkeys(methods)) + "; checked against solve_ivp on the moment equations"
-    return Figures(mean, (covariance + covariance.T) / 2.0, half_lives, stationary, method, quadrature)
+
+def moments_in_high_precision(model: NumericModel, digits: int = 50) -> tuple[list, list]:
+    """Mean and covariance of all factors from expm(G T) of the generator on monomials of
+    degree <= 2 (built with sympy), in `digits`-digit arithmetic (mpmath): the centring
+    E[X_i X_j] - E[X_i] E[X_j] then loses nothing a double would keep."""
+    import mpmath
+
+    indices = list(range(model.size))
+    system = moment_system(model, indices, model.initial)
+    if system.generator.has(TIME):
+        raise ReferenceError(f"{model.spec.relative_path}: generator depends on t")
+    with mpmath.workdps(digits):
+        generator = mpmath.matrix([[mpmath.mpf(sp.Float(e, digits)) for e in row]
+                                   for row in system.generator.tolist()])
+        moments = mpmath.expm(generator * mpmath.mpf(model.horizon))
+        first = [moments[system.position(tuple(int(k == i) for k in indices)), 0] for i in indices]
+        covariance = [[moments[system.position(tuple(int(k == i) + int(k == j) for k in indices)), 0]
+                       - first[i] * first[j] for j in indices] for i in indices]
+        mean = [first[i] + mpmath.mpf(float(system.shift[i])) for i in indices]
+        return ([float(m) for m in mean], [[float(c) for c in row] for row in covariance])
+
+
+def integrated_geometric_by_sympy(model: NumericModel) -> tuple[list, list]:
+    """S geometric, A = c int S: exact mean and covariance of (S, A) by sympy.integrate
+    (SOURCE_INTEGRATED_GEOMETRIC), evaluated to 50 digits."""
+    values = {q.name: q for q in model.spec.params}
+    mu, sigma, c = (sp.nsimplify(sp.Float(constant_value(values[k].literal, {}) * unit_scale(values[k].unit, model.spec.clock), 17), rational=True)
+                    for k in ("mu", "sigma", "c"))
+    s0 = sp.nsimplify(sp.Float(model.initial[0], 17), rational=True)
+    a0 = sp.nsimplify(sp.Float(model.initial[1], 17), rational=True)
+    t, u, v = sp.symbols("t u v", positive=True)
+    mean_s = s0 * sp.exp(mu * t)
+    mean_a = a0 + c * sp.integrate(s0 * sp.exp(mu * u), (u, 0, t))
+    # E[S_v S_u] = S0^2 e^{mu (u - v)} e^{(2 mu + sigma^2) v} for v <= u.
+    second_a = 2 * c**2 * sp.integrate(
+        sp.integrate(s0**2 * sp.exp(mu * (u - v)) * sp.exp((2 * mu + sigma**2) * v), (v, 0, u)), (u, 0, t))
+    var_a = second_a - (mean_a - a0) ** 2
+    var_s = s0**2 * sp.exp(2 * mu * t) * (sp.exp(sigma**2 * t) - 1)
+    # E[S_t A_t] - E[S_t] E[A_t]: c int_0^t (E[S_u S_t] - E[S_u] E[S_t]) du.
+    cov_sa = c * sp.integrate(s0**2 * sp.exp(mu * (t - u)) * sp.exp(2 * mu * u) * (sp.exp(sigma**2 * u) - 1), (u, 0, t))
+    at = sp.nsimplify(sp.Float(model.horizon, 17), rational=True)
+    value = lambda e: float(sp.N(e.subs(t, at), 50))
+    return ([value(mean_s), value(mean_a)],
+            [[value(var_s), value(cov_sa)], [value(cov_sa), value(var_a)]])
+
+
+HIGH_PRECISION_CHECKS = {"integrated-geometric": integrated_geometric_by_sympy}
+
+
+def high_precision_figures(model: NumericModel) -> Figures:
+    """Moments in 50-digit arithmetic, checked against a symbolic closed form."""
+    where = model.spec.relative_path
+    mean, covariance = (np.array(x) for x in moments_in_high_precision(model))
+    check = HIGH_PRECISION_CHECKS[model.spec.high_precision_check]
+    check_mean, check_covariance = (np.array(x) for x in check(model))
+    scale = np.sqrt(np.abs(np.diag(covariance)))
+    # Both are exact to far below a double's precision: they must agree to rounding.
+    assert_agree(where, "means (50-digit expm vs sympy)", mean, check_mean,
+                 np.maximum(np.abs(mean), scale), 1e-14)
+    assert_agree(where, "covariances (50-digit expm vs sympy)", covariance, check_covariance,
+                 covariance_scale(covariance, mean), 1e-14)
+    half_lives, stationary = half_lives_and_stationary_laws(model, mean, covariance)
+    method = ("generator on monomials of degree <= 2 (sympy), mpmath.expm at 50 digits; "
+              "checked against the closed form integrated by sympy")
+    return Figures(mean, (covariance + covariance.T) / 2.0, half_lives, stationary, method, False)
+
+
+def affine_drift_equations(model: NumericModel, indices: list[int]) -> tuple[sp.Matrix, sp.Matrix]:
+    """m' = A m + b for the factors `indices`, whose drifts must be affine in them with
+    constant coefficients: (A, b) as exact rationals of the double parameters."""
+    local = [model.symbols[i] for i in indices]
+    a = sp.zeros(len(indices), len(indices))
+    b = sp.zeros(len(indices), 1)
+    exact = lambda e: sp.nsimplify(sp.Float(as_float(e), 17), rational=True)
+    for row, i in enumerate(indices):
+        drift = model.drift[i]
+        if drift.has(TIME) or drift.free_symbols - set(local):
+            raise ReferenceError(f"{model.spec.relative_path}: drift of {local[row]} is not closed")
+        polynomial = sp.Poly(drift, *local)
+        if polynomial.total_degree() > 1:
+            raise ReferenceError(f"{model.spec.relative_path}: drift of {local[row]} is not affine")
+        b[row] = exact(polynomial.coeff_monomial(1))
+        for column, symbol in enumerate(local):
+            a[row, column] = exact(polynomial.coeff_monomial(symbol))
+    return a, b
+
+
+def drift_closure(model: NumericModel, i: int) -> list[int]:
+    """The factors that factor i's drift reaches, i included."""
+    closure = {i}
+    pending = [i]
+    while pending:
+        k = pending.pop()
+        for j, symbol in enumerate(model.symbols):
+            if symbol in model.drift[k].free_symbols and j not in closure:
+                closure.add(j)
+                pending.append(j)
+    return sorted(closure)
+
+
+def partial_figures(model: NumericModel) -> Figures:
+    """A model with factors of no known law ("general") whose drifts are affine: their
+    means from the linear mean equations (SOURCE_PARTIAL_MEAN), by scipy's expm of the
+    augmented matrix and by sympy's exact Matrix.exp; their variances and covariances
+    unknown (NaN). The other factors get the figures of their own family."""
+    where = model.spec.relative_path
+    n = model.size
+    general = frozenset(i for i in range(n) if model.spec.factors[i].family == "general")
+    mean = np.full(n, np.nan)
+    covariance = np.full((n, n), np.nan)
+    methods: list[str] = []
+    for i in range(n):
+        closure = dependency_closure(model, i)
+        if i not in general and not general & set(closure):
+            block_mean, block_cov = moments_by_generator_expm(model, closure)
+            k = closure.index(i)
+            if model.spec.factors[i].family == "square-root" and closure == [i]:
+                m, v = square_root_by_ncx2(model, i)
+                assert_agree(where, f"generator and ncx2 for state {i}", [block_mean[k], block_cov[k, k]],
+                             [m, v], [abs(m), v], METHOD_AGREEMENT)
+                methods.append("scaled non-central chi-square law (scipy.stats.ncx2)")
+            mean[i] = block_mean[k]
+            for j in closure:
+                if j not in general:
+                    covariance[i, j] = covariance[j, i] = block_cov[k, closure.index(j)]
+            continue
+        members = drift_closure(model, i)
+        a, b = affine_drift_equations(model, members)
+        m0 = np.array([model.initial[k] for k in members])
+        size = len(members)
+        augmented = np.zeros((size + 1, size + 1))
+        augmented[:size, :size] = np.array(a.tolist(), dtype=float) * model.horizon
+        augmented[:size, size] = np.array(b.tolist(), dtype=float)[:, 0] * model.horizon
+        augmented[size, size] = 0.0
+        position = members.index(i)
+        by_expm = (linalg.expm(augmented) @ np.append(m0, 1.0))[position]
+        t = sp.nsimplify(sp.Float(model.horizon, 17), rational=True)
+        exact_start = sp.Matrix([sp.nsimplify(sp.Float(x, 17), rational=True) for x in m0])
+        exact_augmented = sp.zeros(size + 1, size + 1)
+        exact_augmented[:size, :size] = a * t
+        exact_augmented[:size, size] = b * t
+        by_sympy = float(sp.N((exact_augmented.exp() * exact_start.col_join(sp.Matrix([1])))[position], 30))
+        assert_agree(where, f"mean of state {i} (expm vs sympy Matrix.exp)", [by_expm], [by_sympy],
+                     [abs(by_sympy)], 1e-14)
+        mean[i] = by_sympy
+        methods.append("linear mean equations m' = A m + b (scipy.linalg.expm, sympy Matrix.exp)")
+    half_lives, stationary = half_lives_and_stationary_laws(model, mean, covariance, general)
+    for i in general:
+        half_lives[i] = None
+    method = "; ".join(dict.fromkeys(methods)) + "; variances of the general factors unknown"
+    return Figures(mean, covariance, half_lives, stationary, method, False)
 
 
 # A mean smaller than this fraction of its standard deviation is round-off around an
@@ -1556,6 +1784,11 @@ def snap_zero(value: float, scale: float) -> float:
     return 0.0 if abs(value) <= ROUND_OFF_ZERO * scale else float(value)
 
 
+def unknown_as_null(matrix: np.ndarray) -> list[list[float | None]]:
+    """A matrix for the JSON file, with an unknown entry (NaN) written as null."""
+    return [[None if math.isnan(v) else float(v) for v in row] for row in matrix]
+
+
 def model_record(spec: ModelSpec) -> dict:
     model = build_numeric_model(spec)
     figures = compute_figures(model)
@@ -1563,11 +1796,12 @@ def model_record(spec: ModelSpec) -> dict:
     for i, state in enumerate(spec.factors):
         stationary = figures.stationary[i]
         variance = float(figures.covariance[i, i])
+        known_variance = None if math.isnan(variance) else variance
         factors.append({
             "name": state.name,
             "family": state.family,
-            "mean": snap_zero(figures.mean[i], math.sqrt(variance)),
-            "variance": variance,
+            "mean": snap_zero(figures.mean[i], math.sqrt(known_variance or 0.0)),
+            "variance": known_variance,
             "half_life": figures.half_lives[i],
             "stationary_mean": None if stationary is None else snap_zero(stationary[0], math.sqrt(stationary[1])),
             "stationary_variance": None if stationary is None else stationary[1],
@@ -1579,7 +1813,7 @@ def model_record(spec: ModelSpec) -> dict:
         "method": figures.method,
         "sources": list(spec.sources),
         "factors": factors,
-        "covariance": [[float(v) for v in row] for row in figures.covariance],
+        "covariance": unknown_as_null(figures.covariance),
     }
     if spec.also_at:
         also = []
@@ -1587,9 +1821,9 @@ def model_record(spec: ModelSpec) -> dict:
             other = compute_figures(dataclasses.replace(model, horizon=at))
             also.append({
                 "at": at,
-                "mean": [snap_zero(m, math.sqrt(abs(other.covariance[k, k])))
+                "mean": [None if math.isnan(m) else snap_zero(m, math.sqrt(abs(np.nan_to_num(other.covariance[k, k]))))
                          for k, m in enumerate(other.mean)],
-                "covariance": [[float(v) for v in row] for row in other.covariance],
+                "covariance": unknown_as_null(other.covariance),
             })
         record["also_at"] = also
     return record
@@ -1832,7 +2066,7 @@ def compare_documents(expected: dict, actual: dict) -> list[str]:
         old, new = old_models[name], new_models[name]
         # Covariance entries are compared on the scale of sd_i * sd_j, so that an
         # entry that is zero in exact arithmetic does not demand 1e-12 of itself.
-        variances = [s.get("variance", 0.0) for s in new.get("factors", [])]
+        variances = [s.get("variance") or 0.0 for s in new.get("factors", [])]
         for key in sorted(set(old) | set(new)):
             if key == "factors" and isinstance(old.get(key), list) and len(old[key]) == len(new[key]):
                 # A mean is compared on the scale of its standard deviation as well.

@@ -255,7 +255,11 @@ fn van_loan_covariance(a: &DMatrix<f64>, q: &DMatrix<f64>, t: f64) -> DMatrix<f6
 
 /// e^{At} and ∫₀ᵗ e^{As} b ds, both read from the exponential of the augmented matrix
 /// [[A, b], [0, 0]]·t, so a singular A (a random walk) works.
-fn propagate(a: &DMatrix<f64>, b: &DVector<f64>, t: f64) -> (DMatrix<f64>, DVector<f64>) {
+pub(crate) fn propagate(
+    a: &DMatrix<f64>,
+    b: &DVector<f64>,
+    t: f64,
+) -> (DMatrix<f64>, DVector<f64>) {
     let n = a.nrows();
     let mut augmented = DMatrix::<f64>::zeros(n + 1, n + 1);
     augmented.view_mut((0, 0), (n, n)).copy_from(&(a * t));

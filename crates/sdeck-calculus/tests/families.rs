@@ -191,3 +191,68 @@ dc = r * c * (1 - c) dt + s * c * (1 - c) dW
     assert_eq!(m.mean[0], None);
     assert!(!m.exact[0]);
 }
+
+#[test]
+fn a_factor_that_trails_a_general_one_has_an_exact_mean_from_the_linear_equations() {
+    // S has no family (its diffusion caps the variance with `min`), q follows it with
+    // dq = a·(S − q) dt. Both drifts are affine, so m′ = A·m + b gives
+    // E[q(t)] = 15000/151·e^{t/25} − 202/151·e^{−6t} (sympy dsolve of
+    // q′ = 6·(100·e^{0.04t} − q), q(0) = 98), evaluated to 20 digits.
+    let (model, d) = derived(
+        "
+model trailing
+param kappa = 1.5 [1/year]
+param theta = 0.04 [1/year]
+param xi = 0.3 [1/year]
+param vmax = 0.09 [1/year]
+param mu = 4% [1/year]
+param a = 6 [1/year]
+shock Wv, Ws
+factor v = 0.05 [1/year]
+factor S = 100
+factor q = 98
+dv = kappa * (theta - v) dt + xi * sqrt(v) dWv
+dS = mu * S dt + S * sqrt(min(v, vmax)) dWs
+dq = a * (S - q) dt
+",
+    );
+    let q = model.factor_index("q").expect("q");
+    assert_eq!(d.states[q].family, Family::General);
+    assert!(
+        d.states[q]
+            .reason
+            .contains("the drift of q is affine in the factors, and so are those of S"),
+        "{}",
+        d.states[q].reason
+    );
+    for (t, expected) in [(0.5, 101.277_901_407_887_61), (2.0, 107.611_289_893_996_58)] {
+        let m = moments_at(&model, &d, t);
+        assert_close("E[q]", m.mean[q].expect("mean of q"), expected, 1e-13);
+        assert_eq!(m.variance[q], None);
+        assert!(m.exact[q]);
+        let one = sdeck_calculus::state_figures(&model, &d, q, t);
+        assert_eq!(one.mean, m.mean[q], "one factor alone gives the same mean");
+    }
+}
+
+#[test]
+fn a_drift_that_reaches_a_non_affine_drift_gives_no_mean() {
+    // q trails c, whose logistic drift is not affine: m′ = A·m + b does not close.
+    let (model, d) = derived(
+        "
+model trailing_logistic
+param r = 0.8 [1/year]
+param s = 20% [1/sqrt(year)]
+param a = 2 [1/year]
+shock W, B
+factor c = 0.3
+factor q = 0.3
+dc = r * c * (1 - c) dt + s * c * (1 - c) dW
+dq = a * (c - q) dt + s * q * (1 - q) dB
+",
+    );
+    let q = model.factor_index("q").expect("q");
+    assert_eq!(d.states[q].family, Family::General);
+    assert!(!d.states[q].reason.contains("its mean follows from"));
+    assert_eq!(moments_at(&model, &d, 1.0).mean[q], None);
+}
