@@ -335,12 +335,7 @@ impl Shown {
                 sdeck_units::number::with_unit(value / scale, unit.as_deref())
             }
             Shown::BasisPoints => sdeck_units::number::basis_points(value, 4),
-            Shown::Time { scale, unit } => {
-                format!(
-                    "{} {unit}",
-                    sdeck_units::number::significant(value / scale, 4)
-                )
-            }
+            Shown::Time { scale, unit } => sdeck_units::number::duration(value / scale, unit),
         }
     }
 }

@@ -5,6 +5,7 @@
 
 use crate::analysis::Analyzed;
 use crate::documents::PositionEncoding;
+use crate::durations::half_life_unit;
 use sdeck_diagnostics::{Span, TextEdit};
 use sdeck_units::number::plain;
 use std::collections::HashMap;
@@ -107,7 +108,8 @@ fn moments_comment(a: &Analyzed, in_range: impl Fn(&Span) -> bool) -> Vec<(Strin
             }
         }
         if let Some(h) = report.half_life {
-            lines.push(format!("half-life {} {clock}", plain(h)));
+            let unit = half_life_unit(a, i, h);
+            lines.push(format!("half-life {}", unit.show(h)));
         }
         let text: String = lines.iter().map(|l| format!("{indent}# {l}\n")).collect();
         out.push((

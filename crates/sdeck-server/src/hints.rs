@@ -4,6 +4,7 @@
 
 use crate::analysis::{Analyzed, Role};
 use crate::documents::PositionEncoding;
+use crate::durations::half_life_unit;
 use sdeck_semantics::SymbolKind;
 use sdeck_units::number::plain;
 use tower_lsp::lsp_types::{InlayHint, InlayHintKind, InlayHintLabel, Range};
@@ -58,10 +59,12 @@ fn all_hints(a: &Analyzed) -> Vec<(usize, String)> {
         }
         for role in a.roles_of_param(i).iter().cloned() {
             if let Role::Speed {
-                half_life: Some(h), ..
+                state,
+                half_life: Some(h),
             } = role
             {
-                hints.push((p.span.end, format!("half-life {} {clock}", plain(h))));
+                let unit = half_life_unit(a, state, h);
+                hints.push((p.span.end, format!("half-life {}", unit.show(h))));
             }
         }
     }

@@ -5,6 +5,7 @@
 
 use crate::analysis::{Analyzed, Role, HORIZON_QUANTILES};
 use crate::documents::PositionEncoding;
+use crate::durations::{half_life_unit, TimeUnit};
 use sdeck_semantics::{Model, SymbolKind};
 use sdeck_syntax::ast::{DeclaredValue, Expr, Quantity, StatementKind, UnitExpr};
 use sdeck_units::number::{brief, brief_or_unknown, plain};
@@ -300,34 +301,6 @@ fn discount_at(a: &Analyzed, offset: usize) -> Option<(Doc, sdeck_diagnostics::S
     Some((doc, start..start + "discount".len()))
 }
 
-/// A time unit and its length in clock units.
-struct TimeUnit {
-    name: String,
-    clock_units: f64,
-}
-
-impl TimeUnit {
-    fn of(model: &Model, name: &str) -> Option<TimeUnit> {
-        let years = sdeck_units::time_unit_years(name)?;
-        (years > 0.0 && model.clock.years > 0.0).then(|| TimeUnit {
-            name: name.to_string(),
-            clock_units: years / model.clock.years,
-        })
-    }
-
-    fn clock(model: &Model) -> TimeUnit {
-        TimeUnit {
-            name: model.clock.unit.clone(),
-            clock_units: 1.0,
-        }
-    }
-
-    /// A duration in clock units, written in this unit.
-    fn show(&self, clock_value: f64) -> String {
-        format!("{} {}", brief(clock_value / self.clock_units), self.name)
-    }
-}
-
 /// The unit the horizon was written in (`horizon 18 month`), else the clock's.
 fn horizon_unit(a: &Analyzed) -> TimeUnit {
     let model = &a.check.analysis.model;
@@ -344,26 +317,6 @@ fn horizon_unit(a: &Analyzed) -> TimeUnit {
             _ => None,
         })
         .unwrap_or_else(|| TimeUnit::clock(model))
-}
-
-/// The time unit of the speed of factor `state` as written (`[1/day]` gives days),
-/// else the clock's.
-fn speed_unit(a: &Analyzed, state: usize) -> TimeUnit {
-    let model = &a.check.analysis.model;
-    for (i, p) in model.params.iter().enumerate() {
-        let speed_of_state = a
-            .roles_of_param(i)
-            .iter()
-            .any(|r| matches!(r, Role::Speed { state: s, .. } if *s == state));
-        if !speed_of_state {
-            continue;
-        }
-        let unit = p.unit_text.as_deref().unwrap_or("").replace(' ', "");
-        if let Some(unit) = unit.strip_prefix("1/").and_then(|u| TimeUnit::of(model, u)) {
-            return unit;
-        }
-    }
-    TimeUnit::clock(model)
 }
 
 /// The figures a reader wants first (mean, sd, quantiles at the horizon, half-life),
@@ -393,7 +346,7 @@ fn state_doc(a: &Analyzed, i: usize) -> Doc {
         );
     }
     if let Some(h) = report.half_life {
-        row("half-life".into(), speed_unit(a, i).show(h));
+        row("half-life".into(), half_life_unit(a, i, h).show(h));
     }
     row("variance".into(), brief_or_unknown(figures.variance));
     if let Some(kind) = figures.law {
@@ -500,7 +453,7 @@ fn param_text(a: &Analyzed, i: usize) -> String {
                 match half_life {
                     Some(h) => s.push_str(&format!(
                         "\nspeed of mean reversion of `{name}`: half-life {}\n",
-                        speed_unit(a, state).show(h)
+                        half_life_unit(a, state, h).show(h)
                     )),
                     None => s.push_str(&format!("\nspeed of mean reversion of `{name}`\n")),
                 }

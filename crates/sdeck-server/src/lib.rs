@@ -22,6 +22,7 @@ mod analysis;
 mod completion;
 mod convert;
 pub mod documents;
+mod durations;
 mod hints;
 mod hover;
 mod navigation;

@@ -161,9 +161,10 @@ fn inlay_hints_show_conversion_half_life_and_stationary_sd() {
         labels.contains(&"= 1.825 [1/year]".to_string()),
         "{labels:?}"
     );
-    let half_life = sdeck_units::number::plain(2f64.ln() / 1.825);
+    // Half-life ln 2 / κ = 138.63 days (common practice, no source), in days as κ is
+    // written per day, four significant digits.
     assert!(
-        labels.contains(&format!("half-life {half_life} year")),
+        labels.contains(&"half-life 138.6 day".to_string()),
         "{labels:?}"
     );
     // Stationary sd σ/√(2κ) (Vasicek 1977, as t → ∞).
@@ -173,6 +174,33 @@ fn inlay_hints_show_conversion_half_life_and_stationary_sd() {
         .find_map(|l| l.strip_prefix("stationary sd "))
         .expect("sd hint");
     assert!((shown.parse::<f64>().unwrap_or(0.0) / sd - 1.0).abs() < 1e-5);
+}
+
+#[test]
+fn a_half_life_of_a_speed_in_clock_units_reads_in_the_most_readable_unit() {
+    // ln 2 / κ (common practice, no source): κ = 9.125 a year gives 0.07596 year = 27.73
+    // days; κ = 1.2 a year gives 0.5776 year = 6.931 months; κ = 0.05 a year 13.86 years.
+    for (kappa, shown) in [
+        ("9.125", "half-life 27.73 day"),
+        ("1.2", "half-life 6.931 month"),
+        ("0.05", "half-life 13.86 year"),
+    ] {
+        let text = format!(
+            "clock year\nhorizon 1 year\nparam kappa = {kappa} [1/year]\nparam sigma = 1% [1/sqrt(year)]\n\
+shock W\nfactor r = 1%\ndr = -kappa * r dt + sigma dW\n"
+        );
+        let a = analyzed(&text);
+        let labels: Vec<String> = crate::hints::inlay_hints(&a, UTF16, whole(&text))
+            .into_iter()
+            .filter_map(|h| match h.label {
+                tower_lsp::lsp_types::InlayHintLabel::String(s) => Some(s),
+                _ => None,
+            })
+            .collect();
+        assert!(labels.contains(&shown.to_string()), "{kappa}: {labels:?}");
+        let md = hover_text(&a, position_of(&text, "kappa *", 2));
+        assert!(md.contains(shown), "{kappa}: {md}");
+    }
 }
 
 fn actions(a: &Analyzed, text: &str) -> Vec<tower_lsp::lsp_types::CodeAction> {

@@ -69,6 +69,11 @@ pub fn brief(x: f64) -> String {
     significant(x, 4)
 }
 
+/// A duration of `value` units of `unit` to four significant digits: `27.7 day`.
+pub fn duration(value: f64, unit: &str) -> String {
+    format!("{} {unit}", brief(value))
+}
+
 /// A figure that may be unknown or not finite: [`brief`], or `not known`.
 pub fn brief_or_unknown(x: Option<f64>) -> String {
     match x {

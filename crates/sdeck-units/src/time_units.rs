@@ -43,6 +43,20 @@ pub fn time_unit_years(name: &str) -> Option<f64> {
     time_unit_years_exact(name).map(Rational::to_f64)
 }
 
+/// The most readable of year, month and day for a duration of `years` years: years from
+/// one year up, months from one month up, days below (a half-life of 0.0759 year reads
+/// 27.7 day, one of 0.38 year 4.56 month).
+pub fn readable_time_unit(years: f64) -> &'static str {
+    let years = years.abs();
+    if years >= 1.0 {
+        "year"
+    } else if years >= 1.0 / 12.0 {
+        "month"
+    } else {
+        "day"
+    }
+}
+
 /// Whether `name` is a built-in time unit.
 pub fn is_time_unit(name: &str) -> bool {
     TIME_UNITS.contains(&name)
