@@ -47,7 +47,8 @@ pub struct SimulateArgs {
     format: Format,
     /// Exit 1 when a simulated figure is more than 4 standard errors from its closed form
     /// (for discretised schemes: the extrapolated figure, and only when the bias estimate
-    /// is below the standard error; otherwise the run says it cannot decide).
+    /// is below the standard error; otherwise the run says it cannot decide). With a
+    /// `discount` line the bond price at each date is compared with the curve.
     #[arg(long)]
     check: bool,
     /// Write a fan chart of the simulated quantile bands (SVG).
@@ -233,8 +234,19 @@ pub fn run(args: SimulateArgs) -> ExitCode {
             .flat_map(|d| &d.states)
             .filter(|s| s.closed_form.is_some())
             .count();
+        let prices = simulated
+            .dates
+            .iter()
+            .filter_map(|d| d.discount.as_ref())
+            .filter(|p| p.closed_form.is_some())
+            .count();
+        let prices = if prices > 0 {
+            format!(", {prices} bond prices compared with the curve")
+        } else {
+            String::new()
+        };
         eprintln!(
-            "sdeck: check: no disagreement ({compared} factor-dates compared with closed forms, {} figures undecided)",
+            "sdeck: check: no disagreement ({compared} factor-dates compared with closed forms{prices}, {} figures undecided)",
             undecided.len()
         );
     }

@@ -5,6 +5,7 @@
 use crate::engine::{reporting_dates, SimulateError, SimulationOptions};
 use crate::plan::plan;
 use crate::report::{ClosedFigures, SimulationResult};
+use sdeck_calculus::curve::curve;
 use sdeck_calculus::laws::law_of;
 use sdeck_calculus::{moments_at, Derivation};
 use sdeck_semantics::Model;
@@ -89,5 +90,43 @@ pub fn simulate_and_compare_below(
     for (index, t) in dates.iter().enumerate() {
         result.attach_closed_figures(index, &closed_figures_at(model, derivation, *t, thresholds));
     }
+    if model.discount.is_some() {
+        match closed_prices_at(model, &dates) {
+            Ok(prices) => {
+                for (index, price) in prices.into_iter().enumerate() {
+                    result.attach_closed_price(index, price);
+                }
+            }
+            Err(why) => result.warnings.push(format!(
+                "the bond prices are not compared with a curve: {why}"
+            )),
+        }
+    }
     Ok(result)
+}
+
+/// The curve's zero-coupon bond prices P(0, t) of the model's `discount` line at `dates`
+/// (clock units; 1 at t = 0), from the calculus layer (closed form or Riccati). `None`
+/// for a model without a discount line.
+pub fn closed_prices_at(model: &Model, dates: &[f64]) -> Result<Vec<Option<f64>>, String> {
+    let Some(line) = &model.discount else {
+        return Ok(vec![None; dates.len()]);
+    };
+    let positive: Vec<f64> = dates.iter().copied().filter(|t| *t > 0.0).collect();
+    let derived = if positive.is_empty() {
+        Vec::new()
+    } else {
+        curve(model, &line.rate, &positive)?.points
+    };
+    let mut points = derived.iter();
+    Ok(dates
+        .iter()
+        .map(|t| {
+            if *t > 0.0 {
+                points.next().map(|p| p.price)
+            } else {
+                Some(1.0)
+            }
+        })
+        .collect())
 }

@@ -41,19 +41,19 @@ pub mod samplers;
 pub mod stats;
 
 pub use closed_form::{
-    closed_figures_at, closed_form_means, closed_forms_at, simulate_and_compare,
+    closed_figures_at, closed_form_means, closed_forms_at, closed_prices_at, simulate_and_compare,
     simulate_and_compare_below,
 };
 pub use engine::{
-    reporting_dates, simulate_paths, PathSamples, SimulateError, SimulationOptions,
-    DEFAULT_MEMORY_LIMIT,
+    reporting_dates, simulate_paths, DiscountSamples, PathSamples, SimulateError,
+    SimulationOptions, DEFAULT_MEMORY_LIMIT,
 };
 pub use plan::{plan, plan_from_model, ExactLaw, GaussianGroup, Plan, Scheme, VarianceDriven};
 pub use plot::{fan_chart_svg, write_fan_chart, PlotError};
 pub use report::{
     check, render_text, to_json, verdicts, Bands, BelowEstimate, BiasEstimate, ClosedFigures,
-    ClosedFormComparison, DateResult, Disagreement, SimulationResult, StateResult, Undecided,
-    CHECK_THRESHOLD,
+    ClosedFormComparison, DateResult, Disagreement, DiscountEstimate, SimulationResult,
+    StateResult, Undecided, CHECK_THRESHOLD,
 };
 pub use stats::QUANTILE_PROBABILITIES;
 

@@ -56,6 +56,22 @@ pub struct BelowEstimate {
     pub bias: Option<(f64, f64, f64)>,
 }
 
+/// The zero-coupon bond price P(0, t) = E[exp(−∫₀ᵗ r ds)] of a `discount` line, estimated
+/// along the paths (the integral by the trapezoid rule on the step grid).
+#[derive(Clone, Debug, PartialEq)]
+pub struct DiscountEstimate {
+    pub price: f64,
+    pub standard_error: f64,
+    /// Weak order of the estimate in the step (2 over exact factors, 1 over discretised
+    /// ones); Richardson extrapolation uses it.
+    pub order: u32,
+    /// With step doubling: (bias, extrapolated, its se).
+    pub bias: Option<(f64, f64, f64)>,
+    /// The curve's price at the same maturity, where the calculus gives it.
+    pub closed_form: Option<f64>,
+    pub z: Option<f64>,
+}
+
 /// The figures of one state at one reporting date.
 #[derive(Clone, Debug, PartialEq)]
 pub struct StateResult {
@@ -82,6 +98,8 @@ pub struct DateResult {
     /// Clock units.
     pub at: f64,
     pub states: Vec<StateResult>,
+    /// With a `discount` line: the bond price maturing at this date.
+    pub discount: Option<DiscountEstimate>,
 }
 
 /// Quantile bands of each state over the time grid, for a fan chart.
@@ -172,14 +190,18 @@ impl std::fmt::Display for Undecided {
     }
 }
 
-/// Paired figures of a fine and a coarse sample (same paths).
-fn bias_estimate(fine: &[f64], coarse: &[f64]) -> BiasEstimate {
-    let pairs: Vec<(f64, f64)> = fine
-        .iter()
+/// The (fine, coarse) values of the paths where both are finite.
+fn finite_pairs(fine: &[f64], coarse: &[f64]) -> Vec<(f64, f64)> {
+    fine.iter()
         .zip(coarse)
         .filter(|(f, c)| f.is_finite() && c.is_finite())
         .map(|(f, c)| (*f, *c))
-        .collect();
+        .collect()
+}
+
+/// Paired figures of a fine and a coarse sample (same paths).
+fn bias_estimate(fine: &[f64], coarse: &[f64]) -> BiasEstimate {
+    let pairs = finite_pairs(fine, coarse);
     let n = pairs.len() as f64;
     let mean = |values: &mut dyn Iterator<Item = f64>| values.sum::<f64>() / n;
     let mf = mean(&mut pairs.iter().map(|p| p.0));
@@ -212,6 +234,45 @@ fn bias_estimate(fine: &[f64], coarse: &[f64]) -> BiasEstimate {
     }
 }
 
+/// Richardson extrapolation of a mean over paired fine and coarse values (the same paths
+/// at steps Δ and 2Δ) for a scheme of weak order `order`: F(Δ) ≈ F + cΔᵖ, so the bias of
+/// F(Δ) is (F(2Δ) − F(Δ))/(2ᵖ − 1) and F(Δ) + (F(Δ) − F(2Δ))/(2ᵖ − 1) removes it.
+/// Returns (bias, extrapolated, standard error of the extrapolated mean from its per-path
+/// values).
+fn richardson(pairs: &[(f64, f64)], order: u32) -> (f64, f64, f64) {
+    let m = pairs.len() as f64;
+    let weight = 1.0 / (2f64.powi(order as i32) - 1.0);
+    let fine = pairs.iter().map(|p| p.0).sum::<f64>() / m;
+    let coarse = pairs.iter().map(|p| p.1).sum::<f64>() / m;
+    let per_path = |p: &(f64, f64)| p.0 + weight * (p.0 - p.1);
+    let extrapolated = pairs.iter().map(per_path).sum::<f64>() / m;
+    let spread = pairs
+        .iter()
+        .map(|p| (per_path(p) - extrapolated).powi(2))
+        .sum::<f64>();
+    (
+        weight * (coarse - fine),
+        extrapolated,
+        (spread / (m - 1.0) / m).sqrt(),
+    )
+}
+
+/// The bond price of every path at one date, with its bias by step doubling.
+fn discount_estimate(fine: &[f64], coarse: Option<&[f64]>, order: u32) -> DiscountEstimate {
+    let summary = summarize(fine);
+    let bias = coarse
+        .filter(|_| summary.count > 1)
+        .map(|coarse| richardson(&finite_pairs(fine, coarse), order));
+    DiscountEstimate {
+        price: summary.mean,
+        standard_error: summary.mean_se,
+        order,
+        bias,
+        closed_form: None,
+        z: None,
+    }
+}
+
 fn below_estimate(fine: &[f64], coarse: Option<&[f64]>, threshold: f64) -> BelowEstimate {
     let finite: Vec<f64> = fine.iter().copied().filter(|x| x.is_finite()).collect();
     let n = finite.len() as f64;
@@ -233,15 +294,7 @@ fn below_estimate(fine: &[f64], coarse: Option<&[f64]>, threshold: f64) -> Below
                 )
             })
             .collect();
-        let m = pairs.len() as f64;
-        let pf = pairs.iter().map(|p| p.0).sum::<f64>() / m;
-        let pc = pairs.iter().map(|p| p.1).sum::<f64>() / m;
-        let extrapolated = 2.0 * pf - pc;
-        let spread = pairs
-            .iter()
-            .map(|p| (2.0 * p.0 - p.1 - extrapolated).powi(2))
-            .sum::<f64>();
-        (pc - pf, extrapolated, (spread / (m - 1.0) / m).sqrt())
+        richardson(&pairs, 1)
     });
     BelowEstimate {
         threshold,
@@ -317,7 +370,28 @@ impl SimulationResult {
                     }
                 })
                 .collect();
-            dates.push(DateResult { at: *at, states });
+            let discount = samples.discount.as_ref().and_then(|discount| {
+                let fine = discount.values.get(d)?;
+                let coarse = discount
+                    .coarse
+                    .as_ref()
+                    .and_then(|c| c.get(d))
+                    .map(Vec::as_slice);
+                Some(discount_estimate(fine, coarse, discount.order))
+            });
+            if let Some(estimate) = &discount {
+                if !estimate.price.is_finite() && samples.paths > 0 {
+                    warnings.push(format!(
+                        "the discount factor at t = {} did not stay finite on every path; try more steps",
+                        format_number(*at)
+                    ));
+                }
+            }
+            dates.push(DateResult {
+                at: *at,
+                states,
+                discount,
+            });
         }
         let states_count = samples.state_names.len();
         let bands = (!samples.band_times.is_empty()).then(|| Bands {
@@ -425,6 +499,25 @@ impl SimulationResult {
     }
 }
 
+impl SimulationResult {
+    /// Attaches the curve's bond price maturing at date `date` (index into `dates`) and
+    /// computes the z-score of the simulated price (extrapolated where the step doubling
+    /// estimated the bias).
+    pub fn attach_closed_price(&mut self, date: usize, price: Option<f64>) {
+        let Some(estimate) = self.dates.get_mut(date).and_then(|d| d.discount.as_mut()) else {
+            return;
+        };
+        estimate.closed_form = price;
+        estimate.z = price.map(|p| {
+            let (simulated, se) = match estimate.bias {
+                Some((_, extrapolated, se)) => (extrapolated, se),
+                None => (estimate.price, estimate.standard_error),
+            };
+            z_score(simulated, p, se, rounding(simulated, p))
+        });
+    }
+}
+
 /// The relative rounding allowed between a simulated figure and its closed form: a path
 /// of many steps and a closed form compute the same number by different roundings (a
 /// state without volatility has a standard error of zero, or of rounding noise).
@@ -464,6 +557,8 @@ struct Figure {
     z: f64,
     bias: Option<f64>,
     figure_se: f64,
+    /// Weak order of the scheme: the bias falls as the step to this power.
+    order: u32,
 }
 
 /// The verdict on every compared figure: disagreements and figures the run cannot judge.
@@ -488,6 +583,7 @@ pub fn verdicts(result: &SimulationResult) -> (Vec<Disagreement>, Vec<Undecided>
                     z: closed.z_mean,
                     bias: bias.map(|b| b.mean),
                     figure_se: state.mean_se,
+                    order: 1,
                 },
                 Figure {
                     name: "variance".into(),
@@ -497,6 +593,7 @@ pub fn verdicts(result: &SimulationResult) -> (Vec<Disagreement>, Vec<Undecided>
                     z: closed.z_variance,
                     bias: bias.map(|b| b.variance),
                     figure_se: state.variance_se,
+                    order: 1,
                 },
             ];
             if let (Some(below), Some(p), Some(z)) = (&state.below, closed.below, closed.z_below) {
@@ -508,66 +605,112 @@ pub fn verdicts(result: &SimulationResult) -> (Vec<Disagreement>, Vec<Undecided>
                     z,
                     bias: below.bias.map(|b| b.0),
                     figure_se: below.standard_error,
+                    order: 1,
                 });
             }
-            for Figure {
-                name: figure,
-                simulated,
-                closed_form,
-                standard_error,
-                z,
-                bias,
-                figure_se,
-            } in figures
-            {
-                if z.is_nan() || standard_error.is_nan() {
-                    undecided.push(Undecided {
-                        state: state.name.clone(),
-                        figure,
-                        at: date.at,
-                        reason: "its standard error needs at least 2 paths with finite values"
-                            .to_string(),
-                        steps_needed: None,
-                    });
-                    continue;
-                }
-                if z.abs() <= CHECK_THRESHOLD {
-                    continue;
-                }
-                match bias {
-                    Some(bias) if bias.is_nan() || bias.abs() >= figure_se => {
-                        let ratio = 2.0 * bias.abs() / figure_se.max(f64::MIN_POSITIVE);
-                        let steps = (result.steps as f64 * ratio).ceil();
-                        undecided.push(Undecided {
-                            state: state.name.clone(),
-                            figure,
-                            at: date.at,
-                            reason: format!(
-                                "the difference from the closed form is {:.1} standard errors, but the discretisation bias \
-                                 of {} steps ({}) is not below the standard error ({})",
-                                z.abs(),
-                                result.steps,
-                                format_number(bias),
-                                format_number(figure_se)
-                            ),
-                            steps_needed: (steps.is_finite() && steps < 1e12)
-                                .then(|| (steps as usize).next_multiple_of(2)),
-                        });
-                    }
-                    _ => disagreements.push(Disagreement {
-                        state: state.name.clone(),
-                        figure,
-                        at: date.at,
-                        simulated,
-                        closed_form,
-                        standard_error,
-                        z,
-                    }),
-                }
+            for figure in figures {
+                judge(
+                    figure,
+                    &state.name,
+                    date.at,
+                    result.steps,
+                    &mut disagreements,
+                    &mut undecided,
+                );
+            }
+        }
+        if let Some(discount) = &date.discount {
+            if let (Some(price), Some(z)) = (discount.closed_form, discount.z) {
+                let figure = Figure {
+                    name: DISCOUNT_FIGURE.into(),
+                    simulated: discount.bias.map_or(discount.price, |b| b.1),
+                    closed_form: price,
+                    standard_error: discount.bias.map_or(discount.standard_error, |b| b.2),
+                    z,
+                    bias: discount.bias.map(|b| b.0),
+                    figure_se: discount.standard_error,
+                    order: discount.order,
+                };
+                judge(
+                    figure,
+                    DISCOUNT_NAME,
+                    date.at,
+                    result.steps,
+                    &mut disagreements,
+                    &mut undecided,
+                );
             }
         }
     }
     (disagreements, undecided)
+}
+
+/// What a verdict on the bond price calls the figure and its "state".
+pub const DISCOUNT_FIGURE: &str = "bond price P(0, t)";
+pub const DISCOUNT_NAME: &str = "discount";
+
+/// The verdict on one figure: agreement (nothing), a disagreement, or undecided.
+fn judge(
+    figure: Figure,
+    state: &str,
+    at: f64,
+    steps: usize,
+    disagreements: &mut Vec<Disagreement>,
+    undecided: &mut Vec<Undecided>,
+) {
+    let Figure {
+        name: figure,
+        simulated,
+        closed_form,
+        standard_error,
+        z,
+        bias,
+        figure_se,
+        order,
+    } = figure;
+    if z.is_nan() || standard_error.is_nan() {
+        undecided.push(Undecided {
+            state: state.to_string(),
+            figure,
+            at,
+            reason: "its standard error needs at least 2 paths with finite values".to_string(),
+            steps_needed: None,
+        });
+        return;
+    }
+    if z.abs() <= CHECK_THRESHOLD {
+        return;
+    }
+    match bias {
+        Some(bias) if bias.is_nan() || bias.abs() >= figure_se => {
+            let ratio = 2.0 * bias.abs() / figure_se.max(f64::MIN_POSITIVE);
+            let steps_needed = (steps as f64 * ratio.powf(1.0 / f64::from(order.max(1)))).ceil();
+            undecided.push(Undecided {
+                state: state.to_string(),
+                figure,
+                at,
+                reason: format!(
+                    "the difference from the closed form is {:.1} standard errors, but the discretisation bias \
+                     of {} steps ({}) is not below the standard error ({})",
+                    z.abs(),
+                    steps,
+                    format_number(bias),
+                    format_number(figure_se)
+                ),
+                steps_needed: (steps_needed.is_finite() && steps_needed < 1e12)
+                    .then(|| (steps_needed as usize).next_multiple_of(2)),
+            });
+        }
+        _ => disagreements.push(Disagreement {
+            state: state.to_string(),
+            figure,
+            at,
+            simulated,
+            closed_form,
+            standard_error,
+            z,
+        }),
+    }
 }
 
 /// The figures that disagree with their closed forms (empty: all agree or cannot be
@@ -646,10 +789,26 @@ fn state_json(state: &StateResult) -> Value {
     })
 }
 
+/// The bond price of one date as JSON.
+fn discount_json(discount: &DiscountEstimate) -> Value {
+    json!({
+        "price": number(discount.price),
+        "se": number(discount.standard_error),
+        "order": discount.order,
+        "bias": discount.bias.map_or(Value::Null, |x| number(x.0)),
+        "extrapolated": discount.bias.map_or(Value::Null, |x| number(x.1)),
+        "extrapolated_se": discount.bias.map_or(Value::Null, |x| number(x.2)),
+        "closed_form": discount.closed_form.map_or(Value::Null, number),
+        "z": discount.z.map_or(Value::Null, number),
+    })
+}
+
 /// The JSON report: `{"paths", "steps", "seed", "clock", "dates": [{"at", "factors":
 /// [{"name", "scheme", "mean", "mean_se", "variance", "variance_se", "quantiles": {"0.01":
 /// ..}, "quantiles_se": {..}, "bias": {..} | null, "below": {..} | null, "closed_form":
-/// {..} | null}]}], "notes": [..]}`. Numbers that are not finite are null.
+/// {..} | null}], "discount": {"price", "se", "order", "bias", "extrapolated",
+/// "extrapolated_se", "closed_form", "z"} | null}], "notes": [..]}`. Numbers that are not
+/// finite are null.
 pub fn to_json(result: &SimulationResult) -> Value {
     let dates: Vec<Value> = result
         .dates
@@ -658,6 +817,7 @@ pub fn to_json(result: &SimulationResult) -> Value {
             json!({
                 "at": number(date.at),
                 "factors": date.states.iter().map(state_json).collect::<Vec<_>>(),
+                "discount": date.discount.as_ref().map_or(Value::Null, discount_json),
             })
         })
         .collect();
@@ -782,6 +942,9 @@ pub fn render_text(result: &SimulationResult) -> String {
                 let _ = writeln!(out);
             }
         }
+        if let Some(discount) = &date.discount {
+            render_discount(&mut out, discount);
+        }
     }
     for warning in &result.warnings {
         let _ = writeln!(out);
@@ -791,6 +954,40 @@ pub fn render_text(result: &SimulationResult) -> String {
         let _ = writeln!(out);
     }
     out
+}
+
+/// The text block of the bond price at one date.
+fn render_discount(out: &mut String, discount: &DiscountEstimate) {
+    let _ = writeln!(out);
+    let _ = writeln!(
+        out,
+        "{DISCOUNT_NAME}  (E[exp(-integral of r dt)], the integral by the trapezoid rule on the step grid, weak order {})",
+        discount.order
+    );
+    let _ = writeln!(
+        out,
+        "  {:<10} {:>14} ± {}",
+        "P(0, t)",
+        shown(discount.price),
+        shown(discount.standard_error)
+    );
+    if let Some((bias, extrapolated, se)) = discount.bias {
+        let _ = writeln!(
+            out,
+            "  step doubling: bias {}; extrapolated {} ± {}",
+            shown(bias),
+            shown(extrapolated),
+            shown(se)
+        );
+    }
+    if let (Some(price), Some(z)) = (discount.closed_form, discount.z) {
+        let _ = writeln!(
+            out,
+            "  curve: P(0, t) {} (z = {})",
+            shown(price),
+            shown_z(z)
+        );
+    }
 }
 
 fn shown_z(z: f64) -> String {

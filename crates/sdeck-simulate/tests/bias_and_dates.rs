@@ -4,7 +4,7 @@
 
 use sdeck_calculus::laws::{law_of, LawKind};
 use sdeck_calculus::{derive, moments_at};
-use sdeck_semantics::{analyze, Model};
+use sdeck_semantics::Model;
 use sdeck_simulate::{
     check, closed_figures_at, plan, render_text, simulate_and_compare_below, simulate_paths,
     to_json, verdicts, ClosedFigures, ExactLaw, Plan, Scheme, SimulateError, SimulationOptions,
@@ -12,23 +12,8 @@ use sdeck_simulate::{
 };
 use statrs::distribution::{ContinuousCDF, Normal};
 
-fn model(source: &str) -> Model {
-    let analysis = analyze(source, "test");
-    assert!(!analysis.has_errors(), "{:#?}", analysis.diagnostics);
-    analysis.model
-}
-
-fn options(paths: usize, steps: usize, dates: &[f64], seed: u64) -> SimulationOptions {
-    SimulationOptions {
-        paths,
-        steps,
-        dates: dates.to_vec(),
-        seed,
-        threads: Some(2),
-        step_doubling: true,
-        ..Default::default()
-    }
-}
+mod common;
+use common::{model, options};
 
 /// A log index driven by a square-root variance with leverage; `xi` sets whether Feller's
 /// condition 2·kappa·theta >= xi² holds (0.35: 0.225 >= 0.1225) or not (0.9: 0.225 < 0.81).
