@@ -66,7 +66,8 @@ fn explain_suggests_the_nearest_rule() {
 }
 
 const UNFORMATTED: &str = "shock W\nfactor x=1\ndx = -0.5*x dt\n   + 0.2 dW\n";
-const FORMATTED: &str = "shock W\nfactor x = 1\ndx = -0.5 * x dt + 0.2 dW\n";
+// The equation keeps its break between terms, its continuation under its first term.
+const FORMATTED: &str = "shock W\nfactor x = 1\ndx = -0.5 * x dt\n     + 0.2 dW\n";
 
 #[test]
 fn fmt_dash_formats_standard_input_to_standard_output() {
@@ -115,8 +116,11 @@ fn fmt_diff_shows_the_change_and_changes_nothing() {
         "{diff}"
     );
     assert!(diff.contains("+factor x = 1\n"), "{diff}");
-    assert!(diff.contains("+dx = -0.5 * x dt + 0.2 dW\n"), "{diff}");
-    assert!(diff.contains("@@ -1,4 +1,3 @@"), "{diff}");
+    assert!(
+        diff.contains("+dx = -0.5 * x dt\n+     + 0.2 dW\n"),
+        "{diff}"
+    );
+    assert!(diff.contains("@@ -1,4 +1,4 @@"), "{diff}");
     assert_eq!(std::fs::read_to_string(&file).unwrap(), UNFORMATTED);
     std::fs::write(&file, FORMATTED).unwrap();
     let out = sdeck()

@@ -3,9 +3,11 @@
 //! [`format`] prints every statement of a file in one canonical spacing, aligns the
 //! columns of consecutive `param`/`factor` declarations and the trailing comments of a
 //! block, keeps every comment, keeps at most one blank line between blocks, and is
-//! idempotent. It never loses text: a file with syntax errors is returned unchanged
-//! ([`Outcome::SyntaxErrors`]), a statement with a comment inside it is kept as written,
-//! and a result that would not read back to itself is refused.
+//! idempotent. An equation over several lines keeps the author's breaks between its terms,
+//! with its comments at the ends of its lines and continuation lines indented under its
+//! first term. It never loses text: a file with syntax errors is returned unchanged
+//! ([`Outcome::SyntaxErrors`]), any other statement with a comment inside it is kept as
+//! written, and a result that would not read back to itself is refused.
 //!
 //! ```
 //! let outcome = sdeck_format::format("param  k=2[1/year]>0 # speed\nfactor x=1\n");
@@ -19,7 +21,7 @@
 
 mod print;
 
-use sdeck_syntax::ast::{Comment, SourceFile, Statement};
+use sdeck_syntax::ast::{Comment, SourceFile, Statement, StatementKind};
 
 /// What the formatter made of a text.
 #[derive(Clone, Debug, PartialEq, Eq)]
@@ -110,6 +112,9 @@ enum Item<'a> {
     },
     /// A statement kept exactly as written (it has a comment inside it).
     Verbatim(&'a str),
+    /// An equation over several lines, printed canonically with the author's breaks
+    /// between terms, each line with its trailing comment.
+    Lines(Vec<(String, Option<&'a str>)>),
 }
 
 /// A printed statement: either one flat string or the columns of a declaration.
@@ -180,7 +185,17 @@ fn layout(source: &str, file: &SourceFile) -> String {
                     .flatten()
                     .and_then(|ci| file.comments.get(ci));
                 let end = trailing.map(|c| c.span.end).unwrap_or(statement.span.end);
-                if inner_comments.get(si).is_some_and(|c| !c.is_empty()) {
+                let inner: Vec<&Comment> = inner_comments
+                    .get(si)
+                    .into_iter()
+                    .flatten()
+                    .filter_map(|&ci| file.comments.get(ci))
+                    .collect();
+                let trailing_text = trailing.map(|c| text_of(source, c.span.clone()).trim_end());
+                if let Some(lines) = equation_over_lines(source, statement, &inner, trailing_text) {
+                    current.push(Item::Lines(lines));
+                    previous_end = Some(end);
+                } else if !inner.is_empty() {
                     let stop = line_end(source, end);
                     let text = text_of(source, statement.span.start..stop).trim_end();
                     current.push(Item::Verbatim(text));
@@ -188,7 +203,7 @@ fn layout(source: &str, file: &SourceFile) -> String {
                 } else {
                     current.push(Item::Statement {
                         printed: print::statement(source, &statement.kind),
-                        trailing: trailing.map(|c| text_of(source, c.span.clone()).trim_end()),
+                        trailing: trailing_text,
                     });
                     previous_end = Some(end);
                 }
@@ -207,6 +222,63 @@ fn layout(source: &str, file: &SourceFile) -> String {
         write_block(&mut out, block);
     }
     out
+}
+
+/// An equation written over several lines whose every break falls between two of its
+/// terms (or after `=`), with at most a trailing comment on each line: its lines printed
+/// canonically with the author's breaks, each with its comment. `None` for anything else
+/// (a statement on one line, a break inside a term, a comment on a line of its own), which
+/// is then joined, or kept as written when it holds a comment.
+fn equation_over_lines<'a>(
+    source: &'a str,
+    statement: &Statement,
+    inner: &[&Comment],
+    trailing: Option<&'a str>,
+) -> Option<Vec<(String, Option<&'a str>)>> {
+    let StatementKind::Equation(eq) = &statement.kind else {
+        return None;
+    };
+    let span = statement.span.clone();
+    let text = source.get(span.clone())?;
+    let breaks: Vec<usize> = text
+        .match_indices('\n')
+        .map(|(i, _)| span.start + i)
+        .collect();
+    if breaks.is_empty() {
+        return None;
+    }
+    // Each break must open the line of a term of its own: after the previous term ends,
+    // before the next begins, and no two breaks before the same term (a line without one).
+    let mut starts_line = vec![false; eq.terms.len()];
+    for &b in &breaks {
+        let k = eq.terms.iter().position(|t| t.span.start > b)?;
+        if k > 0 && eq.terms.get(k - 1)?.span.end > b {
+            return None;
+        }
+        if std::mem::replace(starts_line.get_mut(k)?, true) {
+            return None;
+        }
+    }
+    let mut comments: Vec<Option<&'a str>> = vec![None; breaks.len() + 1];
+    for c in inner {
+        if !c.trailing {
+            return None;
+        }
+        let line = breaks.iter().filter(|&&b| b < c.span.start).count();
+        let slot = comments.get_mut(line)?;
+        if slot.is_some() {
+            return None;
+        }
+        *slot = Some(text_of(source, c.span.clone()).trim_end());
+    }
+    if let (Some(last), Some(_)) = (comments.last_mut(), trailing) {
+        if last.is_some() {
+            return None;
+        }
+        *last = trailing;
+    }
+    let lines = print::equation_lines(source, eq, &starts_line);
+    (lines.len() == comments.len()).then(|| lines.into_iter().zip(comments).collect())
 }
 
 /// Writes one block: declarations aligned by column, trailing comments aligned.
@@ -254,6 +326,9 @@ fn write_block(out: &mut String, block: &[Item]) {
         match &block[i] {
             Item::Comment(text) => lines.push((text.to_string(), None)),
             Item::Verbatim(text) => lines.push((text.to_string(), None)),
+            Item::Lines(statement_lines) => {
+                lines.extend(statement_lines.iter().map(|(code, c)| (code.clone(), *c)))
+            }
             Item::Statement {
                 printed: Printed::Flat(text),
                 trailing,

@@ -3,8 +3,8 @@
 
 use crate::Printed;
 use sdeck_syntax::ast::{
-    BinaryOp, Bound, Condition, Declaration, DeclaredValue, Differential, Expr, Quantity, Sign,
-    StatementKind, UnitExpr,
+    BinaryOp, Bound, Condition, Declaration, DeclaredValue, Differential, Equation, Expr, Quantity,
+    Sign, StatementKind, UnitExpr,
 };
 
 /// Prints a statement; declarations come back as columns for alignment.
@@ -40,24 +40,8 @@ pub(crate) fn statement(source: &str, kind: &StatementKind) -> Printed {
             Printed::Flat(format!("let {} = {}", name.name, expr(source, value)))
         }
         StatementKind::Equation(eq) => {
-            let mut text = format!("d{} =", eq.state.name);
-            for (i, term) in eq.terms.iter().enumerate() {
-                let differential = match &term.differential {
-                    Differential::Time(_) => "dt".to_string(),
-                    Differential::Shock { shock, .. } => format!("d{}", shock.name),
-                };
-                let body = match &term.coefficient {
-                    Some(c) => format!("{} {differential}", expr(source, c)),
-                    None => differential,
-                };
-                match (i, term.sign) {
-                    (0, Sign::Plus) => text.push_str(&format!(" {body}")),
-                    (0, Sign::Minus) => text.push_str(&format!(" -{body}")),
-                    (_, Sign::Plus) => text.push_str(&format!(" + {body}")),
-                    (_, Sign::Minus) => text.push_str(&format!(" - {body}")),
-                }
-            }
-            Printed::Flat(text)
+            let starts_line = vec![false; eq.terms.len()];
+            Printed::Flat(equation_lines(source, eq, &starts_line).join(" "))
         }
         StatementKind::Expect(e) => {
             let condition = match &e.condition {
@@ -102,6 +86,45 @@ pub(crate) fn statement(source: &str, kind: &StatementKind) -> Printed {
             ))
         }
     }
+}
+
+/// An equation as lines: a new line starts before each term marked in `starts_line`
+/// (the author's breaks), continuation lines indented to the first term after `=`, each
+/// starting with its term's sign (`     + sigma dW`).
+pub(crate) fn equation_lines(source: &str, eq: &Equation, starts_line: &[bool]) -> Vec<String> {
+    let head = format!("d{} =", eq.state.name);
+    let indent = " ".repeat(head.chars().count() + 1);
+    let mut lines = vec![head];
+    for (i, term) in eq.terms.iter().enumerate() {
+        let differential = match &term.differential {
+            Differential::Time(_) => "dt".to_string(),
+            Differential::Shock { shock, .. } => format!("d{}", shock.name),
+        };
+        let body = match &term.coefficient {
+            Some(c) => format!("{} {differential}", expr(source, c)),
+            None => differential,
+        };
+        let piece = match (i, term.sign) {
+            (0, Sign::Plus) => body,
+            (0, Sign::Minus) => format!("-{body}"),
+            (_, Sign::Plus) => format!("+ {body}"),
+            (_, Sign::Minus) => format!("- {body}"),
+        };
+        let line = match starts_line.get(i) {
+            Some(true) => {
+                lines.push(indent.clone());
+                lines.last_mut()
+            }
+            _ => lines.last_mut(),
+        };
+        if let Some(line) = line {
+            if !line.ends_with(' ') {
+                line.push(' ');
+            }
+            line.push_str(&piece);
+        }
+    }
+    lines
 }
 
 fn declaration(keyword: &str, source: &str, d: &Declaration) -> [String; 5] {

@@ -51,18 +51,46 @@ fn own_line_comments_and_single_blank_lines_are_kept() {
 }
 
 #[test]
-fn a_statement_with_a_comment_inside_is_kept_as_written() {
-    let source = "shock W\nfactor x = 0\ndx = -0.5 * x dt   # pull\n     + 0.1 dW  # push\n";
-    assert_eq!(formatted(source), source);
+fn a_multi_line_equation_keeps_its_breaks_between_terms_and_its_comments() {
+    let source = "shock W, B\nfactor x = 0\ndx = -0.5*x  dt   # pull\n  +0.1 dW  # push\n        -  0.2*x dB\n";
+    let expected = "shock W, B\nfactor x = 0\ndx = -0.5 * x dt  # pull\n     + 0.1 dW     # push\n     - 0.2 * x dB\n";
+    assert_eq!(formatted(source), expected);
+    // Formatting it again changes nothing.
+    assert_eq!(formatted(expected), expected);
 }
 
 #[test]
-fn a_multi_line_statement_without_comments_is_joined() {
-    let source = "shock W\nfactor x = 0\ndx = -0.5 * x dt\n     + 0.1 dW\n";
+fn a_multi_line_equation_without_comments_keeps_its_breaks() {
+    let source = "shock W\nfactor x = 0\ndx = -0.5 * x dt\n+ 0.1 dW\n";
+    assert_eq!(
+        formatted(source),
+        "shock W\nfactor x = 0\ndx = -0.5 * x dt\n     + 0.1 dW\n"
+    );
+}
+
+#[test]
+fn a_break_right_after_the_equals_sign_starts_the_terms_on_the_next_line() {
+    let source = "shock W\nfactor r = 0\ndr =   # the short rate\n 0.8*(0.03 - r) dt + 0.01 dW\n";
+    assert_eq!(
+        formatted(source),
+        "shock W\nfactor r = 0\ndr =  # the short rate\n     0.8 * (0.03 - r) dt + 0.01 dW\n"
+    );
+}
+
+#[test]
+fn a_break_inside_a_term_joins_it_or_keeps_it_as_written_with_a_comment() {
+    // Without comments the statement is joined; with one it is kept as written, since
+    // a line break inside a term has no canonical place.
+    let source = "shock W\nfactor x = 0\ndx = -0.5 *\n x dt + 0.1 dW\n";
     assert_eq!(
         formatted(source),
         "shock W\nfactor x = 0\ndx = -0.5 * x dt + 0.1 dW\n"
     );
+    let source = "shock W\nfactor x = 0\ndx = -0.5 *   # pull\n x dt + 0.1 dW\n";
+    assert_eq!(formatted(source), source);
+    // A comment on a line of its own inside the equation: kept as written too.
+    let source = "shock W\nfactor x = 0\ndx = -0.5 * x dt\n  # the shock\n  + 0.1 dW\n";
+    assert_eq!(formatted(source), source);
 }
 
 #[test]
