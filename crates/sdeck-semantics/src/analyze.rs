@@ -1,8 +1,12 @@
 //! From the syntax tree to the semantic model: names, units, values in clock units, and
-//! the structural rules (unknown-name, duplicate-name, missing-equation, duplicate-term,
-//! dimension-mismatch, bound-violated, correlation-range, unused, unit-scale).
+//! the diagnostics that arise while names are resolved and units inferred (syntax,
+//! unknown-name, duplicate-name, dimension-mismatch, and the bound-violated and
+//! missing-equation cases that stop a value or an equation from entering the model).
+//! What the structural rules of sdeck-checks read beside the model is kept in
+//! [`Structure`].
 
 use crate::model::*;
+use crate::structure::{Differential, RepeatedTerm, Structure, WrittenCorrelation};
 use crate::symbols::{Reference, Symbol, SymbolKind};
 use sdeck_diagnostics::{rules, Diagnostic, Span, TextEdit};
 use sdeck_syntax::ast::{self, Figure, StatementKind};
@@ -25,6 +29,8 @@ pub struct Analysis {
     pub references: Vec<Reference>,
     /// Which parameters, shocks and lets something uses (the rule `unused` reads it).
     pub usage: Usage,
+    /// What the structural rules of sdeck-checks read beside the model.
+    pub structure: Structure,
 }
 
 /// Which declared names something uses, by index in the model's lists.
@@ -36,11 +42,63 @@ pub struct Usage {
 }
 
 impl Analysis {
-    /// Whether any diagnostic is an error (the model may then be incomplete).
+    /// Whether the model may be incomplete: a diagnostic so far is an error, or the
+    /// records of [`Analysis::structure`] hold what a structural rule reports as an
+    /// error (a value outside its bound, a correlation set aside, a term left out, a
+    /// factor without an equation).
     pub fn has_errors(&self) -> bool {
+        let model = &self.model;
         self.diagnostics
             .iter()
             .any(|d| d.severity == sdeck_diagnostics::Severity::Error)
+            || model.params.iter().any(Param::breaks_bound)
+            || model.factors.iter().any(Factor::breaks_domain)
+            || self
+                .structure
+                .correlations
+                .iter()
+                .any(|c| c.is_self() || c.is_out_of_range())
+            || !self.structure.repeated_terms.is_empty()
+            || (0..model.factors.len()).any(|i| self.lacks_equation(i))
+    }
+
+    /// The declaration of the parameter `index` of the model.
+    pub fn param_declaration(&self, index: usize) -> Option<&ast::Declaration> {
+        let statement = self
+            .file
+            .statements
+            .get(*self.structure.param_statements.get(index)?)?;
+        match &statement.kind {
+            StatementKind::Param(decl) => Some(decl),
+            _ => None,
+        }
+    }
+
+    /// The declaration of the factor `index` of the model.
+    pub fn factor_declaration(&self, index: usize) -> Option<&ast::Declaration> {
+        let statement = self
+            .file
+            .statements
+            .get(*self.structure.factor_statements.get(index)?)?;
+        match &statement.kind {
+            StatementKind::Factor(decl) => Some(decl),
+            _ => None,
+        }
+    }
+
+    /// Whether the factor `index` has no equation, and none hides in text that did not
+    /// parse.
+    pub fn lacks_equation(&self, index: usize) -> bool {
+        self.model
+            .factors
+            .get(index)
+            .is_some_and(|f| f.equation.is_none())
+            && !self
+                .structure
+                .equation_unparsed
+                .get(index)
+                .copied()
+                .unwrap_or(false)
     }
 }
 
@@ -68,6 +126,7 @@ pub fn analyze(source: &str, default_name: &str) -> Analysis {
         param_used,
         noise_used,
         let_used,
+        structure,
         ..
     } = analyzer;
     let mut all = file.diagnostics.clone();
@@ -83,6 +142,7 @@ pub fn analyze(source: &str, default_name: &str) -> Analysis {
             shocks: noise_used,
             lets: let_used,
         },
+        structure,
     }
 }
 
@@ -131,6 +191,8 @@ struct Analyzer<'a> {
     /// Every name declared anywhere in the file and what it is (`parameter`, `factor`,
     /// ...), to tell a name declared later from one never declared.
     declared_anywhere: HashMap<String, &'static str>,
+    /// What the structural rules read beside the model.
+    structure: Structure,
 }
 
 /// A declared value resolved: see [`Analyzer::declared_value`].
@@ -212,6 +274,7 @@ impl<'a> Analyzer<'a> {
             let_sizes: Vec::new(),
             constant: None,
             declared_anywhere: HashMap::new(),
+            structure: Structure::default(),
         }
     }
 
@@ -424,7 +487,7 @@ impl<'a> Analyzer<'a> {
                     .or_insert(kind);
             }
         }
-        for statement in &file.statements {
+        for (statement_index, statement) in file.statements.iter().enumerate() {
             match &statement.kind {
                 StatementKind::Param(decl) => {
                     let index = self.model.params.len();
@@ -459,7 +522,7 @@ impl<'a> Analyzer<'a> {
                     });
                     self.param_used.push(false);
                     self.param_unit_ok.push(value.known);
-                    self.check_declaration(decl, "parameter", value.value, value.scale, bound);
+                    self.structure.param_statements.push(statement_index);
                 }
                 StatementKind::Factor(decl) => {
                     let index = self.model.factors.len();
@@ -490,13 +553,7 @@ impl<'a> Analyzer<'a> {
                         initial_expr: value.expr,
                     });
                     self.state_unit_ok.push(value.known);
-                    self.check_declaration(
-                        decl,
-                        "initial value of factor",
-                        value.value,
-                        value.scale,
-                        bound,
-                    );
+                    self.structure.factor_statements.push(statement_index);
                 }
                 StatementKind::Shock { names } => {
                     for name in names {
@@ -721,84 +778,6 @@ impl<'a> Analyzer<'a> {
             }
         }
         Some((Expr::Invalid, None))
-    }
-
-    /// Bound and unit-scale checks of a param or state declaration.
-    fn check_declaration(
-        &mut self,
-        decl: &ast::Declaration,
-        what: &str,
-        value: f64,
-        scale: f64,
-        bound: Option<Interval>,
-    ) {
-        if let Some(bound_interval) = bound {
-            if value.is_finite() && !bound_interval.contains(value) {
-                let bound_text = decl.bound.as_ref().map(|b| b.span.clone());
-                let written = match decl.literal() {
-                    Some(number) => number.text.clone(),
-                    None => format!(
-                        "`{}` = {}",
-                        self.source.get(decl.value_span()).unwrap_or("").trim(),
-                        fmt_num(value)
-                    ),
-                };
-                let mut d = Diagnostic::new(
-                    &rules::BOUND_VIOLATED,
-                    decl.value_span(),
-                    format!(
-                        "the {what} `{}` is {written}, outside its declared bound {}",
-                        decl.name.name,
-                        describe_bound(decl.bound.as_ref()),
-                    ),
-                )
-                .with_label("outside the bound")
-                .with_help("change the value, or widen the bound if the value is right");
-                if let Some(span) = bound_text {
-                    d = d.with_related(span, "the bound");
-                }
-                self.diagnostics.push(d);
-            }
-        }
-        if let (Some(unit), Some(number)) = (decl.unit(), decl.literal()) {
-            if scale.is_finite() && scale != 1.0 {
-                let names: Vec<&str> = self.model.units.iter().map(|u| u.name.as_str()).collect();
-                let declared = |n: &str| names.contains(&n);
-                let dimension = eval_unit_with_names(unit, &declared, &names, 1.0)
-                    .map(|v| v.dimension)
-                    .unwrap_or_default();
-                let clock_text = dimension.display_in(self.clock_unit());
-                let converted = number.value * scale;
-                let new_text = format!("{} [{}]", fmt_num(converted), clock_text);
-                let replace = number.span.start..unit_bracket_end(self.source, unit);
-                self.diagnostics.push(
-                    Diagnostic::new(
-                        &rules::UNIT_SCALE,
-                        unit.span(),
-                        format!(
-                            "`{}` = {} [{}] is {} [{}] on the model's clock (×{})",
-                            decl.name.name,
-                            number.text,
-                            sdeck_units::unit_expr_text(unit),
-                            fmt_num(converted),
-                            clock_text,
-                            fmt_num(scale)
-                        ),
-                    )
-                    .with_help(format!(
-                        "every computation uses {}; write `{new_text}` to state it in clock units",
-                        fmt_num(converted)
-                    ))
-                    .with_fix(
-                        format!("Rewrite as {new_text}"),
-                        vec![TextEdit {
-                            span: replace,
-                            new_text,
-                        }],
-                    ),
-                );
-            }
-        }
     }
 
     fn resolve_lets(&mut self) {
@@ -1461,17 +1440,16 @@ impl<'a> Analyzer<'a> {
             let a = self.noise_named(first);
             let b = self.noise_named(second);
             let (Some(a), Some(b)) = (a, b) else { continue };
-            if a == b {
-                self.diagnostics.push(
-                    Diagnostic::new(
-                        &rules::CORRELATION_RANGE,
-                        statement.span.clone(),
-                        format!("`{}` is correlated with itself", first.name),
-                    )
-                    .with_help(
-                        "a shock's correlation with itself is always 1; name two different shocks",
-                    ),
-                );
+            let mut written = WrittenCorrelation {
+                first: a,
+                second: b,
+                span: statement.span.clone(),
+                value_span: value.span(),
+                value: None,
+                written_as_number: false,
+            };
+            if written.is_self() {
+                self.structure.correlations.push(written);
                 continue;
             }
             let (expr, dimension) = self.constant_expression(
@@ -1501,18 +1479,11 @@ impl<'a> Analyzer<'a> {
                 continue;
             }
             let rho = expr.eval(&self.model.param_values(), &[], 0.0);
-            let text = self.source.get(value.span()).unwrap_or("").trim();
-            let written = if matches!(expr, Expr::Const(_)) || is_negated_number(value) {
-                text.to_string()
-            } else {
-                format!("`{text}` = {}", fmt_num(rho))
-            };
-            if !(-1.0..=1.0).contains(&rho) {
-                self.diagnostics.push(
-                    Diagnostic::new(&rules::CORRELATION_RANGE, value.span(), format!("the correlation of `{}` and `{}` is {written}, outside [-1, 1]", first.name, second.name))
-                        .with_label("must lie in [-1, 1]")
-                        .with_help("a correlation is a number between -1 and 1; a value in percent is written `40%`"),
-                );
+            written.value = Some(rho);
+            written.written_as_number = matches!(expr, Expr::Const(_)) || is_negated_number(value);
+            let kept = written.is_correlation();
+            self.structure.correlations.push(written);
+            if !kept {
                 continue;
             }
             let mut mentioned = Vec::new();
@@ -1643,50 +1614,24 @@ impl<'a> Analyzer<'a> {
             let equation = self.equation(factor_index, eq, &statement.span);
             self.model.factors[factor_index].equation = Some(equation);
         }
-        for i in 0..self.model.factors.len() {
-            let equation_unparsed = self.file.unparsed.iter().any(|span| {
-                let text = self.source.get(span.clone()).unwrap_or("");
-                // `dr = ...`, and the slips `d r = ...` and `dr/dt = ...`.
-                text.strip_prefix('d')
-                    .map(str::trim_start)
-                    .and_then(|rest| rest.strip_prefix(self.model.factors[i].name.as_str()))
-                    .is_some_and(|rest| {
-                        let rest = rest.trim_start();
-                        rest.starts_with('=') || rest.starts_with('/')
-                    })
-            });
-            if self.model.factors[i].equation.is_none()
-                && !first_equation.contains_key(&i)
-                && !equation_unparsed
-            {
-                let s = &self.model.factors[i];
-                let insert_at = line_end_after(self.source, s.span.end);
-                let noise = self
-                    .model
-                    .shocks
-                    .first()
-                    .map(|n| n.name.clone())
-                    .unwrap_or_else(|| "W".to_string());
-                let name = s.name.clone();
-                self.diagnostics.push(
-                    Diagnostic::new(
-                        &rules::MISSING_EQUATION,
-                        s.name_span.clone(),
-                        format!("factor `{name}` has no equation"),
-                    )
-                    .with_help(format!(
-                        "add its dynamics, e.g. `d{name} = ... dt + ... d{noise}`"
-                    ))
-                    .with_manual_fix(
-                        format!("Add an equation for `{name}`"),
-                        vec![TextEdit {
-                            span: insert_at..insert_at,
-                            new_text: format!("d{name} = 0 dt  # TODO: drift and diffusion\n"),
-                        }],
-                    ),
-                );
-            }
-        }
+        self.structure.equation_unparsed = (0..self.model.factors.len())
+            .map(|i| self.equation_unparsed(i))
+            .collect();
+    }
+
+    /// Whether text that did not parse may hold the equation of factor `i`: `dr = ...`,
+    /// and the slips `d r = ...` and `dr/dt = ...`.
+    fn equation_unparsed(&self, i: usize) -> bool {
+        self.file.unparsed.iter().any(|span| {
+            let text = self.source.get(span.clone()).unwrap_or("");
+            text.strip_prefix('d')
+                .map(str::trim_start)
+                .and_then(|rest| rest.strip_prefix(self.model.factors[i].name.as_str()))
+                .is_some_and(|rest| {
+                    let rest = rest.trim_start();
+                    rest.starts_with('=') || rest.starts_with('/')
+                })
+        })
     }
 
     /// Resolves the terms of an equation that names no state, so that what it uses is
@@ -1728,15 +1673,12 @@ impl<'a> Analyzer<'a> {
             match &term.differential {
                 ast::Differential::Time(_) => {
                     if let Some(prev) = &drift_span {
-                        self.diagnostics.push(
-                            Diagnostic::new(
-                                &rules::DUPLICATE_TERM,
-                                term.span.clone(),
-                                format!("the equation of `{state_name}` has a second `dt` term"),
-                            )
-                            .with_related(prev.clone(), "first `dt` term here")
-                            .with_help("combine the drift into one term: `(a + b) dt`"),
-                        );
+                        self.structure.repeated_terms.push(RepeatedTerm {
+                            factor: state,
+                            differential: Differential::Time,
+                            span: term.span.clone(),
+                            first: prev.clone(),
+                        });
                         continue;
                     }
                     if let (Some(d), true) = (&dim, state_unit_ok) {
@@ -1817,21 +1759,12 @@ impl<'a> Analyzer<'a> {
                         }
                     };
                     if let Some(prev) = noise_terms.get(&noise_index) {
-                        self.diagnostics.push(
-                            Diagnostic::new(
-                                &rules::DUPLICATE_TERM,
-                                term.span.clone(),
-                                format!(
-                                    "the equation of `{state_name}` has a second term in `d{}`",
-                                    noise.name
-                                ),
-                            )
-                            .with_related(prev.clone(), "first term here")
-                            .with_help(format!(
-                                "combine them into one term: `(a + b) d{}`",
-                                noise.name
-                            )),
-                        );
+                        self.structure.repeated_terms.push(RepeatedTerm {
+                            factor: state,
+                            differential: Differential::Shock(noise_index),
+                            span: term.span.clone(),
+                            first: prev.clone(),
+                        });
                         continue;
                     }
                     noise_terms.insert(noise_index, term.span.clone());
@@ -2480,16 +2413,6 @@ fn line_start_of(source: &str, offset: usize) -> usize {
     sdeck_syntax::lines::line_start(source, offset)
 }
 
-/// The offset just after the `]` that closes a bracketed unit.
-fn unit_bracket_end(source: &str, unit: &ast::UnitExpr) -> usize {
-    let end = unit.span().end;
-    source
-        .get(end..)
-        .and_then(|rest| rest.find(']'))
-        .map(|i| end + i + 1)
-        .unwrap_or(end)
-}
-
 fn is_zero_literal(e: &ast::Expr) -> bool {
     match e {
         ast::Expr::Number(n) => n.value == 0.0,
@@ -2529,22 +2452,6 @@ fn convert_bound(b: &ast::Bound, scale: f64) -> Interval {
     Interval {
         lower: b.lower.as_ref().map(|e| (e.value.value * s, e.inclusive)),
         upper: b.upper.as_ref().map(|e| (e.value.value * s, e.inclusive)),
-    }
-}
-
-fn describe_bound(b: Option<&ast::Bound>) -> String {
-    let Some(b) = b else { return String::new() };
-    match (&b.lower, &b.upper) {
-        (Some(l), None) => format!("{} {}", if l.inclusive { ">=" } else { ">" }, l.value.text),
-        (None, Some(u)) => format!("{} {}", if u.inclusive { "<=" } else { "<" }, u.value.text),
-        (Some(l), Some(u)) => format!(
-            "in {}{}, {}{}",
-            if l.inclusive { "[" } else { "(" },
-            l.value.text,
-            u.value.text,
-            if u.inclusive { "]" } else { ")" }
-        ),
-        (None, None) => "(unbounded)".to_string(),
     }
 }
 

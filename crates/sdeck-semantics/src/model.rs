@@ -199,6 +199,14 @@ pub struct Param {
     pub expr: Option<Expr>,
 }
 
+impl Param {
+    /// Whether the value lies outside the declared bound (both in clock units).
+    pub fn breaks_bound(&self) -> bool {
+        self.bound
+            .is_some_and(|b| self.value.is_finite() && !b.contains(self.value))
+    }
+}
+
 /// A `state` with its initial value and its equation.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Factor {
@@ -221,6 +229,13 @@ pub struct Factor {
     /// The initial value as a constant expression of parameters (`factor r = theta`),
     /// when it is written as one; `initial` is its value at the file's parameters.
     pub initial_expr: Option<Expr>,
+}
+
+impl Factor {
+    /// Whether the initial value lies outside the declared domain.
+    pub fn breaks_domain(&self) -> bool {
+        self.has_domain && self.initial.is_finite() && !self.domain.contains(self.initial)
+    }
 }
 
 /// One diffusion term `coefficient dNOISE`.

@@ -68,19 +68,6 @@ fn an_expression_value_carries_its_dimension_in_clock_units() {
 }
 
 #[test]
-fn the_bound_of_an_expression_value_is_checked_on_its_value() {
-    let text = "param theta = 3%\nparam low = theta - 5% >= 0\n";
-    let found = findings(text);
-    assert_eq!(found.len(), 1, "{found:?}");
-    assert_eq!(found[0].1, "bound-violated");
-    assert!(
-        found[0].2.contains("`theta - 5%` = -0.02"),
-        "{}",
-        found[0].2
-    );
-}
-
-#[test]
 fn a_forward_reference_says_to_move_the_parameter_above() {
     let text = "param a = later + 1\nparam later = 2\n";
     let found = findings(text);
@@ -161,20 +148,6 @@ fn a_correlation_may_be_an_expression_of_parameters() {
     let plain = analyze("shock W, B\ncorr W, B = -0.4\n", "test");
     assert_eq!(plain.model.correlations[0].value, -0.4);
     assert!(plain.model.correlations[0].expr.is_none());
-}
-
-#[test]
-fn correlation_range_evaluates_the_expression() {
-    let text = "param rho = 0.6\nshock W, B\ncorr W, B = 2 * rho\n";
-    let found = findings(text);
-    assert_eq!(found.len(), 1, "{found:?}");
-    assert_eq!(found[0].1, "correlation-range");
-    assert_eq!(
-        found[0].2,
-        "the correlation of `W` and `B` is `2 * rho` = 1.2, outside [-1, 1]"
-    );
-    let a = analyze(text, "test");
-    assert!(a.model.correlations.is_empty());
 }
 
 #[test]

@@ -1,19 +1,25 @@
-//! The rules decided on the finished model and its derivation, one module each (detection, message and fixes),
-//! and the registry that runs them in order.
+//! The rules decided on the finished analysis and its derivation, one module each
+//! (detection, message and fixes), and the registry that runs them in order. Only what
+//! arises while names are resolved or units inferred is reported by `sdeck-semantics`.
 //!
 //! Adding a rule here: write `NAME.rs` with `pub(super) fn run(cx: &Context, out: &mut
 //! Vec<Diagnostic>)`, declare the module below and add its line to [`REGISTRY`].
 
+mod bound_violated;
 mod correlation_not_psd;
+mod correlation_range;
 mod discount_measure;
+mod duplicate_term;
 mod expectation_failed;
 mod factor_domain;
 mod feller_condition;
 pub mod implausible_value;
+mod missing_equation;
 mod moment_explosion;
 mod no_factor;
 mod not_mean_reverting;
 mod shared;
+mod unit_scale;
 mod unused;
 
 use sdeck_calculus::Derivation;
@@ -54,9 +60,13 @@ impl<'a> Context<'a> {
 /// A rule's detection: appends what it finds to `out`.
 type Runner = fn(&Context, &mut Vec<Diagnostic>);
 
-/// Every rule decided after the calculus, with the runner that decides it, in the order
-/// they run.
+/// Every rule decided on the finished analysis, with the runner that decides it, in the
+/// order they run.
 static REGISTRY: &[(RuleId, Runner)] = &[
+    (RuleId::MissingEquation, missing_equation::run),
+    (RuleId::DuplicateTerm, duplicate_term::run),
+    (RuleId::BoundViolated, bound_violated::run),
+    (RuleId::CorrelationRange, correlation_range::run),
     (RuleId::FellerCondition, feller_condition::run),
     (RuleId::FactorDomain, factor_domain::run),
     (RuleId::NotMeanReverting, not_mean_reverting::run),
@@ -67,6 +77,7 @@ static REGISTRY: &[(RuleId, Runner)] = &[
     (RuleId::ExpectationFailed, expectation_failed::run),
     (RuleId::NoFactor, no_factor::run),
     (RuleId::Unused, unused::run),
+    (RuleId::UnitScale, unit_scale::run),
 ];
 
 /// The rules the registry runs, in order.

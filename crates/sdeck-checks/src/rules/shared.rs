@@ -2,7 +2,7 @@
 //! with significant digits, intervals as a reader writes them.
 
 use sdeck_semantics::{Analysis, Interval, Model};
-use sdeck_syntax::ast::{Number, StatementKind};
+use sdeck_syntax::ast::{Bound, Number, StatementKind, UnitExpr};
 
 /// A number with `digits` significant digits, trailing zeros dropped.
 pub(crate) fn number(x: f64, digits: i32) -> String {
@@ -89,4 +89,31 @@ pub(crate) fn param_literal<'a>(analysis: &'a Analysis, name: &str) -> Option<&'
             _ => None,
         })?
         .literal()
+}
+
+/// The offset just after the `]` that closes a bracketed unit.
+pub(crate) fn unit_bracket_end(source: &str, unit: &UnitExpr) -> usize {
+    let end = unit.span().end;
+    source
+        .get(end..)
+        .and_then(|rest| rest.find(']'))
+        .map(|i| end + i + 1)
+        .unwrap_or(end)
+}
+
+/// A declared bound as written: `> 0`, `<= 1`, `in [0, 1)`.
+pub(crate) fn describe_bound(b: Option<&Bound>) -> String {
+    let Some(b) = b else { return String::new() };
+    match (&b.lower, &b.upper) {
+        (Some(l), None) => format!("{} {}", if l.inclusive { ">=" } else { ">" }, l.value.text),
+        (None, Some(u)) => format!("{} {}", if u.inclusive { "<=" } else { "<" }, u.value.text),
+        (Some(l), Some(u)) => format!(
+            "in {}{}, {}{}",
+            if l.inclusive { "[" } else { "(" },
+            l.value.text,
+            u.value.text,
+            if u.inclusive { "]" } else { ")" }
+        ),
+        (None, None) => "(unbounded)".to_string(),
+    }
 }
