@@ -614,6 +614,23 @@ impl AffineSet {
         None
     }
 
+    /// log E[exp(w·X_t)] of factor `factor` alone (no discounting), prepared for many
+    /// complex `w`: the plan and the coefficients are read once.
+    pub fn factor_transform(&self, factor: usize, t: f64) -> FactorTransform {
+        let rate = Rate::zero(self);
+        let scalar = match (self.plan(&rate), &self.constant) {
+            (Plan::Scalar(fixed), Some(numbers)) => Some((numbers.clone(), fixed)),
+            _ => None,
+        };
+        FactorTransform {
+            set: self.clone(),
+            rate,
+            factor,
+            t,
+            scalar,
+        }
+    }
+
     /// One transform, see [`Self::log_transforms`].
     pub fn log_transform(
         &self,
@@ -843,6 +860,36 @@ fn riccati_rhs(n: usize, c: &Numbers, r0: f64, r1: &[f64], y: &[f64], dy: &mut [
         }
     }
     write(n, alpha);
+}
+
+/// See [`AffineSet::factor_transform`].
+#[derive(Clone, Debug)]
+pub struct FactorTransform {
+    set: AffineSet,
+    rate: Rate,
+    factor: usize,
+    t: f64,
+    /// The coefficients and the fixed components when the plan is the scalar closed form
+    /// (a log-price over a square-root variance, for one).
+    scalar: Option<(Numbers, Vec<bool>)>,
+}
+
+impl FactorTransform {
+    /// log E[exp(w·X_t)] of the factor (on ln X for a log factor).
+    pub fn log_transform(&self, w: Complex64) -> Result<Complex64, TransformError> {
+        let n = self.set.n;
+        let mut u = vec![Complex64::new(0.0, 0.0); n];
+        *u.get_mut(self.factor)
+            .ok_or_else(|| TransformError::Failed("no such factor".into()))? = w;
+        match &self.scalar {
+            Some((numbers, fixed)) => {
+                let zero = vec![0.0; n];
+                let (alpha, beta) = scalar_solution(n, numbers, &zero, fixed, &u, self.t)?;
+                Ok(alpha + dot(&beta, &self.set.x0))
+            }
+            None => self.set.log_transform(&u, &self.rate, self.t),
+        }
+    }
 }
 
 /// How a transform is computed.

@@ -336,17 +336,14 @@ impl Law {
             return None;
         };
         let z = z - origin;
-        let rate = Rate::zero(set);
-        let size = set.dimension();
+        let transform = set.factor_transform(*factor, *t);
         // ln φ at the scaled frequency s = ω·sd, on which the integrand decays on a
         // scale of one.
         let log_phi = |s: f64| -> Option<Complex64> {
             budget
                 .fetch_update(Ordering::Relaxed, Ordering::Relaxed, |n| n.checked_sub(1))
                 .ok()?;
-            let mut u = vec![Complex64::new(0.0, 0.0); size];
-            *u.get_mut(*factor)? = Complex64::new(0.0, s / sd);
-            set.log_transform(&u, &rate, *t).ok()
+            transform.log_transform(Complex64::new(0.0, s / sd)).ok()
         };
         let integrand = |s: f64| -> f64 {
             if s == 0.0 {

@@ -191,8 +191,37 @@ fn log_price_with_square_root_variance_has_the_heston_characteristic_function() 
                 (by_riccati - expected).norm() < 1e-9,
                 "{omega} {t}: {by_riccati}"
             );
+            // The transform prepared once for the log-price (what Fourier inversion
+            // calls) is the same closed form.
+            let prepared = set
+                .factor_transform(0, t)
+                .log_transform(Complex64::new(0.0, omega))
+                .expect("finite");
+            assert!(
+                (prepared - expected).norm() < 1e-11,
+                "{omega} {t}: {prepared}"
+            );
         }
     }
+    // A set without the closed form (time-dependent coefficients) goes through the
+    // general transform, and the prepared one agrees with it.
+    let stepped = model(&HESTON.replace(
+        "dv = kappa * (theta - v) dt",
+        "dv = kappa * (step(t, theta, 6 [month], 2 * theta) - v) dt",
+    ));
+    let stepped_set = AffineSet::from_model(&stepped).expect("affine");
+    let u = [Complex64::new(0.0, 2.0), Complex64::new(0.0, 0.0)];
+    let general = stepped_set
+        .log_transform(&u, &Rate::zero(&stepped_set), 1.0)
+        .expect("finite");
+    let prepared = stepped_set
+        .factor_transform(0, 1.0)
+        .log_transform(Complex64::new(0.0, 2.0))
+        .expect("finite");
+    assert!(
+        (general - prepared).norm() < 1e-13,
+        "{general} vs {prepared}"
+    );
     // E[S_t] = S₀ e^{μt} whatever the variance does.
     let mean = set
         .log_transform(&real(&[1.0, 0.0]), &rate, 2.0)
