@@ -7,6 +7,7 @@
 //! and the records (`structure`) from which sdeck-checks decides the structural rules.
 
 mod analyze;
+mod function;
 mod meaning;
 pub mod model;
 pub mod structure;
