@@ -71,19 +71,46 @@ impl FileCheck {
 
 /// Analyses one file's text. `name` is the model's default name (the file's stem).
 pub fn check(source: &str, name: &str, settings: &RuleSettings) -> FileCheck {
+    match check_unless_stale(source, name, settings, &|| false) {
+        Ok(check) => check,
+        // `stale` above never answers yes, so no check is abandoned.
+        Err(Abandoned) => unreachable!("a check that is never stale ran to its end"),
+    }
+}
+
+/// A check given up because its text became stale (the editor has a newer version).
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct Abandoned;
+
+/// [`check`], asking `stale` at its cancellation points (after the semantics, after the
+/// derivation, before each rule and each expectation) and giving up as soon as it answers
+/// yes: the language server stops analysing a version the user has already typed past.
+pub fn check_unless_stale(
+    source: &str,
+    name: &str,
+    settings: &RuleSettings,
+    stale: &(dyn Fn() -> bool + Sync),
+) -> Result<FileCheck, Abandoned> {
     let analysis = sdeck_semantics::analyze(source, name);
+    if stale() {
+        return Err(Abandoned);
+    }
     let derivation = sdeck_calculus::derive(&analysis.model);
+    if stale() {
+        return Err(Abandoned);
+    }
     let mut diagnostics = analysis.diagnostics.clone();
     diagnostics.extend(rules::run_all(
         &rules::Context::new(source, &analysis, &derivation)
-            .with_plausibility(settings.plausibility),
-    ));
+            .with_plausibility(settings.plausibility)
+            .with_stale(stale),
+    )?);
     let diagnostics = finish(source, &analysis.file, diagnostics, settings);
-    FileCheck {
+    Ok(FileCheck {
         analysis,
         derivation,
         diagnostics,
-    }
+    })
 }
 
 /// Applies suppressions and settings, then sorts.

@@ -81,9 +81,30 @@ pub struct Analyzed {
 }
 
 impl Analyzed {
-    /// Runs the analysis. The caller guards against panics.
+    /// Runs the analysis to its end (the tests' way in). The caller guards against panics.
+    #[cfg(test)]
     pub fn compute(snapshot: TextSnapshot) -> Analyzed {
         let check = sdeck_checks::check(&snapshot.text, &snapshot.stem, &snapshot.project.settings);
+        Analyzed::from_check(snapshot, check)
+    }
+
+    /// [`Analyzed::compute`], given up (`None`) as soon as `stale` answers yes at one of
+    /// the check's cancellation points.
+    pub fn compute_unless_stale(
+        snapshot: TextSnapshot,
+        stale: &(dyn Fn() -> bool + Sync),
+    ) -> Option<Analyzed> {
+        let check = sdeck_checks::check_unless_stale(
+            &snapshot.text,
+            &snapshot.stem,
+            &snapshot.project.settings,
+            stale,
+        )
+        .ok()?;
+        Some(Analyzed::from_check(snapshot, check))
+    }
+
+    fn from_check(snapshot: TextSnapshot, check: sdeck_checks::FileCheck) -> Analyzed {
         let excluded = snapshot.project.excluded;
         let index = LineIndex::new(&snapshot.text);
         let states = check.analysis.model.factors.len();

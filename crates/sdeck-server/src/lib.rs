@@ -91,6 +91,8 @@ pub struct DocumentTextResult {
     /// How many analyses of the document have run since it was opened (the tests check
     /// that requests share one, and that a burst of edits is analysed once).
     pub analyses: u64,
+    /// How many analyses were given up because the text changed while they ran.
+    pub abandoned: u64,
 }
 
 /// The analysis of one version of a document, or the error it ended with.
@@ -108,6 +110,8 @@ struct Slot {
     running: bool,
     /// Analyses run since the document was opened.
     count: u64,
+    /// Analyses given up since the document was opened: a newer version arrived.
+    abandoned: u64,
 }
 
 /// State shared by the handlers and the analysis threads.
@@ -186,7 +190,21 @@ impl Shared {
             }
             let Some(snapshot) = snapshot else { return };
             let version = snapshot.version;
-            let result = guard("the analysis", || Analyzed::compute(snapshot)).map(Arc::new);
+            // Typed past: the analysis of this version stops at its next cancellation
+            // point and the loop takes the newest version.
+            let stale = || self.documents.version(uri) != Some(version);
+            let result = match guard("the analysis", || {
+                Analyzed::compute_unless_stale(snapshot, &stale)
+            }) {
+                Ok(Some(analyzed)) => Ok(Arc::new(analyzed)),
+                Ok(None) => {
+                    if let Some(slot) = self.slots().get_mut(uri) {
+                        slot.abandoned += 1;
+                    }
+                    continue;
+                }
+                Err(e) => Err(e),
+            };
             let outcome = Arc::new(Outcome { version, result });
             match self.slots().get_mut(uri) {
                 Some(slot) => {
@@ -334,6 +352,11 @@ impl Backend {
                     .slots()
                     .get(&params.uri)
                     .map_or(0, |slot| slot.count),
+                abandoned: self
+                    .shared
+                    .slots()
+                    .get(&params.uri)
+                    .map_or(0, |slot| slot.abandoned),
             }),
             None => Err(Error::invalid_params(format!("{} is not open", params.uri))),
         }

@@ -101,6 +101,23 @@ param kappa = 0.5% [1/day] > 0  # speed\nparam theta = 3%\nparam sigma = 1% [1/s
 shock W\nfactor r = 1%\ndr = kappa * (theta - r) dt + sigma dW\n";
 
 #[test]
+fn an_analysis_whose_text_turns_stale_is_given_up() {
+    let snapshot = |text: &str| TextSnapshot {
+        text: text.to_string(),
+        version: 1,
+        project: Arc::new(crate::analysis::ProjectSettings::default()),
+        stem: "test_model".to_string(),
+    };
+    assert!(Analyzed::compute_unless_stale(snapshot(VASICEK), &|| true).is_none());
+    let full = Analyzed::compute_unless_stale(snapshot(VASICEK), &|| false).expect("analysed");
+    assert_eq!(
+        full.check.diagnostics,
+        analyzed(VASICEK).check.diagnostics,
+        "never stale: the same analysis as compute"
+    );
+}
+
+#[test]
 fn hover_on_a_state_shows_the_vasicek_moments_at_the_horizon() {
     let a = analyzed(VASICEK);
     let md = hover_text(&a, position_of(VASICEK, "dr =", 1));

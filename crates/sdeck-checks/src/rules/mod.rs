@@ -36,6 +36,9 @@ pub struct Context<'a> {
     pub broken: bool,
     /// The thresholds of `implausible-value` (the project's, or the defaults).
     pub plausibility: implausible_value::Plausibility,
+    /// Whether the text checked is stale (a newer version waits): rules with a loop over
+    /// many items ask it and stop early; [`run_all`] asks it before each rule.
+    pub stale: &'a (dyn Fn() -> bool + Sync),
 }
 
 impl<'a> Context<'a> {
@@ -47,7 +50,14 @@ impl<'a> Context<'a> {
             derivation,
             broken: analysis.has_errors(),
             plausibility: implausible_value::Plausibility::default(),
+            stale: &|| false,
         }
+    }
+
+    /// The same context, giving up when `stale` answers yes.
+    pub fn with_stale(mut self, stale: &'a (dyn Fn() -> bool + Sync)) -> Self {
+        self.stale = stale;
+        self
     }
 
     /// The same context with the project's thresholds for `implausible-value`.
@@ -85,13 +95,16 @@ pub fn registered() -> impl Iterator<Item = RuleId> {
     REGISTRY.iter().map(|(rule, _)| *rule)
 }
 
-/// Every diagnostic of the registered rules.
-pub fn run_all(cx: &Context) -> Vec<Diagnostic> {
+/// Every diagnostic of the registered rules; abandoned when the context turns stale.
+pub fn run_all(cx: &Context) -> Result<Vec<Diagnostic>, crate::Abandoned> {
     let mut out = Vec::new();
     for (_, run) in REGISTRY {
+        if (cx.stale)() {
+            return Err(crate::Abandoned);
+        }
         run(cx, &mut out);
     }
-    out
+    Ok(out)
 }
 
 #[cfg(test)]

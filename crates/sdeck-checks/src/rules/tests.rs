@@ -10,8 +10,37 @@ use sdeck_semantics::{Interval, Model};
 fn run(source: &str) -> (Model, Vec<Diagnostic>) {
     let analysis = sdeck_semantics::analyze(source, "test_model");
     let derivation = derive(&analysis.model);
-    let diagnostics = run_all(&Context::new(source, &analysis, &derivation));
+    let diagnostics = run_all(&Context::new(source, &analysis, &derivation))
+        .expect("a context that is never stale runs every rule");
     (analysis.model, diagnostics)
+}
+
+#[test]
+fn a_stale_context_runs_no_rule_and_a_stale_check_is_abandoned() {
+    let source = "param kappa = 2 [1/year] > 0\nparam unused_one = 3\nshock W\nfactor x = 0\n\
+dx = -kappa * x dt + 0.1 [1/sqrt(year)] dW\nexpect mean(x, 1 year) > 5\n";
+    let analysis = sdeck_semantics::analyze(source, "stale");
+    let derivation = derive(&analysis.model);
+    let stale = || true;
+    let cx = Context::new(source, &analysis, &derivation).with_stale(&stale);
+    assert_eq!(run_all(&cx), Err(crate::Abandoned));
+    let settings = crate::RuleSettings::default();
+    assert!(crate::check_unless_stale(source, "stale", &settings, &stale).is_err());
+    // Turning stale after the derivation: the semantics and the calculus ran, the rules
+    // did not (the third question is the one before the first rule).
+    let asked = std::sync::atomic::AtomicUsize::new(0);
+    let after_two = || asked.fetch_add(1, std::sync::atomic::Ordering::SeqCst) >= 2;
+    assert!(crate::check_unless_stale(source, "stale", &settings, &after_two).is_err());
+    assert_eq!(asked.load(std::sync::atomic::Ordering::SeqCst), 3);
+    // Never stale: the same findings as `check` (an unused parameter, a failed
+    // expectation).
+    let full =
+        crate::check_unless_stale(source, "stale", &settings, &|| false).expect("never stale");
+    assert_eq!(
+        full.diagnostics,
+        crate::check(source, "stale", &settings).diagnostics
+    );
+    assert!(full.diagnostics.len() >= 2, "{:?}", full.diagnostics);
 }
 
 fn of_rule<'d>(diagnostics: &'d [Diagnostic], rule: &Rule) -> Vec<&'d Diagnostic> {
