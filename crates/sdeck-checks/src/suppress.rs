@@ -45,6 +45,9 @@ struct Directive {
     kind: Option<Kind>,
     rules: Vec<NamedRule>,
     problems: Vec<Diagnostic>,
+    /// For each misspelt rule name: its problem (index into `problems`) and the rule its
+    /// fix would write.
+    misspelt: Vec<(usize, RuleId)>,
 }
 
 fn problem(span: Span, message: String) -> Diagnostic {
@@ -122,6 +125,7 @@ fn parse_directive(text: &str, base: usize, comment: &Span) -> Option<Directive>
         return Some(Directive {
             kind: None,
             rules: Vec::new(),
+            misspelt: Vec::new(),
             problems: vec![problem(
                 comment.clone(),
                 "`sdeck:` names no directive and no rule".to_string(),
@@ -137,7 +141,8 @@ fn parse_directive(text: &str, base: usize, comment: &Span) -> Option<Directive>
             return Some(Directive {
                 kind: None,
                 rules: Vec::new(),
-                problems: vec![problem(
+                misspelt: Vec::new(),
+            problems: vec![problem(
                     absolute(word_at, word),
                     format!("`sdeck: {other}` is not a directive; write `quiet`, `quiet-begin`, `quiet-end` or `quiet-file`"),
                 )],
@@ -149,6 +154,7 @@ fn parse_directive(text: &str, base: usize, comment: &Span) -> Option<Directive>
         return Some(Directive {
             kind: None,
             rules: Vec::new(),
+            misspelt: Vec::new(),
             problems: vec![problem(
                 comment.clone(),
                 format!("`sdeck: {word}` names no rule"),
@@ -157,6 +163,7 @@ fn parse_directive(text: &str, base: usize, comment: &Span) -> Option<Directive>
     }
     let mut known = Vec::new();
     let mut problems = Vec::new();
+    let mut misspelt = Vec::new();
     if let Some(at) = old_reason {
         let span = base + at..base + at + 2;
         let after = text.get(at + 2..).unwrap_or("");
@@ -191,7 +198,11 @@ fn parse_directive(text: &str, base: usize, comment: &Span) -> Option<Directive>
                 span,
             });
         } else {
-            let diagnostic = match rules::closest(name) {
+            let close = rules::closest(name);
+            if let Some(close) = close {
+                misspelt.push((problems.len(), close.id));
+            }
+            let diagnostic = match close {
                 Some(close) => Diagnostic::new(
                     &rules::UNUSED_SUPPRESSION,
                     span.clone(),
@@ -217,6 +228,7 @@ fn parse_directive(text: &str, base: usize, comment: &Span) -> Option<Directive>
         kind: Some(kind),
         rules: known,
         problems,
+        misspelt,
     })
 }
 
@@ -251,37 +263,46 @@ pub fn apply(source: &str, file: &SourceFile, diagnostics: Vec<Diagnostic>) -> V
             .checked_sub(comment.text.len())
             .filter(|b| *b >= comment.span.start)
             .unwrap_or(comment.span.start + 1);
-        let Some(directive) = parse_directive(&comment.text, base, &comment.span) else {
+        let Some(mut directive) = parse_directive(&comment.text, base, &comment.span) else {
             continue;
         };
+        let line = line_of(comment.span.start);
+        let lines = match directive.kind {
+            Some(Kind::Quiet) if comment.trailing => statement_lines
+                .iter()
+                .copied()
+                .find(|&(a, b)| a <= line && line <= b)
+                .unwrap_or((line, line)),
+            Some(Kind::Quiet) => statement_lines
+                .iter()
+                .copied()
+                .find(|&(a, _)| a > line)
+                .unwrap_or((line + 1, line + 1)),
+            _ => (0, last_line),
+        };
+        // A misspelt name is mended only where the rule it means would silence something:
+        // elsewhere the mended comment would still silence nothing.
+        if matches!(directive.kind, Some(Kind::Quiet | Kind::File)) {
+            for &(k, meant) in &directive.misspelt {
+                let silences = diagnostics.iter().any(|d| {
+                    d.rule == meant && (lines.0..=lines.1).contains(&line_of(d.span.start))
+                });
+                if let (false, Some(problem)) = (silences, directive.problems.get_mut(k)) {
+                    problem.fixes.clear();
+                }
+            }
+        }
         problems.extend(directive.problems);
         let Some(kind) = directive.kind else { continue };
         if directive.rules.is_empty() {
             continue;
         }
-        let line = line_of(comment.span.start);
         let mut push = |rules: Vec<NamedRule>, lines: (u32, u32)| {
             let used = vec![false; rules.len()];
             suppressions.push(Suppression { rules, lines, used });
         };
         match kind {
-            Kind::Quiet => {
-                let lines = if comment.trailing {
-                    statement_lines
-                        .iter()
-                        .copied()
-                        .find(|&(a, b)| a <= line && line <= b)
-                        .unwrap_or((line, line))
-                } else {
-                    statement_lines
-                        .iter()
-                        .copied()
-                        .find(|&(a, _)| a > line)
-                        .unwrap_or((line + 1, line + 1))
-                };
-                push(directive.rules, lines);
-            }
-            Kind::File => push(directive.rules, (0, last_line)),
+            Kind::Quiet | Kind::File => push(directive.rules, lines),
             Kind::Begin => {
                 for named in directive.rules {
                     open.push((named, line));

@@ -276,6 +276,25 @@ fn a_misspelt_rule_gets_a_fix_to_the_nearest_name() {
 }
 
 #[test]
+fn a_misspelt_rule_that_would_silence_nothing_gets_no_fix() {
+    // `unused` does not fire on the statement after line 10: writing it would leave a
+    // suppression that silences nothing, so only the message names the rule.
+    let text = with_line(10, "# sdeck: quiet unsued because nothing is unused here");
+    let found = sdeck_checks::check(&text, "m", &RuleSettings::default());
+    let d = found
+        .diagnostics
+        .iter()
+        .find(|d| d.rule.name() == "unused-suppression")
+        .expect("the misspelt name is reported");
+    assert!(
+        d.message.contains("did you mean `unused`?"),
+        "{}",
+        d.message
+    );
+    assert!(d.fixes.is_empty(), "{:?}", d.fixes);
+}
+
+#[test]
 fn a_known_rule_beside_an_unknown_one_still_silences() {
     let text = with_line(
         6,

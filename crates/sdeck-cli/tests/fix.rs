@@ -126,7 +126,7 @@ fn overlapping_fixes_write_nothing_and_name_the_clash() {
 
 #[test]
 fn a_stub_is_offered_to_an_editor_but_never_written_by_fix() {
-    // `missing-equation` offers `dr = 0 dt  # TODO`, which would silence the error
+    // `missing-equation` offers `dr = 0 [1/year] dt  # TODO`, which would silence the error
     // without mending it.
     let text = "clock year\nshock W\nfactor r = 2%\n";
     let dir = tempfile::tempdir().unwrap();

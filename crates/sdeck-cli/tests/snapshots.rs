@@ -126,22 +126,6 @@ fn snapshot_of(path: &str, problems: &mut Vec<String>) -> String {
     snap
 }
 
-/// Fixes known not to clear their finding or to introduce another, each a defect of its
-/// rule to mend (the test fails when one is mended, so that it is struck off):
-/// - the stub equation `dspread = 0 dt` offered for a missing equation has the wrong
-///   dimension for a factor with a unit-less value, so it trades one error for another;
-/// - `Declare param rate` is offered for a name an expectation uses as a factor: a
-///   parameter does not clear it and is itself unused;
-/// - mending a misspelt rule name in a suppression leaves a suppression that still
-///   silences nothing in the fixture (the same rule, another finding).
-const KNOWN_FIX_DEFECTS: [&str; 5] = [
-    "demo-models/flawed/missing-equation.sde: fix `Add an equation for `spread`` of `missing-equation` introduces `dimension-mismatch`",
-    "demo-models/flawed/unknown-name.sde: fix `Declare `param rate`` leaves its `unknown-name` finding",
-    "demo-models/flawed/unknown-name.sde: fix `Declare `param rate`` of `unknown-name` introduces `unused`",
-    "demo-models/flawed/unused-suppression.sde: fix `Write `unused`` leaves its `unused-suppression` finding",
-    "crates/sdeck-diagnostics/src/rules/missing_equation.flawed.sde: fix `Add an equation for `spread`` of `missing-equation` introduces `dimension-mismatch`",
-];
-
 #[test]
 fn every_flawed_model_matches_its_snapshot_and_every_fix_clears_its_finding() {
     let models = flawed_models();
@@ -160,11 +144,10 @@ fn every_flawed_model_matches_its_snapshot_and_every_fix_clears_its_finding() {
         .filter(|(_, s)| s.contains("\n=== finding"))
         .count();
     assert!(with_fixes > 0, "no flawed model carries a fix");
-    let known: Vec<String> = KNOWN_FIX_DEFECTS.iter().map(|s| s.to_string()).collect();
-    assert_eq!(
-        problems, known,
-        "the fixes that do not clear their finding, or introduce another, are not those \
-         listed in KNOWN_FIX_DEFECTS: mend the new ones; strike the mended ones off the list"
+    assert!(
+        problems.is_empty(),
+        "fixes that do not clear their finding, or introduce another:\n{}",
+        problems.join("\n")
     );
     let mut settings = insta::Settings::clone_current();
     settings.set_prepend_module_to_snapshot(false);

@@ -173,3 +173,37 @@ fn schedule_mistakes_are_reported_where_they_are() {
         .map(|f| f.edits[0].new_text.clone());
     assert_eq!(fix.as_deref(), Some("0.5 [year]"));
 }
+
+#[test]
+fn an_expectation_on_an_undeclared_factor_is_mended_only_by_a_factor() {
+    let base = "param k = 1 [1/year]\nparam v = 0.1 [1/sqrt(year)]\nshock W\nfactor r = 1\n\
+                dr = -k * r dt + v dW\n";
+    let fixes = |line: &str| {
+        let text = format!("{base}{line}\n");
+        let a = sdeck_semantics::analyze(&text, "t");
+        let d = a
+            .diagnostics
+            .iter()
+            .find(|d| d.rule.name() == "unknown-name")
+            .cloned()
+            .unwrap_or_else(|| panic!("{line}: {:?}", a.diagnostics));
+        assert_eq!(
+            d.message,
+            format!(
+                "factor `{}` is not declared",
+                &line[12..14].trim_end_matches(',')
+            )
+        );
+        d.fixes
+            .iter()
+            .map(|f| (f.title.clone(), f.edits[0].new_text.clone()))
+            .collect::<Vec<_>>()
+    };
+    // A slip of the keyboard: the factor of that name.
+    assert_eq!(
+        fixes("expect mean(rr, 1 year) < 5"),
+        vec![("Write `r`".to_string(), "r".to_string())]
+    );
+    // No factor is close: no parameter is offered, since none would mend it.
+    assert!(fixes("expect mean(zz, 1 year) < 5").is_empty());
+}

@@ -333,7 +333,7 @@ impl<'a> Analyzer<'a> {
             _ => {}
         }
         let Some((target, _)) = self.names.get(&ident.name).cloned() else {
-            self.undefined(ident, "");
+            self.undefined(ident);
             return (Expr::Invalid, None);
         };
         self.reference(ident, &target);
@@ -417,17 +417,23 @@ impl<'a> Analyzer<'a> {
         });
     }
 
-    pub(super) fn undefined(&mut self, ident: &ast::Ident, what: &str) {
-        let mut d = Diagnostic::new(
+    /// `WHAT NAME is not declared`, with the closest declared name as help.
+    fn not_declared(&self, ident: &ast::Ident, what: &str) -> Diagnostic {
+        let d = Diagnostic::new(
             &rules::UNKNOWN_NAME,
             ident.span.clone(),
             format!("{what}`{}` is not declared", ident.name),
         );
         if let Some(close) = closest_name(&ident.name, self.names.keys()) {
-            d = d.with_help(format!("did you mean `{close}`?"));
+            d.with_help(format!("did you mean `{close}`?"))
         } else {
-            d = d.with_help(format!("declare it, e.g. `param {} = 1`", ident.name));
+            d.with_help(format!("declare it, e.g. `param {} = 1`", ident.name))
         }
+    }
+
+    /// A value's name that is not declared, with a stub parameter to choose as a fix.
+    pub(super) fn undefined(&mut self, ident: &ast::Ident) {
+        let mut d = self.not_declared(ident, "");
         let insert_at = self
             .model
             .params
@@ -496,7 +502,19 @@ impl<'a> Analyzer<'a> {
                 None
             }
             None => {
-                self.undefined(ident, "factor ");
+                // Only a factor mends it: the fix writes a factor of a similar name.
+                let mut d = self.not_declared(ident, "factor ");
+                let factors = self.model.factors.iter().map(|f| &f.name);
+                if let Some(close) = closest_name(&ident.name, factors) {
+                    d = d.with_fix(
+                        format!("Write `{close}`"),
+                        vec![TextEdit {
+                            span: ident.span.clone(),
+                            new_text: close,
+                        }],
+                    );
+                }
+                self.diagnostics.push(d);
                 None
             }
         }
