@@ -1,0 +1,501 @@
+//! One block of paths advanced step by step: the per-thread working memory, the step of
+//! each scheme over 64 lanes, the coarse grid of step doubling, the discount integral, and
+//! the values recorded at the dates.
+
+use crate::bytecode::{Lanes, LANES};
+use crate::normals::fill_normals_chunk;
+use rand::SeedableRng;
+use rand_chacha::ChaCha8Rng;
+
+use super::compile::{Compiled, EulerState, GroupStep, LognormalState, Segment};
+
+/// Per-thread working memory, reused across blocks.
+pub(super) struct Scratch {
+    pub(super) current: Vec<Lanes>,
+    pub(super) next: Vec<Lanes>,
+    pub(super) words: [u64; LANES / 2],
+    pub(super) normals: Vec<Lanes>,
+    pub(super) increments: Vec<Lanes>,
+    pub(super) group_normals: Vec<Lanes>,
+    pub(super) stack: Vec<Lanes>,
+    pub(super) value: Lanes,
+    /// Step doubling: the coarse grid's states, and the first half of each pair of steps.
+    pub(super) coarse: Vec<Lanes>,
+    pub(super) coarse_next: Vec<Lanes>,
+    pub(super) first_increments: Vec<Lanes>,
+    pub(super) first_normals: Vec<Lanes>,
+    /// With a discount: ∫ r ds so far and the rate at the current time, on the fine and
+    /// on the coarse grid.
+    pub(super) integral: Lanes,
+    pub(super) rate: Lanes,
+    pub(super) coarse_integral: Lanes,
+    pub(super) coarse_rate: Lanes,
+}
+
+impl Scratch {
+    pub(super) fn new(compiled: &Compiled) -> Scratch {
+        let group_size = compiled
+            .segments
+            .first()
+            .and_then(|s| s.group.as_ref())
+            .map_or(0, |g| g.states.len());
+        let doubling = if compiled.step_doubling { 1 } else { 0 };
+        Scratch {
+            current: vec![[0.0; LANES]; compiled.state_count],
+            next: vec![[0.0; LANES]; compiled.state_count],
+            words: [0; LANES / 2],
+            normals: vec![[0.0; LANES]; compiled.noise_count],
+            increments: vec![[0.0; LANES]; compiled.noise_count],
+            group_normals: vec![[0.0; LANES]; group_size],
+            stack: vec![[0.0; LANES]; compiled.stack_depth],
+            value: [0.0; LANES],
+            coarse: vec![[0.0; LANES]; compiled.state_count * doubling],
+            coarse_next: vec![[0.0; LANES]; compiled.state_count * doubling],
+            first_increments: vec![[0.0; LANES]; compiled.noise_count * doubling],
+            first_normals: vec![[0.0; LANES]; compiled.noise_count * doubling],
+            integral: [0.0; LANES],
+            rate: [0.0; LANES],
+            coarse_integral: [0.0; LANES],
+            coarse_rate: [0.0; LANES],
+        }
+    }
+}
+
+/// The values of one block: `values[(date * states + state) * LANES + lane]`, the same for
+/// `coarse`, and for recorded blocks `bands[(record * states + state) * LANES + lane]`.
+pub(super) struct BlockOutput {
+    pub(super) values: Vec<f64>,
+    pub(super) coarse: Vec<f64>,
+    pub(super) bands: Vec<f64>,
+    /// With a discount: `discount[date * LANES + lane]`, the same for `coarse_discount`.
+    pub(super) discount: Vec<f64>,
+    pub(super) coarse_discount: Vec<f64>,
+}
+
+pub(super) fn reported(value: f64, truncated: bool) -> f64 {
+    if truncated {
+        value.max(0.0)
+    } else {
+        value
+    }
+}
+
+/// Correlated Brownian increments √Δ·L·Z from the normals of every noise.
+#[multiversion::multiversion(targets(
+    "x86_64+avx512f+avx512dq+avx512vl",
+    "x86_64+avx2+fma",
+    "x86_64+sse4.1",
+    "aarch64+neon"
+))]
+pub(super) fn increments_from_normals(
+    factor: Option<&[Vec<f64>]>,
+    sqrt_dt: f64,
+    normals: &[Lanes],
+    increments: &mut [Lanes],
+) {
+    match factor {
+        None => {
+            for (increment, normal) in increments.iter_mut().zip(normals) {
+                for (d, z) in increment.iter_mut().zip(normal) {
+                    *d = sqrt_dt * z;
+                }
+            }
+        }
+        Some(factor) => {
+            for (increment, row) in increments.iter_mut().zip(factor) {
+                increment.fill(0.0);
+                for (weight, normal) in row.iter().zip(normals) {
+                    if *weight == 0.0 {
+                        continue;
+                    }
+                    let w = weight * sqrt_dt;
+                    for (d, z) in increment.iter_mut().zip(normal) {
+                        *d += w * z;
+                    }
+                }
+            }
+        }
+    }
+}
+
+/// One Euler–Maruyama step of every Euler state, from `from` to `to`, over `dt` with
+/// increments `increments` (or the sums `increments + extra`, for the coarse grid).
+#[multiversion::multiversion(targets(
+    "x86_64+avx512f+avx512dq+avx512vl",
+    "x86_64+avx2+fma",
+    "x86_64+sse4.1",
+    "aarch64+neon"
+))]
+#[allow(clippy::too_many_arguments)]
+pub(super) fn euler_step(
+    euler: &[EulerState],
+    from: &[Lanes],
+    to: &mut [Lanes],
+    t: f64,
+    dt: f64,
+    increments: &[Lanes],
+    extra: Option<&[Lanes]>,
+    stack: &mut [Lanes],
+    value: &mut Lanes,
+) {
+    for state in euler {
+        let i = state.index;
+        state.drift.evaluate(from, t, stack, value);
+        let (target, start) = (&mut to[i], &from[i]);
+        for ((n, x), a) in target.iter_mut().zip(start).zip(value.iter()) {
+            *n = x + a * dt;
+        }
+        for (noise, program) in &state.diffusion {
+            let mut increment = increments[*noise];
+            if let Some(extra) = extra {
+                for (d, e) in increment.iter_mut().zip(&extra[*noise]) {
+                    *d += e;
+                }
+            }
+            if let Some(c) = program.constant() {
+                for (n, d) in to[i].iter_mut().zip(&increment) {
+                    *n += c * d;
+                }
+            } else {
+                program.evaluate(from, t, stack, value);
+                for ((n, b), d) in to[i].iter_mut().zip(value.iter()).zip(&increment) {
+                    *n += b * d;
+                }
+            }
+        }
+    }
+}
+
+#[multiversion::multiversion(targets(
+    "x86_64+avx512f+avx512dq+avx512vl",
+    "x86_64+avx2+fma",
+    "x86_64+sse4.1",
+    "aarch64+neon"
+))]
+pub(super) fn lognormal_step(
+    states: &[LognormalState],
+    drifts: &[f64],
+    current: &[Lanes],
+    next: &mut [Lanes],
+    increments: &[Lanes],
+    value: &mut Lanes,
+) {
+    for (state, drift) in states.iter().zip(drifts) {
+        value.fill(*drift);
+        for (noise, loading) in &state.loadings {
+            for (v, d) in value.iter_mut().zip(&increments[*noise]) {
+                *v += loading * d;
+            }
+        }
+        let i = state.index;
+        for ((n, x), v) in next[i].iter_mut().zip(&current[i]).zip(value.iter()) {
+            *n = x * v.exp();
+        }
+    }
+}
+
+pub(super) fn group_step(
+    group: &GroupStep,
+    current: &[Lanes],
+    next: &mut [Lanes],
+    normals: &[Lanes],
+    value: &mut Lanes,
+) {
+    for (a, &target) in group.states.iter().enumerate() {
+        value.fill(group.shift[a]);
+        for (b, &source) in group.states.iter().enumerate() {
+            let weight = group.transition[a][b];
+            if weight != 0.0 {
+                for (v, x) in value.iter_mut().zip(&current[source]) {
+                    *v += weight * x;
+                }
+            }
+            let loading = group.noise_factor[a][b];
+            if loading != 0.0 {
+                for (v, z) in value.iter_mut().zip(&normals[b]) {
+                    *v += loading * z;
+                }
+            }
+        }
+        next[target] = *value;
+    }
+}
+
+/// Advances a block by one step of `segment`; `t` is the time at the start of the step,
+/// `second_of_pair` says whether this step closes a pair of the coarse grid.
+pub(super) fn advance(
+    compiled: &Compiled,
+    segment: &Segment,
+    scratch: &mut Scratch,
+    rng: &mut ChaCha8Rng,
+    t: f64,
+    second_of_pair: bool,
+) {
+    let dt = segment.dt;
+    let Scratch {
+        current,
+        next,
+        words,
+        normals,
+        increments,
+        group_normals,
+        stack,
+        value,
+        coarse,
+        coarse_next,
+        first_increments,
+        first_normals,
+        integral,
+        rate,
+        coarse_integral,
+        coarse_rate,
+    } = scratch;
+
+    if compiled.needs_normals {
+        for lanes in normals.iter_mut() {
+            fill_normals_chunk(rng, words, lanes);
+        }
+    }
+    if compiled.needs_increments {
+        increments_from_normals(
+            compiled.noise_factor.as_deref(),
+            segment.sqrt_dt,
+            normals,
+            increments,
+        );
+    }
+
+    euler_step(
+        &compiled.euler,
+        current,
+        next,
+        t,
+        dt,
+        increments,
+        None,
+        stack,
+        value,
+    );
+    lognormal_step(
+        &compiled.lognormal,
+        &segment.lognormal,
+        current,
+        next,
+        increments,
+        value,
+    );
+    for (state, transition) in compiled.square_root.iter().zip(&segment.square_root) {
+        let i = state.index;
+        for (n, x) in next[i].iter_mut().zip(&current[i]) {
+            *n = transition.sample(rng, *x);
+        }
+    }
+    if let Some(group) = &segment.group {
+        for lanes in group_normals.iter_mut() {
+            fill_normals_chunk(rng, words, lanes);
+        }
+        group_step(group, current, next, group_normals, value);
+    }
+    for (state, step) in compiled.driven.iter().zip(&segment.driven) {
+        let (i, v, k) = (state.index, state.law.variance, state.law.noise);
+        let variance_next = next[v];
+        for ((((n, x), v0), v1), z) in next[i]
+            .iter_mut()
+            .zip(&current[i])
+            .zip(&current[v])
+            .zip(&variance_next)
+            .zip(&normals[k])
+        {
+            *n = step.apply(*x, *v0, *v1, *z);
+        }
+    }
+
+    if compiled.step_doubling {
+        if !second_of_pair {
+            // Start of a pair: the exact states on the coarse grid are the fine ones.
+            for (i, discretised) in compiled.discretised.iter().enumerate() {
+                if !discretised {
+                    coarse[i] = current[i];
+                }
+            }
+            first_increments.copy_from_slice(increments);
+            first_normals.copy_from_slice(normals);
+        } else {
+            // Close the pair: one step of 2Δ on the coarse grid with the summed increments.
+            coarse_step(
+                compiled,
+                segment,
+                coarse,
+                coarse_next,
+                t - dt,
+                increments,
+                first_increments,
+                normals,
+                first_normals,
+                next,
+                stack,
+                value,
+            );
+            if let Some(program) = &compiled.discount {
+                // The exact states of the coarse grid are the fine ones.
+                for (i, discretised) in compiled.discretised.iter().enumerate() {
+                    if !discretised {
+                        coarse[i] = next[i];
+                    }
+                }
+                program.evaluate(coarse, t + dt, stack, value);
+                trapezoid(coarse_integral, coarse_rate, value, 2.0 * dt);
+            }
+        }
+    }
+
+    std::mem::swap(current, next);
+    if let Some(program) = &compiled.discount {
+        program.evaluate(current, t + dt, stack, value);
+        trapezoid(integral, rate, value, dt);
+    }
+}
+
+/// One panel of the trapezoid rule: `integral += h (rate + next)/2`, then `rate = next`.
+#[inline(always)]
+pub(super) fn trapezoid(integral: &mut Lanes, rate: &mut Lanes, next: &Lanes, h: f64) {
+    let half = 0.5 * h;
+    for ((i, r), n) in integral.iter_mut().zip(rate.iter_mut()).zip(next) {
+        *i += half * (*r + n);
+        *r = *n;
+    }
+}
+
+/// The coarse grid's step over [t0, t0 + 2Δ]: Euler states with the summed increments,
+/// log-prices with the summed normals over the fine variance path (the variance is exact,
+/// so its coarse values are its fine ones).
+#[allow(clippy::too_many_arguments)]
+pub(super) fn coarse_step(
+    compiled: &Compiled,
+    segment: &Segment,
+    coarse: &mut [Lanes],
+    coarse_next: &mut [Lanes],
+    t0: f64,
+    increments: &[Lanes],
+    first_increments: &[Lanes],
+    normals: &[Lanes],
+    first_normals: &[Lanes],
+    fine_next: &[Lanes],
+    stack: &mut [Lanes],
+    value: &mut Lanes,
+) {
+    // Euler reads every state at t0, so the new values go to `coarse_next` first.
+    euler_step(
+        &compiled.euler,
+        coarse,
+        coarse_next,
+        t0,
+        2.0 * segment.dt,
+        first_increments,
+        Some(increments),
+        stack,
+        value,
+    );
+    for state in &compiled.euler {
+        coarse[state.index] = coarse_next[state.index];
+    }
+    let half = std::f64::consts::FRAC_1_SQRT_2;
+    for (state, step) in compiled.driven.iter().zip(&segment.driven_coarse) {
+        let (i, v, k) = (state.index, state.law.variance, state.law.noise);
+        for lane in 0..LANES {
+            let z = (first_normals[k][lane] + normals[k][lane]) * half;
+            coarse[i][lane] = step.apply(coarse[i][lane], coarse[v][lane], fine_next[v][lane], z);
+        }
+    }
+}
+
+pub(super) fn simulate_block(
+    compiled: &Compiled,
+    scratch: &mut Scratch,
+    seed: u64,
+    block: usize,
+    record_steps: &[usize],
+) -> BlockOutput {
+    let mut rng = ChaCha8Rng::seed_from_u64(seed);
+    rng.set_stream(block as u64);
+    for (lanes, x0) in scratch.current.iter_mut().zip(&compiled.initial) {
+        lanes.fill(*x0);
+    }
+    for (lanes, x0) in scratch.coarse.iter_mut().zip(&compiled.initial) {
+        lanes.fill(*x0);
+    }
+    let with_discount = compiled.discount.is_some();
+    if let Some(program) = &compiled.discount {
+        program.evaluate(
+            &scratch.current,
+            0.0,
+            &mut scratch.stack,
+            &mut scratch.value,
+        );
+        scratch.rate = scratch.value;
+        scratch.coarse_rate = scratch.value;
+        scratch.integral = [0.0; LANES];
+        scratch.coarse_integral = [0.0; LANES];
+    }
+    let date_count = compiled.segments.len();
+    let mut discount = Vec::with_capacity(if with_discount { date_count * LANES } else { 0 });
+    let mut coarse_discount = Vec::with_capacity(if with_discount && compiled.step_doubling {
+        date_count * LANES
+    } else {
+        0
+    });
+    let states = compiled.state_count;
+    let dates = compiled.segments.len();
+    let mut bands = Vec::with_capacity(record_steps.len() * states * LANES);
+    let mut values = Vec::with_capacity(dates * states * LANES);
+    let mut coarse = Vec::with_capacity(if compiled.step_doubling {
+        dates * states * LANES
+    } else {
+        0
+    });
+    let record = |current: &[Lanes], out: &mut Vec<f64>| {
+        for (i, lanes) in current.iter().enumerate() {
+            let truncated = compiled.truncated[i];
+            out.extend(lanes.iter().map(|x| reported(*x, truncated)));
+        }
+    };
+    let mut next_record = record_steps.iter().peekable();
+    if next_record.peek() == Some(&&0) {
+        record(&scratch.current, &mut bands);
+        next_record.next();
+    }
+    let mut global = 0usize;
+    for segment in &compiled.segments {
+        for k in 0..segment.steps {
+            let t = segment.start + k as f64 * segment.dt;
+            advance(compiled, segment, scratch, &mut rng, t, k % 2 == 1);
+            global += 1;
+            if next_record.peek() == Some(&&global) {
+                record(&scratch.current, &mut bands);
+                next_record.next();
+            }
+        }
+        record(&scratch.current, &mut values);
+        if with_discount {
+            discount.extend(scratch.integral.iter().map(|i| (-i).exp()));
+        }
+        if compiled.step_doubling {
+            for (i, discretised) in compiled.discretised.iter().enumerate() {
+                if !discretised {
+                    scratch.coarse[i] = scratch.current[i];
+                }
+            }
+            record(&scratch.coarse, &mut coarse);
+            if with_discount {
+                coarse_discount.extend(scratch.coarse_integral.iter().map(|i| (-i).exp()));
+            }
+        }
+    }
+    BlockOutput {
+        values,
+        coarse,
+        bands,
+        discount,
+        coarse_discount,
+    }
+}
