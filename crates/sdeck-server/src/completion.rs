@@ -6,17 +6,56 @@ use crate::documents::PositionEncoding;
 use sdeck_semantics::{Function, SymbolKind};
 use sdeck_syntax::ast::Figure;
 use sdeck_syntax::vocabulary::KEYWORDS;
-use tower_lsp::lsp_types::{CompletionItem, CompletionItemKind, Position};
+use tower_lsp::lsp_types::{CompletionItem, CompletionItemKind, CompletionList, Position};
 
-pub fn complete(
-    a: &Analyzed,
-    encoding: PositionEncoding,
-    position: Position,
-) -> Vec<CompletionItem> {
+/// The most items one answer carries. A model with a thousand names would otherwise send
+/// them all on every request (60 kB of JSON for 1,100 names, more to decode in the editor
+/// than the rest of the request costs); past this the answer is marked incomplete, so the
+/// editor asks again as the user types and the typed prefix narrows the list.
+const MAX_ITEMS: usize = 200;
+
+/// What fits at `position`, narrowed to the names that hold the word typed before the
+/// cursor (its letters in order, any case: what an editor's fuzzy match shows), at most
+/// [`MAX_ITEMS`] of them.
+pub fn complete(a: &Analyzed, encoding: PositionEncoding, position: Position) -> CompletionList {
     let converter = a.converter(encoding);
     let offset = converter.offset(position);
     let line_start = sdeck_syntax::lines::line_start(&a.text, offset);
     let before = a.text.get(line_start..offset).unwrap_or("");
+    let typed = typed_word(before);
+    let mut items: Vec<CompletionItem> = candidates(a, before)
+        .into_iter()
+        .filter(|item| holds_in_order(&item.label, typed))
+        .collect();
+    let is_incomplete = items.len() > MAX_ITEMS;
+    items.truncate(MAX_ITEMS);
+    CompletionList {
+        is_incomplete,
+        items,
+    }
+}
+
+/// The word (letters, digits, `_`) that ends at the cursor.
+fn typed_word(before: &str) -> &str {
+    let start = before
+        .char_indices()
+        .rev()
+        .find(|(_, c)| !(c.is_alphanumeric() || *c == '_'))
+        .map_or(0, |(i, c)| i + c.len_utf8());
+    before.get(start..).unwrap_or("")
+}
+
+/// Whether the characters of `typed` appear in `label` in order, ignoring case.
+fn holds_in_order(label: &str, typed: &str) -> bool {
+    let mut rest = label.chars().flat_map(char::to_lowercase);
+    typed
+        .chars()
+        .flat_map(char::to_lowercase)
+        .all(|wanted| rest.any(|c| c == wanted))
+}
+
+/// Everything that fits the context of the line before the cursor.
+fn candidates(a: &Analyzed, before: &str) -> Vec<CompletionItem> {
     let in_brackets = before
         .rfind('[')
         .is_some_and(|open| !before[open..].contains(']'));
@@ -197,7 +236,20 @@ fn names(
 
 #[cfg(test)]
 mod tests {
-    use super::{context, Context};
+    use super::{context, holds_in_order, typed_word, Context};
+
+    #[test]
+    fn the_typed_word_narrows_by_its_letters_in_order() {
+        assert_eq!(typed_word("dx = kap"), "kap");
+        assert_eq!(typed_word("dx = "), "");
+        assert_eq!(typed_word("param s = 1 [1/"), "");
+        assert_eq!(typed_word("  σ_lo"), "σ_lo");
+        assert!(holds_in_order("kappa_12", "kap"));
+        assert!(holds_in_order("kappa_12", "K12"));
+        assert!(holds_in_order("σ_local", "Σl"));
+        assert!(!holds_in_order("theta", "kap"));
+        assert!(holds_in_order("anything", ""));
+    }
 
     #[test]
     fn contexts_of_the_line_before_the_cursor() {

@@ -343,20 +343,19 @@ impl Backend {
 
     /// The test-only request: the server's text of a document and its version.
     pub async fn document_text(&self, params: DocumentTextParams) -> Result<DocumentTextResult> {
+        // One lock for both counts: a second `slots()` in the same expression would wait
+        // for the first guard, which lives until the end of the statement.
+        let (analyses, abandoned) = self
+            .shared
+            .slots()
+            .get(&params.uri)
+            .map_or((0, 0), |slot| (slot.count, slot.abandoned));
         match self.shared.documents.snapshot(&params.uri) {
             Some(s) => Ok(DocumentTextResult {
                 text: s.text,
                 version: s.version,
-                analyses: self
-                    .shared
-                    .slots()
-                    .get(&params.uri)
-                    .map_or(0, |slot| slot.count),
-                abandoned: self
-                    .shared
-                    .slots()
-                    .get(&params.uri)
-                    .map_or(0, |slot| slot.abandoned),
+                analyses,
+                abandoned,
             }),
             None => Err(Error::invalid_params(format!("{} is not open", params.uri))),
         }
@@ -660,7 +659,7 @@ impl LanguageServer for Backend {
     async fn completion(&self, params: CompletionParams) -> Result<Option<CompletionResponse>> {
         let p = params.text_document_position;
         self.with_analysis(&p.text_document.uri, "completion", move |a, encoding| {
-            CompletionResponse::Array(completion::complete(a, encoding, p.position))
+            CompletionResponse::List(completion::complete(a, encoding, p.position))
         })
         .await
     }

@@ -479,7 +479,7 @@ fn semantic_tokens_are_ordered_single_line_and_typed() {
 fn completion_inside_brackets_offers_units_only() {
     let text = "unit EUR\nparam k = 1 [\n";
     let a = analyzed(text);
-    let items = crate::completion::complete(&a, UTF16, position_of(text, "[", 1));
+    let items = crate::completion::complete(&a, UTF16, position_of(text, "[", 1)).items;
     let labels: Vec<&str> = items.iter().map(|i| i.label.as_str()).collect();
     assert!(labels.contains(&"day") && labels.contains(&"EUR"));
     assert!(!labels.contains(&"param"));
@@ -490,8 +490,58 @@ fn completion_inside_brackets_offers_units_only() {
             line: 2,
             character: 0,
         },
-    );
+    )
+    .items;
     assert!(items.iter().any(|i| i.label == "shock"));
+}
+
+#[test]
+fn completion_of_a_large_model_is_narrowed_by_the_typed_word_and_capped() {
+    // 400 parameters: with nothing typed the answer is capped and marked incomplete; the
+    // typed letters narrow it to the names that hold them in order.
+    let mut text = String::from("shock W\nfactor x = 0\n");
+    for k in 0..400 {
+        text.push_str(&format!("param kappa_{k} = 1 [1/year]\n"));
+    }
+    text.push_str("param theta = 2%\ndx = ");
+    let a = analyzed(&text);
+    let end = Position {
+        line: text.matches('\n').count() as u32,
+        character: 5,
+    };
+    let all = crate::completion::complete(&a, UTF16, end);
+    assert!(all.is_incomplete);
+    assert_eq!(all.items.len(), 200);
+    text.push_str("th");
+    let a = analyzed(&text);
+    let narrowed = crate::completion::complete(
+        &a,
+        UTF16,
+        Position {
+            character: 7,
+            ..end
+        },
+    );
+    assert!(!narrowed.is_incomplete);
+    let labels: Vec<&str> = narrowed.items.iter().map(|i| i.label.as_str()).collect();
+    assert!(labels.contains(&"theta"), "{labels:?}");
+    assert!(!labels.iter().any(|l| l.starts_with("kappa")), "{labels:?}");
+    text.push_str(" + kappa_39");
+    let a = analyzed(&text);
+    let numbered = crate::completion::complete(
+        &a,
+        UTF16,
+        Position {
+            character: 7 + " + kappa_39".len() as u32,
+            ..end
+        },
+    );
+    let labels: Vec<&str> = numbered.items.iter().map(|i| i.label.as_str()).collect();
+    assert!(
+        labels.contains(&"kappa_39") && labels.contains(&"kappa_390"),
+        "{labels:?}"
+    );
+    assert!(!labels.contains(&"kappa_4"), "{labels:?}");
 }
 
 #[test]
