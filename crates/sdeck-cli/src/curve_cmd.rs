@@ -4,7 +4,8 @@
 use crate::moments::{load_sound_model, parse_time};
 use clap::{Args, ValueEnum};
 use sdeck_calculus::curve::{curve, Curve};
-use sdeck_semantics::{fmt_num, Model};
+use sdeck_semantics::Model;
+use sdeck_units::number;
 use serde_json::{json, Value};
 use std::fmt::Write as _;
 use std::path::PathBuf;
@@ -158,7 +159,7 @@ pub fn curve_text(model: &Model, c: &Curve) -> String {
         let _ = writeln!(
             s,
             "  {:>14}  {:>12.8}  {:>10}  {:>10}",
-            fmt_num(p.maturity),
+            number::plain(p.maturity),
             p.price,
             percent(p.yield_rate),
             percent(p.forward)

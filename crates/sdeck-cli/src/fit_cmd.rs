@@ -6,7 +6,8 @@ use crate::fit_data::{self, DataError, Table};
 use crate::moments::load_sound_model;
 use clap::{Args, ValueEnum};
 use sdeck_fit::{Fit, FitError, Problem, Series};
-use sdeck_semantics::{fmt_num, Model};
+use sdeck_semantics::Model;
+use sdeck_units::number;
 use serde_json::{json, Value};
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
@@ -189,9 +190,9 @@ pub fn run(args: FitArgs) -> ExitCode {
                         "{} = {} in the file lies outside the 99% interval [{}, {}] of its \
                          estimate from {data_name}",
                         p.name,
-                        fmt_num(p.written),
-                        fmt_num(lo / p.scale),
-                        fmt_num(hi / p.scale)
+                        number::plain(p.written),
+                        number::plain(lo / p.scale),
+                        number::plain(hi / p.scale)
                     )
                 })
             })
@@ -300,8 +301,8 @@ impl Report<'_> {
         }
         out.push_str(&format!(
             "  log-likelihood {}, AIC {}\n\n",
-            fmt_num(self.fit.loglik),
-            fmt_num(self.fit.aic)
+            number::plain(self.fit.loglik),
+            number::plain(self.fit.aic)
         ));
         let mut rows = vec![[
             "parameter".to_string(),
@@ -323,17 +324,21 @@ impl Report<'_> {
             rows.push([
                 p.name.clone(),
                 p.unit_text.clone().unwrap_or_else(|| "1".to_string()),
-                fmt_num(p.written),
-                fmt_num(e.estimate / p.scale),
+                number::plain(p.written),
+                number::plain(e.estimate / p.scale),
                 if e.at_bound {
                     "-".to_string()
                 } else {
-                    fmt_num(e.se / p.scale)
+                    number::plain(e.se / p.scale)
                 },
                 if e.at_bound {
                     "-".to_string()
                 } else {
-                    format!("[{}, {}]", fmt_num(lo / p.scale), fmt_num(hi / p.scale))
+                    format!(
+                        "[{}, {}]",
+                        number::plain(lo / p.scale),
+                        number::plain(hi / p.scale)
+                    )
                 },
                 if outside {
                     "*"

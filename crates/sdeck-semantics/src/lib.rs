@@ -14,7 +14,7 @@ pub mod structure;
 pub mod symbols;
 mod walk;
 
-pub use analyze::{analyze, fmt_num, Analysis, Usage};
+pub use analyze::{analyze, Analysis, Usage};
 pub use meaning::meaning;
 pub use model::*;
 pub use structure::{Differential, RepeatedTerm, Structure, WrittenCorrelation};

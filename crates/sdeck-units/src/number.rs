@@ -5,6 +5,8 @@
 //! - [`plain`]: six significant digits, trailing zeros dropped, scientific notation
 //!   outside 1e-4 ..= 1e6 (`0.0329858`, `1.5e-5`).
 //! - [`significant`]: the same with a chosen number of significant digits.
+//! - [`significant_whole`]: significant digits that never round the integer part, for
+//!   the numbers in the rules' messages and fixes (`1386`).
 //! - [`brief`]: four significant digits, for a figure read at a glance (`0.03299`).
 //! - [`percent`] and [`basis_points`]: a rate as `3.3%` or `92.8bp`.
 //! - [`with_unit`]: a figure followed by its unit (`0.385 year`, `2.4%` stays bare).
@@ -57,6 +59,42 @@ pub fn significant(x: f64, digits: u32) -> String {
     } else {
         s
     }
+}
+
+/// `x` with `digits` significant digits in the fraction, but every digit of its integer
+/// part (`1386` at 3 digits, where [`significant`] writes `1390`), trailing zeros
+/// dropped; scientific notation below 1e-5 and from 1e9 on. The form of the numbers in
+/// the rules' messages and fixes, where a rounded integer part would read as a
+/// different value.
+pub fn significant_whole(x: f64, digits: u32) -> String {
+    if x == 0.0 || !x.is_finite() {
+        return format!("{x}");
+    }
+    let digits = digits as i32;
+    let magnitude = x.abs().log10().floor() as i32;
+    if !(-5..=8).contains(&magnitude) {
+        return format!("{:.*e}", (digits - 1).max(0) as usize, x);
+    }
+    let decimals = (digits - 1 - magnitude).max(0) as usize;
+    let text = format!("{x:.decimals$}");
+    if text.contains('.') {
+        text.trim_end_matches('0').trim_end_matches('.').to_string()
+    } else {
+        text
+    }
+}
+
+/// `x` rounded up (`up`) or down to `digits` significant digits: a bound that must stay
+/// on one side of a value when written short.
+pub fn round_significant(x: f64, digits: u32, up: bool) -> f64 {
+    if x == 0.0 || !x.is_finite() {
+        return x;
+    }
+    let magnitude = x.abs().log10().floor() as i32;
+    let factor = 10f64.powi(digits as i32 - 1 - magnitude);
+    let scaled = x * factor;
+    let rounded = if up { scaled.ceil() } else { scaled.floor() };
+    rounded / factor
 }
 
 /// Six significant digits: the form of every figure in tables, hovers and messages.

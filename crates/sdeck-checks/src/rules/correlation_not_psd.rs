@@ -1,11 +1,13 @@
 //! `correlation-not-psd`: correlations of the shocks that no set of Brownian motions has.
 
-use super::shared::{number, param_literal};
+use super::shared::param_literal;
 use super::Context;
 use sdeck_calculus::correlation::{nearest_correlation_rounded, smallest_eigenvalue};
 use sdeck_diagnostics::{rules, Diagnostic, TextEdit};
-use sdeck_semantics::{fmt_num, Model};
+use sdeck_semantics::Model;
 use sdeck_syntax::ast::StatementKind;
+use sdeck_units::number;
+use sdeck_units::number::significant_whole;
 
 /// Eigenvalues above this negative tolerance count as zero (rounding of a PSD matrix).
 const EIGENVALUE_TOLERANCE: f64 = 1e-12;
@@ -46,7 +48,7 @@ pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
         format!(
             "the correlations of the shocks contradict each other: their matrix has the \
              eigenvalue {} < 0, so no set of Brownian motions has these correlations",
-            number(smallest, 4)
+            significant_whole(smallest, 4)
         ),
     )
     .with_help(
@@ -65,7 +67,7 @@ pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
                     "the correlation of `{}` and `{}` is the parameter `{name}` = {}: mend its value",
                     shock_name(model, c.first),
                     shock_name(model, c.second),
-                    number(c.value, 4)
+                    significant_whole(c.value, 4)
                 ));
             }
             Some(_) => {
@@ -74,7 +76,7 @@ pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
                      quick fix rewrites an expression: mend the parameters it uses",
                     shock_name(model, c.first),
                     shock_name(model, c.second),
-                    number(c.value, 4)
+                    significant_whole(c.value, 4)
                 ));
             }
         }
@@ -127,7 +129,7 @@ fn nearest_correlation_fix(cx: &Context) -> Option<(String, Vec<TextEdit>)> {
                 match &c.expr {
                     None => edits.push(TextEdit {
                         span: c.value_span.clone(),
-                        new_text: fmt_num(target),
+                        new_text: number::plain(target),
                     }),
                     Some(sdeck_semantics::Expr::Param(p)) => {
                         if param_targets.iter().any(|(q, t)| q == p && *t != target) {
@@ -161,7 +163,7 @@ fn nearest_correlation_fix(cx: &Context) -> Option<(String, Vec<TextEdit>)> {
         }
         edits.push(TextEdit {
             span: number.span.clone(),
-            new_text: fmt_num(target),
+            new_text: number::plain(target),
         });
     }
     let mut added = String::new();
@@ -172,7 +174,7 @@ fn nearest_correlation_fix(cx: &Context) -> Option<(String, Vec<TextEdit>)> {
                     "corr {} {} = {}\n",
                     model.shocks[i].name,
                     model.shocks[j].name,
-                    fmt_num(near[i][j])
+                    number::plain(near[i][j])
                 ));
             }
         }

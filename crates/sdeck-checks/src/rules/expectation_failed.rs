@@ -1,12 +1,13 @@
 //! `expectation-failed`: a pinned figure outside its admissible interval, or a figure
 //! that does not exist for the factor's family.
 
-use super::shared::{number, show_interval_with, state_name};
+use super::shared::{show_interval_with, state_name};
 use super::Context;
 use sdeck_calculus::expectation_value;
 use sdeck_diagnostics::{rules, Diagnostic};
 use sdeck_semantics::{Expectation, Interval, Model, Shown};
 use sdeck_syntax::ast::{Figure, Side};
+use sdeck_units::number::significant_whole;
 
 /// `expectation-failed`: a pinned figure outside its admissible interval, or a figure
 /// that does not exist for the state's family.
@@ -124,7 +125,7 @@ fn describe_expectation(model: &Model, e: &Expectation) -> String {
     let time_text = e
         .at_text
         .clone()
-        .unwrap_or_else(|| format!("{} {clock}", number(time, 6)));
+        .unwrap_or_else(|| format!("{} {clock}", significant_whole(time, 6)));
     let Some(state) = e.state else {
         return format!("{keyword}({time_text})");
     };
@@ -161,7 +162,7 @@ fn expected_text(admissible: &Interval, show: &dyn Fn(f64) -> String) -> String 
 /// A figure in the units the reader sees it in (the moments keep the messages' form).
 fn show_figure(shown: &Shown, v: f64) -> String {
     match shown {
-        Shown::Clock => number(v, 6),
+        Shown::Clock => significant_whole(v, 6),
         _ => shown.show(v),
     }
 }
@@ -181,6 +182,6 @@ fn overflow_note(model: &Model) -> Option<String> {
         "the parameter `{}` = {} is too large for double precision: the figures overflow, so \
          none is given",
         largest.name,
-        number(largest.value, 6)
+        significant_whole(largest.value, 6)
     ))
 }

@@ -1,12 +1,13 @@
 //! `factor-domain`: sqrt or log of a factor whose law leaves the domain, declared bounds
 //! a family cannot keep, impossible starts.
 
-use super::shared::{equation_span, number, show_interval, state_name, state_span};
+use super::shared::{equation_span, show_interval, state_name, state_span};
 use super::Context;
 use sdeck_calculus::algebra::to_poly;
 use sdeck_calculus::{Family, StateLaw};
 use sdeck_diagnostics::{rules, Diagnostic};
 use sdeck_semantics::{Expr, Function, Interval};
+use sdeck_units::number::significant_whole;
 
 /// Whether a square-root state fails the Feller condition (zero is attainable).
 fn square_root_reaches_zero(law: &StateLaw) -> bool {
@@ -123,7 +124,7 @@ pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
                         format!(
                             "{name} is geometric-brownian and starts at {}: it {what}, since a \
                              proportional diffusion keeps the sign of its start",
-                            number(state.written, 4)
+                            significant_whole(state.written, 4)
                         ),
                     )
                     .with_help(format!("start {name} at a positive value")),
@@ -138,7 +139,7 @@ pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
                         format!(
                             "{name} is square-root and starts at {}: sqrt({name}) is undefined \
                              below zero",
-                            number(state.written, 4)
+                            significant_whole(state.written, 4)
                         ),
                     )
                     .with_help(format!("start {name} at zero or above")),

@@ -3,18 +3,19 @@
 //! the fixes.
 
 use super::shared::param_literal;
-use super::shared::{equation_span, number, round_significant, state_name};
+use super::shared::{equation_span, state_name};
 use super::Context;
 use sdeck_calculus::describe::{square_root_terms, SquareRootTerms};
 use sdeck_calculus::Derivation;
 use sdeck_diagnostics::{rules, Diagnostic, TextEdit};
 use sdeck_semantics::Model;
+use sdeck_units::number::{round_significant, significant_whole};
 
 /// The parameter values that meet the Feller condition 2·speed·level ≥ vol² for the
 /// square-root factor `state`, each in its parameter's written unit and rounded to
 /// three significant digits (up for the speed, down for the volatility) so that the
 /// rounded value still meets it. The message of `feller-condition` and its quick fix
-/// both write these numbers, through [`feller_number`].
+/// both write these numbers, to three significant digits ([`significant_whole`]).
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct FellerBounds {
     /// The speed's parameter and its least value.
@@ -80,11 +81,6 @@ fn rounded_meeting(x: f64, up: bool, meets: impl Fn(f64) -> bool) -> Option<f64>
     None
 }
 
-/// A Feller bound as the message and the quick fix write it (three significant digits).
-pub fn feller_number(x: f64) -> String {
-    number(x, 3)
-}
-
 /// `feller-condition`: 2·speed·level < vol² makes zero attainable
 /// (Feller 1951; Cox, Ingersoll & Ross 1985, §3).
 pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
@@ -119,8 +115,8 @@ pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
                         "2·{speed}·{level} = {} < {vol2} = {} (per {clock}): the level of {name} \
                          is not above zero, so {name} is pulled to zero and stays near it; \
                          give it a positive level",
-                        number(drift_side, 3),
-                        number(vol_squared, 3),
+                        significant_whole(drift_side, 3),
+                        significant_whole(vol_squared, 3),
                     ),
                 )
                 .with_help(format!("set {level} above zero")),
@@ -137,8 +133,8 @@ pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
         };
         let with_unit =
             |p: usize, value: f64| match model.params.get(p).and_then(|p| p.unit_text.as_ref()) {
-                Some(unit) => format!("{} [{unit}]", feller_number(value)),
-                None => feller_number(value),
+                Some(unit) => format!("{} [{unit}]", significant_whole(value, 3)),
+                None => significant_whole(value, 3),
             };
         let raise = match bounds.as_ref().and_then(|b| b.speed) {
             Some((p, value)) => format!(
@@ -148,7 +144,10 @@ pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
             ),
             None => format!(
                 "raise the speed {speed} to at least {} per {clock}",
-                feller_number(round_significant(vol_squared / (2.0 * sr.level), 3, true))
+                significant_whole(
+                    round_significant(vol_squared / (2.0 * sr.level), 3, true),
+                    3
+                )
             ),
         };
         let lower = match bounds.as_ref().and_then(|b| b.vol) {
@@ -159,14 +158,14 @@ pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
             ),
             None => format!(
                 "lower the volatility so that {vol2} is at most {}",
-                feller_number(round_significant(drift_side, 3, false))
+                significant_whole(round_significant(drift_side, 3, false), 3)
             ),
         };
         let name = state_name(model, state);
         let message = format!(
             "2·{speed}·{level} = {} < {vol2} = {} (per {clock}): zero is attainable for {name}",
-            number(drift_side, 3),
-            number(vol_squared, 3),
+            significant_whole(drift_side, 3),
+            significant_whole(vol_squared, 3),
         );
         let mut diagnostic = Diagnostic::new(&rules::FELLER_CONDITION, span, message)
             .with_label(format!("{name} can reach zero"))
@@ -233,5 +232,5 @@ fn written_like(original: &str, value: f64) -> String {
     } else {
         (1.0, "")
     };
-    format!("{}{suffix}", feller_number(value * factor))
+    format!("{}{suffix}", significant_whole(value * factor, 3))
 }

@@ -4,11 +4,12 @@
 //! thresholds are facts of the trade (common practice, no source) and a project may move
 //! them (`[plausibility]` in sdeck.toml).
 
-use super::shared::{equation_span, number, param_literal, state_name};
+use super::shared::{equation_span, param_literal, state_name};
 use super::Context;
 use sdeck_calculus::StateLaw;
 use sdeck_diagnostics::{rules, Diagnostic, TextEdit};
 use sdeck_semantics::{Correlations, Model};
+use sdeck_units::number::significant_whole;
 
 /// A dimensionless factor that starts within ±20% is read as a rate (a proportion such as
 /// a utilisation starting at 50% is not): common practice, no source.
@@ -166,9 +167,9 @@ fn volatility(
         format!(
             "the {what} of {name} at its start is {}% a year, above the {}% a desk plausibly \
              means: an sd of {} after one year{}",
-            number(vol * 100.0, 4),
-            number(limit * 100.0, 4),
-            number(vol, 4),
+            significant_whole(vol * 100.0, 4),
+            significant_whole(limit * 100.0, 4),
+            significant_whole(vol, 4),
             if relative { " in log terms" } else { "" }
         ),
     )
@@ -196,15 +197,15 @@ fn half_life(
     let name = state_name(cx.model, index);
     let (shown, side, bound) = if years < limits.min_half_life {
         (
-            format!("{} day", number(years * 365.0, 4)),
+            format!("{} day", significant_whole(years * 365.0, 4)),
             "under",
-            format!("{} day", number(limits.min_half_life * 365.0, 4)),
+            format!("{} day", significant_whole(limits.min_half_life * 365.0, 4)),
         )
     } else if years > limits.max_half_life {
         (
-            format!("{} year", number(years, 4)),
+            format!("{} year", significant_whole(years, 4)),
             "over",
-            format!("{} year", number(limits.max_half_life, 4)),
+            format!("{} year", significant_whole(limits.max_half_life, 4)),
         )
     } else {
         return;
@@ -248,9 +249,9 @@ fn level(
         format!(
             "the level {name} reverts to is {}%, above the {}% a rate plausibly reaches, \
              while {name} starts at {}%",
-            number(level * 100.0, 4),
-            number(limit * 100.0, 4),
-            number(
+            significant_whole(level * 100.0, 4),
+            significant_whole(limit * 100.0, 4),
+            significant_whole(
                 cx.model.factors.get(index).map_or(0.0, |f| f.initial) * 100.0,
                 4
             )

@@ -1,8 +1,9 @@
 //! `moment-explosion`: a price whose second moment becomes infinite before the horizon.
 
-use super::shared::{equation_span, number, state_name};
+use super::shared::{equation_span, state_name};
 use super::Context;
 use sdeck_diagnostics::{rules, Diagnostic};
+use sdeck_units::number::significant_whole;
 
 /// A price whose second moment becomes infinite before the horizon.
 pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
@@ -23,8 +24,8 @@ pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
                 format!(
                     "the variance of {name} is infinite from t = {} {clock}, before the horizon \
                      ({} {clock}): E[{name}²] has no finite value after that time",
-                    number(time, 4),
-                    number(horizon, 4)
+                    significant_whole(time, 4),
+                    significant_whole(horizon, 4)
                 ),
             )
             .with_help(

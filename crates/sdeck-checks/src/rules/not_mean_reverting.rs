@@ -1,10 +1,11 @@
 //! `not-mean-reverting`: a drift that pushes a factor (or a coupled block) away from its
 //! level.
 
-use super::shared::{equation_span, number, state_name};
+use super::shared::{equation_span, state_name};
 use super::Context;
 use sdeck_calculus::Family;
 use sdeck_diagnostics::{rules, Diagnostic};
+use sdeck_units::number::significant_whole;
 
 /// `not-mean-reverting`: a positive linear coefficient in a mean-reverting family, or an
 /// eigenvalue of a coupled drift matrix with positive real part.
@@ -45,9 +46,9 @@ pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
                     "the drift of {name} pushes away from its level: the coefficient of {name} \
                      is {slope} = +{} per {clock} (> 0), so deviations double every {} {clock}s \
                      (ln 2/{})",
-                    number(b, 4),
-                    number(doubling, 3),
-                    number(b, 4)
+                    significant_whole(b, 4),
+                    significant_whole(doubling, 3),
+                    significant_whole(b, 4)
                 ),
             )
             .with_help(format!(
@@ -90,9 +91,13 @@ pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
             continue;
         };
         let eigen_text = if im != 0.0 {
-            format!("{} ± {}i", number(re, 4), number(im.abs(), 4))
+            format!(
+                "{} ± {}i",
+                significant_whole(re, 4),
+                significant_whole(im.abs(), 4)
+            )
         } else {
-            number(re, 4)
+            significant_whole(re, 4)
         };
         let mut diagnostic = Diagnostic::new(
             &rules::NOT_MEAN_REVERTING,
@@ -103,8 +108,8 @@ pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
                  (ln 2/{})",
                 names.join(", "),
                 eigen_text,
-                number(std::f64::consts::LN_2 / re, 3),
-                number(re, 4)
+                significant_whole(std::f64::consts::LN_2 / re, 3),
+                significant_whole(re, 4)
             ),
         )
         .with_help(

@@ -3,36 +3,7 @@
 
 use sdeck_semantics::{Analysis, Interval, Model};
 use sdeck_syntax::ast::{Bound, Number, StatementKind, UnitExpr};
-
-/// A number with `digits` significant digits, trailing zeros dropped.
-pub(crate) fn number(x: f64, digits: i32) -> String {
-    if x == 0.0 || !x.is_finite() {
-        return format!("{x}");
-    }
-    let magnitude = x.abs().log10().floor() as i32;
-    if !(-5..=8).contains(&magnitude) {
-        return format!("{:.*e}", (digits - 1).max(0) as usize, x);
-    }
-    let decimals = (digits - 1 - magnitude).max(0) as usize;
-    let text = format!("{x:.decimals$}");
-    if text.contains('.') {
-        text.trim_end_matches('0').trim_end_matches('.').to_string()
-    } else {
-        text
-    }
-}
-
-/// Rounds up (`up`) or down to `digits` significant digits.
-pub(crate) fn round_significant(x: f64, digits: i32, up: bool) -> f64 {
-    if x == 0.0 || !x.is_finite() {
-        return x;
-    }
-    let magnitude = x.abs().log10().floor() as i32;
-    let factor = 10f64.powi(digits - 1 - magnitude);
-    let scaled = x * factor;
-    let rounded = if up { scaled.ceil() } else { scaled.floor() };
-    rounded / factor
-}
+use sdeck_units::number::significant_whole;
 
 pub(crate) fn state_name(model: &Model, state: usize) -> String {
     model
@@ -60,7 +31,7 @@ pub(crate) fn state_span(model: &Model, state: usize) -> std::ops::Range<usize> 
 }
 
 pub(crate) fn show_interval(interval: &Interval) -> String {
-    show_interval_with(interval, |v| number(v, 6))
+    show_interval_with(interval, |v| significant_whole(v, 6))
 }
 
 /// An interval with its ends shown by `show`.

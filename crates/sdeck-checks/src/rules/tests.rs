@@ -1,11 +1,11 @@
 //! Tests of the rules that need the calculus, on small models.
 
 use super::factor_domain::interval_keeps;
-use super::shared::{number, round_significant};
 use super::{run_all, Context};
 use sdeck_calculus::{derive, moments_at};
 use sdeck_diagnostics::{rules, Diagnostic, Rule};
 use sdeck_semantics::{Interval, Model};
+use sdeck_units::number::{round_significant, significant_whole};
 
 fn run(source: &str) -> (Model, Vec<Diagnostic>) {
     let analysis = sdeck_semantics::analyze(source, "test_model");
@@ -95,7 +95,7 @@ fn moment_explosion_gives_the_time_from_which_the_variance_is_infinite() {
     let root = 0.1784f64.sqrt();
     let expected = 2.0 / root * (root / 0.04).atan();
     assert!(
-        found[0].message.contains(&number(expected, 4)),
+        found[0].message.contains(&significant_whole(expected, 4)),
         "{}",
         found[0].message
     );
@@ -350,9 +350,9 @@ fn expectations_report_value_interval_and_missing_figures() {
 
 #[test]
 fn numbers_print_with_significant_digits() {
-    assert_eq!(number(0.0576, 3), "0.0576");
-    assert_eq!(number(0.09, 3), "0.09");
-    assert_eq!(number(1386.29, 3), "1386");
+    assert_eq!(significant_whole(0.0576, 3), "0.0576");
+    assert_eq!(significant_whole(0.09, 3), "0.09");
+    assert_eq!(significant_whole(1386.29, 3), "1386");
     assert_eq!(round_significant(0.78125, 3, true), 0.782);
     assert_eq!(round_significant(0.2449, 2, false), 0.24);
 }

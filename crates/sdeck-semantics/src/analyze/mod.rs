@@ -30,8 +30,8 @@ use crate::symbols::{Reference, Symbol, SymbolKind};
 use sdeck_diagnostics::{rules, Diagnostic, Span, TextEdit};
 use sdeck_syntax::ast::{self, Figure, StatementKind};
 use sdeck_units::{
-    eval_unit_with_names, is_time_unit, suggest_unit_text, time_unit_years, Dimension, Rational,
-    UnitValue,
+    eval_unit_with_names, is_time_unit, number, suggest_unit_text, time_unit_years, Dimension,
+    Rational, UnitValue,
 };
 use std::collections::HashMap;
 
@@ -248,12 +248,6 @@ fn dimension_error(span: Span, message: impl Into<String>) -> Diagnostic {
 /// are inlined, and without a limit `let b = a * a`, `let c = b * b`, … doubles at every
 /// level.
 pub const MAX_EXPANDED_NODES: usize = 3000;
-
-/// Formats a number for messages: up to 6 significant digits, no trailing zeros (the
-/// one formatter, [`sdeck_units::number::plain`]).
-pub fn fmt_num(x: f64) -> String {
-    sdeck_units::number::plain(x)
-}
 
 impl<'a> Analyzer<'a> {
     fn new(file: &'a ast::SourceFile, source: &'a str, default_name: &str) -> Self {

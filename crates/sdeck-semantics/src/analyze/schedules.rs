@@ -113,8 +113,8 @@ impl Analyzer<'_> {
                             format!(
                                 "knot {} of `{name}` is at {} {clock}, not after the knot before it ({} {clock})",
                                 count + 1,
-                                fmt_num(value),
-                                fmt_num(before)
+                                number::plain(value),
+                                number::plain(before)
                             ),
                         )
                         .with_label("not after the previous knot")

@@ -342,7 +342,7 @@ impl Analyzer<'_> {
                     match rational_approx(value).and_then(|r| bd.pow(r)) {
                         Some(d) => dimension = Some(d),
                         None => self.diagnostics.push(
-                            dimension_error(span.clone(), format!("cannot raise {} to the power {}", bd.describe(), fmt_num(value)))
+                            dimension_error(span.clone(), format!("cannot raise {} to the power {}", bd.describe(), number::plain(value)))
                                 .with_help("a quantity with a dimension can be raised only to a simple fraction such as 2, 1/2 or 3/2"),
                         ),
                     }
