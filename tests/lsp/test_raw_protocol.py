@@ -402,3 +402,13 @@ def test_inlay_hints_of_a_range_are_only_those_in_it(raw):
     assert len(whole) > len(part) > 0, (whole, part)
     assert all(h["position"]["line"] == kappa_line for h in part), part
     assert [h for h in whole if h["position"]["line"] == kappa_line] == part
+
+
+def test_shutdown_with_null_params_is_answered(raw):
+    # Emacs 28's eglot sends `"params": null` with shutdown; the protocol allows it, and
+    # the editor waits for the answer on its way out.
+    client = raw()
+    answer = client.request("shutdown", None, timeout=10)
+    assert "error" not in answer and answer.get("result") is None, answer
+    client.notify("exit", None)
+    assert client.process.wait(timeout=10) == 0

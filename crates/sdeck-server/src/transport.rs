@@ -213,6 +213,31 @@ pub fn check_message(body: &[u8]) -> Result<(), Value> {
     Ok(())
 }
 
+/// A message with `"params": null` as one without params. The protocol lets a client send
+/// either for a method that takes none (`shutdown`, `exit`), and Emacs 28's eglot sends
+/// `null`; tower-lsp takes only the absent form and would refuse `shutdown` with "Unexpected
+/// params: null", leaving the editor waiting on its way out. A message that needs params
+/// gets tower-lsp's own error either way.
+pub fn without_null_params(body: &[u8]) -> std::borrow::Cow<'_, [u8]> {
+    use std::borrow::Cow;
+    if find(body, b"null").is_none() {
+        return Cow::Borrowed(body);
+    }
+    let Ok(mut value) = serde_json::from_slice::<Value>(body) else {
+        return Cow::Borrowed(body);
+    };
+    match value.as_object_mut() {
+        Some(object) if object.get("params") == Some(&Value::Null) => {
+            object.remove("params");
+            match serde_json::to_vec(&value) {
+                Ok(bytes) => Cow::Owned(bytes),
+                Err(_) => Cow::Borrowed(body),
+            }
+        }
+        _ => Cow::Borrowed(body),
+    }
+}
+
 /// The two ends tower-lsp serves on: its input (checked frames) and its output.
 pub struct Pipes {
     pub input: DuplexStream,
@@ -273,6 +298,7 @@ where
                 match reader.next_frame() {
                     Frame::Incomplete => break,
                     Frame::Message(body) => {
+                        let body = without_null_params(&body);
                         if feed.write_all(&frame(&body)).await.is_err() {
                             break;
                         }
@@ -320,6 +346,24 @@ mod tests {
     }
 
     const GOOD: &str = r#"{"jsonrpc":"2.0","id":1,"method":"shutdown"}"#;
+
+    #[test]
+    fn null_params_read_as_none_and_other_messages_pass_unchanged() {
+        let shutdown = br#"{"jsonrpc":"2.0","id":4,"method":"shutdown","params":null}"#;
+        let read: Value = serde_json::from_slice(&without_null_params(shutdown)).unwrap();
+        assert_eq!(
+            read,
+            json!({"jsonrpc": "2.0", "id": 4, "method": "shutdown"})
+        );
+        for body in [
+            &br#"{"jsonrpc":"2.0","method":"exit"}"#[..],
+            br#"{"jsonrpc":"2.0","id":1,"result":null}"#,
+            br#"{"jsonrpc":"2.0","method":"x","params":{"a":null}}"#,
+            b"not json null",
+        ] {
+            assert_eq!(&*without_null_params(body), body);
+        }
+    }
 
     #[test]
     fn a_good_frame_split_anywhere_comes_out_whole() {
