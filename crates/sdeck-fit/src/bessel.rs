@@ -12,7 +12,7 @@
 //!   term; there the terms fall by at least a factor 4 at first and the smallest is
 //!   below e^{−2z}.
 
-use statrs::function::gamma::ln_gamma;
+use statrs::function::gamma::{digamma, ln_gamma};
 
 /// Terms below this fraction of the largest are dropped.
 const NEGLIGIBLE: f64 = 1e-18;
@@ -99,6 +99,177 @@ fn hankel(nu: f64, z: f64) -> f64 {
     0.5 * (sum * sum / (2.0 * std::f64::consts::PI * z)).ln()
 }
 
+/// Λ(ν, z) = ln(e^{−z} I_ν(z)) with its first and second partial derivatives in ν and z,
+/// for the analytic gradient and Hessian of the square-root likelihood.
+#[derive(Clone, Copy, Debug, Default, PartialEq)]
+pub struct ScaledLogBessel {
+    pub value: f64,
+    pub d_nu: f64,
+    pub d_z: f64,
+    pub d_nu_nu: f64,
+    pub d_nu_z: f64,
+    pub d_z_z: f64,
+}
+
+/// [`ln_bessel_i_scaled`] with its derivatives, from the same two evaluations each
+/// differentiated term by term: in the power series the derivative of the log of a term
+/// in ν is ln(z/2) − ψ(k+ν+1) and in z is (2k+ν)/z, so the derivatives of the log of the
+/// sum are means and covariances of these under the terms' weights (A&S 6.3.5 and 6.4.6
+/// carry ψ and ψ′ from the largest term to its neighbours); in Hankel's expansion each
+/// term is a polynomial in μ = 4ν² times z^{−k}. NaN outside the domain of the value.
+pub fn ln_bessel_i_scaled_derivatives(nu: f64, z: f64) -> ScaledLogBessel {
+    if !(nu.is_finite() && z.is_finite()) || nu <= -1.0 || z <= 0.0 {
+        return ScaledLogBessel {
+            value: f64::NAN,
+            ..ScaledLogBessel::default()
+        };
+    }
+    if z >= 30.0_f64.max(2.0 * nu * nu) {
+        hankel_derivatives(nu, z)
+    } else {
+        series_derivatives(nu, z)
+    }
+}
+
+/// Weighted sums over the terms of the power series, relative to the largest term: `du`
+/// is the ν-derivative of the log of a term minus that of the largest, `dk` its index
+/// minus the largest's.
+#[derive(Default)]
+struct Moments {
+    weight: f64,
+    du: f64,
+    dk: f64,
+    du_du: f64,
+    du_dk: f64,
+    dk_dk: f64,
+    trigamma: f64,
+}
+
+impl Moments {
+    fn add(&mut self, w: f64, du: f64, dk: f64, trigamma: f64) {
+        self.weight += w;
+        self.du += w * du;
+        self.dk += w * dk;
+        self.du_du += w * du * du;
+        self.du_dk += w * du * dk;
+        self.dk_dk += w * dk * dk;
+        self.trigamma += w * trigamma;
+    }
+}
+
+fn series_derivatives(nu: f64, z: f64) -> ScaledLogBessel {
+    let half = z / 2.0;
+    let ln_half = half.ln();
+    let q = half * half;
+    let peak = ((-nu + (nu * nu + z * z).sqrt()) / 2.0).floor().max(0.0);
+    let ln_peak = (2.0 * peak + nu) * ln_half - ln_gamma(peak + 1.0) - ln_gamma(peak + nu + 1.0);
+    let psi_peak = digamma(peak + nu + 1.0);
+    let trigamma_peak = trigamma(peak + nu + 1.0);
+    let mut m = Moments::default();
+    m.add(1.0, 0.0, 0.0, trigamma_peak);
+    // Upwards: ψ(x+1) = ψ(x) + 1/x, ψ′(x+1) = ψ′(x) − 1/x² with x = k + ν + 1.
+    let (mut term, mut k, mut du, mut tri) = (1.0, peak, 0.0, trigamma_peak);
+    loop {
+        let x = k + nu + 1.0;
+        term *= q / ((k + 1.0) * x);
+        du -= 1.0 / x;
+        tri -= 1.0 / (x * x);
+        k += 1.0;
+        m.add(term, du, k - peak, tri);
+        if term < NEGLIGIBLE * m.weight {
+            break;
+        }
+    }
+    // Downwards: ψ(x−1) = ψ(x) − 1/(x−1), ψ′(x−1) = ψ′(x) + 1/(x−1)².
+    let (mut term, mut k, mut du, mut tri) = (1.0, peak, 0.0, trigamma_peak);
+    while k >= 1.0 {
+        let x = k + nu;
+        term *= k * x / q;
+        du += 1.0 / x;
+        tri += 1.0 / (x * x);
+        k -= 1.0;
+        m.add(term, du, k - peak, tri);
+        if term < NEGLIGIBLE * m.weight {
+            break;
+        }
+    }
+    let w = m.weight;
+    let (mean_du, mean_dk) = (m.du / w, m.dk / w);
+    let var_du = (m.du_du / w - mean_du * mean_du).max(0.0);
+    let var_dk = (m.dk_dk / w - mean_dk * mean_dk).max(0.0);
+    let cov = m.du_dk / w - mean_du * mean_dk;
+    // A term's log: (2k+ν) ln(z/2) − ln Γ(k+1) − ln Γ(k+ν+1).
+    let mean_index = peak + mean_dk;
+    ScaledLogBessel {
+        value: ln_peak - z + (w - 1.0).ln_1p(),
+        d_nu: ln_half - psi_peak + mean_du,
+        d_z: (2.0 * mean_index + nu) / z - 1.0,
+        d_nu_nu: var_du - m.trigamma / w,
+        d_nu_z: 2.0 * cov / z + 1.0 / z,
+        d_z_z: 4.0 * var_dk / (z * z) - (2.0 * mean_index + nu) / (z * z),
+    }
+}
+
+fn hankel_derivatives(nu: f64, z: f64) -> ScaledLogBessel {
+    let mu = 4.0 * nu * nu;
+    let inverse = 1.0 / (8.0 * z);
+    // Sums of the terms t_k and of their derivatives in μ (m), z (via −k t_k / z).
+    let (mut s, mut s_m, mut s_mm, mut s_k, mut s_kk, mut s_km) = (1.0, 0.0, 0.0, 0.0, 0.0, 0.0);
+    let (mut t, mut t_m, mut t_mm) = (1.0_f64, 0.0, 0.0);
+    for (k, reciprocal) in RECIPROCALS.iter().enumerate() {
+        let odd = 2.0 * k as f64 + 1.0;
+        let factor = -inverse * reciprocal;
+        let ratio = factor * (mu - odd * odd);
+        let next = t * ratio;
+        if next.abs() >= t.abs() || next == 0.0 {
+            break;
+        }
+        t_mm = t_mm * ratio + 2.0 * t_m * factor;
+        t_m = t_m * ratio + t * factor;
+        t = next;
+        let index = k as f64 + 1.0;
+        s += t;
+        s_m += t_m;
+        s_mm += t_mm;
+        s_k += index * t;
+        s_kk += index * (index + 1.0) * t;
+        s_km += index * t_m;
+        if t.abs() < NEGLIGIBLE {
+            break;
+        }
+    }
+    // ∂S/∂z = −Σ k t_k / z, ∂²S/∂z² = Σ k(k+1) t_k / z², ∂²S/∂μ∂z = −Σ k ∂t_k/∂μ / z.
+    let (a_m, a_z) = (s_m / s, -s_k / (z * s));
+    let a_mm = s_mm / s - a_m * a_m;
+    let a_zz = s_kk / (z * z * s) - a_z * a_z;
+    let a_mz = -s_km / (z * s) - a_m * a_z;
+    // μ = 4ν²: ∂/∂ν = 8ν ∂/∂μ.
+    ScaledLogBessel {
+        value: 0.5 * (s * s / (2.0 * std::f64::consts::PI * z)).ln(),
+        d_nu: 8.0 * nu * a_m,
+        d_z: -0.5 / z + a_z,
+        d_nu_nu: 64.0 * nu * nu * a_mm + 8.0 * a_m,
+        d_nu_z: 8.0 * nu * a_mz,
+        d_z_z: 0.5 / (z * z) + a_zz,
+    }
+}
+
+/// ψ′(x) for x > 0: the recurrence ψ′(x) = ψ′(x+1) + 1/x² up to x ≥ 12, then the
+/// asymptotic series 1/x + 1/(2x²) + Σ B_{2k}/x^{2k+1} (A&S 6.4.6 and 6.4.12).
+fn trigamma(x: f64) -> f64 {
+    let mut x = x;
+    let mut total = 0.0;
+    while x < 12.0 {
+        total += 1.0 / (x * x);
+        x += 1.0;
+    }
+    let r = 1.0 / (x * x);
+    // B2 = 1/6, B4 = −1/30, B6 = 1/42, B8 = −1/30, B10 = 5/66.
+    let tail =
+        r * (1.0 / 6.0 - r * (1.0 / 30.0 - r * (1.0 / 42.0 - r * (1.0 / 30.0 - r * 5.0 / 66.0))));
+    total + (1.0 + 0.5 / x + tail) / x
+}
+
 /// 1/k for k = 1..64: the expansion multiplies instead of dividing in its inner loop.
 const RECIPROCALS: [f64; 64] = {
     let mut table = [0.0; 64];
@@ -174,6 +345,78 @@ mod tests {
                 "{z}: {got} vs {exact}"
             );
         }
+    }
+
+    /// The derivatives against central differences of the value (checked against scipy
+    /// above) and ∂/∂z against the recurrence I′_ν = I_{ν+1} + (ν/z) I_ν (A&S 9.6.26).
+    #[test]
+    fn derivatives_agree_with_differences_and_the_recurrence() {
+        let value = |nu: f64, z: f64| ln_bessel_i_scaled(nu, z);
+        for (nu, z) in [
+            (0.5, 0.1),
+            (2.3, 5.0),
+            (-0.4, 2.0),
+            (7.25, 40.0),
+            (25.0, 60.0),
+            (11.0, 4000.0),
+            (0.3, 120.0),
+            (60.0, 3000.0),
+            (3.0, 18.0),
+        ] {
+            let d = ln_bessel_i_scaled_derivatives(nu, z);
+            assert!(
+                (d.value - value(nu, z)).abs() < 1e-13 * z.max(1.0),
+                "value at ({nu}, {z})"
+            );
+            let recurrence = (value(nu + 1.0, z) - value(nu, z)).exp() + nu / z - 1.0;
+            // The recurrence subtracts numbers near 1: its own rounding is about 10⁻¹².
+            assert!(
+                (d.d_z - recurrence).abs() < 1e-9 * recurrence.abs() + 1e-11,
+                "∂z at ({nu}, {z}): {} vs {recurrence}",
+                d.d_z
+            );
+            let (hn, hz) = (1e-4 * nu.abs().max(0.1), 1e-4 * z);
+            let dn = |n: f64, zz: f64| ln_bessel_i_scaled_derivatives(n, zz);
+            let checks = [
+                (
+                    "ν",
+                    d.d_nu,
+                    (value(nu + hn, z) - value(nu - hn, z)) / (2.0 * hn),
+                ),
+                (
+                    "νν",
+                    d.d_nu_nu,
+                    (dn(nu + hn, z).d_nu - dn(nu - hn, z).d_nu) / (2.0 * hn),
+                ),
+                (
+                    "νz",
+                    d.d_nu_z,
+                    (dn(nu, z + hz).d_nu - dn(nu, z - hz).d_nu) / (2.0 * hz),
+                ),
+                (
+                    "zz",
+                    d.d_z_z,
+                    (dn(nu, z + hz).d_z - dn(nu, z - hz).d_z) / (2.0 * hz),
+                ),
+            ];
+            for (what, got, difference) in checks {
+                assert!(
+                    (got - difference).abs() < 1e-6 * difference.abs().max(1e-6),
+                    "∂{what} at ({nu}, {z}): {got} vs {difference}"
+                );
+            }
+        }
+    }
+
+    /// ψ′(1) = π²/6, ψ′(1/2) = π²/2 (A&S 6.4.2, 6.4.4), and ψ′(10.5) through the
+    /// recurrence from ψ′(1/2).
+    #[test]
+    fn trigamma_matches_known_values() {
+        let pi2 = std::f64::consts::PI.powi(2);
+        assert!((trigamma(1.0) - pi2 / 6.0).abs() < 1e-14);
+        assert!((trigamma(0.5) - pi2 / 2.0).abs() < 1e-14);
+        let from_half = pi2 / 2.0 - (0..10).map(|k| 1.0 / (k as f64 + 0.5).powi(2)).sum::<f64>();
+        assert!((trigamma(10.5) - from_half).abs() < 1e-14);
     }
 
     #[test]

@@ -2,7 +2,7 @@
 //! of the one-state form dX = (a + b X) dt + g dW, g² = α + β X + γ X², held constant
 //! over the step `dt`.
 
-use crate::bessel::ln_bessel_i_scaled;
+use crate::bessel::{ln_bessel_i_scaled, ln_bessel_i_scaled_derivatives};
 use sdeck_calculus::coefficients::OneStateValues;
 use sdeck_calculus::one_state::phi;
 use sdeck_calculus::Family;
@@ -150,6 +150,173 @@ fn square_root_sum(v: &OneStateValues, steps: &[Transition]) -> f64 {
     total
 }
 
+/// A log-likelihood with its gradient and Hessian in the square-root coefficients
+/// (a, b, β) of dX = (a + bX) dt + √(βX) dW.
+#[derive(Clone, Copy, Debug, Default, PartialEq)]
+pub(crate) struct Curvature {
+    pub value: f64,
+    pub gradient: [f64; 3],
+    pub hessian: [[f64; 3]; 3],
+}
+
+impl Curvature {
+    fn nan() -> Curvature {
+        Curvature {
+            value: f64::NAN,
+            ..Curvature::default()
+        }
+    }
+
+    fn add(&mut self, other: &Curvature) {
+        self.value += other.value;
+        for i in 0..3 {
+            self.gradient[i] += other.gradient[i];
+            for j in 0..3 {
+                self.hessian[i][j] += other.hessian[i][j];
+            }
+        }
+    }
+}
+
+/// ∫₀^Δ s^m e^{bs} ds for m = 0, 1, 2: φ(b, Δ) and its first two derivatives in b. A
+/// power series in bΔ where the closed forms would cancel (|bΔ| < 2), the closed forms
+/// (integration by parts) beyond.
+fn phi_and_derivatives(b: f64, dt: f64) -> [f64; 3] {
+    let u = b * dt;
+    if u.abs() < 2.0 {
+        // Σ_n Δ^{m+1} uⁿ / (n! (n+m+1)).
+        let mut out = [0.0; 3];
+        let mut power = 1.0;
+        for n in 0..40 {
+            let nf = n as f64;
+            for (m, slot) in out.iter_mut().enumerate() {
+                *slot += power / (nf + m as f64 + 1.0);
+            }
+            power *= u / (nf + 1.0);
+            if power.abs() < 1e-18 {
+                break;
+            }
+        }
+        [out[0] * dt, out[1] * dt * dt, out[2] * dt * dt * dt]
+    } else {
+        let grown = u.exp();
+        let f0 = (grown - 1.0) / b;
+        let f1 = (dt * grown - f0) / b;
+        let f2 = (dt * dt * grown - 2.0 * f1) / b;
+        [f0, f1, f2]
+    }
+}
+
+/// The square-root log-likelihood with its gradient and Hessian in (a, b, β), exact (no
+/// differences): per observation in (q, C, e) = (2a/β − 1, ln c, bΔ/2), in which
+/// ln p = C − c (√y − √x eᵉ)² + q (ln(y/x) − 2e)/2 + Λ(q, 2c√(xy) eᵉ) with Λ the scaled
+/// log Bessel function (see `ln_square_root`), then by the chain rule through the map to
+/// (a, b, β), once per run of equal steps.
+pub(crate) fn square_root_curvature(v: &OneStateValues, steps: &[Transition]) -> Curvature {
+    use rayon::prelude::*;
+    if steps.len() <= CHUNK {
+        return square_root_curvature_chunk(v, steps);
+    }
+    let parts: Vec<Curvature> = steps
+        .par_chunks(CHUNK)
+        .map(|chunk| square_root_curvature_chunk(v, chunk))
+        .collect();
+    let mut total = Curvature::default();
+    for part in &parts {
+        total.add(part);
+    }
+    total
+}
+
+fn square_root_curvature_chunk(v: &OneStateValues, steps: &[Transition]) -> Curvature {
+    let (a, b, beta) = (v.a, v.b, v.beta);
+    if beta.is_nan() || beta <= 0.0 {
+        return Curvature::nan();
+    }
+    let q = 2.0 * a / beta - 1.0;
+    if q <= -1.0 {
+        return Curvature::nan();
+    }
+    let mut total = Curvature::default();
+    let mut start = 0;
+    while start < steps.len() {
+        let dt = steps[start].dt;
+        let end = steps[start..]
+            .iter()
+            .position(|s| s.dt != dt)
+            .map_or(steps.len(), |p| start + p);
+        let Some(run) = steps.get(start..end) else {
+            return Curvature::nan();
+        };
+        let [f0, f1, f2] = phi_and_derivatives(b, dt);
+        let c = 2.0 / (beta * f0);
+        let half_decay = (0.5 * b * dt).exp();
+        // Value, gradient and Hessian in w = (q, C, e), summed over the run.
+        let mut value = 0.0;
+        let mut g = [0.0; 3];
+        let mut h = [[0.0; 3]; 3];
+        for s in run {
+            if !(s.x > 0.0 && s.y > 0.0) {
+                return Curvature::nan();
+            }
+            let root_x = s.sqrt_x * half_decay;
+            let gap = s.sqrt_y - root_x;
+            let z = 2.0 * c * s.sqrt_xy * half_decay;
+            let bessel = ln_bessel_i_scaled_derivatives(q, z);
+            let tilt = s.ln_ratio - b * dt;
+            let spread = c * gap * gap;
+            value += c.ln() - spread + 0.5 * q * tilt + bessel.value;
+            let zl = bessel.d_z * z;
+            let zzl = bessel.d_z_z * z * z + zl;
+            let pull = 2.0 * c * gap * root_x;
+            g[0] += 0.5 * tilt + bessel.d_nu;
+            g[1] += 1.0 - spread + zl;
+            g[2] += pull - q + zl;
+            h[0][0] += bessel.d_nu_nu;
+            h[0][1] += bessel.d_nu_z * z;
+            h[0][2] += bessel.d_nu_z * z - 1.0;
+            h[1][1] += zzl - spread;
+            h[1][2] += zzl + pull;
+            h[2][2] += zzl + 2.0 * c * root_x * (gap - root_x);
+        }
+        h[1][0] = h[0][1];
+        h[2][0] = h[0][2];
+        h[2][1] = h[1][2];
+        // Jacobian of w in (a, b, β) and the second derivatives of each w.
+        let jacobian = [
+            [2.0 / beta, 0.0, -2.0 * a / (beta * beta)],
+            [0.0, -f1 / f0, -1.0 / beta],
+            [0.0, 0.5 * dt, 0.0],
+        ];
+        let mut second = [[[0.0; 3]; 3]; 3];
+        second[0][0][2] = -2.0 / (beta * beta);
+        second[0][2][0] = second[0][0][2];
+        second[0][2][2] = 4.0 * a / (beta * beta * beta);
+        second[1][1][1] = -(f2 / f0 - (f1 / f0).powi(2));
+        second[1][2][2] = 1.0 / (beta * beta);
+        let mut part = Curvature {
+            value,
+            ..Curvature::default()
+        };
+        for i in 0..3 {
+            part.gradient[i] = (0..3).map(|k| g[k] * jacobian[k][i]).sum();
+            for j in 0..3 {
+                part.hessian[i][j] = (0..3)
+                    .map(|k| {
+                        (0..3)
+                            .map(|l| jacobian[k][i] * h[k][l] * jacobian[l][j])
+                            .sum::<f64>()
+                            + g[k] * second[k][i][j]
+                    })
+                    .sum();
+            }
+        }
+        total.add(&part);
+        start = end;
+    }
+    total
+}
+
 /// Whether an observed value lies in the family's domain; the reason when not.
 pub(crate) fn domain(family: Family) -> Option<&'static str> {
     match family {
@@ -206,6 +373,67 @@ mod tests {
             (summed - one_by_one).abs() < 1e-9 * one_by_one.abs(),
             "{summed} vs {one_by_one}"
         );
+    }
+
+    /// The exact gradient and Hessian against central differences of the summed density,
+    /// with regular and irregular steps and in both regimes of the Bessel function.
+    #[test]
+    fn square_root_curvature_matches_differences() {
+        let steps: Vec<Transition> = (0..300)
+            .map(|i| {
+                let dt = if i % 7 == 0 { 0.25 } else { 1.0 / 252.0 };
+                Transition::new(
+                    dt,
+                    0.03 + 0.001 * (i % 11) as f64,
+                    0.031 + 0.001 * (i % 5) as f64,
+                )
+            })
+            .collect();
+        let at = |c: [f64; 3]| values(c[0], c[1], 0.0, c[2], 0.0);
+        let centre = [0.04, -0.8, 0.0144];
+        let exact = square_root_curvature(&at(centre), &steps);
+        let value = |c: [f64; 3]| ln_likelihood(Family::SquareRoot, &at(c), &steps);
+        assert!((exact.value - value(centre)).abs() < 1e-9 * exact.value.abs());
+        for i in 0..3 {
+            let h = 1e-5 * centre[i].abs();
+            let shifted = |d: f64| {
+                let mut c = centre;
+                c[i] += d;
+                c
+            };
+            let gradient = (value(shifted(h)) - value(shifted(-h))) / (2.0 * h);
+            assert!(
+                (exact.gradient[i] - gradient).abs() < 1e-5 * gradient.abs().max(1.0),
+                "gradient {i}: {} vs {gradient}",
+                exact.gradient[i]
+            );
+            let (up, down) = (
+                square_root_curvature(&at(shifted(h)), &steps),
+                square_root_curvature(&at(shifted(-h)), &steps),
+            );
+            for j in 0..3 {
+                let second = (up.gradient[j] - down.gradient[j]) / (2.0 * h);
+                assert!(
+                    (exact.hessian[j][i] - second).abs() < 1e-5 * second.abs().max(1.0),
+                    "hessian {j},{i}: {} vs {second}",
+                    exact.hessian[j][i]
+                );
+            }
+        }
+    }
+
+    #[test]
+    fn phi_derivatives_agree_in_both_forms() {
+        // Either side of |bΔ| = 2 the series and the closed forms agree.
+        for (b, dt) in [(-1.999, 1.0), (-2.001, 1.0), (1.999, 1.0), (3.0, 0.5)] {
+            let [f0, f1, f2] = phi_and_derivatives(b, dt);
+            assert!((f0 - phi(b, dt)).abs() < 1e-14 * f0.abs());
+            let h = 1e-5;
+            let d1 = (phi(b + h, dt) - phi(b - h, dt)) / (2.0 * h);
+            let d2 = (phi(b + h, dt) - 2.0 * phi(b, dt) + phi(b - h, dt)) / (h * h);
+            assert!((f1 - d1).abs() < 1e-8 * d1.abs(), "{f1} vs {d1}");
+            assert!((f2 - d2).abs() < 1e-4 * d2.abs(), "{f2} vs {d2}");
+        }
     }
 
     #[test]

@@ -650,13 +650,21 @@ pub fn fit(problem: &Problem) -> Result<Fit, FitError> {
         model.derive_params(&mut all);
         all
     };
+    // The last few costs are remembered: the search asks again for the value at its
+    // start and at the optimum, each a pass over every observation.
+    let remembered: std::cell::RefCell<Vec<(Vec<f64>, f64)>> = Default::default();
     let cost = |theta: &[f64]| {
-        let l = plan.log_likelihood(problem, &full(theta));
-        if l.is_nan() {
-            f64::INFINITY
-        } else {
-            -l
+        if let Some((_, c)) = remembered.borrow().iter().find(|(t, _)| t == theta) {
+            return *c;
         }
+        let l = plan.log_likelihood(problem, &full(theta));
+        let c = if l.is_nan() { f64::INFINITY } else { -l };
+        let mut memory = remembered.borrow_mut();
+        if memory.len() == 4 {
+            memory.remove(0);
+        }
+        memory.push((theta.to_vec(), c));
+        c
     };
     let file_start: Vec<f64> = estimated.iter().map(|&p| file_values[p]).collect();
     let transforms: Vec<Transform> = estimated
@@ -699,21 +707,30 @@ pub fn fit(problem: &Problem) -> Result<Fit, FitError> {
         .min_by(|a, b| a.0.total_cmp(&b.0))
         .map(|(_, s)| s)
         .ok_or(FitError::NoFiniteLikelihood)?;
+    // Exact derivatives where the likelihood has them; differences of the cost elsewhere.
+    let exact = |theta: &[f64]| match &plan {
+        Plan::Singles(singles) => exact_derivatives(singles, &full, theta),
+        Plan::System { .. } => None,
+    };
+    let derivatives = |theta: &[f64]| {
+        exact(theta)
+            .unwrap_or_else(|| optimise::finite_differences(&cost, theta, optimise::HESSIAN_STEP))
+    };
     // Newton steps straight from the start converge in a few steps when it is close (the
     // moment estimates usually are); otherwise the simplex search first.
-    let theta = match optimise::polish(&cost, &transforms, best_start.clone()) {
+    let theta = match optimise::polish(&cost, &derivatives, &transforms, best_start.clone()) {
         (theta, true) => theta,
         (_, false) => {
             let found = optimise::simplex(&cost, &transforms, &best_start, 20_000);
             let found = optimise::simplex(&cost, &transforms, &found, 20_000);
-            optimise::polish(&cost, &transforms, found).0
+            optimise::polish(&cost, &derivatives, &transforms, found).0
         }
     };
     let loglik = -cost(&theta);
     if !loglik.is_finite() {
         return Err(FitError::NoFiniteLikelihood);
     }
-    let (gradient, hessian) = optimise::derivatives(&cost, &theta, optimise::HESSIAN_STEP);
+    let (gradient, hessian) = derivatives(&theta);
     // At a bound when the one-parameter Newton step would cross it.
     let at_bound: Vec<bool> = (0..k)
         .map(|j| {
@@ -780,6 +797,81 @@ pub fn fit(problem: &Problem) -> Result<Fit, FitError> {
         used: plan.used(),
         families,
     })
+}
+
+/// Relative step of the differences of the coefficients in the parameters.
+const COEFFICIENT_STEP: f64 = 1e-4;
+
+/// The exact gradient and Hessian of the negative log-likelihood in the estimated
+/// parameters θ, when every fitted factor is square-root with constant coefficients: the
+/// likelihood's own derivatives in the coefficients (a, b, β)
+/// (`law::square_root_curvature`), carried to θ by the chain rule. The coefficients are
+/// cheap functions of θ (products and squares of parameters) and their derivatives are
+/// central differences, which are exact for the quadratics they usually are.
+fn exact_derivatives(
+    singles: &[Single],
+    full: &dyn Fn(&[f64]) -> Vec<f64>,
+    theta: &[f64],
+) -> Option<(DVector<f64>, DMatrix<f64>)> {
+    if singles.iter().any(|s| s.family != Family::SquareRoot) {
+        return None;
+    }
+    let k = theta.len();
+    let h: Vec<f64> = theta
+        .iter()
+        .map(|x| COEFFICIENT_STEP * x.abs().max(1e-3))
+        .collect();
+    let mut gradient = DVector::zeros(k);
+    let mut hessian = DMatrix::zeros(k, k);
+    for single in singles {
+        let coefficients = |changes: &[(usize, f64)]| {
+            let mut x = theta.to_vec();
+            for (j, d) in changes {
+                x[*j] += d;
+            }
+            let v = single.form.at(&full(&x), 0.0);
+            DVector::from_vec(vec![v.a, v.b, v.beta])
+        };
+        let centre = coefficients(&[]);
+        let Some(&[a, b, beta]) = centre.as_slice().get(..3) else {
+            return None;
+        };
+        let values = sdeck_calculus::coefficients::OneStateValues {
+            a,
+            b,
+            alpha: 0.0,
+            beta,
+            gamma: 0.0,
+        };
+        let law = law::square_root_curvature(&values, &single.steps);
+        if !law.value.is_finite() {
+            return None;
+        }
+        let g = DVector::from_row_slice(&law.gradient);
+        let hc = DMatrix::from_fn(3, 3, |r, c| law.hessian[r][c]);
+        // Jacobian of the coefficients (3 × k) and their second derivatives.
+        let mut jacobian = DMatrix::zeros(3, k);
+        let mut second = DMatrix::zeros(k, k);
+        for i in 0..k {
+            let plus = coefficients(&[(i, h[i])]);
+            let minus = coefficients(&[(i, -h[i])]);
+            jacobian.set_column(i, &((&plus - &minus) / (2.0 * h[i])));
+            second[(i, i)] = g.dot(&((&plus - 2.0 * &centre + &minus) / (h[i] * h[i])));
+            for j in 0..i {
+                let mixed = (coefficients(&[(i, h[i]), (j, h[j])])
+                    - coefficients(&[(i, h[i]), (j, -h[j])])
+                    - coefficients(&[(i, -h[i]), (j, h[j])])
+                    + coefficients(&[(i, -h[i]), (j, -h[j])]))
+                    / (4.0 * h[i] * h[j]);
+                second[(i, j)] = g.dot(&mixed);
+                second[(j, i)] = second[(i, j)];
+            }
+        }
+        // The cost is the negative log-likelihood.
+        gradient -= jacobian.transpose() * &g;
+        hessian -= jacobian.transpose() * hc * &jacobian + second;
+    }
+    Some((gradient, hessian))
 }
 
 /// The family whose transition law the likelihood uses: a linear factor with a positive

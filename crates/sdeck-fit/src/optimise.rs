@@ -168,7 +168,7 @@ fn step_of(theta: f64, relative: f64) -> f64 {
 
 /// Gradient (central differences with relative step 10⁻⁵) and Hessian (relative step
 /// `step`) of `f` at θ.
-pub(crate) fn derivatives<F: Fn(&[f64]) -> f64>(
+pub(crate) fn finite_differences<F: Fn(&[f64]) -> f64>(
     f: &F,
     theta: &[f64],
     step: f64,
@@ -204,12 +204,16 @@ pub(crate) fn derivatives<F: Fn(&[f64]) -> f64>(
     (gradient, hessian)
 }
 
-/// Newton steps on the finite-difference derivatives, halved until the cost falls and the
-/// bounds hold; stops when a step no longer moves any parameter by more than 10⁻¹¹
+/// Gradient and Hessian of the cost at a point.
+pub(crate) type Derivatives<'a> = dyn Fn(&[f64]) -> (DVector<f64>, DMatrix<f64>) + 'a;
+
+/// Newton steps on the derivatives `derivatives` gives (exact, or finite differences of
+/// the cost), halved until the cost falls and the bounds hold; stops when a step no longer moves any parameter by more than 10⁻¹¹
 /// relative. Returns the point and whether it converged so (a Hessian that is not
 /// positive definite, a step that cannot lower the cost before that, or 30 steps, do not).
 pub(crate) fn polish<F: Fn(&[f64]) -> f64>(
     cost: &F,
+    derivatives: &Derivatives,
     transforms: &[Transform],
     start: Vec<f64>,
 ) -> (Vec<f64>, bool) {
@@ -219,7 +223,7 @@ pub(crate) fn polish<F: Fn(&[f64]) -> f64>(
         return (theta, false);
     }
     for _ in 0..30 {
-        let (gradient, hessian) = derivatives(cost, &theta, HESSIAN_STEP);
+        let (gradient, hessian) = derivatives(&theta);
         let Some(cholesky) = hessian.clone().cholesky() else {
             return (theta, false);
         };
@@ -299,8 +303,10 @@ mod tests {
         // Minimum at (2, 0.5); the second parameter is declared > 0.
         let cost = |x: &[f64]| (x[0] - 2.0).powi(2) + 10.0 * (x[1] - 0.5).powi(2) + x[0] * x[1];
         let transforms = [Transform::Free { scale: 1.0 }, Transform::Above { lo: 0.0 }];
+        let differences = |x: &[f64]| finite_differences(&cost, x, HESSIAN_STEP);
         let (found, converged) = polish(
             &cost,
+            &differences,
             &transforms,
             simplex(&cost, &transforms, &[0.1, 3.0], 2000),
         );
@@ -318,7 +324,9 @@ mod tests {
     fn a_minimum_beyond_the_bound_stays_inside() {
         let cost = |x: &[f64]| (x[0] + 1.0).powi(2);
         let transforms = [Transform::Above { lo: 0.0 }];
-        let (found, _) = polish(&cost, &transforms, simplex(&cost, &transforms, &[1.0], 500));
+        let differences = |x: &[f64]| finite_differences(&cost, x, HESSIAN_STEP);
+        let start = simplex(&cost, &transforms, &[1.0], 500);
+        let (found, _) = polish(&cost, &differences, &transforms, start);
         assert!(found[0] > 0.0 && found[0] < 1e-3, "{found:?}");
     }
 }
