@@ -712,9 +712,18 @@ pub fn fit(problem: &Problem) -> Result<Fit, FitError> {
         Plan::Singles(singles) => exact_derivatives(singles, &full, theta),
         Plan::System { .. } => None,
     };
+    // The last derivatives are remembered: the search ends where it computed them.
+    let last: std::cell::RefCell<Option<(Vec<f64>, Gradient, Hessian)>> = Default::default();
     let derivatives = |theta: &[f64]| {
-        exact(theta)
-            .unwrap_or_else(|| optimise::finite_differences(&cost, theta, optimise::HESSIAN_STEP))
+        if let Some((t, g, h)) = last.borrow().as_ref() {
+            if t == theta {
+                return (g.clone(), h.clone());
+            }
+        }
+        let (g, h) = exact(theta)
+            .unwrap_or_else(|| optimise::finite_differences(&cost, theta, optimise::HESSIAN_STEP));
+        *last.borrow_mut() = Some((theta.to_vec(), g.clone(), h.clone()));
+        (g, h)
     };
     // Newton steps straight from the start converge in a few steps when it is close (the
     // moment estimates usually are); otherwise the simplex search first.
@@ -798,6 +807,9 @@ pub fn fit(problem: &Problem) -> Result<Fit, FitError> {
         families,
     })
 }
+
+type Gradient = DVector<f64>;
+type Hessian = DMatrix<f64>;
 
 /// Relative step of the differences of the coefficients in the parameters.
 const COEFFICIENT_STEP: f64 = 1e-4;

@@ -208,8 +208,8 @@ pub(crate) fn finite_differences<F: Fn(&[f64]) -> f64>(
 pub(crate) type Derivatives<'a> = dyn Fn(&[f64]) -> (DVector<f64>, DMatrix<f64>) + 'a;
 
 /// Newton steps on the derivatives `derivatives` gives (exact, or finite differences of
-/// the cost), halved until the cost falls and the bounds hold; stops when a step no longer moves any parameter by more than 10⁻¹¹
-/// relative. Returns the point and whether it converged so (a Hessian that is not
+/// the cost), halved until the cost falls and the bounds hold; stops when a step no
+/// longer moves any parameter by more than 10⁻¹¹ relative. Returns the point and whether it converged so (a Hessian that is not
 /// positive definite, a step that cannot lower the cost before that, or 30 steps, do not).
 pub(crate) fn polish<F: Fn(&[f64]) -> f64>(
     cost: &F,
@@ -228,6 +228,15 @@ pub(crate) fn polish<F: Fn(&[f64]) -> f64>(
             return (theta, false);
         };
         let step = cholesky.solve(&gradient);
+        // A Newton step this small moves no digit that matters: θ is the optimum, and
+        // the caller's derivatives there are the ones just computed.
+        if theta
+            .iter()
+            .zip(step.iter())
+            .all(|(a, s)| s.abs() <= 1e-11 * a.abs().max(1e-12))
+        {
+            return (theta, true);
+        }
         let mut scale = 1.0;
         let mut moved = false;
         let mut small = false;
