@@ -170,3 +170,89 @@ def test_treasury_bill_rate_matches_scipy(tmp_path, tbill, model, negloglik, squ
     assert_close(est, ref, 1e-6, "T-bill estimates against scipy")
     assert_close(se, ref_se, 1e-3, "T-bill standard errors against scipy")
     assert abs(report["loglik"] + negloglik(ref, t, x)) < 1e-6 * abs(report["loglik"])
+
+
+STEP_OU_MODEL = """model policy_rate
+clock year
+param kappa  = 2   [1/year]        > 0
+param before = 2%
+param after  = 4%
+param vol    = 1%  [1/sqrt(year)]  > 0
+shock W
+factor r = 2%
+dr = kappa * (step(t, before, 1.53 [year], after) - r) dt + vol dW
+"""
+
+RAMP_ABM_MODEL = """model spread_drift
+clock year
+param early = 1%  [1/year]
+param late  = -2% [1/year]
+param vol   = 3%  [1/sqrt(year)]  > 0
+shock W
+factor r = 1%
+dr = ramp(t, 0.71 [year], early, 2.37 [year], late) dt + vol dW
+"""
+
+
+def simulate_fine(rng, t, x0, drift, vol, substeps=20):
+    """A path at the times `t`, by Euler steps of a twentieth of each interval: data for
+    the comparison (the two likelihoods are compared on the same data, whatever made it)."""
+    x = [x0]
+    for t0, t1 in zip(t[:-1], t[1:]):
+        h = (t1 - t0) / substeps
+        value = x[-1]
+        for j in range(substeps):
+            s = t0 + j * h
+            value += drift(s, value) * h + vol * np.sqrt(h) * rng.standard_normal()
+        x.append(value)
+    return np.array(x)
+
+
+@pytest.mark.parametrize("case", ["step-level-ou", "ramp-drift-abm"])
+def test_time_dependent_gaussian_matches_scipy_quad(tmp_path, case):
+    """Levels and drifts written with `step` and `ramp`: the exact Gaussian likelihood
+    against the same likelihood built with scipy.integrate.quad (knots as `points`) and
+    maximised by scipy's Nelder–Mead (reference.gaussian_varying_negloglik)."""
+    rng = np.random.default_rng(17)
+    t = np.arange(160) / 40.0  # ten-day steps over four years; the knots fall inside steps
+    if case == "step-level-ou":
+        names = ("kappa", "before", "after", "vol")
+        truth = (2.0, 0.02, 0.04, 0.01)
+        level = lambda p, s: p[1] if s < 1.53 else p[2]
+        x = simulate_fine(rng, t, 0.02, lambda s, r: 2.0 * (level(truth, s) - r), 0.01)
+        negloglik = lambda p: reference.gaussian_varying_negloglik(
+            lambda q, s: q[0] * level(q, s), p, t, x, [1.53],
+            slope=lambda q: -q[0] if q[0] > 0 else np.nan, noise=lambda q: q[3] ** 2,
+        )
+        model, positive = STEP_OU_MODEL, [True, False, False, True]
+    else:
+        names = ("early", "late", "vol")
+        truth = (0.01, -0.02, 0.03)
+
+        def ramp(p, s):
+            w = min(max((s - 0.71) / (2.37 - 0.71), 0.0), 1.0)
+            return p[0] + (p[1] - p[0]) * w
+
+        x = simulate_fine(rng, t, 0.01, lambda s, r: ramp(truth, s), 0.03)
+        negloglik = lambda p: reference.gaussian_varying_negloglik(
+            ramp, p, t, x, [0.71, 2.37], slope=lambda q: 0.0, noise=lambda q: q[2] ** 2,
+        )
+        model, positive = RAMP_ABM_MODEL, [False, False, True]
+    model_path, data_path = tmp_path / "model.sde", tmp_path / "data.csv"
+    model_path.write_text(model, encoding="utf-8")
+    lines = ["t,r"] + [f"{a!r},{b!r}" for a, b in zip(t.tolist(), x.tolist())]
+    data_path.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    done = subprocess.run(
+        [sdeck_binary(), "fit", str(model_path), str(data_path), "--format", "json"],
+        capture_output=True, text=True, check=False,
+    )
+    assert done.returncode == 0, done.stderr
+    report = json.loads(done.stdout)
+    by_name = {p["name"]: p for p in report["params"]}
+    est = np.array([by_name[n]["estimate"] for n in names])
+    se = np.array([by_name[n]["se"] for n in names])
+    ref = reference.maximise_plain(negloglik, truth, positive)
+    ref_se = reference.hessian_errors(negloglik, ref)
+    assert_close(est, ref, 1e-6, f"{case}: estimates against scipy quad")
+    assert_close(se, ref_se, 1e-3, f"{case}: standard errors against scipy quad")
+    assert abs(report["loglik"] + negloglik(ref)) < 1e-8 * abs(report["loglik"])

@@ -43,6 +43,12 @@ impl OneStateForm {
         !self.time_dependent && !self.form.state_dependent_noise()
     }
 
+    /// Whether the noise is free of the factor (β = γ = 0 for every parameter value and
+    /// time): then the transition is Gaussian, whatever the coefficients do in time.
+    pub fn additive_noise(&self) -> bool {
+        !self.form.state_dependent_noise()
+    }
+
     /// The coefficients at parameters `params` (clock units) and time `t`.
     pub fn at(&self, params: &[f64], t: f64) -> OneStateValues {
         let f = &self.form;

@@ -37,6 +37,7 @@
 pub mod bessel;
 mod law;
 mod optimise;
+mod varying;
 pub mod write;
 
 use nalgebra::{DMatrix, DVector};
@@ -144,7 +145,8 @@ impl std::fmt::Display for FitError {
             FitError::NoExactLikelihood { factor, reason } => write!(
                 f,
                 "factor {factor} has no exact likelihood: {reason}; sdeck fits only \
-                 arithmetic and geometric Brownian motion, Ornstein–Uhlenbeck, square-root \
+                 arithmetic and geometric Brownian motion, Ornstein–Uhlenbeck (with \
+                 coefficients of t where the noise is free of the factor), square-root \
                  factors with constant coefficients and fully observed linear systems"
             ),
             FitError::OutsideDomain {
@@ -231,6 +233,18 @@ struct Single {
     steps: Vec<law::Transition>,
 }
 
+impl Single {
+    /// Σ ln p over the observed transitions at model parameters `params`.
+    fn ln_likelihood(&self, model: &Model, params: &[f64]) -> f64 {
+        if self.form.time_dependent {
+            let breaks = sdeck_calculus::breaks::TimeBreaks::of_model(model, params);
+            varying::ln_likelihood(&self.form, params, &breaks, &self.points)
+        } else {
+            law::ln_likelihood(self.family, &self.form.at(params, 0.0), &self.steps)
+        }
+    }
+}
+
 enum Plan {
     Singles(Vec<Single>),
     System {
@@ -258,10 +272,12 @@ fn plan(problem: &Problem) -> Result<Plan, FitError> {
     for (column, &factor) in problem.factors.iter().enumerate() {
         let name = factor_name(model, factor);
         match one_state_form(model, factor) {
-            Ok(form) if form.time_dependent => {
+            Ok(form) if form.time_dependent && !form.additive_noise() => {
                 single_reason = Some((
                     name,
-                    "its coefficients depend on t, and only constant coefficients are fitted"
+                    "its coefficients depend on t and its noise on its own value; with \
+                     coefficients of t only Gaussian factors (noise free of the factor) \
+                     have an exact likelihood here"
                         .to_string(),
                 ));
             }
@@ -275,10 +291,16 @@ fn plan(problem: &Problem) -> Result<Plan, FitError> {
                             .to_string(),
                     ));
                 }
-                Family::ArithmeticBrownian
-                | Family::OrnsteinUhlenbeck
-                | Family::GeometricBrownian
-                | Family::SquareRoot => {
+                family
+                    if form.time_dependent
+                        || matches!(
+                            family,
+                            Family::ArithmeticBrownian
+                                | Family::OrnsteinUhlenbeck
+                                | Family::GeometricBrownian
+                                | Family::SquareRoot
+                        ) =>
+                {
                     let points = series
                         .values
                         .get(column)
@@ -296,7 +318,7 @@ fn plan(problem: &Problem) -> Result<Plan, FitError> {
                         .collect();
                     singles.push(Single {
                         column,
-                        family: fitted_family(&form),
+                        family,
                         form,
                         points,
                         steps,
@@ -413,7 +435,7 @@ impl Plan {
         match self {
             Plan::Singles(singles) => singles
                 .iter()
-                .map(|s| law::ln_likelihood(s.family, &s.form.at(params, 0.0), &s.steps))
+                .map(|s| s.ln_likelihood(problem.model, params))
                 .sum(),
             Plan::System {
                 form,
@@ -513,7 +535,7 @@ fn system_log_likelihood(
 /// indices 0 = a, 1 = b, 2 = α, 3 = β, 4 = γ.
 fn moment_targets(single: &Single) -> Vec<(usize, f64)> {
     let p = &single.points;
-    if p.len() < 3 {
+    if p.len() < 3 || single.form.time_dependent {
         return Vec::new();
     }
     let steps: Vec<(f64, f64, f64)> = p
@@ -825,7 +847,10 @@ fn exact_derivatives(
     full: &dyn Fn(&[f64]) -> Vec<f64>,
     theta: &[f64],
 ) -> Option<(DVector<f64>, DMatrix<f64>)> {
-    if singles.iter().any(|s| s.family != Family::SquareRoot) {
+    if singles
+        .iter()
+        .any(|s| s.family != Family::SquareRoot || s.form.time_dependent)
+    {
         return None;
     }
     let k = theta.len();

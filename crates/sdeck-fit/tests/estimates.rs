@@ -329,6 +329,22 @@ fn families_without_an_exact_likelihood_are_refused() {
         }
         other => panic!("expected a refusal, got {other:?}"),
     }
+    // A square-root factor with a level that steps in time: its transition is not the
+    // noncentral chi-square of constant coefficients, and no other law is exact.
+    let stepped = model(
+        "model funding\nclock year\nparam kappa = 1 [1/year] > 0\n\
+         param level = 3% > 0\nparam vol = 5% [1/sqrt(year)] > 0\nshock W\n\
+         factor r = 3% >= 0\n\
+         dr = kappa * (step(t, level, 2 [year], 2 * level) - r) dt + vol * sqrt(r) dW\n",
+    );
+    let positive: Vec<f64> = (0..20).map(|i| 0.03 + 0.001 * (i as f64).sin()).collect();
+    match run(&stepped, &times, &positive) {
+        Err(FitError::NoExactLikelihood { factor, reason }) => {
+            assert_eq!(factor, "r");
+            assert!(reason.contains("depend on t"), "{reason}");
+        }
+        other => panic!("expected a refusal, got {other:?}"),
+    }
 }
 
 #[test]
