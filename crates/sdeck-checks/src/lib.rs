@@ -19,7 +19,7 @@
 pub mod rules;
 pub mod suppress;
 
-pub use rules::implausible_value::Plausibility;
+pub use rules::Plausibility;
 use sdeck_calculus::Derivation;
 use sdeck_diagnostics::{Diagnostic, RuleId, Severity};
 use sdeck_semantics::Analysis;

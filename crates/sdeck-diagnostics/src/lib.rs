@@ -2,8 +2,9 @@
 //!
 //! A [`Diagnostic`] is built once, by the layer that can decide it (syntax, semantics,
 //! checks), and rendered by the faces (CLI, language server) without re-deciding anything.
-//! Every diagnostic names a [`Rule`]; each rule lives in its own file under `rules/`, and
-//! its text is the manual that `sdeck explain`, docs/rules.md and the server all show.
+//! Every diagnostic names a [`Rule`]; the rules come from one list (`rules/list.rs`),
+//! each with its manual beside it, the text that `sdeck explain`, docs/rules.md and the
+//! server all show.
 //!
 //! ```
 //! use sdeck_diagnostics::{rules, Diagnostic, Severity};

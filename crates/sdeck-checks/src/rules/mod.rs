@@ -2,25 +2,49 @@
 //! (detection, message and fixes), and the registry that runs them in order. Only what
 //! arises while names are resolved or units inferred is reported by `sdeck-semantics`.
 //!
-//! Adding a rule here: write `NAME.rs` with `pub(super) fn run(cx: &Context, out: &mut
-//! Vec<Diagnostic>)`, declare the module below and add its line to [`REGISTRY`].
+//! Adding a rule here: its line, marked `checked`, in the one list of rules
+//! (`sdeck-diagnostics/src/rules/list.rs`), and `NAME.rs` with `pub(super) fn run(cx:
+//! &Context, out: &mut Vec<Diagnostic>)`; the list declares the module and registers it.
 
-mod bound_violated;
-mod correlation_not_psd;
-mod correlation_range;
-mod discount_measure;
-mod duplicate_term;
-mod expectation_failed;
-mod factor_domain;
-mod feller_condition;
-pub mod implausible_value;
-mod missing_equation;
-mod moment_explosion;
-mod no_factor;
-mod not_mean_reverting;
+/// Builds the registry from the one list of rules (`sdeck-diagnostics/src/rules/list.rs`):
+/// each rule marked `checked` has its module here, whose `run` decides it.
+macro_rules! rules {
+    ($(
+        $variant:ident => $constant:ident, $module:ident, $name:literal, $severity:ident,
+        $summary:literal $(, $checked:ident)?;
+    )*) => {
+        $(rule_module!($module $(, $checked)?);)*
+
+        /// Every rule of the catalogue, in its order, with the runner that decides it when
+        /// this crate does.
+        static REGISTRY: &[(RuleId, Option<Runner>)] =
+            &[$((RuleId::$variant, runner!($module $(, $checked)?)),)*];
+    };
+}
+
+/// The module of a rule decided here.
+macro_rules! rule_module {
+    ($module:ident) => {};
+    ($module:ident, checked) => {
+        mod $module;
+    };
+}
+
+/// The runner of a rule decided here; `None` for the others.
+macro_rules! runner {
+    ($module:ident) => {
+        None
+    };
+    ($module:ident, checked) => {
+        Some($module::run as Runner)
+    };
+}
+
+sdeck_diagnostics::for_each_rule!(rules);
+
 mod shared;
-mod unit_scale;
-mod unused;
+
+pub use implausible_value::Plausibility;
 
 use sdeck_calculus::Derivation;
 use sdeck_diagnostics::{Diagnostic, RuleId};
@@ -35,7 +59,7 @@ pub struct Context<'a> {
     /// Whether the analysis found an error: the model may be incomplete.
     pub broken: bool,
     /// The thresholds of `implausible-value` (the project's, or the defaults).
-    pub plausibility: implausible_value::Plausibility,
+    pub plausibility: Plausibility,
     /// Whether the text checked is stale (a newer version waits): rules with a loop over
     /// many items ask it and stop early; [`run_all`] asks it before each rule.
     pub stale: &'a (dyn Fn() -> bool + Sync),
@@ -49,7 +73,7 @@ impl<'a> Context<'a> {
             model: &analysis.model,
             derivation,
             broken: analysis.has_errors(),
-            plausibility: implausible_value::Plausibility::default(),
+            plausibility: Plausibility::default(),
             stale: &|| false,
         }
     }
@@ -61,7 +85,7 @@ impl<'a> Context<'a> {
     }
 
     /// The same context with the project's thresholds for `implausible-value`.
-    pub fn with_plausibility(mut self, plausibility: implausible_value::Plausibility) -> Self {
+    pub fn with_plausibility(mut self, plausibility: Plausibility) -> Self {
         self.plausibility = plausibility;
         self
     }
@@ -70,35 +94,15 @@ impl<'a> Context<'a> {
 /// A rule's detection: appends what it finds to `out`.
 type Runner = fn(&Context, &mut Vec<Diagnostic>);
 
-/// Every rule decided on the finished analysis, with the runner that decides it, in the
-/// order they run.
-static REGISTRY: &[(RuleId, Runner)] = &[
-    (RuleId::MissingEquation, missing_equation::run),
-    (RuleId::DuplicateTerm, duplicate_term::run),
-    (RuleId::BoundViolated, bound_violated::run),
-    (RuleId::CorrelationRange, correlation_range::run),
-    (RuleId::FellerCondition, feller_condition::run),
-    (RuleId::FactorDomain, factor_domain::run),
-    (RuleId::NotMeanReverting, not_mean_reverting::run),
-    (RuleId::ImplausibleValue, implausible_value::run),
-    (RuleId::MomentExplosion, moment_explosion::run),
-    (RuleId::DiscountMeasure, discount_measure::run),
-    (RuleId::CorrelationNotPsd, correlation_not_psd::run),
-    (RuleId::ExpectationFailed, expectation_failed::run),
-    (RuleId::NoFactor, no_factor::run),
-    (RuleId::Unused, unused::run),
-    (RuleId::UnitScale, unit_scale::run),
-];
-
 /// The rules the registry runs, in order.
 pub fn registered() -> impl Iterator<Item = RuleId> {
-    REGISTRY.iter().map(|(rule, _)| *rule)
+    REGISTRY.iter().filter_map(|(rule, run)| run.map(|_| *rule))
 }
 
 /// Every diagnostic of the registered rules; abandoned when the context turns stale.
 pub fn run_all(cx: &Context) -> Result<Vec<Diagnostic>, crate::Abandoned> {
     let mut out = Vec::new();
-    for (_, run) in REGISTRY {
+    for run in REGISTRY.iter().filter_map(|(_, run)| *run) {
         if (cx.stale)() {
             return Err(crate::Abandoned);
         }

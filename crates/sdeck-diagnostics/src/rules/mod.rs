@@ -1,15 +1,35 @@
-//! The catalogue: one file per rule, its text the manual (`sdeck explain`, docs/rules.md, hover).
+//! The catalogue, built from the one list of rules (`list.rs`): each rule's manual
+//! (`NAME.md`: `sdeck explain`, docs/rules.md, hover) and examples (`NAME.flawed.sde`,
+//! `NAME.fixed.sde`) sit beside it.
 
-use crate::Rule;
+mod list;
+
+use crate::{Rule, Severity};
 use serde::{Serialize, Serializer};
 use std::fmt;
 
-/// Declares the catalogue from one list: each line names a rule's identity, its module
-/// and its constant. The list's order is the manual's order, the order of [`ALL`] and of
-/// [`RuleId`], so that `ALL[id as usize]` is the rule of `id`.
-macro_rules! catalogue {
-    ($($variant:ident => $module:ident :: $constant:ident,)*) => {
-        $(mod $module; pub use $module::$constant;)*
+/// Declares the catalogue from the one list of rules, `list.rs` (which `sdeck-checks`
+/// reads too, for its registry, through [`for_each_rule!`](crate::for_each_rule)): each line gives a rule's identity, its constant, the
+/// module name of its manual and examples, its name, default severity and summary. The
+/// list's order is the manual's order, the order of [`ALL`] and of [`RuleId`], so that
+/// `ALL[id as usize]` is the rule of `id`.
+macro_rules! rules {
+    ($(
+        $variant:ident => $constant:ident, $module:ident, $name:literal, $severity:ident,
+        $summary:literal $(, $checked:ident)?;
+    )*) => {
+        $(
+            #[doc = $summary]
+            pub const $constant: Rule = Rule {
+                id: RuleId::$variant,
+                name: $name,
+                default_severity: Severity::$severity,
+                summary: $summary,
+                explanation: include_str!(concat!(stringify!($module), ".md")),
+                flawed: include_str!(concat!(stringify!($module), ".flawed.sde")),
+                fixed: include_str!(concat!(stringify!($module), ".fixed.sde")),
+            };
+        )*
 
         /// The identity of a rule: what a diagnostic, a suppression comment and a project
         /// setting name. Compared, hashed and ordered as a value (the order is the
@@ -29,28 +49,7 @@ macro_rules! catalogue {
     };
 }
 
-catalogue! {
-    Syntax => syntax::SYNTAX,
-    UnknownName => unknown_name::UNKNOWN_NAME,
-    DuplicateName => duplicate_name::DUPLICATE_NAME,
-    MissingEquation => missing_equation::MISSING_EQUATION,
-    NoFactor => no_factor::NO_FACTOR,
-    DuplicateTerm => duplicate_term::DUPLICATE_TERM,
-    DimensionMismatch => dimension_mismatch::DIMENSION_MISMATCH,
-    BoundViolated => bound_violated::BOUND_VIOLATED,
-    CorrelationRange => correlation_range::CORRELATION_RANGE,
-    CorrelationNotPsd => correlation_not_psd::CORRELATION_NOT_PSD,
-    FellerCondition => feller_condition::FELLER_CONDITION,
-    FactorDomain => factor_domain::FACTOR_DOMAIN,
-    NotMeanReverting => not_mean_reverting::NOT_MEAN_REVERTING,
-    ImplausibleValue => implausible_value::IMPLAUSIBLE_VALUE,
-    MomentExplosion => moment_explosion::MOMENT_EXPLOSION,
-    DiscountMeasure => discount_measure::DISCOUNT_MEASURE,
-    Unused => unused::UNUSED,
-    UnitScale => unit_scale::UNIT_SCALE,
-    ExpectationFailed => expectation_failed::EXPECTATION_FAILED,
-    UnusedSuppression => unused_suppression::UNUSED_SUPPRESSION,
-}
+crate::for_each_rule!(rules);
 
 impl RuleId {
     /// The rule's entry in the catalogue.
