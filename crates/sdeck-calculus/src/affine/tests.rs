@@ -1,4 +1,6 @@
+use super::closed_form::scalar_riccati;
 use super::*;
+use sdeck_semantics::Model;
 
 fn model(text: &str) -> Model {
     let analysis = sdeck_semantics::analyze(text, "test");
