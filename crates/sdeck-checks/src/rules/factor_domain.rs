@@ -33,8 +33,14 @@ fn restricted_calls<'e>(expr: &'e Expr, out: &mut Vec<(&'static str, &'e Expr)>)
 /// `factor-domain`: sqrt/log of a state whose law leaves the domain, declared bounds a
 /// family cannot keep, impossible starts.
 pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
+    restricted_arguments(cx, out);
+    bounds_and_starts(cx, out);
+}
+
+/// (a) `sqrt` or `log` of a Gaussian factor, or `log` of a square-root factor that
+/// reaches zero.
+fn restricted_arguments(cx: &Context, out: &mut Vec<Diagnostic>) {
     let (model, derivation) = (cx.model, cx.derivation);
-    // (a) sqrt or log of a Gaussian state.
     for (owner, state) in model.factors.iter().enumerate() {
         let Some(eq) = &state.equation else {
             continue;
@@ -103,7 +109,12 @@ pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
         }
         let _ = owner;
     }
-    // (b), (c), (d): bounds and starts.
+}
+
+/// (b), (c), (d): a start the family cannot leave or take, and a declared domain the
+/// family's law spreads beyond.
+fn bounds_and_starts(cx: &Context, out: &mut Vec<Diagnostic>) {
+    let (model, derivation) = (cx.model, cx.derivation);
     for (index, law) in derivation.states.iter().enumerate() {
         let Some(state) = model.factors.get(index) else {
             continue;
