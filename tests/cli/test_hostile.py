@@ -13,6 +13,7 @@ import pytest
 
 ROOT = pathlib.Path(__file__).resolve().parents[2]
 MODEL = str(ROOT / "demo-models" / "cir_funding_rate.sde")
+KESTREL = str(ROOT / "demo-models" / "kestrel_bank_short_rate.sde")
 
 
 def sdeck_binary():
@@ -47,6 +48,13 @@ def run_into_closed_pipe(args):
         (["explain"], 0),
         (["explain", "feller-condition"], 0),
         (["explain", "--markdown"], 0),
+        (["curve", KESTREL], 0),
+        (["curve", "--format", "json", KESTREL], 0),
+        (["curve", "--format", "svg", KESTREL], 0),
+        (["diff", MODEL, KESTREL], 0),
+        (["report", MODEL], 0),
+        (["fit", MODEL, str(ROOT / "demo-models" / "data" / "cir_funding_rate.csv")], 0),
+        (["fit", "--format", "json", MODEL, str(ROOT / "demo-models" / "data" / "cir_funding_rate.csv")], 0),
     ],
 )
 def test_a_closed_stdout_ends_quietly_with_the_commands_status(args, status):

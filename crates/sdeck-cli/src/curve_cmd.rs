@@ -89,7 +89,7 @@ pub fn run(args: CurveArgs) -> ExitCode {
         Format::Text => curve_text(model, &derived),
         Format::Svg => sdeck_report::curve_chart::yield_curve_svg(model, &derived),
     };
-    println!("{output}");
+    outln!("{output}");
     ExitCode::SUCCESS
 }
 

@@ -142,10 +142,10 @@ pub fn run(args: DiffArgs) -> ExitCode {
         }
     }
     match args.format {
-        Format::Text => print!("{}", to_text(&diffs)),
-        Format::Markdown => print!("{}", to_markdown(&diffs)),
+        Format::Text => out!("{}", to_text(&diffs)),
+        Format::Markdown => out!("{}", to_markdown(&diffs)),
         Format::Json => match serde_json::to_string_pretty(&to_json(&diffs)) {
-            Ok(text) => println!("{text}"),
+            Ok(text) => outln!("{text}"),
             Err(e) => {
                 eprintln!("sdeck: cannot write the diff: {e}");
                 return ExitCode::from(2);

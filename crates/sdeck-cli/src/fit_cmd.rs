@@ -167,12 +167,12 @@ pub fn run(args: FitArgs) -> ExitCode {
     };
     match args.format {
         Format::Json => match serde_json::to_string_pretty(&report.json()) {
-            Ok(text) => println!("{text}"),
+            Ok(text) => outln!("{text}"),
             Err(e) => return usage(format!("cannot write the report: {e}")),
         },
         Format::Text => {
-            print!("{}", report.text(&data_name));
-            println!("\n{CAUTION}");
+            out!("{}", report.text(&data_name));
+            outln!("\n{CAUTION}");
         }
     }
     if args.write {

@@ -99,7 +99,7 @@ pub fn run(args: ReportArgs) -> ExitCode {
                 return ExitCode::from(2);
             }
         }
-        None => print!("{document}"),
+        None => out!("{document}"),
     }
     ExitCode::SUCCESS
 }
