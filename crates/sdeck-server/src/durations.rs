@@ -3,7 +3,7 @@
 //! day, four significant digits (`27.7 day`, not `0.0758904 year`).
 
 use crate::analysis::{Analyzed, Role};
-use sdeck_semantics::Model;
+use sdeck_semantics::{Model, Param};
 
 /// A time unit and its length in clock units.
 pub(crate) struct TimeUnit {
@@ -46,19 +46,29 @@ impl TimeUnit {
 /// days), else the most readable of year, month and day.
 pub(crate) fn half_life_unit(a: &Analyzed, state: usize, half_life: f64) -> TimeUnit {
     let model = &a.check.analysis.model;
-    for (i, p) in model.params.iter().enumerate() {
-        let speed_of_state = a
-            .roles_of_param(i)
-            .iter()
-            .any(|r| matches!(r, Role::Speed { state: s, .. } if *s == state));
-        if !speed_of_state {
-            continue;
-        }
-        let unit = p.unit_text.as_deref().unwrap_or("").replace(' ', "");
-        let written = unit.strip_prefix("1/").filter(|u| *u != model.clock.unit);
-        if let Some(unit) = written.and_then(|u| TimeUnit::of(model, u)) {
-            return unit;
-        }
-    }
-    TimeUnit::readable(model, half_life)
+    model
+        .params
+        .iter()
+        .enumerate()
+        .filter(|(i, _)| {
+            a.roles_of_param(*i)
+                .iter()
+                .any(|r| matches!(r, Role::Speed { state: s, .. } if *s == state))
+        })
+        .find_map(|(_, p)| written_time_unit(model, p))
+        .unwrap_or_else(|| TimeUnit::readable(model, half_life))
+}
+
+/// The unit for the half-life `half_life` of the factor whose speed is `speed`: as
+/// [`half_life_unit`], for a caller that holds the speed already (one parameter, not a
+/// search over all of them).
+pub(crate) fn half_life_unit_of_speed(model: &Model, speed: &Param, half_life: f64) -> TimeUnit {
+    written_time_unit(model, speed).unwrap_or_else(|| TimeUnit::readable(model, half_life))
+}
+
+/// The time unit of a rate written `[1/UNIT]`, when it is not the clock's.
+fn written_time_unit(model: &Model, p: &Param) -> Option<TimeUnit> {
+    let unit = p.unit_text.as_deref().unwrap_or("").replace(' ', "");
+    let written = unit.strip_prefix("1/").filter(|u| *u != model.clock.unit)?;
+    TimeUnit::of(model, written)
 }

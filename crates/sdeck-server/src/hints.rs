@@ -4,7 +4,7 @@
 
 use crate::analysis::{Analyzed, Role};
 use crate::documents::PositionEncoding;
-use crate::durations::half_life_unit;
+use crate::durations::half_life_unit_of_speed;
 use sdeck_semantics::SymbolKind;
 use sdeck_units::number::plain;
 use tower_lsp::lsp_types::{InlayHint, InlayHintKind, InlayHintLabel, Range};
@@ -59,11 +59,10 @@ fn all_hints(a: &Analyzed) -> Vec<(usize, String)> {
         }
         for role in a.roles_of_param(i).iter().cloned() {
             if let Role::Speed {
-                state,
-                half_life: Some(h),
+                half_life: Some(h), ..
             } = role
             {
-                let unit = half_life_unit(a, state, h);
+                let unit = half_life_unit_of_speed(model, p, h);
                 hints.push((p.span.end, format!("half-life {}", unit.show(h))));
             }
         }
