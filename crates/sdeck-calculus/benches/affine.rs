@@ -76,10 +76,10 @@ fn main() {
     let model = sdeck_semantics::analyze(THREE_FACTOR, "bench").model;
     let rate = Expr::Add(
         Box::new(Expr::Add(
-            Box::new(Expr::Factor(0)),
-            Box::new(Expr::Factor(1)),
+            Box::new(Expr::factor(0)),
+            Box::new(Expr::factor(1)),
         )),
-        Box::new(Expr::Factor(2)),
+        Box::new(Expr::factor(2)),
     );
     let maturities: Vec<f64> = (1..=30).map(f64::from).collect();
     let first = curve(&model, &rate, &maturities).expect("a curve");
@@ -100,7 +100,7 @@ fn main() {
     );
     let model = sdeck_semantics::analyze(PRICE_WITH_VARIANCE, "bench").model;
     let derivation = derive(&model);
-    let law = law_of(&model, &derivation, 0, 1.0).expect("a law");
+    let law = law_of(&model, &derivation, sdeck_semantics::FactorId::new(0), 1.0).expect("a law");
     assert_eq!(law.kind().as_str(), "fourier");
     time("P(S < 90) at 1 year, Fourier inversion", 2000, || {
         black_box(law.cdf(black_box(90.0)));

@@ -34,7 +34,7 @@ fn main() {
             law.method.as_str()
         );
         println!("  why: {}", law.reason);
-        let f = sdeck_calculus::formulas(model, &derivation, i);
+        let f = sdeck_calculus::formulas(model, &derivation, sdeck_semantics::FactorId::new(i));
         for (label, text) in [
             ("solution", &f.solution),
             ("mean", &f.mean),

@@ -11,7 +11,7 @@
 //! A diffusion coefficient may also be a square root (`vol * sqrt(r)`): [`RootForm`]
 //! keeps it as `scale · sqrt(radicand)`, whose square is again a polynomial.
 
-use sdeck_semantics::{Expr, Function, Model};
+use sdeck_semantics::{Expr, FactorId, Function, Model, ParamId};
 use std::cmp::Ordering;
 use std::collections::BTreeMap;
 
@@ -35,8 +35,8 @@ fn bounded_product(a: &Poly, b: &Poly, expr: &Expr) -> Result<Poly, NotPolynomia
 /// An indivisible factor of a monomial.
 #[derive(Clone, Debug)]
 pub enum Atom {
-    State(usize),
-    Param(usize),
+    State(FactorId),
+    Param(ParamId),
     Time,
     /// A sub-expression without states, kept whole. The string is a structural key used
     /// only to order and compare opaque atoms.
@@ -47,10 +47,10 @@ impl Atom {
     fn rank(&self) -> (u8, usize, &str) {
         match self {
             // States last, so that a term prints as `kappa·r`.
-            Atom::Param(i) => (0, *i, ""),
+            Atom::Param(i) => (0, i.index(), ""),
             Atom::Time => (1, 0, ""),
             Atom::Opaque(_, key) => (2, 0, key.as_str()),
-            Atom::State(i) => (3, *i, ""),
+            Atom::State(i) => (3, i.index(), ""),
         }
     }
 
@@ -70,8 +70,8 @@ impl Atom {
 
     fn eval(&self, params: &[f64], states: &[f64], t: f64) -> f64 {
         match self {
-            Atom::State(i) => states.get(*i).copied().unwrap_or(f64::NAN),
-            Atom::Param(i) => params.get(*i).copied().unwrap_or(f64::NAN),
+            Atom::State(i) => states.get(i.index()).copied().unwrap_or(f64::NAN),
+            Atom::Param(i) => params.get(i.index()).copied().unwrap_or(f64::NAN),
             Atom::Time => t,
             Atom::Opaque(expr, _) => expr.eval(params, states, t),
         }
@@ -231,8 +231,8 @@ impl Poly {
     }
 
     /// The states that appear, sorted.
-    pub fn states(&self) -> Vec<usize> {
-        let mut out: Vec<usize> = self
+    pub fn states(&self) -> Vec<FactorId> {
+        let mut out: Vec<FactorId> = self
             .terms
             .keys()
             .flat_map(|m| m.iter())
@@ -254,7 +254,7 @@ impl Poly {
             let state_part: Vec<(usize, i64)> = m
                 .iter()
                 .filter_map(|(a, k)| match a {
-                    Atom::State(i) => Some((*i, *k)),
+                    Atom::State(i) => Some((i.index(), *k)),
                     _ => None,
                 })
                 .collect();
@@ -547,18 +547,18 @@ impl<'a> Names<'a> {
         }
     }
 
-    fn param(&self, i: usize) -> String {
+    fn param(&self, i: ParamId) -> String {
         self.model
             .params
-            .get(i)
+            .by_id(i)
             .map(|p| p.name.clone())
             .unwrap_or_else(|| format!("p{i}"))
     }
 
-    fn state(&self, i: usize) -> String {
+    fn state(&self, i: FactorId) -> String {
         self.model
             .factors
-            .get(i)
+            .by_id(i)
             .map(|s| s.name.clone())
             .unwrap_or_else(|| format!("x{i}"))
     }
@@ -756,10 +756,10 @@ mod tests {
     use super::*;
 
     fn p(i: usize) -> Box<Expr> {
-        Box::new(Expr::Param(i))
+        Box::new(Expr::Param(ParamId::new(i)))
     }
     fn x(i: usize) -> Box<Expr> {
-        Box::new(Expr::Factor(i))
+        Box::new(Expr::Factor(FactorId::new(i)))
     }
 
     #[test]
@@ -769,15 +769,15 @@ mod tests {
         let poly = to_poly(&drift).expect("polynomial");
         assert_eq!(poly.state_degree(), 1);
         let slope = poly.coefficient_of(0, 1);
-        assert_eq!(slope, Poly::atom(Atom::Param(0)).neg());
+        assert_eq!(slope, Poly::atom(Atom::Param(ParamId::new(0))).neg());
         let intercept = poly.coefficient_of(0, 0);
         assert_eq!(
             intercept,
-            Poly::atom(Atom::Param(0)).mul(&Poly::atom(Atom::Param(1)))
+            Poly::atom(Atom::Param(ParamId::new(0))).mul(&Poly::atom(Atom::Param(ParamId::new(1))))
         );
         // level = intercept / (−slope) cancels kappa exactly.
         let level = intercept.divide_by_term(&slope.neg()).expect("divisible");
-        assert_eq!(level, Poly::atom(Atom::Param(1)));
+        assert_eq!(level, Poly::atom(Atom::Param(ParamId::new(1))));
     }
 
     #[test]
@@ -800,10 +800,7 @@ mod tests {
     #[test]
     fn square_root_forms_are_recognised() {
         // vol * sqrt(r), sqrt(vol^2 * r) and sqrt(r) * vol all square to vol²·r.
-        let a = Expr::Mul(
-            p(0),
-            Box::new(Expr::Call(Function::Sqrt, vec![Expr::Factor(0)])),
-        );
+        let a = Expr::Mul(p(0), Box::new(Expr::Call(Function::Sqrt, vec![*x(0)])));
         let b = Expr::Call(
             Function::Sqrt,
             vec![Expr::Mul(
@@ -811,13 +808,10 @@ mod tests {
                 x(0),
             )],
         );
-        let c = Expr::Mul(
-            Box::new(Expr::Call(Function::Sqrt, vec![Expr::Factor(0)])),
-            p(0),
-        );
-        let expected = Poly::atom(Atom::Param(0))
-            .mul(&Poly::atom(Atom::Param(0)))
-            .mul(&Poly::atom(Atom::State(0)));
+        let c = Expr::Mul(Box::new(Expr::Call(Function::Sqrt, vec![*x(0)])), p(0));
+        let expected = Poly::atom(Atom::Param(ParamId::new(0)))
+            .mul(&Poly::atom(Atom::Param(ParamId::new(0))))
+            .mul(&Poly::atom(Atom::State(FactorId::new(0))));
         for e in [a, b, c] {
             let root = to_root_form(&e).expect("root form");
             assert!(!root.is_polynomial());
@@ -827,7 +821,7 @@ mod tests {
 
     #[test]
     fn state_inside_a_function_is_not_polynomial() {
-        let e = Expr::Call(Function::Exp, vec![Expr::Factor(0)]);
+        let e = Expr::Call(Function::Exp, vec![*x(0)]);
         let err = to_poly(&e).expect_err("exp of a factor");
         assert_eq!(err.piece, e);
         // but a function of parameters and t is an opaque coefficient
@@ -844,8 +838,8 @@ mod tests {
     fn expression() -> impl Strategy<Value = Expr> {
         let leaf = prop_oneof![
             (-3.0..3.0f64).prop_map(Expr::Const),
-            (0..2usize).prop_map(Expr::Param),
-            (0..2usize).prop_map(Expr::Factor),
+            (0..2usize).prop_map(|i| *p(i)),
+            (0..2usize).prop_map(|i| *x(i)),
             Just(Expr::Time),
         ];
         leaf.prop_recursive(4, 24, 2, |inner| {
@@ -859,13 +853,8 @@ mod tests {
                     .prop_map(|(a, b)| Expr::Mul(Box::new(a), Box::new(b))),
                 (inner.clone(), 0..3i32)
                     .prop_map(|(a, k)| Expr::Pow(Box::new(a), Box::new(Expr::Const(f64::from(k))))),
-                inner
-                    .clone()
-                    .prop_map(|a| Expr::Div(Box::new(a), Box::new(Expr::Param(1)))),
-                inner.prop_map(|a| Expr::Call(
-                    Function::Exp,
-                    vec![Expr::Mul(Box::new(Expr::Param(0)), Box::new(a))]
-                )),
+                inner.clone().prop_map(|a| Expr::Div(Box::new(a), p(1))),
+                inner.prop_map(|a| Expr::Call(Function::Exp, vec![Expr::Mul(p(0), Box::new(a))])),
             ]
         })
     }

@@ -213,7 +213,7 @@ mod tests {
         let exprs = [
             Expr::Call(
                 Function::Step,
-                vec![Expr::Time, c(1.0), Expr::Param(0), c(2.0)],
+                vec![Expr::Time, c(1.0), Expr::param(0), c(2.0)],
             ),
             Expr::Call(
                 Function::Ramp,
@@ -235,7 +235,7 @@ mod tests {
         // Only the breaks inside the interval, in the direction of integration.
         assert_eq!(breaks.pieces(1.0, 0.3), vec![1.0, 0.5, 0.3]);
         // A kink of a factor is no break of time.
-        let of_factor = Expr::Call(Function::Max, vec![Expr::Factor(0), Expr::Time]);
+        let of_factor = Expr::Call(Function::Max, vec![Expr::factor(0), Expr::Time]);
         assert!(TimeBreaks::of_exprs([&of_factor], &[]).is_empty());
     }
 }

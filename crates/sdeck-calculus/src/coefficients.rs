@@ -8,7 +8,7 @@
 
 use crate::algebra::Poly;
 use crate::linear_system::AffineGaussian;
-use crate::shape::{classify_state, correlation, OneState};
+use crate::shape::{classify_state, correlation_at, OneState};
 use crate::{analyse, Family};
 use nalgebra::{DMatrix, DVector};
 use sdeck_semantics::Model;
@@ -105,7 +105,7 @@ impl LinearSystemForm {
         });
         let b = DVector::from_fn(n, |r, _| value(rows.get(r).map(|(_, k)| k)));
         let loadings = DMatrix::from_fn(n, m, |r, k| value(loads.get(r).and_then(|l| l.get(k))));
-        let corr = DMatrix::from_fn(m, m, |k, l| correlation(&self.corr, k, l));
+        let corr = DMatrix::from_fn(m, m, |k, l| correlation_at(&self.corr, k, l));
         AffineGaussian::new(a, b, loadings, corr).ok()
     }
 }

@@ -192,7 +192,7 @@ mod tests {
             dr = kappa * (theta - r) dt + sigma dW\n";
         let model = sdeck_semantics::analyze(text, "v").model;
         // The rate is per year and the clock is the month: per clock unit it is r/12.
-        let rate = Expr::Div(Box::new(Expr::Factor(0)), Box::new(Expr::Const(12.0)));
+        let rate = Expr::Div(Box::new(Expr::factor(0)), Box::new(Expr::Const(12.0)));
         let months = [1.0, 12.0, 120.0, 360.0];
         let c = curve(&model, &rate, &months).expect("a curve");
         assert_eq!(c.method, TransformMethod::ClosedForm);
@@ -228,7 +228,7 @@ mod tests {
             factor y = 2% >= 0\nfactor z = 1% >= 0\n\
             dy = k * (m - y) dt + w * sqrt(y) dW2\ndz = c * (y - z) dt + w * sqrt(z) dW3\n";
         let model = sdeck_semantics::analyze(text, "s").model;
-        let rate = Expr::Add(Box::new(Expr::Factor(0)), Box::new(Expr::Factor(1)));
+        let rate = Expr::Add(Box::new(Expr::factor(0)), Box::new(Expr::factor(1)));
         let maturities = [7.0, 0.5, 30.0];
         let c = curve(&model, &rate, &maturities).expect("a curve");
         assert_eq!(c.method, TransformMethod::Riccati);
@@ -264,15 +264,15 @@ mod tests {
         let text = "model w\nclock year\nparam s = 1% [1/sqrt(year)]\nshock W\nfactor r = 2%\n\
             dr = s dW\n";
         let model = sdeck_semantics::analyze(text, "w").model;
-        let c = curve(&model, &Expr::Factor(0), &[1.0, 10.0]).expect("a curve");
+        let c = curve(&model, &Expr::factor(0), &[1.0, 10.0]).expect("a curve");
         // ln P = −r₀T + s²T³/6 for a driftless Gaussian rate (common practice, no source).
         let expected = -0.02 * 10.0 + 1e-4 * 1000.0 / 6.0;
         assert!((c.points[1].price.ln() - expected).abs() < 1e-12);
         assert_eq!(c.long_yield, None);
-        assert!(curve(&model, &Expr::Factor(0), &[0.0]).is_err());
+        assert!(curve(&model, &Expr::factor(0), &[0.0]).is_err());
         assert!(curve(
             &model,
-            &Expr::Mul(Box::new(Expr::Factor(0)), Box::new(Expr::Factor(0))),
+            &Expr::Mul(Box::new(Expr::factor(0)), Box::new(Expr::factor(0))),
             &[1.0]
         )
         .is_err());

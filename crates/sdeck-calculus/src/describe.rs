@@ -3,7 +3,7 @@
 
 use crate::algebra::{show_poly, Atom, Names, Poly};
 use crate::{Derivation, Family};
-use sdeck_semantics::Model;
+use sdeck_semantics::{FactorId, Model, ParamId};
 
 /// The speed, level and squared volatility of a square-root state as the model writes
 /// them, with the parameter behind each when it is a single parameter.
@@ -16,13 +16,13 @@ pub struct SquareRootTerms {
     /// e.g. `vol²`.
     pub vol_squared: String,
     /// The parameter that is the speed, when the speed is exactly one parameter.
-    pub speed_param: Option<usize>,
+    pub speed_param: Option<ParamId>,
     /// The parameter whose square is the squared volatility, when it is one parameter.
-    pub vol_param: Option<usize>,
+    pub vol_param: Option<ParamId>,
 }
 
 /// The single parameter `p` when `poly` is exactly `p^power`.
-fn single_param(poly: &Poly, power: i64) -> Option<usize> {
+fn single_param(poly: &Poly, power: i64) -> Option<ParamId> {
     let (monomial, coefficient) = poly.single_term()?;
     match (monomial.as_slice(), coefficient) {
         ([(Atom::Param(p), k)], c) if *k == power && c == 1.0 => Some(*p),
@@ -34,10 +34,10 @@ fn single_param(poly: &Poly, power: i64) -> Option<usize> {
 pub fn square_root_terms(
     model: &Model,
     derivation: &Derivation,
-    state: usize,
+    state: FactorId,
 ) -> Option<SquareRootTerms> {
     let analysis = derivation.analysis();
-    let (os, family) = analysis.one_state(state)?;
+    let (os, family) = analysis.one_state(state.index())?;
     if family != Family::SquareRoot {
         return None;
     }
@@ -63,8 +63,8 @@ pub fn square_root_terms(
 
 /// The coefficient of the state in its own drift, printed (`−kappa`), for a state with a
 /// one-state family.
-pub fn drift_slope_text(model: &Model, derivation: &Derivation, state: usize) -> Option<String> {
+pub fn drift_slope_text(model: &Model, derivation: &Derivation, state: FactorId) -> Option<String> {
     let analysis = derivation.analysis();
-    let (os, _) = analysis.one_state(state)?;
+    let (os, _) = analysis.one_state(state.index())?;
     Some(show_poly(&os.b, &Names::new(model)))
 }

@@ -8,7 +8,7 @@
 use crate::affine::{AffineSet, Rate, TransformError};
 use crate::{Derivation, Family, Formulas, Method, Moments, StateMoments};
 use num_complex::Complex64;
-use sdeck_semantics::Model;
+use sdeck_semantics::{FactorId, Model};
 
 /// E[S_t^u] for the log factor `state`, or why it has no finite value.
 fn power_moment(set: &AffineSet, state: usize, u: f64, t: f64) -> Result<f64, TransformError> {
@@ -182,18 +182,17 @@ pub fn variance_explosions(
     model: &Model,
     derivation: &Derivation,
     limit: f64,
-) -> Vec<(usize, f64)> {
+) -> Vec<(FactorId, f64)> {
     let Ok(set) = AffineSet::from_model(model) else {
         return Vec::new();
     };
     derivation
         .states
-        .iter()
-        .enumerate()
+        .iter_ids()
         .filter(|(_, law)| law.family == Family::ExponentialAffine)
         .filter_map(|(i, _)| {
             let mut u = vec![0.0; set.dimension()];
-            *u.get_mut(i)? = 2.0;
+            *u.get_mut(i.index())? = 2.0;
             set.explosion_time(&u, limit).map(|t| (i, t))
         })
         .filter(|(_, t)| *t <= limit)

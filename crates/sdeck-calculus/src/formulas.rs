@@ -1,9 +1,9 @@
 //! Readable formulas (Unicode math with the model's own names) for `sdeck moments`.
 
 use crate::algebra::{show_poly, Names, Poly};
-use crate::shape::{correlation, noise_name, OneState};
+use crate::shape::{correlation, correlation_at, noise_name, OneState};
 use crate::{Analysis, Family, Formulas};
-use sdeck_semantics::Model;
+use sdeck_semantics::{Model, ShockId};
 
 /// The letters a formula uses besides the model's names: the integration variable, the
 /// moment functions and the matrices of a linear system. Each is the first of its
@@ -173,7 +173,7 @@ impl<'a> Writer<'a> {
     /// Σ_k c_k·(integrand) dW_k, one summand per noise term.
     fn noise_sum(
         &self,
-        terms: &[(usize, Poly, Poly)],
+        terms: &[(ShockId, Poly, Poly)],
         integrand: &dyn Fn(&Poly) -> String,
     ) -> String {
         terms
@@ -415,7 +415,7 @@ pub(crate) fn one_state(model: &Model, os: &OneState, family: Family) -> Formula
 /// The Gaussian closed forms of dX = (a + bX) dt + Σ c dW with constant coefficients and
 /// b ≠ 0 (Vasicek 1977, eqs. 23–25, written with b = −κ so that they hold for either
 /// sign); the stationary law is the caller's to add.
-fn gaussian_affine(w: &Writer, os: &OneState, terms: &[(usize, Poly, Poly)]) -> Formulas {
+fn gaussian_affine(w: &Writer, os: &OneState, terms: &[(ShockId, Poly, Poly)]) -> Formulas {
     let s = w.sym.s.as_str();
     let x_t = w.at("t");
     let x_s = w.at(s);
@@ -503,7 +503,7 @@ fn linear_formulas(
     w: &Writer,
     os: &OneState,
     family: Family,
-    terms: &[(usize, Poly, Poly)],
+    terms: &[(ShockId, Poly, Poly)],
 ) -> Formulas {
     let (s, s_sub, u) = (w.sym.s.as_str(), w.sym.s_sub.as_str(), w.sym.u.as_str());
     let (m, v) = (w.sym.m.as_str(), w.sym.v.as_str());
@@ -731,7 +731,7 @@ fn system_numbers(model: &Model, analysis: &Analysis, sym: &Symbols) -> Option<S
     let corr = &analysis.corr;
     let r = matrix(
         (0..k)
-            .map(|i| (0..k).map(|j| correlation(corr, i, j)).collect())
+            .map(|i| (0..k).map(|j| correlation_at(corr, i, j)).collect())
             .collect(),
     );
     Some(format!(

@@ -11,7 +11,7 @@ use crate::affine::{AffineSet, Rate, TransformError};
 use crate::one_state::{mean_variance, square_root_transition};
 use crate::{noncentral, ode, Derivation, Family};
 use num_complex::Complex64;
-use sdeck_semantics::Model;
+use sdeck_semantics::{FactorId, Model};
 use statrs::distribution::{ContinuousCDF, Normal};
 use std::sync::atomic::{AtomicUsize, Ordering};
 use std::sync::Arc;
@@ -92,14 +92,15 @@ fn standard() -> Option<Normal> {
 }
 
 /// The law of factor `state` at time `t` (clock units), when it is known.
-pub fn law_of(model: &Model, derivation: &Derivation, state: usize, t: f64) -> Option<Law> {
+pub fn law_of(model: &Model, derivation: &Derivation, id: FactorId, t: f64) -> Option<Law> {
     if !(t.is_finite() && t >= 0.0) {
         return None;
     }
-    let x0 = model.factors.get(state)?.initial;
+    let state = id.index();
+    let x0 = model.factors.by_id(id)?.initial;
     if derivation
         .states
-        .get(state)
+        .by_id(id)
         .is_some_and(|l| l.outside_domain.is_some())
     {
         return None;
@@ -152,7 +153,7 @@ pub fn law_of(model: &Model, derivation: &Derivation, state: usize, t: f64) -> O
         }
     }
     if derivation.system_family == Family::LinearSystem {
-        let moments = crate::state_moments(model, derivation, state, t);
+        let moments = crate::state_moments(model, derivation, id, t);
         return Some(normal(moments.mean?, moments.variance?));
     }
     let set = AffineSet::from_model(model).ok()?;

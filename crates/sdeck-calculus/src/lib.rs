@@ -50,7 +50,7 @@ mod shape;
 pub mod symmetric;
 mod system;
 
-use sdeck_semantics::{Expectation, Model};
+use sdeck_semantics::{Expectation, FactorId, IdVec, Model, ShockId};
 use sdeck_syntax::ast::{Figure, Side};
 use shape::{classify_state, classify_system, Classified, OneState, SystemShape};
 use std::sync::{Arc, OnceLock};
@@ -139,9 +139,9 @@ pub struct LinearCoefficients {
     pub a: f64,
     pub b: f64,
     /// `(noise, c_k)`.
-    pub c: Vec<(usize, f64)>,
+    pub c: Vec<(ShockId, f64)>,
     /// `(noise, d_k)`.
-    pub d: Vec<(usize, f64)>,
+    pub d: Vec<(ShockId, f64)>,
 }
 
 /// dX = speed (level − X) dt + vol sqrt(X) dW, in clock units.
@@ -150,7 +150,7 @@ pub struct SquareRootParams {
     pub speed: f64,
     pub level: f64,
     pub vol: f64,
-    pub noise: usize,
+    pub noise: ShockId,
 }
 
 /// The stationary law of a state.
@@ -192,7 +192,7 @@ pub struct StateLaw {
     /// When the family is square-root.
     pub square_root: Option<SquareRootParams>,
     /// States that appear in this state's drift or diffusion (besides itself).
-    pub depends_on: Vec<usize>,
+    pub depends_on: Vec<FactorId>,
     /// Why the family's figures do not apply to this factor, when its start or
     /// parameters lie outside the family's domain (a square-root factor starting below
     /// zero): its mean, variance and law are then unknown, never a number.
@@ -222,7 +222,7 @@ impl StateLaw {
 #[derive(Clone, Debug, PartialEq)]
 pub struct Derivation {
     /// Declaration order.
-    pub states: Vec<StateLaw>,
+    pub states: IdVec<FactorId, StateLaw>,
     /// Family of the whole system (LinearSystem / Polynomial when states are coupled).
     pub system_family: Family,
     pub system_reason: String,
@@ -244,8 +244,8 @@ pub struct Derivation {
 /// of i mentions j"), with what is known of their joint drift.
 #[derive(Clone, Debug, PartialEq)]
 pub struct CoupledBlock {
-    /// State indices, ascending.
-    pub states: Vec<usize>,
+    /// The states, ascending.
+    pub states: Vec<FactorId>,
     /// The block's drift matrix (rows and columns in the order of `states`), when every
     /// drift in the block is affine with constant coefficients and the block has at most
     /// [`MAX_BLOCK_EIGEN`] states.
@@ -386,7 +386,7 @@ pub fn derive(model: &Model) -> Derivation {
     exponential_affine::classify(model, &mut derivation);
     partial::explain(model, &mut derivation);
     for (i, law) in derivation.states.iter_mut().enumerate() {
-        law.outside_domain = outside_domain(model, law, i);
+        law.outside_domain = outside_domain(model, law, FactorId::new(i));
         if law.outside_domain.is_some() {
             law.stationary = None;
             law.half_life = None;
@@ -399,12 +399,12 @@ pub fn derive(model: &Model) -> Derivation {
 /// dX = κ(θ − X) dt + σ√X dW is defined for X ≥ 0 with κθ ≥ 0: its law is a scaled
 /// noncentral chi-square with 4κθ/σ² degrees of freedom (Cox, Ingersoll & Ross 1985,
 /// eq. 18), which needs a start at or above zero and degrees of freedom at or above zero.
-fn outside_domain(model: &Model, law: &StateLaw, state: usize) -> Option<String> {
+fn outside_domain(model: &Model, law: &StateLaw, state: FactorId) -> Option<String> {
     if law.family != Family::SquareRoot {
         return None;
     }
     let sr = law.square_root.as_ref()?;
-    let factor = model.factors.get(state)?;
+    let factor = model.factors.by_id(state)?;
     let shown = |x: f64| sdeck_units::number::plain(x);
     if factor.initial < 0.0 {
         return Some(format!(
@@ -427,21 +427,21 @@ fn outside_domain(model: &Model, law: &StateLaw, state: usize) -> Option<String>
 impl Derivation {
     /// Whether the figures of `state` are unknown because it lies outside its family's
     /// domain.
-    fn outside_domain(&self, state: usize) -> bool {
+    fn outside_domain(&self, state: FactorId) -> bool {
         self.states
-            .get(state)
+            .by_id(state)
             .is_some_and(|law| law.outside_domain.is_some())
     }
 }
 
 /// Readable math (Unicode, the model's own names) for one state; empty when the state
 /// does not exist or nothing is known in closed form.
-pub fn formulas(model: &Model, derivation: &Derivation, state: usize) -> Formulas {
+pub fn formulas(model: &Model, derivation: &Derivation, state: FactorId) -> Formulas {
     let analysis = derivation.analysis();
-    let Some(law) = derivation.states.get(state) else {
+    let Some(law) = derivation.states.by_id(state) else {
         return Formulas::default();
     };
-    if let Some((os, family)) = analysis.one_state(state) {
+    if let Some((os, family)) = analysis.one_state(state.index()) {
         let mut out = formulas::one_state(model, os, family);
         if law.stationary.is_none() {
             out.stationary = None;
@@ -449,9 +449,9 @@ pub fn formulas(model: &Model, derivation: &Derivation, state: usize) -> Formula
         return out;
     }
     if law.family == Family::ExponentialAffine {
-        return exponential_affine::formulas(model, state);
+        return exponential_affine::formulas(model, state.index());
     }
-    formulas::coupled(model, analysis, state, law.family)
+    formulas::coupled(model, analysis, state.index(), law.family)
 }
 
 impl Derivation {
@@ -463,7 +463,12 @@ impl Derivation {
 /// Mean and variance of one state at time `t` (clock units): a closed form for a
 /// decoupled state (a few operations, whatever the size of the model), the engine of
 /// the system for a coupled one.
-pub fn state_moments(model: &Model, derivation: &Derivation, state: usize, t: f64) -> StateMoments {
+pub fn state_moments(
+    model: &Model,
+    derivation: &Derivation,
+    state: FactorId,
+    t: f64,
+) -> StateMoments {
     if derivation.outside_domain(state) {
         return StateMoments {
             mean: None,
@@ -473,12 +478,12 @@ pub fn state_moments(model: &Model, derivation: &Derivation, state: usize, t: f6
     }
     let exponential = derivation
         .states
-        .get(state)
+        .by_id(state)
         .is_some_and(|law| law.family == Family::ExponentialAffine);
     if exponential {
-        return exponential_affine::state_moments(model, state, t);
+        return exponential_affine::state_moments(model, state.index(), t);
     }
-    system::state_moments(model, derivation.analysis(), state, t)
+    system::state_moments(model, derivation.analysis(), state.index(), t)
 }
 
 /// The figures of one state at one time, as [`moments_at`] gives them for that state.
@@ -495,13 +500,18 @@ pub struct StateFigures {
 
 /// What [`moments_at`] says of state `state` at time `t`, at the cost of that state alone
 /// (a closed form for a decoupled state, whatever the size of the model).
-pub fn state_figures(model: &Model, derivation: &Derivation, state: usize, t: f64) -> StateFigures {
+pub fn state_figures(
+    model: &Model,
+    derivation: &Derivation,
+    state: FactorId,
+    t: f64,
+) -> StateFigures {
     let exponential = derivation
         .states
-        .get(state)
+        .by_id(state)
         .is_some_and(|law| law.family == Family::ExponentialAffine);
     let (moments, variance_infinite_from) = if exponential {
-        let (moments, infinite_from) = exponential_affine::state_figures(model, state, t);
+        let (moments, infinite_from) = exponential_affine::state_figures(model, state.index(), t);
         // Outside its domain the moments are unknown; the explosion time stays, as in
         // `moments_at`.
         match derivation.outside_domain(state) {
@@ -519,7 +529,7 @@ pub fn state_figures(model: &Model, derivation: &Derivation, state: usize, t: f6
     };
     // A general factor with a drift affine in itself has its exact mean alone.
     if figures.mean.is_none() && !derivation.outside_domain(state) {
-        if let Some(mean) = partial::state_mean(model, derivation, state, t) {
+        if let Some(mean) = partial::state_mean(model, derivation, state.index(), t) {
             figures.mean = Some(mean);
             figures.exact = true;
         }
@@ -532,14 +542,14 @@ pub fn state_figures(model: &Model, derivation: &Derivation, state: usize, t: f6
 pub fn covariance(
     model: &Model,
     derivation: &Derivation,
-    i: usize,
-    j: usize,
+    i: FactorId,
+    j: FactorId,
     t: f64,
 ) -> Option<f64> {
     if derivation.outside_domain(i) || derivation.outside_domain(j) {
         return None;
     }
-    system::covariance(model, derivation.analysis(), i, j, t)
+    system::covariance(model, derivation.analysis(), i.index(), j.index(), t)
 }
 
 /// Means, variances and covariances of every state at time `t` (clock units). The full
@@ -550,7 +560,12 @@ pub fn moments_at(model: &Model, derivation: &Derivation, t: f64) -> Moments {
     exponential_affine::fill_moments(model, derivation, &mut moments);
     partial::fill_means(model, derivation, &mut moments);
     // Figures of a factor outside its family's domain are unknown, not numbers.
-    for i in (0..derivation.states.len()).filter(|i| derivation.outside_domain(*i)) {
+    for id in derivation
+        .states
+        .ids()
+        .filter(|i| derivation.outside_domain(*i))
+    {
+        let i = id.index();
         for slot in [&mut moments.mean, &mut moments.variance] {
             if let Some(x) = slot.get_mut(i) {
                 *x = None;
@@ -577,14 +592,14 @@ pub fn moments_at(model: &Model, derivation: &Derivation, t: f64) -> Moments {
 pub fn autocovariance(
     model: &Model,
     derivation: &Derivation,
-    state: usize,
+    state: FactorId,
     s: f64,
     t: f64,
 ) -> Option<f64> {
     if derivation.outside_domain(state) {
         return None;
     }
-    system::autocovariance(model, derivation, state, s, t)
+    system::autocovariance(model, derivation, state.index(), s, t)
 }
 
 /// Quantile of the law of one state at t where the law is known (Gaussian, lognormal,
@@ -592,14 +607,14 @@ pub fn autocovariance(
 pub fn quantile(
     model: &Model,
     derivation: &Derivation,
-    state: usize,
+    state: FactorId,
     t: f64,
     p: f64,
 ) -> Option<f64> {
     if derivation.outside_domain(state) {
         return None;
     }
-    system::quantile(model, derivation.analysis(), state, t, p)
+    system::quantile(model, derivation.analysis(), state.index(), t, p)
 }
 
 /// The value of a figure an `expect` line can pin (`mean`, `sd`, `halflife`,
@@ -608,11 +623,11 @@ pub fn quantile(
 pub fn figure_value(
     model: &Model,
     derivation: &Derivation,
-    state: usize,
+    state: FactorId,
     figure: Figure,
     at: f64,
 ) -> Option<f64> {
-    let law = derivation.states.get(state)?;
+    let law = derivation.states.by_id(state)?;
     let stationary = law.stationary.as_ref();
     match figure {
         Figure::Mean | Figure::Variance | Figure::Sd => {

@@ -6,12 +6,12 @@ use crate::algebra::{
 };
 use crate::system::MAX_SYSTEM_STATES;
 use crate::Family;
-use sdeck_semantics::{Correlations, Expr, Model};
+use sdeck_semantics::{Correlations, Expr, FactorId, Model, ShockId};
 
 /// One diffusion term, normalised.
 #[derive(Clone, Debug)]
 pub(crate) struct NoiseTerm {
-    pub noise: usize,
+    pub noise: ShockId,
     pub form: RootForm,
     pub expr: Expr,
 }
@@ -33,7 +33,7 @@ pub(crate) enum Unresolved {
 }
 
 /// Every state mentioned by the state's equation, itself excluded.
-pub(crate) fn mentioned_states(model: &Model, index: usize) -> Vec<usize> {
+pub(crate) fn mentioned_states(model: &Model, index: usize) -> Vec<FactorId> {
     let mut out = Vec::new();
     if let Some(eq) = model.factors.get(index).and_then(|s| s.equation.as_ref()) {
         eq.drift.factors(&mut out);
@@ -43,7 +43,7 @@ pub(crate) fn mentioned_states(model: &Model, index: usize) -> Vec<usize> {
     }
     out.sort_unstable();
     out.dedup();
-    out.retain(|s| *s != index);
+    out.retain(|s| s.index() != index);
     out
 }
 
@@ -61,7 +61,7 @@ pub(crate) fn shape_of(model: &Model, index: usize) -> Result<Shape, Unresolved>
         || equation
             .diffusion
             .iter()
-            .any(|d| d.noise >= model.shocks.len())
+            .any(|d| d.noise.index() >= model.shocks.len())
     {
         return Err(Unresolved::DidNotResolve);
     }
@@ -87,17 +87,23 @@ pub(crate) fn shape_of(model: &Model, index: usize) -> Result<Shape, Unresolved>
     Ok(Shape { drift, noises })
 }
 
-pub(crate) fn noise_name(model: &Model, noise: usize) -> String {
+pub(crate) fn noise_name(model: &Model, noise: ShockId) -> String {
     model
         .shocks
-        .get(noise)
+        .by_id(noise)
         .map(|n| n.name.clone())
         .unwrap_or_else(|| format!("shock {noise}"))
 }
 
 /// Correlation of two noises, 1 on the diagonal, 0 when unknown.
-pub(crate) fn correlation(corr: &Correlations, k: usize, l: usize) -> f64 {
+pub(crate) fn correlation(corr: &Correlations, k: ShockId, l: ShockId) -> f64 {
     corr.get(k, l)
+}
+
+/// The same, for the shocks at positions `k` and `l` (rows and columns of a matrix in
+/// declaration order).
+pub(crate) fn correlation_at(corr: &Correlations, k: usize, l: usize) -> f64 {
+    corr.get(ShockId::new(k), ShockId::new(l))
 }
 
 /// Σ_kl ρ_kl g_k h_l, the instantaneous covariance rate of two diffusions, when it is a
@@ -132,7 +138,7 @@ pub(crate) struct OneState {
     pub beta: Poly,
     pub gamma: Poly,
     /// `(noise, c_k, d_k)` when every diffusion term is affine: c_k + d_k X.
-    pub affine_terms: Option<Vec<(usize, Poly, Poly)>>,
+    pub affine_terms: Option<Vec<(ShockId, Poly, Poly)>>,
     pub time_dependent: bool,
 }
 
@@ -144,15 +150,19 @@ pub(crate) struct Classified {
     /// Present when the state is decoupled and its equation is of the one-state kind
     /// (every family but `general`).
     pub one_state: Option<OneState>,
-    pub depends_on: Vec<usize>,
+    pub depends_on: Vec<FactorId>,
+    /// Whether the equation resolved and mentions other states, so that the system's
+    /// classification decides the family.
+    pub coupled: bool,
 }
 
-pub(crate) fn general(reason: String, depends_on: Vec<usize>) -> Classified {
+pub(crate) fn general(reason: String, depends_on: Vec<FactorId>) -> Classified {
     Classified {
         family: Family::General,
         reason,
         one_state: None,
         depends_on,
+        coupled: false,
     }
 }
 
@@ -202,13 +212,14 @@ pub(crate) fn classify_state(
         // Coupled: the system classification decides; here only say why.
         let others: Vec<String> = depends_on
             .iter()
-            .filter_map(|i| model.factors.get(*i).map(|s| s.name.clone()))
+            .filter_map(|i| model.factors.by_id(*i).map(|s| s.name.clone()))
             .collect();
         return Classified {
             family: Family::General,
             reason: format!("the equation of {name} mentions {}", others.join(", ")),
             one_state: None,
             depends_on,
+            coupled: true,
         };
     }
     let drift_degree = shape.drift.state_degree();
@@ -295,7 +306,11 @@ pub(crate) fn classify_state(
         let diffusion_text = terms
             .iter()
             .map(|(noise, c, d)| {
-                let g = c.add(&d.mul(&Poly::atom(crate::algebra::Atom::State(index))));
+                let g = c.add(
+                    &d.mul(&Poly::atom(crate::algebra::Atom::State(FactorId::new(
+                        index,
+                    )))),
+                );
                 format!("{} on {}", show_poly(&g, names), noise_name(model, *noise))
             })
             .collect::<Vec<_>>()
@@ -386,6 +401,7 @@ pub(crate) fn classify_state(
         reason,
         one_state: Some(one_state),
         depends_on,
+        coupled: false,
     }
 }
 
@@ -628,7 +644,7 @@ fn loadings(shapes: &[Shape], noises: usize) -> Option<Vec<Vec<Poly>>> {
             if !term.form.is_polynomial() || term.form.scale.mentions_states() {
                 return None;
             }
-            if let Some(slot) = row.get_mut(term.noise) {
+            if let Some(slot) = row.get_mut(term.noise.index()) {
                 *slot = slot.add(&term.form.scale);
             }
         }

@@ -6,13 +6,13 @@ use crate::breaks::TimeBreaks;
 use crate::linear_system::{eigenvalues, matrix_exponential, AffineGaussian};
 use crate::one_state::{self, phi};
 use crate::polynomial::PolynomialSystem;
-use crate::shape::{correlation, diffusion_product, shape_of, OneState};
+use crate::shape::{correlation, correlation_at, diffusion_product, shape_of, OneState};
 use crate::{
     formulas, ode, Analysis, CoupledBlock, Derivation, Family, LinearCoefficients, Method, Moments,
     Prepared, SquareRootParams, StateLaw, StateMoments, Stationary, MAX_BLOCK_EIGEN,
 };
 use nalgebra::{DMatrix, DVector};
-use sdeck_semantics::Model;
+use sdeck_semantics::{FactorId, Model, ShockId};
 use statrs::distribution::{ContinuousCDF, Normal};
 use std::sync::Arc;
 
@@ -66,8 +66,7 @@ pub(crate) fn derive(model: &Model, prepared: Arc<Analysis>) -> Derivation {
             states.push(one_state_law(model, analysis, i, os, family));
             continue;
         }
-        let coupled =
-            !classified.depends_on.is_empty() && classified.reason.starts_with("the equation of");
+        let coupled = classified.coupled;
         let (family, reason, method) = if coupled && n > MAX_SYSTEM_STATES {
             (
                 Family::General,
@@ -154,7 +153,7 @@ pub(crate) fn derive(model: &Model, prepared: Arc<Analysis>) -> Derivation {
         Some(eigenvalues(&matrix))
     });
     Derivation {
-        states,
+        states: states.into(),
         system_family: system.family,
         system_reason: system.reason.clone(),
         drift_matrix,
@@ -185,7 +184,7 @@ fn coupled_blocks(model: &Model, analysis: &Analysis) -> Vec<CoupledBlock> {
         i
     }
     for (i, classified) in analysis.classified.iter().enumerate() {
-        for &j in &classified.depends_on {
+        for j in classified.depends_on.iter().map(|j| j.index()) {
             if j >= n {
                 continue;
             }
@@ -220,7 +219,7 @@ fn coupled_blocks(model: &Model, analysis: &Analysis) -> Vec<CoupledBlock> {
                 (size > 0 && matrix.iter().all(|v| v.is_finite())).then(|| eigenvalues(&matrix))
             });
             CoupledBlock {
-                states,
+                states: states.into_iter().map(FactorId::new).collect(),
                 drift_matrix,
                 drift_eigenvalues,
             }
@@ -336,7 +335,7 @@ fn one_state_law(
             .and_then(|s| s.equation.as_ref())
             .and_then(|e| e.diffusion.first())
             .map(|d| d.noise)
-            .unwrap_or(0);
+            .unwrap_or(ShockId::new(0));
         SquareRootParams {
             speed,
             level: values.a / speed,
@@ -380,7 +379,7 @@ pub(crate) fn linear_engine(model: &Model, analysis: &Analysis) -> Option<Affine
     }
     let (a, b, loadings) = linear_matrices(model, analysis, 0.0)?;
     let m = model.shocks.len();
-    let corr = DMatrix::from_fn(m, m, |k, l| correlation(&analysis.corr, k, l));
+    let corr = DMatrix::from_fn(m, m, |k, l| correlation_at(&analysis.corr, k, l));
     AffineGaussian::new(a, b, loadings, corr).ok()
 }
 
@@ -464,7 +463,7 @@ fn integrate_linear_system(
     t: f64,
 ) -> Option<(DVector<f64>, DMatrix<f64>)> {
     let m = model.shocks.len();
-    let corr = DMatrix::from_fn(m, m, |k, l| correlation(&analysis.corr, k, l));
+    let corr = DMatrix::from_fn(m, m, |k, l| correlation_at(&analysis.corr, k, l));
     integrate_mean_covariance(model, t, |s, _mean, _cov| {
         let (a, b, loadings) = linear_matrices(model, analysis, s)?;
         let noise = &loadings * &corr * loadings.transpose();
@@ -773,7 +772,7 @@ fn pair_covariance(model: &Model, analysis: &Analysis, i: usize, j: usize, t: f6
     let (second, _) = analysis.one_state(j)?;
     // Two decoupled states driven by uncorrelated noises are independent, whatever
     // their families.
-    let noises = |k: usize| -> Option<Vec<usize>> {
+    let noises = |k: usize| -> Option<Vec<ShockId>> {
         let equation = model.factors.get(k)?.equation.as_ref()?;
         Some(equation.diffusion.iter().map(|d| d.noise).collect())
     };

@@ -2,6 +2,7 @@
 //! checked against the published formulas and against scipy.
 
 use sdeck_calculus::{autocovariance, derive, moments_at, quantile, Derivation, Family, Method};
+use sdeck_semantics::FactorId;
 use sdeck_semantics::{analyze, Model};
 
 fn model(source: &str) -> Model {
@@ -86,21 +87,21 @@ fn ornstein_uhlenbeck_mean_and_variance_follow_vasicek() {
 fn ornstein_uhlenbeck_quantile_and_autocovariance() {
     let (m, d) = derived(VASICEK);
     // scipy.stats.norm.ppf(0.95, m, sqrt(v)) at t = 2 with the moments above.
-    let q = quantile(&m, &d, 0, 2.0, 0.95).expect("Gaussian quantile");
+    let q = quantile(&m, &d, FactorId::new(0), 2.0, 0.95).expect("Gaussian quantile");
     assert_close("95% quantile", q, 0.048489048355086946, 1e-12);
     // Cov(r_s, r_t) = σ²/(2κ) (e^{−κ(t−s)} − e^{−κ(t+s)}) (Vasicek 1977).
     let (kappa, sigma) = (1.5_f64, 0.01_f64);
     let (s, t) = (0.7, 1.9);
     let expected =
         sigma * sigma / (2.0 * kappa) * ((-kappa * (t - s)).exp() - (-kappa * (t + s)).exp());
-    let value = autocovariance(&m, &d, 0, s, t).expect("autocovariance");
+    let value = autocovariance(&m, &d, FactorId::new(0), s, t).expect("autocovariance");
     assert_close("autocovariance", value, expected, 1e-13);
 }
 
 #[test]
 fn ornstein_uhlenbeck_formulas_use_the_model_names() {
     let (m, d) = derived(VASICEK);
-    let formulas = sdeck_calculus::formulas(&m, &d, 0);
+    let formulas = sdeck_calculus::formulas(&m, &d, FactorId::new(0));
     assert_eq!(
         formulas.solution.as_deref(),
         Some("r(t) = level + (r₀ − level)·e^(−kappa·t) + vol·∫₀ᵗ e^(−kappa·(t − s)) dW(s)")
@@ -147,8 +148,8 @@ fn square_root_moments_and_law_follow_cox_ingersoll_ross() {
         1e-11,
     );
     // Quantiles: scipy.stats.ncx2.ppf(p, df, nc) / (2c).
-    let low = quantile(&m, &d, 0, 1.5, 0.01).expect("1% quantile");
-    let high = quantile(&m, &d, 0, 1.5, 0.99).expect("99% quantile");
+    let low = quantile(&m, &d, FactorId::new(0), 1.5, 0.01).expect("1% quantile");
+    let high = quantile(&m, &d, FactorId::new(0), 1.5, 0.99).expect("99% quantile");
     assert_close("1% quantile", low, 0.012556501066211886, 1e-9);
     assert_close("99% quantile", high, 0.09680506387324582, 1e-9);
     // Gamma stationary law, shape 2κθ/σ², scale σ²/(2κ): mean θ, variance θσ²/(2κ)
@@ -216,8 +217,8 @@ fn geometric_brownian_is_lognormal() {
         502.1992179589994,
         1e-12,
     );
-    let q05 = quantile(&m, &d, 0, 3.0, 0.05).expect("quantile");
-    let median = quantile(&m, &d, 0, 3.0, 0.5).expect("median");
+    let q05 = quantile(&m, &d, FactorId::new(0), 3.0, 0.05).expect("quantile");
+    let median = quantile(&m, &d, FactorId::new(0), 3.0, 0.5).expect("median");
     assert_close("5% quantile", q05, 22.040616172203706, 1e-12);
     assert_close("median", median, 44.93106624791335, 1e-13);
 }
@@ -529,9 +530,9 @@ fn nonsense_times_and_probabilities_give_nothing() {
     assert_eq!(moments.mean[0], None);
     let moments = moments_at(&m, &d, f64::NAN);
     assert_eq!(moments.variance[0], None);
-    assert_eq!(quantile(&m, &d, 0, 1.0, 1.5), None);
-    assert_eq!(quantile(&m, &d, 7, 1.0, 0.5), None);
-    assert_eq!(autocovariance(&m, &d, 3, 0.0, 1.0), None);
+    assert_eq!(quantile(&m, &d, FactorId::new(0), 1.0, 1.5), None);
+    assert_eq!(quantile(&m, &d, FactorId::new(7), 1.0, 0.5), None);
+    assert_eq!(autocovariance(&m, &d, FactorId::new(3), 0.0, 1.0), None);
 }
 
 #[test]
@@ -553,7 +554,7 @@ fn the_exact_step_a_family_allows_is_the_law_it_derives() {
         let model = sdeck_semantics::analyze(&source, "step").model;
         let derivation = sdeck_calculus::derive(&model);
         let family = derivation.states[0].family;
-        let law = law_of(&model, &derivation, 0, 0.5).map(|l| l.kind());
+        let law = law_of(&model, &derivation, FactorId::new(0), 0.5).map(|l| l.kind());
         assert_eq!(law, Some(kind), "{equation}");
         assert!(family.step_laws().contains(&kind), "{equation}: {family:?}");
     }

@@ -3,6 +3,7 @@
 
 use sdeck_calculus::{derive, formulas, moments_at, Family};
 use sdeck_semantics::analyze;
+use sdeck_semantics::FactorId;
 
 fn derived(source: &str) -> (sdeck_semantics::Model, sdeck_calculus::Derivation) {
     let analysis = analyze(source, "families");
@@ -49,7 +50,7 @@ dx = k * (x - level) dt + vol dW
         vol * vol * (2.0 * k * t).exp_m1() / (2.0 * k),
         1e-13,
     );
-    let f = formulas(&model, &d, 0);
+    let f = formulas(&model, &d, FactorId::new(0));
     assert!(f.stationary.is_none());
     assert_eq!(
         f.variance.as_deref(),
@@ -103,7 +104,7 @@ df = decay * (floor - f) dt
     let stationary = d.states[1].stationary.as_ref().expect("a fixed point");
     assert_eq!(stationary.law, "point mass at floor");
     assert_close("fixed point", stationary.mean, 40.0, 1e-15);
-    let f = formulas(&model, &d, 0);
+    let f = formulas(&model, &d, FactorId::new(0));
     assert_eq!(f.solution.as_deref(), Some("B(t) = B₀·e^(r·t)"));
     assert_eq!(f.variance.as_deref(), Some("Var[B(t)] = 0"));
     assert!(f.transition.is_none());
@@ -216,7 +217,7 @@ dS = mu * S dt + S * sqrt(min(v, vmax)) dWs
 dq = a * (S - q) dt
 ",
     );
-    let q = model.factor_index("q").expect("q");
+    let q = model.factor_id("q").expect("q");
     assert_eq!(d.states[q].family, Family::General);
     assert!(
         d.states[q]
@@ -227,11 +228,20 @@ dq = a * (S - q) dt
     );
     for (t, expected) in [(0.5, 101.277_901_407_887_61), (2.0, 107.611_289_893_996_58)] {
         let m = moments_at(&model, &d, t);
-        assert_close("E[q]", m.mean[q].expect("mean of q"), expected, 1e-13);
-        assert_eq!(m.variance[q], None);
-        assert!(m.exact[q]);
+        assert_close(
+            "E[q]",
+            m.mean[q.index()].expect("mean of q"),
+            expected,
+            1e-13,
+        );
+        assert_eq!(m.variance[q.index()], None);
+        assert!(m.exact[q.index()]);
         let one = sdeck_calculus::state_figures(&model, &d, q, t);
-        assert_eq!(one.mean, m.mean[q], "one factor alone gives the same mean");
+        assert_eq!(
+            one.mean,
+            m.mean[q.index()],
+            "one factor alone gives the same mean"
+        );
     }
 }
 
@@ -251,8 +261,8 @@ dc = r * c * (1 - c) dt + s * c * (1 - c) dW
 dq = a * (c - q) dt + s * q * (1 - q) dB
 ",
     );
-    let q = model.factor_index("q").expect("q");
+    let q = model.factor_id("q").expect("q");
     assert_eq!(d.states[q].family, Family::General);
     assert!(!d.states[q].reason.contains("its mean follows from"));
-    assert_eq!(moments_at(&model, &d, 1.0).mean[q], None);
+    assert_eq!(moments_at(&model, &d, 1.0).mean[q.index()], None);
 }

@@ -3,6 +3,7 @@
 
 use sdeck_calculus::{derive, formulas, Formulas};
 use sdeck_semantics::analyze;
+use sdeck_semantics::FactorId;
 
 fn formulas_of(source: &str) -> Vec<(String, Formulas)> {
     let analysis = analyze(source, "symbols");
@@ -13,7 +14,7 @@ fn formulas_of(source: &str) -> Vec<(String, Formulas)> {
         .map(|i| {
             (
                 model.factors[i].name.clone(),
-                formulas(&model, &derivation, i),
+                formulas(&model, &derivation, FactorId::new(i)),
             )
         })
         .collect()

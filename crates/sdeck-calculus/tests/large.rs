@@ -3,6 +3,7 @@
 //! instead of allocating n⁴ numbers.
 
 use sdeck_calculus::{derive, moments_at, Family};
+use sdeck_semantics::FactorId;
 
 fn chain(n: usize, coupled: bool) -> String {
     let mut s = String::from(
@@ -76,7 +77,7 @@ fn figures_of_one_state_and_one_pair_in_a_large_model() {
     let (i, j, t) = (1234, 77, 2.0);
     let (ki, kj) = (0.5 + 0.01 * i as f64, 0.5 + 0.01 * j as f64);
     // Vasicek 1977: mean 0.03 + (0.01 − 0.03)e^(−kt), variance v²(1 − e^(−2kt))/(2k).
-    let figures = sdeck_calculus::state_moments(model, &derivation, i, t);
+    let figures = sdeck_calculus::state_moments(model, &derivation, FactorId::new(i), t);
     let mean = 0.03 + (0.01 - 0.03) * (-ki * t).exp();
     let variance = 0.0004 * (1.0 - (-2.0 * ki * t).exp()) / (2.0 * ki);
     assert!((figures.mean.unwrap_or(f64::NAN) - mean).abs() < 1e-15);
@@ -84,14 +85,15 @@ fn figures_of_one_state_and_one_pair_in_a_large_model() {
     // Two OU states on one noise: Cov = v²(1 − e^(−(ki + kj)t))/(ki + kj) (Itô's product
     // rule; Kloeden & Platen 1992, §4.2).
     let expected = 0.0004 * (1.0 - (-(ki + kj) * t).exp()) / (ki + kj);
-    let cov = sdeck_calculus::covariance(model, &derivation, i, j, t).unwrap_or(f64::NAN);
+    let cov = sdeck_calculus::covariance(model, &derivation, FactorId::new(i), FactorId::new(j), t)
+        .unwrap_or(f64::NAN);
     assert!((cov - expected).abs() < 1e-16, "{cov} vs {expected}");
     assert_eq!(
-        sdeck_calculus::covariance(model, &derivation, j, i, t),
+        sdeck_calculus::covariance(model, &derivation, FactorId::new(j), FactorId::new(i), t),
         Some(cov)
     );
     assert_eq!(
-        sdeck_calculus::covariance(model, &derivation, i, n, t),
+        sdeck_calculus::covariance(model, &derivation, FactorId::new(i), FactorId::new(n), t),
         None
     );
 }
@@ -109,7 +111,7 @@ fn coupled_blocks_of_a_large_model_keep_their_drift_matrix() {
     let derivation = derive(&analysis.model);
     assert_eq!(derivation.blocks.len(), 1);
     let block = &derivation.blocks[0];
-    assert_eq!(block.states, vec![40, 41]);
+    assert_eq!(block.states, vec![FactorId::new(40), FactorId::new(41)]);
     assert_eq!(
         block.drift_matrix,
         Some(vec![vec![-0.5, 0.0], vec![0.3, -0.51]])

@@ -39,7 +39,7 @@ fn laws_and_bond_prices_agree_with_the_independent_reference() {
         let at = record["at"].as_f64();
         let factor = record["factor"]
             .as_str()
-            .map(|name| model.factor_index(name).expect("factor"));
+            .map(|name| model.factor_id(name).expect("factor"));
         let argument = record["argument"].as_f64();
         let (ours, scale) = match check {
             "bond_price" => {
@@ -48,9 +48,9 @@ fn laws_and_bond_prices_agree_with_the_independent_reference() {
                 let expr = names
                     .iter()
                     .filter_map(Value::as_str)
-                    .map(|name| match model.factor_index(name) {
+                    .map(|name| match model.factor_id(name) {
                         Some(i) => Expr::Factor(i),
-                        None => Expr::Param(model.param_index(name).expect("name")),
+                        None => Expr::Param(model.param_id(name).expect("name")),
                     })
                     .reduce(|a, b| Expr::Add(Box::new(a), Box::new(b)))
                     .expect("a rate");
@@ -75,7 +75,7 @@ fn laws_and_bond_prices_agree_with_the_independent_reference() {
             "explosion_time" => {
                 let set = AffineSet::from_model(model).expect("affine");
                 let mut u = vec![0.0; set.dimension()];
-                u[factor.expect("factor")] = argument.expect("moment");
+                u[factor.expect("factor").index()] = argument.expect("moment");
                 (set.explosion_time(&u, 50.0), reference)
             }
             other => panic!("unknown check {other}"),

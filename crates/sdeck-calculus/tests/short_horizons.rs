@@ -30,7 +30,7 @@ fn quantiles_of_a_variance_driven_price_over_an_hour_and_a_minute() {
     assert!(!analysis.has_errors(), "{:?}", analysis.diagnostics);
     let model = &analysis.model;
     let derivation = derive(model);
-    let s = model.factor_index("S").expect("S");
+    let s = model.factor_id("S").expect("S");
     let z = Normal::new(0.0, 1.0).expect("standard normal");
     // One hour and about half a minute, in years.
     for t in [1.0 / (365.0 * 24.0), 1e-6] {
@@ -58,7 +58,7 @@ fn a_nearly_constant_law_answers_or_says_unknown_but_never_stalls() {
     let analysis = sdeck_semantics::analyze(MODEL, "short_horizon");
     let model = &analysis.model;
     let derivation = derive(model);
-    let s = model.factor_index("S").expect("S");
+    let s = model.factor_id("S").expect("S");
     // A thirtieth of a second: the budget of transform evaluations ends the search.
     let law = laws::law_of(model, &derivation, s, 1e-9).expect("an affine law");
     for p in [0.01, 0.5, 0.99] {

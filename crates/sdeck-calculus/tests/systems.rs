@@ -3,6 +3,7 @@
 
 use sdeck_calculus::linear_system::AffineGaussian;
 use sdeck_calculus::{autocovariance, derive, moments_at, quantile, Family, Method};
+use sdeck_semantics::FactorId;
 use sdeck_semantics::{analyze, Model};
 
 fn model(source: &str) -> Model {
@@ -49,7 +50,7 @@ fn drift_matrix_and_families_of_a_triangular_system() {
     assert_eq!(d.states[0].family, Family::OrnsteinUhlenbeck);
     assert!(d.states[0].depends_on.is_empty());
     assert_eq!(d.states[1].family, Family::LinearSystem);
-    assert_eq!(d.states[1].depends_on, vec![0]);
+    assert_eq!(d.states[1].depends_on, vec![FactorId::new(0)]);
     assert_eq!(d.states[1].half_life, None);
     let a = d.drift_matrix.as_ref().expect("constant drift matrix");
     assert_eq!(a, &vec![vec![-0.8, 0.0], vec![-0.25, -1.5]]);
@@ -67,13 +68,13 @@ fn figures_of_one_state_or_pair_agree_with_the_whole_matrix() {
     let t = 1.3;
     let whole = moments_at(&m, &d, t);
     for i in 0..2 {
-        let one = sdeck_calculus::state_moments(&m, &d, i, t);
+        let one = sdeck_calculus::state_moments(&m, &d, FactorId::new(i), t);
         assert_eq!(one.mean, whole.mean[i]);
         assert_eq!(one.variance, whole.variance[i]);
         assert_eq!(one.method, whole.method[i]);
         for j in 0..2 {
             assert_eq!(
-                sdeck_calculus::covariance(&m, &d, i, j, t),
+                sdeck_calculus::covariance(&m, &d, FactorId::new(i), FactorId::new(j), t),
                 whole.covariance[i][j]
             );
         }
@@ -94,11 +95,11 @@ fn coupled_autocovariance_matches_the_engine_cross_covariance() {
     .expect("valid system");
     let (s, t) = (0.6, 1.7);
     let expected = engine.cross_covariance(s, t)[(1, 1)];
-    let value = autocovariance(&m, &d, 1, s, t).expect("coupled autocovariance");
+    let value = autocovariance(&m, &d, FactorId::new(1), s, t).expect("coupled autocovariance");
     assert_close("Cov(s_s, s_t)", value, expected, 1e-12);
     // At s = t the autocovariance is the variance.
     let moments = moments_at(&m, &d, t);
-    let at_same = autocovariance(&m, &d, 1, t, t).expect("autocovariance");
+    let at_same = autocovariance(&m, &d, FactorId::new(1), t, t).expect("autocovariance");
     assert_close(
         "Cov(s_t, s_t)",
         at_same,
@@ -106,7 +107,7 @@ fn coupled_autocovariance_matches_the_engine_cross_covariance() {
         1e-12,
     );
     // A linear system with state-free noise is Gaussian: the median is the mean.
-    let median = quantile(&m, &d, 1, t, 0.5).expect("median");
+    let median = quantile(&m, &d, FactorId::new(1), t, 0.5).expect("median");
     assert_close("median", median, moments.mean[1].expect("mean"), 1e-14);
 }
 
@@ -324,8 +325,8 @@ dv = kappa * (theta - v) dt + xi * sqrt(v) dWv
         expected_mean,
         1e-12,
     );
-    assert_eq!(quantile(&m, &d, 0, t, 0.5), None);
-    let same = autocovariance(&m, &d, 0, t, t).expect("autocovariance");
+    assert_eq!(quantile(&m, &d, FactorId::new(0), t, 0.5), None);
+    let same = autocovariance(&m, &d, FactorId::new(0), t, t).expect("autocovariance");
     assert_close(
         "Cov(x_t, x_t)",
         same,

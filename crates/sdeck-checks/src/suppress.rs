@@ -84,27 +84,72 @@ fn parse_directive(text: &str, base: usize, comment: &Span) -> Option<Directive>
             .get(lead..)?
             .strip_prefix("sdeck:")
             .map(|_| "sdeck:".len())?;
-    // Everything up to the word `because` is the directive; the rest is the reason. The
-    // first version's `--` before the reason still ends the directive, but is reported.
+    let (directive_end, old_reason) = directive_end(text, after_prefix);
+    let words = words_of(text, after_prefix, directive_end);
+    let absolute = |offset: usize, word: &str| base + offset..base + offset + word.len();
+    let Some(&(word_at, word)) = words.first() else {
+        return Some(Directive::refused(problem(
+            comment.clone(),
+            "`sdeck:` names no directive and no rule".to_string(),
+        )));
+    };
+    let kind = match word {
+        "quiet" => Kind::Quiet,
+        "quiet-begin" => Kind::Begin,
+        "quiet-end" => Kind::End,
+        "quiet-file" => Kind::File,
+        other => {
+            return Some(Directive::refused(problem(
+                absolute(word_at, word),
+                format!("`sdeck: {other}` is not a directive; write `quiet`, `quiet-begin`, `quiet-end` or `quiet-file`"),
+            )))
+        }
+    };
+    let names = words.get(1..).unwrap_or(&[]);
+    if names.is_empty() {
+        return Some(Directive::refused(problem(
+            comment.clone(),
+            format!("`sdeck: {word}` names no rule"),
+        )));
+    }
+    let mut directive = Directive {
+        kind: Some(kind),
+        rules: Vec::new(),
+        problems: Vec::new(),
+        misspelt: Vec::new(),
+    };
+    if let Some(at) = old_reason {
+        directive
+            .problems
+            .push(old_reason_problem(text, base, at, word));
+    }
+    for &(at, name) in names {
+        directive.name_rule(name, absolute(at, name));
+    }
+    Some(directive)
+}
+
+/// Where the directive of a suppression comment ends (after `sdeck:` at `after_prefix`):
+/// everything up to the word `because` is the directive, the rest is the reason. The first
+/// version's `--` before the reason still ends the directive; its offset is returned
+/// beside, to be reported.
+fn directive_end(text: &str, after_prefix: usize) -> (usize, Option<usize>) {
     let rest = text.get(after_prefix..).unwrap_or("");
     let because = word_offset(rest, "because");
     let dashes = rest.find("--");
-    let mut old_reason = None;
-    let directive_end = match (because, dashes) {
-        (Some(b), Some(d)) if d < b => {
-            old_reason = Some(after_prefix + d);
-            after_prefix + d
-        }
-        (Some(b), _) => after_prefix + b,
-        (None, Some(d)) => {
-            old_reason = Some(after_prefix + d);
-            after_prefix + d
-        }
-        (None, None) => text.len(),
-    };
-    // Words: maximal runs of characters other than white space and commas, with offsets.
-    let mut words: Vec<(usize, &str)> = Vec::new();
-    let directive = text.get(after_prefix..directive_end).unwrap_or("");
+    match (because, dashes) {
+        (Some(b), Some(d)) if d < b => (after_prefix + d, Some(after_prefix + d)),
+        (Some(b), _) => (after_prefix + b, None),
+        (None, Some(d)) => (after_prefix + d, Some(after_prefix + d)),
+        (None, None) => (text.len(), None),
+    }
+}
+
+/// The words of `text[from..to]`: maximal runs of characters other than white space and
+/// commas, each with its offset in `text`.
+fn words_of(text: &str, from: usize, to: usize) -> Vec<(usize, &str)> {
+    let mut words = Vec::new();
+    let directive = text.get(from..to).unwrap_or("");
     let mut start: Option<usize> = None;
     for (i, ch) in directive
         .char_indices()
@@ -114,252 +159,117 @@ fn parse_directive(text: &str, base: usize, comment: &Span) -> Option<Directive>
         match (start, separator) {
             (None, false) => start = Some(i),
             (Some(s), true) => {
-                words.push((after_prefix + s, directive.get(s..i).unwrap_or("")));
+                words.push((from + s, directive.get(s..i).unwrap_or("")));
                 start = None;
             }
             _ => {}
         }
     }
-    let absolute = |offset: usize, word: &str| base + offset..base + offset + word.len();
-    let Some(&(word_at, word)) = words.first() else {
-        return Some(Directive {
+    words
+}
+
+/// A reason written after `--` (offset `at` in the comment's text), with the fix that
+/// writes `because`.
+fn old_reason_problem(text: &str, base: usize, at: usize, directive: &str) -> Diagnostic {
+    let span = base + at..base + at + 2;
+    let after = text.get(at + 2..).unwrap_or("");
+    let new_text = if after.starts_with(char::is_whitespace) || after.is_empty() {
+        "because"
+    } else {
+        "because "
+    };
+    Diagnostic::new(
+        &rules::UNUSED_SUPPRESSION,
+        span.clone(),
+        "the reason of a suppression now follows the word `because`, not `--`",
+    )
+    .with_help(format!(
+        "write `# sdeck: {directive} RULE because REASON`; the comment still silences its rules"
+    ))
+    .with_fix(
+        "Write `because` for `--`",
+        vec![TextEdit {
+            span,
+            new_text: new_text.to_string(),
+        }],
+    )
+}
+
+impl Directive {
+    /// A comment that silences nothing, for `problem`.
+    fn refused(problem: Diagnostic) -> Directive {
+        Directive {
             kind: None,
             rules: Vec::new(),
+            problems: vec![problem],
             misspelt: Vec::new(),
-            problems: vec![problem(
-                comment.clone(),
-                "`sdeck:` names no directive and no rule".to_string(),
-            )],
-        });
-    };
-    let kind = match word {
-        "quiet" => Kind::Quiet,
-        "quiet-begin" => Kind::Begin,
-        "quiet-end" => Kind::End,
-        "quiet-file" => Kind::File,
-        other => {
-            return Some(Directive {
-                kind: None,
-                rules: Vec::new(),
-                misspelt: Vec::new(),
-            problems: vec![problem(
-                    absolute(word_at, word),
-                    format!("`sdeck: {other}` is not a directive; write `quiet`, `quiet-begin`, `quiet-end` or `quiet-file`"),
-                )],
-            })
         }
-    };
-    let names = words.get(1..).unwrap_or(&[]);
-    if names.is_empty() {
-        return Some(Directive {
-            kind: None,
-            rules: Vec::new(),
-            misspelt: Vec::new(),
-            problems: vec![problem(
-                comment.clone(),
-                format!("`sdeck: {word}` names no rule"),
-            )],
-        });
     }
-    let mut known = Vec::new();
-    let mut problems = Vec::new();
-    let mut misspelt = Vec::new();
-    if let Some(at) = old_reason {
-        let span = base + at..base + at + 2;
-        let after = text.get(at + 2..).unwrap_or("");
-        let new_text = if after.starts_with(char::is_whitespace) || after.is_empty() {
-            "because"
-        } else {
-            "because "
+
+    /// Adds the rule `name` (at `span`), or the problem of a name that is no rule, with
+    /// the fix that writes the closest rule's name.
+    fn name_rule(&mut self, name: &str, span: Span) {
+        if let Some(rule) = rules::by_name(name) {
+            self.rules.push(NamedRule {
+                rule: rule.id,
+                span,
+            });
+            return;
+        }
+        let Some(close) = rules::closest(name) else {
+            self.problems
+                .push(problem(span, format!("`{name}` is not a rule")));
+            return;
         };
-        problems.push(
+        self.misspelt.push((self.problems.len(), close.id));
+        self.problems.push(
             Diagnostic::new(
                 &rules::UNUSED_SUPPRESSION,
                 span.clone(),
-                "the reason of a suppression now follows the word `because`, not `--`",
+                format!("`{name}` is not a rule; did you mean `{}`?", close.name),
             )
             .with_help(format!(
-                "write `# sdeck: {word} RULE because REASON`; the comment still silences its rules"
+                "write `{}`; `sdeck explain` lists the rules",
+                close.name
             ))
             .with_fix(
-                "Write `because` for `--`",
+                format!("Write `{}`", close.name),
                 vec![TextEdit {
                     span,
-                    new_text: new_text.to_string(),
+                    new_text: close.name.to_string(),
                 }],
             ),
         );
     }
-    for &(at, name) in names {
-        let span = absolute(at, name);
-        if let Some(rule) = rules::by_name(name) {
-            known.push(NamedRule {
-                rule: rule.id,
-                span,
-            });
-        } else {
-            let close = rules::closest(name);
-            if let Some(close) = close {
-                misspelt.push((problems.len(), close.id));
-            }
-            let diagnostic = match close {
-                Some(close) => Diagnostic::new(
-                    &rules::UNUSED_SUPPRESSION,
-                    span.clone(),
-                    format!("`{name}` is not a rule; did you mean `{}`?", close.name),
-                )
-                .with_help(format!(
-                    "write `{}`; `sdeck explain` lists the rules",
-                    close.name
-                ))
-                .with_fix(
-                    format!("Write `{}`", close.name),
-                    vec![TextEdit {
-                        span,
-                        new_text: close.name.to_string(),
-                    }],
-                ),
-                None => problem(span, format!("`{name}` is not a rule")),
-            };
-            problems.push(diagnostic);
-        }
+}
+
+/// The lines of a source: zero-based line numbers of byte offsets.
+struct Lines<'a> {
+    source: &'a str,
+    index: LineIndex,
+}
+
+impl Lines<'_> {
+    fn of(&self, offset: usize) -> u32 {
+        self.index
+            .line_col(self.source, offset, sdeck_syntax::Encoding::Utf8)
+            .line
     }
-    Some(Directive {
-        kind: Some(kind),
-        rules: known,
-        problems,
-        misspelt,
-    })
+
+    fn last(&self) -> u32 {
+        self.index.line_count().saturating_sub(1) as u32
+    }
 }
 
 /// Removes suppressed diagnostics and adds `unused-suppression` for the suppressions that
 /// silenced nothing, and for suppression comments that cannot be understood.
 pub fn apply(source: &str, file: &SourceFile, diagnostics: Vec<Diagnostic>) -> Vec<Diagnostic> {
-    let index = LineIndex::new(source);
-    let line_of = |offset: usize| {
-        index
-            .line_col(source, offset, sdeck_syntax::Encoding::Utf8)
-            .line
+    let lines = Lines {
+        source,
+        index: LineIndex::new(source),
     };
-    let statement_lines: Vec<(u32, u32)> = file
-        .statements
-        .iter()
-        .map(|s| {
-            // The last byte of the statement decides its last line: a span that ends
-            // just after a line break must not reach into the next line.
-            let last = s.span.end.saturating_sub(1).max(s.span.start);
-            (line_of(s.span.start), line_of(last))
-        })
-        .collect();
-    let mut problems = Vec::new();
-    let mut suppressions: Vec<Suppression> = Vec::new();
-    let mut open: Vec<(NamedRule, u32)> = Vec::new();
-    let last_line = index.line_count().saturating_sub(1) as u32;
-    for comment in &file.comments {
-        // The comment's text follows its `#`; find where it starts in the source.
-        let base = comment
-            .span
-            .end
-            .checked_sub(comment.text.len())
-            .filter(|b| *b >= comment.span.start)
-            .unwrap_or(comment.span.start + 1);
-        let Some(mut directive) = parse_directive(&comment.text, base, &comment.span) else {
-            continue;
-        };
-        let line = line_of(comment.span.start);
-        let lines = match directive.kind {
-            Some(Kind::Quiet) if comment.trailing => statement_lines
-                .iter()
-                .copied()
-                .find(|&(a, b)| a <= line && line <= b)
-                .unwrap_or((line, line)),
-            Some(Kind::Quiet) => statement_lines
-                .iter()
-                .copied()
-                .find(|&(a, _)| a > line)
-                .unwrap_or((line + 1, line + 1)),
-            _ => (0, last_line),
-        };
-        // A misspelt name is mended only where the rule it means would silence something:
-        // elsewhere the mended comment would still silence nothing.
-        if matches!(directive.kind, Some(Kind::Quiet | Kind::File)) {
-            for &(k, meant) in &directive.misspelt {
-                let silences = diagnostics.iter().any(|d| {
-                    d.rule == meant && (lines.0..=lines.1).contains(&line_of(d.span.start))
-                });
-                if let (false, Some(problem)) = (silences, directive.problems.get_mut(k)) {
-                    problem.fixes.clear();
-                }
-            }
-        }
-        problems.extend(directive.problems);
-        let Some(kind) = directive.kind else { continue };
-        if directive.rules.is_empty() {
-            continue;
-        }
-        let mut push = |rules: Vec<NamedRule>, lines: (u32, u32)| {
-            let used = vec![false; rules.len()];
-            suppressions.push(Suppression { rules, lines, used });
-        };
-        match kind {
-            Kind::Quiet | Kind::File => push(directive.rules, lines),
-            Kind::Begin => {
-                for named in directive.rules {
-                    open.push((named, line));
-                }
-            }
-            Kind::End => {
-                for named in directive.rules {
-                    if let Some(pos) = open.iter().rposition(|(o, _)| o.rule == named.rule) {
-                        let (begin, start) = open.remove(pos);
-                        suppressions.push(Suppression {
-                            rules: vec![begin],
-                            lines: (start, line),
-                            used: vec![false],
-                        });
-                    } else {
-                        let name = named.rule;
-                        problems.push(
-                            Diagnostic::new(
-                                &rules::UNUSED_SUPPRESSION,
-                                named.span,
-                                format!("`quiet-end {name}` closes no `quiet-begin {name}`"),
-                            )
-                            .with_help(format!(
-                                "add `# sdeck: quiet-begin {name}` where the range starts, or remove this line"
-                            )),
-                        );
-                    }
-                }
-            }
-        }
-    }
-    // A range left open runs to the end of the file.
-    for (named, start) in open {
-        suppressions.push(Suppression {
-            rules: vec![named],
-            lines: (start, last_line),
-            used: vec![false],
-        });
-    }
-    let mut kept = Vec::with_capacity(diagnostics.len());
-    for d in diagnostics {
-        let line = line_of(d.span.start);
-        let mut silenced = false;
-        for s in suppressions.iter_mut() {
-            if s.lines.0 <= line && line <= s.lines.1 {
-                if let Some(i) = s.rules.iter().position(|r| r.rule == d.rule) {
-                    if let Some(used) = s.used.get_mut(i) {
-                        *used = true;
-                    }
-                    silenced = true;
-                }
-            }
-        }
-        if !silenced {
-            kept.push(d);
-        }
-    }
+    let (mut suppressions, problems) = read_suppressions(&lines, file, &diagnostics);
+    let mut kept = silence(&lines, &mut suppressions, diagnostics);
     for s in &suppressions {
         for (named, used) in s.rules.iter().zip(&s.used) {
             if !used {
@@ -375,5 +285,158 @@ pub fn apply(source: &str, file: &SourceFile, diagnostics: Vec<Diagnostic>) -> V
         }
     }
     kept.extend(problems);
+    kept
+}
+
+/// Every suppression the comments of `file` make, with the lines each covers, and the
+/// problems of the comments that cannot be understood. `diagnostics` decide whether a
+/// misspelt rule name gets its fix.
+fn read_suppressions(
+    lines: &Lines,
+    file: &SourceFile,
+    diagnostics: &[Diagnostic],
+) -> (Vec<Suppression>, Vec<Diagnostic>) {
+    let statement_lines: Vec<(u32, u32)> = file
+        .statements
+        .iter()
+        .map(|s| {
+            // The last byte of the statement decides its last line: a span that ends
+            // just after a line break must not reach into the next line.
+            let last = s.span.end.saturating_sub(1).max(s.span.start);
+            (lines.of(s.span.start), lines.of(last))
+        })
+        .collect();
+    let mut problems = Vec::new();
+    let mut suppressions: Vec<Suppression> = Vec::new();
+    let mut open: Vec<(NamedRule, u32)> = Vec::new();
+    for comment in &file.comments {
+        // The comment's text follows its `#`; find where it starts in the source.
+        let base = comment
+            .span
+            .end
+            .checked_sub(comment.text.len())
+            .filter(|b| *b >= comment.span.start)
+            .unwrap_or(comment.span.start + 1);
+        let Some(mut directive) = parse_directive(&comment.text, base, &comment.span) else {
+            continue;
+        };
+        let line = lines.of(comment.span.start);
+        let covered = match directive.kind {
+            Some(Kind::Quiet) if comment.trailing => statement_lines
+                .iter()
+                .copied()
+                .find(|&(a, b)| a <= line && line <= b)
+                .unwrap_or((line, line)),
+            Some(Kind::Quiet) => statement_lines
+                .iter()
+                .copied()
+                .find(|&(a, _)| a > line)
+                .unwrap_or((line + 1, line + 1)),
+            _ => (0, lines.last()),
+        };
+        keep_useful_fixes(&mut directive, covered, lines, diagnostics);
+        problems.extend(directive.problems);
+        let Some(kind) = directive.kind else { continue };
+        match kind {
+            Kind::Quiet | Kind::File if !directive.rules.is_empty() => {
+                let used = vec![false; directive.rules.len()];
+                suppressions.push(Suppression {
+                    rules: directive.rules,
+                    lines: covered,
+                    used,
+                });
+            }
+            Kind::Quiet | Kind::File => {}
+            Kind::Begin => open.extend(directive.rules.into_iter().map(|named| (named, line))),
+            Kind::End => {
+                for named in directive.rules {
+                    match open.iter().rposition(|(o, _)| o.rule == named.rule) {
+                        Some(pos) => {
+                            let (begin, start) = open.remove(pos);
+                            suppressions.push(Suppression::one(begin, (start, line)));
+                        }
+                        None => problems.push(unopened_end(named)),
+                    }
+                }
+            }
+        }
+    }
+    // A range left open runs to the end of the file.
+    for (named, start) in open {
+        suppressions.push(Suppression::one(named, (start, lines.last())));
+    }
+    (suppressions, problems)
+}
+
+/// A misspelt name is mended only where the rule it means would silence something (on
+/// the `covered` lines): elsewhere the mended comment would still silence nothing.
+fn keep_useful_fixes(
+    directive: &mut Directive,
+    covered: (u32, u32),
+    lines: &Lines,
+    diagnostics: &[Diagnostic],
+) {
+    if !matches!(directive.kind, Some(Kind::Quiet | Kind::File)) {
+        return;
+    }
+    for &(k, meant) in &directive.misspelt {
+        let silences = diagnostics
+            .iter()
+            .any(|d| d.rule == meant && (covered.0..=covered.1).contains(&lines.of(d.span.start)));
+        if let (false, Some(problem)) = (silences, directive.problems.get_mut(k)) {
+            problem.fixes.clear();
+        }
+    }
+}
+
+/// `quiet-end RULE` without a `quiet-begin RULE` before it.
+fn unopened_end(named: NamedRule) -> Diagnostic {
+    let name = named.rule;
+    Diagnostic::new(
+        &rules::UNUSED_SUPPRESSION,
+        named.span,
+        format!("`quiet-end {name}` closes no `quiet-begin {name}`"),
+    )
+    .with_help(format!(
+        "add `# sdeck: quiet-begin {name}` where the range starts, or remove this line"
+    ))
+}
+
+impl Suppression {
+    /// One rule over `lines`.
+    fn one(rule: NamedRule, lines: (u32, u32)) -> Suppression {
+        Suppression {
+            rules: vec![rule],
+            lines,
+            used: vec![false],
+        }
+    }
+}
+
+/// The diagnostics no suppression covers; each suppression that silences one is marked
+/// used.
+fn silence(
+    lines: &Lines,
+    suppressions: &mut [Suppression],
+    diagnostics: Vec<Diagnostic>,
+) -> Vec<Diagnostic> {
+    let mut kept = Vec::with_capacity(diagnostics.len());
+    for d in diagnostics {
+        let line = lines.of(d.span.start);
+        let mut silenced = false;
+        for s in suppressions.iter_mut() {
+            if s.lines.0 <= line && line <= s.lines.1 {
+                if let Some(i) = s.rules.iter().position(|r| r.rule == d.rule) {
+                    if let Some(used) = s.used.get_mut(i) {
+                        *used = true;
+                    }
+                    silenced = true;
+                }
+            }
+        }
+        if !silenced {
+            kept.push(d);
+        }
+    }
     kept
 }

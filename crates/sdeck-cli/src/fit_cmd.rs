@@ -79,7 +79,7 @@ pub fn run(args: FitArgs) -> ExitCode {
             return usage(format!("--column `{pair}`: write FACTOR=COLUMN"));
         };
         let (factor, column) = (factor.trim(), column.trim());
-        let Some(index) = model.factor_index(factor) else {
+        let Some(index) = model.factor_id(factor).map(|id| id.index()) else {
             return usage(format!(
                 "--column `{pair}`: the model has no factor `{factor}` (factors: {})",
                 factor_names(model)
@@ -104,8 +104,8 @@ pub fn run(args: FitArgs) -> ExitCode {
     mapping.sort_by_key(|(f, _)| *f);
     let mut fixed = Vec::new();
     for name in &args.fixed {
-        match model.param_index(name) {
-            Some(i) => fixed.push(i),
+        match model.param_id(name) {
+            Some(i) => fixed.push(i.index()),
             None => {
                 return usage(format!(
                     "--fix `{name}`: the model has no parameter of that name"

@@ -76,7 +76,8 @@ pub fn parse_below(text: &str, model: &Model) -> Result<Vec<(usize, f64)>, Strin
                 .split_once('=')
                 .ok_or_else(|| format!("`{}` is not NAME=VALUE, e.g. `r=0`", piece.trim()))?;
             let index = model
-                .factor_index(name.trim())
+                .factor_id(name.trim())
+                .map(|id| id.index())
                 .ok_or_else(|| format!("`{}` is not a factor of the model", name.trim()))?;
             let level =
                 parse_level(value).ok_or_else(|| format!("`{}` is not a number", value.trim()))?;

@@ -48,7 +48,7 @@ use nalgebra::DMatrix;
 use optimise::Transform;
 use plan::{factor_name, Plan};
 use sdeck_calculus::Family;
-use sdeck_semantics::Model;
+use sdeck_semantics::{Model, ParamId};
 use start::{coefficient, moment_targets};
 use statrs::distribution::{ContinuousCDF, Normal};
 
@@ -200,7 +200,8 @@ fn normal_quantile(p: f64) -> f64 {
 pub fn parameters_in(model: &Model, factors: &[usize]) -> Vec<usize> {
     let mut out: Vec<usize> = written_in(model, factors)
         .into_iter()
-        .flat_map(|p| model.free_params_of(p))
+        .flat_map(|p| model.free_params_of(ParamId::new(p)))
+        .map(ParamId::index)
         .collect();
     out.sort_unstable();
     out.dedup();
@@ -209,15 +210,16 @@ pub fn parameters_in(model: &Model, factors: &[usize]) -> Vec<usize> {
 
 /// Parameters written in the equations of the given factors, derived ones included.
 pub fn written_in(model: &Model, factors: &[usize]) -> Vec<usize> {
-    let mut out = Vec::new();
+    let mut ids = Vec::new();
     for &f in factors {
         if let Some(eq) = model.factors.get(f).and_then(|s| s.equation.as_ref()) {
-            eq.drift.params(&mut out);
+            eq.drift.params(&mut ids);
             for term in &eq.diffusion {
-                term.coefficient.params(&mut out);
+                term.coefficient.params(&mut ids);
             }
         }
     }
+    let mut out: Vec<usize> = ids.into_iter().map(ParamId::index).collect();
     out.sort_unstable();
     out.dedup();
     out

@@ -137,7 +137,7 @@ pub(crate) fn plan(problem: &Problem) -> Result<Plan, FitError> {
             .factors
             .get(factor)
             .and_then(|s| s.equation.as_ref())
-            .map(|eq| eq.diffusion.iter().map(|d| d.noise).collect())
+            .map(|eq| eq.diffusion.iter().map(|d| d.noise.index()).collect())
             .unwrap_or_default()
     };
     let corr = model.correlation_matrix();

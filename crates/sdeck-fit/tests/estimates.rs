@@ -31,7 +31,7 @@ fn run(model: &Model, times: &[f64], values: &[f64]) -> Result<Fit, FitError> {
 }
 
 fn estimate(fit: &Fit, model: &Model, name: &str) -> (f64, f64) {
-    let index = model.param_index(name).expect("parameter exists");
+    let index = model.param_id(name).expect("parameter exists").index();
     let e = fit
         .estimates
         .iter()
@@ -192,7 +192,7 @@ fn intervals_cover_the_truth_at_their_level() {
         let x = ou_path(1000 + seed, times.len(), dt, kappa, theta, sigma);
         let fit = run(&m, &times, &x).expect("OU fits");
         for (j, (name, truth)) in names.iter().enumerate() {
-            let index = m.param_index(name).expect("parameter exists");
+            let index = m.param_id(name).expect("parameter exists").index();
             let e = fit
                 .estimates
                 .iter()
@@ -403,7 +403,7 @@ fn fixed_parameters_keep_their_file_values() {
         times,
         values: vec![x.iter().map(|v| Some(*v)).collect()],
     };
-    let level = m.param_index("level").expect("level");
+    let level = m.param_id("level").expect("level").index();
     let fit = fit(&Problem {
         model: &m,
         factors: &[0],
@@ -436,7 +436,7 @@ fn a_parameter_written_as_an_expression_follows_the_estimates_and_is_not_rewritt
         times: times.clone(),
         values: vec![x.iter().map(|v| Some(*v)).collect()],
     };
-    let gap = m.param_index("gap").expect("gap");
+    let gap = m.param_id("gap").expect("gap").index();
     let fitted = fit(&Problem {
         model: &m,
         factors: &[0],
@@ -477,7 +477,7 @@ fn a_parameter_written_as_an_expression_follows_the_estimates_and_is_not_rewritt
     assert!(written.contains("param level = base + gap\n"), "{written}");
     assert!(!written.contains("param base = 1.5%"), "{written}");
     // Asked to rewrite the expression itself, it refuses and writes nothing.
-    let level_index = m.param_index("level").expect("level");
+    let level_index = m.param_id("level").expect("level").index();
     let refused = sdeck_fit::write::rewrite(
         text,
         "rate",

@@ -5,7 +5,7 @@ use sdeck_calculus::{
     expectation_value, moments_at, state_figures, Derivation, Family, Formulas, Method, Moments,
     StateFigures,
 };
-use sdeck_semantics::{Expectation, Interval, Model};
+use sdeck_semantics::{Expectation, FactorId, Interval, Model};
 
 /// The probabilities at which quantiles are reported.
 pub const QUANTILE_LEVELS: [f64; 5] = [0.01, 0.05, 0.5, 0.95, 0.99];
@@ -200,7 +200,9 @@ pub fn figures_with(
     levels: &Levels,
 ) -> Vec<Figures> {
     let moments = moments_at(model, derivation, t);
-    (0..model.factors.len())
+    model
+        .factors
+        .ids()
         .map(|i| figures_of(model, derivation, i, t, levels, column(&moments, i)))
         .collect()
 }
@@ -210,7 +212,7 @@ pub fn figures_with(
 pub fn factor_figures(
     model: &Model,
     derivation: &Derivation,
-    i: usize,
+    i: FactorId,
     t: f64,
     levels: &Levels,
 ) -> Figures {
@@ -219,7 +221,8 @@ pub fn factor_figures(
 }
 
 /// Factor `i`'s part of the figures of the whole model.
-fn column(moments: &Moments, i: usize) -> StateFigures {
+fn column(moments: &Moments, id: FactorId) -> StateFigures {
+    let i = id.index();
     StateFigures {
         mean: moments.mean.get(i).copied().flatten(),
         variance: moments.variance.get(i).copied().flatten(),
@@ -232,7 +235,7 @@ fn column(moments: &Moments, i: usize) -> StateFigures {
 fn figures_of(
     model: &Model,
     derivation: &Derivation,
-    i: usize,
+    i: FactorId,
     t: f64,
     levels: &Levels,
     state: StateFigures,
@@ -243,7 +246,7 @@ fn figures_of(
         exact: exact_moments,
         variance_infinite_from,
     } = state;
-    let start = model.factors.get(i).map_or(0.0, |s| s.initial);
+    let start = model.factors.by_id(i).map_or(0.0, |s| s.initial);
     let law = law_of(model, derivation, i, t);
     let quantile_law = law
         .as_ref()
@@ -261,7 +264,7 @@ fn figures_of(
     let below: Vec<Below> = levels
         .below
         .iter()
-        .filter(|(k, _)| *k == i)
+        .filter(|(k, _)| *k == i.index())
         .map(|&(_, level)| Below {
             level,
             probability: law.as_ref().and_then(|l| l.cdf(level)),
@@ -352,7 +355,7 @@ fn expectation_row(
         line: line_of(source, e.span.start),
         factor: e
             .state
-            .and_then(|i| model.factors.get(i))
+            .and_then(|i| model.factors.by_id(i))
             .map(|s| s.name.clone())
             .unwrap_or_default(),
         figure: e.figure.keyword(),
@@ -379,7 +382,9 @@ impl ModelReport {
         levels: &Levels,
     ) -> ModelReport {
         let moments = moments_at(model, derivation, at);
-        let factors = (0..model.factors.len())
+        let factors = model
+            .factors
+            .ids()
             .filter_map(|i| {
                 let state = column(&moments, i);
                 let figures = figures_of(model, derivation, i, at, levels, state);
@@ -449,7 +454,7 @@ impl FactorReport {
     pub fn build(
         model: &Model,
         derivation: &Derivation,
-        i: usize,
+        i: FactorId,
         at: f64,
         levels: &Levels,
     ) -> Option<FactorReport> {
@@ -461,12 +466,12 @@ impl FactorReport {
     fn from_figures(
         model: &Model,
         derivation: &Derivation,
-        i: usize,
+        i: FactorId,
         exact: bool,
         figures: Figures,
     ) -> Option<FactorReport> {
-        let state = model.factors.get(i)?;
-        let law = derivation.states.get(i)?;
+        let state = model.factors.by_id(i)?;
+        let law = derivation.states.by_id(i)?;
         Some(FactorReport {
             name: state.name.clone(),
             unit: state.unit_text.clone(),

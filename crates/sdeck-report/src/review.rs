@@ -112,7 +112,7 @@ pub fn closed_bands(
         let moments = sdeck_calculus::moments_at(model, derivation, *t);
         let sparse = k % stride != 0 && k + 1 != times.len();
         for (i, band) in bands.iter_mut().enumerate() {
-            let law = law_of(model, derivation, i, *t)
+            let law = law_of(model, derivation, sdeck_semantics::FactorId::new(i), *t)
                 .filter(|l| !(sparse && l.kind() == LawKind::Fourier));
             let q = |p: f64| law.as_ref().and_then(|l| l.quantile(p));
             band.mean.push(moments.mean.get(i).copied().flatten());

@@ -1,6 +1,7 @@
 //! The report data against published closed forms and independent computations.
 
 use sdeck_report::ModelReport;
+use sdeck_semantics::FactorId;
 use std::path::Path;
 
 fn report_of(source: &str, at: f64) -> ModelReport {
@@ -188,8 +189,13 @@ fn the_report_of_one_factor_is_its_part_of_the_report_of_the_model() {
                 path.display()
             );
             for (i, expected) in whole.factors.iter().enumerate() {
-                let alone =
-                    sdeck_report::FactorReport::build(model, &check.derivation, i, at, &levels);
+                let alone = sdeck_report::FactorReport::build(
+                    model,
+                    &check.derivation,
+                    FactorId::new(i),
+                    at,
+                    &levels,
+                );
                 assert_eq!(
                     alone.as_ref(),
                     Some(expected),
@@ -199,8 +205,13 @@ fn the_report_of_one_factor_is_its_part_of_the_report_of_the_model() {
                 checked += 1;
             }
             let past = model.factors.len();
-            let none =
-                sdeck_report::FactorReport::build(model, &check.derivation, past, at, &levels);
+            let none = sdeck_report::FactorReport::build(
+                model,
+                &check.derivation,
+                FactorId::new(past),
+                at,
+                &levels,
+            );
             assert_eq!(none, None);
         }
     }

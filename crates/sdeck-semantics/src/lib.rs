@@ -8,6 +8,7 @@
 
 mod analyze;
 mod function;
+mod ids;
 mod meaning;
 pub mod model;
 pub mod structure;

@@ -10,16 +10,18 @@ use sdeck_diagnostics::Span;
 use sdeck_syntax::ast::{Figure, Side};
 use sdeck_units::Dimension;
 
+pub use crate::ids::{FactorId, Id, IdVec, LetId, ParamId, ShockId};
+
 pub use crate::function::{ramp_value, step_value, Function};
 
 /// A resolved expression. Lets are inlined; `pi` is a constant.
 #[derive(Clone, Debug, PartialEq)]
 pub enum Expr {
     Const(f64),
-    /// Index into [`Model::params`].
-    Param(usize),
-    /// Index into [`Model::states`].
-    Factor(usize),
+    /// A parameter of [`Model::params`].
+    Param(ParamId),
+    /// A factor of [`Model::factors`].
+    Factor(FactorId),
     /// The time `t`, in clock units.
     Time,
     Neg(Box<Expr>),
@@ -131,8 +133,8 @@ impl Factor {
 /// One diffusion term `coefficient dNOISE`.
 #[derive(Clone, Debug, PartialEq)]
 pub struct DiffusionTerm {
-    /// Index into [`Model::shocks`].
-    pub noise: usize,
+    /// The shock of [`Model::shocks`] the term multiplies.
+    pub noise: ShockId,
     pub coefficient: Expr,
     pub span: Span,
 }
@@ -162,8 +164,8 @@ pub struct Shock {
 /// A `corr a b = rho` statement.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Correlation {
-    pub first: usize,
-    pub second: usize,
+    pub first: ShockId,
+    pub second: ShockId,
     /// The value at the file's parameters.
     pub value: f64,
     pub span: Span,
@@ -189,9 +191,9 @@ pub struct Let {
 #[derive(Clone, Debug, PartialEq)]
 pub struct Expectation {
     pub figure: Figure,
-    /// Index into [`Model::factors`]; `None` for the figures of the curve (`price`,
+    /// The factor of [`Model::factors`]; `None` for the figures of the curve (`price`,
     /// `yield`, `forward`).
-    pub state: Option<usize>,
+    pub state: Option<FactorId>,
     /// `prob`: whether the probability is of being below or above the level.
     pub side: Option<Side>,
     /// `prob`: the level in the factor's clock units; `quantile`: the probability, in
@@ -303,11 +305,11 @@ pub struct Model {
     /// Default reporting time, in clock units.
     pub horizon: f64,
     pub units: Vec<UnitDecl>,
-    pub params: Vec<Param>,
-    pub factors: Vec<Factor>,
-    pub shocks: Vec<Shock>,
+    pub params: IdVec<ParamId, Param>,
+    pub factors: IdVec<FactorId, Factor>,
+    pub shocks: IdVec<ShockId, Shock>,
     pub correlations: Vec<Correlation>,
-    pub lets: Vec<Let>,
+    pub lets: IdVec<LetId, Let>,
     pub expectations: Vec<Expectation>,
     pub measure: Option<Measure>,
     pub discount: Option<Discount>,
@@ -324,8 +326,8 @@ impl Model {
         }
         for c in &self.correlations {
             if c.first != c.second {
-                m[c.first][c.second] = c.value;
-                m[c.second][c.first] = c.value;
+                m[c.first.index()][c.second.index()] = c.value;
+                m[c.second.index()][c.first.index()] = c.value;
             }
         }
         m
@@ -346,12 +348,14 @@ impl Model {
         }
     }
 
-    pub fn param_index(&self, name: &str) -> Option<usize> {
-        self.params.iter().position(|p| p.name == name)
+    /// The parameter declared as `name`.
+    pub fn param_id(&self, name: &str) -> Option<ParamId> {
+        self.params.find_id(|p| p.name == name)
     }
 
-    pub fn factor_index(&self, name: &str) -> Option<usize> {
-        self.factors.iter().position(|s| s.name == name)
+    /// The factor declared as `name`.
+    pub fn factor_id(&self, name: &str) -> Option<FactorId> {
+        self.factors.find_id(|s| s.name == name)
     }
 }
 
@@ -360,12 +364,12 @@ impl Model {
 #[derive(Clone, Debug, Default, PartialEq)]
 pub struct Correlations {
     shocks: usize,
-    pairs: std::collections::HashMap<(usize, usize), f64>,
+    pairs: std::collections::HashMap<(ShockId, ShockId), f64>,
 }
 
 impl Correlations {
     /// The correlation of shocks `k` and `l`: 1 on the diagonal, 0 where none is given.
-    pub fn get(&self, k: usize, l: usize) -> f64 {
+    pub fn get(&self, k: ShockId, l: ShockId) -> f64 {
         if k == l {
             return 1.0;
         }
@@ -384,9 +388,10 @@ impl Correlations {
     /// correlations, each sorted, in the order of their first noise. Every noise outside
     /// them is uncorrelated with all others, so the matrix is block diagonal with these
     /// blocks and ones.
-    pub fn blocks(&self) -> Vec<Vec<usize>> {
-        let mut parent: std::collections::HashMap<usize, usize> = std::collections::HashMap::new();
-        fn root(parent: &mut std::collections::HashMap<usize, usize>, i: usize) -> usize {
+    pub fn blocks(&self) -> Vec<Vec<ShockId>> {
+        let mut parent: std::collections::HashMap<ShockId, ShockId> =
+            std::collections::HashMap::new();
+        fn root(parent: &mut std::collections::HashMap<ShockId, ShockId>, i: ShockId) -> ShockId {
             let mut r = i;
             while let Some(&p) = parent.get(&r) {
                 if p == r {
@@ -398,7 +403,7 @@ impl Correlations {
             r
         }
         for (&(k, l), &v) in &self.pairs {
-            if v == 0.0 || k >= self.shocks || l >= self.shocks {
+            if v == 0.0 || k.index() >= self.shocks || l.index() >= self.shocks {
                 continue;
             }
             parent.entry(k).or_insert(k);
@@ -408,29 +413,39 @@ impl Correlations {
                 parent.insert(rk.max(rl), rk.min(rl));
             }
         }
-        let mut members: Vec<usize> = parent.keys().copied().collect();
+        let mut members: Vec<ShockId> = parent.keys().copied().collect();
         members.sort_unstable();
-        let mut groups: std::collections::BTreeMap<usize, Vec<usize>> =
+        let mut groups: std::collections::BTreeMap<ShockId, Vec<ShockId>> =
             std::collections::BTreeMap::new();
         for i in members {
             let r = root(&mut parent, i);
             groups.entry(r).or_default().push(i);
         }
-        let mut blocks: Vec<Vec<usize>> = groups.into_values().filter(|b| b.len() > 1).collect();
+        let mut blocks: Vec<Vec<ShockId>> = groups.into_values().filter(|b| b.len() > 1).collect();
         blocks.sort_by_key(|b| b.first().copied());
         blocks
     }
 }
 
 impl Expr {
+    /// The parameter at `index` of [`Model::params`] (for expressions built by hand).
+    pub fn param(index: usize) -> Expr {
+        Expr::Param(ParamId::new(index))
+    }
+
+    /// The factor at `index` of [`Model::factors`] (for expressions built by hand).
+    pub fn factor(index: usize) -> Expr {
+        Expr::Factor(FactorId::new(index))
+    }
+
     /// Evaluates the expression with parameter values `params` (clock units), state
     /// values `states` and time `t`. `Invalid` evaluates to NaN.
     pub fn eval(&self, params: &[f64], states: &[f64], t: f64) -> f64 {
         let ev = |e: &Expr| e.eval(params, states, t);
         match self {
             Expr::Const(c) => *c,
-            Expr::Param(i) => params.get(*i).copied().unwrap_or(f64::NAN),
-            Expr::Factor(i) => states.get(*i).copied().unwrap_or(f64::NAN),
+            Expr::Param(i) => params.get(i.index()).copied().unwrap_or(f64::NAN),
+            Expr::Factor(i) => states.get(i.index()).copied().unwrap_or(f64::NAN),
             Expr::Time => t,
             Expr::Neg(a) => -ev(a),
             Expr::Add(a, b) => ev(a) + ev(b),
@@ -476,10 +491,10 @@ impl Model {
     /// earlier ones from `values` (clock units, one per parameter): after a fit or any
     /// change of the free parameters, the derived ones follow.
     pub fn derive_params(&self, values: &mut [f64]) {
-        for (i, p) in self.params.iter().enumerate() {
+        for (id, p) in self.params.iter_ids() {
             if let Some(expr) = &p.expr {
                 let value = expr.eval(values, &[], 0.0);
-                if let Some(slot) = values.get_mut(i) {
+                if let Some(slot) = values.get_mut(id.index()) {
                     *slot = value;
                 }
             }
@@ -488,13 +503,13 @@ impl Model {
 
     /// The free parameters a parameter's value rests on: itself when it is written as a
     /// number, else the free parameters of its expression (in declaration order).
-    pub fn free_params_of(&self, param: usize) -> Vec<usize> {
+    pub fn free_params_of(&self, param: ParamId) -> Vec<ParamId> {
         let mut out = Vec::new();
         let mut pending = vec![param];
         while let Some(i) = pending.pop() {
-            match self.params.get(i).and_then(|p| p.expr.as_ref()) {
-                Some(expr) => expr.params(&mut pending),
-                None if i < self.params.len() => out.push(i),
+            match self.params.by_id(i).map(|p| p.expr.as_ref()) {
+                Some(Some(expr)) => expr.params(&mut pending),
+                Some(None) => out.push(i),
                 None => {}
             }
         }

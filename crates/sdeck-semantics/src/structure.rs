@@ -4,22 +4,23 @@
 //! as resolved, and the equation terms the lowering left out. The rules decide and word
 //! their findings from these records; the analysis only keeps what it saw.
 
+use crate::ids::{FactorId, IdVec, ParamId, ShockId};
 use sdeck_diagnostics::Span;
 
 /// The records of one file; see the module documentation.
 #[derive(Clone, Debug, Default, PartialEq)]
 pub struct Structure {
     /// The statement (index into `file.statements`) that declares each parameter of the
-    /// model, by index in `model.params`.
-    pub param_statements: Vec<usize>,
-    /// The statement that declares each factor, by index in `model.factors`.
-    pub factor_statements: Vec<usize>,
+    /// model.
+    pub param_statements: IdVec<ParamId, usize>,
+    /// The statement that declares each factor.
+    pub factor_statements: IdVec<FactorId, usize>,
     /// Every `corr` statement whose two names are shocks, in file order; the model holds
     /// those whose value is a correlation (see [`WrittenCorrelation::is_correlation`]).
     pub correlations: Vec<WrittenCorrelation>,
     /// For each factor, whether text that did not parse may hold its equation (`dr =
     /// ...`, or the slips `d r = ...` and `dr/dt = ...`).
-    pub equation_unparsed: Vec<bool>,
+    pub equation_unparsed: IdVec<FactorId, bool>,
     /// Terms of an equation left out of the model because an earlier term of the same
     /// equation ends with the same differential.
     pub repeated_terms: Vec<RepeatedTerm>,
@@ -28,9 +29,9 @@ pub struct Structure {
 /// A `corr` statement whose two names are shocks.
 #[derive(Clone, Debug, PartialEq)]
 pub struct WrittenCorrelation {
-    /// Indices into `model.shocks`.
-    pub first: usize,
-    pub second: usize,
+    /// Shocks of `model.shocks`.
+    pub first: ShockId,
+    pub second: ShockId,
     /// The whole statement.
     pub span: Span,
     /// The value as written.
@@ -66,16 +67,16 @@ impl WrittenCorrelation {
 pub enum Differential {
     /// `dt`.
     Time,
-    /// `dW`, by index into `model.shocks`.
-    Shock(usize),
+    /// `dW`, a shock of `model.shocks`.
+    Shock(ShockId),
 }
 
 /// A term of an equation whose differential an earlier term of the equation already
 /// ends with.
 #[derive(Clone, Debug, PartialEq)]
 pub struct RepeatedTerm {
-    /// Index into `model.factors`: the factor whose equation it is.
-    pub factor: usize,
+    /// The factor of `model.factors` whose equation it is.
+    pub factor: FactorId,
     pub differential: Differential,
     /// The repeated term.
     pub span: Span,

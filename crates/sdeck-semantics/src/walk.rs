@@ -4,7 +4,7 @@
 //! to recurse. Folds that build something per variant (evaluation, polynomials,
 //! bytecode) still match; they are not walks.
 
-use crate::model::Expr;
+use crate::model::{Expr, FactorId, ParamId};
 
 sdeck_syntax::expression_walks!(Expr);
 
@@ -26,8 +26,8 @@ impl Expr {
         }
     }
 
-    /// Appends the index of every parameter the expression mentions, left to right.
-    pub fn params(&self, out: &mut Vec<usize>) {
+    /// Appends every parameter the expression mentions, left to right.
+    pub fn params(&self, out: &mut Vec<ParamId>) {
         self.walk(&mut |e| {
             if let Expr::Param(i) = e {
                 out.push(*i);
@@ -35,8 +35,8 @@ impl Expr {
         });
     }
 
-    /// Appends the index of every factor the expression mentions, left to right.
-    pub fn factors(&self, out: &mut Vec<usize>) {
+    /// Appends every factor the expression mentions, left to right.
+    pub fn factors(&self, out: &mut Vec<FactorId>) {
         self.walk(&mut |e| {
             if let Expr::Factor(i) = e {
                 out.push(*i);
@@ -52,7 +52,15 @@ impl Expr {
 
 #[cfg(test)]
 mod tests {
-    use crate::model::{Expr, Function};
+    use crate::model::{Expr, FactorId, Function, ParamId};
+
+    fn p(i: usize) -> Expr {
+        Expr::Param(ParamId::new(i))
+    }
+
+    fn x(i: usize) -> Expr {
+        Expr::Factor(FactorId::new(i))
+    }
 
     fn b(e: Expr) -> Box<Expr> {
         Box::new(e)
@@ -61,13 +69,10 @@ mod tests {
     /// `-(p0 * x1) + max(p2, t) ^ x0`
     fn sample() -> Expr {
         Expr::Add(
-            b(Expr::Neg(b(Expr::Mul(
-                b(Expr::Param(0)),
-                b(Expr::Factor(1)),
-            )))),
+            b(Expr::Neg(b(Expr::Mul(b(p(0)), b(x(1)))))),
             b(Expr::Pow(
-                b(Expr::Call(Function::Max, vec![Expr::Param(2), Expr::Time])),
-                b(Expr::Factor(0)),
+                b(Expr::Call(Function::Max, vec![p(2), Expr::Time])),
+                b(x(0)),
             )),
         )
     }
@@ -89,10 +94,10 @@ mod tests {
         assert_eq!(leaves, ["p0", "x1", "p2", "t", "x0"]);
         let mut params = Vec::new();
         sample().params(&mut params);
-        assert_eq!(params, [0, 2]);
+        assert_eq!(params, [ParamId::new(0), ParamId::new(2)]);
         let mut factors = Vec::new();
         sample().factors(&mut factors);
-        assert_eq!(factors, [1, 0]);
+        assert_eq!(factors, [FactorId::new(1), FactorId::new(0)]);
     }
 
     #[test]

@@ -143,7 +143,7 @@ fn a_correlation_may_be_an_expression_of_parameters() {
     assert!(a.model.correlations[0].expr.is_some());
     // The parameter is used by the correlation.
     assert_eq!(a.model.params[0].name, "rho");
-    assert_eq!(a.usage.params, vec![true]);
+    assert_eq!(*a.usage.params, [true]);
     // A plain number keeps no expression.
     let plain = analyze("shock W, B\ncorr W, B = -0.4\n", "test");
     assert_eq!(plain.model.correlations[0].value, -0.4);

@@ -6,7 +6,7 @@ use crate::convert::Converter;
 use crate::documents::{PositionEncoding, TextSnapshot};
 use sdeck_checks::{FileCheck, RuleSettings};
 use sdeck_report::{FactorReport, Levels};
-use sdeck_semantics::{Symbol, SymbolKind};
+use sdeck_semantics::{FactorId, Symbol, SymbolKind};
 use sdeck_syntax::ast::{Declaration, StatementKind};
 use sdeck_syntax::LineIndex;
 use std::path::Path;
@@ -141,7 +141,7 @@ impl Analyzed {
                 FactorReport::build(
                     model,
                     &self.check.derivation,
-                    state,
+                    FactorId::new(state),
                     model.horizon,
                     &horizon_levels(state),
                 )
@@ -232,19 +232,19 @@ impl Analyzed {
             .collect();
         for (state, law) in derivation.states.iter().enumerate() {
             if let Some(terms) =
-                sdeck_calculus::describe::square_root_terms(model, derivation, state)
+                sdeck_calculus::describe::square_root_terms(model, derivation, FactorId::new(state))
             {
                 let half_life = law.half_life;
-                if let Some(slot) = terms.speed_param.and_then(|p| roles.get_mut(p)) {
+                if let Some(slot) = terms.speed_param.and_then(|p| roles.get_mut(p.index())) {
                     slot.push(Role::Speed { state, half_life });
                 }
-                if let Some(slot) = terms.vol_param.and_then(|p| roles.get_mut(p)) {
+                if let Some(slot) = terms.vol_param.and_then(|p| roles.get_mut(p.index())) {
                     slot.push(Role::Volatility { state });
                 }
                 continue;
             }
             if let Some(slope) =
-                sdeck_calculus::describe::drift_slope_text(model, derivation, state)
+                sdeck_calculus::describe::drift_slope_text(model, derivation, FactorId::new(state))
             {
                 let slope = slope.replace('−', "-");
                 let speed = slope.strip_prefix('-').and_then(|name| by_name.get(name));

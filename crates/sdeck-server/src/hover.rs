@@ -23,8 +23,8 @@ pub fn hover(
     let model = &a.check.analysis.model;
     let (doc, span) = if let Some(symbol) = a.symbol_at(offset) {
         let doc = match symbol.kind {
-            SymbolKind::Factor => state_doc(a, model.factor_index(&symbol.name)?),
-            SymbolKind::Param => Doc::text(param_text(a, model.param_index(&symbol.name)?)),
+            SymbolKind::Factor => state_doc(a, model.factor_id(&symbol.name)?.index()),
+            SymbolKind::Param => Doc::text(param_text(a, model.param_id(&symbol.name)?.index())),
             SymbolKind::Shock => Doc::text(noise_text(model, &symbol.name)?),
             SymbolKind::Let => Doc::text(let_text(model, &symbol.name)?),
             SymbolKind::Unit => Doc::text(unit_text(model, &symbol.name)),
@@ -474,7 +474,7 @@ fn param_text(a: &Analyzed, i: usize) -> String {
 }
 
 fn noise_text(model: &Model, name: &str) -> Option<String> {
-    let index = model.shocks.iter().position(|n| n.name == name)?;
+    let index = model.shocks.find_id(|n| n.name == name)?;
     let noise = &model.shocks[index];
     let mut s = format!("**shock `{}`** · standard Brownian motion\n", noise.name);
     if let Some(description) = &noise.description {
@@ -491,7 +491,7 @@ fn noise_text(model: &Model, name: &str) -> Option<String> {
         };
         let other = model
             .shocks
-            .get(other)
+            .by_id(other)
             .map(|n| n.name.as_str())
             .unwrap_or("?");
         lines.push(format!("- ρ({}, {other}) = {}", noise.name, plain(c.value)));

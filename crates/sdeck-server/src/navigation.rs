@@ -132,8 +132,8 @@ pub fn document_symbols(a: &Analyzed, encoding: PositionEncoding) -> Vec<Documen
                 SymbolKind::Param => (LspSymbolKind::CONSTANT, "param".to_string()),
                 SymbolKind::Factor => {
                     let family = model
-                        .factor_index(&s.name)
-                        .and_then(|i| a.check.derivation.states.get(i))
+                        .factor_id(&s.name)
+                        .and_then(|i| a.check.derivation.states.by_id(i))
                         .map(|l| format!("factor · {}", l.family.as_str()))
                         .unwrap_or_else(|| "factor".to_string());
                     (LspSymbolKind::VARIABLE, family)

@@ -58,10 +58,10 @@ pub fn affine_form(expr: &Expr, params: &[f64], state_count: usize) -> Option<Af
         match expr {
             Expr::Invalid | Expr::Time => return None,
             Expr::Const(c) => AffineForm::constant(*c, state_count),
-            Expr::Param(i) => AffineForm::constant(*params.get(*i)?, state_count),
+            Expr::Param(i) => AffineForm::constant(*params.get(i.index())?, state_count),
             Expr::Factor(i) => {
                 let mut form = AffineForm::constant(0.0, state_count);
-                *form.coefficients.get_mut(*i)? = 1.0;
+                *form.coefficients.get_mut(i.index())? = 1.0;
                 form
             }
             Expr::Neg(a) => affine_form(a, params, state_count)?.scaled(-1.0),
@@ -182,8 +182,8 @@ mod tests {
     fn mean_reverting_drift_is_affine() {
         // kappa * (level - x) with kappa = 2, level = 0.03, read against y as well.
         let drift = Expr::Mul(
-            b(Expr::Param(0)),
-            b(Expr::Sub(b(Expr::Param(1)), b(Expr::Factor(0)))),
+            b(Expr::param(0)),
+            b(Expr::Sub(b(Expr::param(1)), b(Expr::factor(0)))),
         );
         let form = affine_form(&drift, &[2.0, 0.03], 2).unwrap();
         assert!((form.constant - 0.06).abs() < 1e-15);
@@ -193,18 +193,18 @@ mod tests {
 
     #[test]
     fn products_of_states_time_and_functions_of_states_are_not_affine() {
-        let square = Expr::Mul(b(Expr::Factor(0)), b(Expr::Factor(0)));
+        let square = Expr::Mul(b(Expr::factor(0)), b(Expr::factor(0)));
         assert_eq!(affine_form(&square, &[], 1), None);
         assert_eq!(
-            affine_form(&Expr::Mul(b(Expr::Time), b(Expr::Factor(0))), &[], 1),
+            affine_form(&Expr::Mul(b(Expr::Time), b(Expr::factor(0))), &[], 1),
             None
         );
         assert_eq!(
-            affine_form(&Expr::Call(Function::Exp, vec![Expr::Factor(0)]), &[], 1),
+            affine_form(&Expr::Call(Function::Exp, vec![Expr::factor(0)]), &[], 1),
             None
         );
         assert_eq!(
-            affine_form(&Expr::Div(b(Expr::Factor(0)), b(Expr::Const(0.0))), &[], 1),
+            affine_form(&Expr::Div(b(Expr::factor(0)), b(Expr::Const(0.0))), &[], 1),
             None
         );
         let constant_call = Expr::Call(Function::Sqrt, vec![Expr::Const(4.0)]);
@@ -216,8 +216,8 @@ mod tests {
 
     #[test]
     fn square_root_diffusions_are_recognised_in_their_usual_spellings() {
-        let sqrt_x = Expr::Call(Function::Sqrt, vec![Expr::Factor(0)]);
-        let vol_sqrt_x = Expr::Mul(b(Expr::Param(0)), b(sqrt_x.clone()));
+        let sqrt_x = Expr::Call(Function::Sqrt, vec![Expr::factor(0)]);
+        let vol_sqrt_x = Expr::Mul(b(Expr::param(0)), b(sqrt_x.clone()));
         assert_eq!(scaled_square_root(&vol_sqrt_x, &[0.3], 1), Some((0.3, 0)));
         let sqrt_x_over_two = Expr::Div(b(sqrt_x), b(Expr::Const(2.0)));
         assert_eq!(scaled_square_root(&sqrt_x_over_two, &[], 1), Some((0.5, 0)));
@@ -225,15 +225,15 @@ mod tests {
         let inside = Expr::Call(
             Function::Sqrt,
             vec![Expr::Mul(
-                b(Expr::Pow(b(Expr::Param(0)), b(Expr::Const(2.0)))),
-                b(Expr::Factor(0)),
+                b(Expr::Pow(b(Expr::param(0)), b(Expr::Const(2.0)))),
+                b(Expr::factor(0)),
             )],
         );
         let (factor, state) = scaled_square_root(&inside, &[0.3], 1).unwrap();
         assert!((factor - 0.3).abs() < 1e-15 && state == 0);
         // x ^ 0.5 with another state: not a square root of one state.
         let mixed = Expr::Pow(
-            b(Expr::Add(b(Expr::Factor(0)), b(Expr::Factor(1)))),
+            b(Expr::Add(b(Expr::factor(0)), b(Expr::factor(1)))),
             b(Expr::Const(0.5)),
         );
         assert_eq!(scaled_square_root(&mixed, &[], 2), None);

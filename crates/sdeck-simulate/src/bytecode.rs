@@ -139,12 +139,12 @@ fn fold(expr: &Expr, params: &[f64], state_count: usize) -> Result<Node, Compile
     let node = match expr {
         Expr::Invalid => return Err(CompileError::Invalid),
         Expr::Const(c) => Node::Const(*c),
-        Expr::Param(i) => Node::Const(*params.get(*i).ok_or(CompileError::UnknownIndex)?),
+        Expr::Param(i) => Node::Const(*params.get(i.index()).ok_or(CompileError::UnknownIndex)?),
         Expr::Factor(i) => {
-            if *i >= state_count {
+            if i.index() >= state_count {
                 return Err(CompileError::UnknownIndex);
             }
-            Node::State(*i)
+            Node::State(i.index())
         }
         Expr::Time => Node::Time,
         Expr::Neg(a) => unary(UnaryOp::Negate, fold(a, params, state_count)?),
@@ -402,7 +402,7 @@ pub fn mark_root_states(expr: &Expr, marks: &mut [bool]) {
     fn mark_all(expr: &Expr, marks: &mut [bool]) {
         expr.walk(&mut |e| {
             if let Expr::Factor(i) = e {
-                if let Some(mark) = marks.get_mut(*i) {
+                if let Some(mark) = marks.get_mut(i.index()) {
                     *mark = true;
                 }
             }
@@ -589,24 +589,33 @@ mod tests {
         use Expr::*;
         vec![
             // kappa * (level - x)
-            Mul(b(Param(0)), b(Sub(b(Param(1)), b(Factor(0))))),
+            Mul(
+                b(Expr::param(0)),
+                b(Sub(b(Expr::param(1)), b(Expr::factor(0)))),
+            ),
             // vol * sqrt(x)
-            Mul(b(Param(2)), b(Call(Function::Sqrt, vec![Factor(0)]))),
+            Mul(
+                b(Expr::param(2)),
+                b(Call(Function::Sqrt, vec![Expr::factor(0)])),
+            ),
             // x - x^3 + y / 2
             Add(
-                b(Sub(b(Factor(0)), b(Pow(b(Factor(0)), b(Const(3.0)))))),
-                b(Div(b(Factor(1)), b(Const(2.0)))),
+                b(Sub(
+                    b(Expr::factor(0)),
+                    b(Pow(b(Expr::factor(0)), b(Const(3.0)))),
+                )),
+                b(Div(b(Expr::factor(1)), b(Const(2.0)))),
             ),
             // exp(-x) * log(y) + abs(sin(t)) - cos(x * t)
             Sub(
                 b(Add(
                     b(Mul(
-                        b(Call(Function::Exp, vec![Neg(b(Factor(0)))])),
-                        b(Call(Function::Log, vec![Factor(1)])),
+                        b(Call(Function::Exp, vec![Neg(b(Expr::factor(0)))])),
+                        b(Call(Function::Log, vec![Expr::factor(1)])),
                     )),
                     b(Call(Function::Abs, vec![Call(Function::Sin, vec![Time])])),
                 )),
-                b(Call(Function::Cos, vec![Mul(b(Factor(0)), b(Time))])),
+                b(Call(Function::Cos, vec![Mul(b(Expr::factor(0)), b(Time))])),
             ),
             // min(x, level) + max(y, 1) - 1 / x + x ^ y + x ^ 0.5 + (2 - y) + (x - 1)
             Add(
@@ -614,31 +623,31 @@ mod tests {
                     b(Add(
                         b(Sub(
                             b(Add(
-                                b(Call(Function::Min, vec![Factor(0), Param(1)])),
-                                b(Call(Function::Max, vec![Factor(1), Const(1.0)])),
+                                b(Call(Function::Min, vec![Expr::factor(0), Expr::param(1)])),
+                                b(Call(Function::Max, vec![Expr::factor(1), Const(1.0)])),
                             )),
-                            b(Div(b(Const(1.0)), b(Factor(0)))),
+                            b(Div(b(Const(1.0)), b(Expr::factor(0)))),
                         )),
-                        b(Pow(b(Factor(0)), b(Factor(1)))),
+                        b(Pow(b(Expr::factor(0)), b(Expr::factor(1)))),
                     )),
-                    b(Pow(b(Factor(0)), b(Const(0.5)))),
+                    b(Pow(b(Expr::factor(0)), b(Const(0.5)))),
                 )),
                 b(Add(
-                    b(Sub(b(Const(2.0)), b(Factor(1)))),
-                    b(Sub(b(Factor(0)), b(Const(1.0)))),
+                    b(Sub(b(Const(2.0)), b(Expr::factor(1)))),
+                    b(Sub(b(Expr::factor(0)), b(Const(1.0)))),
                 )),
             ),
             // a constant expression: 2 * kappa ^ 2
-            Mul(b(Const(2.0)), b(Pow(b(Param(0)), b(Const(2.0))))),
+            Mul(b(Const(2.0)), b(Pow(b(Expr::param(0)), b(Const(2.0))))),
             // x ^ -2 + x ^ 7 + (1 + x) + (x * 3)
             Add(
                 b(Add(
-                    b(Pow(b(Factor(0)), b(Const(-2.0)))),
-                    b(Pow(b(Factor(0)), b(Const(7.0)))),
+                    b(Pow(b(Expr::factor(0)), b(Const(-2.0)))),
+                    b(Pow(b(Expr::factor(0)), b(Const(7.0)))),
                 )),
                 b(Add(
-                    b(Add(b(Const(1.0)), b(Factor(0)))),
-                    b(Mul(b(Factor(0)), b(Const(3.0)))),
+                    b(Add(b(Const(1.0)), b(Expr::factor(0)))),
+                    b(Mul(b(Expr::factor(0)), b(Const(3.0)))),
                 )),
             ),
         ]
@@ -668,13 +677,13 @@ mod tests {
     fn constants_fold_and_parameters_disappear() {
         let expr = Expr::Mul(
             b(Expr::Const(2.0)),
-            b(Expr::Pow(b(Expr::Param(0)), b(Expr::Const(2.0)))),
+            b(Expr::Pow(b(Expr::param(0)), b(Expr::Const(2.0)))),
         );
         let program = Program::compile(&expr, &[3.0], 0, &[]).unwrap();
         assert_eq!(program.constant(), Some(18.0));
         let expr = Expr::Mul(
-            b(Expr::Param(0)),
-            b(Expr::Sub(b(Expr::Param(1)), b(Expr::Factor(0)))),
+            b(Expr::param(0)),
+            b(Expr::Sub(b(Expr::param(1)), b(Expr::factor(0)))),
         );
         let program = Program::compile(&expr, &[1.5, 0.04], 1, &[false]).unwrap();
         assert!(program
@@ -686,7 +695,7 @@ mod tests {
 
     #[test]
     fn truncated_states_read_their_positive_part() {
-        let expr = Expr::Call(Function::Sqrt, vec![Expr::Factor(0)]);
+        let expr = Expr::Call(Function::Sqrt, vec![Expr::factor(0)]);
         let program = Program::compile(&expr, &[], 1, &[true]).unwrap();
         assert_eq!(program.evaluate_one(&[-0.3], 0.0), 0.0);
         assert_eq!(program.evaluate_one(&[0.25], 0.0), 0.5);
@@ -699,11 +708,11 @@ mod tests {
             Err(CompileError::Invalid)
         );
         assert_eq!(
-            Program::compile(&Expr::Param(3), &[], 0, &[]),
+            Program::compile(&Expr::param(3), &[], 0, &[]),
             Err(CompileError::UnknownIndex)
         );
         assert_eq!(
-            Program::compile(&Expr::Factor(1), &[], 1, &[false]),
+            Program::compile(&Expr::factor(1), &[], 1, &[false]),
             Err(CompileError::UnknownIndex)
         );
         let bad_call = Expr::Call(Function::Min, vec![Expr::Const(1.0)]);
@@ -720,10 +729,10 @@ mod tests {
         // sqrt(x) * y^2 + z^1.5
         let expr = Add(
             b(Mul(
-                b(Call(Function::Sqrt, vec![Factor(0)])),
-                b(Pow(b(Factor(1)), b(Const(2.0)))),
+                b(Call(Function::Sqrt, vec![Expr::factor(0)])),
+                b(Pow(b(Expr::factor(1)), b(Const(2.0)))),
             )),
-            b(Pow(b(Factor(2)), b(Const(1.5)))),
+            b(Pow(b(Expr::factor(2)), b(Const(1.5)))),
         );
         mark_root_states(&expr, &mut marks);
         assert_eq!(marks, [true, false, true]);
@@ -742,7 +751,7 @@ mod schedules {
         let c = Expr::Const;
         let step = Expr::Call(
             Function::Step,
-            vec![Expr::Time, c(2.0), c(0.5), c(3.0), Expr::Param(0), c(-1.0)],
+            vec![Expr::Time, c(2.0), c(0.5), c(3.0), Expr::param(0), c(-1.0)],
         );
         let ramp = Expr::Call(
             Function::Ramp,
@@ -751,8 +760,8 @@ mod schedules {
                 c(0.5),
                 c(2.0),
                 c(0.75),
-                Expr::Mul(Box::new(c(3.0)), Box::new(Expr::Factor(0))),
-                Expr::Param(0),
+                Expr::Mul(Box::new(c(3.0)), Box::new(Expr::factor(0))),
+                Expr::param(0),
                 c(-1.0),
             ],
         );
@@ -803,8 +812,8 @@ mod properties {
     fn expression() -> impl Strategy<Value = Expr> {
         let leaf = prop_oneof![
             (-3.0f64..3.0).prop_map(Expr::Const),
-            (0usize..2).prop_map(Expr::Param),
-            (0usize..2).prop_map(Expr::Factor),
+            (0usize..2).prop_map(Expr::param),
+            (0usize..2).prop_map(Expr::factor),
             Just(Expr::Time),
             // Small integer and half-integer constants reach the power shortcuts.
             (-4i32..6).prop_map(|n| Expr::Const(f64::from(n) * 0.5)),

@@ -56,11 +56,9 @@ pub fn closed_figures_at(
         .map(|(i, moments)| ClosedFigures {
             mean: moments.map(|m| m.0),
             variance: moments.map(|m| m.1),
-            below: thresholds
-                .get(i)
-                .copied()
-                .flatten()
-                .and_then(|q| law_of(model, derivation, i, t)?.cdf(q)),
+            below: thresholds.get(i).copied().flatten().and_then(|q| {
+                law_of(model, derivation, sdeck_semantics::FactorId::new(i), t)?.cdf(q)
+            }),
         })
         .collect()
 }

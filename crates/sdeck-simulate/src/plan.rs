@@ -226,13 +226,14 @@ fn read_shapes(model: &Model) -> Vec<Option<StateShape>> {
                 .diffusion
                 .iter()
                 .map(|term| {
-                    affine_form(&term.coefficient, &params, n).map(|form| (term.noise, form))
+                    affine_form(&term.coefficient, &params, n)
+                        .map(|form| (term.noise.index(), form))
                 })
                 .collect::<Option<Vec<_>>>();
             // Only a square root of the state itself counts.
             let root = match equation.diffusion.as_slice() {
                 [term] => scaled_square_root(&term.coefficient, &params, n)
-                    .map(|(vol, root_state)| (term.noise, vol, root_state)),
+                    .map(|(vol, root_state)| (term.noise.index(), vol, root_state)),
                 _ => None,
             };
             let square_root = root
@@ -242,7 +243,7 @@ fn read_shapes(model: &Model) -> Vec<Option<StateShape>> {
             Some(StateShape {
                 drift,
                 diffusion,
-                noises: equation.diffusion.iter().map(|t| t.noise).collect(),
+                noises: equation.diffusion.iter().map(|t| t.noise.index()).collect(),
                 square_root,
                 variance_root,
             })

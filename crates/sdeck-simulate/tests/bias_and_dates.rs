@@ -4,7 +4,7 @@
 
 use sdeck_calculus::laws::{law_of, LawKind};
 use sdeck_calculus::{derive, moments_at};
-use sdeck_semantics::Model;
+use sdeck_semantics::{FactorId, Model};
 use sdeck_simulate::{
     check, closed_figures_at, plan, render_text, simulate_and_compare_below, simulate_paths,
     to_json, verdicts, ClosedFigures, ExactLaw, Plan, Scheme, SimulateError, SimulationOptions,
@@ -227,7 +227,7 @@ ds = mu * s dt + sigma * s dW
     );
     let derivation = derive(&gbm);
     // P(S_t < 100) = Φ((ln(100/100) − (μ − σ²/2)t)/(σ√t)) (Black & Scholes 1973).
-    let law = law_of(&gbm, &derivation, 0, 1.0).unwrap();
+    let law = law_of(&gbm, &derivation, FactorId::new(0), 1.0).unwrap();
     assert_eq!(law.kind(), LawKind::Lognormal);
     let expected = Normal::new(0.0, 1.0)
         .unwrap()
@@ -249,7 +249,7 @@ dr = kappa * (theta - r) dt + sigma * sqrt(r) dW
     );
     let derivation = derive(&cir);
     assert_eq!(
-        law_of(&cir, &derivation, 0, 1.0).map(|l| l.kind()),
+        law_of(&cir, &derivation, FactorId::new(0), 1.0).map(|l| l.kind()),
         Some(LawKind::NoncentralChiSquare)
     );
     let result = simulated(&cir, &options(40_000, 10, &[0.5, 1.0], 5), &[Some(0.01)]);

@@ -17,7 +17,7 @@ fn divide_by_state(poly: &Poly, state: usize) -> Option<Poly> {
         let mut rest: Monomial = Vec::with_capacity(monomial.len());
         for (atom, power) in monomial {
             match atom {
-                Atom::State(i) if *i == state => {
+                Atom::State(i) if i.index() == state => {
                     if *power != 1 {
                         return None;
                     }
@@ -38,13 +38,14 @@ fn divide_by_state(poly: &Poly, state: usize) -> Option<Poly> {
 /// mentions S again.
 fn relative_shape(shape: &Shape, state: usize) -> Option<Shape> {
     let drift = divide_by_state(&shape.drift, state)?;
-    if drift.states().contains(&state) {
+    let mentions = |poly: &Poly| poly.states().iter().any(|s| s.index() == state);
+    if mentions(&drift) {
         return None;
     }
     let mut noises = Vec::with_capacity(shape.noises.len());
     for term in &shape.noises {
         let scale = divide_by_state(&term.form.scale, state)?;
-        if scale.states().contains(&state) || term.form.radicand.states().contains(&state) {
+        if mentions(&scale) || mentions(&term.form.radicand) {
             return None;
         }
         let mut form = term.form.clone();

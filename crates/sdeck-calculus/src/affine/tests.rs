@@ -30,7 +30,7 @@ fn numeric(set: &AffineSet, u: &[Complex64], rate: &Rate, t: f64) -> Complex64 {
 }
 
 fn short_rate(set: &AffineSet, model: &Model, text: &str) -> Rate {
-    let index = model.factor_index(text).expect("factor");
+    let index = model.factor_id(text).expect("factor");
     let expr = Expr::Factor(index);
     Rate::new(set, &expr).expect("affine rate")
 }
@@ -116,10 +116,10 @@ fn two_factor_gaussian_bond_prices_match_brigo_mercurio() {
     let set = AffineSet::from_model(&m).expect("affine");
     let expr = Expr::Add(
         Box::new(Expr::Add(
-            Box::new(Expr::Factor(0)),
-            Box::new(Expr::Factor(1)),
+            Box::new(Expr::factor(0)),
+            Box::new(Expr::factor(1)),
         )),
-        Box::new(Expr::Param(m.param_index("phi").expect("phi"))),
+        Box::new(Expr::Param(m.param_id("phi").expect("phi"))),
     );
     let rate = Rate::new(&set, &expr).expect("affine rate");
     let (a, b, sigma, eta, rho, phi, x0, y0) = (

@@ -10,7 +10,7 @@ use sdeck_syntax::ast::Declaration;
 use sdeck_units::number;
 
 pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
-    for (i, p) in cx.model.params.iter().enumerate() {
+    for (i, p) in cx.model.params.iter_ids() {
         if let Some(decl) = cx
             .analysis
             .param_declaration(i)
@@ -19,7 +19,7 @@ pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
             out.push(finding(cx, decl, "parameter", p.value));
         }
     }
-    for (i, f) in cx.model.factors.iter().enumerate() {
+    for (i, f) in cx.model.factors.iter_ids() {
         if let Some(decl) = cx
             .analysis
             .factor_declaration(i)

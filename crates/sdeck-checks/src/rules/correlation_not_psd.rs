@@ -4,7 +4,7 @@ use super::shared::param_literal;
 use super::Context;
 use sdeck_calculus::correlation::{nearest_correlation_rounded, smallest_eigenvalue};
 use sdeck_diagnostics::{rules, Diagnostic, TextEdit};
-use sdeck_semantics::Model;
+use sdeck_semantics::{Model, ParamId, ShockId};
 use sdeck_syntax::ast::StatementKind;
 use sdeck_units::number;
 use sdeck_units::number::significant_whole;
@@ -62,7 +62,7 @@ pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
         match &c.expr {
             None => {}
             Some(sdeck_semantics::Expr::Param(p)) => {
-                let name = model.params.get(*p).map_or("?", |p| p.name.as_str());
+                let name = model.params.by_id(*p).map_or("?", |p| p.name.as_str());
                 diagnostic = diagnostic.with_note(format!(
                     "the correlation of `{}` and `{}` is the parameter `{name}` = {}: mend its value",
                     shock_name(model, c.first),
@@ -87,8 +87,8 @@ pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
     out.push(diagnostic);
 }
 
-fn shock_name(model: &Model, i: usize) -> &str {
-    model.shocks.get(i).map_or("?", |s| s.name.as_str())
+fn shock_name(model: &Model, i: ShockId) -> &str {
+    model.shocks.by_id(i).map_or("?", |s| s.name.as_str())
 }
 
 /// Replaces the `corr` values with the nearest correlation matrix (Higham 2002), adding
@@ -100,72 +100,115 @@ fn nearest_correlation_fix(cx: &Context) -> Option<(String, Vec<TextEdit>)> {
     }
     let matrix = model.correlation_matrix();
     let near = nearest_correlation_rounded(&matrix, 4)?;
-    let mut edits = Vec::new();
-    let mut written = vec![vec![false; near.len()]; near.len()];
-    let mut last_corr_end: Option<usize> = None;
-    let mut last_noise_end: Option<usize> = None;
-    // A correlation written as a parameter alone (`corr W, B = rho`) is mended by
-    // rewriting the parameter's value; one written as any other expression cannot be.
-    let mut param_targets: Vec<(usize, f64)> = Vec::new();
+    let mut rewrite = rewrite_statements(cx, &near)?;
+    for (p, target) in std::mem::take(&mut rewrite.param_targets) {
+        rewrite.edits.push(param_edit(cx, p, target)?);
+    }
+    let added = added_statements(model, &near, &rewrite.written);
+    if !added.is_empty() {
+        rewrite.edits.push(insert_after(cx.source, rewrite.after, added));
+    }
+    if rewrite.edits.is_empty() {
+        return None;
+    }
+    Some((
+        "Replace the correlations with the nearest correlation matrix (Higham 2002)".to_string(),
+        rewrite.edits,
+    ))
+}
+
+/// What the `corr` statements of a file need to hold the nearest matrix.
+struct Rewrite {
+    /// New values of the statements written as numbers.
+    edits: Vec<TextEdit>,
+    /// The pairs of shocks some statement names.
+    written: Vec<Vec<bool>>,
+    /// A correlation written as a parameter alone (`corr W, B = rho`) is mended by
+    /// rewriting the parameter's value, to this target.
+    param_targets: Vec<(ParamId, f64)>,
+    /// Where new statements go: after the last `corr`, else after the last `shock`.
+    after: usize,
+}
+
+/// Each `corr` statement set to its value in `near`; `None` when one is written as an
+/// expression other than a parameter alone (no quick fix rewrites it), or one parameter
+/// would need two values.
+fn rewrite_statements(cx: &Context, near: &[Vec<f64>]) -> Option<Rewrite> {
+    let model = cx.model;
+    let mut rewrite = Rewrite {
+        edits: Vec::new(),
+        written: vec![vec![false; near.len()]; near.len()],
+        param_targets: Vec::new(),
+        after: 0,
+    };
+    let (mut last_corr_end, mut last_noise_end) = (None, None);
     for statement in &cx.analysis.file.statements {
-        match &statement.kind {
-            StatementKind::Corr { first, second, .. } => {
-                last_corr_end = Some(statement.span.end);
-                let i = model.shocks.iter().position(|n| n.name == first.name)?;
-                let j = model.shocks.iter().position(|n| n.name == second.name)?;
-                if i == j {
-                    continue;
-                }
-                let target = near.get(i)?.get(j).copied()?;
-                written[i][j] = true;
-                written[j][i] = true;
-                let c = model
-                    .correlations
-                    .iter()
-                    .find(|c| c.span == statement.span)?;
-                if (target - c.value).abs() <= 1e-12 {
-                    continue;
-                }
-                match &c.expr {
-                    None => edits.push(TextEdit {
-                        span: c.value_span.clone(),
-                        new_text: number::plain(target),
-                    }),
-                    Some(sdeck_semantics::Expr::Param(p)) => {
-                        if param_targets.iter().any(|(q, t)| q == p && *t != target) {
-                            return None;
-                        }
-                        param_targets.push((*p, target));
-                    }
-                    Some(_) => return None,
-                }
+        let StatementKind::Corr { first, second, .. } = &statement.kind else {
+            if let StatementKind::Shock { .. } = statement.kind {
+                last_noise_end = Some(statement.span.end);
             }
-            StatementKind::Shock { .. } => last_noise_end = Some(statement.span.end),
-            _ => {}
+            continue;
+        };
+        last_corr_end = Some(statement.span.end);
+        let i = model.shocks.iter().position(|n| n.name == first.name)?;
+        let j = model.shocks.iter().position(|n| n.name == second.name)?;
+        if i == j {
+            continue;
+        }
+        let target = near.get(i)?.get(j).copied()?;
+        rewrite.written[i][j] = true;
+        rewrite.written[j][i] = true;
+        let c = model
+            .correlations
+            .iter()
+            .find(|c| c.span == statement.span)?;
+        if (target - c.value).abs() <= 1e-12 {
+            continue;
+        }
+        match &c.expr {
+            None => rewrite.edits.push(TextEdit {
+                span: c.value_span.clone(),
+                new_text: number::plain(target),
+            }),
+            Some(sdeck_semantics::Expr::Param(p)) => {
+                let targets = &mut rewrite.param_targets;
+                if targets.iter().any(|(q, t)| q == p && *t != target) {
+                    return None;
+                }
+                targets.push((*p, target));
+            }
+            Some(_) => return None,
         }
     }
-    for (p, target) in param_targets {
-        let param = model.params.get(p)?;
-        let number = param_literal(cx.analysis, &param.name)?;
-        if param.scale != 1.0 || param.bound.is_some_and(|b| !b.contains(target)) {
-            return None;
-        }
-        // The parameter must not also be used anywhere but in correlations.
-        let elsewhere = cx.analysis.references.iter().any(|r| {
-            r.declaration == param.name_span
-                && !model
-                    .correlations
-                    .iter()
-                    .any(|c| c.value_span.start <= r.span.start && r.span.end <= c.value_span.end)
-        });
-        if elsewhere {
-            return None;
-        }
-        edits.push(TextEdit {
-            span: number.span.clone(),
-            new_text: number::plain(target),
-        });
+    rewrite.after = last_corr_end.or(last_noise_end).unwrap_or(0);
+    Some(rewrite)
+}
+
+/// The edit that gives parameter `p` the value `target`; `None` when its value is not a
+/// plain number in clock units inside its bound, or the parameter is used anywhere but
+/// in correlations.
+fn param_edit(cx: &Context, p: ParamId, target: f64) -> Option<TextEdit> {
+    let model = cx.model;
+    let param = model.params.by_id(p)?;
+    let number = param_literal(cx.analysis, &param.name)?;
+    if param.scale != 1.0 || param.bound.is_some_and(|b| !b.contains(target)) {
+        return None;
     }
+    let elsewhere = cx.analysis.references.iter().any(|r| {
+        r.declaration == param.name_span
+            && !model
+                .correlations
+                .iter()
+                .any(|c| c.value_span.start <= r.span.start && r.span.end <= c.value_span.end)
+    });
+    (!elsewhere).then(|| TextEdit {
+        span: number.span.clone(),
+        new_text: number::plain(target),
+    })
+}
+
+/// `corr` statements for the pairs no statement names that `near` correlates.
+fn added_statements(model: &Model, near: &[Vec<f64>], written: &[Vec<bool>]) -> String {
     let mut added = String::new();
     for i in 0..near.len() {
         for j in i + 1..near.len() {
@@ -179,26 +222,22 @@ fn nearest_correlation_fix(cx: &Context) -> Option<(String, Vec<TextEdit>)> {
             }
         }
     }
-    if !added.is_empty() {
-        let after = last_corr_end.or(last_noise_end).unwrap_or(0);
-        let next = sdeck_syntax::lines::next_line_start(cx.source, after);
-        let at = (next > sdeck_syntax::lines::line_end(cx.source, after)).then_some(next);
-        match at {
-            Some(at) => edits.push(TextEdit {
-                span: at..at,
-                new_text: added,
-            }),
-            None => edits.push(TextEdit {
-                span: cx.source.len()..cx.source.len(),
-                new_text: format!("\n{added}"),
-            }),
+    added
+}
+
+/// Inserts `lines` at the start of the line after offset `after` (at the end of the file,
+/// on a line of their own, when there is none).
+fn insert_after(source: &str, after: usize, lines: String) -> TextEdit {
+    let next = sdeck_syntax::lines::next_line_start(source, after);
+    if next > sdeck_syntax::lines::line_end(source, after) {
+        TextEdit {
+            span: next..next,
+            new_text: lines,
+        }
+    } else {
+        TextEdit {
+            span: source.len()..source.len(),
+            new_text: format!("\n{lines}"),
         }
     }
-    if edits.is_empty() {
-        return None;
-    }
-    Some((
-        "Replace the correlations with the nearest correlation matrix (Higham 2002)".to_string(),
-        edits,
-    ))
 }

@@ -4,10 +4,11 @@
 
 use super::Context;
 use sdeck_diagnostics::{rules, Diagnostic};
+use sdeck_semantics::ShockId;
 use sdeck_units::number;
 
 pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
-    let shock = |i: usize| cx.model.shocks.get(i).map_or("", |s| s.name.as_str());
+    let shock = |i: ShockId| cx.model.shocks.by_id(i).map_or("", |s| s.name.as_str());
     for c in &cx.analysis.structure.correlations {
         let (first, second) = (shock(c.first), shock(c.second));
         if c.is_self() {

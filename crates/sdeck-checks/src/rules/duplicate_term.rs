@@ -12,7 +12,7 @@ pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
         let factor = cx
             .model
             .factors
-            .get(term.factor)
+            .by_id(term.factor)
             .map_or("", |f| f.name.as_str());
         let d = match term.differential {
             Differential::Time => Diagnostic::new(
@@ -23,7 +23,7 @@ pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
             .with_related(term.first.clone(), "first `dt` term here")
             .with_help("combine the drift into one term: `(a + b) dt`"),
             Differential::Shock(shock) => {
-                let shock = cx.model.shocks.get(shock).map_or("", |s| s.name.as_str());
+                let shock = cx.model.shocks.by_id(shock).map_or("", |s| s.name.as_str());
                 Diagnostic::new(
                     &rules::DUPLICATE_TERM,
                     term.span.clone(),

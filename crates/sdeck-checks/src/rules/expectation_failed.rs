@@ -3,7 +3,7 @@
 
 use super::shared::{show_interval_with, state_name};
 use super::Context;
-use sdeck_calculus::expectation_value;
+use sdeck_calculus::{expectation_value, StateLaw};
 use sdeck_diagnostics::{rules, Diagnostic};
 use sdeck_semantics::{Expectation, Interval, Model, Shown};
 use sdeck_syntax::ast::{Figure, Side};
@@ -18,7 +18,6 @@ pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
     if cx.broken {
         return;
     }
-    let clock = &model.clock.unit;
     for expectation in &model.expectations {
         // Each expectation may cost a law by Fourier inversion: a stale text stops here
         // (the check is then abandoned as a whole).
@@ -26,94 +25,109 @@ pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
             return;
         }
         let law = match expectation.state {
-            Some(state) => match derivation.states.get(state) {
+            Some(state) => match derivation.states.by_id(state) {
                 Some(law) => Some(law),
                 None => continue,
             },
             None => None,
         };
-        let described = describe_expectation(model, expectation);
         let value = expectation_value(model, derivation, expectation);
-        let show = |v: f64| show_figure(&expectation.shown, v);
-        match (value, law) {
+        let finding = match (value, law) {
             (Err(reason), _) if expectation.figure.on_curve() => {
-                let help = if model.discount.is_none() {
-                    "add the short rate, affine in the factors, e.g. `discount r`, or remove \
-                     the expectation"
-                } else {
-                    "the rate must be affine in the factors and its transform finite up to \
-                     the maturity; pin a shorter maturity or remove the expectation"
-                };
-                out.push(
-                    Diagnostic::new(
-                        &rules::EXPECTATION_FAILED,
-                        expectation.span.clone(),
-                        format!("{described} does not exist: {reason}"),
-                    )
-                    .with_help(help),
-                );
+                Some(no_curve_figure(model, expectation, &reason))
             }
-            (Err(reason), Some(law)) => {
-                let why = match expectation.figure {
-                    Figure::Halflife => {
-                        "no half-life (that needs a constant negative slope of its own drift)"
-                    }
-                    Figure::StationaryMean | Figure::StationaryVariance | Figure::StationarySd => {
-                        "no stationary law"
-                    }
-                    _ => reason.as_str(),
-                };
-                let name = expectation
-                    .state
-                    .map(|i| state_name(model, i))
-                    .unwrap_or_default();
-                let mut d = Diagnostic::new(
-                    &rules::EXPECTATION_FAILED,
-                    expectation.span.clone(),
-                    format!(
-                        "{described} does not exist: {name} is {} and has {why} ({})",
-                        law.family.as_str(),
-                        law.reason
-                    ),
-                )
-                .with_help("pin a figure that the family has, or remove the expectation");
-                if let Some(note) = overflow_note(model) {
-                    d = d.with_note(note);
-                }
-                out.push(d);
-            }
-            (Err(_), None) => {}
+            (Err(reason), Some(law)) => Some(no_figure(model, expectation, law, &reason)),
+            (Err(_), None) => None,
             (Ok(v), _) if !expectation.admissible.contains(v) => {
-                let note = match (&expectation.shown, law) {
-                    (Shown::Clock, Some(law)) => format!(
-                        "figures are in clock units ({clock}); derived by {}",
-                        law.method.as_str()
-                    ),
-                    (_, Some(law)) => format!("derived by {}", law.method.as_str()),
-                    (_, None) => "yields and forwards are continuously compounded annual \
-                                  rates; derived from the `discount` rate"
-                        .to_string(),
-                };
-                out.push(
-                    Diagnostic::new(
-                        &rules::EXPECTATION_FAILED,
-                        expectation.span.clone(),
-                        format!(
-                            "{described} = {}; expected {}",
-                            show(v),
-                            expected_text(&expectation.admissible, &show)
-                        ),
-                    )
-                    .with_note(note)
-                    .with_help(
-                        "change the parameters so that the figure falls in the interval, or \
-                         update the expectation if the model is right",
-                    ),
-                );
+                Some(outside(model, expectation, law, v))
             }
-            (Ok(_), _) => {}
-        }
+            (Ok(_), _) => None,
+        };
+        out.extend(finding);
     }
+}
+
+/// A figure of the curve (a price, yield or forward) that does not exist, and `reason`.
+fn no_curve_figure(model: &Model, expectation: &Expectation, reason: &str) -> Diagnostic {
+    let described = describe_expectation(model, expectation);
+    let help = if model.discount.is_none() {
+        "add the short rate, affine in the factors, e.g. `discount r`, or remove the expectation"
+    } else {
+        "the rate must be affine in the factors and its transform finite up to the maturity; \
+         pin a shorter maturity or remove the expectation"
+    };
+    Diagnostic::new(
+        &rules::EXPECTATION_FAILED,
+        expectation.span.clone(),
+        format!("{described} does not exist: {reason}"),
+    )
+    .with_help(help)
+}
+
+/// A figure of a factor that its family does not have (`reason` says why).
+fn no_figure(model: &Model, expectation: &Expectation, law: &StateLaw, reason: &str) -> Diagnostic {
+    let described = describe_expectation(model, expectation);
+    let why = match expectation.figure {
+        Figure::Halflife => "no half-life (that needs a constant negative slope of its own drift)",
+        Figure::StationaryMean | Figure::StationaryVariance | Figure::StationarySd => {
+            "no stationary law"
+        }
+        _ => reason,
+    };
+    let name = expectation
+        .state
+        .map(|i| state_name(model, i))
+        .unwrap_or_default();
+    let mut d = Diagnostic::new(
+        &rules::EXPECTATION_FAILED,
+        expectation.span.clone(),
+        format!(
+            "{described} does not exist: {name} is {} and has {why} ({})",
+            law.family.as_str(),
+            law.reason
+        ),
+    )
+    .with_help("pin a figure that the family has, or remove the expectation");
+    if let Some(note) = overflow_note(model) {
+        d = d.with_note(note);
+    }
+    d
+}
+
+/// A figure `v` outside the admissible values; `law` is the factor's (none for the curve).
+fn outside(
+    model: &Model,
+    expectation: &Expectation,
+    law: Option<&StateLaw>,
+    v: f64,
+) -> Diagnostic {
+    let described = describe_expectation(model, expectation);
+    let show = |v: f64| show_figure(&expectation.shown, v);
+    let clock = &model.clock.unit;
+    let note = match (&expectation.shown, law) {
+        (Shown::Clock, Some(law)) => format!(
+            "figures are in clock units ({clock}); derived by {}",
+            law.method.as_str()
+        ),
+        (_, Some(law)) => format!("derived by {}", law.method.as_str()),
+        (_, None) => "yields and forwards are continuously compounded annual rates; derived \
+                      from the `discount` rate"
+            .to_string(),
+    };
+    Diagnostic::new(
+        &rules::EXPECTATION_FAILED,
+        expectation.span.clone(),
+        format!(
+            "{described} = {}; expected {}",
+            show(v),
+            expected_text(&expectation.admissible, &show)
+        ),
+    )
+    .with_note(note)
+    .with_help(
+        "change the parameters so that the figure falls in the interval, or update the \
+         expectation if the model is right",
+    )
 }
 
 /// An expectation's figure as the reader wrote it, with its time as written (the horizon

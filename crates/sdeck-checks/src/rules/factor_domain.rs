@@ -6,7 +6,7 @@ use super::Context;
 use sdeck_calculus::algebra::to_poly;
 use sdeck_calculus::{Family, StateLaw};
 use sdeck_diagnostics::{rules, Diagnostic};
-use sdeck_semantics::{Expr, Function, Interval};
+use sdeck_semantics::{Expr, Factor, FactorId, Function, Interval, Model};
 use sdeck_units::number::significant_whole;
 
 /// Whether a square-root state fails the Feller condition (zero is attainable).
@@ -41,7 +41,7 @@ pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
 /// reaches zero.
 fn restricted_arguments(cx: &Context, out: &mut Vec<Diagnostic>) {
     let (model, derivation) = (cx.model, cx.derivation);
-    for (owner, state) in model.factors.iter().enumerate() {
+    for state in model.factors.iter() {
         let Some(eq) = &state.equation else {
             continue;
         };
@@ -59,7 +59,7 @@ fn restricted_arguments(cx: &Context, out: &mut Vec<Diagnostic>) {
                 continue;
             }
             for gaussian in poly.states() {
-                let Some(law) = derivation.states.get(gaussian) else {
+                let Some(law) = derivation.states.by_id(gaussian) else {
                     continue;
                 };
                 let reaches_zero = function == "log" && square_root_reaches_zero(law);
@@ -107,7 +107,6 @@ fn restricted_arguments(cx: &Context, out: &mut Vec<Diagnostic>) {
                 );
             }
         }
-        let _ = owner;
     }
 }
 
@@ -115,90 +114,91 @@ fn restricted_arguments(cx: &Context, out: &mut Vec<Diagnostic>) {
 /// family's law spreads beyond.
 fn bounds_and_starts(cx: &Context, out: &mut Vec<Diagnostic>) {
     let (model, derivation) = (cx.model, cx.derivation);
-    for (index, law) in derivation.states.iter().enumerate() {
-        let Some(state) = model.factors.get(index) else {
+    for (index, law) in derivation.states.iter_ids() {
+        let Some(state) = model.factors.by_id(index) else {
             continue;
         };
-        let name = &state.name;
-        let x0 = state.initial;
-        match law.family {
-            Family::GeometricBrownian if x0 <= 0.0 => {
-                let what = if x0 == 0.0 {
-                    "stays at zero forever"
-                } else {
-                    "stays negative"
-                };
-                out.push(
-                    Diagnostic::new(
-                        &rules::FACTOR_DOMAIN,
-                        state.span.clone(),
-                        format!(
-                            "{name} is geometric-brownian and starts at {}: it {what}, since a \
-                             proportional diffusion keeps the sign of its start",
-                            significant_whole(state.written, 4)
-                        ),
-                    )
-                    .with_help(format!("start {name} at a positive value")),
-                );
-                continue;
-            }
-            Family::SquareRoot if x0 < 0.0 => {
-                out.push(
-                    Diagnostic::new(
-                        &rules::FACTOR_DOMAIN,
-                        state.span.clone(),
-                        format!(
-                            "{name} is square-root and starts at {}: sqrt({name}) is undefined \
-                             below zero",
-                            significant_whole(state.written, 4)
-                        ),
-                    )
-                    .with_help(format!("start {name} at zero or above")),
-                );
-                continue;
-            }
-            _ => {}
+        if let Some(d) = impossible_start(state, law) {
+            out.push(d);
+        } else if state.has_domain {
+            out.extend(domain_left(model, index, state, law));
         }
-        if !state.has_domain {
-            continue;
-        }
-        let support = match law.family {
-            Family::GeometricBrownian if x0 > 0.0 => Some((Some((0.0, false)), "(0, ∞)")),
-            Family::SquareRoot => Some((Some((0.0, true)), "[0, ∞)")),
-            _ if law.is_gaussian_with_noise() => Some((None, "the whole real line")),
-            _ => None,
-        };
-        let Some((lower, support_text)) = support else {
-            continue;
-        };
-        if interval_keeps(&state.domain, lower) {
-            continue;
-        }
-        let keep = match law.family {
-            Family::OrnsteinUhlenbeck | Family::ArithmeticBrownian | Family::Linear => format!(
-                "use a square-root diffusion (`vol * sqrt({name}) dW`) to keep {name} ≥ 0, or \
-                 drop the bound"
-            ),
-            _ => "widen the bound to the support of the law, or drop it".to_string(),
-        };
-        out.push(
-            Diagnostic::new(
-                &rules::FACTOR_DOMAIN,
-                state.span.clone(),
-                format!(
-                    "{name} is {} and its law spreads over {support_text}, so it leaves the \
-                     declared domain {} with positive probability",
-                    law.family.as_str(),
-                    show_interval(&state.domain)
-                ),
-            )
-            .with_help(keep)
-            .with_related(
-                equation_span(model, index).unwrap_or_else(|| state.span.clone()),
-                "the equation that sets the law",
-            ),
-        );
     }
+}
+
+/// (b), (c): a geometric factor starting at or below zero, a square-root factor below.
+fn impossible_start(state: &Factor, law: &StateLaw) -> Option<Diagnostic> {
+    let (name, x0) = (&state.name, state.initial);
+    let (message, help) = match law.family {
+        Family::GeometricBrownian if x0 <= 0.0 => {
+            let what = if x0 == 0.0 {
+                "stays at zero forever"
+            } else {
+                "stays negative"
+            };
+            (
+                format!(
+                    "{name} is geometric-brownian and starts at {}: it {what}, since a \
+                     proportional diffusion keeps the sign of its start",
+                    significant_whole(state.written, 4)
+                ),
+                format!("start {name} at a positive value"),
+            )
+        }
+        Family::SquareRoot if x0 < 0.0 => (
+            format!(
+                "{name} is square-root and starts at {}: sqrt({name}) is undefined below zero",
+                significant_whole(state.written, 4)
+            ),
+            format!("start {name} at zero or above"),
+        ),
+        _ => return None,
+    };
+    Some(Diagnostic::new(&rules::FACTOR_DOMAIN, state.span.clone(), message).with_help(help))
+}
+
+/// (d): a declared domain that the support of the factor's law reaches beyond.
+fn domain_left(
+    model: &Model,
+    index: FactorId,
+    state: &Factor,
+    law: &StateLaw,
+) -> Option<Diagnostic> {
+    let name = &state.name;
+    let support = match law.family {
+        Family::GeometricBrownian if state.initial > 0.0 => Some((Some((0.0, false)), "(0, ∞)")),
+        Family::SquareRoot => Some((Some((0.0, true)), "[0, ∞)")),
+        _ if law.is_gaussian_with_noise() => Some((None, "the whole real line")),
+        _ => None,
+    };
+    let (lower, support_text) = support?;
+    if interval_keeps(&state.domain, lower) {
+        return None;
+    }
+    let keep = match law.family {
+        Family::OrnsteinUhlenbeck | Family::ArithmeticBrownian | Family::Linear => format!(
+            "use a square-root diffusion (`vol * sqrt({name}) dW`) to keep {name} ≥ 0, or \
+             drop the bound"
+        ),
+        _ => "widen the bound to the support of the law, or drop it".to_string(),
+    };
+    Some(
+        Diagnostic::new(
+            &rules::FACTOR_DOMAIN,
+            state.span.clone(),
+            format!(
+                "{name} is {} and its law spreads over {support_text}, so it leaves the \
+                 declared domain {} with positive probability",
+                law.family.as_str(),
+                show_interval(&state.domain)
+            ),
+        )
+        .with_help(keep)
+        .with_related(
+            equation_span(model, index).unwrap_or_else(|| state.span.clone()),
+            "the equation that sets the law",
+        ),
+    )
 }
 
 /// Whether `domain` contains the support `[lower, ∞)` (or `(lower, ∞)`, or ℝ when

@@ -6,9 +6,9 @@ use super::shared::param_literal;
 use super::shared::{equation_span, state_name};
 use super::Context;
 use sdeck_calculus::describe::{square_root_terms, SquareRootTerms};
-use sdeck_calculus::Derivation;
+use sdeck_calculus::{Derivation, SquareRootParams};
 use sdeck_diagnostics::{rules, Diagnostic, TextEdit};
-use sdeck_semantics::Model;
+use sdeck_semantics::{FactorId, Model, ParamId};
 use sdeck_units::number::{round_significant, significant_whole};
 
 /// The parameter values that meet the Feller condition 2·speed·level ≥ vol² for the
@@ -19,15 +19,19 @@ use sdeck_units::number::{round_significant, significant_whole};
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct FellerBounds {
     /// The speed's parameter and its least value.
-    pub speed: Option<(usize, f64)>,
+    pub speed: Option<(ParamId, f64)>,
     /// The volatility's parameter and its greatest value.
-    pub vol: Option<(usize, f64)>,
+    pub vol: Option<(ParamId, f64)>,
 }
 
 /// [`FellerBounds`] of factor `state`; `None` when it is not a square-root factor that
 /// fails the condition with a positive level.
-pub fn feller_bounds(model: &Model, derivation: &Derivation, state: usize) -> Option<FellerBounds> {
-    let sr = derivation.states.get(state)?.square_root.as_ref()?;
+pub fn feller_bounds(
+    model: &Model,
+    derivation: &Derivation,
+    state: FactorId,
+) -> Option<FellerBounds> {
+    let sr = derivation.states.by_id(state)?.square_root.as_ref()?;
     let vol_squared = sr.vol * sr.vol;
     if !(sr.level > 0.0 && sr.speed > 0.0 && vol_squared.is_finite())
         || 2.0 * sr.speed * sr.level >= vol_squared
@@ -36,8 +40,8 @@ pub fn feller_bounds(model: &Model, derivation: &Derivation, state: usize) -> Op
     }
     let terms = square_root_terms(model, derivation, state);
     // How a parameter enters its coefficient (1 when the coefficient is the parameter).
-    let written_per_clock = |p: usize, coefficient: f64| -> Option<(f64, f64)> {
-        let param = model.params.get(p)?;
+    let written_per_clock = |p: ParamId, coefficient: f64| -> Option<(f64, f64)> {
+        let param = model.params.by_id(p)?;
         let factor = coefficient / param.value;
         let per_written = factor * param.scale;
         (per_written.is_finite() && per_written > 0.0).then_some((per_written, param.written))
@@ -84,103 +88,118 @@ fn rounded_meeting(x: f64, up: bool, meets: impl Fn(f64) -> bool) -> Option<f64>
 /// `feller-condition`: 2·speed·level < vol² makes zero attainable
 /// (Feller 1951; Cox, Ingersoll & Ross 1985, §3).
 pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
-    let (model, derivation) = (cx.model, cx.derivation);
-    for (state, law) in derivation.states.iter().enumerate() {
+    for (state, law) in cx.derivation.states.iter_ids() {
         let Some(sr) = &law.square_root else {
             continue;
         };
-        let drift_side = 2.0 * sr.speed * sr.level;
-        let vol_squared = sr.vol * sr.vol;
         // Written as positive tests so that NaN never fires the rule.
-        let violated = drift_side < vol_squared && sr.speed > 0.0;
-        if !violated {
-            continue;
+        let violated = 2.0 * sr.speed * sr.level < sr.vol * sr.vol && sr.speed > 0.0;
+        if violated {
+            out.extend(finding(cx, state, sr));
         }
-        let Some(span) = equation_span(model, state) else {
-            continue;
-        };
-        let terms = square_root_terms(model, derivation, state);
-        let (speed, level, vol2) = terms
-            .as_ref()
-            .map(|t| (t.speed.clone(), t.level.clone(), t.vol_squared.clone()))
-            .unwrap_or_else(|| ("speed".into(), "level".into(), "vol²".into()));
-        let clock = &model.clock.unit;
-        if sr.level <= 0.0 {
-            let name = state_name(model, state);
-            out.push(
-                Diagnostic::new(
-                    &rules::FELLER_CONDITION,
-                    span,
-                    format!(
-                        "2·{speed}·{level} = {} < {vol2} = {} (per {clock}): the level of {name} \
-                         is not above zero, so {name} is pulled to zero and stays near it; \
-                         give it a positive level",
-                        significant_whole(drift_side, 3),
-                        significant_whole(vol_squared, 3),
-                    ),
-                )
-                .with_help(format!("set {level} above zero")),
-            );
-            continue;
-        }
-        let bounds = feller_bounds(model, derivation, state);
-        let param_name = |p: usize, or: &str| {
-            model
-                .params
-                .get(p)
-                .map(|p| p.name.clone())
-                .unwrap_or_else(|| or.to_string())
-        };
-        let with_unit =
-            |p: usize, value: f64| match model.params.get(p).and_then(|p| p.unit_text.as_ref()) {
-                Some(unit) => format!("{} [{unit}]", significant_whole(value, 3)),
-                None => significant_whole(value, 3),
-            };
-        let raise = match bounds.as_ref().and_then(|b| b.speed) {
-            Some((p, value)) => format!(
-                "raise {} to at least {}",
-                param_name(p, "the speed"),
-                with_unit(p, value)
-            ),
-            None => format!(
-                "raise the speed {speed} to at least {} per {clock}",
-                significant_whole(
-                    round_significant(vol_squared / (2.0 * sr.level), 3, true),
-                    3
-                )
-            ),
-        };
-        let lower = match bounds.as_ref().and_then(|b| b.vol) {
-            Some((p, value)) => format!(
-                "lower {} to at most {}",
-                param_name(p, "the volatility"),
-                with_unit(p, value)
-            ),
-            None => format!(
-                "lower the volatility so that {vol2} is at most {}",
-                significant_whole(round_significant(drift_side, 3, false), 3)
-            ),
-        };
-        let name = state_name(model, state);
-        let message = format!(
-            "2·{speed}·{level} = {} < {vol2} = {} (per {clock}): zero is attainable for {name}",
-            significant_whole(drift_side, 3),
-            significant_whole(vol_squared, 3),
-        );
-        let mut diagnostic = Diagnostic::new(&rules::FELLER_CONDITION, span, message)
-            .with_label(format!("{name} can reach zero"))
-            .with_help(format!("{raise}, or {lower}"))
-            .with_note(
-                "with 2·speed·level ≥ vol² a square-root process started above zero never \
-                 reaches zero; below it, zero is hit with positive probability",
-            );
-        if let (Some(bounds), Some(terms)) = (&bounds, &terms) {
-            for (title, edit) in boundary_fixes(cx, bounds, terms) {
-                diagnostic = diagnostic.with_fix(title, vec![edit]);
-            }
-        }
-        out.push(diagnostic);
     }
+}
+
+/// The finding on the equation of the square-root factor `state` that fails the
+/// condition: with the parameter values that meet it, and the fixes that write them.
+fn finding(cx: &Context, state: FactorId, sr: &SquareRootParams) -> Option<Diagnostic> {
+    let (model, derivation) = (cx.model, cx.derivation);
+    let span = equation_span(model, state)?;
+    let terms = square_root_terms(model, derivation, state);
+    let (speed, level, vol2) = terms
+        .as_ref()
+        .map(|t| (t.speed.clone(), t.level.clone(), t.vol_squared.clone()))
+        .unwrap_or_else(|| ("speed".into(), "level".into(), "vol²".into()));
+    let clock = &model.clock.unit;
+    let name = state_name(model, state);
+    let (drift_side, vol_squared) = (2.0 * sr.speed * sr.level, sr.vol * sr.vol);
+    let sides = format!(
+        "2·{speed}·{level} = {} < {vol2} = {} (per {clock})",
+        significant_whole(drift_side, 3),
+        significant_whole(vol_squared, 3),
+    );
+    if sr.level <= 0.0 {
+        return Some(
+            Diagnostic::new(
+                &rules::FELLER_CONDITION,
+                span,
+                format!(
+                    "{sides}: the level of {name} is not above zero, so {name} is pulled to \
+                     zero and stays near it; give it a positive level"
+                ),
+            )
+            .with_help(format!("set {level} above zero")),
+        );
+    }
+    let bounds = feller_bounds(model, derivation, state);
+    let (raise, lower) = remedies(model, bounds.as_ref(), sr, &speed, &vol2);
+    let mut diagnostic = Diagnostic::new(
+        &rules::FELLER_CONDITION,
+        span,
+        format!("{sides}: zero is attainable for {name}"),
+    )
+    .with_label(format!("{name} can reach zero"))
+    .with_help(format!("{raise}, or {lower}"))
+    .with_note(
+        "with 2·speed·level ≥ vol² a square-root process started above zero never \
+         reaches zero; below it, zero is hit with positive probability",
+    );
+    if let (Some(bounds), Some(terms)) = (&bounds, &terms) {
+        for (title, edit) in boundary_fixes(cx, bounds, terms) {
+            diagnostic = diagnostic.with_fix(title, vec![edit]);
+        }
+    }
+    Some(diagnostic)
+}
+
+/// The two remedies in words: raise the speed to its bound, lower the volatility to its
+/// bound, naming the parameters when each coefficient is one parameter.
+fn remedies(
+    model: &Model,
+    bounds: Option<&FellerBounds>,
+    sr: &SquareRootParams,
+    speed: &str,
+    vol2: &str,
+) -> (String, String) {
+    let clock = &model.clock.unit;
+    let param_name = |p: ParamId, or: &str| {
+        model
+            .params
+            .by_id(p)
+            .map(|p| p.name.clone())
+            .unwrap_or_else(|| or.to_string())
+    };
+    let with_unit =
+        |p: ParamId, value: f64| match model.params.by_id(p).and_then(|p| p.unit_text.as_ref()) {
+            Some(unit) => format!("{} [{unit}]", significant_whole(value, 3)),
+            None => significant_whole(value, 3),
+        };
+    let raise = match bounds.and_then(|b| b.speed) {
+        Some((p, value)) => format!(
+            "raise {} to at least {}",
+            param_name(p, "the speed"),
+            with_unit(p, value)
+        ),
+        None => format!(
+            "raise the speed {speed} to at least {} per {clock}",
+            significant_whole(
+                round_significant(sr.vol * sr.vol / (2.0 * sr.level), 3, true),
+                3
+            )
+        ),
+    };
+    let lower = match bounds.and_then(|b| b.vol) {
+        Some((p, value)) => format!(
+            "lower {} to at most {}",
+            param_name(p, "the volatility"),
+            with_unit(p, value)
+        ),
+        None => format!(
+            "lower the volatility so that {vol2} is at most {}",
+            significant_whole(round_significant(2.0 * sr.speed * sr.level, 3, false), 3)
+        ),
+    };
+    (raise, lower)
 }
 
 /// The fixes that move the speed up (preferred), or the volatility down, to the bounds,
@@ -197,7 +216,7 @@ fn boundary_fixes(
     let mut out = Vec::new();
     for (bound, verb, boundary) in wanted {
         let Some((p, value)) = bound else { continue };
-        let Some(param) = cx.model.params.get(p) else {
+        let Some(param) = cx.model.params.by_id(p) else {
             continue;
         };
         let Some(number) = param_literal(cx.analysis, &param.name) else {

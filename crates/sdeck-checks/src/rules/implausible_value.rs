@@ -8,7 +8,7 @@ use super::shared::{equation_span, param_literal, state_name};
 use super::Context;
 use sdeck_calculus::StateLaw;
 use sdeck_diagnostics::{rules, Diagnostic, TextEdit};
-use sdeck_semantics::{Correlations, Model};
+use sdeck_semantics::{Correlations, FactorId, Model, ShockId};
 use sdeck_units::number::significant_whole;
 
 /// A dimensionless factor that starts within ±20% is read as a rate (a proportion such as
@@ -43,8 +43,8 @@ impl Default for Plausibility {
 pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
     // Built once: the correlations of every factor's shocks are looked up in it.
     let corr = cx.model.correlations();
-    for (index, law) in cx.derivation.states.iter().enumerate() {
-        let Some(factor) = cx.model.factors.get(index) else {
+    for (index, law) in cx.derivation.states.iter_ids() {
+        let Some(factor) = cx.model.factors.by_id(index) else {
             continue;
         };
         let Some(span) = equation_span(cx.model, index) else {
@@ -72,7 +72,7 @@ fn start_volatility(
 ) -> Option<(f64, bool, Vec<f64>)> {
     let per_year = |rate: f64| (rate / model.clock.years).sqrt();
     if let Some(lc) = &law.linear {
-        let quadratic = |terms: &[(usize, f64)], shift: &dyn Fn(usize) -> f64| -> f64 {
+        let quadratic = |terms: &[(ShockId, f64)], shift: &dyn Fn(ShockId) -> f64| -> f64 {
             let mut sum = 0.0;
             for (k, a) in terms {
                 for (l, b) in terms {
@@ -137,14 +137,14 @@ fn percent_fix(cx: &Context, values: &[f64]) -> Option<(String, TextEdit)> {
 fn volatility(
     cx: &Context,
     corr: &Correlations,
-    index: usize,
+    index: FactorId,
     law: &StateLaw,
     rate_like: bool,
     span: std::ops::Range<usize>,
     out: &mut Vec<Diagnostic>,
 ) {
     let limit = cx.plausibility.max_volatility;
-    let Some(x0) = cx.model.factors.get(index).map(|f| f.initial) else {
+    let Some(x0) = cx.model.factors.by_id(index).map(|f| f.initial) else {
         return;
     };
     let Some((vol, relative, loadings)) = start_volatility(cx.model, corr, law, x0, rate_like)
@@ -186,7 +186,7 @@ fn volatility(
 
 fn half_life(
     cx: &Context,
-    index: usize,
+    index: FactorId,
     law: &StateLaw,
     span: std::ops::Range<usize>,
     out: &mut Vec<Diagnostic>,
@@ -229,7 +229,7 @@ fn half_life(
 
 fn level(
     cx: &Context,
-    index: usize,
+    index: FactorId,
     law: &StateLaw,
     span: std::ops::Range<usize>,
     out: &mut Vec<Diagnostic>,
@@ -252,7 +252,7 @@ fn level(
             significant_whole(level * 100.0, 4),
             significant_whole(limit * 100.0, 4),
             significant_whole(
-                cx.model.factors.get(index).map_or(0.0, |f| f.initial) * 100.0,
+                cx.model.factors.by_id(index).map_or(0.0, |f| f.initial) * 100.0,
                 4
             )
         ),
@@ -272,7 +272,7 @@ fn correlations(cx: &Context, out: &mut Vec<Diagnostic>) {
         if c.first == c.second || (c.value.abs() - 1.0).abs() > 1e-12 {
             continue;
         }
-        let shock = |k: usize| cx.model.shocks.get(k).map_or("?", |s| s.name.as_str());
+        let shock = |k: ShockId| cx.model.shocks.by_id(k).map_or("?", |s| s.name.as_str());
         let (first, second) = (shock(c.first), shock(c.second));
         let sign = if c.value > 0.0 { "+1" } else { "−1" };
         let instead = if c.value > 0.0 {

@@ -12,7 +12,7 @@ use sdeck_units::Dimension;
 /// stub is sound as written.
 pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
     let noise = cx.model.shocks.first().map_or("W", |n| n.name.as_str());
-    for (i, factor) in cx.model.factors.iter().enumerate() {
+    for (i, factor) in cx.model.factors.iter_ids() {
         if !cx.analysis.lacks_equation(i) {
             continue;
         }

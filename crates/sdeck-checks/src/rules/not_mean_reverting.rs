@@ -10,9 +10,15 @@ use sdeck_units::number::significant_whole;
 /// `not-mean-reverting`: a positive linear coefficient in a mean-reverting family, or an
 /// eigenvalue of a coupled drift matrix with positive real part.
 pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
+    single_factors(cx, out);
+    coupled_blocks(cx, out);
+}
+
+/// A factor of a mean-reverting family whose own drift coefficient is positive.
+fn single_factors(cx: &Context, out: &mut Vec<Diagnostic>) {
     let (model, derivation) = (cx.model, cx.derivation);
     let clock = &model.clock.unit;
-    for (index, law) in derivation.states.iter().enumerate() {
+    for (index, law) in derivation.states.iter_ids() {
         let eligible = match law.family {
             Family::OrnsteinUhlenbeck => true,
             Family::Linear => law.linear.as_ref().is_some_and(|lc| lc.d.is_empty()),
@@ -57,13 +63,19 @@ pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
             )),
         );
     }
-    // Coupled states: eigenvalues of each connected block's drift matrix.
+}
+
+/// Coupled states: an eigenvalue of a connected block's drift matrix with positive real
+/// part.
+fn coupled_blocks(cx: &Context, out: &mut Vec<Diagnostic>) {
+    let (model, derivation) = (cx.model, cx.derivation);
+    let clock = &model.clock.unit;
     for coupled in &derivation.blocks {
         let block = &coupled.states;
         // A factor carried by its logarithm, or a polynomial system, grows as its own
         // family says (`moment-explosion` speaks of it): only linear blocks are judged here.
         let nonlinear = block.iter().any(|&i| {
-            derivation.states.get(i).is_some_and(|law| {
+            derivation.states.by_id(i).is_some_and(|law| {
                 matches!(law.family, Family::ExponentialAffine | Family::Polynomial)
             })
         });

@@ -1,31 +1,31 @@
 //! Helpers shared by the rules that need the calculus: names and spans of factors, numbers
 //! with significant digits, intervals as a reader writes them.
 
-use sdeck_semantics::{Analysis, Interval, Model};
+use sdeck_semantics::{Analysis, FactorId, Interval, Model};
 use sdeck_syntax::ast::{Bound, Number, StatementKind, UnitExpr};
 use sdeck_units::number::significant_whole;
 
-pub(crate) fn state_name(model: &Model, state: usize) -> String {
+pub(crate) fn state_name(model: &Model, state: FactorId) -> String {
     model
         .factors
-        .get(state)
+        .by_id(state)
         .map(|s| s.name.clone())
         .unwrap_or_default()
 }
 
-pub(crate) fn equation_span(model: &Model, state: usize) -> Option<std::ops::Range<usize>> {
+pub(crate) fn equation_span(model: &Model, state: FactorId) -> Option<std::ops::Range<usize>> {
     model
         .factors
-        .get(state)?
+        .by_id(state)?
         .equation
         .as_ref()
         .map(|e| e.span.clone())
 }
 
-pub(crate) fn state_span(model: &Model, state: usize) -> std::ops::Range<usize> {
+pub(crate) fn state_span(model: &Model, state: FactorId) -> std::ops::Range<usize> {
     model
         .factors
-        .get(state)
+        .by_id(state)
         .map(|s| s.name_span.clone())
         .unwrap_or(0..0)
 }

@@ -9,13 +9,13 @@ use sdeck_syntax::ast::Declaration;
 use sdeck_units::{number, Dimension};
 
 pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
-    let params = cx.model.params.iter().enumerate();
+    let params = cx.model.params.iter_ids();
     for (i, p) in params {
         if let Some(decl) = cx.analysis.param_declaration(i) {
             out.extend(finding(cx, decl, p.scale, &p.dimension));
         }
     }
-    for (i, f) in cx.model.factors.iter().enumerate() {
+    for (i, f) in cx.model.factors.iter_ids() {
         if let Some(decl) = cx.analysis.factor_declaration(i) {
             out.extend(finding(cx, decl, f.scale, &f.dimension));
         }

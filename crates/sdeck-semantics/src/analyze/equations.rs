@@ -7,7 +7,7 @@ use super::*;
 impl Analyzer<'_> {
     pub(super) fn equations(&mut self) {
         let file = self.file;
-        let mut first_equation: HashMap<usize, Span> = HashMap::new();
+        let mut first_equation: HashMap<FactorId, Span> = HashMap::new();
         for statement in &file.statements {
             let StatementKind::Equation(eq) = &statement.kind else {
                 continue;
@@ -70,14 +70,14 @@ impl Analyzer<'_> {
             let equation = self.equation(factor_index, eq, &statement.span);
             self.model.factors[factor_index].equation = Some(equation);
         }
-        self.structure.equation_unparsed = (0..self.model.factors.len())
+        self.structure.equation_unparsed = (self.model.factors.ids())
             .map(|i| self.equation_unparsed(i))
             .collect();
     }
 
     /// Whether text that did not parse may hold the equation of factor `i`: `dr = ...`,
     /// and the slips `d r = ...` and `dr/dt = ...`.
-    pub(super) fn equation_unparsed(&self, i: usize) -> bool {
+    pub(super) fn equation_unparsed(&self, i: FactorId) -> bool {
         self.file.unparsed.iter().any(|span| {
             let text = self.source.get(span.clone()).unwrap_or("");
             text.strip_prefix('d')
@@ -109,7 +109,12 @@ impl Analyzer<'_> {
     /// The equation of factor `state`: each term resolved, its coefficient checked
     /// against the dimension the factor needs; a term whose differential an earlier
     /// term already ends with is set aside for `duplicate-term`.
-    pub(super) fn equation(&mut self, state: usize, eq: &ast::Equation, span: &Span) -> Equation {
+    pub(super) fn equation(
+        &mut self,
+        state: FactorId,
+        eq: &ast::Equation,
+        span: &Span,
+    ) -> Equation {
         let mut drift: Option<(Expr, Span)> = None;
         let mut diffusion: Vec<DiffusionTerm> = Vec::new();
         let mut first_terms: HashMap<Differential, Span> = HashMap::new();
@@ -185,7 +190,7 @@ impl Analyzer<'_> {
         &mut self,
         term: &ast::Term,
         found: &Dimension,
-        factor: usize,
+        factor: FactorId,
         is_drift: bool,
     ) {
         let state_dim = self.model.factors[factor].dimension.clone();
@@ -265,8 +270,8 @@ impl Analyzer<'_> {
 
     /// The edit that declares the parameter `param_index` in `[unit]`: its unit rewritten,
     /// or one written after its value.
-    fn unit_edit(&self, param_index: usize, unit: &str) -> TextEdit {
-        if let Some(Some((unit_span, _))) = self.param_units.get(param_index) {
+    fn unit_edit(&self, param_index: ParamId, unit: &str) -> TextEdit {
+        if let Some(Some((unit_span, _))) = self.param_units.by_id(param_index) {
             return TextEdit {
                 span: unit_span.clone(),
                 new_text: unit.to_string(),
@@ -280,7 +285,7 @@ impl Analyzer<'_> {
         }
     }
 
-    pub(super) fn param_value_end(&self, param_index: usize) -> Option<usize> {
+    pub(super) fn param_value_end(&self, param_index: ParamId) -> Option<usize> {
         let name = &self.model.params[param_index].name;
         self.file.statements.iter().find_map(|s| match &s.kind {
             StatementKind::Param(decl) if &decl.name.name == name => Some(decl.value_span().end),
@@ -289,7 +294,7 @@ impl Analyzer<'_> {
     }
 
     /// The first parameter that appears as a factor at the top of a product.
-    pub(super) fn factor_param(&self, e: &ast::Expr) -> Option<(usize, Span)> {
+    pub(super) fn factor_param(&self, e: &ast::Expr) -> Option<(ParamId, Span)> {
         match e {
             ast::Expr::Name(ident) => match self.names.get(&ident.name) {
                 Some((Target::Param(i), decl)) => Some((*i, decl.clone())),

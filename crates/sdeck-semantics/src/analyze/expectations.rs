@@ -20,7 +20,7 @@ impl Analyzer<'_> {
     /// bound of `quantile`), converted to clock units; `what` names it in messages.
     pub(super) fn factor_value(
         &mut self,
-        state: usize,
+        state: FactorId,
         q: &ast::Quantity,
         what: &str,
     ) -> Option<f64> {
@@ -169,7 +169,7 @@ impl Analyzer<'_> {
     fn expectation_level(
         &mut self,
         x: &ast::Expectation,
-        state: Option<usize>,
+        state: Option<FactorId>,
     ) -> Option<Option<f64>> {
         let level = match (&x.level, state) {
             (Some(q), Some(i)) if x.figure == Figure::Prob => {
@@ -199,14 +199,14 @@ impl Analyzer<'_> {
     }
 
     /// How messages show the figure and the level: as the bounds are written.
-    fn expectation_shown(&self, x: &ast::Expectation, state: Option<usize>) -> (Shown, Shown) {
+    fn expectation_shown(&self, x: &ast::Expectation, state: Option<FactorId>) -> (Shown, Shown) {
         let written_percent = match &x.condition {
             ast::Condition::Compare { value, .. } => value.number.text.ends_with('%'),
             ast::Condition::Within { lower, upper, .. } => {
                 lower.number.text.ends_with('%') || upper.number.text.ends_with('%')
             }
         };
-        let factor_shown = |this: &Self, i: usize, percent: bool| {
+        let factor_shown = |this: &Self, i: FactorId, percent: bool| {
             let factor = &this.model.factors[i];
             if factor.dimension == Dimension::dimensionless() && percent {
                 Shown::Percent
@@ -237,7 +237,7 @@ impl Analyzer<'_> {
 
     /// The admissible values of the figure, converted to its clock units; `None` after
     /// an error.
-    fn admissible(&mut self, x: &ast::Expectation, state: Option<usize>) -> Option<Interval> {
+    fn admissible(&mut self, x: &ast::Expectation, state: Option<FactorId>) -> Option<Interval> {
         let figure_name = match &x.state {
             Some(s) => format!("{}({})", x.figure.keyword(), s.name),
             None => format!("{}(…)", x.figure.keyword()),
@@ -303,7 +303,7 @@ impl Analyzer<'_> {
     pub(super) fn moment_shown(
         &self,
         figure: Figure,
-        state: usize,
+        state: FactorId,
         condition: &ast::Condition,
     ) -> Shown {
         let bounds: Vec<&ast::Quantity> = match condition {
@@ -313,7 +313,7 @@ impl Analyzer<'_> {
         let dimensionless = self
             .model
             .factors
-            .get(state)
+            .by_id(state)
             .is_some_and(|f| f.dimension == Dimension::dimensionless());
         match figure {
             Figure::Mean | Figure::Sd | Figure::StationaryMean | Figure::StationarySd
@@ -349,7 +349,7 @@ impl Analyzer<'_> {
     pub(super) fn moment_bound(
         &mut self,
         figure: Figure,
-        state: usize,
+        state: FactorId,
         q: &ast::Quantity,
         figure_name: &str,
     ) -> Option<f64> {

@@ -5,12 +5,12 @@ use super::*;
 
 impl Analyzer<'_> {
     pub(super) fn resolve_lets(&mut self) {
-        for i in 0..self.model.lets.len() {
+        for i in (0..self.model.lets.len()).map(LetId::new) {
             self.resolve_let(i);
         }
     }
 
-    pub(super) fn resolve_let(&mut self, index: usize) {
+    pub(super) fn resolve_let(&mut self, index: LetId) {
         match self.let_progress[index] {
             LetProgress::Done => return,
             LetProgress::Busy => {
@@ -42,7 +42,7 @@ impl Analyzer<'_> {
 
     pub(super) fn correlations(&mut self) {
         let file = self.file;
-        let mut seen: HashMap<(usize, usize), Span> = HashMap::new();
+        let mut seen: HashMap<(ShockId, ShockId), Span> = HashMap::new();
         for statement in &file.statements {
             let StatementKind::Corr {
                 first,
@@ -64,7 +64,7 @@ impl Analyzer<'_> {
         first: &ast::Ident,
         second: &ast::Ident,
         value: &ast::Expr,
-        seen: &mut HashMap<(usize, usize), Span>,
+        seen: &mut HashMap<(ShockId, ShockId), Span>,
     ) {
         let a = self.noise_named(first);
         let b = self.noise_named(second);

@@ -52,12 +52,12 @@ pub struct Analysis {
     pub structure: Structure,
 }
 
-/// Which declared names something uses, by index in the model's lists.
+/// Which declared names something uses, by declaration.
 #[derive(Clone, Debug, Default, PartialEq)]
 pub struct Usage {
-    pub params: Vec<bool>,
-    pub shocks: Vec<bool>,
-    pub lets: Vec<bool>,
+    pub params: IdVec<ParamId, bool>,
+    pub shocks: IdVec<ShockId, bool>,
+    pub lets: IdVec<LetId, bool>,
 }
 
 impl Analysis {
@@ -78,44 +78,44 @@ impl Analysis {
                 .iter()
                 .any(|c| c.is_self() || c.is_out_of_range())
             || !self.structure.repeated_terms.is_empty()
-            || (0..model.factors.len()).any(|i| self.lacks_equation(i))
+            || model.factors.ids().any(|i| self.lacks_equation(i))
     }
 
-    /// The declaration of the parameter `index` of the model.
-    pub fn param_declaration(&self, index: usize) -> Option<&ast::Declaration> {
+    /// The declaration of the parameter `id` of the model.
+    pub fn param_declaration(&self, id: ParamId) -> Option<&ast::Declaration> {
         let statement = self
             .file
             .statements
-            .get(*self.structure.param_statements.get(index)?)?;
+            .get(*self.structure.param_statements.by_id(id)?)?;
         match &statement.kind {
             StatementKind::Param(decl) => Some(decl),
             _ => None,
         }
     }
 
-    /// The declaration of the factor `index` of the model.
-    pub fn factor_declaration(&self, index: usize) -> Option<&ast::Declaration> {
+    /// The declaration of the factor `id` of the model.
+    pub fn factor_declaration(&self, id: FactorId) -> Option<&ast::Declaration> {
         let statement = self
             .file
             .statements
-            .get(*self.structure.factor_statements.get(index)?)?;
+            .get(*self.structure.factor_statements.by_id(id)?)?;
         match &statement.kind {
             StatementKind::Factor(decl) => Some(decl),
             _ => None,
         }
     }
 
-    /// Whether the factor `index` has no equation, and none hides in text that did not
+    /// Whether the factor `id` has no equation, and none hides in text that did not
     /// parse.
-    pub fn lacks_equation(&self, index: usize) -> bool {
+    pub fn lacks_equation(&self, id: FactorId) -> bool {
         self.model
             .factors
-            .get(index)
+            .by_id(id)
             .is_some_and(|f| f.equation.is_none())
             && !self
                 .structure
                 .equation_unparsed
-                .get(index)
+                .by_id(id)
                 .copied()
                 .unwrap_or(false)
     }
@@ -168,10 +168,10 @@ pub fn analyze(source: &str, default_name: &str) -> Analysis {
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 enum Target {
     Unit(usize),
-    Param(usize),
-    Factor(usize),
-    Shock(usize),
-    Let(usize),
+    Param(ParamId),
+    Factor(FactorId),
+    Shock(ShockId),
+    Let(LetId),
 }
 
 #[derive(Clone, Copy, PartialEq, Eq)]
@@ -189,21 +189,21 @@ struct Analyzer<'a> {
     symbols: Vec<Symbol>,
     references: Vec<Reference>,
     names: HashMap<String, (Target, Span)>,
-    let_asts: Vec<&'a ast::Expr>,
-    let_progress: Vec<LetProgress>,
-    param_used: Vec<bool>,
+    let_asts: IdVec<LetId, &'a ast::Expr>,
+    let_progress: IdVec<LetId, LetProgress>,
+    param_used: IdVec<ParamId, bool>,
     /// Whether a param's (or state's) unit evaluated; when not, its dimension is unknown
     /// and no dimension error is reported downstream of it.
-    param_unit_ok: Vec<bool>,
-    state_unit_ok: Vec<bool>,
-    noise_used: Vec<bool>,
-    let_used: Vec<bool>,
+    param_unit_ok: IdVec<ParamId, bool>,
+    state_unit_ok: IdVec<FactorId, bool>,
+    noise_used: IdVec<ShockId, bool>,
+    let_used: IdVec<LetId, bool>,
     /// Nodes in the expression being resolved, each let counted at its inlined size.
     expanded: usize,
     /// Inlined size of each resolved let.
-    let_sizes: Vec<usize>,
+    let_sizes: IdVec<LetId, usize>,
     /// Unit spans of param/state declarations, for fixes.
-    param_units: Vec<Option<(Span, String)>>,
+    param_units: IdVec<ParamId, Option<(Span, String)>>,
     /// Set while a declared value or a correlation is resolved: it may use only numbers
     /// and parameters (declared before it, for a declaration).
     constant: Option<Constant>,
@@ -262,11 +262,11 @@ impl<'a> Analyzer<'a> {
                 },
                 horizon: 1.0,
                 units: Vec::new(),
-                params: Vec::new(),
-                factors: Vec::new(),
-                shocks: Vec::new(),
+                params: IdVec::new(),
+                factors: IdVec::new(),
+                shocks: IdVec::new(),
                 correlations: Vec::new(),
-                lets: Vec::new(),
+                lets: IdVec::new(),
                 expectations: Vec::new(),
                 measure: None,
                 discount: None,
@@ -275,16 +275,16 @@ impl<'a> Analyzer<'a> {
             symbols: Vec::new(),
             references: Vec::new(),
             names: HashMap::new(),
-            let_asts: Vec::new(),
-            let_progress: Vec::new(),
-            param_used: Vec::new(),
-            param_unit_ok: Vec::new(),
-            state_unit_ok: Vec::new(),
-            noise_used: Vec::new(),
-            let_used: Vec::new(),
-            param_units: Vec::new(),
+            let_asts: IdVec::new(),
+            let_progress: IdVec::new(),
+            param_used: IdVec::new(),
+            param_unit_ok: IdVec::new(),
+            state_unit_ok: IdVec::new(),
+            noise_used: IdVec::new(),
+            let_used: IdVec::new(),
+            param_units: IdVec::new(),
             expanded: 0,
-            let_sizes: Vec::new(),
+            let_sizes: IdVec::new(),
             constant: None,
             declared_anywhere: HashMap::new(),
             structure: Structure::default(),

@@ -199,7 +199,7 @@ impl<'a> Analyzer<'a> {
         statement: &ast::Statement,
         decl: &ast::Declaration,
     ) {
-        let index = self.model.params.len();
+        let index = ParamId::new(self.model.params.len());
         if !self.declare(
             &decl.name.name,
             &decl.name.span,
@@ -241,7 +241,7 @@ impl<'a> Analyzer<'a> {
         statement: &ast::Statement,
         decl: &ast::Declaration,
     ) {
-        let index = self.model.factors.len();
+        let index = FactorId::new(self.model.factors.len());
         if !self.declare(
             &decl.name.name,
             &decl.name.span,
@@ -275,7 +275,7 @@ impl<'a> Analyzer<'a> {
     /// `shock A, B, ...`: each name declared.
     fn declare_shocks(&mut self, statement: &ast::Statement, names: &[ast::Ident]) {
         for name in names {
-            let index = self.model.shocks.len();
+            let index = ShockId::new(self.model.shocks.len());
             if self.declare(
                 &name.name,
                 &name.span,
@@ -295,7 +295,7 @@ impl<'a> Analyzer<'a> {
 
     /// `let NAME = EXPR`: declared now, resolved once every name is known.
     fn declare_let(&mut self, statement: &ast::Statement, name: &ast::Ident, value: &'a ast::Expr) {
-        let index = self.model.lets.len();
+        let index = LetId::new(self.model.lets.len());
         if self.declare(
             &name.name,
             &name.span,
@@ -401,10 +401,10 @@ impl<'a> Analyzer<'a> {
         // A name may be used while its own declaration is being resolved (`param k = k`),
         // before it is in the model: no reference is recorded then.
         let name_span = match *target {
-            Target::Param(i) => self.model.params.get(i).map(|p| p.name_span.clone()),
-            Target::Factor(i) => self.model.factors.get(i).map(|f| f.name_span.clone()),
-            Target::Shock(i) => self.model.shocks.get(i).map(|n| n.name_span.clone()),
-            Target::Let(i) => self.model.lets.get(i).map(|l| l.name_span.clone()),
+            Target::Param(i) => self.model.params.by_id(i).map(|p| p.name_span.clone()),
+            Target::Factor(i) => self.model.factors.by_id(i).map(|f| f.name_span.clone()),
+            Target::Shock(i) => self.model.shocks.by_id(i).map(|n| n.name_span.clone()),
+            Target::Let(i) => self.model.lets.by_id(i).map(|l| l.name_span.clone()),
             Target::Unit(i) => self.model.units.get(i).map(|u| u.name_span.clone()),
         };
         let Some(name_span) = name_span else {
@@ -450,7 +450,7 @@ impl<'a> Analyzer<'a> {
         self.diagnostics.push(d);
     }
 
-    pub(super) fn noise_named(&mut self, ident: &ast::Ident) -> Option<usize> {
+    pub(super) fn noise_named(&mut self, ident: &ast::Ident) -> Option<ShockId> {
         match self.names.get(&ident.name).cloned() {
             Some((Target::Shock(i), _)) => {
                 self.reference(ident, &Target::Shock(i));
@@ -484,7 +484,7 @@ impl<'a> Analyzer<'a> {
     }
 
     /// The factor an expectation names, or a diagnostic.
-    pub(super) fn expected_factor(&mut self, ident: &ast::Ident) -> Option<usize> {
+    pub(super) fn expected_factor(&mut self, ident: &ast::Ident) -> Option<FactorId> {
         match self.names.get(&ident.name).cloned() {
             Some((Target::Factor(i), _)) => {
                 self.reference(ident, &Target::Factor(i));

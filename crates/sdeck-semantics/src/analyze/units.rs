@@ -156,7 +156,7 @@ impl Analyzer<'_> {
         ) {
             ("pi", ..) => return None,
             ("t", ..) => time_in_constant(&constant, allowed),
-            (_, Some((Target::Param(i), _)), _) if *i < self.model.params.len() => return None,
+            (_, Some((Target::Param(i), _)), _) if i.index() < self.model.params.len() => return None,
             // The parameter being declared: its value cannot rest on itself.
             (_, Some((Target::Param(_), _)), _) => (
                 format!("{} uses `{name}` itself", constant.what),

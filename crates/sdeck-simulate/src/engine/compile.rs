@@ -191,14 +191,14 @@ pub(super) fn compile(
             .map_err(|e| compile_error(&state.name, e))?;
         let mut diffusion = Vec::with_capacity(equation.diffusion.len());
         for term in &equation.diffusion {
-            if term.noise >= noise_count {
+            if term.noise.index() >= noise_count {
                 return Err(SimulateError::UnknownNoise {
                     state: state.name.clone(),
                 });
             }
             let program = Program::compile(&term.coefficient, &params, state_count, &truncated)
                 .map_err(|e| compile_error(&state.name, e))?;
-            diffusion.push((term.noise, program));
+            diffusion.push((term.noise.index(), program));
         }
         programs.push((drift, diffusion));
     }

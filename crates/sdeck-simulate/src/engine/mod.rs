@@ -318,7 +318,7 @@ fn discount_order(model: &Model, discretised: &[bool]) -> u32 {
         return 1;
     };
     let reads_discretised = line.rate.any(&mut |e| {
-        matches!(e, sdeck_semantics::Expr::Factor(i) if discretised.get(*i).copied().unwrap_or(true))
+        matches!(e, sdeck_semantics::Expr::Factor(i) if discretised.get(i.index()).copied().unwrap_or(true))
     });
     if reads_discretised {
         1
