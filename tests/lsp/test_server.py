@@ -107,7 +107,9 @@ def codes(diagnostics) -> list[str]:
 
 
 async def test_opening_a_model_publishes_its_diagnostics(client: LanguageClient):
-    flawed = (ROOT / "crates/sdeck-diagnostics/src/rules/feller_condition.flawed.sde").read_text()
+    # The flawed example of the rule's manual page (its first `sde` block).
+    page = (ROOT / "crates/sdeck-checks/src/rules/feller_condition.md").read_text()
+    flawed = page.split("```sde\n")[1].split("```")[0]
     uri = uri_of("feller.sde")
     open_document(client, uri, flawed, version=7)
     diagnostics = await published(client, uri, 7)
@@ -116,8 +118,12 @@ async def test_opening_a_model_publishes_its_diagnostics(client: LanguageClient)
     assert feller.severity == types.DiagnosticSeverity.Warning
     assert feller.source == "sdeck"
     # The same rules and messages as `sdeck check --format json`.
-    path = ROOT / "crates/sdeck-diagnostics/src/rules/feller_condition.flawed.sde"
-    out = subprocess.run([SDECK, "check", "--format", "json", str(path)], capture_output=True, text=True)
+    out = subprocess.run(
+        [SDECK, "check", "--format", "json", "--stdin-name", "feller.sde", "-"],
+        input=flawed,
+        capture_output=True,
+        text=True,
+    )
     report = json.loads(out.stdout)
     cli_messages = sorted((d["rule"], d["message"]) for d in report["diagnostics"])
     lsp_messages = sorted((d.code, d.message.split("\nhelp: ")[0].split("\nnote: ")[0]) for d in diagnostics)

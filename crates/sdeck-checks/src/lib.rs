@@ -19,7 +19,7 @@
 pub mod rules;
 pub mod suppress;
 
-pub use rules::Plausibility;
+pub use rules::{manual, Manual, Plausibility};
 use sdeck_calculus::Derivation;
 use sdeck_diagnostics::{Diagnostic, RuleId, Severity};
 use sdeck_semantics::Analysis;

@@ -118,14 +118,15 @@ fn sound_demo_models_raise_no_warning_and_no_error() {
 #[test]
 fn manual_examples_fire_their_rule_once_and_the_fixed_ones_nothing() {
     for rule in rules::ALL {
-        let flawed = fired(rule.flawed, rule.name);
+        let manual = sdeck_checks::manual(rule.id);
+        let flawed = fired(manual.flawed, rule.name);
         assert_eq!(
             flawed.iter().map(|(_, r)| r.as_str()).collect::<Vec<_>>(),
             vec![rule.name],
             "the flawed example of {} should fire it exactly once and nothing else",
             rule.name
         );
-        let fixed = fired(rule.fixed, rule.name);
+        let fixed = fired(manual.fixed, rule.name);
         assert!(
             fixed.is_empty(),
             "the fixed example of {} fires {:?}",

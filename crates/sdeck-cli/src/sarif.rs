@@ -21,7 +21,7 @@ pub fn level(severity: Severity) -> &'static str {
 
 /// The text of a rule's "Finds" section, or its summary when there is none.
 fn what_it_does(rule: &Rule) -> String {
-    let mut lines = rule
+    let mut lines = sdeck_checks::manual(rule.id)
         .explanation
         .lines()
         .skip_while(|l| !l.starts_with("## Finds"));
@@ -46,7 +46,10 @@ fn rule_descriptor(rule: &Rule) -> Value {
         "id": rule.name,
         "name": pascal_case(rule.name),
         "shortDescription": {"text": rule.summary},
-        "fullDescription": {"text": what_it_does(rule), "markdown": rule.explanation.trim()},
+        "fullDescription": {
+            "text": what_it_does(rule),
+            "markdown": sdeck_checks::manual(rule.id).explanation.trim(),
+        },
         "help": {"text": render::explain_text(rule), "markdown": render::rule_markdown(rule)},
         "defaultConfiguration": {"level": level(rule.default_severity)},
     })

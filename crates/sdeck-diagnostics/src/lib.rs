@@ -100,15 +100,9 @@ pub struct Rule {
     /// Kebab-case name, shown in every output format.
     pub name: &'static str,
     pub default_severity: Severity,
-    /// One line: when the rule fires.
+    /// One line: when the rule fires. (Its manual and examples sit beside the rule's
+    /// module: `sdeck_checks::manual`.)
     pub summary: &'static str,
-    /// What the rule finds, why a reviewer cares and how to mend it, in prose (Markdown)
-    /// under the headings `## Finds`, `## Why a reviewer cares` and `## How to mend`.
-    pub explanation: &'static str,
-    /// A small model on which the rule fires exactly once.
-    pub flawed: &'static str,
-    /// The same model, mended; the rule does not fire.
-    pub fixed: &'static str,
 }
 
 /// A secondary location with its own message ("first declared here").

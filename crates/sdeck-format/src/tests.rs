@@ -119,45 +119,71 @@ let c = (a - (b - 1))^2 / -b\n";
     assert!(out.contains("let c = (a - (b - 1))^2 / -b"), "{out}");
 }
 
-#[test]
-fn formatting_is_idempotent_on_the_demo_models_and_rule_examples() {
+/// The demo models and the examples of the rule manuals (the `sde` blocks of
+/// `crates/sdeck-checks/src/rules/*.md`), each with where it comes from.
+fn sample_models() -> Vec<(std::path::PathBuf, String)> {
     let root = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("../..");
-    let mut seen = 0;
-    for folder in ["demo-models", "crates/sdeck-diagnostics/src/rules"] {
+    let mut out = Vec::new();
+    for (folder, extension) in [
+        ("demo-models", "sde"),
+        ("crates/sdeck-checks/src/rules", "md"),
+    ] {
         let Ok(entries) = std::fs::read_dir(root.join(folder)) else {
             continue;
         };
         for entry in entries.flatten() {
             let path = entry.path();
-            if path.extension().is_none_or(|x| x != "sde") {
+            if path.extension().is_none_or(|x| x != extension) {
                 continue;
             }
-            let Ok(source) = std::fs::read_to_string(&path) else {
+            let Ok(text) = std::fs::read_to_string(&path) else {
                 continue;
             };
-            match format(&source) {
-                Outcome::Formatted(once) => {
-                    seen += 1;
-                    assert_eq!(
-                        format(&once),
-                        Outcome::Formatted(once.clone()),
-                        "{}",
-                        path.display()
-                    );
-                    // Meaning is kept: the same statements and comments parse back.
-                    let before = sdeck_syntax::parse(&source);
-                    let after = sdeck_syntax::parse(&once);
-                    assert_eq!(before.statements.len(), after.statements.len());
-                    assert_eq!(
-                        before.comments.len(),
-                        after.comments.len(),
-                        "{}",
-                        path.display()
-                    );
-                }
-                Outcome::SyntaxErrors { .. } => {}
-                Outcome::Refused { reason } => panic!("{}: refused: {reason}", path.display()),
+            if extension == "sde" {
+                out.push((path, text));
+                continue;
             }
+            for block in text.split("```sde\n").skip(1) {
+                let model = block.split("```").next().unwrap_or("");
+                out.push((path.clone(), model.to_string()));
+            }
+        }
+    }
+    out
+}
+
+#[test]
+fn formatting_is_idempotent_on_the_demo_models_and_rule_examples() {
+    let mut seen = 0;
+    let models = sample_models();
+    assert!(
+        models.len() >= 40,
+        "demo models and rule examples: {}",
+        models.len()
+    );
+    for (path, source) in models {
+        match format(&source) {
+            Outcome::Formatted(once) => {
+                seen += 1;
+                assert_eq!(
+                    format(&once),
+                    Outcome::Formatted(once.clone()),
+                    "{}",
+                    path.display()
+                );
+                // Meaning is kept: the same statements and comments parse back.
+                let before = sdeck_syntax::parse(&source);
+                let after = sdeck_syntax::parse(&once);
+                assert_eq!(before.statements.len(), after.statements.len());
+                assert_eq!(
+                    before.comments.len(),
+                    after.comments.len(),
+                    "{}",
+                    path.display()
+                );
+            }
+            Outcome::SyntaxErrors { .. } => {}
+            Outcome::Refused { reason } => panic!("{}: refused: {reason}", path.display()),
         }
     }
     assert!(seen >= 5, "only {seen} models were formatted");
@@ -177,19 +203,9 @@ fn meaning(source: &str) -> String {
 
 #[test]
 fn formatting_keeps_the_meaning_of_the_demo_models() {
-    let root = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("../..");
-    for folder in ["demo-models", "crates/sdeck-diagnostics/src/rules"] {
-        let Ok(entries) = std::fs::read_dir(root.join(folder)) else {
-            continue;
-        };
-        for entry in entries.flatten() {
-            let path = entry.path();
-            let Ok(source) = std::fs::read_to_string(&path) else {
-                continue;
-            };
-            if let Outcome::Formatted(once) = format(&source) {
-                assert_eq!(meaning(&source), meaning(&once), "{}", path.display());
-            }
+    for (path, source) in sample_models() {
+        if let Outcome::Formatted(once) = format(&source) {
+            assert_eq!(meaning(&source), meaning(&once), "{}", path.display());
         }
     }
 }

@@ -3,11 +3,19 @@
 //! arises while names are resolved or units inferred is reported by `sdeck-semantics`.
 //!
 //! Adding a rule here: its line, marked `checked`, in the one list of rules
-//! (`sdeck-diagnostics/src/rules/list.rs`), and `NAME.rs` with `pub(super) fn run(cx:
-//! &Context, out: &mut Vec<Diagnostic>)`; the list declares the module and registers it.
+//! (`sdeck-diagnostics/src/rules/list.rs`), `NAME.rs` with `pub(super) fn run(cx:
+//! &Context, out: &mut Vec<Diagnostic>)` and, beside it, its manual and examples
+//! `NAME.md` (see [`manual`]); the list declares the module, registers it and reads the
+//! manual. Every rule of the list has its `NAME.md` here, the ones reported while the
+//! text is parsed, names resolved or units inferred too.
+
+mod manual;
+
+pub use manual::{manual, Manual};
 
 /// Builds the registry from the one list of rules (`sdeck-diagnostics/src/rules/list.rs`):
-/// each rule marked `checked` has its module here, whose `run` decides it.
+/// each rule marked `checked` has its module here, whose `run` decides it; every rule has
+/// its manual `NAME.md`.
 macro_rules! rules {
     ($(
         $variant:ident => $constant:ident, $module:ident, $name:literal, $severity:ident,
@@ -19,6 +27,9 @@ macro_rules! rules {
         /// this crate does.
         static REGISTRY: &[(RuleId, Option<Runner>)] =
             &[$((RuleId::$variant, runner!($module $(, $checked)?)),)*];
+
+        /// Every rule's manual page, in the catalogue's order.
+        static PAGES: &[&str] = &[$(include_str!(concat!(stringify!($module), ".md")),)*];
     };
 }
 

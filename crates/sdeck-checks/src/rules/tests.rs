@@ -69,14 +69,14 @@ fn manual_examples_fire_exactly_once_and_their_fixes_not_at_all() {
     // Every rule of the registry.
     let mine: Vec<&Rule> = super::registered().map(|id| id.rule()).collect();
     for rule in mine {
-        let (_, flawed) = run(rule.flawed);
+        let (_, flawed) = run(super::manual(rule.id).flawed);
         assert_eq!(
             of_rule(&flawed, rule).len(),
             1,
             "{} on its flawed example: {flawed:#?}",
             rule.name
         );
-        let (_, fixed) = run(rule.fixed);
+        let (_, fixed) = run(super::manual(rule.id).fixed);
         assert!(
             of_rule(&fixed, rule).is_empty(),
             "{} on its fixed example: {fixed:#?}",
@@ -87,7 +87,7 @@ fn manual_examples_fire_exactly_once_and_their_fixes_not_at_all() {
 
 #[test]
 fn moment_explosion_gives_the_time_from_which_the_variance_is_infinite() {
-    let (model, diagnostics) = run(rules::MOMENT_EXPLOSION.flawed);
+    let (model, diagnostics) = run(super::manual(rules::MOMENT_EXPLOSION.id).flawed);
     let found = of_rule(&diagnostics, &rules::MOMENT_EXPLOSION);
     assert_eq!(found.len(), 1);
     // Andersen & Piterbarg 2007, Prop. 3.1 with κ = 0.5, ξ = 0.3, ρ = 0.9, u = 2:
@@ -389,7 +389,8 @@ fn preferred_fixes_clear_their_own_diagnostic_and_add_none() {
     let settings = crate::RuleSettings::default();
     let mut fixed_some = 0;
     for rule in super::registered().map(|id| id.rule()) {
-        let before = crate::check(rule.flawed, "manual", &settings).diagnostics;
+        let flawed = super::manual(rule.id).flawed;
+        let before = crate::check(flawed, "manual", &settings).diagnostics;
         let fixes: Vec<&sdeck_diagnostics::Fix> = before
             .iter()
             .filter(|d| d.rule == rule.id)
@@ -399,7 +400,7 @@ fn preferred_fixes_clear_their_own_diagnostic_and_add_none() {
             continue;
         }
         fixed_some += 1;
-        let text = sdeck_diagnostics::apply_fixes(rule.flawed, &fixes)
+        let text = sdeck_diagnostics::apply_fixes(flawed, &fixes)
             .unwrap_or_else(|e| panic!("{}: {e:?}", rule.name));
         let after = crate::check(&text, "manual", &settings).diagnostics;
         assert!(

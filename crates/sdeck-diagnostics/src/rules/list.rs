@@ -6,11 +6,12 @@
 //! ```
 //!
 //! `for_each_rule!(callback)` hands the list to a macro: `sdeck-diagnostics` builds from
-//! it the catalogue (`RuleId`, and the constant with the manual `module.md` and the
-//! examples `module.flawed.sde` and `module.fixed.sde` beside this file); `sdeck-checks`
-//! builds its registry from it: a rule marked `checked` is decided by `run` in
-//! `crates/sdeck-checks/src/rules/module.rs`. The others arise while the text is parsed,
-//! names resolved or units inferred, or from suppression comments.
+//! it the catalogue (`RuleId` and the constant); `sdeck-checks` builds its registry and
+//! its manuals from it: a rule marked `checked` is decided by `run` in
+//! `crates/sdeck-checks/src/rules/module.rs`, and every rule's manual and examples are
+//! `crates/sdeck-checks/src/rules/module.md`, beside its module. The rules not marked
+//! `checked` arise while the text is parsed, names resolved or units inferred, or from
+//! suppression comments.
 
 /// Invokes `$callback! { ... }` with the one list of rules (see the module documentation).
 #[macro_export]

@@ -1,6 +1,6 @@
-//! The catalogue, built from the one list of rules (`list.rs`): each rule's manual
-//! (`NAME.md`: `sdeck explain`, docs/rules.md, hover) and examples (`NAME.flawed.sde`,
-//! `NAME.fixed.sde`) sit beside it.
+//! The catalogue, built from the one list of rules (`list.rs`): each rule's identity,
+//! name, default severity and summary. Its manual and examples sit beside the rule's
+//! module, in `crates/sdeck-checks/src/rules/NAME.md` (`sdeck_checks::manual`).
 
 mod list;
 
@@ -9,8 +9,8 @@ use serde::{Serialize, Serializer};
 use std::fmt;
 
 /// Declares the catalogue from the one list of rules, `list.rs` (which `sdeck-checks`
-/// reads too, for its registry, through [`for_each_rule!`](crate::for_each_rule)): each line gives a rule's identity, its constant, the
-/// module name of its manual and examples, its name, default severity and summary. The
+/// reads too, for its registry and manuals, through [`for_each_rule!`](crate::for_each_rule)): each line gives a rule's identity, its constant, the
+/// name of its module, its name, default severity and summary. The
 /// list's order is the manual's order, the order of [`ALL`] and of [`RuleId`], so that
 /// `ALL[id as usize]` is the rule of `id`.
 macro_rules! rules {
@@ -25,9 +25,6 @@ macro_rules! rules {
                 name: $name,
                 default_severity: Severity::$severity,
                 summary: $summary,
-                explanation: include_str!(concat!(stringify!($module), ".md")),
-                flawed: include_str!(concat!(stringify!($module), ".flawed.sde")),
-                fixed: include_str!(concat!(stringify!($module), ".fixed.sde")),
             };
         )*
 
@@ -122,27 +119,5 @@ mod tests {
         );
         assert_eq!(super::closest("Unused").map(|r| r.name), Some("unused"));
         assert!(super::closest("volatility").is_none());
-    }
-
-    /// Every manual page has the same three sections, in order, each with text.
-    #[test]
-    fn every_explanation_has_the_three_sections_in_order() {
-        for rule in super::ALL {
-            let headings: Vec<&str> = rule
-                .explanation
-                .lines()
-                .filter(|l| l.starts_with('#'))
-                .collect();
-            assert_eq!(
-                headings,
-                ["## Finds", "## Why a reviewer cares", "## How to mend"],
-                "{}",
-                rule.name
-            );
-            for section in rule.explanation.split("## ").skip(1) {
-                let body = section.split_once('\n').map_or("", |(_, b)| b);
-                assert!(!body.trim().is_empty(), "{}: empty section", rule.name);
-            }
-        }
     }
 }
