@@ -61,10 +61,46 @@ pub fn square_root_terms(
     })
 }
 
+/// The parameter `p` when the coefficient of the state in its own drift is exactly `−p`
+/// (a speed of mean reversion written as one parameter), for a state with a one-state
+/// family.
+pub fn drift_speed_param(derivation: &Derivation, state: FactorId) -> Option<ParamId> {
+    let (os, _) = derivation.analysis().one_state(state.index())?;
+    single_param(&os.b.neg(), 1)
+}
+
 /// The coefficient of the state in its own drift, printed (`−kappa`), for a state with a
 /// one-state family.
 pub fn drift_slope_text(model: &Model, derivation: &Derivation, state: FactorId) -> Option<String> {
     let analysis = derivation.analysis();
     let (os, _) = analysis.one_state(state.index())?;
     Some(show_poly(&os.b, &Names::new(model)))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::drift_speed_param;
+
+    fn speed_of(equation: &str) -> Option<String> {
+        let text = format!(
+            "param kappa = 2 [1/year]\nparam theta = 0.03\nparam vol = 0.01 [1/sqrt(year)]\nshock W\nfactor x = 0.01\n{equation}\n"
+        );
+        let analysis = sdeck_semantics::analyze(&text, "speed");
+        assert!(!analysis.has_errors(), "{:?}", analysis.diagnostics);
+        let model = &analysis.model;
+        let derivation = crate::derive(model);
+        let x = model.factor_id("x")?;
+        drift_speed_param(&derivation, x).map(|p| model.params[p].name.clone())
+    }
+
+    /// The speed is the parameter `p` only when the drift's own coefficient is exactly −p.
+    #[test]
+    fn the_speed_is_the_parameter_of_a_slope_minus_p() {
+        assert_eq!(
+            speed_of("dx = kappa * (theta - x) dt + vol dW").as_deref(),
+            Some("kappa")
+        );
+        assert_eq!(speed_of("dx = -2 * kappa * x dt + vol dW"), None);
+        assert_eq!(speed_of("dx = kappa * x dt + vol dW"), None);
+    }
 }

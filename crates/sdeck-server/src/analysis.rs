@@ -224,12 +224,6 @@ impl Analyzed {
         let model = &self.check.analysis.model;
         let derivation = &self.check.derivation;
         let mut roles = vec![Vec::new(); model.params.len()];
-        let by_name: std::collections::HashMap<&str, usize> = model
-            .params
-            .iter()
-            .enumerate()
-            .map(|(i, p)| (p.name.as_str(), i))
-            .collect();
         for (state, law) in derivation.states.iter().enumerate() {
             if let Some(terms) =
                 sdeck_calculus::describe::square_root_terms(model, derivation, FactorId::new(state))
@@ -243,17 +237,15 @@ impl Analyzed {
                 }
                 continue;
             }
-            if let Some(slope) =
-                sdeck_calculus::describe::drift_slope_text(model, derivation, FactorId::new(state))
-            {
-                let slope = slope.replace('−', "-");
-                let speed = slope.strip_prefix('-').and_then(|name| by_name.get(name));
-                if let Some(slot) = speed.and_then(|p| roles.get_mut(*p)) {
-                    slot.push(Role::Speed {
-                        state,
-                        half_life: law.half_life,
-                    });
-                }
+            // The speed of a factor whose own drift coefficient is −p, read from the
+            // calculus as a parameter (never from the printed formula).
+            let speed =
+                sdeck_calculus::describe::drift_speed_param(derivation, FactorId::new(state));
+            if let Some(slot) = speed.and_then(|p| roles.get_mut(p.index())) {
+                slot.push(Role::Speed {
+                    state,
+                    half_life: law.half_life,
+                });
             }
         }
         roles
