@@ -10,12 +10,11 @@
 //! square-root part. bench/simulate_vs_numpy.py runs it beside numpy and prints the ratios.
 //! Lines starting with `result ` are read by that script.
 
-use rand::SeedableRng;
-use rand_chacha::ChaCha8Rng;
 use rayon::prelude::*;
 use sdeck_semantics::analyze;
 use sdeck_simulate::bytecode::{Lanes, LANES};
 use sdeck_simulate::normals::fill_normals_chunk;
+use sdeck_simulate::streams::BlockStream;
 use sdeck_simulate::{plan_from_model, simulate_paths, Scheme, SimulationOptions};
 use std::time::Instant;
 
@@ -87,8 +86,8 @@ fn engine_seconds(
     (seconds, mean, (variance / n).sqrt())
 }
 
-/// The floor: `paths × steps` normals drawn block by block (one ChaCha8 stream per block of
-/// 64 paths, as the engine does) on `threads` threads, summed so that nothing is skipped.
+/// The floor: `paths × steps` normals drawn block by block (one xoshiro256++ stream per
+/// block of 64 paths and the ziggurat, as the engine does) on `threads` threads, summed so that nothing is skipped.
 fn floor_seconds(paths: usize, steps: usize, threads: usize, seed: u64) -> f64 {
     let pool = match rayon::ThreadPoolBuilder::new().num_threads(threads).build() {
         Ok(pool) => pool,
@@ -103,9 +102,8 @@ fn floor_seconds(paths: usize, steps: usize, threads: usize, seed: u64) -> f64 {
         (0..blocks)
             .into_par_iter()
             .map(|block| {
-                let mut rng = ChaCha8Rng::seed_from_u64(seed);
-                rng.set_stream(block as u64);
-                let mut words = [0u64; LANES / 2];
+                let mut rng = BlockStream::new(seed, block as u64);
+                let mut words = [0u64; LANES];
                 let mut normals: Lanes = [0.0; LANES];
                 let mut sum = [0.0; LANES];
                 for _ in 0..steps {

@@ -6,7 +6,8 @@
 //! - [`mod@plan`]: the scheme of each state (exact Gaussian, lognormal, noncentral chi-square,
 //!   Andersen's log-price step over an exact variance, or Euler–Maruyama), read from the
 //!   equations;
-//! - [`normals`]: standard normals in bulk, Box–Muller vectorised over a ChaCha8 stream;
+//! - [`streams`]: the random stream of a block, xoshiro256++ in 16 lanes;
+//! - [`normals`]: standard normals in bulk, a vectorised ziggurat over that stream;
 //! - [`bytecode`]: drift and diffusion compiled to a flat program run over 64 paths at once;
 //! - [`engine`]: blocks of paths with one random stream each, on a local thread pool;
 //! - [`stats`] and [`report`]: figures with Monte Carlo standard errors, the bias by step
@@ -39,6 +40,7 @@ pub mod progress;
 pub mod report;
 pub mod samplers;
 pub mod stats;
+pub mod streams;
 
 pub use closed_form::{
     closed_figures_at, closed_form_means, closed_forms_at, closed_prices_at, simulate_and_compare,

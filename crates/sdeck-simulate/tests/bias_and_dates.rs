@@ -101,6 +101,80 @@ fn a_square_root_variance_is_sampled_exactly_and_drives_the_log_price_step() {
     }
 }
 
+/// The same variance driving a price written as a price, S₀ = 100.
+fn price_driven(xi: f64) -> String {
+    variance_driven(xi)
+        .replace("factor x = 0", "factor S = 100")
+        .replace(
+            "dx = (mu - 0.5 * v) dt + sqrt(v) dW_x",
+            "dS = mu * S dt + sqrt(v) * S dW_x",
+        )
+}
+
+#[test]
+fn a_price_times_the_root_of_a_square_root_variance_takes_the_log_price_step() {
+    for xi in [0.35, 0.9] {
+        let model = model(&price_driven(xi));
+        let derivation = derive(&model);
+        let plan = plan(&model, &derivation);
+        assert!(
+            matches!(plan.schemes[1], Scheme::Exact(ExactLaw::SquareRoot { .. })),
+            "xi {xi}: {:?}",
+            plan.schemes
+        );
+        let Scheme::VarianceDriven(driven) = &plan.schemes[0] else {
+            panic!("xi {xi}: {:?}", plan.schemes);
+        };
+        // ln S: drift mu + (0 − 1²/2) v by Itô's formula, loading 1.
+        assert!(driven.price);
+        assert!((driven.drift_constant - 0.05).abs() < 1e-12);
+        assert!((driven.drift_slope + 0.5).abs() < 1e-12);
+        assert!((driven.loading - 1.0).abs() < 1e-12);
+        assert!(plan
+            .describe_state(0)
+            .starts_with("price by the log-price step"));
+
+        let result = simulated(&model, &options(100_000, 20, &[0.5, 1.0], 11), &[]);
+        let (disagreements, _) = verdicts(&result);
+        assert!(
+            disagreements.is_empty(),
+            "xi {xi}: {disagreements:?}\n{}",
+            render_text(&result)
+        );
+        // E[S_t] = S₀ e^{mu t}: the price less its drift is a martingale (Heston 1993).
+        let expected = 100.0 * 0.05f64.exp();
+        let s = &result.states[0];
+        let b = s.bias.as_ref().unwrap();
+        let z = (b.mean_extrapolated - expected) / b.mean_extrapolated_se;
+        assert!(
+            z.abs() < 5.0,
+            "xi {xi}: {} vs {expected}",
+            b.mean_extrapolated
+        );
+        // exp of the log-price step: the 1% quantile of the price stays above zero.
+        assert!(s.quantiles[0].value > 0.0, "xi {xi}: {:?}", s.quantiles[0]);
+
+        // A wrong closed form still fails.
+        let mut wrong = result.clone();
+        let mut figures = closed_figures_at(&model, &derivation, 1.0, &[]);
+        figures[0].mean = figures[0]
+            .mean
+            .map(|m| m + 10.0 * b.mean_extrapolated_se.max(s.mean_se));
+        wrong.attach_closed_figures(1, &figures);
+        let failures = check(&wrong);
+        assert_eq!(failures.len(), 1, "xi {xi}: {failures:?}");
+        assert_eq!(failures[0].figure, "mean");
+    }
+}
+
+/// A price whose start is not positive has no logarithm: it stays on Euler–Maruyama.
+#[test]
+fn a_price_starting_at_zero_keeps_euler() {
+    let model = model(&price_driven(0.35).replace("factor S = 100", "factor S = 0"));
+    let plan = plan(&model, &derive(&model));
+    assert_eq!(plan.schemes[0], Scheme::Euler);
+}
+
 const OU: &str = "
 clock year
 param kappa = 1.2 [1/year] > 0

@@ -9,12 +9,26 @@ use sdeck_calculus::linear_system::{gaussian_step, GaussianStep};
 use sdeck_calculus::symmetric::correlation_factor;
 use sdeck_semantics::Model;
 
+use super::polynomial::{coefficients, PolynomialStep};
 use super::SimulateError;
 
 pub(super) struct EulerState {
     pub(super) index: usize,
     pub(super) drift: Program,
     pub(super) diffusion: Vec<(usize, Program)>,
+    /// Set when drift and diffusion are polynomials in the state alone: one fused pass.
+    pub(super) polynomial: Option<PolynomialStep>,
+}
+
+impl EulerState {
+    fn new(index: usize, drift: Program, diffusion: Vec<(usize, Program)>) -> EulerState {
+        EulerState {
+            index,
+            drift,
+            diffusion,
+            polynomial: None,
+        }
+    }
 }
 
 pub(super) struct LognormalState {
@@ -71,6 +85,16 @@ impl DrivenStep {
         let v = v.max(0.0);
         let v_next = v_next.max(0.0);
         x + self.k0 + self.kv * v + self.kv_next * v_next + self.kz * (v + v_next).sqrt() * z
+    }
+
+    /// The step of a state that is the log-price itself, or the price exp(log-price).
+    #[inline(always)]
+    pub(super) fn advance(&self, price: bool, x: f64, v: f64, v_next: f64, z: f64) -> f64 {
+        if price {
+            x * self.apply(0.0, v, v_next, z).exp()
+        } else {
+            self.apply(x, v, v_next, z)
+        }
     }
 }
 
@@ -161,7 +185,24 @@ pub(super) fn cut_segments(dates: &[f64], steps: usize, even: bool) -> Vec<(f64,
         .collect()
 }
 
-#[allow(clippy::too_many_arguments)]
+/// The fused step of factor `index` when its drift and its one diffusion term (if any) are
+/// polynomials in it alone.
+fn polynomial_step(
+    model: &Model,
+    index: usize,
+    params: &[f64],
+    truncated: bool,
+) -> Option<PolynomialStep> {
+    let equation = model.factors.get(index)?.equation.as_ref()?;
+    let drift = coefficients(&equation.drift, index, params)?;
+    let diffusion = match equation.diffusion.as_slice() {
+        [] => [0.0; 5],
+        [term] => coefficients(&term.coefficient, index, params)?,
+        _ => return None,
+    };
+    Some(PolynomialStep::new(drift, diffusion, truncated))
+}
+
 pub(super) fn compile(
     model: &Model,
     plan: &Plan,
@@ -231,11 +272,7 @@ pub(super) fn compile(
     let mut driven = Vec::new();
     for (index, (drift, diffusion)) in programs.into_iter().enumerate() {
         match plan.schemes.get(index).unwrap_or(&Scheme::Euler) {
-            Scheme::Euler => euler.push(EulerState {
-                index,
-                drift,
-                diffusion,
-            }),
+            Scheme::Euler => euler.push(EulerState::new(index, drift, diffusion)),
             Scheme::Exact(ExactLaw::LinearGaussian) => {}
             Scheme::Exact(ExactLaw::Lognormal { growth, loadings }) => {
                 let mut quadratic = 0.0;
@@ -280,6 +317,9 @@ pub(super) fn compile(
                 });
             }
         }
+    }
+    for state in &mut euler {
+        state.polynomial = polynomial_step(model, state.index, &params, truncated[state.index]);
     }
     // The driven step reads the variance's next value: square roots come first in a step.
     let group_matrices = match &plan.gaussian_group {

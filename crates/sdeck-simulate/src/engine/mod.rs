@@ -2,7 +2,8 @@
 //! random stream, run on a local thread pool and gathered in a fixed order.
 //!
 //! Reproducibility: paths are cut into blocks of [`LANES`] paths whatever `paths` and the
-//! thread count are; block b draws from ChaCha8 stream b of the seed, and blocks are
+//! thread count are; block b draws from its own stream ([`crate::streams`]), seeded from
+//! the seed and b alone, and blocks are
 //! gathered by index. So the same seed gives the same numbers, bit for bit, on one
 //! thread or many.
 //!
@@ -23,6 +24,7 @@
 //! gathers their values.
 
 mod compile;
+mod polynomial;
 mod step;
 
 use crate::bytecode::LANES;

@@ -4,8 +4,7 @@
 
 use crate::bytecode::{Lanes, LANES};
 use crate::normals::fill_normals_chunk;
-use rand::SeedableRng;
-use rand_chacha::ChaCha8Rng;
+use crate::streams::BlockStream;
 
 use super::compile::{Compiled, EulerState, GroupStep, LognormalState, Segment};
 
@@ -13,7 +12,7 @@ use super::compile::{Compiled, EulerState, GroupStep, LognormalState, Segment};
 pub(super) struct Scratch {
     pub(super) current: Vec<Lanes>,
     pub(super) next: Vec<Lanes>,
-    pub(super) words: [u64; LANES / 2],
+    pub(super) words: [u64; LANES],
     pub(super) normals: Vec<Lanes>,
     pub(super) increments: Vec<Lanes>,
     pub(super) group_normals: Vec<Lanes>,
@@ -43,7 +42,7 @@ impl Scratch {
         Scratch {
             current: vec![[0.0; LANES]; compiled.state_count],
             next: vec![[0.0; LANES]; compiled.state_count],
-            words: [0; LANES / 2],
+            words: [0; LANES],
             normals: vec![[0.0; LANES]; compiled.noise_count],
             increments: vec![[0.0; LANES]; compiled.noise_count],
             group_normals: vec![[0.0; LANES]; group_size],
@@ -138,8 +137,27 @@ pub(super) fn euler_step(
     stack: &mut [Lanes],
     value: &mut Lanes,
 ) {
+    let fma = multiversion::target::target_cfg_f!(target_feature = "fma");
     for state in euler {
         let i = state.index;
+        if let Some(polynomial) = &state.polynomial {
+            let mut increment = [0.0; LANES];
+            if let Some((noise, _)) = state.diffusion.first() {
+                increment = increments[*noise];
+                if let Some(extra) = extra {
+                    for (d, e) in increment.iter_mut().zip(&extra[*noise]) {
+                        *d += e;
+                    }
+                }
+            }
+            let (target, start) = (&mut to[i], &from[i]);
+            if fma {
+                polynomial.advance::<true>(start, target, dt, &increment);
+            } else {
+                polynomial.advance::<false>(start, target, dt, &increment);
+            }
+            continue;
+        }
         state.drift.evaluate(from, t, stack, value);
         let (target, start) = (&mut to[i], &from[i]);
         for ((n, x), a) in target.iter_mut().zip(start).zip(value.iter()) {
@@ -227,7 +245,7 @@ pub(super) fn advance(
     compiled: &Compiled,
     segment: &Segment,
     scratch: &mut Scratch,
-    rng: &mut ChaCha8Rng,
+    rng: &mut BlockStream,
     t: f64,
     second_of_pair: bool,
 ) {
@@ -287,7 +305,7 @@ pub(super) fn advance(
     for (state, transition) in compiled.square_root.iter().zip(&segment.square_root) {
         let i = state.index;
         for (n, x) in next[i].iter_mut().zip(&current[i]) {
-            *n = transition.sample(rng, *x);
+            *n = transition.sample(rng.scalar(), *x);
         }
     }
     if let Some(group) = &segment.group {
@@ -306,7 +324,7 @@ pub(super) fn advance(
             .zip(&variance_next)
             .zip(&normals[k])
         {
-            *n = step.apply(*x, *v0, *v1, *z);
+            *n = step.advance(state.law.price, *x, *v0, *v1, *z);
         }
     }
 
@@ -404,7 +422,13 @@ pub(super) fn coarse_step(
         let (i, v, k) = (state.index, state.law.variance, state.law.noise);
         for lane in 0..LANES {
             let z = (first_normals[k][lane] + normals[k][lane]) * half;
-            coarse[i][lane] = step.apply(coarse[i][lane], coarse[v][lane], fine_next[v][lane], z);
+            coarse[i][lane] = step.advance(
+                state.law.price,
+                coarse[i][lane],
+                coarse[v][lane],
+                fine_next[v][lane],
+                z,
+            );
         }
     }
 }
@@ -416,8 +440,7 @@ pub(super) fn simulate_block(
     block: usize,
     record_steps: &[usize],
 ) -> BlockOutput {
-    let mut rng = ChaCha8Rng::seed_from_u64(seed);
-    rng.set_stream(block as u64);
+    let mut rng = BlockStream::new(seed, block as u64);
     for (lanes, x0) in scratch.current.iter_mut().zip(&compiled.initial) {
         lanes.fill(*x0);
     }
