@@ -2,7 +2,12 @@
 burst of typing to its final diagnostics, resident memory and threads after many edits,
 on the 2,000-line model of bench/scale_check.py (270 factors, 180 expectations).
 
-    python3 tests/lsp/bench_lsp.py [--binary target/release/sdeck] [--edits 10000]
+    python3 tests/lsp/bench_lsp.py [--binary target/release/sdeck] [--edits 10000] [--trace]
+
+With --trace the server runs with SDECK_LSP_TRACE=1 and the script prints, beside each
+latency the client sees, the time the request spent inside the server (from its frame
+read to its answer written) and the feature's own time: what the client sees beyond
+these is the pipes, the client and the machine's scheduler.
 
 It speaks JSON-RPC over the server's stdin/stdout with a minimal client of its own (the
 end-to-end tests use pytest-lsp; here only timing matters). Every loop is bounded; the
@@ -14,7 +19,9 @@ from __future__ import annotations
 import argparse
 import importlib.util
 import json
+import os
 import pathlib
+import re
 import queue
 import random
 import subprocess
@@ -26,13 +33,25 @@ ROOT = pathlib.Path(__file__).resolve().parents[2]
 
 
 class Server:
-    def __init__(self, binary: str):
+    def __init__(self, binary: str, trace: bool = False):
+        env = dict(os.environ, SDECK_LSP_TRACE="1") if trace else None
         self.process = subprocess.Popen(
-            [binary, "lsp"], stdin=subprocess.PIPE, stdout=subprocess.PIPE, stderr=subprocess.DEVNULL
+            [binary, "lsp"],
+            stdin=subprocess.PIPE,
+            stdout=subprocess.PIPE,
+            stderr=subprocess.PIPE if trace else subprocess.DEVNULL,
+            env=env,
         )
         self.messages: queue.Queue = queue.Queue()
         self.next_id = 0
+        self.trace_lines: list[str] = []
         threading.Thread(target=self._read, daemon=True).start()
+        if trace:
+            threading.Thread(target=self._read_trace, daemon=True).start()
+
+    def _read_trace(self):
+        for line in self.process.stderr:
+            self.trace_lines.append(line.decode(errors="replace").rstrip("\n"))
 
     def _read(self):
         out = self.process.stdout
@@ -114,12 +133,14 @@ def main() -> int:
     parser.add_argument("--requests", type=int, default=300)
     parser.add_argument("--burst", type=int, default=45)
     parser.add_argument("--edits", type=int, default=10_000)
+    parser.add_argument("--trace", action="store_true", help="time each request inside the server too")
     args = parser.parse_args()
+    load_start = os.getloadavg()
 
     text = scale_model()
     lines = text.split("\n")
     uri = "file:///tmp/sdeck-bench/harrowgate_spreads.sde"
-    server = Server(args.binary)
+    server = Server(args.binary, args.trace)
     server.request("initialize", {"capabilities": {}, "processId": None, "rootUri": None})
     server.notify("initialized", {})
     rss_start = server.rss_kib()
@@ -130,18 +151,26 @@ def main() -> int:
     )
     at, _ = server.wait(lambda m: m.get("method") == "textDocument/publishDiagnostics" and m["params"].get("version") == 1)
     open_ms = (at - opened) * 1000
+    time.sleep(0.1)
+    open_analysis = analyses_traced(server.trace_lines)
 
     rng = random.Random(7)
     equation_lines = [k for k, line in enumerate(lines) if line.startswith("dx")]
 
+    inside: dict[str, str] = {}
+
     def timed(method: str, params_of) -> list[float]:
         out = []
+        first_line = len(server.trace_lines)
         for _ in range(args.requests):
             params = params_of()
             start = time.perf_counter()
             _, answer = server.request(method, params)
             out.append((time.perf_counter() - start) * 1000)
             assert "result" in answer, answer
+        if args.trace:
+            time.sleep(0.2)  # the last trace lines
+            inside[method] = traced(server.trace_lines[first_line:])
         return out
 
     doc = {"uri": uri}
@@ -167,6 +196,7 @@ def main() -> int:
 
     # A burst of typing: edits 200 ms apart to a parameter, then the final diagnostics.
     param_lines = [k for k, line in enumerate(lines) if line.startswith("param kappa")]
+    burst_first_line = len(server.trace_lines)
     version = 1
     last_sent = 0.0
     for n in range(args.burst):
@@ -197,6 +227,10 @@ def main() -> int:
     # The wait above began 200 ms after the last edit; `at` is when the answer arrived.
     burst_ms = (at - last_sent) * 1000
     rss_before_edits = server.rss_kib()
+    _, state = server.request("sdeck/documentText", {"uri": uri})
+    after_burst = state["result"]
+    burst_analyses = analyses_traced(server.trace_lines[burst_first_line:])
+    edits_first_line = len(server.trace_lines)
 
     # Many edits in a row (typing into a comment and deleting again), then memory.
     comment_line = 0
@@ -221,7 +255,12 @@ def main() -> int:
     )
     rss_end = server.rss_kib()
     threads = server.threads()
+    _, state = server.request("sdeck/documentText", {"uri": uri})
+    after_edits = state["result"]
+    time.sleep(0.2)
+    edit_analyses = analyses_traced(server.trace_lines[edits_first_line:])
     server.close()
+    load_end = os.getloadavg()
 
     def p(values, q):
         return f"{percentile(values, q):.1f}"
@@ -230,9 +269,14 @@ def main() -> int:
     print(f"binary: {args.binary}")
     print(f"model: {len(lines) - 1} lines, {len(equation_lines)} factors, {expectations} expectations")
     print(f"open to first diagnostics: {open_ms:.1f} ms")
+    if args.trace:
+        print(f"  its analysis (nothing to take over): {open_analysis}")
     print(f"hover on a factor ({args.requests}): p50 {p(hover_ms, 50)} ms, p99 {p(hover_ms, 99)} ms")
+    print(inside.get("textDocument/hover", ""), end="")
     print(f"inlay hints, 40-line range ({args.requests}): p50 {p(hint_ms, 50)} ms, p99 {p(hint_ms, 99)} ms")
+    print(inside.get("textDocument/inlayHint", ""), end="")
     print(f"completion ({args.requests}): p50 {p(completion_ms, 50)} ms, p99 {p(completion_ms, 99)} ms")
+    print(inside.get("textDocument/completion", ""), end="")
     print(
         f"burst of {args.burst} edits 200 ms apart: final diagnostics {burst_ms:.1f} ms after the last "
         f"edit (includes the {120} ms debounce)"
@@ -242,7 +286,64 @@ def main() -> int:
         f"after the requests and the burst, {rss_end / 1024:.1f} MiB after {args.edits} more edits; "
         f"{threads} threads"
     )
+    print(f"analyses: {counts(after_burst)} after the burst; {counts(after_edits)} after the edits")
+    if args.trace:
+        print(f"  analyses of the burst (parameter values): {burst_analyses}")
+        print(f"  analyses of the edits (a comment): {edit_analyses}")
+    print(f"load average: {load_start[0]:.1f} at the start, {load_end[0]:.1f} at the end")
     return 0
+
+
+def counts(state: dict) -> str:
+    """What the server derived and took over (the test-only sdeck/documentText)."""
+    return (
+        f"{state['analyses']} run ({state['abandoned']} given up), derivations "
+        f"{state['derivations']} computed / {state['derivationsReused']} taken over, expectation values "
+        f"{state['expectationValues']} / {state['expectationValuesReused']}, hover reports "
+        f"{state['reports']} / {state['reportsReused']}"
+    )
+
+
+TRACE_ANALYSIS = re.compile(
+    r"the analysis of version \d+ (took|given up after) ([0-9.]+) ms(?: \(([0-9.]+) ms of processor\))?"
+)
+
+
+def analyses_traced(lines: list[str]) -> str:
+    found = [m for m in map(TRACE_ANALYSIS.search, lines) if m]
+    done = [m for m in found if m.group(1) == "took"]
+    if not done:
+        return "none traced"
+    wall = [float(m.group(2)) for m in done]
+    cpu = [float(m.group(3)) for m in done if m.group(3)]
+    text = f"{len(done)} run, wall p50 {percentile(wall, 50):.1f} ms, max {max(wall):.1f} ms"
+    if cpu:
+        text += f", processor p50 {percentile(cpu, 50):.1f} ms"
+    return text + f"; {len(found) - len(done)} given up"
+
+
+TRACE_TOTAL = re.compile(r"sdeck trace: (\S+) \S+ in the server ([0-9.]+) ms")
+TRACE_FEATURE = re.compile(r"waited ([0-9.]+) ms for the analysis and ([0-9.]+) ms for a thread, ran ([0-9.]+) ms")
+
+
+def traced(lines: list[str]) -> str:
+    """Percentiles of the server's own times, from its trace lines."""
+    total = [float(m.group(2)) for m in map(TRACE_TOTAL.search, lines) if m]
+    features = [m for m in map(TRACE_FEATURE.search, lines) if m]
+    if not total or not features:
+        return ""
+    waits = [float(m.group(1)) for m in features]
+    threads = [float(m.group(2)) for m in features]
+    runs = [float(m.group(3)) for m in features]
+
+    def p(values, q):
+        return f"{percentile(values, q):.2f}"
+
+    return (
+        f"  in the server: p50 {p(total, 50)} ms, p99 {p(total, 99)} ms, max {max(total):.2f} ms; "
+        f"the feature ran p50 {p(runs, 50)}, p99 {p(runs, 99)} ms; "
+        f"waited for the analysis p99 {p(waits, 99)} ms, for a thread p99 {p(threads, 99)} ms\n"
+    )
 
 
 if __name__ == "__main__":

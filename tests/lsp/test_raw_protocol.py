@@ -196,16 +196,17 @@ def test_the_server_ends_when_the_process_that_started_it_dies(raw):
     assert client.process.wait(timeout=15) is not None
 
 
-def slow_model(factors: int) -> str:
-    """Many Ornstein-Uhlenbeck spreads of the (fictional) Harrowgate Rates desk on one
-    shock: checking it takes a while in a debug build."""
-    lines = ["model harrowgate_spreads", "clock year", "horizon 1 year", "shock M"]
+def spreads(factors: int) -> str:
+    """Spreads of the (fictional) Harrowgate Rates desk on one shock, each with its own
+    speed and an expectation on its standard deviation: a large one takes a while to
+    check in a debug build."""
+    lines = ["model harrowgate_spreads", "clock year", "horizon 1 year", "shock M", "param v = 1% [1/sqrt(year)] > 0"]
     for i in range(factors):
         lines += [
-            f"param k{i} = {0.5 + i % 7 * 0.1} [1/year] > 0",
-            f"factor x{i} = 1",
-            f"dx{i} = k{i} * (2 - x{i}) dt + 0.3 dM",
-            f"expect sd(x{i}) in [0, 1]",
+            f"param k{i} = {0.5 + i % 7 * 0.1:.1f} [1/year] > 0",
+            f"factor x{i} = 1%",
+            f"dx{i} = k{i} * (2% - x{i}) dt + v dM",
+            f"expect sd(x{i}) in [0, 1%]",
         ]
     return "\n".join(lines) + "\n"
 
@@ -213,7 +214,7 @@ def slow_model(factors: int) -> str:
 def test_hovers_on_a_slow_document_do_not_hold_up_other_documents(raw):
     client = raw()
     slow_uri, quick_uri = "file:///tmp/sdeck-raw/slow.sde", "file:///tmp/sdeck-raw/quick.sde"
-    slow_text = slow_model(4_000)
+    slow_text = spreads(4_000)
     client.open(quick_uri, VASICEK)
     client.diagnostics(quick_uri, 1)
     client.open(slow_uri, slow_text)
@@ -257,7 +258,7 @@ def test_hovers_on_a_slow_document_do_not_hold_up_other_documents(raw):
 def test_a_burst_of_edits_is_analysed_for_its_last_version(raw):
     client = raw()
     uri = "file:///tmp/sdeck-raw/burst.sde"
-    text = slow_model(300)
+    text = spreads(300)
     client.open(uri, text)
     client.diagnostics(uri, 1)
     line = text.split("\n").index("param k0 = 0.5 [1/year] > 0")
@@ -279,6 +280,51 @@ def test_a_burst_of_edits_is_analysed_for_its_last_version(raw):
     state = client.request("sdeck/documentText", {"uri": uri})["result"]
     # Typed faster than the debounce: the versions in between were not analysed.
     assert state["version"] == 31 and state["analyses"] <= 4, state
+
+
+def test_an_edit_to_a_comment_or_to_one_factor_derives_only_what_changed(raw):
+    client = raw()
+    uri = "file:///tmp/sdeck-raw/reuse.sde"
+    text = spreads(120)
+    client.open(uri, text)
+    assert client.diagnostics(uri, 1) == []
+
+    def hover_x3(text: str) -> str:
+        return hover_text(client, uri, at(text, "dx3 =", 1))["contents"]["value"]
+
+    def state() -> dict:
+        return client.request("sdeck/documentText", {"uri": uri})["result"]
+
+    def edit(version: int, line: int, start: int, end: int, new: str):
+        change = {"range": {"start": {"line": line, "character": start}, "end": {"line": line, "character": end}}, "text": new}
+        client.notify(
+            "textDocument/didChange",
+            {"textDocument": {"uri": uri, "version": version}, "contentChanges": [change]},
+        )
+
+    shown = hover_x3(text)
+    first = state()
+    assert (first["derivations"], first["expectationValues"], first["reports"]) == (1, 120, 1), first
+    # A comment on a new first line: every span moves, no content does. Nothing is
+    # derived again and the hover is the same.
+    edit(2, 0, 0, 0, "# reviewed by the desk\n")
+    text = "# reviewed by the desk\n" + text
+    assert client.diagnostics(uri, 2) == []
+    assert hover_x3(text) == shown
+    after_comment = state()
+    assert after_comment["derivations"] == 1 and after_comment["derivationsReused"] == 1, after_comment
+    assert after_comment["expectationValues"] == 120 and after_comment["expectationValuesReused"] == 120, after_comment
+    assert (after_comment["reports"], after_comment["reportsReused"]) == (1, 1), after_comment
+    # The speed of x0: the model is derived again (the calculus derives whole models),
+    # x0's expectation alone is evaluated again, and x3's hover is taken over.
+    line = text.split("\n").index("param k0 = 0.5 [1/year] > 0")
+    edit(3, line, 13, 14, "6")
+    assert client.diagnostics(uri, 3) == []
+    assert hover_x3(text) == shown
+    after_speed = state()
+    assert after_speed["derivations"] == 2, after_speed
+    assert after_speed["expectationValues"] == 121 and after_speed["expectationValuesReused"] == 239, after_speed
+    assert (after_speed["reports"], after_speed["reportsReused"]) == (1, 2), after_speed
 
 
 def hover_text(client: Raw, uri: str, position: dict) -> dict:

@@ -16,6 +16,7 @@
 //! assert!(result.diagnostics.is_empty(), "{:?}", result.diagnostics);
 //! ```
 
+pub mod reuse;
 pub mod rules;
 pub mod suppress;
 
@@ -56,6 +57,9 @@ impl RuleSettings {
 pub struct FileCheck {
     pub analysis: Analysis,
     pub derivation: Derivation,
+    /// The content key of each factor and of the derivation ([`reuse`]): what a later
+    /// version may take over.
+    pub keys: reuse::ContentKeys,
     /// The final diagnostics: suppressions and settings applied, sorted by position.
     pub diagnostics: Vec<Diagnostic>,
 }
@@ -91,11 +95,26 @@ pub fn check_unless_stale(
     settings: &RuleSettings,
     stale: &(dyn Fn() -> bool + Sync),
 ) -> Result<FileCheck, Abandoned> {
+    check_reusing(source, name, settings, stale, &reuse::Reuse::default())
+}
+
+/// [`check_unless_stale`], taking over from `reuse` what earlier versions of the same
+/// document derived: the derivation when the model's content is the same (an edit to a
+/// comment or an expectation), and the value of every expectation whose factor's content
+/// is the same. What this version derives is kept in `reuse` for the next one.
+pub fn check_reusing(
+    source: &str,
+    name: &str,
+    settings: &RuleSettings,
+    stale: &(dyn Fn() -> bool + Sync),
+    reuse: &reuse::Reuse,
+) -> Result<FileCheck, Abandoned> {
     let analysis = sdeck_semantics::analyze(source, name);
     if stale() {
         return Err(Abandoned);
     }
-    let derivation = sdeck_calculus::derive(&analysis.model);
+    let keys = reuse::ContentKeys::of(&analysis.model);
+    let derivation = reuse.derivation(&analysis.model, keys.derivation);
     if stale() {
         return Err(Abandoned);
     }
@@ -103,12 +122,15 @@ pub fn check_unless_stale(
     diagnostics.extend(rules::run_all(
         &rules::Context::new(source, &analysis, &derivation)
             .with_plausibility(settings.plausibility)
-            .with_stale(stale),
+            .with_stale(stale)
+            .with_reuse(reuse, &keys),
     )?);
     let diagnostics = finish(source, &analysis.file, diagnostics, settings);
+    reuse.finish_version();
     Ok(FileCheck {
         analysis,
         derivation,
+        keys,
         diagnostics,
     })
 }

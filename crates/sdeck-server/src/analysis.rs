@@ -4,13 +4,14 @@
 
 use crate::convert::Converter;
 use crate::documents::{PositionEncoding, TextSnapshot};
+use sdeck_checks::reuse::{Memo, Reuse, ReuseCounts};
 use sdeck_checks::{FileCheck, RuleSettings};
 use sdeck_report::{FactorReport, Levels};
 use sdeck_semantics::{FactorId, Symbol, SymbolKind};
 use sdeck_syntax::ast::{Declaration, StatementKind};
 use sdeck_syntax::LineIndex;
 use std::path::Path;
-use std::sync::OnceLock;
+use std::sync::{Arc, Mutex, OnceLock};
 use tower_lsp::lsp_types::Url;
 
 /// What the project that governs a document says about it.
@@ -59,6 +60,48 @@ pub fn horizon_levels(state: usize) -> Levels {
     }
 }
 
+/// What the analyses of one open document keep across its versions, by content key
+/// (`sdeck_checks::reuse`): the derivation, the values of expectations and the reports of
+/// factors at the horizon. It lives as long as the document is open.
+#[derive(Debug, Default)]
+pub struct DocumentMemo {
+    pub checks: Reuse,
+    reports: Mutex<Memo<Option<FactorReport>>>,
+}
+
+/// How much the analyses of a document computed and took over (the test-only document
+/// request reports it).
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub struct MemoCounts {
+    pub checks: ReuseCounts,
+    /// Reports of a factor at the horizon built.
+    pub reports: u64,
+    /// Reports taken over from an earlier version.
+    pub reports_reused: u64,
+}
+
+impl DocumentMemo {
+    fn reports(&self) -> std::sync::MutexGuard<'_, Memo<Option<FactorReport>>> {
+        // A report is inserted whole once built: a poisoned lock guards whole data.
+        self.reports.lock().unwrap_or_else(|p| p.into_inner())
+    }
+
+    /// A version's analysis has ended: forget the reports no request asked for since the
+    /// version before.
+    pub fn finish_version(&self) {
+        self.reports().finish_version();
+    }
+
+    pub fn counts(&self) -> MemoCounts {
+        let reports = self.reports();
+        MemoCounts {
+            checks: self.checks.counts(),
+            reports: reports.computed,
+            reports_reused: reports.reused,
+        }
+    }
+}
+
 /// A document's text at one version, analysed.
 pub struct Analyzed {
     pub version: i32,
@@ -78,6 +121,8 @@ pub struct Analyzed {
     /// Every semantic token of the version (span, type, modifiers), by start, without
     /// overlaps; built on first use.
     pub(crate) tokens: OnceLock<Vec<(sdeck_diagnostics::Span, u32, u32)>>,
+    /// What the document's analyses keep across versions.
+    memo: Arc<DocumentMemo>,
 }
 
 impl Analyzed {
@@ -85,26 +130,34 @@ impl Analyzed {
     #[cfg(test)]
     pub fn compute(snapshot: TextSnapshot) -> Analyzed {
         let check = sdeck_checks::check(&snapshot.text, &snapshot.stem, &snapshot.project.settings);
-        Analyzed::from_check(snapshot, check)
+        Analyzed::from_check(snapshot, check, Arc::default())
     }
 
     /// [`Analyzed::compute`], given up (`None`) as soon as `stale` answers yes at one of
-    /// the check's cancellation points.
+    /// the check's cancellation points, taking over from `memo` what earlier versions of
+    /// the document derived (and keeping there what this one derives).
     pub fn compute_unless_stale(
         snapshot: TextSnapshot,
         stale: &(dyn Fn() -> bool + Sync),
+        memo: Arc<DocumentMemo>,
     ) -> Option<Analyzed> {
-        let check = sdeck_checks::check_unless_stale(
+        let check = sdeck_checks::check_reusing(
             &snapshot.text,
             &snapshot.stem,
             &snapshot.project.settings,
             stale,
+            &memo.checks,
         )
         .ok()?;
-        Some(Analyzed::from_check(snapshot, check))
+        memo.finish_version();
+        Some(Analyzed::from_check(snapshot, check, memo))
     }
 
-    fn from_check(snapshot: TextSnapshot, check: sdeck_checks::FileCheck) -> Analyzed {
+    fn from_check(
+        snapshot: TextSnapshot,
+        check: sdeck_checks::FileCheck,
+        memo: Arc<DocumentMemo>,
+    ) -> Analyzed {
         let excluded = snapshot.project.excluded;
         let index = LineIndex::new(&snapshot.text);
         let states = check.analysis.model.factors.len();
@@ -118,6 +171,7 @@ impl Analyzed {
             roles: OnceLock::new(),
             hints: OnceLock::new(),
             tokens: OnceLock::new(),
+            memo,
         }
     }
 
@@ -131,22 +185,39 @@ impl Analyzed {
     }
 
     /// The report of `state` at the horizon, with the quantiles and the probability below
-    /// zero the hover shows ([`horizon_levels`]): built once per analysed version, for that
-    /// state only. `None` when there is no such state.
+    /// zero the hover shows ([`horizon_levels`]): built for that state only, on first use,
+    /// and taken over by later versions while the state's content key is the same (an
+    /// edit elsewhere leaves it). `None` when there is no such state.
     pub fn horizon_report(&self, state: usize) -> Option<&FactorReport> {
-        let model = &self.check.analysis.model;
         self.horizon
             .get(state)?
             .get_or_init(|| {
-                FactorReport::build(
+                let key = self.check.keys.factors.get(state).copied();
+                let kept = key.and_then(|k| self.memo.reports().get(k));
+                if let Some(report) = kept {
+                    return report;
+                }
+                // Built off the lock: another request may read the memo meanwhile.
+                let model = &self.check.analysis.model;
+                let report = FactorReport::build(
                     model,
                     &self.check.derivation,
                     FactorId::new(state),
                     model.horizon,
                     &horizon_levels(state),
-                )
+                );
+                if let Some(k) = key {
+                    self.memo.reports().insert(k, report.clone());
+                }
+                report
             })
             .as_ref()
+    }
+
+    /// What the document's analyses computed and took over so far.
+    #[cfg(test)]
+    pub fn memo_counts(&self) -> MemoCounts {
+        self.memo.counts()
     }
 
     pub fn converter(&self, encoding: PositionEncoding) -> Converter<'_> {

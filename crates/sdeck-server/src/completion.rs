@@ -6,6 +6,7 @@ use crate::documents::PositionEncoding;
 use sdeck_semantics::{Function, SymbolKind};
 use sdeck_syntax::ast::Figure;
 use sdeck_syntax::vocabulary::KEYWORDS;
+use std::borrow::Cow;
 use tower_lsp::lsp_types::{CompletionItem, CompletionItemKind, CompletionList, Position};
 
 /// The most items one answer carries. A model with a thousand names would otherwise send
@@ -16,21 +17,20 @@ const MAX_ITEMS: usize = 200;
 
 /// What fits at `position`, narrowed to the names that hold the word typed before the
 /// cursor (its letters in order, any case: what an editor's fuzzy match shows), at most
-/// [`MAX_ITEMS`] of them.
+/// [`MAX_ITEMS`] of them. Candidates are narrowed by their label before any item is
+/// built: a model with a thousand names builds two hundred items, not a thousand.
 pub fn complete(a: &Analyzed, encoding: PositionEncoding, position: Position) -> CompletionList {
     let converter = a.converter(encoding);
     let offset = converter.offset(position);
     let line_start = sdeck_syntax::lines::line_start(&a.text, offset);
     let before = a.text.get(line_start..offset).unwrap_or("");
     let typed = typed_word(before);
-    let mut items: Vec<CompletionItem> = candidates(a, before)
+    let mut fitting = candidates(a, before)
         .into_iter()
-        .filter(|item| holds_in_order(&item.label, typed))
-        .collect();
-    let is_incomplete = items.len() > MAX_ITEMS;
-    items.truncate(MAX_ITEMS);
+        .filter(|c| holds_in_order(&c.label, typed));
+    let items: Vec<CompletionItem> = fitting.by_ref().take(MAX_ITEMS).map(item).collect();
     CompletionList {
-        is_incomplete,
+        is_incomplete: fitting.next().is_some(),
         items,
     }
 }
@@ -54,11 +54,32 @@ fn holds_in_order(label: &str, typed: &str) -> bool {
         .all(|wanted| rest.any(|c| c == wanted))
 }
 
+/// A completion before it is an item: what narrowing reads, without allocating for the
+/// names of the model.
+struct Candidate<'a> {
+    label: Cow<'a, str>,
+    kind: CompletionItemKind,
+    detail: &'static str,
+}
+
+fn candidate<'a>(
+    label: impl Into<Cow<'a, str>>,
+    kind: CompletionItemKind,
+    detail: &'static str,
+) -> Candidate<'a> {
+    Candidate {
+        label: label.into(),
+        kind,
+        detail,
+    }
+}
+
 /// Everything that fits the context of the line before the cursor.
-fn candidates(a: &Analyzed, before: &str) -> Vec<CompletionItem> {
+fn candidates<'a>(a: &'a Analyzed, before: &str) -> Vec<Candidate<'a>> {
     let in_brackets = before
         .rfind('[')
         .is_some_and(|open| !before[open..].contains(']'));
+    let symbols = &a.check.analysis.symbols;
     match context(before) {
         Context::Anything => {}
         Context::Figure => {
@@ -74,15 +95,12 @@ fn candidates(a: &Analyzed, before: &str) -> Vec<CompletionItem> {
             return names(a, SymbolKind::Shock, CompletionItemKind::EVENT, "shock");
         }
         Context::Differential(prefix) => {
-            let mut items: Vec<CompletionItem> = a
-                .check
-                .analysis
-                .symbols
+            let mut items: Vec<Candidate> = symbols
                 .iter()
                 .filter(|s| s.kind == SymbolKind::Factor)
                 .map(|s| {
-                    item(
-                        &format!("d{}", s.name),
+                    candidate(
+                        format!("d{}", s.name),
                         CompletionItemKind::VARIABLE,
                         "the factor's equation",
                     )
@@ -92,25 +110,22 @@ fn candidates(a: &Analyzed, before: &str) -> Vec<CompletionItem> {
                 KEYWORDS
                     .iter()
                     .filter(|k| k.word.starts_with(prefix))
-                    .map(|k| item(k.word, CompletionItemKind::KEYWORD, k.summary)),
+                    .map(|k| candidate(k.word, CompletionItemKind::KEYWORD, k.summary)),
             );
             return items;
         }
     }
-    let declared_units = a
-        .check
-        .analysis
-        .symbols
+    let declared_units = symbols
         .iter()
         .filter(|s| s.kind == SymbolKind::Unit)
-        .map(|s| s.name.clone());
-    let mut items: Vec<CompletionItem> = sdeck_units::TIME_UNITS
+        .map(|s| candidate(s.name.as_str(), CompletionItemKind::UNIT, "declared unit"));
+    let mut items: Vec<Candidate> = sdeck_units::TIME_UNITS
         .iter()
-        .map(|u| item(u, CompletionItemKind::UNIT, "time unit"))
-        .chain(declared_units.map(|u| item(&u, CompletionItemKind::UNIT, "declared unit")))
+        .map(|u| candidate(*u, CompletionItemKind::UNIT, "time unit"))
+        .chain(declared_units)
         .collect();
     if in_brackets {
-        items.push(item(
+        items.push(candidate(
             "sqrt",
             CompletionItemKind::FUNCTION,
             "unit square root",
@@ -120,30 +135,30 @@ fn candidates(a: &Analyzed, before: &str) -> Vec<CompletionItem> {
     items.extend(
         KEYWORDS
             .iter()
-            .map(|k| item(k.word, CompletionItemKind::KEYWORD, k.summary)),
+            .map(|k| candidate(k.word, CompletionItemKind::KEYWORD, k.summary)),
     );
     items.extend(
         Function::ALL
             .iter()
-            .map(|f| item(f.name(), CompletionItemKind::FUNCTION, "function")),
+            .map(|f| candidate(f.name(), CompletionItemKind::FUNCTION, "function")),
     );
     items.extend(
         Figure::ALL
             .iter()
-            .map(|f| item(f.keyword(), CompletionItemKind::PROPERTY, f.form())),
+            .map(|f| candidate(f.keyword(), CompletionItemKind::PROPERTY, f.form())),
     );
-    items.push(item(
+    items.push(candidate(
         "t",
         CompletionItemKind::VARIABLE,
         "time, in clock units",
     ));
-    items.push(item("pi", CompletionItemKind::CONSTANT, "π"));
-    items.push(item(
+    items.push(candidate("pi", CompletionItemKind::CONSTANT, "π"));
+    items.push(candidate(
         "dt",
         CompletionItemKind::KEYWORD,
         "drift differential",
     ));
-    for s in &a.check.analysis.symbols {
+    for s in symbols {
         let (kind, detail) = match s.kind {
             SymbolKind::Param => (CompletionItemKind::CONSTANT, "param"),
             SymbolKind::Factor => (CompletionItemKind::VARIABLE, "factor"),
@@ -151,10 +166,10 @@ fn candidates(a: &Analyzed, before: &str) -> Vec<CompletionItem> {
             SymbolKind::Let => (CompletionItemKind::VARIABLE, "let"),
             SymbolKind::Unit => continue,
         };
-        items.push(item(&s.name, kind, detail));
+        items.push(candidate(s.name.as_str(), kind, detail));
         if s.kind == SymbolKind::Shock {
-            items.push(item(
-                &format!("d{}", s.name),
+            items.push(candidate(
+                format!("d{}", s.name),
                 CompletionItemKind::EVENT,
                 "shock differential",
             ));
@@ -163,11 +178,11 @@ fn candidates(a: &Analyzed, before: &str) -> Vec<CompletionItem> {
     items
 }
 
-fn item(label: &str, kind: CompletionItemKind, detail: &str) -> CompletionItem {
+fn item(c: Candidate) -> CompletionItem {
     CompletionItem {
-        label: label.to_string(),
-        kind: Some(kind),
-        detail: Some(detail.to_string()),
+        label: c.label.into_owned(),
+        kind: Some(c.kind),
+        detail: Some(c.detail.to_string()),
         ..CompletionItem::default()
     }
 }
@@ -219,18 +234,18 @@ fn context(before: &str) -> Context<'_> {
 }
 
 /// The declared names of one kind.
-fn names(
-    a: &Analyzed,
+fn names<'a>(
+    a: &'a Analyzed,
     kind: SymbolKind,
     item_kind: CompletionItemKind,
-    detail: &str,
-) -> Vec<CompletionItem> {
+    detail: &'static str,
+) -> Vec<Candidate<'a>> {
     a.check
         .analysis
         .symbols
         .iter()
         .filter(|s| s.kind == kind)
-        .map(|s| item(&s.name, item_kind, detail))
+        .map(|s| candidate(s.name.as_str(), item_kind, detail))
         .collect()
 }
 

@@ -26,8 +26,12 @@ mod durations;
 mod hints;
 mod hover;
 mod navigation;
+mod stdio;
 mod tokens;
+mod trace;
 pub mod transport;
+
+pub use stdio::run_stdio;
 
 /// The protocol's types, as this crate uses them (for tests and the fuzz targets).
 pub use tower_lsp::lsp_types;
@@ -42,7 +46,7 @@ use std::sync::{Arc, Mutex, RwLock};
 use std::time::Duration;
 use tower_lsp::jsonrpc::{Error, ErrorCode, Result};
 use tower_lsp::lsp_types::*;
-use tower_lsp::{Client, LanguageServer, LspService, Server};
+use tower_lsp::{Client, LanguageServer};
 
 /// How long the server waits after an edit before it analyses (a burst of typing is
 /// analysed once, at its end).
@@ -61,10 +65,10 @@ pub const CONCURRENT_MESSAGES: usize = 64;
 pub const PARENT_CHECK: Duration = Duration::from_secs(2);
 
 /// Whether `shutdown` was received (the exit code of `exit` and of a closed stdin).
-static SHUT_DOWN: AtomicBool = AtomicBool::new(false);
+pub(crate) static SHUT_DOWN: AtomicBool = AtomicBool::new(false);
 
 /// The protocol's exit code: 0 after a `shutdown` request, 1 without one.
-fn exit_code() -> i32 {
+pub(crate) fn exit_code() -> i32 {
     if SHUT_DOWN.load(Ordering::SeqCst) {
         0
     } else {
@@ -93,6 +97,16 @@ pub struct DocumentTextResult {
     pub analyses: u64,
     /// How many analyses were given up because the text changed while they ran.
     pub abandoned: u64,
+    /// Derivations of the whole model computed, and taken over from an earlier version
+    /// whose model had the same content.
+    pub derivations: u64,
+    pub derivations_reused: u64,
+    /// Values of expectations computed, and taken over (same content of their factor).
+    pub expectation_values: u64,
+    pub expectation_values_reused: u64,
+    /// Reports of a factor at the horizon (hover) built, and taken over.
+    pub reports: u64,
+    pub reports_reused: u64,
 }
 
 /// The analysis of one version of a document, or the error it ended with.
@@ -112,6 +126,9 @@ struct Slot {
     count: u64,
     /// Analyses given up since the document was opened: a newer version arrived.
     abandoned: u64,
+    /// What the analyses keep across versions, by content; dropped with the slot when the
+    /// document closes.
+    memo: Arc<analysis::DocumentMemo>,
 }
 
 /// State shared by the handlers and the analysis threads.
@@ -172,7 +189,7 @@ impl Shared {
     fn run(self: &Arc<Self>, uri: &Url, runtime: &tokio::runtime::Handle) {
         loop {
             let snapshot = self.documents.snapshot(uri);
-            {
+            let memo = {
                 let mut slots = self.slots();
                 let Some(slot) = slots.get_mut(uri) else {
                     return; // closed meanwhile
@@ -187,15 +204,27 @@ impl Shared {
                     self.analysed.notify_waiters();
                     return;
                 }
-            }
+                slot.memo.clone()
+            };
             let Some(snapshot) = snapshot else { return };
             let version = snapshot.version;
             // Typed past: the analysis of this version stops at its next cancellation
             // point and the loop takes the newest version.
             let stale = || self.documents.version(uri) != Some(version);
-            let result = match guard("the analysis", || {
-                Analyzed::compute_unless_stale(snapshot, &stale)
-            }) {
+            let (started, cpu) = (std::time::Instant::now(), trace::thread_cpu());
+            let analysed = guard("the analysis", || {
+                Analyzed::compute_unless_stale(snapshot, &stale, memo)
+            });
+            let cpu = cpu
+                .zip(trace::thread_cpu())
+                .map(|(a, b)| b.saturating_sub(a));
+            trace::analysis(
+                version,
+                started.elapsed(),
+                cpu,
+                matches!(analysed, Ok(None)),
+            );
+            let result = match analysed {
                 Ok(Some(analyzed)) => Ok(Arc::new(analyzed)),
                 Ok(None) => {
                     if let Some(slot) = self.slots().get_mut(uri) {
@@ -345,17 +374,26 @@ impl Backend {
     pub async fn document_text(&self, params: DocumentTextParams) -> Result<DocumentTextResult> {
         // One lock for both counts: a second `slots()` in the same expression would wait
         // for the first guard, which lives until the end of the statement.
-        let (analyses, abandoned) = self
+        let (analyses, abandoned, memo) = self
             .shared
             .slots()
             .get(&params.uri)
-            .map_or((0, 0), |slot| (slot.count, slot.abandoned));
+            .map_or((0, 0, None), |slot| {
+                (slot.count, slot.abandoned, Some(slot.memo.clone()))
+            });
+        let counts = memo.map(|m| m.counts()).unwrap_or_default();
         match self.shared.documents.snapshot(&params.uri) {
             Some(s) => Ok(DocumentTextResult {
                 text: s.text,
                 version: s.version,
                 analyses,
                 abandoned,
+                derivations: counts.checks.derivations,
+                derivations_reused: counts.checks.derivations_reused,
+                expectation_values: counts.checks.expectations,
+                expectation_values_reused: counts.checks.expectations_reused,
+                reports: counts.reports,
+                reports_reused: counts.reports_reused,
             }),
             None => Err(Error::invalid_params(format!("{} is not open", params.uri))),
         }
@@ -387,12 +425,18 @@ impl Backend {
         T: Send + 'static,
         F: FnOnce(&Analyzed, PositionEncoding) -> T + Send + 'static,
     {
+        let asked = std::time::Instant::now();
         let Some(analyzed) = self.shared.analysis(uri).await? else {
             return Ok(None);
         };
         let encoding = self.shared.encoding();
-        let task =
-            tokio::task::spawn_blocking(move || guard(what, || Some(feature(&analyzed, encoding))));
+        let ready = std::time::Instant::now();
+        let task = tokio::task::spawn_blocking(move || {
+            let started = std::time::Instant::now();
+            let result = guard(what, || Some(feature(&analyzed, encoding)));
+            trace::feature(what, ready - asked, started - ready, started.elapsed());
+            result
+        });
         match task.await {
             Ok(result) => result,
             Err(e) => Err(Error {
@@ -511,7 +555,7 @@ impl LanguageServer for Backend {
         });
         self.shared.plain_hover.store(plain, Ordering::SeqCst);
         if let Some(pid) = params.process_id {
-            watch_parent(pid);
+            stdio::watch_parent(pid);
         }
         Ok(InitializeResult {
             capabilities: capabilities(encoding),
@@ -793,102 +837,6 @@ impl LanguageServer for Backend {
             }
         })
     }
-}
-
-/// Ends the process on the `exit` notification. tower-lsp stops serving only when the
-/// next message arrives or stdin closes; a client that sends `exit` and waits for the
-/// process (as the protocol allows) would wait for ever.
-struct EndOnExit<S> {
-    inner: S,
-}
-
-impl<S> tower_service::Service<tower_lsp::jsonrpc::Request> for EndOnExit<S>
-where
-    S: tower_service::Service<tower_lsp::jsonrpc::Request>,
-{
-    type Response = S::Response;
-    type Error = S::Error;
-    type Future = S::Future;
-
-    fn poll_ready(
-        &mut self,
-        cx: &mut std::task::Context<'_>,
-    ) -> std::task::Poll<std::result::Result<(), Self::Error>> {
-        self.inner.poll_ready(cx)
-    }
-
-    fn call(&mut self, request: tower_lsp::jsonrpc::Request) -> Self::Future {
-        match request.method() {
-            "shutdown" => SHUT_DOWN.store(true, Ordering::SeqCst),
-            // The protocol: exit code 0 after a shutdown request, 1 without one.
-            "exit" => std::process::exit(exit_code()),
-            _ => {}
-        }
-        self.inner.call(request)
-    }
-}
-
-/// Ends the process when the process `pid` (the client, from `initialize`) is gone, so
-/// that a server whose editor died does not live on.
-fn watch_parent(pid: u32) {
-    tokio::spawn(async move {
-        let mut every = tokio::time::interval(PARENT_CHECK);
-        loop {
-            every.tick().await;
-            if !process_alive(pid) {
-                std::process::exit(exit_code());
-            }
-        }
-    });
-}
-
-/// Whether a process exists (signal 0 delivers nothing and only checks).
-#[cfg(unix)]
-fn process_alive(pid: u32) -> bool {
-    let Ok(pid) = libc::pid_t::try_from(pid) else {
-        return true;
-    };
-    // SAFETY: kill with signal 0 sends no signal; it only reports whether `pid` exists.
-    let status = unsafe { libc::kill(pid, 0) };
-    status == 0 || std::io::Error::last_os_error().raw_os_error() == Some(libc::EPERM)
-}
-
-/// Elsewhere the check is not made; stdin closing still ends the server.
-#[cfg(not(unix))]
-fn process_alive(_pid: u32) -> bool {
-    true
-}
-
-/// Serves the protocol on stdin/stdout until the client exits, closes stdin or dies.
-pub fn run_stdio() -> std::io::Result<()> {
-    let runtime = tokio::runtime::Builder::new_multi_thread()
-        .worker_threads(2)
-        // One analysis per document at a time, and features run after it: a bounded pool.
-        .max_blocking_threads(16)
-        .enable_all()
-        .build()?;
-    runtime.block_on(async {
-        let (service, socket) = LspService::build(Backend::new)
-            .custom_method(DOCUMENT_TEXT_METHOD, Backend::document_text)
-            .finish();
-        let service = EndOnExit { inner: service };
-        // When the client closes stdin it is gone: give tower-lsp a moment to send what
-        // it still has, then end.
-        let pipes = transport::start(tokio::io::stdin(), tokio::io::stdout(), || {
-            std::thread::spawn(|| {
-                std::thread::sleep(Duration::from_millis(500));
-                std::process::exit(exit_code());
-            });
-        });
-        Server::new(pipes.input, pipes.output, socket)
-            .concurrency_level(CONCURRENT_MESSAGES)
-            .serve(service)
-            .await;
-    });
-    // The reader of stdin sits on a blocking thread that never returns while stdin is
-    // open; do not wait for it once the client has said `exit`.
-    runtime.shutdown_background();
-    Ok(())
 }
 
 #[cfg(test)]

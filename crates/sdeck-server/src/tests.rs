@@ -108,8 +108,9 @@ fn an_analysis_whose_text_turns_stale_is_given_up() {
         project: Arc::new(crate::analysis::ProjectSettings::default()),
         stem: "test_model".to_string(),
     };
-    assert!(Analyzed::compute_unless_stale(snapshot(VASICEK), &|| true).is_none());
-    let full = Analyzed::compute_unless_stale(snapshot(VASICEK), &|| false).expect("analysed");
+    assert!(Analyzed::compute_unless_stale(snapshot(VASICEK), &|| true, Arc::default()).is_none());
+    let full = Analyzed::compute_unless_stale(snapshot(VASICEK), &|| false, Arc::default())
+        .expect("analysed");
     assert_eq!(
         full.check.diagnostics,
         analyzed(VASICEK).check.diagnostics,
@@ -771,4 +772,67 @@ fn hints_and_tokens_of_a_range_are_those_of_the_whole_within_it() {
     assert!(!part.is_empty());
     assert_eq!(part[0].delta_line, 3);
     assert!(part.iter().skip(1).all(|t| t.delta_line == 0));
+}
+
+/// Two spreads of the (fictional) Harrowgate Rates desk, with a comment on top.
+fn two_spreads(comment: &str, kappa0: &str) -> String {
+    format!(
+        "# {comment}\nmodel harrowgate\nclock year\nhorizon 1 year\nshock M\n\
+         param kappa0 = {kappa0} [1/year] > 0\nparam kappa1 = 0.8 [1/year] > 0\n\
+         param vol = 1% [1/sqrt(year)] > 0\n\
+         factor x0 = 2%\ndx0 = kappa0 * (3% - x0) dt + vol dM\n\
+         factor x1 = 2%\ndx1 = kappa1 * (3% - x1) dt + vol dM\n\
+         expect sd(x0) in [0.5%, 0.9%]\nexpect sd(x1) in [0.5%, 0.9%]\n"
+    )
+}
+
+#[test]
+fn a_later_version_takes_over_the_reports_of_factors_whose_content_is_the_same() {
+    let memo = Arc::new(crate::analysis::DocumentMemo::default());
+    let version = |text: &str, version: i32| {
+        let snapshot = TextSnapshot {
+            text: text.to_string(),
+            version,
+            project: Arc::new(crate::analysis::ProjectSettings::default()),
+            stem: "harrowgate".to_string(),
+        };
+        Analyzed::compute_unless_stale(snapshot, &|| false, memo.clone()).expect("analysed")
+    };
+    let first = two_spreads("spreads", "0.5");
+    let a = version(&first, 1);
+    assert!(a.check.diagnostics.is_empty(), "{:?}", a.check.diagnostics);
+    let x1 = hover_text(&a, position_of(&first, "dx1 =", 1));
+    hover_text(&a, position_of(&first, "dx0 =", 1));
+    let counts = a.memo_counts();
+    assert_eq!((counts.reports, counts.reports_reused), (2, 0));
+    assert_eq!(counts.checks.derivations, 1);
+    // A comment: every span moves, no content does; the hovers are the same text.
+    let commented = two_spreads("spreads of the desk, reviewed", "0.5");
+    let b = version(&commented, 2);
+    assert_eq!(hover_text(&b, position_of(&commented, "dx1 =", 1)), x1);
+    let counts = b.memo_counts();
+    assert_eq!((counts.reports, counts.reports_reused), (2, 1));
+    assert_eq!(
+        (counts.checks.derivations, counts.checks.derivations_reused),
+        (1, 1)
+    );
+    // x0's speed: x1's report is taken over, x0's is built again and shows the new speed.
+    let faster = two_spreads("spreads of the desk, reviewed", "0.6");
+    let c = version(&faster, 3);
+    assert_eq!(hover_text(&c, position_of(&faster, "dx1 =", 1)), x1);
+    let x0 = hover_text(&c, position_of(&faster, "dx0 =", 1));
+    assert_eq!(
+        x0,
+        hover_text(&analyzed(&faster), position_of(&faster, "dx0 =", 1))
+    );
+    let counts = c.memo_counts();
+    assert_eq!((counts.reports, counts.reports_reused), (3, 2));
+    // One expectation evaluated again (x0's), one taken over (x1's).
+    assert_eq!(
+        (
+            counts.checks.expectations,
+            counts.checks.expectations_reused
+        ),
+        (3, 3)
+    );
 }

@@ -10,9 +10,9 @@
 //!
 //! When standard input ends the client is gone: the process ends.
 
+use crate::trace;
 use serde_json::{json, Value};
-use tokio::io::{AsyncRead, AsyncReadExt, AsyncWrite, AsyncWriteExt, DuplexStream};
-use tokio::sync::mpsc;
+use tokio::io::{AsyncRead, AsyncReadExt, AsyncWriteExt, DuplexStream};
 
 /// The largest frame read. A longer one is skipped with an error reply: no model the
 /// analysis takes is near this size, and the text is held several times while analysed.
@@ -37,6 +37,9 @@ pub enum Frame {
 /// Splits a byte stream into frames, recovering after a bad one.
 #[derive(Default)]
 pub struct Reader {
+    /// Whether the bodies come from tower-lsp, which writes only well-formed messages:
+    /// they are framed, not checked (a completion list is tens of kilobytes of JSON).
+    trusted: bool,
     buffer: Vec<u8>,
     /// Bytes of a too-long body still to skip.
     skip: usize,
@@ -45,6 +48,14 @@ pub struct Reader {
 }
 
 impl Reader {
+    /// A reader of tower-lsp's own output: frames only.
+    fn trusted() -> Reader {
+        Reader {
+            trusted: true,
+            ..Reader::default()
+        }
+    }
+
     pub fn push(&mut self, bytes: &[u8]) {
         if self.skip > 0 {
             let dropped = self.skip.min(bytes.len());
@@ -123,6 +134,9 @@ impl Reader {
             .drain(..body_start + length)
             .skip(body_start)
             .collect();
+        if self.trusted {
+            return Frame::Message(body);
+        }
         match check_message(&body) {
             Ok(()) => Frame::Message(body),
             Err(reply) => Frame::Reply(reply),
@@ -246,18 +260,22 @@ pub struct Pipes {
 
 /// Starts the reader of `stdin` and the writer of `stdout`; `on_end` runs when `stdin`
 /// ends (the client is gone).
+///
+/// Standard output is written by a thread of its own, one whole frame per write: tokio's
+/// `Stdout` would hand every write and every flush to the blocking pool, two more
+/// threads to wake for every answer.
 pub fn start<I, O>(stdin: I, stdout: O, on_end: impl FnOnce() + Send + 'static) -> Pipes
 where
     I: AsyncRead + Unpin + Send + 'static,
-    O: AsyncWrite + Unpin + Send + 'static,
+    O: std::io::Write + Send + 'static,
 {
     let (input, mut feed) = tokio::io::duplex(1 << 16);
     let (output, mut drain) = tokio::io::duplex(1 << 16);
-    let (frames, mut to_write) = mpsc::unbounded_channel::<Vec<u8>>();
+    let (frames, to_write) = std::sync::mpsc::channel::<Vec<u8>>();
     // tower-lsp's output, split into whole frames.
     let from_server = frames.clone();
     tokio::spawn(async move {
-        let mut reader = Reader::default();
+        let mut reader = Reader::trusted();
         let mut chunk = vec![0u8; 1 << 16];
         loop {
             let Ok(n) = drain.read(&mut chunk).await else {
@@ -268,19 +286,21 @@ where
             }
             reader.push(&chunk[..n]);
             while let Frame::Message(body) = reader.next_frame() {
-                if from_server.send(frame(&body)).is_err() {
+                if from_server.send(body).is_err() {
                     return;
                 }
             }
         }
     });
-    // Standard output: one whole frame at a time.
-    tokio::spawn(async move {
+    // Standard output: one whole frame at a time, in order.
+    std::thread::spawn(move || {
         let mut stdout = stdout;
-        while let Some(bytes) = to_write.recv().await {
-            if stdout.write_all(&bytes).await.is_err() || stdout.flush().await.is_err() {
+        while let Ok(body) = to_write.recv() {
+            let framed = frame(&body);
+            if stdout.write_all(&framed).is_err() || stdout.flush().is_err() {
                 return;
             }
+            trace::written(&body);
         }
     });
     // Standard input: checked frames to tower-lsp, error replies to the client.
@@ -298,13 +318,14 @@ where
                 match reader.next_frame() {
                     Frame::Incomplete => break,
                     Frame::Message(body) => {
+                        trace::read(&body);
                         let body = without_null_params(&body);
                         if feed.write_all(&frame(&body)).await.is_err() {
                             break;
                         }
                     }
                     Frame::Reply(reply) => {
-                        let _ = frames.send(frame(reply.to_string().as_bytes()));
+                        let _ = frames.send(reply.to_string().into_bytes());
                     }
                 }
             }
@@ -312,6 +333,19 @@ where
         on_end();
     });
     Pipes { input, output }
+}
+
+/// Standard output without the line buffering of `std::io::stdout()`, which would write
+/// a frame in two pieces (its header, then its body at the flush).
+pub fn raw_stdout() -> Box<dyn std::io::Write + Send> {
+    #[cfg(unix)]
+    {
+        use std::os::fd::AsFd;
+        if let Ok(fd) = std::io::stdout().as_fd().try_clone_to_owned() {
+            return Box::new(std::fs::File::from(fd));
+        }
+    }
+    Box::new(std::io::stdout())
 }
 
 fn frame(body: &[u8]) -> Vec<u8> {

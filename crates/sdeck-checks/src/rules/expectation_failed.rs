@@ -3,7 +3,7 @@
 
 use super::shared::{show_interval_with, state_name};
 use super::Context;
-use sdeck_calculus::{expectation_value, StateLaw};
+use sdeck_calculus::StateLaw;
 use sdeck_diagnostics::{rules, Diagnostic};
 use sdeck_semantics::{Expectation, Interval, Model, Shown};
 use sdeck_syntax::ast::{Figure, Side};
@@ -31,7 +31,7 @@ pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
             },
             None => None,
         };
-        let value = expectation_value(model, derivation, expectation);
+        let value = cx.expectation_value(expectation);
         let finding = match (value, law) {
             (Err(reason), _) if expectation.figure.on_curve() => {
                 Some(no_curve_figure(model, expectation, &reason))

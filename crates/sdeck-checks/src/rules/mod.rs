@@ -57,9 +57,10 @@ mod shared;
 
 pub use implausible_value::Plausibility;
 
+use crate::reuse::{ContentKeys, Reuse};
 use sdeck_calculus::Derivation;
 use sdeck_diagnostics::{Diagnostic, RuleId};
-use sdeck_semantics::{Analysis, Model};
+use sdeck_semantics::{Analysis, Expectation, Model};
 
 /// What a rule may read: the text, the analysis (tree, model, names) and the derivation.
 pub struct Context<'a> {
@@ -74,6 +75,8 @@ pub struct Context<'a> {
     /// Whether the text checked is stale (a newer version waits): rules with a loop over
     /// many items ask it and stop early; [`run_all`] asks it before each rule.
     pub stale: &'a (dyn Fn() -> bool + Sync),
+    /// What earlier versions of the document derived, and the keys of this one.
+    reuse: Option<(&'a Reuse, &'a ContentKeys)>,
 }
 
 impl<'a> Context<'a> {
@@ -86,6 +89,24 @@ impl<'a> Context<'a> {
             broken: analysis.has_errors(),
             plausibility: Plausibility::default(),
             stale: &|| false,
+            reuse: None,
+        }
+    }
+
+    /// The same context, taking the values of expectations over from earlier versions.
+    pub fn with_reuse(mut self, reuse: &'a Reuse, keys: &'a ContentKeys) -> Self {
+        self.reuse = Some((reuse, keys));
+        self
+    }
+
+    /// The value of the figure an expectation pins
+    /// ([`sdeck_calculus::expectation_value`]), taken over when an earlier version of the
+    /// document computed it for the same content.
+    pub fn expectation_value(&self, e: &Expectation) -> Result<f64, String> {
+        let compute = || sdeck_calculus::expectation_value(self.model, self.derivation, e);
+        match self.reuse {
+            Some((reuse, keys)) => reuse.expectation_value(keys.expectation(e), compute),
+            None => compute(),
         }
     }
 
