@@ -213,28 +213,28 @@ impl Analyzer<'_> {
         let (which, per, state_words) = coefficient_words(&state, &state_dim, is_drift);
         // Which parameter would mend it, if the coefficient is a product with one.
         let culprit = term.coefficient.as_ref().and_then(|c| self.factor_param(c));
-        let mut message;
+        let message;
         let mut d;
         if let Some((param_index, ident_span)) = culprit {
             let p = &self.model.params[param_index];
             let wanted = needed.div(found).mul(&p.dimension);
             let suggestion = suggest_unit_text(&wanted, &clock);
-            message = format!(
-                "`{}` is {}, but the {which} of {state_words} must be {} ({which} is the factor's dimension {per}): did you mean [{suggestion}]?",
-                p.name,
-                p.dimension.describe(),
-                needed.describe(),
-            );
-            if found.div(&p.dimension).is_dimensionless() {
+            message = if found.div(&p.dimension).is_dimensionless() {
                 // The coefficient is the parameter alone (up to numbers).
+                format!(
+                    "`{}` is {}, but the {which} of {state_words} must be {} ({which} is the factor's dimension {per}): did you mean [{suggestion}]?",
+                    p.name,
+                    p.dimension.describe(),
+                    needed.describe(),
+                )
             } else {
-                message = format!(
+                format!(
                     "the {which} coefficient of {state_words} is {}, but must be {} ({which} is the factor's dimension {per}); if `{}` is the culprit, did you mean [{suggestion}]?",
                     found.describe(),
                     needed.describe(),
                     p.name,
-                );
-            }
+                )
+            };
             d = dimension_error(span, message).with_label(format!("{} here", found.describe()));
             d = d.with_related(
                 ident_span,
@@ -245,13 +245,8 @@ impl Analyzer<'_> {
                 ),
             );
             let edit = self.unit_edit(param_index, &suggestion);
-            d = d.with_fix(
-                format!(
-                    "Declare `{}` in [{suggestion}]",
-                    self.model.params[param_index].name
-                ),
-                vec![edit],
-            );
+            let title = format!("Declare `{}` in [{suggestion}]", p.name);
+            d = d.with_fix(title, vec![edit]);
         } else {
             message = format!(
                 "the {which} coefficient of {state_words} is {}, but must be {} ({which} is the factor's dimension {per})",

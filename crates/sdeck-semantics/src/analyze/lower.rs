@@ -119,18 +119,8 @@ impl Analyzer<'_> {
         expr.params(&mut mentioned);
         let key = (a.min(b), a.max(b));
         if let Some(prev) = seen.get(&key) {
-            self.diagnostics.push(
-                Diagnostic::new(
-                    &rules::DUPLICATE_NAME,
-                    statement.span.clone(),
-                    format!(
-                        "the correlation of `{}` and `{}` is given twice",
-                        first.name, second.name
-                    ),
-                )
-                .with_related(prev.clone(), "first given here")
-                .with_help("keep one `corr` statement per pair of shocks"),
-            );
+            self.diagnostics
+                .push(given_twice(statement, first, second, prev.clone()));
             return;
         }
         seen.insert(key, statement.span.clone());
@@ -225,4 +215,23 @@ impl Analyzer<'_> {
             }
         }
     }
+}
+
+/// A second `corr` statement for the shocks `first` and `second` (the first at `prev`).
+fn given_twice(
+    statement: &ast::Statement,
+    first: &ast::Ident,
+    second: &ast::Ident,
+    prev: Span,
+) -> Diagnostic {
+    Diagnostic::new(
+        &rules::DUPLICATE_NAME,
+        statement.span.clone(),
+        format!(
+            "the correlation of `{}` and `{}` is given twice",
+            first.name, second.name
+        ),
+    )
+    .with_related(prev, "first given here")
+    .with_help("keep one `corr` statement per pair of shocks")
 }

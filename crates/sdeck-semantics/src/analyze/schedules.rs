@@ -61,27 +61,7 @@ impl Analyzer<'_> {
             };
             match dims.get(k) {
                 Some(Some(d)) if *d != Dimension::time() => {
-                    let mut diagnostic = dimension_error(
-                        arg.span(),
-                        format!(
-                            "a knot of `{name}` is a time, but this one is {}",
-                            d.describe()
-                        ),
-                    )
-                    .with_help(format!(
-                        "write the knot with a time unit, e.g. `6 [month]` or `1 [{clock}]`"
-                    ));
-                    if let ast::Expr::Number(n) = arg {
-                        let new_text = format!("{} [{clock}]", n.text);
-                        diagnostic = diagnostic.with_fix(
-                            format!("Write {new_text}"),
-                            vec![TextEdit {
-                                span: n.span.clone(),
-                                new_text,
-                            }],
-                        );
-                    }
-                    self.diagnostics.push(diagnostic);
+                    self.diagnostics.push(knot_not_a_time(name, arg, d, &clock));
                     sound = false;
                     continue;
                 }
@@ -179,4 +159,30 @@ impl Analyzer<'_> {
         }
         (dimension, sound)
     }
+}
+
+/// A knot of the schedule `name` whose dimension `d` is not a time, with the fix that
+/// writes a bare number in the clock's unit.
+fn knot_not_a_time(name: &str, arg: &ast::Expr, d: &Dimension, clock: &str) -> Diagnostic {
+    let mut diagnostic = dimension_error(
+        arg.span(),
+        format!(
+            "a knot of `{name}` is a time, but this one is {}",
+            d.describe()
+        ),
+    )
+    .with_help(format!(
+        "write the knot with a time unit, e.g. `6 [month]` or `1 [{clock}]`"
+    ));
+    if let ast::Expr::Number(n) = arg {
+        let new_text = format!("{} [{clock}]", n.text);
+        diagnostic = diagnostic.with_fix(
+            format!("Write {new_text}"),
+            vec![TextEdit {
+                span: n.span.clone(),
+                new_text,
+            }],
+        );
+    }
+    diagnostic
 }
