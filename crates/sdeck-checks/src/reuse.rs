@@ -5,8 +5,9 @@
 //!
 //! Each factor gets a content key ([`ContentKeys`]): a hash of what its derived figures
 //! rest on — its equation after lowering, its start, the values of the parameters it
-//! reads, the factors it mentions (with everything theirs rest on), the correlations
-//! among the shocks they load on, the clock and the horizon — and never of a span, so
+//! reads, the factors linked to it through their equations in either direction (its
+//! coupled block, with everything theirs rest on), the correlations among the shocks
+//! they load on, the clock and the horizon — and never of a span, so
 //! that an edit elsewhere in the text leaves the key as it was. The whole model has a
 //! key too, of everything the derivation reads: a version whose model has the same key
 //! takes the previous derivation as it is. Figures are kept by key in a [`Memo`], which
@@ -33,15 +34,15 @@ pub struct ContentKeys {
 }
 
 impl ContentKeys {
-    /// The keys of `model`: linear in its size (each factor hashes the factors it
-    /// mentions, transitively; a chain of n coupled factors costs n² small hashes, as the
-    /// coupled block costs more than that to derive).
+    /// The keys of `model`: linear in its size (each factor hashes its coupled block; a
+    /// block of n factors costs n² small hashes, less than deriving the block).
     pub fn of(model: &Model) -> ContentKeys {
         let global = global_key(model);
         let factors = model
             .factors
             .ids()
-            .map(|i| factor_key(model, global, i))
+            .zip(linked_groups(model))
+            .map(|(i, group)| factor_key(model, global, i, &group))
             .collect();
         let mut h = DefaultHasher::new();
         global.hash(&mut h);
@@ -110,14 +111,13 @@ fn global_key(model: &Model) -> u64 {
     h.finish()
 }
 
-/// The key of factor `i`: the global key, and the content of `i` and of every factor it
-/// mentions (transitively), of the parameters they read and of the correlations among
-/// their shocks.
-fn factor_key(model: &Model, global: u64, i: FactorId) -> u64 {
-    let closure = mentioned_factors(model, i);
+/// The key of factor `i`, whose group is `closure` ([`linked_groups`]): which factor it
+/// is, the global key, and the content of every factor of the group, of the parameters
+/// they read and of the correlations among their shocks.
+fn factor_key(model: &Model, global: u64, i: FactorId, closure: &[FactorId]) -> u64 {
     let mut params = Vec::new();
     let mut shocks = Vec::new();
-    for j in &closure {
+    for j in closure {
         let Some(factor) = model.factors.by_id(*j) else {
             continue;
         };
@@ -140,8 +140,8 @@ fn factor_key(model: &Model, global: u64, i: FactorId) -> u64 {
     shocks.sort_unstable();
     shocks.dedup();
     let mut h = DefaultHasher::new();
-    global.hash(&mut h);
-    for j in &closure {
+    (global, i).hash(&mut h);
+    for j in closure {
         if let Some(factor) = model.factors.by_id(*j) {
             hash_factor(model, *j, factor, &mut h);
         }
@@ -159,27 +159,42 @@ fn factor_key(model: &Model, global: u64, i: FactorId) -> u64 {
     h.finish()
 }
 
-/// `i` and every factor its equation and start mention, transitively, ascending.
-fn mentioned_factors(model: &Model, i: FactorId) -> Vec<FactorId> {
-    let mut seen = vec![i];
-    let mut pending = vec![i];
-    while let Some(j) = pending.pop() {
-        let Some(factor) = model.factors.by_id(j) else {
-            continue;
-        };
+/// Per factor, the group of factors linked to it through their equations and starts, in
+/// either direction (the coupled block the calculus derives together: a block's formulas
+/// and matrices show every member's parameters), ascending.
+fn linked_groups(model: &Model) -> Vec<Vec<FactorId>> {
+    let n = model.factors.len();
+    let mut parent: Vec<usize> = (0..n).collect();
+    fn root(parent: &mut [usize], mut i: usize) -> usize {
+        while parent[i] != i {
+            parent[i] = parent[parent[i]];
+            i = parent[i];
+        }
+        i
+    }
+    for (j, factor) in model.factors.iter().enumerate() {
         let mut mentioned = Vec::new();
         for e in factor_exprs(factor) {
             e.factors(&mut mentioned);
         }
-        for k in mentioned {
-            if !seen.contains(&k) {
-                seen.push(k);
-                pending.push(k);
-            }
+        for k in mentioned
+            .into_iter()
+            .map(FactorId::index)
+            .filter(|k| *k < n)
+        {
+            let (a, b) = (root(&mut parent, j), root(&mut parent, k));
+            parent[a.max(b)] = a.min(b);
         }
     }
-    seen.sort_unstable();
-    seen
+    let roots: Vec<usize> = (0..n).map(|i| root(&mut parent, i)).collect();
+    let mut members: HashMap<usize, Vec<FactorId>> = HashMap::new();
+    for (i, r) in roots.iter().enumerate() {
+        members.entry(*r).or_default().push(FactorId::new(i));
+    }
+    roots
+        .iter()
+        .map(|r| members.get(r).cloned().unwrap_or_default())
+        .collect()
 }
 
 /// Every expression of a factor: its start, drift and diffusion coefficients.

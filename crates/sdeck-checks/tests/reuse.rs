@@ -84,6 +84,18 @@ fn a_factor_mentioned_by_another_moves_its_key() {
         .iter()
         .zip(&base.factors[1..])
         .all(|(a, b)| a != b));
+    // y's pull moves x1's key too: x1 and y are one coupled block, whose formulas and
+    // matrices show both.
+    let pull = keys(
+        &model("spreads", "0.5", "0.3", "[0.5%, 0.9%]")
+            .replace("param pull = 2 [1/year]", "param pull = 3 [1/year]"),
+    );
+    assert_eq!(pull.factors[0], base.factors[0]);
+    assert_ne!(pull.factors[1], base.factors[1]);
+    assert_ne!(pull.factors[2], base.factors[2]);
+    assert_eq!(pull.factors[3], base.factors[3]);
+    // Factors of one block still have keys of their own.
+    assert_ne!(base.factors[1], base.factors[2]);
 }
 
 #[test]
