@@ -131,10 +131,27 @@ impl Checked {
     }
 }
 
-/// Checks one text: the analysis plus the report of invalid UTF-8.
+/// Checks one text: the analysis plus the report of invalid UTF-8, and the analysis
+/// itself for the commands that go on to use it.
 pub fn check_source(source: SourceText, settings: &RuleSettings) -> (Checked, FileCheck) {
     let result = check(&source.text, &files::stem(&source.path), settings);
-    let mut diagnostics = result.diagnostics.clone();
+    let diagnostics = result.diagnostics.clone();
+    (locate(source, diagnostics, settings), result)
+}
+
+/// Checks one text for its findings alone: the analysis is dropped as soon as they are
+/// out, so a run over many files (or one large file) holds only findings.
+pub fn check_findings(source: SourceText, settings: &RuleSettings) -> Checked {
+    let result = check(&source.text, &files::stem(&source.path), settings);
+    locate(source, result.diagnostics, settings)
+}
+
+/// Adds the report of invalid UTF-8 and sorts the findings by their place in the text.
+fn locate(
+    source: SourceText,
+    mut diagnostics: Vec<Diagnostic>,
+    settings: &RuleSettings,
+) -> Checked {
     if let Some(at) = source.invalid_utf8_at {
         let end = source
             .text
@@ -156,23 +173,19 @@ pub fn check_source(source: SourceText, settings: &RuleSettings) -> (Checked, Fi
         }
     }
     let index = LineIndex::new(&source.text);
-    let mut located: Vec<(render::Place, Diagnostic)> = diagnostics
-        .into_iter()
-        .map(|d| (render::position(&source.text, &index, &d), d))
+    // Sorted by position in place; the sort is stable, so findings at one place keep the
+    // order of the analysis.
+    diagnostics.sort_by_cached_key(|d| render::position(&source.text, &index, d));
+    let positions = diagnostics
+        .iter()
+        .map(|d| render::position(&source.text, &index, d))
         .collect();
-    // Sorted by position; the sort is stable, so findings at one place keep the order
-    // of the analysis.
-    located.sort_by_key(|(position, _)| *position);
-    let (positions, diagnostics) = located.into_iter().unzip();
-    (
-        Checked {
-            source,
-            diagnostics,
-            positions,
-            deny: Deny::Errors,
-        },
-        result,
-    )
+    Checked {
+        source,
+        diagnostics,
+        positions,
+        deny: Deny::Errors,
+    }
 }
 
 fn deny_for(cli: Option<Deny>, project: Option<&Project>) -> Deny {
@@ -191,7 +204,7 @@ fn check_target(target: &Target, cli_deny: Option<Deny>) -> Result<Checked, Stri
 fn finish_one(source: SourceText, project: Option<&Project>, cli_deny: Option<Deny>) -> Checked {
     let default_settings = RuleSettings::default();
     let settings = project.map(|p| &p.settings).unwrap_or(&default_settings);
-    let (mut checked, _) = check_source(source, settings);
+    let mut checked = check_findings(source, settings);
     checked.deny = deny_for(cli_deny, project);
     checked
 }
@@ -424,7 +437,7 @@ pub fn write_report(
 ) -> std::io::Result<()> {
     match format {
         Format::Human => write_human(checked, out),
-        // Serialised first, so that a closed pipe is reported as such by the write.
+        // Streamed: a closed pipe reaches the caller as the write's own error.
         Format::Json => write_json(&render::json_report(checked), out),
         Format::Sarif => write_json(&sarif::report(checked), out),
         Format::Github => out.write_all(github::report(checked).as_bytes()),
@@ -432,10 +445,12 @@ pub fn write_report(
     }
 }
 
-fn write_json(value: &serde_json::Value, out: &mut dyn WriteColor) -> std::io::Result<()> {
-    let mut text = serde_json::to_string_pretty(value).map_err(std::io::Error::other)?;
-    text.push('\n');
-    out.write_all(text.as_bytes())
+fn write_json(value: &impl serde::Serialize, out: &mut dyn WriteColor) -> std::io::Result<()> {
+    let mut buffered = std::io::BufWriter::new(out);
+    // `From<serde_json::Error>` gives back the writer's own error (a closed pipe stays one).
+    serde_json::to_writer_pretty(&mut buffered, value).map_err(std::io::Error::from)?;
+    buffered.write_all(b"\n")?;
+    buffered.flush()
 }
 
 fn plural(n: usize, word: &str) -> String {

@@ -28,28 +28,65 @@ pub fn span_position(text: &str, index: &LineIndex, span: &Span) -> Place {
 }
 
 /// The JSON report: `{"version": 1, "files": N, "diagnostics": [...]}`, sorted by file
-/// then position.
-pub fn json_report(checked: &[Checked]) -> Value {
-    let mut entries = Vec::new();
-    for c in checked {
-        for (d, (start, end)) in c.diagnostics.iter().zip(&c.positions) {
-            entries.push(json!({
-                "file": c.source.path,
-                "rule": d.rule.name(),
-                "severity": d.severity.as_str(),
-                "message": d.message,
-                "range": {
-                    "start": {"line": start.0, "column": start.1},
-                    "end": {"line": end.0, "column": end.1},
-                }
-            }));
-        }
+/// then position. Each finding's object is built when it is written, so the report
+/// streams: memory does not grow with the number of findings (a 4 MiB file of unused
+/// parameters has 200,000).
+pub fn json_report(checked: &[Checked]) -> impl serde::Serialize + '_ {
+    let entries = checked.iter().flat_map(|c| {
+        c.diagnostics
+            .iter()
+            .zip(&c.positions)
+            .map(move |(d, (start, end))| {
+                json!({
+                    "file": c.source.path,
+                    "rule": d.rule.name(),
+                    "severity": d.severity.as_str(),
+                    "message": d.message,
+                    "range": {
+                        "start": {"line": start.0, "column": start.1},
+                        "end": {"line": end.0, "column": end.1},
+                    }
+                })
+            })
+    });
+    #[derive(serde::Serialize)]
+    #[serde(bound = "")]
+    struct Report<I: Iterator<Item = Value>> {
+        version: u32,
+        files: usize,
+        diagnostics: Streamed<I>,
     }
-    json!({
-        "version": 1,
-        "files": checked.len(),
-        "diagnostics": entries,
-    })
+    Report {
+        version: 1,
+        files: checked.len(),
+        diagnostics: Streamed::new(entries),
+    }
+}
+
+/// A JSON array whose elements are made one at a time while it is written (serde
+/// serialises through `&self`, hence the cell; the array can be written once).
+pub struct Streamed<I>(std::cell::RefCell<Option<I>>);
+
+impl<I> Streamed<I> {
+    pub fn new(items: I) -> Streamed<I> {
+        Streamed(std::cell::RefCell::new(Some(items)))
+    }
+}
+
+impl<I: Iterator<Item = Value>> serde::Serialize for Streamed<I> {
+    fn serialize<S: serde::Serializer>(&self, serializer: S) -> Result<S::Ok, S::Error> {
+        use serde::ser::{Error, SerializeSeq};
+        let items = self
+            .0
+            .borrow_mut()
+            .take()
+            .ok_or_else(|| S::Error::custom("a streamed array is written once"))?;
+        let mut seq = serializer.serialize_seq(None)?;
+        for item in items {
+            seq.serialize_element(&item)?;
+        }
+        seq.end()
+    }
 }
 
 fn report_severity(s: Severity) -> ReportSeverity {

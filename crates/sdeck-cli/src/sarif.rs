@@ -141,10 +141,9 @@ fn region(start: (u32, u32), end: (u32, u32)) -> Value {
     })
 }
 
-/// The whole SARIF log of one run.
-pub fn report(checked: &[Checked]) -> Value {
-    let mut results = Vec::new();
-    for c in checked {
+/// One SARIF result per finding, made as the log is written.
+fn results(checked: &[Checked]) -> impl Iterator<Item = Value> + '_ {
+    checked.iter().flat_map(|c| {
         let uri = path_to_uri(&c.source.path);
         let index = sdeck_syntax::LineIndex::new(&c.source.text);
         let lines: Vec<&str> = sdeck_syntax::lines::lines(&c.source.text)
@@ -152,58 +151,63 @@ pub fn report(checked: &[Checked]) -> Value {
             .collect();
         let mut seen: std::collections::HashMap<(RuleId, &str), usize> =
             std::collections::HashMap::new();
-        for (d, (start, end)) in c.diagnostics.iter().zip(&c.positions) {
-            let line_text = lines
-                .get(start.0.saturating_sub(1) as usize)
-                .copied()
-                .unwrap_or("");
-            let occurrence = seen.entry((d.rule, line_text.trim())).or_insert(0);
-            let print = fingerprint(d.rule.name(), &uri, line_text, *occurrence);
-            *occurrence += 1;
-            let rule_index = d.rule.index();
-            let mut message = d.message.clone();
-            if let Some(help) = &d.help {
-                message.push_str(&format!(" (help: {help})"));
-            }
-            let related: Vec<Value> = d
-                .related
-                .iter()
-                .enumerate()
-                .map(|(i, label)| {
-                    let (s, e) = render::span_position(&c.source.text, &index, &label.span);
-                    json!({
-                        "id": i,
-                        "message": {"text": label.message},
+        c.diagnostics
+            .iter()
+            .zip(&c.positions)
+            .map(move |(d, (start, end))| {
+                let line_text = lines
+                    .get(start.0.saturating_sub(1) as usize)
+                    .copied()
+                    .unwrap_or("");
+                let occurrence = seen.entry((d.rule, line_text.trim())).or_insert(0);
+                let print = fingerprint(d.rule.name(), &uri, line_text, *occurrence);
+                *occurrence += 1;
+                let mut message = d.message.clone();
+                if let Some(help) = &d.help {
+                    message.push_str(&format!(" (help: {help})"));
+                }
+                let related: Vec<Value> = d
+                    .related
+                    .iter()
+                    .enumerate()
+                    .map(|(i, label)| {
+                        let (s, e) = render::span_position(&c.source.text, &index, &label.span);
+                        json!({
+                            "id": i,
+                            "message": {"text": label.message},
+                            "physicalLocation": {
+                                "artifactLocation": artifact_location(&uri),
+                                "region": region(s, e),
+                            }
+                        })
+                    })
+                    .collect();
+                let mut result = json!({
+                    "ruleId": d.rule.name(),
+                    "level": level(d.severity),
+                    "message": {"text": message},
+                    "locations": [{
                         "physicalLocation": {
                             "artifactLocation": artifact_location(&uri),
-                            "region": region(s, e),
+                            "region": region(*start, *end),
                         }
-                    })
-                })
-                .collect();
-            let mut result = json!({
-                "ruleId": d.rule.name(),
-                "level": level(d.severity),
-                "message": {"text": message},
-                "locations": [{
-                    "physicalLocation": {
-                        "artifactLocation": artifact_location(&uri),
-                        "region": region(*start, *end),
-                    }
-                }],
-                "partialFingerprints": {"findingHash/v1": print},
-            });
-            if let Some(object) = result.as_object_mut() {
-                object.insert("ruleIndex".to_string(), json!(rule_index));
-            }
-            if !related.is_empty() {
+                    }],
+                    "partialFingerprints": {"findingHash/v1": print},
+                });
                 if let Some(object) = result.as_object_mut() {
-                    object.insert("relatedLocations".to_string(), Value::Array(related));
+                    object.insert("ruleIndex".to_string(), json!(d.rule.index()));
+                    if !related.is_empty() {
+                        object.insert("relatedLocations".to_string(), Value::Array(related));
+                    }
                 }
-            }
-            results.push(result);
-        }
-    }
+                result
+            })
+    })
+}
+
+/// The whole SARIF log of one run. The results are streamed: each is made as it is
+/// written, so memory does not grow with the number of findings.
+pub fn report(checked: &[Checked]) -> impl serde::Serialize + '_ {
     let artifacts: Vec<Value> = checked
         .iter()
         .map(|c| json!({"location": artifact_location(&path_to_uri(&c.source.path))}))
@@ -212,24 +216,41 @@ pub fn report(checked: &[Checked]) -> Value {
     if let Some(root) = root_uri() {
         base_ids.insert(ROOT_BASE_ID.to_string(), json!({"uri": root}));
     }
-    json!({
-        "$schema": SCHEMA_URI,
-        "version": "2.1.0",
-        "runs": [{
-            "tool": {
+    #[derive(serde::Serialize)]
+    #[serde(rename_all = "camelCase", bound = "")]
+    struct Run<I: Iterator<Item = Value>> {
+        tool: Value,
+        original_uri_base_ids: serde_json::Map<String, Value>,
+        column_kind: &'static str,
+        artifacts: Vec<Value>,
+        results: render::Streamed<I>,
+    }
+    #[derive(serde::Serialize)]
+    #[serde(bound = "")]
+    struct Log<I: Iterator<Item = Value>> {
+        #[serde(rename = "$schema")]
+        schema: &'static str,
+        version: &'static str,
+        runs: [Run<I>; 1],
+    }
+    Log {
+        schema: SCHEMA_URI,
+        version: "2.1.0",
+        runs: [Run {
+            tool: json!({
                 "driver": {
                     "name": "sdeck",
                     "version": env!("CARGO_PKG_VERSION"),
                     "semanticVersion": env!("CARGO_PKG_VERSION"),
                     "rules": rules::ALL.iter().map(|r| rule_descriptor(r)).collect::<Vec<_>>(),
                 }
-            },
-            "originalUriBaseIds": base_ids,
-            "columnKind": "unicodeCodePoints",
-            "artifacts": artifacts,
-            "results": results,
-        }]
-    })
+            }),
+            original_uri_base_ids: base_ids,
+            column_kind: "unicodeCodePoints",
+            artifacts,
+            results: render::Streamed::new(results(checked)),
+        }],
+    }
 }
 
 #[cfg(test)]

@@ -172,6 +172,9 @@ impl Diagnostic {
     }
 
     pub fn with_related(mut self, span: Span, message: impl Into<String>) -> Self {
+        // Exact: a finding has one to three of each, and a file can have 200,000 findings
+        // (the default growth would reserve four).
+        self.related.reserve_exact(1);
         self.related.push(Label {
             span,
             message: message.into(),
@@ -185,6 +188,7 @@ impl Diagnostic {
     }
 
     pub fn with_note(mut self, note: impl Into<String>) -> Self {
+        self.notes.reserve_exact(1);
         self.notes.push(note.into());
         self
     }
@@ -192,6 +196,7 @@ impl Diagnostic {
     /// Adds a fix; the first one added is the preferred one, later ones are alternatives.
     pub fn with_fix(mut self, title: impl Into<String>, edits: Vec<TextEdit>) -> Self {
         let preferred = self.fixes.is_empty();
+        self.fixes.reserve_exact(1);
         self.fixes.push(Fix {
             title: title.into(),
             edits,

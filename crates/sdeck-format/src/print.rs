@@ -138,7 +138,7 @@ fn declaration(keyword: &str, source: &str, d: &Declaration) -> [String; 5] {
         d.unit()
             .map(|u| format!("[{}]", unit(source, d.value_span().end, u).0))
             .unwrap_or_default(),
-        d.bound.as_ref().map(bound).unwrap_or_default(),
+        d.bound.as_deref().map(bound).unwrap_or_default(),
     ]
 }
 

@@ -82,6 +82,12 @@ impl<I: Id, T> IdVec<I, T> {
         }
     }
 
+    /// Room for exactly `additional` more items (a list whose length is known ahead: a
+    /// file can declare 200,000 parameters, and growth by doubling would hold twice that).
+    pub fn reserve_exact(&mut self, additional: usize) {
+        self.items.reserve_exact(additional);
+    }
+
     /// Appends `item` and returns its identity.
     pub fn push(&mut self, item: T) -> I {
         self.items.push(item);

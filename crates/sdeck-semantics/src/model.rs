@@ -88,7 +88,7 @@ pub struct Param {
     /// The value as a constant expression of earlier parameters (`param stress = theta +
     /// 150bp`), when it is written as one; `value` is then its value at the file's
     /// parameters, and [`Model::derive_params`] recomputes it after others change.
-    pub expr: Option<Expr>,
+    pub expr: Option<Box<Expr>>,
 }
 
 impl Param {

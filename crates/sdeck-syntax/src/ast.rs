@@ -166,7 +166,8 @@ pub struct Bound {
 pub struct Declaration {
     pub name: Ident,
     pub value: DeclaredValue,
-    pub bound: Option<Bound>,
+    /// Boxed, as the rarer parts of a statement are: a file can hold 200,000 declarations.
+    pub bound: Option<Box<Bound>>,
 }
 
 /// The value of a declaration as written.
@@ -175,10 +176,10 @@ pub enum DeclaredValue {
     /// A number with an optional unit: `2.4%`, `1.2 [1/year]`.
     Literal {
         number: Number,
-        unit: Option<UnitExpr>,
+        unit: Option<Box<UnitExpr>>,
     },
     /// A constant expression of earlier parameters: `theta`, `theta + 150bp [1/year]`.
-    Expr(Expr),
+    Expr(Box<Expr>),
 }
 
 impl Declaration {
@@ -193,7 +194,7 @@ impl Declaration {
     /// The unit written after the number, if any.
     pub fn unit(&self) -> Option<&UnitExpr> {
         match &self.value {
-            DeclaredValue::Literal { unit, .. } => unit.as_ref(),
+            DeclaredValue::Literal { unit, .. } => unit.as_deref(),
             DeclaredValue::Expr(_) => None,
         }
     }
@@ -440,7 +441,7 @@ pub enum StatementKind {
         unit: Ident,
     },
     Horizon {
-        value: Quantity,
+        value: Box<Quantity>,
     },
     Unit {
         name: Ident,
@@ -454,11 +455,11 @@ pub enum StatementKind {
     Corr {
         first: Ident,
         second: Ident,
-        value: Expr,
+        value: Box<Expr>,
     },
     Let {
         name: Ident,
-        value: Expr,
+        value: Box<Expr>,
     },
     Equation(Equation),
     Expect(Box<Expectation>),
@@ -468,7 +469,7 @@ pub enum StatementKind {
     },
     /// `discount EXPR`: the short rate.
     Discount {
-        rate: Expr,
+        rate: Box<Expr>,
     },
 }
 

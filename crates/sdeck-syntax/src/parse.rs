@@ -625,7 +625,7 @@ impl Builder {
                 unit: self.ident(&next()?),
             },
             Rule::horizon_stmt => StatementKind::Horizon {
-                value: self.quantity(next()?)?,
+                value: Box::new(self.quantity(next()?)?),
             },
             Rule::unit_stmt => StatementKind::Unit {
                 name: self.declared_name(&next()?)?,
@@ -646,19 +646,22 @@ impl Builder {
                 StatementKind::Corr {
                     first,
                     second,
-                    value,
+                    value: Box::new(value),
                 }
             }
             Rule::measure_stmt => StatementKind::Measure {
                 name: self.ident(&next()?),
             },
             Rule::discount_stmt => StatementKind::Discount {
-                rate: self.expr(next()?)?,
+                rate: Box::new(self.expr(next()?)?),
             },
             Rule::let_stmt => {
                 let name = self.declared_name(&next()?)?;
                 let value = self.expr(next()?)?;
-                StatementKind::Let { name, value }
+                StatementKind::Let {
+                    name,
+                    value: Box::new(value),
+                }
             }
             Rule::expect_stmt => {
                 let figure_pair = next()?;
@@ -714,17 +717,19 @@ impl Builder {
                 .ok_or_else(|| syntax_error(span.clone(), "a value is expected"))?;
             let number = self.signed_number(number_pair)?;
             let unit = match parts.next() {
-                Some(p) if p.as_rule() == Rule::bracket_unit => Some(self.bracket_unit(p)?),
+                Some(p) if p.as_rule() == Rule::bracket_unit => {
+                    Some(Box::new(self.bracket_unit(p)?))
+                }
                 _ => None,
             };
             DeclaredValue::Literal { number, unit }
         } else {
-            DeclaredValue::Expr(self.expr(value_pair)?)
+            DeclaredValue::Expr(Box::new(self.expr(value_pair)?))
         };
         let mut bound = None;
         for p in inner {
             if p.as_rule() == Rule::bound {
-                bound = Some(self.bound(p)?);
+                bound = Some(Box::new(self.bound(p)?));
             }
         }
         Ok(Declaration { name, value, bound })

@@ -29,11 +29,14 @@ fn units_of(file: &SourceFile) -> Units {
                         .push((declaration.name.name.clone(), unit.clone()));
                 }
             }
-            StatementKind::Horizon {
-                value: Quantity {
+            StatementKind::Horizon { value } => {
+                if let Quantity {
                     unit: Some(unit), ..
-                },
-            } => units.written.push(("horizon".to_string(), unit.clone())),
+                } = &**value
+                {
+                    units.written.push(("horizon".to_string(), unit.clone()))
+                }
+            }
             _ => {}
         }
     }

@@ -46,7 +46,7 @@ fn finding(cx: &Context, decl: &Declaration, what: &str, value: f64) -> Diagnost
         format!(
             "the {what} `{}` is {written}, outside its declared bound {}",
             decl.name.name,
-            describe_bound(decl.bound.as_ref()),
+            describe_bound(decl.bound.as_deref()),
         ),
     )
     .with_label("outside the bound")

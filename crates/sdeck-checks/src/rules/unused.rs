@@ -7,9 +7,13 @@ use sdeck_syntax::lines::{line_start, next_line_start};
 
 pub(super) fn run(cx: &Context, out: &mut Vec<Diagnostic>) {
     let usage = &cx.analysis.usage;
+    let unparsed = words_in_unparsed(cx);
     let unused = |used: &[bool], i: usize, name: &str| {
-        !used.get(i).copied().unwrap_or(true) && !mentioned_in_unparsed(cx, name)
+        !used.get(i).copied().unwrap_or(true) && !unparsed.mentions(name)
     };
+    // Exact room: a file of unused parameters has one finding per line.
+    let params = cx.model.params.iter().enumerate();
+    out.reserve_exact(params.clone().filter(|(i, p)| unused(&usage.params, *i, &p.name)).count());
     for (i, p) in cx.model.params.iter().enumerate() {
         if unused(&usage.params, i, &p.name) {
             let help = "use it in an equation or a let, or remove it";
@@ -71,14 +75,37 @@ fn removable(
     )
 }
 
-/// Whether `name` appears as a word (or as `dNAME`) in text that did not parse: a use
-/// may hide there, so the name is not called unused.
-fn mentioned_in_unparsed(cx: &Context, name: &str) -> bool {
-    cx.analysis.file.unparsed.iter().any(|span| {
-        let text = cx.source.get(span.clone()).unwrap_or("");
-        text.split(|c: char| !(c.is_alphanumeric() || c == '_'))
-            .any(|word| word == name || word.strip_prefix('d') == Some(name))
-    })
+/// The words of the text that did not parse: a use of a name may hide there, so a name
+/// found among them (or as `dNAME`) is not called unused. Collected once per file, so the
+/// rule costs the names plus the unparsed text, not their product.
+struct UnparsedWords<'a>(std::collections::HashSet<&'a str>);
+
+impl UnparsedWords<'_> {
+    fn mentions(&self, name: &str) -> bool {
+        !self.0.is_empty()
+            && (self.0.contains(name) || {
+                let differential = format!("d{name}");
+                self.0.contains(differential.as_str())
+            })
+    }
+}
+
+fn words_in_unparsed<'a>(cx: &Context<'a>) -> UnparsedWords<'a> {
+    let source: &'a str = cx.source;
+    let words = cx
+        .analysis
+        .file
+        .unparsed
+        .iter()
+        .flat_map(|span| {
+            source
+                .get(span.clone())
+                .unwrap_or("")
+                .split(|c: char| !(c.is_alphanumeric() || c == '_'))
+        })
+        .filter(|word| !word.is_empty())
+        .collect();
+    UnparsedWords(words)
 }
 
 /// The lines that hold `span`, line break included.

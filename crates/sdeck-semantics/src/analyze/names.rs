@@ -178,6 +178,18 @@ impl<'a> Analyzer<'a> {
                     .or_insert(kind);
             }
         }
+        // Exact room for the parameters and what is kept per parameter: a file can hold
+        // 200,000 of them, and growth by doubling would hold up to twice that.
+        let params = file
+            .statements
+            .iter()
+            .filter(|s| matches!(s.kind, StatementKind::Param(_)))
+            .count();
+        self.model.params.reserve_exact(params);
+        self.param_units.reserve_exact(params);
+        self.param_used.reserve_exact(params);
+        self.param_unit_ok.reserve_exact(params);
+        self.structure.param_statements.reserve_exact(params);
         for (statement_index, statement) in file.statements.iter().enumerate() {
             match &statement.kind {
                 StatementKind::Param(decl) => self.declare_param(statement_index, statement, decl),
@@ -227,7 +239,7 @@ impl<'a> Analyzer<'a> {
             unit_text: value.unit_text,
             bound,
             description: statement.description.clone(),
-            expr: value.expr,
+            expr: value.expr.map(Box::new),
         });
         self.param_used.push(false);
         self.param_unit_ok.push(value.known);

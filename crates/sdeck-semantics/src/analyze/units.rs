@@ -80,7 +80,7 @@ impl Analyzer<'_> {
     ) -> DeclaredValue {
         match &decl.value {
             ast::DeclaredValue::Literal { number, unit } => {
-                let (dimension, scale, unit_text) = self.declared_unit(unit.as_ref());
+                let (dimension, scale, unit_text) = self.declared_unit(unit.as_deref());
                 DeclaredValue {
                     written: number.value,
                     value: number.value * scale,
