@@ -440,3 +440,59 @@ fn because_ends_the_rule_list_only_as_a_whole_word() {
     let text = with_line(10, "# sdeck: quiet feller-condition,because unused is fine");
     assert_eq!(fired(&text), vec![(6, "unused")]);
 }
+
+/// What fires on a model of parameters alone, less `no-factor` (which it also fires).
+fn without_no_factor(text: &str) -> Vec<(u32, &'static str)> {
+    fired(text)
+        .into_iter()
+        .filter(|(_, rule)| *rule != "no-factor")
+        .collect()
+}
+
+/// Overlapping ranges of one rule: every range open on the finding's line is used (it
+/// silences the finding); a range of that rule which closed before it silences nothing.
+#[test]
+fn overlapping_ranges_of_one_rule_are_all_used_and_a_closed_one_is_not() {
+    let text = "\
+model larrowmere_rates
+clock year
+# sdeck: quiet-begin unused because the first range
+# sdeck: quiet-begin unused because the second range
+param level_stress = 5.5%
+# sdeck: quiet-end unused
+# sdeck: quiet-end unused
+# sdeck: quiet-begin unused because closed before the next finding
+# sdeck: quiet-end unused
+param spread_stress = 1.5%
+";
+    let found = without_no_factor(text);
+    // Line 5's finding is silenced by both open ranges; line 10's is not silenced (its
+    // range on lines 8-9 closed before it), and that range silenced nothing.
+    assert_eq!(found, vec![(8, "unused-suppression"), (10, "unused")]);
+}
+
+/// A range opens and closes on the lines it names: a finding on its first or last line is
+/// silenced, one on the line after is not.
+#[test]
+fn a_range_covers_its_first_and_last_lines_and_no_more() {
+    let text = "\
+model larrowmere_rates
+clock year
+param a_stress = 1%  # sdeck: quiet-begin unused because from here
+param b_stress = 2%  # sdeck: quiet-end unused
+param c_stress = 3%
+";
+    assert_eq!(without_no_factor(text), vec![(5, "unused")]);
+}
+
+/// Twenty thousand trailing `quiet` comments: each silences its own line and nothing is
+/// reported (the sweep's answer is the same as one pass per comment would give).
+#[test]
+fn many_trailing_quiet_comments_each_silence_their_own_line() {
+    let mut text = String::from("model larrowmere_rates\nclock year\n");
+    for i in 0..20_000 {
+        text.push_str(&format!("param p{i} = 1  # sdeck: quiet unused\n"));
+    }
+    text.push_str("param left_alone = 2\n");
+    assert_eq!(without_no_factor(&text), vec![(20_003, "unused")]);
+}
