@@ -655,14 +655,10 @@ impl Builder {
             Rule::discount_stmt => StatementKind::Discount {
                 rate: Box::new(self.expr(next()?)?),
             },
-            Rule::let_stmt => {
-                let name = self.declared_name(&next()?)?;
-                let value = self.expr(next()?)?;
-                StatementKind::Let {
-                    name,
-                    value: Box::new(value),
-                }
-            }
+            Rule::let_stmt => StatementKind::Let {
+                name: self.declared_name(&next()?)?,
+                value: Box::new(self.expr(next()?)?),
+            },
             Rule::expect_stmt => {
                 let figure_pair = next()?;
                 let mut rest: Vec<Pair<Rule>> = Vec::new();
@@ -717,11 +713,10 @@ impl Builder {
                 .ok_or_else(|| syntax_error(span.clone(), "a value is expected"))?;
             let number = self.signed_number(number_pair)?;
             let unit = match parts.next() {
-                Some(p) if p.as_rule() == Rule::bracket_unit => {
-                    Some(Box::new(self.bracket_unit(p)?))
-                }
+                Some(p) if p.as_rule() == Rule::bracket_unit => Some(self.bracket_unit(p)?),
                 _ => None,
-            };
+            }
+            .map(Box::new);
             DeclaredValue::Literal { number, unit }
         } else {
             DeclaredValue::Expr(Box::new(self.expr(value_pair)?))
