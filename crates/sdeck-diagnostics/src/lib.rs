@@ -80,12 +80,43 @@ pub fn closest_word<'c>(
     word: &str,
     candidates: impl IntoIterator<Item = &'c str>,
 ) -> Option<&'c str> {
-    let lower = word.to_lowercase();
+    closest_within(word, candidates, Case::Ignored, |word, candidate| {
+        (word.max(candidate) / 3).max(2)
+    })
+}
+
+/// Whether [`closest_within`] tells `Rate` from `rate`.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Case {
+    /// Compared as written: a difference of case costs an edit.
+    Kept,
+    /// Compared in lower case.
+    Ignored,
+}
+
+/// The one routine behind every "did you mean": the candidate at the smallest
+/// [`edit_distance`] from `word`, if that distance is at most `limit(word's length,
+/// candidate's length)` (lengths in characters). Ties go to the first candidate.
+pub fn closest_within<'c>(
+    word: &str,
+    candidates: impl IntoIterator<Item = &'c str>,
+    case: Case,
+    limit: impl Fn(usize, usize) -> usize,
+) -> Option<&'c str> {
+    let word = match case {
+        Case::Kept => word.to_string(),
+        Case::Ignored => word.to_lowercase(),
+    };
+    let length = word.chars().count();
     let mut best: Option<(usize, &'c str)> = None;
     for candidate in candidates {
-        let distance = edit_distance(&lower, &candidate.to_lowercase());
-        let limit = (lower.chars().count().max(candidate.chars().count()) / 3).max(2);
-        if distance <= limit && best.is_none_or(|(d, _)| distance < d) {
+        let distance = match case {
+            Case::Kept => edit_distance(&word, candidate),
+            Case::Ignored => edit_distance(&word, &candidate.to_lowercase()),
+        };
+        if distance <= limit(length, candidate.chars().count())
+            && best.is_none_or(|(d, _)| distance < d)
+        {
             best = Some((distance, candidate));
         }
     }

@@ -224,7 +224,7 @@ pub(crate) fn polish<F: Fn(&[f64]) -> f64>(
     }
     for _ in 0..30 {
         let (gradient, hessian) = derivatives(&theta);
-        let Some(cholesky) = hessian.clone().cholesky() else {
+        let Some(cholesky) = sdeck_calculus::symmetric::cholesky(&hessian) else {
             return (theta, false);
         };
         let step = cholesky.solve(&gradient);

@@ -319,20 +319,14 @@ impl Evaluator<'_> {
                 return Some(variant);
             }
         }
-        let limit = if name.chars().count() <= 4 { 1 } else { 2 };
-        TIME_UNITS
+        let candidates = TIME_UNITS
             .iter()
             .chain(self.declared_names.iter())
-            .filter(|candidate| **candidate != TIME_BASE)
-            .map(|candidate| {
-                (
-                    sdeck_diagnostics::edit_distance(name, candidate),
-                    *candidate,
-                )
-            })
-            .filter(|(distance, _)| *distance <= limit)
-            .min_by_key(|(distance, _)| *distance)
-            .map(|(_, candidate)| candidate.to_string())
+            .copied()
+            .filter(|candidate| *candidate != TIME_BASE);
+        let limit = |length: usize, _| if length <= 4 { 1 } else { 2 };
+        sdeck_diagnostics::closest_within(name, candidates, sdeck_diagnostics::Case::Kept, limit)
+            .map(str::to_string)
     }
 }
 

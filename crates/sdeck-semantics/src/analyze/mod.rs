@@ -369,15 +369,12 @@ fn convert_bound(b: &ast::Bound, scale: f64) -> Interval {
     }
 }
 
-/// The declared name closest to `name` by edit distance, if close enough to be a typo.
+/// The declared name closest to `name` by edit distance, if close enough to be a typo
+/// (at most a third of the longer name's length, at least 1; case counts).
 fn closest_name<'n>(name: &str, candidates: impl Iterator<Item = &'n String>) -> Option<String> {
-    let mut best: Option<(usize, &String)> = None;
-    for c in candidates {
-        let d = sdeck_diagnostics::edit_distance(name, c);
-        let limit = (name.chars().count().max(c.chars().count()) / 3).max(1);
-        if d <= limit && best.is_none_or(|(bd, _)| d < bd) {
-            best = Some((d, c));
-        }
-    }
-    best.map(|(_, c)| c.clone())
+    use sdeck_diagnostics::{closest_within, Case};
+    closest_within(name, candidates.map(String::as_str), Case::Kept, |a, b| {
+        (a.max(b) / 3).max(1)
+    })
+    .map(str::to_string)
 }
