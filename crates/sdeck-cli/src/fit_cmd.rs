@@ -6,7 +6,7 @@ use crate::fit_data::{self, DataError, Table};
 use crate::moments::load_sound_model;
 use clap::{Args, ValueEnum};
 use sdeck_fit::{Fit, FitError, Problem, Series};
-use sdeck_semantics::Model;
+use sdeck_semantics::{FactorId, Model, ParamId};
 use sdeck_units::number;
 use serde_json::{json, Value};
 use std::path::{Path, PathBuf};
@@ -73,25 +73,25 @@ pub fn run(args: FitArgs) -> ExitCode {
         Err(e) => return usage(format!("cannot read `{data_name}`: {e}")),
     };
     // Which factors, from which columns.
-    let mut mapping: Vec<(usize, String)> = Vec::new();
+    let mut mapping: Vec<(FactorId, String)> = Vec::new();
     for pair in &args.columns {
         let Some((factor, column)) = pair.split_once('=') else {
             return usage(format!("--column `{pair}`: write FACTOR=COLUMN"));
         };
         let (factor, column) = (factor.trim(), column.trim());
-        let Some(index) = model.factor_id(factor).map(|id| id.index()) else {
+        let Some(id) = model.factor_id(factor) else {
             return usage(format!(
                 "--column `{pair}`: the model has no factor `{factor}` (factors: {})",
                 factor_names(model)
             ));
         };
-        mapping.retain(|(f, _)| *f != index);
-        mapping.push((index, column.to_string()));
+        mapping.retain(|(f, _)| *f != id);
+        mapping.push((id, column.to_string()));
     }
     let (_, header) = fit_data::header(&data_text);
-    for (index, state) in model.factors.iter().enumerate() {
-        if !mapping.iter().any(|(f, _)| *f == index) && header.contains(&state.name) {
-            mapping.push((index, state.name.clone()));
+    for (id, state) in model.factors.iter_ids() {
+        if !mapping.iter().any(|(f, _)| *f == id) && header.contains(&state.name) {
+            mapping.push((id, state.name.clone()));
         }
     }
     if mapping.is_empty() {
@@ -102,10 +102,10 @@ pub fn run(args: FitArgs) -> ExitCode {
         ));
     }
     mapping.sort_by_key(|(f, _)| *f);
-    let mut fixed = Vec::new();
+    let mut fixed: Vec<ParamId> = Vec::new();
     for name in &args.fixed {
         match model.param_id(name) {
-            Some(i) => fixed.push(i.index()),
+            Some(i) => fixed.push(i),
             None => {
                 return usage(format!(
                     "--fix `{name}`: the model has no parameter of that name"
@@ -118,7 +118,7 @@ pub fn run(args: FitArgs) -> ExitCode {
         Ok(t) => t,
         Err(e) => return usage(e.render(&data_name)),
     };
-    let factors: Vec<usize> = mapping.iter().map(|(f, _)| *f).collect();
+    let factors: Vec<FactorId> = mapping.iter().map(|(f, _)| *f).collect();
     let series = Series {
         times: table.times.clone(),
         values: table
@@ -226,7 +226,7 @@ struct Report<'a> {
     model: &'a Model,
     table: &'a Table,
     fit: &'a Fit,
-    factors: &'a [usize],
+    factors: &'a [FactorId],
 }
 
 impl Report<'_> {

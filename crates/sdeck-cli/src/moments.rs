@@ -7,7 +7,7 @@ use sdeck_checks::FileCheck;
 use sdeck_diagnostics::{RuleId, Severity};
 use sdeck_report::moments::{moments_json, moments_text};
 use sdeck_report::{Levels, ModelReport};
-use sdeck_semantics::Model;
+use sdeck_semantics::{FactorId, Model};
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
@@ -69,19 +69,18 @@ pub fn parse_probabilities(text: &str) -> Result<Vec<f64>, String> {
 }
 
 /// `--below`: (factor, level) pairs.
-pub fn parse_below(text: &str, model: &Model) -> Result<Vec<(usize, f64)>, String> {
+pub fn parse_below(text: &str, model: &Model) -> Result<Vec<(FactorId, f64)>, String> {
     text.split(',')
         .map(|piece| {
             let (name, value) = piece
                 .split_once('=')
                 .ok_or_else(|| format!("`{}` is not NAME=VALUE, e.g. `r=0`", piece.trim()))?;
-            let index = model
+            let factor = model
                 .factor_id(name.trim())
-                .map(|id| id.index())
                 .ok_or_else(|| format!("`{}` is not a factor of the model", name.trim()))?;
             let level =
                 parse_level(value).ok_or_else(|| format!("`{}` is not a number", value.trim()))?;
-            Ok((index, level))
+            Ok((factor, level))
         })
         .collect()
 }

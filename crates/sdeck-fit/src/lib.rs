@@ -25,7 +25,7 @@
 //! let series = sdeck_fit::Series { times, values };
 //! let problem = sdeck_fit::Problem {
 //!     model: &analysis.model,
-//!     factors: &[0],
+//!     factors: &[sdeck_semantics::FactorId::new(0)],
 //!     fixed: &[],
 //!     series: &series,
 //! };
@@ -48,7 +48,7 @@ use nalgebra::DMatrix;
 use optimise::Transform;
 use plan::{factor_name, Plan};
 use sdeck_calculus::Family;
-use sdeck_semantics::{Model, ParamId};
+use sdeck_semantics::{FactorId, Model, ParamId};
 use start::{coefficient, moment_targets};
 use statrs::distribution::{ContinuousCDF, Normal};
 
@@ -66,18 +66,18 @@ pub struct Series {
 #[derive(Clone, Copy, Debug)]
 pub struct Problem<'a> {
     pub model: &'a Model,
-    /// The observed factors (indices into `model.factors`), in the order of `series.values`.
-    pub factors: &'a [usize],
-    /// Parameters held at their file values (indices into `model.params`).
-    pub fixed: &'a [usize],
+    /// The observed factors, in the order of `series.values`.
+    pub factors: &'a [FactorId],
+    /// Parameters held at their file values.
+    pub fixed: &'a [ParamId],
     pub series: &'a Series,
 }
 
 /// One estimated parameter, clock units.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Estimate {
-    /// Index into `model.params`.
-    pub param: usize,
+    /// The parameter estimated.
+    pub param: ParamId,
     pub estimate: f64,
     /// Standard error from the observed information; NaN when the estimate sits at a
     /// declared bound.
@@ -197,11 +197,10 @@ fn normal_quantile(p: f64) -> f64 {
 /// parameter written as an expression of others (`param stress = theta + 150bp`) is not
 /// estimated itself: the free parameters of its expression stand in its place, and it
 /// follows them.
-pub fn parameters_in(model: &Model, factors: &[usize]) -> Vec<usize> {
-    let mut out: Vec<usize> = written_in(model, factors)
+pub fn parameters_in(model: &Model, factors: &[FactorId]) -> Vec<ParamId> {
+    let mut out: Vec<ParamId> = written_in(model, factors)
         .into_iter()
-        .flat_map(|p| model.free_params_of(ParamId::new(p)))
-        .map(ParamId::index)
+        .flat_map(|p| model.free_params_of(p))
         .collect();
     out.sort_unstable();
     out.dedup();
@@ -209,17 +208,17 @@ pub fn parameters_in(model: &Model, factors: &[usize]) -> Vec<usize> {
 }
 
 /// Parameters written in the equations of the given factors, derived ones included.
-pub fn written_in(model: &Model, factors: &[usize]) -> Vec<usize> {
+pub fn written_in(model: &Model, factors: &[FactorId]) -> Vec<ParamId> {
     let mut ids = Vec::new();
     for &f in factors {
-        if let Some(eq) = model.factors.get(f).and_then(|s| s.equation.as_ref()) {
+        if let Some(eq) = model.factors.by_id(f).and_then(|s| s.equation.as_ref()) {
             eq.drift.params(&mut ids);
             for term in &eq.diffusion {
                 term.coefficient.params(&mut ids);
             }
         }
     }
-    let mut out: Vec<usize> = ids.into_iter().map(ParamId::index).collect();
+    let mut out: Vec<ParamId> = ids;
     out.sort_unstable();
     out.dedup();
     out
@@ -234,7 +233,7 @@ pub fn written_in(model: &Model, factors: &[usize]) -> Vec<usize> {
 pub fn fit(problem: &Problem) -> Result<Fit, FitError> {
     let model = problem.model;
     let plan = plan::plan(problem)?;
-    let estimated: Vec<usize> = parameters_in(model, problem.factors)
+    let estimated: Vec<ParamId> = parameters_in(model, problem.factors)
         .into_iter()
         .filter(|p| !problem.fixed.contains(p))
         .collect();
@@ -289,7 +288,7 @@ pub fn fit(problem: &Problem) -> Result<Fit, FitError> {
     let full = |theta: &[f64]| {
         let mut all = file_values.clone();
         for (slot, value) in estimated.iter().zip(theta) {
-            all[*slot] = *value;
+            all[slot.index()] = *value;
         }
         model.derive_params(&mut all);
         all
@@ -310,7 +309,7 @@ pub fn fit(problem: &Problem) -> Result<Fit, FitError> {
         memory.push((theta.to_vec(), c));
         c
     };
-    let file_start: Vec<f64> = estimated.iter().map(|&p| file_values[p]).collect();
+    let file_start: Vec<f64> = estimated.iter().map(|&p| file_values[p.index()]).collect();
     let transforms: Vec<Transform> = estimated
         .iter()
         .zip(&file_start)

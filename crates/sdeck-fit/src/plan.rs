@@ -9,7 +9,7 @@ use sdeck_calculus::coefficients::{
 };
 use sdeck_calculus::linear_system::matrix_exponential;
 use sdeck_calculus::Family;
-use sdeck_semantics::Model;
+use sdeck_semantics::{FactorId, Model};
 
 /// One factor fitted on its own.
 pub(crate) struct Single {
@@ -45,10 +45,10 @@ pub(crate) enum Plan {
     },
 }
 
-pub(crate) fn factor_name(model: &Model, i: usize) -> String {
+pub(crate) fn factor_name(model: &Model, factor: FactorId) -> String {
     model
         .factors
-        .get(i)
+        .by_id(factor)
         .map(|s| s.name.clone())
         .unwrap_or_default()
 }
@@ -63,7 +63,7 @@ pub(crate) fn plan(problem: &Problem) -> Result<Plan, FitError> {
     let mut single_reason = None;
     for (column, &factor) in problem.factors.iter().enumerate() {
         let name = factor_name(model, factor);
-        match one_state_form(model, factor) {
+        match one_state_form(model, factor.index()) {
             Ok(form) if form.time_dependent && !form.additive_noise() => {
                 single_reason = Some((
                     name,
@@ -132,16 +132,16 @@ pub(crate) fn plan(problem: &Problem) -> Result<Plan, FitError> {
         }
     }
     // Independent factors: no shock shared or correlated between two fitted equations.
-    let shocks = |factor: usize| -> Vec<usize> {
+    let shocks = |factor: FactorId| -> Vec<usize> {
         model
             .factors
-            .get(factor)
+            .by_id(factor)
             .and_then(|s| s.equation.as_ref())
             .map(|eq| eq.diffusion.iter().map(|d| d.noise.index()).collect())
             .unwrap_or_default()
     };
     let corr = model.correlation_matrix();
-    let linked = |a: usize, b: usize| {
+    let linked = |a: FactorId, b: FactorId| {
         shocks(a).iter().any(|&k| {
             shocks(b).iter().any(|&l| {
                 k == l
@@ -167,7 +167,7 @@ pub(crate) fn plan(problem: &Problem) -> Result<Plan, FitError> {
     let n = model.factors.len();
     let mut columns = vec![usize::MAX; n];
     for (column, &factor) in problem.factors.iter().enumerate() {
-        if let Some(slot) = columns.get_mut(factor) {
+        if let Some(slot) = columns.get_mut(factor.index()) {
             *slot = column;
         }
     }
@@ -188,7 +188,7 @@ pub(crate) fn plan(problem: &Problem) -> Result<Plan, FitError> {
             reason: format!(
                 "{why}; a joint (linear-system) likelihood needs every factor observed, and \
                  the data have no column for {}",
-                factor_name(model, missing)
+                factor_name(model, FactorId::new(missing))
             ),
         });
     }

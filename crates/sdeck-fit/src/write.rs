@@ -6,14 +6,14 @@
 //! units, bounds) stays as written; a file in the formatter's layout is re-aligned by the
 //! formatter.
 
-use sdeck_semantics::{analyze, Model};
+use sdeck_semantics::{analyze, Model, ParamId};
 use sdeck_syntax::ast::StatementKind;
 
 /// One value to write, clock units.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Rewrite {
-    /// Index into `model.params`.
-    pub param: usize,
+    /// The parameter written.
+    pub param: ParamId,
     pub value: f64,
     pub se: f64,
 }
@@ -96,7 +96,7 @@ pub fn rewrite(
     for r in rewrites {
         let p = model
             .params
-            .get(r.param)
+            .by_id(r.param)
             .ok_or_else(|| "an estimate names no parameter of the model".to_string())?;
         if let Some(bound) = &p.bound {
             if !bound.contains(r.value) {
@@ -215,7 +215,7 @@ pub fn rewrite(
         return Err("the rewritten file would not analyse cleanly".to_string());
     }
     for r in rewrites {
-        let Some(p) = model.params.get(r.param) else {
+        let Some(p) = model.params.by_id(r.param) else {
             continue;
         };
         let Some(new) = after.model.params.iter().find(|q| q.name == p.name) else {
@@ -266,17 +266,17 @@ mod tests {
         let model = &analysis.model;
         let rewrites = [
             Rewrite {
-                param: 0,
+                param: ParamId::new(0),
                 value: 1.2345,
                 se: 0.21,
             },
             Rewrite {
-                param: 1,
+                param: ParamId::new(1),
                 value: 0.004_567,
                 se: 0.000_12,
             },
             Rewrite {
-                param: 2,
+                param: ParamId::new(2),
                 value: 0.021_23,
                 se: 0.001,
             },
@@ -297,7 +297,7 @@ mod tests {
         );
         // A bound broken by the estimate: nothing.
         let broken = [Rewrite {
-            param: 0,
+            param: ParamId::new(0),
             value: -1.0,
             se: 0.1,
         }];

@@ -5,7 +5,7 @@ use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
 use rand_distr::{Distribution, Normal};
 use sdeck_fit::{fit, Fit, FitError, Problem, Series};
-use sdeck_semantics::{analyze, Model};
+use sdeck_semantics::{analyze, FactorId, Model, ParamId};
 
 fn model(text: &str) -> Model {
     let analysis = analyze(text, "test");
@@ -24,14 +24,14 @@ fn run(model: &Model, times: &[f64], values: &[f64]) -> Result<Fit, FitError> {
     };
     fit(&Problem {
         model,
-        factors: &[0],
+        factors: &[FactorId::new(0)],
         fixed: &[],
         series: &series,
     })
 }
 
 fn estimate(fit: &Fit, model: &Model, name: &str) -> (f64, f64) {
-    let index = model.param_id(name).expect("parameter exists").index();
+    let index = model.param_id(name).expect("parameter exists");
     let e = fit
         .estimates
         .iter()
@@ -192,7 +192,7 @@ fn intervals_cover_the_truth_at_their_level() {
         let x = ou_path(1000 + seed, times.len(), dt, kappa, theta, sigma);
         let fit = run(&m, &times, &x).expect("OU fits");
         for (j, (name, truth)) in names.iter().enumerate() {
-            let index = m.param_id(name).expect("parameter exists").index();
+            let index = m.param_id(name).expect("parameter exists");
             let e = fit
                 .estimates
                 .iter()
@@ -298,7 +298,7 @@ fn a_coupled_fully_observed_system_is_fitted_jointly() {
     };
     let fit = fit(&Problem {
         model: &m,
-        factors: &[0, 1],
+        factors: &[FactorId::new(0), FactorId::new(1)],
         fixed: &[],
         series: &series,
     })
@@ -383,10 +383,10 @@ fn too_few_observations_and_nothing_to_estimate() {
         times: vec![0.0, 1.0, 2.0, 3.0, 4.0],
         values: vec![vec![Some(0.01); 5]],
     };
-    let all = [0, 1, 2];
+    let all = [0, 1, 2].map(ParamId::new);
     let r = fit(&Problem {
         model: &m,
-        factors: &[0],
+        factors: &[FactorId::new(0)],
         fixed: &all,
         series: &series,
     });
@@ -403,10 +403,10 @@ fn fixed_parameters_keep_their_file_values() {
         times,
         values: vec![x.iter().map(|v| Some(*v)).collect()],
     };
-    let level = m.param_id("level").expect("level").index();
+    let level = m.param_id("level").expect("level");
     let fit = fit(&Problem {
         model: &m,
-        factors: &[0],
+        factors: &[FactorId::new(0)],
         fixed: &[level],
         series: &series,
     })
@@ -436,10 +436,10 @@ fn a_parameter_written_as_an_expression_follows_the_estimates_and_is_not_rewritt
         times: times.clone(),
         values: vec![x.iter().map(|v| Some(*v)).collect()],
     };
-    let gap = m.param_id("gap").expect("gap").index();
+    let gap = m.param_id("gap").expect("gap");
     let fitted = fit(&Problem {
         model: &m,
-        factors: &[0],
+        factors: &[FactorId::new(0)],
         fixed: &[gap],
         series: &series,
     })
@@ -477,7 +477,7 @@ fn a_parameter_written_as_an_expression_follows_the_estimates_and_is_not_rewritt
     assert!(written.contains("param level = base + gap\n"), "{written}");
     assert!(!written.contains("param base = 1.5%"), "{written}");
     // Asked to rewrite the expression itself, it refuses and writes nothing.
-    let level_index = m.param_id("level").expect("level").index();
+    let level_index = m.param_id("level").expect("level");
     let refused = sdeck_fit::write::rewrite(
         text,
         "rate",

@@ -32,7 +32,7 @@ pub struct Levels {
     /// Probabilities strictly between 0 and 1.
     pub quantiles: Vec<f64>,
     /// `(factor, level)` pairs.
-    pub below: Vec<(usize, f64)>,
+    pub below: Vec<(FactorId, f64)>,
     /// Whether the quantiles of a law known only through its transform are asked too:
     /// each is a numerical inversion, too slow for a face that answers every keystroke.
     pub quantiles_by_inversion: bool,
@@ -264,7 +264,7 @@ fn figures_of(
     let below: Vec<Below> = levels
         .below
         .iter()
-        .filter(|(k, _)| *k == i.index())
+        .filter(|(k, _)| *k == i)
         .map(|&(_, level)| Below {
             level,
             probability: law.as_ref().and_then(|l| l.cdf(level)),

@@ -178,7 +178,7 @@ fn the_report_of_one_factor_is_its_part_of_the_report_of_the_model() {
             let at = model.horizon * 0.75;
             let levels = sdeck_report::Levels {
                 quantiles: vec![0.1, 0.5],
-                below: (0..model.factors.len()).map(|i| (i, 0.0)).collect(),
+                below: model.factors.ids().map(|i| (i, 0.0)).collect(),
                 ..Default::default()
             };
             let whole = ModelReport::build_with(model, &check.derivation, &source, at, &levels);

@@ -67,7 +67,7 @@ fn moments_comment(a: &Analyzed, in_range: impl Fn(&Span) -> bool) -> Vec<(Strin
     let model = &a.check.analysis.model;
     let clock = &model.clock.unit;
     let mut out = Vec::new();
-    for (i, state) in model.factors.iter().enumerate() {
+    for (i, state) in model.factors.iter_ids() {
         let Some(equation) = &state.equation else {
             continue;
         };

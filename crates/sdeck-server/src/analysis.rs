@@ -7,7 +7,7 @@ use crate::documents::{PositionEncoding, TextSnapshot};
 use sdeck_checks::reuse::{Memo, Reuse, ReuseCounts};
 use sdeck_checks::{FileCheck, RuleSettings};
 use sdeck_report::{FactorReport, Levels};
-use sdeck_semantics::{FactorId, Symbol, SymbolKind};
+use sdeck_semantics::{FactorId, ParamId, Symbol, SymbolKind};
 use sdeck_syntax::ast::{Declaration, StatementKind};
 use sdeck_syntax::LineIndex;
 use std::path::Path;
@@ -52,7 +52,7 @@ pub const HORIZON_QUANTILES: [f64; 3] = [0.05, 0.5, 0.95];
 /// What the server asks of the report of `state`: [`HORIZON_QUANTILES`] (none by a
 /// numerical inversion of a transform: a hover answers at once) and the probability of a
 /// value below zero.
-pub fn horizon_levels(state: usize) -> Levels {
+pub fn horizon_levels(state: FactorId) -> Levels {
     Levels {
         quantiles: HORIZON_QUANTILES.to_vec(),
         below: vec![(state, 0.0)],
@@ -188,11 +188,11 @@ impl Analyzed {
     /// zero the hover shows ([`horizon_levels`]): built for that state only, on first use,
     /// and taken over by later versions while the state's content key is the same (an
     /// edit elsewhere leaves it). `None` when there is no such state.
-    pub fn horizon_report(&self, state: usize) -> Option<&FactorReport> {
+    pub fn horizon_report(&self, state: FactorId) -> Option<&FactorReport> {
         self.horizon
-            .get(state)?
+            .get(state.index())?
             .get_or_init(|| {
-                let key = self.check.keys.factors.get(state).copied();
+                let key = self.check.keys.factors.get(state.index()).copied();
                 let kept = key.and_then(|k| self.memo.reports().get(k));
                 if let Some(report) = kept {
                     return report;
@@ -202,7 +202,7 @@ impl Analyzed {
                 let report = FactorReport::build(
                     model,
                     &self.check.derivation,
-                    FactorId::new(state),
+                    state,
                     model.horizon,
                     &horizon_levels(state),
                 );
@@ -282,10 +282,10 @@ impl Analyzed {
     }
 
     /// The roles a parameter plays in the equations, with the state each concerns.
-    pub fn roles_of_param(&self, param: usize) -> &[Role] {
+    pub fn roles_of_param(&self, param: ParamId) -> &[Role] {
         self.roles
             .get_or_init(|| self.all_roles())
-            .get(param)
+            .get(param.index())
             .map(Vec::as_slice)
             .unwrap_or(&[])
     }
@@ -295,9 +295,10 @@ impl Analyzed {
         let model = &self.check.analysis.model;
         let derivation = &self.check.derivation;
         let mut roles = vec![Vec::new(); model.params.len()];
-        for (state, law) in derivation.states.iter().enumerate() {
+        for (index, law) in derivation.states.iter().enumerate() {
+            let state = FactorId::new(index);
             if let Some(terms) =
-                sdeck_calculus::describe::square_root_terms(model, derivation, FactorId::new(state))
+                sdeck_calculus::describe::square_root_terms(model, derivation, state)
             {
                 let half_life = law.half_life;
                 if let Some(slot) = terms.speed_param.and_then(|p| roles.get_mut(p.index())) {
@@ -310,8 +311,7 @@ impl Analyzed {
             }
             // The speed of a factor whose own drift coefficient is −p, read from the
             // calculus as a parameter (never from the printed formula).
-            let speed =
-                sdeck_calculus::describe::drift_speed_param(derivation, FactorId::new(state));
+            let speed = sdeck_calculus::describe::drift_speed_param(derivation, state);
             if let Some(slot) = speed.and_then(|p| roles.get_mut(p.index())) {
                 slot.push(Role::Speed {
                     state,
@@ -328,9 +328,9 @@ impl Analyzed {
 pub enum Role {
     /// The speed of mean reversion, with the state's half-life (clock units) when known.
     Speed {
-        state: usize,
+        state: FactorId,
         half_life: Option<f64>,
     },
     /// The volatility of a square-root state.
-    Volatility { state: usize },
+    Volatility { state: FactorId },
 }

@@ -3,7 +3,7 @@
 //! day, four significant digits (`27.7 day`, not `0.0758904 year`).
 
 use crate::analysis::{Analyzed, Role};
-use sdeck_semantics::{Model, Param};
+use sdeck_semantics::{FactorId, Model, Param};
 
 /// A time unit and its length in clock units.
 pub(crate) struct TimeUnit {
@@ -44,12 +44,11 @@ impl TimeUnit {
 /// The unit for the half-life `half_life` (clock units) of factor `state`: the time unit
 /// of its speed as written when that is not the clock's (`[1/day]` on a yearly clock gives
 /// days), else the most readable of year, month and day.
-pub(crate) fn half_life_unit(a: &Analyzed, state: usize, half_life: f64) -> TimeUnit {
+pub(crate) fn half_life_unit(a: &Analyzed, state: FactorId, half_life: f64) -> TimeUnit {
     let model = &a.check.analysis.model;
     model
         .params
-        .iter()
-        .enumerate()
+        .iter_ids()
         .filter(|(i, _)| {
             a.roles_of_param(*i)
                 .iter()

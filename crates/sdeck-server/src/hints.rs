@@ -37,7 +37,7 @@ fn all_hints(a: &Analyzed) -> Vec<(usize, String)> {
     let model = &a.check.analysis.model;
     let clock = &model.clock.unit;
     let mut hints: Vec<(usize, String)> = Vec::new();
-    for (i, p) in model.params.iter().enumerate() {
+    for (i, p) in model.params.iter_ids() {
         let Some(declaration) = a.declaration(SymbolKind::Param, &p.name) else {
             continue;
         };

@@ -6,7 +6,7 @@
 use crate::analysis::{Analyzed, Role, HORIZON_QUANTILES};
 use crate::documents::PositionEncoding;
 use crate::durations::{half_life_unit, TimeUnit};
-use sdeck_semantics::{Model, SymbolKind};
+use sdeck_semantics::{FactorId, Model, ParamId, SymbolKind};
 use sdeck_syntax::ast::{DeclaredValue, Expr, Quantity, StatementKind, UnitExpr};
 use sdeck_units::number::{brief, brief_or_unknown, plain};
 use tower_lsp::lsp_types::{Hover, HoverContents, MarkupContent, MarkupKind, Position};
@@ -23,8 +23,8 @@ pub fn hover(
     let model = &a.check.analysis.model;
     let (doc, span) = if let Some(symbol) = a.symbol_at(offset) {
         let doc = match symbol.kind {
-            SymbolKind::Factor => state_doc(a, model.factor_id(&symbol.name)?.index()),
-            SymbolKind::Param => Doc::text(param_text(a, model.param_id(&symbol.name)?.index())),
+            SymbolKind::Factor => state_doc(a, model.factor_id(&symbol.name)?),
+            SymbolKind::Param => Doc::text(param_text(a, model.param_id(&symbol.name)?)),
             SymbolKind::Shock => Doc::text(noise_text(model, &symbol.name)?),
             SymbolKind::Let => Doc::text(let_text(model, &symbol.name)?),
             SymbolKind::Unit => Doc::text(unit_text(model, &symbol.name)),
@@ -322,10 +322,10 @@ fn horizon_unit(a: &Analyzed) -> TimeUnit {
 /// The figures a reader wants first (mean, sd, quantiles at the horizon, half-life),
 /// then why the family, the description and the formulas: the factor's report at the
 /// horizon, as `sdeck moments` derives it.
-fn state_doc(a: &Analyzed, i: usize) -> Doc {
+fn state_doc(a: &Analyzed, i: FactorId) -> Doc {
     let mut doc = Doc::default();
     let model = &a.check.analysis.model;
-    let (Some(state), Some(report)) = (model.factors.get(i), a.horizon_report(i)) else {
+    let (Some(state), Some(report)) = (model.factors.by_id(i), a.horizon_report(i)) else {
         return doc;
     };
     let figures = &report.figures;
@@ -401,9 +401,9 @@ fn state_doc(a: &Analyzed, i: usize) -> Doc {
 }
 
 /// Value in the clock's units, bound, description and role.
-fn param_text(a: &Analyzed, i: usize) -> String {
+fn param_text(a: &Analyzed, i: ParamId) -> String {
     let model = &a.check.analysis.model;
-    let Some(p) = model.params.get(i) else {
+    let Some(p) = model.params.by_id(i) else {
         return String::new();
     };
     let clock = &model.clock.unit;
@@ -447,7 +447,7 @@ fn param_text(a: &Analyzed, i: usize) -> String {
             Role::Speed { state, half_life } => {
                 let name = model
                     .factors
-                    .get(state)
+                    .by_id(state)
                     .map(|s| s.name.as_str())
                     .unwrap_or("?");
                 match half_life {
@@ -461,7 +461,7 @@ fn param_text(a: &Analyzed, i: usize) -> String {
             Role::Volatility { state } => {
                 let name = model
                     .factors
-                    .get(state)
+                    .by_id(state)
                     .map(|s| s.name.as_str())
                     .unwrap_or("?");
                 s.push_str(&format!(
