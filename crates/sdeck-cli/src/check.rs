@@ -234,23 +234,76 @@ pub fn run(args: CheckArgs) -> ExitCode {
 
 fn run_in_pool(args: CheckArgs) -> ExitCode {
     let mut projects = ProjectCache::new();
+    let reads_stdin = match arguments_agree(&args) {
+        Ok(reads_stdin) => reads_stdin,
+        Err(message) => {
+            eprintln!("sdeck: {message}");
+            return ExitCode::from(2);
+        }
+    };
+    let Some(targets) = targets(&args, &mut projects, reads_stdin) else {
+        return ExitCode::from(2);
+    };
+    let (mut unreadable, fixes_refused) = if args.fix {
+        apply_fixes(&targets)
+    } else {
+        (false, false)
+    };
+    let mut checked: Vec<Checked> = Vec::with_capacity(targets.len() + 1);
+    if reads_stdin {
+        match check_stdin(&args, &mut projects) {
+            Ok(one) => checked.extend(one),
+            Err(message) => {
+                eprintln!("sdeck: {message}");
+                return ExitCode::from(2);
+            }
+        }
+    }
+    let results: Vec<Result<Checked, String>> = targets
+        .par_iter()
+        .map(|target| check_target(target, args.deny))
+        .collect();
+    for result in results {
+        match result {
+            Ok(c) => checked.push(c),
+            Err(message) => {
+                eprintln!("sdeck: {message}");
+                unreadable = true;
+            }
+        }
+    }
+    // Stable: a path named twice keeps both entries, in argument order.
+    checked.sort_by(|a, b| a.source.path.cmp(&b.source.path));
+
+    let unwritten = write_reports(&args, &checked);
+    if unreadable || unwritten {
+        ExitCode::from(2)
+    } else if fixes_refused || checked.iter().any(Checked::failed) {
+        ExitCode::from(1)
+    } else {
+        ExitCode::SUCCESS
+    }
+}
+
+/// Whether the command line makes sense as a whole (what clap cannot tell): `Ok` with
+/// whether standard input is read, or the message of exit 2.
+fn arguments_agree(args: &CheckArgs) -> Result<bool, String> {
     let reads_stdin = args.paths.iter().any(|p| p.as_os_str() == "-")
         || (args.paths.is_empty() && args.stdin_name.is_some());
     if args.paths.is_empty() && args.stdin_name.is_none() {
-        eprintln!("sdeck: name the files or folders to check, or `-` with `--stdin-name PATH` to read standard input");
-        return ExitCode::from(2);
+        return Err("name the files or folders to check, or `-` with `--stdin-name PATH` to read standard input".to_string());
     }
     if args.stdin_name.is_some() && !reads_stdin {
-        eprintln!("sdeck: `--stdin-name` names standard input, which is read only when `-` is among the paths (or no path is given)");
-        return ExitCode::from(2);
+        return Err("`--stdin-name` names standard input, which is read only when `-` is among the paths (or no path is given)".to_string());
     }
     if args.fix && reads_stdin {
-        eprintln!("sdeck: `--fix` rewrites files; standard input cannot be fixed (name the file instead of `-`)");
-        return ExitCode::from(2);
+        return Err(
+            "`--fix` rewrites files; standard input cannot be fixed (name the file instead of `-`)"
+                .to_string(),
+        );
     }
     if args.paths.iter().filter(|p| p.as_os_str() == "-").count() > 1 {
-        eprintln!("sdeck: standard input can be read once: give `-` once");
-        return ExitCode::from(2);
+        return Err("standard input can be read once: give `-` once".to_string());
     }
     // `--output FORMAT=-` is standard output; no two reports may go to one place.
     let mut destinations: Vec<PathBuf> = Vec::new();
@@ -261,31 +314,34 @@ fn run_in_pool(args: CheckArgs) -> ExitCode {
             sdeck_project::absolute(&output.file)
         };
         if destinations.contains(&destination) {
-            eprintln!(
-                "sdeck: two reports would be written to `{}`; give each `--output` its own file",
+            return Err(format!(
+                "two reports would be written to `{}`; give each `--output` its own file",
                 output.file.display()
-            );
-            return ExitCode::from(2);
+            ));
         }
         destinations.push(destination);
     }
-    let stdout_format = args
-        .outputs
-        .iter()
-        .find(|o| o.file.as_os_str() == "-")
-        .map(|o| o.format)
-        .unwrap_or(args.format);
+    Ok(reads_stdin)
+}
+
+/// The files to check under the paths on disk, saying so when there are none; `None`
+/// (after the message) for exit 2.
+fn targets(
+    args: &CheckArgs,
+    projects: &mut ProjectCache,
+    reads_stdin: bool,
+) -> Option<Vec<Target>> {
     let disk_paths: Vec<PathBuf> = args
         .paths
         .iter()
         .filter(|p| p.as_os_str() != "-")
         .cloned()
         .collect();
-    let targets = match files::collect(&disk_paths, &mut projects) {
+    let targets = match files::collect(&disk_paths, projects) {
         Ok(t) => t,
         Err(message) => {
             eprintln!("sdeck: {message}");
-            return ExitCode::from(2);
+            return None;
         }
     };
     if targets.is_empty() && !reads_stdin {
@@ -305,7 +361,7 @@ fn run_in_pool(args: CheckArgs) -> ExitCode {
                 }
             );
             if !args.allow_empty {
-                return ExitCode::from(2);
+                return None;
             }
         } else {
             eprintln!(
@@ -314,76 +370,62 @@ fn run_in_pool(args: CheckArgs) -> ExitCode {
             );
         }
     }
-    let mut unreadable = false;
-    let mut fixes_refused = false;
-    if args.fix {
-        let outcomes: Vec<Result<FixOutcome, String>> = targets.par_iter().map(fix_file).collect();
-        for (target, outcome) in targets.iter().zip(outcomes) {
-            let path = files::display(&target.path);
-            match outcome {
-                Ok(FixOutcome::Fixed(0)) => {}
-                Ok(FixOutcome::Fixed(n)) => {
-                    let fixes = if n == 1 { "fix" } else { "fixes" };
-                    eprintln!("sdeck: {path}: applied {n} {fixes}");
-                }
-                Ok(FixOutcome::Refused(reason)) => {
-                    eprintln!("sdeck: {path}: nothing written: {reason}");
-                    fixes_refused = true;
-                }
-                Err(message) => {
-                    eprintln!("sdeck: {message}");
-                    unreadable = true;
-                }
+    Some(targets)
+}
+
+/// `--fix`: applies each file's preferred fixes and says what it did. Returns whether a
+/// file could not be read and whether one was left unwritten (its fixes overlap).
+fn apply_fixes(targets: &[Target]) -> (bool, bool) {
+    let (mut unreadable, mut refused) = (false, false);
+    let outcomes: Vec<Result<FixOutcome, String>> = targets.par_iter().map(fix_file).collect();
+    for (target, outcome) in targets.iter().zip(outcomes) {
+        let path = files::display(&target.path);
+        match outcome {
+            Ok(FixOutcome::Fixed(0)) => {}
+            Ok(FixOutcome::Fixed(n)) => {
+                let fixes = if n == 1 { "fix" } else { "fixes" };
+                eprintln!("sdeck: {path}: applied {n} {fixes}");
             }
-        }
-    }
-    let mut checked: Vec<Checked> = Vec::with_capacity(targets.len() + 1);
-    if reads_stdin {
-        let name = args
-            .stdin_name
-            .clone()
-            .unwrap_or_else(|| PathBuf::from("<stdin>"));
-        let project: Option<Arc<Project>> = match projects.project_for(&name) {
-            Ok(p) => p,
-            Err(e) => {
-                eprintln!("sdeck: {}", files::describe_project_error(e));
-                return ExitCode::from(2);
+            Ok(FixOutcome::Refused(reason)) => {
+                eprintln!("sdeck: {path}: nothing written: {reason}");
+                refused = true;
             }
-        };
-        let source = match files::read_stdin(&files::display(&name)) {
-            Ok(s) => s,
-            Err(message) => {
-                eprintln!("sdeck: {message}");
-                return ExitCode::from(2);
-            }
-        };
-        // An excluded name is excluded on standard input too: an editor or hook then
-        // agrees with the folder run.
-        if !project.as_ref().is_some_and(|p| p.is_excluded(&name)) {
-            checked.push(finish_one(source, project.as_deref(), args.deny));
-        }
-    }
-    let results: Vec<Result<Checked, String>> = targets
-        .par_iter()
-        .map(|target| check_target(target, args.deny))
-        .collect();
-    for result in results {
-        match result {
-            Ok(c) => checked.push(c),
             Err(message) => {
                 eprintln!("sdeck: {message}");
                 unreadable = true;
             }
         }
     }
-    // Stable: a path named twice keeps both entries, in argument order.
-    checked.sort_by(|a, b| a.source.path.cmp(&b.source.path));
+    (unreadable, refused)
+}
 
-    let mut status_two = unreadable;
+/// Checks standard input under `--stdin-name` (its project found from that name);
+/// `None` when the project excludes the name. `Err` is the message of exit 2.
+fn check_stdin(args: &CheckArgs, projects: &mut ProjectCache) -> Result<Option<Checked>, String> {
+    let name = args
+        .stdin_name
+        .clone()
+        .unwrap_or_else(|| PathBuf::from("<stdin>"));
+    let project: Option<Arc<Project>> = projects
+        .project_for(&name)
+        .map_err(files::describe_project_error)?;
+    let source = files::read_stdin(&files::display(&name))?;
+    // An excluded name is excluded on standard input too: an editor or hook then
+    // agrees with the folder run.
+    if project.as_ref().is_some_and(|p| p.is_excluded(&name)) {
+        return Ok(None);
+    }
+    Ok(Some(finish_one(source, project.as_deref(), args.deny)))
+}
+
+/// Writes the report to each `--output` file and to standard output; whether one could
+/// not be written (exit 2). A closed standard output (a pager quit) is not an error.
+fn write_reports(args: &CheckArgs, checked: &[Checked]) -> bool {
+    let mut unwritten = false;
     for output in args.outputs.iter().filter(|o| o.file.as_os_str() != "-") {
         let written = std::fs::File::create(&output.file).and_then(|file| {
             let mut writer = std::io::BufWriter::new(file);
-            write_report(output.format, &checked, &mut NoColor::new(&mut writer))?;
+            write_report(output.format, checked, &mut NoColor::new(&mut writer))?;
             writer.flush()
         });
         if let Err(e) = written {
@@ -392,9 +434,15 @@ fn run_in_pool(args: CheckArgs) -> ExitCode {
                 format_name(output.format),
                 output.file.display()
             );
-            status_two = true;
+            unwritten = true;
         }
     }
+    let stdout_format = args
+        .outputs
+        .iter()
+        .find(|o| o.file.as_os_str() == "-")
+        .map(|o| o.format)
+        .unwrap_or(args.format);
     let color = if stdout_format == Format::Human {
         crate::color_choice(std::io::IsTerminal::is_terminal(&std::io::stdout()))
     } else {
@@ -403,20 +451,14 @@ fn run_in_pool(args: CheckArgs) -> ExitCode {
     // Buffered: a report of thousands of findings is written in large blocks, not a
     // system call per line.
     let mut stdout = BufferedStandardStream::stdout(color);
-    let printed = write_report(stdout_format, &checked, &mut stdout).and_then(|()| stdout.flush());
+    let printed = write_report(stdout_format, checked, &mut stdout).and_then(|()| stdout.flush());
     if let Err(e) = printed {
         if e.kind() != std::io::ErrorKind::BrokenPipe {
             eprintln!("sdeck: cannot write the report: {e}");
-            status_two = true;
+            unwritten = true;
         }
     }
-    if status_two {
-        ExitCode::from(2)
-    } else if fixes_refused || checked.iter().any(Checked::failed) {
-        ExitCode::from(1)
-    } else {
-        ExitCode::SUCCESS
-    }
+    unwritten
 }
 
 fn format_name(format: Format) -> &'static str {

@@ -65,72 +65,22 @@ pub fn run(args: FitArgs) -> ExitCode {
     };
     let model = &loaded.analysis.model;
     let data_name = args.data.display().to_string();
-    let data_text = match std::fs::read(&args.data) {
-        Ok(bytes) => match String::from_utf8(bytes) {
-            Ok(text) => text,
-            Err(_) => return usage(format!("{data_name}: the data are not UTF-8 text")),
-        },
-        Err(e) => return usage(format!("cannot read `{data_name}`: {e}")),
+    let prepared = read_data(&args.data, &data_name).and_then(|data_text| {
+        let mapping = column_mapping(&args, model, &data_text, &data_name)?;
+        let fixed = fixed_params(&args, model)?;
+        Ok((data_text, mapping, fixed))
+    });
+    let (data_text, mapping, fixed) = match prepared {
+        Ok(prepared) => prepared,
+        Err(message) => return usage(message),
     };
-    // Which factors, from which columns.
-    let mut mapping: Vec<(FactorId, String)> = Vec::new();
-    for pair in &args.columns {
-        let Some((factor, column)) = pair.split_once('=') else {
-            return usage(format!("--column `{pair}`: write FACTOR=COLUMN"));
-        };
-        let (factor, column) = (factor.trim(), column.trim());
-        let Some(id) = model.factor_id(factor) else {
-            return usage(format!(
-                "--column `{pair}`: the model has no factor `{factor}` (factors: {})",
-                factor_names(model)
-            ));
-        };
-        mapping.retain(|(f, _)| *f != id);
-        mapping.push((id, column.to_string()));
-    }
-    let (_, header) = fit_data::header(&data_text);
-    for (id, state) in model.factors.iter_ids() {
-        if !mapping.iter().any(|(f, _)| *f == id) && header.contains(&state.name) {
-            mapping.push((id, state.name.clone()));
-        }
-    }
-    if mapping.is_empty() {
-        return usage(format!(
-            "{data_name}: no column is named after a factor of the model ({}); name one so, \
-             or map it with --column FACTOR=COLUMN",
-            factor_names(model)
-        ));
-    }
-    mapping.sort_by_key(|(f, _)| *f);
-    let mut fixed: Vec<ParamId> = Vec::new();
-    for name in &args.fixed {
-        match model.param_id(name) {
-            Some(i) => fixed.push(i),
-            None => {
-                return usage(format!(
-                    "--fix `{name}`: the model has no parameter of that name"
-                ))
-            }
-        }
-    }
     let columns: Vec<String> = mapping.iter().map(|(_, c)| c.clone()).collect();
     let table = match fit_data::read(&data_text, model, &columns) {
         Ok(t) => t,
         Err(e) => return usage(e.render(&data_name)),
     };
     let factors: Vec<FactorId> = mapping.iter().map(|(f, _)| *f).collect();
-    let series = Series {
-        times: table.times.clone(),
-        values: table
-            .values
-            .iter()
-            .zip(&factors)
-            .map(|(column, &f)| {
-                let scale = model.factors[f].scale;
-                column.iter().map(|v| v.map(|x| x * scale)).collect()
-            })
-            .collect(),
-    };
+    let series = series(model, &table, &factors);
     let problem = Problem {
         model,
         factors: &factors,
@@ -139,25 +89,7 @@ pub fn run(args: FitArgs) -> ExitCode {
     };
     let fit = match sdeck_fit::fit(&problem) {
         Ok(fit) => fit,
-        Err(e) => {
-            let (line, column) = match &e {
-                FitError::OutsideDomain {
-                    column,
-                    observation,
-                    ..
-                } => (
-                    table.lines.get(*observation).copied(),
-                    columns.get(*column).cloned(),
-                ),
-                _ => (None, None),
-            };
-            let error = DataError {
-                line,
-                column,
-                message: e.to_string(),
-            };
-            return usage(error.render(&data_name));
-        }
+        Err(e) => return usage(fit_error(&e, &table, &columns).render(&data_name)),
     };
     let report = Report {
         model,
@@ -179,32 +111,137 @@ pub fn run(args: FitArgs) -> ExitCode {
         return write_back(&args.model, &args.data, model, &fit);
     }
     if args.check {
-        let outside: Vec<String> = fit
-            .estimates
-            .iter()
-            .filter_map(|e| {
-                let p = &model.params[e.param];
-                let (lo, hi) = e.interval(LEVEL_CHECKED);
-                outside(e, p.value, lo, hi).then(|| {
-                    format!(
-                        "{} = {} in the file lies outside the 99% interval [{}, {}] of its \
-                         estimate from {data_name}",
-                        p.name,
-                        number::plain(p.written),
-                        number::plain(lo / p.scale),
-                        number::plain(hi / p.scale)
-                    )
-                })
-            })
-            .collect();
-        if !outside.is_empty() {
-            for line in &outside {
-                eprintln!("sdeck: disagreement: {line}");
-            }
-            return ExitCode::from(1);
-        }
+        return disagreements(model, &fit, &data_name);
     }
     ExitCode::SUCCESS
+}
+
+/// The data file's text; the message of exit 2 when it cannot be read.
+fn read_data(path: &Path, data_name: &str) -> Result<String, String> {
+    match std::fs::read(path) {
+        Ok(bytes) => String::from_utf8(bytes)
+            .map_err(|_| format!("{data_name}: the data are not UTF-8 text")),
+        Err(e) => Err(format!("cannot read `{data_name}`: {e}")),
+    }
+}
+
+/// Which factors are read from which columns, in declaration order: `--column
+/// FACTOR=COLUMN`, then the columns named after a factor.
+fn column_mapping(
+    args: &FitArgs,
+    model: &Model,
+    data_text: &str,
+    data_name: &str,
+) -> Result<Vec<(FactorId, String)>, String> {
+    let mut mapping: Vec<(FactorId, String)> = Vec::new();
+    for pair in &args.columns {
+        let Some((factor, column)) = pair.split_once('=') else {
+            return Err(format!("--column `{pair}`: write FACTOR=COLUMN"));
+        };
+        let (factor, column) = (factor.trim(), column.trim());
+        let Some(id) = model.factor_id(factor) else {
+            return Err(format!(
+                "--column `{pair}`: the model has no factor `{factor}` (factors: {})",
+                factor_names(model)
+            ));
+        };
+        mapping.retain(|(f, _)| *f != id);
+        mapping.push((id, column.to_string()));
+    }
+    let (_, header) = fit_data::header(data_text);
+    for (id, state) in model.factors.iter_ids() {
+        if !mapping.iter().any(|(f, _)| *f == id) && header.contains(&state.name) {
+            mapping.push((id, state.name.clone()));
+        }
+    }
+    if mapping.is_empty() {
+        return Err(format!(
+            "{data_name}: no column is named after a factor of the model ({}); name one so, \
+             or map it with --column FACTOR=COLUMN",
+            factor_names(model)
+        ));
+    }
+    mapping.sort_by_key(|(f, _)| *f);
+    Ok(mapping)
+}
+
+/// The parameters `--fix` holds at their values in the file.
+fn fixed_params(args: &FitArgs, model: &Model) -> Result<Vec<ParamId>, String> {
+    args.fixed
+        .iter()
+        .map(|name| {
+            model
+                .param_id(name)
+                .ok_or_else(|| format!("--fix `{name}`: the model has no parameter of that name"))
+        })
+        .collect()
+}
+
+/// The observed factors' columns in clock units.
+fn series(model: &Model, table: &Table, factors: &[FactorId]) -> Series {
+    Series {
+        times: table.times.clone(),
+        values: table
+            .values
+            .iter()
+            .zip(factors)
+            .map(|(column, &f)| {
+                let scale = model.factors[f].scale;
+                column.iter().map(|v| v.map(|x| x * scale)).collect()
+            })
+            .collect(),
+    }
+}
+
+/// A failed fit as a data error, at the line and column of an observation outside the
+/// family's domain.
+fn fit_error(e: &FitError, table: &Table, columns: &[String]) -> DataError {
+    let (line, column) = match e {
+        FitError::OutsideDomain {
+            column,
+            observation,
+            ..
+        } => (
+            table.lines.get(*observation).copied(),
+            columns.get(*column).cloned(),
+        ),
+        _ => (None, None),
+    };
+    DataError {
+        line,
+        column,
+        message: e.to_string(),
+    }
+}
+
+/// `--check`: exit 1, naming each, when a value in the file lies outside the 99%
+/// interval of its estimate.
+fn disagreements(model: &Model, fit: &Fit, data_name: &str) -> ExitCode {
+    let outside: Vec<String> = fit
+        .estimates
+        .iter()
+        .filter_map(|e| {
+            let p = &model.params[e.param];
+            let (lo, hi) = e.interval(LEVEL_CHECKED);
+            outside(e, p.value, lo, hi).then(|| {
+                format!(
+                    "{} = {} in the file lies outside the 99% interval [{}, {}] of its \
+                     estimate from {data_name}",
+                    p.name,
+                    number::plain(p.written),
+                    number::plain(lo / p.scale),
+                    number::plain(hi / p.scale)
+                )
+            })
+        })
+        .collect();
+    if outside.is_empty() {
+        return ExitCode::SUCCESS;
+    }
+    for line in &outside {
+        eprintln!("sdeck: disagreement: {line}");
+    }
+    ExitCode::from(1)
 }
 
 /// Whether the file's value lies outside the interval [lo, hi] (clock units); never for an
@@ -279,7 +316,28 @@ impl Report<'_> {
         })
     }
 
+    /// The text report: what was fitted, the estimates, their notes and correlations.
     fn text(&self, data_name: &str) -> String {
+        let mut out = self.heading(data_name);
+        out.push_str(&self.estimates_text());
+        for i in sdeck_fit::written_in(self.model, self.factors) {
+            let p = &self.model.params[i];
+            if p.expr.is_some() {
+                out.push_str(&format!(
+                    "\n{} is written as an expression of other parameters: it is not estimated \
+                     itself but follows them, and --write leaves it as written\n",
+                    p.name
+                ));
+            }
+        }
+        if self.fit.estimates.len() > 1 {
+            out.push_str(&self.correlation_text());
+        }
+        out
+    }
+
+    /// The data, the laws and the fit's log-likelihood.
+    fn heading(&self, data_name: &str) -> String {
         let mut out = String::new();
         let t = self.table;
         out.push_str(&format!(
@@ -304,6 +362,11 @@ impl Report<'_> {
             number::plain(self.fit.loglik),
             number::plain(self.fit.aic)
         ));
+        out
+    }
+
+    /// The table of estimates, with the notes its marks call for.
+    fn estimates_text(&self) -> String {
         let mut rows = vec![[
             "parameter".to_string(),
             "unit".to_string(),
@@ -321,18 +384,19 @@ impl Report<'_> {
             let outside = outside(e, p.value, lo, hi);
             any_outside |= outside;
             any_at_bound |= e.at_bound;
+            let unknown = || "-".to_string();
             rows.push([
                 p.name.clone(),
                 p.unit_text.clone().unwrap_or_else(|| "1".to_string()),
                 number::plain(p.written),
                 number::plain(e.estimate / p.scale),
                 if e.at_bound {
-                    "-".to_string()
+                    unknown()
                 } else {
                     number::plain(e.se / p.scale)
                 },
                 if e.at_bound {
-                    "-".to_string()
+                    unknown()
                 } else {
                     format!(
                         "[{}, {}]",
@@ -350,7 +414,7 @@ impl Report<'_> {
                 .to_string(),
             ]);
         }
-        out.push_str(&table(&rows));
+        let mut out = table(&rows);
         if any_outside {
             out.push_str("\n* the value in the file lies outside the 95% interval\n");
         }
@@ -360,36 +424,29 @@ impl Report<'_> {
                  the estimate would lie beyond. No standard error is given there.\n",
             );
         }
-        for i in sdeck_fit::written_in(self.model, self.factors) {
-            let p = &self.model.params[i];
-            if p.expr.is_some() {
-                out.push_str(&format!(
-                    "\n{} is written as an expression of other parameters: it is not estimated \
-                     itself but follows them, and --write leaves it as written\n",
-                    p.name
-                ));
-            }
+        out
+    }
+
+    /// The correlation matrix of the estimates.
+    fn correlation_text(&self) -> String {
+        let mut out = "\ncorrelation of the estimates\n".to_string();
+        let names: Vec<String> = self
+            .fit
+            .estimates
+            .iter()
+            .map(|e| self.model.params[e.param].name.clone())
+            .collect();
+        let mut rows = vec![std::iter::once(String::new())
+            .chain(names.iter().cloned())
+            .collect::<Vec<_>>()];
+        for (name, row) in names.iter().zip(&self.fit.correlation) {
+            rows.push(
+                std::iter::once(name.clone())
+                    .chain(row.iter().map(|c| format!("{c:.3}")))
+                    .collect(),
+            );
         }
-        if self.fit.estimates.len() > 1 {
-            out.push_str("\ncorrelation of the estimates\n");
-            let names: Vec<String> = self
-                .fit
-                .estimates
-                .iter()
-                .map(|e| self.model.params[e.param].name.clone())
-                .collect();
-            let mut rows = vec![std::iter::once(String::new())
-                .chain(names.iter().cloned())
-                .collect::<Vec<_>>()];
-            for (name, row) in names.iter().zip(&self.fit.correlation) {
-                rows.push(
-                    std::iter::once(name.clone())
-                        .chain(row.iter().map(|c| format!("{c:.3}")))
-                        .collect(),
-                );
-            }
-            out.push_str(&table(&rows));
-        }
+        out.push_str(&table(&rows));
         out
     }
 }

@@ -138,43 +138,8 @@ pub fn read(text: &str, model: &Model, columns: &[String]) -> Result<Table, Data
                 .to_string(),
         ));
     }
-    let find = |wanted: &str| names.iter().position(|n| n.eq_ignore_ascii_case(wanted));
-    let time = match (find("date"), find("t")) {
-        (Some(i), _) => TimeColumn::Date(i),
-        (None, Some(i)) => TimeColumn::Clock(i),
-        (None, None) => {
-            return Err(DataError {
-                line: Some(1),
-                column: None,
-                message: format!(
-                    "the header ({}) has no time column: name one `date` (ISO 8601 dates, \
-                     2024-03-28) or `t` (times in clock units, {})",
-                    names.join(", "),
-                    model.clock.unit
-                ),
-            })
-        }
-    };
-    let mut wanted = Vec::with_capacity(columns.len());
-    for c in columns {
-        match names.iter().position(|n| n == c) {
-            Some(i) => wanted.push(i),
-            None => {
-                return Err(DataError {
-                    line: Some(1),
-                    column: Some(c.clone()),
-                    message: format!(
-                        "no such column; the header has {}",
-                        names
-                            .iter()
-                            .map(|n| format!("`{n}`"))
-                            .collect::<Vec<_>>()
-                            .join(", ")
-                    ),
-                })
-            }
-        }
-    }
+    let mut clock = Times::new(time_column(&names, model)?, &names, model);
+    let wanted = wanted_columns(&names, columns)?;
     let mut reader = csv::ReaderBuilder::new()
         .delimiter(delimiter)
         .has_headers(true)
@@ -188,89 +153,14 @@ pub fn read(text: &str, model: &Model, columns: &[String]) -> Result<Table, Data
         values: vec![Vec::new(); wanted.len()],
         skipped: 0,
     };
-    let (time_index, time_name) = match time {
-        TimeColumn::Date(i) | TimeColumn::Clock(i) => (i, names[i].clone()),
-    };
-    let mut first_date: Option<NaiveDate> = None;
-    let mut previous: Option<(f64, u64, String)> = None;
     for record in reader.records() {
-        let record = record.map_err(|e| match e.kind() {
-            csv::ErrorKind::UnequalLengths {
-                pos,
-                len,
-                expected_len,
-            } => DataError {
-                line: pos.as_ref().map(|p| p.line()),
-                column: None,
-                message: format!(
-                    "the row has {len} cells and the header {expected_len}; a decimal \
-                     comma in a comma-separated file splits a number (use `.` or `;` as \
-                     the separator)"
-                ),
-            },
-            _ => DataError::whole(format!("cannot read the CSV: {e}")),
-        })?;
+        let record = record.map_err(record_error)?;
         let line = record.position().map(|p| p.line()).unwrap_or(0);
         if record.iter().all(|c| c.trim().is_empty()) {
             continue;
         }
-        let time_cell = record.get(time_index).unwrap_or("").trim();
-        if time_cell.is_empty() {
-            return Err(DataError::at(
-                line,
-                &time_name,
-                "the time is missing; every row needs one (drop the row instead)".to_string(),
-            ));
-        }
-        let t = match time {
-            TimeColumn::Date(_) => {
-                let date = NaiveDate::parse_from_str(time_cell, "%Y-%m-%d").map_err(|_| {
-                    DataError::at(
-                        line,
-                        &time_name,
-                        format!("`{time_cell}` is not an ISO 8601 date; write YYYY-MM-DD"),
-                    )
-                })?;
-                let start = *first_date.get_or_insert(date);
-                clock_between(start, date, model)
-            }
-            TimeColumn::Clock(_) => match cell(time_cell) {
-                Ok(Some(t)) => t,
-                _ => {
-                    return Err(DataError::at(
-                        line,
-                        &time_name,
-                        format!(
-                            "`{time_cell}` is not a time in clock units ({})",
-                            model.clock.unit
-                        ),
-                    ))
-                }
-            },
-        };
-        if let Some((before, before_line, before_text)) = &previous {
-            if t == *before {
-                return Err(DataError::at(
-                    line,
-                    &time_name,
-                    format!(
-                        "`{time_cell}` repeats the time of line {before_line}; keep one \
-                         observation per time"
-                    ),
-                ));
-            }
-            if t < *before {
-                return Err(DataError::at(
-                    line,
-                    &time_name,
-                    format!(
-                        "`{time_cell}` comes before `{before_text}` on line {before_line}; \
-                         sort the rows by time"
-                    ),
-                ));
-            }
-        }
-        previous = Some((t, line, time_cell.to_string()));
+        let time_cell = record.get(clock.index).unwrap_or("").trim();
+        let t = clock.read(line, time_cell)?;
         for (j, &column) in wanted.iter().enumerate() {
             let value = cell(record.get(column).unwrap_or(""))
                 .map_err(|message| DataError::at(line, &names[column], message))?;
@@ -284,6 +174,160 @@ pub fn read(text: &str, model: &Model, columns: &[String]) -> Result<Table, Data
         table.lines.push(line);
     }
     Ok(table)
+}
+
+/// The time column of the header: `date`, else `t`.
+fn time_column(names: &[String], model: &Model) -> Result<TimeColumn, DataError> {
+    let find = |wanted: &str| names.iter().position(|n| n.eq_ignore_ascii_case(wanted));
+    match (find("date"), find("t")) {
+        (Some(i), _) => Ok(TimeColumn::Date(i)),
+        (None, Some(i)) => Ok(TimeColumn::Clock(i)),
+        (None, None) => Err(DataError {
+            line: Some(1),
+            column: None,
+            message: format!(
+                "the header ({}) has no time column: name one `date` (ISO 8601 dates, \
+                 2024-03-28) or `t` (times in clock units, {})",
+                names.join(", "),
+                model.clock.unit
+            ),
+        }),
+    }
+}
+
+/// The place in the header of each wanted value column.
+fn wanted_columns(names: &[String], columns: &[String]) -> Result<Vec<usize>, DataError> {
+    columns
+        .iter()
+        .map(|c| {
+            names.iter().position(|n| n == c).ok_or_else(|| DataError {
+                line: Some(1),
+                column: Some(c.clone()),
+                message: format!(
+                    "no such column; the header has {}",
+                    names
+                        .iter()
+                        .map(|n| format!("`{n}`"))
+                        .collect::<Vec<_>>()
+                        .join(", ")
+                ),
+            })
+        })
+        .collect()
+}
+
+/// A row the CSV reader refused, explained.
+fn record_error(e: csv::Error) -> DataError {
+    match e.kind() {
+        csv::ErrorKind::UnequalLengths {
+            pos,
+            len,
+            expected_len,
+        } => DataError {
+            line: pos.as_ref().map(|p| p.line()),
+            column: None,
+            message: format!(
+                "the row has {len} cells and the header {expected_len}; a decimal \
+                 comma in a comma-separated file splits a number (use `.` or `;` as \
+                 the separator)"
+            ),
+        },
+        _ => DataError::whole(format!("cannot read the CSV: {e}")),
+    }
+}
+
+/// The time column as it is read row by row: each cell in clock units, the times
+/// strictly increasing.
+struct Times<'a> {
+    column: TimeColumn,
+    /// Its place in the header, and its name.
+    index: usize,
+    name: String,
+    model: &'a Model,
+    /// The first date, from which dates count.
+    first_date: Option<NaiveDate>,
+    /// The previous row's time, line and cell.
+    previous: Option<(f64, u64, String)>,
+}
+
+impl<'a> Times<'a> {
+    fn new(column: TimeColumn, names: &[String], model: &'a Model) -> Times<'a> {
+        let index = match column {
+            TimeColumn::Date(i) | TimeColumn::Clock(i) => i,
+        };
+        Times {
+            column,
+            index,
+            name: names[index].clone(),
+            model,
+            first_date: None,
+            previous: None,
+        }
+    }
+
+    /// The time of the row at `line` whose time cell is `cell`, in clock units.
+    fn read(&mut self, line: u64, cell_text: &str) -> Result<f64, DataError> {
+        if cell_text.is_empty() {
+            return Err(DataError::at(
+                line,
+                &self.name,
+                "the time is missing; every row needs one (drop the row instead)".to_string(),
+            ));
+        }
+        let t = self.value(line, cell_text)?;
+        if let Some((before, before_line, before_text)) = &self.previous {
+            if t == *before {
+                return Err(DataError::at(
+                    line,
+                    &self.name,
+                    format!(
+                        "`{cell_text}` repeats the time of line {before_line}; keep one \
+                         observation per time"
+                    ),
+                ));
+            }
+            if t < *before {
+                return Err(DataError::at(
+                    line,
+                    &self.name,
+                    format!(
+                        "`{cell_text}` comes before `{before_text}` on line {before_line}; \
+                         sort the rows by time"
+                    ),
+                ));
+            }
+        }
+        self.previous = Some((t, line, cell_text.to_string()));
+        Ok(t)
+    }
+
+    /// A time cell in clock units: a date counted from the first, or a number.
+    fn value(&mut self, line: u64, cell_text: &str) -> Result<f64, DataError> {
+        match self.column {
+            TimeColumn::Date(_) => {
+                let date = NaiveDate::parse_from_str(cell_text, "%Y-%m-%d").map_err(|_| {
+                    DataError::at(
+                        line,
+                        &self.name,
+                        format!("`{cell_text}` is not an ISO 8601 date; write YYYY-MM-DD"),
+                    )
+                })?;
+                let start = *self.first_date.get_or_insert(date);
+                Ok(clock_between(start, date, self.model))
+            }
+            TimeColumn::Clock(_) => match cell(cell_text) {
+                Ok(Some(t)) => Ok(t),
+                _ => Err(DataError::at(
+                    line,
+                    &self.name,
+                    format!(
+                        "`{cell_text}` is not a time in clock units ({})",
+                        self.model.clock.unit
+                    ),
+                )),
+            },
+        }
+    }
 }
 
 /// Clock units between two dates: calendar days / 365 years, or Monday-to-Friday days

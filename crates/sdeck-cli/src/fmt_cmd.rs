@@ -121,56 +121,19 @@ pub fn run(args: FmtArgs) -> ExitCode {
     let mut unformatted = 0;
     let mut failed = 0;
     for path in &paths {
-        let shown = path.display();
-        let bytes = std::fs::File::open(path).and_then(crate::files::read_bounded);
-        if let Ok(bytes) = &bytes {
-            if bytes.len() > sdeck_syntax::MAX_FILE_BYTES {
-                eprintln!(
-                    "sdeck: `{shown}` is larger than the {} MiB a model file may hold; left \
-                     unchanged",
-                    sdeck_syntax::MAX_FILE_BYTES >> 20
-                );
-                failed += 1;
-                continue;
-            }
-        }
-        let text = match bytes.map(String::from_utf8) {
-            Ok(Ok(text)) => text,
-            Ok(Err(_)) => {
-                eprintln!("sdeck: `{shown}` is not UTF-8 text; left unchanged");
-                failed += 1;
-                continue;
-            }
-            Err(e) => {
-                eprintln!("sdeck: cannot read `{shown}`: {e}");
-                failed += 1;
-                continue;
+        let done = match read_model_text(path) {
+            Ok(text) => format_one(&args, path, &text),
+            Err(message) => {
+                eprintln!("sdeck: {message}");
+                Done::Failed
             }
         };
-        match sdeck_format::format(&text) {
-            Outcome::Formatted(formatted) if formatted == text => {}
-            Outcome::Formatted(formatted) => {
+        match done {
+            Done::AsIs => {}
+            Done::Unformatted => unformatted += 1,
+            Done::Failed => failed += 1,
+            Done::UnformattedUnwritten => {
                 unformatted += 1;
-                if args.check {
-                    outln!("{shown}: not formatted");
-                } else if args.diff {
-                    out!("{}", unified_diff(&shown.to_string(), &text, &formatted));
-                } else if let Err(e) = std::fs::write(path, formatted) {
-                    eprintln!("sdeck: cannot write `{shown}`: {e}");
-                    failed += 1;
-                } else {
-                    outln!("{shown}: formatted");
-                }
-            }
-            Outcome::SyntaxErrors { count } => {
-                eprintln!(
-                    "sdeck: `{shown}` has {count} syntax error{}; left unchanged (`sdeck check` shows them)",
-                    if count == 1 { "" } else { "s" }
-                );
-                failed += 1;
-            }
-            Outcome::Refused { reason } => {
-                eprintln!("sdeck: `{shown}` left unchanged: {reason}");
                 failed += 1;
             }
         }
@@ -181,5 +144,69 @@ pub fn run(args: FmtArgs) -> ExitCode {
         ExitCode::from(1)
     } else {
         ExitCode::SUCCESS
+    }
+}
+
+/// What became of one file.
+enum Done {
+    /// Formatted already (or left as it was).
+    AsIs,
+    /// Not formatted: reported, shown as a diff or rewritten.
+    Unformatted,
+    /// Not formatted, and rewriting it failed.
+    UnformattedUnwritten,
+    /// Unreadable, too large, not UTF-8, or not formattable.
+    Failed,
+}
+
+/// The text of a model file; the message when it is too large, not UTF-8 or unreadable.
+fn read_model_text(path: &std::path::Path) -> Result<String, String> {
+    let shown = path.display();
+    let bytes = std::fs::File::open(path).and_then(crate::files::read_bounded);
+    if let Ok(bytes) = &bytes {
+        if bytes.len() > sdeck_syntax::MAX_FILE_BYTES {
+            return Err(format!(
+                "`{shown}` is larger than the {} MiB a model file may hold; left unchanged",
+                sdeck_syntax::MAX_FILE_BYTES >> 20
+            ));
+        }
+    }
+    match bytes.map(String::from_utf8) {
+        Ok(Ok(text)) => Ok(text),
+        Ok(Err(_)) => Err(format!("`{shown}` is not UTF-8 text; left unchanged")),
+        Err(e) => Err(format!("cannot read `{shown}`: {e}")),
+    }
+}
+
+/// Formats one file's `text`: reports it (`--check`), prints the diff (`--diff`) or
+/// rewrites the file.
+fn format_one(args: &FmtArgs, path: &std::path::Path, text: &str) -> Done {
+    let shown = path.display();
+    match sdeck_format::format(text) {
+        Outcome::Formatted(formatted) if formatted == text => Done::AsIs,
+        Outcome::Formatted(formatted) => {
+            if args.check {
+                outln!("{shown}: not formatted");
+            } else if args.diff {
+                out!("{}", unified_diff(&shown.to_string(), text, &formatted));
+            } else if let Err(e) = std::fs::write(path, formatted) {
+                eprintln!("sdeck: cannot write `{shown}`: {e}");
+                return Done::UnformattedUnwritten;
+            } else {
+                outln!("{shown}: formatted");
+            }
+            Done::Unformatted
+        }
+        Outcome::SyntaxErrors { count } => {
+            eprintln!(
+                "sdeck: `{shown}` has {count} syntax error{}; left unchanged (`sdeck check` shows them)",
+                if count == 1 { "" } else { "s" }
+            );
+            Done::Failed
+        }
+        Outcome::Refused { reason } => {
+            eprintln!("sdeck: `{shown}` left unchanged: {reason}");
+            Done::Failed
+        }
     }
 }

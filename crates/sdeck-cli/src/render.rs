@@ -170,32 +170,60 @@ pub fn human(
 ) -> std::io::Result<()> {
     let shown = Escaped::new(text);
     let mut files = SimpleFiles::new();
-    let id = files.add(escape(path), shown.text.as_str());
+    let snippets = Snippets {
+        id: files.add(escape(path), shown.text.as_str()),
+        path,
+        text,
+        shown: &shown,
+        index: LineIndex::new(text),
+    };
     let config = term::Config::default();
-    let clamp = |r: &std::ops::Range<usize>| {
-        let start = r.start.min(text.len());
-        let end = r.end.clamp(start, text.len());
-        shown.offset(start)..shown.offset(end)
-    };
-    let index = LineIndex::new(text);
-    let line_of = |d: &Diagnostic| {
-        index
-            .line_col(text, d.span.start.min(text.len()), Encoding::Utf8)
-            .line
-    };
     let mut on_line: std::collections::HashMap<u32, usize> = std::collections::HashMap::new();
     for d in diagnostics {
-        let line = line_of(d);
+        let line = snippets.line_of(d);
         let count = on_line.entry(line).or_insert(0);
         *count += 1;
         if *count > MAX_SNIPPETS_PER_LINE {
             continue;
         }
+        let report = snippets.report(d);
+        emit_with_level_word(out, &config, &files, &report, d.severity)?;
+    }
+    crowded_lines(out, path, on_line)
+}
+
+/// What the snippets of one file are cut from: its text, and that text as printed.
+struct Snippets<'a> {
+    id: usize,
+    path: &'a str,
+    text: &'a str,
+    shown: &'a Escaped,
+    index: LineIndex,
+}
+
+impl Snippets<'_> {
+    /// The 0-based line a diagnostic starts on.
+    fn line_of(&self, d: &Diagnostic) -> u32 {
+        let start = d.span.start.min(self.text.len());
+        self.index.line_col(self.text, start, Encoding::Utf8).line
+    }
+
+    /// A byte span of the text as a span of the printed text (clamped to the text).
+    fn clamp(&self, r: &std::ops::Range<usize>) -> std::ops::Range<usize> {
+        let start = r.start.min(self.text.len());
+        let end = r.end.clamp(start, self.text.len());
+        self.shown.offset(start)..self.shown.offset(end)
+    }
+
+    /// One finding as a snippet report: its labels (or an excerpt, for a span too long
+    /// to underline), its notes and help.
+    fn report(&self, d: &Diagnostic) -> Report<usize> {
+        let (id, path) = (self.id, self.path);
         let mut labels = Vec::new();
         let mut excerpts = Vec::new();
-        match excerpt(text, &index, &d.span) {
+        match excerpt(self.text, &self.index, &d.span) {
             None => {
-                let mut primary = Label::primary(id, clamp(&d.span));
+                let mut primary = Label::primary(id, self.clamp(&d.span));
                 if let Some(label) = &d.label {
                     primary = primary.with_message(escape(label));
                 }
@@ -204,9 +232,10 @@ pub fn human(
             Some(cut) => excerpts.push(format!("at {}:{cut}", escape(path))),
         }
         for r in &d.related {
-            match excerpt(text, &index, &r.span) {
-                None => labels
-                    .push(Label::secondary(id, clamp(&r.span)).with_message(escape(&r.message))),
+            match excerpt(self.text, &self.index, &r.span) {
+                None => labels.push(
+                    Label::secondary(id, self.clamp(&r.span)).with_message(escape(&r.message)),
+                ),
                 Some(cut) => {
                     excerpts.push(format!("{}: {}:{cut}", escape(&r.message), escape(path)))
                 }
@@ -217,13 +246,20 @@ pub fn human(
         if let Some(help) = &d.help {
             notes.push(format!("help: {}", escape(help)));
         }
-        let report = Report::new(report_severity(d.severity))
+        Report::new(report_severity(d.severity))
             .with_code(d.rule.name())
             .with_message(escape(&d.message))
             .with_labels(labels)
-            .with_notes(notes);
-        emit_with_level_word(out, &config, &files, &report, d.severity)?;
+            .with_notes(notes)
     }
+}
+
+/// A note per line with more findings than [`MAX_SNIPPETS_PER_LINE`]: how many more.
+fn crowded_lines(
+    out: &mut dyn WriteColor,
+    path: &str,
+    on_line: std::collections::HashMap<u32, usize>,
+) -> std::io::Result<()> {
     let mut crowded: Vec<(u32, usize)> = on_line
         .into_iter()
         .filter(|(_, n)| *n > MAX_SNIPPETS_PER_LINE)

@@ -248,73 +248,93 @@ fn square_root_curvature_chunk(v: &OneStateValues, steps: &[Transition]) -> Curv
         let Some(run) = steps.get(start..end) else {
             return Curvature::nan();
         };
-        let [f0, f1, f2] = phi_and_derivatives(b, dt);
-        let c = 2.0 / (beta * f0);
-        let half_decay = (0.5 * b * dt).exp();
-        // Value, gradient and Hessian in w = (q, C, e), summed over the run.
-        let mut value = 0.0;
-        let mut g = [0.0; 3];
-        let mut h = [[0.0; 3]; 3];
-        for s in run {
-            if !(s.x > 0.0 && s.y > 0.0) {
-                return Curvature::nan();
-            }
-            let root_x = s.sqrt_x * half_decay;
-            let gap = s.sqrt_y - root_x;
-            let z = 2.0 * c * s.sqrt_xy * half_decay;
-            let bessel = ln_bessel_i_scaled_derivatives(q, z);
-            let tilt = s.ln_ratio - b * dt;
-            let spread = c * gap * gap;
-            value += c.ln() - spread + 0.5 * q * tilt + bessel.value;
-            let zl = bessel.d_z * z;
-            let zzl = bessel.d_z_z * z * z + zl;
-            let pull = 2.0 * c * gap * root_x;
-            g[0] += 0.5 * tilt + bessel.d_nu;
-            g[1] += 1.0 - spread + zl;
-            g[2] += pull - q + zl;
-            h[0][0] += bessel.d_nu_nu;
-            h[0][1] += bessel.d_nu_z * z;
-            h[0][2] += bessel.d_nu_z * z - 1.0;
-            h[1][1] += zzl - spread;
-            h[1][2] += zzl + pull;
-            h[2][2] += zzl + 2.0 * c * root_x * (gap - root_x);
-        }
-        h[1][0] = h[0][1];
-        h[2][0] = h[0][2];
-        h[2][1] = h[1][2];
-        // Jacobian of w in (a, b, β) and the second derivatives of each w.
-        let jacobian = [
-            [2.0 / beta, 0.0, -2.0 * a / (beta * beta)],
-            [0.0, -f1 / f0, -1.0 / beta],
-            [0.0, 0.5 * dt, 0.0],
-        ];
-        let mut second = [[[0.0; 3]; 3]; 3];
-        second[0][0][2] = -2.0 / (beta * beta);
-        second[0][2][0] = second[0][0][2];
-        second[0][2][2] = 4.0 * a / (beta * beta * beta);
-        second[1][1][1] = -(f2 / f0 - (f1 / f0).powi(2));
-        second[1][2][2] = 1.0 / (beta * beta);
-        let mut part = Curvature {
-            value,
-            ..Curvature::default()
+        let f = phi_and_derivatives(b, dt);
+        let c = 2.0 / (beta * f[0]);
+        let Some(in_w) = square_root_run(run, q, b, c, dt) else {
+            return Curvature::nan();
         };
-        for i in 0..3 {
-            part.gradient[i] = (0..3).map(|k| g[k] * jacobian[k][i]).sum();
-            for j in 0..3 {
-                part.hessian[i][j] = (0..3)
-                    .map(|k| {
-                        (0..3)
-                            .map(|l| jacobian[k][i] * h[k][l] * jacobian[l][j])
-                            .sum::<f64>()
-                            + g[k] * second[k][i][j]
-                    })
-                    .sum();
-            }
-        }
-        total.add(&part);
+        total.add(&square_root_chain(&in_w, a, beta, dt, f));
         start = end;
     }
     total
+}
+
+/// Value, gradient and Hessian of the log-likelihood of a run of steps of one length
+/// `dt`, in w = (q, C, e) (e the exponent ½·b·dt); `None` when a value is not positive.
+fn square_root_run(run: &[Transition], q: f64, b: f64, c: f64, dt: f64) -> Option<Curvature> {
+    let half_decay = (0.5 * b * dt).exp();
+    let mut value = 0.0;
+    let mut g = [0.0; 3];
+    let mut h = [[0.0; 3]; 3];
+    for s in run {
+        if !(s.x > 0.0 && s.y > 0.0) {
+            return None;
+        }
+        let root_x = s.sqrt_x * half_decay;
+        let gap = s.sqrt_y - root_x;
+        let z = 2.0 * c * s.sqrt_xy * half_decay;
+        let bessel = ln_bessel_i_scaled_derivatives(q, z);
+        let tilt = s.ln_ratio - b * dt;
+        let spread = c * gap * gap;
+        value += c.ln() - spread + 0.5 * q * tilt + bessel.value;
+        let zl = bessel.d_z * z;
+        let zzl = bessel.d_z_z * z * z + zl;
+        let pull = 2.0 * c * gap * root_x;
+        g[0] += 0.5 * tilt + bessel.d_nu;
+        g[1] += 1.0 - spread + zl;
+        g[2] += pull - q + zl;
+        h[0][0] += bessel.d_nu_nu;
+        h[0][1] += bessel.d_nu_z * z;
+        h[0][2] += bessel.d_nu_z * z - 1.0;
+        h[1][1] += zzl - spread;
+        h[1][2] += zzl + pull;
+        h[2][2] += zzl + 2.0 * c * root_x * (gap - root_x);
+    }
+    h[1][0] = h[0][1];
+    h[2][0] = h[0][2];
+    h[2][1] = h[1][2];
+    Some(Curvature {
+        value,
+        gradient: g,
+        hessian: h,
+    })
+}
+
+/// The derivatives of a run in w = (q, C, e) carried to (a, b, β) by the chain rule;
+/// `f` is φ(b, dt) with its first two derivatives in b.
+fn square_root_chain(w: &Curvature, a: f64, beta: f64, dt: f64, f: [f64; 3]) -> Curvature {
+    let [f0, f1, f2] = f;
+    let (g, h) = (&w.gradient, &w.hessian);
+    // Jacobian of w in (a, b, β) and the second derivatives of each w.
+    let jacobian = [
+        [2.0 / beta, 0.0, -2.0 * a / (beta * beta)],
+        [0.0, -f1 / f0, -1.0 / beta],
+        [0.0, 0.5 * dt, 0.0],
+    ];
+    let mut second = [[[0.0; 3]; 3]; 3];
+    second[0][0][2] = -2.0 / (beta * beta);
+    second[0][2][0] = second[0][0][2];
+    second[0][2][2] = 4.0 * a / (beta * beta * beta);
+    second[1][1][1] = -(f2 / f0 - (f1 / f0).powi(2));
+    second[1][2][2] = 1.0 / (beta * beta);
+    let mut part = Curvature {
+        value: w.value,
+        ..Curvature::default()
+    };
+    for i in 0..3 {
+        part.gradient[i] = (0..3).map(|k| g[k] * jacobian[k][i]).sum();
+        for j in 0..3 {
+            part.hessian[i][j] = (0..3)
+                .map(|k| {
+                    (0..3)
+                        .map(|l| jacobian[k][i] * h[k][l] * jacobian[l][j])
+                        .sum::<f64>()
+                        + g[k] * second[k][i][j]
+                })
+                .sum();
+        }
+    }
+    part
 }
 
 /// Whether an observed value lies in the family's domain; the reason when not.

@@ -78,6 +78,9 @@ fn described(existing: Option<&str>, note: &str) -> String {
     }
 }
 
+/// An edit of the source: the bytes replaced and their replacement.
+type Edit = (std::ops::Range<usize>, String);
+
 /// The rewritten file, or why nothing may be written (syntax errors, an estimate that
 /// breaks a declared bound, a result that does not read back cleanly).
 pub fn rewrite(
@@ -92,7 +95,7 @@ pub fn rewrite(
         return Err("the model has errors".to_string());
     }
     let file = &before.file;
-    let mut edits: Vec<(std::ops::Range<usize>, String)> = Vec::new();
+    let mut edits: Vec<Edit> = Vec::new();
     for r in rewrites {
         let p = model
             .params
@@ -123,39 +126,10 @@ pub fn rewrite(
                 source.get(declaration.value_span()).unwrap_or("").trim()
             ));
         };
-        let written = r.value / p.scale;
-        let se = r.se / p.scale;
+        let (written, se) = (r.value / p.scale, r.se / p.scale);
         let original = number.text.as_str();
-        // More decimals until the rounded value keeps the bound (0 for a `> 0`).
-        let mut text = styled(original, written, se, 0);
-        for extra in 1..12 {
-            let value = sdeck_syntax::parse(&format!("param x = {text}\n"))
-                .statements
-                .first()
-                .and_then(|s| match &s.kind {
-                    StatementKind::Param(d) => d.literal().map(|n| n.value * p.scale),
-                    _ => None,
-                });
-            if value.is_some_and(|v| p.bound.as_ref().is_none_or(|b| b.contains(v))) {
-                break;
-            }
-            text = styled(original, written, se, extra);
-        }
-        // Keep the columns of a hand-aligned file: the spaces after the number absorb the
-        // change of width (at least one stays).
-        let span = number.span.clone();
-        let after = &source[span.end..];
-        let spaces = after.chars().take_while(|c| *c == ' ').count();
-        let at_line_end = matches!(after[spaces..].chars().next(), None | Some('\n' | '\r'));
-        let spaces = if at_line_end { 0 } else { spaces };
-        let old_width = span.end - span.start + spaces;
-        let padded = if spaces > 0 {
-            let pad = old_width.saturating_sub(text.len()).max(1);
-            format!("{text}{}", " ".repeat(pad))
-        } else {
-            text
-        };
-        edits.push((span.start..span.end + spaces, padded));
+        let text = keeping_bound(original, written, se, p);
+        edits.push(number_edit(source, number.span.clone(), text));
         let unit = p
             .unit_text
             .as_deref()
@@ -167,34 +141,91 @@ pub fn rewrite(
             note.data,
             styled(original, se, se, 0)
         );
-        let line_end = source[statement.span.end..]
-            .find('\n')
-            .map(|i| statement.span.end + i)
-            .unwrap_or(source.len());
-        let trailing = file
-            .comments
+        edits.extend(note_edit(source, file, &statement.span, &note_text));
+    }
+    let text = applied(source, edits)?;
+    reads_back(&text, name, model, rewrites)?;
+    Ok(text)
+}
+
+/// The text of the estimate `written` (declared unit) in the style of `original`, with
+/// more decimals until the rounded value keeps the parameter's bound (0 for a `> 0`).
+fn keeping_bound(original: &str, written: f64, se: f64, p: &sdeck_semantics::Param) -> String {
+    let mut text = styled(original, written, se, 0);
+    for extra in 1..12 {
+        let value = sdeck_syntax::parse(&format!("param x = {text}\n"))
+            .statements
+            .first()
+            .and_then(|s| match &s.kind {
+                StatementKind::Param(d) => d.literal().map(|n| n.value * p.scale),
+                _ => None,
+            });
+        if value.is_some_and(|v| p.bound.as_ref().is_none_or(|b| b.contains(v))) {
+            break;
+        }
+        text = styled(original, written, se, extra);
+    }
+    text
+}
+
+/// The edit writing `text` over the number at `span`. It keeps the columns of a
+/// hand-aligned file: the spaces after the number absorb the change of width (at least
+/// one stays).
+fn number_edit(source: &str, span: std::ops::Range<usize>, text: String) -> Edit {
+    let after = &source[span.end..];
+    let spaces = after.chars().take_while(|c| *c == ' ').count();
+    let at_line_end = matches!(after[spaces..].chars().next(), None | Some('\n' | '\r'));
+    let spaces = if at_line_end { 0 } else { spaces };
+    let old_width = span.end - span.start + spaces;
+    let padded = if spaces > 0 {
+        let pad = old_width.saturating_sub(text.len()).max(1);
+        format!("{text}{}", " ".repeat(pad))
+    } else {
+        text
+    };
+    (span.start..span.end + spaces, padded)
+}
+
+/// The edit writing the note into the trailing comment of the statement at `statement`
+/// (after its description, replacing an earlier note), or a new comment; none when the
+/// comment is a directive (`# sdeck: ...`, `# expect: ...`), which is not a description
+/// and is left alone (a line holds one comment).
+fn note_edit(
+    source: &str,
+    file: &sdeck_syntax::ast::SourceFile,
+    statement: &std::ops::Range<usize>,
+    note_text: &str,
+) -> Option<Edit> {
+    let line_end = source[statement.end..]
+        .find('\n')
+        .map(|i| statement.end + i)
+        .unwrap_or(source.len());
+    let trailing = file
+        .comments
+        .iter()
+        .find(|c| c.trailing && c.span.start >= statement.end && c.span.start <= line_end);
+    let directive = |text: &str| {
+        let t = text.trim();
+        ["sdeck:", "expect:", "expect-next-line:"]
             .iter()
-            .find(|c| c.trailing && c.span.start >= statement.span.end && c.span.start <= line_end);
-        // A directive (`# sdeck: ...`, `# expect: ...`) is not a description: left alone,
-        // and the note is not written (a line holds one comment).
-        let directive = |text: &str| {
-            let t = text.trim();
-            ["sdeck:", "expect:", "expect-next-line:"]
-                .iter()
-                .any(|d| t.starts_with(d))
-        };
-        match trailing {
-            Some(comment) if directive(&comment.text) => {}
-            Some(comment) => {
-                let text = described(Some(&comment.text), &note_text);
-                edits.push((comment.span.clone(), format!("# {text}")));
-            }
-            None => {
-                let end = source[..line_end].trim_end_matches([' ', '\r']).len();
-                edits.push((end..end, format!("  # {note_text}")));
-            }
+            .any(|d| t.starts_with(d))
+    };
+    match trailing {
+        Some(comment) if directive(&comment.text) => None,
+        Some(comment) => {
+            let text = described(Some(&comment.text), note_text);
+            Some((comment.span.clone(), format!("# {text}")))
+        }
+        None => {
+            let end = source[..line_end].trim_end_matches([' ', '\r']).len();
+            Some((end..end, format!("  # {note_text}")))
         }
     }
+}
+
+/// `source` with the edits applied, re-laid out by the formatter if it was in its
+/// layout before.
+fn applied(source: &str, mut edits: Vec<Edit>) -> Result<String, String> {
     edits.sort_by_key(|edit| std::cmp::Reverse(edit.0.start));
     let mut text = source.to_string();
     for (span, replacement) in edits {
@@ -210,7 +241,13 @@ pub fn rewrite(
             text = f;
         }
     }
-    let after = analyze(&text, name);
+    Ok(text)
+}
+
+/// Whether the rewritten `text` analyses cleanly, still declares every rewritten
+/// parameter, and each rounded value keeps its bound.
+fn reads_back(text: &str, name: &str, model: &Model, rewrites: &[Rewrite]) -> Result<(), String> {
+    let after = analyze(text, name);
     if after.has_errors() {
         return Err("the rewritten file would not analyse cleanly".to_string());
     }
@@ -228,7 +265,7 @@ pub fn rewrite(
             ));
         }
     }
-    Ok(text)
+    Ok(())
 }
 
 #[cfg(test)]

@@ -126,89 +126,29 @@ pub(crate) enum Printed {
 
 /// The blocks of the output: runs of items without a blank line between them.
 fn layout(source: &str, file: &SourceFile) -> String {
-    // Order statements and own-line comments by position.
-    enum Piece<'a> {
-        Statement(usize, &'a Statement),
-        Comment(&'a Comment),
-    }
-    let mut pieces: Vec<(usize, Piece)> = Vec::new();
-    let mut used_comment = vec![false; file.comments.len()];
-    let mut inner_comments: Vec<Vec<usize>> = vec![Vec::new(); file.statements.len()];
-    let mut trailing_of: Vec<Option<usize>> = vec![None; file.statements.len()];
-    for (si, statement) in file.statements.iter().enumerate() {
-        let line_end = line_end(source, statement.span.end);
-        for (ci, comment) in file.comments.iter().enumerate() {
-            if comment.span.start >= statement.span.start && comment.span.start < statement.span.end
-            {
-                inner_comments[si].push(ci);
-                used_comment[ci] = true;
-            } else if comment.trailing
-                && comment.span.start >= statement.span.end
-                && comment.span.start <= line_end
-                && trailing_of[si].is_none()
-            {
-                trailing_of[si] = Some(ci);
-                used_comment[ci] = true;
-            }
-        }
-        pieces.push((statement.span.start, Piece::Statement(si, statement)));
-    }
-    for (ci, comment) in file.comments.iter().enumerate() {
-        if !used_comment[ci] {
-            pieces.push((comment.span.start, Piece::Comment(comment)));
-        }
-    }
-    pieces.sort_by_key(|(start, _)| *start);
-
     // Group into blocks at blank lines.
     let mut blocks: Vec<Vec<Item>> = Vec::new();
     let mut current: Vec<Item> = Vec::new();
     let mut previous_end: Option<usize> = None;
-    for (start, piece) in &pieces {
+    for (start, piece) in pieces(source, file) {
         if let Some(end) = previous_end {
-            if has_blank_line(source, end, *start) && !current.is_empty() {
+            if has_blank_line(source, end, start) && !current.is_empty() {
                 blocks.push(std::mem::take(&mut current));
             }
         }
-        match piece {
-            Piece::Comment(comment) => {
-                current.push(Item::Comment(
-                    text_of(source, comment.span.clone()).trim_end(),
-                ));
-                previous_end = Some(comment.span.end);
-            }
-            Piece::Statement(si, statement) => {
-                let si = *si;
-                let trailing = trailing_of
-                    .get(si)
-                    .copied()
-                    .flatten()
-                    .and_then(|ci| file.comments.get(ci));
-                let end = trailing.map(|c| c.span.end).unwrap_or(statement.span.end);
-                let inner: Vec<&Comment> = inner_comments
-                    .get(si)
-                    .into_iter()
-                    .flatten()
-                    .filter_map(|&ci| file.comments.get(ci))
-                    .collect();
-                let trailing_text = trailing.map(|c| text_of(source, c.span.clone()).trim_end());
-                if let Some(lines) = equation_over_lines(source, statement, &inner, trailing_text) {
-                    current.push(Item::Lines(lines));
-                    previous_end = Some(end);
-                } else if !inner.is_empty() {
-                    let stop = line_end(source, end);
-                    let text = text_of(source, statement.span.start..stop).trim_end();
-                    current.push(Item::Verbatim(text));
-                    previous_end = Some(stop);
-                } else {
-                    current.push(Item::Statement {
-                        printed: print::statement(source, &statement.kind),
-                        trailing: trailing_text,
-                    });
-                    previous_end = Some(end);
-                }
-            }
-        }
+        let (item, end) = match piece {
+            Piece::Comment(comment) => (
+                Item::Comment(text_of(source, comment.span.clone()).trim_end()),
+                comment.span.end,
+            ),
+            Piece::Statement {
+                statement,
+                inner,
+                trailing,
+            } => statement_item(source, statement, &inner, trailing),
+        };
+        current.push(item);
+        previous_end = Some(end);
     }
     if !current.is_empty() {
         blocks.push(current);
@@ -222,6 +162,82 @@ fn layout(source: &str, file: &SourceFile) -> String {
         write_block(&mut out, block);
     }
     out
+}
+
+/// A statement with the comments inside it and its trailing comment, or a comment on a
+/// line of its own.
+enum Piece<'a> {
+    Statement {
+        statement: &'a Statement,
+        inner: Vec<&'a Comment>,
+        trailing: Option<&'a Comment>,
+    },
+    Comment(&'a Comment),
+}
+
+/// The statements, with the comments each holds, and the own-line comments, ordered by
+/// position (each with its start).
+fn pieces<'a>(source: &str, file: &'a SourceFile) -> Vec<(usize, Piece<'a>)> {
+    let mut pieces: Vec<(usize, Piece)> = Vec::new();
+    let mut used_comment = vec![false; file.comments.len()];
+    for statement in &file.statements {
+        let line_end = line_end(source, statement.span.end);
+        let mut inner = Vec::new();
+        let mut trailing = None;
+        for (ci, comment) in file.comments.iter().enumerate() {
+            if comment.span.start >= statement.span.start && comment.span.start < statement.span.end
+            {
+                inner.push(comment);
+                used_comment[ci] = true;
+            } else if comment.trailing
+                && comment.span.start >= statement.span.end
+                && comment.span.start <= line_end
+                && trailing.is_none()
+            {
+                trailing = Some(comment);
+                used_comment[ci] = true;
+            }
+        }
+        let piece = Piece::Statement {
+            statement,
+            inner,
+            trailing,
+        };
+        pieces.push((statement.span.start, piece));
+    }
+    for (ci, comment) in file.comments.iter().enumerate() {
+        if !used_comment[ci] {
+            pieces.push((comment.span.start, Piece::Comment(comment)));
+        }
+    }
+    pieces.sort_by_key(|(start, _)| *start);
+    pieces
+}
+
+/// A statement as an item of the output, and where it ends in the source: an equation
+/// over several lines keeps its breaks, a statement with a comment inside is kept as
+/// written, any other is printed canonically.
+fn statement_item<'a>(
+    source: &'a str,
+    statement: &Statement,
+    inner: &[&Comment],
+    trailing: Option<&Comment>,
+) -> (Item<'a>, usize) {
+    let end = trailing.map(|c| c.span.end).unwrap_or(statement.span.end);
+    let trailing_text = trailing.map(|c| text_of(source, c.span.clone()).trim_end());
+    if let Some(lines) = equation_over_lines(source, statement, inner, trailing_text) {
+        (Item::Lines(lines), end)
+    } else if !inner.is_empty() {
+        let stop = line_end(source, end);
+        let text = text_of(source, statement.span.start..stop).trim_end();
+        (Item::Verbatim(text), stop)
+    } else {
+        let item = Item::Statement {
+            printed: print::statement(source, &statement.kind),
+            trailing: trailing_text,
+        };
+        (item, end)
+    }
 }
 
 /// An equation written over several lines whose every break falls between two of its

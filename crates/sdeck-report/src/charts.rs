@@ -120,7 +120,32 @@ fn known(times: &[f64], values: &[Option<f64>]) -> Vec<(f64, f64)> {
 impl FanChart<'_> {
     /// The chart as an `<svg>` element.
     pub fn svg(&self) -> String {
-        let col = |k: usize| -> Vec<f64> { self.simulated.iter().map(|q| q[k]).collect() };
+        let frame = self.frame();
+        let mut s = String::new();
+        self.axes(&mut s, &frame);
+        let median = self.bands(&mut s, &frame);
+        let mean = self.closed_form(&mut s, &frame);
+        // Mean and median named at their right ends, so a skewed law is read as such.
+        end_labels(
+            &mut s,
+            &frame,
+            [
+                ("mean", mean.last().map(|p| p.1), CLOSED),
+                ("median", median.last().copied(), BAND),
+            ],
+        );
+        legend(&mut s);
+        s.push_str("</svg>");
+        s
+    }
+
+    /// Simulated quantile `k` (0 to 4: 1, 5, 50, 95, 99%) per time.
+    fn column(&self, k: usize) -> Vec<f64> {
+        self.simulated.iter().map(|q| q[k]).collect()
+    }
+
+    /// The values drawn, simulated and closed-form, padded.
+    fn frame(&self) -> Frame {
         let closed: Vec<f64> = [self.mean, self.low, self.median, self.high]
             .iter()
             .flat_map(|s| s.iter().flatten().copied())
@@ -142,7 +167,7 @@ impl FanChart<'_> {
         } else {
             0.05 * low.abs().max(1e-9)
         };
-        let frame = Frame {
+        Frame {
             t_end: self
                 .times
                 .last()
@@ -151,12 +176,16 @@ impl FanChart<'_> {
                 .unwrap_or(1.0),
             low: low - pad,
             high: high + pad,
-        };
+        }
+    }
+
+    /// The opening of the `<svg>`, its title, the grid under the data and the axes with
+    /// their titles.
+    fn axes(&self, s: &mut String, frame: &Frame) {
         let unit = match self.unit {
             Some(u) if !u.trim().is_empty() && u.trim() != "1" => u.trim().to_string(),
             _ => "no unit".to_string(),
         };
-        let mut s = String::new();
         let _ = write!(
             s,
             r#"<svg xmlns="http://www.w3.org/2000/svg" class="fan" viewBox="0 0 {WIDTH} {HEIGHT}" width="{WIDTH}" height="{HEIGHT}" role="img" aria-label="fan chart of {f}" font-family="sans-serif" font-size="12">"#,
@@ -209,9 +238,12 @@ impl FanChart<'_> {
             escape(self.factor),
             escape(&unit)
         );
-        // Simulated bands and median.
+    }
+
+    /// The simulated bands and median; the median per time.
+    fn bands(&self, s: &mut String, frame: &Frame) -> Vec<f64> {
         for (lower, upper, opacity) in [(0, 4, 0.16), (1, 3, 0.30)] {
-            let points = band(&frame, self.times, &col(lower), &col(upper));
+            let points = band(frame, self.times, &self.column(lower), &self.column(upper));
             if !points.is_empty() {
                 let _ = write!(
                     s,
@@ -219,16 +251,20 @@ impl FanChart<'_> {
                 );
             }
         }
-        let median = col(2);
+        let median = self.column(2);
         let sim_median = polyline(
-            &frame,
+            frame,
             self.times.iter().copied().zip(median.iter().copied()),
         );
         let _ = write!(
             s,
             r#"<polyline points="{sim_median}" fill="none" stroke="{BAND}" stroke-width="2"/>"#
         );
-        // The closed-form law over them.
+        median
+    }
+
+    /// The closed-form law over the bands; the points of its mean.
+    fn closed_form(&self, s: &mut String, frame: &Frame) -> Vec<(f64, f64)> {
         let mean = known(self.times, self.mean);
         for (series, dash, width) in [
             (known(self.times, self.low), "3 3", 1.4),
@@ -240,79 +276,76 @@ impl FanChart<'_> {
                 let _ = write!(
                     s,
                     r#"<polyline points="{}" fill="none" stroke="{CLOSED}" stroke-width="{width}" stroke-dasharray="{dash}"/>"#,
-                    polyline(&frame, series.into_iter())
+                    polyline(frame, series.into_iter())
                 );
             }
         }
-        // Mean and median named at their right ends, so a skewed law is read as such.
-        let ends = [
-            ("mean", mean.last().map(|p| p.1), CLOSED),
-            ("median", median.last().copied(), BAND),
-        ];
-        let mut used: Vec<f64> = Vec::new();
-        for (label, value, colour) in ends {
-            let Some(v) = value.filter(|v| v.is_finite()) else {
-                continue;
-            };
-            let mut y = frame.y(v) + 4.0;
-            if let Some(u) = used.iter().find(|u| (*u - y).abs() < 13.0) {
-                // Too close to a label already placed: stand clear of it on this side.
-                y = if y >= *u { u + 13.0 } else { u - 13.0 };
-            }
-            used.push(y);
-            let _ = write!(
-                s,
-                r#"<text x="{:.1}" y="{y:.1}" fill="{colour}">{label}</text>"#,
-                RIGHT + 5.0
-            );
+        mean
+    }
+}
+
+/// Labels at the right end of the plot, each clear of the ones placed before it.
+fn end_labels(s: &mut String, frame: &Frame, ends: [(&str, Option<f64>, &str); 2]) {
+    let mut used: Vec<f64> = Vec::new();
+    for (label, value, colour) in ends {
+        let Some(v) = value.filter(|v| v.is_finite()) else {
+            continue;
+        };
+        let mut y = frame.y(v) + 4.0;
+        if let Some(u) = used.iter().find(|u| (*u - y).abs() < 13.0) {
+            // Too close to a label already placed: stand clear of it on this side.
+            y = if y >= *u { u + 13.0 } else { u - 13.0 };
         }
-        // Legend, outside the data.
-        let lx = RIGHT + 58.0;
-        let entries: [(&str, String); 6] = [
-            (
-                "simulated 1–99%",
-                format!(
-                    r#"<rect width="18" height="10" y="-9" fill="{BAND}" fill-opacity="0.16"/>"#
-                ),
+        used.push(y);
+        let _ = write!(
+            s,
+            r#"<text x="{:.1}" y="{y:.1}" fill="{colour}">{label}</text>"#,
+            RIGHT + 5.0
+        );
+    }
+}
+
+/// The legend, outside the data.
+fn legend(s: &mut String) {
+    let lx = RIGHT + 58.0;
+    let entries: [(&str, String); 6] = [
+        (
+            "simulated 1–99%",
+            format!(r#"<rect width="18" height="10" y="-9" fill="{BAND}" fill-opacity="0.16"/>"#),
+        ),
+        (
+            "simulated 5–95%",
+            format!(r#"<rect width="18" height="10" y="-9" fill="{BAND}" fill-opacity="0.46"/>"#),
+        ),
+        (
+            "simulated median",
+            format!(r#"<line x2="18" y1="-4" y2="-4" stroke="{BAND}" stroke-width="2"/>"#),
+        ),
+        (
+            "closed-form mean",
+            format!(
+                r#"<line x2="18" y1="-4" y2="-4" stroke="{CLOSED}" stroke-width="2.2" stroke-dasharray="7 4"/>"#
             ),
-            (
-                "simulated 5–95%",
-                format!(
-                    r#"<rect width="18" height="10" y="-9" fill="{BAND}" fill-opacity="0.46"/>"#
-                ),
+        ),
+        (
+            "closed-form median",
+            format!(
+                r#"<line x2="18" y1="-4" y2="-4" stroke="{CLOSED}" stroke-width="1.6" stroke-dasharray="1 3"/>"#
             ),
-            (
-                "simulated median",
-                format!(r#"<line x2="18" y1="-4" y2="-4" stroke="{BAND}" stroke-width="2"/>"#),
+        ),
+        (
+            "closed-form 5–95%",
+            format!(
+                r#"<line x2="18" y1="-4" y2="-4" stroke="{CLOSED}" stroke-width="1.4" stroke-dasharray="3 3"/>"#
             ),
-            (
-                "closed-form mean",
-                format!(
-                    r#"<line x2="18" y1="-4" y2="-4" stroke="{CLOSED}" stroke-width="2.2" stroke-dasharray="7 4"/>"#
-                ),
-            ),
-            (
-                "closed-form median",
-                format!(
-                    r#"<line x2="18" y1="-4" y2="-4" stroke="{CLOSED}" stroke-width="1.6" stroke-dasharray="1 3"/>"#
-                ),
-            ),
-            (
-                "closed-form 5–95%",
-                format!(
-                    r#"<line x2="18" y1="-4" y2="-4" stroke="{CLOSED}" stroke-width="1.4" stroke-dasharray="3 3"/>"#
-                ),
-            ),
-        ];
-        for (k, (label, mark)) in entries.iter().enumerate() {
-            let y = TOP + 10.0 + 20.0 * k as f64;
-            let _ = write!(
-                s,
-                r#"<g transform="translate({lx} {y})">{mark}<text x="24">{label}</text></g>"#
-            );
-        }
-        s.push_str("</svg>");
-        s
+        ),
+    ];
+    for (k, (label, mark)) in entries.iter().enumerate() {
+        let y = TOP + 10.0 + 20.0 * k as f64;
+        let _ = write!(
+            s,
+            r#"<g transform="translate({lx} {y})">{mark}<text x="24">{label}</text></g>"#
+        );
     }
 }
 

@@ -8,33 +8,27 @@ use sdeck_semantics::Model;
 use sdeck_units::number::plain;
 use std::fmt::Write as _;
 
+const WIDTH: f64 = 720.0;
+const HEIGHT: f64 = 420.0;
+const LEFT: f64 = 80.0;
+const RIGHT: f64 = 30.0;
+const TOP: f64 = 40.0;
+const BOTTOM: f64 = 60.0;
+
 /// A line chart of yields and forwards (per cent per year) against maturity in years.
 pub fn yield_curve_svg(model: &Model, c: &Curve) -> String {
-    let (width, height) = (720.0, 420.0);
-    let (left, right, top, bottom) = (80.0, 30.0, 40.0, 60.0);
-    let years = model.clock.years;
-    let xs: Vec<f64> = c.points.iter().map(|p| p.maturity * years).collect();
-    let values: Vec<f64> = c
+    let (width, height, left) = (WIDTH, HEIGHT, LEFT);
+    let xs: Vec<f64> = c
         .points
         .iter()
-        .flat_map(|p| [p.yield_rate * 100.0, p.forward * 100.0])
-        .filter(|v| v.is_finite())
+        .map(|p| p.maturity * model.clock.years)
         .collect();
-    let x_max = xs.iter().copied().fold(0.0, f64::max).max(1e-9);
-    let mut y_min = values.iter().copied().fold(f64::INFINITY, f64::min);
-    let mut y_max = values.iter().copied().fold(f64::NEG_INFINITY, f64::max);
-    if !(y_min.is_finite() && y_max.is_finite()) {
-        (y_min, y_max) = (0.0, 1.0);
-    }
-    let pad = ((y_max - y_min) * 0.08).max(0.05);
-    let (y_min, y_max) = (y_min - pad, y_max + pad);
-    let px = |x: f64| left + x / x_max * (width - left - right);
-    let py = |y: f64| top + (y_max - y) / (y_max - y_min) * (height - top - bottom);
+    let plot = Plot::of(c, &xs);
     let line = |pick: &dyn Fn(usize) -> f64| -> String {
         xs.iter()
             .enumerate()
             .filter(|(i, _)| pick(*i).is_finite())
-            .map(|(i, x)| format!("{:.2},{:.2}", px(*x), py(pick(i))))
+            .map(|(i, x)| format!("{:.2},{:.2}", plot.px(*x), plot.py(pick(i))))
             .collect::<Vec<_>>()
             .join(" ")
     };
@@ -55,41 +49,8 @@ pub fn yield_curve_svg(model: &Model, c: &Curve) -> String {
             .as_ref()
             .map_or(String::new(), |m| format!(" ({})", m.measure.as_str()))
     );
-    let (x0, x1, y0, y1) = (left, width - right, top, height - bottom);
-    let _ = writeln!(
-        s,
-        r#"<path d="M{x0},{y0} L{x0},{y1} L{x1},{y1}" fill="none" stroke="black"/>"#
-    );
-    for k in 0..=5 {
-        let v = y_min + (y_max - y_min) * k as f64 / 5.0;
-        let _ = writeln!(
-            s,
-            r#"<text x="{:.1}" y="{:.1}" text-anchor="end">{:.2}</text>"#,
-            x0 - 6.0,
-            py(v) + 4.0,
-            v
-        );
-        let x = x_max * k as f64 / 5.0;
-        let _ = writeln!(
-            s,
-            r#"<text x="{:.1}" y="{:.1}" text-anchor="middle">{}</text>"#,
-            px(x),
-            y1 + 18.0,
-            plain((x * 100.0).round() / 100.0)
-        );
-    }
-    let _ = writeln!(
-        s,
-        r#"<text x="{:.1}" y="{:.1}" text-anchor="middle">maturity (year)</text>"#,
-        (x0 + x1) / 2.0,
-        height - 16.0
-    );
-    let _ = writeln!(
-        s,
-        r#"<text x="18" y="{:.1}" text-anchor="middle" transform="rotate(-90 18 {:.1})">rate (% per year, continuously compounded)</text>"#,
-        (y0 + y1) / 2.0,
-        (y0 + y1) / 2.0
-    );
+    plot.axes(&mut s);
+    let (x1, y0) = (WIDTH - RIGHT, TOP);
     let _ = writeln!(
         s,
         r##"<polyline points="{yields}" fill="none" stroke="#1f54a0" stroke-width="2"/>"##
@@ -108,4 +69,82 @@ pub fn yield_curve_svg(model: &Model, c: &Curve) -> String {
     );
     s.push_str("</svg>");
     s
+}
+
+/// The ranges drawn: maturities from 0 to `x_max` years, rates (per cent) from `y_min`
+/// to `y_max`, padded.
+struct Plot {
+    x_max: f64,
+    y_min: f64,
+    y_max: f64,
+}
+
+impl Plot {
+    fn of(c: &Curve, xs: &[f64]) -> Plot {
+        let values: Vec<f64> = c
+            .points
+            .iter()
+            .flat_map(|p| [p.yield_rate * 100.0, p.forward * 100.0])
+            .filter(|v| v.is_finite())
+            .collect();
+        let x_max = xs.iter().copied().fold(0.0, f64::max).max(1e-9);
+        let mut y_min = values.iter().copied().fold(f64::INFINITY, f64::min);
+        let mut y_max = values.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+        if !(y_min.is_finite() && y_max.is_finite()) {
+            (y_min, y_max) = (0.0, 1.0);
+        }
+        let pad = ((y_max - y_min) * 0.08).max(0.05);
+        Plot {
+            x_max,
+            y_min: y_min - pad,
+            y_max: y_max + pad,
+        }
+    }
+
+    fn px(&self, x: f64) -> f64 {
+        LEFT + x / self.x_max * (WIDTH - LEFT - RIGHT)
+    }
+
+    fn py(&self, y: f64) -> f64 {
+        TOP + (self.y_max - y) / (self.y_max - self.y_min) * (HEIGHT - TOP - BOTTOM)
+    }
+
+    /// The axes with their ticks and titles.
+    fn axes(&self, s: &mut String) {
+        let (x0, x1, y0, y1) = (LEFT, WIDTH - RIGHT, TOP, HEIGHT - BOTTOM);
+        let _ = writeln!(
+            s,
+            r#"<path d="M{x0},{y0} L{x0},{y1} L{x1},{y1}" fill="none" stroke="black"/>"#
+        );
+        for k in 0..=5 {
+            let v = self.y_min + (self.y_max - self.y_min) * k as f64 / 5.0;
+            let _ = writeln!(
+                s,
+                r#"<text x="{:.1}" y="{:.1}" text-anchor="end">{:.2}</text>"#,
+                x0 - 6.0,
+                self.py(v) + 4.0,
+                v
+            );
+            let x = self.x_max * k as f64 / 5.0;
+            let _ = writeln!(
+                s,
+                r#"<text x="{:.1}" y="{:.1}" text-anchor="middle">{}</text>"#,
+                self.px(x),
+                y1 + 18.0,
+                plain((x * 100.0).round() / 100.0)
+            );
+        }
+        let _ = writeln!(
+            s,
+            r#"<text x="{:.1}" y="{:.1}" text-anchor="middle">maturity (year)</text>"#,
+            (x0 + x1) / 2.0,
+            HEIGHT - 16.0
+        );
+        let _ = writeln!(
+            s,
+            r#"<text x="18" y="{:.1}" text-anchor="middle" transform="rotate(-90 18 {:.1})">rate (% per year, continuously compounded)</text>"#,
+            (y0 + y1) / 2.0,
+            (y0 + y1) / 2.0
+        );
+    }
 }

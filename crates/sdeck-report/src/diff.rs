@@ -449,61 +449,67 @@ pub fn to_text(diffs: &[ModelDiff]) -> String {
                 );
             }
         }
-        if !d.params.is_empty() {
-            s.push_str("  parameters:\n");
-            for p in &d.params {
-                let _ = writeln!(
-                    s,
-                    "    {}: {} → {}",
-                    p.name,
-                    written(&p.old, &d.clock),
-                    written(&p.new, &d.clock)
-                );
-            }
-        }
-        if !d.figures.is_empty() {
-            s.push_str("  figures at the horizon:\n");
-            for f in &d.figures {
-                let _ = writeln!(
-                    s,
-                    "    {} {}: {} → {} (change {}, {})",
-                    f.factor,
-                    f.figure,
-                    value_text(f, false),
-                    value_text(f, true),
-                    f.absolute_change().map_or("—".into(), plain),
-                    signed_percent(f.relative_change())
-                );
-            }
-        }
-        for (title, list) in [("introduced", &d.introduced), ("resolved", &d.resolved)] {
-            if !list.is_empty() {
-                let _ = writeln!(s, "  diagnostics {title}:");
-                for f in list.iter() {
-                    let _ = writeln!(
-                        s,
-                        "    {}:{} {} [{}]: {}",
-                        f.line,
-                        f.column,
-                        f.severity.as_str(),
-                        f.rule,
-                        f.message
-                    );
-                }
-            }
-        }
-        for e in &d.expectations {
-            let _ = writeln!(
-                s,
-                "  expectation `{}`: {} → {}",
-                e.text,
-                verdict(e.old),
-                verdict(e.new)
-            );
-        }
+        changes_text(&mut s, d);
         s.push('\n');
     }
     s
+}
+
+/// What changed between the versions of one model: parameters, figures, diagnostics
+/// and the verdicts of expectations.
+fn changes_text(s: &mut String, d: &ModelDiff) {
+    if !d.params.is_empty() {
+        s.push_str("  parameters:\n");
+        for p in &d.params {
+            let _ = writeln!(
+                s,
+                "    {}: {} → {}",
+                p.name,
+                written(&p.old, &d.clock),
+                written(&p.new, &d.clock)
+            );
+        }
+    }
+    if !d.figures.is_empty() {
+        s.push_str("  figures at the horizon:\n");
+        for f in &d.figures {
+            let _ = writeln!(
+                s,
+                "    {} {}: {} → {} (change {}, {})",
+                f.factor,
+                f.figure,
+                value_text(f, false),
+                value_text(f, true),
+                f.absolute_change().map_or("—".into(), plain),
+                signed_percent(f.relative_change())
+            );
+        }
+    }
+    for (title, list) in [("introduced", &d.introduced), ("resolved", &d.resolved)] {
+        if !list.is_empty() {
+            let _ = writeln!(s, "  diagnostics {title}:");
+            for f in list.iter() {
+                let _ = writeln!(
+                    s,
+                    "    {}:{} {} [{}]: {}",
+                    f.line,
+                    f.column,
+                    f.severity.as_str(),
+                    f.rule,
+                    f.message
+                );
+            }
+        }
+    }
+    for e in &d.expectations {
+        let _ = writeln!(
+            s,
+            "  expectation `{}`: {} → {}",
+            e.text,
+            verdict(e.old),
+            verdict(e.new)
+        );
+    }
 }
 
 /// The diff as GitHub-flavoured Markdown, for a pull-request comment.

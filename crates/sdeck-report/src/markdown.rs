@@ -1,7 +1,7 @@
 //! The review document as GitHub-flavoured Markdown: the same content as tables, no
 //! images, for a wiki page or a pull-request comment.
 
-use crate::data::{ModelReport, QUANTILE_LEVELS};
+use crate::data::{FactorReport, ModelReport, QUANTILE_LEVELS};
 use crate::review::Review;
 use crate::{formula_lines, DocumentInfo, CAUTION};
 use sdeck_units::number::{or_unknown, percent_or_unknown, plain, significant};
@@ -29,7 +29,20 @@ fn table(s: &mut String, head: &[&str], rows: &[Vec<String>]) {
     s.push('\n');
 }
 
+/// The sections of one model: parameters, each factor, the matrices at the horizon,
+/// the cross-check, the curve and the expectations.
 fn model(s: &mut String, review: &Review, r: &ModelReport) {
+    params(s, r);
+    for (i, f) in r.factors.iter().enumerate() {
+        factor(s, review, r, i, f);
+    }
+    matrices(s, r);
+    cross_check(s, review);
+    curve(s, review);
+    expectations(s, r);
+}
+
+fn params(s: &mut String, r: &ModelReport) {
     if !r.params.is_empty() {
         let _ = writeln!(s, "### Parameters\n");
         let rows: Vec<Vec<String>> = r
@@ -60,82 +73,89 @@ fn model(s: &mut String, review: &Review, r: &ModelReport) {
             &rows,
         );
     }
-    for (i, f) in r.factors.iter().enumerate() {
+}
+
+/// Factor `i`: its family and why, its formulas, its figures over the grid and its
+/// long-run behaviour.
+fn factor(s: &mut String, review: &Review, r: &ModelReport, i: usize, f: &FactorReport) {
+    let _ = writeln!(
+        s,
+        "### Factor {} — {}\n\n{}. Figures by {}{}.\n",
+        code(&f.name),
+        f.family.as_str(),
+        cell(&f.reason),
+        f.method.as_str(),
+        if f.exact { ", exact" } else { "" }
+    );
+    let rows: Vec<Vec<String>> = formula_lines(&f.formulas)
+        .into_iter()
+        .map(|(label, text)| vec![label.to_string(), code(text)])
+        .collect();
+    if !rows.is_empty() {
+        table(s, &["", "formula"], &rows);
+    }
+    let signs = review
+        .grid
+        .iter()
+        .any(|row| row.get(i).is_some_and(|g| g.sign_change.is_some()));
+    let mut head: Vec<String> = vec![format!("t ({})", r.clock), "mean".into(), "sd".into()];
+    head.extend(
+        QUANTILE_LEVELS
+            .iter()
+            .map(|p| format!("{}%", plain(p * 100.0))),
+    );
+    if signs {
+        head.push("P(sign differs from start)".into());
+    }
+    let rows: Vec<Vec<String>> = review
+        .grid
+        .iter()
+        .filter_map(|row| row.get(i))
+        .map(|g| {
+            let mut cells = vec![plain(g.at), or_unknown(g.mean), or_unknown(g.sd)];
+            cells.extend(QUANTILE_LEVELS.iter().map(|p| or_unknown(g.quantile(*p))));
+            if signs {
+                cells.push(or_unknown(g.sign_change));
+            }
+            cells
+        })
+        .collect();
+    let head_refs: Vec<&str> = head.iter().map(String::as_str).collect();
+    table(s, &head_refs, &rows);
+    if let Some(law) = f.figures.law {
+        let _ = writeln!(s, "- law at the horizon: {}", law.as_str());
+    }
+    if let Some(from) = f.figures.variance_infinite_from {
         let _ = writeln!(
             s,
-            "### Factor {} — {}\n\n{}. Figures by {}{}.\n",
-            code(&f.name),
-            f.family.as_str(),
-            cell(&f.reason),
-            f.method.as_str(),
-            if f.exact { ", exact" } else { "" }
+            "- the variance is infinite from t = {} {}",
+            plain(from),
+            r.clock
         );
-        let rows: Vec<Vec<String>> = formula_lines(&f.formulas)
-            .into_iter()
-            .map(|(label, text)| vec![label.to_string(), code(text)])
-            .collect();
-        if !rows.is_empty() {
-            table(s, &["", "formula"], &rows);
+    }
+    match f.half_life {
+        Some(h) => {
+            let _ = writeln!(s, "- half-life: {} {}", plain(h), r.clock);
         }
-        let signs = review
-            .grid
-            .iter()
-            .any(|row| row.get(i).is_some_and(|g| g.sign_change.is_some()));
-        let mut head: Vec<String> = vec![format!("t ({})", r.clock), "mean".into(), "sd".into()];
-        head.extend(
-            QUANTILE_LEVELS
-                .iter()
-                .map(|p| format!("{}%", plain(p * 100.0))),
-        );
-        if signs {
-            head.push("P(sign differs from start)".into());
-        }
-        let rows: Vec<Vec<String>> = review
-            .grid
-            .iter()
-            .filter_map(|row| row.get(i))
-            .map(|g| {
-                let mut cells = vec![plain(g.at), or_unknown(g.mean), or_unknown(g.sd)];
-                cells.extend(QUANTILE_LEVELS.iter().map(|p| or_unknown(g.quantile(*p))));
-                if signs {
-                    cells.push(or_unknown(g.sign_change));
-                }
-                cells
-            })
-            .collect();
-        let head_refs: Vec<&str> = head.iter().map(String::as_str).collect();
-        table(s, &head_refs, &rows);
-        if let Some(law) = f.figures.law {
-            let _ = writeln!(s, "- law at the horizon: {}", law.as_str());
-        }
-        if let Some(from) = f.figures.variance_infinite_from {
+        None => s.push_str("- no half-life\n"),
+    }
+    match &f.stationary {
+        Some(st) => {
             let _ = writeln!(
                 s,
-                "- the variance is infinite from t = {} {}",
-                plain(from),
-                r.clock
+                "- stationary law: {} with mean {} and sd {}",
+                code(&st.law),
+                plain(st.mean),
+                plain(st.sd)
             );
         }
-        match f.half_life {
-            Some(h) => {
-                let _ = writeln!(s, "- half-life: {} {}", plain(h), r.clock);
-            }
-            None => s.push_str("- no half-life\n"),
-        }
-        match &f.stationary {
-            Some(st) => {
-                let _ = writeln!(
-                    s,
-                    "- stationary law: {} with mean {} and sd {}",
-                    code(&st.law),
-                    plain(st.mean),
-                    plain(st.sd)
-                );
-            }
-            None => s.push_str("- no stationary law\n"),
-        }
-        s.push('\n');
+        None => s.push_str("- no stationary law\n"),
     }
+    s.push('\n');
+}
+
+/// The covariance and correlation of several factors at the horizon.
+fn matrices(s: &mut String, r: &ModelReport) {
     if r.factors.len() > 1 {
         let names: Vec<String> = r.factors.iter().map(|f| code(&f.name)).collect();
         for (title, m) in [
@@ -162,6 +182,9 @@ fn model(s: &mut String, review: &Review, r: &ModelReport) {
             table(s, &head, &rows);
         }
     }
+}
+
+fn cross_check(s: &mut String, review: &Review) {
     if let Some(cc) = &review.cross_check {
         let _ = writeln!(
             s,
@@ -215,6 +238,9 @@ fn model(s: &mut String, review: &Review, r: &ModelReport) {
     } else if let Some(note) = &review.cross_check_note {
         let _ = writeln!(s, "### Monte Carlo cross-check\n\n{}\n", cell(note));
     }
+}
+
+fn curve(s: &mut String, review: &Review) {
     if let Some(derived) = &review.curve {
         let _ = writeln!(s, "### Yield curve\n");
         match derived {
@@ -246,6 +272,9 @@ fn model(s: &mut String, review: &Review, r: &ModelReport) {
             }
         }
     }
+}
+
+fn expectations(s: &mut String, r: &ModelReport) {
     if !r.expectations.is_empty() {
         let _ = writeln!(s, "### Expectations\n");
         let rows: Vec<Vec<String>> = r

@@ -1,6 +1,6 @@
 //! `sdeck moments`: the report at one time as text and as JSON.
 
-use crate::data::ModelReport;
+use crate::data::{FactorReport, ModelReport};
 use sdeck_units::number::{or_unknown, plain};
 use serde_json::{json, Value};
 
@@ -108,96 +108,106 @@ pub fn moments_text(report: &ModelReport, caution: &str) -> String {
         clock
     );
     for f in &report.factors {
-        s.push_str(&format!("\n{}: {}\n", f.name, f.family.as_str()));
-        s.push_str(&format!("  {:<11} {}\n", "why", f.reason));
-        s.push_str(&format!("  {:<11} {}\n", "method", f.method.as_str()));
-        for (label, text) in crate::formula_lines(&f.formulas) {
-            s.push_str(&format!("  {label:<11} {text}\n"));
-        }
-        let fig = &f.figures;
-        if let Some(why) = &f.outside_domain {
-            s.push_str(&format!("  not defined: {why}\n"));
-        }
-        s.push_str(&format!(
-            "  E[{}(t)]   = {}\n",
-            f.name,
-            or_unknown(fig.mean)
-        ));
-        match fig.variance_infinite_from {
-            Some(from) => s.push_str(&format!(
-                "  Var[{}(t)] = infinite (from t = {} {clock})\n",
-                f.name,
-                plain(from)
-            )),
-            None => s.push_str(&format!(
-                "  Var[{}(t)] = {}\n",
-                f.name,
-                or_unknown(fig.variance)
-            )),
-        }
-        s.push_str(&format!(
-            "  sd        = {}\n",
-            if fig.variance_infinite_from.is_some() {
-                "infinite".to_string()
-            } else {
-                or_unknown(fig.sd)
-            }
-        ));
-        if let Some(kind) = fig.law {
-            s.push_str(&format!("  law       = {}\n", kind.as_str()));
-        }
-        if fig.quantiles_known() {
-            let parts: Vec<String> = fig
-                .quantiles
-                .iter()
-                .map(|q| format!("{}% {}", plain(q.probability * 100.0), or_unknown(q.value)))
-                .collect();
-            s.push_str(&format!("  quantiles = {}\n", parts.join(", ")));
-        }
-        for b in &fig.below {
-            s.push_str(&format!(
-                "  P({} < {}) = {}\n",
-                f.name,
-                plain(b.level),
-                or_unknown(b.probability)
-            ));
-        }
-        if let Some(h) = f.half_life {
-            s.push_str(&format!("  half-life = {} {clock}\n", plain(h)));
-        }
-        if let Some(st) = &f.stationary {
-            s.push_str(&format!(
-                "  stationary: {} (mean {}, variance {}, sd {})\n",
-                st.law,
-                plain(st.mean),
-                plain(st.variance),
-                plain(st.sd)
-            ));
-        }
-        s.push_str(&format!("  exact     = {}\n", exactness_text(fig)));
+        factor_text(&mut s, f, clock);
     }
     if report.factors.len() > 1 {
-        s.push_str("\ncovariance at t:\n");
-        let width = report
-            .factors
-            .iter()
-            .map(|f| f.name.chars().count())
-            .max()
-            .unwrap_or(1)
-            .max(12);
-        s.push_str(&format!("  {:width$}", ""));
-        for f in &report.factors {
-            s.push_str(&format!(" {:>width$}", f.name));
-        }
-        s.push('\n');
-        for (f, row) in report.factors.iter().zip(&report.covariance) {
-            s.push_str(&format!("  {:width$}", f.name));
-            for x in row {
-                s.push_str(&format!(" {:>width$}", or_unknown(*x)));
-            }
-            s.push('\n');
-        }
+        covariance_text(&mut s, report);
     }
     s.push_str(&format!("\n{caution}\n"));
     s
+}
+
+/// One factor: family, why, method, formulas and figures at t.
+fn factor_text(s: &mut String, f: &FactorReport, clock: &str) {
+    s.push_str(&format!("\n{}: {}\n", f.name, f.family.as_str()));
+    s.push_str(&format!("  {:<11} {}\n", "why", f.reason));
+    s.push_str(&format!("  {:<11} {}\n", "method", f.method.as_str()));
+    for (label, text) in crate::formula_lines(&f.formulas) {
+        s.push_str(&format!("  {label:<11} {text}\n"));
+    }
+    let fig = &f.figures;
+    if let Some(why) = &f.outside_domain {
+        s.push_str(&format!("  not defined: {why}\n"));
+    }
+    s.push_str(&format!(
+        "  E[{}(t)]   = {}\n",
+        f.name,
+        or_unknown(fig.mean)
+    ));
+    match fig.variance_infinite_from {
+        Some(from) => s.push_str(&format!(
+            "  Var[{}(t)] = infinite (from t = {} {clock})\n",
+            f.name,
+            plain(from)
+        )),
+        None => s.push_str(&format!(
+            "  Var[{}(t)] = {}\n",
+            f.name,
+            or_unknown(fig.variance)
+        )),
+    }
+    s.push_str(&format!(
+        "  sd        = {}\n",
+        if fig.variance_infinite_from.is_some() {
+            "infinite".to_string()
+        } else {
+            or_unknown(fig.sd)
+        }
+    ));
+    if let Some(kind) = fig.law {
+        s.push_str(&format!("  law       = {}\n", kind.as_str()));
+    }
+    if fig.quantiles_known() {
+        let parts: Vec<String> = fig
+            .quantiles
+            .iter()
+            .map(|q| format!("{}% {}", plain(q.probability * 100.0), or_unknown(q.value)))
+            .collect();
+        s.push_str(&format!("  quantiles = {}\n", parts.join(", ")));
+    }
+    for b in &fig.below {
+        s.push_str(&format!(
+            "  P({} < {}) = {}\n",
+            f.name,
+            plain(b.level),
+            or_unknown(b.probability)
+        ));
+    }
+    if let Some(h) = f.half_life {
+        s.push_str(&format!("  half-life = {} {clock}\n", plain(h)));
+    }
+    if let Some(st) = &f.stationary {
+        s.push_str(&format!(
+            "  stationary: {} (mean {}, variance {}, sd {})\n",
+            st.law,
+            plain(st.mean),
+            plain(st.variance),
+            plain(st.sd)
+        ));
+    }
+    s.push_str(&format!("  exact     = {}\n", exactness_text(fig)));
+}
+
+/// The covariance matrix of several factors at t, in aligned columns.
+fn covariance_text(s: &mut String, report: &ModelReport) {
+    s.push_str("\ncovariance at t:\n");
+    let width = report
+        .factors
+        .iter()
+        .map(|f| f.name.chars().count())
+        .max()
+        .unwrap_or(1)
+        .max(12);
+    s.push_str(&format!("  {:width$}", ""));
+    for f in &report.factors {
+        s.push_str(&format!(" {:>width$}", f.name));
+    }
+    s.push('\n');
+    for (f, row) in report.factors.iter().zip(&report.covariance) {
+        s.push_str(&format!("  {:width$}", f.name));
+        for x in row {
+            s.push_str(&format!(" {:>width$}", or_unknown(*x)));
+        }
+        s.push('\n');
+    }
 }

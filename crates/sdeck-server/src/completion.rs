@@ -3,7 +3,7 @@
 
 use crate::analysis::Analyzed;
 use crate::documents::PositionEncoding;
-use sdeck_semantics::{Function, SymbolKind};
+use sdeck_semantics::{Function, Symbol, SymbolKind};
 use sdeck_syntax::ast::Figure;
 use sdeck_syntax::vocabulary::KEYWORDS;
 use std::borrow::Cow;
@@ -94,36 +94,9 @@ fn candidates<'a>(a: &'a Analyzed, before: &str) -> Vec<Candidate<'a>> {
         Context::Correlation => {
             return names(a, SymbolKind::Shock, CompletionItemKind::EVENT, "shock");
         }
-        Context::Differential(prefix) => {
-            let mut items: Vec<Candidate> = symbols
-                .iter()
-                .filter(|s| s.kind == SymbolKind::Factor)
-                .map(|s| {
-                    candidate(
-                        format!("d{}", s.name),
-                        CompletionItemKind::VARIABLE,
-                        "the factor's equation",
-                    )
-                })
-                .collect();
-            items.extend(
-                KEYWORDS
-                    .iter()
-                    .filter(|k| k.word.starts_with(prefix))
-                    .map(|k| candidate(k.word, CompletionItemKind::KEYWORD, k.summary)),
-            );
-            return items;
-        }
+        Context::Differential(prefix) => return differentials(symbols, prefix),
     }
-    let declared_units = symbols
-        .iter()
-        .filter(|s| s.kind == SymbolKind::Unit)
-        .map(|s| candidate(s.name.as_str(), CompletionItemKind::UNIT, "declared unit"));
-    let mut items: Vec<Candidate> = sdeck_units::TIME_UNITS
-        .iter()
-        .map(|u| candidate(*u, CompletionItemKind::UNIT, "time unit"))
-        .chain(declared_units)
-        .collect();
+    let mut items = units(symbols);
     if in_brackets {
         items.push(candidate(
             "sqrt",
@@ -132,11 +105,52 @@ fn candidates<'a>(a: &'a Analyzed, before: &str) -> Vec<Candidate<'a>> {
         ));
         return items;
     }
+    items.extend(words());
+    items.extend(declared(symbols));
+    items
+}
+
+/// After a `d`: the factors' equations and the keywords that begin so.
+fn differentials<'a>(symbols: &'a [Symbol], prefix: &str) -> Vec<Candidate<'a>> {
+    let mut items: Vec<Candidate> = symbols
+        .iter()
+        .filter(|s| s.kind == SymbolKind::Factor)
+        .map(|s| {
+            candidate(
+                format!("d{}", s.name),
+                CompletionItemKind::VARIABLE,
+                "the factor's equation",
+            )
+        })
+        .collect();
     items.extend(
         KEYWORDS
             .iter()
+            .filter(|k| k.word.starts_with(prefix))
             .map(|k| candidate(k.word, CompletionItemKind::KEYWORD, k.summary)),
     );
+    items
+}
+
+/// The time units and the declared units.
+fn units(symbols: &[Symbol]) -> Vec<Candidate<'_>> {
+    let declared_units = symbols
+        .iter()
+        .filter(|s| s.kind == SymbolKind::Unit)
+        .map(|s| candidate(s.name.as_str(), CompletionItemKind::UNIT, "declared unit"));
+    sdeck_units::TIME_UNITS
+        .iter()
+        .map(|u| candidate(*u, CompletionItemKind::UNIT, "time unit"))
+        .chain(declared_units)
+        .collect()
+}
+
+/// The words of the language: keywords, functions, figures and the built-in names.
+fn words() -> Vec<Candidate<'static>> {
+    let mut items: Vec<Candidate> = KEYWORDS
+        .iter()
+        .map(|k| candidate(k.word, CompletionItemKind::KEYWORD, k.summary))
+        .collect();
     items.extend(
         Function::ALL
             .iter()
@@ -158,6 +172,12 @@ fn candidates<'a>(a: &'a Analyzed, before: &str) -> Vec<Candidate<'a>> {
         CompletionItemKind::KEYWORD,
         "drift differential",
     ));
+    items
+}
+
+/// The names the model declares (its units aside), a shock with its differential.
+fn declared(symbols: &[Symbol]) -> Vec<Candidate<'_>> {
+    let mut items = Vec::new();
     for s in symbols {
         let (kind, detail) = match s.kind {
             SymbolKind::Param => (CompletionItemKind::CONSTANT, "param"),

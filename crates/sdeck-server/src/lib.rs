@@ -4,9 +4,11 @@
 //! The server only translates: every figure, message and fix comes from the one analysis
 //! entry point (`sdeck_checks::check`) and the calculus; this crate converts them to the
 //! protocol. Layout: [`documents`] holds the open texts (edits applied in order, under a
-//! synchronous lock), `analysis` runs the analysis of one version, `convert` is the one
-//! place where byte offsets become protocol positions, and one module per feature
-//! (`hover`, `hints`, `actions`, `navigation`, `completion`, `tokens`). [`transport`]
+//! synchronous lock), `analysis` runs the analysis of one version, `shared` schedules the
+//! analyses of each document and publishes their diagnostics, `capabilities` says what
+//! the server offers, `convert` is the one place where byte offsets become protocol
+//! positions, and one module per feature (`hover`, `hints`, `actions`, `navigation`,
+//! `completion`, `tokens`). [`transport`]
 //! checks every frame before tower-lsp reads it, so a malformed one is answered with an
 //! error instead of ending the session.
 //!
@@ -19,6 +21,7 @@
 
 mod actions;
 mod analysis;
+mod capabilities;
 mod completion;
 mod convert;
 pub mod documents;
@@ -26,6 +29,7 @@ mod durations;
 mod hints;
 mod hover;
 mod navigation;
+mod shared;
 mod stdio;
 mod tokens;
 mod trace;
@@ -37,10 +41,11 @@ pub use stdio::run_stdio;
 pub use tower_lsp::lsp_types;
 
 use analysis::Analyzed;
+use capabilities::capabilities;
 use documents::{DocumentStore, PositionEncoding};
 use serde::{Deserialize, Serialize};
+use shared::{guard, Shared};
 use std::collections::HashMap;
-use std::panic::AssertUnwindSafe;
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::{Arc, Mutex, RwLock};
 use std::time::Duration;
@@ -107,244 +112,6 @@ pub struct DocumentTextResult {
     /// Reports of a factor at the horizon (hover) built, and taken over.
     pub reports: u64,
     pub reports_reused: u64,
-}
-
-/// The analysis of one version of a document, or the error it ended with.
-struct Outcome {
-    version: i32,
-    result: Result<Arc<Analyzed>>,
-}
-
-/// The analyses of one document.
-#[derive(Default)]
-struct Slot {
-    /// The analysis of the newest version analysed so far.
-    latest: Option<Arc<Outcome>>,
-    /// Whether an analysis of this document is running.
-    running: bool,
-    /// Analyses run since the document was opened.
-    count: u64,
-    /// Analyses given up since the document was opened: a newer version arrived.
-    abandoned: u64,
-    /// What the analyses keep across versions, by content; dropped with the slot when the
-    /// document closes.
-    memo: Arc<analysis::DocumentMemo>,
-}
-
-/// State shared by the handlers and the analysis threads.
-struct Shared {
-    client: Client,
-    documents: DocumentStore,
-    encoding: RwLock<PositionEncoding>,
-    /// Whether to push diagnostics (off when the client pulls them itself, so that no
-    /// editor shows every diagnostic twice).
-    push: RwLock<bool>,
-    /// Whether hovers are plain text (the client does not take Markdown).
-    plain_hover: AtomicBool,
-    /// Per document, its analyses.
-    slots: Mutex<HashMap<Url, Slot>>,
-    /// Woken whenever an analysis ends.
-    analysed: tokio::sync::Notify,
-    /// The version last published per document; held while publishing so that a stale
-    /// result can never be sent after a newer one.
-    published: tokio::sync::Mutex<HashMap<Url, i32>>,
-}
-
-impl Shared {
-    fn encoding(&self) -> PositionEncoding {
-        *self.encoding.read().unwrap_or_else(|p| p.into_inner())
-    }
-
-    fn slots(&self) -> std::sync::MutexGuard<'_, HashMap<Url, Slot>> {
-        self.slots.lock().unwrap_or_else(|p| p.into_inner())
-    }
-
-    fn latest(&self, uri: &Url) -> Option<Arc<Outcome>> {
-        self.slots().get(uri).and_then(|slot| slot.latest.clone())
-    }
-
-    /// Starts analysing the document's newest version, unless an analysis of it is
-    /// running or its newest version is analysed already.
-    fn start(self: &Arc<Self>, uri: &Url) {
-        let Some(current) = self.documents.version(uri) else {
-            return;
-        };
-        {
-            let mut slots = self.slots();
-            let slot = slots.entry(uri.clone()).or_default();
-            let done = slot.latest.as_ref().is_some_and(|o| o.version == current);
-            if slot.running || done {
-                return;
-            }
-            slot.running = true;
-        }
-        let shared = self.clone();
-        let uri = uri.clone();
-        let runtime = tokio::runtime::Handle::current();
-        tokio::task::spawn_blocking(move || shared.run(&uri, &runtime));
-    }
-
-    /// The one analysis thread of a document: analyses its newest version until no
-    /// newer one is waiting, publishing each result.
-    fn run(self: &Arc<Self>, uri: &Url, runtime: &tokio::runtime::Handle) {
-        loop {
-            let snapshot = self.documents.snapshot(uri);
-            let memo = {
-                let mut slots = self.slots();
-                let Some(slot) = slots.get_mut(uri) else {
-                    return; // closed meanwhile
-                };
-                let newest_done = match &snapshot {
-                    None => true,
-                    Some(s) => slot.latest.as_ref().is_some_and(|o| o.version == s.version),
-                };
-                if newest_done {
-                    slot.running = false;
-                    drop(slots);
-                    self.analysed.notify_waiters();
-                    return;
-                }
-                slot.memo.clone()
-            };
-            let Some(snapshot) = snapshot else { return };
-            let version = snapshot.version;
-            // Typed past: the analysis of this version stops at its next cancellation
-            // point and the loop takes the newest version.
-            let stale = || self.documents.version(uri) != Some(version);
-            let (started, cpu) = (std::time::Instant::now(), trace::thread_cpu());
-            let analysed = guard("the analysis", || {
-                Analyzed::compute_unless_stale(snapshot, &stale, memo)
-            });
-            let cpu = cpu
-                .zip(trace::thread_cpu())
-                .map(|(a, b)| b.saturating_sub(a));
-            trace::analysis(
-                version,
-                started.elapsed(),
-                cpu,
-                matches!(analysed, Ok(None)),
-            );
-            let result = match analysed {
-                Ok(Some(analyzed)) => Ok(Arc::new(analyzed)),
-                Ok(None) => {
-                    if let Some(slot) = self.slots().get_mut(uri) {
-                        slot.abandoned += 1;
-                    }
-                    continue;
-                }
-                Err(e) => Err(e),
-            };
-            let outcome = Arc::new(Outcome { version, result });
-            match self.slots().get_mut(uri) {
-                Some(slot) => {
-                    slot.latest = Some(outcome.clone());
-                    slot.count += 1;
-                }
-                None => return,
-            }
-            self.analysed.notify_waiters();
-            if *self.push.read().unwrap_or_else(|p| p.into_inner()) {
-                let shared = self.clone();
-                let uri = uri.clone();
-                runtime.spawn(async move { shared.publish(&uri, &outcome).await });
-            }
-        }
-    }
-
-    /// The analysis of the document as it is now (or of a newer version), waiting for
-    /// it at most [`ANALYSIS_WAIT`]. `None` when the document is not open.
-    async fn analysis(self: &Arc<Self>, uri: &Url) -> Result<Option<Arc<Analyzed>>> {
-        let Some(wanted) = self.documents.version(uri) else {
-            return Ok(None);
-        };
-        let deadline = tokio::time::Instant::now() + ANALYSIS_WAIT;
-        loop {
-            let woken = self.analysed.notified();
-            tokio::pin!(woken);
-            woken.as_mut().enable();
-            if let Some(outcome) = self.latest(uri).filter(|o| o.version >= wanted) {
-                return outcome.result.clone().map(Some);
-            }
-            if self.documents.version(uri).is_none() {
-                return Ok(None);
-            }
-            self.start(uri);
-            if tokio::time::timeout_at(deadline, woken).await.is_err() {
-                return Err(Error {
-                    code: ErrorCode::ServerError(-32803),
-                    message: format!(
-                        "sdeck: the analysis of version {wanted} is still running after {} s; \
-                         ask again",
-                        ANALYSIS_WAIT.as_secs()
-                    )
-                    .into(),
-                    data: None,
-                });
-            }
-        }
-    }
-
-    /// Forgets the analyses of a document (its settings changed, or it closed).
-    fn forget(&self, uri: &Url) {
-        if let Some(slot) = self.slots().get_mut(uri) {
-            slot.latest = None;
-        }
-    }
-
-    /// Publishes the diagnostics of one analysis if it is still the document's current
-    /// version and nothing newer was published.
-    async fn publish(&self, uri: &Url, outcome: &Outcome) {
-        let analyzed = match &outcome.result {
-            Ok(a) => a,
-            Err(e) => {
-                self.client
-                    .log_message(MessageType::ERROR, e.message.clone())
-                    .await;
-                return;
-            }
-        };
-        let mut published = self.published.lock().await;
-        if self.documents.version(uri) != Some(analyzed.version) {
-            return;
-        }
-        if published.get(uri).is_some_and(|v| *v >= analyzed.version) {
-            return;
-        }
-        let converter = analyzed.converter(self.encoding());
-        let diagnostics = match guard("converting diagnostics", || {
-            analyzed
-                .shown_diagnostics()
-                .iter()
-                .map(|d| converter.diagnostic(uri, d))
-                .collect::<Vec<_>>()
-        }) {
-            Ok(d) => d,
-            Err(e) => {
-                self.client.log_message(MessageType::ERROR, e.message).await;
-                return;
-            }
-        };
-        published.insert(uri.clone(), analyzed.version);
-        self.client
-            .publish_diagnostics(uri.clone(), diagnostics, Some(analyzed.version))
-            .await;
-    }
-}
-
-/// Runs `f`, turning a panic into an error response (the server keeps serving).
-fn guard<T>(what: &str, f: impl FnOnce() -> T) -> Result<T> {
-    std::panic::catch_unwind(AssertUnwindSafe(f)).map_err(|payload| {
-        let reason = payload
-            .downcast_ref::<&str>()
-            .map(|s| s.to_string())
-            .or_else(|| payload.downcast_ref::<String>().cloned())
-            .unwrap_or_else(|| "unknown cause".to_string());
-        Error {
-            code: ErrorCode::InternalError,
-            message: format!("sdeck: {what} failed ({reason}); the server goes on serving").into(),
-            data: None,
-        }
-    })
 }
 
 /// The language server.
@@ -463,58 +230,6 @@ impl Backend {
             }
             shared.start(&uri);
         });
-    }
-}
-
-fn capabilities(encoding: PositionEncoding) -> ServerCapabilities {
-    ServerCapabilities {
-        position_encoding: Some(match encoding {
-            PositionEncoding::Utf8 => PositionEncodingKind::UTF8,
-            PositionEncoding::Utf16 => PositionEncodingKind::UTF16,
-        }),
-        text_document_sync: Some(TextDocumentSyncCapability::Options(
-            TextDocumentSyncOptions {
-                open_close: Some(true),
-                change: Some(TextDocumentSyncKind::INCREMENTAL),
-                will_save: None,
-                will_save_wait_until: None,
-                save: Some(TextDocumentSyncSaveOptions::Supported(true)),
-            },
-        )),
-        hover_provider: Some(HoverProviderCapability::Simple(true)),
-        completion_provider: Some(CompletionOptions {
-            trigger_characters: Some(vec!["[".to_string(), "(".to_string()]),
-            ..CompletionOptions::default()
-        }),
-        definition_provider: Some(OneOf::Left(true)),
-        references_provider: Some(OneOf::Left(true)),
-        rename_provider: Some(OneOf::Right(RenameOptions {
-            prepare_provider: Some(true),
-            work_done_progress_options: WorkDoneProgressOptions::default(),
-        })),
-        document_symbol_provider: Some(OneOf::Left(true)),
-        document_formatting_provider: Some(OneOf::Left(true)),
-        code_action_provider: Some(CodeActionProviderCapability::Options(CodeActionOptions {
-            code_action_kinds: Some(vec![CodeActionKind::QUICKFIX, CodeActionKind::REFACTOR]),
-            work_done_progress_options: WorkDoneProgressOptions::default(),
-            resolve_provider: None,
-        })),
-        inlay_hint_provider: Some(OneOf::Left(true)),
-        semantic_tokens_provider: Some(SemanticTokensServerCapabilities::SemanticTokensOptions(
-            SemanticTokensOptions {
-                legend: tokens::legend(),
-                full: Some(SemanticTokensFullOptions::Bool(true)),
-                range: Some(true),
-                work_done_progress_options: WorkDoneProgressOptions::default(),
-            },
-        )),
-        diagnostic_provider: Some(DiagnosticServerCapabilities::Options(DiagnosticOptions {
-            identifier: Some("sdeck".to_string()),
-            inter_file_dependencies: false,
-            workspace_diagnostics: false,
-            work_done_progress_options: WorkDoneProgressOptions::default(),
-        })),
-        ..ServerCapabilities::default()
     }
 }
 

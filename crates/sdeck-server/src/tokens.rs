@@ -5,7 +5,7 @@ use crate::analysis::Analyzed;
 use crate::documents::PositionEncoding;
 use sdeck_diagnostics::Span;
 use sdeck_semantics::SymbolKind;
-use sdeck_syntax::ast::{DeclaredValue, Expr, StatementKind, UnitExpr};
+use sdeck_syntax::ast::{DeclaredValue, Expr, Statement, StatementKind, UnitExpr};
 use tower_lsp::lsp_types::{
     Range, SemanticToken, SemanticTokenModifier, SemanticTokenType, SemanticTokensLegend,
 };
@@ -90,50 +90,8 @@ fn token_spans(a: &Analyzed) -> Vec<(Span, u32, u32)> {
             spans.push((r.span.clone(), kind_type(*kind), 0));
         }
     }
-    let unit = |u: &UnitExpr, spans: &mut Vec<(Span, u32, u32)>| {
-        u.walk_names(&mut |ident| spans.push((ident.span.clone(), TYPE, 0)));
-    };
     for statement in &analysis.file.statements {
-        match &statement.kind {
-            StatementKind::Model { .. }
-            | StatementKind::Unit { .. }
-            | StatementKind::Shock { .. }
-            | StatementKind::Measure { .. } => {}
-            StatementKind::Clock { unit: u } => {
-                spans.push((u.span.clone(), TYPE, 0));
-            }
-            StatementKind::Horizon { value } => {
-                spans.push((value.number.span.clone(), NUMBER, 0));
-                if let Some(u) = &value.unit {
-                    unit(u, &mut spans);
-                }
-            }
-            StatementKind::Param(d) | StatementKind::Factor(d) => match &d.value {
-                DeclaredValue::Literal { number, unit: u } => {
-                    spans.push((number.span.clone(), NUMBER, 0));
-                    if let Some(u) = u {
-                        unit(u, &mut spans);
-                    }
-                }
-                DeclaredValue::Expr(e) => expression(e, &mut spans),
-            },
-            StatementKind::Corr { value, .. }
-            | StatementKind::Let { value, .. }
-            | StatementKind::Discount { rate: value } => expression(value, &mut spans),
-            StatementKind::Equation(eq) => {
-                for term in &eq.terms {
-                    if let Some(c) = &term.coefficient {
-                        expression(c, &mut spans);
-                    }
-                    if let sdeck_syntax::ast::Differential::Time(span) = &term.differential {
-                        spans.push((span.clone(), KEYWORD, 0));
-                    }
-                }
-            }
-            StatementKind::Expect(e) => {
-                spans.push((e.figure_span.clone(), FUNCTION, 0));
-            }
-        }
+        statement_spans(statement, &mut spans);
         let keyword_len = statement.kind.keyword().map_or(0, str::len);
         if keyword_len > 0 {
             let start = statement.span.start;
@@ -156,6 +114,54 @@ fn token_spans(a: &Analyzed) -> Vec<(Span, u32, u32)> {
         keep
     });
     spans
+}
+
+/// The tokens of a statement's values: numbers, units, expressions, the `dt` of an
+/// equation and the figure of an `expect` (its keyword aside).
+fn statement_spans(statement: &Statement, spans: &mut Vec<(Span, u32, u32)>) {
+    let unit = |u: &UnitExpr, spans: &mut Vec<(Span, u32, u32)>| {
+        u.walk_names(&mut |ident| spans.push((ident.span.clone(), TYPE, 0)));
+    };
+    match &statement.kind {
+        StatementKind::Model { .. }
+        | StatementKind::Unit { .. }
+        | StatementKind::Shock { .. }
+        | StatementKind::Measure { .. } => {}
+        StatementKind::Clock { unit: u } => {
+            spans.push((u.span.clone(), TYPE, 0));
+        }
+        StatementKind::Horizon { value } => {
+            spans.push((value.number.span.clone(), NUMBER, 0));
+            if let Some(u) = &value.unit {
+                unit(u, spans);
+            }
+        }
+        StatementKind::Param(d) | StatementKind::Factor(d) => match &d.value {
+            DeclaredValue::Literal { number, unit: u } => {
+                spans.push((number.span.clone(), NUMBER, 0));
+                if let Some(u) = u {
+                    unit(u, spans);
+                }
+            }
+            DeclaredValue::Expr(e) => expression(e, spans),
+        },
+        StatementKind::Corr { value, .. }
+        | StatementKind::Let { value, .. }
+        | StatementKind::Discount { rate: value } => expression(value, spans),
+        StatementKind::Equation(eq) => {
+            for term in &eq.terms {
+                if let Some(c) = &term.coefficient {
+                    expression(c, spans);
+                }
+                if let sdeck_syntax::ast::Differential::Time(span) = &term.differential {
+                    spans.push((span.clone(), KEYWORD, 0));
+                }
+            }
+        }
+        StatementKind::Expect(e) => {
+            spans.push((e.figure_span.clone(), FUNCTION, 0));
+        }
+    }
 }
 
 fn expression(e: &Expr, spans: &mut Vec<(Span, u32, u32)>) {
