@@ -22,6 +22,9 @@ pub struct UnitError {
     pub span: Span,
     pub message: String,
     pub help: Option<String>,
+    /// The unit is a name that is neither declared nor a time unit (an unknown name,
+    /// rather than a wrong dimension): what the caller's choice of rule reads.
+    pub undeclared: bool,
 }
 
 impl UnitError {
@@ -30,6 +33,7 @@ impl UnitError {
             span,
             message: message.into(),
             help,
+            undeclared: false,
         }
     }
 
@@ -294,15 +298,18 @@ impl Evaluator<'_> {
         let help = self
             .suggest_name(name)
             .map(|candidate| format!("did you mean `{candidate}`?"));
-        Err(UnitError::new(
-            span,
-            format!(
-                "unit `{name}` is not declared; declare it with `unit {name}` or use a time \
+        Err(UnitError {
+            undeclared: true,
+            ..UnitError::new(
+                span,
+                format!(
+                    "unit `{name}` is not declared; declare it with `unit {name}` or use a time \
                  unit ({})",
-                TIME_UNITS.join(", ")
-            ),
-            help,
-        ))
+                    TIME_UNITS.join(", ")
+                ),
+                help,
+            )
+        })
     }
 
     /// A known unit close to `name`: a usual abbreviation of a time unit, the same name in

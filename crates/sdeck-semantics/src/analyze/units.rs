@@ -42,7 +42,7 @@ impl Analyzer<'_> {
         match eval_unit_with_names(unit, &declared, &names, self.model.clock.years) {
             Ok(v) => Some(v),
             Err(e) => {
-                let rule = if e.message.contains("not declared") || e.message.contains("unknown") {
+                let rule = if e.undeclared {
                     &rules::UNKNOWN_NAME
                 } else {
                     &rules::DIMENSION_MISMATCH
