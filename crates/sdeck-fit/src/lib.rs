@@ -224,12 +224,8 @@ pub fn written_in(model: &Model, factors: &[FactorId]) -> Vec<ParamId> {
     out
 }
 
-/// Estimates the parameters of `problem` by exact maximum likelihood.
-///
-/// Long (about 220 lines) because its stages share the closures `full`, `cost` and
-/// `derivatives`, which borrow the plan and remember their last values: the checks of the
-/// data, the start, the search, and the standard errors read in order here. Splitting it
-/// would pass those closures through each piece; it is the next thing to tidy.
+/// Estimates the parameters of `problem` by exact maximum likelihood: the checks of the
+/// data, the start, the search, and the standard errors.
 pub fn fit(problem: &Problem) -> Result<Fit, FitError> {
     let model = problem.model;
     let plan = plan::plan(problem)?;
@@ -241,8 +237,135 @@ pub fn fit(problem: &Problem) -> Result<Fit, FitError> {
         return Err(FitError::NothingToEstimate);
     }
     let k = estimated.len();
-    // Domain and count checks.
-    match &plan {
+    enough_data(problem, &plan, &estimated)?;
+    let file_values = model.param_values();
+    let full = |theta: &[f64]| {
+        let mut all = file_values.clone();
+        for (slot, value) in estimated.iter().zip(theta) {
+            all[slot.index()] = *value;
+        }
+        model.derive_params(&mut all);
+        all
+    };
+    // The last few costs are remembered: the search asks again for the value at its
+    // start and at the optimum, each a pass over every observation.
+    let costs = Remembered::new(4, |theta: &[f64]| {
+        let l = plan.log_likelihood(problem, &full(theta));
+        if l.is_nan() {
+            f64::INFINITY
+        } else {
+            -l
+        }
+    });
+    let cost = |theta: &[f64]| costs.call(theta);
+    let file_start: Vec<f64> = estimated.iter().map(|&p| file_values[p.index()]).collect();
+    let transforms: Vec<Transform> = estimated
+        .iter()
+        .zip(&file_start)
+        .map(|(&p, start)| Transform::new(model.params[p].bound.as_ref(), *start))
+        .collect();
+    // Start: the file's values, or the parameters whose coefficients best match the
+    // moment estimates, whichever the likelihood prefers.
+    let mut starts = vec![file_start.clone()];
+    if let Plan::Singles(singles) = &plan {
+        starts.extend(moment_start(singles, &full, &transforms, &file_start));
+    }
+    let best_start = starts
+        .into_iter()
+        .map(|s| (cost(&s), s))
+        .filter(|(c, _)| c.is_finite())
+        .min_by(|a, b| a.0.total_cmp(&b.0))
+        .map(|(_, s)| s)
+        .ok_or(FitError::NoFiniteLikelihood)?;
+    // Exact derivatives where the likelihood has them; differences of the cost elsewhere.
+    // The last ones are remembered: the search ends where it computed them.
+    let last = Remembered::new(1, |theta: &[f64]| {
+        let exact = match &plan {
+            Plan::Singles(singles) => exact_derivatives(singles, &full, theta),
+            Plan::System { .. } => None,
+        };
+        exact.unwrap_or_else(|| optimise::finite_differences(&cost, theta, optimise::HESSIAN_STEP))
+    });
+    let derivatives = |theta: &[f64]| last.call(theta);
+    let theta = search(&cost, &derivatives, &transforms, best_start);
+    let loglik = -cost(&theta);
+    if !loglik.is_finite() {
+        return Err(FitError::NoFiniteLikelihood);
+    }
+    let (gradient, hessian) = derivatives(&theta);
+    let errors = StandardErrors::at(model, &estimated, &theta, &gradient, &hessian, &transforms)?;
+    Ok(Fit {
+        estimates: errors.estimates(&estimated, &theta),
+        correlation: errors.correlation,
+        loglik,
+        aic: 2.0 * k as f64 - 2.0 * loglik,
+        used: plan.used(),
+        families: families(&plan, problem.factors.len()),
+    })
+}
+
+/// Per fitted factor, the family whose transition law was used.
+fn families(plan: &Plan, factors: usize) -> Vec<Family> {
+    match plan {
+        Plan::Singles(singles) => singles.iter().map(|s| s.family).collect(),
+        Plan::System { .. } => vec![Family::LinearSystem; factors],
+    }
+}
+
+/// Newton steps straight from the start converge in a few steps when it is close (the
+/// moment estimates usually are); otherwise the simplex search first.
+fn search(
+    cost: &dyn Fn(&[f64]) -> f64,
+    derivatives: &optimise::Derivatives,
+    transforms: &[Transform],
+    start: Vec<f64>,
+) -> Vec<f64> {
+    match optimise::polish(&cost, derivatives, transforms, start.clone()) {
+        (theta, true) => theta,
+        (_, false) => {
+            let found = optimise::simplex(&cost, transforms, &start, 20_000);
+            let found = optimise::simplex(&cost, transforms, &found, 20_000);
+            optimise::polish(&cost, derivatives, transforms, found).0
+        }
+    }
+}
+
+/// A function of the parameters that remembers its last `keep` values.
+struct Remembered<T, F> {
+    f: F,
+    keep: usize,
+    memory: std::cell::RefCell<Vec<(Vec<f64>, T)>>,
+}
+
+impl<T: Clone, F: Fn(&[f64]) -> T> Remembered<T, F> {
+    fn new(keep: usize, f: F) -> Self {
+        Remembered {
+            f,
+            keep,
+            memory: Default::default(),
+        }
+    }
+
+    fn call(&self, theta: &[f64]) -> T {
+        if let Some((_, value)) = self.memory.borrow().iter().find(|(t, _)| t == theta) {
+            return value.clone();
+        }
+        let value = (self.f)(theta);
+        let mut memory = self.memory.borrow_mut();
+        if memory.len() == self.keep {
+            memory.remove(0);
+        }
+        memory.push((theta.to_vec(), value.clone()));
+        value
+    }
+}
+
+/// Whether the data can be fitted: every observed value in its family's domain, and
+/// at least two observations more than the parameters estimated.
+fn enough_data(problem: &Problem, plan: &Plan, estimated: &[ParamId]) -> Result<(), FitError> {
+    let model = problem.model;
+    let k = estimated.len();
+    match plan {
         Plan::Singles(singles) => {
             for s in singles {
                 if let Some(domain) = law::domain(s.family) {
@@ -284,169 +407,124 @@ pub fn fit(problem: &Problem) -> Result<Fit, FitError> {
             }
         }
     }
-    let file_values = model.param_values();
-    let full = |theta: &[f64]| {
-        let mut all = file_values.clone();
-        for (slot, value) in estimated.iter().zip(theta) {
-            all[slot.index()] = *value;
-        }
-        model.derive_params(&mut all);
-        all
-    };
-    // The last few costs are remembered: the search asks again for the value at its
-    // start and at the optimum, each a pass over every observation.
-    let remembered: std::cell::RefCell<Vec<(Vec<f64>, f64)>> = Default::default();
-    let cost = |theta: &[f64]| {
-        if let Some((_, c)) = remembered.borrow().iter().find(|(t, _)| t == theta) {
-            return *c;
-        }
-        let l = plan.log_likelihood(problem, &full(theta));
-        let c = if l.is_nan() { f64::INFINITY } else { -l };
-        let mut memory = remembered.borrow_mut();
-        if memory.len() == 4 {
-            memory.remove(0);
-        }
-        memory.push((theta.to_vec(), c));
-        c
-    };
-    let file_start: Vec<f64> = estimated.iter().map(|&p| file_values[p.index()]).collect();
-    let transforms: Vec<Transform> = estimated
+    Ok(())
+}
+
+/// The parameters whose coefficients best match the moment estimates of each factor
+/// (a simplex search from the file's values); `None` when no factor has them.
+fn moment_start(
+    singles: &[plan::Single],
+    full: &dyn Fn(&[f64]) -> Vec<f64>,
+    transforms: &[Transform],
+    file_start: &[f64],
+) -> Option<Vec<f64>> {
+    let targets: Vec<(usize, Vec<(usize, f64)>)> = singles
         .iter()
-        .zip(&file_start)
-        .map(|(&p, start)| Transform::new(model.params[p].bound.as_ref(), *start))
+        .enumerate()
+        .map(|(i, s)| (i, moment_targets(s)))
+        .filter(|(_, t)| !t.is_empty() && t.iter().all(|(_, v)| v.is_finite()))
         .collect();
-    // Start: the parameters whose coefficients best match the moment estimates.
-    let mut starts = vec![file_start.clone()];
-    if let Plan::Singles(singles) = &plan {
-        let targets: Vec<(usize, Vec<(usize, f64)>)> = singles
+    if targets.is_empty() {
+        return None;
+    }
+    let mismatch = |theta: &[f64]| {
+        let all = full(theta);
+        targets
             .iter()
-            .enumerate()
-            .map(|(i, s)| (i, moment_targets(s)))
-            .filter(|(_, t)| !t.is_empty() && t.iter().all(|(_, v)| v.is_finite()))
-            .collect();
-        if !targets.is_empty() {
-            let mismatch = |theta: &[f64]| {
-                let all = full(theta);
-                targets
-                    .iter()
-                    .map(|(i, t)| {
-                        let v = singles[*i].form.at(&all, 0.0);
-                        t.iter()
-                            .map(|(c, target)| {
-                                ((coefficient(&v, *c) - target) / target.abs().max(1e-300)).powi(2)
-                            })
-                            .sum::<f64>()
+            .map(|(i, t)| {
+                let v = singles[*i].form.at(&all, 0.0);
+                t.iter()
+                    .map(|(c, target)| {
+                        ((coefficient(&v, *c) - target) / target.abs().max(1e-300)).powi(2)
                     })
                     .sum::<f64>()
-            };
-            let matched = optimise::simplex(&mismatch, &transforms, &file_start, 4000);
-            starts.push(matched);
-        }
-    }
-    let best_start = starts
-        .into_iter()
-        .map(|s| (cost(&s), s))
-        .filter(|(c, _)| c.is_finite())
-        .min_by(|a, b| a.0.total_cmp(&b.0))
-        .map(|(_, s)| s)
-        .ok_or(FitError::NoFiniteLikelihood)?;
-    // Exact derivatives where the likelihood has them; differences of the cost elsewhere.
-    let exact = |theta: &[f64]| match &plan {
-        Plan::Singles(singles) => exact_derivatives(singles, &full, theta),
-        Plan::System { .. } => None,
+            })
+            .sum::<f64>()
     };
-    // The last derivatives are remembered: the search ends where it computed them.
-    let last: std::cell::RefCell<Option<(Vec<f64>, Gradient, Hessian)>> = Default::default();
-    let derivatives = |theta: &[f64]| {
-        if let Some((t, g, h)) = last.borrow().as_ref() {
-            if t == theta {
-                return (g.clone(), h.clone());
+    Some(optimise::simplex(&mismatch, transforms, file_start, 4000))
+}
+
+/// The standard errors and correlations of the estimates from the observed information,
+/// and which estimates sit at a declared bound (no standard error there).
+struct StandardErrors {
+    se: Vec<f64>,
+    correlation: Vec<Vec<f64>>,
+    at_bound: Vec<bool>,
+}
+
+impl StandardErrors {
+    fn at(
+        model: &Model,
+        estimated: &[ParamId],
+        theta: &[f64],
+        gradient: &Gradient,
+        hessian: &Hessian,
+        transforms: &[Transform],
+    ) -> Result<StandardErrors, FitError> {
+        let k = estimated.len();
+        // At a bound when the one-parameter Newton step would cross it.
+        let at_bound: Vec<bool> = (0..k)
+            .map(|j| {
+                let newton = theta[j] - gradient[j] / hessian[(j, j)];
+                !matches!(transforms[j], Transform::Free { .. })
+                    && (hessian[(j, j)].is_nan()
+                        || hessian[(j, j)] <= 0.0
+                        || !transforms[j].admits(newton))
+                    && gradient[j].abs() > 1e-6 * hessian[(j, j)].abs().sqrt()
+            })
+            .collect();
+        let inside: Vec<usize> = (0..k).filter(|&j| !at_bound[j]).collect();
+        let names = || {
+            inside
+                .iter()
+                .map(|&j| model.params[estimated[j]].name.clone())
+                .collect::<Vec<_>>()
+        };
+        let sub = DMatrix::from_fn(inside.len(), inside.len(), |r, c| {
+            hessian[(inside[r], inside[c])]
+        });
+        let sub_covariance = if inside.is_empty() {
+            DMatrix::zeros(0, 0)
+        } else {
+            sdeck_calculus::symmetric::cholesky(&sub)
+                .map(|c| c.inverse())
+                .filter(|c| c.iter().all(|v| v.is_finite()))
+                .ok_or_else(|| FitError::NotIdentifiable { params: names() })?
+        };
+        let mut covariance = DMatrix::from_element(k, k, f64::NAN);
+        for (r, &i) in inside.iter().enumerate() {
+            for (c, &j) in inside.iter().enumerate() {
+                covariance[(i, j)] = sub_covariance[(r, c)];
             }
         }
-        let (g, h) = exact(theta)
-            .unwrap_or_else(|| optimise::finite_differences(&cost, theta, optimise::HESSIAN_STEP));
-        *last.borrow_mut() = Some((theta.to_vec(), g.clone(), h.clone()));
-        (g, h)
-    };
-    // Newton steps straight from the start converge in a few steps when it is close (the
-    // moment estimates usually are); otherwise the simplex search first.
-    let theta = match optimise::polish(&cost, &derivatives, &transforms, best_start.clone()) {
-        (theta, true) => theta,
-        (_, false) => {
-            let found = optimise::simplex(&cost, &transforms, &best_start, 20_000);
-            let found = optimise::simplex(&cost, &transforms, &found, 20_000);
-            optimise::polish(&cost, &derivatives, &transforms, found).0
-        }
-    };
-    let loglik = -cost(&theta);
-    if !loglik.is_finite() {
-        return Err(FitError::NoFiniteLikelihood);
-    }
-    let (gradient, hessian) = derivatives(&theta);
-    // At a bound when the one-parameter Newton step would cross it.
-    let at_bound: Vec<bool> = (0..k)
-        .map(|j| {
-            let newton = theta[j] - gradient[j] / hessian[(j, j)];
-            !matches!(transforms[j], Transform::Free { .. })
-                && (hessian[(j, j)].is_nan()
-                    || hessian[(j, j)] <= 0.0
-                    || !transforms[j].admits(newton))
-                && gradient[j].abs() > 1e-6 * hessian[(j, j)].abs().sqrt()
+        let se: Vec<f64> = (0..k).map(|i| covariance[(i, i)].sqrt()).collect();
+        let correlation = (0..k)
+            .map(|i| {
+                (0..k)
+                    .map(|j| covariance[(i, j)] / (se[i] * se[j]))
+                    .collect()
+            })
+            .collect();
+        Ok(StandardErrors {
+            se,
+            correlation,
+            at_bound,
         })
-        .collect();
-    let inside: Vec<usize> = (0..k).filter(|&j| !at_bound[j]).collect();
-    let names = || {
-        inside
-            .iter()
-            .map(|&j| model.params[estimated[j]].name.clone())
-            .collect::<Vec<_>>()
-    };
-    let sub = DMatrix::from_fn(inside.len(), inside.len(), |r, c| {
-        hessian[(inside[r], inside[c])]
-    });
-    let sub_covariance = if inside.is_empty() {
-        DMatrix::zeros(0, 0)
-    } else {
-        sdeck_calculus::symmetric::cholesky(&sub)
-            .map(|c| c.inverse())
-            .filter(|c| c.iter().all(|v| v.is_finite()))
-            .ok_or_else(|| FitError::NotIdentifiable { params: names() })?
-    };
-    let mut covariance = DMatrix::from_element(k, k, f64::NAN);
-    for (r, &i) in inside.iter().enumerate() {
-        for (c, &j) in inside.iter().enumerate() {
-            covariance[(i, j)] = sub_covariance[(r, c)];
-        }
     }
-    let se: Vec<f64> = (0..k).map(|i| covariance[(i, i)].sqrt()).collect();
-    let correlation = (0..k)
-        .map(|i| {
-            (0..k)
-                .map(|j| covariance[(i, j)] / (se[i] * se[j]))
-                .collect()
-        })
-        .collect();
-    let families = match &plan {
-        Plan::Singles(singles) => singles.iter().map(|s| s.family).collect(),
-        Plan::System { .. } => vec![Family::LinearSystem; problem.factors.len()],
-    };
-    Ok(Fit {
-        estimates: estimated
+
+    /// The estimates `theta` of the parameters `estimated`, with their errors.
+    fn estimates(&self, estimated: &[ParamId], theta: &[f64]) -> Vec<Estimate> {
+        estimated
             .iter()
-            .zip(&theta)
-            .zip(&se)
-            .zip(&at_bound)
+            .zip(theta)
+            .zip(&self.se)
+            .zip(&self.at_bound)
             .map(|(((&param, &estimate), &se), &at_bound)| Estimate {
                 param,
                 estimate,
                 se,
                 at_bound,
             })
-            .collect(),
-        correlation,
-        loglik,
-        aic: 2.0 * k as f64 - 2.0 * loglik,
-        used: plan.used(),
-        families,
-    })
+            .collect()
+    }
 }
