@@ -8,7 +8,8 @@ Model (no closed form, so both run Euler–Maruyama):
 400,000 paths and 200 steps by default. numpy: in-place array updates over all paths, one
 normal draw per path per step (numpy's default generator, PCG64 with the ziggurat method).
 The Rust side (crates/sdeck-simulate/benches/throughput.rs) times the engine and the floor,
-the time to draw as many normals with the engine's generator and sampler alone.
+the time to draw as many normals with the engine's generator and sampler alone, on the
+machine's best instruction set (SDECK_BENCH_ISA=baseline in the environment: SSE2 only).
 
     pip install numpy
     cargo bench -p sdeck-simulate --bench throughput --no-run
@@ -81,15 +82,16 @@ def main() -> None:
         best_floor = min(best_floor, rust["floor_seconds"])
         figures["sdeck"] = (rust["mean"], rust["se"])
         threads = int(rust["threads"])
+        isa = "AVX2" if rust.get("avx2") else "baseline SSE2"
     path_steps = args.paths * args.steps
     print(f"logistic model, {args.paths} paths x {args.steps} steps, best of {args.rounds} rounds; "
           f"numpy {np.__version__}, python {sys.version.split()[0]}; load average {os.getloadavg()[0]:.1f}")
     print(f"| run | seconds | ns per path-step | ratio |")
     print(f"|---|---:|---:|---:|")
     print(f"| numpy, vectorised (one core) | {best_numpy:.3f} | {best_numpy / path_steps * 1e9:.2f} | 1.0x |")
-    print(f"| sdeck engine, {threads} threads | {best_engine:.3f} | {best_engine / path_steps * 1e9:.2f} | "
+    print(f"| sdeck engine, {threads} threads, {isa} | {best_engine:.3f} | {best_engine / path_steps * 1e9:.2f} | "
           f"{best_numpy / best_engine:.1f}x faster than numpy |")
-    print(f"| sampler floor, {threads} threads | {best_floor:.3f} | {best_floor / path_steps * 1e9:.2f} | "
+    print(f"| sampler floor, {threads} threads, {isa} | {best_floor:.3f} | {best_floor / path_steps * 1e9:.2f} | "
           f"engine / floor = {best_engine / best_floor:.2f} |")
     for name, (mean, se) in figures.items():
         print(f"mean c(1), {name}: {mean:.5f} +- {se:.5f}")

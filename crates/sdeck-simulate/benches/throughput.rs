@@ -7,15 +7,17 @@
 //! Run: `cargo bench -p sdeck-simulate --bench throughput`. Environment:
 //! SDECK_BENCH_PATHS (400000), SDECK_BENCH_STEPS (200), SDECK_BENCH_THREADS (all cores),
 //! SDECK_BENCH_RUNS (3 timed runs after a warm-up), SDECK_BENCH_ONLY=yardstick to skip the
-//! square-root part. bench/simulate_vs_numpy.py runs it beside numpy and prints the ratios.
+//! square-root part, SDECK_BENCH_ISA=baseline to run the baseline (SSE2) copy of the block
+//! loop instead of the machine's best. bench/simulate_vs_numpy.py runs it beside numpy and prints the ratios.
 //! Lines starting with `result ` are read by that script.
 
 use rayon::prelude::*;
 use sdeck_semantics::analyze;
 use sdeck_simulate::bytecode::{Lanes, LANES};
-use sdeck_simulate::normals::fill_normals_chunk;
+use sdeck_simulate::isa::Isa;
+use sdeck_simulate::normals::fill_normals_chunk_inline;
 use sdeck_simulate::streams::BlockStream;
-use sdeck_simulate::{plan_from_model, simulate_paths, Scheme, SimulationOptions};
+use sdeck_simulate::{plan_from_model, simulate_paths_on, Scheme, SimulationOptions};
 use std::time::Instant;
 
 const LOGISTIC: &str = "
@@ -69,9 +71,10 @@ fn engine_seconds(
     model: &sdeck_semantics::Model,
     plan: &sdeck_simulate::Plan,
     options: &SimulationOptions,
+    isa: Isa,
 ) -> (f64, f64, f64) {
     let start = Instant::now();
-    let samples = match simulate_paths(model, plan, options) {
+    let samples = match simulate_paths_on(model, plan, options, isa) {
         Ok(samples) => samples,
         Err(error) => {
             eprintln!("simulation failed: {error}");
@@ -87,8 +90,9 @@ fn engine_seconds(
 }
 
 /// The floor: `paths × steps` normals drawn block by block (one xoshiro256++ stream per
-/// block of 64 paths and the ziggurat, as the engine does) on `threads` threads, summed so that nothing is skipped.
-fn floor_seconds(paths: usize, steps: usize, threads: usize, seed: u64) -> f64 {
+/// block of 64 paths and the ziggurat, as the engine does, compiled for `isa` as the
+/// engine's step is) on `threads` threads, summed so that nothing is skipped.
+fn floor_seconds(paths: usize, steps: usize, threads: usize, seed: u64, isa: Isa) -> f64 {
     let pool = match rayon::ThreadPoolBuilder::new().num_threads(threads).build() {
         Ok(pool) => pool,
         Err(error) => {
@@ -107,10 +111,15 @@ fn floor_seconds(paths: usize, steps: usize, threads: usize, seed: u64) -> f64 {
                 let mut normals: Lanes = [0.0; LANES];
                 let mut sum = [0.0; LANES];
                 for _ in 0..steps {
-                    fill_normals_chunk(&mut rng, &mut words, &mut normals);
-                    for (s, z) in sum.iter_mut().zip(&normals) {
-                        *s += z;
-                    }
+                    isa.run(
+                        #[inline(always)]
+                        || {
+                            fill_normals_chunk_inline(&mut rng, &mut words, &mut normals);
+                            for (s, z) in sum.iter_mut().zip(&normals) {
+                                *s += z;
+                            }
+                        },
+                    );
                 }
                 sum.iter().sum::<f64>()
             })
@@ -127,6 +136,10 @@ fn main() {
     let runs = from_env("SDECK_BENCH_RUNS", 3);
     let cores = std::thread::available_parallelism().map_or(1, |n| n.get());
     let threads = from_env("SDECK_BENCH_THREADS", cores);
+    let isa = match std::env::var("SDECK_BENCH_ISA").as_deref() {
+        Ok("baseline") => Isa::Baseline,
+        _ => Isa::detected(),
+    };
 
     let model = analysed(LOGISTIC, "logistic");
     let plan = plan_from_model(&model);
@@ -147,13 +160,13 @@ fn main() {
     };
     let mut figures = (0.0, 0.0);
     let engine = best_of(runs, || {
-        let (seconds, mean, se) = engine_seconds(&model, &plan, &options);
+        let (seconds, mean, se) = engine_seconds(&model, &plan, &options, isa);
         figures = (mean, se);
         seconds
     });
-    let floor = best_of(runs, || floor_seconds(paths, steps, threads, 2026));
+    let floor = best_of(runs, || floor_seconds(paths, steps, threads, 2026, isa));
     let path_steps = (paths * steps) as f64;
-    println!("logistic, Euler–Maruyama: {paths} paths × {steps} steps, {threads} threads");
+    println!("logistic, Euler–Maruyama: {paths} paths × {steps} steps, {threads} threads, {isa:?}");
     println!(
         "  engine {engine:.3} s ({:.2} ns per path-step), floor {floor:.3} s ({:.2} ns per normal): engine / floor = {:.2}",
         engine / path_steps * 1e9,
@@ -162,8 +175,10 @@ fn main() {
     );
     println!("  mean c(1) = {:.5} ± {:.5}", figures.0, figures.1);
     println!(
-        "result engine_seconds={engine:.6} floor_seconds={floor:.6} mean={:.6} se={:.6} threads={threads}",
-        figures.0, figures.1
+        "result engine_seconds={engine:.6} floor_seconds={floor:.6} mean={:.6} se={:.6} threads={threads} avx2={}",
+        figures.0,
+        figures.1,
+        u8::from(isa == Isa::Avx2)
     );
 
     if std::env::var("SDECK_BENCH_ONLY").is_ok_and(|v| v == "yardstick") {
@@ -171,7 +186,7 @@ fn main() {
     }
     let model = analysed(SQUARE_ROOT, "square_root");
     let plan = plan_from_model(&model);
-    let seconds = best_of(runs, || engine_seconds(&model, &plan, &options).0);
+    let seconds = best_of(runs, || engine_seconds(&model, &plan, &options, isa).0);
     println!(
         "square root, {}: {paths} paths × {steps} steps, {threads} threads: {seconds:.3} s ({:.2} ns per path-step)",
         plan.describe_state(0),

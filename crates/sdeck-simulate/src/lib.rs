@@ -8,6 +8,7 @@
 //!   equations;
 //! - [`streams`]: the random stream of a block, xoshiro256++ in 16 lanes;
 //! - [`normals`]: standard normals in bulk, a vectorised ziggurat over that stream;
+//! - [`isa`]: the instruction set the block loop is compiled for, chosen at run time;
 //! - [`bytecode`]: drift and diffusion compiled to a flat program run over 64 paths at once;
 //! - [`engine`]: blocks of paths with one random stream each, on a local thread pool;
 //! - [`stats`] and [`report`]: figures with Monte Carlo standard errors, the bias by step
@@ -33,6 +34,7 @@ pub mod affine;
 pub mod bytecode;
 pub mod closed_form;
 pub mod engine;
+pub mod isa;
 pub mod normals;
 pub mod plan;
 pub mod plot;
@@ -47,8 +49,8 @@ pub use closed_form::{
     simulate_and_compare_below,
 };
 pub use engine::{
-    reporting_dates, simulate_paths, DiscountSamples, PathSamples, SimulateError,
-    SimulationOptions, DEFAULT_MEMORY_LIMIT,
+    reporting_dates, simulate_paths, simulate_paths_on, DiscountSamples, PathSamples,
+    SimulateError, SimulationOptions, DEFAULT_MEMORY_LIMIT,
 };
 pub use plan::{plan, plan_from_model, ExactLaw, GaussianGroup, Plan, Scheme, VarianceDriven};
 pub use plot::{fan_chart_svg, write_fan_chart, PlotError};

@@ -4,9 +4,10 @@
 
 use sdeck_calculus::{derive, moments_at};
 use sdeck_semantics::{analyze, Model};
+use sdeck_simulate::isa::Isa;
 use sdeck_simulate::{
-    check, fan_chart_svg, plan, plan_from_model, render_text, simulate, simulate_paths, to_json,
-    ExactLaw, Plan, Scheme, SimulateError, SimulationOptions,
+    check, fan_chart_svg, plan, plan_from_model, render_text, simulate, simulate_paths,
+    simulate_paths_on, to_json, ExactLaw, Plan, Scheme, SimulateError, SimulationOptions,
 };
 use statrs::distribution::{ContinuousCDF, Normal};
 
@@ -349,6 +350,82 @@ fn same_seed_gives_identical_output_on_one_and_two_threads() {
     assert_eq!(one_svg, two_svg);
     let (other_json, _) = run(2, 78);
     assert_ne!(one_json, other_json);
+}
+
+/// The engine's main paths in one model: an exact square root, a lognormal price under a
+/// correlation, a general Euler program and a polynomial Euler factor, with a discount.
+const EVERY_SCHEME: &str = "
+clock year
+measure risk-neutral
+param kappa = 1.6 [1/year] > 0
+param theta = 3.4% >= 0
+param sigma = 9% [1/sqrt(year)] > 0
+param a = 0.7 [1/year] > 0
+param b = 0.2 [1/sqrt(year)] > 0
+param mu = 3% [1/year]
+param vol = 0.25 [1/sqrt(year)] > 0
+param g = 1 [1/year] > 0
+param q = 0.3 [1/sqrt(year)] > 0
+shock W, V, U, S
+corr V S = 0.4
+factor r = 2.9% >= 0
+factor y = 1
+factor s = 100
+factor p = 0
+factor c = 0.1
+dr = kappa * (theta - r) dt + sigma * sqrt(r) dW
+dy = -a * y dt + b dV
+ds = mu * s dt + vol * s dS
+dp = g * (y - p - p^3) dt + q * sqrt(1 + p^2) dU
+dc = 5 * g * c * (1 - c) dt + q * c * (1 - c) dU
+discount r
+";
+
+#[test]
+fn every_instruction_set_gives_the_same_bits() {
+    // The block loop runs in a baseline (SSE2) copy and, on processors with AVX2, an AVX2
+    // copy of the same source; the values, the coarse grid of step doubling, the discount
+    // factors and the fan-chart bands must agree bit for bit.
+    let model = model(EVERY_SCHEME);
+    let plan = planned(&model);
+    assert!(matches!(
+        plan.schemes[0],
+        Scheme::Exact(ExactLaw::SquareRoot { .. })
+    ));
+    assert!(matches!(
+        plan.schemes[2],
+        Scheme::Exact(ExactLaw::Lognormal { .. })
+    ));
+    assert_eq!(plan.schemes[3..], [Scheme::Euler, Scheme::Euler]);
+    let options = SimulationOptions {
+        step_doubling: true,
+        band_times: 8,
+        dates: vec![0.5, 1.0],
+        ..options(1_000, 40, 1.0, 91)
+    };
+    let bits = |isa: Isa| {
+        let samples = simulate_paths_on(&model, &plan, &options, isa).unwrap();
+        let discount = samples.discount.as_ref().unwrap();
+        let mut all: Vec<u64> = Vec::new();
+        for values in [&samples.values, samples.coarse.as_ref().unwrap()] {
+            all.extend(values.iter().flatten().flatten().map(|x| x.to_bits()));
+        }
+        all.extend(discount.values.iter().flatten().map(|x| x.to_bits()));
+        all.extend(
+            samples
+                .band_values
+                .iter()
+                .flatten()
+                .flatten()
+                .map(|x| x.to_bits()),
+        );
+        all
+    };
+    let baseline = bits(Isa::Baseline);
+    assert!(baseline.len() > 2 * 5 * 2 * 1_000);
+    for isa in Isa::available() {
+        assert_eq!(bits(isa), baseline, "{isa:?}");
+    }
 }
 
 #[test]

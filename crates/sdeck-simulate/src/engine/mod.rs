@@ -24,13 +24,16 @@
 //! gathers their values.
 
 mod compile;
+mod gather;
 mod polynomial;
 mod step;
 
 use crate::bytecode::LANES;
+use crate::isa::Isa;
 use crate::plan::{ExactLaw, Plan, Scheme};
 use crate::progress::{Progress, Reporting};
 use compile::compile;
+use gather::{gather_discount, gather_states};
 use rayon::prelude::*;
 use sdeck_semantics::Model;
 use std::fmt;
@@ -353,6 +356,87 @@ pub fn simulate_paths(
     plan: &Plan,
     options: &SimulationOptions,
 ) -> Result<PathSamples, SimulateError> {
+    simulate_paths_on(model, plan, options, Isa::detected())
+}
+
+/// [`simulate_paths`] with each step compiled for `isa`: the values are the same bits
+/// whichever it is (for tests and benchmarks that compare instruction sets).
+pub fn simulate_paths_on(
+    model: &Model,
+    plan: &Plan,
+    options: &SimulationOptions,
+    isa: Isa,
+) -> Result<PathSamples, SimulateError> {
+    let dates = check_request(model, plan, options)?;
+    let mut warnings = plan.notes.clone();
+    let compiled = compile(
+        model,
+        plan,
+        &dates,
+        options.steps,
+        options.step_doubling,
+        &mut warnings,
+    )?;
+    let total_steps: usize = compiled.segments.iter().map(|s| s.steps).sum();
+    let record_steps = band_steps(total_steps, options.band_times.min(MAX_BAND_TIMES));
+    let outputs = run_blocks(&compiled, options, &record_steps, isa)?;
+
+    let (paths, states) = (options.paths, model.factors.len());
+    let values = gather_states(&outputs, paths, states, dates.len(), |o| &o.values);
+    let coarse = compiled
+        .step_doubling
+        .then(|| gather_states(&outputs, paths, states, dates.len(), |o| &o.coarse));
+    let discount = compiled.discount.as_ref().map(|_| DiscountSamples {
+        values: gather_discount(&outputs, paths, dates.len(), |o| &o.discount),
+        coarse: compiled
+            .step_doubling
+            .then(|| gather_discount(&outputs, paths, dates.len(), |o| &o.coarse_discount)),
+        order: discount_order(model, &compiled.discretised),
+    });
+    let band_paths = paths.min(MAX_BAND_PATHS);
+    let band_blocks = if record_steps.is_empty() {
+        0
+    } else {
+        band_paths.div_ceil(LANES)
+    };
+    let band_values = gather_states(
+        &outputs[..band_blocks],
+        band_paths,
+        states,
+        record_steps.len(),
+        |o| &o.bands,
+    );
+    drop(outputs);
+
+    Ok(PathSamples {
+        at: dates.last().copied().unwrap_or(0.0),
+        dates: dates.clone(),
+        clock_unit: model.clock.unit.clone(),
+        paths,
+        steps: total_steps,
+        seed: options.seed,
+        state_names: model.factors.iter().map(|s| s.name.clone()).collect(),
+        schemes: (0..states).map(|i| plan.describe_state(i)).collect(),
+        discretised: compiled.discretised.clone(),
+        values,
+        coarse,
+        discount,
+        band_times: record_steps
+            .iter()
+            .map(|s| step_time(&compiled.segments, &dates, *s))
+            .collect(),
+        band_values,
+        warnings,
+    })
+}
+
+/// The reporting dates of a run, once its sizes, plan and memory needs are checked (before
+/// anything is allocated).
+fn check_request(
+    model: &Model,
+    plan: &Plan,
+    options: &SimulationOptions,
+) -> Result<Vec<f64>, SimulateError> {
     let states = model.factors.len();
     if states == 0 {
         return Err(SimulateError::NoStates);
@@ -381,25 +465,23 @@ pub fn simulate_paths(
             max_paths: (limit.saturating_sub(stored_bytes(0, 0, band_values)) / per_path) as usize,
         });
     }
-    let mut warnings = plan.notes.clone();
-    let compiled = compile(
-        model,
-        plan,
-        &dates,
-        options.steps,
-        options.step_doubling,
-        &mut warnings,
-    )?;
-    let total_steps: usize = compiled.segments.iter().map(|s| s.steps).sum();
+    Ok(dates)
+}
 
+/// Every block of paths on a local thread pool, in block order; the first blocks (up to
+/// [`MAX_BAND_PATHS`] paths) also record the band grid.
+fn run_blocks(
+    compiled: &compile::Compiled,
+    options: &SimulationOptions,
+    record_steps: &[usize],
+    isa: Isa,
+) -> Result<Vec<BlockOutput>, SimulateError> {
     let blocks = options.paths.div_ceil(LANES);
-    let record_steps = band_steps(total_steps, band_times);
     let band_blocks = if record_steps.is_empty() {
         0
     } else {
         options.paths.min(MAX_BAND_PATHS).div_ceil(LANES)
     };
-
     let mut builder = rayon::ThreadPoolBuilder::new();
     if let Some(threads) = options.threads {
         builder = builder.num_threads(threads.max(1));
@@ -408,18 +490,19 @@ pub fn simulate_paths(
         .build()
         .map_err(|e| SimulateError::ThreadPool(e.to_string()))?;
     let progress = Reporting::start(options.progress.as_ref(), blocks);
-    let outputs: Vec<BlockOutput> = pool.install(|| {
+    let outputs = pool.install(|| {
         (0..blocks)
             .into_par_iter()
             .map_init(
-                || Scratch::new(&compiled),
+                || Scratch::new(compiled),
                 |scratch, block| {
                     let records: &[usize] = if block < band_blocks {
-                        &record_steps
+                        record_steps
                     } else {
                         &[]
                     };
-                    let output = simulate_block(&compiled, scratch, options.seed, block, records);
+                    let output =
+                        simulate_block(compiled, scratch, options.seed, block, records, isa);
                     progress.advance();
                     output
                 },
@@ -427,83 +510,19 @@ pub fn simulate_paths(
             .collect()
     });
     drop(progress);
+    Ok(outputs)
+}
 
-    let gather = |pick: &dyn Fn(&BlockOutput) -> &[f64]| -> Vec<Vec<Vec<f64>>> {
-        let mut gathered = vec![vec![Vec::with_capacity(options.paths); states]; dates.len()];
-        for (block, output) in outputs.iter().enumerate() {
-            let lanes_used = (options.paths - block * LANES).min(LANES);
-            let values = pick(output);
-            for (d, per_state) in gathered.iter_mut().enumerate() {
-                for (i, target) in per_state.iter_mut().enumerate() {
-                    let start = (d * states + i) * LANES;
-                    target.extend_from_slice(&values[start..start + lanes_used]);
-                }
-            }
+/// Time of each global step index, for the band grid.
+fn step_time(segments: &[compile::Segment], dates: &[f64], index: usize) -> f64 {
+    let mut remaining = index;
+    for segment in segments {
+        if remaining <= segment.steps {
+            return segment.start + remaining as f64 * segment.dt;
         }
-        gathered
-    };
-    let values = gather(&|o| &o.values);
-    let coarse = compiled.step_doubling.then(|| gather(&|o| &o.coarse));
-    let gather_discount = |pick: &dyn Fn(&BlockOutput) -> &[f64]| -> Vec<Vec<f64>> {
-        let mut gathered = vec![Vec::with_capacity(options.paths); dates.len()];
-        for (block, output) in outputs.iter().enumerate() {
-            let lanes_used = (options.paths - block * LANES).min(LANES);
-            let values = pick(output);
-            for (d, target) in gathered.iter_mut().enumerate() {
-                target.extend_from_slice(&values[d * LANES..d * LANES + lanes_used]);
-            }
-        }
-        gathered
-    };
-    let discount = compiled.discount.as_ref().map(|_| DiscountSamples {
-        values: gather_discount(&|o| &o.discount),
-        coarse: compiled
-            .step_doubling
-            .then(|| gather_discount(&|o| &o.coarse_discount)),
-        order: discount_order(model, &compiled.discretised),
-    });
-    let band_paths = options.paths.min(MAX_BAND_PATHS);
-    let mut band_values = vec![vec![Vec::with_capacity(band_paths); states]; record_steps.len()];
-    for (block, output) in outputs.iter().enumerate().take(band_blocks) {
-        let lanes_used = (band_paths - block * LANES).min(LANES);
-        for (r, per_state) in band_values.iter_mut().enumerate() {
-            for (i, values) in per_state.iter_mut().enumerate() {
-                let start = (r * states + i) * LANES;
-                values.extend_from_slice(&output.bands[start..start + lanes_used]);
-            }
-        }
+        remaining -= segment.steps;
     }
-    drop(outputs);
-
-    // Time of each global step index, for the band grid.
-    let step_time = |index: usize| -> f64 {
-        let mut remaining = index;
-        for segment in &compiled.segments {
-            if remaining <= segment.steps {
-                return segment.start + remaining as f64 * segment.dt;
-            }
-            remaining -= segment.steps;
-        }
-        dates.last().copied().unwrap_or(0.0)
-    };
-
-    Ok(PathSamples {
-        at: dates.last().copied().unwrap_or(0.0),
-        dates: dates.clone(),
-        clock_unit: model.clock.unit.clone(),
-        paths: options.paths,
-        steps: total_steps,
-        seed: options.seed,
-        state_names: model.factors.iter().map(|s| s.name.clone()).collect(),
-        schemes: (0..states).map(|i| plan.describe_state(i)).collect(),
-        discretised: compiled.discretised.clone(),
-        values,
-        coarse,
-        discount,
-        band_times: record_steps.iter().map(|s| step_time(*s)).collect(),
-        band_values,
-        warnings,
-    })
+    dates.last().copied().unwrap_or(0.0)
 }
 
 #[cfg(test)]

@@ -66,23 +66,17 @@ impl PolynomialStep {
 
     /// `to = from + a(from)·dt + b(from)·increment`, lane by lane.
     #[inline(always)]
-    pub(crate) fn advance<const FMA: bool>(
-        &self,
-        from: &Lanes,
-        to: &mut Lanes,
-        dt: f64,
-        increment: &Lanes,
-    ) {
+    pub(crate) fn advance(&self, from: &Lanes, to: &mut Lanes, dt: f64, increment: &Lanes) {
         match self.degree {
-            0 | 1 => self.advance_degree::<1, FMA>(from, to, dt, increment),
-            2 => self.advance_degree::<2, FMA>(from, to, dt, increment),
-            3 => self.advance_degree::<3, FMA>(from, to, dt, increment),
-            _ => self.advance_degree::<MAX_DEGREE, FMA>(from, to, dt, increment),
+            0 | 1 => self.advance_degree::<1>(from, to, dt, increment),
+            2 => self.advance_degree::<2>(from, to, dt, increment),
+            3 => self.advance_degree::<3>(from, to, dt, increment),
+            _ => self.advance_degree::<MAX_DEGREE>(from, to, dt, increment),
         }
     }
 
     #[inline(always)]
-    fn advance_degree<const D: usize, const FMA: bool>(
+    fn advance_degree<const D: usize>(
         &self,
         from: &Lanes,
         to: &mut Lanes,
@@ -95,21 +89,11 @@ impl PolynomialStep {
             let mut a = p[D];
             let mut b = q[D];
             for k in (0..D).rev() {
-                a = madd::<FMA>(a, y, p[k]);
-                b = madd::<FMA>(b, y, q[k]);
+                a = a * y + p[k];
+                b = b * y + q[k];
             }
-            *next = madd::<FMA>(b, *dw, madd::<FMA>(a, dt, *x));
+            *next = b * dw + (a * dt + x);
         }
-    }
-}
-
-/// a·b + c, fused where the selected target has FMA.
-#[inline(always)]
-fn madd<const FMA: bool>(a: f64, b: f64, c: f64) -> f64 {
-    if FMA {
-        a.mul_add(b, c)
-    } else {
-        a * b + c
     }
 }
 
@@ -141,7 +125,7 @@ mod tests {
         let mut to = [0.0; 64];
         let mut increment = [0.0; 64];
         increment[3] = -0.05;
-        step.advance::<false>(&from, &mut to, 0.01, &increment);
+        step.advance(&from, &mut to, 0.01, &increment);
         let g = 0.4 * (2.0 - 0.4);
         assert!((to[0] - (0.4 + 1.5 * g * 0.01)).abs() < 1e-15);
         assert!((to[3] - (0.4 + 1.5 * g * 0.01 - 0.3 * g * 0.05)).abs() < 1e-15);
@@ -166,7 +150,7 @@ mod tests {
     fn truncation_reads_the_positive_part() {
         let step = PolynomialStep::new([1.0, 2.0, 0.0, 0.0, 0.0], [0.0; 5], true);
         let mut to = [0.0; 64];
-        step.advance::<true>(&[-0.5; 64], &mut to, 0.1, &[0.0; 64]);
+        step.advance(&[-0.5; 64], &mut to, 0.1, &[0.0; 64]);
         // a(max(−0.5, 0)) = 1, so −0.5 + 0.1.
         assert!((to[0] + 0.4).abs() < 1e-15);
     }

@@ -3,7 +3,8 @@
 //! the values recorded at the dates.
 
 use crate::bytecode::{Lanes, LANES};
-use crate::normals::fill_normals_chunk;
+use crate::isa::Isa;
+use crate::normals::fill_normals_chunk_inline;
 use crate::streams::BlockStream;
 
 use super::compile::{Compiled, EulerState, GroupStep, LognormalState, Segment};
@@ -80,12 +81,7 @@ pub(super) fn reported(value: f64, truncated: bool) -> f64 {
 }
 
 /// Correlated Brownian increments √Δ·L·Z from the normals of every noise.
-#[multiversion::multiversion(targets(
-    "x86_64+avx512f+avx512dq+avx512vl",
-    "x86_64+avx2+fma",
-    "x86_64+sse4.1",
-    "aarch64+neon"
-))]
+#[inline(always)]
 pub(super) fn increments_from_normals(
     factor: Option<&[Vec<f64>]>,
     sqrt_dt: f64,
@@ -117,14 +113,31 @@ pub(super) fn increments_from_normals(
     }
 }
 
+/// The increment of a state with no shock.
+static NO_INCREMENT: Lanes = [0.0; LANES];
+
+/// The increments of `noise`, or on the coarse grid their sums with `extra` (in `buffer`).
+#[inline(always)]
+fn summed_increment<'a>(
+    increments: &'a [Lanes],
+    extra: Option<&[Lanes]>,
+    noise: usize,
+    buffer: &'a mut Lanes,
+) -> &'a Lanes {
+    match extra {
+        None => &increments[noise],
+        Some(extra) => {
+            for ((b, d), e) in buffer.iter_mut().zip(&increments[noise]).zip(&extra[noise]) {
+                *b = d + e;
+            }
+            buffer
+        }
+    }
+}
+
 /// One Euler–Maruyama step of every Euler state, from `from` to `to`, over `dt` with
 /// increments `increments` (or the sums `increments + extra`, for the coarse grid).
-#[multiversion::multiversion(targets(
-    "x86_64+avx512f+avx512dq+avx512vl",
-    "x86_64+avx2+fma",
-    "x86_64+sse4.1",
-    "aarch64+neon"
-))]
+#[inline(always)]
 #[allow(clippy::too_many_arguments)]
 pub(super) fn euler_step(
     euler: &[EulerState],
@@ -137,25 +150,15 @@ pub(super) fn euler_step(
     stack: &mut [Lanes],
     value: &mut Lanes,
 ) {
-    let fma = multiversion::target::target_cfg_f!(target_feature = "fma");
+    let mut summed = [0.0; LANES];
     for state in euler {
         let i = state.index;
         if let Some(polynomial) = &state.polynomial {
-            let mut increment = [0.0; LANES];
-            if let Some((noise, _)) = state.diffusion.first() {
-                increment = increments[*noise];
-                if let Some(extra) = extra {
-                    for (d, e) in increment.iter_mut().zip(&extra[*noise]) {
-                        *d += e;
-                    }
-                }
-            }
-            let (target, start) = (&mut to[i], &from[i]);
-            if fma {
-                polynomial.advance::<true>(start, target, dt, &increment);
-            } else {
-                polynomial.advance::<false>(start, target, dt, &increment);
-            }
+            let increment = match state.diffusion.first() {
+                Some((noise, _)) => summed_increment(increments, extra, *noise, &mut summed),
+                None => &NO_INCREMENT,
+            };
+            polynomial.advance(&from[i], &mut to[i], dt, increment);
             continue;
         }
         state.drift.evaluate(from, t, stack, value);
@@ -164,19 +167,14 @@ pub(super) fn euler_step(
             *n = x + a * dt;
         }
         for (noise, program) in &state.diffusion {
-            let mut increment = increments[*noise];
-            if let Some(extra) = extra {
-                for (d, e) in increment.iter_mut().zip(&extra[*noise]) {
-                    *d += e;
-                }
-            }
+            let increment = summed_increment(increments, extra, *noise, &mut summed);
             if let Some(c) = program.constant() {
-                for (n, d) in to[i].iter_mut().zip(&increment) {
+                for (n, d) in to[i].iter_mut().zip(increment) {
                     *n += c * d;
                 }
             } else {
                 program.evaluate(from, t, stack, value);
-                for ((n, b), d) in to[i].iter_mut().zip(value.iter()).zip(&increment) {
+                for ((n, b), d) in to[i].iter_mut().zip(value.iter()).zip(increment) {
                     *n += b * d;
                 }
             }
@@ -184,12 +182,7 @@ pub(super) fn euler_step(
     }
 }
 
-#[multiversion::multiversion(targets(
-    "x86_64+avx512f+avx512dq+avx512vl",
-    "x86_64+avx2+fma",
-    "x86_64+sse4.1",
-    "aarch64+neon"
-))]
+#[inline(always)]
 pub(super) fn lognormal_step(
     states: &[LognormalState],
     drifts: &[f64],
@@ -241,6 +234,7 @@ pub(super) fn group_step(
 
 /// Advances a block by one step of `segment`; `t` is the time at the start of the step,
 /// `second_of_pair` says whether this step closes a pair of the coarse grid.
+#[inline(always)]
 pub(super) fn advance(
     compiled: &Compiled,
     segment: &Segment,
@@ -271,7 +265,7 @@ pub(super) fn advance(
 
     if compiled.needs_normals {
         for lanes in normals.iter_mut() {
-            fill_normals_chunk(rng, words, lanes);
+            fill_normals_chunk_inline(rng, words, lanes);
         }
     }
     if compiled.needs_increments {
@@ -310,7 +304,7 @@ pub(super) fn advance(
     }
     if let Some(group) = &segment.group {
         for lanes in group_normals.iter_mut() {
-            fill_normals_chunk(rng, words, lanes);
+            fill_normals_chunk_inline(rng, words, lanes);
         }
         group_step(group, current, next, group_normals, value);
     }
@@ -433,21 +427,51 @@ pub(super) fn coarse_step(
     }
 }
 
+/// Simulates block `block`: its paths from the start to the last date, each step compiled
+/// for `isa` (the same bits whichever it is).
 pub(super) fn simulate_block(
     compiled: &Compiled,
     scratch: &mut Scratch,
     seed: u64,
     block: usize,
     record_steps: &[usize],
+    isa: Isa,
 ) -> BlockOutput {
     let mut rng = BlockStream::new(seed, block as u64);
+    start_block(compiled, scratch);
+    let mut output = BlockOutput::with_capacity(compiled, record_steps.len());
+    let mut next_record = record_steps.iter().peekable();
+    if next_record.peek() == Some(&&0) {
+        record(compiled, &scratch.current, &mut output.bands);
+        next_record.next();
+    }
+    let mut global = 0usize;
+    for segment in &compiled.segments {
+        for k in 0..segment.steps {
+            let t = segment.start + k as f64 * segment.dt;
+            isa.run(
+                #[inline(always)]
+                || advance(compiled, segment, scratch, &mut rng, t, k % 2 == 1),
+            );
+            global += 1;
+            if next_record.peek() == Some(&&global) {
+                record(compiled, &scratch.current, &mut output.bands);
+                next_record.next();
+            }
+        }
+        close_date(compiled, scratch, &mut output);
+    }
+    output
+}
+
+/// Every path of the block at its initial values, and the discount integrals at zero.
+fn start_block(compiled: &Compiled, scratch: &mut Scratch) {
     for (lanes, x0) in scratch.current.iter_mut().zip(&compiled.initial) {
         lanes.fill(*x0);
     }
     for (lanes, x0) in scratch.coarse.iter_mut().zip(&compiled.initial) {
         lanes.fill(*x0);
     }
-    let with_discount = compiled.discount.is_some();
     if let Some(program) = &compiled.discount {
         program.evaluate(
             &scratch.current,
@@ -460,65 +484,55 @@ pub(super) fn simulate_block(
         scratch.integral = [0.0; LANES];
         scratch.coarse_integral = [0.0; LANES];
     }
-    let date_count = compiled.segments.len();
-    let mut discount = Vec::with_capacity(if with_discount { date_count * LANES } else { 0 });
-    let mut coarse_discount = Vec::with_capacity(if with_discount && compiled.step_doubling {
-        date_count * LANES
-    } else {
-        0
-    });
-    let states = compiled.state_count;
-    let dates = compiled.segments.len();
-    let mut bands = Vec::with_capacity(record_steps.len() * states * LANES);
-    let mut values = Vec::with_capacity(dates * states * LANES);
-    let mut coarse = Vec::with_capacity(if compiled.step_doubling {
-        dates * states * LANES
-    } else {
-        0
-    });
-    let record = |current: &[Lanes], out: &mut Vec<f64>| {
-        for (i, lanes) in current.iter().enumerate() {
-            let truncated = compiled.truncated[i];
-            out.extend(lanes.iter().map(|x| reported(*x, truncated)));
+}
+
+impl BlockOutput {
+    /// Empty vectors with room for every date (and `records` band times) of one block.
+    fn with_capacity(compiled: &Compiled, records: usize) -> BlockOutput {
+        let (states, dates) = (compiled.state_count, compiled.segments.len());
+        let with_discount = compiled.discount.is_some();
+        let doubling = usize::from(compiled.step_doubling);
+        BlockOutput {
+            values: Vec::with_capacity(dates * states * LANES),
+            coarse: Vec::with_capacity(doubling * dates * states * LANES),
+            bands: Vec::with_capacity(records * states * LANES),
+            discount: Vec::with_capacity(usize::from(with_discount) * dates * LANES),
+            coarse_discount: Vec::with_capacity(
+                usize::from(with_discount) * doubling * dates * LANES,
+            ),
         }
-    };
-    let mut next_record = record_steps.iter().peekable();
-    if next_record.peek() == Some(&&0) {
-        record(&scratch.current, &mut bands);
-        next_record.next();
     }
-    let mut global = 0usize;
-    for segment in &compiled.segments {
-        for k in 0..segment.steps {
-            let t = segment.start + k as f64 * segment.dt;
-            advance(compiled, segment, scratch, &mut rng, t, k % 2 == 1);
-            global += 1;
-            if next_record.peek() == Some(&&global) {
-                record(&scratch.current, &mut bands);
-                next_record.next();
+}
+
+/// The reported value of every state of `current`, appended to `out`.
+fn record(compiled: &Compiled, current: &[Lanes], out: &mut Vec<f64>) {
+    for (i, lanes) in current.iter().enumerate() {
+        let truncated = compiled.truncated[i];
+        out.extend(lanes.iter().map(|x| reported(*x, truncated)));
+    }
+}
+
+/// At a reporting date: the states, the discount factors and, with step doubling, the same
+/// on the coarse grid (whose exact states are the fine ones).
+fn close_date(compiled: &Compiled, scratch: &mut Scratch, output: &mut BlockOutput) {
+    let with_discount = compiled.discount.is_some();
+    record(compiled, &scratch.current, &mut output.values);
+    if with_discount {
+        output
+            .discount
+            .extend(scratch.integral.iter().map(|i| (-i).exp()));
+    }
+    if compiled.step_doubling {
+        for (i, discretised) in compiled.discretised.iter().enumerate() {
+            if !discretised {
+                scratch.coarse[i] = scratch.current[i];
             }
         }
-        record(&scratch.current, &mut values);
+        record(compiled, &scratch.coarse, &mut output.coarse);
         if with_discount {
-            discount.extend(scratch.integral.iter().map(|i| (-i).exp()));
+            output
+                .coarse_discount
+                .extend(scratch.coarse_integral.iter().map(|i| (-i).exp()));
         }
-        if compiled.step_doubling {
-            for (i, discretised) in compiled.discretised.iter().enumerate() {
-                if !discretised {
-                    scratch.coarse[i] = scratch.current[i];
-                }
-            }
-            record(&scratch.coarse, &mut coarse);
-            if with_discount {
-                coarse_discount.extend(scratch.coarse_integral.iter().map(|i| (-i).exp()));
-            }
-        }
-    }
-    BlockOutput {
-        values,
-        coarse,
-        bands,
-        discount,
-        coarse_discount,
     }
 }
