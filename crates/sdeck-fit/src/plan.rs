@@ -53,85 +53,87 @@ pub(crate) fn factor_name(model: &Model, factor: FactorId) -> String {
         .unwrap_or_default()
 }
 
-// Long (about 165 lines): one pass over the observed factors deciding each one's law or
-// the reason it has none, then the joint (linear-system) fallback with its own reasons;
-// the reasons are the point of the function and read best in one place.
+/// What the likelihood is made of: each observed factor's own transition law when every
+/// one has a law in closed form and no two are linked by their shocks; otherwise the
+/// whole model as a fully observed linear system, or the reason there is no exact
+/// likelihood.
 pub(crate) fn plan(problem: &Problem) -> Result<Plan, FitError> {
     let model = problem.model;
-    let series = problem.series;
     let mut singles = Vec::new();
     let mut single_reason = None;
     for (column, &factor) in problem.factors.iter().enumerate() {
-        let name = factor_name(model, factor);
-        match one_state_form(model, factor.index()) {
-            Ok(form) if form.time_dependent && !form.additive_noise() => {
-                single_reason = Some((
-                    name,
-                    "its coefficients depend on t and its noise on its own value; with \
-                     coefficients of t only Gaussian factors (noise free of the factor) \
-                     have an exact likelihood here"
-                        .to_string(),
-                ));
-            }
-            Ok(form) => match fitted_family(&form) {
-                Family::Deterministic => {
-                    single_reason = Some((
-                        name,
-                        "no shock drives it, so its path is fixed by its start and its \
-                         parameters: a transition with variance 0 has no likelihood to \
-                         maximise (add a shock, or fix its parameters with --fix)"
-                            .to_string(),
-                    ));
-                }
-                family
-                    if form.time_dependent
-                        || matches!(
-                            family,
-                            Family::ArithmeticBrownian
-                                | Family::OrnsteinUhlenbeck
-                                | Family::GeometricBrownian
-                                | Family::SquareRoot
-                        ) =>
-                {
-                    let points = series
-                        .values
-                        .get(column)
-                        .map(|col| {
-                            col.iter()
-                                .enumerate()
-                                .filter_map(|(i, v)| Some((*series.times.get(i)?, (*v)?, i)))
-                                .collect()
-                        })
-                        .unwrap_or_default();
-                    let points: Vec<(f64, f64, usize)> = points;
-                    let steps = points
-                        .windows(2)
-                        .map(|w| law::Transition::new(w[1].0 - w[0].0, w[0].1, w[1].1))
-                        .collect();
-                    singles.push(Single {
-                        column,
-                        family,
-                        form,
-                        points,
-                        steps,
-                    })
-                }
-                family => {
-                    single_reason = Some((
-                        name,
-                        format!(
-                            "it is of the {} family ({}), whose transition law is not known \
-                             in closed form",
-                            family.as_str(),
-                            form.reason
-                        ),
-                    ))
-                }
-            },
-            Err(reason) => single_reason = Some((name, reason)),
+        match single(problem, column, factor) {
+            Ok(s) => singles.push(s),
+            Err(reason) => single_reason = Some((factor_name(model, factor), reason)),
         }
     }
-    // Independent factors: no shock shared or correlated between two fitted equations.
+    if single_reason.is_none() && independent(model, problem.factors) {
+        return Ok(Plan::Singles(singles));
+    }
+    system(problem, single_reason)
+}
+
+/// The transition law of the factor observed in `column`, or why it has none that is
+/// known in closed form.
+fn single(problem: &Problem, column: usize, factor: FactorId) -> Result<Single, String> {
+    let series = problem.series;
+    let form = one_state_form(problem.model, factor.index())?;
+    if form.time_dependent && !form.additive_noise() {
+        return Err(
+            "its coefficients depend on t and its noise on its own value; with \
+                    coefficients of t only Gaussian factors (noise free of the factor) \
+                    have an exact likelihood here"
+                .to_string(),
+        );
+    }
+    match fitted_family(&form) {
+        Family::Deterministic => Err("no shock drives it, so its path is fixed by its start \
+                                      and its parameters: a transition with variance 0 has \
+                                      no likelihood to maximise (add a shock, or fix its \
+                                      parameters with --fix)"
+            .to_string()),
+        family
+            if form.time_dependent
+                || matches!(
+                    family,
+                    Family::ArithmeticBrownian
+                        | Family::OrnsteinUhlenbeck
+                        | Family::GeometricBrownian
+                        | Family::SquareRoot
+                ) =>
+        {
+            let points: Vec<(f64, f64, usize)> = series
+                .values
+                .get(column)
+                .map(|col| {
+                    col.iter()
+                        .enumerate()
+                        .filter_map(|(i, v)| Some((*series.times.get(i)?, (*v)?, i)))
+                        .collect()
+                })
+                .unwrap_or_default();
+            let steps = points
+                .windows(2)
+                .map(|w| law::Transition::new(w[1].0 - w[0].0, w[0].1, w[1].1))
+                .collect();
+            Ok(Single {
+                column,
+                family,
+                form,
+                points,
+                steps,
+            })
+        }
+        family => Err(format!(
+            "it is of the {} family ({}), whose transition law is not known in closed form",
+            family.as_str(),
+            form.reason
+        )),
+    }
+}
+
+/// Whether no shock is shared or correlated between the equations of two of `factors`.
+fn independent(model: &Model, factors: &[FactorId]) -> bool {
     let shocks = |factor: FactorId| -> Vec<usize> {
         model
             .factors
@@ -153,17 +155,20 @@ pub(crate) fn plan(problem: &Problem) -> Result<Plan, FitError> {
         })
     };
     let mut independent = true;
-    for (i, &a) in problem.factors.iter().enumerate() {
-        for &b in problem.factors.iter().skip(i + 1) {
+    for (i, &a) in factors.iter().enumerate() {
+        for &b in factors.iter().skip(i + 1) {
             if linked(a, b) {
                 independent = false;
             }
         }
     }
-    if single_reason.is_none() && independent {
-        return Ok(Plan::Singles(singles));
-    }
-    // Otherwise: the whole model as a fully observed linear system.
+    independent
+}
+
+/// The whole model as a fully observed linear system; `single_reason` is why a factor
+/// has no law of its own (none when the factors are fitted jointly for their shocks).
+fn system(problem: &Problem, single_reason: Option<(String, String)>) -> Result<Plan, FitError> {
+    let (model, series) = (problem.model, problem.series);
     let n = model.factors.len();
     let mut columns = vec![usize::MAX; n];
     for (column, &factor) in problem.factors.iter().enumerate() {
