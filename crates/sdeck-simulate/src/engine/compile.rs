@@ -203,6 +203,21 @@ fn polynomial_step(
     Some(PolynomialStep::new(drift, diffusion, truncated))
 }
 
+/// The drift program and the (noise, diffusion program) terms of one factor.
+type StatePrograms = (Program, Vec<(usize, Program)>);
+
+/// The factors sorted by the scheme that advances them.
+#[derive(Default)]
+struct ByScheme {
+    euler: Vec<EulerState>,
+    lognormal: Vec<LognormalState>,
+    square_root: Vec<SquareRootState>,
+    driven: Vec<DrivenState>,
+}
+
+/// The Gaussian group's states, drift matrix, constant and noise covariance.
+type GroupMatrices = (Vec<usize>, DMatrix<f64>, DVector<f64>, DMatrix<f64>);
+
 pub(super) fn compile(
     model: &Model,
     plan: &Plan,
@@ -220,30 +235,7 @@ pub(super) fn compile(
 
     // Every equation must compile, whatever its scheme: an exact scheme on a broken model
     // would hide the error.
-    let mut programs = Vec::with_capacity(state_count);
-    for state in &model.factors {
-        let equation = state
-            .equation
-            .as_ref()
-            .ok_or_else(|| SimulateError::MissingEquation {
-                state: state.name.clone(),
-            })?;
-        let drift = Program::compile(&equation.drift, &params, state_count, &truncated)
-            .map_err(|e| compile_error(&state.name, e))?;
-        let mut diffusion = Vec::with_capacity(equation.diffusion.len());
-        for term in &equation.diffusion {
-            if term.noise.index() >= noise_count {
-                return Err(SimulateError::UnknownNoise {
-                    state: state.name.clone(),
-                });
-            }
-            let program = Program::compile(&term.coefficient, &params, state_count, &truncated)
-                .map_err(|e| compile_error(&state.name, e))?;
-            diffusion.push((term.noise.index(), program));
-        }
-        programs.push((drift, diffusion));
-    }
-
+    let programs = compile_programs(model, &params, &truncated)?;
     let discount = match &model.discount {
         Some(line) => Some(
             Program::compile(&line.rate, &params, state_count, &truncated)
@@ -252,6 +244,66 @@ pub(super) fn compile(
         None => None,
     };
 
+    let (effective, lower) = shock_factor(model, warnings)?;
+    let identity = lower == DMatrix::identity(noise_count, noise_count);
+
+    let mut by_scheme = sort_by_scheme(plan, programs, &effective, noise_count)?;
+    for state in &mut by_scheme.euler {
+        state.polynomial = polynomial_step(model, state.index, &params, truncated[state.index]);
+    }
+    // The driven step reads the variance's next value: square roots come first in a step.
+    let group = group_matrices(plan, &effective, noise_count);
+
+    let discretised: Vec<bool> = (0..state_count)
+        .map(|i| plan.schemes.get(i).is_none_or(Scheme::is_discretised))
+        .collect();
+    // The trapezoid of the discount has a bias even over exact factors.
+    let step_doubling = step_doubling && (discretised.iter().any(|d| *d) || discount.is_some());
+    let segments = cut_segments(dates, steps, step_doubling)
+        .into_iter()
+        .map(|(start, end, n)| segment(start, end, n, &by_scheme, group.as_ref()))
+        .collect::<Result<Vec<_>, _>>()?;
+
+    let stack_depth = stack_depth(&by_scheme.euler, discount.as_ref());
+    let ByScheme {
+        euler,
+        lognormal,
+        square_root,
+        driven,
+    } = by_scheme;
+    let needs_increments = noise_count > 0 && (!euler.is_empty() || !lognormal.is_empty());
+    let needs_normals = needs_increments || (noise_count > 0 && !driven.is_empty());
+    Ok(Compiled {
+        state_count,
+        noise_count,
+        initial: model.initial_values(),
+        euler,
+        lognormal,
+        square_root,
+        driven,
+        segments,
+        noise_factor: if identity {
+            None
+        } else {
+            Some(matrix_rows(&lower))
+        },
+        needs_normals,
+        needs_increments,
+        stack_depth,
+        truncated,
+        discretised,
+        step_doubling,
+        discount,
+    })
+}
+
+/// The correlation matrix the shocks are simulated with and its lower factor (a repaired
+/// matrix, with a warning, when the declared one is not positive semi-definite).
+fn shock_factor(
+    model: &Model,
+    warnings: &mut Vec<String>,
+) -> Result<(DMatrix<f64>, DMatrix<f64>), SimulateError> {
+    let noise_count = model.shocks.len();
     let correlation = model.correlation_matrix();
     let correlation = DMatrix::from_fn(noise_count, noise_count, |i, j| correlation[i][j]);
     let factor = correlation_factor(&correlation)
@@ -263,16 +315,55 @@ pub(super) fn compile(
                 .to_string(),
         );
     }
-    let effective = factor.effective.clone();
-    let identity = factor.lower == DMatrix::identity(noise_count, noise_count);
+    Ok((factor.effective, factor.lower))
+}
 
-    let mut euler = Vec::new();
-    let mut lognormal = Vec::new();
-    let mut square_root = Vec::new();
-    let mut driven = Vec::new();
+/// The drift and diffusion programs of every factor.
+fn compile_programs(
+    model: &Model,
+    params: &[f64],
+    truncated: &[bool],
+) -> Result<Vec<StatePrograms>, SimulateError> {
+    let state_count = model.factors.len();
+    let noise_count = model.shocks.len();
+    let mut programs = Vec::with_capacity(state_count);
+    for state in &model.factors {
+        let equation = state
+            .equation
+            .as_ref()
+            .ok_or_else(|| SimulateError::MissingEquation {
+                state: state.name.clone(),
+            })?;
+        let drift = Program::compile(&equation.drift, params, state_count, truncated)
+            .map_err(|e| compile_error(&state.name, e))?;
+        let mut diffusion = Vec::with_capacity(equation.diffusion.len());
+        for term in &equation.diffusion {
+            if term.noise.index() >= noise_count {
+                return Err(SimulateError::UnknownNoise {
+                    state: state.name.clone(),
+                });
+            }
+            let program = Program::compile(&term.coefficient, params, state_count, truncated)
+                .map_err(|e| compile_error(&state.name, e))?;
+            diffusion.push((term.noise.index(), program));
+        }
+        programs.push((drift, diffusion));
+    }
+    Ok(programs)
+}
+
+/// Each factor's step by its scheme; `effective` is the correlation matrix the shocks are
+/// simulated with (for the lognormal drift correction).
+fn sort_by_scheme(
+    plan: &Plan,
+    programs: Vec<StatePrograms>,
+    effective: &DMatrix<f64>,
+    noise_count: usize,
+) -> Result<ByScheme, SimulateError> {
+    let mut out = ByScheme::default();
     for (index, (drift, diffusion)) in programs.into_iter().enumerate() {
         match plan.schemes.get(index).unwrap_or(&Scheme::Euler) {
-            Scheme::Euler => euler.push(EulerState::new(index, drift, diffusion)),
+            Scheme::Euler => out.euler.push(EulerState::new(index, drift, diffusion)),
             Scheme::Exact(ExactLaw::LinearGaussian) => {}
             Scheme::Exact(ExactLaw::Lognormal { growth, loadings }) => {
                 let mut quadratic = 0.0;
@@ -281,7 +372,7 @@ pub(super) fn compile(
                         quadratic += dk * dl * effective.get((*k, *l)).copied().unwrap_or(0.0);
                     }
                 }
-                lognormal.push(LognormalState {
+                out.lognormal.push(LognormalState {
                     index,
                     log_drift_rate: growth - 0.5 * quadratic,
                     loadings: loadings
@@ -292,7 +383,7 @@ pub(super) fn compile(
                 });
             }
             Scheme::Exact(ExactLaw::SquareRoot { speed, level, vol }) => {
-                square_root.push(SquareRootState {
+                out.square_root.push(SquareRootState {
                     index,
                     speed: *speed,
                     level: *level,
@@ -310,7 +401,7 @@ pub(super) fn compile(
                         ))
                     }
                 };
-                driven.push(DrivenState {
+                out.driven.push(DrivenState {
                     index,
                     law: law.clone(),
                     variance,
@@ -318,104 +409,91 @@ pub(super) fn compile(
             }
         }
     }
-    for state in &mut euler {
-        state.polynomial = polynomial_step(model, state.index, &params, truncated[state.index]);
-    }
-    // The driven step reads the variance's next value: square roots come first in a step.
-    let group_matrices = match &plan.gaussian_group {
-        Some(group) if !group.states.is_empty() => {
-            let m = group.states.len();
-            let drift = DMatrix::from_fn(m, m, |i, j| group.drift[i][j]);
-            let constant = DVector::from_fn(m, |i, _| group.constant[i]);
-            let loadings = DMatrix::from_fn(m, noise_count, |i, k| group.loadings[i][k]);
-            let noise_covariance = &loadings * &effective * loadings.transpose();
-            Some((group.states.clone(), drift, constant, noise_covariance))
-        }
-        _ => None,
+    Ok(out)
+}
+
+/// The matrices of the plan's Gaussian group, if it has one.
+fn group_matrices(
+    plan: &Plan,
+    effective: &DMatrix<f64>,
+    noise_count: usize,
+) -> Option<GroupMatrices> {
+    let group = plan
+        .gaussian_group
+        .as_ref()
+        .filter(|g| !g.states.is_empty())?;
+    let m = group.states.len();
+    let drift = DMatrix::from_fn(m, m, |i, j| group.drift[i][j]);
+    let constant = DVector::from_fn(m, |i, _| group.constant[i]);
+    let loadings = DMatrix::from_fn(m, noise_count, |i, k| group.loadings[i][k]);
+    let noise_covariance = &loadings * effective * loadings.transpose();
+    Some((group.states.clone(), drift, constant, noise_covariance))
+}
+
+/// The steps of one interval between dates: `n` steps from `start` to `end`.
+fn segment(
+    start: f64,
+    end: f64,
+    n: usize,
+    by_scheme: &ByScheme,
+    group: Option<&GroupMatrices>,
+) -> Result<Segment, SimulateError> {
+    let dt = if n == 0 {
+        0.0
+    } else {
+        (end - start) / n as f64
     };
-
-    let discretised: Vec<bool> = (0..state_count)
-        .map(|i| plan.schemes.get(i).is_none_or(Scheme::is_discretised))
-        .collect();
-    // The trapezoid of the discount has a bias even over exact factors.
-    let step_doubling = step_doubling && (discretised.iter().any(|d| *d) || discount.is_some());
-    let segments = cut_segments(dates, steps, step_doubling)
-        .into_iter()
-        .map(|(start, end, n)| -> Result<Segment, SimulateError> {
-            let dt = if n == 0 {
-                0.0
-            } else {
-                (end - start) / n as f64
-            };
-            Ok(Segment {
-                start,
-                dt,
-                sqrt_dt: dt.sqrt(),
-                steps: n,
-                lognormal: lognormal.iter().map(|l| l.log_drift_rate * dt).collect(),
-                square_root: square_root
-                    .iter()
-                    .map(|q| SquareRootStep::new(q.speed, q.level, q.vol, dt))
-                    .collect(),
-                group: match group_matrices.as_ref() {
-                    None => None,
-                    Some((states, drift, constant, q)) => {
-                        let GaussianStep {
-                            transition,
-                            shift,
-                            noise_factor,
-                        } = gaussian_step(drift, constant, q, dt).ok_or_else(|| {
-                            SimulateError::Matrix(
-                                "the exact step of the Gaussian factors".to_string(),
-                            )
-                        })?;
-                        Some(GroupStep {
-                            states: states.clone(),
-                            transition: matrix_rows(&transition),
-                            shift: shift.iter().copied().collect(),
-                            noise_factor: matrix_rows(&noise_factor),
-                        })
-                    }
-                },
-                driven: driven.iter().map(|d| DrivenStep::new(d, dt)).collect(),
-                driven_coarse: driven
-                    .iter()
-                    .map(|d| DrivenStep::new(d, 2.0 * dt))
-                    .collect(),
+    let group = match group {
+        None => None,
+        Some((states, drift, constant, q)) => {
+            let GaussianStep {
+                transition,
+                shift,
+                noise_factor,
+            } = gaussian_step(drift, constant, q, dt).ok_or_else(|| {
+                SimulateError::Matrix("the exact step of the Gaussian factors".to_string())
+            })?;
+            Some(GroupStep {
+                states: states.clone(),
+                transition: matrix_rows(&transition),
+                shift: shift.iter().copied().collect(),
+                noise_factor: matrix_rows(&noise_factor),
             })
-        })
-        .collect::<Result<Vec<_>, _>>()?;
+        }
+    };
+    let driven = &by_scheme.driven;
+    Ok(Segment {
+        start,
+        dt,
+        sqrt_dt: dt.sqrt(),
+        steps: n,
+        lognormal: by_scheme
+            .lognormal
+            .iter()
+            .map(|l| l.log_drift_rate * dt)
+            .collect(),
+        square_root: by_scheme
+            .square_root
+            .iter()
+            .map(|q| SquareRootStep::new(q.speed, q.level, q.vol, dt))
+            .collect(),
+        group,
+        driven: driven.iter().map(|d| DrivenStep::new(d, dt)).collect(),
+        driven_coarse: driven
+            .iter()
+            .map(|d| DrivenStep::new(d, 2.0 * dt))
+            .collect(),
+    })
+}
 
-    let stack_depth = euler
+/// The deepest stack any program of the Euler states or the discount needs (at least 1).
+fn stack_depth(euler: &[EulerState], discount: Option<&Program>) -> usize {
+    euler
         .iter()
         .flat_map(|e| std::iter::once(&e.drift).chain(e.diffusion.iter().map(|(_, p)| p)))
-        .chain(discount.iter())
+        .chain(discount)
         .map(Program::max_depth)
         .max()
         .unwrap_or(0)
-        .max(1);
-    let needs_increments = noise_count > 0 && (!euler.is_empty() || !lognormal.is_empty());
-    let needs_normals = needs_increments || (noise_count > 0 && !driven.is_empty());
-    Ok(Compiled {
-        state_count,
-        noise_count,
-        initial: model.initial_values(),
-        euler,
-        lognormal,
-        square_root,
-        driven,
-        segments,
-        noise_factor: if identity {
-            None
-        } else {
-            Some(matrix_rows(&factor.lower))
-        },
-        needs_normals,
-        needs_increments,
-        stack_depth,
-        truncated,
-        discretised,
-        step_doubling,
-        discount,
-    })
+        .max(1)
 }

@@ -244,58 +244,83 @@ pub(super) fn advance(
     second_of_pair: bool,
 ) {
     let dt = segment.dt;
-    let Scratch {
-        current,
-        next,
-        words,
-        normals,
-        increments,
-        group_normals,
-        stack,
-        value,
-        coarse,
-        coarse_next,
-        first_increments,
-        first_normals,
-        integral,
-        rate,
-        coarse_integral,
-        coarse_rate,
-    } = scratch;
+    draw_shocks(compiled, segment, scratch, rng);
+    euler_step(
+        &compiled.euler,
+        &scratch.current,
+        &mut scratch.next,
+        t,
+        dt,
+        &scratch.increments,
+        None,
+        &mut scratch.stack,
+        &mut scratch.value,
+    );
+    lognormal_step(
+        &compiled.lognormal,
+        &segment.lognormal,
+        &scratch.current,
+        &mut scratch.next,
+        &scratch.increments,
+        &mut scratch.value,
+    );
+    exact_steps(compiled, segment, scratch, rng);
+    if compiled.step_doubling {
+        coarse_grid(compiled, segment, scratch, t, second_of_pair);
+    }
+    std::mem::swap(&mut scratch.current, &mut scratch.next);
+    if let Some(program) = &compiled.discount {
+        program.evaluate(
+            &scratch.current,
+            t + dt,
+            &mut scratch.stack,
+            &mut scratch.value,
+        );
+        trapezoid(&mut scratch.integral, &mut scratch.rate, &scratch.value, dt);
+    }
+}
 
+/// The normals of the step and, where a scheme needs them, the Brownian increments.
+#[inline(always)]
+fn draw_shocks(
+    compiled: &Compiled,
+    segment: &Segment,
+    scratch: &mut Scratch,
+    rng: &mut BlockStream,
+) {
     if compiled.needs_normals {
-        for lanes in normals.iter_mut() {
-            fill_normals_chunk_inline(rng, words, lanes);
+        for lanes in scratch.normals.iter_mut() {
+            fill_normals_chunk_inline(rng, &mut scratch.words, lanes);
         }
     }
     if compiled.needs_increments {
         increments_from_normals(
             compiled.noise_factor.as_deref(),
             segment.sqrt_dt,
-            normals,
-            increments,
+            &scratch.normals,
+            &mut scratch.increments,
         );
     }
+}
 
-    euler_step(
-        &compiled.euler,
+/// The exact transitions: square roots, then the Gaussian group, then the log-prices
+/// driven by a square-root variance (which read its next value).
+#[inline(always)]
+fn exact_steps(
+    compiled: &Compiled,
+    segment: &Segment,
+    scratch: &mut Scratch,
+    rng: &mut BlockStream,
+) {
+    let Scratch {
         current,
         next,
-        t,
-        dt,
-        increments,
-        None,
-        stack,
+        words,
+        normals,
+        group_normals,
         value,
-    );
-    lognormal_step(
-        &compiled.lognormal,
-        &segment.lognormal,
-        current,
-        next,
-        increments,
-        value,
-    );
+        ..
+    } = scratch;
     for (state, transition) in compiled.square_root.iter().zip(&segment.square_root) {
         let i = state.index;
         for (n, x) in next[i].iter_mut().zip(&current[i]) {
@@ -321,50 +346,70 @@ pub(super) fn advance(
             *n = step.advance(state.law.price, *x, *v0, *v1, *z);
         }
     }
+}
 
-    if compiled.step_doubling {
-        if !second_of_pair {
-            // Start of a pair: the exact states on the coarse grid are the fine ones.
-            for (i, discretised) in compiled.discretised.iter().enumerate() {
-                if !discretised {
-                    coarse[i] = current[i];
-                }
-            }
-            first_increments.copy_from_slice(increments);
-            first_normals.copy_from_slice(normals);
-        } else {
-            // Close the pair: one step of 2Δ on the coarse grid with the summed increments.
-            coarse_step(
-                compiled,
-                segment,
-                coarse,
-                coarse_next,
-                t - dt,
-                increments,
-                first_increments,
-                normals,
-                first_normals,
-                next,
-                stack,
-                value,
-            );
-            if let Some(program) = &compiled.discount {
-                // The exact states of the coarse grid are the fine ones.
-                for (i, discretised) in compiled.discretised.iter().enumerate() {
-                    if !discretised {
-                        coarse[i] = next[i];
-                    }
-                }
-                program.evaluate(coarse, t + dt, stack, value);
-                trapezoid(coarse_integral, coarse_rate, value, 2.0 * dt);
+/// Step doubling: at the start of a pair, the coarse grid takes the exact states and keeps
+/// the first step's shocks; at its close, one step of 2Δ with the summed increments (and
+/// the coarse discount's trapezoid).
+#[inline(always)]
+fn coarse_grid(
+    compiled: &Compiled,
+    segment: &Segment,
+    scratch: &mut Scratch,
+    t: f64,
+    second_of_pair: bool,
+) {
+    let dt = segment.dt;
+    let Scratch {
+        current,
+        next,
+        normals,
+        increments,
+        stack,
+        value,
+        coarse,
+        coarse_next,
+        first_increments,
+        first_normals,
+        coarse_integral,
+        coarse_rate,
+        ..
+    } = scratch;
+    if !second_of_pair {
+        // Start of a pair: the exact states on the coarse grid are the fine ones.
+        for (i, discretised) in compiled.discretised.iter().enumerate() {
+            if !discretised {
+                coarse[i] = current[i];
             }
         }
+        first_increments.copy_from_slice(increments);
+        first_normals.copy_from_slice(normals);
+        return;
     }
-
-    std::mem::swap(current, next);
+    // Close the pair: one step of 2Δ on the coarse grid with the summed increments.
+    coarse_step(
+        compiled,
+        segment,
+        coarse,
+        coarse_next,
+        t - dt,
+        increments,
+        first_increments,
+        normals,
+        first_normals,
+        next,
+        stack,
+        value,
+    );
     if let Some(program) = &compiled.discount {
-        program.evaluate(current, t + dt, stack, value);
-        trapezoid(integral, rate, value, dt);
+        // The exact states of the coarse grid are the fine ones.
+        for (i, discretised) in compiled.discretised.iter().enumerate() {
+            if !discretised {
+                coarse[i] = next[i];
+            }
+        }
+        program.evaluate(coarse, t + dt, stack, value);
+        trapezoid(coarse_integral, coarse_rate, value, 2.0 * dt);
     }
 }
 

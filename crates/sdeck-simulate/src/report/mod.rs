@@ -276,95 +276,15 @@ impl SimulationResult {
             let states: Vec<StateResult> = per_state
                 .iter()
                 .enumerate()
-                .map(|(i, values)| {
-                    let summary = summarize(values);
-                    let name = samples.state_names.get(i).cloned().unwrap_or_default();
-                    let dropped_paths = values.len() - summary.count;
-                    if dropped_paths > 0 {
-                        warnings.push(format!(
-                            "{dropped_paths} of {} paths of `{name}` at t = {} did not stay finite and are left out of its figures; \
-                             try more steps",
-                            values.len(),
-                            format_number(*at)
-                        ));
-                    }
-                    let coarse = samples
-                        .coarse
-                        .as_ref()
-                        .filter(|_| samples.discretised.get(i).copied().unwrap_or(false))
-                        .and_then(|c| c.get(d))
-                        .and_then(|c| c.get(i))
-                        .map(Vec::as_slice);
-                    StateResult {
-                        name,
-                        scheme: samples.schemes.get(i).cloned().unwrap_or_default(),
-                        mean: summary.mean,
-                        mean_se: summary.mean_se,
-                        variance: summary.variance,
-                        variance_se: summary.variance_se,
-                        quantiles: summary.quantiles,
-                        dropped_paths,
-                        bias: coarse
-                            .filter(|_| summary.count > 1)
-                            .map(|c| bias_estimate(values, c)),
-                        below: thresholds
-                            .get(i)
-                            .copied()
-                            .flatten()
-                            .filter(|_| summary.count > 0)
-                            .map(|q| below_estimate(values, coarse, q)),
-                        closed_form: None,
-                    }
-                })
+                .map(|(i, values)| state_result(samples, d, i, values, thresholds, &mut warnings))
                 .collect();
-            let discount = samples.discount.as_ref().and_then(|discount| {
-                let fine = discount.values.get(d)?;
-                let coarse = discount
-                    .coarse
-                    .as_ref()
-                    .and_then(|c| c.get(d))
-                    .map(Vec::as_slice);
-                Some(discount_estimate(fine, coarse, discount.order))
-            });
-            if let Some(estimate) = &discount {
-                if !estimate.price.is_finite() && samples.paths > 0 {
-                    warnings.push(format!(
-                        "the discount factor at t = {} did not stay finite on every path; try more steps",
-                        format_number(*at)
-                    ));
-                }
-            }
             dates.push(DateResult {
                 at: *at,
                 states,
-                discount,
+                discount: date_discount(samples, d, &mut warnings),
             });
         }
-        let states_count = samples.state_names.len();
-        let bands = (!samples.band_times.is_empty()).then(|| Bands {
-            times: samples.band_times.clone(),
-            quantiles: (0..states_count)
-                .map(|i| {
-                    samples
-                        .band_values
-                        .iter()
-                        .map(|per_state| {
-                            let mut sorted: Vec<f64> = per_state
-                                .get(i)
-                                .map(|v| v.iter().copied().filter(|x| x.is_finite()).collect())
-                                .unwrap_or_default();
-                            sorted.sort_by(f64::total_cmp);
-                            QUANTILE_PROBABILITIES.map(|p| quantile_of_sorted(&sorted, p))
-                        })
-                        .collect()
-                })
-                .collect(),
-            paths: samples
-                .band_values
-                .first()
-                .and_then(|s| s.first())
-                .map_or(0, Vec::len),
-        });
+        let bands = bands_of(samples);
         SimulationResult {
             at: samples.at,
             clock_unit: samples.clock_unit.clone(),
@@ -491,6 +411,111 @@ fn z_score(simulated: f64, expected: f64, standard_error: f64, rounding: f64) ->
     } else {
         f64::INFINITY.copysign(difference)
     }
+}
+
+/// The figures of state `i` at date `d` (`values`: its samples there), with a warning for
+/// paths that did not stay finite.
+fn state_result(
+    samples: &PathSamples,
+    d: usize,
+    i: usize,
+    values: &[f64],
+    thresholds: &[Option<f64>],
+    warnings: &mut Vec<String>,
+) -> StateResult {
+    let summary = summarize(values);
+    let name = samples.state_names.get(i).cloned().unwrap_or_default();
+    let dropped_paths = values.len() - summary.count;
+    if dropped_paths > 0 {
+        warnings.push(format!(
+            "{dropped_paths} of {} paths of `{name}` at t = {} did not stay finite and are left out of its figures; \
+             try more steps",
+            values.len(),
+            format_number(samples.dates[d])
+        ));
+    }
+    let coarse = samples
+        .coarse
+        .as_ref()
+        .filter(|_| samples.discretised.get(i).copied().unwrap_or(false))
+        .and_then(|c| c.get(d))
+        .and_then(|c| c.get(i))
+        .map(Vec::as_slice);
+    StateResult {
+        name,
+        scheme: samples.schemes.get(i).cloned().unwrap_or_default(),
+        mean: summary.mean,
+        mean_se: summary.mean_se,
+        variance: summary.variance,
+        variance_se: summary.variance_se,
+        quantiles: summary.quantiles,
+        dropped_paths,
+        bias: coarse
+            .filter(|_| summary.count > 1)
+            .map(|c| bias_estimate(values, c)),
+        below: thresholds
+            .get(i)
+            .copied()
+            .flatten()
+            .filter(|_| summary.count > 0)
+            .map(|q| below_estimate(values, coarse, q)),
+        closed_form: None,
+    }
+}
+
+/// The bond price at date `d`, with a warning if a discount factor did not stay finite.
+fn date_discount(
+    samples: &PathSamples,
+    d: usize,
+    warnings: &mut Vec<String>,
+) -> Option<DiscountEstimate> {
+    let discount = samples.discount.as_ref().and_then(|discount| {
+        let fine = discount.values.get(d)?;
+        let coarse = discount
+            .coarse
+            .as_ref()
+            .and_then(|c| c.get(d))
+            .map(Vec::as_slice);
+        Some(discount_estimate(fine, coarse, discount.order))
+    });
+    if let Some(estimate) = &discount {
+        if !estimate.price.is_finite() && samples.paths > 0 {
+            warnings.push(format!(
+                "the discount factor at t = {} did not stay finite on every path; try more steps",
+                format_number(samples.dates[d])
+            ));
+        }
+    }
+    discount
+}
+
+/// The quantile bands of every state on the band grid, if one was recorded.
+fn bands_of(samples: &PathSamples) -> Option<Bands> {
+    let states_count = samples.state_names.len();
+    (!samples.band_times.is_empty()).then(|| Bands {
+        times: samples.band_times.clone(),
+        quantiles: (0..states_count)
+            .map(|i| {
+                samples
+                    .band_values
+                    .iter()
+                    .map(|per_state| {
+                        let mut sorted: Vec<f64> = per_state
+                            .get(i)
+                            .map(|v| v.iter().copied().filter(|x| x.is_finite()).collect())
+                            .unwrap_or_default();
+                        sorted.sort_by(f64::total_cmp);
+                        QUANTILE_PROBABILITIES.map(|p| quantile_of_sorted(&sorted, p))
+                    })
+                    .collect()
+            })
+            .collect(),
+        paths: samples
+            .band_values
+            .first()
+            .and_then(|s| s.first())
+            .map_or(0, Vec::len),
+    })
 }
 
 #[cfg(test)]

@@ -168,65 +168,7 @@ pub fn render_text(result: &SimulationResult) -> String {
             let _ = writeln!(out, "t = {} {}", format_number(date.at), result.clock_unit);
         }
         for state in &date.states {
-            let _ = writeln!(out);
-            let _ = writeln!(out, "{}  ({})", state.name, state.scheme);
-            let line = |out: &mut String, label: &str, value: f64, se: f64| {
-                let _ = writeln!(out, "  {:<10} {:>14} ± {}", label, shown(value), shown(se));
-            };
-            line(&mut out, "mean", state.mean, state.mean_se);
-            line(&mut out, "variance", state.variance, state.variance_se);
-            for q in &state.quantiles {
-                line(
-                    &mut out,
-                    &format!("q({})", q.probability),
-                    q.value,
-                    q.standard_error,
-                );
-            }
-            if let Some(below) = &state.below {
-                line(
-                    &mut out,
-                    &format!("P(< {})", format_number(below.threshold)),
-                    below.probability,
-                    below.standard_error,
-                );
-                if let Some((bias, extrapolated, se)) = below.bias {
-                    let _ = writeln!(
-                        out,
-                        "  {:<10} bias {}, extrapolated {} ± {}",
-                        "",
-                        shown(bias),
-                        shown(extrapolated),
-                        shown(se)
-                    );
-                }
-            }
-            if let Some(bias) = &state.bias {
-                let _ = writeln!(
-                    out,
-                    "  step doubling: bias of the mean {}, of the variance {}; extrapolated mean {} ± {}, variance {} ± {}",
-                    shown(bias.mean),
-                    shown(bias.variance),
-                    shown(bias.mean_extrapolated),
-                    shown(bias.mean_extrapolated_se),
-                    shown(bias.variance_extrapolated),
-                    shown(bias.variance_extrapolated_se)
-                );
-            }
-            if let Some(closed) = &state.closed_form {
-                let _ = write!(
-                    out,
-                    "  closed form: mean {} (z = {}), variance {} (z = {})",
-                    shown(closed.mean),
-                    shown_z(closed.z_mean),
-                    shown(closed.variance),
-                    shown_z(closed.z_variance)
-                );
-                if let (Some(p), Some(z)) = (closed.below, closed.z_below) {
-                    let _ = write!(out, ", P {} (z = {})", shown(p), shown_z(z));
-                }
-                let _ = writeln!(out);
-            }
+            render_state(&mut out, state);
         }
         if let Some(discount) = &date.discount {
             render_discount(&mut out, discount);
@@ -240,6 +182,69 @@ pub fn render_text(result: &SimulationResult) -> String {
         let _ = writeln!(out);
     }
     out
+}
+
+/// The text block of one state at one date.
+fn render_state(out: &mut String, state: &StateResult) {
+    let _ = writeln!(out);
+    let _ = writeln!(out, "{}  ({})", state.name, state.scheme);
+    let line = |out: &mut String, label: &str, value: f64, se: f64| {
+        let _ = writeln!(out, "  {:<10} {:>14} ± {}", label, shown(value), shown(se));
+    };
+    line(out, "mean", state.mean, state.mean_se);
+    line(out, "variance", state.variance, state.variance_se);
+    for q in &state.quantiles {
+        line(
+            out,
+            &format!("q({})", q.probability),
+            q.value,
+            q.standard_error,
+        );
+    }
+    if let Some(below) = &state.below {
+        line(
+            out,
+            &format!("P(< {})", format_number(below.threshold)),
+            below.probability,
+            below.standard_error,
+        );
+        if let Some((bias, extrapolated, se)) = below.bias {
+            let _ = writeln!(
+                out,
+                "  {:<10} bias {}, extrapolated {} ± {}",
+                "",
+                shown(bias),
+                shown(extrapolated),
+                shown(se)
+            );
+        }
+    }
+    if let Some(bias) = &state.bias {
+        let _ = writeln!(
+            out,
+            "  step doubling: bias of the mean {}, of the variance {}; extrapolated mean {} ± {}, variance {} ± {}",
+            shown(bias.mean),
+            shown(bias.variance),
+            shown(bias.mean_extrapolated),
+            shown(bias.mean_extrapolated_se),
+            shown(bias.variance_extrapolated),
+            shown(bias.variance_extrapolated_se)
+        );
+    }
+    if let Some(closed) = &state.closed_form {
+        let _ = write!(
+            out,
+            "  closed form: mean {} (z = {}), variance {} (z = {})",
+            shown(closed.mean),
+            shown_z(closed.z_mean),
+            shown(closed.variance),
+            shown_z(closed.z_variance)
+        );
+        if let (Some(p), Some(z)) = (closed.below, closed.z_below) {
+            let _ = write!(out, ", P {} (z = {})", shown(p), shown_z(z));
+        }
+        let _ = writeln!(out);
+    }
 }
 
 /// The text block of the bond price at one date.
