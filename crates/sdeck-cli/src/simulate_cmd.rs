@@ -6,7 +6,7 @@ use sdeck_report::charts::stack;
 use sdeck_report::review::{closed_bands, fan_charts};
 use sdeck_semantics::Model;
 use sdeck_simulate::{
-    render_text, simulate_and_compare_below, to_json, verdicts, SimulationOptions,
+    render_text, simulate_and_compare_below, to_json, verdicts, SimulationOptions, SimulationResult,
 };
 use std::path::PathBuf;
 use std::process::ExitCode;
@@ -134,18 +134,8 @@ fn memory_limit() -> Option<u64> {
 }
 
 pub fn run(args: SimulateArgs) -> ExitCode {
-    if args.paths == 0 || args.steps == 0 {
-        eprintln!("sdeck: --paths and --steps must be at least 1");
-        return ExitCode::from(2);
-    }
-    let path_steps = args.paths.checked_mul(args.steps);
-    if path_steps.is_none_or(|n| n > MAX_PATH_STEPS) {
-        eprintln!(
-            "sdeck: --paths {} × --steps {} is more than {MAX_PATH_STEPS} path steps; \
-             nothing is simulated (use fewer paths or steps)",
-            args.paths, args.steps
-        );
-        return ExitCode::from(2);
+    if let Err(code) = check_sizes(&args) {
+        return code;
     }
     let result = match load_sound_model(&args.file, "nothing is simulated") {
         Ok((_, r)) => r,
@@ -183,18 +173,8 @@ pub fn run(args: SimulateArgs) -> ExitCode {
     for warning in &simulated.warnings {
         eprintln!("sdeck: note: {warning}");
     }
-    match args.format {
-        Format::Json => match serde_json::to_string_pretty(&to_json(&simulated)) {
-            Ok(text) => outln!("{text}"),
-            Err(e) => {
-                eprintln!("sdeck: cannot write the report: {e}");
-                return ExitCode::from(2);
-            }
-        },
-        Format::Text => {
-            out!("{}", render_text(&simulated));
-            outln!("\n{}", crate::CAUTION);
-        }
+    if let Err(code) = write_report(&simulated, args.format) {
+        return code;
     }
     if let Some(path) = &args.plot {
         let times: Vec<f64> = simulated
@@ -218,38 +198,80 @@ pub fn run(args: SimulateArgs) -> ExitCode {
         }
     }
     if args.check {
-        let (disagreements, undecided) = verdicts(&simulated);
-        for u in &undecided {
-            eprintln!("sdeck: undecided: {u}");
-        }
-        for d in &disagreements {
-            eprintln!("sdeck: disagreement: {d}");
-        }
-        if !disagreements.is_empty() {
-            return ExitCode::from(1);
-        }
-        let compared = simulated
-            .dates
-            .iter()
-            .flat_map(|d| &d.states)
-            .filter(|s| s.closed_form.is_some())
-            .count();
-        let prices = simulated
-            .dates
-            .iter()
-            .filter_map(|d| d.discount.as_ref())
-            .filter(|p| p.closed_form.is_some())
-            .count();
-        let prices = if prices > 0 {
-            format!(", {prices} bond prices compared with the curve")
-        } else {
-            String::new()
-        };
-        eprintln!(
-            "sdeck: check: no disagreement ({compared} factor-dates compared with closed forms{prices}, {} figures undecided)",
-            undecided.len()
-        );
+        return report_check(&simulated);
     }
+    ExitCode::SUCCESS
+}
+
+/// Refuses zero sizes and runs past [`MAX_PATH_STEPS`] before anything is read.
+fn check_sizes(args: &SimulateArgs) -> Result<(), ExitCode> {
+    if args.paths == 0 || args.steps == 0 {
+        eprintln!("sdeck: --paths and --steps must be at least 1");
+        return Err(ExitCode::from(2));
+    }
+    let path_steps = args.paths.checked_mul(args.steps);
+    if path_steps.is_none_or(|n| n > MAX_PATH_STEPS) {
+        eprintln!(
+            "sdeck: --paths {} × --steps {} is more than {MAX_PATH_STEPS} path steps; \
+             nothing is simulated (use fewer paths or steps)",
+            args.paths, args.steps
+        );
+        return Err(ExitCode::from(2));
+    }
+    Ok(())
+}
+
+/// The report on standard output, as JSON or text.
+fn write_report(simulated: &SimulationResult, format: Format) -> Result<(), ExitCode> {
+    match format {
+        Format::Json => match serde_json::to_string_pretty(&to_json(simulated)) {
+            Ok(text) => outln!("{text}"),
+            Err(e) => {
+                eprintln!("sdeck: cannot write the report: {e}");
+                return Err(ExitCode::from(2));
+            }
+        },
+        Format::Text => {
+            out!("{}", render_text(simulated));
+            outln!("\n{}", crate::CAUTION);
+        }
+    }
+    Ok(())
+}
+
+/// The verdicts of `--check` on standard error: 1 on a disagreement, success otherwise.
+fn report_check(simulated: &SimulationResult) -> ExitCode {
+    let (disagreements, undecided) = verdicts(simulated);
+    for u in &undecided {
+        eprintln!("sdeck: undecided: {u}");
+    }
+    for d in &disagreements {
+        eprintln!("sdeck: disagreement: {d}");
+    }
+    if !disagreements.is_empty() {
+        return ExitCode::from(1);
+    }
+    let compared = simulated
+        .dates
+        .iter()
+        .flat_map(|d| &d.states)
+        .filter(|s| s.closed_form.is_some())
+        .count();
+    let prices = simulated
+        .dates
+        .iter()
+        .filter_map(|d| d.discount.as_ref())
+        .filter(|p| p.closed_form.is_some())
+        .count();
+    let prices = if prices > 0 {
+        format!(", {prices} bond prices compared with the curve")
+    } else {
+        String::new()
+    };
+    eprintln!(
+        "sdeck: check: no disagreement ({compared} factor-dates compared with closed forms{prices}, {} figures undecided)",
+        undecided.len()
+    );
     ExitCode::SUCCESS
 }
 

@@ -5,6 +5,8 @@
 //! no font file is read, so the chart renders on machines without system fonts.
 
 use crate::report::{Bands, SimulationResult};
+use plotters::coord::types::RangedCoordf64;
+use plotters::coord::Shift;
 use plotters::prelude::*;
 use std::fmt;
 use std::path::Path;
@@ -102,97 +104,128 @@ pub fn fan_chart_svg(
             .copied()
             .unwrap_or(result.at)
             .max(f64::MIN_POSITIVE);
-        for (index, (state, area)) in result.states.iter().zip(areas.iter()).enumerate() {
-            let series = bands.quantiles.get(index).map(Vec::as_slice).unwrap_or(&[]);
-            let closed: Vec<(f64, f64)> = closed_form_means
-                .and_then(|means| means.get(index))
-                .map(|means| {
-                    bands
-                        .times
-                        .iter()
-                        .zip(means)
-                        .filter_map(|(t, m)| m.filter(|v| v.is_finite()).map(|v| (*t, v)))
-                        .collect()
-                })
-                .unwrap_or_default();
-            let (low, high) = value_range(
-                series
-                    .iter()
-                    .flat_map(|q| q.iter())
-                    .chain(closed.iter().map(|(_, m)| m)),
-            );
-            let caption = format!("{}: quantile bands over {} paths", state.name, bands.paths);
-            let mut chart = ChartBuilder::on(area)
-                .caption(caption, ("sans-serif", 16))
-                .margin(12)
-                .x_label_area_size(32)
-                .y_label_area_size(70)
-                .build_cartesian_2d(0.0..end, low..high)
-                .map_err(drawing_error)?;
-            chart
-                .configure_mesh()
-                .x_desc(format!("t ({})", result.clock_unit))
-                .light_line_style(WHITE)
-                .draw()
-                .map_err(drawing_error)?;
-            for (lower, upper, opacity, label) in [(0, 4, 0.18, "1–99%"), (1, 3, 0.32, "5–95%")]
-            {
-                let polygon = band_polygon(bands, index, lower, upper);
-                if polygon.len() >= 3 {
-                    chart
-                        .draw_series(std::iter::once(Polygon::new(
-                            polygon,
-                            BAND_COLOUR.mix(opacity).filled(),
-                        )))
-                        .map_err(drawing_error)?
-                        .label(label)
-                        .legend(move |(x, y)| {
-                            Rectangle::new(
-                                [(x, y - 5), (x + 16, y + 5)],
-                                BAND_COLOUR.mix(opacity).filled(),
-                            )
-                        });
-                }
-            }
-            let median: Vec<(f64, f64)> = bands
-                .times
-                .iter()
-                .zip(series)
-                .filter(|(_, q)| q[2].is_finite())
-                .map(|(t, q)| (*t, q[2]))
-                .collect();
-            chart
-                .draw_series(LineSeries::new(median, BAND_COLOUR.stroke_width(2)))
-                .map_err(drawing_error)?
-                .label("median")
-                .legend(|(x, y)| {
-                    PathElement::new([(x, y), (x + 16, y)], BAND_COLOUR.stroke_width(2))
-                });
-            if !closed.is_empty() {
-                chart
-                    .draw_series(DashedLineSeries::new(
-                        closed,
-                        6,
-                        4,
-                        CLOSED_FORM_COLOUR.stroke_width(2),
-                    ))
-                    .map_err(drawing_error)?
-                    .label("closed-form mean")
-                    .legend(|(x, y)| {
-                        PathElement::new([(x, y), (x + 16, y)], CLOSED_FORM_COLOUR.stroke_width(2))
-                    });
-            }
-            chart
-                .configure_series_labels()
-                .background_style(WHITE.mix(0.85))
-                .border_style(BLACK.mix(0.3))
-                .position(SeriesLabelPosition::UpperLeft)
-                .draw()
-                .map_err(drawing_error)?;
+        for (index, area) in areas.iter().enumerate().take(result.states.len()) {
+            let closed = closed_form_means.and_then(|means| means.get(index));
+            draw_panel(area, result, bands, index, closed, end)?;
         }
         root.present().map_err(drawing_error)?;
     }
     Ok(svg)
+}
+
+/// A panel's chart: time against value, both on f64 axes.
+type Chart<'a, 'b> = ChartContext<'a, SVGBackend<'b>, Cartesian2d<RangedCoordf64, RangedCoordf64>>;
+
+/// The panel of state `index`: its 1–99% and 5–95% bands, median, closed-form mean (where
+/// `closed_means` gives one on the band grid) and legend, over [0, end].
+fn draw_panel(
+    area: &DrawingArea<SVGBackend, Shift>,
+    result: &SimulationResult,
+    bands: &Bands,
+    index: usize,
+    closed_means: Option<&Vec<Option<f64>>>,
+    end: f64,
+) -> Result<(), PlotError> {
+    let state = &result.states[index];
+    let series = bands.quantiles.get(index).map(Vec::as_slice).unwrap_or(&[]);
+    let closed: Vec<(f64, f64)> = closed_means
+        .map(|means| {
+            bands
+                .times
+                .iter()
+                .zip(means)
+                .filter_map(|(t, m)| m.filter(|v| v.is_finite()).map(|v| (*t, v)))
+                .collect()
+        })
+        .unwrap_or_default();
+    let (low, high) = value_range(
+        series
+            .iter()
+            .flat_map(|q| q.iter())
+            .chain(closed.iter().map(|(_, m)| m)),
+    );
+    let caption = format!("{}: quantile bands over {} paths", state.name, bands.paths);
+    let mut chart = ChartBuilder::on(area)
+        .caption(caption, ("sans-serif", 16))
+        .margin(12)
+        .x_label_area_size(32)
+        .y_label_area_size(70)
+        .build_cartesian_2d(0.0..end, low..high)
+        .map_err(drawing_error)?;
+    chart
+        .configure_mesh()
+        .x_desc(format!("t ({})", result.clock_unit))
+        .light_line_style(WHITE)
+        .draw()
+        .map_err(drawing_error)?;
+    draw_bands(&mut chart, bands, index)?;
+    draw_lines(&mut chart, bands, series, closed)?;
+    chart
+        .configure_series_labels()
+        .background_style(WHITE.mix(0.85))
+        .border_style(BLACK.mix(0.3))
+        .position(SeriesLabelPosition::UpperLeft)
+        .draw()
+        .map_err(drawing_error)
+}
+
+/// The 1–99% and 5–95% band polygons of state `index`.
+fn draw_bands(chart: &mut Chart, bands: &Bands, index: usize) -> Result<(), PlotError> {
+    for (lower, upper, opacity, label) in [(0, 4, 0.18, "1–99%"), (1, 3, 0.32, "5–95%")] {
+        let polygon = band_polygon(bands, index, lower, upper);
+        if polygon.len() >= 3 {
+            chart
+                .draw_series(std::iter::once(Polygon::new(
+                    polygon,
+                    BAND_COLOUR.mix(opacity).filled(),
+                )))
+                .map_err(drawing_error)?
+                .label(label)
+                .legend(move |(x, y)| {
+                    Rectangle::new(
+                        [(x, y - 5), (x + 16, y + 5)],
+                        BAND_COLOUR.mix(opacity).filled(),
+                    )
+                });
+        }
+    }
+    Ok(())
+}
+
+/// The median of `series` and, if any, the dashed closed-form mean.
+fn draw_lines(
+    chart: &mut Chart,
+    bands: &Bands,
+    series: &[[f64; 5]],
+    closed: Vec<(f64, f64)>,
+) -> Result<(), PlotError> {
+    let median: Vec<(f64, f64)> = bands
+        .times
+        .iter()
+        .zip(series)
+        .filter(|(_, q)| q[2].is_finite())
+        .map(|(t, q)| (*t, q[2]))
+        .collect();
+    chart
+        .draw_series(LineSeries::new(median, BAND_COLOUR.stroke_width(2)))
+        .map_err(drawing_error)?
+        .label("median")
+        .legend(|(x, y)| PathElement::new([(x, y), (x + 16, y)], BAND_COLOUR.stroke_width(2)));
+    if !closed.is_empty() {
+        chart
+            .draw_series(DashedLineSeries::new(
+                closed,
+                6,
+                4,
+                CLOSED_FORM_COLOUR.stroke_width(2),
+            ))
+            .map_err(drawing_error)?
+            .label("closed-form mean")
+            .legend(|(x, y)| {
+                PathElement::new([(x, y), (x + 16, y)], CLOSED_FORM_COLOUR.stroke_width(2))
+            });
+    }
+    Ok(())
 }
 
 /// Writes the fan chart to `path` (see [`fan_chart_svg`]).
