@@ -1,8 +1,13 @@
 //! Readable formulas (Unicode math with the model's own names) for `sdeck moments`.
 
+mod coupled;
+mod families;
+mod linear;
+
 use crate::algebra::{show_poly, Names, Poly};
-use crate::shape::{correlation, correlation_at, noise_name, OneState};
-use crate::{Analysis, Family, Formulas};
+use crate::shape::{noise_name, OneState};
+use crate::{Family, Formulas};
+pub(crate) use coupled::coupled;
 use sdeck_semantics::{Model, ShockId};
 
 /// The letters a formula uses besides the model's names: the integration variable, the
@@ -257,199 +262,48 @@ fn reverting_mean(w: &Writer, os: &OneState, start: &str, elapsed: &str) -> Stri
 
 pub(crate) fn one_state(model: &Model, os: &OneState, family: Family) -> Formulas {
     let w = Writer::new(model, os.state);
-    let s = w.sym.s.as_str();
-    let x_t = w.at("t");
-    let x_s = w.at(s);
-    let x0 = w.start();
-    let elapsed = format!("(t − {s})");
     let empty = Vec::new();
     let terms = os.affine_terms.as_ref().unwrap_or(&empty);
     match family {
-        Family::ArithmeticBrownian => {
-            let drift = if os.a.is_zero() {
-                String::new()
-            } else {
-                format!(" + {}", w.times(&os.a, "t"))
-            };
-            let noise = terms
-                .iter()
-                .filter(|(_, c, _)| !c.is_zero())
-                .map(|(k, c, _)| w.times(c, &format!("{}(t)", noise_name(model, *k))))
-                .collect::<Vec<_>>()
-                .join(" + ");
-            let noise = if noise.is_empty() {
-                String::new()
-            } else {
-                format!(" + {noise}")
-            };
-            Formulas {
-                matrices: None,
-                solution: Some(format!("{x_t} = {x0}{drift}{noise}")),
-                mean: Some(format!("E[{x_t}] = {x0}{drift}")),
-                variance: Some(format!("Var[{x_t}] = {}", w.times(&os.alpha, "t"))),
-                autocovariance: Some(format!(
-                    "Cov({x_s}, {x_t}) = {}, {s} ≤ t",
-                    w.times(&os.alpha, s)
-                )),
-                stationary: None,
-                transition: Some(format!(
-                    "{x_t} | {x_s} ~ Normal({x_s} + {}, {})",
-                    w.times(&os.a, &elapsed),
-                    w.times(&os.alpha, &elapsed)
-                )),
-            }
-        }
-        Family::Deterministic => {
-            let mut formulas = if os.time_dependent {
-                linear_formulas(&w, os, family, terms)
-            } else {
-                let path = if os.b.is_zero() {
-                    sum(&[x0.clone(), w.term(&os.a, "t")])
-                } else {
-                    reverting_mean(&w, os, &x0, "t")
-                };
-                Formulas {
-                    solution: Some(format!("{x_t} = {path}")),
-                    mean: Some(format!("E[{x_t}] = {path}")),
-                    stationary: None,
-                    transition: None,
-                    ..Formulas::default()
-                }
-            };
-            formulas.variance = Some(format!("Var[{x_t}] = 0"));
-            formulas.autocovariance = Some(format!("Cov({x_s}, {x_t}) = 0, {s} ≤ t"));
-            formulas.stationary =
-                (!os.time_dependent && !os.b.is_zero()).then(|| stationary_law(model, os, family));
-            formulas
-        }
+        Family::ArithmeticBrownian => families::arithmetic_brownian(&w, os, terms),
+        Family::Deterministic => families::deterministic(&w, os, family, terms),
         Family::Linear if !os.time_dependent && !os.state_dependent_noise() => {
-            let mut formulas = gaussian_affine(&w, os, terms);
+            let mut formulas = families::gaussian_affine(&w, os, terms);
             formulas.stationary = None;
             formulas
         }
         Family::OrnsteinUhlenbeck => {
-            let mut formulas = gaussian_affine(&w, os, terms);
+            let mut formulas = families::gaussian_affine(&w, os, terms);
             formulas.stationary = Some(stationary_law(model, os, family));
             formulas
         }
-        Family::GeometricBrownian => {
-            let log_drift = os.b.sub(&os.gamma.scale(0.5));
-            let noise = terms
-                .iter()
-                .filter(|(_, _, d)| !d.is_zero())
-                .map(|(k, _, d)| w.times(d, &format!("{}(t)", noise_name(model, *k))))
-                .collect::<Vec<_>>()
-                .join(" + ");
-            let gamma = w.factor(&os.gamma);
-            Formulas {
-                matrices: None,
-                solution: Some(format!(
-                    "{x_t} = {x0}·e^({} + {noise})",
-                    w.times(&log_drift, "t")
-                )),
-                mean: Some(format!("E[{x_t}] = {x0}·{}", w.exp(&os.b, "t"))),
-                variance: Some(format!(
-                    "Var[{x_t}] = {x0}²·{}·({} − 1)",
-                    w.exp(&os.b.scale(2.0), "t"),
-                    w.exp(&os.gamma, "t")
-                )),
-                autocovariance: Some(format!(
-                    "Cov({x_s}, {x_t}) = {x0}²·{}·({} − 1), {s} ≤ t",
-                    w.exp(&os.b, &format!("({s} + t)")),
-                    w.exp(&os.gamma, s)
-                )),
-                stationary: None,
-                transition: Some(format!(
-                    "log {x_t} | {x_s} ~ Normal(log {x_s} + {}, {gamma}·{elapsed})",
-                    w.times(&log_drift, &elapsed)
-                )),
-            }
-        }
-        Family::SquareRoot => {
-            let minus_b = os.b.neg();
-            let beta = w.factor(&os.beta);
-            let level = w.ratio(&os.a, &minus_b);
-            Formulas {
-                matrices: None,
-                solution: None,
-                mean: Some(format!("E[{x_t}] = {}", reverting_mean(&w, os, &x0, "t"))),
-                variance: Some({
-                    let start_part = format!(
-                        "{x0}·{beta}·({} − {})/{}",
-                        w.exp(&os.b, "t"),
-                        w.exp(&os.b.scale(2.0), "t"),
-                        w.denominator(&minus_b),
-                    );
-                    if os.a.is_zero() {
-                        format!("Var[{x_t}] = {start_part}")
-                    } else {
-                        format!(
-                            "Var[{x_t}] = {start_part} + {}·{beta}·(1 − {})²/{}",
-                            wrap_level(&level),
-                            w.exp(&os.b, "t"),
-                            w.denominator(&os.b.scale(-2.0)),
-                        )
-                    }
-                }),
-                autocovariance: Some(format!(
-                    "Cov({x_s}, {x_t}) = Var[{x_s}]·{}, {s} ≤ t",
-                    w.exp(&os.b, &elapsed)
-                )),
-                stationary: Some(stationary_law(model, os, family)),
-                transition: Some(format!(
-                    "2{c}·{x_t} | {x_s} ~ noncentral χ²(degrees {}, noncentrality 2{c}·{x_s}·{}), \
-                     {c} = {}/({beta}·(1 − {}))",
-                    w.ratio(&os.a.scale(4.0), &os.beta),
-                    w.exp(&os.b, &elapsed),
-                    w.factor(&os.b.scale(-2.0)),
-                    w.exp(&os.b, &elapsed),
-                    c = w.sym.c
-                )),
-            }
-        }
-        Family::Linear | Family::Polynomial => linear_formulas(&w, os, family, terms),
+        Family::GeometricBrownian => families::geometric_brownian(&w, os, terms),
+        Family::SquareRoot => families::square_root(&w, os, family),
+        Family::Linear | Family::Polynomial => linear::linear_formulas(&w, os, family, terms),
         Family::LinearSystem | Family::ExponentialAffine | Family::General => Formulas::default(),
     }
 }
 
-/// The Gaussian closed forms of dX = (a + bX) dt + Σ c dW with constant coefficients and
-/// b ≠ 0 (Vasicek 1977, eqs. 23–25, written with b = −κ so that they hold for either
-/// sign); the stationary law is the caller's to add.
-fn gaussian_affine(w: &Writer, os: &OneState, terms: &[(ShockId, Poly, Poly)]) -> Formulas {
-    let s = w.sym.s.as_str();
-    let x_t = w.at("t");
-    let x_s = w.at(s);
-    let x0 = w.start();
-    let elapsed = format!("(t − {s})");
-    let mean = reverting_mean(w, os, &x0, "t");
-    let noise = w.noise_sum(terms, &|c| {
-        format!("{}·∫₀ᵗ {}", w.factor(c), w.exp(&os.b, &elapsed))
-    });
-    let two_b = os.b.scale(2.0);
-    let minus_two_b = os.b.scale(-2.0);
-    let alpha = w.factor(&os.alpha);
-    Formulas {
-        matrices: None,
-        solution: Some(format!("{x_t} = {mean} + {noise}")),
-        mean: Some(format!("E[{x_t}] = {mean}")),
-        variance: Some(format!(
-            "Var[{x_t}] = {alpha}·(1 − {})/{}",
-            w.exp(&two_b, "t"),
-            w.denominator(&minus_two_b)
-        )),
-        autocovariance: Some(format!(
-            "Cov({x_s}, {x_t}) = {alpha}·({} − {})/{}, {s} ≤ t",
-            w.exp(&os.b, &elapsed),
-            w.exp(&os.b, &format!("(t + {s})")),
-            w.denominator(&minus_two_b)
-        )),
-        stationary: None,
-        transition: Some(format!(
-            "{x_t} | {x_s} ~ Normal({}, {alpha}·(1 − {})/{})",
-            reverting_mean(w, os, &x_s, &elapsed),
-            w.exp(&two_b, &elapsed),
-            w.denominator(&minus_two_b)
-        )),
+/// The pieces every one-state formula writes: the integration variable, the state at t
+/// and at it, the start, and the elapsed time `(t − s)`.
+struct Marks {
+    s: String,
+    x_t: String,
+    x_s: String,
+    x0: String,
+    elapsed: String,
+}
+
+impl Writer<'_> {
+    fn marks(&self) -> Marks {
+        let s = self.sym.s.clone();
+        Marks {
+            x_t: self.at("t"),
+            x_s: self.at(&s),
+            x0: self.start(),
+            elapsed: format!("(t − {s})"),
+            s,
+        }
     }
 }
 
@@ -497,245 +351,4 @@ impl Writer<'_> {
             text
         }
     }
-}
-
-fn linear_formulas(
-    w: &Writer,
-    os: &OneState,
-    family: Family,
-    terms: &[(ShockId, Poly, Poly)],
-) -> Formulas {
-    let (s, s_sub, u) = (w.sym.s.as_str(), w.sym.s_sub.as_str(), w.sym.u.as_str());
-    let (m, v) = (w.sym.m.as_str(), w.sym.v.as_str());
-    let x_t = w.at("t");
-    let x_s = w.at(s);
-    let x0 = w.start();
-    let b_varies = os.b.depends_on_time();
-    // e^(∫ₛᵗ b) written out when b is constant.
-    let growth = |from: &str| {
-        if b_varies {
-            let slope = show_poly(&os.b, &w.names.with_time(u));
-            format!("e^(∫{from}ᵗ ({slope}) d{u})")
-        } else if from == "₀" {
-            w.exp(&os.b, "t")
-        } else {
-            w.exp(&os.b, &format!("(t − {s})"))
-        }
-    };
-    let multiplicative = terms.iter().any(|(_, _, d)| !d.is_zero());
-    let solution = if family == Family::Linear && !multiplicative {
-        let noise: Vec<String> = terms
-            .iter()
-            .filter(|(_, c, _)| !c.is_zero())
-            .map(|(k, c, _)| {
-                format!(
-                    "∫₀ᵗ {}·{} d{}({s})",
-                    growth(s_sub),
-                    w.factor_at_s(c),
-                    noise_name(w.model, *k)
-                )
-            })
-            .collect();
-        let mut parts = vec![format!("{}·{x0}", growth("₀"))];
-        if !os.a.is_zero() {
-            parts.push(format!(
-                "∫₀ᵗ {}·{} d{s}",
-                growth(s_sub),
-                w.factor_at_s(&os.a)
-            ));
-        }
-        parts.extend(noise);
-        Some(format!("{x_t} = {}", sum(&parts)))
-    } else if family == Family::Linear {
-        // Kloeden & Platen 1992, §4.2, eq. (2.4): the fundamental solution Φ.
-        let corr = w.model.correlations();
-        let mut cross = Poly::zero();
-        for (k, c, _) in terms {
-            for (l, _, d) in terms {
-                let rho = correlation(&corr, *k, *l);
-                cross = cross.add(&c.mul(d).scale(rho));
-            }
-        }
-        let phi_noise: Vec<String> = terms
-            .iter()
-            .filter(|(_, _, d)| !d.is_zero())
-            .map(|(k, _, d)| format!("∫₀ᵗ {} d{}", w.factor_at_s(d), noise_name(w.model, *k)))
-            .collect();
-        let additive: String = terms
-            .iter()
-            .filter(|(_, c, _)| !c.is_zero())
-            .map(|(k, c, _)| {
-                format!(
-                    " + ∫₀ᵗ Φ({s})⁻¹·{} d{}({s})",
-                    w.factor_at_s(c),
-                    noise_name(w.model, *k)
-                )
-            })
-            .collect();
-        let mut exponent = vec![format!(
-            "∫₀ᵗ ({}) d{s}",
-            w.show_at_s(&os.b.sub(&os.gamma.scale(0.5)))
-        )];
-        exponent.extend(phi_noise);
-        Some(format!(
-            "{x_t} = Φ(t)·({x0} + ∫₀ᵗ Φ({s})⁻¹·({}) d{s}{additive}), Φ(t) = exp({})",
-            w.show_at_s(&os.a.sub(&cross)),
-            sum(&exponent)
-        ))
-    } else {
-        None
-    };
-    let mean = if os.time_dependent {
-        format!(
-            "{m}′(t) = {}, {m}(0) = {x0}",
-            sum(&[w.show(&os.a), w.term(&os.b, &format!("{m}(t)"))])
-        )
-    } else {
-        format!("E[{x_t}] = {}", reverting_mean(w, os, &x0, "t"))
-    };
-    let variance = format!(
-        "{v}′(t) = {}, {v}(0) = 0",
-        sum(&[
-            if os.alpha.is_zero() {
-                String::new()
-            } else {
-                w.show(&os.alpha)
-            },
-            w.term(&os.beta, &format!("{m}(t)")),
-            w.term(&os.gamma, &format!("{m}(t)²")),
-            w.term(&os.b.scale(2.0).add(&os.gamma), &format!("{v}(t)")),
-        ])
-    );
-    let stationary = (!os.time_dependent).then(|| stationary_law(w.model, os, family));
-    Formulas {
-        matrices: None,
-        solution,
-        mean: Some(mean),
-        variance: Some(variance),
-        autocovariance: Some(format!(
-            "Cov({x_s}, {x_t}) = Var[{x_s}]·{}, {s} ≤ t",
-            growth(s_sub)
-        )),
-        stationary,
-        transition: None,
-    }
-}
-
-/// Formulas of a state that is part of a coupled system.
-pub(crate) fn coupled(
-    model: &Model,
-    analysis: &Analysis,
-    state: usize,
-    family: Family,
-) -> Formulas {
-    let w = Writer::new(model, state);
-    let x = &w.state;
-    match family {
-        Family::LinearSystem => {
-            let Symbols {
-                s,
-                x: v,
-                a,
-                b,
-                l,
-                r,
-                p,
-                ..
-            } = &w.sym;
-            Formulas {
-                solution: Some(format!(
-                    "{v}(t) = e^({a}·t)·{v}₀ + ∫₀ᵗ e^({a}·(t − {s}))·{b} d{s} \
-                     + ∫₀ᵗ e^({a}·(t − {s}))·{l} dW({s}), {x} its component"
-                )),
-                mean: Some(format!(
-                    "E[{v}(t)] = e^({a}·t)·{v}₀ + ∫₀ᵗ e^({a}·{s})·{b} d{s}, {x} its component"
-                )),
-                variance: Some(format!(
-                    "Cov[{v}(t)] = ∫₀ᵗ e^({a}·{s})·{l}·{r}·{l}ᵀ·e^({a}ᵀ·{s}) d{s} (Van Loan), \
-                     entry ({x}, {x})"
-                )),
-                autocovariance: Some(format!(
-                    "Cov({v}({s}), {v}(t)) = Cov[{v}({s})]·e^({a}ᵀ·(t − {s})), {s} ≤ t, \
-                     entry ({x}, {x})"
-                )),
-                stationary: Some(format!(
-                    "Normal(−{a}⁻¹·{b}, {p}) with {a}·{p} + {p}·{a}ᵀ + {l}·{r}·{l}ᵀ = 0"
-                )),
-                transition: None,
-                matrices: system_numbers(model, analysis, &w.sym),
-            }
-        }
-        Family::Polynomial => Formulas {
-            mean: Some(format!(
-                "first and second moments of ({}) from their linear moment equations",
-                model
-                    .factors
-                    .iter()
-                    .map(|s| s.name.as_str())
-                    .collect::<Vec<_>>()
-                    .join(", ")
-            )),
-            ..Formulas::default()
-        },
-        _ => Formulas::default(),
-    }
-}
-
-/// The most factors (and shocks) whose matrices are printed as numbers; a larger system
-/// keeps its formulas in letters only.
-const MAX_PRINTED_SYSTEM: usize = 6;
-
-/// A, b, L and R of a linear system with constant coefficients, as numbers in the
-/// factors' declaration order (rows of A and L: factors; columns of L and R: shocks).
-fn system_numbers(model: &Model, analysis: &Analysis, sym: &Symbols) -> Option<String> {
-    let system = &analysis.system;
-    let (rows, loadings) = (system.drift_rows.as_ref()?, system.loadings.as_ref()?);
-    let (n, k) = (model.factors.len(), model.shocks.len());
-    if system.time_dependent || n == 0 || n > MAX_PRINTED_SYSTEM || k > MAX_PRINTED_SYSTEM {
-        return None;
-    }
-    let params = &analysis.params;
-    let show = |x: f64| sdeck_units::number::plain(x).replace('-', "−");
-    let vector = |values: Vec<f64>| {
-        format!(
-            "({})",
-            values.into_iter().map(show).collect::<Vec<_>>().join(", ")
-        )
-    };
-    let matrix = |rows: Vec<Vec<f64>>| {
-        format!(
-            "({})",
-            rows.into_iter().map(vector).collect::<Vec<_>>().join(", ")
-        )
-    };
-    let a = matrix(
-        rows.iter()
-            .map(|(coefficients, _)| coefficients.iter().map(|c| c.value(params, 0.0)).collect())
-            .collect(),
-    );
-    let b = vector(
-        rows.iter()
-            .map(|(_, constant)| constant.value(params, 0.0))
-            .collect(),
-    );
-    let l = matrix(
-        loadings
-            .iter()
-            .map(|row| {
-                (0..k)
-                    .map(|j| row.get(j).map_or(0.0, |p| p.value(params, 0.0)))
-                    .collect()
-            })
-            .collect(),
-    );
-    let corr = &analysis.corr;
-    let r = matrix(
-        (0..k)
-            .map(|i| (0..k).map(|j| correlation_at(corr, i, j)).collect())
-            .collect(),
-    );
-    Some(format!(
-        "{} = {a}; {} = {b}; {} = {l}; {} = {r}",
-        sym.a, sym.b, sym.l, sym.r
-    ))
 }
