@@ -31,8 +31,12 @@ use crate::ode;
 
 mod build;
 mod closed_form;
+mod factor_transform;
+mod riccati;
 use closed_form::{gaussian_log_transform, scalar_solution, scalar_structure};
+pub use factor_transform::FactorTransform;
 use num_complex::Complex64;
+use riccati::{dot, exploded, pack, riccati_rhs, unpack};
 use sdeck_semantics::Expr;
 
 /// Relative tolerance of the Riccati integration.
@@ -558,110 +562,6 @@ impl AffineSet {
             Some(current + 1.0 / (growth * r))
         } else {
             Some(current)
-        }
-    }
-}
-
-fn dot(beta: &[Complex64], x: &[f64]) -> Complex64 {
-    beta.iter().zip(x).map(|(b, x)| b * x).sum()
-}
-
-fn pack(u: &[Complex64]) -> Vec<f64> {
-    let mut y = Vec::with_capacity(2 * u.len() + 2);
-    for v in u {
-        y.push(v.re);
-        y.push(v.im);
-    }
-    y.push(0.0);
-    y.push(0.0);
-    y
-}
-
-fn unpack(y: &[f64], n: usize) -> (Vec<Complex64>, Complex64) {
-    let at = |k: usize| y.get(k).copied().unwrap_or(f64::NAN);
-    let beta = (0..n)
-        .map(|i| Complex64::new(at(2 * i), at(2 * i + 1)))
-        .collect();
-    (beta, Complex64::new(at(2 * n), at(2 * n + 1)))
-}
-
-fn exploded(y: &[f64]) -> bool {
-    y.iter().any(|v| !v.is_finite() || v.abs() > 1e300)
-}
-
-/// The Riccati right-hand side on packed (Re, Im) pairs: β then α.
-fn riccati_rhs(n: usize, c: &Numbers, r0: f64, r1: &[f64], y: &[f64], dy: &mut [f64]) {
-    let beta = |i: usize| {
-        Complex64::new(
-            y.get(2 * i).copied().unwrap_or(f64::NAN),
-            y.get(2 * i + 1).copied().unwrap_or(f64::NAN),
-        )
-    };
-    let mut write = |k: usize, v: Complex64| {
-        if let Some(slot) = dy.get_mut(2 * k) {
-            *slot = v.re;
-        }
-        if let Some(slot) = dy.get_mut(2 * k + 1) {
-            *slot = v.im;
-        }
-    };
-    let get = |v: &[f64], k: usize| v.get(k).copied().unwrap_or(f64::NAN);
-    for k in 0..n {
-        let mut total = Complex64::new(-get(r1, k), 0.0);
-        for i in 0..n {
-            let bi = beta(i);
-            total += get(&c.k1, i * n + k) * bi;
-            let mut row = Complex64::new(0.0, 0.0);
-            for j in 0..n {
-                let h = get(&c.h1, k * n * n + i * n + j);
-                if h != 0.0 {
-                    row += h * beta(j);
-                }
-            }
-            total += 0.5 * bi * row;
-        }
-        write(k, total);
-    }
-    let mut alpha = Complex64::new(-r0, 0.0);
-    for i in 0..n {
-        let bi = beta(i);
-        alpha += get(&c.k0, i) * bi;
-        for j in 0..n {
-            let h = get(&c.h0, i * n + j);
-            if h != 0.0 {
-                alpha += 0.5 * h * bi * beta(j);
-            }
-        }
-    }
-    write(n, alpha);
-}
-
-/// See [`AffineSet::factor_transform`].
-#[derive(Clone, Debug)]
-pub struct FactorTransform {
-    set: AffineSet,
-    rate: Rate,
-    factor: usize,
-    t: f64,
-    /// The coefficients and the fixed components when the plan is the scalar closed form
-    /// (a log-price over a square-root variance, for one).
-    scalar: Option<(Numbers, Vec<bool>)>,
-}
-
-impl FactorTransform {
-    /// log E[exp(w·X_t)] of the factor (on ln X for a log factor).
-    pub fn log_transform(&self, w: Complex64) -> Result<Complex64, TransformError> {
-        let n = self.set.n;
-        let mut u = vec![Complex64::new(0.0, 0.0); n];
-        *u.get_mut(self.factor)
-            .ok_or_else(|| TransformError::Failed("no such factor".into()))? = w;
-        match &self.scalar {
-            Some((numbers, fixed)) => {
-                let zero = vec![0.0; n];
-                let (alpha, beta) = scalar_solution(n, numbers, &zero, fixed, &u, self.t)?;
-                Ok(alpha + dot(&beta, &self.set.x0))
-            }
-            None => self.set.log_transform(&u, &self.rate, self.t),
         }
     }
 }

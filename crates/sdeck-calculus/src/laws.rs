@@ -9,6 +9,7 @@
 
 use crate::affine::{AffineSet, Rate, TransformError};
 use crate::one_state::{mean_variance, square_root_transition};
+use crate::shape::OneState;
 use crate::{noncentral, ode, Derivation, Family};
 use num_complex::Complex64;
 use sdeck_semantics::{FactorId, Model};
@@ -112,50 +113,71 @@ pub fn law_of(model: &Model, derivation: &Derivation, id: FactorId, t: f64) -> O
         });
     }
     let analysis = derivation.analysis();
-    let params = &analysis.params;
     if let Some((os, family)) = analysis.one_state(state) {
-        let gaussian = matches!(
-            family,
-            Family::Deterministic | Family::ArithmeticBrownian | Family::OrnsteinUhlenbeck
-        ) || (family == Family::Linear && !os.state_dependent_noise());
-        if gaussian {
-            let mv = mean_variance(os, family, params, x0, t)?;
-            return Some(normal(mv.mean, mv.variance));
-        }
-        if family == Family::GeometricBrownian && !os.time_dependent {
-            if x0 == 0.0 {
-                return Some(Law {
-                    kind: LawKind::Lognormal,
-                    shape: Shape::Point(0.0),
-                });
-            }
-            // ln(X_t / x0) ~ Normal((b − γ/2) t, γ t) (Glasserman 2004, §3.2.1).
-            let v = os.values(params, 0.0);
-            return Some(Law {
-                kind: LawKind::Lognormal,
-                shape: Shape::Lognormal {
-                    location: x0.abs().ln() + (v.b - v.gamma / 2.0) * t,
-                    spread: (v.gamma * t).max(0.0).sqrt(),
-                    negative: x0 < 0.0,
-                },
-            });
-        }
-        if family == Family::SquareRoot && !os.time_dependent {
-            let law = square_root_transition(os, params, x0, t)?;
-            return Some(Law {
-                kind: LawKind::NoncentralChiSquare,
-                shape: Shape::NoncentralChiSquare {
-                    degrees: law.degrees,
-                    noncentrality: law.noncentrality,
-                    scale: law.scale,
-                },
-            });
+        if let Some(law) = one_state_law(os, family, &analysis.params, x0, t) {
+            return law;
         }
     }
     if derivation.system_family == Family::LinearSystem {
         let moments = crate::state_moments(model, derivation, id, t);
         return Some(normal(moments.mean?, moments.variance?));
     }
+    transform_law(model, state, t)
+}
+
+/// The law of a one-state factor in closed form: normal, lognormal or noncentral
+/// chi-square. `None` when its family has no closed-form law here (the caller tries the
+/// other ways); `Some(None)` when it has one that cannot be evaluated.
+fn one_state_law(
+    os: &OneState,
+    family: Family,
+    params: &[f64],
+    x0: f64,
+    t: f64,
+) -> Option<Option<Law>> {
+    let gaussian = matches!(
+        family,
+        Family::Deterministic | Family::ArithmeticBrownian | Family::OrnsteinUhlenbeck
+    ) || (family == Family::Linear && !os.state_dependent_noise());
+    if gaussian {
+        return Some(
+            mean_variance(os, family, params, x0, t).map(|mv| normal(mv.mean, mv.variance)),
+        );
+    }
+    if family == Family::GeometricBrownian && !os.time_dependent {
+        if x0 == 0.0 {
+            return Some(Some(Law {
+                kind: LawKind::Lognormal,
+                shape: Shape::Point(0.0),
+            }));
+        }
+        // ln(X_t / x0) ~ Normal((b − γ/2) t, γ t) (Glasserman 2004, §3.2.1).
+        let v = os.values(params, 0.0);
+        return Some(Some(Law {
+            kind: LawKind::Lognormal,
+            shape: Shape::Lognormal {
+                location: x0.abs().ln() + (v.b - v.gamma / 2.0) * t,
+                spread: (v.gamma * t).max(0.0).sqrt(),
+                negative: x0 < 0.0,
+            },
+        }));
+    }
+    if family == Family::SquareRoot && !os.time_dependent {
+        return Some(square_root_transition(os, params, x0, t).map(|law| Law {
+            kind: LawKind::NoncentralChiSquare,
+            shape: Shape::NoncentralChiSquare {
+                degrees: law.degrees,
+                noncentrality: law.noncentrality,
+                scale: law.scale,
+            },
+        }));
+    }
+    None
+}
+
+/// The law of factor `state` from the transform of the model's affine set: normal or
+/// lognormal when the set is Gaussian, inverted by Fourier otherwise.
+fn transform_law(model: &Model, state: usize, t: f64) -> Option<Law> {
     let set = AffineSet::from_model(model).ok()?;
     let log = set.is_log(state);
     // A log factor is inverted around ln X₀ (see `AffineSet::centred_log`).
@@ -183,19 +205,7 @@ pub fn law_of(model: &Model, derivation: &Derivation, id: FactorId, t: f64) -> O
         }
         return Some(normal(mean, variance));
     }
-    // Cumulants from the transform at small imaginary arguments: L(ih) ≈ iκ₁h − κ₂h²/2.
-    let mut h = 1e-3;
-    let mut mean = f64::NAN;
-    let mut sd = f64::NAN;
-    for _ in 0..2 {
-        let value = transform(Complex64::new(0.0, h)).ok()?;
-        mean = value.im / h;
-        sd = (-2.0 * value.re / (h * h)).max(0.0).sqrt();
-        if !(sd > 0.0 && sd.is_finite()) {
-            return None;
-        }
-        h = 1e-3 / sd;
-    }
+    let (mean, sd) = first_cumulants(&transform)?;
     Some(Law {
         kind: LawKind::Fourier,
         shape: Shape::Fourier {
@@ -209,6 +219,26 @@ pub fn law_of(model: &Model, derivation: &Derivation, id: FactorId, t: f64) -> O
             budget: Arc::new(AtomicUsize::new(FOURIER_EVALUATIONS)),
         },
     })
+}
+
+/// The mean and standard deviation from the log transform at small imaginary arguments:
+/// L(ih) ≈ iκ₁h − κ₂h²/2, the step refined once to the scale of the law.
+fn first_cumulants(
+    transform: &dyn Fn(Complex64) -> Result<Complex64, TransformError>,
+) -> Option<(f64, f64)> {
+    let mut h = 1e-3;
+    let mut mean = f64::NAN;
+    let mut sd = f64::NAN;
+    for _ in 0..2 {
+        let value = transform(Complex64::new(0.0, h)).ok()?;
+        mean = value.im / h;
+        sd = (-2.0 * value.re / (h * h)).max(0.0).sqrt();
+        if !(sd > 0.0 && sd.is_finite()) {
+            return None;
+        }
+        h = 1e-3 / sd;
+    }
+    Some((mean, sd))
 }
 
 /// The transform evaluations one Fourier law may spend on all its probabilities and

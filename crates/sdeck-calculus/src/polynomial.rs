@@ -30,7 +30,11 @@
 //! # Ok::<(), String>(())
 //! ```
 
-use std::collections::HashMap;
+mod basis;
+mod table;
+
+pub use basis::MonomialBasis;
+pub use table::MomentTable;
 
 use nalgebra::{DMatrix, DVector};
 
@@ -52,6 +56,26 @@ pub struct PolynomialSystem {
     covariance_constant: DMatrix<f64>,
     covariance_linear: Vec<DMatrix<f64>>,
     covariance_quadratic: Vec<Vec<DMatrix<f64>>>,
+}
+
+/// The generator's matrix as it is filled, and the exponents of the monomial a term
+/// lands on.
+struct GeneratorRows<'a> {
+    basis: &'a MonomialBasis,
+    matrix: DMatrix<f64>,
+    shifted: Vec<u32>,
+}
+
+impl GeneratorRows<'_> {
+    /// Adds `value` at row `row` and the column of the monomial `shifted`, when the
+    /// basis holds it.
+    fn add(&mut self, row: usize, value: f64) {
+        if value != 0.0 {
+            if let Some(column) = self.basis.position(&self.shifted) {
+                self.matrix[(row, column)] += value;
+            }
+        }
+    }
 }
 
 impl PolynomialSystem {
@@ -189,88 +213,69 @@ impl PolynomialSystem {
     /// L f = Σ_i μ_i ∂_i f + ½ Σ_{i,j} C_ij ∂_i ∂_j f.
     pub fn generator(&self, order: usize) -> Result<(MonomialBasis, DMatrix<f64>), String> {
         let basis = MonomialBasis::new(self.dimension(), order)?;
-        let n = self.dimension();
         let size = basis.len();
-        let mut generator = DMatrix::<f64>::zeros(size, size);
-        let mut shifted = vec![0u32; n];
-        let add = |row: usize, exponents: &[u32], value: f64, matrix: &mut DMatrix<f64>| {
-            if value != 0.0 {
-                if let Some(column) = basis.position(exponents) {
-                    matrix[(row, column)] += value;
-                }
-            }
+        let mut rows = GeneratorRows {
+            basis: &basis,
+            matrix: DMatrix::<f64>::zeros(size, size),
+            shifted: vec![0u32; self.dimension()],
         };
         for (row, alpha) in basis.iter().enumerate() {
-            // First-order part: α_i x^{α−e_i} (b_i + Σ_k A_ik x_k).
-            for i in 0..n {
-                if alpha[i] == 0 {
+            self.drift_part(&mut rows, row, alpha);
+            self.diffusion_part(&mut rows, row, alpha);
+        }
+        let matrix = rows.matrix;
+        Ok((basis, matrix))
+    }
+
+    /// Adds to row `row` the first-order part of L x^α: α_i x^{α−e_i} (b_i + Σ_k A_ik x_k).
+    fn drift_part(&self, rows: &mut GeneratorRows, row: usize, alpha: &[u32]) {
+        let n = self.dimension();
+        for i in 0..n {
+            if alpha[i] == 0 {
+                continue;
+            }
+            let weight = f64::from(alpha[i]);
+            rows.shifted.copy_from_slice(alpha);
+            rows.shifted[i] -= 1;
+            rows.add(row, weight * self.drift_constant[i]);
+            for k in 0..n {
+                rows.shifted[k] += 1;
+                rows.add(row, weight * self.drift_matrix[(i, k)]);
+                rows.shifted[k] -= 1;
+            }
+        }
+    }
+
+    /// Adds to row `row` the second-order part of L x^α: ½ C_ij(x) ∂_i ∂_j x^α.
+    fn diffusion_part(&self, rows: &mut GeneratorRows, row: usize, alpha: &[u32]) {
+        let n = self.dimension();
+        for i in 0..n {
+            for j in 0..n {
+                let weight = if i == j {
+                    f64::from(alpha[i]) * (f64::from(alpha[i]) - 1.0)
+                } else {
+                    f64::from(alpha[i]) * f64::from(alpha[j])
+                };
+                if weight == 0.0 {
                     continue;
                 }
-                let weight = f64::from(alpha[i]);
-                shifted.copy_from_slice(alpha);
-                shifted[i] -= 1;
-                add(
-                    row,
-                    &shifted,
-                    weight * self.drift_constant[i],
-                    &mut generator,
-                );
+                let half_weight = 0.5 * weight;
+                rows.shifted.copy_from_slice(alpha);
+                rows.shifted[i] -= 1;
+                rows.shifted[j] -= 1;
+                rows.add(row, half_weight * self.covariance_constant[(i, j)]);
                 for k in 0..n {
-                    shifted[k] += 1;
-                    add(
-                        row,
-                        &shifted,
-                        weight * self.drift_matrix[(i, k)],
-                        &mut generator,
-                    );
-                    shifted[k] -= 1;
-                }
-            }
-            // Second-order part: ½ C_ij(x) ∂_i ∂_j x^α.
-            for i in 0..n {
-                for j in 0..n {
-                    let weight = if i == j {
-                        f64::from(alpha[i]) * (f64::from(alpha[i]) - 1.0)
-                    } else {
-                        f64::from(alpha[i]) * f64::from(alpha[j])
-                    };
-                    if weight == 0.0 {
-                        continue;
+                    rows.shifted[k] += 1;
+                    rows.add(row, half_weight * self.covariance_linear[k][(i, j)]);
+                    for l in 0..n {
+                        rows.shifted[l] += 1;
+                        rows.add(row, half_weight * self.covariance_quadratic[k][l][(i, j)]);
+                        rows.shifted[l] -= 1;
                     }
-                    let half_weight = 0.5 * weight;
-                    shifted.copy_from_slice(alpha);
-                    shifted[i] -= 1;
-                    shifted[j] -= 1;
-                    add(
-                        row,
-                        &shifted,
-                        half_weight * self.covariance_constant[(i, j)],
-                        &mut generator,
-                    );
-                    for k in 0..n {
-                        shifted[k] += 1;
-                        add(
-                            row,
-                            &shifted,
-                            half_weight * self.covariance_linear[k][(i, j)],
-                            &mut generator,
-                        );
-                        for l in 0..n {
-                            shifted[l] += 1;
-                            add(
-                                row,
-                                &shifted,
-                                half_weight * self.covariance_quadratic[k][l][(i, j)],
-                                &mut generator,
-                            );
-                            shifted[l] -= 1;
-                        }
-                        shifted[k] -= 1;
-                    }
+                    rows.shifted[k] -= 1;
                 }
             }
         }
-        Ok((basis, generator))
     }
 
     /// Every moment E[X_t^α] with |α| ≤ `order`, from X_0 = x0. With bad input (x0 of the
@@ -526,325 +531,6 @@ impl PolynomialSystem {
     }
 }
 
-/// The monomials x^α of n variables with |α| ≤ order, in a stable order: by degree, then
-/// lexicographically with larger exponents of earlier states first. For two states and
-/// order 2: 1, x₀, x₁, x₀², x₀x₁, x₁².
-#[derive(Clone, Debug, PartialEq)]
-pub struct MonomialBasis {
-    dimension: usize,
-    order: usize,
-    exponents: Vec<Vec<u32>>,
-    positions: HashMap<Vec<u32>, usize>,
-    /// Position where each degree 0..=order starts, plus the total size at the end.
-    degree_starts: Vec<usize>,
-}
-
-impl MonomialBasis {
-    /// Enumerates the basis; an error when it would exceed [`MAX_BASIS_SIZE`].
-    pub fn new(dimension: usize, order: usize) -> Result<Self, String> {
-        let size = basis_size(dimension, order).filter(|size| *size <= MAX_BASIS_SIZE);
-        let Some(size) = size else {
-            return Err(format!(
-                "moments up to order {order} of {dimension} factors need more than \
-                 {MAX_BASIS_SIZE} monomials"
-            ));
-        };
-        let mut exponents = Vec::with_capacity(size);
-        let mut degree_starts = Vec::with_capacity(order + 2);
-        let mut current = vec![0u32; dimension];
-        for degree in 0..=order {
-            degree_starts.push(exponents.len());
-            push_monomials_of_degree(&mut current, 0, degree as u32, &mut exponents);
-        }
-        degree_starts.push(exponents.len());
-        let positions = exponents
-            .iter()
-            .enumerate()
-            .map(|(position, alpha)| (alpha.clone(), position))
-            .collect();
-        Ok(MonomialBasis {
-            dimension,
-            order,
-            exponents,
-            positions,
-            degree_starts,
-        })
-    }
-
-    /// Number of monomials.
-    pub fn len(&self) -> usize {
-        self.exponents.len()
-    }
-
-    /// True for an empty basis (never: the constant monomial is always there).
-    pub fn is_empty(&self) -> bool {
-        self.exponents.is_empty()
-    }
-
-    /// Highest total degree.
-    pub fn order(&self) -> usize {
-        self.order
-    }
-
-    /// Number of variables.
-    pub fn dimension(&self) -> usize {
-        self.dimension
-    }
-
-    /// Exponents of the monomial at `position`; `None` past the end.
-    pub fn exponents(&self, position: usize) -> Option<&[u32]> {
-        self.exponents.get(position).map(Vec::as_slice)
-    }
-
-    /// Every monomial's exponents, in basis order.
-    pub fn iter(&self) -> impl Iterator<Item = &[u32]> {
-        self.exponents.iter().map(Vec::as_slice)
-    }
-
-    /// Position of the monomial with these exponents, if it is in the basis.
-    pub fn position(&self, exponents: &[u32]) -> Option<usize> {
-        self.positions.get(exponents).copied()
-    }
-
-    /// Positions [start, end) of the monomials of exactly this degree.
-    pub fn degree_range(&self, degree: usize) -> (usize, usize) {
-        match (
-            self.degree_starts.get(degree),
-            self.degree_starts.get(degree + 1),
-        ) {
-            (Some(&start), Some(&end)) => (start, end),
-            _ => (self.len(), self.len()),
-        }
-    }
-}
-
-/// C(n + N, N) with overflow checks; `None` when it does not fit in usize.
-fn basis_size(dimension: usize, order: usize) -> Option<usize> {
-    let mut size: usize = 1;
-    for k in 1..=order {
-        // size · (n + k) / k stays an integer at every step (it is C(n + k, k)).
-        size = size.checked_mul(dimension.checked_add(k)?)? / k;
-    }
-    Some(size)
-}
-
-/// Appends, in the basis order, every exponent vector of total `remaining` over the
-/// variables from `variable` on (the earlier ones are fixed in `current`).
-fn push_monomials_of_degree(
-    current: &mut [u32],
-    variable: usize,
-    remaining: u32,
-    out: &mut Vec<Vec<u32>>,
-) {
-    match current.len().saturating_sub(variable) {
-        0 => {
-            // No variables left (or none at all): only a zero remainder is a monomial.
-            if remaining == 0 {
-                out.push(current.to_vec());
-            }
-        }
-        1 => {
-            current[variable] = remaining;
-            out.push(current.to_vec());
-            current[variable] = 0;
-        }
-        _ => {
-            for power in (0..=remaining).rev() {
-                current[variable] = power;
-                push_monomials_of_degree(current, variable + 1, remaining - power, out);
-            }
-            current[variable] = 0;
-        }
-    }
-}
-
-/// Moments E[X^α] for every |α| ≤ order, with the usual summaries.
-///
-/// Held as moments of Y = X − origin (the start, or the stationary mean) so that
-/// covariances and central moments come without cancellation; raw moments of X are
-/// expanded from them once.
-#[derive(Clone, Debug, PartialEq)]
-pub struct MomentTable {
-    basis: MonomialBasis,
-    /// E[X^α] in basis order.
-    values: Vec<f64>,
-    origin: Vec<f64>,
-    /// E[(X − origin)^α] in basis order.
-    shifted: Vec<f64>,
-    /// The covariance computed about the mean path, when it was (order ≥ 2, t > 0).
-    centred: Option<DMatrix<f64>>,
-}
-
-impl MomentTable {
-    fn from_shifted(basis: MonomialBasis, origin: Vec<f64>, shifted: Vec<f64>) -> Self {
-        let negated_origin: Vec<f64> = origin.iter().map(|v| -v).collect();
-        let values = basis
-            .iter()
-            .map(|alpha| expand_about(&basis, &shifted, alpha, &negated_origin).unwrap_or(f64::NAN))
-            .collect();
-        MomentTable {
-            basis,
-            values,
-            origin,
-            shifted,
-            centred: None,
-        }
-    }
-
-    /// A table whose every value is NaN (the moments could not be computed).
-    fn not_available(dimension: usize, order: usize) -> Self {
-        // The smallest basis that still answers `order()` and `dimension()` honestly.
-        let basis = MonomialBasis::new(dimension, order)
-            .or_else(|_| MonomialBasis::new(dimension, 0))
-            .unwrap_or(MonomialBasis {
-                dimension,
-                order: 0,
-                exponents: Vec::new(),
-                positions: HashMap::new(),
-                degree_starts: vec![0, 0],
-            });
-        let values = vec![f64::NAN; basis.len()];
-        MomentTable {
-            basis,
-            shifted: values.clone(),
-            values,
-            origin: vec![f64::NAN; dimension],
-            centred: None,
-        }
-    }
-
-    fn shifted_moment(&self, multi_index: &[u32]) -> Option<f64> {
-        let position = self.basis.position(multi_index)?;
-        self.shifted.get(position).copied()
-    }
-
-    /// Highest total degree held.
-    pub fn order(&self) -> usize {
-        self.basis.order()
-    }
-
-    /// Number of states.
-    pub fn dimension(&self) -> usize {
-        self.basis.dimension()
-    }
-
-    /// The basis the values are listed in.
-    pub fn basis(&self) -> &MonomialBasis {
-        &self.basis
-    }
-
-    /// The values in basis order.
-    pub fn values(&self) -> &[f64] {
-        &self.values
-    }
-
-    /// E[Π_i X_i^{α_i}]; `None` when α has the wrong length or a degree above the order.
-    pub fn raw(&self, multi_index: &[u32]) -> Option<f64> {
-        let position = self.basis.position(multi_index)?;
-        self.values.get(position).copied()
-    }
-
-    /// E[X_i].
-    pub fn mean(&self, state: usize) -> Option<f64> {
-        let displacement = self.shifted_moment(&self.unit_index(state, None)?)?;
-        Some(self.origin.get(state)? + displacement)
-    }
-
-    /// Cov(X_i, X_j), computed about the table's origin; needs order ≥ 2.
-    pub fn covariance(&self, i: usize, j: usize) -> Option<f64> {
-        if let Some(centred) = &self.centred {
-            return centred.get((i, j)).copied();
-        }
-        let second = self.shifted_moment(&self.unit_index(i, Some(j))?)?;
-        let first_i = self.shifted_moment(&self.unit_index(i, None)?)?;
-        let first_j = self.shifted_moment(&self.unit_index(j, None)?)?;
-        Some(second - first_i * first_j)
-    }
-
-    /// Var(X_i).
-    pub fn variance(&self, state: usize) -> Option<f64> {
-        self.covariance(state, state)
-    }
-
-    /// E[Π_i (X_i − E X_i)^{α_i}], expanded binomially over the moments about the origin.
-    pub fn central(&self, multi_index: &[u32]) -> Option<f64> {
-        let displacements: Vec<f64> = (0..self.dimension())
-            .map(|i| self.shifted_moment(&self.unit_index(i, None)?))
-            .collect::<Option<_>>()?;
-        expand_about(&self.basis, &self.shifted, multi_index, &displacements)
-    }
-
-    /// The vector of means (NaN where unavailable).
-    pub fn means(&self) -> DVector<f64> {
-        DVector::from_iterator(
-            self.dimension(),
-            (0..self.dimension()).map(|i| self.mean(i).unwrap_or(f64::NAN)),
-        )
-    }
-
-    /// The covariance matrix; `None` below order 2.
-    pub fn covariance_matrix(&self) -> Option<DMatrix<f64>> {
-        let n = self.dimension();
-        let mut matrix = DMatrix::zeros(n, n);
-        for i in 0..n {
-            for j in 0..n {
-                matrix[(i, j)] = self.covariance(i, j)?;
-            }
-        }
-        Some(matrix)
-    }
-
-    /// Multi-index with 1 at `first` (and 1 more at `second`).
-    fn unit_index(&self, first: usize, second: Option<usize>) -> Option<Vec<u32>> {
-        let mut index = vec![0u32; self.dimension()];
-        *index.get_mut(first)? += 1;
-        if let Some(second) = second {
-            *index.get_mut(second)? += 1;
-        }
-        Some(index)
-    }
-}
-
-/// E[Π_i (Z_i − c_i)^{α_i}] = Σ_{β ≤ α} Π_i C(α_i, β_i) (−c_i)^{α_i − β_i} E[Z^β], where
-/// `moments` lists E[Z^β] in the order of `basis`. `None` when α does not fit the basis.
-fn expand_about(
-    basis: &MonomialBasis,
-    moments: &[f64],
-    multi_index: &[u32],
-    centre: &[f64],
-) -> Option<f64> {
-    let n = basis.dimension();
-    if multi_index.len() != n || centre.len() != n {
-        return None;
-    }
-    basis.position(multi_index)?;
-    let mut beta = vec![0u32; n];
-    let mut total = 0.0;
-    loop {
-        let mut weight = 1.0;
-        for i in 0..n {
-            let lower = multi_index[i] - beta[i];
-            weight *= binomial(multi_index[i], beta[i]) * (-centre[i]).powi(lower as i32);
-        }
-        if weight != 0.0 {
-            total += weight * moments.get(basis.position(&beta)?)?;
-        }
-        // Next β ≤ α in odometer order.
-        let mut carried = true;
-        for i in 0..n {
-            if beta[i] < multi_index[i] {
-                beta[i] += 1;
-                carried = false;
-                break;
-            }
-            beta[i] = 0;
-        }
-        if carried {
-            return Some(total);
-        }
-    }
-}
-
 /// Π_i scale_i^{β_i}.
 fn scale_power(scale: &DVector<f64>, beta: &[u32]) -> f64 {
     scale
@@ -862,14 +548,9 @@ fn one_norm(matrix: &DMatrix<f64>) -> f64 {
         .fold(0.0, f64::max)
 }
 
-fn binomial(n: u32, k: u32) -> f64 {
-    (0..k).fold(1.0, |product, step| {
-        product * f64::from(n - step) / f64::from(step + 1)
-    })
-}
-
 #[cfg(test)]
 mod tests {
+    use super::basis::basis_size;
     use super::*;
 
     #[test]

@@ -7,7 +7,7 @@ use super::AffineSet;
 use crate::algebra::{Atom, Monomial, Poly};
 use crate::breaks::TimeBreaks;
 use crate::shape::{diffusion_product, shape_of, NoiseTerm, Shape};
-use sdeck_semantics::Model;
+use sdeck_semantics::{Correlations, Model};
 
 /// `poly / x_state` when every term carries x_state exactly once.
 fn divide_by_state(poly: &Poly, state: usize) -> Option<Poly> {
@@ -75,6 +75,15 @@ fn affine_parts(poly: &Poly, log: &[bool]) -> Option<(Poly, Vec<Poly>)> {
     Some((constant, linear))
 }
 
+/// The coefficients of an affine set: the drift K0 + K1·x of each factor and the
+/// instantaneous covariance H0 + Σ_k x_k H1[k], as polynomials of parameters and t.
+struct Coefficients {
+    k0: Vec<Poly>,
+    k1: Vec<Vec<Poly>>,
+    h0: Vec<Vec<Poly>>,
+    h1: Vec<Vec<Vec<Poly>>>,
+}
+
 impl AffineSet {
     /// The affine set of every factor of `model`, or why the model has none.
     pub fn from_model(model: &Model) -> Result<AffineSet, String> {
@@ -91,144 +100,188 @@ impl AffineSet {
             ));
         }
         let corr = model.correlations();
-        let mut shapes = Vec::with_capacity(n);
-        for i in 0..n {
-            shapes.push(shape_of(model, i).map_err(|_| {
+        let shapes = shapes(model)?;
+        let (log, relative) = log_factors(model, &shapes, &corr)?;
+        let coefficients = coefficients(model, &relative, &log, &corr)?;
+        check_admissible(model, &coefficients.h1, &log)?;
+        assemble(model, log, coefficients)
+    }
+}
+
+/// The shape of every factor's equation.
+fn shapes(model: &Model) -> Result<Vec<Shape>, String> {
+    (0..model.factors.len())
+        .map(|i| {
+            shape_of(model, i).map_err(|_| {
                 format!(
                     "the equation of {} is not a polynomial in the factors",
                     name(model, i)
                 )
-            })?);
+            })
+        })
+        .collect()
+}
+
+/// Which factors are carried by their logarithm, and the equations the set reads: a
+/// factor whose own squared diffusion is not affine is carried by its logarithm when its
+/// equation is S times something free of S.
+fn log_factors(
+    model: &Model,
+    shapes: &[Shape],
+    corr: &Correlations,
+) -> Result<(Vec<bool>, Vec<Shape>), String> {
+    let n = shapes.len();
+    let mut log = vec![false; n];
+    let mut relative = shapes.to_vec();
+    for i in 0..n {
+        let Some(shape) = shapes.get(i) else { continue };
+        let own = diffusion_product(&shape.noises, &shape.noises, corr).ok();
+        let affine_itself =
+            shape.drift.state_degree() <= 1 && own.is_some_and(|p| p.state_degree() <= 1);
+        if affine_itself {
+            continue;
         }
-        // A factor whose own squared diffusion is not affine is carried by its logarithm
-        // when its equation is S times something free of S.
-        let mut log = vec![false; n];
-        let mut relative = shapes.clone();
-        for i in 0..n {
-            let Some(shape) = shapes.get(i) else { continue };
-            let own = diffusion_product(&shape.noises, &shape.noises, &corr).ok();
-            let affine_itself =
-                shape.drift.state_degree() <= 1 && own.is_some_and(|p| p.state_degree() <= 1);
-            if affine_itself {
-                continue;
+        let start = model.factors.get(i).map(|s| s.initial).unwrap_or(f64::NAN);
+        match relative_shape(shape, i) {
+            Some(r) if start > 0.0 => {
+                log[i] = true;
+                relative[i] = r;
             }
-            let start = model.factors.get(i).map(|s| s.initial).unwrap_or(f64::NAN);
-            match relative_shape(shape, i) {
-                Some(r) if start > 0.0 => {
-                    log[i] = true;
-                    relative[i] = r;
-                }
-                _ => {
-                    return Err(format!(
-                        "{} has neither an affine drift and covariance nor the form \
-                         S·(affine) dt + S·(...) dW with a positive start",
-                        name(model, i)
-                    ))
-                }
-            }
-        }
-        let mut k0 = Vec::with_capacity(n);
-        let mut k1 = Vec::with_capacity(n);
-        let mut h0 = vec![vec![Poly::zero(); n]; n];
-        let mut h1 = vec![vec![vec![Poly::zero(); n]; n]; n];
-        for i in 0..n {
-            let shape = relative.get(i).ok_or("internal: missing shape")?;
-            let mut drift = shape.drift.clone();
-            if log[i] {
-                let squared = diffusion_product(&shape.noises, &shape.noises, &corr)
-                    .map_err(|_| format!("the diffusion of {} is not affine", name(model, i)))?;
-                drift = drift.sub(&squared.scale(0.5));
-            }
-            let (constant, linear) = affine_parts(&drift, &log).ok_or_else(|| {
-                format!(
-                    "the drift of {} is not affine in the factors{}",
-                    name(model, i),
-                    if log[i] { " (in logarithms)" } else { "" }
-                )
-            })?;
-            k0.push(constant);
-            k1.push(linear);
-            for j in 0..n {
-                let other = relative.get(j).ok_or("internal: missing shape")?;
-                let product = diffusion_product(&shape.noises, &other.noises, &corr)
-                    .ok()
-                    .and_then(|p| affine_parts(&p, &log))
-                    .ok_or_else(|| {
-                        format!(
-                            "the instantaneous covariance of {} and {} is not affine in the \
-                             factors",
-                            name(model, i),
-                            name(model, j)
-                        )
-                    })?;
-                h0[i][j] = product.0;
-                for (k, coefficient) in product.1.into_iter().enumerate() {
-                    h1[k][i][j] = coefficient;
-                }
-            }
-        }
-        // A factor that scales a covariance must stay non-negative, which in an affine
-        // set means its own variance is proportional to it (a square-root factor; the
-        // admissibility of Duffie, Filipović & Schachermayer 2003, Annals of Applied
-        // Probability 13). A Gaussian factor under a square root makes the covariance
-        // negative with positive probability: the transform then describes no law.
-        for (k, scales) in h1.iter().enumerate() {
-            let drives = scales.iter().flatten().any(|c| !c.is_zero());
-            let own = scales.get(k).and_then(|row| row.get(k));
-            if drives && (log[k] || own.is_none_or(Poly::is_zero)) {
+            _ => {
                 return Err(format!(
-                    "{} scales a covariance but has no diffusion proportional to itself, so                      nothing keeps it non-negative",
-                    name(model, k)
-                ));
+                    "{} has neither an affine drift and covariance nor the form \
+                     S·(affine) dt + S·(...) dW with a positive start",
+                    name(model, i)
+                ))
             }
         }
-        let x0 = model
-            .factors
-            .iter()
-            .zip(&log)
-            .map(|(s, &l)| if l { s.initial.ln() } else { s.initial })
-            .collect();
-        let time_dependent = k0.iter().any(Poly::depends_on_time)
-            || k1.iter().flatten().any(Poly::depends_on_time)
-            || h0.iter().flatten().any(Poly::depends_on_time)
-            || h1.iter().flatten().flatten().any(Poly::depends_on_time);
-        let params = model.param_values();
-        let breaks = TimeBreaks::of_polys(
-            k0.iter()
-                .chain(k1.iter().flatten())
-                .chain(h0.iter().flatten())
-                .chain(h1.iter().flatten().flatten()),
-            &params,
-        );
-        let mut set = AffineSet {
-            n,
-            log,
-            x0,
-            k0,
-            k1,
-            h0,
-            h1,
-            params,
-            time_dependent,
-            constant: None,
-            breaks,
-        };
-        if !time_dependent {
-            let numbers = set.numbers(0.0);
-            if numbers
-                .k0
-                .iter()
-                .chain(&numbers.k1)
-                .chain(&numbers.h0)
-                .chain(&numbers.h1)
-                .any(|v| !v.is_finite())
-            {
-                return Err("a coefficient is not a finite number".to_string());
-            }
-            set.constant = Some(numbers);
-        }
-        Ok(set)
     }
+    Ok((log, relative))
+}
+
+/// K0, K1, H0 and H1 from the equations, or which drift or covariance is not affine.
+fn coefficients(
+    model: &Model,
+    relative: &[Shape],
+    log: &[bool],
+    corr: &Correlations,
+) -> Result<Coefficients, String> {
+    let n = relative.len();
+    let mut k0 = Vec::with_capacity(n);
+    let mut k1 = Vec::with_capacity(n);
+    let mut h0 = vec![vec![Poly::zero(); n]; n];
+    let mut h1 = vec![vec![vec![Poly::zero(); n]; n]; n];
+    for i in 0..n {
+        let shape = relative.get(i).ok_or("internal: missing shape")?;
+        let mut drift = shape.drift.clone();
+        if log[i] {
+            let squared = diffusion_product(&shape.noises, &shape.noises, corr)
+                .map_err(|_| format!("the diffusion of {} is not affine", name(model, i)))?;
+            drift = drift.sub(&squared.scale(0.5));
+        }
+        let (constant, linear) = affine_parts(&drift, log).ok_or_else(|| {
+            format!(
+                "the drift of {} is not affine in the factors{}",
+                name(model, i),
+                if log[i] { " (in logarithms)" } else { "" }
+            )
+        })?;
+        k0.push(constant);
+        k1.push(linear);
+        for j in 0..n {
+            let other = relative.get(j).ok_or("internal: missing shape")?;
+            let product = diffusion_product(&shape.noises, &other.noises, corr)
+                .ok()
+                .and_then(|p| affine_parts(&p, log))
+                .ok_or_else(|| {
+                    format!(
+                        "the instantaneous covariance of {} and {} is not affine in the \
+                         factors",
+                        name(model, i),
+                        name(model, j)
+                    )
+                })?;
+            h0[i][j] = product.0;
+            for (k, coefficient) in product.1.into_iter().enumerate() {
+                h1[k][i][j] = coefficient;
+            }
+        }
+    }
+    Ok(Coefficients { k0, k1, h0, h1 })
+}
+
+/// Refuses a set in which a factor that may go negative scales a covariance.
+fn check_admissible(model: &Model, h1: &[Vec<Vec<Poly>>], log: &[bool]) -> Result<(), String> {
+    // A factor that scales a covariance must stay non-negative, which in an affine
+    // set means its own variance is proportional to it (a square-root factor; the
+    // admissibility of Duffie, Filipović & Schachermayer 2003, Annals of Applied
+    // Probability 13). A Gaussian factor under a square root makes the covariance
+    // negative with positive probability: the transform then describes no law.
+    for (k, scales) in h1.iter().enumerate() {
+        let drives = scales.iter().flatten().any(|c| !c.is_zero());
+        let own = scales.get(k).and_then(|row| row.get(k));
+        if drives && (log[k] || own.is_none_or(Poly::is_zero)) {
+            return Err(format!(
+                "{} scales a covariance but has no diffusion proportional to itself, so                      nothing keeps it non-negative",
+                name(model, k)
+            ));
+        }
+    }
+    Ok(())
+}
+
+/// The set from its coefficients: the start (in logarithms where carried so), whether
+/// anything depends on t, the breaks of the coefficients, and the numbers read once when
+/// nothing does.
+fn assemble(model: &Model, log: Vec<bool>, c: Coefficients) -> Result<AffineSet, String> {
+    let Coefficients { k0, k1, h0, h1 } = c;
+    let n = log.len();
+    let x0 = model
+        .factors
+        .iter()
+        .zip(&log)
+        .map(|(s, &l)| if l { s.initial.ln() } else { s.initial })
+        .collect();
+    let time_dependent = k0.iter().any(Poly::depends_on_time)
+        || k1.iter().flatten().any(Poly::depends_on_time)
+        || h0.iter().flatten().any(Poly::depends_on_time)
+        || h1.iter().flatten().flatten().any(Poly::depends_on_time);
+    let params = model.param_values();
+    let breaks = TimeBreaks::of_polys(
+        k0.iter()
+            .chain(k1.iter().flatten())
+            .chain(h0.iter().flatten())
+            .chain(h1.iter().flatten().flatten()),
+        &params,
+    );
+    let mut set = AffineSet {
+        n,
+        log,
+        x0,
+        k0,
+        k1,
+        h0,
+        h1,
+        params,
+        time_dependent,
+        constant: None,
+        breaks,
+    };
+    if !time_dependent {
+        let numbers = set.numbers(0.0);
+        if numbers
+            .k0
+            .iter()
+            .chain(&numbers.k1)
+            .chain(&numbers.h0)
+            .chain(&numbers.h1)
+            .any(|v| !v.is_finite())
+        {
+            return Err("a coefficient is not a finite number".to_string());
+        }
+        set.constant = Some(numbers);
+    }
+    Ok(set)
 }
 
 fn name(model: &Model, i: usize) -> String {
