@@ -464,7 +464,11 @@ fn silence(
         Finding(usize),
         Close { suppression: usize, rule: usize },
     }
-    let mut events: Vec<(u32, u8, Event)> = Vec::new();
+    if suppressions.is_empty() {
+        return diagnostics;
+    }
+    let rules: usize = suppressions.iter().map(|s| s.rules.len()).sum();
+    let mut events: Vec<(u32, u8, Event)> = Vec::with_capacity(2 * rules + diagnostics.len());
     for (i, s) in suppressions.iter().enumerate() {
         for rule in 0..s.rules.len() {
             let (open, close) = (
@@ -484,7 +488,8 @@ fn silence(
     for (i, d) in diagnostics.iter().enumerate() {
         events.push((lines.of(d.span.start), 1, Event::Finding(i)));
     }
-    events.sort_by_key(|(line, phase, _)| (*line, *phase));
+    // Unstable (no buffer): events of one line and phase commute.
+    events.sort_unstable_by_key(|(line, phase, _)| (*line, *phase));
     // Per rule: how many suppressions of it are open, and how many findings of it have
     // arrived; per rule of each suppression, that count when it opened.
     let mut state: std::collections::HashMap<RuleId, (usize, usize)> = Default::default();

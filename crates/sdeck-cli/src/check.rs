@@ -142,8 +142,14 @@ pub fn check_source(source: SourceText, settings: &RuleSettings) -> (Checked, Fi
 /// Checks one text for its findings alone: the analysis is dropped as soon as they are
 /// out, so a run over many files (or one large file) holds only findings.
 pub fn check_findings(source: SourceText, settings: &RuleSettings) -> Checked {
-    let result = check(&source.text, &files::stem(&source.path), settings);
-    locate(source, result.diagnostics, settings)
+    // The block ends the analysis (syntax tree, model, derivation) here, before the
+    // findings are sorted and located: a field moved out of a struct leaves the rest
+    // alive to the end of the scope otherwise.
+    let diagnostics = {
+        let result = check(&source.text, &files::stem(&source.path), settings);
+        result.diagnostics
+    };
+    locate(source, diagnostics, settings)
 }
 
 /// Adds the report of invalid UTF-8 and sorts the findings by their place in the text.

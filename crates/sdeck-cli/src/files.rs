@@ -148,9 +148,10 @@ pub fn describe_project_error(error: ProjectError) -> String {
 pub fn read(path: &Path) -> Result<SourceText, String> {
     let cannot = |e: std::io::Error| format!("cannot read `{}`: {e}", path.display());
     let file = std::fs::File::open(path).map_err(cannot)?;
+    let size = file.metadata().map(|m| m.len()).unwrap_or(0);
     Ok(from_bytes(
         display(path),
-        read_bounded(file).map_err(cannot)?,
+        read_bounded_sized(file, size).map_err(cannot)?,
     ))
 }
 
@@ -162,10 +163,17 @@ pub fn read_stdin(name: &str) -> Result<SourceText, String> {
 }
 
 pub fn read_bounded(reader: impl Read) -> std::io::Result<Vec<u8>> {
-    let mut bytes = Vec::new();
-    reader
-        .take(sdeck_syntax::MAX_FILE_BYTES as u64 + 1)
-        .read_to_end(&mut bytes)?;
+    read_bounded_sized(reader, 0)
+}
+
+/// [`read_bounded`] into room for `expected` bytes (a file's size), so that reading a
+/// large file does not grow the buffer by doubling.
+pub fn read_bounded_sized(reader: impl Read, expected: u64) -> std::io::Result<Vec<u8>> {
+    let limit = sdeck_syntax::MAX_FILE_BYTES as u64 + 1;
+    // One byte more than the file, so that `read_to_end` sees the end without growing.
+    let room = usize::try_from(expected.min(limit).saturating_add(1)).unwrap_or(0);
+    let mut bytes = Vec::with_capacity(room);
+    reader.take(limit).read_to_end(&mut bytes)?;
     Ok(bytes)
 }
 

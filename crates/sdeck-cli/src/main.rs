@@ -13,6 +13,7 @@ macro_rules! outln {
     ($($arg:tt)*) => { $crate::write_stdout(format_args!("{}\n", format_args!($($arg)*))) };
 }
 
+mod allocator;
 mod check;
 mod curve_cmd;
 mod diff_cmd;
@@ -32,9 +33,6 @@ mod sarif;
 mod simulate_cmd;
 
 use clap::{Parser, Subcommand};
-
-#[global_allocator]
-static ALLOCATOR: mimalloc::MiMalloc = mimalloc::MiMalloc;
 
 use std::process::ExitCode;
 

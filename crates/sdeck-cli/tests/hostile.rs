@@ -306,3 +306,50 @@ fn output_dash_is_stdout_and_one_path_twice_is_a_usage_error() {
     assert!(stderr(&out).contains("two reports"), "{}", stderr(&out));
     assert!(!dir.path().join("r.json").exists());
 }
+
+// ------------------------------------------------------------------ memory
+
+/// The allocator returns freed memory at once and commits its arenas as they are used
+/// (src/allocator.rs), read back by name from mimalloc's own verbose start-up report:
+/// this proves the option numbers name the intended options and that they are set
+/// before the first arena; the environment still overrides them.
+#[cfg(feature = "fast-alloc")]
+#[test]
+fn allocator_returns_freed_memory_promptly() {
+    let option = |text: &str, name: &str| -> Option<String> {
+        let key = format!("option '{name}': ");
+        let line = text.lines().find(|l| l.starts_with(&key))?;
+        Some(line[key.len()..].trim().to_string())
+    };
+    let out = sdeck()
+        .arg("--version")
+        .env("MIMALLOC_VERBOSE", "1")
+        .env_remove("MIMALLOC_PURGE_DELAY")
+        .env_remove("MIMALLOC_ARENA_EAGER_COMMIT")
+        .output()
+        .unwrap();
+    let report = stderr(&out);
+    assert_eq!(
+        option(&report, "purge_delay").as_deref(),
+        Some("0"),
+        "{report}"
+    );
+    assert_eq!(
+        option(&report, "arena_eager_commit").as_deref(),
+        Some("0"),
+        "{report}"
+    );
+
+    let out = sdeck()
+        .arg("--version")
+        .env("MIMALLOC_VERBOSE", "1")
+        .env("MIMALLOC_PURGE_DELAY", "25")
+        .output()
+        .unwrap();
+    let report = stderr(&out);
+    assert_eq!(
+        option(&report, "purge_delay").as_deref(),
+        Some("25"),
+        "{report}"
+    );
+}

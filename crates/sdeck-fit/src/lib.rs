@@ -262,7 +262,7 @@ pub fn fit(problem: &Problem) -> Result<Fit, FitError> {
     let transforms: Vec<Transform> = estimated
         .iter()
         .zip(&file_start)
-        .map(|(&p, start)| Transform::new(model.params[p].bound.as_ref(), *start))
+        .map(|(&p, start)| Transform::new(model.params[p].bound.as_deref(), *start))
         .collect();
     // Start: the file's values, or the parameters whose coefficients best match the
     // moment estimates, whichever the likelihood prefers.

@@ -258,7 +258,7 @@ fn reads_back(text: &str, name: &str, model: &Model, rewrites: &[Rewrite]) -> Re
         let Some(new) = after.model.params.iter().find(|q| q.name == p.name) else {
             return Err(format!("{} would disappear from the file", p.name));
         };
-        if new.bound.is_some_and(|b| !b.contains(new.value)) {
+        if new.bound.as_deref().is_some_and(|b| !b.contains(new.value)) {
             return Err(format!(
                 "the rounded estimate of {} breaks its declared bound",
                 p.name

@@ -425,7 +425,7 @@ impl ModelReport {
                     written: p.written,
                     unit: p.unit_text.clone(),
                     value: p.value,
-                    bound: p.bound.as_ref().map(interval_text),
+                    bound: p.bound.as_deref().map(interval_text),
                     description: p.description.clone(),
                 })
                 .collect(),

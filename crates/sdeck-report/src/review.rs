@@ -138,7 +138,7 @@ pub fn findings(source: &str, check: &FileCheck) -> Vec<Finding> {
                 severity: d.severity,
                 rule: d.rule.name(),
                 message: d.message.clone(),
-                help: d.help.clone(),
+                help: d.help.as_deref().map(str::to_owned),
             }
         })
         .collect()

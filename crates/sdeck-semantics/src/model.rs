@@ -82,8 +82,9 @@ pub struct Param {
     pub dimension: Dimension,
     /// The unit as written, without brackets (`1/sqrt(day)`), if any.
     pub unit_text: Option<String>,
-    /// The bound, converted to clock units.
-    pub bound: Option<Interval>,
+    /// The bound, converted to clock units; boxed, as most parameters have none (a file
+    /// can hold 200,000 parameters).
+    pub bound: Option<Box<Interval>>,
     pub description: Option<String>,
     /// The value as a constant expression of earlier parameters (`param stress = theta +
     /// 150bp`), when it is written as one; `value` is then its value at the file's
@@ -95,6 +96,7 @@ impl Param {
     /// Whether the value lies outside the declared bound (both in clock units).
     pub fn breaks_bound(&self) -> bool {
         self.bound
+            .as_deref()
             .is_some_and(|b| self.value.is_finite() && !b.contains(self.value))
     }
 }

@@ -501,5 +501,5 @@ fn errors_become_diagnostics() {
     let diagnostic = error.to_diagnostic(&sdeck_diagnostics::rules::UNKNOWN_NAME);
     assert_eq!(diagnostic.rule.name(), "unknown-name");
     assert_eq!(diagnostic.message, error.message);
-    assert_eq!(diagnostic.help, error.help);
+    assert_eq!(diagnostic.help.as_deref(), error.help.as_deref());
 }

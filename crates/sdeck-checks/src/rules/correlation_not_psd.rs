@@ -191,7 +191,7 @@ fn param_edit(cx: &Context, p: ParamId, target: f64) -> Option<TextEdit> {
     let model = cx.model;
     let param = model.params.by_id(p)?;
     let number = param_literal(cx.analysis, &param.name)?;
-    if param.scale != 1.0 || param.bound.is_some_and(|b| !b.contains(target)) {
+    if param.scale != 1.0 || param.bound.as_deref().is_some_and(|b| !b.contains(target)) {
         return None;
     }
     let elsewhere = cx.analysis.references.iter().any(|r| {

@@ -58,7 +58,7 @@ fn removable(
     name: &str,
     name_span: &Span,
     declaration: &Span,
-    help: &str,
+    help: &'static str,
 ) -> Diagnostic {
     Diagnostic::new(
         &rules::UNUSED,

@@ -161,6 +161,7 @@ impl<'a> Analyzer<'a> {
     /// then each declaration.
     pub(super) fn declarations(&mut self) {
         let file = self.file;
+        let mut declared_names = 0;
         for statement in &file.statements {
             let declared: Vec<(&str, &'static str)> = match &statement.kind {
                 StatementKind::Param(d) => vec![(d.name.name.as_str(), "parameter")],
@@ -172,6 +173,7 @@ impl<'a> Analyzer<'a> {
                 StatementKind::Unit { name } => vec![(name.name.as_str(), "unit")],
                 _ => Vec::new(),
             };
+            declared_names += declared.len();
             for (name, kind) in declared {
                 self.declared_anywhere
                     .entry(name.to_string())
@@ -185,6 +187,7 @@ impl<'a> Analyzer<'a> {
             .iter()
             .filter(|s| matches!(s.kind, StatementKind::Param(_)))
             .count();
+        self.symbols.reserve_exact(declared_names);
         self.model.params.reserve_exact(params);
         self.param_units.reserve_exact(params);
         self.param_used.reserve_exact(params);
@@ -223,7 +226,10 @@ impl<'a> Analyzer<'a> {
         }
         let keyword = statement.span.start..statement.span.start + "param".len();
         let value = self.declared_value(decl, "parameter", Some(keyword));
-        let bound = decl.bound.as_ref().map(|b| convert_bound(b, value.scale));
+        let bound = decl
+            .bound
+            .as_ref()
+            .map(|b| Box::new(convert_bound(b, value.scale)));
         self.param_units.push(
             decl.unit()
                 .map(|u| (u.span(), sdeck_units::unit_expr_text(u))),
