@@ -46,32 +46,31 @@ pub enum Atom {
     State(FactorId),
     Param(ParamId),
     Time,
-    /// A sub-expression without states, kept whole. The string is a structural key used
-    /// only to order and compare opaque atoms.
-    Opaque(Box<Expr>, String),
+    /// A sub-expression without states, kept whole; opaque atoms are ordered and
+    /// compared by their structure ([`structural_order`]).
+    Opaque(Box<Expr>),
 }
 
 impl Atom {
-    fn rank(&self) -> (u8, usize, &str) {
+    fn rank(&self) -> (u8, usize) {
         match self {
             // States last, so that a term prints as `kappa·r`.
-            Atom::Param(i) => (0, i.index(), ""),
-            Atom::Time => (1, 0, ""),
-            Atom::Opaque(_, key) => (2, 0, key.as_str()),
-            Atom::State(i) => (3, i.index(), ""),
+            Atom::Param(i) => (0, i.index()),
+            Atom::Time => (1, 0),
+            Atom::Opaque(_) => (2, 0),
+            Atom::State(i) => (3, i.index()),
         }
     }
 
     fn opaque(expr: Expr) -> Atom {
-        let key = format!("{expr:?}");
-        Atom::Opaque(Box::new(expr), key)
+        Atom::Opaque(Box::new(expr))
     }
 
     /// Whether the atom changes with `t`.
     pub fn depends_on_time(&self) -> bool {
         match self {
             Atom::Time => true,
-            Atom::Opaque(expr, _) => expr_mentions_time(expr),
+            Atom::Opaque(expr) => expr_mentions_time(expr),
             _ => false,
         }
     }
@@ -81,14 +80,14 @@ impl Atom {
             Atom::State(i) => states.get(i.index()).copied().unwrap_or(f64::NAN),
             Atom::Param(i) => params.get(i.index()).copied().unwrap_or(f64::NAN),
             Atom::Time => t,
-            Atom::Opaque(expr, _) => expr.eval(params, states, t),
+            Atom::Opaque(expr) => expr.eval(params, states, t),
         }
     }
 }
 
 impl PartialEq for Atom {
     fn eq(&self, other: &Self) -> bool {
-        self.rank() == other.rank()
+        self.cmp(other) == Ordering::Equal
     }
 }
 impl Eq for Atom {}
@@ -99,7 +98,58 @@ impl PartialOrd for Atom {
 }
 impl Ord for Atom {
     fn cmp(&self, other: &Self) -> Ordering {
-        self.rank().cmp(&other.rank())
+        self.rank()
+            .cmp(&other.rank())
+            .then_with(|| match (self, other) {
+                (Atom::Opaque(a), Atom::Opaque(b)) => structural_order(a, b),
+                _ => Ordering::Equal,
+            })
+    }
+}
+
+/// A total order on expressions by their structure: the kind of node, then its numbers
+/// (by `f64::total_cmp`, so equal means bit-equal), ids and operands in turn. Equal
+/// exactly when the two trees are the same.
+fn structural_order(a: &Expr, b: &Expr) -> Ordering {
+    fn kind(e: &Expr) -> u8 {
+        match e {
+            Expr::Const(_) => 0,
+            Expr::Param(_) => 1,
+            Expr::Factor(_) => 2,
+            Expr::Time => 3,
+            Expr::Neg(_) => 4,
+            Expr::Add(..) => 5,
+            Expr::Sub(..) => 6,
+            Expr::Mul(..) => 7,
+            Expr::Div(..) => 8,
+            Expr::Pow(..) => 9,
+            Expr::Call(..) => 10,
+            Expr::Invalid => 11,
+        }
+    }
+    match (a, b) {
+        (Expr::Const(x), Expr::Const(y)) => x.total_cmp(y),
+        (Expr::Param(i), Expr::Param(j)) => i.index().cmp(&j.index()),
+        (Expr::Factor(i), Expr::Factor(j)) => i.index().cmp(&j.index()),
+        (Expr::Neg(x), Expr::Neg(y)) => structural_order(x, y),
+        (Expr::Add(a1, a2), Expr::Add(b1, b2))
+        | (Expr::Sub(a1, a2), Expr::Sub(b1, b2))
+        | (Expr::Mul(a1, a2), Expr::Mul(b1, b2))
+        | (Expr::Div(a1, a2), Expr::Div(b1, b2))
+        | (Expr::Pow(a1, a2), Expr::Pow(b1, b2)) => {
+            structural_order(a1, b1).then_with(|| structural_order(a2, b2))
+        }
+        (Expr::Call(f, xs), Expr::Call(g, ys)) => (*f as u8)
+            .cmp(&(*g as u8))
+            .then_with(|| xs.len().cmp(&ys.len()))
+            .then_with(|| {
+                xs.iter()
+                    .zip(ys)
+                    .map(|(x, y)| structural_order(x, y))
+                    .find(|o| o.is_ne())
+                    .unwrap_or(Ordering::Equal)
+            }),
+        _ => kind(a).cmp(&kind(b)),
     }
 }
 

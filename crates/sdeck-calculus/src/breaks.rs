@@ -50,7 +50,7 @@ impl TimeBreaks {
             .flat_map(|p| p.terms.keys())
             .flat_map(|monomial| monomial.iter())
             .filter_map(|(atom, _)| match atom {
-                Atom::Opaque(expr, _) => Some(expr.as_ref()),
+                Atom::Opaque(expr) => Some(expr.as_ref()),
                 _ => None,
             })
             .collect();

@@ -65,7 +65,7 @@ pub(crate) fn exp_polynomial(poly: &Poly, params: &[f64]) -> Option<ExpPolynomia
                     }
                     k += power;
                 }
-                Atom::Opaque(expr, _) if atom.depends_on_time() => {
+                Atom::Opaque(expr) if atom.depends_on_time() => {
                     let (rate, offset) = exponential_rate(expr, params)?;
                     lambda += rate * *power as f64;
                     c *= (offset * *power as f64).exp();

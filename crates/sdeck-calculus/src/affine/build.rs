@@ -222,7 +222,7 @@ fn check_admissible(model: &Model, h1: &[Vec<Vec<Poly>>], log: &[bool]) -> Resul
         let own = scales.get(k).and_then(|row| row.get(k));
         if drives && (log[k] || own.is_none_or(Poly::is_zero)) {
             return Err(format!(
-                "{} scales a covariance but has no diffusion proportional to itself, so                      nothing keeps it non-negative",
+                "{} scales a covariance but has no diffusion proportional to itself, so nothing keeps it non-negative",
                 name(model, k)
             ));
         }

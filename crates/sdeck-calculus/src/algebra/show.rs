@@ -80,7 +80,7 @@ fn show_atom(atom: &Atom, names: &Names) -> String {
         Atom::State(i) => names.state(*i),
         Atom::Param(i) => names.param(*i),
         Atom::Time => names.time.to_string(),
-        Atom::Opaque(expr, _) => {
+        Atom::Opaque(expr) => {
             let text = show_expr(expr, names);
             if matches!(**expr, Expr::Call(..)) {
                 text

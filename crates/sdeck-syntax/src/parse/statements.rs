@@ -155,8 +155,8 @@ impl Builder {
                     // of the equation is still analysed.
                     match self.term(sign, p) {
                         Ok(term) => terms.push(term),
-                        Err(e) if e.message == NO_DIFFERENTIAL => self.soft.push(e),
-                        Err(e) => return Err(e),
+                        Err(TermError::NoDifferential(e)) => self.soft.push(e),
+                        Err(TermError::Spoils(e)) => return Err(e),
                     }
                     sign = Sign::Plus;
                 }
@@ -165,7 +165,11 @@ impl Builder {
         Ok(terms)
     }
 
-    pub(super) fn term(&mut self, mut sign: Sign, pair: Pair<Rule>) -> Result<Term> {
+    pub(super) fn term(
+        &mut self,
+        mut sign: Sign,
+        pair: Pair<Rule>,
+    ) -> std::result::Result<Term, TermError> {
         let span = self.span(&pair);
         let mut inner = pair.into_inner();
         let product = inner
@@ -186,19 +190,19 @@ impl Builder {
                 _ => None,
             };
             let Some(differential) = differential else {
-                return Err(syntax_error(
+                return Err(TermError::NoDifferential(syntax_error(
                     span.clone(),
-                    NO_DIFFERENTIAL,
+                    "this term has no differential",
                 )
                 .with_label("a term ends with `dt` or `dW`")
-                .with_help("end the term with `dt` for drift or `dW` for diffusion on the shock `W`, e.g. `kappa * (level - x) dt`"));
+                .with_help("end the term with `dt` for drift or `dW` for diffusion on the shock `W`, e.g. `kappa * (level - x) dt`")));
             };
             if op == BinaryOp::Div {
-                return Err(
+                return Err(TermError::Spoils(
                     syntax_error(last.span(), "a differential cannot divide").with_help(
                         "write the differential as the last factor, multiplied: `vol * x dW`",
                     ),
-                );
+                ));
             }
             if negated {
                 sign = match sign {
@@ -218,7 +222,18 @@ impl Builder {
     }
 }
 
-pub(super) const NO_DIFFERENTIAL: &str = "this term has no differential";
+/// Why a term could not be read. A term with no differential spoils only itself: it is
+/// reported and the rest of the equation is still read.
+pub(super) enum TermError {
+    NoDifferential(Diagnostic),
+    Spoils(Diagnostic),
+}
+
+impl From<Diagnostic> for TermError {
+    fn from(diagnostic: Diagnostic) -> Self {
+        TermError::Spoils(diagnostic)
+    }
+}
 
 /// `(negated an odd number of times, the expression without the negations)`.
 pub(super) fn strip_negations(mut expr: &Expr) -> (bool, &Expr) {
