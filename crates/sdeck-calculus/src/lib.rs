@@ -340,14 +340,7 @@ pub(crate) fn analyse(model: &Model) -> Analysis {
             classified: (0..n)
                 .map(|_| shape::general(reason.clone(), Vec::new()))
                 .collect(),
-            system: SystemShape {
-                family: Family::General,
-                reason,
-                drift_rows: None,
-                loadings: None,
-                shapes: Vec::new(),
-                time_dependent: false,
-            },
+            system: SystemShape::unknown(reason),
             params,
             linear: OnceLock::new(),
             system_figures: std::sync::Mutex::new(Vec::new()),

@@ -179,13 +179,14 @@ fn locate(
         }
     }
     let index = LineIndex::new(&source.text);
-    // Sorted by position in place; the sort is stable, so findings at one place keep the
-    // order of the analysis.
-    diagnostics.sort_by_cached_key(|d| render::position(&source.text, &index, d));
-    let positions = diagnostics
-        .iter()
-        .map(|d| render::position(&source.text, &index, d))
+    // Each position computed once and sorted with its finding; the sort is stable, so
+    // findings at one place keep the order of the analysis.
+    let mut located: Vec<_> = diagnostics
+        .into_iter()
+        .map(|d| (render::position(&source.text, &index, &d), d))
         .collect();
+    located.sort_by(|a, b| a.0.cmp(&b.0));
+    let (positions, diagnostics) = located.into_iter().unzip();
     Checked {
         source,
         diagnostics,

@@ -142,7 +142,7 @@ fn column_mapping(
         let Some(id) = model.factor_id(factor) else {
             return Err(format!(
                 "--column `{pair}`: the model has no factor `{factor}` (factors: {})",
-                factor_names(model)
+                model.factor_list()
             ));
         };
         mapping.retain(|(f, _)| *f != id);
@@ -158,7 +158,7 @@ fn column_mapping(
         return Err(format!(
             "{data_name}: no column is named after a factor of the model ({}); name one so, \
              or map it with --column FACTOR=COLUMN",
-            factor_names(model)
+            model.factor_list()
         ));
     }
     mapping.sort_by_key(|(f, _)| *f);
@@ -248,15 +248,6 @@ fn disagreements(model: &Model, fit: &Fit, data_name: &str) -> ExitCode {
 /// estimate at its bound, which has no interval.
 fn outside(e: &sdeck_fit::Estimate, value: f64, lo: f64, hi: f64) -> bool {
     !e.at_bound && !(lo..=hi).contains(&value)
-}
-
-fn factor_names(model: &Model) -> String {
-    model
-        .factors
-        .iter()
-        .map(|s| s.name.as_str())
-        .collect::<Vec<_>>()
-        .join(", ")
 }
 
 struct Report<'a> {

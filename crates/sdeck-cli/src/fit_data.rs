@@ -86,26 +86,16 @@ pub fn cell(text: &str) -> Result<Option<f64>, String> {
     if t.is_empty() || t.eq_ignore_ascii_case("na") {
         return Ok(None);
     }
-    // Divided (not multiplied by 0.01) so that `3.25%` is the double nearest 0.0325.
-    let (number, divisor) = if let Some(n) = t.strip_suffix('%') {
-        (n, 100.0)
-    } else if let Some(n) = t.strip_suffix("bp") {
-        (n, 10_000.0)
-    } else {
-        (t, 1.0)
-    };
-    let number = number.trim();
-    let plain = !number.is_empty()
-        && number
-            .chars()
-            .all(|c| c.is_ascii_digit() || matches!(c, '.' | '-' | '+' | 'e' | 'E'));
-    match number.parse::<f64>() {
-        Ok(v) if plain && v.is_finite() => Ok(Some(v / divisor)),
-        _ => Err(format!(
-            "`{t}` is not a number; write a decimal number with `.` as the decimal point, \
-             optionally followed by `%` or `bp`, or leave the cell empty or `NA`"
-        )),
-    }
+    // The language's own reading: `3.3%` is the double nearest 0.033.
+    sdeck_syntax::numbers::scaled_number(t)
+        .map(Some)
+        .map_err(|error| {
+            format!(
+                "{}; write a decimal number with `.` as the decimal point, \
+             optionally followed by `%` or `bp`, or leave the cell empty or `NA`",
+                error.describe(t)
+            )
+        })
 }
 
 /// Monday-to-Friday days in (from, to], negative when `to` is before `from`.

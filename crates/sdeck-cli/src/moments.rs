@@ -8,6 +8,7 @@ use sdeck_diagnostics::{RuleId, Severity};
 use sdeck_report::moments::{moments_json, moments_text};
 use sdeck_report::{Levels, ModelReport};
 use sdeck_semantics::{FactorId, Model};
+use sdeck_syntax::numbers::scaled_number;
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
@@ -36,29 +37,10 @@ pub struct MomentsArgs {
     below: Option<String>,
 }
 
-/// A number as the language writes it: `0.5`, `2%`, `25bp`.
-fn parse_level(text: &str) -> Option<f64> {
-    let t = text.trim();
-    // Divided, not multiplied by 0.01: 95% is then exactly 0.95.
-    let (number, divisor) = if let Some(n) = t.strip_suffix('%') {
-        (n, 100.0)
-    } else if let Some(n) = t.strip_suffix("bp") {
-        (n, 10_000.0)
-    } else {
-        (t, 1.0)
-    };
-    number
-        .trim()
-        .parse::<f64>()
-        .ok()
-        .map(|v| v / divisor)
-        .filter(|v| v.is_finite())
-}
-
 /// `--quantiles`: probabilities strictly between 0 and 1.
 pub fn parse_probabilities(text: &str) -> Result<Vec<f64>, String> {
     text.split(',')
-        .map(|piece| match parse_level(piece) {
+        .map(|piece| match scaled_number(piece).ok() {
             Some(p) if p > 0.0 && p < 1.0 => Ok(p),
             _ => Err(format!(
                 "`{}` is not a probability: write one between 0 and 1, e.g. `5%` or `0.05`",
@@ -75,11 +57,19 @@ pub fn parse_below(text: &str, model: &Model) -> Result<Vec<(FactorId, f64)>, St
             let (name, value) = piece
                 .split_once('=')
                 .ok_or_else(|| format!("`{}` is not NAME=VALUE, e.g. `r=0`", piece.trim()))?;
-            let factor = model
-                .factor_id(name.trim())
-                .ok_or_else(|| format!("`{}` is not a factor of the model", name.trim()))?;
-            let level =
-                parse_level(value).ok_or_else(|| format!("`{}` is not a number", value.trim()))?;
+            let factor = model.factor_id(name.trim()).ok_or_else(|| {
+                format!(
+                    "`{}` is not a factor of the model (its factors: {})",
+                    name.trim(),
+                    model.factor_list()
+                )
+            })?;
+            let level = scaled_number(value).map_err(|error| {
+                format!(
+                    "{} (write e.g. 0, -0.5, 2% or 25bp)",
+                    error.describe(value.trim())
+                )
+            })?;
             Ok((factor, level))
         })
         .collect()

@@ -1,6 +1,6 @@
 //! `sdeck simulate FILE`: an independent Monte Carlo cross-check of the derived law.
 
-use crate::moments::{load_sound_model, time_option};
+use crate::moments::{load_sound_model, parse_below, time_option};
 use clap::{Args, ValueEnum};
 use sdeck_report::charts::stack;
 use sdeck_report::review::{closed_bands, fan_charts};
@@ -78,49 +78,18 @@ fn dates_option(text: Option<&str>, model: &Model) -> Result<Vec<f64>, ExitCode>
         .collect()
 }
 
-/// A threshold value: a number, or a number followed by `%` or `bp`.
-fn threshold_value(text: &str) -> Option<f64> {
-    let text = text.trim();
-    let (number, scale) = if let Some(n) = text.strip_suffix('%') {
-        (n, 1e-2)
-    } else if let Some(n) = text.strip_suffix("bp") {
-        (n, 1e-4)
-    } else {
-        (text, 1.0)
-    };
-    number
-        .trim()
-        .parse::<f64>()
-        .ok()
-        .map(|x| x * scale)
-        .filter(|x| x.is_finite())
-}
-
-/// `--below` settings: one optional threshold per factor, declaration order.
+/// `--below` settings: one optional threshold per factor, declaration order, read as
+/// `moments --below` reads them.
 fn thresholds_option(parts: &[String], model: &Model) -> Result<Vec<Option<f64>>, ExitCode> {
     let mut thresholds = vec![None; model.factors.len()];
-    for part in parts.iter().flat_map(|p| p.split(',')) {
-        let Some((name, value)) = part.split_once('=') else {
-            eprintln!("sdeck: --below takes FACTOR=VALUE, e.g. `--below r=0`; got `{part}`");
-            return Err(ExitCode::from(2));
-        };
-        let name = name.trim();
-        let Some(index) = model.factors.iter().position(|s| s.name == name) else {
-            let names: Vec<&str> = model.factors.iter().map(|s| s.name.as_str()).collect();
-            eprintln!(
-                "sdeck: --below names `{name}`, which is not a factor of the model (its factors: {})",
-                names.join(", ")
-            );
-            return Err(ExitCode::from(2));
-        };
-        let Some(value) = threshold_value(value) else {
-            eprintln!(
-                "sdeck: --below {name}=`{}` is not a number (write e.g. 0, -0.5, 2% or 25bp)",
-                value.trim()
-            );
-            return Err(ExitCode::from(2));
-        };
-        thresholds[index] = Some(value);
+    for part in parts {
+        let levels = parse_below(part, model).map_err(|message| {
+            eprintln!("sdeck: --below: {message}");
+            ExitCode::from(2)
+        })?;
+        for (factor, level) in levels {
+            thresholds[factor.index()] = Some(level);
+        }
     }
     Ok(thresholds)
 }
@@ -327,19 +296,4 @@ fn export(
         out.push('\n');
     }
     std::fs::write(path, out).map_err(|e| format!("cannot write `{}`: {e}", path.display()))
-}
-
-#[cfg(test)]
-mod tests {
-    use super::threshold_value;
-
-    #[test]
-    fn thresholds_read_percent_and_basis_points() {
-        assert_eq!(threshold_value("0"), Some(0.0));
-        assert_eq!(threshold_value(" -0.5 "), Some(-0.5));
-        assert_eq!(threshold_value("2%"), Some(0.02));
-        assert!((threshold_value("25bp").unwrap() - 0.0025).abs() < 1e-15);
-        assert_eq!(threshold_value("abc"), None);
-        assert_eq!(threshold_value("inf"), None);
-    }
 }

@@ -252,13 +252,39 @@ fn bad_quantile_and_below_options_are_refused() {
     let model = "tests/reference/models/affine_alderley_vasicek_rate.sde";
     for (option, value, says) in [
         ("--quantiles", "150%", "not a probability"),
-        ("--below", "q=0", "not a factor"),
+        (
+            "--below",
+            "q=0",
+            "not a factor of the model (its factors: r)",
+        ),
         ("--below", "r", "NAME=VALUE"),
+        ("--below", "r=inf", "`inf` is not a number"),
     ] {
         let (code, _, stderr) = moments(&[model, option, value]);
         assert_eq!(code, Some(2), "{option} {value}");
         assert!(stderr.contains(says), "{stderr}");
+        // `simulate --below` reads the option with the same words.
+        if option == "--below" {
+            let (code, _, stderr) =
+                common::run(&["simulate", model, "--paths", "10", option, value]);
+            assert_eq!(code, Some(2), "simulate {option} {value}");
+            assert!(stderr.contains(says), "simulate: {stderr}");
+        }
     }
+}
+
+#[test]
+fn below_levels_are_read_as_the_language_reads_numbers() {
+    // 0.07% is the double nearest 0.0007 in a model and in an option alike (0.07 / 100
+    // would be 0.0007000000000000001); the JSON carries the level as read.
+    let model = "tests/reference/models/affine_alderley_vasicek_rate.sde";
+    let (code, json, stderr) = moments(&[model, "--format", "json", "--below", "r=0.07%"]);
+    assert_eq!(code, Some(0), "{stderr}");
+    let text = json.to_string();
+    assert!(
+        text.contains("0.0007") && !text.contains("0.0007000000000000001"),
+        "{text}"
+    );
 }
 
 #[test]

@@ -437,16 +437,7 @@ fn parse_fraction(value: &toml::Value) -> Result<f64, String> {
     let number = match value {
         toml::Value::Float(x) => Some(*x),
         toml::Value::Integer(n) => Some(*n as f64),
-        toml::Value::String(text) => {
-            let text = text.trim();
-            if let Some(percent) = text.strip_suffix('%') {
-                percent.trim().parse::<f64>().ok().map(|x| x / 100.0)
-            } else if let Some(bp) = text.strip_suffix("bp") {
-                bp.trim().parse::<f64>().ok().map(|x| x / 10_000.0)
-            } else {
-                text.parse::<f64>().ok()
-            }
-        }
+        toml::Value::String(text) => sdeck_syntax::numbers::scaled_number(text).ok(),
         _ => None,
     };
     number.filter(|x| x.is_finite() && *x > 0.0).ok_or_else(|| {

@@ -359,6 +359,13 @@ impl Model {
     pub fn factor_id(&self, name: &str) -> Option<FactorId> {
         self.factors.find_id(|s| s.name == name)
     }
+
+    /// The factors' names in declaration order, comma-separated, for messages that list
+    /// what could have been meant ("r, v").
+    pub fn factor_list(&self) -> String {
+        let names: Vec<&str> = self.factors.iter().map(|s| s.name.as_str()).collect();
+        names.join(", ")
+    }
 }
 
 /// The correlation matrix of the shocks without its n² zeros: a model may declare

@@ -16,6 +16,7 @@
 pub mod ast;
 pub mod line_index;
 pub mod lines;
+pub mod numbers;
 mod parse;
 pub mod split;
 pub mod vocabulary;

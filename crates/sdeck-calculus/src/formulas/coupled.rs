@@ -52,12 +52,7 @@ pub(crate) fn coupled(
         Family::Polynomial => Formulas {
             mean: Some(format!(
                 "first and second moments of ({}) from their linear moment equations",
-                model
-                    .factors
-                    .iter()
-                    .map(|s| s.name.as_str())
-                    .collect::<Vec<_>>()
-                    .join(", ")
+                model.factor_list()
             )),
             ..Formulas::default()
         },

@@ -22,7 +22,7 @@ pub(crate) struct SystemShape {
 
 impl SystemShape {
     /// A general system for `reason`, with nothing known of its equations.
-    fn unknown(reason: String) -> SystemShape {
+    pub(crate) fn unknown(reason: String) -> SystemShape {
         SystemShape {
             family: Family::General,
             reason,

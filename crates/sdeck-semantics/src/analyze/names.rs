@@ -468,6 +468,18 @@ impl<'a> Analyzer<'a> {
         self.diagnostics.push(d);
     }
 
+    /// `ident` names something other than the `kind` the place needs.
+    fn wrong_kind(&mut self, ident: &ast::Ident, kind: &str, help: &str) {
+        self.diagnostics.push(
+            Diagnostic::new(
+                &rules::UNKNOWN_NAME,
+                ident.span.clone(),
+                format!("`{}` is not a {kind}", ident.name),
+            )
+            .with_help(help),
+        );
+    }
+
     pub(super) fn noise_named(&mut self, ident: &ast::Ident) -> Option<ShockId> {
         match self.names.get(&ident.name).cloned() {
             Some((Target::Shock(i), _)) => {
@@ -475,13 +487,10 @@ impl<'a> Analyzer<'a> {
                 Some(i)
             }
             Some(_) => {
-                self.diagnostics.push(
-                    Diagnostic::new(
-                        &rules::UNKNOWN_NAME,
-                        ident.span.clone(),
-                        format!("`{}` is not a shock", ident.name),
-                    )
-                    .with_help("`corr` relates two shocks declared with `shock`"),
+                self.wrong_kind(
+                    ident,
+                    "shock",
+                    "`corr` relates two shocks declared with `shock`",
                 );
                 None
             }
@@ -509,14 +518,7 @@ impl<'a> Analyzer<'a> {
                 Some(i)
             }
             Some(_) => {
-                self.diagnostics.push(
-                    Diagnostic::new(
-                        &rules::UNKNOWN_NAME,
-                        ident.span.clone(),
-                        format!("`{}` is not a factor", ident.name),
-                    )
-                    .with_help("expectations pin figures of a factor"),
-                );
+                self.wrong_kind(ident, "factor", "expectations pin figures of a factor");
                 None
             }
             None => {

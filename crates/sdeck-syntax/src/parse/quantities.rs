@@ -14,34 +14,8 @@ pub(super) enum Side {
 
 impl Builder {
     pub(super) fn number_value(&self, text: &str, span: &Span) -> Result<f64> {
-        let (body, shift) = if let Some(b) = text.strip_suffix('%') {
-            (b, 2)
-        } else if let Some(b) = text.strip_suffix("bp") {
-            (b, 4)
-        } else {
-            (text, 0)
-        };
-        let (mantissa, exponent) = match body.find(['e', 'E']) {
-            Some(i) => (&body[..i], &body[i + 1..]),
-            None => (body, "0"),
-        };
-        let exponent: i64 = exponent.parse().map_err(|_| {
-            syntax_error(
-                span.clone(),
-                format!("the exponent of `{text}` is out of range"),
-            )
-        })?;
-        let exponent = exponent.saturating_sub(shift);
-        let value: f64 = format!("{mantissa}e{exponent}")
-            .parse()
-            .map_err(|_| syntax_error(span.clone(), format!("`{text}` is not a number")))?;
-        if !value.is_finite() {
-            return Err(syntax_error(
-                span.clone(),
-                format!("`{text}` is too large to be a number"),
-            ));
-        }
-        Ok(value)
+        crate::numbers::scaled_number(text)
+            .map_err(|error| syntax_error(span.clone(), error.describe(text)))
     }
 
     pub(super) fn signed_number(&mut self, pair: Pair<Rule>) -> Result<Number> {
