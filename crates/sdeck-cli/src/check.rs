@@ -185,7 +185,7 @@ fn locate(
         .into_iter()
         .map(|d| (render::position(&source.text, &index, &d), d))
         .collect();
-    located.sort_by(|a, b| a.0.cmp(&b.0));
+    located.sort_by_key(|(position, _)| *position);
     let (positions, diagnostics) = located.into_iter().unzip();
     Checked {
         source,

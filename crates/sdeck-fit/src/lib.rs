@@ -498,10 +498,21 @@ impl StandardErrors {
             }
         }
         let se: Vec<f64> = (0..k).map(|i| covariance[(i, i)].sqrt()).collect();
+        // sqrt(c)² is not always c in floating point: the diagonal is set to exactly one
+        // and the rest kept within [−1, 1], as a correlation is.
         let correlation = (0..k)
             .map(|i| {
                 (0..k)
-                    .map(|j| covariance[(i, j)] / (se[i] * se[j]))
+                    .map(|j| {
+                        let r = covariance[(i, j)] / (se[i] * se[j]);
+                        if !r.is_finite() {
+                            r
+                        } else if i == j {
+                            1.0
+                        } else {
+                            r.clamp(-1.0, 1.0)
+                        }
+                    })
                     .collect()
             })
             .collect();

@@ -469,7 +469,7 @@ impl<'a> Analyzer<'a> {
     }
 
     /// `ident` names something other than the `kind` the place needs.
-    fn wrong_kind(&mut self, ident: &ast::Ident, kind: &str, help: &str) {
+    fn wrong_kind(&mut self, ident: &ast::Ident, kind: &str, help: &'static str) {
         self.diagnostics.push(
             Diagnostic::new(
                 &rules::UNKNOWN_NAME,
