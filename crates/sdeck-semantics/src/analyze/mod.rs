@@ -148,6 +148,17 @@ pub fn analyze(source: &str, default_name: &str) -> Analysis {
         structure,
         ..
     } = analyzer;
+    // A name whose declaration did not parse has its syntax error already: reporting
+    // each use as undeclared (with a guess at another name), or its equation as naming
+    // no factor, would only mislead.
+    let declared = names::declared_in_unparsed(&file, source);
+    if !declared.is_empty() {
+        let follows_on = [rules::UNKNOWN_NAME.id, rules::MISSING_EQUATION.id];
+        diagnostics.retain(|d| {
+            !follows_on.contains(&d.rule)
+                || !names::names_one_of(source.get(d.span.clone()).unwrap_or(""), &declared)
+        });
+    }
     let mut all = file.diagnostics.clone();
     all.append(&mut diagnostics);
     Analysis {

@@ -540,3 +540,49 @@ impl<'a> Analyzer<'a> {
         }
     }
 }
+
+/// The names that statements which did not parse set out to declare: the word after
+/// `param`, `factor`, `let` or `unit`, and every name after `shock` (`shock W, B`).
+pub(super) fn declared_in_unparsed<'s>(
+    file: &ast::SourceFile,
+    source: &'s str,
+) -> std::collections::HashSet<&'s str> {
+    let mut names = std::collections::HashSet::new();
+    for span in &file.unparsed {
+        let Some(text) = source.get(span.clone()) else {
+            continue;
+        };
+        let text = text.trim_start();
+        let keyword_end = text
+            .find(|c: char| !c.is_alphabetic())
+            .unwrap_or(text.len());
+        let (keyword, mut rest) = text.split_at(keyword_end);
+        let several = match keyword {
+            "param" | "factor" | "let" | "unit" => false,
+            "shock" => true,
+            _ => continue,
+        };
+        loop {
+            rest = rest.trim_start_matches([' ', '\t']);
+            let end = rest
+                .find(|c: char| !(c.is_alphabetic() || c.is_ascii_digit() || c == '_'))
+                .unwrap_or(rest.len());
+            if end == 0 {
+                break;
+            }
+            names.insert(&rest[..end]);
+            rest = rest[end..].trim_start_matches([' ', '\t']);
+            match rest.strip_prefix(',') {
+                Some(after) if several => rest = after,
+                _ => break,
+            }
+        }
+    }
+    names
+}
+
+/// Whether `text`, the place of an `unknown-name` finding, is one of `names`, or the
+/// differential `dX` of one.
+pub(super) fn names_one_of(text: &str, names: &std::collections::HashSet<&str>) -> bool {
+    names.contains(text) || text.strip_prefix('d').is_some_and(|n| names.contains(n))
+}
