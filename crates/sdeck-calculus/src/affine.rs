@@ -36,7 +36,7 @@ mod riccati;
 use closed_form::{gaussian_log_transform, scalar_solution, scalar_structure};
 pub use factor_transform::FactorTransform;
 use num_complex::Complex64;
-use riccati::{dot, exploded, pack, riccati_rhs, unpack};
+use riccati::{approach_pole, dot, exploded, pack, riccati_rhs, unpack};
 use sdeck_semantics::Expr;
 
 /// Relative tolerance of the Riccati integration.
@@ -507,38 +507,18 @@ impl AffineSet {
                 .sum::<f64>()
                 .sqrt()
         };
-        let mut state = pack(&complex);
-        let mut current = 0.0;
-        let grid = 256;
-        let step = limit / grid as f64;
-        let mut upper = None;
-        for k in 1..=grid {
-            let t = step * k as f64;
-            match ode::integrate(rhs, &state, current, t, RICCATI_RTOL, RICCATI_ATOL) {
-                Ok(y) if size(&y) < EXPLOSION_SIZE && y.iter().all(|v| v.is_finite()) => {
-                    state = y;
-                    current = t;
-                }
-                _ => {
-                    upper = Some(t);
-                    break;
-                }
+        // Whether the solution stays bounded up to `to`: `Some(y)` when it does, `None`
+        // when it runs past EXPLOSION_SIZE (the pole lies before `to`), and an error when
+        // the integration cannot tell (a step limit on a stiff system is no pole).
+        let bounded = |y0: &[f64], from: f64, to: f64| {
+            let keep = |y: &[f64]| size(y) < EXPLOSION_SIZE && y.iter().all(|v| v.is_finite());
+            match ode::integrate_while(rhs, y0, from, to, RICCATI_RTOL, RICCATI_ATOL, keep) {
+                Ok(y) => Ok(Some(y)),
+                Err(ode::OdeError::Stopped { .. } | ode::OdeError::NonFinite { .. }) => Ok(None),
+                Err(other) => Err(other),
             }
-        }
-        let mut high = upper?;
-        for _ in 0..80 {
-            let middle = 0.5 * (current + high);
-            if middle <= current || middle >= high {
-                break;
-            }
-            match ode::integrate(rhs, &state, current, middle, RICCATI_RTOL, RICCATI_ATOL) {
-                Ok(y) if size(&y) < EXPLOSION_SIZE && y.iter().all(|v| v.is_finite()) => {
-                    state = y;
-                    current = middle;
-                }
-                _ => high = middle,
-            }
-        }
+        };
+        let (state, current) = approach_pole(bounded, pack(&complex), limit)?;
         // β′ ≈ Q(β) near the pole; along the direction e of β, r′ ≈ (e·Q(e)) r².
         let (beta, _) = unpack(&state, self.n);
         let r = size(&state);

@@ -1,7 +1,8 @@
-//! The Riccati equations integrated numerically: β and α packed as (Re, Im) pairs, and
-//! their right-hand side.
+//! The Riccati equations integrated numerically: β and α packed as (Re, Im) pairs,
+//! their right-hand side, and the approach to a pole.
 
 use super::Numbers;
+use crate::ode;
 use num_complex::Complex64;
 
 /// β·x.
@@ -80,4 +81,46 @@ pub(super) fn riccati_rhs(n: usize, c: &Numbers, r0: f64, r1: &[f64], y: &[f64],
         }
     }
     write(n, alpha);
+}
+
+/// The last state short of a pole and its time: a grid of 256 steps up to `limit` finds
+/// the first stretch whose end is not `bounded`, and 80 bisections narrow it. `None` when
+/// the solution stays bounded up to `limit` or `bounded` cannot tell.
+pub(super) fn approach_pole<B>(bounded: B, start: Vec<f64>, limit: f64) -> Option<(Vec<f64>, f64)>
+where
+    B: Fn(&[f64], f64, f64) -> Result<Option<Vec<f64>>, ode::OdeError>,
+{
+    let mut state = start;
+    let mut current = 0.0;
+    let grid = 256;
+    let step = limit / grid as f64;
+    let mut upper = None;
+    for k in 1..=grid {
+        let t = step * k as f64;
+        match bounded(&state, current, t).ok()? {
+            Some(y) => {
+                state = y;
+                current = t;
+            }
+            None => {
+                upper = Some(t);
+                break;
+            }
+        }
+    }
+    let mut high = upper?;
+    for _ in 0..80 {
+        let middle = 0.5 * (current + high);
+        if middle <= current || middle >= high {
+            break;
+        }
+        match bounded(&state, current, middle).ok()? {
+            Some(y) => {
+                state = y;
+                current = middle;
+            }
+            None => high = middle,
+        }
+    }
+    Some((state, current))
 }

@@ -272,6 +272,22 @@ fn moments_of_a_price_explode_at_the_andersen_piterbarg_time() {
 }
 
 #[test]
+fn a_stiff_riccati_system_is_no_pole() {
+    // ξ = −3.3e9 with ρ = 0.9: for u = 2, k = ρξu − κ < 0 and D = k² − ξ²u(u − 1) > 0,
+    // so Andersen & Piterbarg's Prop. 3.1 (the test above) says the second moment never
+    // explodes. The Riccati system is stiff there (rates near 6e9 per year): the
+    // integration reaches its step limit, which says nothing of a pole, and the answer
+    // is "none found" rather than a time bisected from step-limit failures (a fuzzing
+    // input, fuzz/seeds/moments-stiff-variance.sde).
+    let text = HESTON
+        .replace("-0.7", "0.9")
+        .replace("xi = 0.5", "xi = -3.3e9");
+    let m = model(&text);
+    let set = AffineSet::from_model(&m).expect("affine");
+    assert_eq!(set.explosion_time(&[2.0, 0.0], 80.0), None);
+}
+
+#[test]
 fn time_dependent_coefficients_go_through_the_riccati_integration() {
     // θ(t) = 4% + 1%·t: the Vasicek bond price with a moving level has
     // ln P = −B r₀ − κ∫₀ᵀ θ(s) B(T − s) ds + σ²/(2κ²) ∫₀ᵀ (1 − e^{−κ(T−s)})² ds
