@@ -16,8 +16,9 @@ fuzz_target!(|data: &[u8]| {
         return;
     }
     let model = &result.analysis.model;
-    for at in [model.horizon, 0.0, 1e-9, 30.0] {
-        if !at.is_finite() || at < 0.0 {
+    let times = [model.horizon, 0.0, 1e-9, 30.0];
+    for (k, &at) in times.iter().enumerate() {
+        if !at.is_finite() || at < 0.0 || times[..k].contains(&at) {
             continue;
         }
         let report = ModelReport::build(model, &result.derivation, text, at);

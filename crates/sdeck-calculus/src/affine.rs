@@ -31,13 +31,17 @@ use crate::ode;
 
 mod build;
 mod closed_form;
+mod explosion;
 mod factor_transform;
+mod reach;
 mod riccati;
+mod work;
 use closed_form::{gaussian_log_transform, scalar_solution, scalar_structure};
 pub use factor_transform::FactorTransform;
 use num_complex::Complex64;
-use riccati::{approach_pole, dot, exploded, pack, riccati_rhs, unpack};
+use riccati::{dot, exploded, pack, riccati_rhs, unpack};
 use sdeck_semantics::Expr;
+pub use work::WorkBudget;
 
 /// Relative tolerance of the Riccati integration.
 const RICCATI_RTOL: f64 = 1e-11;
@@ -101,6 +105,9 @@ pub struct AffineSet {
     /// Where the coefficients jump or bend (knots of `step`, `ramp`; kinks of `min`,
     /// `max`, `abs` of t): the integrations in time are split there.
     breaks: TimeBreaks,
+    /// The work the numerical integrations of this set, its clones and its reductions
+    /// draw on; `None`: no limit. See [`Self::with_work`].
+    work: Option<WorkBudget>,
 }
 
 /// A short rate ρ₀(t) + ρ₁·X in clock units (per clock unit of time).
@@ -220,8 +227,16 @@ impl AffineSet {
         &self.x0
     }
 
-    /// How [`Self::log_transform`] computes for this rate.
+    /// u = 0 for every factor.
+    fn zero_argument(&self) -> Vec<Complex64> {
+        vec![Complex64::new(0.0, 0.0); self.n]
+    }
+
+    /// How [`Self::log_transform`] computes the discount of this rate (u = 0).
     pub fn method(&self, rate: &Rate) -> TransformMethod {
+        if let Some((set, rate, _)) = self.reduced(&self.zero_argument(), rate) {
+            return set.method(&rate);
+        }
         match self.plan(rate) {
             Plan::Numeric => TransformMethod::Riccati,
             _ => TransformMethod::ClosedForm,
@@ -269,6 +284,10 @@ impl AffineSet {
                 })
                 .collect();
         }
+        if let Some((set, rate, keep)) = self.reduced(u, rate) {
+            let u: Vec<Complex64> = keep.iter().map(|&k| u[k]).collect();
+            return set.log_transforms(&u, &rate, times);
+        }
         let shift = |t: f64| self.integrated_constant_rate(rate, t);
         match (self.plan(rate), &self.constant) {
             (Plan::Gaussian, Some(numbers)) => times
@@ -289,37 +308,60 @@ impl AffineSet {
                     .collect()
             }
             (_, Some(numbers)) if !rate.depends_on_time() => {
-                // Constant coefficients: one integration in τ through every time.
-                let (r0, r1) = rate.values(&self.params, 0.0);
-                let rhs = |_: f64, y: &[f64], dy: &mut [f64]| {
-                    riccati_rhs(self.n, numbers, r0, &r1, y, dy)
-                };
-                let mut order: Vec<usize> = (0..times.len()).collect();
-                order.sort_by(|a, b| times[*a].total_cmp(&times[*b]));
-                let sorted: Vec<f64> = order.iter().map(|&i| times[i]).collect();
-                let mut out = vec![Err(TransformError::Explodes); times.len()];
-                let start = pack(u);
-                // Integrate one stop at a time so that a blow-up only affects later times.
-                let mut state = start;
-                let mut current = 0.0;
-                for (slot, &t) in order.iter().zip(&sorted) {
-                    match ode::integrate(rhs, &state, current, t, RICCATI_RTOL, RICCATI_ATOL) {
-                        Ok(y) if exploded(&y) => break,
-                        Ok(y) => {
-                            out[*slot] = Ok(self.finish(&y));
-                            state = y;
-                            current = t;
-                        }
-                        Err(_) => break,
-                    }
-                }
-                out
+                self.integrate_through(numbers, u, rate, times)
             }
             _ => times
                 .iter()
                 .map(|&t| self.log_transform_backward(u, rate, t))
                 .collect(),
         }
+    }
+
+    /// Constant coefficients integrated numerically: one integration in τ through every
+    /// time, in ascending order.
+    fn integrate_through(
+        &self,
+        numbers: &Numbers,
+        u: &[Complex64],
+        rate: &Rate,
+        times: &[f64],
+    ) -> Vec<Result<Complex64, TransformError>> {
+        let (r0, r1) = rate.values(&self.params, 0.0);
+        let rhs = |_: f64, y: &[f64], dy: &mut [f64]| {
+            if self.spend() {
+                riccati_rhs(self.n, numbers, r0, &r1, y, dy)
+            } else {
+                dy.fill(f64::NAN);
+            }
+        };
+        let mut order: Vec<usize> = (0..times.len()).collect();
+        order.sort_by(|a, b| times[*a].total_cmp(&times[*b]));
+        let sorted: Vec<f64> = order.iter().map(|&i| times[i]).collect();
+        let mut out = vec![Err(TransformError::Explodes); times.len()];
+        let start = pack(u);
+        // Integrate one stop at a time so that a blow-up only affects later times.
+        let mut state = start;
+        let mut current = 0.0;
+        for (slot, &t) in order.iter().zip(&sorted) {
+            match ode::integrate(rhs, &state, current, t, RICCATI_RTOL, RICCATI_ATOL) {
+                Ok(y) if exploded(&y) => break,
+                Ok(y) => {
+                    out[*slot] = Ok(self.finish(&y));
+                    state = y;
+                    current = t;
+                }
+                Err(_) => break,
+            }
+        }
+        if self.spent() {
+            // What the loop left as exploding it could not tell.
+            for value in out.iter_mut() {
+                if value == &Err(TransformError::Explodes) {
+                    *value = Err(self.integration_failed());
+                }
+            }
+        }
+        out
     }
 
     /// For constant coefficients integrated numerically: at each of `times` (sorted
@@ -332,6 +374,9 @@ impl AffineSet {
         rate: &Rate,
         times: &[f64],
     ) -> Option<Vec<Option<(f64, f64)>>> {
+        if let Some((set, rate, _)) = self.reduced(&self.zero_argument(), rate) {
+            return set.discount_with_slopes(&rate, times);
+        }
         let numbers = self.constant.as_ref()?;
         if !matches!(self.plan(rate), Plan::Numeric)
             || rate.depends_on_time()
@@ -371,6 +416,9 @@ impl AffineSet {
     /// form (the caller compares two far stretches, which is cheap there), when the
     /// coefficients change with time, or when β has not settled by `limit`.
     pub fn settled_rate(&self, rate: &Rate, limit: f64) -> Option<f64> {
+        if let Some((set, rate, _)) = self.reduced(&self.zero_argument(), rate) {
+            return set.settled_rate(&rate, limit);
+        }
         let numbers = self.constant.as_ref()?;
         if !matches!(self.plan(rate), Plan::Numeric) || rate.depends_on_time() {
             return None;
@@ -404,6 +452,16 @@ impl AffineSet {
     /// complex `w`: the plan and the coefficients are read once.
     pub fn factor_transform(&self, factor: usize, t: f64) -> FactorTransform {
         let rate = Rate::zero(self);
+        let mut argument = self.zero_argument();
+        if let Some(slot) = argument.get_mut(factor) {
+            *slot = Complex64::new(1.0, 0.0);
+        }
+        // Only the factors this one reads (drop the rest once, not per frequency).
+        if let Some((set, _, keep)) = self.reduced(&argument, &rate) {
+            if let Some(position) = keep.iter().position(|&k| k == factor) {
+                return set.factor_transform(position, t);
+            }
+        }
         let scalar = match (self.plan(&rate), &self.constant) {
             (Plan::Scalar(fixed), Some(numbers)) => Some((numbers.clone(), fixed)),
             _ => None,
@@ -457,7 +515,11 @@ impl AffineSet {
                 None => self.numbers(s),
             };
             let (r0, r1) = rate.values(&self.params, s);
-            riccati_rhs(self.n, &numbers, r0, &r1, y, dy)
+            if self.spend() {
+                riccati_rhs(self.n, &numbers, r0, &r1, y, dy)
+            } else {
+                dy.fill(f64::NAN);
+            }
         };
         // The breaks in calendar time s, as times τ = t − s from 0 to t.
         let rate_breaks = TimeBreaks::of_polys(rate.r1.iter().chain([&rate.r0]), &self.params);
@@ -474,75 +536,13 @@ impl AffineSet {
             Ok(y) if exploded(&y) => Err(TransformError::Explodes),
             Ok(y) => Ok(self.finish(&y)),
             Err(ode::OdeError::InvalidInput(why)) => Err(TransformError::Failed(why)),
-            Err(_) => Err(TransformError::Explodes),
+            Err(_) => Err(self.integration_failed()),
         }
     }
 
     fn finish(&self, y: &[f64]) -> Complex64 {
         let (beta, alpha) = unpack(y, self.n);
         alpha + dot(&beta, &self.x0)
-    }
-
-    /// The first time (clock units, up to `limit`) at which E[exp(u·X_t)] becomes
-    /// infinite, for real `u` and constant coefficients; `None` when it stays finite up
-    /// to `limit` or the coefficients change with time.
-    ///
-    /// The Riccati solution is followed until |β| reaches 10⁸, the crossing found by
-    /// bisection, and the rest of the way to the pole taken from β′ ≈ q|β|² near it
-    /// (Andersen & Piterbarg 2007, Finance and Stochastics 11, §3).
-    pub fn explosion_time(&self, u: &[f64], limit: f64) -> Option<f64> {
-        let numbers = self.constant.as_ref()?;
-        if u.len() != self.n || !(limit.is_finite() && limit > 0.0) {
-            return None;
-        }
-        let zero = vec![0.0; self.n];
-        let rhs =
-            |_: f64, y: &[f64], dy: &mut [f64]| riccati_rhs(self.n, numbers, 0.0, &zero, y, dy);
-        let complex: Vec<Complex64> = u.iter().map(|v| Complex64::new(*v, 0.0)).collect();
-        let size = |y: &[f64]| {
-            unpack(y, self.n)
-                .0
-                .iter()
-                .map(|b| b.norm_sqr())
-                .sum::<f64>()
-                .sqrt()
-        };
-        // Whether the solution stays bounded up to `to`: `Some(y)` when it does, `None`
-        // when it runs past EXPLOSION_SIZE (the pole lies before `to`), and an error when
-        // the integration cannot tell (a step limit on a stiff system is no pole).
-        let bounded = |y0: &[f64], from: f64, to: f64| {
-            let keep = |y: &[f64]| size(y) < EXPLOSION_SIZE && y.iter().all(|v| v.is_finite());
-            match ode::integrate_while(rhs, y0, from, to, RICCATI_RTOL, RICCATI_ATOL, keep) {
-                Ok(y) => Ok(Some(y)),
-                Err(ode::OdeError::Stopped { .. } | ode::OdeError::NonFinite { .. }) => Ok(None),
-                Err(other) => Err(other),
-            }
-        };
-        let (state, current) = approach_pole(bounded, pack(&complex), limit)?;
-        // β′ ≈ Q(β) near the pole; along the direction e of β, r′ ≈ (e·Q(e)) r².
-        let (beta, _) = unpack(&state, self.n);
-        let r = size(&state);
-        if r == 0.0 {
-            return Some(current);
-        }
-        let direction: Vec<f64> = beta.iter().map(|b| b.re / r).collect();
-        let mut growth = 0.0;
-        for k in 0..self.n {
-            let mut quadratic = 0.0;
-            for i in 0..self.n {
-                for j in 0..self.n {
-                    quadratic += direction[i]
-                        * numbers.h1[k * self.n * self.n + i * self.n + j]
-                        * direction[j];
-                }
-            }
-            growth += direction[k] * 0.5 * quadratic;
-        }
-        if growth > 0.0 {
-            Some(current + 1.0 / (growth * r))
-        } else {
-            Some(current)
-        }
     }
 }
 

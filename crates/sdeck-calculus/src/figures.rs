@@ -204,10 +204,22 @@ pub fn expectation_value(
     derivation: &Derivation,
     e: &Expectation,
 ) -> Result<f64, String> {
+    let work = crate::affine::WorkBudget::new(laws::LAW_WORK);
+    expectation_value_within(model, derivation, e, &work)
+}
+
+/// [`expectation_value`], a law's Riccati integrations drawing on `work` (shared by the
+/// expectations of one check).
+pub fn expectation_value_within(
+    model: &Model,
+    derivation: &Derivation,
+    e: &Expectation,
+    work: &crate::affine::WorkBudget,
+) -> Result<f64, String> {
     let t = e.at.unwrap_or(model.horizon);
     match (e.figure, e.state) {
         (Figure::Prob | Figure::Quantile, Some(state)) => {
-            let law = laws::law_of(model, derivation, state, t)
+            let law = laws::law_within(model, derivation, state, t, work)
                 .ok_or_else(|| "no known law at that time".to_string())?;
             let level = e
                 .level

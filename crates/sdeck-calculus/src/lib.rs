@@ -53,8 +53,8 @@ pub mod symmetric;
 mod system;
 
 pub use figures::{
-    autocovariance, covariance, expectation_value, figure_value, moments_at, quantile,
-    state_figures, state_moments, StateFigures,
+    autocovariance, covariance, expectation_value, expectation_value_within, figure_value,
+    moments_at, quantile, state_figures, state_moments, StateFigures,
 };
 use sdeck_semantics::{FactorId, IdVec, Model, ShockId};
 use shape::{classify_state, classify_system, Classified, OneState, SystemShape};

@@ -1,6 +1,7 @@
 //! The report of one model as data: built once from the analysis, rendered by every face.
 
-use sdeck_calculus::laws::{law_of, LawKind};
+use sdeck_calculus::affine::WorkBudget;
+use sdeck_calculus::laws::{law_within, LawKind, LAW_WORK};
 use sdeck_calculus::{
     expectation_value, moments_at, state_figures, Derivation, Family, Formulas, Method, Moments,
     StateFigures,
@@ -200,10 +201,11 @@ pub fn figures_with(
     levels: &Levels,
 ) -> Vec<Figures> {
     let moments = moments_at(model, derivation, t);
+    let work = WorkBudget::new(LAW_WORK);
     model
         .factors
         .ids()
-        .map(|i| figures_of(model, derivation, i, t, levels, column(&moments, i)))
+        .map(|i| figures_of(model, derivation, i, t, levels, column(&moments, i), &work))
         .collect()
 }
 
@@ -217,7 +219,15 @@ pub fn factor_figures(
     levels: &Levels,
 ) -> Figures {
     let state = state_figures(model, derivation, i, t);
-    figures_of(model, derivation, i, t, levels, state)
+    figures_of(
+        model,
+        derivation,
+        i,
+        t,
+        levels,
+        state,
+        &WorkBudget::new(LAW_WORK),
+    )
 }
 
 /// Factor `i`'s part of the figures of the whole model.
@@ -231,7 +241,8 @@ fn column(moments: &Moments, id: FactorId) -> StateFigures {
     }
 }
 
-/// The figures of factor `i` at time `t` from its mean and variance.
+/// The figures of factor `i` at time `t` from its mean and variance, its law drawing
+/// on `work` (shared by the factors of one report).
 fn figures_of(
     model: &Model,
     derivation: &Derivation,
@@ -239,6 +250,7 @@ fn figures_of(
     t: f64,
     levels: &Levels,
     state: StateFigures,
+    work: &WorkBudget,
 ) -> Figures {
     let StateFigures {
         mean,
@@ -247,7 +259,7 @@ fn figures_of(
         variance_infinite_from,
     } = state;
     let start = model.factors.by_id(i).map_or(0.0, |s| s.initial);
-    let law = law_of(model, derivation, i, t);
+    let law = law_within(model, derivation, i, t, work);
     let quantile_law = law
         .as_ref()
         .filter(|l| levels.quantiles_by_inversion || l.kind() != LawKind::Fourier);
@@ -382,12 +394,13 @@ impl ModelReport {
         levels: &Levels,
     ) -> ModelReport {
         let moments = moments_at(model, derivation, at);
+        let work = WorkBudget::new(LAW_WORK);
         let factors = model
             .factors
             .ids()
             .filter_map(|i| {
                 let state = column(&moments, i);
-                let figures = figures_of(model, derivation, i, at, levels, state);
+                let figures = figures_of(model, derivation, i, at, levels, state, &work);
                 FactorReport::from_figures(model, derivation, i, state.exact, figures)
             })
             .collect();
@@ -459,7 +472,8 @@ impl FactorReport {
         levels: &Levels,
     ) -> Option<FactorReport> {
         let state = state_figures(model, derivation, i, at);
-        let figures = figures_of(model, derivation, i, at, levels, state);
+        let work = WorkBudget::new(LAW_WORK);
+        let figures = figures_of(model, derivation, i, at, levels, state, &work);
         Self::from_figures(model, derivation, i, state.exact, figures)
     }
 

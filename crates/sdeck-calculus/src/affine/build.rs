@@ -234,41 +234,14 @@ fn check_admissible(model: &Model, h1: &[Vec<Vec<Poly>>], log: &[bool]) -> Resul
 /// anything depends on t, the breaks of the coefficients, and the numbers read once when
 /// nothing does.
 fn assemble(model: &Model, log: Vec<bool>, c: Coefficients) -> Result<AffineSet, String> {
-    let Coefficients { k0, k1, h0, h1 } = c;
-    let n = log.len();
     let x0 = model
         .factors
         .iter()
         .zip(&log)
         .map(|(s, &l)| if l { s.initial.ln() } else { s.initial })
         .collect();
-    let time_dependent = k0.iter().any(Poly::depends_on_time)
-        || k1.iter().flatten().any(Poly::depends_on_time)
-        || h0.iter().flatten().any(Poly::depends_on_time)
-        || h1.iter().flatten().flatten().any(Poly::depends_on_time);
-    let params = model.param_values();
-    let breaks = TimeBreaks::of_polys(
-        k0.iter()
-            .chain(k1.iter().flatten())
-            .chain(h0.iter().flatten())
-            .chain(h1.iter().flatten().flatten()),
-        &params,
-    );
-    let mut set = AffineSet {
-        n,
-        log,
-        x0,
-        k0,
-        k1,
-        h0,
-        h1,
-        params,
-        time_dependent,
-        constant: None,
-        breaks,
-    };
-    if !time_dependent {
-        let numbers = set.numbers(0.0);
+    let set = from_parts(log, x0, c, model.param_values());
+    if let Some(numbers) = &set.constant {
         if numbers
             .k0
             .iter()
@@ -279,9 +252,66 @@ fn assemble(model: &Model, log: Vec<bool>, c: Coefficients) -> Result<AffineSet,
         {
             return Err("a coefficient is not a finite number".to_string());
         }
-        set.constant = Some(numbers);
     }
     Ok(set)
+}
+
+/// The set of `log`, `x0` and the coefficients, with what follows from them: whether
+/// anything depends on t, where the coefficients break, and their numbers when constant.
+fn from_parts(log: Vec<bool>, x0: Vec<f64>, c: Coefficients, params: Vec<f64>) -> AffineSet {
+    let Coefficients { k0, k1, h0, h1 } = c;
+    let time_dependent = k0.iter().any(Poly::depends_on_time)
+        || k1.iter().flatten().any(Poly::depends_on_time)
+        || h0.iter().flatten().any(Poly::depends_on_time)
+        || h1.iter().flatten().flatten().any(Poly::depends_on_time);
+    let breaks = TimeBreaks::of_polys(
+        k0.iter()
+            .chain(k1.iter().flatten())
+            .chain(h0.iter().flatten())
+            .chain(h1.iter().flatten().flatten()),
+        &params,
+    );
+    let mut set = AffineSet {
+        n: log.len(),
+        log,
+        x0,
+        k0,
+        k1,
+        h0,
+        h1,
+        params,
+        time_dependent,
+        constant: None,
+        breaks,
+        work: None,
+    };
+    if !time_dependent {
+        set.constant = Some(set.numbers(0.0));
+    }
+    set
+}
+
+impl AffineSet {
+    /// The set of the factors `keep` alone (indices into this set, in that order),
+    /// drawing on the same work budget.
+    pub(super) fn select(&self, keep: &[usize]) -> AffineSet {
+        let pick = |v: &[Poly]| keep.iter().map(|&i| v[i].clone()).collect::<Vec<_>>();
+        let pick2 = |m: &[Vec<Poly>]| keep.iter().map(|&i| pick(&m[i])).collect::<Vec<_>>();
+        let coefficients = Coefficients {
+            k0: pick(&self.k0),
+            k1: pick2(&self.k1),
+            h0: pick2(&self.h0),
+            h1: keep.iter().map(|&k| pick2(&self.h1[k])).collect(),
+        };
+        let mut set = from_parts(
+            keep.iter().map(|&i| self.log[i]).collect(),
+            keep.iter().map(|&i| self.x0[i]).collect(),
+            coefficients,
+            self.params.clone(),
+        );
+        set.work = self.work.clone();
+        set
+    }
 }
 
 fn name(model: &Model, i: usize) -> String {

@@ -1,6 +1,7 @@
 use super::closed_form::scalar_riccati;
 use super::*;
 use sdeck_semantics::Model;
+use std::sync::atomic::Ordering;
 
 fn model(text: &str) -> Model {
     let analysis = sdeck_semantics::analyze(text, "test");
@@ -328,4 +329,105 @@ fn scalar_riccati_has_the_tangent_pole() {
     // ∫₀¹ tan = −ln cos 1.
     assert!((integral.re + 1f64.cos().ln()).abs() < 1e-14);
     assert!(scalar_riccati(1.0, zero, one, zero, 1.6).is_none());
+}
+
+/// A price over a square-root variance (Heston 1993) beside a Vasicek rate and a
+/// spread that neither reads: the set of four needs the integrator, the two it reads
+/// have the scalar closed form.
+const PRICE_BESIDE_A_RATE: &str = "model m\nclock year\n\
+    param kappa = 1.5 [1/year]\nparam level = 3%\nparam vol = 0.8% [1/sqrt(year)]\n\
+    param mu = 3% [1/year]\nparam theta = 0.04 [1/year]\nparam xi = 0.5 [1/year]\n\
+    shock W\nshock B\nshock Ws, Wv\ncorr Ws Wv = -0.7\n\
+    factor r = 2.5%\nfactor s = 0.4%\nfactor S = 100\nfactor v = 0.04 [1/year]\n\
+    dr = kappa * (level - r) dt + vol dW\nds = 0.6% [1/sqrt(year)] dB\n\
+    dS = mu * S dt + sqrt(v) * S dWs\ndv = kappa * (theta - v) dt + xi * sqrt(v) dWv\n";
+
+#[test]
+fn factors_nothing_reads_are_left_out_exactly() {
+    let m = model(PRICE_BESIDE_A_RATE);
+    let set = AffineSet::from_model(&m).expect("affine");
+    assert_eq!(set.plan(&Rate::zero(&set)), Plan::Numeric);
+    // With no work to spend, only a closed form can answer: the transform of S reads S
+    // and v alone, which have one.
+    let frugal = set.clone().with_work(WorkBudget::new(0));
+    let zero = Rate::zero(&set);
+    for omega in [0.5, 3.0, 20.0] {
+        let u = [
+            Complex64::new(0.0, 0.0),
+            Complex64::new(0.0, 0.0),
+            Complex64::new(0.0, omega),
+            Complex64::new(0.0, 0.0),
+        ];
+        let reduced = frugal.log_transform(&u, &zero, 5.0).expect("closed form");
+        let integrated = numeric(&set, &u, &zero, 5.0);
+        assert!(
+            (reduced - integrated).norm() < 1e-8 * (1.0 + integrated.norm()),
+            "ω = {omega}: {reduced} against {integrated}"
+        );
+    }
+    // The bond price of r reads r alone: Vasicek's closed form, not the integrator.
+    let rate = short_rate(&set, &m, "r");
+    assert_eq!(set.method(&rate), TransformMethod::ClosedForm);
+    let bond = frugal
+        .log_transform(&real(&[0.0; 4]), &rate, 10.0)
+        .expect("closed form");
+    let alone = numeric(&set, &real(&[0.0; 4]), &rate, 10.0);
+    assert!((bond - alone).norm() < 1e-10, "{bond} against {alone}");
+}
+
+/// Two square-root factors, the second reverting to the first: the Riccati system
+/// couples them and has no closed form here.
+const COUPLED_SQUARE_ROOTS: &str = "model m\nclock year\n\
+    param kappa = 1.5 [1/year]\nparam theta = 0.05\nparam xi = 0.5 [1/sqrt(year)]\n\
+    param a = 0.7 [1/year]\nparam b = 0.3 [1/sqrt(year)]\nshock Wv\nshock Wu\n\
+    factor v = 0.04 >= 0\nfactor u = 0.03 >= 0\n\
+    dv = kappa * (theta - v) dt + xi * sqrt(v) dWv\n\
+    du = a * (v - u) dt + b * sqrt(u) dWu\n";
+
+#[test]
+fn a_spent_work_budget_is_an_unknown_transform_not_an_explosion() {
+    let m = model(COUPLED_SQUARE_ROOTS);
+    let set = AffineSet::from_model(&m).expect("affine");
+    let zero = Rate::zero(&set);
+    let u = [Complex64::new(0.0, 0.0), Complex64::new(0.0, 4.0)];
+    assert_eq!(set.plan(&zero), Plan::Numeric);
+    let free = set.log_transform(&u, &zero, 2.0).expect("finite");
+    assert!((free - numeric(&set, &u, &zero, 2.0)).norm() < 1e-9);
+    // A budget enough for one integration serves it, and its clones share what is left.
+    let budgeted = set.clone().with_work(WorkBudget::new(200_000));
+    assert_eq!(budgeted.log_transform(&u, &zero, 2.0), Ok(free));
+    let clone = budgeted.clone();
+    let mut served = 1;
+    let failure = loop {
+        match clone.log_transform(&u, &zero, 2.0) {
+            Ok(value) => {
+                assert_eq!(value, free);
+                served += 1;
+                assert!(served < 10_000, "the budget never ran out");
+            }
+            Err(error) => break error,
+        }
+    };
+    assert!(
+        matches!(&failure, TransformError::Failed(why) if why.contains("work budget")),
+        "{failure:?}"
+    );
+    assert!(budgeted.log_transform(&u, &zero, 2.0).is_err(), "shared");
+    // Several times in one call: those past the budget are unknown, none explodes.
+    let left = |s: &AffineSet| s.work.as_ref().map(WorkBudget::left);
+    let probe = set.clone().with_work(WorkBudget::new(1_000_000));
+    probe.log_transform(&u, &zero, 0.5).expect("finite");
+    let first = 1_000_000 - left(&probe).expect("a budget");
+    let times = [0.5, 1.0, 2.0, 4.0, 8.0];
+    let values = set
+        .clone()
+        .with_work(WorkBudget::new(first + 8))
+        .log_transforms(&u, &zero, &times);
+    assert!(values[0].is_ok(), "{values:?}");
+    assert!(
+        values[1..]
+            .iter()
+            .all(|v| matches!(v, Err(TransformError::Failed(_)))),
+        "{values:?}"
+    );
 }

@@ -58,6 +58,7 @@ mod shared;
 pub use implausible_value::Plausibility;
 
 use crate::reuse::{ContentKeys, Reuse};
+use sdeck_calculus::affine::WorkBudget;
 use sdeck_calculus::Derivation;
 use sdeck_diagnostics::{Diagnostic, RuleId};
 use sdeck_semantics::{Analysis, Expectation, Model};
@@ -77,6 +78,9 @@ pub struct Context<'a> {
     pub stale: &'a (dyn Fn() -> bool + Sync),
     /// What earlier versions of the document derived, and the keys of this one.
     reuse: Option<(&'a Reuse, &'a ContentKeys)>,
+    /// The Riccati work the laws of the expectations share: a file of many `expect`
+    /// lines on a law that is hard to invert spends one budget, not one per line.
+    work: WorkBudget,
 }
 
 impl<'a> Context<'a> {
@@ -90,6 +94,7 @@ impl<'a> Context<'a> {
             plausibility: Plausibility::default(),
             stale: &|| false,
             reuse: None,
+            work: WorkBudget::new(sdeck_calculus::laws::LAW_WORK),
         }
     }
 
@@ -103,7 +108,8 @@ impl<'a> Context<'a> {
     /// ([`sdeck_calculus::expectation_value`]), taken over when an earlier version of the
     /// document computed it for the same content.
     pub fn expectation_value(&self, e: &Expectation) -> Result<f64, String> {
-        let compute = || sdeck_calculus::expectation_value(self.model, self.derivation, e);
+        let compute =
+            || sdeck_calculus::expectation_value_within(self.model, self.derivation, e, &self.work);
         match self.reuse {
             Some((reuse, keys)) => reuse.expectation_value(keys.expectation(e), compute),
             None => compute(),
