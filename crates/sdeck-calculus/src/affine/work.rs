@@ -24,7 +24,7 @@ impl WorkBudget {
     }
 
     /// Takes `cost` units; false, taking nothing, when fewer are left.
-    fn take(&self, cost: usize) -> bool {
+    pub(super) fn take(&self, cost: usize) -> bool {
         self.0
             .fetch_update(Ordering::Relaxed, Ordering::Relaxed, |n| {
                 n.checked_sub(cost)
