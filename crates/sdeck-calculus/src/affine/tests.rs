@@ -1,7 +1,6 @@
 use super::closed_form::scalar_riccati;
 use super::*;
 use sdeck_semantics::Model;
-use std::sync::atomic::Ordering;
 
 fn model(text: &str) -> Model {
     let analysis = sdeck_semantics::analyze(text, "test");
