@@ -34,7 +34,7 @@ impl AffineSet {
         // The search's own budget: a stiff system may take thousands of steps in each of
         // the 336 integrations (grid and bisection) while staying far from any pole.
         let work = WorkBudget::new(EXPLOSION_WORK);
-        let cost = self.n.saturating_pow(3).max(1);
+        let cost = self.evaluation_cost();
         let rhs = |_: f64, y: &[f64], dy: &mut [f64]| {
             if work.take(cost) {
                 riccati_rhs(self.n, numbers, 0.0, &zero, y, dy)

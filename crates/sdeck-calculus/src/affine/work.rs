@@ -42,7 +42,8 @@ impl AffineSet {
         self
     }
 
-    fn evaluation_cost(&self) -> usize {
+    /// What one right-hand-side evaluation costs: n³ units.
+    pub(super) fn evaluation_cost(&self) -> usize {
         self.n.saturating_pow(3).max(1)
     }
 
